@@ -1,0 +1,136 @@
+//! Running a plan: load data, assess integrity, fit every specification, test every
+//! hypothesis and assemble the results and reports, all in memory.
+//!
+//! Nothing here writes files or the ledger: `app` sequences that, so `verify` can re-derive
+//! a run's outputs byte for byte with the same function.
+
+mod hypotheses;
+mod integrity;
+mod spec;
+
+use crate::data::{load_table, Table};
+use crate::deviation::{self, Deviation, Severity};
+use crate::error::Result;
+use crate::ledger::{Ledger, PlanPrint, TOOL_VERSION};
+use crate::plan::Plan;
+use crate::results::{DataInfo, PlanInfo, Results, Tool};
+use std::collections::BTreeMap;
+use std::path::{Component, Path, PathBuf};
+
+pub use spec::term;
+
+/// The outputs of a run, not yet written.
+pub struct RunOutput {
+    /// The results model.
+    pub results: Results,
+    /// Output files by name (results.json, report.md, report.tex), in writing order.
+    pub files: Vec<(String, String)>,
+}
+
+/// Read every declared data table (schema deviations included).
+pub fn load_tables(plan: &Plan) -> Result<(BTreeMap<String, Table>, Vec<Deviation>)> {
+    let mut tables = BTreeMap::new();
+    let mut devs = Vec::new();
+    for src in plan.data.values() {
+        let (t, d) = load_table(plan, src)?;
+        tables.insert(src.id.clone(), t);
+        devs.extend(d);
+    }
+    Ok((tables, devs))
+}
+
+/// The path of `to` relative to the directory `from` (both absolute).
+pub fn relative_path(from: &Path, to: &Path) -> PathBuf {
+    let a: Vec<Component> = from.components().collect();
+    let b: Vec<Component> = to.components().collect();
+    let common = a.iter().zip(&b).take_while(|(x, y)| x == y).count();
+    let mut out = PathBuf::new();
+    for _ in common..a.len() {
+        out.push("..");
+    }
+    for c in &b[common..] {
+        out.push(c.as_os_str());
+    }
+    out
+}
+
+/// Run `plan` against its data, judging integrity by `ledger` as it stood before this run.
+/// `out_dir` (absolute) is where the outputs will live; paths in results.json are relative to it.
+pub fn execute(plan: &Plan, ledger: &Ledger, out_dir: &Path, tables: &BTreeMap<String, Table>, schema_devs: Vec<Deviation>) -> Result<RunOutput> {
+    let print = PlanPrint::of(&plan.path, &plan.text)?;
+    let hashes: BTreeMap<String, String> = tables.iter().map(|(id, t)| (id.clone(), t.sha256.clone())).collect();
+    let integrity = integrity::assess(ledger, &print, &hashes);
+    let mut devs = integrity.deviations;
+    devs.extend(schema_devs);
+    let mut fitted = BTreeMap::new();
+    for s in &plan.specifications {
+        let source = &plan.data[&s.data];
+        let mut f = spec::fit_spec(s, &tables[&s.data], source)?;
+        spec_deviations(plan, s, &mut f, integrity.registered_specs.as_ref(), &mut devs);
+        fitted.insert(s.id.clone(), f);
+    }
+    let hypotheses = hypotheses::test_all(plan, &fitted);
+    deviation::sort(&mut devs);
+    let mut results = Results {
+        format: 1,
+        tool: Tool { name: "sworn", version: TOOL_VERSION },
+        plan: PlanInfo {
+            path: relative_path(out_dir, &plan.path).to_string_lossy().replace('\\', "/"),
+            bytes_sha256: print.bytes_sha256.clone(),
+            content_sha256: print.content_sha256.clone(),
+            sealed: integrity.sealed,
+            ledger_head: integrity.ledger_head,
+            integrity: integrity.state,
+        },
+        data: plan
+            .data
+            .values()
+            .map(|d| (d.id.clone(), DataInfo { path: d.path_text.clone(), sha256: tables[&d.id].sha256.clone(), rows: tables[&d.id].rows }))
+            .collect(),
+        specifications: fitted.into_iter().map(|(k, f)| (k, f.result)).collect(),
+        hypotheses,
+        contingencies: Vec::new(),
+        deviations: devs,
+        digest: String::new(),
+    };
+    results.digest = results.compute_digest();
+    let (md, tex) = crate::report::render(plan, &results)?;
+    let files = vec![
+        ("results.json".to_string(), results.to_file_text()),
+        ("report.md".to_string(), md),
+        ("report.tex".to_string(), tex),
+    ];
+    Ok(RunOutput { results, files })
+}
+
+fn spec_deviations(plan: &Plan, s: &crate::plan::Spec, f: &mut spec::Fitted, registered: Option<&std::collections::BTreeSet<String>>, devs: &mut Vec<Deviation>) {
+    devs.append(&mut f.deviations);
+    if s.exploratory {
+        devs.push(Deviation::new("exploratory", Severity::Note, s.id.clone(), "marked exploratory in the plan: reported apart, not pre-registered"));
+    }
+    if registered.is_some_and(|r| !r.contains(&s.id)) {
+        f.result.pre_registered = false;
+        devs.push(Deviation::new("added-after-data", Severity::Deviation, s.id.clone(), "this specification was added by an amendment after the data were first read: it is not pre-registered"));
+    }
+    let sample = &f.result.sample;
+    let share = if sample.in_sample == 0 { 0.0 } else { sample.dropped_missing as f64 / sample.in_sample as f64 };
+    if let Some(max) = plan.data[&s.data].max_missing_share {
+        if share > max {
+            devs.push(Deviation::new("missing-share", Severity::Deviation, s.id.clone(), format!(
+                "listwise deletion dropped {} of {} sample rows ({:.1}%), above the declared max_missing_share of {:.1}%",
+                sample.dropped_missing, sample.in_sample, 100.0 * share, 100.0 * max
+            )));
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn relative_paths() {
+        assert_eq!(relative_path(Path::new("/a/b/out/x"), Path::new("/a/b/plans/p.toml")), PathBuf::from("../../plans/p.toml"));
+        assert_eq!(relative_path(Path::new("/a"), Path::new("/a/p.toml")), PathBuf::from("p.toml"));
+    }
+}

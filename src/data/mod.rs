@@ -1,0 +1,35 @@
+//! Data: read each declared table (polars), check it against the declared schema, derive
+//! variables, and hand out design matrices. This is the only bridge from polars to nalgebra.
+//!
+//! Invariants of a loaded [`Table`]: rows are in `order_by` order when one is declared;
+//! numeric columns (declared numeric kinds and derived variables) are `f64` with `None` for
+//! missing; grouping columns (category, id, integer, binary) are also available as labels.
+
+mod design;
+mod read;
+
+pub use design::{design, Design, FE_PREFIX};
+pub use read::load_table;
+
+use std::collections::BTreeMap;
+use std::path::PathBuf;
+
+/// A data table as loaded for a run.
+#[derive(Debug, Clone)]
+pub struct Table {
+    /// Table id.
+    pub id: String,
+    /// File read.
+    pub path: PathBuf,
+    /// SHA-256 of the file's bytes.
+    pub sha256: String,
+    /// Number of rows.
+    pub rows: usize,
+    /// Numeric columns and derived variables.
+    pub numeric: BTreeMap<String, Vec<Option<f64>>>,
+    /// Group labels of grouping columns.
+    pub labels: BTreeMap<String, Vec<Option<String>>>,
+}
+
+/// Tokens read as missing in text data, besides an empty field.
+pub const MISSING_TOKENS: [&str; 2] = ["NA", "."];

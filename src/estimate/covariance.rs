@@ -1,0 +1,283 @@
+//! Covariance estimators for least-squares and 2SLS coefficients.
+//!
+//! Role: turn a factorised design and a residual vector into the coefficient covariance the
+//! plan asks for. Everything is computed in the coordinates of the thin Q factor: with
+//! X T = Q₁ and (X'X)^{-1} = T Tᵀ (see `qr`), every estimator is V = c · T A Tᵀ where A is a
+//! k × k "meat" built from the rows qᵢ of Q₁, so X'X is never formed or inverted.
+//!
+//! Conventions (n observations, k coefficients, u the residuals, hᵢ = ‖qᵢ‖² the leverage):
+//! * Classical: s² (X'X)^{-1}, s² = u'u / (n − k); here (X'X)^{-1} = T Tᵀ is refined
+//!   column by column on the augmented system (module `refine`) for full accuracy.
+//! * HC0 (White 1980, Econometrica 48): A = Σ uᵢ² qᵢ qᵢᵀ, c = 1.
+//! * HC1: HC0 · n / (n − k) (MacKinnon and White 1985, J. Econometrics 29).
+//! * HC2: A = Σ uᵢ²/(1 − hᵢ) qᵢ qᵢᵀ; HC3: A = Σ uᵢ²/(1 − hᵢ)² qᵢ qᵢᵀ (MacKinnon and White
+//!   1985). They are offered for OLS only; for 2SLS they are refused with
+//!   [`EstimateError::CovarianceUnavailable`] because no leverage is fixed by the literature
+//!   we follow. An observation with 1 − hᵢ ≤ max(n, k)·eps is [`EstimateError::UnitLeverage`].
+//! * One-way cluster CR1 (Liang and Zeger 1986, Biometrika 73): A = Σ_g s_g s_gᵀ with
+//!   s_g = Σ_{i∈g} qᵢ uᵢ, c = G/(G − 1) · (n − 1)/(n − k), the small-sample factor in common
+//!   use. Needs G ≥ 2.
+//! * Two-way (Cameron, Gelbach and Miller 2011, JBES 29): V = V_A + V_B − V_{A∩B}, each term
+//!   a CR1 matrix with its own G (clusters of A, of B, of the non-empty A×B cells). If the sum
+//!   has a negative eigenvalue, the eigenvalues are clamped at zero and V is rebuilt from its
+//!   eigenvectors, the fix CGM (2011, section 2.3) propose. `clusters` reports min(G_A, G_B).
+//!
+//! For 2SLS the design is X̂ (first-stage fitted regressors) and u the structural residuals.
+
+use std::collections::HashMap;
+
+use nalgebra::{DMatrix, DVector, SymmetricEigen};
+
+use super::qr::PivotedQr;
+use super::EstimateError;
+
+/// Which coefficient covariance to compute.
+#[derive(Debug, Clone, PartialEq)]
+pub enum CovSpec {
+    /// s² (X'X)^{-1} with s² = RSS / (n − k).
+    Classical,
+    /// White's heteroskedasticity-consistent sandwich.
+    Hc0,
+    /// HC0 scaled by n / (n − k).
+    Hc1,
+    /// Leverage-weighted sandwich, uᵢ² / (1 − hᵢ) (OLS only).
+    Hc2,
+    /// Leverage-weighted sandwich, uᵢ² / (1 − hᵢ)² (OLS only).
+    Hc3,
+    /// One-way clustered (CR1); `ids` gives a dense 0-based cluster index per observation.
+    Cluster {
+        /// Cluster index of each observation.
+        ids: Vec<usize>,
+    },
+    /// Two-way clustered (Cameron, Gelbach and Miller 2011).
+    TwoWay {
+        /// First clustering dimension, one dense 0-based index per observation.
+        first: Vec<usize>,
+        /// Second clustering dimension, one dense 0-based index per observation.
+        second: Vec<usize>,
+    },
+}
+
+impl CovSpec {
+    /// Short lowercase name used in error messages.
+    pub fn name(&self) -> &'static str {
+        match self {
+            CovSpec::Classical => "classical",
+            CovSpec::Hc0 => "hc0",
+            CovSpec::Hc1 => "hc1",
+            CovSpec::Hc2 => "hc2",
+            CovSpec::Hc3 => "hc3",
+            CovSpec::Cluster { .. } => "cluster",
+            CovSpec::TwoWay { .. } => "two-way cluster",
+        }
+    }
+}
+
+/// A covariance matrix and, when clustered, the number of clusters used for inference.
+#[derive(Debug, Clone)]
+pub(crate) struct Covariance {
+    pub(crate) cov: DMatrix<f64>,
+    pub(crate) clusters: Option<usize>,
+}
+
+/// Whether leverage-based estimators (HC2, HC3) are allowed for this estimator.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Leverage {
+    Allowed,
+    Refused(&'static str),
+}
+
+/// Computes the requested covariance for the design factorised in `qr`.
+///
+/// # Formula
+/// See the module documentation; V = c · T A Tᵀ.
+///
+/// # Errors
+/// Cluster ids of the wrong length, fewer than two clusters, HC2/HC3 where refused or at a
+/// unit-leverage observation.
+pub(crate) fn covariance(
+    qr: &PivotedQr,
+    x: &DMatrix<f64>,
+    resid: &DVector<f64>,
+    spec: &CovSpec,
+    leverage: Leverage,
+) -> Result<Covariance, EstimateError> {
+    let t = qr.t_matrix();
+    let (n, k) = (resid.len(), t.nrows());
+    let sandwich = |meat: DMatrix<f64>, c: f64| &t * meat * t.transpose() * c;
+    let plain = |cov| Covariance {
+        cov,
+        clusters: None,
+    };
+    match spec {
+        CovSpec::Classical => {
+            let s2 = resid.norm_squared() / (n - k) as f64;
+            Ok(plain(qr.refined_inverse(x) * s2))
+        }
+        CovSpec::Hc0 | CovSpec::Hc1 | CovSpec::Hc2 | CovSpec::Hc3 => {
+            let q1 = qr.thin_q();
+            let weights = hc_weights(&q1, resid, spec, leverage)?;
+            let c = if *spec == CovSpec::Hc1 {
+                n as f64 / (n - k) as f64
+            } else {
+                1.0
+            };
+            Ok(plain(sandwich(weighted_gram(&q1, &weights), c)))
+        }
+        CovSpec::Cluster { ids } => {
+            let scores = scores(&qr.thin_q(), resid);
+            let (meat, g) = cluster_meat(&scores, ids)?;
+            let cov = sandwich(meat, cr1_factor(g, n, k));
+            Ok(Covariance {
+                cov,
+                clusters: Some(g),
+            })
+        }
+        CovSpec::TwoWay { first, second } => {
+            let scores = scores(&qr.thin_q(), resid);
+            let (meat_a, ga) = cluster_meat(&scores, first)?;
+            let (meat_b, gb) = cluster_meat(&scores, second)?;
+            let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;
+            let meat = meat_a * cr1_factor(ga, n, k) + meat_b * cr1_factor(gb, n, k)
+                - meat_ab * cr1_factor(gab, n, k);
+            let cov = clamp_negative_eigenvalues(sandwich(meat, 1.0));
+            Ok(Covariance {
+                cov,
+                clusters: Some(ga.min(gb)),
+            })
+        }
+    }
+}
+
+/// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ.
+fn hc_weights(
+    q1: &DMatrix<f64>,
+    resid: &DVector<f64>,
+    spec: &CovSpec,
+    leverage: Leverage,
+) -> Result<Vec<f64>, EstimateError> {
+    let power = match spec {
+        CovSpec::Hc2 => 1,
+        CovSpec::Hc3 => 2,
+        _ => return Ok(resid.iter().map(|u| u * u).collect()),
+    };
+    if let Leverage::Refused(estimator) = leverage {
+        let kind = spec.name();
+        return Err(EstimateError::CovarianceUnavailable { estimator, kind });
+    }
+    let tol = q1.nrows().max(q1.ncols()) as f64 * f64::EPSILON;
+    (0..q1.nrows())
+        .map(|i| {
+            let one_minus_h = 1.0 - q1.row(i).norm_squared();
+            if one_minus_h <= tol {
+                return Err(EstimateError::UnitLeverage { observation: i });
+            }
+            Ok(resid[i] * resid[i] / one_minus_h.powi(power))
+        })
+        .collect()
+}
+
+/// Σ ωᵢ qᵢ qᵢᵀ for the rows qᵢ of `q1`.
+fn weighted_gram(q1: &DMatrix<f64>, weights: &[f64]) -> DMatrix<f64> {
+    let mut scaled = q1.clone();
+    for (i, w) in weights.iter().enumerate() {
+        scaled.row_mut(i).scale_mut(*w);
+    }
+    q1.transpose() * scaled
+}
+
+/// The score rows qᵢ uᵢ (n × k).
+fn scores(q1: &DMatrix<f64>, resid: &DVector<f64>) -> DMatrix<f64> {
+    let mut s = q1.clone();
+    for (i, u) in resid.iter().enumerate() {
+        s.row_mut(i).scale_mut(*u);
+    }
+    s
+}
+
+/// Σ_g s_g s_gᵀ with s_g the within-cluster sums of the score rows, and the cluster count.
+fn cluster_meat(
+    scores: &DMatrix<f64>,
+    ids: &[usize],
+) -> Result<(DMatrix<f64>, usize), EstimateError> {
+    let (n, k) = scores.shape();
+    if ids.len() != n {
+        return Err(EstimateError::ClusterLength { n, ids: ids.len() });
+    }
+    let (dense, g) = densify(ids);
+    if g < 2 {
+        return Err(EstimateError::TooFewClusters { clusters: g });
+    }
+    let mut sums = DMatrix::zeros(g, k);
+    for (i, &c) in dense.iter().enumerate() {
+        let mut row = sums.row_mut(c);
+        row += scores.row(i);
+    }
+    Ok((sums.transpose() * &sums, g))
+}
+
+/// Relabels arbitrary ids as 0..G in order of first appearance.
+fn densify<T: std::hash::Hash + Eq + Copy>(ids: &[T]) -> (Vec<usize>, usize) {
+    let mut map = HashMap::new();
+    let dense = ids
+        .iter()
+        .map(|id| {
+            let next = map.len();
+            *map.entry(*id).or_insert(next)
+        })
+        .collect();
+    (dense, map.len())
+}
+
+/// Cluster index of the intersection cells A × B (only non-empty cells are counted).
+fn intersect(first: &[usize], second: &[usize]) -> Vec<usize> {
+    let pairs: Vec<(usize, usize)> = first.iter().copied().zip(second.iter().copied()).collect();
+    densify(&pairs).0
+}
+
+/// The CR1 small-sample factor G/(G − 1) · (n − 1)/(n − k).
+fn cr1_factor(g: usize, n: usize, k: usize) -> f64 {
+    (g as f64 / (g - 1) as f64) * ((n - 1) as f64 / (n - k) as f64)
+}
+
+/// Replaces negative eigenvalues of a symmetric matrix by zero (CGM 2011, section 2.3);
+/// returns the matrix unchanged when it is already positive semi-definite.
+pub(crate) fn clamp_negative_eigenvalues(v: DMatrix<f64>) -> DMatrix<f64> {
+    let sym = (&v + v.transpose()) * 0.5;
+    let eigen = SymmetricEigen::new(sym);
+    if eigen.eigenvalues.iter().all(|&l| l >= 0.0) {
+        return v;
+    }
+    let clamped = eigen.eigenvalues.map(|l| l.max(0.0));
+    &eigen.eigenvectors * DMatrix::from_diagonal(&clamped) * eigen.eigenvectors.transpose()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Worked by hand: [[1, 2], [2, 1]] has eigenvalues 3 and −1 with eigenvectors
+    /// (1, 1)/√2 and (1, −1)/√2; clamping −1 to 0 leaves 3 · vvᵀ = [[1.5, 1.5], [1.5, 1.5]].
+    #[test]
+    fn clamp_removes_negative_eigenvalue() {
+        let v = DMatrix::from_row_slice(2, 2, &[1.0, 2.0, 2.0, 1.0]);
+        let fixed = clamp_negative_eigenvalues(v);
+        for x in fixed.iter() {
+            assert!((x - 1.5).abs() < 1e-14, "{fixed}");
+        }
+    }
+
+    /// A positive definite matrix is returned bit for bit.
+    #[test]
+    fn clamp_keeps_positive_definite() {
+        let v = DMatrix::from_row_slice(2, 2, &[2.0, 0.5, 0.5, 1.0]);
+        assert_eq!(clamp_negative_eigenvalues(v.clone()), v);
+    }
+
+    /// Dense relabelling and cell counting, checked by hand.
+    #[test]
+    fn intersection_cells() {
+        let cells = intersect(&[0, 0, 1, 1, 0], &[0, 1, 0, 1, 0]);
+        assert_eq!(cells, vec![0, 1, 2, 3, 0]);
+    }
+}

@@ -1,0 +1,266 @@
+//! OLS and 2SLS point estimates and the assembly of a [`LinearFit`].
+//!
+//! Role: validate inputs, factorise the design (module `qr`), solve, and hand residuals to
+//! the covariance estimators (module `covariance`). Invariants: every returned fit has
+//! n > k, full-rank regressors, and a covariance from the requested [`CovSpec`].
+
+use nalgebra::{DMatrix, DVector};
+
+use super::covariance::{covariance, CovSpec, Leverage};
+use super::qr::{collinear_columns, PivotedQr};
+use super::refine::residual;
+use super::{EstimateError, LinearFit};
+use crate::distribution::Reference;
+
+/// A solved least-squares problem: the factorised design and its coefficients.
+#[derive(Debug, Clone)]
+pub(crate) struct LeastSquares {
+    pub(crate) qr: PivotedQr,
+    /// The factorised design (X for OLS, X̂ for 2SLS).
+    pub(crate) design: DMatrix<f64>,
+    pub(crate) coef: DVector<f64>,
+    pub(crate) resid: DVector<f64>,
+}
+
+/// Checks that every input is finite and has `y.len()` rows.
+pub(crate) fn validate(
+    y: &DVector<f64>,
+    matrices: &[(&'static str, &DMatrix<f64>)],
+) -> Result<(), EstimateError> {
+    if y.iter().any(|v| !v.is_finite()) {
+        return Err(EstimateError::NotFinite);
+    }
+    for (what, m) in matrices {
+        if m.nrows() != y.len() {
+            let (expected, got) = (y.len(), m.nrows());
+            return Err(EstimateError::DimensionMismatch {
+                what,
+                expected,
+                got,
+            });
+        }
+        if m.iter().any(|v| !v.is_finite()) {
+            return Err(EstimateError::NotFinite);
+        }
+    }
+    Ok(())
+}
+
+/// Requires more observations than `k`.
+pub(crate) fn require_observations(n: usize, k: usize) -> Result<(), EstimateError> {
+    if n <= k {
+        return Err(EstimateError::TooFewObservations { n, k });
+    }
+    Ok(())
+}
+
+/// Least squares of `y` on `x` (inputs already validated, n > k).
+pub(crate) fn least_squares(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+) -> Result<LeastSquares, EstimateError> {
+    let qr = PivotedQr::new(x)?;
+    let coef = qr.solve(x, y);
+    let resid = residual(x, y, &coef);
+    Ok(LeastSquares {
+        qr,
+        design: x.clone(),
+        coef,
+        resid,
+    })
+}
+
+/// Total sum of squares: about the mean when `centered`, else about zero.
+fn total_sum_of_squares(y: &DVector<f64>, centered: bool) -> f64 {
+    let mean = if centered { y.mean() } else { 0.0 };
+    y.iter().map(|v| (v - mean) * (v - mean)).sum()
+}
+
+/// Builds the [`LinearFit`] for coefficients `coef` of regressors `x` with covariance from
+/// `ls_qr` (the design whose sandwich is used: X for OLS, X̂ for 2SLS).
+pub(crate) fn assemble(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+    ls: &LeastSquares,
+    has_intercept: bool,
+    spec: &CovSpec,
+    leverage: Leverage,
+) -> Result<LinearFit, EstimateError> {
+    let (n, k) = x.shape();
+    let fitted = x * &ls.coef;
+    let resid = residual(x, y, &ls.coef);
+    let cov = covariance(&ls.qr, &ls.design, &resid, spec, leverage)?;
+    let rss = resid.norm_squared();
+    let tss = total_sum_of_squares(y, has_intercept);
+    let df_resid = n - k;
+    let df = cov.clusters.map_or(df_resid, |g| g - 1);
+    Ok(LinearFit {
+        coef: ls.coef.clone(),
+        cov: cov.cov,
+        resid,
+        fitted,
+        n,
+        k,
+        df_resid,
+        rss,
+        tss,
+        r_squared: 1.0 - rss / tss,
+        residual_sd: (rss / df_resid as f64).sqrt(),
+        clusters: cov.clusters,
+        coef_reference: Reference::StudentT { df: df as f64 },
+    })
+}
+
+/// Ordinary least squares of `y` on the columns of `x`.
+///
+/// # Formula
+/// b = argmin ‖y − X b‖², computed from X S P = Q R as b = S P R^{-1} Q₁ᵀ y and refined on
+/// the augmented system (Björck 1967); covariance as documented in `covariance`.
+///
+/// # Errors
+/// [`EstimateError::NotFinite`], [`EstimateError::DimensionMismatch`],
+/// [`EstimateError::TooFewObservations`] (n ≤ k), [`EstimateError::RankDeficient`], and the
+/// covariance errors (clusters, leverage).
+pub fn ols(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+    has_intercept: bool,
+    cov: &CovSpec,
+) -> Result<LinearFit, EstimateError> {
+    validate(y, &[("x", x)])?;
+    require_observations(x.nrows(), x.ncols())?;
+    let ls = least_squares(y, x)?;
+    assemble(y, x, &ls, has_intercept, cov, Leverage::Allowed)
+}
+
+/// Horizontal concatenation `[a | b]` (same number of rows).
+pub(crate) fn hcat(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
+    let mut out = DMatrix::zeros(a.nrows(), a.ncols() + b.ncols());
+    out.columns_mut(0, a.ncols()).copy_from(a);
+    out.columns_mut(a.ncols(), b.ncols()).copy_from(b);
+    out
+}
+
+/// Factorises the full instrument set `[instruments | exog]`.
+pub(crate) fn instrument_qr(z: &DMatrix<f64>) -> Result<PivotedQr, EstimateError> {
+    PivotedQr::new(z).map_err(|e| match e {
+        EstimateError::RankDeficient { dependent } => {
+            EstimateError::InstrumentsRankDeficient { dependent }
+        }
+        other => other,
+    })
+}
+
+/// Validated 2SLS inputs and the shared factorisation of the instruments.
+#[derive(Debug, Clone)]
+pub(crate) struct IvSetup {
+    /// Regressors `[endog | exog]`.
+    pub(crate) x: DMatrix<f64>,
+    /// All instruments `[instruments | exog]`.
+    pub(crate) z: DMatrix<f64>,
+    /// QR of `z`.
+    pub(crate) zqr: PivotedQr,
+}
+
+/// Checks the 2SLS inputs: finiteness, rows, order condition, sample size, ranks.
+pub(crate) fn iv_setup(
+    y: &DVector<f64>,
+    exog: &DMatrix<f64>,
+    endog: &DMatrix<f64>,
+    instruments: &DMatrix<f64>,
+) -> Result<IvSetup, EstimateError> {
+    let inputs = [
+        ("exog", exog),
+        ("endog", endog),
+        ("instruments", instruments),
+    ];
+    validate(y, &inputs)?;
+    let (instr, endo) = (instruments.ncols(), endog.ncols());
+    if instr < endo {
+        return Err(EstimateError::UnderIdentified {
+            instruments: instr,
+            endogenous: endo,
+        });
+    }
+    let x = hcat(endog, exog);
+    let z = hcat(instruments, exog);
+    require_observations(y.len(), z.ncols().max(x.ncols()))?;
+    let dependent = collinear_columns(&x);
+    if !dependent.is_empty() {
+        return Err(EstimateError::RankDeficient { dependent });
+    }
+    let zqr = instrument_qr(&z)?;
+    Ok(IvSetup { x, z, zqr })
+}
+
+/// X̂ = [P_Z endog | exog]: exogenous columns are their own projections.
+///
+/// # Errors
+/// [`EstimateError::RankDeficient`] naming j when ‖P_Z endog_j‖ ≤ max(n, L)·eps·‖endog_j‖
+/// (instruments orthogonal to endog_j: the projection is rounding noise, which unit-norm
+/// column scaling must not be allowed to turn into a regressor).
+fn projected_regressors(setup: &IvSetup, endogenous: usize) -> Result<DMatrix<f64>, EstimateError> {
+    let (n, l) = setup.z.shape();
+    let tol = n.max(l) as f64 * f64::EPSILON;
+    let mut xhat = setup.x.clone();
+    let mut dependent = Vec::new();
+    for j in 0..endogenous {
+        let col = setup.x.column(j).into_owned();
+        let projected = setup.zqr.project(&col);
+        if projected.norm() <= tol * col.norm() {
+            dependent.push(j);
+        }
+        xhat.set_column(j, &projected);
+    }
+    if dependent.is_empty() {
+        Ok(xhat)
+    } else {
+        Err(EstimateError::RankDeficient { dependent })
+    }
+}
+
+/// Two-stage least squares. Coefficient order: endogenous columns first, then exog columns.
+///
+/// # Formula
+/// With Z = [instruments | exog], X = [endog | exog] and X̂ = P_Z X,
+/// b = (X̂'X̂)^{-1} X̂'y (Theil 1953; Basmann 1957), computed by QR of X̂. Residuals are
+/// structural, u = y − X b; the classical covariance is s² (X̂'X̂)^{-1} with
+/// s² = u'u/(n − k); HC0/HC1/cluster sandwiches use X̂ and u (White 1982, Econometrica 50).
+/// r_squared = 1 − u'u/tss and may be negative.
+///
+/// # Errors
+/// As [`ols`], plus [`EstimateError::UnderIdentified`],
+/// [`EstimateError::InstrumentsRankDeficient`], and
+/// [`EstimateError::CovarianceUnavailable`] for HC2/HC3. n must exceed both k and the number
+/// of instruments.
+pub fn tsls(
+    y: &DVector<f64>,
+    exog: &DMatrix<f64>,
+    endog: &DMatrix<f64>,
+    instruments: &DMatrix<f64>,
+    has_intercept: bool,
+    cov: &CovSpec,
+) -> Result<LinearFit, EstimateError> {
+    let setup = iv_setup(y, exog, endog, instruments)?;
+    tsls_from(y, &setup, endog.ncols(), has_intercept, cov)
+}
+
+/// 2SLS on a prepared [`IvSetup`].
+pub(crate) fn tsls_from(
+    y: &DVector<f64>,
+    setup: &IvSetup,
+    endogenous: usize,
+    has_intercept: bool,
+    cov: &CovSpec,
+) -> Result<LinearFit, EstimateError> {
+    let xhat = projected_regressors(setup, endogenous)?;
+    let ls = least_squares(y, &xhat)?;
+    assemble(
+        y,
+        &setup.x,
+        &ls,
+        has_intercept,
+        cov,
+        Leverage::Refused("2sls"),
+    )
+}

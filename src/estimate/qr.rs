@@ -1,0 +1,275 @@
+//! Householder QR factorisation with column pivoting, written over nalgebra's `DMatrix`.
+//!
+//! Role: every least-squares solve in `crate::estimate` goes through [`PivotedQr`]; the
+//! normal equations X'X are never formed or inverted.
+//!
+//! Invariants and conventions:
+//! * Before factorising, each column of X is divided by its Euclidean norm (a zero column
+//!   keeps scale 1). Write S for the diagonal matrix of the reciprocal norms, so the factorised
+//!   matrix is X S, and X S P = Q R with P the pivoting permutation.
+//! * Pivoting is the classical greedy rule (Businger and Golub 1965, Numer. Math. 7): at
+//!   step j the remaining column of largest remaining norm is moved to position j. The remaining norms are recomputed from
+//!   scratch at every step rather than downdated, which costs no more than the factorisation.
+//! * Numerical rank: the number of leading j with |R_jj| > tol · |R_00|, where
+//!   tol = max(n, k) · f64::EPSILON. Only full-rank factorisations are handed out; a
+//!   rank-deficient X is an [`EstimateError::RankDeficient`] naming the dependent columns.
+//! * (X'X)^{-1} = S P R^{-1} R^{-T} P' S = T T' with T = S P R^{-1}; `T` is built by a
+//!   triangular solve, and X T = Q₁ (the thin Q), which the covariance estimators use.
+
+use nalgebra::{DMatrix, DVector};
+
+use super::EstimateError;
+
+/// Relative rank tolerance factor: a diagonal |R_jj| at or below `max(n, k) * eps * |R_00|`
+/// (after unit-norm column scaling) counts as zero.
+fn rank_tolerance(n: usize, k: usize) -> f64 {
+    n.max(k) as f64 * f64::EPSILON
+}
+
+/// A full-rank Householder QR factorisation of a column-scaled, column-pivoted matrix.
+#[derive(Debug, Clone)]
+pub(crate) struct PivotedQr {
+    /// Upper triangle holds R (k × k); the strictly lower part is unused.
+    r: DMatrix<f64>,
+    /// Householder vectors: reflector j is I − 2 v vᵀ acting on rows j.. (v has unit norm).
+    reflectors: Vec<DVector<f64>>,
+    /// `perm[j]` is the caller's column index placed at position j.
+    perm: Vec<usize>,
+    /// Reciprocal column norms (the diagonal of S).
+    scale: Vec<f64>,
+    /// Number of rows.
+    n: usize,
+}
+
+/// Divides every column by its Euclidean norm, returning the scaled copy and the factors.
+fn scale_columns(x: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
+    let mut xs = x.clone();
+    let mut scale = Vec::with_capacity(x.ncols());
+    for j in 0..x.ncols() {
+        let norm = x.column(j).norm();
+        let s = if norm > 0.0 { 1.0 / norm } else { 1.0 };
+        xs.column_mut(j).scale_mut(s);
+        scale.push(s);
+    }
+    (xs, scale)
+}
+
+/// Builds the unit Householder vector that maps `x` onto a multiple of e₁ and returns it
+/// with the resulting diagonal value (−sign(x₀)·‖x‖). Returns `None` for a zero vector.
+fn householder(x: &DVector<f64>) -> Option<(DVector<f64>, f64)> {
+    let norm = x.norm();
+    if norm == 0.0 {
+        return None;
+    }
+    let alpha = if x[0] >= 0.0 { -norm } else { norm };
+    let mut v = x.clone();
+    v[0] -= alpha;
+    let vnorm = v.norm();
+    if vnorm == 0.0 {
+        return None;
+    }
+    v /= vnorm;
+    Some((v, alpha))
+}
+
+/// Applies the reflector I − 2 v vᵀ to rows `start..` of every column of `a` from `from_col`.
+fn reflect_columns(a: &mut DMatrix<f64>, v: &DVector<f64>, start: usize, from_col: usize) {
+    let m = v.len();
+    for c in from_col..a.ncols() {
+        let mut block = a.view_mut((start, c), (m, 1));
+        let dot = v.dot(&block.column(0));
+        block.column_mut(0).axpy(-2.0 * dot, v, 1.0);
+    }
+}
+
+impl PivotedQr {
+    /// Factorises `x` (n × k, n ≥ k assumed by callers).
+    ///
+    /// # Errors
+    /// [`EstimateError::RankDeficient`] when the numerical rank is below k; the dependent
+    /// columns are named by [`collinear_columns`] (scan in the caller's order), falling back
+    /// to the columns pivoted past the rank when that scan finds none.
+    pub(crate) fn new(x: &DMatrix<f64>) -> Result<Self, EstimateError> {
+        let (n, k) = x.shape();
+        let (mut a, scale) = scale_columns(x);
+        let mut perm: Vec<usize> = (0..k).collect();
+        let mut reflectors = Vec::with_capacity(k);
+        for j in 0..k {
+            let pivot = (j..k)
+                .max_by(|&p, &q| tail_norm(&a, p, j).total_cmp(&tail_norm(&a, q, j)))
+                .unwrap_or(j);
+            a.swap_columns(j, pivot);
+            perm.swap(j, pivot);
+            let column: DVector<f64> = a.view((j, j), (n - j, 1)).column(0).into_owned();
+            let Some((v, alpha)) = householder(&column) else {
+                return Err(rank_error(x, &perm[j..]));
+            };
+            reflect_columns(&mut a, &v, j, j + 1);
+            a[(j, j)] = alpha;
+            reflectors.push(v);
+        }
+        let r = a.rows(0, k).upper_triangle();
+        let qr = PivotedQr {
+            r,
+            reflectors,
+            perm,
+            scale,
+            n,
+        };
+        match qr.rank() {
+            rank if rank < k => Err(rank_error(x, &qr.perm[rank..])),
+            _ => Ok(qr),
+        }
+    }
+
+    /// The numerical rank under the module's tolerance.
+    fn rank(&self) -> usize {
+        let k = self.perm.len();
+        let Some(&r00) = self.r.get((0, 0)) else {
+            return 0;
+        };
+        let threshold = rank_tolerance(self.n, k) * r00.abs();
+        (0..k)
+            .take_while(|&j| self.r[(j, j)].abs() > threshold)
+            .count()
+    }
+
+    /// Applies Qᵀ to a vector of length n.
+    fn apply_qt(&self, y: &DVector<f64>) -> DVector<f64> {
+        let mut c = DMatrix::from_column_slice(y.len(), 1, y.as_slice());
+        for (j, v) in self.reflectors.iter().enumerate() {
+            reflect_columns(&mut c, v, j, 0);
+        }
+        c.column(0).into_owned()
+    }
+
+    /// Applies Q to an n × m matrix (reflectors in reverse order).
+    fn apply_q(&self, mut c: DMatrix<f64>) -> DMatrix<f64> {
+        for (j, v) in self.reflectors.iter().enumerate().rev() {
+            reflect_columns(&mut c, v, j, 0);
+        }
+        c
+    }
+
+    /// Least-squares coefficients b minimising ‖y − X b‖, in the caller's column order.
+    fn solve_once(&self, y: &DVector<f64>) -> DVector<f64> {
+        let k = self.perm.len();
+        let c = self.apply_qt(y).rows(0, k).into_owned();
+        let z = self
+            .r
+            .solve_upper_triangular(&c)
+            .unwrap_or_else(|| DVector::zeros(k));
+        let mut b = DVector::zeros(k);
+        for (j, &col) in self.perm.iter().enumerate() {
+            b[col] = z[j] * self.scale[col];
+        }
+        b
+    }
+
+    /// Least-squares coefficients, refined on the augmented system (module `refine`).
+    pub(crate) fn solve(&self, x: &DMatrix<f64>, y: &DVector<f64>) -> DVector<f64> {
+        let mut b = self.solve_once(y);
+        self.refine(x, y, &mut b);
+        b
+    }
+
+    /// Solves the augmented correction system [I X; Xᵀ 0](δr; δb) = (f; g) with the stored
+    /// factorisation (Björck and Golub 1967); returns (δb, δr) in the caller's coordinates.
+    pub(crate) fn augmented_correction(
+        &self,
+        f: &DVector<f64>,
+        g: &DVector<f64>,
+    ) -> (DVector<f64>, DVector<f64>) {
+        let k = self.perm.len();
+        let g_scaled = DVector::from_fn(k, |j, _| self.scale[self.perm[j]] * g[self.perm[j]]);
+        let h = self
+            .r
+            .tr_solve_upper_triangular(&g_scaled)
+            .unwrap_or_else(|| DVector::zeros(k));
+        let mut d = self.apply_qt(f);
+        let db_scaled = self
+            .r
+            .solve_upper_triangular(&(d.rows(0, k) - &h))
+            .unwrap_or_else(|| DVector::zeros(k));
+        d.rows_mut(0, k).copy_from(&h);
+        let dr = self.apply_q(DMatrix::from_column_slice(self.n, 1, d.as_slice()));
+        let mut db = DVector::zeros(k);
+        for (j, &col) in self.perm.iter().enumerate() {
+            db[col] = db_scaled[j] * self.scale[col];
+        }
+        (db, dr.column(0).into_owned())
+    }
+
+    /// The k × k matrix T = S P R^{-1}, so that (X'X)^{-1} = T Tᵀ and X T = Q₁.
+    pub(crate) fn t_matrix(&self) -> DMatrix<f64> {
+        let k = self.perm.len();
+        let rinv = self
+            .r
+            .solve_upper_triangular(&DMatrix::identity(k, k))
+            .unwrap_or_else(|| DMatrix::zeros(k, k));
+        let mut t = DMatrix::zeros(k, k);
+        for (j, &col) in self.perm.iter().enumerate() {
+            t.row_mut(col).copy_from(&(rinv.row(j) * self.scale[col]));
+        }
+        t
+    }
+
+    /// The thin Q factor Q₁ (n × k), whose rows give leverages and scores.
+    pub(crate) fn thin_q(&self) -> DMatrix<f64> {
+        let k = self.perm.len();
+        self.apply_q(DMatrix::identity(self.n, k))
+    }
+
+    /// The orthogonal projection of `v` onto the column space of X.
+    pub(crate) fn project(&self, v: &DVector<f64>) -> DVector<f64> {
+        let k = self.perm.len();
+        let mut c = self.apply_qt(v);
+        c.rows_mut(k, self.n - k).fill(0.0);
+        self.apply_q(DMatrix::from_column_slice(self.n, 1, c.as_slice()))
+            .column(0)
+            .into_owned()
+    }
+}
+
+/// Euclidean norm of rows `from..` of column `col`.
+fn tail_norm(a: &DMatrix<f64>, col: usize, from: usize) -> f64 {
+    a.view((from, col), (a.nrows() - from, 1)).norm()
+}
+
+/// The rank-deficiency error: the left-to-right scan if it finds anything, else `tail`.
+fn rank_error(x: &DMatrix<f64>, tail: &[usize]) -> EstimateError {
+    let mut dependent = collinear_columns(x);
+    if dependent.is_empty() {
+        dependent = tail.to_vec();
+        dependent.sort_unstable();
+    }
+    EstimateError::RankDeficient { dependent }
+}
+
+/// Columns of `x` that are (numerically) linear combinations of EARLIER columns.
+///
+/// Scans left to right in the caller's order without pivoting: column j is kept when the
+/// norm of its part orthogonal to the kept columns before it exceeds
+/// `max(n, k) · eps` times its own norm (columns are scaled to unit norm first, the same
+/// tolerance as the pivoted factorisation's rank rule). A zero column is always dependent.
+/// The caller therefore decides which member of a dependent set is named or dropped.
+pub fn collinear_columns(x: &DMatrix<f64>) -> Vec<usize> {
+    let (n, k) = x.shape();
+    let (mut a, _) = scale_columns(x);
+    let tol = rank_tolerance(n, k);
+    let mut dependent = Vec::new();
+    let mut row = 0;
+    for j in 0..k {
+        let norm = tail_norm(&a, j, row);
+        if row >= n || norm <= tol {
+            dependent.push(j);
+            continue;
+        }
+        let column: DVector<f64> = a.view((row, j), (n - row, 1)).column(0).into_owned();
+        if let Some((v, _)) = householder(&column) {
+            reflect_columns(&mut a, &v, row, j);
+        }
+        row += 1;
+    }
+    dependent
+}

@@ -1,0 +1,92 @@
+//! Quantiles (inverse distribution functions) to full `f64` precision.
+//!
+//! The quantile is found by bisection on the bit patterns of non-negative `f64`s: ordered
+//! as integers, they can be halved at most 64 times before two neighbours remain, so the
+//! search always ends with the representable x whose computed tail is nearest the target.
+//! The search compares log tails, so targets far below the smallest normal `f64` work too.
+//!
+//! Invariants: monotone in p; for the symmetric references quantile(1 - p) = -quantile(p)
+//! exactly; p = 0 and p = 1 give the ends of the support; p outside [0, 1], NaN p or an
+//! invalid reference give NaN.
+
+use super::tails::{is_valid, ln_lower_tail, ln_upper_tail};
+use crate::distribution::Reference;
+
+/// Which tail is matched to the target probability.
+#[derive(Clone, Copy)]
+enum Side {
+    /// Find x with P(X ≤ x) = target.
+    Lower,
+    /// Find x with P(X ≥ x) = target.
+    Upper,
+}
+
+/// Quantile: the x with P(X ≤ x) = p, for 0 < p < 1, to full precision.
+///
+/// p = 0 and p = 1 give the ends of the support (±inf, or 0 for F and chi-square). NaN for
+/// p outside [0, 1], NaN p, or an invalid reference.
+pub fn quantile(reference: &Reference, p: f64) -> f64 {
+    if !is_valid(reference) || !(0.0..=1.0).contains(&p) {
+        return f64::NAN;
+    }
+    match *reference {
+        Reference::Normal | Reference::StudentT { .. } => symmetric_quantile(reference, p),
+        Reference::F { .. } | Reference::ChiSquare { .. } => {
+            if p <= 0.5 {
+                solve(reference, Side::Lower, p)
+            } else {
+                solve(reference, Side::Upper, 1.0 - p)
+            }
+        }
+    }
+}
+
+/// Quantile of a distribution symmetric about 0: solved on the positive half for the
+/// smaller tail (1 - p is exact for p ≥ ½), then signed.
+fn symmetric_quantile(reference: &Reference, p: f64) -> f64 {
+    if p == 0.5 {
+        return 0.0;
+    }
+    let x = solve(reference, Side::Upper, p.min(1.0 - p));
+    if p < 0.5 {
+        -x
+    } else {
+        x
+    }
+}
+
+/// The non-negative x at which the chosen tail equals `target`, for a target in [0, ½] on
+/// the upper side of a symmetric law or any target on the monotone side of a positive one.
+fn solve(reference: &Reference, side: Side, target: f64) -> f64 {
+    let ln_target = target.ln();
+    let ln_tail = |x: f64| match side {
+        Side::Lower => ln_lower_tail(reference, x),
+        Side::Upper => ln_upper_tail(reference, x),
+    };
+    // `beyond(x)`: x is at or past the quantile. Monotone: false at 0, true at +inf.
+    let beyond = |x: f64| match side {
+        Side::Lower => ln_tail(x) >= ln_target,
+        Side::Upper => ln_tail(x) <= ln_target,
+    };
+    if beyond(0.0) {
+        return 0.0;
+    }
+    let (mut below, mut above) = (0_u64, f64::MAX.to_bits());
+    if !beyond(f64::MAX) {
+        return f64::INFINITY;
+    }
+    while above - below > 1 {
+        let mid = below + (above - below) / 2;
+        if beyond(f64::from_bits(mid)) {
+            above = mid;
+        } else {
+            below = mid;
+        }
+    }
+    let (lo, hi) = (f64::from_bits(below), f64::from_bits(above));
+    if (ln_tail(lo) - ln_target).abs() < (ln_tail(hi) - ln_target).abs() {
+        lo
+    } else {
+        hi
+    }
+}

@@ -1,0 +1,313 @@
+//! Fingerprints (SHA-256) and the hash-chained, append-only ledger beside each plan.
+//!
+//! The ledger is a JSON-lines file. Every entry records `prev`, the SHA-256 of the previous
+//! line's bytes (64 zeros for the first), so editing, removing or reordering any line breaks
+//! the chain at the next one. Appending rewrites the file through a temporary file and a
+//! rename, so a crash never leaves a half-written ledger.
+
+use crate::error::{Error, Result};
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+use std::collections::BTreeMap;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// The version of this tool, recorded in every entry and output.
+pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");
+
+/// Hex SHA-256 of some bytes.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    let digest = Sha256::digest(bytes);
+    digest.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// Hex SHA-256 of a file's bytes.
+pub fn file_sha256(path: &Path) -> Result<String> {
+    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "cannot read the file to fingerprint it", e))?;
+    Ok(sha256_hex(&bytes))
+}
+
+/// The plan's two fingerprints and its canonical form.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PlanPrint {
+    /// SHA-256 of the canonical form (comment-only edits leave it unchanged).
+    pub content_sha256: String,
+    /// SHA-256 of the file's bytes.
+    pub bytes_sha256: String,
+    /// The canonical form itself, so later entries can list which keys changed.
+    pub canonical: String,
+}
+
+impl PlanPrint {
+    /// Fingerprint a plan's text.
+    pub fn of(path: &Path, text: &str) -> Result<Self> {
+        let canonical = crate::plan::canonical::canonical_text(path, text)?;
+        Ok(PlanPrint {
+            content_sha256: sha256_hex(canonical.as_bytes()),
+            bytes_sha256: sha256_hex(text.as_bytes()),
+            canonical,
+        })
+    }
+}
+
+/// What an entry records.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Event {
+    /// The plan was sealed.
+    Sealed,
+    /// The plan was changed, with a reason.
+    Amended,
+    /// The data files were read for the first time.
+    DataFirstRead,
+    /// A run wrote outputs.
+    Run,
+}
+
+/// One ledger line.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Entry {
+    /// 1-based position in the ledger.
+    pub seq: u64,
+    /// UTC time, RFC 3339.
+    pub time: String,
+    /// What happened.
+    pub event: Event,
+    /// Plan fingerprints (sealed, amended, run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub plan: Option<PlanPrint>,
+    /// Reason for an amendment.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reason: Option<String>,
+    /// Data file fingerprints by table id (data-first-read, run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub data: Option<BTreeMap<String, String>>,
+    /// Digest of results.json (run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub results_digest: Option<String>,
+    /// SHA-256 of each output file by name (run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub outputs: Option<BTreeMap<String, String>>,
+    /// Version of sworn that wrote the entry.
+    pub tool_version: String,
+    /// SHA-256 of the previous line's bytes.
+    pub prev: String,
+}
+
+impl Entry {
+    /// A new entry of `event` with no fields set yet (seq, time and prev are set on append).
+    pub fn new(event: Event) -> Self {
+        Entry {
+            seq: 0,
+            time: String::new(),
+            event,
+            plan: None,
+            reason: None,
+            data: None,
+            results_digest: None,
+            outputs: None,
+            tool_version: TOOL_VERSION.to_string(),
+            prev: String::new(),
+        }
+    }
+}
+
+/// A ledger as read from disk.
+#[derive(Debug, Clone)]
+pub struct Ledger {
+    /// Where it lives.
+    pub path: PathBuf,
+    /// Each line's text and, when it parses, its entry.
+    lines: Vec<(String, Option<Entry>)>,
+}
+
+/// The ledger path for a plan: `PLAN-stem.ledger` beside the plan.
+pub fn ledger_path(plan: &Path) -> PathBuf {
+    let stem = plan.file_stem().and_then(|s| s.to_str()).unwrap_or("plan");
+    plan.with_file_name(format!("{stem}.ledger"))
+}
+
+const ZERO_HASH: &str = "0000000000000000000000000000000000000000000000000000000000000000";
+
+impl Ledger {
+    /// An empty ledger that will live at `path`.
+    pub fn empty(path: PathBuf) -> Self {
+        Ledger { path, lines: Vec::new() }
+    }
+
+    /// Read the ledger at `path`; `None` when there is no file.
+    pub fn read(path: &Path) -> Result<Option<Self>> {
+        let text = match std::fs::read_to_string(path) {
+            Ok(t) => t,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+            Err(e) => return Err(Error::io(path, "cannot read the ledger", e)),
+        };
+        let lines = text
+            .lines()
+            .map(|l| (l.to_string(), serde_json::from_str::<Entry>(l).ok()))
+            .collect();
+        Ok(Some(Ledger { path: path.to_path_buf(), lines }))
+    }
+
+    /// The parsed entries (unparsable lines are skipped; see [`Ledger::problems`]).
+    pub fn entries(&self) -> impl Iterator<Item = &Entry> {
+        self.lines.iter().filter_map(|(_, e)| e.as_ref())
+    }
+
+    /// Number of lines.
+    pub fn len(&self) -> usize {
+        self.lines.len()
+    }
+
+    /// Whether the ledger has no lines.
+    pub fn is_empty(&self) -> bool {
+        self.lines.is_empty()
+    }
+
+    /// The first `n` lines as a ledger of their own (the state before a later event).
+    pub fn prefix(&self, n: usize) -> Ledger {
+        Ledger { path: self.path.clone(), lines: self.lines[..n.min(self.lines.len())].to_vec() }
+    }
+
+    /// SHA-256 of line `i`'s bytes.
+    pub fn line_hash(&self, i: usize) -> Option<String> {
+        self.lines.get(i).map(|(l, _)| sha256_hex(l.as_bytes()))
+    }
+
+    /// Index of the line holding `entry` (by sequence number).
+    pub fn index_of(&self, seq: u64) -> Option<usize> {
+        self.lines.iter().position(|(_, e)| e.as_ref().is_some_and(|e| e.seq == seq))
+    }
+
+    /// Integrity problems: unparsable lines, broken hash links, wrong sequence numbers.
+    pub fn problems(&self) -> Vec<String> {
+        let mut out = Vec::new();
+        let mut prev = ZERO_HASH.to_string();
+        for (i, (line, entry)) in self.lines.iter().enumerate() {
+            match entry {
+                None => out.push(format!("line {} is not a valid ledger entry", i + 1)),
+                Some(e) => {
+                    if e.prev != prev {
+                        out.push(format!("line {}: the hash chain is broken (an earlier line was edited, removed or reordered)", i + 1));
+                    }
+                    if e.seq != i as u64 + 1 {
+                        out.push(format!("line {}: sequence number {} where {} was expected", i + 1, e.seq, i + 1));
+                    }
+                }
+            }
+            prev = sha256_hex(line.as_bytes());
+        }
+        out
+    }
+
+    /// Append `entry` (seq, time and prev are filled in), atomically rewriting the file.
+    pub fn append(&mut self, mut entry: Entry) -> Result<Entry> {
+        entry.seq = self.lines.len() as u64 + 1;
+        entry.time = now_rfc3339();
+        entry.prev = self.lines.last().map_or(ZERO_HASH.to_string(), |(l, _)| sha256_hex(l.as_bytes()));
+        let line = serde_json::to_string(&entry).map_err(|e| Error::Ledger {
+            path: self.path.clone(),
+            message: format!("cannot serialise the entry: {e}"),
+        })?;
+        let mut text: String = self.lines.iter().map(|(l, _)| format!("{l}\n")).collect();
+        text.push_str(&line);
+        text.push('\n');
+        write_atomic(&self.path, text.as_bytes())?;
+        self.lines.push((line, Some(entry.clone())));
+        Ok(entry)
+    }
+}
+
+/// Write a file through a temporary sibling and a rename, so readers never see half of it.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
+    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("out");
+    let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        std::fs::rename(&tmp, path)
+    })();
+    result.map_err(|e| {
+        let _ = std::fs::remove_file(&tmp);
+        Error::io(path, "cannot write the file", e)
+    })
+}
+
+/// The current UTC time as RFC 3339 with seconds, e.g. `2026-12-01T18:06:19Z`.
+pub fn now_rfc3339() -> String {
+    let secs = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map_or(0, |d| d.as_secs());
+    format_utc(secs)
+}
+
+/// Format seconds since the Unix epoch as RFC 3339 UTC.
+///
+/// # Formula
+/// Civil-from-days conversion of the proleptic Gregorian calendar (H. Hinnant,
+/// "chrono-Compatible Low-Level Date Algorithms", the `civil_from_days` algorithm).
+pub fn format_utc(secs: u64) -> String {
+    let days = (secs / 86_400) as i64;
+    let rem = secs % 86_400;
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = doy - (153 * mp + 2) / 5 + 1;
+    let month = if mp < 10 { mp + 3 } else { mp - 9 };
+    let year = yoe + era * 400 + i64::from(month <= 2);
+    format!(
+        "{year:04}-{month:02}-{day:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        rem % 3600 / 60,
+        rem % 60
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn sha256_of_known_strings() {
+        // FIPS 180-2, Appendix B.1: SHA-256("abc").
+        assert_eq!(
+            sha256_hex(b"abc"),
+            "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+        );
+        // SHA-256 of the empty string (FIPS 180-4 test vectors; from memory).
+        assert_eq!(
+            sha256_hex(b""),
+            "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855"
+        );
+    }
+
+    #[test]
+    fn utc_formatting() {
+        // Unix epoch and well-known instants (date(1) -u -d @N; from memory).
+        assert_eq!(format_utc(0), "1970-01-01T00:00:00Z");
+        assert_eq!(format_utc(951_782_400), "2000-02-29T00:00:00Z");
+        assert_eq!(format_utc(1_709_210_096), "2024-02-29T12:34:56Z");
+    }
+
+    #[test]
+    fn chain_detects_edits() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let path = dir.path().join("p.ledger");
+        let mut ledger = Ledger::empty(path.clone());
+        ledger.append(Entry::new(Event::Sealed)).expect("append");
+        ledger.append(Entry::new(Event::Run)).expect("append");
+        let read = Ledger::read(&path).expect("read").expect("exists");
+        assert!(read.problems().is_empty());
+        assert_eq!(read.entries().count(), 2);
+        let text = std::fs::read_to_string(&path).expect("read");
+        std::fs::write(&path, text.replacen("\"sealed\"", "\"amended\"", 1)).expect("write");
+        let edited = Ledger::read(&path).expect("read").expect("exists");
+        assert_eq!(edited.problems().len(), 1, "{:?}", edited.problems());
+    }
+}

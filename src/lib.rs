@@ -1,0 +1,22 @@
+//! sworn: execute pre-registered statistical analysis plans.
+//!
+//! The pipeline a plan travels through: [`plan`] (TOML → validated plan) → [`ledger`]
+//! (fingerprints, seal) → [`data`] (read, check, derive, design matrices) → [`estimate`]
+//! (pure numerics) and [`inference`] (distributions, corrections) → [`analysis`] (the run in
+//! memory) → [`results`] and [`report`] (outputs). [`app`] sequences the I/O of each command.
+
+pub mod analysis;
+pub mod app;
+pub mod cli;
+pub mod data;
+pub mod demo;
+pub mod deviation;
+pub mod distribution;
+pub mod error;
+pub mod estimate;
+pub mod expr;
+pub mod inference;
+pub mod ledger;
+pub mod plan;
+pub mod report;
+pub mod results;

@@ -1,0 +1,357 @@
+//! The analysis plan: TOML text → raw structs ([`raw`]) → a validated [`Plan`].
+//!
+//! Invariants of a [`Plan`]: every name it uses (columns, derived variables, data tables,
+//! specifications, families, table shells) has been resolved; every data path is absolute;
+//! every expression has been parsed. Nothing here reads data. The structs are plain data.
+
+pub mod canonical;
+pub mod raw;
+mod source;
+mod suggest;
+mod validate;
+mod validate_spec;
+
+use crate::expr::Expr;
+use crate::inference::{Correction, Direction};
+use std::collections::BTreeMap;
+use std::path::PathBuf;
+
+pub use source::SourceMap;
+pub use suggest::{closest, hint as suggest_hint};
+pub use validate_spec::spec_terms;
+pub use validate::load;
+
+/// A validated plan.
+#[derive(Debug, Clone)]
+pub struct Plan {
+    /// Absolute path of the plan file.
+    pub path: PathBuf,
+    /// The file's bytes as read (fingerprinted by the ledger).
+    pub text: String,
+    /// Study metadata.
+    pub study: Study,
+    /// Plan-wide inference defaults.
+    pub inference: InferenceDefaults,
+    /// Data sources keyed by id.
+    pub data: BTreeMap<String, DataSource>,
+    /// Derived variables in evaluation order.
+    pub derive: Vec<Derived>,
+    /// How the instrument was randomized, when declared.
+    pub assignment: Option<Assignment>,
+    /// The specifications in plan order.
+    pub specifications: Vec<Spec>,
+    /// The hypotheses in plan order.
+    pub hypotheses: Vec<Hypothesis>,
+    /// Families keyed by name (families used by hypotheses but not declared get defaults).
+    pub families: BTreeMap<String, Family>,
+    /// Table shells in plan order.
+    pub tables: Vec<Table>,
+}
+
+/// `[study]`.
+#[derive(Debug, Clone)]
+pub struct Study {
+    /// Title.
+    pub title: String,
+    /// Registry identifier.
+    pub id: Option<String>,
+    /// Authors.
+    pub authors: Vec<String>,
+    /// Registration date as written (YYYY-MM-DD).
+    pub registered: Option<String>,
+    /// One paragraph on the design.
+    pub summary: Option<String>,
+}
+
+/// Which distribution single-coefficient tests use.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Distribution {
+    /// Student's t with n − k degrees of freedom (G − 1 when clustered).
+    T,
+    /// Standard normal.
+    Normal,
+}
+
+/// `[inference]`.
+#[derive(Debug, Clone)]
+pub struct InferenceDefaults {
+    /// Default significance level (0.05).
+    pub alpha: f64,
+    /// Default distribution (t).
+    pub distribution: Distribution,
+    /// Confidence level of intervals (0.95).
+    pub confidence: f64,
+}
+
+/// File format of a data source.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DataFormat {
+    /// Comma-separated text with a header row.
+    Csv,
+    /// Apache Parquet.
+    Parquet,
+}
+
+/// A declared data table.
+#[derive(Debug, Clone)]
+pub struct DataSource {
+    /// Table id.
+    pub id: String,
+    /// Absolute path.
+    pub path: PathBuf,
+    /// Path as written in the plan (relative to the plan file).
+    pub path_text: String,
+    /// Format.
+    pub format: DataFormat,
+    /// Expected row count bounds.
+    pub rows_min: Option<i64>,
+    /// Expected row count bounds.
+    pub rows_max: Option<i64>,
+    /// Unique, non-missing key column.
+    pub key: Option<String>,
+    /// Row order for lag/diff.
+    pub order_by: Option<String>,
+    /// Largest acceptable share of rows lost to listwise deletion in any specification.
+    pub max_missing_share: Option<f64>,
+    /// Declared columns.
+    pub columns: BTreeMap<String, Column>,
+}
+
+/// Declared kind of a column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ColumnKind {
+    /// An identifier (unique labels; text or integers).
+    Id,
+    /// Unordered categories (text or integers).
+    Category,
+    /// 0/1.
+    Binary,
+    /// Any real number.
+    Number,
+    /// Whole numbers.
+    Integer,
+}
+
+impl ColumnKind {
+    /// The plan spelling.
+    pub fn name(self) -> &'static str {
+        match self {
+            ColumnKind::Id => "id",
+            ColumnKind::Category => "category",
+            ColumnKind::Binary => "binary",
+            ColumnKind::Number => "number",
+            ColumnKind::Integer => "integer",
+        }
+    }
+
+    /// Whether values of this kind can enter a regression as numbers.
+    pub fn is_numeric(self) -> bool {
+        matches!(self, ColumnKind::Binary | ColumnKind::Number | ColumnKind::Integer)
+    }
+
+    /// Whether values of this kind can label groups (fixed effects, clusters).
+    pub fn is_grouping(self) -> bool {
+        matches!(
+            self,
+            ColumnKind::Id | ColumnKind::Category | ColumnKind::Binary | ColumnKind::Integer
+        )
+    }
+}
+
+/// A declared column.
+#[derive(Debug, Clone)]
+pub struct Column {
+    /// Kind.
+    pub kind: ColumnKind,
+    /// Smallest plausible value.
+    pub min: Option<f64>,
+    /// Largest plausible value.
+    pub max: Option<f64>,
+    /// Unit.
+    pub unit: Option<String>,
+}
+
+/// A derived variable.
+#[derive(Debug, Clone)]
+pub struct Derived {
+    /// Name.
+    pub name: String,
+    /// Expression as written.
+    pub text: String,
+    /// Parsed expression.
+    pub expr: Expr,
+}
+
+/// `[assignment]`.
+#[derive(Debug, Clone)]
+pub struct Assignment {
+    /// Randomized variable.
+    pub variable: String,
+    /// Design name as written.
+    pub design: String,
+    /// Block variable.
+    pub blocks: Option<String>,
+    /// Cluster variable.
+    pub clusters: Option<String>,
+}
+
+/// Estimator.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Estimator {
+    /// Ordinary least squares.
+    Ols,
+    /// Two-stage least squares.
+    Tsls,
+}
+
+impl Estimator {
+    /// Plan spelling.
+    pub fn name(self) -> &'static str {
+        match self {
+            Estimator::Ols => "ols",
+            Estimator::Tsls => "2sls",
+        }
+    }
+}
+
+/// Standard-error choice.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Errors {
+    /// Homoskedastic.
+    Classical,
+    /// White.
+    Hc0,
+    /// White with n/(n−k).
+    Hc1,
+    /// Leverage-adjusted.
+    Hc2,
+    /// Jackknife-like.
+    Hc3,
+    /// Cluster-robust (CR1) by one variable, or two-way by two.
+    Cluster(Vec<String>),
+}
+
+impl Errors {
+    /// Plan spelling of the kind.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Errors::Classical => "classical",
+            Errors::Hc0 => "hc0",
+            Errors::Hc1 => "hc1",
+            Errors::Hc2 => "hc2",
+            Errors::Hc3 => "hc3",
+            Errors::Cluster(_) => "cluster",
+        }
+    }
+}
+
+/// A diagnostic a specification asks for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub enum Diagnostic {
+    /// First-stage regressions.
+    FirstStage,
+    /// Reduced-form regression.
+    ReducedForm,
+    /// Endogeneity tests.
+    Endogeneity,
+    /// Over-identification tests.
+    Overidentification,
+}
+
+/// A specification.
+#[derive(Debug, Clone)]
+pub struct Spec {
+    /// Id.
+    pub id: String,
+    /// Title.
+    pub title: String,
+    /// Data table id.
+    pub data: String,
+    /// Estimator.
+    pub estimator: Estimator,
+    /// Outcome.
+    pub outcome: String,
+    /// Endogenous regressors (2SLS).
+    pub endogenous: Vec<String>,
+    /// Excluded instruments (2SLS).
+    pub instruments: Vec<String>,
+    /// Regressors of interest (OLS).
+    pub regressors: Vec<String>,
+    /// Controls.
+    pub controls: Vec<String>,
+    /// Absorbed category effects.
+    pub fixed_effects: Vec<String>,
+    /// Intercept included (absorbed when fixed effects are present).
+    pub intercept: bool,
+    /// Sample restriction (text, parsed).
+    pub sample: Option<(String, Expr)>,
+    /// Standard errors.
+    pub errors: Errors,
+    /// Diagnostics.
+    pub diagnostics: Vec<Diagnostic>,
+    /// Drop collinear terms (recorded as a deviation) instead of failing.
+    pub drop_collinear: bool,
+    /// Not pre-registered.
+    pub exploratory: bool,
+    /// Distribution for single-coefficient tests.
+    pub distribution: Distribution,
+    /// Confidence level.
+    pub confidence: f64,
+}
+
+impl Spec {
+    /// Terms of interest: endogenous regressors for 2SLS, regressors for OLS.
+    pub fn focal(&self) -> &[String] {
+        match self.estimator {
+            Estimator::Ols => &self.regressors,
+            Estimator::Tsls => &self.endogenous,
+        }
+    }
+}
+
+/// A hypothesis.
+#[derive(Debug, Clone)]
+pub struct Hypothesis {
+    /// Id.
+    pub id: String,
+    /// Claim in words.
+    pub claim: String,
+    /// Specification id.
+    pub specification: String,
+    /// Term.
+    pub term: String,
+    /// Direction of the alternative.
+    pub direction: Direction,
+    /// Null value.
+    pub null: f64,
+    /// Family name; a hypothesis without one is tested alone, uncorrected.
+    pub family: Option<String>,
+    /// Level the hypothesis is tested at: its family's, else its own, else the plan's.
+    pub alpha: f64,
+}
+
+/// A family of hypotheses.
+#[derive(Debug, Clone)]
+pub struct Family {
+    /// Name.
+    pub name: String,
+    /// Level.
+    pub alpha: f64,
+    /// Correction.
+    pub correction: Correction,
+}
+
+/// A table shell.
+#[derive(Debug, Clone)]
+pub struct Table {
+    /// Id.
+    pub id: String,
+    /// Caption.
+    pub title: String,
+    /// Specification ids.
+    pub columns: Vec<String>,
+    /// Terms.
+    pub rows: Vec<String>,
+    /// Significance stars.
+    pub stars: bool,
+}

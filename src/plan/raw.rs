@@ -1,0 +1,253 @@
+//! The plan as written: plain serde structs mirroring the TOML, unknown keys rejected.
+//!
+//! Every name-bearing value is wrapped in [`Spanned`] so that validation can point at the
+//! exact line and column. No logic lives here; [`super::validate`] turns a [`RawPlan`] into a
+//! checked [`super::Plan`].
+
+use serde::{Deserialize, Deserializer};
+use std::collections::BTreeMap;
+use toml::Spanned;
+
+/// The whole plan file.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawPlan {
+    /// Plan format version; must be 1.
+    pub format: Spanned<i64>,
+    /// Study metadata.
+    pub study: Spanned<RawStudy>,
+    /// Plan-wide inference defaults.
+    #[serde(default)]
+    pub inference: RawInference,
+    /// Data sources keyed by id.
+    #[serde(default)]
+    pub data: BTreeMap<Spanned<String>, Spanned<RawData>>,
+    /// Derived variables in document order.
+    #[serde(default, deserialize_with = "ordered_pairs")]
+    pub derive: Vec<(Spanned<String>, Spanned<String>)>,
+    /// How the instrument was randomized.
+    pub assignment: Option<Spanned<RawAssignment>>,
+    /// The specifications, in document order.
+    #[serde(default, rename = "specification")]
+    pub specifications: Vec<Spanned<RawSpec>>,
+    /// The hypotheses, in document order.
+    #[serde(default, rename = "hypothesis")]
+    pub hypotheses: Vec<Spanned<RawHypothesis>>,
+    /// Families of hypotheses keyed by name.
+    #[serde(default)]
+    pub family: BTreeMap<Spanned<String>, Spanned<RawFamily>>,
+    /// Decision rules; parsed so that the error can point at them (not yet acted on).
+    #[serde(default, rename = "contingency")]
+    pub contingencies: Vec<Spanned<toml::Value>>,
+    /// Table shells.
+    #[serde(default, rename = "table")]
+    pub tables: Vec<Spanned<RawTable>>,
+}
+
+/// `[study]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawStudy {
+    /// Title of the study (required).
+    pub title: String,
+    /// Registry identifier, free text.
+    pub id: Option<String>,
+    /// Authors.
+    #[serde(default)]
+    pub authors: Vec<String>,
+    /// Registration date.
+    pub registered: Option<toml::value::Datetime>,
+    /// One paragraph on the design.
+    pub summary: Option<String>,
+}
+
+/// `[inference]` defaults.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawInference {
+    /// Default significance level.
+    pub alpha: Option<Spanned<f64>>,
+    /// "t" or "normal".
+    pub distribution: Option<Spanned<String>>,
+    /// Confidence level of intervals.
+    pub confidence: Option<Spanned<f64>>,
+}
+
+/// `[data.NAME]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawData {
+    /// Path relative to the plan file.
+    pub path: Spanned<String>,
+    /// "csv" or "parquet".
+    pub format: Option<Spanned<String>>,
+    /// Expected row count.
+    pub rows: Option<Spanned<RawRange>>,
+    /// Unique, non-missing key column.
+    pub key: Option<Spanned<String>>,
+    /// Row order for lag/diff.
+    pub order_by: Option<Spanned<String>>,
+    /// Largest acceptable share of rows lost to listwise deletion.
+    pub max_missing_share: Option<Spanned<f64>>,
+    /// Declared schema.
+    #[serde(default)]
+    pub columns: BTreeMap<Spanned<String>, Spanned<RawColumn>>,
+}
+
+/// `{ min = .., max = .. }` for row counts.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawRange {
+    /// Smallest acceptable value.
+    pub min: Option<i64>,
+    /// Largest acceptable value.
+    pub max: Option<i64>,
+}
+
+/// A declared column.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawColumn {
+    /// "id" | "category" | "binary" | "number" | "integer".
+    pub kind: Spanned<String>,
+    /// Smallest plausible value.
+    pub min: Option<f64>,
+    /// Largest plausible value.
+    pub max: Option<f64>,
+    /// Unit, for the report.
+    pub unit: Option<String>,
+}
+
+/// `[assignment]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawAssignment {
+    /// The randomized variable.
+    pub variable: Spanned<String>,
+    /// "complete" | "blocked" | "clustered" | "blocked-clustered".
+    pub design: Spanned<String>,
+    /// Block variable.
+    pub blocks: Option<Spanned<String>>,
+    /// Cluster variable.
+    pub clusters: Option<Spanned<String>>,
+}
+
+/// `[[specification]]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawSpec {
+    /// Unique id.
+    pub id: Spanned<String>,
+    /// Human title.
+    pub title: Option<String>,
+    /// Data table id.
+    pub data: Option<Spanned<String>>,
+    /// "ols" | "2sls".
+    pub estimator: Spanned<String>,
+    /// Dependent variable.
+    pub outcome: Spanned<String>,
+    /// Endogenous regressors (2SLS).
+    #[serde(default)]
+    pub endogenous: Vec<Spanned<String>>,
+    /// Excluded instruments (2SLS).
+    #[serde(default)]
+    pub instruments: Vec<Spanned<String>>,
+    /// Regressors of interest (OLS).
+    #[serde(default)]
+    pub regressors: Vec<Spanned<String>>,
+    /// Included exogenous controls.
+    #[serde(default)]
+    pub controls: Vec<Spanned<String>>,
+    /// Absorbed category effects.
+    #[serde(default)]
+    pub fixed_effects: Vec<Spanned<String>>,
+    /// Include an intercept.
+    pub intercept: Option<bool>,
+    /// Sample restriction.
+    pub sample: Option<Spanned<String>>,
+    /// Standard-error choice: `"hc1"` or `{ kind = "cluster", by = "block" }`.
+    pub errors: Option<Spanned<toml::Value>>,
+    /// Diagnostics to compute.
+    #[serde(default)]
+    pub diagnostics: Vec<Spanned<String>>,
+    /// "error" | "drop".
+    pub on_collinear: Option<Spanned<String>>,
+    /// Reported apart as not pre-registered.
+    #[serde(default)]
+    pub exploratory: bool,
+    /// Per-specification override of the plan-wide distribution.
+    pub distribution: Option<Spanned<String>>,
+    /// Per-specification override of the confidence level.
+    pub confidence: Option<Spanned<f64>>,
+}
+
+/// `[[hypothesis]]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawHypothesis {
+    /// Unique id.
+    pub id: Spanned<String>,
+    /// The claim in words.
+    pub claim: Option<String>,
+    /// Specification id.
+    pub specification: Spanned<String>,
+    /// Term tested.
+    pub term: Spanned<String>,
+    /// "two-sided" | "greater" | "less".
+    pub direction: Option<Spanned<String>>,
+    /// Value under the null.
+    pub null: Option<f64>,
+    /// Family name.
+    pub family: Option<Spanned<String>>,
+    /// Significance level when the hypothesis has no family.
+    pub alpha: Option<Spanned<f64>>,
+}
+
+/// `[family.NAME]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawFamily {
+    /// Family-wise level.
+    pub alpha: Option<Spanned<f64>>,
+    /// Correction method.
+    pub correction: Option<Spanned<String>>,
+}
+
+/// `[[table]]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTable {
+    /// Unique id.
+    pub id: Spanned<String>,
+    /// Caption.
+    pub title: Option<String>,
+    /// Specification ids, left to right.
+    pub columns: Vec<Spanned<String>>,
+    /// Terms, top to bottom.
+    pub rows: Vec<Spanned<String>>,
+    /// Print significance stars (default false).
+    #[serde(default)]
+    pub stars: bool,
+}
+
+/// Deserialize a TOML table into its entries in document order.
+fn ordered_pairs<'de, D>(d: D) -> Result<Vec<(Spanned<String>, Spanned<String>)>, D::Error>
+where
+    D: Deserializer<'de>,
+{
+    struct Pairs;
+    impl<'de> serde::de::Visitor<'de> for Pairs {
+        type Value = Vec<(Spanned<String>, Spanned<String>)>;
+        fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+            f.write_str("a table of name = \"expression\" entries")
+        }
+        fn visit_map<A: serde::de::MapAccess<'de>>(self, mut map: A) -> Result<Self::Value, A::Error> {
+            let mut out = Vec::new();
+            while let Some(entry) = map.next_entry()? {
+                out.push(entry);
+            }
+            Ok(out)
+        }
+    }
+    d.deserialize_map(Pairs)
+}

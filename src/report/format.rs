@@ -1,0 +1,96 @@
+//! Number and text formatting for reports; LaTeX escaping lives here and only here.
+
+/// A number for display: fixed with 3 decimals in the usual range, scientific outside it.
+pub fn num(x: f64) -> String {
+    if !x.is_finite() {
+        return if x.is_nan() { "n/a".to_string() } else if x > 0.0 { "inf".to_string() } else { "-inf".to_string() };
+    }
+    let a = x.abs();
+    if x == 0.0 {
+        "0.000".to_string()
+    } else if !(1e-3..1e6).contains(&a) {
+        format!("{x:.3e}")
+    } else {
+        format!("{x:.3}")
+    }
+}
+
+/// A p-value for display; values below 1e-300 (or underflowing to 0) print as such.
+pub fn pval(p: f64) -> String {
+    if p.is_nan() {
+        "n/a".to_string()
+    } else if p < 1e-300 {
+        "< 1e-300".to_string()
+    } else if p < 1e-4 {
+        format!("{p:.2e}")
+    } else {
+        format!("{p:.4}")
+    }
+}
+
+/// Escape text for LaTeX. Characters with a special meaning are escaped; common symbols
+/// outside Latin-1 get LaTeX equivalents; any other such character becomes `?` so the
+/// document always compiles with pdflatex.
+pub fn tex(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '\\' => out.push_str("\\textbackslash{}"),
+            '&' | '%' | '$' | '#' | '_' | '{' | '}' => {
+                out.push('\\');
+                out.push(c);
+            }
+            '~' => out.push_str("\\textasciitilde{}"),
+            '^' => out.push_str("\\textasciicircum{}"),
+            '<' => out.push_str("\\textless{}"),
+            '>' => out.push_str("\\textgreater{}"),
+            '|' => out.push_str("\\textbar{}"),
+            '"' => out.push_str("\\textquotedbl{}"),
+            '≥' => out.push_str("$\\geq$"),
+            '≤' => out.push_str("$\\leq$"),
+            '≠' => out.push_str("$\\neq$"),
+            '−' => out.push('-'),
+            '–' => out.push_str("--"),
+            '—' => out.push_str("---"),
+            '²' => out.push_str("\\textsuperscript{2}"),
+            '±' => out.push_str("$\\pm$"),
+            '×' => out.push_str("$\\times$"),
+            '‘' | '’' => out.push('\''),
+            '“' | '”' => out.push_str("\\textquotedbl{}"),
+            '…' => out.push_str("\\ldots{}"),
+            c if (c as u32) < 0x20 && c != '\n' => {}
+            c if (c as u32) <= 0xFF => out.push(c),
+            _ => out.push('?'),
+        }
+    }
+    out
+}
+
+/// Escape text for a Markdown table cell.
+pub fn md(s: &str) -> String {
+    s.replace('|', "\\|").replace('\n', " ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers() {
+        assert_eq!(num(-1.90123), "-1.901");
+        assert_eq!(num(0.000431), "4.310e-4");
+        assert_eq!(num(2.5e7), "2.500e7");
+        assert_eq!(num(f64::NAN), "n/a");
+        assert_eq!(pval(0.0), "< 1e-300");
+        assert_eq!(pval(1e-310), "< 1e-300");
+        assert_eq!(pval(0.01234), "0.0123");
+        assert_eq!(pval(3.2e-7), "3.20e-7");
+    }
+
+    #[test]
+    fn tex_escapes_specials() {
+        assert_eq!(tex("a_b & 50% #1 $x$ {y} ~ ^ \\"), "a\\_b \\& 50\\% \\#1 \\$x\\$ \\{y\\} \\textasciitilde{} \\textasciicircum{} \\textbackslash{}");
+        assert_eq!(tex("F ≥ 10 – ok 😀"), "F $\\geq$ 10 -- ok ?");
+        assert_eq!(md("a|b"), "a\\|b");
+    }
+}

@@ -1,0 +1,46 @@
+//! Reports: one serialisable [`ReportModel`], rendered to Markdown and LaTeX by the
+//! templates in `templates/` (compiled into the binary). All numbers are formatted here, so
+//! templates only place text; the report never depends on the clock.
+
+mod format;
+mod model;
+
+pub use format::{num, pval, tex};
+pub use model::ReportModel;
+
+use crate::error::{Error, Result};
+use crate::plan::Plan;
+use crate::results::Results;
+use minijinja::Environment;
+
+const MD_TEMPLATE: &str = include_str!("../../templates/report.md.j2");
+const TEX_TEMPLATE: &str = include_str!("../../templates/report.tex.j2");
+
+fn environment() -> Result<Environment<'static>> {
+    let mut env = Environment::new();
+    let syntax = minijinja::syntax::SyntaxConfig::builder()
+        .keep_trailing_newline(true)
+        .trim_blocks(true)
+        .lstrip_blocks(true)
+        .build()
+        .map_err(|e| Error::Template { template: "syntax".to_string(), message: e.to_string() })?;
+    env.set_syntax(syntax);
+    env.add_filter("tex", |s: String| format::tex(&s));
+    env.add_filter("md", |s: String| format::md(&s));
+    for (name, src) in [("report.md", MD_TEMPLATE), ("report.tex", TEX_TEMPLATE)] {
+        env.add_template(name, src).map_err(|e| Error::Template { template: name.to_string(), message: e.to_string() })?;
+    }
+    Ok(env)
+}
+
+/// Render the Markdown and LaTeX reports of a run.
+pub fn render(plan: &Plan, results: &Results) -> Result<(String, String)> {
+    let env = environment()?;
+    let model = ReportModel::build(plan, results);
+    let render = |name: &str| {
+        env.get_template(name)
+            .and_then(|t| t.render(minijinja::context! { r => minijinja::value::Serde(&model) }))
+            .map_err(|e| Error::Template { template: name.to_string(), message: e.to_string() })
+    };
+    Ok((render("report.md")?, render("report.tex")?))
+}

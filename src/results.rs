@@ -1,0 +1,316 @@
+//! The machine-readable results (`results.json`): its model and its digest.
+//!
+//! Keys follow the contract in plan-format.md §5. Maps are sorted by key and numbers are
+//! written in shortest round-trip form, so the same plan and data give byte-identical files.
+//! `digest` is `sha256:` + the SHA-256 of the canonical serialisation of everything else.
+
+use crate::deviation::Deviation;
+use crate::distribution::Reference;
+use serde::Serialize;
+use std::collections::BTreeMap;
+
+/// The whole file.
+#[derive(Debug, Clone, Serialize)]
+pub struct Results {
+    /// Results format version (1).
+    pub format: u32,
+    /// The tool that wrote it.
+    pub tool: Tool,
+    /// The plan and its integrity.
+    pub plan: PlanInfo,
+    /// Data files by table id.
+    pub data: BTreeMap<String, DataInfo>,
+    /// Specification results by id.
+    pub specifications: BTreeMap<String, SpecResult>,
+    /// Hypothesis results by id.
+    pub hypotheses: BTreeMap<String, HypothesisResult>,
+    /// Decision rules and whether they were invoked (none in this version).
+    pub contingencies: Vec<serde_json::Value>,
+    /// Deviations and notes, most severe first.
+    pub deviations: Vec<Deviation>,
+    /// `sha256:` digest of everything above.
+    pub digest: String,
+}
+
+/// Tool name and version.
+#[derive(Debug, Clone, Serialize)]
+pub struct Tool {
+    /// "sworn".
+    pub name: &'static str,
+    /// Crate version.
+    pub version: &'static str,
+}
+
+/// The plan's fingerprints and seal state.
+#[derive(Debug, Clone, Serialize)]
+pub struct PlanInfo {
+    /// Path of the plan relative to the run directory.
+    pub path: String,
+    /// SHA-256 of the plan file's bytes.
+    pub bytes_sha256: String,
+    /// SHA-256 of the plan's canonical form.
+    pub content_sha256: String,
+    /// Whether the ledger holds a seal.
+    pub sealed: bool,
+    /// SHA-256 of the ledger line of the seal or amendment this run follows.
+    pub ledger_head: Option<String>,
+    /// One of `sealed-unchanged`, `sealed-cosmetic-change`, `changed`, `not-sealed`, `ledger-broken`.
+    pub integrity: &'static str,
+}
+
+/// One data table.
+#[derive(Debug, Clone, Serialize)]
+pub struct DataInfo {
+    /// Path as written in the plan.
+    pub path: String,
+    /// SHA-256 of the file's bytes.
+    pub sha256: String,
+    /// Number of rows.
+    pub rows: usize,
+}
+
+/// One coefficient.
+#[derive(Debug, Clone, Serialize)]
+pub struct Term {
+    /// Point estimate.
+    pub estimate: f64,
+    /// Standard error.
+    pub std_error: f64,
+    /// estimate / std_error (null 0).
+    pub statistic: f64,
+    /// Two-sided p-value.
+    pub p_value: f64,
+    /// Confidence interval at the specification's level.
+    pub ci: [f64; 2],
+}
+
+/// A test statistic with its p-value and the distribution that gave it.
+#[derive(Debug, Clone, Serialize)]
+pub struct TestResult {
+    /// The statistic.
+    pub statistic: f64,
+    /// Upper-tail p-value.
+    pub p_value: f64,
+    /// Reference distribution and degrees of freedom.
+    pub distribution: Reference,
+}
+
+/// A regression's coefficients and fit, as reported for first stages and reduced forms.
+#[derive(Debug, Clone, Serialize)]
+pub struct Regression {
+    /// Dependent variable.
+    pub outcome: String,
+    /// Coefficients (fixed-effect indicators not shown).
+    pub terms: BTreeMap<String, Term>,
+    /// R-squared.
+    pub r_squared: f64,
+    /// Observations.
+    pub n: usize,
+}
+
+/// One first-stage regression.
+#[derive(Debug, Clone, Serialize)]
+pub struct FirstStageResult {
+    /// Coefficients (excluded instruments and controls).
+    pub terms: BTreeMap<String, Term>,
+    /// Classical F on the excluded instruments.
+    pub f_statistic: f64,
+    /// Its p-value.
+    pub f_p_value: f64,
+    /// Its distribution.
+    pub f_distribution: Reference,
+    /// Wald F on the excluded instruments with the specification's error type.
+    pub robust_f_statistic: f64,
+    /// Its p-value.
+    pub robust_f_p_value: f64,
+    /// Its distribution.
+    pub robust_f_distribution: Reference,
+    /// Partial R-squared of the excluded instruments.
+    pub partial_r_squared: f64,
+    /// R-squared of the first stage.
+    pub r_squared: f64,
+}
+
+/// Endogeneity tests.
+#[derive(Debug, Clone, Serialize)]
+pub struct EndogeneityResult {
+    /// Control-function (regression-based) test with the specification's error type.
+    pub control_function: TestResult,
+    /// Durbin's test.
+    pub durbin: TestResult,
+    /// Wu–Hausman test.
+    pub wu_hausman: TestResult,
+}
+
+/// Over-identification tests.
+#[derive(Debug, Clone, Serialize)]
+pub struct OveridResult {
+    /// Sargan's test.
+    pub sargan: TestResult,
+    /// Basmann's test.
+    pub basmann: TestResult,
+}
+
+/// Row accounting of a specification.
+#[derive(Debug, Clone, Serialize)]
+pub struct SampleInfo {
+    /// Rows in the data table.
+    pub table_rows: usize,
+    /// Rows passing the sample restriction.
+    pub in_sample: usize,
+    /// Rows dropped for missing values (listwise deletion).
+    pub dropped_missing: usize,
+}
+
+/// A linear probability model's check of its fitted values.
+#[derive(Debug, Clone, Serialize)]
+pub struct LpmInfo {
+    /// Fitted values below 0 or above 1.
+    pub fitted_outside_unit_interval: usize,
+}
+
+/// One specification.
+#[derive(Debug, Clone, Serialize)]
+pub struct SpecResult {
+    /// Title.
+    pub title: String,
+    /// "ols" | "2sls".
+    pub estimator: &'static str,
+    /// Outcome.
+    pub outcome: String,
+    /// Observations used.
+    pub n: usize,
+    /// Residual degrees of freedom n − k.
+    pub df_resid: usize,
+    /// Error kind.
+    pub errors: &'static str,
+    /// Cluster variable(s).
+    pub cluster_by: Option<Vec<String>>,
+    /// Number of clusters.
+    pub clusters: Option<usize>,
+    /// "t" | "normal".
+    pub distribution: &'static str,
+    /// Degrees of freedom of coefficient tests (t only).
+    pub df: Option<f64>,
+    /// Confidence level of the intervals.
+    pub confidence: f64,
+    /// R-squared (centered with a constant, uncentered without).
+    pub r_squared: f64,
+    /// sqrt(e'e / df_resid).
+    pub residual_sd: f64,
+    /// Coefficients by term.
+    pub terms: BTreeMap<String, Term>,
+    /// Absorbed fixed effects and their levels.
+    pub fixed_effects: BTreeMap<String, usize>,
+    /// Terms dropped as collinear (`on_collinear = "drop"`).
+    pub dropped_terms: Vec<String>,
+    /// Row accounting.
+    pub sample: SampleInfo,
+    /// First stages by endogenous regressor.
+    pub first_stage: Option<BTreeMap<String, FirstStageResult>>,
+    /// Reduced form.
+    pub reduced_form: Option<Regression>,
+    /// Endogeneity tests.
+    pub endogeneity: Option<EndogeneityResult>,
+    /// Over-identification tests (null when exactly identified or not requested).
+    pub overidentification: Option<OveridResult>,
+    /// Linear probability model check (binary outcomes).
+    pub linear_probability: Option<LpmInfo>,
+    /// Marked exploratory in the plan.
+    pub exploratory: bool,
+    /// False when exploratory or added after the data were first read.
+    pub pre_registered: bool,
+}
+
+/// One hypothesis.
+#[derive(Debug, Clone, Serialize)]
+pub struct HypothesisResult {
+    /// The claim in words.
+    pub claim: String,
+    /// Specification id.
+    pub specification: String,
+    /// Term.
+    pub term: String,
+    /// Direction.
+    pub direction: crate::inference::Direction,
+    /// Null value.
+    pub null: f64,
+    /// Estimate (null when undetermined).
+    pub estimate: Option<f64>,
+    /// Standard error.
+    pub std_error: Option<f64>,
+    /// (estimate − null) / std_error.
+    pub statistic: Option<f64>,
+    /// p-value in the stated direction.
+    pub p_value: Option<f64>,
+    /// p-value after the family's correction.
+    pub adjusted_p_value: Option<f64>,
+    /// Level.
+    pub alpha: f64,
+    /// Family.
+    pub family: Option<String>,
+    /// Correction used.
+    pub correction: crate::inference::Correction,
+    /// "t" | "normal".
+    pub method: &'static str,
+    /// Degrees of freedom of the t reference.
+    pub df: Option<f64>,
+    /// supported | not-supported | undetermined.
+    pub verdict: &'static str,
+    /// Why a verdict is undetermined.
+    pub reason: Option<String>,
+    /// False when the specification is not pre-registered.
+    pub pre_registered: bool,
+}
+
+/// Canonical JSON text of a serialisable value (sorted keys, no whitespace).
+pub fn canonical_json<T: Serialize>(value: &T) -> String {
+    let v = serde_json::to_value(value).unwrap_or(serde_json::Value::Null);
+    let mut out = String::new();
+    crate::plan::canonical::write_canonical(&v, &mut out);
+    out
+}
+
+impl Results {
+    /// The digest of everything but the digest field.
+    pub fn compute_digest(&self) -> String {
+        let mut v = serde_json::to_value(self).unwrap_or(serde_json::Value::Null);
+        if let Some(map) = v.as_object_mut() {
+            map.remove("digest");
+        }
+        let mut out = String::new();
+        crate::plan::canonical::write_canonical(&v, &mut out);
+        format!("sha256:{}", crate::ledger::sha256_hex(out.as_bytes()))
+    }
+
+    /// The file's text: pretty JSON with sorted keys and a final newline.
+    pub fn to_file_text(&self) -> String {
+        let v = serde_json::to_value(self).unwrap_or(serde_json::Value::Null);
+        let mut text = serde_json::to_string_pretty(&sorted(v)).unwrap_or_default();
+        text.push('\n');
+        text
+    }
+}
+
+/// Digest check of a results.json text: the recorded digest, and the recomputed one.
+pub fn digest_of_text(text: &str) -> Option<(String, String)> {
+    let mut v: serde_json::Value = serde_json::from_str(text).ok()?;
+    let recorded = v.get("digest")?.as_str()?.to_string();
+    v.as_object_mut()?.remove("digest");
+    let mut out = String::new();
+    crate::plan::canonical::write_canonical(&v, &mut out);
+    Some((recorded, format!("sha256:{}", crate::ledger::sha256_hex(out.as_bytes()))))
+}
+
+/// Rebuild a JSON value with object keys in sorted order (whatever map type serde_json uses).
+fn sorted(v: serde_json::Value) -> serde_json::Value {
+    match v {
+        serde_json::Value::Object(map) => {
+            let mut entries: Vec<(String, serde_json::Value)> = map.into_iter().collect();
+            entries.sort_by(|a, b| a.0.cmp(&b.0));
+            serde_json::Value::Object(entries.into_iter().map(|(k, v)| (k, sorted(v))).collect())
+        }
+        serde_json::Value::Array(a) => serde_json::Value::Array(a.into_iter().map(sorted).collect()),
+        other => other,
+    }
+}

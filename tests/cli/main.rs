@@ -1,0 +1,6 @@
+//! Integration tests: the built binary on generated studies (one test binary).
+
+mod bad_input;
+mod common;
+mod deviations;
+mod happy;
