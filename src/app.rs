@@ -36,14 +36,22 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
         Command::Amend { plan, reason } => amend(&plan, &reason),
         Command::Run { plan, out, strict } => run(&plan, out.as_deref(), strict).map(|(o, _)| o),
         Command::Verify { dir } => verify(&dir),
-        Command::Demo { out } => crate::demo::run_demo(out.as_deref().unwrap_or(Path::new("sworn-demo"))),
+        Command::Demo { out } => {
+            crate::demo::run_demo(out.as_deref().unwrap_or(Path::new("sworn-demo")))
+        }
     }
 }
 
 /// `sworn check PLAN [--data]`.
 pub fn check(path: &Path, data: bool) -> Result<Outcome> {
     let plan = plan::load(path)?;
-    println!("{}: plan is valid ({} specification(s), {} hypothesis(es), {} data table(s))", path.display(), plan.specifications.len(), plan.hypotheses.len(), plan.data.len());
+    println!(
+        "{}: plan is valid ({} specification(s), {} hypothesis(es), {} data table(s))",
+        path.display(),
+        plan.specifications.len(),
+        plan.hypotheses.len(),
+        plan.data.len()
+    );
     if !data {
         return Ok(Outcome::Success);
     }
@@ -52,7 +60,13 @@ pub fn check(path: &Path, data: bool) -> Result<Outcome> {
         println!("[data.{id}] {} rows, sha256 {}", t.rows, t.sha256);
     }
     for d in &devs {
-        println!("{}: {} ({}): {}", d.severity.name(), d.code, d.subject, d.message);
+        println!(
+            "{}: {} ({}): {}",
+            d.severity.name(),
+            d.code,
+            d.subject,
+            d.message
+        );
     }
     if devs.iter().any(|d| d.severity >= Severity::Deviation) {
         println!("the data do not match the declared schema");
@@ -68,14 +82,22 @@ pub fn seal(path: &Path) -> Result<Outcome> {
     let lpath = ledger_path(&plan.path);
     let mut ledger = Ledger::read(&lpath)?.unwrap_or_else(|| Ledger::empty(lpath.clone()));
     if ledger.entries().any(|e| e.event == Event::Sealed) {
-        return Err(Error::Ledger { path: lpath, message: "the plan is already sealed; record changes with `sworn amend PLAN --reason TEXT`".into() });
+        return Err(Error::Ledger {
+            path: lpath,
+            message:
+                "the plan is already sealed; record changes with `sworn amend PLAN --reason TEXT`"
+                    .into(),
+        });
     }
     let print = PlanPrint::of(&plan.path, &plan.text)?;
     let mut entry = Entry::new(Event::Sealed);
     entry.plan = Some(print.clone());
     ledger.append(entry)?;
     println!("sealed {}", path.display());
-    println!("content fingerprint (deposit this with the registry): sha256:{}", print.content_sha256);
+    println!(
+        "content fingerprint (deposit this with the registry): sha256:{}",
+        print.content_sha256
+    );
     println!("ledger: {}", lpath.display());
     Ok(Outcome::Success)
 }
@@ -85,28 +107,53 @@ pub fn amend(path: &Path, reason: &str) -> Result<Outcome> {
     let plan = plan::load(path)?;
     let lpath = ledger_path(&plan.path);
     let Some(mut ledger) = Ledger::read(&lpath)? else {
-        return Err(Error::Ledger { path: lpath, message: "there is no ledger: seal the plan first with `sworn seal PLAN`".into() });
+        return Err(Error::Ledger {
+            path: lpath,
+            message: "there is no ledger: seal the plan first with `sworn seal PLAN`".into(),
+        });
     };
     if reason.trim().is_empty() {
-        return Err(Error::Ledger { path: lpath, message: "an amendment needs a reason: --reason \"what changed and why\"".into() });
+        return Err(Error::Ledger {
+            path: lpath,
+            message: "an amendment needs a reason: --reason \"what changed and why\"".into(),
+        });
     }
     if let Some(p) = ledger.problems().first() {
-        return Err(Error::Ledger { path: lpath, message: format!("the ledger does not verify ({p}); it cannot be amended") });
+        return Err(Error::Ledger {
+            path: lpath,
+            message: format!("the ledger does not verify ({p}); it cannot be amended"),
+        });
     }
     let print = PlanPrint::of(&plan.path, &plan.text)?;
-    let last = ledger.entries().filter(|e| e.plan.is_some() && matches!(e.event, Event::Sealed | Event::Amended)).last().and_then(|e| e.plan.clone());
+    let last = ledger
+        .entries()
+        .filter(|e| e.plan.is_some() && matches!(e.event, Event::Sealed | Event::Amended))
+        .last()
+        .and_then(|e| e.plan.clone());
     let Some(last) = last else {
-        return Err(Error::Ledger { path: lpath, message: "the ledger holds no seal: seal the plan first with `sworn seal PLAN`".into() });
+        return Err(Error::Ledger {
+            path: lpath,
+            message: "the ledger holds no seal: seal the plan first with `sworn seal PLAN`".into(),
+        });
     };
     if last.content_sha256 == print.content_sha256 {
-        return Err(Error::Ledger { path: lpath, message: "the plan's content is unchanged since its last ledger entry; nothing to amend".into() });
+        return Err(Error::Ledger {
+            path: lpath,
+            message:
+                "the plan's content is unchanged since its last ledger entry; nothing to amend"
+                    .into(),
+        });
     }
     let keys = plan::canonical::changed_keys(&last.canonical, &print.canonical);
     let mut entry = Entry::new(Event::Amended);
     entry.plan = Some(print.clone());
     entry.reason = Some(reason.to_string());
     ledger.append(entry)?;
-    println!("amended {}: changed keys {}", path.display(), keys.join(", "));
+    println!(
+        "amended {}: changed keys {}",
+        path.display(),
+        keys.join(", ")
+    );
     println!("new content fingerprint: sha256:{}", print.content_sha256);
     Ok(Outcome::Success)
 }
@@ -124,7 +171,10 @@ fn default_out(plan: &Path) -> PathBuf {
 pub fn run(path: &Path, out: Option<&Path>, strict: bool) -> Result<(Outcome, PathBuf)> {
     let plan = plan::load(path)?;
     let (tables, schema_devs) = analysis::load_tables(&plan)?;
-    let hashes: BTreeMap<String, String> = tables.iter().map(|(k, t)| (k.clone(), t.sha256.clone())).collect();
+    let hashes: BTreeMap<String, String> = tables
+        .iter()
+        .map(|(k, t)| (k.clone(), t.sha256.clone()))
+        .collect();
     let lpath = ledger_path(&plan.path);
     let mut ledger = Ledger::read(&lpath)?.unwrap_or_else(|| Ledger::empty(lpath.clone()));
     if !ledger.entries().any(|e| e.event == Event::DataFirstRead) {
@@ -133,9 +183,11 @@ pub fn run(path: &Path, out: Option<&Path>, strict: bool) -> Result<(Outcome, Pa
         ledger.append(entry)?;
     }
     let out_dir = out.map_or_else(|| default_out(path), Path::to_path_buf);
-    let abs_out = std::path::absolute(&out_dir).map_err(|e| Error::io(&out_dir, "cannot resolve the output folder", e))?;
+    let abs_out = std::path::absolute(&out_dir)
+        .map_err(|e| Error::io(&out_dir, "cannot resolve the output folder", e))?;
     let output = analysis::execute(&plan, &ledger, &abs_out, &tables, schema_devs)?;
-    std::fs::create_dir_all(&abs_out).map_err(|e| Error::io(&abs_out, "cannot create the output folder", e))?;
+    std::fs::create_dir_all(&abs_out)
+        .map_err(|e| Error::io(&abs_out, "cannot create the output folder", e))?;
     for (name, text) in &output.files {
         ledger::write_atomic(&abs_out.join(name), text.as_bytes())?;
     }
@@ -143,37 +195,79 @@ pub fn run(path: &Path, out: Option<&Path>, strict: bool) -> Result<(Outcome, Pa
     entry.plan = Some(PlanPrint::of(&plan.path, &plan.text)?);
     entry.data = Some(hashes);
     entry.results_digest = Some(output.results.digest.clone());
-    entry.outputs = Some(output.files.iter().map(|(n, t)| (n.clone(), ledger::sha256_hex(t.as_bytes()))).collect());
+    entry.outputs = Some(
+        output
+            .files
+            .iter()
+            .map(|(n, t)| (n.clone(), ledger::sha256_hex(t.as_bytes())))
+            .collect(),
+    );
     ledger.append(entry)?;
     let line_hash = ledger.line_hash(ledger.len() - 1).unwrap_or_default();
-    ledger::write_atomic(&abs_out.join(RUN_ENTRY_FILE), format!("{line_hash}\n").as_bytes())?;
+    ledger::write_atomic(
+        &abs_out.join(RUN_ENTRY_FILE),
+        format!("{line_hash}\n").as_bytes(),
+    )?;
     print_summary(&plan, &output, &out_dir);
-    let deviating = output.results.deviations.iter().any(|d| d.severity >= Severity::Deviation);
-    Ok((if strict && deviating { Outcome::CheckFailed } else { Outcome::Success }, out_dir))
+    let deviating = output
+        .results
+        .deviations
+        .iter()
+        .any(|d| d.severity >= Severity::Deviation);
+    Ok((
+        if strict && deviating {
+            Outcome::CheckFailed
+        } else {
+            Outcome::Success
+        },
+        out_dir,
+    ))
 }
 
 fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {
     let r = &output.results;
     println!("{}: integrity {}", plan.study.title, r.plan.integrity);
     for (id, h) in &r.hypotheses {
-        let p = h.adjusted_p_value.map_or("n/a".to_string(), crate::report::pval);
-        println!("  {id} ({} in {}): {} (adjusted p {p})", h.term, h.specification, h.verdict);
+        let p = h
+            .adjusted_p_value
+            .map_or("n/a".to_string(), crate::report::pval);
+        println!(
+            "  {id} ({} in {}): {} (adjusted p {p})",
+            h.term, h.specification, h.verdict
+        );
     }
-    let n_dev = r.deviations.iter().filter(|d| d.severity >= Severity::Deviation).count();
-    println!("  {} deviation(s), {} note(s)", n_dev, r.deviations.len() - n_dev);
+    let n_dev = r
+        .deviations
+        .iter()
+        .filter(|d| d.severity >= Severity::Deviation)
+        .count();
+    println!(
+        "  {} deviation(s), {} note(s)",
+        n_dev,
+        r.deviations.len() - n_dev
+    );
     println!("  report: {}", out_dir.join("report.md").display());
 }
 
 /// `sworn verify DIR`.
 pub fn verify(dir: &Path) -> Result<Outcome> {
     let results_path = dir.join("results.json");
-    let text = std::fs::read_to_string(&results_path).map_err(|e| Error::io(&results_path, "cannot read the run's results (is this a run directory?)", e))?;
+    let text = std::fs::read_to_string(&results_path).map_err(|e| {
+        Error::io(
+            &results_path,
+            "cannot read the run's results (is this a run directory?)",
+            e,
+        )
+    })?;
     let problems = match crate::results::digest_of_text(&text) {
         Some((recorded, recomputed)) => verify_problems(dir, &text, &recorded, &recomputed),
         None => vec!["results.json is not a valid sworn results file (it does not parse or has no digest): it was changed after the run".to_string()],
     };
     if problems.is_empty() {
-        println!("verified: {} re-derives exactly from its plan and data, and the ledger records it", dir.display());
+        println!(
+            "verified: {} re-derives exactly from its plan and data, and the ledger records it",
+            dir.display()
+        );
         return Ok(Outcome::Success);
     }
     println!("verification FAILED for {}:", dir.display());
@@ -186,9 +280,13 @@ pub fn verify(dir: &Path) -> Result<Outcome> {
 fn verify_problems(dir: &Path, text: &str, recorded: &str, recomputed: &str) -> Vec<String> {
     let mut problems = Vec::new();
     if recorded != recomputed {
-        problems.push("results.json does not match its own digest: it was edited after the run".to_string());
+        problems.push(
+            "results.json does not match its own digest: it was edited after the run".to_string(),
+        );
     }
-    let plan_rel = serde_json::from_str::<serde_json::Value>(text).ok().and_then(|v| v["plan"]["path"].as_str().map(String::from));
+    let plan_rel = serde_json::from_str::<serde_json::Value>(text)
+        .ok()
+        .and_then(|v| v["plan"]["path"].as_str().map(String::from));
     let Some(plan_rel) = plan_rel else {
         problems.push("results.json names no plan".into());
         return problems;
@@ -205,7 +303,10 @@ fn verify_problems(dir: &Path, text: &str, recorded: &str, recomputed: &str) -> 
     let ledger = match Ledger::read(&ledger_path(&plan.path)) {
         Ok(Some(l)) => l,
         Ok(None) => {
-            problems.push(format!("the plan's ledger {} is missing", ledger_path(&plan.path).display()));
+            problems.push(format!(
+                "the plan's ledger {} is missing",
+                ledger_path(&plan.path).display()
+            ));
             return problems;
         }
         Err(e) => {
@@ -213,15 +314,32 @@ fn verify_problems(dir: &Path, text: &str, recorded: &str, recomputed: &str) -> 
             return problems;
         }
     };
-    problems.extend(ledger.problems().into_iter().map(|p| format!("ledger: {p}")));
+    problems.extend(
+        ledger
+            .problems()
+            .into_iter()
+            .map(|p| format!("ledger: {p}")),
+    );
     let current: BTreeMap<String, String> = ["results.json", "report.md", "report.tex"]
         .iter()
-        .map(|n| (n.to_string(), std::fs::read(dir.join(n)).map(|b| ledger::sha256_hex(&b)).unwrap_or_default()))
+        .map(|n| {
+            (
+                n.to_string(),
+                std::fs::read(dir.join(n))
+                    .map(|b| ledger::sha256_hex(&b))
+                    .unwrap_or_default(),
+            )
+        })
         .collect();
     let entry_hash = std::fs::read_to_string(dir.join(RUN_ENTRY_FILE)).unwrap_or_default();
-    let index = (0..ledger.len()).find(|&i| ledger.line_hash(i).as_deref() == Some(entry_hash.trim()));
-    let run_entry = index.and_then(|i| ledger.entries().find(|e| ledger.index_of(e.seq) == Some(i))).cloned();
-    let Some(run_entry) = run_entry.filter(|e| e.event == Event::Run && e.results_digest.as_deref() == Some(recorded)) else {
+    let index =
+        (0..ledger.len()).find(|&i| ledger.line_hash(i).as_deref() == Some(entry_hash.trim()));
+    let run_entry = index
+        .and_then(|i| ledger.entries().find(|e| ledger.index_of(e.seq) == Some(i)))
+        .cloned();
+    let Some(run_entry) = run_entry
+        .filter(|e| e.event == Event::Run && e.results_digest.as_deref() == Some(recorded))
+    else {
         problems.push(format!("the ledger holds no unedited run entry recording these results (checked against {RUN_ENTRY_FILE})"));
         return problems;
     };
@@ -231,7 +349,9 @@ fn verify_problems(dir: &Path, text: &str, recorded: &str, recomputed: &str) -> 
         }
     }
     let prefix = ledger.prefix(ledger.index_of(run_entry.seq).unwrap_or(0));
-    match analysis::load_tables(&plan).and_then(|(t, d)| analysis::execute(&plan, &prefix, &abs_dir, &t, d)) {
+    match analysis::load_tables(&plan)
+        .and_then(|(t, d)| analysis::execute(&plan, &prefix, &abs_dir, &t, d))
+    {
         Ok(out) => {
             for (name, fresh) in &out.files {
                 let on_disk = std::fs::read(dir.join(name)).unwrap_or_default();

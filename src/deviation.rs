@@ -44,12 +44,22 @@ pub struct Deviation {
 
 impl Deviation {
     /// A deviation of the given code and severity.
-    pub fn new(code: &'static str, severity: Severity, subject: impl Into<String>, message: impl Into<String>) -> Self {
-        Deviation { code, severity, subject: subject.into(), message: message.into() }
+    pub fn new(
+        code: &'static str,
+        severity: Severity,
+        subject: impl Into<String>,
+        message: impl Into<String>,
+    ) -> Self {
+        Deviation {
+            code,
+            severity,
+            subject: subject.into(),
+            message: message.into(),
+        }
     }
 }
 
 /// Sort deviations for output: integrity first, then deviations, then notes; stable within.
 pub fn sort(devs: &mut [Deviation]) {
-    devs.sort_by(|a, b| b.severity.cmp(&a.severity));
+    devs.sort_by_key(|d| std::cmp::Reverse(d.severity));
 }

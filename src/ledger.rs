@@ -23,7 +23,8 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
 
 /// Hex SHA-256 of a file's bytes.
 pub fn file_sha256(path: &Path) -> Result<String> {
-    let bytes = std::fs::read(path).map_err(|e| Error::io(path, "cannot read the file to fingerprint it", e))?;
+    let bytes = std::fs::read(path)
+        .map_err(|e| Error::io(path, "cannot read the file to fingerprint it", e))?;
     Ok(sha256_hex(&bytes))
 }
 
@@ -133,7 +134,10 @@ const ZERO_HASH: &str = "0000000000000000000000000000000000000000000000000000000
 impl Ledger {
     /// An empty ledger that will live at `path`.
     pub fn empty(path: PathBuf) -> Self {
-        Ledger { path, lines: Vec::new() }
+        Ledger {
+            path,
+            lines: Vec::new(),
+        }
     }
 
     /// Read the ledger at `path`; `None` when there is no file.
@@ -147,7 +151,10 @@ impl Ledger {
             .lines()
             .map(|l| (l.to_string(), serde_json::from_str::<Entry>(l).ok()))
             .collect();
-        Ok(Some(Ledger { path: path.to_path_buf(), lines }))
+        Ok(Some(Ledger {
+            path: path.to_path_buf(),
+            lines,
+        }))
     }
 
     /// The parsed entries (unparsable lines are skipped; see [`Ledger::problems`]).
@@ -167,7 +174,10 @@ impl Ledger {
 
     /// The first `n` lines as a ledger of their own (the state before a later event).
     pub fn prefix(&self, n: usize) -> Ledger {
-        Ledger { path: self.path.clone(), lines: self.lines[..n.min(self.lines.len())].to_vec() }
+        Ledger {
+            path: self.path.clone(),
+            lines: self.lines[..n.min(self.lines.len())].to_vec(),
+        }
     }
 
     /// SHA-256 of line `i`'s bytes.
@@ -177,7 +187,9 @@ impl Ledger {
 
     /// Index of the line holding `entry` (by sequence number).
     pub fn index_of(&self, seq: u64) -> Option<usize> {
-        self.lines.iter().position(|(_, e)| e.as_ref().is_some_and(|e| e.seq == seq))
+        self.lines
+            .iter()
+            .position(|(_, e)| e.as_ref().is_some_and(|e| e.seq == seq))
     }
 
     /// Integrity problems: unparsable lines, broken hash links, wrong sequence numbers.
@@ -192,7 +204,12 @@ impl Ledger {
                         out.push(format!("line {}: the hash chain is broken (an earlier line was edited, removed or reordered)", i + 1));
                     }
                     if e.seq != i as u64 + 1 {
-                        out.push(format!("line {}: sequence number {} where {} was expected", i + 1, e.seq, i + 1));
+                        out.push(format!(
+                            "line {}: sequence number {} where {} was expected",
+                            i + 1,
+                            e.seq,
+                            i + 1
+                        ));
                     }
                 }
             }
@@ -205,7 +222,10 @@ impl Ledger {
     pub fn append(&mut self, mut entry: Entry) -> Result<Entry> {
         entry.seq = self.lines.len() as u64 + 1;
         entry.time = now_rfc3339();
-        entry.prev = self.lines.last().map_or(ZERO_HASH.to_string(), |(l, _)| sha256_hex(l.as_bytes()));
+        entry.prev = self
+            .lines
+            .last()
+            .map_or(ZERO_HASH.to_string(), |(l, _)| sha256_hex(l.as_bytes()));
         let line = serde_json::to_string(&entry).map_err(|e| Error::Ledger {
             path: self.path.clone(),
             message: format!("cannot serialise the entry: {e}"),
@@ -221,7 +241,10 @@ impl Ledger {
 
 /// Write a file through a temporary sibling and a rename, so readers never see half of it.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
-    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
     let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("out");
     let tmp = dir.join(format!(".{name}.tmp-{}", std::process::id()));
     let result = (|| {

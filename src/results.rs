@@ -299,7 +299,10 @@ pub fn digest_of_text(text: &str) -> Option<(String, String)> {
     v.as_object_mut()?.remove("digest");
     let mut out = String::new();
     crate::plan::canonical::write_canonical(&v, &mut out);
-    Some((recorded, format!("sha256:{}", crate::ledger::sha256_hex(out.as_bytes()))))
+    Some((
+        recorded,
+        format!("sha256:{}", crate::ledger::sha256_hex(out.as_bytes())),
+    ))
 }
 
 /// Rebuild a JSON value with object keys in sorted order (whatever map type serde_json uses).
@@ -310,7 +313,9 @@ fn sorted(v: serde_json::Value) -> serde_json::Value {
             entries.sort_by(|a, b| a.0.cmp(&b.0));
             serde_json::Value::Object(entries.into_iter().map(|(k, v)| (k, sorted(v))).collect())
         }
-        serde_json::Value::Array(a) => serde_json::Value::Array(a.into_iter().map(sorted).collect()),
+        serde_json::Value::Array(a) => {
+            serde_json::Value::Array(a.into_iter().map(sorted).collect())
+        }
         other => other,
     }
 }

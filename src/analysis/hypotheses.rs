@@ -12,8 +12,15 @@ use crate::results::HypothesisResult;
 use std::collections::BTreeMap;
 
 /// Test every hypothesis of `plan` against the fitted specifications.
-pub fn test_all(plan: &Plan, fitted: &BTreeMap<String, Fitted>) -> BTreeMap<String, HypothesisResult> {
-    let mut out: BTreeMap<String, HypothesisResult> = plan.hypotheses.iter().map(|h| (h.id.clone(), test_one(h, fitted))).collect();
+pub fn test_all(
+    plan: &Plan,
+    fitted: &BTreeMap<String, Fitted>,
+) -> BTreeMap<String, HypothesisResult> {
+    let mut out: BTreeMap<String, HypothesisResult> = plan
+        .hypotheses
+        .iter()
+        .map(|h| (h.id.clone(), test_one(h, fitted)))
+        .collect();
     let mut families: BTreeMap<String, Vec<String>> = BTreeMap::new();
     for h in &plan.hypotheses {
         if let Some(f) = &h.family {
@@ -21,9 +28,15 @@ pub fn test_all(plan: &Plan, fitted: &BTreeMap<String, Fitted>) -> BTreeMap<Stri
         }
     }
     for (name, ids) in families {
-        let correction = plan.families.get(&name).map_or(Correction::None, |f| f.correction);
+        let correction = plan
+            .families
+            .get(&name)
+            .map_or(Correction::None, |f| f.correction);
         let live: Vec<&String> = ids.iter().filter(|id| out[*id].p_value.is_some()).collect();
-        let ps: Vec<f64> = live.iter().map(|id| out[*id].p_value.unwrap_or(1.0)).collect();
+        let ps: Vec<f64> = live
+            .iter()
+            .map(|id| out[*id].p_value.unwrap_or(1.0))
+            .collect();
         for (id, adj) in live.iter().zip(inference::adjust(&ps, correction)) {
             if let Some(h) = out.get_mut(*id) {
                 h.adjusted_p_value = Some(adj);
@@ -33,7 +46,11 @@ pub fn test_all(plan: &Plan, fitted: &BTreeMap<String, Fitted>) -> BTreeMap<Stri
     }
     for h in out.values_mut() {
         if let Some(adj) = h.adjusted_p_value {
-            h.verdict = if adj <= h.alpha { "supported" } else { "not-supported" };
+            h.verdict = if adj <= h.alpha {
+                "supported"
+            } else {
+                "not-supported"
+            };
         }
     }
     out
@@ -62,13 +79,17 @@ fn test_one(h: &crate::plan::Hypothesis, fitted: &BTreeMap<String, Fitted>) -> H
         pre_registered: f.result.pre_registered,
     };
     let Some(t) = f.result.terms.get(&h.term) else {
-        r.reason = Some(format!("term `{}` was dropped from specification `{}` as collinear", h.term, h.specification));
+        r.reason = Some(format!(
+            "term `{}` was dropped from specification `{}` as collinear",
+            h.term, h.specification
+        ));
         return r;
     };
     r.estimate = Some(t.estimate);
     r.std_error = Some(t.std_error);
     if !(t.std_error.is_finite() && t.std_error > 0.0) {
-        r.reason = Some("the standard error is zero or not finite, so no test is possible".to_string());
+        r.reason =
+            Some("the standard error is zero or not finite, so no test is possible".to_string());
         return r;
     }
     let statistic = (t.estimate - h.null) / t.std_error;

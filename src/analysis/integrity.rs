@@ -33,12 +33,21 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
     let mut devs = Vec::new();
     let problems = ledger.problems();
     for p in &problems {
-        devs.push(Deviation::new("ledger-broken", Severity::Integrity, "ledger", p.clone()));
+        devs.push(Deviation::new(
+            "ledger-broken",
+            Severity::Integrity,
+            "ledger",
+            p.clone(),
+        ));
     }
     let entries = plan_entries(ledger);
     let sealed = entries.iter().any(|(_, e)| e.event == Event::Sealed);
     let latest = entries.last().map(|(_, e)| *e);
-    let matching = entries.iter().rev().find(|(_, e)| e.plan.as_ref().is_some_and(|p| p.content_sha256 == print.content_sha256));
+    let matching = entries.iter().rev().find(|(_, e)| {
+        e.plan
+            .as_ref()
+            .is_some_and(|p| p.content_sha256 == print.content_sha256)
+    });
     let head_of = |e: &Entry| ledger.index_of(e.seq).and_then(|i| ledger.line_hash(i));
     let ledger_head = matching.or(entries.last()).and_then(|(_, e)| head_of(e));
     let mut state = "sealed-unchanged";
@@ -48,37 +57,74 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
             devs.push(Deviation::new("unsealed", Severity::Integrity, "plan", "the plan was never sealed: nothing shows it was fixed before the data were seen (run `sworn seal PLAN` before the data arrive)"));
         }
         (Some(last), Some((_, m))) if m.seq == last.seq => {
-            if last.plan.as_ref().is_some_and(|p| p.bytes_sha256 != print.bytes_sha256) {
+            if last
+                .plan
+                .as_ref()
+                .is_some_and(|p| p.bytes_sha256 != print.bytes_sha256)
+            {
                 state = "sealed-cosmetic-change";
                 devs.push(Deviation::new("plan-cosmetic-change", Severity::Note, "plan", "the plan file changed since its last ledger entry, but only in comments or layout; its content is unchanged"));
             }
         }
         (Some(last), m) => {
             state = "changed";
-            let keys = last.plan.as_ref().map(|p| changed_keys(&p.canonical, &print.canonical)).unwrap_or_default();
+            let keys = last
+                .plan
+                .as_ref()
+                .map(|p| changed_keys(&p.canonical, &print.canonical))
+                .unwrap_or_default();
             let (code, sev, what) = match m {
                 Some(_) => ("plan-not-latest", Severity::Deviation, "the plan matches an earlier ledger entry, not the latest amendment"),
                 None => ("plan-changed", Severity::Integrity, "the plan's content changed since its last ledger entry and matches no entry (record changes with `sworn amend PLAN --reason ...`)"),
             };
-            devs.push(Deviation::new(code, sev, "plan", format!("{what}; changed keys: {}", keys.join(", "))));
+            devs.push(Deviation::new(
+                code,
+                sev,
+                "plan",
+                format!("{what}; changed keys: {}", keys.join(", ")),
+            ));
         }
     }
     if !problems.is_empty() {
         state = "ledger-broken";
     }
     data_changes(ledger, data, &mut devs);
-    Integrity { sealed, ledger_head, state, deviations: devs, registered_specs: registered_specs(ledger) }
+    Integrity {
+        sealed,
+        ledger_head,
+        state,
+        deviations: devs,
+        registered_specs: registered_specs(ledger),
+    }
 }
 
 fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec<Deviation>) {
-    let Some(first) = ledger.entries().find(|e| e.event == Event::DataFirstRead) else { return };
+    let Some(first) = ledger.entries().find(|e| e.event == Event::DataFirstRead) else {
+        return;
+    };
     let recorded = first.data.clone().unwrap_or_default();
     for (id, sha) in data {
         match recorded.get(id) {
-            Some(r) if r != sha => devs.push(Deviation::new("data-changed", Severity::Integrity, id.clone(), format!(
-                "data file of [data.{id}] changed since it was first read ({} at {}, now {})", short(r), first.time, short(sha)
-            ))),
-            None => devs.push(Deviation::new("data-added", Severity::Deviation, id.clone(), format!("[data.{id}] was not among the data first read at {}", first.time))),
+            Some(r) if r != sha => devs.push(Deviation::new(
+                "data-changed",
+                Severity::Integrity,
+                id.clone(),
+                format!(
+                    "data file of [data.{id}] changed since it was first read ({} at {}, now {})",
+                    short(r),
+                    first.time,
+                    short(sha)
+                ),
+            )),
+            None => devs.push(Deviation::new(
+                "data-added",
+                Severity::Deviation,
+                id.clone(),
+                format!(
+                    "[data.{id}] was not among the data first read at {}",
+                    first.time
+                ),
+            )),
             _ => {}
         }
     }
@@ -90,12 +136,21 @@ fn short(sha: &str) -> String {
 
 /// Specification ids in the last plan recorded before the data were first read.
 fn registered_specs(ledger: &Ledger) -> Option<BTreeSet<String>> {
-    let first_read = ledger.entries().find(|e| e.event == Event::DataFirstRead)?.seq;
+    let first_read = ledger
+        .entries()
+        .find(|e| e.event == Event::DataFirstRead)?
+        .seq;
     let before = ledger
         .entries()
         .filter(|e| e.seq < first_read && matches!(e.event, Event::Sealed | Event::Amended))
         .last()?;
-    let canonical: serde_json::Value = serde_json::from_str(&before.plan.as_ref()?.canonical).ok()?;
+    let canonical: serde_json::Value =
+        serde_json::from_str(&before.plan.as_ref()?.canonical).ok()?;
     let specs = canonical.get("specification")?.as_array()?;
-    Some(specs.iter().filter_map(|s| s.get("id")?.as_str().map(String::from)).collect())
+    Some(
+        specs
+            .iter()
+            .filter_map(|s| s.get("id")?.as_str().map(String::from))
+            .collect(),
+    )
 }

@@ -56,9 +56,18 @@ pub fn relative_path(from: &Path, to: &Path) -> PathBuf {
 
 /// Run `plan` against its data, judging integrity by `ledger` as it stood before this run.
 /// `out_dir` (absolute) is where the outputs will live; paths in results.json are relative to it.
-pub fn execute(plan: &Plan, ledger: &Ledger, out_dir: &Path, tables: &BTreeMap<String, Table>, schema_devs: Vec<Deviation>) -> Result<RunOutput> {
+pub fn execute(
+    plan: &Plan,
+    ledger: &Ledger,
+    out_dir: &Path,
+    tables: &BTreeMap<String, Table>,
+    schema_devs: Vec<Deviation>,
+) -> Result<RunOutput> {
     let print = PlanPrint::of(&plan.path, &plan.text)?;
-    let hashes: BTreeMap<String, String> = tables.iter().map(|(id, t)| (id.clone(), t.sha256.clone())).collect();
+    let hashes: BTreeMap<String, String> = tables
+        .iter()
+        .map(|(id, t)| (id.clone(), t.sha256.clone()))
+        .collect();
     let integrity = integrity::assess(ledger, &print, &hashes);
     let mut devs = integrity.deviations;
     devs.extend(schema_devs);
@@ -66,16 +75,27 @@ pub fn execute(plan: &Plan, ledger: &Ledger, out_dir: &Path, tables: &BTreeMap<S
     for s in &plan.specifications {
         let source = &plan.data[&s.data];
         let mut f = spec::fit_spec(s, &tables[&s.data], source)?;
-        spec_deviations(plan, s, &mut f, integrity.registered_specs.as_ref(), &mut devs);
+        spec_deviations(
+            plan,
+            s,
+            &mut f,
+            integrity.registered_specs.as_ref(),
+            &mut devs,
+        );
         fitted.insert(s.id.clone(), f);
     }
     let hypotheses = hypotheses::test_all(plan, &fitted);
     deviation::sort(&mut devs);
     let mut results = Results {
         format: 1,
-        tool: Tool { name: "sworn", version: TOOL_VERSION },
+        tool: Tool {
+            name: "sworn",
+            version: TOOL_VERSION,
+        },
         plan: PlanInfo {
-            path: relative_path(out_dir, &plan.path).to_string_lossy().replace('\\', "/"),
+            path: relative_path(out_dir, &plan.path)
+                .to_string_lossy()
+                .replace('\\', "/"),
             bytes_sha256: print.bytes_sha256.clone(),
             content_sha256: print.content_sha256.clone(),
             sealed: integrity.sealed,
@@ -85,7 +105,16 @@ pub fn execute(plan: &Plan, ledger: &Ledger, out_dir: &Path, tables: &BTreeMap<S
         data: plan
             .data
             .values()
-            .map(|d| (d.id.clone(), DataInfo { path: d.path_text.clone(), sha256: tables[&d.id].sha256.clone(), rows: tables[&d.id].rows }))
+            .map(|d| {
+                (
+                    d.id.clone(),
+                    DataInfo {
+                        path: d.path_text.clone(),
+                        sha256: tables[&d.id].sha256.clone(),
+                        rows: tables[&d.id].rows,
+                    },
+                )
+            })
             .collect(),
         specifications: fitted.into_iter().map(|(k, f)| (k, f.result)).collect(),
         hypotheses,
@@ -103,17 +132,32 @@ pub fn execute(plan: &Plan, ledger: &Ledger, out_dir: &Path, tables: &BTreeMap<S
     Ok(RunOutput { results, files })
 }
 
-fn spec_deviations(plan: &Plan, s: &crate::plan::Spec, f: &mut spec::Fitted, registered: Option<&std::collections::BTreeSet<String>>, devs: &mut Vec<Deviation>) {
+fn spec_deviations(
+    plan: &Plan,
+    s: &crate::plan::Spec,
+    f: &mut spec::Fitted,
+    registered: Option<&std::collections::BTreeSet<String>>,
+    devs: &mut Vec<Deviation>,
+) {
     devs.append(&mut f.deviations);
     if s.exploratory {
-        devs.push(Deviation::new("exploratory", Severity::Note, s.id.clone(), "marked exploratory in the plan: reported apart, not pre-registered"));
+        devs.push(Deviation::new(
+            "exploratory",
+            Severity::Note,
+            s.id.clone(),
+            "marked exploratory in the plan: reported apart, not pre-registered",
+        ));
     }
     if registered.is_some_and(|r| !r.contains(&s.id)) {
         f.result.pre_registered = false;
         devs.push(Deviation::new("added-after-data", Severity::Deviation, s.id.clone(), "this specification was added by an amendment after the data were first read: it is not pre-registered"));
     }
     let sample = &f.result.sample;
-    let share = if sample.in_sample == 0 { 0.0 } else { sample.dropped_missing as f64 / sample.in_sample as f64 };
+    let share = if sample.in_sample == 0 {
+        0.0
+    } else {
+        sample.dropped_missing as f64 / sample.in_sample as f64
+    };
     if let Some(max) = plan.data[&s.data].max_missing_share {
         if share > max {
             devs.push(Deviation::new("missing-share", Severity::Deviation, s.id.clone(), format!(
@@ -130,7 +174,13 @@ mod tests {
 
     #[test]
     fn relative_paths() {
-        assert_eq!(relative_path(Path::new("/a/b/out/x"), Path::new("/a/b/plans/p.toml")), PathBuf::from("../../plans/p.toml"));
-        assert_eq!(relative_path(Path::new("/a"), Path::new("/a/p.toml")), PathBuf::from("p.toml"));
+        assert_eq!(
+            relative_path(Path::new("/a/b/out/x"), Path::new("/a/b/plans/p.toml")),
+            PathBuf::from("../../plans/p.toml")
+        );
+        assert_eq!(
+            relative_path(Path::new("/a"), Path::new("/a/p.toml")),
+            PathBuf::from("p.toml")
+        );
     }
 }

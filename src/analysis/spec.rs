@@ -8,7 +8,8 @@ use crate::estimate::{self, CovSpec, EstimateError, LinearFit};
 use crate::inference::{self, Direction};
 use crate::plan::{ColumnKind, DataSource, Diagnostic, Distribution, Errors, Estimator, Spec};
 use crate::results::{
-    EndogeneityResult, FirstStageResult, LpmInfo, OveridResult, Regression, SampleInfo, SpecResult, Term, TestResult,
+    EndogeneityResult, FirstStageResult, LpmInfo, OveridResult, Regression, SampleInfo, SpecResult,
+    Term, TestResult,
 };
 use nalgebra::{DMatrix, DVector};
 use std::collections::BTreeMap;
@@ -24,7 +25,10 @@ pub struct Fitted {
 }
 
 fn est_err(spec: &Spec, message: impl Into<String>) -> Error {
-    Error::Estimation { spec: spec.id.clone(), message: message.into() }
+    Error::Estimation {
+        spec: spec.id.clone(),
+        message: message.into(),
+    }
 }
 
 fn cov_spec(spec: &Spec, d: &Design) -> CovSpec {
@@ -45,20 +49,38 @@ fn select(m: &DMatrix<f64>, keep: &[usize]) -> DMatrix<f64> {
 
 fn hstack(blocks: &[&DMatrix<f64>]) -> DMatrix<f64> {
     let n = blocks.iter().map(|b| b.nrows()).max().unwrap_or(0);
-    let cols: Vec<DVector<f64>> = blocks.iter().flat_map(|b| b.column_iter().map(|c| c.into_owned())).collect();
-    if cols.is_empty() { DMatrix::zeros(n, 0) } else { DMatrix::from_columns(&cols) }
+    let cols: Vec<DVector<f64>> = blocks
+        .iter()
+        .flat_map(|b| b.column_iter().map(|c| c.into_owned()))
+        .collect();
+    if cols.is_empty() {
+        DMatrix::zeros(n, 0)
+    } else {
+        DMatrix::from_columns(&cols)
+    }
 }
 
 fn display(name: &str) -> String {
     match name.strip_prefix(FE_PREFIX) {
-        Some(rest) => format!("a `{}` fixed-effect indicator", rest.split('#').next().unwrap_or(rest)),
+        Some(rest) => format!(
+            "a `{}` fixed-effect indicator",
+            rest.split('#').next().unwrap_or(rest)
+        ),
         None => format!("`{name}`"),
     }
 }
 
 /// Resolve collinearity among `[exog | extra]`: returns the columns of `exog` and of `extra`
 /// to keep, recording dropped names, or fails naming the dependent columns.
-fn resolve(spec: &Spec, exog: &DMatrix<f64>, exog_names: &[String], extra: &DMatrix<f64>, extra_names: &[String], what: &str, dropped: &mut Vec<String>) -> Result<(Vec<usize>, Vec<usize>)> {
+fn resolve(
+    spec: &Spec,
+    exog: &DMatrix<f64>,
+    exog_names: &[String],
+    extra: &DMatrix<f64>,
+    extra_names: &[String],
+    what: &str,
+    dropped: &mut Vec<String>,
+) -> Result<(Vec<usize>, Vec<usize>)> {
     let x = hstack(&[exog, extra]);
     let names: Vec<&String> = exog_names.iter().chain(extra_names).collect();
     let dependent = estimate::collinear_columns(&x);
@@ -73,8 +95,12 @@ fn resolve(spec: &Spec, exog: &DMatrix<f64>, exog_names: &[String], extra: &DMat
         )));
     }
     dropped.extend(dependent.iter().map(|&j| names[j].clone()));
-    let keep_e = (0..exog.ncols()).filter(|j| !dependent.contains(j)).collect();
-    let keep_x = (0..extra.ncols()).filter(|j| !dependent.contains(&(j + exog.ncols()))).collect();
+    let keep_e = (0..exog.ncols())
+        .filter(|j| !dependent.contains(j))
+        .collect();
+    let keep_x = (0..extra.ncols())
+        .filter(|j| !dependent.contains(&(j + exog.ncols())))
+        .collect();
     Ok((keep_e, keep_x))
 }
 
@@ -108,18 +134,32 @@ fn reference_for(spec: &Spec, fit: &LinearFit) -> Reference {
 
 /// Terms by name; fixed-effect indicators, and the intercept when fixed effects absorb it,
 /// are not shown.
-fn terms_of(fit: &LinearFit, names: &[String], reference: &Reference, confidence: f64) -> BTreeMap<String, Term> {
+fn terms_of(
+    fit: &LinearFit,
+    names: &[String],
+    reference: &Reference,
+    confidence: f64,
+) -> BTreeMap<String, Term> {
     let absorbed = names.iter().any(|n| n.starts_with(FE_PREFIX));
     names
         .iter()
         .enumerate()
-        .filter(|(_, n)| !n.starts_with(FE_PREFIX) && !(absorbed && n.as_str() == "intercept"))
-        .map(|(j, n)| (n.clone(), term(fit.coef[j], fit.cov[(j, j)], reference, confidence)))
+        .filter(|(_, n)| !(n.starts_with(FE_PREFIX) || absorbed && n.as_str() == "intercept"))
+        .map(|(j, n)| {
+            (
+                n.clone(),
+                term(fit.coef[j], fit.cov[(j, j)], reference, confidence),
+            )
+        })
         .collect()
 }
 
 fn test(t: &TestStatistic) -> TestResult {
-    TestResult { statistic: t.statistic, p_value: inference::test_p_value(t), distribution: t.reference }
+    TestResult {
+        statistic: t.statistic,
+        p_value: inference::test_p_value(t),
+        distribution: t.reference,
+    }
 }
 
 struct Parts {
@@ -138,10 +178,26 @@ fn pick(names: &[String], keep: &[usize]) -> Vec<String> {
 
 fn parts(spec: &Spec, d: &Design) -> Result<Parts> {
     let mut dropped = Vec::new();
-    let (ke, kf) = resolve(spec, &d.exog, &d.exog_names, &d.focal, &d.focal_names, "regressors", &mut dropped)?;
+    let (ke, kf) = resolve(
+        spec,
+        &d.exog,
+        &d.exog_names,
+        &d.focal,
+        &d.focal_names,
+        "regressors",
+        &mut dropped,
+    )?;
     let exog = select(&d.exog, &ke);
     let exog_names = pick(&d.exog_names, &ke);
-    let (_, ki) = resolve(spec, &exog, &exog_names, &d.instruments, &d.instrument_names, "instruments and controls", &mut dropped)?;
+    let (_, ki) = resolve(
+        spec,
+        &exog,
+        &exog_names,
+        &d.instruments,
+        &d.instrument_names,
+        "instruments and controls",
+        &mut dropped,
+    )?;
     let p = Parts {
         focal: select(&d.focal, &kf),
         focal_names: pick(&d.focal_names, &kf),
@@ -170,18 +226,37 @@ pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource) -> Result<Fitte
         Estimator::Ols => {
             let x = hstack(&[&p.focal, &p.exog]);
             let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
-            (estimate::ols(&d.y, &x, has_c, &cov).map_err(|e| map_estimate_error(spec, e))?, names)
+            (
+                estimate::ols(&d.y, &x, has_c, &cov).map_err(|e| map_estimate_error(spec, e))?,
+                names,
+            )
         }
         Estimator::Tsls => {
             let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
-            (estimate::tsls(&d.y, &p.exog, &p.focal, &p.instruments, has_c, &cov).map_err(|e| map_estimate_error(spec, e))?, names)
+            (
+                estimate::tsls(&d.y, &p.exog, &p.focal, &p.instruments, has_c, &cov)
+                    .map_err(|e| map_estimate_error(spec, e))?,
+                names,
+            )
         }
     };
     let reference = reference_for(spec, &fit);
     let mut deviations = Vec::new();
     for name in &p.dropped {
-        let (sev, what) = if name.starts_with(FE_PREFIX) { (Severity::Note, "a redundant fixed-effect indicator was dropped") } else { (Severity::Deviation, "term dropped as collinear") };
-        deviations.push(Deviation::new("collinear-dropped", sev, format!("{}.{}", spec.id, name), format!("{what}: {}", display(name))));
+        let (sev, what) = if name.starts_with(FE_PREFIX) {
+            (
+                Severity::Note,
+                "a redundant fixed-effect indicator was dropped",
+            )
+        } else {
+            (Severity::Deviation, "term dropped as collinear")
+        };
+        deviations.push(Deviation::new(
+            "collinear-dropped",
+            sev,
+            format!("{}.{}", spec.id, name),
+            format!("{what}: {}", display(name)),
+        ));
     }
     let lpm = lpm_check(spec, source, &fit, &mut deviations);
     let mut result = SpecResult {
@@ -191,17 +266,35 @@ pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource) -> Result<Fitte
         n: fit.n,
         df_resid: fit.df_resid,
         errors: spec.errors.name(),
-        cluster_by: match &spec.errors { Errors::Cluster(by) => Some(by.clone()), _ => None },
+        cluster_by: match &spec.errors {
+            Errors::Cluster(by) => Some(by.clone()),
+            _ => None,
+        },
         clusters: fit.clusters,
-        distribution: match spec.distribution { Distribution::T => "t", Distribution::Normal => "normal" },
-        df: match reference { Reference::StudentT { df } => Some(df), _ => None },
+        distribution: match spec.distribution {
+            Distribution::T => "t",
+            Distribution::Normal => "normal",
+        },
+        df: match reference {
+            Reference::StudentT { df } => Some(df),
+            _ => None,
+        },
         confidence: spec.confidence,
         r_squared: fit.r_squared,
         residual_sd: fit.residual_sd,
         terms: terms_of(&fit, &names, &reference, spec.confidence),
         fixed_effects: d.fixed_effects.iter().cloned().collect(),
-        dropped_terms: p.dropped.iter().filter(|n| !n.starts_with(FE_PREFIX)).cloned().collect(),
-        sample: SampleInfo { table_rows: d.n_table, in_sample: d.n_sample, dropped_missing: d.n_sample - d.n },
+        dropped_terms: p
+            .dropped
+            .iter()
+            .filter(|n| !n.starts_with(FE_PREFIX))
+            .cloned()
+            .collect(),
+        sample: SampleInfo {
+            table_rows: d.n_table,
+            in_sample: d.n_sample,
+            dropped_missing: d.n_sample - d.n,
+        },
         first_stage: None,
         reduced_form: None,
         endogeneity: None,
@@ -213,11 +306,23 @@ pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource) -> Result<Fitte
     if spec.estimator == Estimator::Tsls {
         diagnostics(spec, &d, &p, &cov, &mut result)?;
     }
-    Ok(Fitted { result, reference, deviations })
+    Ok(Fitted {
+        result,
+        reference,
+        deviations,
+    })
 }
 
-fn lpm_check(spec: &Spec, source: &DataSource, fit: &LinearFit, devs: &mut Vec<Deviation>) -> Option<LpmInfo> {
-    let binary = source.columns.get(&spec.outcome).is_some_and(|c| c.kind == ColumnKind::Binary);
+fn lpm_check(
+    spec: &Spec,
+    source: &DataSource,
+    fit: &LinearFit,
+    devs: &mut Vec<Deviation>,
+) -> Option<LpmInfo> {
+    let binary = source
+        .columns
+        .get(&spec.outcome)
+        .is_some_and(|c| c.kind == ColumnKind::Binary);
     if !binary {
         return None;
     }
@@ -225,44 +330,75 @@ fn lpm_check(spec: &Spec, source: &DataSource, fit: &LinearFit, devs: &mut Vec<D
     if spec.errors == Errors::Classical {
         devs.push(Deviation::new("lpm-classical-errors", Severity::Note, spec.id.clone(), "the outcome is binary (a linear probability model), whose errors are heteroskedastic by construction; classical standard errors are not valid here, robust ones (hc1 or cluster) are recommended"));
     }
-    Some(LpmInfo { fitted_outside_unit_interval: outside })
+    Some(LpmInfo {
+        fitted_outside_unit_interval: outside,
+    })
 }
 
-fn diagnostics(spec: &Spec, d: &Design, p: &Parts, cov: &CovSpec, result: &mut SpecResult) -> Result<()> {
+fn diagnostics(
+    spec: &Spec,
+    d: &Design,
+    p: &Parts,
+    cov: &CovSpec,
+    result: &mut SpecResult,
+) -> Result<()> {
     let err = |e| map_estimate_error(spec, e);
     let has_c = d.has_constant;
-    let z_names: Vec<String> = p.instrument_names.iter().chain(&p.exog_names).cloned().collect();
+    let z_names: Vec<String> = p
+        .instrument_names
+        .iter()
+        .chain(&p.exog_names)
+        .cloned()
+        .collect();
     if spec.diagnostics.contains(&Diagnostic::FirstStage) {
-        let stages = estimate::first_stages(&p.exog, &p.focal, &p.instruments, has_c, cov).map_err(err)?;
+        let stages =
+            estimate::first_stages(&p.exog, &p.focal, &p.instruments, has_c, cov).map_err(err)?;
         let mut out = BTreeMap::new();
         for (name, s) in p.focal_names.iter().zip(&stages) {
             let reference = reference_for(spec, &s.fit);
-            out.insert(name.clone(), FirstStageResult {
-                terms: terms_of(&s.fit, &z_names, &reference, spec.confidence),
-                f_statistic: s.f.statistic,
-                f_p_value: inference::test_p_value(&s.f),
-                f_distribution: s.f.reference,
-                robust_f_statistic: s.robust_f.statistic,
-                robust_f_p_value: inference::test_p_value(&s.robust_f),
-                robust_f_distribution: s.robust_f.reference,
-                partial_r_squared: s.partial_r_squared,
-                r_squared: s.fit.r_squared,
-            });
+            out.insert(
+                name.clone(),
+                FirstStageResult {
+                    terms: terms_of(&s.fit, &z_names, &reference, spec.confidence),
+                    f_statistic: s.f.statistic,
+                    f_p_value: inference::test_p_value(&s.f),
+                    f_distribution: s.f.reference,
+                    robust_f_statistic: s.robust_f.statistic,
+                    robust_f_p_value: inference::test_p_value(&s.robust_f),
+                    robust_f_distribution: s.robust_f.reference,
+                    partial_r_squared: s.partial_r_squared,
+                    r_squared: s.fit.r_squared,
+                },
+            );
         }
         result.first_stage = Some(out);
     }
     if spec.diagnostics.contains(&Diagnostic::ReducedForm) {
         let rf = estimate::reduced_form(&d.y, &p.exog, &p.instruments, has_c, cov).map_err(err)?;
         let reference = reference_for(spec, &rf);
-        result.reduced_form = Some(Regression { outcome: spec.outcome.clone(), terms: terms_of(&rf, &z_names, &reference, spec.confidence), r_squared: rf.r_squared, n: rf.n });
+        result.reduced_form = Some(Regression {
+            outcome: spec.outcome.clone(),
+            terms: terms_of(&rf, &z_names, &reference, spec.confidence),
+            r_squared: rf.r_squared,
+            n: rf.n,
+        });
     }
     if spec.diagnostics.contains(&Diagnostic::Endogeneity) {
-        let e = estimate::endogeneity(&d.y, &p.exog, &p.focal, &p.instruments, has_c, cov).map_err(err)?;
-        result.endogeneity = Some(EndogeneityResult { control_function: test(&e.control_function), durbin: test(&e.durbin), wu_hausman: test(&e.wu_hausman) });
+        let e = estimate::endogeneity(&d.y, &p.exog, &p.focal, &p.instruments, has_c, cov)
+            .map_err(err)?;
+        result.endogeneity = Some(EndogeneityResult {
+            control_function: test(&e.control_function),
+            durbin: test(&e.durbin),
+            wu_hausman: test(&e.wu_hausman),
+        });
     }
     if spec.diagnostics.contains(&Diagnostic::Overidentification) {
-        let o = estimate::overidentification(&d.y, &p.exog, &p.focal, &p.instruments).map_err(err)?;
-        result.overidentification = o.map(|o| OveridResult { sargan: test(&o.sargan), basmann: test(&o.basmann) });
+        let o =
+            estimate::overidentification(&d.y, &p.exog, &p.focal, &p.instruments).map_err(err)?;
+        result.overidentification = o.map(|o| OveridResult {
+            sargan: test(&o.sargan),
+            basmann: test(&o.basmann),
+        });
     }
     Ok(())
 }

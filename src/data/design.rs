@@ -46,17 +46,31 @@ pub struct Design {
 }
 
 fn column<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t [Option<f64>]> {
-    table.numeric.get(name).map(Vec::as_slice).ok_or_else(|| Error::Estimation {
-        spec: spec.id.clone(),
-        message: format!("variable `{name}` is not available in data table `{}`", table.id),
-    })
+    table
+        .numeric
+        .get(name)
+        .map(Vec::as_slice)
+        .ok_or_else(|| Error::Estimation {
+            spec: spec.id.clone(),
+            message: format!(
+                "variable `{name}` is not available in data table `{}`",
+                table.id
+            ),
+        })
 }
 
 fn labels<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t [Option<String>]> {
-    table.labels.get(name).map(Vec::as_slice).ok_or_else(|| Error::Estimation {
-        spec: spec.id.clone(),
-        message: format!("grouping column `{name}` is not available in data table `{}`", table.id),
-    })
+    table
+        .labels
+        .get(name)
+        .map(Vec::as_slice)
+        .ok_or_else(|| Error::Estimation {
+            spec: spec.id.clone(),
+            message: format!(
+                "grouping column `{name}` is not available in data table `{}`",
+                table.id
+            ),
+        })
 }
 
 /// Rows kept: in the sample and complete in every variable used.
@@ -65,25 +79,44 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
         Some((text, e)) => {
             let lookup = |n: &str| table.numeric.get(n).map(Vec::as_slice);
             e.eval(table.rows, &lookup)
-                .map_err(|err| Error::Estimation { spec: spec.id.clone(), message: format!("sample \"{text}\": {}", err.message) })?
+                .map_err(|err| Error::Estimation {
+                    spec: spec.id.clone(),
+                    message: format!("sample \"{text}\": {}", err.message),
+                })?
                 .into_iter()
                 .map(|v| v.is_some_and(|v| v != 0.0))
                 .collect()
         }
         None => vec![true; table.rows],
     };
-    let numeric: Vec<&[Option<f64>]> = used_numeric(spec).iter().map(|n| column(table, n, spec)).collect::<Result<_>>()?;
-    let groups: Vec<&[Option<String>]> = used_groups(spec).iter().map(|n| labels(table, n, spec)).collect::<Result<_>>()?;
+    let numeric: Vec<&[Option<f64>]> = used_numeric(spec)
+        .iter()
+        .map(|n| column(table, n, spec))
+        .collect::<Result<_>>()?;
+    let groups: Vec<&[Option<String>]> = used_groups(spec)
+        .iter()
+        .map(|n| labels(table, n, spec))
+        .collect::<Result<_>>()?;
     let n_sample = in_sample.iter().filter(|b| **b).count();
     let kept = (0..table.rows)
-        .filter(|&i| in_sample[i] && numeric.iter().all(|c| c[i].is_some()) && groups.iter().all(|c| c[i].is_some()))
+        .filter(|&i| {
+            in_sample[i]
+                && numeric.iter().all(|c| c[i].is_some())
+                && groups.iter().all(|c| c[i].is_some())
+        })
         .collect();
     Ok((n_sample, kept))
 }
 
 fn used_numeric(spec: &Spec) -> Vec<String> {
     let mut v = vec![spec.outcome.clone()];
-    v.extend(spec.focal().iter().chain(&spec.instruments).chain(&spec.controls).cloned());
+    v.extend(
+        spec.focal()
+            .iter()
+            .chain(&spec.instruments)
+            .chain(&spec.controls)
+            .cloned(),
+    );
     v
 }
 
@@ -96,8 +129,13 @@ fn used_groups(spec: &Spec) -> Vec<String> {
 }
 
 fn matrix(table: &Table, names: &[String], rows: &[usize], spec: &Spec) -> Result<DMatrix<f64>> {
-    let cols: Vec<&[Option<f64>]> = names.iter().map(|n| column(table, n, spec)).collect::<Result<_>>()?;
-    Ok(DMatrix::from_fn(rows.len(), names.len(), |i, j| cols[j][rows[i]].unwrap_or(f64::NAN)))
+    let cols: Vec<&[Option<f64>]> = names
+        .iter()
+        .map(|n| column(table, n, spec))
+        .collect::<Result<_>>()?;
+    Ok(DMatrix::from_fn(rows.len(), names.len(), |i, j| {
+        cols[j][rows[i]].unwrap_or(f64::NAN)
+    }))
 }
 
 /// Dense 0-based group index per kept row (groups numbered in sorted label order).
@@ -111,7 +149,10 @@ fn group_index(values: &[Option<String>], rows: &[usize]) -> (Vec<usize>, usize)
     for (i, v) in ids.values_mut().enumerate() {
         *v = i;
     }
-    let idx = rows.iter().map(|&r| values[r].as_deref().map_or(0, |v| ids[v])).collect();
+    let idx = rows
+        .iter()
+        .map(|&r| values[r].as_deref().map_or(0, |v| ids[v]))
+        .collect();
     (idx, ids.len())
 }
 
@@ -119,7 +160,12 @@ fn group_index(values: &[Option<String>], rows: &[usize]) -> (Vec<usize>, usize)
 pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
     let (n_sample, rows) = kept_rows(table, spec)?;
     let n = rows.len();
-    let y = DVector::from_iterator(n, rows.iter().map(|&r| column(table, &spec.outcome, spec).map_or(f64::NAN, |c| c[r].unwrap_or(f64::NAN))));
+    let y = DVector::from_iterator(
+        n,
+        rows.iter().map(|&r| {
+            column(table, &spec.outcome, spec).map_or(f64::NAN, |c| c[r].unwrap_or(f64::NAN))
+        }),
+    );
     let mut exog_cols: Vec<DVector<f64>> = Vec::new();
     let mut exog_names = Vec::new();
     let has_constant = spec.intercept || !spec.fixed_effects.is_empty();
@@ -131,7 +177,10 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
     for fe in &spec.fixed_effects {
         let (idx, levels) = group_index(labels(table, fe, spec)?, &rows);
         for level in 1..levels {
-            exog_cols.push(DVector::from_iterator(n, idx.iter().map(|&g| f64::from(u8::from(g == level)))));
+            exog_cols.push(DVector::from_iterator(
+                n,
+                idx.iter().map(|&g| f64::from(u8::from(g == level))),
+            ));
             exog_names.push(format!("{FE_PREFIX}{fe}#{level}"));
         }
         fixed_effects.push((fe.clone(), levels));
@@ -141,7 +190,11 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         exog_cols.push(controls.column(j).into_owned());
     }
     exog_names.extend(spec.controls.iter().cloned());
-    let exog = if exog_cols.is_empty() { DMatrix::zeros(n, 0) } else { DMatrix::from_columns(&exog_cols) };
+    let exog = if exog_cols.is_empty() {
+        DMatrix::zeros(n, 0)
+    } else {
+        DMatrix::from_columns(&exog_cols)
+    };
     let clusters = match &spec.errors {
         Errors::Cluster(by) => Some(group_index(labels(table, &by[0], spec)?, &rows)),
         _ => None,

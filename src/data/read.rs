@@ -14,7 +14,10 @@ enum RawValues {
 }
 
 fn data_err(src: &DataSource, message: impl Into<String>) -> Error {
-    Error::Data { path: src.path.clone(), message: message.into() }
+    Error::Data {
+        path: src.path.clone(),
+        message: message.into(),
+    }
 }
 
 fn read_frame(src: &DataSource) -> Result<DataFrame> {
@@ -34,7 +37,12 @@ fn read_frame(src: &DataSource) -> Result<DataFrame> {
             .map_err(PolarsError::from)
             .and_then(|f| ParquetReader::new(f).finish()),
     };
-    frame.map_err(|e| data_err(src, format!("cannot read the file as {}: {e}", format_name(src.format))))
+    frame.map_err(|e| {
+        data_err(
+            src,
+            format!("cannot read the file as {}: {e}", format_name(src.format)),
+        )
+    })
 }
 
 fn format_name(f: DataFormat) -> &'static str {
@@ -45,7 +53,9 @@ fn format_name(f: DataFormat) -> &'static str {
 }
 
 fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<RawValues>> {
-    let Ok(col) = frame.column(name) else { return Ok(None) };
+    let Ok(col) = frame.column(name) else {
+        return Ok(None);
+    };
     let series = col.as_materialized_series();
     let err = |e: PolarsError| data_err(src, format!("column `{name}`: {e}"));
     if series.dtype().is_primitive_numeric() || series.dtype() == &DataType::Boolean {
@@ -58,7 +68,11 @@ fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<
     let ca = cast.str().map_err(err)?;
     let values = (0..ca.len())
         .map(|i| ca.get(i))
-        .map(|v| v.map(str::trim).filter(|s| !s.is_empty() && !MISSING_TOKENS.contains(s)).map(String::from))
+        .map(|v| {
+            v.map(str::trim)
+                .filter(|s| !s.is_empty() && !MISSING_TOKENS.contains(s))
+                .map(String::from)
+        })
         .collect();
     Ok(Some(RawValues::Text(values)))
 }
@@ -95,7 +109,14 @@ fn to_labels(raw: RawValues) -> Vec<Option<String>> {
 fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
     let mut names = BTreeSet::new();
     for s in plan.specifications.iter().filter(|s| s.data == src.id) {
-        names.extend(s.endogenous.iter().chain(&s.instruments).chain(&s.regressors).chain(&s.controls).cloned());
+        names.extend(
+            s.endogenous
+                .iter()
+                .chain(&s.instruments)
+                .chain(&s.regressors)
+                .chain(&s.controls)
+                .cloned(),
+        );
         names.insert(s.outcome.clone());
         names.extend(s.fixed_effects.iter().cloned());
         if let crate::plan::Errors::Cluster(by) = &s.errors {
@@ -123,20 +144,44 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
     let sha256 = crate::ledger::file_sha256(&src.path)?;
     let rows = frame.height();
     if rows == 0 {
-        return Err(data_err(src, format!("[data.{}] has no rows; check that the right file is named", src.id)));
+        return Err(data_err(
+            src,
+            format!(
+                "[data.{}] has no rows; check that the right file is named",
+                src.id
+            ),
+        ));
     }
     let needed = needed_columns(plan, src);
     let mut devs = Vec::new();
-    let mut table = Table { id: src.id.clone(), path: src.path.clone(), sha256, rows, numeric: Default::default(), labels: Default::default() };
+    let mut table = Table {
+        id: src.id.clone(),
+        path: src.path.clone(),
+        sha256,
+        rows,
+        numeric: Default::default(),
+        labels: Default::default(),
+    };
     for (name, col) in &src.columns {
         let Some(raw) = raw_values(src, &frame, name)? else {
             if needed.contains(name) {
-                return Err(data_err(src, format!(
-                    "declared column `{name}` is not in the file, and the plan uses it{}",
-                    crate::plan::suggest_hint(name, frame.get_column_names().iter().map(|s| s.as_str()))
-                )));
+                return Err(data_err(
+                    src,
+                    format!(
+                        "declared column `{name}` is not in the file, and the plan uses it{}",
+                        crate::plan::suggest_hint(
+                            name,
+                            frame.get_column_names().iter().map(|s| s.as_str())
+                        )
+                    ),
+                ));
             }
-            devs.push(Deviation::new("column-missing", Severity::Deviation, format!("{}.{name}", src.id), format!("declared column `{name}` is not in the data file")));
+            devs.push(Deviation::new(
+                "column-missing",
+                Severity::Deviation,
+                format!("{}.{name}", src.id),
+                format!("declared column `{name}` is not in the data file"),
+            ));
             continue;
         };
         load_column(src, &mut table, name, col, raw, &mut devs)?;
@@ -147,26 +192,47 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
     Ok((table, devs))
 }
 
-fn load_column(src: &DataSource, table: &mut Table, name: &str, col: &Column, raw: RawValues, devs: &mut Vec<Deviation>) -> Result<()> {
+fn load_column(
+    src: &DataSource,
+    table: &mut Table,
+    name: &str,
+    col: &Column,
+    raw: RawValues,
+    devs: &mut Vec<Deviation>,
+) -> Result<()> {
     let subject = format!("{}.{name}", src.id);
     if !col.kind.is_numeric() {
         table.labels.insert(name.to_string(), to_labels(raw));
         return Ok(());
     }
     let values = to_numbers(src, name, raw)?;
-    let present = || values.iter().enumerate().filter_map(|(i, v)| v.map(|v| (i, v)));
+    let present = || {
+        values
+            .iter()
+            .enumerate()
+            .filter_map(|(i, v)| v.map(|v| (i, v)))
+    };
     let bad_kind: Vec<(usize, f64)> = match col.kind {
         ColumnKind::Binary => present().filter(|(_, v)| *v != 0.0 && *v != 1.0).collect(),
         ColumnKind::Integer => present().filter(|(_, v)| v.fract() != 0.0).collect(),
         _ => Vec::new(),
     };
     if let Some((row, v)) = bad_kind.first() {
-        devs.push(Deviation::new("column-kind", Severity::Deviation, subject.clone(), format!(
-            "column `{name}` is declared {} but {} value(s) are not (first: row {}, value {v})",
-            col.kind.name(), bad_kind.len(), row + 1
-        )));
+        devs.push(Deviation::new(
+            "column-kind",
+            Severity::Deviation,
+            subject.clone(),
+            format!(
+                "column `{name}` is declared {} but {} value(s) are not (first: row {}, value {v})",
+                col.kind.name(),
+                bad_kind.len(),
+                row + 1
+            ),
+        ));
     }
-    let outside: Vec<(usize, f64)> = present().filter(|(_, v)| col.min.is_some_and(|m| *v < m) || col.max.is_some_and(|m| *v > m)).collect();
+    let outside: Vec<(usize, f64)> = present()
+        .filter(|(_, v)| col.min.is_some_and(|m| *v < m) || col.max.is_some_and(|m| *v > m))
+        .collect();
     if let Some((row, v)) = outside.first() {
         devs.push(Deviation::new("value-out-of-range", Severity::Deviation, subject, format!(
             "{} value(s) of `{name}` lie outside the declared range [{}, {}] (first: row {}, value {v})",
@@ -174,7 +240,10 @@ fn load_column(src: &DataSource, table: &mut Table, name: &str, col: &Column, ra
         )));
     }
     if col.kind.is_grouping() {
-        table.labels.insert(name.to_string(), values.iter().map(|x| x.map(|x| format!("{x}"))).collect());
+        table.labels.insert(
+            name.to_string(),
+            values.iter().map(|x| x.map(|x| format!("{x}"))).collect(),
+        );
     }
     table.numeric.insert(name.to_string(), values);
     Ok(())
@@ -186,16 +255,35 @@ fn bound(b: Option<f64>) -> String {
 
 /// Sort all columns by `order_by` (numeric ascending, or text order for labels).
 fn order_rows(src: &DataSource, table: &mut Table) -> Result<()> {
-    let Some(by) = &src.order_by else { return Ok(()) };
+    let Some(by) = &src.order_by else {
+        return Ok(());
+    };
     let keys: Vec<Option<f64>> = match table.numeric.get(by) {
         Some(v) => v.clone(),
-        None => return Err(data_err(src, format!("order_by column `{by}` must be numeric (number, integer or binary) to order rows"))),
+        None => {
+            return Err(data_err(
+                src,
+                format!(
+                "order_by column `{by}` must be numeric (number, integer or binary) to order rows"
+            ),
+            ))
+        }
     };
     if let Some(i) = keys.iter().position(Option::is_none) {
-        return Err(data_err(src, format!("order_by column `{by}` is missing in row {}; every row needs a position", i + 1)));
+        return Err(data_err(
+            src,
+            format!(
+                "order_by column `{by}` is missing in row {}; every row needs a position",
+                i + 1
+            ),
+        ));
     }
     let mut idx: Vec<usize> = (0..table.rows).collect();
-    idx.sort_by(|&a, &b| keys[a].partial_cmp(&keys[b]).unwrap_or(std::cmp::Ordering::Equal));
+    idx.sort_by(|&a, &b| {
+        keys[a]
+            .partial_cmp(&keys[b])
+            .unwrap_or(std::cmp::Ordering::Equal)
+    });
     for v in table.numeric.values_mut() {
         *v = idx.iter().map(|&i| v[i]).collect();
     }
@@ -208,29 +296,55 @@ fn order_rows(src: &DataSource, table: &mut Table) -> Result<()> {
 fn check_rows_and_key(src: &DataSource, table: &Table, devs: &mut Vec<Deviation>) {
     let n = table.rows as i64;
     if src.rows_min.is_some_and(|m| n < m) || src.rows_max.is_some_and(|m| n > m) {
-        devs.push(Deviation::new("rows-out-of-range", Severity::Deviation, src.id.clone(), format!(
-            "[data.{}] has {n} rows; the plan expected between {} and {}",
-            src.id, src.rows_min.map_or("0".into(), |v| v.to_string()), src.rows_max.map_or("any number".into(), |v| v.to_string())
-        )));
+        devs.push(Deviation::new(
+            "rows-out-of-range",
+            Severity::Deviation,
+            src.id.clone(),
+            format!(
+                "[data.{}] has {n} rows; the plan expected between {} and {}",
+                src.id,
+                src.rows_min.map_or("0".into(), |v| v.to_string()),
+                src.rows_max.map_or("any number".into(), |v| v.to_string())
+            ),
+        ));
     }
     let Some(key) = &src.key else { return };
-    let Some(labels) = table.labels.get(key) else { return };
+    let Some(labels) = table.labels.get(key) else {
+        return;
+    };
     let missing = labels.iter().filter(|v| v.is_none()).count();
     if missing > 0 {
-        devs.push(Deviation::new("key-missing", Severity::Deviation, format!("{}.{key}", src.id), format!("key `{key}` is missing in {missing} row(s)")));
+        devs.push(Deviation::new(
+            "key-missing",
+            Severity::Deviation,
+            format!("{}.{key}", src.id),
+            format!("key `{key}` is missing in {missing} row(s)"),
+        ));
     }
     let mut seen = BTreeSet::new();
-    let dups: Vec<&String> = labels.iter().flatten().filter(|v| !seen.insert(v.as_str())).collect();
+    let dups: Vec<&String> = labels
+        .iter()
+        .flatten()
+        .filter(|v| !seen.insert(v.as_str()))
+        .collect();
     if let Some(first) = dups.first() {
-        devs.push(Deviation::new("key-duplicate", Severity::Deviation, format!("{}.{key}", src.id), format!(
-            "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{first}`)", dups.len()
-        )));
+        devs.push(Deviation::new(
+            "key-duplicate",
+            Severity::Deviation,
+            format!("{}.{key}", src.id),
+            format!(
+                "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{first}`)",
+                dups.len()
+            ),
+        ));
     }
 }
 
 fn derive_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()> {
     for d in &plan.derive {
-        if !d.expr.names().iter().all(|n| table.numeric.contains_key(n)) || (d.expr.uses_lag() && src.order_by.is_none()) {
+        if !d.expr.names().iter().all(|n| table.numeric.contains_key(n))
+            || (d.expr.uses_lag() && src.order_by.is_none())
+        {
             continue;
         }
         let values = {
@@ -238,7 +352,15 @@ fn derive_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()
             let lookup = |name: &str| numeric.get(name).map(Vec::as_slice);
             d.expr.eval(table.rows, &lookup)
         }
-        .map_err(|e| data_err(src, format!("derived variable `{}` = \"{}\": {}", d.name, d.text, e.message)))?;
+        .map_err(|e| {
+            data_err(
+                src,
+                format!(
+                    "derived variable `{}` = \"{}\": {}",
+                    d.name, d.text, e.message
+                ),
+            )
+        })?;
         table.numeric.insert(d.name.clone(), values);
     }
     Ok(())

@@ -26,7 +26,14 @@ impl Stream {
     }
 }
 
-const DISTRICTS: [&str; 6] = ["harbour", "hillside", "market", "orchard", "riverside", "station"];
+const DISTRICTS: [&str; 6] = [
+    "harbour",
+    "hillside",
+    "market",
+    "orchard",
+    "riverside",
+    "station",
+];
 const BLOCKS_PER_DISTRICT: usize = 12;
 const HOUSEHOLDS_PER_BLOCK: usize = 32;
 
@@ -37,13 +44,19 @@ const HOUSEHOLDS_PER_BLOCK: usize = 32;
 /// so painting is endogenous. True effect of painting: −1.8 °C; on a clinic visit: −0.06.
 pub fn cool_roofs_csv() -> String {
     let mut s = Stream(20_260_501);
-    let mut out = String::from("hh_id,district,block,offer,painted,temp_c,clinic_visit,kwh,roof_m2,storeys\n");
+    let mut out = String::from(
+        "hh_id,district,block,offer,painted,temp_c,clinic_visit,kwh,roof_m2,storeys\n",
+    );
     let mut hh = 0;
     for (d, district) in DISTRICTS.iter().enumerate() {
         let district_effect = [0.0, -0.6, 0.9, -0.3, 0.4, 0.7][d];
-        let mut order: Vec<(f64, usize)> = (0..BLOCKS_PER_DISTRICT).map(|b| (s.uniform(), b)).collect();
+        let mut order: Vec<(f64, usize)> =
+            (0..BLOCKS_PER_DISTRICT).map(|b| (s.uniform(), b)).collect();
         order.sort_by(|a, b| a.0.total_cmp(&b.0));
-        let offered: Vec<usize> = order[..BLOCKS_PER_DISTRICT / 2].iter().map(|x| x.1).collect();
+        let offered: Vec<usize> = order[..BLOCKS_PER_DISTRICT / 2]
+            .iter()
+            .map(|x| x.1)
+            .collect();
         for b in 0..BLOCKS_PER_DISTRICT {
             let block = format!("{}-{:02}", &district[..3], b + 1);
             let offer = u8::from(offered.contains(&b));
@@ -56,11 +69,19 @@ pub fn cool_roofs_csv() -> String {
                 let take_up = -1.1 + 1.5 * f64::from(offer) + 0.8 * u + 0.004 * (roof - 85.0);
                 let painted = u8::from(take_up + s.normal() > 0.0);
                 let p = f64::from(painted);
-                let temp = 30.0 + district_effect + block_effect + 1.4 * u - 1.8 * p + 0.012 * (roof - 85.0) + 0.35 * f64::from(storeys) + 1.1 * s.normal();
+                let temp = 30.0 + district_effect + block_effect + 1.4 * u - 1.8 * p
+                    + 0.012 * (roof - 85.0)
+                    + 0.35 * f64::from(storeys)
+                    + 1.1 * s.normal();
                 let visit_p = (0.22 + 0.07 * u - 0.06 * p + 0.02 * (temp - 31.0)).clamp(0.01, 0.95);
                 let visit = u8::from(s.uniform() < visit_p);
-                let kwh = (410.0 + 3.1 * (roof - 85.0) + 25.0 * u - 30.0 * p + 40.0 * s.normal()).max(40.0);
-                let temp_text = if s.uniform() < 0.02 { String::new() } else { format!("{temp:.2}") };
+                let kwh = (410.0 + 3.1 * (roof - 85.0) + 25.0 * u - 30.0 * p + 40.0 * s.normal())
+                    .max(40.0);
+                let temp_text = if s.uniform() < 0.02 {
+                    String::new()
+                } else {
+                    format!("{temp:.2}")
+                };
                 let _ = writeln!(out, "H{hh:05},{district},{block},{offer},{painted},{temp_text},{visit},{kwh:.1},{roof:.1},{storeys}");
             }
         }
@@ -76,7 +97,9 @@ pub fn grid_demand_csv() -> String {
     let mut price = 60.0;
     for week in 1..=156 {
         let season = (std::f64::consts::TAU * f64::from(week) / 52.0).sin();
-        let cooling_days = (3.5 + 3.0 * season + 0.8 * s.normal()).clamp(0.0, 7.0).round();
+        let cooling_days = (3.5 + 3.0 * season + 0.8 * s.normal())
+            .clamp(0.0, 7.0)
+            .round();
         let shock = 9.0 * s.normal();
         price = 18.0 + 0.7 * price + 0.35 * shock + 2.5 * s.normal();
         let demand = 900.0 - 2.5 * price + 14.0 * cooling_days + shock;

@@ -22,8 +22,14 @@ use std::path::Path;
 
 /// The demo plans, as committed in `plans/`.
 pub const PLANS: [(&str, &str); 2] = [
-    ("plans/cool-roofs.toml", include_str!("../../plans/cool-roofs.toml")),
-    ("plans/grid-demand.toml", include_str!("../../plans/grid-demand.toml")),
+    (
+        "plans/cool-roofs.toml",
+        include_str!("../../plans/cool-roofs.toml"),
+    ),
+    (
+        "plans/grid-demand.toml",
+        include_str!("../../plans/grid-demand.toml"),
+    ),
 ];
 
 /// The demo data files: path and generated content.
@@ -37,7 +43,8 @@ pub fn data_files() -> Vec<(&'static str, String)> {
 fn write(dir: &Path, rel: &str, text: &str) -> Result<()> {
     let path = dir.join(rel);
     if let Some(parent) = path.parent() {
-        std::fs::create_dir_all(parent).map_err(|e| Error::io(parent, "cannot create the demo folder", e))?;
+        std::fs::create_dir_all(parent)
+            .map_err(|e| Error::io(parent, "cannot create the demo folder", e))?;
     }
     crate::ledger::write_atomic(&path, text.as_bytes())
 }
@@ -48,7 +55,8 @@ pub fn run_demo(dir: &Path) -> Result<app::Outcome> {
         write(dir, rel, text)?;
         let ledger = crate::ledger::ledger_path(&dir.join(rel));
         if ledger.exists() {
-            std::fs::remove_file(&ledger).map_err(|e| Error::io(&ledger, "cannot replace the demo ledger", e))?;
+            std::fs::remove_file(&ledger)
+                .map_err(|e| Error::io(&ledger, "cannot replace the demo ledger", e))?;
         }
     }
     for (rel, text) in data_files() {
@@ -58,7 +66,11 @@ pub fn run_demo(dir: &Path) -> Result<app::Outcome> {
     for (rel, _) in PLANS {
         let plan = dir.join(rel);
         app::seal(&plan)?;
-        let stem = plan.file_stem().and_then(|s| s.to_str()).unwrap_or("plan").to_string();
+        let stem = plan
+            .file_stem()
+            .and_then(|s| s.to_str())
+            .unwrap_or("plan")
+            .to_string();
         let (_, out) = app::run(&plan, Some(&dir.join("out").join(stem)), false)?;
         reports.push(out.join("report.md"));
         println!();
@@ -67,6 +79,9 @@ pub fn run_demo(dir: &Path) -> Result<app::Outcome> {
     for r in reports {
         println!("report: {}", r.display());
     }
-    println!("check a run with: sworn verify {}", dir.join("out").join("cool-roofs").display());
+    println!(
+        "check a run with: sworn verify {}",
+        dir.join("out").join("cool-roofs").display()
+    );
     Ok(app::Outcome::Success)
 }

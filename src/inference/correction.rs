@@ -52,7 +52,13 @@ pub fn adjust(p_values: &[f64], correction: Correction) -> Vec<f64> {
 
 /// Indices that sort the p-values ascending (NaN read as 1), stable for ties.
 fn ascending_order(p_values: &[f64]) -> Vec<usize> {
-    let key = |i: usize| if p_values[i].is_nan() { 1.0 } else { p_values[i] };
+    let key = |i: usize| {
+        if p_values[i].is_nan() {
+            1.0
+        } else {
+            p_values[i]
+        }
+    };
     let mut order: Vec<usize> = (0..p_values.len()).collect();
     order.sort_by(|&i, &j| key(i).total_cmp(&key(j)));
     order
@@ -64,7 +70,11 @@ fn step_down(p_values: &[f64]) -> Vec<f64> {
     let mut adjusted = vec![f64::NAN; m];
     let mut running = 0.0_f64;
     for (rank, &i) in ascending_order(p_values).iter().enumerate() {
-        let p = if p_values[i].is_nan() { 1.0 } else { p_values[i] };
+        let p = if p_values[i].is_nan() {
+            1.0
+        } else {
+            p_values[i]
+        };
         running = running.max(((m - rank) as f64 * p).min(1.0));
         adjusted[i] = running;
     }
@@ -77,7 +87,11 @@ fn step_up(p_values: &[f64]) -> Vec<f64> {
     let mut adjusted = vec![f64::NAN; m];
     let mut running = 1.0_f64;
     for (rank, &i) in ascending_order(p_values).iter().enumerate().rev() {
-        let p = if p_values[i].is_nan() { 1.0 } else { p_values[i] };
+        let p = if p_values[i].is_nan() {
+            1.0
+        } else {
+            p_values[i]
+        };
         running = running.min(m as f64 * p / (rank + 1) as f64);
         adjusted[i] = running;
     }

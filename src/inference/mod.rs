@@ -94,7 +94,7 @@ pub fn test_p_value(t: &TestStatistic) -> f64 {
 /// so that estimate ± q·se covers with probability `level`. NaN for a level outside (0, 1)
 /// or a reference that is not symmetric about 0.
 pub fn critical_value(reference: &Reference, level: f64) -> f64 {
-    if !is_symmetric(reference) || !(level > 0.0 && level < 1.0) {
+    if !(is_symmetric(reference) && level > 0.0 && level < 1.0) {
         return f64::NAN;
     }
     // (1 + level)/2 rounds; its complement (1 - level)/2 is exact for level ≥ ½, and the
@@ -108,9 +108,14 @@ pub fn critical_value(reference: &Reference, level: f64) -> f64 {
 /// # Formula
 /// [β̂ - q se, β̂ + q se], the Wald interval. NaN bounds for a negative or NaN standard
 /// error and in the cases where [`critical_value`] is NaN.
-pub fn confidence_interval(estimate: f64, std_error: f64, reference: &Reference, level: f64) -> [f64; 2] {
+pub fn confidence_interval(
+    estimate: f64,
+    std_error: f64,
+    reference: &Reference,
+    level: f64,
+) -> [f64; 2] {
     let q = critical_value(reference, level);
-    if !(std_error >= 0.0) || q.is_nan() {
+    if std_error.is_nan() || std_error < 0.0 || q.is_nan() {
         return [f64::NAN, f64::NAN];
     }
     let half_width = q * std_error;

@@ -5,9 +5,11 @@
 //! search always ends with the representable x whose computed tail is nearest the target.
 //! The search compares log tails, so targets far below the smallest normal `f64` work too.
 //!
-//! Invariants: monotone in p; for the symmetric references quantile(1 - p) = -quantile(p)
-//! exactly; p = 0 and p = 1 give the ends of the support; p outside [0, 1], NaN p or an
-//! invalid reference give NaN.
+//! Invariants: the result is the representable x nearest the quantile of the computed
+//! tails; for the symmetric references the search runs on the smaller tail and the sign is
+//! applied after, so quantile(1 - p) = -quantile(p) whenever 1 - p is exact; p = 0 and
+//! p = 1 give the ends of the support; p outside [0, 1], NaN p or an invalid reference give
+//! NaN. An exact quantile below the smallest subnormal comes out as that subnormal.
 
 use super::tails::{is_valid, ln_lower_tail, ln_upper_tail};
 use crate::distribution::Reference;
@@ -28,6 +30,13 @@ enum Side {
 pub fn quantile(reference: &Reference, p: f64) -> f64 {
     if !is_valid(reference) || !(0.0..=1.0).contains(&p) {
         return f64::NAN;
+    }
+    let symmetric = matches!(reference, Reference::Normal | Reference::StudentT { .. });
+    if p == 0.0 {
+        return if symmetric { f64::NEG_INFINITY } else { 0.0 };
+    }
+    if p == 1.0 {
+        return f64::INFINITY;
     }
     match *reference {
         Reference::Normal | Reference::StudentT { .. } => symmetric_quantile(reference, p),

@@ -37,11 +37,9 @@ fn to_json(v: &toml::Value) -> Json {
         toml::Value::Boolean(b) => Json::Bool(*b),
         toml::Value::Datetime(d) => Json::String(d.to_string()),
         toml::Value::Array(a) => Json::Array(a.iter().map(to_json).collect()),
-        toml::Value::Table(t) => Json::Object(
-            t.iter()
-                .map(|(k, v)| (k.clone(), to_json(v)))
-                .collect(),
-        ),
+        toml::Value::Table(t) => {
+            Json::Object(t.iter().map(|(k, v)| (k.clone(), to_json(v))).collect())
+        }
     }
 }
 
@@ -116,7 +114,11 @@ fn diff(a: &Json, b: &Json, path: String, out: &mut Vec<String>) {
         (Json::Array(x), Json::Array(y)) if all_have_ids(x) && all_have_ids(y) => {
             diff_by_id(x, y, &path, out)
         }
-        _ if a != b => out.push(if path.is_empty() { "(root)".into() } else { path }),
+        _ if a != b => out.push(if path.is_empty() {
+            "(root)".into()
+        } else {
+            path
+        }),
         _ => {}
     }
 }
@@ -143,7 +145,11 @@ fn diff_by_id(x: &[Json], y: &[Json], path: &str, out: &mut Vec<String>) {
     for id in ids_y.iter().filter(|id| !ids_x.contains(id)) {
         out.push(format!("{path}[{id}]"));
     }
-    if ids_x.iter().filter(|id| ids_y.contains(id)).ne(ids_y.iter().filter(|id| ids_x.contains(id))) {
+    if ids_x
+        .iter()
+        .filter(|id| ids_y.contains(id))
+        .ne(ids_y.iter().filter(|id| ids_x.contains(id)))
+    {
         out.push(format!("{path} (order)"));
     }
 }
@@ -170,7 +176,11 @@ mod tests {
         let b = canon("[[specification]]\nid = \"s1\"\noutcome = \"w\"\n[[specification]]\nid = \"s3\"\noutcome = \"z\"\n");
         assert_eq!(
             changed_keys(&a, &b),
-            vec!["specification[s1].outcome", "specification[s2]", "specification[s3]"]
+            vec![
+                "specification[s1].outcome",
+                "specification[s2]",
+                "specification[s3]"
+            ]
         );
     }
 

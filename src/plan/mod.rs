@@ -18,8 +18,8 @@ use std::path::PathBuf;
 
 pub use source::SourceMap;
 pub use suggest::{closest, hint as suggest_hint};
-pub use validate_spec::spec_terms;
 pub use validate::load;
+pub use validate_spec::spec_terms;
 
 /// A validated plan.
 #[derive(Debug, Clone)]
@@ -146,7 +146,10 @@ impl ColumnKind {
 
     /// Whether values of this kind can enter a regression as numbers.
     pub fn is_numeric(self) -> bool {
-        matches!(self, ColumnKind::Binary | ColumnKind::Number | ColumnKind::Integer)
+        matches!(
+            self,
+            ColumnKind::Binary | ColumnKind::Number | ColumnKind::Integer
+        )
     }
 
     /// Whether values of this kind can label groups (fixed effects, clusters).

@@ -24,7 +24,7 @@ pub struct RawPlan {
     pub data: BTreeMap<Spanned<String>, Spanned<RawData>>,
     /// Derived variables in document order.
     #[serde(default, deserialize_with = "ordered_pairs")]
-    pub derive: Vec<(Spanned<String>, Spanned<String>)>,
+    pub derive: Vec<SpannedPair>,
     /// How the instrument was randomized.
     pub assignment: Option<Spanned<RawAssignment>>,
     /// The specifications, in document order.
@@ -230,18 +230,24 @@ pub struct RawTable {
     pub stars: bool,
 }
 
+/// A `name = "text"` entry with both spans kept.
+pub type SpannedPair = (Spanned<String>, Spanned<String>);
+
 /// Deserialize a TOML table into its entries in document order.
-fn ordered_pairs<'de, D>(d: D) -> Result<Vec<(Spanned<String>, Spanned<String>)>, D::Error>
+fn ordered_pairs<'de, D>(d: D) -> Result<Vec<SpannedPair>, D::Error>
 where
     D: Deserializer<'de>,
 {
     struct Pairs;
     impl<'de> serde::de::Visitor<'de> for Pairs {
-        type Value = Vec<(Spanned<String>, Spanned<String>)>;
+        type Value = Vec<SpannedPair>;
         fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
             f.write_str("a table of name = \"expression\" entries")
         }
-        fn visit_map<A: serde::de::MapAccess<'de>>(self, mut map: A) -> Result<Self::Value, A::Error> {
+        fn visit_map<A: serde::de::MapAccess<'de>>(
+            self,
+            mut map: A,
+        ) -> Result<Self::Value, A::Error> {
             let mut out = Vec::new();
             while let Some(entry) = map.next_entry()? {
                 out.push(entry);

@@ -24,7 +24,12 @@ pub(super) struct Ctx {
 
 impl Ctx {
     /// An error at a byte span of the plan.
-    pub fn err(&self, span: Range<usize>, key: impl Into<String>, message: impl Into<String>) -> Error {
+    pub fn err(
+        &self,
+        span: Range<usize>,
+        key: impl Into<String>,
+        message: impl Into<String>,
+    ) -> Error {
         let (line, column) = self.map.position(span.start);
         Error::Plan {
             path: self.path.clone(),
@@ -36,7 +41,12 @@ impl Ctx {
     }
 
     /// An error at a spanned value.
-    pub fn at<T>(&self, v: &Spanned<T>, key: impl Into<String>, message: impl Into<String>) -> Error {
+    pub fn at<T>(
+        &self,
+        v: &Spanned<T>,
+        key: impl Into<String>,
+        message: impl Into<String>,
+    ) -> Error {
         self.err(v.span(), key, message)
     }
 
@@ -45,7 +55,11 @@ impl Ctx {
         if allowed.contains(&v.get_ref().as_str()) {
             return Ok(());
         }
-        let list = allowed.iter().map(|a| format!("`{a}`")).collect::<Vec<_>>().join(", ");
+        let list = allowed
+            .iter()
+            .map(|a| format!("`{a}`"))
+            .collect::<Vec<_>>()
+            .join(", ");
         Err(self.at(
             v,
             key,
@@ -70,8 +84,10 @@ impl Ctx {
 
 /// Read, parse and validate the plan at `path`.
 pub fn load(path: &Path) -> Result<Plan> {
-    let text = std::fs::read_to_string(path).map_err(|e| Error::io(path, "cannot read the plan", e))?;
-    let path = std::path::absolute(path).map_err(|e| Error::io(path, "cannot resolve the plan path", e))?;
+    let text =
+        std::fs::read_to_string(path).map_err(|e| Error::io(path, "cannot read the plan", e))?;
+    let path = std::path::absolute(path)
+        .map_err(|e| Error::io(path, "cannot resolve the plan path", e))?;
     let ctx = Ctx {
         path: path.clone(),
         map: SourceMap::new(&text),
@@ -96,10 +112,14 @@ fn parse_message(message: &str) -> String {
 
 fn build(ctx: &Ctx, raw: RawPlan, text: String) -> Result<Plan> {
     if *raw.format.get_ref() != 1 {
-        return Err(ctx.at(&raw.format, "format", format!(
-            "plan format {} is not supported; this version of sworn reads format 1",
-            raw.format.get_ref()
-        )));
+        return Err(ctx.at(
+            &raw.format,
+            "format",
+            format!(
+                "plan format {} is not supported; this version of sworn reads format 1",
+                raw.format.get_ref()
+            ),
+        ));
     }
     if let Some(c) = raw.contingencies.first() {
         return Err(ctx.at(c, "contingency", "[[contingency]] decision rules are not supported by this version of sworn yet; remove them or run a version that supports them"));
@@ -176,7 +196,11 @@ pub(super) fn distribution(ctx: &Ctx, d: &Spanned<String>, key: &str) -> Result<
 
 fn data_sources(ctx: &Ctx, raw: &RawPlan) -> Result<BTreeMap<String, DataSource>> {
     if raw.data.is_empty() {
-        return Err(ctx.err(0..0, "data", "the plan declares no data; add a [data.NAME] table with a path and its columns"));
+        return Err(ctx.err(
+            0..0,
+            "data",
+            "the plan declares no data; add a [data.NAME] table with a path and its columns",
+        ));
     }
     let base = ctx.path.parent().map(Path::to_path_buf).unwrap_or_default();
     let mut out = BTreeMap::new();
@@ -206,7 +230,10 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
     };
     let mut columns = BTreeMap::new();
     for (name, c) in &d.columns {
-        columns.insert(name.get_ref().clone(), column(ctx, name, c, &key("columns"))?);
+        columns.insert(
+            name.get_ref().clone(),
+            column(ctx, name, c, &key("columns"))?,
+        );
     }
     let (rows_min, rows_max) = match &d.rows {
         Some(r) => {
@@ -232,7 +259,11 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
     let order_by = declared(&d.order_by, "order_by")?;
     let max_missing_share = match &d.max_missing_share {
         Some(s) if !(0.0..=1.0).contains(s.get_ref()) => {
-            return Err(ctx.at(s, key("max_missing_share"), "max_missing_share must lie between 0 and 1"))
+            return Err(ctx.at(
+                s,
+                key("max_missing_share"),
+                "max_missing_share must lie between 0 and 1",
+            ))
         }
         Some(s) => Some(*s.get_ref()),
         None => None,
@@ -254,10 +285,18 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
 fn column(ctx: &Ctx, name: &Spanned<String>, c: &Spanned<RawColumn>, key: &str) -> Result<Column> {
     let key = format!("{key}.{}", name.get_ref());
     if name.get_ref() == "intercept" {
-        return Err(ctx.at(name, key, "`intercept` is reserved for the constant term; rename the column"));
+        return Err(ctx.at(
+            name,
+            key,
+            "`intercept` is reserved for the constant term; rename the column",
+        ));
     }
     let raw = c.get_ref();
-    ctx.one_of(&raw.kind, &format!("{key}.kind"), &["id", "category", "binary", "number", "integer"])?;
+    ctx.one_of(
+        &raw.kind,
+        &format!("{key}.kind"),
+        &["id", "category", "binary", "number", "integer"],
+    )?;
     let kind = match raw.kind.get_ref().as_str() {
         "id" => ColumnKind::Id,
         "category" => ColumnKind::Category,
@@ -279,7 +318,9 @@ fn column(ctx: &Ctx, name: &Spanned<String>, c: &Spanned<RawColumn>, key: &str) 
 /// A valid variable name: letters, digits and underscores, not starting with a digit.
 pub(super) fn is_identifier(name: &str) -> bool {
     let mut chars = name.chars();
-    chars.next().is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
+    chars
+        .next()
+        .is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
         && chars.all(|c| c.is_ascii_alphanumeric() || c == '_')
 }
 
@@ -288,11 +329,20 @@ fn derived(ctx: &Ctx, raw: &RawPlan, data: &BTreeMap<String, DataSource>) -> Res
     for (name, text) in &raw.derive {
         let key = format!("derive.{}", name.get_ref());
         let n = name.get_ref();
-        if !is_identifier(n) || n == "intercept" || ["and", "or", "not", "if"].contains(&n.as_str()) {
-            return Err(ctx.at(name, key, format!("`{n}` cannot name a variable; use letters, digits and underscores")));
+        if !is_identifier(n) || n == "intercept" || ["and", "or", "not", "if"].contains(&n.as_str())
+        {
+            return Err(ctx.at(
+                name,
+                key,
+                format!("`{n}` cannot name a variable; use letters, digits and underscores"),
+            ));
         }
         if out.iter().any(|d| &d.name == n) || data.values().any(|t| t.columns.contains_key(n)) {
-            return Err(ctx.at(name, key, format!("`{n}` is already a column or derived variable; choose another name")));
+            return Err(ctx.at(
+                name,
+                key,
+                format!("`{n}` is already a column or derived variable; choose another name"),
+            ));
         }
         let parsed = expr::parse(text.get_ref()).map_err(|e| expr_error(ctx, text, &key, &e))?;
         check_expr_names(ctx, text, &key, &parsed, data, &out)?;
@@ -306,9 +356,18 @@ fn derived(ctx: &Ctx, raw: &RawPlan, data: &BTreeMap<String, DataSource>) -> Res
 }
 
 /// Point an expression error at its place inside the string value.
-pub(super) fn expr_error(ctx: &Ctx, text: &Spanned<String>, key: &str, e: &expr::ExprError) -> Error {
+pub(super) fn expr_error(
+    ctx: &Ctx,
+    text: &Spanned<String>,
+    key: &str,
+    e: &expr::ExprError,
+) -> Error {
     let start = text.span().start + 1 + e.offset.unwrap_or(0);
-    ctx.err(start..start, key, format!("in expression \"{}\": {}", text.get_ref(), e.message))
+    ctx.err(
+        start..start,
+        key,
+        format!("in expression \"{}\": {}", text.get_ref(), e.message),
+    )
 }
 
 /// Names available in table `t`: its numeric declared columns, then derived variables whose
@@ -321,7 +380,9 @@ pub(super) fn available(t: &DataSource, derive: &[Derived]) -> BTreeSet<String> 
         .map(|(n, _)| n.clone())
         .collect();
     for d in derive {
-        if d.expr.names().iter().all(|n| names.contains(n)) && (!d.expr.uses_lag() || t.order_by.is_some()) {
+        if d.expr.names().iter().all(|n| names.contains(n))
+            && (!d.expr.uses_lag() || t.order_by.is_some())
+        {
             names.insert(d.name.clone());
         }
     }
@@ -345,7 +406,10 @@ fn check_expr_names(
     }
     let all: BTreeSet<String> = data.values().flat_map(|t| available(t, earlier)).collect();
     for n in e.names() {
-        if let Some((t, c)) = data.values().find_map(|t| t.columns.get(&n).map(|c| (t, c))) {
+        if let Some((t, c)) = data
+            .values()
+            .find_map(|t| t.columns.get(&n).map(|c| (t, c)))
+        {
             if !c.kind.is_numeric() {
                 return Err(ctx.at(text, key, format!(
                     "`{n}` in [data.{}] is of kind {}; expressions work on numeric columns (number, integer, binary)",
@@ -353,11 +417,15 @@ fn check_expr_names(
                 )));
             }
         } else if !all.contains(&n) {
-            return Err(ctx.at(text, key, format!(
-                "unknown name `{n}` in expression \"{}\"{}",
-                text.get_ref(),
-                hint(&n, all.iter().map(String::as_str))
-            )));
+            return Err(ctx.at(
+                text,
+                key,
+                format!(
+                    "unknown name `{n}` in expression \"{}\"{}",
+                    text.get_ref(),
+                    hint(&n, all.iter().map(String::as_str))
+                ),
+            ));
         }
     }
     Err(ctx.at(text, key, if e.uses_lag() {

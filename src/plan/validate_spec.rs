@@ -4,7 +4,9 @@
 use super::raw::{RawPlan, RawSpec};
 use super::suggest::hint;
 use super::validate::{available, distribution, expr_error, Ctx};
-use super::{Assignment, DataSource, Diagnostic, Errors, Estimator, Family, Hypothesis, Plan, Spec, Table};
+use super::{
+    Assignment, DataSource, Diagnostic, Errors, Estimator, Family, Hypothesis, Plan, Spec, Table,
+};
 use crate::error::Result;
 use crate::expr;
 use crate::inference::{Correction, Direction};
@@ -16,11 +18,22 @@ fn unknown<'a>(what: &str, name: &str, known: impl IntoIterator<Item = &'a str>)
 }
 
 /// Check that ids are unique.
-fn unique<'a>(ctx: &Ctx, ids: impl IntoIterator<Item = &'a Spanned<String>>, what: &str) -> Result<()> {
+fn unique<'a>(
+    ctx: &Ctx,
+    ids: impl IntoIterator<Item = &'a Spanned<String>>,
+    what: &str,
+) -> Result<()> {
     let mut seen = BTreeSet::new();
     for id in ids {
         if !seen.insert(id.get_ref().as_str()) {
-            return Err(ctx.at(id, what, format!("{what} id `{}` is used twice; ids must be unique", id.get_ref())));
+            return Err(ctx.at(
+                id,
+                what,
+                format!(
+                    "{what} id `{}` is used twice; ids must be unique",
+                    id.get_ref()
+                ),
+            ));
         }
     }
     Ok(())
@@ -28,10 +41,20 @@ fn unique<'a>(ctx: &Ctx, ids: impl IntoIterator<Item = &'a Spanned<String>>, wha
 
 /// The `[assignment]` table.
 pub(super) fn assignment(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Assignment>> {
-    let Some(a) = &raw.assignment else { return Ok(None) };
+    let Some(a) = &raw.assignment else {
+        return Ok(None);
+    };
     let a = a.get_ref();
-    ctx.one_of(&a.design, "assignment.design", &["complete", "blocked", "clustered", "blocked-clustered"])?;
-    let all: BTreeSet<&str> = plan.data.values().flat_map(|t| t.columns.keys().map(String::as_str)).collect();
+    ctx.one_of(
+        &a.design,
+        "assignment.design",
+        &["complete", "blocked", "clustered", "blocked-clustered"],
+    )?;
+    let all: BTreeSet<&str> = plan
+        .data
+        .values()
+        .flat_map(|t| t.columns.keys().map(String::as_str))
+        .collect();
     let check = |v: &Spanned<String>, key: &str| {
         if all.contains(v.get_ref().as_str()) {
             Ok(v.get_ref().clone())
@@ -42,7 +65,11 @@ pub(super) fn assignment(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option
     let needs = |v: &Option<Spanned<String>>, key: &str, needed: bool| -> Result<Option<String>> {
         match v {
             Some(v) => check(v, key).map(Some),
-            None if needed => Err(ctx.at(&a.design, key, format!("design `{}` needs `{key}`", a.design.get_ref()))),
+            None if needed => Err(ctx.at(
+                &a.design,
+                key,
+                format!("design `{}` needs `{key}`", a.design.get_ref()),
+            )),
             None => Ok(None),
         }
     };
@@ -51,17 +78,32 @@ pub(super) fn assignment(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option
         variable: check(&a.variable, "assignment.variable")?,
         design: design.clone(),
         blocks: needs(&a.blocks, "assignment.blocks", design.contains("blocked"))?,
-        clusters: needs(&a.clusters, "assignment.clusters", design.contains("clustered"))?,
+        clusters: needs(
+            &a.clusters,
+            "assignment.clusters",
+            design.contains("clustered"),
+        )?,
     }))
 }
 
 /// All `[[specification]]` entries.
 pub(super) fn specifications(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Spec>> {
     if raw.specifications.is_empty() {
-        return Err(ctx.err(0..0, "specification", "the plan has no [[specification]]; declare at least one"));
+        return Err(ctx.err(
+            0..0,
+            "specification",
+            "the plan has no [[specification]]; declare at least one",
+        ));
     }
-    unique(ctx, raw.specifications.iter().map(|s| &s.get_ref().id), "specification")?;
-    raw.specifications.iter().map(|s| specification(ctx, s.get_ref(), plan)).collect()
+    unique(
+        ctx,
+        raw.specifications.iter().map(|s| &s.get_ref().id),
+        "specification",
+    )?;
+    raw.specifications
+        .iter()
+        .map(|s| specification(ctx, s.get_ref(), plan))
+        .collect()
 }
 
 fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
@@ -69,7 +111,11 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
     let key = |k: &str| format!("specification[{id}].{k}");
     let table = spec_table(ctx, s, plan, &key("data"))?;
     ctx.one_of(&s.estimator, &key("estimator"), &["ols", "2sls"])?;
-    let estimator = if s.estimator.get_ref() == "ols" { Estimator::Ols } else { Estimator::Tsls };
+    let estimator = if s.estimator.get_ref() == "ols" {
+        Estimator::Ols
+    } else {
+        Estimator::Tsls
+    };
     let names = available(table, &plan.derive);
     let numeric = |v: &Spanned<String>, k: &str| -> Result<String> {
         let n = v.get_ref();
@@ -86,7 +132,9 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
         };
         Err(ctx.at(v, key(k), message))
     };
-    let list = |vs: &[Spanned<String>], k: &str| vs.iter().map(|v| numeric(v, k)).collect::<Result<Vec<_>>>();
+    let list = |vs: &[Spanned<String>], k: &str| {
+        vs.iter().map(|v| numeric(v, k)).collect::<Result<Vec<_>>>()
+    };
     let outcome = numeric(&s.outcome, "outcome")?;
     let spec = Spec {
         id: id.clone(),
@@ -121,55 +169,117 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
 fn spec_table<'p>(ctx: &Ctx, s: &RawSpec, plan: &'p Plan, key: &str) -> Result<&'p DataSource> {
     match &s.data {
         Some(d) => plan.data.get(d.get_ref()).ok_or_else(|| {
-            ctx.at(d, key, unknown("data table", d.get_ref(), plan.data.keys().map(String::as_str)))
+            ctx.at(
+                d,
+                key,
+                unknown(
+                    "data table",
+                    d.get_ref(),
+                    plan.data.keys().map(String::as_str),
+                ),
+            )
         }),
         None if plan.data.len() == 1 => Ok(plan.data.values().next().expect("one table")),
-        None => Err(ctx.at(&s.id, key, "the plan has several data tables; say which one with data = \"NAME\"")),
+        None => Err(ctx.at(
+            &s.id,
+            key,
+            "the plan has several data tables; say which one with data = \"NAME\"",
+        )),
     }
 }
 
-fn groupings(ctx: &Ctx, vs: &[Spanned<String>], table: &DataSource, key: &str) -> Result<Vec<String>> {
+fn groupings(
+    ctx: &Ctx,
+    vs: &[Spanned<String>],
+    table: &DataSource,
+    key: &str,
+) -> Result<Vec<String>> {
     vs.iter()
         .map(|v| match table.columns.get(v.get_ref()) {
             Some(c) if c.kind.is_grouping() => Ok(v.get_ref().clone()),
-            Some(c) => Err(ctx.at(v, key, format!(
-                "`{}` is of kind {}; groups need a category, id, integer or binary column",
-                v.get_ref(), c.kind.name()
-            ))),
-            None => Err(ctx.at(v, key, unknown("column", v.get_ref(), table.columns.keys().map(String::as_str)))),
+            Some(c) => Err(ctx.at(
+                v,
+                key,
+                format!(
+                    "`{}` is of kind {}; groups need a category, id, integer or binary column",
+                    v.get_ref(),
+                    c.kind.name()
+                ),
+            )),
+            None => Err(ctx.at(
+                v,
+                key,
+                unknown(
+                    "column",
+                    v.get_ref(),
+                    table.columns.keys().map(String::as_str),
+                ),
+            )),
         })
         .collect()
 }
 
-fn sample(ctx: &Ctx, s: &RawSpec, names: &BTreeSet<String>, key: &str) -> Result<Option<(String, expr::Expr)>> {
-    let Some(text) = &s.sample else { return Ok(None) };
+fn sample(
+    ctx: &Ctx,
+    s: &RawSpec,
+    names: &BTreeSet<String>,
+    key: &str,
+) -> Result<Option<(String, expr::Expr)>> {
+    let Some(text) = &s.sample else {
+        return Ok(None);
+    };
     let e = expr::parse(text.get_ref()).map_err(|e| expr_error(ctx, text, key, &e))?;
     if let Some(n) = e.names().into_iter().find(|n| !names.contains(n)) {
-        return Err(ctx.at(text, key, format!(
-            "{} in the sample expression",
-            unknown("column", &n, names.iter().map(String::as_str))
-        )));
+        return Err(ctx.at(
+            text,
+            key,
+            format!(
+                "{} in the sample expression",
+                unknown("column", &n, names.iter().map(String::as_str))
+            ),
+        ));
     }
     Ok(Some((text.get_ref().clone(), e)))
 }
 
 fn errors(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Errors> {
-    let Some(v) = &s.errors else { return Ok(Errors::Hc1) };
+    let Some(v) = &s.errors else {
+        return Ok(Errors::Hc1);
+    };
     let plain = ["classical", "hc0", "hc1", "hc2", "hc3"];
-    let bad = || ctx.at(v, key, "errors must be one of \"classical\", \"hc0\", \"hc1\", \"hc2\", \"hc3\", or { kind = \"cluster\", by = \"COLUMN\" }");
+    let bad = || {
+        ctx.at(v, key, "errors must be one of \"classical\", \"hc0\", \"hc1\", \"hc2\", \"hc3\", or { kind = \"cluster\", by = \"COLUMN\" }")
+    };
     let (kind, by) = match v.get_ref() {
         toml::Value::String(k) => (k.clone(), None),
         toml::Value::Table(t) => {
             if let Some(extra) = t.keys().find(|k| *k != "kind" && *k != "by") {
-                return Err(ctx.at(v, key, format!("unknown key `{extra}` in errors; use kind and by")));
+                return Err(ctx.at(
+                    v,
+                    key,
+                    format!("unknown key `{extra}` in errors; use kind and by"),
+                ));
             }
-            (t.get("kind").and_then(toml::Value::as_str).ok_or_else(bad)?.to_string(), t.get("by").cloned())
+            (
+                t.get("kind")
+                    .and_then(toml::Value::as_str)
+                    .ok_or_else(bad)?
+                    .to_string(),
+                t.get("by").cloned(),
+            )
         }
         _ => return Err(bad()),
     };
     if kind != "cluster" {
         if !plain.contains(&kind.as_str()) {
-            return Err(ctx.at(v, key, format!("unknown error kind `{kind}`{}", hint(&kind, plain.iter().copied().chain(["cluster"])))));
+            return Err(ctx.at(
+                v,
+                key,
+                format!(
+                    "unknown error kind `{kind}`{}",
+                    hint(&kind, plain.iter().copied().chain(["cluster"]))
+                ),
+            ));
         }
         if by.is_some() {
             return Err(ctx.at(v, key, "`by` only goes with kind = \"cluster\""));
@@ -184,8 +294,15 @@ fn errors(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Error
     }
     let names: Vec<String> = match by {
         Some(toml::Value::String(b)) => vec![b],
-        Some(toml::Value::Array(a)) => a.iter().filter_map(|x| x.as_str().map(String::from)).collect(),
-        _ => return Err(ctx.at(v, key, "cluster errors need by = \"COLUMN\" (or a list of two columns for two-way clustering)")),
+        Some(toml::Value::Array(a)) => a
+            .iter()
+            .filter_map(|x| x.as_str().map(String::from))
+            .collect(),
+        _ => return Err(ctx.at(
+            v,
+            key,
+            "cluster errors need by = \"COLUMN\" (or a list of two columns for two-way clustering)",
+        )),
     };
     if names.is_empty() || names.len() > 2 {
         return Err(ctx.at(v, key, "cluster errors take one or two cluster columns"));
@@ -193,7 +310,10 @@ fn errors(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Error
     if names.len() == 2 {
         return Err(ctx.at(v, key, "two-way clustering is not supported by this version of sworn yet; cluster by one column"));
     }
-    let spanned: Vec<Spanned<String>> = names.iter().map(|n| Spanned::new(v.span(), n.clone())).collect();
+    let spanned: Vec<Spanned<String>> = names
+        .iter()
+        .map(|n| Spanned::new(v.span(), n.clone()))
+        .collect();
     groupings(ctx, &spanned, table, key).map(Errors::Cluster)
 }
 
@@ -203,9 +323,25 @@ fn diagnostics(ctx: &Ctx, s: &RawSpec, estimator: Estimator, key: &str) -> Resul
         if d.get_ref() == "weak_instruments" {
             return Err(ctx.at(d, key, "the weak_instruments diagnostic (effective F) is not supported by this version of sworn yet; remove it (first_stage reports the first-stage F)"));
         }
-        ctx.one_of(d, key, &["first_stage", "reduced_form", "endogeneity", "overidentification"])?;
+        ctx.one_of(
+            d,
+            key,
+            &[
+                "first_stage",
+                "reduced_form",
+                "endogeneity",
+                "overidentification",
+            ],
+        )?;
         if estimator == Estimator::Ols {
-            return Err(ctx.at(d, key, format!("diagnostic `{}` applies to 2SLS specifications only", d.get_ref())));
+            return Err(ctx.at(
+                d,
+                key,
+                format!(
+                    "diagnostic `{}` applies to 2SLS specifications only",
+                    d.get_ref()
+                ),
+            ));
         }
         out.push(match d.get_ref().as_str() {
             "first_stage" => Diagnostic::FirstStage,
@@ -242,7 +378,11 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
                 return Err(ctx.at(v, key("regressors"), "a 2SLS specification lists endogenous, instruments and controls; move this term"));
             }
             if spec.endogenous.is_empty() {
-                return Err(ctx.at(&s.estimator, key("endogenous"), "2SLS needs at least one endogenous regressor"));
+                return Err(ctx.at(
+                    &s.estimator,
+                    key("endogenous"),
+                    "2SLS needs at least one endogenous regressor",
+                ));
             }
             if spec.instruments.len() < spec.endogenous.len() {
                 return Err(ctx.at(&s.estimator, key("instruments"), format!(
@@ -253,17 +393,37 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
         }
     }
     let mut seen = BTreeSet::new();
-    let all = s.endogenous.iter().chain(&s.instruments).chain(&s.regressors).chain(&s.controls);
+    let all = s
+        .endogenous
+        .iter()
+        .chain(&s.instruments)
+        .chain(&s.regressors)
+        .chain(&s.controls);
     for v in all {
         if v.get_ref() == &spec.outcome {
-            return Err(ctx.at(v, key("outcome"), format!("the outcome `{}` also appears on the right-hand side", spec.outcome)));
+            return Err(ctx.at(
+                v,
+                key("outcome"),
+                format!(
+                    "the outcome `{}` also appears on the right-hand side",
+                    spec.outcome
+                ),
+            ));
         }
         if !seen.insert(v.get_ref()) {
-            return Err(ctx.at(v, key("controls"), format!("`{}` is listed twice in this specification", v.get_ref())));
+            return Err(ctx.at(
+                v,
+                key("controls"),
+                format!("`{}` is listed twice in this specification", v.get_ref()),
+            ));
         }
     }
     if seen.is_empty() && !spec.intercept && spec.fixed_effects.is_empty() {
-        return Err(ctx.at(&s.id, key("regressors"), "the specification has no terms at all"));
+        return Err(ctx.at(
+            &s.id,
+            key("regressors"),
+            "the specification has no terms at all",
+        ));
     }
     Ok(())
 }
@@ -283,7 +443,11 @@ pub(super) fn families(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<BTreeMap
                 if ["romano-wolf", "bky"].contains(&c.get_ref().as_str()) {
                     return Err(ctx.at(c, format!("{key}.correction"), format!("correction `{}` needs resampling, which this version of sworn does not support yet", c.get_ref())));
                 }
-                ctx.one_of(c, &format!("{key}.correction"), &["none", "bonferroni", "holm", "benjamini-hochberg"])?;
+                ctx.one_of(
+                    c,
+                    &format!("{key}.correction"),
+                    &["none", "bonferroni", "holm", "benjamini-hochberg"],
+                )?;
                 match c.get_ref().as_str() {
                     "none" => Correction::None,
                     "bonferroni" => Correction::Bonferroni,
@@ -293,7 +457,14 @@ pub(super) fn families(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<BTreeMap
             }
             None => Correction::None,
         };
-        out.insert(name.get_ref().clone(), Family { name: name.get_ref().clone(), alpha, correction });
+        out.insert(
+            name.get_ref().clone(),
+            Family {
+                name: name.get_ref().clone(),
+                alpha,
+                correction,
+            },
+        );
     }
     Ok(out)
 }
@@ -310,20 +481,41 @@ pub fn spec_terms(spec: &Spec) -> Vec<String> {
 
 /// `[[hypothesis]]` entries.
 pub(super) fn hypotheses(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Hypothesis>> {
-    unique(ctx, raw.hypotheses.iter().map(|h| &h.get_ref().id), "hypothesis")?;
+    unique(
+        ctx,
+        raw.hypotheses.iter().map(|h| &h.get_ref().id),
+        "hypothesis",
+    )?;
     let mut out = Vec::new();
     for h in &raw.hypotheses {
         let h = h.get_ref();
         let key = |k: &str| format!("hypothesis[{}].{k}", h.id.get_ref());
-        let spec = plan.specifications.iter().find(|s| &s.id == h.specification.get_ref()).ok_or_else(|| {
-            ctx.at(&h.specification, key("specification"), unknown("specification", h.specification.get_ref(), plan.specifications.iter().map(|s| s.id.as_str())))
-        })?;
+        let spec = plan
+            .specifications
+            .iter()
+            .find(|s| &s.id == h.specification.get_ref())
+            .ok_or_else(|| {
+                ctx.at(
+                    &h.specification,
+                    key("specification"),
+                    unknown(
+                        "specification",
+                        h.specification.get_ref(),
+                        plan.specifications.iter().map(|s| s.id.as_str()),
+                    ),
+                )
+            })?;
         let terms = spec_terms(spec);
         if !terms.contains(h.term.get_ref()) {
-            return Err(ctx.at(&h.term, key("term"), format!(
-                "{} is not a term of specification `{}`",
-                unknown("term", h.term.get_ref(), terms.iter().map(String::as_str)), spec.id
-            )));
+            return Err(ctx.at(
+                &h.term,
+                key("term"),
+                format!(
+                    "{} is not a term of specification `{}`",
+                    unknown("term", h.term.get_ref(), terms.iter().map(String::as_str)),
+                    spec.id
+                ),
+            ));
         }
         let direction = match &h.direction {
             Some(d) => {
@@ -338,16 +530,33 @@ pub(super) fn hypotheses(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Hy
         };
         let family = match &h.family {
             Some(f) if !plan.families.contains_key(f.get_ref()) => {
-                return Err(ctx.at(f, key("family"), format!(
-                    "{}; declare it as [family.{}]",
-                    unknown("family", f.get_ref(), plan.families.keys().map(String::as_str)), f.get_ref()
-                )))
+                return Err(ctx.at(
+                    f,
+                    key("family"),
+                    format!(
+                        "{}; declare it as [family.{}]",
+                        unknown(
+                            "family",
+                            f.get_ref(),
+                            plan.families.keys().map(String::as_str)
+                        ),
+                        f.get_ref()
+                    ),
+                ))
             }
             Some(f) => Some(f.get_ref().clone()),
             None => None,
         };
         let alpha = match (&family, &h.alpha) {
-            (Some(f), Some(a)) => return Err(ctx.at(a, key("alpha"), format!("the hypothesis is tested at the level of family `{f}`; remove alpha here"))),
+            (Some(f), Some(a)) => {
+                return Err(ctx.at(
+                    a,
+                    key("alpha"),
+                    format!(
+                        "the hypothesis is tested at the level of family `{f}`; remove alpha here"
+                    ),
+                ))
+            }
             (Some(f), None) => plan.families[f].alpha,
             (None, Some(a)) => ctx.unit_open(a, &key("alpha"))?,
             (None, None) => plan.inference.alpha,
@@ -375,17 +584,33 @@ pub(super) fn tables(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Table>
         let key = |k: &str| format!("table[{}].{k}", t.id.get_ref());
         let mut terms = BTreeSet::new();
         for c in &t.columns {
-            let spec = plan.specifications.iter().find(|s| &s.id == c.get_ref()).ok_or_else(|| {
-                ctx.at(c, key("columns"), unknown("specification", c.get_ref(), plan.specifications.iter().map(|s| s.id.as_str())))
-            })?;
+            let spec = plan
+                .specifications
+                .iter()
+                .find(|s| &s.id == c.get_ref())
+                .ok_or_else(|| {
+                    ctx.at(
+                        c,
+                        key("columns"),
+                        unknown(
+                            "specification",
+                            c.get_ref(),
+                            plan.specifications.iter().map(|s| s.id.as_str()),
+                        ),
+                    )
+                })?;
             terms.extend(spec_terms(spec));
         }
         for r in &t.rows {
             if !terms.contains(r.get_ref()) {
-                return Err(ctx.at(r, key("rows"), format!(
-                    "{} in the table's specifications",
-                    unknown("term", r.get_ref(), terms.iter().map(String::as_str))
-                )));
+                return Err(ctx.at(
+                    r,
+                    key("rows"),
+                    format!(
+                        "{} in the table's specifications",
+                        unknown("term", r.get_ref(), terms.iter().map(String::as_str))
+                    ),
+                ));
             }
         }
         out.push(Table {

@@ -3,7 +3,13 @@
 /// A number for display: fixed with 3 decimals in the usual range, scientific outside it.
 pub fn num(x: f64) -> String {
     if !x.is_finite() {
-        return if x.is_nan() { "n/a".to_string() } else if x > 0.0 { "inf".to_string() } else { "-inf".to_string() };
+        return if x.is_nan() {
+            "n/a".to_string()
+        } else if x > 0.0 {
+            "inf".to_string()
+        } else {
+            "-inf".to_string()
+        };
     }
     let a = x.abs();
     if x == 0.0 {

@@ -23,12 +23,18 @@ fn environment() -> Result<Environment<'static>> {
         .trim_blocks(true)
         .lstrip_blocks(true)
         .build()
-        .map_err(|e| Error::Template { template: "syntax".to_string(), message: e.to_string() })?;
+        .map_err(|e| Error::Template {
+            template: "syntax".to_string(),
+            message: e.to_string(),
+        })?;
     env.set_syntax(syntax);
     env.add_filter("tex", |s: String| format::tex(&s));
     env.add_filter("md", |s: String| format::md(&s));
     for (name, src) in [("report.md", MD_TEMPLATE), ("report.tex", TEX_TEMPLATE)] {
-        env.add_template(name, src).map_err(|e| Error::Template { template: name.to_string(), message: e.to_string() })?;
+        env.add_template(name, src).map_err(|e| Error::Template {
+            template: name.to_string(),
+            message: e.to_string(),
+        })?;
     }
     Ok(env)
 }
@@ -40,7 +46,10 @@ pub fn render(plan: &Plan, results: &Results) -> Result<(String, String)> {
     let render = |name: &str| {
         env.get_template(name)
             .and_then(|t| t.render(minijinja::context! { r => minijinja::value::Serde(&model) }))
-            .map_err(|e| Error::Template { template: name.to_string(), message: e.to_string() })
+            .map_err(|e| Error::Template {
+                template: name.to_string(),
+                message: e.to_string(),
+            })
     };
     Ok((render("report.md")?, render("report.tex")?))
 }

@@ -113,11 +113,26 @@ fn correction_name(c: Correction) -> &'static str {
 
 fn stars(p: f64) -> &'static str {
     // Conventional thresholds 0.01 / 0.05 / 0.10 (common practice).
-    if p < 0.01 { "***" } else if p < 0.05 { "**" } else if p < 0.1 { "*" } else { "" }
+    if p < 0.01 {
+        "***"
+    } else if p < 0.05 {
+        "**"
+    } else if p < 0.1 {
+        "*"
+    } else {
+        ""
+    }
 }
 
 fn term_row(name: &str, t: &Term) -> TermRow {
-    TermRow { term: name.to_string(), est: num(t.estimate), se: num(t.std_error), stat: num(t.statistic), p: pval(t.p_value), ci: format!("[{}, {}]", num(t.ci[0]), num(t.ci[1])) }
+    TermRow {
+        term: name.to_string(),
+        est: num(t.estimate),
+        se: num(t.std_error),
+        stat: num(t.statistic),
+        p: pval(t.p_value),
+        ci: format!("[{}, {}]", num(t.ci[0]), num(t.ci[1])),
+    }
 }
 
 fn test_line(name: &str, t: &TestResult) -> String {
@@ -127,12 +142,27 @@ fn test_line(name: &str, t: &TestResult) -> String {
         crate::distribution::Reference::F { df1, df2 } => format!("F({df1}, {df2})"),
         crate::distribution::Reference::ChiSquare { df } => format!("χ²({df})"),
     };
-    format!("{name}: {} ({dist}), p = {}", num(t.statistic), pval(t.p_value))
+    format!(
+        "{name}: {} ({dist}), p = {}",
+        num(t.statistic),
+        pval(t.p_value)
+    )
 }
 
-fn ordered_terms(order: &[String], terms: &std::collections::BTreeMap<String, Term>) -> Vec<TermRow> {
-    let mut rows: Vec<TermRow> = order.iter().filter_map(|n| terms.get(n).map(|t| term_row(n, t))).collect();
-    rows.extend(terms.iter().filter(|(n, _)| !order.contains(n)).map(|(n, t)| term_row(n, t)));
+fn ordered_terms(
+    order: &[String],
+    terms: &std::collections::BTreeMap<String, Term>,
+) -> Vec<TermRow> {
+    let mut rows: Vec<TermRow> = order
+        .iter()
+        .filter_map(|n| terms.get(n).map(|t| term_row(n, t)))
+        .collect();
+    rows.extend(
+        terms
+            .iter()
+            .filter(|(n, _)| !order.contains(n))
+            .map(|(n, t)| term_row(n, t)),
+    );
     rows
 }
 
@@ -144,7 +174,11 @@ impl ReportModel {
         for s in &plan.specifications {
             let res = &r.specifications[&s.id];
             let m = spec_model(s, res);
-            if res.pre_registered { specs.push(m) } else { apart.push(m) }
+            if res.pre_registered {
+                specs.push(m)
+            } else {
+                apart.push(m)
+            }
         }
         ReportModel {
             title: plan.study.title.clone(),
@@ -158,7 +192,16 @@ impl ReportModel {
             tables: plan.tables.iter().map(|t| table_model(t, r)).collect(),
             specs,
             apart,
-            deviations: r.deviations.iter().map(|d| DevRow { severity: d.severity.name().to_string(), code: d.code.to_string(), subject: d.subject.clone(), message: d.message.clone() }).collect(),
+            deviations: r
+                .deviations
+                .iter()
+                .map(|d| DevRow {
+                    severity: d.severity.name().to_string(),
+                    code: d.code.to_string(),
+                    subject: d.subject.clone(),
+                    message: d.message.clone(),
+                })
+                .collect(),
             cautions: cautions(r),
         }
     }
@@ -167,24 +210,48 @@ impl ReportModel {
 fn provenance(r: &Results) -> Vec<(String, String)> {
     let mut v = vec![
         ("Plan".to_string(), r.plan.path.clone()),
-        ("Plan content SHA-256".to_string(), r.plan.content_sha256.clone()),
+        (
+            "Plan content SHA-256".to_string(),
+            r.plan.content_sha256.clone(),
+        ),
         ("Plan file SHA-256".to_string(), r.plan.bytes_sha256.clone()),
-        ("Ledger head".to_string(), r.plan.ledger_head.clone().unwrap_or_else(|| "none (no seal)".into())),
+        (
+            "Ledger head".to_string(),
+            r.plan
+                .ledger_head
+                .clone()
+                .unwrap_or_else(|| "none (no seal)".into()),
+        ),
     ];
     for (id, d) in &r.data {
-        v.push((format!("Data `{id}` ({} rows)", d.rows), format!("{} sha256:{}", d.path, d.sha256)));
+        v.push((
+            format!("Data `{id}` ({} rows)", d.rows),
+            format!("{} sha256:{}", d.path, d.sha256),
+        ));
     }
-    v.push(("Tool".to_string(), format!("{} {}", r.tool.name, r.tool.version)));
+    v.push((
+        "Tool".to_string(),
+        format!("{} {}", r.tool.name, r.tool.version),
+    ));
     v.push(("Results digest".to_string(), r.digest.clone()));
     v
 }
 
 fn integrity_line(r: &Results) -> String {
     match r.plan.integrity {
-        "sealed-unchanged" => "Sealed and unchanged: the plan matches its last ledger entry.".to_string(),
-        "sealed-cosmetic-change" => "Sealed; changed in comments or layout only since its last ledger entry.".to_string(),
-        "changed" => "CHANGED: the plan's content differs from its last ledger entry (see deviations).".to_string(),
-        "ledger-broken" => "BROKEN: the ledger's hash chain does not verify (see deviations).".to_string(),
+        "sealed-unchanged" => {
+            "Sealed and unchanged: the plan matches its last ledger entry.".to_string()
+        }
+        "sealed-cosmetic-change" => {
+            "Sealed; changed in comments or layout only since its last ledger entry.".to_string()
+        }
+        "changed" => {
+            "CHANGED: the plan's content differs from its last ledger entry (see deviations)."
+                .to_string()
+        }
+        "ledger-broken" => {
+            "BROKEN: the ledger's hash chain does not verify (see deviations).".to_string()
+        }
         _ => "NOT SEALED: there is no ledger seal for this plan.".to_string(),
     }
 }
@@ -199,10 +266,19 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
     HypRow {
         id: id.to_string(),
         claim: h.claim.clone(),
-        test: format!("`{}` in {}: {}", h.term, h.specification, direction_text(h.direction, h.null)),
+        test: format!(
+            "`{}` in {}: {}",
+            h.term,
+            h.specification,
+            direction_text(h.direction, h.null)
+        ),
         estimate: opt(h.estimate, num),
         p: opt(h.p_value, pval),
-        adjusted: format!("{} ({})", opt(h.adjusted_p_value, pval), correction_name(h.correction)),
+        adjusted: format!(
+            "{} ({})",
+            opt(h.adjusted_p_value, pval),
+            correction_name(h.correction)
+        ),
         level: num(h.alpha),
         verdict: h.verdict.to_string(),
         note,
@@ -211,23 +287,43 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
 
 fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
     let specs: Vec<&SpecResult> = t.columns.iter().map(|c| &r.specifications[c]).collect();
-    let rows = t.rows.iter().map(|term| TableRow {
-        term: term.clone(),
-        cells: specs.iter().map(|s| match s.terms.get(term) {
-            Some(v) => Cell { est: format!("{}{}", num(v.estimate), if t.stars { stars(v.p_value) } else { "" }), se: format!("({})", num(v.std_error)) },
-            None => Cell { est: String::new(), se: String::new() },
-        }).collect(),
-    }).collect();
+    let rows = t
+        .rows
+        .iter()
+        .map(|term| TableRow {
+            term: term.clone(),
+            cells: specs
+                .iter()
+                .map(|s| match s.terms.get(term) {
+                    Some(v) => Cell {
+                        est: format!(
+                            "{}{}",
+                            num(v.estimate),
+                            if t.stars { stars(v.p_value) } else { "" }
+                        ),
+                        se: format!("({})", num(v.std_error)),
+                    },
+                    None => Cell {
+                        est: String::new(),
+                        se: String::new(),
+                    },
+                })
+                .collect(),
+        })
+        .collect();
     TableModel {
         title: t.title.clone(),
         columns: t.columns.clone(),
         estimators: specs.iter().map(|s| s.estimator.to_uppercase()).collect(),
         rows,
         n: specs.iter().map(|s| s.n.to_string()).collect(),
-        errors: specs.iter().map(|s| match (&s.cluster_by, s.clusters) {
-            (Some(by), Some(g)) => format!("cluster {} ({g})", by.join("×")),
-            _ => s.errors.to_uppercase(),
-        }).collect(),
+        errors: specs
+            .iter()
+            .map(|s| match (&s.cluster_by, s.clusters) {
+                (Some(by), Some(g)) => format!("cluster {} ({g})", by.join("×")),
+                _ => s.errors.to_uppercase(),
+            })
+            .collect(),
         stars: t.stars,
     }
 }
@@ -239,16 +335,29 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
         format!("R² {} · residual SD {} · {:.0}% intervals", num(r.r_squared), num(r.residual_sd), 100.0 * r.confidence),
     ];
     if !r.fixed_effects.is_empty() {
-        facts.push(format!("absorbed fixed effects: {}", r.fixed_effects.iter().map(|(k, v)| format!("{k} ({v} levels)")).collect::<Vec<_>>().join(", ")));
+        facts.push(format!(
+            "absorbed fixed effects: {}",
+            r.fixed_effects
+                .iter()
+                .map(|(k, v)| format!("{k} ({v} levels)"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ));
     }
     if let Some((text, _)) = &s.sample {
         facts.push(format!("sample: {text}"));
     }
     if !r.dropped_terms.is_empty() {
-        facts.push(format!("dropped as collinear: {}", r.dropped_terms.join(", ")));
+        facts.push(format!(
+            "dropped as collinear: {}",
+            r.dropped_terms.join(", ")
+        ));
     }
     if let Some(l) = &r.linear_probability {
-        facts.push(format!("binary outcome (linear probability model): {} fitted value(s) outside [0, 1]", l.fitted_outside_unit_interval));
+        facts.push(format!(
+            "binary outcome (linear probability model): {} fitted value(s) outside [0, 1]",
+            l.fitted_outside_unit_interval
+        ));
     }
     let order = spec_terms(s);
     let mut blocks = Vec::new();
@@ -259,28 +368,72 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
             title: format!("First stage for `{name}`"),
             terms: ordered_terms(&z_order, &fs.terms),
             lines: vec![
-                format!("F on excluded instruments (classical): {}, p = {}", num(fs.f_statistic), pval(fs.f_p_value)),
-                format!("F on excluded instruments ({}): {}, p = {}", r.errors, num(fs.robust_f_statistic), pval(fs.robust_f_p_value)),
-                format!("partial R² of excluded instruments: {} · first-stage R² {}", num(fs.partial_r_squared), num(fs.r_squared)),
+                format!(
+                    "F on excluded instruments (classical): {}, p = {}",
+                    num(fs.f_statistic),
+                    pval(fs.f_p_value)
+                ),
+                format!(
+                    "F on excluded instruments ({}): {}, p = {}",
+                    r.errors,
+                    num(fs.robust_f_statistic),
+                    pval(fs.robust_f_p_value)
+                ),
+                format!(
+                    "partial R² of excluded instruments: {} · first-stage R² {}",
+                    num(fs.partial_r_squared),
+                    num(fs.r_squared)
+                ),
             ],
         });
     }
     if let Some(rf) = &r.reduced_form {
         let mut z_order = s.instruments.clone();
         z_order.extend(order.iter().filter(|t| !s.endogenous.contains(t)).cloned());
-        blocks.push(Block { title: format!("Reduced form (`{}` on instruments and controls)", rf.outcome), terms: ordered_terms(&z_order, &rf.terms), lines: vec![format!("R² {}", num(rf.r_squared))] });
+        blocks.push(Block {
+            title: format!(
+                "Reduced form (`{}` on instruments and controls)",
+                rf.outcome
+            ),
+            terms: ordered_terms(&z_order, &rf.terms),
+            lines: vec![format!("R² {}", num(rf.r_squared))],
+        });
     }
     if let Some(e) = &r.endogeneity {
-        blocks.push(Block { title: "Endogeneity tests (null: the endogenous regressors are exogenous)".into(), terms: vec![], lines: vec![
-            test_line(&format!("control function ({})", r.errors), &e.control_function),
-            test_line("Durbin", &e.durbin),
-            test_line("Wu–Hausman", &e.wu_hausman),
-        ]});
+        blocks.push(Block {
+            title: "Endogeneity tests (null: the endogenous regressors are exogenous)".into(),
+            terms: vec![],
+            lines: vec![
+                test_line(
+                    &format!("control function ({})", r.errors),
+                    &e.control_function,
+                ),
+                test_line("Durbin", &e.durbin),
+                test_line("Wu–Hausman", &e.wu_hausman),
+            ],
+        });
     }
     if let Some(o) = &r.overidentification {
-        blocks.push(Block { title: "Over-identification tests (null: all instruments valid; homoskedastic)".into(), terms: vec![], lines: vec![test_line("Sargan", &o.sargan), test_line("Basmann", &o.basmann)] });
+        blocks.push(Block {
+            title: "Over-identification tests (null: all instruments valid; homoskedastic)".into(),
+            terms: vec![],
+            lines: vec![
+                test_line("Sargan", &o.sargan),
+                test_line("Basmann", &o.basmann),
+            ],
+        });
     }
-    SpecModel { id: s.id.clone(), title: r.title.clone(), facts, main: Block { title: "Estimates".into(), terms: ordered_terms(&order, &r.terms), lines: vec![] }, blocks }
+    SpecModel {
+        id: s.id.clone(),
+        title: r.title.clone(),
+        facts,
+        main: Block {
+            title: "Estimates".into(),
+            terms: ordered_terms(&order, &r.terms),
+            lines: vec![],
+        },
+        blocks,
+    }
 }
 
 fn cautions(r: &Results) -> Vec<String> {
@@ -290,7 +443,10 @@ fn cautions(r: &Results) -> Vec<String> {
         c.push("Instrumental-variable estimates rest on the exclusion restriction (the instrument affects the outcome only through the endogenous regressor) and on instrument exogeneity. These assumptions cannot be tested with the data; over-identification tests only check instruments against each other.".into());
         c.push("With a binary instrument and a binary treatment, 2SLS estimates a local average treatment effect: the effect for compliers, whose take-up the instrument changes, which need not equal the effect for everyone.".into());
     }
-    if r.specifications.values().any(|s| s.linear_probability.is_some()) {
+    if r.specifications
+        .values()
+        .any(|s| s.linear_probability.is_some())
+    {
         c.push("Linear probability models can predict outside [0, 1]; their coefficients are average marginal effects on the probability, and their errors are heteroskedastic by construction.".into());
     }
     c.push("A verified run shows that the registered plan was followed on these data; it does not show that the design is sound or that its assumptions hold. Decisions rest with the study's own review and its registry's rules.".into());

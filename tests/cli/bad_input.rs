@@ -4,12 +4,19 @@ use crate::common::{data_csv, Study, PLAN};
 
 fn fails(s: &Study, expect: &[&str]) {
     let r = s.sworn(&["run", "plan.toml", "--out", "out"]);
-    assert_eq!(r.code, 2, "expected exit 2, got {}: {}{}", r.code, r.stdout, r.stderr);
+    assert_eq!(
+        r.code, 2,
+        "expected exit 2, got {}: {}{}",
+        r.code, r.stdout, r.stderr
+    );
     for e in expect {
         assert!(r.stderr.contains(e), "stderr lacks `{e}`: {}", r.stderr);
     }
     assert!(!r.stderr.contains("panicked"), "{}", r.stderr);
-    assert!(!s.path("out").exists(), "no output may be written on bad input");
+    assert!(
+        !s.path("out").exists(),
+        "no output may be written on bad input"
+    );
 }
 
 #[test]
@@ -20,25 +27,51 @@ fn malformed_toml() {
 
 #[test]
 fn unknown_key() {
-    let s = Study::with(&PLAN.replace("errors = \"hc1\"", "errors = \"hc1\"\nweights = \"w\""), &data_csv());
+    let s = Study::with(
+        &PLAN.replace("errors = \"hc1\"", "errors = \"hc1\"\nweights = \"w\""),
+        &data_csv(),
+    );
     fails(&s, &["unknown field `weights`"]);
 }
 
 #[test]
 fn unknown_column_suggests_the_closest() {
-    let s = Study::with(&PLAN.replace("controls = [\"x\"]\nerrors = \"hc1\"", "controls = [\"xx\"]\nerrors = \"hc1\""), &data_csv());
-    fails(&s, &["unknown column `xx`", "did you mean `x`?", "specification[ols].controls", "plan.toml:26:"]);
+    let s = Study::with(
+        &PLAN.replace(
+            "controls = [\"x\"]\nerrors = \"hc1\"",
+            "controls = [\"xx\"]\nerrors = \"hc1\"",
+        ),
+        &data_csv(),
+    );
+    fails(
+        &s,
+        &[
+            "unknown column `xx`",
+            "did you mean `x`?",
+            "specification[ols].controls",
+            "plan.toml:26:",
+        ],
+    );
 }
 
 #[test]
 fn wrong_column_kind() {
-    let s = Study::with(&PLAN.replace("controls = [\"x\"]\nerrors = \"hc1\"", "controls = [\"grp\"]\nerrors = \"hc1\""), &data_csv());
+    let s = Study::with(
+        &PLAN.replace(
+            "controls = [\"x\"]\nerrors = \"hc1\"",
+            "controls = [\"grp\"]\nerrors = \"hc1\"",
+        ),
+        &data_csv(),
+    );
     fails(&s, &["`grp` is of kind category", "fixed_effects"]);
 }
 
 #[test]
 fn missing_data_file() {
-    let s = Study::with(&PLAN.replace("path = \"data.csv\"", "path = \"nothere.csv\""), &data_csv());
+    let s = Study::with(
+        &PLAN.replace("path = \"data.csv\"", "path = \"nothere.csv\""),
+        &data_csv(),
+    );
     fails(&s, &["does not exist", "nothere.csv"]);
 }
 
@@ -59,20 +92,37 @@ fn non_numeric_value() {
 fn rank_deficient_design() {
     let plan = PLAN.replace("[[hypothesis]]\nid = \"H1\"", "[derive]\nx2 = \"2 * x\"\n\n[[specification]]\nid = \"dup\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\", \"x2\"]\n\n[[hypothesis]]\nid = \"H1\"");
     let s = Study::with(&plan, &data_csv());
-    fails(&s, &["specification `dup`", "rank-deficient", "`x2`", "on_collinear"]);
+    fails(
+        &s,
+        &[
+            "specification `dup`",
+            "rank-deficient",
+            "`x2`",
+            "on_collinear",
+        ],
+    );
 }
 
 #[test]
 fn unknown_hypothesis_term_and_family() {
     let s = Study::with(&PLAN.replace("term = \"x\"", "term = \"z\""), &data_csv());
     fails(&s, &["unknown term `z`"]);
-    let s = Study::with(&PLAN.replace("family = \"main\"\n\n[[hypothesis]]", "family = \"mian\"\n\n[[hypothesis]]"), &data_csv());
+    let s = Study::with(
+        &PLAN.replace(
+            "family = \"main\"\n\n[[hypothesis]]",
+            "family = \"mian\"\n\n[[hypothesis]]",
+        ),
+        &data_csv(),
+    );
     fails(&s, &["unknown family `mian`", "did you mean `main`?"]);
 }
 
 #[test]
 fn bad_expression_points_into_it() {
-    let plan = PLAN.replace("[[specification]]\nid = \"ols\"", "[derive]\nlx = \"ln(x +)\"\n\n[[specification]]\nid = \"ols\"");
+    let plan = PLAN.replace(
+        "[[specification]]\nid = \"ols\"",
+        "[derive]\nlx = \"ln(x +)\"\n\n[[specification]]\nid = \"ols\"",
+    );
     let s = Study::with(&plan, &data_csv());
     fails(&s, &["derive.lx", "ln(x +)"]);
 }

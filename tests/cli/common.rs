@@ -22,7 +22,9 @@ pub struct Ran {
 pub fn data_csv() -> String {
     let mut state: u64 = 12345;
     let mut unif = move || {
-        state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+        state = state
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
         ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
     };
     let mut out = String::from("id,grp,z,d,x,y,yb\n");
@@ -154,7 +156,11 @@ impl Study {
 }
 
 pub fn run_in(dir: &Path, args: &[&str]) -> Ran {
-    let out = Command::new(env!("CARGO_BIN_EXE_sworn")).args(args).current_dir(dir).output().expect("run sworn");
+    let out = Command::new(env!("CARGO_BIN_EXE_sworn"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("run sworn");
     Ran {
         code: out.status.code().unwrap_or(-1),
         stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
@@ -164,5 +170,9 @@ pub fn run_in(dir: &Path, args: &[&str]) -> Ran {
 
 /// Deviation codes in a results value.
 pub fn codes(results: &serde_json::Value) -> Vec<String> {
-    results["deviations"].as_array().map_or(Vec::new(), |a| a.iter().filter_map(|d| d["code"].as_str().map(String::from)).collect())
+    results["deviations"].as_array().map_or(Vec::new(), |a| {
+        a.iter()
+            .filter_map(|d| d["code"].as_str().map(String::from))
+            .collect()
+    })
 }

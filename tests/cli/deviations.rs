@@ -7,7 +7,12 @@ fn has(r: &serde_json::Value, code: &str) -> bool {
 }
 
 fn severity(r: &serde_json::Value, code: &str) -> String {
-    r["deviations"].as_array().and_then(|a| a.iter().find(|d| d["code"] == code)).map_or(String::new(), |d| d["severity"].as_str().unwrap_or("").to_string())
+    r["deviations"]
+        .as_array()
+        .and_then(|a| a.iter().find(|d| d["code"] == code))
+        .map_or(String::new(), |d| {
+            d["severity"].as_str().unwrap_or("").to_string()
+        })
 }
 
 #[test]
@@ -23,11 +28,19 @@ fn unsealed_plan() {
 fn content_change_lists_keys_and_cosmetic_change_is_a_note() {
     let s = Study::new();
     s.seal_and_run();
-    s.edit("plan.toml", "title = \"Test study\"", "title = \"Test study\" # a comment");
+    s.edit(
+        "plan.toml",
+        "title = \"Test study\"",
+        "title = \"Test study\" # a comment",
+    );
     let r = s.run_ok();
     assert!(has(&r, "plan-cosmetic-change"));
     assert_eq!(severity(&r, "plan-cosmetic-change"), "note");
-    s.edit("plan.toml", "correction = \"holm\"", "correction = \"bonferroni\"");
+    s.edit(
+        "plan.toml",
+        "correction = \"holm\"",
+        "correction = \"bonferroni\"",
+    );
     let r = s.run_ok();
     assert!(has(&r, "plan-changed"));
     let msg = r["deviations"][0]["message"].as_str().unwrap_or("");
@@ -55,7 +68,10 @@ fn broken_ledger_and_changed_data() {
     let s = Study::new();
     s.seal_and_run();
     let ledger = s.read("plan.ledger");
-    s.write("plan.ledger", &ledger.replacen("\"seq\":1", "\"seq\":1 ", 1));
+    s.write(
+        "plan.ledger",
+        &ledger.replacen("\"seq\":1", "\"seq\":1 ", 1),
+    );
     let r = s.run_ok();
     assert!(has(&r, "ledger-broken"), "{:?}", codes(&r));
     let s = Study::new();
@@ -75,10 +91,22 @@ fn schema_deviations() {
     let f: Vec<String> = lines[3].split(',').map(String::from).collect();
     lines[3] = format!("{},{},{},2,11.5,{},{}", f[0], f[1], f[2], f[5], f[6]);
     lines[4] = format!(",{}", lines[4].split_once(',').map_or("", |x| x.1));
-    let plan = PLAN.replace("rows = { min = 200, max = 300 }", "rows = { min = 300 }").replace("yb  = { kind = \"binary\" }", "yb  = { kind = \"binary\" }\nextra = { kind = \"number\" }");
+    let plan = PLAN
+        .replace("rows = { min = 200, max = 300 }", "rows = { min = 300 }")
+        .replace(
+            "yb  = { kind = \"binary\" }",
+            "yb  = { kind = \"binary\" }\nextra = { kind = \"number\" }",
+        );
     let s = Study::with(&plan, &(lines.join("\n") + "\n"));
     let r = s.run_ok();
-    for code in ["key-duplicate", "key-missing", "column-kind", "value-out-of-range", "rows-out-of-range", "column-missing"] {
+    for code in [
+        "key-duplicate",
+        "key-missing",
+        "column-kind",
+        "value-out-of-range",
+        "rows-out-of-range",
+        "column-missing",
+    ] {
         assert!(has(&r, code), "{code} missing from {:?}", codes(&r));
     }
     let c = s.sworn(&["check", "plan.toml", "--data"]);
@@ -89,8 +117,16 @@ fn schema_deviations() {
 fn missing_share_collinear_drop_and_exploratory() {
     let mut lines: Vec<String> = data_csv().lines().map(String::from).collect();
     for line in lines.iter_mut().skip(1).take(60) {
-        let (head, _) = line.rsplit_once(',').map(|(a, b)| (a.to_string(), b.to_string())).expect("comma");
-        let (head2, yb) = (head.rsplit_once(',').map(|x| x.0.to_string()).unwrap_or_default(), line.rsplit(',').next().unwrap_or("0").to_string());
+        let (head, _) = line
+            .rsplit_once(',')
+            .map(|(a, b)| (a.to_string(), b.to_string()))
+            .expect("comma");
+        let (head2, yb) = (
+            head.rsplit_once(',')
+                .map(|x| x.0.to_string())
+                .unwrap_or_default(),
+            line.rsplit(',').next().unwrap_or("0").to_string(),
+        );
         *line = format!("{head2},,{yb}");
     }
     let plan = PLAN.replace("[[hypothesis]]\nid = \"H1\"", "[derive]\nx2 = \"2 * x\"\n\n[[specification]]\nid = \"dup\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\", \"x2\"]\non_collinear = \"drop\"\nexploratory = true\n\n[[hypothesis]]\nid = \"H1\"");
@@ -105,9 +141,16 @@ fn missing_share_collinear_drop_and_exploratory() {
 
 #[test]
 fn binary_outcome_with_classical_errors_gets_a_note() {
-    let plan = PLAN.replace("outcome = \"y\"\nregressors = [\"d\"]\ncontrols = [\"x\"]\nerrors = \"hc1\"", "outcome = \"yb\"\nregressors = [\"d\"]\ncontrols = [\"x\"]\nerrors = \"classical\"");
+    let plan = PLAN.replace(
+        "outcome = \"y\"\nregressors = [\"d\"]\ncontrols = [\"x\"]\nerrors = \"hc1\"",
+        "outcome = \"yb\"\nregressors = [\"d\"]\ncontrols = [\"x\"]\nerrors = \"classical\"",
+    );
     let s = Study::with(&plan, &data_csv());
     let r = s.seal_and_run();
     assert!(has(&r, "lpm-classical-errors"), "{:?}", codes(&r));
-    assert!(r["specifications"]["ols"]["linear_probability"]["fitted_outside_unit_interval"].as_u64().is_some());
+    assert!(
+        r["specifications"]["ols"]["linear_probability"]["fitted_outside_unit_interval"]
+            .as_u64()
+            .is_some()
+    );
 }

@@ -18,10 +18,14 @@ fn check_seal_run_verify() {
     assert_eq!(iv["clusters"], 12);
     assert_eq!(iv["df"], 11.0);
     assert!(iv["first_stage"]["d"]["f_statistic"].as_f64().is_some());
-    assert!(iv["reduced_form"]["terms"]["z"]["estimate"].as_f64().is_some());
+    assert!(iv["reduced_form"]["terms"]["z"]["estimate"]
+        .as_f64()
+        .is_some());
     assert!(iv["endogeneity"]["durbin"]["p_value"].as_f64().is_some());
     assert_eq!(r["hypotheses"]["H1"]["verdict"], "supported");
-    assert!(r["digest"].as_str().is_some_and(|d| d.starts_with("sha256:")));
+    assert!(r["digest"]
+        .as_str()
+        .is_some_and(|d| d.starts_with("sha256:")));
     for f in ["report.md", "report.tex", "results.json"] {
         assert!(s.path("out").join(f).exists(), "{f} missing");
     }
@@ -42,7 +46,15 @@ fn same_plan_and_data_give_identical_results() {
 
 #[test]
 fn verify_fails_after_any_changed_byte() {
-    for target in ["data.csv", "plan.toml", "plan.ledger", "out/report.md", "out/report.tex", "out/results.json", "out/ledger-entry.sha256"] {
+    for target in [
+        "data.csv",
+        "plan.toml",
+        "plan.ledger",
+        "out/report.md",
+        "out/report.tex",
+        "out/results.json",
+        "out/ledger-entry.sha256",
+    ] {
         let s = Study::new();
         s.seal_and_run();
         assert_eq!(s.sworn(&["verify", "out"]).code, 0);
@@ -51,7 +63,11 @@ fn verify_fails_after_any_changed_byte() {
         bytes[i] = if bytes[i] == b'7' { b'8' } else { b'7' };
         std::fs::write(s.path(target), bytes).expect("write");
         let v = s.sworn(&["verify", "out"]);
-        assert_eq!(v.code, 1, "changing {target} must fail verify: {}", v.stdout);
+        assert_eq!(
+            v.code, 1,
+            "changing {target} must fail verify: {}",
+            v.stdout
+        );
         assert!(v.stdout.contains("FAILED"), "{}", v.stdout);
     }
 }
@@ -66,7 +82,11 @@ fn verify_without_results_is_bad_input() {
 
 #[test]
 fn latex_report_compiles() {
-    if std::process::Command::new("pdflatex").arg("--version").output().is_err() {
+    if std::process::Command::new("pdflatex")
+        .arg("--version")
+        .output()
+        .is_err()
+    {
         println!("skipped: pdflatex is not installed (.ci/run installs it)");
         return;
     }
@@ -77,7 +97,11 @@ fn latex_report_compiles() {
         .current_dir(s.path("out"))
         .output()
         .expect("pdflatex runs");
-    assert!(out.status.success(), "pdflatex failed:\n{}", String::from_utf8_lossy(&out.stdout));
+    assert!(
+        out.status.success(),
+        "pdflatex failed:\n{}",
+        String::from_utf8_lossy(&out.stdout)
+    );
     assert!(s.path("out/report.pdf").exists());
 }
 
@@ -91,9 +115,17 @@ fn demo_runs_and_verifies() {
         let v = run_in(dir.path(), &["verify", &format!("demo/out/{plan}")]);
         assert_eq!(v.code, 0, "{}", v.stdout);
     }
-    let r: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(dir.path().join("demo/out/cool-roofs/results.json")).expect("read")).expect("json");
-    let ols = r["specifications"]["temp_ols"]["terms"]["painted"]["estimate"].as_f64().expect("ols");
-    let iv = r["specifications"]["temp_iv"]["terms"]["painted"]["estimate"].as_f64().expect("iv");
+    let r: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("demo/out/cool-roofs/results.json"))
+            .expect("read"),
+    )
+    .expect("json");
+    let ols = r["specifications"]["temp_ols"]["terms"]["painted"]["estimate"]
+        .as_f64()
+        .expect("ols");
+    let iv = r["specifications"]["temp_iv"]["terms"]["painted"]["estimate"]
+        .as_f64()
+        .expect("iv");
     // The design makes take-up more likely in hotter homes, so OLS understates the cooling.
     assert!(iv < ols && ols < 0.0, "ols {ols}, iv {iv}");
 }

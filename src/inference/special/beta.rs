@@ -24,7 +24,7 @@ pub(crate) struct UnitPoint {
 impl UnitPoint {
     /// The point for weights u, v ≥ 0 given directly and as logarithms. The direct values
     /// are used where they neither overflow nor underflow (one rounding each); otherwise x
-    /// and y come from the logarithms, so the point stays exact in log form at any scale.
+    /// and y come from the logarithms, so the point stays representable in log form at any scale.
     pub fn from_weights(u: f64, v: f64, ln_u: f64, ln_v: f64) -> Self {
         let sum = u + v;
         let usable = |w: f64, ln_w: f64| w >= f64::MIN_POSITIVE || ln_w == f64::NEG_INFINITY;
@@ -44,12 +44,22 @@ impl UnitPoint {
         let d = ln_v - ln_u;
         let ln_x = -softplus(d);
         let ln_y = -softplus(-d);
-        UnitPoint { x: ln_x.exp(), y: ln_y.exp(), ln_x, ln_y }
+        UnitPoint {
+            x: ln_x.exp(),
+            y: ln_y.exp(),
+            ln_x,
+            ln_y,
+        }
     }
 
     /// The point 1 - x.
     fn mirrored(self) -> Self {
-        UnitPoint { x: self.y, y: self.x, ln_x: self.ln_y, ln_y: self.ln_x }
+        UnitPoint {
+            x: self.y,
+            y: self.x,
+            ln_x: self.ln_y,
+            ln_y: self.ln_x,
+        }
     }
 
     /// x in double-double, taken as 1 - y where x is the larger side (y is then the
@@ -119,7 +129,7 @@ fn fraction(a: f64, b: f64, x: Extended) -> f64 {
             step = d * c;
             h = h * step;
         }
-        if (step - one).abs_f64() < TOLERANCE {
+        if (step - one).abs_f64() <= TOLERANCE {
             break;
         }
     }

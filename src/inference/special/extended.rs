@@ -28,7 +28,10 @@ fn two_sum(a: f64, b: f64) -> (f64, f64) {
 /// s + e = a + b exactly, assuming |a| ≥ |b| (Dekker's fast two-sum).
 fn quick_two_sum(a: f64, b: f64) -> Extended {
     let s = a + b;
-    Extended { hi: s, lo: b - (s - a) }
+    Extended {
+        hi: s,
+        lo: b - (s - a),
+    }
 }
 
 impl Extended {
@@ -67,7 +70,10 @@ impl Add for Extended {
 impl Neg for Extended {
     type Output = Extended;
     fn neg(self) -> Extended {
-        Extended { hi: -self.hi, lo: -self.lo }
+        Extended {
+            hi: -self.hi,
+            lo: -self.lo,
+        }
     }
 }
 

@@ -28,7 +28,7 @@ fn series(a: f64, x: f64) -> f64 {
     for n in 1..MAX_TERMS {
         term *= x / (a + n as f64);
         sum += term;
-        if term < sum * TOLERANCE {
+        if term <= sum * TOLERANCE {
             break;
         }
     }
@@ -48,7 +48,7 @@ fn fraction(a: f64, x: f64) -> f64 {
         d = 1.0 / guard(an * d + b);
         c = guard(b + an / c);
         h *= d * c;
-        if (d * c - 1.0).abs() < TOLERANCE {
+        if (d * c - 1.0).abs() <= TOLERANCE {
             break;
         }
     }

@@ -18,8 +18,9 @@ use statrs::function::gamma::ln_gamma;
 
 /// ln √(2π).
 pub(crate) const LN_SQRT_2PI: f64 = 0.918_938_533_204_672_8;
-/// Relative tolerance at which series and continued fractions stop.
-const TOLERANCE: f64 = 1e-16;
+/// Relative tolerance at which series and continued fractions stop: one ulp of 1, the
+/// smallest change a step can still make (a tighter one may never be met).
+const TOLERANCE: f64 = f64::EPSILON;
 /// Guard against division by zero in the modified Lentz algorithm.
 const TINY: f64 = 1e-300;
 /// Iteration cap: convergence needs O(√max(a, b)) terms, far below this for any df in use.
@@ -39,7 +40,7 @@ pub(crate) fn ln_one_minus_exp(l: f64) -> f64 {
 ///
 /// # Formula
 /// For |t| < ½, with v = t / (2 + t) (so ln(1 + t) = 2 artanh v): t v - 2 Σ_{j≥1} v^(2j+1)/(2j+1)
-/// (Abramowitz and Stegun 1964, 4.1.27); otherwise t - ln(1 + t) directly.
+/// (the artanh series); otherwise t - ln(1 + t) directly.
 pub(crate) fn log1pmx(t: f64, one_plus_t: f64) -> f64 {
     if t.abs() >= 0.5 {
         return t - one_plus_t.ln();
