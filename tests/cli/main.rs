@@ -4,3 +4,4 @@ mod bad_input;
 mod common;
 mod deviations;
 mod happy;
+mod nist;
