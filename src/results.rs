@@ -319,3 +319,59 @@ fn sorted(v: serde_json::Value) -> serde_json::Value {
         other => other,
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sample() -> Results {
+        Results {
+            format: 1,
+            tool: Tool {
+                name: "sworn",
+                version: "0.0.0",
+            },
+            plan: PlanInfo {
+                path: "p.toml".into(),
+                bytes_sha256: "b".into(),
+                content_sha256: "c".into(),
+                sealed: true,
+                ledger_head: None,
+                integrity: "sealed-unchanged",
+            },
+            data: BTreeMap::new(),
+            specifications: BTreeMap::new(),
+            hypotheses: BTreeMap::new(),
+            contingencies: Vec::new(),
+            deviations: vec![Deviation::new(
+                "x",
+                crate::deviation::Severity::Note,
+                "s",
+                "m",
+            )],
+            digest: String::new(),
+        }
+    }
+
+    #[test]
+    fn digest_survives_the_file_round_trip() {
+        let mut r = sample();
+        r.plan.path = "0.1 + 0.2 = 0.30000000000000004".into();
+        r.digest = r.compute_digest();
+        let (recorded, recomputed) = digest_of_text(&r.to_file_text()).expect("digest");
+        assert_eq!(recorded, recomputed);
+        assert_eq!(recorded, r.digest);
+        let edited = r.to_file_text().replace("sealed-unchanged", "changed");
+        let (recorded, recomputed) = digest_of_text(&edited).expect("digest");
+        assert_ne!(recorded, recomputed);
+    }
+
+    #[test]
+    fn file_text_has_sorted_keys() {
+        let text = sample().to_file_text();
+        let contingencies = text.find("\"contingencies\"").expect("key");
+        let tool = text.find("\"tool\"").expect("key");
+        assert!(contingencies < tool);
+        assert!(text.ends_with("}\n"));
+    }
+}
