@@ -192,7 +192,7 @@ pub fn run(path: &Path, out: Option<&Path>, strict: bool) -> Result<(Outcome, Pa
         ledger::write_atomic(&abs_out.join(name), text.as_bytes())?;
     }
     let mut entry = Entry::new(Event::Run);
-    entry.plan = Some(PlanPrint::of(&plan.path, &plan.text)?);
+    entry.plan = Some(output.print.clone());
     entry.data = Some(hashes);
     entry.results_digest = Some(output.results.digest.clone());
     entry.outputs = Some(

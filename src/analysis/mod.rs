@@ -25,6 +25,8 @@ pub struct RunOutput {
     pub results: Results,
     /// Output files by name (results.json, report.md, report.tex), in writing order.
     pub files: Vec<(String, String)>,
+    /// The plan's fingerprints as used for this run.
+    pub print: PlanPrint,
 }
 
 /// Read every declared data table (schema deviations included).
@@ -129,7 +131,11 @@ pub fn execute(
         ("report.md".to_string(), md),
         ("report.tex".to_string(), tex),
     ];
-    Ok(RunOutput { results, files })
+    Ok(RunOutput {
+        results,
+        files,
+        print,
+    })
 }
 
 fn spec_deviations(

@@ -160,12 +160,8 @@ fn group_index(values: &[Option<String>], rows: &[usize]) -> (Vec<usize>, usize)
 pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
     let (n_sample, rows) = kept_rows(table, spec)?;
     let n = rows.len();
-    let y = DVector::from_iterator(
-        n,
-        rows.iter().map(|&r| {
-            column(table, &spec.outcome, spec).map_or(f64::NAN, |c| c[r].unwrap_or(f64::NAN))
-        }),
-    );
+    let outcome = column(table, &spec.outcome, spec)?;
+    let y = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
     let mut exog_cols: Vec<DVector<f64>> = Vec::new();
     let mut exog_names = Vec::new();
     let has_constant = spec.intercept || !spec.fixed_effects.is_empty();

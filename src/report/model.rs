@@ -360,10 +360,11 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
         ));
     }
     let order = spec_terms(s);
+    // First stage and reduced form share the regressors [instruments | exogenous terms].
+    let mut z_order = s.instruments.clone();
+    z_order.extend(order.iter().filter(|t| !s.endogenous.contains(t)).cloned());
     let mut blocks = Vec::new();
     for (name, fs) in r.first_stage.iter().flatten() {
-        let mut z_order = s.instruments.clone();
-        z_order.extend(order.iter().filter(|t| !s.endogenous.contains(t)).cloned());
         blocks.push(Block {
             title: format!("First stage for `{name}`"),
             terms: ordered_terms(&z_order, &fs.terms),
@@ -388,8 +389,6 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
         });
     }
     if let Some(rf) = &r.reduced_form {
-        let mut z_order = s.instruments.clone();
-        z_order.extend(order.iter().filter(|t| !s.endogenous.contains(t)).cloned());
         blocks.push(Block {
             title: format!(
                 "Reduced form (`{}` on instruments and controls)",
