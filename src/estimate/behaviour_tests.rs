@@ -4,7 +4,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::{
-    collinear_columns, endogeneity, first_stages, ols, overidentification, tsls, CovSpec,
+    collinear_columns, endogeneity, first_stages, ols, overidentification, tsls, Absorbed, CovSpec,
     EstimateError,
 };
 use crate::distribution::Reference;
@@ -43,7 +43,13 @@ fn collinear_names_the_later_column() {
 /// OLS refuses a rank-deficient design and names the dependent column.
 #[test]
 fn ols_rank_deficient() {
-    let err = ols(&outcome(8), &dummy_trap(), true, &CovSpec::Classical);
+    let err = ols(
+        &outcome(8),
+        &dummy_trap(),
+        true,
+        &CovSpec::Classical,
+        &Absorbed::NONE,
+    );
     assert_eq!(
         err,
         Err(EstimateError::RankDeficient { dependent: vec![2] })
@@ -56,7 +62,7 @@ fn ols_input_errors() {
     let x = dummy_trap().columns(0, 2).into_owned();
     let mut y = outcome(8);
     let one_cluster = CovSpec::Cluster { ids: vec![0; 8] };
-    let err = ols(&y, &x, true, &one_cluster);
+    let err = ols(&y, &x, true, &one_cluster, &Absorbed::NONE);
     assert_eq!(err, Err(EstimateError::TooFewClusters { clusters: 1 }));
     let short = x.rows(0, 2).into_owned();
     let err = ols(
@@ -64,13 +70,20 @@ fn ols_input_errors() {
         &short,
         true,
         &CovSpec::Classical,
+        &Absorbed::NONE,
     );
     assert_eq!(err, Err(EstimateError::TooFewObservations { n: 2, k: 2 }));
-    let err = ols(&y.rows(0, 7).into_owned(), &x, true, &CovSpec::Classical);
+    let err = ols(
+        &y.rows(0, 7).into_owned(),
+        &x,
+        true,
+        &CovSpec::Classical,
+        &Absorbed::NONE,
+    );
     assert!(matches!(err, Err(EstimateError::DimensionMismatch { .. })));
     y[3] = f64::NAN;
     assert_eq!(
-        ols(&y, &x, true, &CovSpec::Classical),
+        ols(&y, &x, true, &CovSpec::Classical, &Absorbed::NONE),
         Err(EstimateError::NotFinite)
     );
 }
@@ -83,9 +96,9 @@ fn unit_leverage_is_an_error() {
         2,
         |i, j| if j == 0 { 1.0 } else { (i == 4) as u8 as f64 },
     );
-    let err = ols(&outcome(6), &x, true, &CovSpec::Hc3);
+    let err = ols(&outcome(6), &x, true, &CovSpec::Hc3, &Absorbed::NONE);
     assert_eq!(err, Err(EstimateError::UnitLeverage { observation: 4 }));
-    assert!(ols(&outcome(6), &x, true, &CovSpec::Hc1).is_ok());
+    assert!(ols(&outcome(6), &x, true, &CovSpec::Hc1, &Absorbed::NONE).is_ok());
 }
 
 /// Exact fit y = 2 + 3t: coefficients by hand; t-reference uses n − k, or G − 1 clustered.
@@ -93,18 +106,18 @@ fn unit_leverage_is_an_error() {
 fn exact_fit_and_references() {
     let x = DMatrix::from_fn(6, 2, |i, j| if j == 0 { 1.0 } else { i as f64 });
     let y = DVector::from_fn(6, |i, _| 2.0 + 3.0 * i as f64);
-    let fit = ols(&y, &x, true, &CovSpec::Classical).expect("fit");
+    let fit = ols(&y, &x, true, &CovSpec::Classical, &Absorbed::NONE).expect("fit");
     assert!((fit.coef[0] - 2.0).abs() < 1e-14 && (fit.coef[1] - 3.0).abs() < 1e-14);
     assert!(fit.rss < 1e-24 && (fit.r_squared - 1.0).abs() < 1e-14);
     assert_eq!(fit.coef_reference, Reference::StudentT { df: 4.0 });
     let ids = vec![0, 0, 1, 1, 2, 2];
-    let clustered = ols(&y, &x, true, &CovSpec::Cluster { ids }).expect("fit");
+    let clustered = ols(&y, &x, true, &CovSpec::Cluster { ids }, &Absorbed::NONE).expect("fit");
     assert_eq!(clustered.coef_reference, Reference::StudentT { df: 2.0 });
     let two = CovSpec::TwoWay {
         first: vec![0, 0, 1, 1, 2, 2],
         second: vec![0, 1, 0, 1, 0, 1],
     };
-    let fit = ols(&y, &x, true, &two).expect("fit");
+    let fit = ols(&y, &x, true, &two, &Absorbed::NONE).expect("fit");
     assert_eq!(
         (fit.clusters, fit.coef_reference),
         (Some(2), Reference::StudentT { df: 1.0 })
@@ -126,7 +139,15 @@ fn iv_inputs() -> (DVector<f64>, DMatrix<f64>, DMatrix<f64>, DMatrix<f64>) {
 fn iv_errors_and_exact_identification() {
     let (y, exog, d, z) = iv_inputs();
     let none = DMatrix::zeros(12, 0);
-    let err = tsls(&y, &exog, &d, &none, true, &CovSpec::Classical);
+    let err = tsls(
+        &y,
+        &exog,
+        &d,
+        &none,
+        true,
+        &CovSpec::Classical,
+        &Absorbed::NONE,
+    );
     assert_eq!(
         err,
         Err(EstimateError::UnderIdentified {
@@ -135,20 +156,31 @@ fn iv_errors_and_exact_identification() {
         })
     );
     let doubled = DMatrix::from_columns(&[z.column(0).into_owned(), z.column(0) * 2.0]);
-    let err = tsls(&y, &exog, &d, &doubled, true, &CovSpec::Classical);
+    let err = tsls(
+        &y,
+        &exog,
+        &d,
+        &doubled,
+        true,
+        &CovSpec::Classical,
+        &Absorbed::NONE,
+    );
     assert_eq!(
         err,
         Err(EstimateError::InstrumentsRankDeficient { dependent: vec![1] })
     );
-    let err = tsls(&y, &exog, &d, &z, true, &CovSpec::Hc2);
+    let err = tsls(&y, &exog, &d, &z, true, &CovSpec::Hc2, &Absorbed::NONE);
     let refused = EstimateError::CovarianceUnavailable {
         estimator: "2sls",
         kind: "hc2",
     };
     assert_eq!(err, Err(refused));
     let just = z.columns(0, 1).into_owned();
-    assert_eq!(overidentification(&y, &exog, &d, &just), Ok(None));
-    assert!(overidentification(&y, &exog, &d, &z)
+    assert_eq!(
+        overidentification(&y, &exog, &d, &just, &Absorbed::NONE),
+        Ok(None)
+    );
+    assert!(overidentification(&y, &exog, &d, &z, &Absorbed::NONE)
         .expect("overid")
         .is_some());
 }
@@ -159,13 +191,55 @@ fn iv_errors_and_exact_identification() {
 #[test]
 fn instrument_equal_to_regressor_gives_ols() {
     let (y, exog, d, _) = iv_inputs();
-    let iv = tsls(&y, &exog, &d, &d, true, &CovSpec::Hc1).expect("2sls");
+    let iv = tsls(&y, &exog, &d, &d, true, &CovSpec::Hc1, &Absorbed::NONE).expect("2sls");
     let x = DMatrix::from_columns(&[d.column(0), exog.column(0)]);
-    let ls = ols(&y, &x, true, &CovSpec::Hc1).expect("ols");
+    let ls = ols(&y, &x, true, &CovSpec::Hc1, &Absorbed::NONE).expect("ols");
     assert!((&iv.coef - &ls.coef).amax() < 1e-12 && (&iv.cov - &ls.cov).amax() < 1e-12);
-    let stage = &first_stages(&exog, &d, &d, true, &CovSpec::Classical).expect("first")[0];
+    let stage =
+        &first_stages(&exog, &d, &d, true, &CovSpec::Classical, &Absorbed::NONE).expect("first")[0];
     assert!(stage.fit.rss < 1e-20 && (stage.partial_r_squared - 1.0).abs() < 1e-12);
     assert!(stage.f.statistic.is_infinite() && stage.f.statistic > 0.0);
-    let e = endogeneity(&y, &exog, &d, &d, true, &CovSpec::Classical);
+    let e = endogeneity(
+        &y,
+        &exog,
+        &d,
+        &d,
+        true,
+        &CovSpec::Classical,
+        &Absorbed::NONE,
+    );
     assert_eq!(e, Err(EstimateError::RankDeficient { dependent: vec![2] }));
+}
+
+/// Hansen's J needs a nonsingular moment covariance: 2 clusters cannot support 4 moment
+/// conditions (the clustered meat has rank at most 2); exact identification gives `None`.
+#[test]
+fn hansen_j_singular_and_exact() {
+    let (y, exog, d, z) = iv_inputs();
+    let two = CovSpec::Cluster {
+        ids: (0..12).map(|i| i % 2).collect(),
+    };
+    let err = super::hansen_j(&y, &exog, &d, &z, &two, &Absorbed::NONE);
+    assert_eq!(
+        err,
+        Err(EstimateError::SingularMomentCovariance { moments: 3 })
+    );
+    let just = z.columns(0, 1).into_owned();
+    let none = super::hansen_j(&y, &exog, &d, &just, &CovSpec::Hc0, &Absorbed::NONE);
+    assert_eq!(none, Ok(None));
+}
+
+/// Absorbed coefficients count against the sample: 12 rows cannot carry 2 regressors and
+/// 10 absorbed levels (n ≤ k + a).
+#[test]
+fn absorbed_degrees_of_freedom_limit_the_sample() {
+    let (y, exog, d, _) = iv_inputs();
+    let x = DMatrix::from_columns(&[d.column(0), exog.column(0)]);
+    let absorbed = Absorbed {
+        df: 10,
+        nested_df: 0,
+        leverage: None,
+    };
+    let err = ols(&y, &x, true, &CovSpec::Classical, &absorbed);
+    assert_eq!(err, Err(EstimateError::TooFewObservations { n: 12, k: 12 }));
 }

@@ -29,7 +29,7 @@ use std::collections::HashMap;
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
 use super::qr::PivotedQr;
-use super::EstimateError;
+use super::{Absorbed, EstimateError};
 
 /// Which coefficient covariance to compute.
 #[derive(Debug, Clone, PartialEq)]
@@ -101,9 +101,13 @@ pub(crate) fn covariance(
     resid: &DVector<f64>,
     spec: &CovSpec,
     leverage: Leverage,
+    absorbed: &Absorbed,
 ) -> Result<Covariance, EstimateError> {
     let t = qr.t_matrix();
-    let (n, k) = (resid.len(), t.nrows());
+    let n = resid.len();
+    // k counts absorbed coefficients for s² and HC1; k_cluster leaves out nested ones.
+    let k = t.nrows() + absorbed.df;
+    let k_cluster = k - absorbed.nested_df;
     let sandwich = |meat: DMatrix<f64>, c: f64| &t * meat * t.transpose() * c;
     let plain = |cov| Covariance {
         cov,
@@ -116,7 +120,7 @@ pub(crate) fn covariance(
         }
         CovSpec::Hc0 | CovSpec::Hc1 | CovSpec::Hc2 | CovSpec::Hc3 => {
             let q1 = qr.thin_q();
-            let weights = hc_weights(&q1, resid, spec, leverage)?;
+            let weights = hc_weights(&q1, resid, spec, leverage, absorbed)?;
             let c = if *spec == CovSpec::Hc1 {
                 n as f64 / (n - k) as f64
             } else {
@@ -127,7 +131,7 @@ pub(crate) fn covariance(
         CovSpec::Cluster { ids } => {
             let scores = scores(&qr.thin_q(), resid);
             let (meat, g) = cluster_meat(&scores, ids)?;
-            let cov = sandwich(meat, cr1_factor(g, n, k));
+            let cov = sandwich(meat, cr1_factor(g, n, k_cluster));
             Ok(Covariance {
                 cov,
                 clusters: Some(g),
@@ -138,8 +142,9 @@ pub(crate) fn covariance(
             let (meat_a, ga) = cluster_meat(&scores, first)?;
             let (meat_b, gb) = cluster_meat(&scores, second)?;
             let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;
-            let meat = meat_a * cr1_factor(ga, n, k) + meat_b * cr1_factor(gb, n, k)
-                - meat_ab * cr1_factor(gab, n, k);
+            let kc = k_cluster;
+            let meat = meat_a * cr1_factor(ga, n, kc) + meat_b * cr1_factor(gb, n, kc)
+                - meat_ab * cr1_factor(gab, n, kc);
             let cov = clamp_negative_eigenvalues(sandwich(meat, 1.0));
             Ok(Covariance {
                 cov,
@@ -155,6 +160,7 @@ fn hc_weights(
     resid: &DVector<f64>,
     spec: &CovSpec,
     leverage: Leverage,
+    absorbed: &Absorbed,
 ) -> Result<Vec<f64>, EstimateError> {
     let power = match spec {
         CovSpec::Hc2 => 1,
@@ -165,10 +171,20 @@ fn hc_weights(
         let kind = spec.name();
         return Err(EstimateError::CovarianceUnavailable { estimator, kind });
     }
+    let extra = match (&absorbed.leverage, absorbed.df) {
+        (Some(h), _) => Some(h),
+        (None, 0) => None,
+        (None, _) => {
+            let kind = spec.name();
+            let estimator = "absorbed fixed effects without their leverage";
+            return Err(EstimateError::CovarianceUnavailable { estimator, kind });
+        }
+    };
     let tol = q1.nrows().max(q1.ncols()) as f64 * f64::EPSILON;
     (0..q1.nrows())
         .map(|i| {
-            let one_minus_h = 1.0 - q1.row(i).norm_squared();
+            let h_absorbed = extra.map_or(0.0, |h| h[i]);
+            let one_minus_h = 1.0 - q1.row(i).norm_squared() - h_absorbed;
             if one_minus_h <= tol {
                 return Err(EstimateError::UnitLeverage { observation: i });
             }

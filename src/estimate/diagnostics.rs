@@ -6,9 +6,12 @@
 //! (L columns, q = L − |exog| excluded), P_A the orthogonal projection onto the columns of A,
 //! M_A = I − P_A. Every projection is applied through a Householder QR (module `qr`).
 //! Invariants: the same input validation as [`tsls`](super::tsls); robust statistics use the
-//! caller's [`CovSpec`] and refer to F(·, G − 1) when clustered, F(·, n − k) otherwise.
+//! caller's [`CovSpec`] and refer to F(·, G − 1) when clustered, F(·, n − k − a) otherwise
+//! (n − L − a for first stages). Every function takes the [`Absorbed`] fixed effects swept
+//! out of all its inputs beforehand (module `absorb`): each residual df and small-sample
+//! factor counts their a coefficients; pass [`Absorbed::NONE`] without fixed effects.
 
-use nalgebra::{DMatrix, DVector};
+use nalgebra::{Cholesky, DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::linear::{
@@ -18,8 +21,9 @@ use super::linear::{
 use super::qr::PivotedQr;
 use super::refine::residual;
 use super::wald::wald;
-use super::{EstimateError, LinearFit};
+use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::{Reference, TestStatistic};
+use std::collections::HashMap;
 
 /// The first-stage regression of one endogenous regressor.
 #[derive(Debug, Clone, PartialEq)]
@@ -32,6 +36,9 @@ pub struct FirstStage {
     pub robust_f: TestStatistic,
     /// Partial R² of the excluded instruments: 1 − RSS(endog_j on Z)/RSS(endog_j on exog).
     pub partial_r_squared: f64,
+    /// Shea's (1997) partial R² of endog_j (see [`first_stages`]); equals
+    /// `partial_r_squared` with one endogenous regressor.
+    pub shea_partial_r_squared: f64,
 }
 
 /// Tests of the null that the endogenous regressors are exogenous.
@@ -41,7 +48,7 @@ pub struct Endogeneity {
     pub control_function: TestStatistic,
     /// Durbin's statistic, chi²(p).
     pub durbin: TestStatistic,
-    /// Wu–Hausman statistic, F(p, n − k − p).
+    /// Wu–Hausman statistic, F(p, n − k − p − a).
     pub wu_hausman: TestStatistic,
 }
 
@@ -50,7 +57,7 @@ pub struct Endogeneity {
 pub struct Overidentification {
     /// Sargan's n·R², chi²(q − p).
     pub sargan: TestStatistic,
-    /// Basmann's statistic, chi²(q − p).
+    /// Basmann's statistic, chi²(q − p), with the factor n − L − a.
     pub basmann: TestStatistic,
 }
 
@@ -117,6 +124,15 @@ fn restricted_rss(y: &DVector<f64>, x: &DMatrix<f64>) -> Result<f64, EstimateErr
 /// with the classical covariance (identical); robust_f = b_Eᵀ V_E^{-1} b_E / q with V the
 /// caller's covariance (E the excluded instruments). Partial R² = 1 − RSS_u/RSS_r with
 /// RSS_r from endog_j on exog (Frisch–Waugh–Lovell; Bound, Jaeger and Baker 1995, JASA 90).
+/// With absorbed fixed effects the classical F has denominator df n − L − a and every
+/// covariance counts a (see [`Absorbed`]).
+///
+/// Shea's partial R² (Shea 1997, Economics Letters 57): with X̂ = P_Z X, x̃_j the residual
+/// of endog_j on the other columns of X and x̂̃_j the residual of x̂_j on the other columns of
+/// X̂, it is the squared correlation of x̃_j and x̂̃_j, which equals ‖x̂̃_j‖² / ‖x̃_j‖² =
+/// [(X'X)^{-1}]_jj / [(X̂'X̂)^{-1}]_jj (Godfrey 1999, Rev. Econ. Stat. 81). Both residuals
+/// are computed by least squares. It is 0 when the other columns of X̂ are collinear (the
+/// instruments then leave no variation of their own to x̂_j).
 ///
 /// An exact first stage (e.g. full compliance, endog_j = instrument) has F = +∞.
 ///
@@ -128,20 +144,32 @@ pub fn first_stages(
     instruments: &DMatrix<f64>,
     has_intercept: bool,
     cov: &CovSpec,
+    absorbed: &Absorbed,
 ) -> Result<Vec<FirstStage>, EstimateError> {
     let setup = iv_setup(&DVector::zeros(endog.nrows()), exog, endog, instruments)?;
+    require_observations(endog.nrows(), setup.z.ncols() + absorbed.df)?;
     let excluded: Vec<usize> = (0..instruments.ncols()).collect();
+    let shea = shea_partial_r_squared(&setup, endog.ncols())?;
     (0..endog.ncols())
         .map(|j| {
             let yj = endog.column(j).into_owned();
             let ls = solve_with(&setup.zqr, &setup.z, &yj);
-            let fit = assemble(&yj, &setup.z, &ls, has_intercept, cov, Leverage::Allowed)?;
+            let fit = assemble(
+                &yj,
+                &setup.z,
+                &ls,
+                has_intercept,
+                cov,
+                Leverage::Allowed,
+                absorbed,
+            )?;
             let classical = covariance(
                 &ls.qr,
                 &ls.design,
                 &fit.resid,
                 &CovSpec::Classical,
                 Leverage::Allowed,
+                absorbed,
             )?;
             let f = joint_f(&fit, &classical.cov, &excluded, fit.df_resid)?;
             let robust_f = joint_f(&fit, &fit.cov, &excluded, inference_df(&fit))?;
@@ -151,7 +179,36 @@ pub fn first_stages(
                 f,
                 robust_f,
                 partial_r_squared,
+                shea_partial_r_squared: shea[j],
             })
+        })
+        .collect()
+}
+
+/// The columns of `m` other than `j`.
+fn without_column(m: &DMatrix<f64>, j: usize) -> DMatrix<f64> {
+    m.clone().remove_column(j)
+}
+
+/// Shea's partial R² for each endogenous column (formula in [`first_stages`]).
+fn shea_partial_r_squared(setup: &IvSetup, endogenous: usize) -> Result<Vec<f64>, EstimateError> {
+    let mut xhat = setup.x.clone();
+    for j in 0..endogenous {
+        let projected = setup.zqr.project(&setup.x.column(j).into_owned());
+        xhat.set_column(j, &projected);
+    }
+    (0..endogenous)
+        .map(|j| {
+            let own = restricted_rss(
+                &setup.x.column(j).into_owned(),
+                &without_column(&setup.x, j),
+            )?;
+            let fitted = xhat.column(j).into_owned();
+            match restricted_rss(&fitted, &without_column(&xhat, j)) {
+                Ok(projected) => Ok(projected / own),
+                Err(EstimateError::RankDeficient { .. }) => Ok(0.0),
+                Err(e) => Err(e),
+            }
         })
         .collect()
 }
@@ -159,7 +216,8 @@ pub fn first_stages(
 /// The reduced form: y on [instruments | exog].
 ///
 /// # Formula
-/// OLS of y on Z (as [`ols`](super::ols)); coefficients in `[instruments | exog]` order.
+/// OLS of y on Z (as [`ols`](super::ols), absorbed fixed effects counted likewise);
+/// coefficients in `[instruments | exog]` order.
 ///
 /// # Errors
 /// As [`ols`](super::ols); collinear instruments are
@@ -170,12 +228,13 @@ pub fn reduced_form(
     instruments: &DMatrix<f64>,
     has_intercept: bool,
     cov: &CovSpec,
+    absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
     validate(y, &[("exog", exog), ("instruments", instruments)])?;
     let z = hcat(instruments, exog);
-    require_observations(z.nrows(), z.ncols())?;
+    require_observations(z.nrows(), z.ncols() + absorbed.df)?;
     let ls = solve_with(&instrument_qr(&z)?, &z, y);
-    assemble(y, &z, &ls, has_intercept, cov, Leverage::Allowed)
+    assemble(y, &z, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
 }
 
 /// First-stage residuals V̂ = M_Z endog (n × p).
@@ -212,17 +271,18 @@ fn first_stage_residuals(
 /// # Formula
 /// * Control function (Hausman 1978, Econometrica 46, section 2; the regression form):
 ///   regress y on [endog | exog | V̂], V̂ = M_Z endog, and test the V̂ coefficients jointly
-///   with the caller's covariance: Wald/p, F(p, n − k − p), or F(p, G − 1) clustered.
+///   with the caller's covariance: Wald/p, F(p, n − k − p − a), or F(p, G − 1) clustered.
 /// * With e_o the OLS residuals of y on X and e_iv the 2SLS residuals, let
 ///   δ = e_oᵀ P_[Z, endog] e_o − e_ivᵀ P_Z e_iv (the difference of the two quadratic forms
 ///   compared by Durbin 1954, Rev. Int. Statist. Inst. 22, and Wu 1973, Econometrica 41).
-///   Durbin = δ / (e_oᵀe_o / n), chi²(p). Wu–Hausman = (δ/p) / [(e_oᵀe_o − δ)/(n − k − p)],
-///   F(p, n − k − p) (Wu 1973, T₂; Hausman 1978). δ equals the drop in RSS from adding V̂ to
+///   Durbin = δ / (e_oᵀe_o / n), chi²(p). Wu–Hausman =
+///   (δ/p) / [(e_oᵀe_o − δ)/(n − k − p − a)], F(p, n − k − p − a) (Wu 1973, T₂; Hausman
+///   1978), a the absorbed coefficients. δ equals the drop in RSS from adding V̂ to
 ///   the OLS regression, so Wu–Hausman equals the control-function F with classical errors
 ///   (an identity the reference fixtures confirm to 1e-14, exactly and over-identified).
 ///
 /// # Errors
-/// As [`tsls`](super::tsls); [`EstimateError::TooFewObservations`] unless n > k + p;
+/// As [`tsls`](super::tsls); [`EstimateError::TooFewObservations`] unless n > k + p + a;
 /// [`EstimateError::RankDeficient`] (indices into [endog | exog | V̂]) when the augmented
 /// design is singular, e.g. when an endogenous column lies in the span of Z (V̂ = 0).
 pub fn endogeneity(
@@ -232,21 +292,30 @@ pub fn endogeneity(
     instruments: &DMatrix<f64>,
     has_intercept: bool,
     cov: &CovSpec,
+    absorbed: &Absorbed,
 ) -> Result<Endogeneity, EstimateError> {
     let setup = iv_setup(y, exog, endog, instruments)?;
     let (n, k, p) = (y.len(), setup.x.ncols(), endog.ncols());
-    require_observations(n, k + p)?;
+    require_observations(n, (k + p).max(setup.z.ncols()) + absorbed.df)?;
     let augmented = hcat(&setup.x, &first_stage_residuals(&setup, p)?);
     let ls = least_squares(y, &augmented)?;
-    let cf = assemble(y, &augmented, &ls, has_intercept, cov, Leverage::Allowed)?;
+    let cf = assemble(
+        y,
+        &augmented,
+        &ls,
+        has_intercept,
+        cov,
+        Leverage::Allowed,
+        absorbed,
+    )?;
     let tested: Vec<usize> = (k..k + p).collect();
     let control_function = joint_f(&cf, &cf.cov, &tested, inference_df(&cf))?;
     let e_o = least_squares(y, &setup.x)?.resid;
-    let e_iv = tsls_from(y, &setup, p, has_intercept, &CovSpec::Classical)?.resid;
+    let e_iv = tsls_from(y, &setup, p, has_intercept, &CovSpec::Classical, absorbed)?.resid;
     let wide = instrument_qr(&hcat(&setup.z, &endog.clone_owned()))?;
     let delta = wide.project(&e_o).norm_squared() - setup.zqr.project(&e_iv).norm_squared();
     let rss_o = e_o.norm_squared();
-    let (pf, df2) = (p as f64, (n - k - p) as f64);
+    let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
     Ok(Endogeneity {
         control_function,
         durbin: TestStatistic {
@@ -266,7 +335,9 @@ pub fn endogeneity(
 /// With e the 2SLS residuals and R² = eᵀP_Z e / eᵀe (uncentered; equal to the centered one
 /// when exog holds an intercept, since then e sums to zero):
 /// Sargan (1958, Econometrica 26) = n·R², chi²(q − p);
-/// Basmann (1960, JASA 55) = (n − L)·eᵀP_Z e / eᵀM_Z e, chi²(q − p).
+/// Basmann (1960, JASA 55) = (n − L − a)·eᵀP_Z e / eᵀM_Z e, chi²(q − p), a the absorbed
+/// coefficients (with swept inputs, e and P_Z e are those of the regression with explicit
+/// dummies, so Sargan needs no change).
 /// Both assume homoskedastic errors and do not depend on the covariance choice.
 ///
 /// # Errors
@@ -276,17 +347,20 @@ pub fn overidentification(
     exog: &DMatrix<f64>,
     endog: &DMatrix<f64>,
     instruments: &DMatrix<f64>,
+    absorbed: &Absorbed,
 ) -> Result<Option<Overidentification>, EstimateError> {
     let setup = iv_setup(y, exog, endog, instruments)?;
+    require_observations(y.len(), setup.z.ncols().max(setup.x.ncols()) + absorbed.df)?;
     let over = instruments.ncols() - endog.ncols();
     if over == 0 {
         return Ok(None);
     }
-    let e = tsls_from(y, &setup, endog.ncols(), false, &CovSpec::Classical)?.resid;
+    let classical = CovSpec::Classical;
+    let e = tsls_from(y, &setup, endog.ncols(), false, &classical, absorbed)?.resid;
     let projected = setup.zqr.project(&e);
     let explained = projected.norm_squared();
     let unexplained = (&e - &projected).norm_squared();
-    let (n, l) = (y.len() as f64, setup.z.ncols() as f64);
+    let (n, l) = (y.len() as f64, (setup.z.ncols() + absorbed.df) as f64);
     let reference = Reference::ChiSquare { df: over as f64 };
     Ok(Some(Overidentification {
         sargan: TestStatistic {
@@ -297,5 +371,129 @@ pub fn overidentification(
             statistic: (n - l) * explained / unexplained,
             reference,
         },
+    }))
+}
+
+/// Ω = Σ_c s_c s_cᵀ with s_c the sums of the moment rows qᵢ uᵢ over the groups `ids`
+/// (one group per observation when `ids` is `None`).
+fn moment_meat(
+    q: &DMatrix<f64>,
+    u: &DVector<f64>,
+    ids: Option<&[usize]>,
+) -> Result<DMatrix<f64>, EstimateError> {
+    let (n, l) = q.shape();
+    let mut scores = q.clone();
+    for (i, ui) in u.iter().enumerate() {
+        scores.row_mut(i).scale_mut(*ui);
+    }
+    let Some(ids) = ids else {
+        return Ok(scores.transpose() * scores);
+    };
+    if ids.len() != n {
+        return Err(EstimateError::ClusterLength { n, ids: ids.len() });
+    }
+    let mut index = HashMap::new();
+    let mut sums: Vec<DVector<f64>> = Vec::new();
+    for (i, id) in ids.iter().enumerate() {
+        let next = index.len();
+        let c = *index.entry(*id).or_insert(next);
+        if c == sums.len() {
+            sums.push(DVector::zeros(l));
+        }
+        sums[c] += scores.row(i).transpose();
+    }
+    if sums.len() < 2 {
+        return Err(EstimateError::TooFewClusters {
+            clusters: sums.len(),
+        });
+    }
+    Ok(sums
+        .iter()
+        .fold(DMatrix::zeros(l, l), |acc, s| acc + s * s.transpose()))
+}
+
+/// Hansen's (1982, Econometrica 50) J test of the overidentifying restrictions from
+/// two-step efficient GMM; `None` when exactly identified.
+///
+/// # Formula
+/// Step 1 is 2SLS, with residuals u. With Z = [instruments | exog] (L columns) and
+/// Ω = Σᵢ uᵢ² zᵢ zᵢᵀ (heteroskedasticity-robust), or Ω = Σ_g (Σ_{i∈g} zᵢ uᵢ)(Σ_{i∈g} zᵢ uᵢ)ᵀ
+/// for `CovSpec::Cluster`, step 2 is b = argmin_β (Z'(y − Xβ))ᵀ Ω^{-1} Z'(y − Xβ) and
+/// J = (Z'e)ᵀ Ω^{-1} Z'e at e = y − X b, i.e. n·ḡᵀ S^{-1} ḡ with ḡ = Z'e/n, S = Ω/n; chi²(q − p).
+///
+/// Conventions: Ω is evaluated at the step-1 (2SLS) residuals, is not centered (the mean of
+/// the moment rows is not subtracted) and has no small-sample factor, so J is the same
+/// whatever degrees of freedom are absorbed; these are the conventions of linearmodels'
+/// IVGMM with its default two steps, `center=False` and `debiased=False`, the oracle of the
+/// reference tests. `CovSpec::Classical`, HC0, HC1, HC2 and HC3 all use the HC0 meat above
+/// (the homoskedastic counterpart is Sargan's statistic in [`overidentification`]).
+/// Fixed effects swept out beforehand need no further adjustment: the moments of the
+/// dummies are exactly identified by their coefficients, and concentrating them out leaves
+/// the J of the swept moments (a partitioned-GMM identity). `absorbed` only enters the check
+/// that n exceeds L + a. Computed in the orthonormal basis Q of span(Z) (J and b are invariant
+/// to a nonsingular change of instruments) through the Cholesky factor of Ω, so step 2 is an
+/// L × k least-squares problem whose residual sum of squares is J.
+///
+/// # Errors
+/// As [`tsls`](super::tsls); [`EstimateError::CovarianceUnavailable`] for two-way clusters;
+/// cluster errors as for the covariance; [`EstimateError::SingularMomentCovariance`] when Ω
+/// is numerically singular (for example fewer clusters than instruments).
+pub fn hansen_j(
+    y: &DVector<f64>,
+    exog: &DMatrix<f64>,
+    endog: &DMatrix<f64>,
+    instruments: &DMatrix<f64>,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+) -> Result<Option<TestStatistic>, EstimateError> {
+    let setup = iv_setup(y, exog, endog, instruments)?;
+    let (n, l, k) = (y.len(), setup.z.ncols(), setup.x.ncols());
+    require_observations(n, l.max(k) + absorbed.df)?;
+    let ids = match cov {
+        CovSpec::TwoWay { .. } => {
+            let kind = cov.name();
+            return Err(EstimateError::CovarianceUnavailable {
+                estimator: "hansen j",
+                kind,
+            });
+        }
+        CovSpec::Cluster { ids } => Some(ids.as_slice()),
+        _ => None,
+    };
+    let over = instruments.ncols() - endog.ncols();
+    if over == 0 {
+        return Ok(None);
+    }
+    let u = tsls_from(
+        y,
+        &setup,
+        endog.ncols(),
+        false,
+        &CovSpec::Classical,
+        absorbed,
+    )?
+    .resid;
+    let q = setup.zqr.thin_q();
+    let omega = moment_meat(&q, &u, ids)?;
+    let singular = EstimateError::SingularMomentCovariance { moments: l };
+    let max_diag = omega.diagonal().max();
+    let chol = Cholesky::new(omega).ok_or(singular.clone())?;
+    let factor = chol.l();
+    let tol = n.max(l) as f64 * f64::EPSILON * max_diag;
+    if factor.diagonal().iter().any(|d| d * d <= tol) {
+        return Err(singular);
+    }
+    let whiten = |m: DMatrix<f64>| {
+        factor
+            .solve_lower_triangular(&m)
+            .ok_or(EstimateError::SingularMomentCovariance { moments: l })
+    };
+    let xt = whiten(q.transpose() * &setup.x)?;
+    let yt = whiten(q.transpose() * DMatrix::from_column_slice(n, 1, y.as_slice()))?;
+    let yt = yt.column(0).into_owned();
+    let statistic = least_squares(&yt, &xt)?.resid.norm_squared();
+    Ok(Some(TestStatistic {
+        statistic,
+        reference: Reference::ChiSquare { df: over as f64 },
     }))
 }

@@ -9,7 +9,7 @@ use nalgebra::{DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::qr::{collinear_columns, PivotedQr};
 use super::refine::residual;
-use super::{EstimateError, LinearFit};
+use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::Reference;
 
 /// A solved least-squares problem: the factorised design and its coefficients.
@@ -85,14 +85,16 @@ pub(crate) fn assemble(
     has_intercept: bool,
     spec: &CovSpec,
     leverage: Leverage,
+    absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
     let (n, k) = x.shape();
+    require_observations(n, k + absorbed.df)?;
     let fitted = x * &ls.coef;
     let resid = residual(x, y, &ls.coef);
-    let cov = covariance(&ls.qr, &ls.design, &resid, spec, leverage)?;
+    let cov = covariance(&ls.qr, &ls.design, &resid, spec, leverage, absorbed)?;
     let rss = resid.norm_squared();
     let tss = total_sum_of_squares(y, has_intercept);
-    let df_resid = n - k;
+    let df_resid = n - k - absorbed.df;
     let df = cov.clusters.map_or(df_resid, |g| g - 1);
     Ok(LinearFit {
         coef: ls.coef.clone(),
@@ -117,20 +119,25 @@ pub(crate) fn assemble(
 /// b = argmin ‖y − X b‖², computed from X S P = Q R as b = S P R^{-1} Q₁ᵀ y and refined on
 /// the augmented system (Björck 1967); covariance as documented in `covariance`.
 ///
+/// With fixed effects swept out of `y` and `x` beforehand (module `absorb`), `absorbed`
+/// makes the residual df n − k − a and the small-sample factors count them (see
+/// [`Absorbed`]); pass [`Absorbed::NONE`] otherwise.
+///
 /// # Errors
 /// [`EstimateError::NotFinite`], [`EstimateError::DimensionMismatch`],
-/// [`EstimateError::TooFewObservations`] (n ≤ k), [`EstimateError::RankDeficient`], and the
-/// covariance errors (clusters, leverage).
+/// [`EstimateError::TooFewObservations`] (n ≤ k + a), [`EstimateError::RankDeficient`], and
+/// the covariance errors (clusters, leverage).
 pub fn ols(
     y: &DVector<f64>,
     x: &DMatrix<f64>,
     has_intercept: bool,
     cov: &CovSpec,
+    absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
     validate(y, &[("x", x)])?;
-    require_observations(x.nrows(), x.ncols())?;
+    require_observations(x.nrows(), x.ncols() + absorbed.df)?;
     let ls = least_squares(y, x)?;
-    assemble(y, x, &ls, has_intercept, cov, Leverage::Allowed)
+    assemble(y, x, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
 }
 
 /// Horizontal concatenation `[a | b]` (same number of rows).
@@ -199,7 +206,10 @@ pub(crate) fn iv_setup(
 /// [`EstimateError::RankDeficient`] naming j when ‖P_Z endog_j‖ ≤ max(n, L)·eps·‖endog_j‖
 /// (instruments orthogonal to endog_j: the projection is rounding noise, which unit-norm
 /// column scaling must not be allowed to turn into a regressor).
-fn projected_regressors(setup: &IvSetup, endogenous: usize) -> Result<DMatrix<f64>, EstimateError> {
+pub(crate) fn projected_regressors(
+    setup: &IvSetup,
+    endogenous: usize,
+) -> Result<DMatrix<f64>, EstimateError> {
     let (n, l) = setup.z.shape();
     let tol = n.max(l) as f64 * f64::EPSILON;
     let mut xhat = setup.x.clone();
@@ -226,13 +236,14 @@ fn projected_regressors(setup: &IvSetup, endogenous: usize) -> Result<DMatrix<f6
 /// b = (X̂'X̂)^{-1} X̂'y (Theil 1953; Basmann 1957), computed by QR of X̂. Residuals are
 /// structural, u = y − X b; the classical covariance is s² (X̂'X̂)^{-1} with
 /// s² = u'u/(n − k); HC0/HC1/cluster sandwiches use X̂ and u (White 1982, Econometrica 50).
-/// r_squared = 1 − u'u/tss and may be negative.
+/// r_squared = 1 − u'u/tss and may be negative. `absorbed` counts swept fixed effects in
+/// every df (s² uses n − k − a), as for [`ols`].
 ///
 /// # Errors
 /// As [`ols`], plus [`EstimateError::UnderIdentified`],
 /// [`EstimateError::InstrumentsRankDeficient`], and
 /// [`EstimateError::CovarianceUnavailable`] for HC2/HC3. n must exceed both k and the number
-/// of instruments.
+/// of instruments, each plus the absorbed a.
 pub fn tsls(
     y: &DVector<f64>,
     exog: &DMatrix<f64>,
@@ -240,9 +251,11 @@ pub fn tsls(
     instruments: &DMatrix<f64>,
     has_intercept: bool,
     cov: &CovSpec,
+    absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
     let setup = iv_setup(y, exog, endog, instruments)?;
-    tsls_from(y, &setup, endog.ncols(), has_intercept, cov)
+    require_observations(y.len(), setup.z.ncols().max(setup.x.ncols()) + absorbed.df)?;
+    tsls_from(y, &setup, endog.ncols(), has_intercept, cov, absorbed)
 }
 
 /// 2SLS on a prepared [`IvSetup`].
@@ -252,6 +265,7 @@ pub(crate) fn tsls_from(
     endogenous: usize,
     has_intercept: bool,
     cov: &CovSpec,
+    absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
     let xhat = projected_regressors(setup, endogenous)?;
     let ls = least_squares(y, &xhat)?;
@@ -262,5 +276,6 @@ pub(crate) fn tsls_from(
         has_intercept,
         cov,
         Leverage::Refused("2sls"),
+        absorbed,
     )
 }

@@ -3,18 +3,22 @@
 //! Source: `tests/reference/fixtures/*.json`, written by `tests/reference/generate.py` from
 //! invented, seeded data with statsmodels (OLS, HC0–HC3, one- and two-way clusters, Wald
 //! tests) and linearmodels IV2SLS (2SLS, first-stage diagnostics, Durbin, Wu–Hausman,
-//! Sargan, Basmann); each fixture records the library versions. Every quantity must agree to
+//! Sargan, Basmann, first-stage Shea partial R²), linearmodels IVGMM (Hansen's J), and the
+//! fixed-effect cases (module `fixed_effects`: the same libraries on explicit dummy
+//! columns); each fixture records the library versions. Every quantity must agree to
 //! [`TOL`] relative; each test prints the largest relative difference per quantity.
 //! Invariant: a missing fixture is a failure (they are committed with the crate).
 
+mod fixed_effects;
 mod iv;
+mod plan;
 
 use std::collections::BTreeMap;
 
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
 
-use super::{ols, CovSpec, LinearFit};
+use super::{ols, Absorbed, CovSpec, LinearFit};
 
 /// Relative tolerance for every fixture comparison.
 pub(super) const TOL: f64 = 1e-8;
@@ -85,13 +89,32 @@ impl Fixture {
         m
     }
 
+    /// The rows flagged in `keep` (one flag per row).
+    pub(super) fn keep_rows(&self, keep: &[bool]) -> Fixture {
+        assert_eq!(keep.len(), self.n, "one flag per row");
+        let columns = self
+            .columns
+            .iter()
+            .map(|(k, c)| {
+                let kept = c.iter().zip(keep).filter(|(_, k)| **k).map(|(v, _)| *v);
+                (k.clone(), kept.collect())
+            })
+            .collect();
+        Fixture {
+            columns,
+            setup: self.setup.clone(),
+            expected: self.expected.clone(),
+            n: keep.iter().filter(|k| **k).count(),
+        }
+    }
+
     /// The column `name` as a vector.
     pub(super) fn vector(&self, name: &Value) -> DVector<f64> {
         DVector::from_vec(self.columns[name.as_str().expect("name")].clone())
     }
 
-    /// Cluster ids from an integer column.
-    fn ids(&self, name: &str) -> Vec<usize> {
+    /// Ids from an integer column (clusters, fixed-effect levels).
+    pub(super) fn ids(&self, name: &str) -> Vec<usize> {
         self.columns[name].iter().map(|&v| v as usize).collect()
     }
 
@@ -185,7 +208,7 @@ fn check_ols(case: &str) {
     );
     let mut t = Tracker::default();
     for kind in OLS_KINDS {
-        let fit = ols(&y, &x, intercept, &fx.spec(kind)).expect("fixture fit");
+        let fit = ols(&y, &x, intercept, &fx.spec(kind), &Absorbed::NONE).expect("fixture fit");
         t.fit("", &fit, ex);
         t.vector(&format!("se {kind}"), &fit.std_errors(), &ex["se"][kind]);
         assert_eq!(fit.df_resid as u64, ex["df_resid"].as_u64().expect("df"));

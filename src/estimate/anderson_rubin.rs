@@ -1,0 +1,576 @@
+//! The Anderson–Rubin test for one endogenous regressor and its exactly inverted
+//! confidence set.
+//!
+//! Role: weak-instrument-robust inference on the coefficient β of a single endogenous
+//! regressor x in y = x β + W γ + u, with L excluded instruments Z and exogenous columns W
+//! (the caller includes any intercept in W).
+//!
+//! # The test (Anderson and Rubin 1949, Annals of Mathematical Statistics 20)
+//! AR(β₀) tests that the coefficients g(β₀) of Z are zero in the regression of y − x β₀ on
+//! D = [Z | W]. With e_y, e_x the residuals and π_y, π_x the Z-coefficients of y and x on D,
+//! the residuals and Z-coefficients of y − x β are, exactly, u(β) = e_y − β e_x and
+//! g(β) = π_y − β π_x. The statistic is AR(β) = g(β)ᵀ V(β)^{-1} g(β) / L, with V(β) the
+//! Z-block of the coefficient covariance computed from u(β) under the caller's [`CovSpec`]:
+//! * classical: the homoskedastic F, referred to F(L, n − L − |W| − a);
+//! * HC0–HC3, one- and two-way clusters: Wald/L referred to F(L, n − L − |W| − a), or to
+//!   F(L, G − 1) when clustered (G the cluster count; two-way: the smaller one), the
+//!   convention used for every robust test in this codebase.
+//!
+//! a = `absorbed.df` (fixed effects swept out by the caller) enters every df and every
+//! small-sample factor through the covariance estimators.
+//!
+//! # The confidence set, inverted exactly
+//! CS = {β : AR(β) ≤ c}, c the `confidence` quantile of the reference F. It is a union of
+//! disjoint intervals, possibly with infinite ends. As β → ±∞, AR(β) tends to the first-stage
+//! Wald/L of x on D under the same covariance, so the set is unbounded iff that first-stage
+//! statistic is at most c.
+//! * Classical (any L): with Y = [y, x], R = M_W Z, A = Yᵀ P_R Y = [π_y π_x]ᵀRᵀR[π_y π_x]
+//!   and B = [e_y e_x]ᵀ[e_y e_x], AR(β) ≤ c ⇔ bᵀ(A − κB)b ≤ 0 with b = (1, −β) and
+//!   κ = c L / (n − L − |W| − a): a quadratic inequality a₂β² − 2hβ + k₀ ≤ 0.
+//! * Robust with L = 1 (not two-way): AR(β) = g(β)²/v(β) with v(β) = v₀ − 2βv₁ + β²v₂
+//!   exactly quadratic (every estimator is a quadratic form in the residuals); v₀, v₂ are the
+//!   variances from e_y and e_x, and v₁ is recovered by polarisation,
+//!   v₁ = [v(−s) − v(s)]/(4s) with s = ‖e_y‖/‖e_x‖ to balance the two scales. Then
+//!   AR ≤ c ⇔ (π_x² − c v₂)β² − 2(π_xπ_y − c v₁)β + (π_y² − c v₀) ≤ 0.
+//! * The quadratic a₂β² − 2hβ + k₀ ≤ 0 is solved in closed form: Δ = h² − a₂k₀ (evaluated
+//!   with fused multiply-adds, Kahan's discriminant), roots q/a₂ and k₀/q with
+//!   q = h + sign(h)√Δ (no cancellation). a₂ > 0: an interval, or empty if Δ < 0;
+//!   a₂ < 0: two rays, or the whole line if Δ < 0; |a₂| at rounding level (below
+//!   16·eps times the magnitude of the terms it is the difference of): a₂ is treated as 0 and
+//!   the set is a single ray (or the line, or empty).
+//! * Robust with L > 1, and two-way clustering for any L (its eigenvalue clamp makes V(β)
+//!   non-polynomial): AR(β) ≤ c ⇔ det(cL·V(β) − g gᵀ) ≥ 0 while V(β) ≻ 0 (matrix
+//!   determinant lemma), a polynomial of degree 2L, so there are at most 2L boundary
+//!   points. They are found numerically on the whole line: β = β_c + s_c tan θ with β_c,
+//!   s_c a 2SLS-type centre and scale, θ ∈ [−π/2, π/2] on a grid of [`GRID`] + 1 nodes (both
+//!   ends are β = ∞, evaluated in the homogeneous form u = cos θ·ũ_y − sin θ·ũ_x, which is
+//!   exact there). Every sign change of AR − c between adjacent nodes is refined by
+//!   bisection in θ to the last bit; at each grid-local extremum that does not change sign
+//!   the extremum is located by golden-section search and, if it crosses c, both boundary
+//!   points beside it are refined. Guarantee: every boundary point separated from the others
+//!   by more than a grid cell (π/[`GRID`] in θ) is found to full precision, as is every pair
+//!   straddling a grid-visible extremum; a pair of boundary points within one cell with no
+//!   grid-visible extremum (a sliver narrower than the cell) can be missed.
+//! * Evaluation points where V(β) is singular (u(β) = 0: an exact fit) count as rejected.
+
+use nalgebra::{DMatrix, DVector};
+
+use super::covariance::{covariance, CovSpec, Covariance, Leverage};
+use super::linear::{iv_setup, require_observations};
+use super::qr::PivotedQr;
+use super::refine::residual;
+use super::wald::wald;
+use super::{Absorbed, EstimateError};
+use crate::distribution::{Reference, TestStatistic};
+use crate::inference::quantile;
+
+/// Grid cells in θ for the numerical inversion (robust, L > 1, or two-way).
+pub const GRID: usize = 2048;
+
+/// A confidence set for a scalar coefficient: a union of closed intervals.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ConfidenceSet {
+    /// Sorted, disjoint intervals (lo, hi) with lo ≤ hi; lo may be −∞ and hi +∞.
+    pub pieces: Vec<(f64, f64)>,
+}
+
+/// The shape of a [`ConfidenceSet`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SetShape {
+    /// No value of β is accepted.
+    Empty,
+    /// One finite interval.
+    Bounded,
+    /// (−∞, a] ∪ [b, +∞) with a < b.
+    TwoRays,
+    /// Every β is accepted.
+    WholeLine,
+    /// Anything else (a single ray, or several pieces).
+    Other,
+}
+
+impl ConfidenceSet {
+    /// The shape of the set.
+    pub fn shape(&self) -> SetShape {
+        match self.pieces.as_slice() {
+            [] => SetShape::Empty,
+            [(lo, hi)] if lo.is_finite() && hi.is_finite() => SetShape::Bounded,
+            [(lo, hi)] if *lo == f64::NEG_INFINITY && *hi == f64::INFINITY => SetShape::WholeLine,
+            [(lo, _), (_, hi)] if *lo == f64::NEG_INFINITY && *hi == f64::INFINITY => {
+                SetShape::TwoRays
+            }
+            _ => SetShape::Other,
+        }
+    }
+
+    /// Whether the set is bounded (the empty set counts as bounded).
+    pub fn is_bounded(&self) -> bool {
+        self.pieces
+            .iter()
+            .all(|(lo, hi)| lo.is_finite() && hi.is_finite())
+    }
+
+    /// Whether β belongs to the set.
+    pub fn contains(&self, beta: f64) -> bool {
+        self.pieces.iter().any(|&(lo, hi)| lo <= beta && beta <= hi)
+    }
+
+    /// Sorts and merges touching or overlapping pieces.
+    fn normalised(mut pieces: Vec<(f64, f64)>) -> Self {
+        pieces.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let mut out: Vec<(f64, f64)> = Vec::with_capacity(pieces.len());
+        for (lo, hi) in pieces {
+            match out.last_mut() {
+                Some(last) if lo <= last.1 => last.1 = last.1.max(hi),
+                _ => out.push((lo, hi)),
+            }
+        }
+        ConfidenceSet { pieces: out }
+    }
+}
+
+/// The Anderson–Rubin test of β = β₀ and the confidence set from inverting it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AndersonRubin {
+    /// AR(β₀) and its reference F distribution.
+    pub test: TestStatistic,
+    /// {β : AR(β) ≤ critical value}.
+    pub set: ConfidenceSet,
+    /// The critical value: the `confidence` quantile of the reference F.
+    pub critical_value: f64,
+}
+
+/// Anderson–Rubin test of β = `beta0` and its `confidence`-level set, for one endogenous
+/// regressor (`endog`, n × 1), excluded `instruments` (n × L) and `exog` W (n × |W|).
+///
+/// # Formula
+/// See the module documentation: AR(β) = g(β)ᵀV(β)^{-1}g(β)/L from the regression of
+/// y − xβ on [Z | W], referred to F(L, n − L − |W| − a) (F(L, G − 1) when clustered),
+/// a = `absorbed.df`; the set is inverted exactly.
+///
+/// # Errors
+/// As [`tsls`](super::tsls) for the inputs (HC2/HC3 are allowed: the regressions are OLS);
+/// [`EstimateError::DimensionMismatch`] (`what` = "endog columns") unless `endog` has
+/// exactly one column; [`EstimateError::TooFewObservations`] unless n > L + |W| + a;
+/// [`EstimateError::NotFinite`] for a non-finite `beta0` or a `confidence` outside (0, 1);
+/// [`EstimateError::SingularCovariance`] when V(β₀) is singular.
+#[allow(clippy::too_many_arguments)]
+pub fn anderson_rubin(
+    y: &DVector<f64>,
+    exog: &DMatrix<f64>,
+    endog: &DMatrix<f64>,
+    instruments: &DMatrix<f64>,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+    beta0: f64,
+    confidence: f64,
+) -> Result<AndersonRubin, EstimateError> {
+    if endog.ncols() != 1 {
+        return Err(EstimateError::DimensionMismatch {
+            what: "endog columns",
+            expected: 1,
+            got: endog.ncols(),
+        });
+    }
+    if !(beta0.is_finite() && confidence > 0.0 && confidence < 1.0) {
+        return Err(EstimateError::NotFinite);
+    }
+    let setup = iv_setup(y, exog, endog, instruments)?;
+    let problem = Problem::new(
+        y,
+        exog,
+        endog,
+        instruments,
+        setup.z,
+        setup.zqr,
+        cov,
+        absorbed,
+    )?;
+    let reference = problem.reference();
+    let x = endog.column(0).into_owned();
+    let shifted = y - &x * beta0;
+    let coef = problem.zqr.solve(&problem.z, &shifted);
+    let resid = residual(&problem.z, &shifted, &coef);
+    let indices: Vec<usize> = (0..problem.l).collect();
+    let v = problem.covariance(&resid)?;
+    let statistic = wald(&coef, &v.cov, &indices)? / problem.l as f64;
+    let critical_value = quantile(&reference, confidence);
+    if !critical_value.is_finite() {
+        return Err(EstimateError::NotFinite);
+    }
+    let set = problem.confidence_set(critical_value)?;
+    Ok(AndersonRubin {
+        test: TestStatistic {
+            statistic,
+            reference,
+        },
+        set,
+        critical_value,
+    })
+}
+
+/// The regressions shared by the test and the set.
+struct Problem<'a> {
+    z: DMatrix<f64>,
+    zqr: PivotedQr,
+    spec: &'a CovSpec,
+    absorbed: &'a Absorbed,
+    n: usize,
+    l: usize,
+    /// Coefficients of y and x on D = [Z | W].
+    coef_y: DVector<f64>,
+    coef_x: DVector<f64>,
+    /// Residuals e_y, e_x.
+    e_y: DVector<f64>,
+    e_x: DVector<f64>,
+    /// R π_y and R π_x with R = M_W Z (the Z-parts of the fitted values).
+    r_y: DVector<f64>,
+    r_x: DVector<f64>,
+    clusters: Option<usize>,
+}
+
+impl<'a> Problem<'a> {
+    #[allow(clippy::too_many_arguments)]
+    fn new(
+        y: &DVector<f64>,
+        exog: &DMatrix<f64>,
+        endog: &DMatrix<f64>,
+        instruments: &DMatrix<f64>,
+        z: DMatrix<f64>,
+        zqr: PivotedQr,
+        spec: &'a CovSpec,
+        absorbed: &'a Absorbed,
+    ) -> Result<Self, EstimateError> {
+        let (n, l) = (y.len(), instruments.ncols());
+        require_observations(n, z.ncols() + absorbed.df)?;
+        let x = endog.column(0).into_owned();
+        let coef_y = zqr.solve(&z, y);
+        let coef_x = zqr.solve(&z, &x);
+        let e_y = residual(&z, y, &coef_y);
+        let e_x = residual(&z, &x, &coef_x);
+        let r = partial_out(instruments, exog)?;
+        let r_y = &r * coef_y.rows(0, l);
+        let r_x = &r * coef_x.rows(0, l);
+        let clusters = covariance(&zqr, &z, &e_y, spec, Leverage::Allowed, absorbed)?.clusters;
+        Ok(Problem {
+            z,
+            zqr,
+            spec,
+            absorbed,
+            n,
+            l,
+            coef_y,
+            coef_x,
+            e_y,
+            e_x,
+            r_y,
+            r_x,
+            clusters,
+        })
+    }
+
+    /// F(L, n − L − |W| − a), or F(L, G − 1) when clustered.
+    fn reference(&self) -> Reference {
+        let df2 = self
+            .clusters
+            .map_or(self.n - self.z.ncols() - self.absorbed.df, |g| g - 1);
+        Reference::F {
+            df1: self.l as f64,
+            df2: df2 as f64,
+        }
+    }
+
+    fn covariance(&self, resid: &DVector<f64>) -> Result<Covariance, EstimateError> {
+        covariance(
+            &self.zqr,
+            &self.z,
+            resid,
+            self.spec,
+            Leverage::Allowed,
+            self.absorbed,
+        )
+    }
+
+    /// AR in the homogeneous form: residuals cy·ũ_y − cx·ũ_x and coefficients likewise,
+    /// for the (centred, scaled) basis `basis`; +∞ where V is singular.
+    fn ar_direction(&self, basis: &Basis, cy: f64, cx: f64) -> Result<f64, EstimateError> {
+        let resid = &basis.e_y * cy - &basis.e_x * cx;
+        let coef = &basis.coef_y * cy - &basis.coef_x * cx;
+        let v = self.covariance(&resid)?;
+        let indices: Vec<usize> = (0..self.l).collect();
+        match wald(&coef, &v.cov, &indices) {
+            Ok(w) => Ok(w / self.l as f64),
+            Err(EstimateError::SingularCovariance { .. }) => Ok(f64::INFINITY),
+            Err(e) => Err(e),
+        }
+    }
+
+    fn confidence_set(&self, c: f64) -> Result<ConfidenceSet, EstimateError> {
+        match (self.spec, self.l) {
+            (CovSpec::Classical, _) => Ok(self.classical_set(c)),
+            (CovSpec::TwoWay { .. }, _) => self.numerical_set(c),
+            (_, 1) => self.robust_scalar_set(c),
+            _ => self.numerical_set(c),
+        }
+    }
+
+    /// Homoskedastic: bᵀ(A − κB)b ≤ 0, b = (1, −β).
+    fn classical_set(&self, c: f64) -> ConfidenceSet {
+        let df2 = (self.n - self.z.ncols() - self.absorbed.df) as f64;
+        let kappa = c * self.l as f64 / df2;
+        let (a_yy, a_yx, a_xx) = (
+            self.r_y.norm_squared(),
+            self.r_y.dot(&self.r_x),
+            self.r_x.norm_squared(),
+        );
+        let (b_yy, b_yx, b_xx) = (
+            self.e_y.norm_squared(),
+            self.e_y.dot(&self.e_x),
+            self.e_x.norm_squared(),
+        );
+        let a2 = a_xx - kappa * b_xx;
+        let scale = a_xx + kappa * b_xx;
+        quadratic_set(a2, a_yx - kappa * b_yx, a_yy - kappa * b_yy, scale)
+    }
+
+    /// Robust, L = 1: g² − c v ≤ 0 with v quadratic, v₁ by polarisation.
+    fn robust_scalar_set(&self, c: f64) -> Result<ConfidenceSet, EstimateError> {
+        let var = |r: &DVector<f64>| -> Result<f64, EstimateError> {
+            Ok(self.covariance(r)?.cov[(0, 0)])
+        };
+        let (ny, nx) = (self.e_y.norm(), self.e_x.norm());
+        let s = if nx > 0.0 && ny > 0.0 { ny / nx } else { 1.0 };
+        let v0 = var(&self.e_y)?;
+        let v2 = var(&self.e_x)?;
+        let plus = var(&(&self.e_y + &self.e_x * s))?;
+        let minus = var(&(&self.e_y - &self.e_x * s))?;
+        let v1 = (plus - minus) / (4.0 * s);
+        let (py, px) = (self.coef_y[0], self.coef_x[0]);
+        let scale = px * px + c * v2;
+        Ok(quadratic_set(
+            px * px - c * v2,
+            px * py - c * v1,
+            py * py - c * v0,
+            scale,
+        ))
+    }
+
+    /// The 2SLS-type centre and scale for the numerical search.
+    fn basis(&self) -> Basis {
+        let rxx = self.r_x.norm_squared();
+        let centre = self.r_x.dot(&self.r_y) / rxx;
+        let (centre, scale) = if rxx > 0.0 && centre.is_finite() {
+            let u = &self.e_y - &self.e_x * centre;
+            let df = (self.n - self.z.ncols() - self.absorbed.df).max(1) as f64;
+            (centre, u.norm() / (df.sqrt() * rxx.sqrt()))
+        } else {
+            (0.0, 0.0)
+        };
+        let scale = if scale > 0.0 && scale.is_finite() {
+            scale
+        } else {
+            let (ny, nx) = (self.e_y.norm(), self.e_x.norm());
+            if nx > 0.0 && ny > 0.0 {
+                ny / nx
+            } else {
+                1.0
+            }
+        };
+        Basis {
+            centre,
+            scale,
+            e_y: &self.e_y - &self.e_x * centre,
+            e_x: &self.e_x * scale,
+            coef_y: &self.coef_y - &self.coef_x * centre,
+            coef_x: &self.coef_x * scale,
+        }
+    }
+
+    /// Grid in θ, bisection of sign changes, golden-section checks of extrema.
+    fn numerical_set(&self, c: f64) -> Result<ConfidenceSet, EstimateError> {
+        let basis = self.basis();
+        let half_pi = std::f64::consts::FRAC_PI_2;
+        let phi = |theta: f64| -> Result<f64, EstimateError> {
+            let (cy, cx) = if theta.abs() >= half_pi {
+                (0.0, 1.0)
+            } else {
+                (theta.cos(), theta.sin())
+            };
+            Ok(self.ar_direction(&basis, cy, cx)? - c)
+        };
+        let thetas: Vec<f64> = (0..=GRID)
+            .map(|j| -half_pi + std::f64::consts::PI * j as f64 / GRID as f64)
+            .collect();
+        let values = thetas
+            .iter()
+            .map(|&t| phi(t))
+            .collect::<Result<Vec<f64>, _>>()?;
+        let mut roots = Vec::new();
+        for j in 0..GRID {
+            let (a, b) = (values[j], values[j + 1]);
+            if (a <= 0.0) != (b <= 0.0) {
+                roots.push(bisect(&phi, thetas[j], thetas[j + 1], a <= 0.0)?);
+            }
+        }
+        for j in 1..GRID {
+            let (a, m, b) = (values[j - 1], values[j], values[j + 1]);
+            let same = (a <= 0.0) == (m <= 0.0) && (m <= 0.0) == (b <= 0.0);
+            let minimum = m <= a && m <= b && m > 0.0;
+            let maximum = m >= a && m >= b && m <= 0.0;
+            if !same || !(minimum || maximum) {
+                continue;
+            }
+            let sign = if minimum { 1.0 } else { -1.0 };
+            let (t_star, v_star) = golden(&|t| Ok(sign * phi(t)?), thetas[j - 1], thetas[j + 1])?;
+            if sign * v_star < 0.0 && minimum || sign * v_star > 0.0 && maximum {
+                // The extremum crosses c: one boundary point on each side.
+                roots.push(bisect(&phi, thetas[j - 1], t_star, m <= 0.0)?);
+                roots.push(bisect(&phi, t_star, thetas[j + 1], m > 0.0)?);
+            }
+        }
+        roots.sort_by(f64::total_cmp);
+        let to_beta = |t: f64| basis.centre + basis.scale * t.tan();
+        let inside_at_infinity = values[0] <= 0.0;
+        let mut pieces = Vec::new();
+        let mut start = if inside_at_infinity {
+            Some(f64::NEG_INFINITY)
+        } else {
+            None
+        };
+        for &t in &roots {
+            match start {
+                Some(lo) => {
+                    pieces.push((lo, to_beta(t)));
+                    start = None;
+                }
+                None => start = Some(to_beta(t)),
+            }
+        }
+        if let Some(lo) = start {
+            pieces.push((lo, f64::INFINITY));
+        }
+        Ok(ConfidenceSet::normalised(pieces))
+    }
+}
+
+/// The centred and scaled residuals and coefficients: β = centre + scale·tan θ.
+struct Basis {
+    centre: f64,
+    scale: f64,
+    e_y: DVector<f64>,
+    e_x: DVector<f64>,
+    coef_y: DVector<f64>,
+    coef_x: DVector<f64>,
+}
+
+/// R = M_W Z (Z itself when W has no columns), column by column by least squares.
+fn partial_out(z: &DMatrix<f64>, w: &DMatrix<f64>) -> Result<DMatrix<f64>, EstimateError> {
+    if w.ncols() == 0 {
+        return Ok(z.clone());
+    }
+    let qr = PivotedQr::new(w)?;
+    let mut r = z.clone();
+    for j in 0..z.ncols() {
+        let col = z.column(j).into_owned();
+        let b = qr.solve(w, &col);
+        r.set_column(j, &residual(w, &col, &b));
+    }
+    Ok(r)
+}
+
+/// b² − a·c evaluated with fused multiply-adds (Kahan's discriminant).
+fn discriminant(b: f64, a: f64, c: f64) -> f64 {
+    let p = a * c;
+    let dp = a.mul_add(c, -p);
+    b.mul_add(b, -p) - dp
+}
+
+/// {β : a β² − 2 h β + k ≤ 0}; `scale` is the magnitude of the terms `a` is the difference
+/// of, so |a| ≤ 16·eps·scale counts as a = 0.
+fn quadratic_set(a: f64, h: f64, k: f64, scale: f64) -> ConfidenceSet {
+    let (inf, ninf) = (f64::INFINITY, f64::NEG_INFINITY);
+    let pieces = if a.abs() <= 16.0 * f64::EPSILON * scale {
+        // Linear: −2hβ + k ≤ 0.
+        if h > 0.0 {
+            vec![(k / (2.0 * h), inf)]
+        } else if h < 0.0 {
+            vec![(ninf, k / (2.0 * h))]
+        } else if k <= 0.0 {
+            vec![(ninf, inf)]
+        } else {
+            vec![]
+        }
+    } else {
+        let delta = discriminant(h, a, k);
+        if delta < 0.0 {
+            if a > 0.0 {
+                vec![]
+            } else {
+                vec![(ninf, inf)]
+            }
+        } else {
+            let q = h + h.signum() * delta.sqrt();
+            let (r1, r2) = if q == 0.0 { (0.0, 0.0) } else { (q / a, k / q) };
+            let (lo, hi) = (r1.min(r2), r1.max(r2));
+            if a > 0.0 {
+                vec![(lo, hi)]
+            } else {
+                vec![(ninf, lo), (hi, inf)]
+            }
+        }
+    };
+    ConfidenceSet::normalised(pieces)
+}
+
+/// Bisection for a sign change of `f` on [lo, hi]; `inside_lo` says whether f(lo) ≤ 0.
+/// Runs until the bracket cannot shrink (adjacent floats), at most 200 steps.
+fn bisect<F>(f: &F, mut lo: f64, mut hi: f64, inside_lo: bool) -> Result<f64, EstimateError>
+where
+    F: Fn(f64) -> Result<f64, EstimateError>,
+{
+    for _ in 0..200 {
+        let mid = 0.5 * (lo + hi);
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        if (f(mid)? <= 0.0) == inside_lo {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    Ok(0.5 * (lo + hi))
+}
+
+/// Golden-section search for the minimum of `f` on [a, b]; returns (argmin, min).
+fn golden<F>(f: &F, mut a: f64, mut b: f64) -> Result<(f64, f64), EstimateError>
+where
+    F: Fn(f64) -> Result<f64, EstimateError>,
+{
+    let ratio = 0.5 * (5f64.sqrt() - 1.0);
+    let mut x1 = b - ratio * (b - a);
+    let mut x2 = a + ratio * (b - a);
+    let (mut f1, mut f2) = (f(x1)?, f(x2)?);
+    for _ in 0..120 {
+        if b - a <= 4.0 * f64::EPSILON * a.abs().max(b.abs()).max(1.0) {
+            break;
+        }
+        if f1 <= f2 {
+            b = x2;
+            x2 = x1;
+            f2 = f1;
+            x1 = b - ratio * (b - a);
+            f1 = f(x1)?;
+        } else {
+            a = x1;
+            x1 = x2;
+            f1 = f2;
+            x2 = a + ratio * (b - a);
+            f2 = f(x2)?;
+        }
+    }
+    Ok(if f1 <= f2 { (x1, f1) } else { (x2, f2) })
+}
+
+#[cfg(test)]
+mod tests;

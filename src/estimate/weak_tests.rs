@@ -1,0 +1,256 @@
+//! Tests of the weak-instrument diagnostics.
+//!
+//! Sources: the fixtures `tests/reference/fixtures/weak_diag_*` and `weak_ncx2_grid`
+//! written by `tests/reference/weak_iv.py` (effective F, K_eff and critical value evaluated
+//! there with numpy/statsmodels and scipy.stats.ncx2; Cragg–Donald from the eigenvalue
+//! formula, asserted there equal to linearmodels' first-stage F); a critical value quoted in
+//! the literature (from memory); this crate's `first_stages` (classical F); and the
+//! Frisch–Waugh–Lovell identity for absorbed fixed effects.
+
+use nalgebra::{DMatrix, DVector};
+
+use super::{
+    effective_f_critical_value, noncentral_chi_square_quantile, noncentral_chi_square_upper_tail,
+    stock_yogo, stock_yogo_critical_value, weak_instruments, WeakInstruments, DEFAULT_TAU,
+};
+use crate::estimate::kclass::tests::{demean, dummies};
+use crate::estimate::reference_tests::{load, Fixture, Tracker, TOL};
+use crate::estimate::{first_stages, Absorbed, CovSpec, EstimateError};
+
+/// Covariance kinds of the first stage (OLS, so HC2/HC3 too).
+const KINDS: [&str; 7] = ["classical", "hc0", "hc1", "hc2", "hc3", "cluster", "twoway"];
+
+struct Data {
+    exog: DMatrix<f64>,
+    endog: DVector<f64>,
+    instruments: DMatrix<f64>,
+}
+
+fn data(fx: &Fixture) -> Data {
+    Data {
+        exog: fx.matrix(&fx.setup["exog"]),
+        endog: fx.vector(&fx.setup["endog"][0]),
+        instruments: fx.matrix(&fx.setup["instruments"]),
+    }
+}
+
+fn diagnose(d: &Data, spec: &CovSpec, tau: f64) -> Result<WeakInstruments, EstimateError> {
+    weak_instruments(
+        &d.exog,
+        &d.endog,
+        &d.instruments,
+        spec,
+        tau,
+        &Absorbed::NONE,
+    )
+}
+
+/// Every covariance kind and τ of one fixture against the numpy/scipy evaluation.
+fn check_fixture(case: &str) {
+    let fx = load(case);
+    let d = data(&fx);
+    let ex = &fx.expected;
+    assert_eq!(fx.n as u64, ex["n"].as_u64().expect("n"));
+    let q = d.instruments.ncols();
+    let mut t = Tracker::default();
+    for kind in KINDS {
+        for tau in fx.setup["taus"].as_array().expect("taus") {
+            let tau = tau.as_f64().expect("tau");
+            let e = &ex["by_kind"][kind][format!("{tau}")];
+            let got = diagnose(&d, &fx.spec(kind), tau).expect("diagnostics");
+            t.scalar(
+                &format!("effective_f {kind}"),
+                got.effective_f,
+                &e["effective_f"],
+            );
+            t.scalar(
+                &format!("effective_df {kind}"),
+                got.effective_df,
+                &e["effective_df"],
+            );
+            t.scalar(
+                &format!("critical_value {kind}"),
+                got.critical_value,
+                &e["critical_value"],
+            );
+            t.scalar("cragg_donald", got.cragg_donald, &ex["cragg_donald"]);
+            assert_eq!(Some(got.weak), e["weak"].as_bool(), "{case} {kind} {tau}");
+            assert_eq!(got.tau, tau);
+            assert_eq!(got.stock_yogo, stock_yogo(q));
+        }
+    }
+    t.finish(case);
+}
+
+/// numpy/scipy, strong first stage, three instruments (not weak under any kind).
+#[test]
+fn effective_f_strong_three_instruments() {
+    check_fixture("weak_diag_strong3");
+}
+
+/// numpy/scipy, weak first stage, three instruments (weak under every kind).
+#[test]
+fn effective_f_weak_three_instruments() {
+    check_fixture("weak_diag_weak3");
+}
+
+/// numpy/scipy, strong first stage, one instrument (K_eff = 1).
+#[test]
+fn effective_f_strong_one_instrument() {
+    check_fixture("weak_diag_strong1");
+}
+
+/// numpy/scipy, weak first stage, one instrument.
+#[test]
+fn effective_f_weak_one_instrument() {
+    check_fixture("weak_diag_weak1");
+}
+
+/// With the classical covariance the effective F is the classical first-stage F and equals
+/// Cragg–Donald (Montiel Olea and Pflueger 2013; one endogenous regressor), and K_eff = q;
+/// checked against this crate's `first_stages` (itself checked against linearmodels).
+#[test]
+fn classical_effective_f_is_first_stage_f() {
+    for case in ["weak_diag_strong3", "weak_diag_weak1"] {
+        let fx = load(case);
+        let d = data(&fx);
+        let got = diagnose(&d, &CovSpec::Classical, DEFAULT_TAU).expect("diagnostics");
+        let endog = DMatrix::from_column_slice(d.endog.len(), 1, d.endog.as_slice());
+        let stage = &first_stages(
+            &d.exog,
+            &endog,
+            &d.instruments,
+            true,
+            &CovSpec::Classical,
+            &Absorbed::NONE,
+        )
+        .expect("first stage")[0];
+        let f = stage.f.statistic;
+        assert!((got.effective_f / f - 1.0).abs() < 1e-12, "{case}");
+        assert!((got.cragg_donald / f - 1.0).abs() < 1e-12, "{case}");
+        let q = d.instruments.ncols() as f64;
+        assert!((got.effective_df / q - 1.0).abs() < 1e-12, "{case}");
+    }
+}
+
+/// Noncentral chi-square quantiles and upper tails against scipy.stats.ncx2 on a grid of
+/// df (1 to 40, non-integer included), non-centrality (0 to 600) and p (0.05 to 0.999).
+#[test]
+fn noncentral_chi_square_against_scipy() {
+    let fx = load("weak_ncx2_grid");
+    let mut t = Tracker::default();
+    for row in fx.expected["rows"].as_array().expect("rows") {
+        let get = |k: &str| row[k].as_f64().expect("number");
+        let (df, nc, p, qv) = (get("df"), get("nc"), get("p"), get("quantile"));
+        t.scalar(
+            "quantile",
+            noncentral_chi_square_quantile(p, df, nc),
+            &row["quantile"],
+        );
+        t.scalar(
+            "upper tail",
+            noncentral_chi_square_upper_tail(qv, df, nc),
+            &row["upper_tail"],
+        );
+    }
+    t.finish("weak_ncx2_grid");
+}
+
+/// The just-identified critical value for τ = 10% at 5%: 23.109 (from memory: Montiel Olea
+/// and Pflueger 2013, and quoted as 23.1 by Andrews, Stock and Sun 2019, Annual Review of
+/// Economics 11). K_eff = 1 whatever the covariance when q = 1.
+#[test]
+fn just_identified_critical_value_from_literature() {
+    let c = effective_f_critical_value(1.0, 0.10);
+    assert!((c - 23.109).abs() < 5e-4, "{c}");
+    let fx = load("weak_diag_weak1");
+    let got = diagnose(&data(&fx), &CovSpec::Hc1, DEFAULT_TAU).expect("diagnostics");
+    assert_eq!(got.effective_df, 1.0);
+    assert!((got.critical_value - c).abs() <= 1e-12 * c);
+}
+
+/// Table lookups: the included cells (from memory, Stock and Yogo 2005 Tables 5.1 and 5.2)
+/// and `None` outside them.
+#[test]
+fn stock_yogo_cells() {
+    // Table 5.2, q = 1, 10% maximal size: 16.38 (from memory).
+    assert_eq!(stock_yogo_critical_value("wald-size", 0.10, 1), Some(16.38));
+    // Table 5.1, q = 3, 10% relative bias: 9.08 (from memory).
+    assert_eq!(
+        stock_yogo_critical_value("relative-bias", 0.10, 3),
+        Some(9.08)
+    );
+    assert_eq!(
+        stock_yogo_critical_value("relative-bias", 0.30, 10),
+        Some(4.86)
+    );
+    assert_eq!(stock_yogo_critical_value("relative-bias", 0.10, 2), None);
+    assert_eq!(stock_yogo_critical_value("relative-bias", 0.10, 11), None);
+    assert_eq!(stock_yogo_critical_value("wald-size", 0.10, 6), None);
+    assert_eq!(stock_yogo_critical_value("wald-size", 0.05, 1), None);
+    assert_eq!(stock_yogo_critical_value("other", 0.10, 3), None);
+    assert_eq!(stock_yogo_critical_value("wald-size", 0.10, 0), None);
+    // q = 3: four relative-bias and four size cells; q = 1: size only; q = 12: none.
+    assert_eq!(stock_yogo(3).len(), 8);
+    assert!(stock_yogo(1).iter().all(|s| s.criterion == "wald-size"));
+    assert!(stock_yogo(12).is_empty());
+}
+
+/// Frisch–Waugh–Lovell: fixed effects of g2 as dummies in exog, or swept out with
+/// `Absorbed { df: G }`, give the same effective F, K_eff, critical value and Cragg–Donald
+/// (classical, HC1, CR1 on the non-nested g1).
+#[test]
+fn absorbed_fixed_effects_match_dummies() {
+    let fx = load("weak_diag_strong3");
+    let d = data(&fx);
+    let g2: Vec<usize> = fx.columns["g2"].iter().map(|&v| v as usize).collect();
+    let w1 = d.exog.columns(1, 1).into_owned();
+    let with_dummies = crate::estimate::linear::hcat(&w1, &dummies(&g2));
+    let absorbed = Absorbed {
+        df: with_dummies.ncols() - 1,
+        nested_df: 0,
+        leverage: None,
+    };
+    let endog_m = DMatrix::from_column_slice(fx.n, 1, d.endog.as_slice());
+    let endog_w = DVector::from_column_slice(demean(&endog_m, &g2).as_slice());
+    let (w1_w, instr_w) = (demean(&w1, &g2), demean(&d.instruments, &g2));
+    let mut worst: f64 = 0.0;
+    for kind in ["classical", "hc1", "cluster"] {
+        let spec = fx.spec(kind);
+        let full = weak_instruments(
+            &with_dummies,
+            &d.endog,
+            &d.instruments,
+            &spec,
+            DEFAULT_TAU,
+            &Absorbed::NONE,
+        )
+        .expect("dummies");
+        let within = weak_instruments(&w1_w, &endog_w, &instr_w, &spec, DEFAULT_TAU, &absorbed)
+            .expect("within");
+        for (a, b) in [
+            (full.effective_f, within.effective_f),
+            (full.effective_df, within.effective_df),
+            (full.critical_value, within.critical_value),
+            (full.cragg_donald, within.cragg_donald),
+        ] {
+            worst = worst.max((a / b - 1.0).abs());
+        }
+    }
+    println!("dummies versus absorbed: largest relative difference {worst:.2e}");
+    assert!(worst < TOL, "{worst}");
+}
+
+/// τ must be finite and positive.
+#[test]
+fn invalid_tau() {
+    let fx = load("weak_diag_strong1");
+    let d = data(&fx);
+    for tau in [0.0, -0.1, f64::NAN, f64::INFINITY, 1e-320] {
+        assert_eq!(
+            diagnose(&d, &CovSpec::Classical, tau),
+            Err(EstimateError::NotFinite),
+            "{tau}"
+        );
+    }
+}
