@@ -25,7 +25,7 @@ pub struct Results {
     /// Hypothesis results by id.
     pub hypotheses: BTreeMap<String, HypothesisResult>,
     /// Decision rules and whether they were invoked (none in this version).
-    pub contingencies: Vec<serde_json::Value>,
+    pub contingencies: Vec<ContingencyResult>,
     /// Deviations and notes, most severe first.
     pub deviations: Vec<Deviation>,
     /// `sha256:` digest of everything above.
@@ -127,6 +127,9 @@ pub struct FirstStageResult {
     pub robust_f_distribution: Reference,
     /// Partial R-squared of the excluded instruments.
     pub partial_r_squared: f64,
+    /// Shea's (1997) partial R-squared (equals the partial R-squared with one endogenous
+    /// regressor).
+    pub shea_partial_r_squared: f64,
     /// R-squared of the first stage.
     pub r_squared: f64,
 }
@@ -149,6 +152,106 @@ pub struct OveridResult {
     pub sargan: TestResult,
     /// Basmann's test.
     pub basmann: TestResult,
+    /// Hansen's J from two-step efficient GMM (robust weight); null with two-way clustering,
+    /// for which no positive definite GMM weight is guaranteed.
+    pub hansen_j: Option<TestResult>,
+}
+
+/// Weak-instrument diagnostics of a specification with one endogenous regressor.
+#[derive(Debug, Clone, Serialize)]
+pub struct WeakInstrumentResult {
+    /// Effective first-stage F (Montiel Olea and Pflueger 2013) with the spec's error type.
+    pub effective_f: f64,
+    /// Its critical value (Patnaik approximation) for `worst_case_bias` at 5% size.
+    pub critical_value: f64,
+    /// Worst-case bias τ relative to the OLS benchmark.
+    pub worst_case_bias: f64,
+    /// Effective degrees of freedom of the Patnaik approximation.
+    pub effective_df: f64,
+    /// effective_f < critical_value.
+    pub weak: bool,
+    /// Cragg–Donald minimum-eigenvalue statistic (homoskedastic).
+    pub cragg_donald: f64,
+    /// Stock–Yogo critical values for this number of instruments, where tabulated.
+    pub stock_yogo: Vec<StockYogoValue>,
+    /// tF critical value for the 2SLS t-ratio at 5% given the first-stage F (just-identified
+    /// specifications; null when no finite value exists).
+    pub tf_critical_value: Option<f64>,
+}
+
+/// One Stock–Yogo critical value.
+#[derive(Debug, Clone, Serialize)]
+pub struct StockYogoValue {
+    /// "relative-bias" or "wald-size".
+    pub criterion: &'static str,
+    /// Bias share or size level.
+    pub level: f64,
+    /// Critical value for the Cragg–Donald statistic.
+    pub critical_value: f64,
+}
+
+/// One piece of a confidence set; `null` ends are unbounded.
+#[derive(Debug, Clone, Serialize)]
+pub struct SetPiece {
+    /// Lower end (null: −∞).
+    pub lower: Option<f64>,
+    /// Upper end (null: +∞).
+    pub upper: Option<f64>,
+}
+
+/// The Anderson–Rubin test of the endogenous coefficient and its confidence set.
+#[derive(Debug, Clone, Serialize)]
+pub struct AndersonRubinResult {
+    /// Value tested (0).
+    pub null: f64,
+    /// AR statistic at `null`.
+    pub statistic: f64,
+    /// Its p-value.
+    pub p_value: f64,
+    /// Its distribution.
+    pub distribution: Reference,
+    /// "bounded" | "two-rays" | "whole-line" | "empty" | "union".
+    pub shape: &'static str,
+    /// The set as disjoint pieces in increasing order.
+    pub set: Vec<SetPiece>,
+    /// [lower, upper] when the set is one bounded interval, else null.
+    pub ci: Option<[f64; 2]>,
+    /// Confidence level of the set.
+    pub confidence: f64,
+}
+
+/// An alternative k-class estimate computed for a contingency.
+#[derive(Debug, Clone, Serialize)]
+pub struct AlternativeEstimate {
+    /// "liml".
+    pub estimator: &'static str,
+    /// κ used.
+    pub kappa: f64,
+    /// Coefficients.
+    pub terms: BTreeMap<String, Term>,
+}
+
+/// The outcome of one `[[contingency]]` rule.
+#[derive(Debug, Clone, Serialize)]
+pub struct ContingencyResult {
+    /// Rule id.
+    pub id: String,
+    /// Specification watched.
+    pub specification: String,
+    /// "weak_instruments" | "endogeneity" | "clusters".
+    pub trigger: &'static str,
+    /// The threshold written in the plan.
+    pub threshold: f64,
+    /// The value that decided it (effective F, p-value, cluster count).
+    pub value: Option<f64>,
+    /// Whether the trigger held.
+    pub invoked: bool,
+    /// The action as written in the plan.
+    pub action: String,
+    /// Hypotheses whose inference the action changed.
+    pub hypotheses: Vec<String>,
+    /// Why, in words.
+    pub reason: String,
 }
 
 /// Row accounting of a specification.
@@ -174,13 +277,13 @@ pub struct LpmInfo {
 pub struct SpecResult {
     /// Title.
     pub title: String,
-    /// "ols" | "2sls".
+    /// "ols" | "2sls" | "liml" | "fuller".
     pub estimator: &'static str,
     /// Outcome.
     pub outcome: String,
     /// Observations used.
     pub n: usize,
-    /// Residual degrees of freedom n − k.
+    /// Residual degrees of freedom n − k − absorbed.
     pub df_resid: usize,
     /// Error kind.
     pub errors: &'static str,
@@ -194,14 +297,26 @@ pub struct SpecResult {
     pub df: Option<f64>,
     /// Confidence level of the intervals.
     pub confidence: f64,
-    /// R-squared (centered with a constant, uncentered without).
+    /// R-squared (centered with a constant, uncentered without; with absorbed fixed effects
+    /// the overall one, as with explicit indicator columns).
     pub r_squared: f64,
+    /// R² of the fixed-effect-swept model, when fixed effects are absorbed.
+    pub within_r_squared: Option<f64>,
     /// sqrt(e'e / df_resid).
     pub residual_sd: f64,
     /// Coefficients by term.
     pub terms: BTreeMap<String, Term>,
     /// Absorbed fixed effects and their levels.
     pub fixed_effects: BTreeMap<String, usize>,
+    /// Degrees of freedom used by absorbed fixed effects (counted in df_resid).
+    pub absorbed_df: usize,
+    /// The part of `absorbed_df` from fixed effects nested in a cluster variable (left out of
+    /// the CR1 factor's K).
+    pub absorbed_nested_df: usize,
+    /// Rows dropped because they were alone in their level of a fixed effect.
+    pub singletons_dropped: usize,
+    /// κ of a LIML or Fuller estimate.
+    pub kappa: Option<f64>,
     /// Terms dropped as collinear (`on_collinear = "drop"`).
     pub dropped_terms: Vec<String>,
     /// Row accounting.
@@ -214,6 +329,12 @@ pub struct SpecResult {
     pub endogeneity: Option<EndogeneityResult>,
     /// Over-identification tests (null when exactly identified or not requested).
     pub overidentification: Option<OveridResult>,
+    /// Weak-instrument diagnostics.
+    pub weak_instruments: Option<WeakInstrumentResult>,
+    /// Anderson–Rubin test and set.
+    pub anderson_rubin: Option<AndersonRubinResult>,
+    /// LIML estimate computed for a contingency.
+    pub liml: Option<AlternativeEstimate>,
     /// Linear probability model check (binary outcomes).
     pub linear_probability: Option<LpmInfo>,
     /// Marked exploratory in the plan.
@@ -251,10 +372,20 @@ pub struct HypothesisResult {
     pub family: Option<String>,
     /// Correction used.
     pub correction: crate::inference::Correction,
-    /// "t" | "normal".
+    /// "t" | "normal" | "anderson-rubin" | "tf".
     pub method: &'static str,
+    /// Estimator of the tested estimate ("ols", "2sls", "liml", "fuller").
+    pub estimator: &'static str,
+    /// Specification whose estimate was tested (differs from `specification` when an
+    /// endogeneity contingency substituted an OLS specification).
+    pub tested_specification: String,
+    /// The contingency that changed this hypothesis's inference, if any.
+    pub contingency: Option<String>,
     /// Degrees of freedom of the t reference.
     pub df: Option<f64>,
+    /// Confidence set for the term at the specification's confidence level (one piece for an
+    /// ordinary interval; the Anderson–Rubin set may have unbounded or several pieces).
+    pub ci: Option<Vec<SetPiece>>,
     /// supported | not-supported | undetermined.
     pub verdict: &'static str,
     /// Why a verdict is undetermined.

@@ -2,25 +2,38 @@
 //!
 //! A verdict is `supported` when the null is rejected in the stated direction at the
 //! family's level after correction, `not-supported` when it is not, and `undetermined` when a
-//! precondition failed (the term was dropped, or its standard error is zero or not finite).
-//! Undetermined hypotheses take no part in their family's correction.
+//! precondition failed (the term was dropped, its standard error is zero or not finite, or
+//! the Anderson–Rubin set is unbounded). Undetermined hypotheses take no part in their
+//! family's correction.
+//!
+//! When a contingency fired on the hypothesis's specification (module `contingency`), the
+//! test changes as the rule says: the Anderson–Rubin test at the hypothesis's null, the LIML
+//! t-ratio, the 2SLS t-ratio against the tF critical value, or the term of the substituted OLS
+//! specification. The Anderson–Rubin and tF procedures are two-sided; for a one-sided
+//! hypothesis sworn uses their two-sided p-value when the evidence lies on the hypothesized
+//! side (a conservative one-sided test) and 1 otherwise.
 
+use super::contingency::Substitution;
 use super::spec::Fitted;
-use crate::inference::{self, Correction};
-use crate::plan::Plan;
-use crate::results::HypothesisResult;
+use crate::estimate;
+use crate::inference::{self, Correction, Direction};
+use crate::plan::{Action, Hypothesis, Plan};
+use crate::results::{HypothesisResult, SetPiece, Term};
 use std::collections::BTreeMap;
 
 /// Test every hypothesis of `plan` against the fitted specifications.
 pub fn test_all(
     plan: &Plan,
     fitted: &BTreeMap<String, Fitted>,
+    subs: &BTreeMap<String, Substitution>,
 ) -> BTreeMap<String, HypothesisResult> {
-    let mut out: BTreeMap<String, HypothesisResult> = plan
-        .hypotheses
-        .iter()
-        .map(|h| (h.id.clone(), test_one(h, fitted)))
-        .collect();
+    let mut live = BTreeMap::new();
+    let mut out = BTreeMap::new();
+    for h in &plan.hypotheses {
+        let (r, is_live) = test_one(plan, h, fitted, subs.get(&h.specification));
+        live.insert(h.id.clone(), is_live);
+        out.insert(h.id.clone(), r);
+    }
     let mut families: BTreeMap<String, Vec<String>> = BTreeMap::new();
     for h in &plan.hypotheses {
         if let Some(f) = &h.family {
@@ -32,19 +45,22 @@ pub fn test_all(
             .families
             .get(&name)
             .map_or(Correction::None, |f| f.correction);
-        let live: Vec<&String> = ids.iter().filter(|id| out[*id].p_value.is_some()).collect();
-        let ps: Vec<f64> = live
+        let members: Vec<&String> = ids.iter().filter(|id| live[*id]).collect();
+        let ps: Vec<f64> = members
             .iter()
             .map(|id| out[*id].p_value.unwrap_or(1.0))
             .collect();
-        for (id, adj) in live.iter().zip(inference::adjust(&ps, correction)) {
+        for (id, adj) in members.iter().zip(inference::adjust(&ps, correction)) {
             if let Some(h) = out.get_mut(*id) {
                 h.adjusted_p_value = Some(adj);
                 h.correction = correction;
             }
         }
     }
-    for h in out.values_mut() {
+    for (id, h) in out.iter_mut() {
+        if !live[id] {
+            continue;
+        }
         if let Some(adj) = h.adjusted_p_value {
             h.verdict = if adj <= h.alpha {
                 "supported"
@@ -56,8 +72,33 @@ pub fn test_all(
     out
 }
 
-fn test_one(h: &crate::plan::Hypothesis, fitted: &BTreeMap<String, Fitted>) -> HypothesisResult {
+fn piece(ci: [f64; 2]) -> Vec<SetPiece> {
+    vec![SetPiece {
+        lower: Some(ci[0]),
+        upper: Some(ci[1]),
+    }]
+}
+
+/// Whether `x` lies on the side of `null` the direction claims (always true two-sided).
+fn on_side(x: f64, null: f64, d: Direction) -> bool {
+    match d {
+        Direction::TwoSided => true,
+        Direction::Greater => x > null,
+        Direction::Less => x < null,
+    }
+}
+
+/// One hypothesis; the flag says whether it takes part in its family's correction.
+fn test_one(
+    plan: &Plan,
+    h: &Hypothesis,
+    fitted: &BTreeMap<String, Fitted>,
+    sub: Option<&Substitution>,
+) -> (HypothesisResult, bool) {
     let f = &fitted[&h.specification];
+    let spec = plan.specifications.iter().find(|s| s.id == h.specification);
+    let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
+    let sub = sub.filter(|s| on_endog || matches!(s.action, Action::UseSpecification(_)));
     let mut r = HypothesisResult {
         claim: h.claim.clone(),
         specification: h.specification.clone(),
@@ -73,29 +114,154 @@ fn test_one(h: &crate::plan::Hypothesis, fitted: &BTreeMap<String, Fitted>) -> H
         family: h.family.clone(),
         correction: Correction::None,
         method: f.result.distribution,
+        estimator: f.result.estimator,
+        tested_specification: h.specification.clone(),
+        contingency: sub.map(|s| s.contingency.clone()),
         df: f.result.df,
+        ci: None,
         verdict: "undetermined",
         reason: None,
         pre_registered: f.result.pre_registered,
     };
-    let Some(t) = f.result.terms.get(&h.term) else {
+    let (mut terms, mut reference) = (&f.result.terms, f.reference);
+    match sub.map(|s| &s.action) {
+        Some(Action::UseSpecification(target)) => {
+            let t = &fitted[target];
+            terms = &t.result.terms;
+            reference = t.reference;
+            r.tested_specification = target.clone();
+            r.estimator = t.result.estimator;
+            r.method = t.result.distribution;
+            r.df = t.result.df;
+        }
+        Some(Action::Liml) => match &f.result.liml {
+            Some(l) => {
+                terms = &l.terms;
+                r.estimator = "liml";
+            }
+            None => {
+                r.reason = Some("the LIML estimate is not available".into());
+                return (r, false);
+            }
+        },
+        _ => {}
+    }
+    let Some(t) = terms.get(&h.term) else {
         r.reason = Some(format!(
             "term `{}` was dropped from specification `{}` as collinear",
-            h.term, h.specification
+            h.term, r.tested_specification
         ));
-        return r;
+        return (r, false);
     };
     r.estimate = Some(t.estimate);
     r.std_error = Some(t.std_error);
+    match sub.map(|s| &s.action) {
+        Some(Action::AndersonRubin) => anderson_rubin(h, f, &mut r),
+        Some(Action::Tf) => tf(h, f, t, &mut r),
+        _ => t_test(h, t, &reference, &mut r),
+    }
+}
+
+fn t_test(
+    h: &Hypothesis,
+    t: &Term,
+    reference: &crate::distribution::Reference,
+    r: &mut HypothesisResult,
+) -> (HypothesisResult, bool) {
+    r.ci = Some(piece(t.ci));
     if !(t.std_error.is_finite() && t.std_error > 0.0) {
         r.reason =
             Some("the standard error is zero or not finite, so no test is possible".to_string());
-        return r;
+        return (r.clone(), false);
     }
     let statistic = (t.estimate - h.null) / t.std_error;
-    let p = inference::p_value(statistic, &f.reference, h.direction);
+    let p = inference::p_value(statistic, reference, h.direction);
     r.statistic = Some(statistic);
     r.p_value = Some(p);
     r.adjusted_p_value = Some(p);
-    r
+    (r.clone(), true)
+}
+
+fn anderson_rubin(
+    h: &Hypothesis,
+    f: &Fitted,
+    r: &mut HypothesisResult,
+) -> (HypothesisResult, bool) {
+    r.method = "anderson-rubin";
+    let Some(ar) = &f.result.anderson_rubin else {
+        r.reason = Some("the Anderson–Rubin set is not available".into());
+        return (r.clone(), false);
+    };
+    let Some((_, test)) = f.ar_tests.iter().find(|(n, _)| *n == h.null) else {
+        r.reason = Some("the Anderson–Rubin test at this null is not available".into());
+        return (r.clone(), false);
+    };
+    r.ci = Some(ar.set.clone());
+    r.df = None;
+    r.statistic = Some(test.statistic);
+    let two_sided = inference::test_p_value(test);
+    let bounded = ar
+        .set
+        .iter()
+        .all(|p| p.lower.is_some() && p.upper.is_some());
+    if !bounded || ar.set.is_empty() {
+        r.p_value = Some(two_sided);
+        r.reason = Some(if ar.set.is_empty() {
+            "the Anderson–Rubin set is empty (the instruments' exclusion is rejected at every value), so no verdict is possible".into()
+        } else {
+            format!(
+                "the Anderson–Rubin set is unbounded ({}), so the data cannot bound the effect and no verdict is possible",
+                ar.shape
+            )
+        });
+        return (r.clone(), false);
+    }
+    // One-sided: the set lying wholly on the other side of the null is no evidence for the
+    // claim, whatever the two-sided p-value says.
+    let flip = match h.direction {
+        Direction::Greater => Direction::Less,
+        Direction::Less => Direction::Greater,
+        Direction::TwoSided => Direction::TwoSided,
+    };
+    let wrong_side = h.direction != Direction::TwoSided
+        && ar.set.iter().all(|p| {
+            p.lower.is_some_and(|x| on_side(x, h.null, flip))
+                && p.upper.is_some_and(|x| on_side(x, h.null, flip))
+        });
+    let p = if wrong_side { 1.0 } else { two_sided };
+    r.p_value = Some(p);
+    r.adjusted_p_value = Some(p);
+    (r.clone(), true)
+}
+
+fn tf(h: &Hypothesis, f: &Fitted, t: &Term, r: &mut HypothesisResult) -> (HypothesisResult, bool) {
+    r.method = "tf";
+    let first = f
+        .result
+        .first_stage
+        .as_ref()
+        .and_then(|fs| fs.get(&h.term))
+        .map(|s| s.robust_f_statistic);
+    let Some(fstat) = first else {
+        r.reason = Some("the first-stage F is not available".into());
+        return (r.clone(), false);
+    };
+    r.ci = Some(piece(t.ci));
+    r.df = None;
+    if !(t.std_error.is_finite() && t.std_error > 0.0) {
+        r.reason =
+            Some("the standard error is zero or not finite, so no test is possible".to_string());
+        return (r.clone(), false);
+    }
+    let statistic = (t.estimate - h.null) / t.std_error;
+    r.statistic = Some(statistic);
+    let two_sided = estimate::tf_p_value(statistic, fstat);
+    let p = if on_side(t.estimate, h.null, h.direction) {
+        two_sided
+    } else {
+        1.0
+    };
+    r.p_value = Some(p);
+    r.adjusted_p_value = Some(p);
+    (r.clone(), true)
 }

@@ -4,6 +4,7 @@
 //! Nothing here writes files or the ledger: `app` sequences that, so `verify` can re-derive
 //! a run's outputs byte for byte with the same function.
 
+mod contingency;
 mod hypotheses;
 mod integrity;
 mod spec;
@@ -74,9 +75,12 @@ pub fn execute(
     let mut devs = integrity.deviations;
     devs.extend(schema_devs);
     let mut fitted = BTreeMap::new();
+    let needs = contingency::needs(plan);
+    let none = spec::Needs::default();
     for s in &plan.specifications {
         let source = &plan.data[&s.data];
-        let mut f = spec::fit_spec(s, &tables[&s.data], source)?;
+        let need = needs.get(&s.id).unwrap_or(&none);
+        let mut f = spec::fit_spec(s, &tables[&s.data], source, need)?;
         spec_deviations(
             plan,
             s,
@@ -86,7 +90,8 @@ pub fn execute(
         );
         fitted.insert(s.id.clone(), f);
     }
-    let hypotheses = hypotheses::test_all(plan, &fitted);
+    let (contingencies, subs) = contingency::evaluate(plan, &fitted);
+    let hypotheses = hypotheses::test_all(plan, &fitted, &subs);
     deviation::sort(&mut devs);
     let mut results = Results {
         format: 1,
@@ -120,7 +125,7 @@ pub fn execute(
             .collect(),
         specifications: fitted.into_iter().map(|(k, f)| (k, f.result)).collect(),
         hypotheses,
-        contingencies: Vec::new(),
+        contingencies,
         deviations: devs,
         digest: String::new(),
     };

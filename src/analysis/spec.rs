@@ -1,6 +1,6 @@
 //! Estimating one specification: design → collinearity check → fit → diagnostics → results.
 
-use crate::data::{design, Design, Table, FE_PREFIX};
+use crate::data::{design, Design, Table};
 use crate::deviation::{Deviation, Severity};
 use crate::distribution::{Reference, TestStatistic};
 use crate::error::{Error, Result};
@@ -8,8 +8,9 @@ use crate::estimate::{self, CovSpec, EstimateError, LinearFit};
 use crate::inference::{self, Direction};
 use crate::plan::{ColumnKind, DataSource, Diagnostic, Distribution, Errors, Estimator, Spec};
 use crate::results::{
-    EndogeneityResult, FirstStageResult, LpmInfo, OveridResult, Regression, SampleInfo, SpecResult,
-    Term, TestResult,
+    AlternativeEstimate, AndersonRubinResult, EndogeneityResult, FirstStageResult, LpmInfo,
+    OveridResult, Regression, SampleInfo, SetPiece, SpecResult, StockYogoValue, Term, TestResult,
+    WeakInstrumentResult,
 };
 use nalgebra::{DMatrix, DVector};
 use std::collections::BTreeMap;
@@ -22,6 +23,21 @@ pub struct Fitted {
     pub reference: Reference,
     /// Deviations and notes raised while estimating.
     pub deviations: Vec<Deviation>,
+    /// Anderson–Rubin tests at the nulls asked for in [`Needs::ar_nulls`].
+    pub ar_tests: Vec<(f64, TestStatistic)>,
+}
+
+/// What beyond the plan's own diagnostics a specification must compute, because a
+/// contingency or a hypothesis depends on it.
+#[derive(Debug, Clone, Default)]
+pub struct Needs {
+    /// Diagnostics to add to the specification's own.
+    pub diagnostics: Vec<Diagnostic>,
+    /// Compute a LIML estimate beside the specification's own.
+    pub liml: bool,
+    /// Nulls at which the Anderson–Rubin statistic is wanted (hypotheses on the endogenous
+    /// regressor).
+    pub ar_nulls: Vec<f64>,
 }
 
 fn est_err(spec: &Spec, message: impl Into<String>) -> Error {
@@ -32,12 +48,16 @@ fn est_err(spec: &Spec, message: impl Into<String>) -> Error {
 }
 
 fn cov_spec(spec: &Spec, d: &Design) -> CovSpec {
-    match (&spec.errors, &d.clusters) {
+    match (&spec.errors, d.clusters.as_slice()) {
         (Errors::Classical, _) => CovSpec::Classical,
         (Errors::Hc0, _) => CovSpec::Hc0,
         (Errors::Hc2, _) => CovSpec::Hc2,
         (Errors::Hc3, _) => CovSpec::Hc3,
-        (Errors::Cluster(_), Some((ids, _))) => CovSpec::Cluster { ids: ids.clone() },
+        (Errors::Cluster(_), [(ids, _)]) => CovSpec::Cluster { ids: ids.clone() },
+        (Errors::Cluster(_), [(a, _), (b, _)]) => CovSpec::TwoWay {
+            first: a.clone(),
+            second: b.clone(),
+        },
         _ => CovSpec::Hc1,
     }
 }
@@ -61,13 +81,7 @@ fn hstack(blocks: &[&DMatrix<f64>]) -> DMatrix<f64> {
 }
 
 fn display(name: &str) -> String {
-    match name.strip_prefix(FE_PREFIX) {
-        Some(rest) => format!(
-            "a `{}` fixed-effect indicator",
-            rest.split('#').next().unwrap_or(rest)
-        ),
-        None => format!("`{name}`"),
-    }
+    format!("`{name}`")
 }
 
 /// Resolve collinearity among `[exog | extra]`: returns the columns of `exog` and of `extra`
@@ -107,6 +121,12 @@ fn resolve(
 fn map_estimate_error(spec: &Spec, e: EstimateError) -> Error {
     let message = match e {
         EstimateError::TooFewClusters { clusters } => format!("{clusters} cluster(s) in the estimation sample; clustered errors need at least 2 (cluster by a coarser or different variable)"),
+        EstimateError::CovarianceUnavailable { estimator, kind } if estimator.starts_with("absorbed") => format!(
+            "{kind} errors need the leverage of the absorbed fixed effects, which sworn computes for a single fixed effect only; use hc0, hc1 or cluster errors, or one fixed effect"
+        ),
+        EstimateError::CovarianceUnavailable { estimator, kind } => format!(
+            "{kind} errors are not available for {estimator} (no leverage is fixed for it); use classical, hc0, hc1 or cluster errors"
+        ),
         other => format!("{other}"),
     };
     est_err(spec, message)
@@ -132,19 +152,16 @@ fn reference_for(spec: &Spec, fit: &LinearFit) -> Reference {
     }
 }
 
-/// Terms by name; fixed-effect indicators, and the intercept when fixed effects absorb it,
-/// are not shown.
+/// Terms by name.
 fn terms_of(
     fit: &LinearFit,
     names: &[String],
     reference: &Reference,
     confidence: f64,
 ) -> BTreeMap<String, Term> {
-    let absorbed = names.iter().any(|n| n.starts_with(FE_PREFIX));
     names
         .iter()
         .enumerate()
-        .filter(|(_, n)| !(n.starts_with(FE_PREFIX) || absorbed && n.as_str() == "intercept"))
         .map(|(j, n)| {
             (
                 n.clone(),
@@ -207,58 +224,87 @@ fn parts(spec: &Spec, d: &Design) -> Result<Parts> {
         exog_names,
         dropped,
     };
-    if spec.estimator == Estimator::Tsls && p.instruments.ncols() < p.focal.ncols() {
+    if spec.estimator.is_iv() && p.instruments.ncols() < p.focal.ncols() {
         return Err(est_err(spec, "after dropping collinear instruments the specification is under-identified; fix the instrument list"));
     }
     Ok(p)
 }
 
-/// Estimate `spec` on `table`.
-pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource) -> Result<Fitted> {
+/// Estimate `spec` on `table`, computing also what `needs` asks for.
+pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource, needs: &Needs) -> Result<Fitted> {
     let d = design(table, spec)?;
     if d.n == 0 {
         return Err(est_err(spec, "no row of the sample is complete in every variable used; check the sample restriction and missing values"));
     }
+    let mut deviations = Vec::new();
+    let d = absorbed_columns(spec, d, &mut deviations)?;
     let p = parts(spec, &d)?;
     let cov = cov_spec(spec, &d);
     let has_c = d.has_constant;
-    let (fit, names) = match spec.estimator {
+    let ab = &d.absorbed;
+    let err = |e| map_estimate_error(spec, e);
+    let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
+    let mut kappa = None;
+    let fit = match spec.estimator {
         Estimator::Ols => {
             let x = hstack(&[&p.focal, &p.exog]);
-            let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
-            (
-                estimate::ols(&d.y, &x, has_c, &cov).map_err(|e| map_estimate_error(spec, e))?,
-                names,
-            )
+            estimate::ols(&d.y, &x, has_c, &cov, ab).map_err(err)?
         }
         Estimator::Tsls => {
-            let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
-            (
-                estimate::tsls(&d.y, &p.exog, &p.focal, &p.instruments, has_c, &cov)
-                    .map_err(|e| map_estimate_error(spec, e))?,
-                names,
+            estimate::tsls(&d.y, &p.exog, &p.focal, &p.instruments, has_c, &cov, ab).map_err(err)?
+        }
+        Estimator::Liml | Estimator::Fuller => {
+            let which = if spec.estimator == Estimator::Liml {
+                estimate::KClass::Liml
+            } else {
+                estimate::KClass::Fuller {
+                    alpha: spec.fuller_k,
+                }
+            };
+            let k = estimate::kclass(
+                &d.y,
+                &p.exog,
+                &p.focal,
+                &p.instruments,
+                has_c,
+                &cov,
+                which,
+                ab,
             )
+            .map_err(err)?;
+            kappa = Some(k.kappa);
+            k.fit
         }
     };
     let reference = reference_for(spec, &fit);
-    let mut deviations = Vec::new();
     for name in &p.dropped {
-        let (sev, what) = if name.starts_with(FE_PREFIX) {
-            (
-                Severity::Note,
-                "a redundant fixed-effect indicator was dropped",
-            )
-        } else {
-            (Severity::Deviation, "term dropped as collinear")
-        };
         deviations.push(Deviation::new(
             "collinear-dropped",
-            sev,
+            Severity::Deviation,
             format!("{}.{}", spec.id, name),
-            format!("{what}: {}", display(name)),
+            format!("term dropped as collinear: {}", display(name)),
         ));
     }
-    let lpm = lpm_check(spec, source, &fit, &mut deviations);
+    if d.singletons > 0 {
+        deviations.push(Deviation::new(
+            "singletons-dropped",
+            Severity::Note,
+            spec.id.clone(),
+            format!(
+                "{} observation(s) alone in their level of a fixed effect were dropped before estimation (they would be fitted exactly and carry no information on the other coefficients)",
+                d.singletons
+            ),
+        ));
+    }
+    let lpm = lpm_check(spec, source, &fit, &d, &mut deviations);
+    let absorbing = !d.fixed_effects.is_empty();
+    let r_squared = if absorbing {
+        let mean = d.y_raw.mean();
+        let tss: f64 = d.y_raw.iter().map(|v| (v - mean) * (v - mean)).sum();
+        1.0 - fit.rss / tss
+    } else {
+        fit.r_squared
+    };
     let mut result = SpecResult {
         title: spec.title.clone(),
         estimator: spec.estimator.name(),
@@ -280,43 +326,102 @@ pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource) -> Result<Fitte
             _ => None,
         },
         confidence: spec.confidence,
-        r_squared: fit.r_squared,
+        r_squared,
+        within_r_squared: absorbing.then_some(fit.r_squared),
         residual_sd: fit.residual_sd,
         terms: terms_of(&fit, &names, &reference, spec.confidence),
         fixed_effects: d.fixed_effects.iter().cloned().collect(),
-        dropped_terms: p
-            .dropped
-            .iter()
-            .filter(|n| !n.starts_with(FE_PREFIX))
-            .cloned()
-            .collect(),
+        absorbed_df: d.absorbed.df,
+        absorbed_nested_df: d.absorbed.nested_df,
+        singletons_dropped: d.singletons,
+        kappa,
+        dropped_terms: p.dropped.clone(),
         sample: SampleInfo {
             table_rows: d.n_table,
             in_sample: d.n_sample,
-            dropped_missing: d.n_sample - d.n,
+            dropped_missing: d.n_sample - d.n - d.singletons,
         },
         first_stage: None,
         reduced_form: None,
         endogeneity: None,
         overidentification: None,
+        weak_instruments: None,
+        anderson_rubin: None,
+        liml: None,
         linear_probability: lpm,
         exploratory: spec.exploratory,
         pre_registered: !spec.exploratory,
     };
-    if spec.estimator == Estimator::Tsls {
-        diagnostics(spec, &d, &p, &cov, &mut result)?;
+    let mut ar_tests = Vec::new();
+    if spec.estimator.is_iv() {
+        let ctx = IvContext {
+            spec,
+            d: &d,
+            p: &p,
+            cov: &cov,
+            needs,
+        };
+        ar_tests = ctx.diagnostics(&mut result)?;
     }
     Ok(Fitted {
         result,
         reference,
         deviations,
+        ar_tests,
     })
+}
+
+/// Handle columns the fixed-effect sweep left without variation: an error naming them, or
+/// (with on_collinear = "drop") dropping them as deviations. The outcome or an endogenous
+/// regressor or instrument without within variation is always an error.
+fn absorbed_columns(spec: &Spec, mut d: Design, devs: &mut Vec<Deviation>) -> Result<Design> {
+    if d.absorbed_columns.is_empty() {
+        return Ok(d);
+    }
+    let fes = spec.fixed_effects.join("`, `");
+    let structural: Vec<&String> = d
+        .absorbed_columns
+        .iter()
+        .filter(|c| !spec.controls.contains(c))
+        .collect();
+    if !structural.is_empty() || !spec.drop_collinear {
+        let names: Vec<String> = d
+            .absorbed_columns
+            .iter()
+            .map(|c| format!("`{c}`"))
+            .collect();
+        let advice = if structural.is_empty() {
+            "remove it or set on_collinear = \"drop\""
+        } else {
+            "the specification cannot be estimated with these fixed effects; remove the fixed effect or change the specification"
+        };
+        return Err(est_err(spec, format!(
+            "{} {} constant within the fixed effects `{fes}` (no variation left after absorbing them); {advice}",
+            names.join(", "),
+            if names.len() == 1 { "is" } else { "are" }
+        )));
+    }
+    let keep: Vec<usize> = (0..d.exog.ncols())
+        .filter(|&j| !d.absorbed_columns.contains(&d.exog_names[j]))
+        .collect();
+    for c in &d.absorbed_columns {
+        devs.push(Deviation::new(
+            "collinear-dropped",
+            Severity::Deviation,
+            format!("{}.{}", spec.id, c),
+            format!("term dropped: `{c}` is constant within the fixed effects `{fes}`"),
+        ));
+    }
+    d.exog = select(&d.exog, &keep);
+    d.exog_names = pick(&d.exog_names, &keep);
+    Ok(d)
 }
 
 fn lpm_check(
     spec: &Spec,
     source: &DataSource,
     fit: &LinearFit,
+    d: &Design,
     devs: &mut Vec<Deviation>,
 ) -> Option<LpmInfo> {
     let binary = source
@@ -326,7 +431,14 @@ fn lpm_check(
     if !binary {
         return None;
     }
-    let outside = fit.fitted.iter().filter(|v| **v < 0.0 || **v > 1.0).count();
+    // Fitted values in levels (fixed effects included): y − residual.
+    let outside = d
+        .y_raw
+        .iter()
+        .zip(fit.resid.iter())
+        .map(|(y, u)| y - u)
+        .filter(|v| *v < 0.0 || *v > 1.0)
+        .count();
     if spec.errors == Errors::Classical {
         devs.push(Deviation::new("lpm-classical-errors", Severity::Note, spec.id.clone(), "the outcome is binary (a linear probability model), whose errors are heteroskedastic by construction; classical standard errors are not valid here, robust ones (hc1 or cluster) are recommended"));
     }
@@ -335,70 +447,202 @@ fn lpm_check(
     })
 }
 
-fn diagnostics(
-    spec: &Spec,
-    d: &Design,
-    p: &Parts,
-    cov: &CovSpec,
-    result: &mut SpecResult,
-) -> Result<()> {
-    let err = |e| map_estimate_error(spec, e);
-    let has_c = d.has_constant;
-    let z_names: Vec<String> = p
-        .instrument_names
+fn set_pieces(set: &estimate::ConfidenceSet) -> Vec<SetPiece> {
+    set.pieces
         .iter()
-        .chain(&p.exog_names)
-        .cloned()
-        .collect();
-    if spec.diagnostics.contains(&Diagnostic::FirstStage) {
-        let stages =
-            estimate::first_stages(&p.exog, &p.focal, &p.instruments, has_c, cov).map_err(err)?;
-        let mut out = BTreeMap::new();
-        for (name, s) in p.focal_names.iter().zip(&stages) {
-            let reference = reference_for(spec, &s.fit);
-            out.insert(
-                name.clone(),
-                FirstStageResult {
-                    terms: terms_of(&s.fit, &z_names, &reference, spec.confidence),
-                    f_statistic: s.f.statistic,
-                    f_p_value: inference::test_p_value(&s.f),
-                    f_distribution: s.f.reference,
-                    robust_f_statistic: s.robust_f.statistic,
-                    robust_f_p_value: inference::test_p_value(&s.robust_f),
-                    robust_f_distribution: s.robust_f.reference,
-                    partial_r_squared: s.partial_r_squared,
-                    r_squared: s.fit.r_squared,
-                },
-            );
+        .map(|(lo, hi)| SetPiece {
+            lower: lo.is_finite().then_some(*lo),
+            upper: hi.is_finite().then_some(*hi),
+        })
+        .collect()
+}
+
+/// The name of a confidence set's shape in results.json.
+pub fn shape_name(set: &estimate::ConfidenceSet) -> &'static str {
+    match set.shape() {
+        estimate::SetShape::Empty => "empty",
+        estimate::SetShape::Bounded => "bounded",
+        estimate::SetShape::TwoRays => "two-rays",
+        estimate::SetShape::WholeLine => "whole-line",
+        estimate::SetShape::Other => "union",
+    }
+}
+
+/// Everything the IV diagnostics of one specification share.
+struct IvContext<'a> {
+    spec: &'a Spec,
+    d: &'a Design,
+    p: &'a Parts,
+    cov: &'a CovSpec,
+    needs: &'a Needs,
+}
+
+impl IvContext<'_> {
+    fn wants(&self, diag: Diagnostic) -> bool {
+        self.spec.diagnostics.contains(&diag) || self.needs.diagnostics.contains(&diag)
+    }
+
+    /// Fills the diagnostic blocks of `result`; returns the AR tests at the needed nulls.
+    fn diagnostics(&self, result: &mut SpecResult) -> Result<Vec<(f64, TestStatistic)>> {
+        let (spec, d, p, cov) = (self.spec, self.d, self.p, self.cov);
+        let err = |e| map_estimate_error(spec, e);
+        let has_c = d.has_constant;
+        let ab = &d.absorbed;
+        let z_names: Vec<String> = p
+            .instrument_names
+            .iter()
+            .chain(&p.exog_names)
+            .cloned()
+            .collect();
+        let weak = self.wants(Diagnostic::WeakInstruments) && p.focal.ncols() == 1;
+        if self.wants(Diagnostic::FirstStage) || weak {
+            let stages = estimate::first_stages(&p.exog, &p.focal, &p.instruments, has_c, cov, ab)
+                .map_err(err)?;
+            let mut out = BTreeMap::new();
+            for (name, s) in p.focal_names.iter().zip(&stages) {
+                let reference = reference_for(spec, &s.fit);
+                out.insert(
+                    name.clone(),
+                    FirstStageResult {
+                        terms: terms_of(&s.fit, &z_names, &reference, spec.confidence),
+                        f_statistic: s.f.statistic,
+                        f_p_value: inference::test_p_value(&s.f),
+                        f_distribution: s.f.reference,
+                        robust_f_statistic: s.robust_f.statistic,
+                        robust_f_p_value: inference::test_p_value(&s.robust_f),
+                        robust_f_distribution: s.robust_f.reference,
+                        partial_r_squared: s.partial_r_squared,
+                        shea_partial_r_squared: s.shea_partial_r_squared,
+                        r_squared: s.fit.r_squared,
+                    },
+                );
+            }
+            result.first_stage = Some(out);
         }
-        result.first_stage = Some(out);
-    }
-    if spec.diagnostics.contains(&Diagnostic::ReducedForm) {
-        let rf = estimate::reduced_form(&d.y, &p.exog, &p.instruments, has_c, cov).map_err(err)?;
-        let reference = reference_for(spec, &rf);
-        result.reduced_form = Some(Regression {
-            outcome: spec.outcome.clone(),
-            terms: terms_of(&rf, &z_names, &reference, spec.confidence),
-            r_squared: rf.r_squared,
-            n: rf.n,
-        });
-    }
-    if spec.diagnostics.contains(&Diagnostic::Endogeneity) {
-        let e = estimate::endogeneity(&d.y, &p.exog, &p.focal, &p.instruments, has_c, cov)
+        if self.wants(Diagnostic::ReducedForm) {
+            let rf = estimate::reduced_form(&d.y, &p.exog, &p.instruments, has_c, cov, ab)
+                .map_err(err)?;
+            let reference = reference_for(spec, &rf);
+            result.reduced_form = Some(Regression {
+                outcome: spec.outcome.clone(),
+                terms: terms_of(&rf, &z_names, &reference, spec.confidence),
+                r_squared: rf.r_squared,
+                n: rf.n,
+            });
+        }
+        if self.wants(Diagnostic::Endogeneity) {
+            let e = estimate::endogeneity(&d.y, &p.exog, &p.focal, &p.instruments, has_c, cov, ab)
+                .map_err(err)?;
+            result.endogeneity = Some(EndogeneityResult {
+                control_function: test(&e.control_function),
+                durbin: test(&e.durbin),
+                wu_hausman: test(&e.wu_hausman),
+            });
+        }
+        if self.wants(Diagnostic::Overidentification) {
+            let o = estimate::overidentification(&d.y, &p.exog, &p.focal, &p.instruments, ab)
+                .map_err(err)?;
+            let j = match cov {
+                CovSpec::TwoWay { .. } => None,
+                _ => estimate::hansen_j(&d.y, &p.exog, &p.focal, &p.instruments, cov, ab)
+                    .map_err(err)?,
+            };
+            result.overidentification = o.map(|o| OveridResult {
+                sargan: test(&o.sargan),
+                basmann: test(&o.basmann),
+                hansen_j: j.as_ref().map(test),
+            });
+        }
+        if self.needs.liml && spec.estimator == Estimator::Tsls {
+            let k = estimate::kclass(
+                &d.y,
+                &p.exog,
+                &p.focal,
+                &p.instruments,
+                has_c,
+                cov,
+                estimate::KClass::Liml,
+                ab,
+            )
             .map_err(err)?;
-        result.endogeneity = Some(EndogeneityResult {
-            control_function: test(&e.control_function),
-            durbin: test(&e.durbin),
-            wu_hausman: test(&e.wu_hausman),
-        });
+            let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
+            let reference = reference_for(spec, &k.fit);
+            result.liml = Some(AlternativeEstimate {
+                estimator: "liml",
+                kappa: k.kappa,
+                terms: terms_of(&k.fit, &names, &reference, spec.confidence),
+            });
+        }
+        let mut ar_tests = Vec::new();
+        if weak {
+            let endog = p.focal.column(0).into_owned();
+            let w = estimate::weak_instruments(
+                &p.exog,
+                &endog,
+                &p.instruments,
+                cov,
+                spec.worst_case_bias,
+                ab,
+            )
+            .map_err(err)?;
+            let tf = if p.instruments.ncols() == 1 {
+                result
+                    .first_stage
+                    .as_ref()
+                    .and_then(|fs| fs.values().next())
+                    .and_then(|s| estimate::tf_critical_value(s.robust_f_statistic, 0.05))
+            } else {
+                None
+            };
+            result.weak_instruments = Some(WeakInstrumentResult {
+                effective_f: w.effective_f,
+                critical_value: w.critical_value,
+                worst_case_bias: w.tau,
+                effective_df: w.effective_df,
+                weak: w.weak,
+                cragg_donald: w.cragg_donald,
+                stock_yogo: w
+                    .stock_yogo
+                    .iter()
+                    .map(|s| StockYogoValue {
+                        criterion: s.criterion,
+                        level: s.level,
+                        critical_value: s.critical_value,
+                    })
+                    .collect(),
+                tf_critical_value: tf,
+            });
+            let ar = |null: f64| {
+                estimate::anderson_rubin(
+                    &d.y,
+                    &p.exog,
+                    &p.focal,
+                    &p.instruments,
+                    cov,
+                    ab,
+                    null,
+                    spec.confidence,
+                )
+                .map_err(err)
+            };
+            let at_zero = ar(0.0)?;
+            result.anderson_rubin = Some(AndersonRubinResult {
+                null: 0.0,
+                statistic: at_zero.test.statistic,
+                p_value: inference::test_p_value(&at_zero.test),
+                distribution: at_zero.test.reference,
+                shape: shape_name(&at_zero.set),
+                ci: match at_zero.set.pieces.as_slice() {
+                    [(lo, hi)] if lo.is_finite() && hi.is_finite() => Some([*lo, *hi]),
+                    _ => None,
+                },
+                set: set_pieces(&at_zero.set),
+                confidence: spec.confidence,
+            });
+            for &null in &self.needs.ar_nulls {
+                ar_tests.push((null, ar(null)?.test));
+            }
+        }
+        Ok(ar_tests)
     }
-    if spec.diagnostics.contains(&Diagnostic::Overidentification) {
-        let o =
-            estimate::overidentification(&d.y, &p.exog, &p.focal, &p.instruments).map_err(err)?;
-        result.overidentification = o.map(|o| OveridResult {
-            sargan: test(&o.sargan),
-            basmann: test(&o.basmann),
-        });
-    }
-    Ok(())
 }

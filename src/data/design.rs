@@ -1,18 +1,25 @@
-//! Design matrices for one specification: sample restriction, listwise deletion, fixed-effect
-//! indicators and cluster indices.
+//! Design matrices for one specification: sample restriction, listwise deletion, absorbed
+//! fixed effects and cluster indices.
 //!
-//! Column order of the exogenous block is: intercept, fixed-effect indicators, controls.
-//! Collinearity is resolved left to right by the caller, so structural columns come first
-//! and a control that duplicates them is the one named.
+//! Without fixed effects the exogenous block is: intercept (when asked for), controls. With
+//! fixed effects, observations alone in their level of any fixed effect (singletons) are
+//! dropped, repeatedly, and every column (outcome, regressors, instruments, controls) is
+//! swept of the fixed effects by alternating projections (`estimate::FixedEffects`); the
+//! intercept is absorbed and the degrees of freedom the fixed effects use travel with the
+//! design as [`Absorbed`]. A column with no variation left after the sweep (relative norm
+//! below [`ABSORBED_TOLERANCE`]) is constant within the fixed effects and is reported by name.
+//! Collinearity among the remaining columns is resolved left to right by the caller.
 
 use super::Table;
 use crate::error::{Error, Result};
+use crate::estimate::{Absorbed, FixedEffects};
 use crate::plan::{Errors, Spec};
 use nalgebra::{DMatrix, DVector};
 use std::collections::BTreeMap;
 
-/// Prefix of fixed-effect indicator column names (never shown as terms).
-pub const FE_PREFIX: &str = "fe:";
+/// A swept column whose norm is at most this share of its norm before the sweep has no
+/// variation within the fixed effects (it is constant within their levels).
+pub const ABSORBED_TOLERANCE: f64 = 1e-9;
 
 /// The matrices of one specification after sample restriction and listwise deletion.
 #[derive(Debug, Clone)]
@@ -23,13 +30,15 @@ pub struct Design {
     pub n_sample: usize,
     /// Rows used (sample rows with no missing value in any variable used).
     pub n: usize,
-    /// Outcome.
+    /// Outcome (swept of fixed effects when there are any).
     pub y: DVector<f64>,
+    /// Outcome as in the data (for fitted values in levels: y_raw − residual).
+    pub y_raw: DVector<f64>,
     /// Endogenous regressors (2SLS) or regressors of interest (OLS).
     pub focal: DMatrix<f64>,
     /// Names of the focal columns.
     pub focal_names: Vec<String>,
-    /// Included exogenous columns: intercept, fixed-effect indicators, controls.
+    /// Included exogenous columns: intercept (unless absorbed), controls.
     pub exog: DMatrix<f64>,
     /// Names of the exogenous columns.
     pub exog_names: Vec<String>,
@@ -37,10 +46,17 @@ pub struct Design {
     pub instruments: DMatrix<f64>,
     /// Names of the instruments.
     pub instrument_names: Vec<String>,
-    /// Dense cluster index of each used row, and the number of clusters.
-    pub clusters: Option<(Vec<usize>, usize)>,
+    /// Dense cluster index of each used row and the number of clusters, per clustering
+    /// dimension (empty without clustering, two entries for two-way clustering).
+    pub clusters: Vec<(Vec<usize>, usize)>,
     /// Fixed effects and their number of levels in the used rows.
     pub fixed_effects: Vec<(String, usize)>,
+    /// Rows dropped as singletons of a fixed effect.
+    pub singletons: usize,
+    /// Degrees of freedom used by the absorbed fixed effects.
+    pub absorbed: Absorbed,
+    /// Columns (by name) left without variation by the fixed-effect sweep.
+    pub absorbed_columns: Vec<String>,
     /// Whether the column space contains a constant (intercept or fixed effects).
     pub has_constant: bool,
 }
@@ -158,56 +174,102 @@ fn group_index(values: &[Option<String>], rows: &[usize]) -> (Vec<usize>, usize)
 
 /// Build the design of `spec` from `table`.
 pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
-    let (n_sample, rows) = kept_rows(table, spec)?;
+    let (n_sample, mut rows) = kept_rows(table, spec)?;
+    let mut singletons = 0;
+    let mut groups = Vec::new();
+    for fe in &spec.fixed_effects {
+        groups.push(labels(table, fe, spec)?);
+    }
+    if !groups.is_empty() {
+        let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, &rows).0).collect();
+        let keep = crate::estimate::drop_singletons(&ids);
+        let before = rows.len();
+        rows = rows
+            .iter()
+            .zip(&keep)
+            .filter(|(_, k)| **k)
+            .map(|(r, _)| *r)
+            .collect();
+        singletons = before - rows.len();
+    }
     let n = rows.len();
     let outcome = column(table, &spec.outcome, spec)?;
-    let y = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
-    let mut exog_cols: Vec<DVector<f64>> = Vec::new();
-    let mut exog_names = Vec::new();
-    let has_constant = spec.intercept || !spec.fixed_effects.is_empty();
-    if has_constant {
-        exog_cols.push(DVector::from_element(n, 1.0));
-        exog_names.push("intercept".to_string());
-    }
-    let mut fixed_effects = Vec::new();
-    for fe in &spec.fixed_effects {
-        let (idx, levels) = group_index(labels(table, fe, spec)?, &rows);
-        for level in 1..levels {
-            exog_cols.push(DVector::from_iterator(
-                n,
-                idx.iter().map(|&g| f64::from(u8::from(g == level))),
-            ));
-            exog_names.push(format!("{FE_PREFIX}{fe}#{level}"));
-        }
-        fixed_effects.push((fe.clone(), levels));
-    }
-    let controls = matrix(table, &spec.controls, &rows, spec)?;
-    for j in 0..controls.ncols() {
-        exog_cols.push(controls.column(j).into_owned());
-    }
-    exog_names.extend(spec.controls.iter().cloned());
-    let exog = if exog_cols.is_empty() {
-        DMatrix::zeros(n, 0)
-    } else {
-        DMatrix::from_columns(&exog_cols)
-    };
+    let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
+    let mut focal = matrix(table, spec.focal(), &rows, spec)?;
+    let mut instruments = matrix(table, &spec.instruments, &rows, spec)?;
+    let mut controls = matrix(table, &spec.controls, &rows, spec)?;
     let clusters = match &spec.errors {
-        Errors::Cluster(by) => Some(group_index(labels(table, &by[0], spec)?, &rows)),
-        _ => None,
+        Errors::Cluster(by) => by
+            .iter()
+            .map(|b| Ok(group_index(labels(table, b, spec)?, &rows)))
+            .collect::<Result<Vec<_>>>()?,
+        _ => Vec::new(),
     };
+    let mut y = y_raw.clone();
+    let mut fixed_effects = Vec::new();
+    let mut absorbed = Absorbed::default();
+    let mut absorbed_columns = Vec::new();
+    if !groups.is_empty() && n > 0 {
+        let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, &rows).0).collect();
+        let fe = FixedEffects::new(ids).map_err(|e| sweep_error(spec, &e))?;
+        for (name, levels) in spec.fixed_effects.iter().zip(fe.levels()) {
+            fixed_effects.push((name.clone(), levels));
+        }
+        let cluster_ids: Vec<&[usize]> = clusters.iter().map(|(c, _)| c.as_slice()).collect();
+        absorbed = fe.absorbed(&cluster_ids);
+        let mut sweep = |m: &mut DMatrix<f64>, names: &[String]| -> Result<()> {
+            let swept = fe.sweep(m).map_err(|e| sweep_error(spec, &e))?;
+            for (j, name) in names.iter().enumerate() {
+                let before = m.column(j).norm();
+                if swept.column(j).norm() <= ABSORBED_TOLERANCE * before {
+                    absorbed_columns.push(name.clone());
+                }
+            }
+            *m = swept;
+            Ok(())
+        };
+        let mut ym = DMatrix::from_column_slice(n, 1, y.as_slice());
+        sweep(&mut ym, std::slice::from_ref(&spec.outcome))?;
+        y = ym.column(0).into_owned();
+        sweep(&mut focal, spec.focal())?;
+        sweep(&mut instruments, &spec.instruments)?;
+        sweep(&mut controls, &spec.controls)?;
+    }
+    let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
+    let mut exog_names = Vec::new();
+    let exog = if with_intercept {
+        exog_names.push("intercept".to_string());
+        let mut m = DMatrix::from_element(n, 1 + controls.ncols(), 1.0);
+        m.columns_mut(1, controls.ncols()).copy_from(&controls);
+        m
+    } else {
+        controls
+    };
+    exog_names.extend(spec.controls.iter().cloned());
     Ok(Design {
         n_table: table.rows,
         n_sample,
         n,
         y,
-        focal: matrix(table, spec.focal(), &rows, spec)?,
+        y_raw,
+        focal,
         focal_names: spec.focal().to_vec(),
         exog,
         exog_names,
-        instruments: matrix(table, &spec.instruments, &rows, spec)?,
+        instruments,
         instrument_names: spec.instruments.clone(),
         clusters,
         fixed_effects,
-        has_constant,
+        singletons,
+        absorbed,
+        absorbed_columns,
+        has_constant: spec.intercept || !spec.fixed_effects.is_empty(),
     })
+}
+
+fn sweep_error(spec: &Spec, e: &crate::estimate::EstimateError) -> Error {
+    Error::Estimation {
+        spec: spec.id.clone(),
+        message: format!("absorbing the fixed effects failed: {e}"),
+    }
 }

@@ -8,7 +8,7 @@
 mod design;
 mod read;
 
-pub use design::{design, Design, FE_PREFIX};
+pub use design::{design, Design};
 pub use read::load_table;
 
 use std::collections::BTreeMap;

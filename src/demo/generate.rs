@@ -44,8 +44,11 @@ const HOUSEHOLDS_PER_BLOCK: usize = 32;
 /// so painting is endogenous. True effect of painting: −1.8 °C; on a clinic visit: −0.06.
 pub fn cool_roofs_csv() -> String {
     let mut s = Stream(20_260_501);
+    // A second, independent stream for the household-level reminder call, so that adding it
+    // left every other draw where it was.
+    let mut calls = Stream(20_260_503);
     let mut out = String::from(
-        "hh_id,district,block,offer,painted,temp_c,clinic_visit,kwh,roof_m2,storeys\n",
+        "hh_id,district,block,offer,painted,temp_c,clinic_visit,kwh,roof_m2,storeys,reminder\n",
     );
     let mut hh = 0;
     for (d, district) in DISTRICTS.iter().enumerate() {
@@ -66,7 +69,14 @@ pub fn cool_roofs_csv() -> String {
                 let u = s.normal();
                 let roof = (85.0 + 22.0 * s.normal()).max(20.0);
                 let storeys = 1 + (s.uniform() * 3.0) as u32 + u32::from(s.uniform() < 0.08);
-                let take_up = -1.1 + 1.5 * f64::from(offer) + 0.8 * u + 0.004 * (roof - 85.0);
+                // The reminder call is randomized by household and barely moves take-up: a
+                // deliberately weak instrument.
+                let reminder = u8::from(calls.uniform() < 0.5);
+                let take_up = -1.1
+                    + 1.5 * f64::from(offer)
+                    + 0.12 * f64::from(reminder)
+                    + 0.8 * u
+                    + 0.004 * (roof - 85.0);
                 let painted = u8::from(take_up + s.normal() > 0.0);
                 let p = f64::from(painted);
                 let temp = 30.0 + district_effect + block_effect + 1.4 * u - 1.8 * p
@@ -82,7 +92,7 @@ pub fn cool_roofs_csv() -> String {
                 } else {
                     format!("{temp:.2}")
                 };
-                let _ = writeln!(out, "H{hh:05},{district},{block},{offer},{painted},{temp_text},{visit},{kwh:.1},{roof:.1},{storeys}");
+                let _ = writeln!(out, "H{hh:05},{district},{block},{offer},{painted},{temp_text},{visit},{kwh:.1},{roof:.1},{storeys},{reminder}");
             }
         }
     }

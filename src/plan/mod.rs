@@ -9,6 +9,7 @@ pub mod raw;
 mod source;
 mod suggest;
 mod validate;
+mod validate_rules;
 mod validate_spec;
 
 use crate::expr::Expr;
@@ -46,6 +47,8 @@ pub struct Plan {
     pub families: BTreeMap<String, Family>,
     /// Table shells in plan order.
     pub tables: Vec<Table>,
+    /// Decision rules in plan order.
+    pub contingencies: Vec<Contingency>,
 }
 
 /// `[study]`.
@@ -205,6 +208,10 @@ pub enum Estimator {
     Ols,
     /// Two-stage least squares.
     Tsls,
+    /// Limited-information maximum likelihood.
+    Liml,
+    /// Fuller's modified LIML with constant `Spec::fuller_k`.
+    Fuller,
 }
 
 impl Estimator {
@@ -213,7 +220,14 @@ impl Estimator {
         match self {
             Estimator::Ols => "ols",
             Estimator::Tsls => "2sls",
+            Estimator::Liml => "liml",
+            Estimator::Fuller => "fuller",
         }
+    }
+
+    /// Whether the estimator uses excluded instruments (2SLS, LIML, Fuller).
+    pub fn is_iv(self) -> bool {
+        self != Estimator::Ols
     }
 }
 
@@ -259,6 +273,8 @@ pub enum Diagnostic {
     Endogeneity,
     /// Over-identification tests.
     Overidentification,
+    /// Weak-instrument diagnostics (effective F, Cragg–Donald) and Anderson–Rubin inference.
+    WeakInstruments,
 }
 
 /// A specification.
@@ -300,14 +316,78 @@ pub struct Spec {
     pub distribution: Distribution,
     /// Confidence level.
     pub confidence: f64,
+    /// Fuller's constant (used when the estimator is Fuller).
+    pub fuller_k: f64,
+    /// Worst-case bias τ for the effective-F critical value.
+    pub worst_case_bias: f64,
 }
 
 impl Spec {
-    /// Terms of interest: endogenous regressors for 2SLS, regressors for OLS.
+    /// Terms of interest: endogenous regressors for IV estimators, regressors for OLS.
     pub fn focal(&self) -> &[String] {
         match self.estimator {
             Estimator::Ols => &self.regressors,
-            Estimator::Tsls => &self.endogenous,
+            _ => &self.endogenous,
+        }
+    }
+}
+
+/// A decision rule fixed before the data are seen.
+#[derive(Debug, Clone)]
+pub struct Contingency {
+    /// Id.
+    pub id: String,
+    /// The rule in words.
+    pub description: Option<String>,
+    /// Specification watched.
+    pub specification: String,
+    /// What sets it off.
+    pub trigger: Trigger,
+    /// What happens then.
+    pub action: Action,
+}
+
+/// A contingency's trigger.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Trigger {
+    /// Effective first-stage F below the threshold.
+    WeakInstruments {
+        /// Threshold.
+        below: f64,
+    },
+    /// The control-function endogeneity test not rejected at this level.
+    Endogeneity {
+        /// Level.
+        not_rejected_at: f64,
+    },
+    /// Fewer clusters than this.
+    Clusters {
+        /// Threshold.
+        fewer_than: usize,
+    },
+}
+
+/// A contingency's action on the hypotheses of its specification.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Action {
+    /// Test with the Anderson–Rubin statistic; the interval is the AR set.
+    AndersonRubin,
+    /// Re-estimate by LIML and test its t-ratio.
+    Liml,
+    /// Compare the 2SLS t-ratio with the tF critical value.
+    Tf,
+    /// Report this (OLS) specification as primary for the hypotheses.
+    UseSpecification(String),
+}
+
+impl Action {
+    /// Plan spelling.
+    pub fn name(&self) -> String {
+        match self {
+            Action::AndersonRubin => "anderson-rubin".into(),
+            Action::Liml => "liml".into(),
+            Action::Tf => "tf".into(),
+            Action::UseSpecification(s) => s.clone(),
         }
     }
 }

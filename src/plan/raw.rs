@@ -36,9 +36,9 @@ pub struct RawPlan {
     /// Families of hypotheses keyed by name.
     #[serde(default)]
     pub family: BTreeMap<Spanned<String>, Spanned<RawFamily>>,
-    /// Decision rules; parsed so that the error can point at them (not yet acted on).
+    /// Decision rules fixed before the data are seen, in document order.
     #[serde(default, rename = "contingency")]
-    pub contingencies: Vec<Spanned<toml::Value>>,
+    pub contingencies: Vec<Spanned<RawContingency>>,
     /// Table shells.
     #[serde(default, rename = "table")]
     pub tables: Vec<Spanned<RawTable>>,
@@ -142,8 +142,12 @@ pub struct RawSpec {
     pub title: Option<String>,
     /// Data table id.
     pub data: Option<Spanned<String>>,
-    /// "ols" | "2sls".
+    /// "ols" | "2sls" | "liml" | "fuller".
     pub estimator: Spanned<String>,
+    /// Fuller's constant (estimator = "fuller"; default 1).
+    pub fuller_k: Option<Spanned<f64>>,
+    /// Worst-case bias for the effective-F critical value (default 0.10).
+    pub worst_case_bias: Option<Spanned<f64>>,
     /// Dependent variable.
     pub outcome: Spanned<String>,
     /// Endogenous regressors (2SLS).
@@ -179,6 +183,22 @@ pub struct RawSpec {
     pub distribution: Option<Spanned<String>>,
     /// Per-specification override of the confidence level.
     pub confidence: Option<Spanned<f64>>,
+}
+
+/// `[[contingency]]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawContingency {
+    /// Unique id.
+    pub id: Spanned<String>,
+    /// The rule in words, for the report.
+    pub description: Option<String>,
+    /// Specification the rule watches.
+    pub specification: Spanned<String>,
+    /// Trigger: a table with exactly one of `weak_instruments`, `endogeneity`, `clusters`.
+    pub when: Spanned<toml::Value>,
+    /// Action: an inference method or a specification id.
+    pub then: Spanned<String>,
 }
 
 /// `[[hypothesis]]`.

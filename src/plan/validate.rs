@@ -121,9 +121,6 @@ fn build(ctx: &Ctx, raw: RawPlan, text: String) -> Result<Plan> {
             ),
         ));
     }
-    if let Some(c) = raw.contingencies.first() {
-        return Err(ctx.at(c, "contingency", "[[contingency]] decision rules are not supported by this version of sworn yet; remove them or run a version that supports them"));
-    }
     let study = study(ctx, &raw)?;
     let inference = inference(ctx, &raw)?;
     let data = data_sources(ctx, &raw)?;
@@ -140,12 +137,14 @@ fn build(ctx: &Ctx, raw: RawPlan, text: String) -> Result<Plan> {
         hypotheses: Vec::new(),
         families: BTreeMap::new(),
         tables: Vec::new(),
+        contingencies: Vec::new(),
     };
     plan.assignment = super::validate_spec::assignment(ctx, &raw, &plan)?;
     plan.specifications = super::validate_spec::specifications(ctx, &raw, &plan)?;
     plan.families = super::validate_spec::families(ctx, &raw, &plan)?;
     plan.hypotheses = super::validate_spec::hypotheses(ctx, &raw, &plan)?;
     plan.tables = super::validate_spec::tables(ctx, &raw, &plan)?;
+    plan.contingencies = super::validate_rules::contingencies(ctx, &raw, &plan)?;
     Ok(plan)
 }
 

@@ -13,12 +13,16 @@ use crate::inference::{Correction, Direction};
 use std::collections::{BTreeMap, BTreeSet};
 use toml::Spanned;
 
-fn unknown<'a>(what: &str, name: &str, known: impl IntoIterator<Item = &'a str>) -> String {
+pub(super) fn unknown<'a>(
+    what: &str,
+    name: &str,
+    known: impl IntoIterator<Item = &'a str>,
+) -> String {
     format!("unknown {what} `{name}`{}", hint(name, known))
 }
 
 /// Check that ids are unique.
-fn unique<'a>(
+pub(super) fn unique<'a>(
     ctx: &Ctx,
     ids: impl IntoIterator<Item = &'a Spanned<String>>,
     what: &str,
@@ -110,11 +114,38 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
     let id = s.id.get_ref().clone();
     let key = |k: &str| format!("specification[{id}].{k}");
     let table = spec_table(ctx, s, plan, &key("data"))?;
-    ctx.one_of(&s.estimator, &key("estimator"), &["ols", "2sls"])?;
-    let estimator = if s.estimator.get_ref() == "ols" {
-        Estimator::Ols
-    } else {
-        Estimator::Tsls
+    ctx.one_of(
+        &s.estimator,
+        &key("estimator"),
+        &["ols", "2sls", "liml", "fuller"],
+    )?;
+    let estimator = match s.estimator.get_ref().as_str() {
+        "ols" => Estimator::Ols,
+        "liml" => Estimator::Liml,
+        "fuller" => Estimator::Fuller,
+        _ => Estimator::Tsls,
+    };
+    let fuller_k = match &s.fuller_k {
+        Some(k) if estimator != Estimator::Fuller => {
+            return Err(ctx.at(
+                k,
+                key("fuller_k"),
+                "fuller_k belongs to estimator = \"fuller\"",
+            ))
+        }
+        Some(k) if !(k.get_ref().is_finite() && *k.get_ref() > 0.0) => {
+            return Err(ctx.at(
+                k,
+                key("fuller_k"),
+                "fuller_k must be a positive number (1 is the usual choice, 4 minimises mean squared error)",
+            ))
+        }
+        Some(k) => *k.get_ref(),
+        None => 1.0,
+    };
+    let worst_case_bias = match &s.worst_case_bias {
+        Some(b) => ctx.unit_open(b, &key("worst_case_bias"))?,
+        None => 0.10,
     };
     let names = available(table, &plan.derive);
     let numeric = |v: &Spanned<String>, k: &str| -> Result<String> {
@@ -161,6 +192,8 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
             Some(c) => ctx.unit_open(c, &key("confidence"))?,
             None => plan.inference.confidence,
         },
+        fuller_k,
+        worst_case_bias,
     };
     check_shape(ctx, s, &spec)?;
     Ok(spec)
@@ -307,8 +340,8 @@ fn errors(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Error
     if names.is_empty() || names.len() > 2 {
         return Err(ctx.at(v, key, "cluster errors take one or two cluster columns"));
     }
-    if names.len() == 2 {
-        return Err(ctx.at(v, key, "two-way clustering is not supported by this version of sworn yet; cluster by one column"));
+    if names.len() == 2 && names[0] == names[1] {
+        return Err(ctx.at(v, key, "two-way clustering needs two different columns"));
     }
     let spanned: Vec<Spanned<String>> = names
         .iter()
@@ -320,9 +353,6 @@ fn errors(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Error
 fn diagnostics(ctx: &Ctx, s: &RawSpec, estimator: Estimator, key: &str) -> Result<Vec<Diagnostic>> {
     let mut out = Vec::new();
     for d in &s.diagnostics {
-        if d.get_ref() == "weak_instruments" {
-            return Err(ctx.at(d, key, "the weak_instruments diagnostic (effective F) is not supported by this version of sworn yet; remove it (first_stage reports the first-stage F)"));
-        }
         ctx.one_of(
             d,
             key,
@@ -331,6 +361,7 @@ fn diagnostics(ctx: &Ctx, s: &RawSpec, estimator: Estimator, key: &str) -> Resul
                 "reduced_form",
                 "endogeneity",
                 "overidentification",
+                "weak_instruments",
             ],
         )?;
         if estimator == Estimator::Ols {
@@ -338,15 +369,23 @@ fn diagnostics(ctx: &Ctx, s: &RawSpec, estimator: Estimator, key: &str) -> Resul
                 d,
                 key,
                 format!(
-                    "diagnostic `{}` applies to 2SLS specifications only",
+                    "diagnostic `{}` applies to instrumental-variable specifications (2sls, liml, fuller) only",
                     d.get_ref()
                 ),
+            ));
+        }
+        if d.get_ref() == "weak_instruments" && s.endogenous.len() != 1 {
+            return Err(ctx.at(
+                d,
+                key,
+                "the weak_instruments diagnostic (effective F, Anderson–Rubin set) needs exactly one endogenous regressor",
             ));
         }
         out.push(match d.get_ref().as_str() {
             "first_stage" => Diagnostic::FirstStage,
             "reduced_form" => Diagnostic::ReducedForm,
             "endogeneity" => Diagnostic::Endogeneity,
+            "weak_instruments" => Diagnostic::WeakInstruments,
             _ => Diagnostic::Overidentification,
         });
     }
@@ -370,18 +409,18 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
     match spec.estimator {
         Estimator::Ols => {
             if let Some(v) = s.endogenous.first().or(s.instruments.first()) {
-                return Err(ctx.at(v, key("estimator"), "endogenous and instruments belong to estimator = \"2sls\"; for OLS list terms under regressors"));
+                return Err(ctx.at(v, key("estimator"), "endogenous and instruments belong to an instrumental-variable estimator (\"2sls\", \"liml\", \"fuller\"); for OLS list terms under regressors"));
             }
         }
-        Estimator::Tsls => {
+        _ => {
             if let Some(v) = s.regressors.first() {
-                return Err(ctx.at(v, key("regressors"), "a 2SLS specification lists endogenous, instruments and controls; move this term"));
+                return Err(ctx.at(v, key("regressors"), "an instrumental-variable specification lists endogenous, instruments and controls; move this term"));
             }
             if spec.endogenous.is_empty() {
                 return Err(ctx.at(
                     &s.estimator,
                     key("endogenous"),
-                    "2SLS needs at least one endogenous regressor",
+                    "an instrumental-variable estimator needs at least one endogenous regressor",
                 ));
             }
             if spec.instruments.len() < spec.endogenous.len() {

@@ -64,12 +64,42 @@ pub fn tex(s: &str) -> String {
             '‘' | '’' => out.push('\''),
             '“' | '”' => out.push_str("\\textquotedbl{}"),
             '…' => out.push_str("\\ldots{}"),
+            '∪' => out.push_str("$\\cup$"),
+            '∞' => out.push_str("$\\infty$"),
+            '∅' => out.push_str("$\\emptyset$"),
+            'κ' => out.push_str("$\\kappa$"),
+            'τ' => out.push_str("$\\tau$"),
+            'χ' => out.push_str("$\\chi$"),
+            'β' => out.push_str("$\\beta$"),
+            '→' => out.push_str("$\\rightarrow$"),
             c if (c as u32) < 0x20 && c != '\n' => {}
             c if (c as u32) <= 0xFF => out.push(c),
             _ => out.push('?'),
         }
     }
     out
+}
+
+/// A confidence set as text: pieces joined by ∪, unbounded ends as ∞.
+pub fn set_text(pieces: &[crate::results::SetPiece]) -> String {
+    if pieces.is_empty() {
+        return "∅ (empty)".to_string();
+    }
+    if let [p] = pieces {
+        if p.lower.is_none() && p.upper.is_none() {
+            return "(−∞, ∞) (the whole line)".to_string();
+        }
+    }
+    pieces
+        .iter()
+        .map(|p| match (p.lower, p.upper) {
+            (Some(a), Some(b)) => format!("[{}, {}]", num(a), num(b)),
+            (None, Some(b)) => format!("(−∞, {}]", num(b)),
+            (Some(a), None) => format!("[{}, ∞)", num(a)),
+            (None, None) => "(−∞, ∞)".to_string(),
+        })
+        .collect::<Vec<_>>()
+        .join(" ∪ ")
 }
 
 /// Escape text for a Markdown table cell.
@@ -98,5 +128,23 @@ mod tests {
         assert_eq!(tex("a_b & 50% #1 $x$ {y} ~ ^ \\"), "a\\_b \\& 50\\% \\#1 \\$x\\$ \\{y\\} \\textasciitilde{} \\textasciicircum{} \\textbackslash{}");
         assert_eq!(tex("F ≥ 10 – ok 😀"), "F $\\geq$ 10 -- ok ?");
         assert_eq!(md("a|b"), "a\\|b");
+        assert_eq!(
+            tex("(−∞, 1] ∪ [2, ∞)"),
+            "(-$\\infty$, 1] $\\cup$ [2, $\\infty$)"
+        );
+    }
+
+    /// Each shape of a confidence set prints distinctly.
+    #[test]
+    fn set_shapes_print() {
+        use crate::results::SetPiece;
+        let p = |lower, upper| SetPiece { lower, upper };
+        assert_eq!(set_text(&[]), "∅ (empty)");
+        assert_eq!(set_text(&[p(None, None)]), "(−∞, ∞) (the whole line)");
+        assert_eq!(set_text(&[p(Some(-1.0), Some(2.0))]), "[-1.000, 2.000]");
+        assert_eq!(
+            set_text(&[p(None, Some(-1.0)), p(Some(2.0), None)]),
+            "(−∞, -1.000] ∪ [2.000, ∞)"
+        );
     }
 }

@@ -5,7 +5,7 @@
 mod format;
 mod model;
 
-pub use format::{num, pval, tex};
+pub use format::{num, pval, set_text, tex};
 pub use model::ReportModel;
 
 use crate::error::{Error, Result};

@@ -1,6 +1,6 @@
 //! The report model: everything a report shows, already formatted as text.
 
-use super::format::{num, pval};
+use super::format::{num, pval, set_text};
 use crate::inference::{Correction, Direction};
 use crate::plan::{spec_terms, Plan};
 use crate::results::{Results, SpecResult, Term, TestResult};
@@ -17,6 +17,7 @@ pub struct ReportModel {
     provenance: Vec<(String, String)>,
     integrity: String,
     hypotheses: Vec<HypRow>,
+    contingencies: Vec<RuleRow>,
     tables: Vec<TableModel>,
     specs: Vec<SpecModel>,
     apart: Vec<SpecModel>,
@@ -25,10 +26,21 @@ pub struct ReportModel {
 }
 
 #[derive(Debug, Serialize)]
+struct RuleRow {
+    id: String,
+    specification: String,
+    rule: String,
+    invoked: String,
+    outcome: String,
+}
+
+#[derive(Debug, Serialize)]
 struct HypRow {
     id: String,
     claim: String,
     test: String,
+    method: String,
+    interval: String,
     estimate: String,
     p: String,
     adjusted: String,
@@ -189,6 +201,12 @@ impl ReportModel {
             provenance: provenance(r),
             integrity: integrity_line(r),
             hypotheses: plan.hypotheses.iter().map(|h| hyp_row(&h.id, r)).collect(),
+            contingencies: plan
+                .contingencies
+                .iter()
+                .zip(&r.contingencies)
+                .map(|(c, res)| rule_row(c, res))
+                .collect(),
             tables: plan.tables.iter().map(|t| table_model(t, r)).collect(),
             specs,
             apart,
@@ -256,6 +274,62 @@ fn integrity_line(r: &Results) -> String {
     }
 }
 
+fn rule_row(c: &crate::plan::Contingency, r: &crate::results::ContingencyResult) -> RuleRow {
+    let trigger = match &c.trigger {
+        crate::plan::Trigger::WeakInstruments { below } => {
+            format!("if the effective first-stage F is below {below}")
+        }
+        crate::plan::Trigger::Endogeneity { not_rejected_at } => {
+            format!("if exogeneity is not rejected at {not_rejected_at}")
+        }
+        crate::plan::Trigger::Clusters { fewer_than } => {
+            format!("if there are fewer than {fewer_than} clusters")
+        }
+    };
+    let action = match &c.action {
+        crate::plan::Action::AndersonRubin => "use Anderson–Rubin inference".to_string(),
+        crate::plan::Action::Liml => "use the LIML estimate".to_string(),
+        crate::plan::Action::Tf => "use the tF critical value".to_string(),
+        crate::plan::Action::UseSpecification(s) => format!("report `{s}` as primary"),
+    };
+    let mut rule = format!("{trigger}, {action}");
+    if let Some(d) = &c.description {
+        rule = format!("{d} ({rule})");
+    }
+    RuleRow {
+        id: c.id.clone(),
+        specification: c.specification.clone(),
+        rule,
+        invoked: if r.invoked { "yes" } else { "no" }.to_string(),
+        outcome: if r.hypotheses.is_empty() {
+            r.reason.clone()
+        } else {
+            format!("{} (hypotheses {})", r.reason, r.hypotheses.join(", "))
+        },
+    }
+}
+
+fn method_text(h: &crate::results::HypothesisResult) -> String {
+    let base = match h.method {
+        "anderson-rubin" => "Anderson–Rubin".to_string(),
+        "tf" => "tF".to_string(),
+        "normal" => format!("{} z", h.estimator.to_uppercase()),
+        _ => format!(
+            "{} t{}",
+            h.estimator.to_uppercase(),
+            h.df.map_or(String::new(), |d| format!("({d})"))
+        ),
+    };
+    let mut text = base;
+    if h.tested_specification != h.specification {
+        text = format!("{text} in {}", h.tested_specification);
+    }
+    if let Some(c) = &h.contingency {
+        text = format!("{text}, by contingency {c}");
+    }
+    text
+}
+
 fn hyp_row(id: &str, r: &Results) -> HypRow {
     let h = &r.hypotheses[id];
     let opt = |v: Option<f64>, f: fn(f64) -> String| v.map_or("n/a".to_string(), f);
@@ -272,6 +346,8 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
             h.specification,
             direction_text(h.direction, h.null)
         ),
+        method: method_text(h),
+        interval: h.ci.as_deref().map_or("n/a".to_string(), set_text),
         estimate: opt(h.estimate, num),
         p: opt(h.p_value, pval),
         adjusted: format!(
@@ -336,13 +412,25 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
     ];
     if !r.fixed_effects.is_empty() {
         facts.push(format!(
-            "absorbed fixed effects: {}",
+            "absorbed fixed effects (alternating projections): {}; they use {} degrees of freedom, counted in the residual df{} · within R² {}{}",
             r.fixed_effects
                 .iter()
                 .map(|(k, v)| format!("{k} ({v} levels)"))
                 .collect::<Vec<_>>()
-                .join(", ")
+                .join(", "),
+            r.absorbed_df,
+            match (r.cluster_by.is_some(), r.absorbed_nested_df) {
+                (false, _) => String::new(),
+                (true, 0) => " (none nested in a cluster variable)".to_string(),
+                (true, m) => format!(" ({m} of them from fixed effects nested in a cluster variable, not counted in the CR1 factor's K)"),
+            },
+            r.within_r_squared.map_or("n/a".into(), num),
+            if r.singletons_dropped > 0 { format!(" · {} singleton row(s) dropped", r.singletons_dropped) } else { String::new() }
         ));
+    }
+    facts.push(df_convention(r));
+    if let Some(k) = r.kappa {
+        facts.push(format!("k-class κ = {}", num(k)));
     }
     if let Some((text, _)) = &s.sample {
         facts.push(format!("sample: {text}"));
@@ -381,8 +469,9 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
                     pval(fs.robust_f_p_value)
                 ),
                 format!(
-                    "partial R² of excluded instruments: {} · first-stage R² {}",
+                    "partial R² of excluded instruments: {} · Shea's partial R² {} · first-stage R² {}",
                     num(fs.partial_r_squared),
+                    num(fs.shea_partial_r_squared),
                     num(fs.r_squared)
                 ),
             ],
@@ -414,12 +503,88 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
     }
     if let Some(o) = &r.overidentification {
         blocks.push(Block {
-            title: "Over-identification tests (null: all instruments valid; homoskedastic)".into(),
+            title: "Over-identification tests (null: all instruments valid)".into(),
             terms: vec![],
             lines: vec![
-                test_line("Sargan", &o.sargan),
-                test_line("Basmann", &o.basmann),
+                test_line("Sargan (homoskedastic)", &o.sargan),
+                test_line("Basmann (homoskedastic)", &o.basmann),
+                match &o.hansen_j {
+                    Some(j) => test_line(
+                        &format!("Hansen's J (two-step GMM, {} weight)", robust_name(r)),
+                        j,
+                    ),
+                    None => "Hansen's J: not computed with two-way clustering (no positive definite weight is guaranteed)".to_string(),
+                },
             ],
+        });
+    }
+    if let Some(w) = &r.weak_instruments {
+        let mut lines = vec![
+            format!(
+                "effective first-stage F (Montiel Olea–Pflueger, {} errors): {} against the critical value {} for a worst-case bias of {:.0}% at 5% size (Patnaik approximation, {} effective df): {}",
+                r.errors,
+                num(w.effective_f),
+                num(w.critical_value),
+                100.0 * w.worst_case_bias,
+                num(w.effective_df),
+                if w.weak { "WEAK" } else { "not weak by this test" }
+            ),
+            format!("Cragg–Donald statistic (homoskedastic): {}", num(w.cragg_donald)),
+        ];
+        for v in &w.stock_yogo {
+            lines.push(format!(
+                "Stock–Yogo critical value, {} {:.0}%: {}",
+                if v.criterion == "relative-bias" {
+                    "2SLS relative bias"
+                } else {
+                    "maximal size of a 5% Wald test"
+                },
+                100.0 * v.level,
+                num(v.critical_value)
+            ));
+        }
+        if let Some(c) = w.tf_critical_value {
+            lines.push(format!(
+                "tF critical value for the 2SLS t-ratio at 5% given the first-stage F: {} (instead of 1.96)",
+                num(c)
+            ));
+        }
+        blocks.push(Block {
+            title: "Weak-instrument diagnostics".into(),
+            terms: vec![],
+            lines,
+        });
+    }
+    if let Some(ar) = &r.anderson_rubin {
+        blocks.push(Block {
+            title: "Anderson–Rubin inference (robust to weak instruments)".into(),
+            terms: vec![],
+            lines: vec![
+                format!(
+                    "test of a zero coefficient: {}",
+                    test_line(
+                        "AR",
+                        &TestResult {
+                            statistic: ar.statistic,
+                            p_value: ar.p_value,
+                            distribution: ar.distribution,
+                        }
+                    )
+                ),
+                format!(
+                    "{:.0}% confidence set ({}): {}",
+                    100.0 * ar.confidence,
+                    ar.shape,
+                    set_text(&ar.set)
+                ),
+            ],
+        });
+    }
+    if let Some(l) = &r.liml {
+        blocks.push(Block {
+            title: format!("LIML estimate (κ = {}), for a contingency", num(l.kappa)),
+            terms: ordered_terms(&order, &l.terms),
+            lines: vec![],
         });
     }
     SpecModel {
@@ -435,12 +600,58 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
     }
 }
 
+fn robust_name(r: &SpecResult) -> &'static str {
+    match r.errors {
+        "cluster" => "cluster-robust",
+        _ => "heteroskedasticity-robust",
+    }
+}
+
+/// The degrees-of-freedom conventions a specification's numbers use.
+fn df_convention(r: &SpecResult) -> String {
+    let k = r.n - r.df_resid - r.absorbed_df;
+    let resid = if r.absorbed_df > 0 {
+        format!(
+            "residual df {} = n − K − absorbed = {} − {k} − {}",
+            r.df_resid, r.n, r.absorbed_df
+        )
+    } else {
+        format!("residual df {} = n − K = {} − {k}", r.df_resid, r.n)
+    };
+    let factor = match r.errors {
+        "hc1" if r.absorbed_df > 0 => " · HC1 factor n/(n − K − absorbed)",
+        "hc1" => " · HC1 factor n/(n − K)",
+        "cluster" if r.absorbed_df > 0 => " · CR1 factor G/(G − 1)·(n − 1)/(n − K − a′), a′ the absorbed df not nested in a cluster variable",
+        "cluster" => " · CR1 factor G/(G − 1)·(n − 1)/(n − K)",
+        _ => "",
+    };
+    let coef = match (r.distribution, r.df) {
+        ("normal", _) => "N(0, 1)".to_string(),
+        (_, Some(df)) if r.clusters.is_some() => format!("t(G − 1) = t({df})"),
+        (_, Some(df)) => format!("t({df})"),
+        _ => "t".to_string(),
+    };
+    let joint = if r.clusters.is_some() {
+        "robust F tests refer to F(q, G − 1), classical ones to F(q, n − L − absorbed)"
+    } else {
+        "F tests refer to F(q, n − L − absorbed), L the regressors of that regression"
+    };
+    let tests = format!("coefficient tests use {coef}; {joint}");
+    format!("degrees of freedom: {resid}{factor}; {tests}")
+}
+
 fn cautions(r: &Results) -> Vec<String> {
     let mut c = Vec::new();
-    let has_iv = r.specifications.values().any(|s| s.estimator == "2sls");
+    let has_iv = r.specifications.values().any(|s| s.estimator != "ols");
     if has_iv {
         c.push("Instrumental-variable estimates rest on the exclusion restriction (the instrument affects the outcome only through the endogenous regressor) and on instrument exogeneity. These assumptions cannot be tested with the data; over-identification tests only check instruments against each other.".into());
         c.push("With a binary instrument and a binary treatment, 2SLS estimates a local average treatment effect: the effect for compliers, whose take-up the instrument changes, which need not equal the effect for everyone.".into());
+    }
+    if r.specifications
+        .values()
+        .any(|s| s.weak_instruments.as_ref().is_some_and(|w| w.weak))
+    {
+        c.push("At least one specification has weak instruments by the effective-F test: its 2SLS estimate may be biased toward OLS and its t-test may over-reject. The Anderson–Rubin test and set stay valid however weak the instruments are; an unbounded set means the data cannot bound the effect.".into());
     }
     if r.specifications
         .values()

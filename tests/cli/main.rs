@@ -2,6 +2,8 @@
 
 mod bad_input;
 mod common;
+mod contingency;
 mod deviations;
 mod happy;
 mod nist;
+mod reference;

@@ -1,0 +1,162 @@
+//! `[[contingency]]` rules: what each needs computed, whether it fires, and what it changes.
+//!
+//! Rules are evaluated in plan order after every specification is fitted. A rule fires when
+//! its trigger holds: the effective first-stage F is below `below`, the control-function
+//! endogeneity test (with the specification's error type) has p > `not_rejected_at`. The first
+//! rule that fires on a specification decides the inference of that specification's
+//! hypotheses; a later rule that also fires is recorded as superseded and changes nothing.
+//! Invoking a rule is not a deviation: it was fixed before the data were seen.
+
+use super::spec::{Fitted, Needs};
+use crate::plan::{Action, Diagnostic, Plan, Trigger};
+use crate::report::{num, pval};
+use crate::results::ContingencyResult;
+use std::collections::BTreeMap;
+
+/// How the hypotheses of one specification are tested after a rule fired.
+#[derive(Debug, Clone)]
+pub struct Substitution {
+    /// The rule's id.
+    pub contingency: String,
+    /// What it does.
+    pub action: Action,
+}
+
+/// What each specification must compute for the plan's rules.
+pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
+    let mut out: BTreeMap<String, Needs> = BTreeMap::new();
+    for c in &plan.contingencies {
+        let n = out.entry(c.specification.clone()).or_default();
+        match &c.trigger {
+            Trigger::WeakInstruments { .. } => n.diagnostics.push(Diagnostic::WeakInstruments),
+            Trigger::Endogeneity { .. } => n.diagnostics.push(Diagnostic::Endogeneity),
+            Trigger::Clusters { .. } => {}
+        }
+        match &c.action {
+            Action::Liml => n.liml = true,
+            Action::AndersonRubin => {
+                let spec = plan.specifications.iter().find(|s| s.id == c.specification);
+                for h in &plan.hypotheses {
+                    let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
+                    if h.specification == c.specification
+                        && on_endog
+                        && !n.ar_nulls.contains(&h.null)
+                    {
+                        n.ar_nulls.push(h.null);
+                    }
+                }
+            }
+            Action::Tf | Action::UseSpecification(_) => {}
+        }
+    }
+    out
+}
+
+/// Evaluate every rule; returns the results (plan order) and the substitution per
+/// specification.
+pub fn evaluate(
+    plan: &Plan,
+    fitted: &BTreeMap<String, Fitted>,
+) -> (Vec<ContingencyResult>, BTreeMap<String, Substitution>) {
+    let mut results = Vec::new();
+    let mut subs: BTreeMap<String, Substitution> = BTreeMap::new();
+    for c in &plan.contingencies {
+        let r = &fitted[&c.specification].result;
+        let (trigger, threshold, value, fires, reason) = match &c.trigger {
+            Trigger::WeakInstruments { below } => {
+                let f = r.weak_instruments.as_ref().map(|w| w.effective_f);
+                let fires = f.is_some_and(|f| f < *below);
+                let reason = match f {
+                    Some(f) if fires => format!("effective first-stage F {} < {below}", num(f)),
+                    Some(f) => format!("effective first-stage F {} ≥ {below}", num(f)),
+                    None => "the effective F could not be computed".to_string(),
+                };
+                ("weak_instruments", *below, f, fires, reason)
+            }
+            Trigger::Endogeneity { not_rejected_at } => {
+                let p = r.endogeneity.as_ref().map(|e| e.control_function.p_value);
+                let fires = p.is_some_and(|p| p > *not_rejected_at);
+                let reason = match p {
+                    Some(p) if fires => format!(
+                        "control-function endogeneity test p = {} > {not_rejected_at}: exogeneity not rejected",
+                        pval(p)
+                    ),
+                    Some(p) => format!(
+                        "control-function endogeneity test p = {} ≤ {not_rejected_at}: exogeneity rejected",
+                        pval(p)
+                    ),
+                    None => "the endogeneity test could not be computed".to_string(),
+                };
+                ("endogeneity", *not_rejected_at, p, fires, reason)
+            }
+            Trigger::Clusters { fewer_than } => {
+                let g = r.clusters;
+                let fires = g.is_some_and(|g| g < *fewer_than);
+                let reason = format!("{} clusters", g.unwrap_or(0));
+                (
+                    "clusters",
+                    *fewer_than as f64,
+                    g.map(|g| g as f64),
+                    fires,
+                    reason,
+                )
+            }
+        };
+        let mut hypotheses = Vec::new();
+        let mut reason = reason;
+        if fires {
+            if let Some(first) = subs.get(&c.specification) {
+                reason = format!(
+                    "{reason}; superseded by contingency `{}`, which fired first on this specification",
+                    first.contingency
+                );
+            } else {
+                let spec = plan.specifications.iter().find(|s| s.id == c.specification);
+                hypotheses = plan
+                    .hypotheses
+                    .iter()
+                    .filter(|h| h.specification == c.specification)
+                    .filter(|h| match c.action {
+                        Action::UseSpecification(_) => true,
+                        _ => spec.is_some_and(|s| s.endogenous.contains(&h.term)),
+                    })
+                    .map(|h| h.id.clone())
+                    .collect();
+                subs.insert(
+                    c.specification.clone(),
+                    Substitution {
+                        contingency: c.id.clone(),
+                        action: c.action.clone(),
+                    },
+                );
+                reason = format!("{reason}: {}", action_words(&c.action));
+            }
+        }
+        results.push(ContingencyResult {
+            id: c.id.clone(),
+            specification: c.specification.clone(),
+            trigger,
+            threshold,
+            value,
+            invoked: fires,
+            action: c.action.name(),
+            hypotheses,
+            reason,
+        });
+    }
+    (results, subs)
+}
+
+fn action_words(a: &Action) -> String {
+    match a {
+        Action::AndersonRubin => {
+            "hypotheses on the endogenous regressor use the Anderson–Rubin test and set".into()
+        }
+        Action::Liml => "hypotheses on the endogenous regressor use the LIML estimate".into(),
+        Action::Tf => {
+            "hypotheses on the endogenous regressor use the tF critical value for the t-ratio"
+                .into()
+        }
+        Action::UseSpecification(s) => format!("specification `{s}` is reported as primary"),
+    }
+}

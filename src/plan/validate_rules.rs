@@ -1,0 +1,229 @@
+//! Validation of `[[contingency]]` decision rules: the trigger must be one the tool can
+//! evaluate, its threshold possible, and the action must fit the specification it watches.
+
+use super::raw::{RawContingency, RawPlan};
+use super::validate::Ctx;
+use super::validate_spec::{spec_terms, unique, unknown};
+use super::{Action, Contingency, Errors, Estimator, Plan, Spec, Trigger};
+use crate::error::Result;
+use std::collections::BTreeSet;
+use toml::Spanned;
+
+const TRIGGERS: [&str; 3] = ["weak_instruments", "endogeneity", "clusters"];
+const WEAK_ACTIONS: [&str; 3] = ["anderson-rubin", "liml", "tf"];
+
+/// All `[[contingency]]` entries, in plan order.
+pub(super) fn contingencies(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Contingency>> {
+    unique(
+        ctx,
+        raw.contingencies.iter().map(|c| &c.get_ref().id),
+        "contingency",
+    )?;
+    let mut out: Vec<Contingency> = Vec::new();
+    for c in &raw.contingencies {
+        let rule = contingency(ctx, c.get_ref(), plan)?;
+        let kind = std::mem::discriminant(&rule.trigger);
+        if let Some(other) = out.iter().find(|o| {
+            o.specification == rule.specification && std::mem::discriminant(&o.trigger) == kind
+        }) {
+            let c = c.get_ref();
+            return Err(ctx.at(
+                &c.when,
+                format!("contingency[{}].when", c.id.get_ref()),
+                format!(
+                    "contingency `{}` already watches the same trigger on specification `{}`; keep one rule per trigger and specification",
+                    other.id, rule.specification
+                ),
+            ));
+        }
+        out.push(rule);
+    }
+    Ok(out)
+}
+
+fn contingency(ctx: &Ctx, c: &RawContingency, plan: &Plan) -> Result<Contingency> {
+    let id = c.id.get_ref().clone();
+    let key = |k: &str| format!("contingency[{id}].{k}");
+    let spec = find_spec(ctx, plan, &c.specification, &key("specification"))?;
+    let trigger = trigger(ctx, &c.when, &key("when"))?;
+    let then = c.then.get_ref();
+    let action = match &trigger {
+        Trigger::WeakInstruments { .. } => {
+            if !spec.estimator.is_iv() {
+                return Err(ctx.at(&c.specification, key("specification"), format!(
+                    "a weak-instrument rule needs an instrumental-variable specification; `{}` is estimated by {}",
+                    spec.id, spec.estimator.name()
+                )));
+            }
+            if spec.endogenous.len() != 1 {
+                return Err(ctx.at(&c.specification, key("specification"), format!(
+                    "the effective first-stage F is defined for one endogenous regressor; `{}` has {}",
+                    spec.id, spec.endogenous.len()
+                )));
+            }
+            ctx.one_of(&c.then, &key("then"), &WEAK_ACTIONS)?;
+            match then.as_str() {
+                "anderson-rubin" => Action::AndersonRubin,
+                "liml" => {
+                    if spec.estimator != Estimator::Tsls {
+                        return Err(ctx.at(&c.then, key("then"), format!(
+                            "specification `{}` is already estimated by {}; then = \"liml\" replaces 2SLS only",
+                            spec.id, spec.estimator.name()
+                        )));
+                    }
+                    Action::Liml
+                }
+                _ => {
+                    if spec.estimator != Estimator::Tsls || spec.instruments.len() != 1 {
+                        return Err(ctx.at(&c.then, key("then"),
+                            "the tF procedure applies to a just-identified 2SLS specification (one endogenous regressor, one instrument); use \"anderson-rubin\" here"));
+                    }
+                    Action::Tf
+                }
+            }
+        }
+        Trigger::Endogeneity { .. } => {
+            if !spec.estimator.is_iv() {
+                return Err(ctx.at(&c.specification, key("specification"), format!(
+                    "an endogeneity rule watches an instrumental-variable specification; `{}` is estimated by {}",
+                    spec.id, spec.estimator.name()
+                )));
+            }
+            let target = find_spec(ctx, plan, &c.then, &key("then"))?;
+            if target.estimator != Estimator::Ols {
+                return Err(ctx.at(&c.then, key("then"), format!(
+                    "then must name an OLS specification to report as primary; `{}` is estimated by {}",
+                    target.id, target.estimator.name()
+                )));
+            }
+            if target.outcome != spec.outcome || target.data != spec.data {
+                return Err(ctx.at(&c.then, key("then"), format!(
+                    "specification `{}` must have the same outcome and data table as `{}` to replace it",
+                    target.id, spec.id
+                )));
+            }
+            let terms: BTreeSet<String> = spec_terms(target).into_iter().collect();
+            if let Some(h) = plan
+                .hypotheses
+                .iter()
+                .find(|h| h.specification == spec.id && !terms.contains(&h.term))
+            {
+                return Err(ctx.at(
+                    &c.then,
+                    key("then"),
+                    format!(
+                        "hypothesis `{}` tests `{}`, which specification `{}` does not estimate",
+                        h.id, h.term, target.id
+                    ),
+                ));
+            }
+            Action::UseSpecification(target.id.clone())
+        }
+        Trigger::Clusters { .. } => {
+            if !matches!(spec.errors, Errors::Cluster(_)) {
+                return Err(ctx.at(
+                    &c.specification,
+                    key("specification"),
+                    format!(
+                        "a cluster-count rule needs clustered errors; `{}` uses {}",
+                        spec.id,
+                        spec.errors.name()
+                    ),
+                ));
+            }
+            ctx.one_of(&c.then, &key("then"), &["wild-bootstrap"])?;
+            return Err(ctx.at(&c.then, key("then"),
+                "then = \"wild-bootstrap\" needs resampling, which this version of sworn does not have yet; remove the rule or choose errors that fit the number of clusters"));
+        }
+    };
+    Ok(Contingency {
+        id,
+        description: c.description.clone(),
+        specification: spec.id.clone(),
+        trigger,
+        action,
+    })
+}
+
+fn find_spec<'p>(ctx: &Ctx, plan: &'p Plan, name: &Spanned<String>, key: &str) -> Result<&'p Spec> {
+    plan.specifications
+        .iter()
+        .find(|s| &s.id == name.get_ref())
+        .ok_or_else(|| {
+            ctx.at(
+                name,
+                key,
+                unknown(
+                    "specification",
+                    name.get_ref(),
+                    plan.specifications.iter().map(|s| s.id.as_str()),
+                ),
+            )
+        })
+}
+
+fn trigger(ctx: &Ctx, when: &Spanned<toml::Value>, key: &str) -> Result<Trigger> {
+    let shape = "when must be a table with one trigger, e.g. { weak_instruments = { below = 10.0 } }, { endogeneity = { not_rejected_at = 0.05 } } or { clusters = { fewer_than = 30 } }";
+    let Some(table) = when.get_ref().as_table() else {
+        return Err(ctx.at(when, key, shape));
+    };
+    if table.len() != 1 {
+        return Err(ctx.at(when, key, shape));
+    }
+    let (name, body) = table
+        .iter()
+        .next()
+        .ok_or_else(|| ctx.at(when, key, shape))?;
+    if !TRIGGERS.contains(&name.as_str()) {
+        return Err(ctx.at(
+            when,
+            key,
+            unknown("trigger", name, TRIGGERS.iter().copied()),
+        ));
+    }
+    let field = match name.as_str() {
+        "weak_instruments" => "below",
+        "endogeneity" => "not_rejected_at",
+        _ => "fewer_than",
+    };
+    let value = body
+        .as_table()
+        .filter(|t| t.len() == 1)
+        .and_then(|t| t.get(field))
+        .ok_or_else(|| {
+            ctx.at(
+                when,
+                key,
+                format!("trigger `{name}` takes exactly one key, `{field}`: {name} = {{ {field} = ... }}"),
+            )
+        })?;
+    let number = value
+        .as_float()
+        .or_else(|| value.as_integer().map(|i| i as f64));
+    match (name.as_str(), number) {
+        ("weak_instruments", Some(f)) if f.is_finite() && f > 0.0 => {
+            Ok(Trigger::WeakInstruments { below: f })
+        }
+        ("weak_instruments", _) => Err(ctx.at(
+            when,
+            key,
+            "weak_instruments.below must be a positive F threshold (e.g. 10.0); no first-stage F is below zero",
+        )),
+        ("endogeneity", Some(a)) if a > 0.0 && a < 1.0 => Ok(Trigger::Endogeneity { not_rejected_at: a }),
+        ("endogeneity", _) => Err(ctx.at(
+            when,
+            key,
+            "endogeneity.not_rejected_at must be a level strictly between 0 and 1 (e.g. 0.05)",
+        )),
+        (_, _) => match value.as_integer() {
+            Some(g) if g >= 3 => Ok(Trigger::Clusters {
+                fewer_than: g as usize,
+            }),
+            _ => Err(ctx.at(
+                when,
+                key,
+                "clusters.fewer_than must be a whole number of clusters of at least 3 (clustered errors need 2 or more, so a lower threshold can never fire)",
+            )),
+        },
+    }
+}
