@@ -386,3 +386,34 @@ fn an_undetected_endogeneity_promotes_the_ols_specification() {
     assert_eq!(v["contingencies"][0]["invoked"], false);
     assert_eq!(v["hypotheses"]["H1"]["tested_specification"], "iv");
 }
+
+#[test]
+fn the_first_rule_that_fires_decides_and_a_later_one_is_superseded() {
+    let rules = format!(
+        "{}\n[[contingency]]\nid = \"ex\"\nspecification = \"iv\"\nwhen = {{ endogeneity = {{ not_rejected_at = 0.05 }} }}\nthen = \"ols\"\n",
+        weak_rule("anderson-rubin")
+    );
+    // A weak instrument and an exogenous regressor: both triggers hold.
+    let g = Gen {
+        strength: 0.05,
+        exogenous: true,
+        ..Gen::default()
+    };
+    let (_, v) = run(&plan("[\"z\"]", "\"hc1\"", &rules), &g.csv());
+    let cs = v["contingencies"].as_array().expect("two rules");
+    assert_eq!(cs[0]["invoked"], true, "{}", cs[0]);
+    assert_eq!(cs[1]["invoked"], true, "{}", cs[1]);
+    assert!(
+        cs[1]["reason"]
+            .as_str()
+            .unwrap_or("")
+            .contains("superseded by contingency `weak`"),
+        "{}",
+        cs[1]
+    );
+    assert_eq!(cs[1]["hypotheses"].as_array().map(Vec::len), Some(0));
+    let h = &v["hypotheses"]["H1"];
+    assert_eq!(h["contingency"], "weak");
+    assert_eq!(h["method"], "anderson-rubin");
+    assert_eq!(h["tested_specification"], "iv");
+}
