@@ -72,6 +72,7 @@ pub fn tex(s: &str) -> String {
             'χ' => out.push_str("$\\chi$"),
             'β' => out.push_str("$\\beta$"),
             '→' => out.push_str("$\\rightarrow$"),
+            '′' => out.push_str("$'$"),
             c if (c as u32) < 0x20 && c != '\n' => {}
             c if (c as u32) <= 0xFF => out.push(c),
             _ => out.push('?'),

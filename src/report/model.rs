@@ -619,11 +619,14 @@ fn df_convention(r: &SpecResult) -> String {
         format!("residual df {} = n − K = {} − {k}", r.df_resid, r.n)
     };
     let factor = match r.errors {
-        "hc1" if r.absorbed_df > 0 => " · HC1 factor n/(n − K − absorbed)",
-        "hc1" => " · HC1 factor n/(n − K)",
-        "cluster" if r.absorbed_df > 0 => " · CR1 factor G/(G − 1)·(n − 1)/(n − K − a′), a′ the absorbed df not nested in a cluster variable",
-        "cluster" => " · CR1 factor G/(G − 1)·(n − 1)/(n − K)",
-        _ => "",
+        "hc1" if r.absorbed_df > 0 => " · HC1 factor n/(n − K − absorbed)".to_string(),
+        "hc1" => " · HC1 factor n/(n − K)".to_string(),
+        "cluster" if r.absorbed_df > 0 => format!(
+            " · CR1 factor G/(G − 1)·(n − 1)/(n − K − a′) with a′ = {} (absorbed df not nested in a cluster variable)",
+            r.absorbed_df - r.absorbed_nested_df
+        ),
+        "cluster" => " · CR1 factor G/(G − 1)·(n − 1)/(n − K)".to_string(),
+        _ => String::new(),
     };
     let coef = match (r.distribution, r.df) {
         ("normal", _) => "N(0, 1)".to_string(),
