@@ -1,0 +1,237 @@
+//! Resampling inference: randomization tests and the restricted wild cluster bootstrap.
+//!
+//! Role: p-values that do not lean on an asymptotic reference distribution. Everything here
+//! is pure numerics over nalgebra matrices, deterministic given the inputs and the seed.
+//!
+//! # Draws and random numbers
+//! A plan ([`Draws`]) gives the number of random draws B, a seed and the threshold
+//! `exact_below`. When the number of distinct re-draws (assignments, or sign vectors) is at
+//! most `exact_below`, all of them are enumerated, each counting once, and no random numbers
+//! are used. Otherwise draw 0 is the observed assignment (the all-ones weight vector for the
+//! bootstrap) and draws 1..=B are random, so `draws_used` = B + 1 (minus skipped draws).
+//!
+//! The random numbers of draw b are a pure function of (seed, b): a SplitMix64 stream
+//! (Steele, Lea and Flood 2014, OOPSLA, "Fast splittable pseudorandom number generators";
+//! the constants are Vigna's reference ones, quoted from memory) started at
+//! `seed ⊕ mix(0x9E3779B97F4A7C15 · (b + 1))`, where `mix` is the SplitMix64 finaliser.
+//! Uniform integers below m use Lemire's (2019, ACM TOMACS 29) multiply-and-reject method,
+//! so they are exactly uniform. Draws are computed in parallel (rayon) and reduced in draw
+//! order, so results are bit-identical whatever the thread count.
+//!
+//! # p-values (the project's contract)
+//! With T the observed statistic and T*_b the statistic of draw b (the observed draw
+//! included), p = #{b : |T*_b| ≥ |T|} / (number of draws), where "≥" allows a relative tie
+//! tolerance [`TIE_TOLERANCE`]: |T*| ≥ |T|·(1 − 1e-12). The one-sided versions count
+//! T* ≥ T − 1e-12·|T| (upper) and T* ≤ T + 1e-12·|T| (lower). A draw whose statistic cannot
+//! be computed (a re-drawn regressor in the span of the controls, or a zero variance) is
+//! skipped and reported in `skipped`; since the observed draw is never degenerate, this is
+//! the randomization test conditional on the set of non-degenerate assignments, which is
+//! still exact (that set does not depend on the outcome).
+//!
+//! # Submodules
+//! * `assignment`: designs, counting and enumerating assignments, random permutations.
+//! * `partial`: the regression of a fixed outcome on re-drawn columns after partialling out
+//!   fixed controls once (Frisch–Waugh–Lovell), with every covariance of [`CovSpec`].
+//! * `randomization`: [`randomization_test`] and [`randomization_ar`].
+//! * `wild`: [`wild_cluster_bootstrap`].
+//!
+//! Not implemented: the wild restricted efficient bootstrap for 2SLS (Davidson and MacKinnon
+//! 2010, JBES 28).
+//!
+//! [`CovSpec`]: super::CovSpec
+
+mod assignment;
+mod partial;
+mod randomization;
+mod wild;
+
+#[cfg(test)]
+mod reference_tests;
+#[cfg(test)]
+mod tests;
+
+use rayon::prelude::*;
+
+use super::EstimateError;
+
+pub use assignment::{count_assignments, AssignmentDesign};
+pub use randomization::{randomization_ar, randomization_test, RiStatistic};
+pub use wild::{wild_cluster_bootstrap, Weights};
+
+/// Relative tolerance under which two statistics count as tied (tied draws count as at
+/// least as extreme).
+pub const TIE_TOLERANCE: f64 = 1e-12;
+
+/// The default `exact_below`: enumerate when there are at most this many distinct draws.
+pub const DEFAULT_EXACT_BELOW: u64 = 100_000;
+
+/// How many draws to make and when to enumerate instead.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Draws {
+    /// Random draws B besides the observed one (used only when not enumerating).
+    pub draws: usize,
+    /// Seed of the counter-based generator.
+    pub seed: u64,
+    /// Enumerate every distinct draw when their number is at most this.
+    pub exact_below: u64,
+}
+
+/// The outcome of a resampling test.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ResampleResult {
+    /// The observed statistic.
+    pub observed: f64,
+    /// Two-sided p-value: share of draws with |T*| ≥ |T|.
+    pub p_value: f64,
+    /// Upper one-sided p-value: share of draws with T* ≥ T.
+    pub p_upper: f64,
+    /// Lower one-sided p-value: share of draws with T* ≤ T.
+    pub p_lower: f64,
+    /// Draws in the denominators (the observed one included, skipped ones excluded).
+    pub draws_used: usize,
+    /// Draws whose statistic could not be computed (degenerate re-draws), left out.
+    pub skipped: usize,
+    /// Whether every distinct draw was enumerated (no random numbers used).
+    pub exact: bool,
+}
+
+/// Why a resampling test could not be run.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum ResampleError {
+    /// The underlying estimate failed.
+    #[error(transparent)]
+    Estimate(#[from] EstimateError),
+    /// Block or cluster ids not one per observation.
+    #[error("{what} has {got} entries for {n} observations")]
+    IdLength {
+        /// "blocks" or "clusters".
+        what: &'static str,
+        /// Observations.
+        n: usize,
+        /// Entries given.
+        got: usize,
+    },
+    /// A cluster-randomised design whose treatment varies inside a cluster.
+    #[error("the treatment is not constant within cluster {cluster}")]
+    VariesWithinCluster {
+        /// The caller's cluster id.
+        cluster: usize,
+    },
+    /// A cluster that spans several blocks in a blocked, cluster-randomised design.
+    #[error("cluster {cluster} spans more than one block")]
+    ClusterSpansBlocks {
+        /// The caller's cluster id.
+        cluster: usize,
+    },
+    /// Random draws requested but B = 0 and the draws are too many to enumerate.
+    #[error(
+        "no random draws requested and the distinct draws are too many to enumerate ({count:?})"
+    )]
+    NoDraws {
+        /// The number of distinct draws (`None`: more than 2^128 − 1).
+        count: Option<u128>,
+    },
+    /// The observed statistic is not finite (e.g. a zero standard error).
+    #[error("the observed statistic is not finite")]
+    ObservedNotFinite,
+}
+
+/// The observed statistic, every draw's statistic in draw order (`None`: skipped), and
+/// whether the draws were enumerated.
+pub(crate) type DrawStats = (f64, Vec<Option<f64>>, bool);
+
+/// The SplitMix64 finaliser (a bijection of u64).
+pub(crate) fn mix(mut z: u64) -> u64 {
+    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+    z ^ (z >> 31)
+}
+
+/// The SplitMix64 increment (the golden-ratio constant).
+const GOLDEN: u64 = 0x9E37_79B9_7F4A_7C15;
+
+/// A SplitMix64 stream; [`Stream::for_draw`] makes draw b's numbers depend on (seed, b) only.
+#[derive(Debug, Clone)]
+pub(crate) struct Stream {
+    state: u64,
+}
+
+impl Stream {
+    /// The stream of draw `b` under `seed`.
+    pub(crate) fn for_draw(seed: u64, b: u64) -> Self {
+        Stream {
+            state: seed ^ mix(b.wrapping_add(1).wrapping_mul(GOLDEN)),
+        }
+    }
+
+    /// Next 64 random bits.
+    pub(crate) fn next_u64(&mut self) -> u64 {
+        self.state = self.state.wrapping_add(GOLDEN);
+        mix(self.state)
+    }
+
+    /// A uniform integer in 0..m (m ≥ 1), exactly uniform (Lemire 2019).
+    pub(crate) fn below(&mut self, m: u64) -> u64 {
+        let threshold = m.wrapping_neg() % m;
+        loop {
+            let product = u128::from(self.next_u64()) * u128::from(m);
+            if (product as u64) >= threshold {
+                return (product >> 64) as u64;
+            }
+        }
+    }
+}
+
+/// Computes the statistic of every draw: all `count` of them when `count ≤ exact_below`
+/// (`exact(i)` for i in 0..count), else the observed one and B random ones (`random(b)` for
+/// b in 1..=B, `observed` for draw 0). Returns the statistics in draw order and whether the
+/// draws were enumerated.
+pub(crate) fn run_draws<E, R>(
+    count: Option<u128>,
+    plan: &Draws,
+    observed: f64,
+    exact: E,
+    random: R,
+) -> Result<(Vec<Option<f64>>, bool), ResampleError>
+where
+    E: Fn(u64) -> Option<f64> + Sync + Send,
+    R: Fn(u64) -> Option<f64> + Sync + Send,
+{
+    match count {
+        Some(c) if c <= u128::from(plan.exact_below) => {
+            // c ≤ exact_below ≤ u64::MAX.
+            let c = c as u64;
+            Ok(((0..c).into_par_iter().map(exact).collect(), true))
+        }
+        _ if plan.draws == 0 => Err(ResampleError::NoDraws { count }),
+        _ => {
+            let b = plan.draws as u64;
+            let mut stats = Vec::with_capacity(plan.draws + 1);
+            stats.push(Some(observed));
+            stats.par_extend((1..=b).into_par_iter().map(random));
+            Ok((stats, false))
+        }
+    }
+}
+
+/// Turns the draw statistics into p-values under the contract in the module documentation.
+pub(crate) fn summarise(observed: f64, stats: &[Option<f64>], exact: bool) -> ResampleResult {
+    let tol = TIE_TOLERANCE * observed.abs();
+    let (mut two, mut upper, mut lower, mut used) = (0usize, 0usize, 0usize, 0usize);
+    for s in stats.iter().flatten() {
+        used += 1;
+        two += usize::from(s.abs() >= observed.abs() - tol);
+        upper += usize::from(*s >= observed - tol);
+        lower += usize::from(*s <= observed + tol);
+    }
+    let share = |c: usize| c as f64 / used as f64;
+    ResampleResult {
+        observed,
+        p_value: share(two),
+        p_upper: share(upper),
+        p_lower: share(lower),
+        draws_used: used,
+        skipped: stats.len() - used,
+        exact,
+    }
+}

@@ -1,0 +1,230 @@
+//! The regression of a fixed outcome on re-drawn columns Z with fixed controls W, the
+//! controls partialled out once.
+//!
+//! By Frisch–Waugh–Lovell (Frisch and Waugh 1933, Econometrica 1; Lovell 1963, JASA 58),
+//! the Z-coefficients of y on [Z | W] are g = (Z̃'Z̃)^{-1} Z̃'ỹ with Z̃ = M_W Z, ỹ = M_W y, the
+//! residuals are ỹ − Z̃ g, and the Z-rows of (D'D)^{-1}D' (D = [Z | W]) are (Z̃'Z̃)^{-1}Z̃'. So
+//! the Z-block of every sandwich is (Z̃'Z̃)^{-1} A (Z̃'Z̃)^{-1} with the meat A built from z̃ᵢ
+//! and the full residuals, and the leverage of D is h_W,i + z̃ᵢ'(Z̃'Z̃)^{-1}z̃ᵢ. M_W and ỹ are
+//! computed once (thin Q of W); a draw costs O(n·(|W|·L + L²)). The conventions (df,
+//! small-sample factors, absorbed coefficients) are those of `covariance`: k = |W| + L + a.
+//! Two-way clustering clamps eigenvalues of the whole covariance matrix, which the Z-block
+//! alone does not determine, so there each draw refits [Z | W] in full with `ols`.
+
+use std::collections::HashMap;
+
+use nalgebra::{DMatrix, DVector};
+
+use super::super::covariance::CovSpec;
+use super::super::linear::ols;
+use super::super::qr::PivotedQr;
+use super::super::refine::residual;
+use super::super::{Absorbed, EstimateError};
+
+/// The covariance kinds, with cluster ids made dense.
+#[derive(Debug, Clone)]
+enum Kind {
+    Classical,
+    Hc { power: i32, scaled: bool },
+    Cluster { ids: Vec<usize>, g: usize },
+    TwoWay(CovSpec),
+}
+
+/// Fixed parts of the partialled regression.
+#[derive(Debug, Clone)]
+pub(crate) struct Partialled {
+    /// Thin Q of the controls (n × |W|); `None` without controls.
+    q: Option<DMatrix<f64>>,
+    /// The controls (for the two-way fallback).
+    w: DMatrix<f64>,
+    /// The outcome (for the two-way fallback).
+    y: DVector<f64>,
+    /// M_W y.
+    y_tilde: DVector<f64>,
+    /// Leverage of W plus the absorbed leverage (HC2/HC3 only).
+    h_fixed: Vec<f64>,
+    kind: Kind,
+    absorbed: Absorbed,
+    /// n − k − a with k = |W| + L.
+    df_resid: usize,
+    /// n − k − (a − a_nested), for CR1.
+    df_cluster: usize,
+}
+
+/// The coefficients of Z and, when asked, their covariance.
+pub(crate) type ZFit = (DVector<f64>, Option<DMatrix<f64>>);
+
+fn densify(ids: &[usize]) -> (Vec<usize>, usize) {
+    let mut map = HashMap::new();
+    let dense = ids
+        .iter()
+        .map(|id| {
+            let next = map.len();
+            *map.entry(*id).or_insert(next)
+        })
+        .collect();
+    (dense, map.len())
+}
+
+impl Partialled {
+    /// Prepares the regression of `y` on [Z | `w`] for Z with `l` columns.
+    ///
+    /// # Errors
+    /// Too few observations, collinear controls, cluster ids of the wrong length, fewer than
+    /// two clusters, HC2/HC3 with absorbed effects of unknown leverage.
+    pub(crate) fn new(
+        y: &DVector<f64>,
+        w: &DMatrix<f64>,
+        l: usize,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<Self, EstimateError> {
+        let n = y.len();
+        let k = w.ncols() + l + absorbed.df;
+        if n <= k {
+            return Err(EstimateError::TooFewObservations { n, k });
+        }
+        let q = if w.ncols() == 0 {
+            None
+        } else {
+            Some(PivotedQr::new(w)?.thin_q())
+        };
+        let y_tilde = match &q {
+            Some(q) => y - q * (q.transpose() * y),
+            None => y.clone(),
+        };
+        let kind = match cov {
+            CovSpec::Classical => Kind::Classical,
+            CovSpec::Hc0 => Kind::Hc {
+                power: 0,
+                scaled: false,
+            },
+            CovSpec::Hc1 => Kind::Hc {
+                power: 0,
+                scaled: true,
+            },
+            CovSpec::Hc2 | CovSpec::Hc3 => {
+                let power = if *cov == CovSpec::Hc2 { 1 } else { 2 };
+                if absorbed.df > 0 && absorbed.leverage.is_none() {
+                    return Err(EstimateError::CovarianceUnavailable {
+                        estimator: "absorbed fixed effects without their leverage",
+                        kind: cov.name(),
+                    });
+                }
+                Kind::Hc {
+                    power,
+                    scaled: false,
+                }
+            }
+            CovSpec::Cluster { ids } => {
+                if ids.len() != n {
+                    return Err(EstimateError::ClusterLength { n, ids: ids.len() });
+                }
+                let (ids, g) = densify(ids);
+                if g < 2 {
+                    return Err(EstimateError::TooFewClusters { clusters: g });
+                }
+                Kind::Cluster { ids, g }
+            }
+            CovSpec::TwoWay { .. } => Kind::TwoWay(cov.clone()),
+        };
+        let h_fixed = (0..n)
+            .map(|i| {
+                let hw = q.as_ref().map_or(0.0, |q| q.row(i).norm_squared());
+                hw + absorbed.leverage.as_ref().map_or(0.0, |h| h[i])
+            })
+            .collect();
+        Ok(Partialled {
+            q,
+            w: w.clone(),
+            y: y.clone(),
+            y_tilde,
+            h_fixed,
+            kind,
+            absorbed: absorbed.clone(),
+            df_resid: n - k,
+            df_cluster: n - (k - absorbed.nested_df),
+        })
+    }
+
+    /// Fits Z (n × L): its coefficients and, if `with_cov`, their covariance.
+    ///
+    /// `Ok(None)` when Z̃ = M_W Z is rank deficient, or a column of Z̃ is rounding noise
+    /// (‖z̃ⱼ‖ ≤ 16·max(n, k)·eps·‖zⱼ‖), or a leverage is 1 under HC2/HC3.
+    pub(crate) fn fit(&self, z: &DMatrix<f64>, with_cov: bool) -> Option<ZFit> {
+        if let Kind::TwoWay(spec) = &self.kind {
+            return self.fit_full(z, spec);
+        }
+        let (n, l) = z.shape();
+        let zt = match &self.q {
+            Some(q) => z - q * (q.transpose() * z),
+            None => z.clone(),
+        };
+        let k = self.w.ncols() + l;
+        let tol = 16.0 * n.max(k) as f64 * f64::EPSILON;
+        for j in 0..l {
+            if zt.column(j).norm() <= tol * z.column(j).norm() {
+                return None;
+            }
+        }
+        let qr = PivotedQr::new(&zt).ok()?;
+        let g = qr.solve(&zt, &self.y_tilde);
+        if !with_cov {
+            return Some((g, None));
+        }
+        let u = residual(&zt, &self.y_tilde, &g);
+        let t = qr.t_matrix();
+        let q1 = qr.thin_q();
+        let meat = match &self.kind {
+            Kind::Classical => {
+                let s2 = u.norm_squared() / self.df_resid as f64;
+                return Some((g, Some(&t * t.transpose() * s2)));
+            }
+            Kind::Hc { power, scaled } => {
+                let mut scaled_q = q1.clone();
+                let tol_h = n.max(k) as f64 * f64::EPSILON;
+                for i in 0..n {
+                    let mut wgt = u[i] * u[i];
+                    if *power > 0 {
+                        let one_minus_h = 1.0 - self.h_fixed[i] - q1.row(i).norm_squared();
+                        if one_minus_h <= tol_h {
+                            return None;
+                        }
+                        wgt /= one_minus_h.powi(*power);
+                    }
+                    scaled_q.row_mut(i).scale_mut(wgt);
+                }
+                let c = if *scaled {
+                    n as f64 / self.df_resid as f64
+                } else {
+                    1.0
+                };
+                q1.transpose() * scaled_q * c
+            }
+            Kind::Cluster { ids, g: groups } => {
+                let mut sums = DMatrix::zeros(*groups, l);
+                for (i, &c) in ids.iter().enumerate() {
+                    let mut row = sums.row_mut(c);
+                    row += q1.row(i) * u[i];
+                }
+                let gf = *groups as f64;
+                let c = gf / (gf - 1.0) * ((n - 1) as f64 / self.df_cluster as f64);
+                sums.transpose() * sums * c
+            }
+            Kind::TwoWay(_) => return None,
+        };
+        Some((g, Some(&t * meat * t.transpose())))
+    }
+
+    /// The two-way fallback: OLS of y on [Z | W] with the full covariance.
+    fn fit_full(&self, z: &DMatrix<f64>, spec: &CovSpec) -> Option<ZFit> {
+        let (n, l) = z.shape();
+        let mut x = DMatrix::zeros(n, l + self.w.ncols());
+        x.columns_mut(0, l).copy_from(z);
+        x.columns_mut(l, self.w.ncols()).copy_from(&self.w);
+        let fit = ols(&self.y, &x, false, spec, &self.absorbed).ok()?;
+        let g = fit.coef.rows(0, l).into_owned();
+        let v = fit.cov.view((0, 0), (l, l)).into_owned();
+        Some((g, Some(v)))
+    }
+}

@@ -1,0 +1,239 @@
+//! Randomization (permutation) tests under a sharp null, re-drawing the assignment as the
+//! design says (Fisher 1935, The Design of Experiments; for regression-adjusted and
+//! studentized statistics see e.g. Young 2019, QJE 134, and Imbens and Rubin 2015, ch. 5).
+//!
+//! Under the sharp null "the effect is `null` for every unit", the outcome net of the
+//! effect, y₀ = y − null · t, does not depend on the assignment, so the statistic of every
+//! possible assignment t* is computable: regress y₀ on [t* | W] (W the other columns, fixed).
+//! The controls are partialled out once (module `partial`).
+
+use nalgebra::{DMatrix, DVector};
+
+use super::super::covariance::CovSpec;
+use super::super::linear::validate;
+use super::super::wald::wald;
+use super::super::{Absorbed, EstimateError};
+use super::assignment::{Assigner, AssignmentDesign};
+use super::partial::Partialled;
+use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
+
+/// The statistic of a randomization test for one coefficient.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RiStatistic {
+    /// The coefficient studentized with the requested covariance, (b − null)/se.
+    T,
+    /// The coefficient itself, b − null.
+    Estimate,
+}
+
+/// Drops column `j` of `x`.
+fn without_column(x: &DMatrix<f64>, j: usize) -> DMatrix<f64> {
+    x.clone().remove_column(j)
+}
+
+/// Evaluates `stat` on the observed draw (must succeed) and on every re-drawn assignment.
+fn permutation_run<F>(
+    assigner: &Assigner,
+    plan: &Draws,
+    stat: F,
+) -> Result<DrawStats, ResampleError>
+where
+    F: Fn(&DMatrix<f64>) -> Option<f64> + Sync + Send,
+{
+    let observed_z = assigner.values(&assigner.observed());
+    let observed = stat(&observed_z).ok_or(ResampleError::ObservedNotFinite)?;
+    let keep = |s: Option<f64>| s.filter(|v| v.is_finite());
+    let (stats, exact) = run_draws(
+        assigner.total(),
+        plan,
+        observed,
+        |i| keep(stat(&assigner.values(&assigner.unrank(i)))),
+        |b| {
+            let mut stream = Stream::for_draw(plan.seed, b);
+            keep(stat(&assigner.values(&assigner.shuffle(&mut stream))))
+        },
+    )?;
+    Ok((observed, stats, exact))
+}
+
+/// Randomization test of the sharp null "the effect of column `treatment` of `x` is `null`
+/// for every unit".
+///
+/// # Formula
+/// y₀ = y − null·t (t = column `treatment`); for each assignment t* allowed by `design`
+/// (all of them when their number is at most `plan.exact_below`, else the observed one and
+/// `plan.draws` random ones), b* is the coefficient of t* in the OLS of y₀ on [t* | W]
+/// (W = the other columns of `x`), computed as (t̃*'ỹ₀)/(t̃*'t̃*) with t̃* = M_W t*, and the
+/// statistic is b* ([`RiStatistic::Estimate`]) or b*/se(b*) under `cov`
+/// ([`RiStatistic::T`]). The observed statistic is that of the observed t, i.e. b − null
+/// or the usual t statistic of b = null. p-values as in the module documentation of
+/// `resample`; residual df and small-sample factors count `absorbed.df`.
+///
+/// With absorbed fixed effects, `x` holds swept columns and the swept treatment is permuted:
+/// this is valid only when every absorbed fixed effect is constant within the design's
+/// blocks (e.g. block fixed effects with a blocked design), because then sweeping commutes
+/// with the permutations. The caller must ensure it.
+///
+/// # Errors
+/// Input errors of [`ols`](super::super::ols) (finiteness, dimensions, collinear controls,
+/// clusters, leverage), [`EstimateError::IndexOutOfRange`] for `treatment`, design errors,
+/// [`ResampleError::ObservedNotFinite`] when the observed statistic is undefined,
+/// [`ResampleError::NoDraws`].
+#[allow(clippy::too_many_arguments)]
+pub fn randomization_test(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+    treatment: usize,
+    null: f64,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+    design: &AssignmentDesign,
+    statistic: RiStatistic,
+    plan: &Draws,
+) -> Result<ResampleResult, ResampleError> {
+    let (observed, stats, exact) = randomization_statistics(
+        y, x, treatment, null, cov, absorbed, design, statistic, plan,
+    )?;
+    Ok(summarise(observed, &stats, exact))
+}
+
+/// [`randomization_test`] before summarising: the observed statistic, every draw's
+/// statistic in draw order, and whether the draws were enumerated.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn randomization_statistics(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+    treatment: usize,
+    null: f64,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+    design: &AssignmentDesign,
+    statistic: RiStatistic,
+    plan: &Draws,
+) -> Result<DrawStats, ResampleError> {
+    validate(y, &[("x", x)])?;
+    let k = x.ncols();
+    if treatment >= k {
+        return Err(EstimateError::IndexOutOfRange {
+            index: treatment,
+            k,
+        }
+        .into());
+    }
+    if !null.is_finite() {
+        return Err(EstimateError::NotFinite.into());
+    }
+    let t = x.column(treatment).into_owned();
+    let y0 = y - &t * null;
+    let w = without_column(x, treatment);
+    let part = Partialled::new(&y0, &w, 1, cov, absorbed)?;
+    let with_cov = statistic == RiStatistic::T;
+    let observed_values = DMatrix::from_column_slice(t.len(), 1, t.as_slice());
+    if part.fit(&observed_values, false).is_none() {
+        return Err(EstimateError::RankDeficient {
+            dependent: vec![treatment],
+        }
+        .into());
+    }
+    let assigner = Assigner::new(design, &observed_values)?;
+    permutation_run(&assigner, plan, |z| {
+        let (g, v) = part.fit(z, with_cov)?;
+        Some(match v {
+            Some(v) => g[0] / v[(0, 0)].sqrt(),
+            None => g[0],
+        })
+    })
+}
+
+/// Randomization Anderson–Rubin test of the sharp null β = `beta0` for one endogenous
+/// regressor, re-drawing the excluded instruments as `design` says.
+///
+/// # Formula
+/// y₀ = y − x β₀ is fixed under the sharp null (the instruments being the randomised
+/// assignment). For each assignment Z* of the rows of `instruments` (n × L), AR(Z*) =
+/// g'V^{-1}g / L with g the Z*-coefficients of the OLS of y₀ on [Z* | W] (W = `exog`) and V
+/// their covariance under `cov` (Anderson and Rubin 1949, Ann. Math. Statist. 20; the
+/// statistic of [`anderson_rubin`](super::super::anderson_rubin) at β₀). p-values as in the
+/// module documentation (for this non-negative statistic the two-sided and upper p-values
+/// coincide). Absorbed fixed effects: as for [`randomization_test`].
+///
+/// # Errors
+/// As [`randomization_test`]; [`EstimateError::DimensionMismatch`] unless `endog` has one
+/// column; [`EstimateError::InstrumentsRankDeficient`] when the observed M_W Z is rank
+/// deficient; [`EstimateError::SingularCovariance`] for a singular observed V.
+#[allow(clippy::too_many_arguments)]
+pub fn randomization_ar(
+    y: &DVector<f64>,
+    exog: &DMatrix<f64>,
+    endog: &DMatrix<f64>,
+    instruments: &DMatrix<f64>,
+    beta0: f64,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+    design: &AssignmentDesign,
+    plan: &Draws,
+) -> Result<ResampleResult, ResampleError> {
+    let (observed, stats, exact) = randomization_ar_statistics(
+        y,
+        exog,
+        endog,
+        instruments,
+        beta0,
+        cov,
+        absorbed,
+        design,
+        plan,
+    )?;
+    Ok(summarise(observed, &stats, exact))
+}
+
+/// [`randomization_ar`] before summarising (see [`randomization_statistics`]).
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn randomization_ar_statistics(
+    y: &DVector<f64>,
+    exog: &DMatrix<f64>,
+    endog: &DMatrix<f64>,
+    instruments: &DMatrix<f64>,
+    beta0: f64,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+    design: &AssignmentDesign,
+    plan: &Draws,
+) -> Result<DrawStats, ResampleError> {
+    validate(
+        y,
+        &[
+            ("exog", exog),
+            ("endog", endog),
+            ("instruments", instruments),
+        ],
+    )?;
+    if endog.ncols() != 1 {
+        return Err(EstimateError::DimensionMismatch {
+            what: "endog columns",
+            expected: 1,
+            got: endog.ncols(),
+        }
+        .into());
+    }
+    if !beta0.is_finite() {
+        return Err(EstimateError::NotFinite.into());
+    }
+    let l = instruments.ncols();
+    let y0 = y - endog.column(0) * beta0;
+    let part = Partialled::new(&y0, exog, l, cov, absorbed)?;
+    let indices: Vec<usize> = (0..l).collect();
+    let observed = part
+        .fit(instruments, true)
+        .ok_or(EstimateError::InstrumentsRankDeficient {
+            dependent: indices.clone(),
+        })?;
+    if let (g, Some(v)) = &observed {
+        wald(g, v, &indices)?;
+    }
+    let assigner = Assigner::new(design, instruments)?;
+    permutation_run(&assigner, plan, |z| {
+        let (g, v) = part.fit(z, true)?;
+        Some(wald(&g, &v?, &indices).ok()? / l as f64)
+    })
+}
