@@ -26,6 +26,12 @@ pub struct Results {
     pub hypotheses: BTreeMap<String, HypothesisResult>,
     /// Decision rules and whether they were invoked (none in this version).
     pub contingencies: Vec<ContingencyResult>,
+    /// Summary indices built for the run.
+    pub indices: BTreeMap<String, IndexResult>,
+    /// The balance table, when the plan declares one.
+    pub balance: Option<BalanceResult>,
+    /// Attrition checks, when the plan declares them.
+    pub attrition: Option<AttritionResult>,
     /// Deviations and notes, most severe first.
     pub deviations: Vec<Deviation>,
     /// `sha256:` digest of everything above.
@@ -231,6 +237,83 @@ pub struct AlternativeEstimate {
     pub terms: BTreeMap<String, Term>,
 }
 
+/// A summary index as built.
+#[derive(Debug, Clone, Serialize)]
+pub struct IndexResult {
+    /// "anderson" | "mean-z".
+    pub method: &'static str,
+    /// Components as written (a leading "-" marks a flipped one).
+    pub components: Vec<String>,
+    /// Reference-group expression.
+    pub reference: String,
+    /// Rows in the reference group.
+    pub reference_rows: usize,
+    /// Rows with an index value.
+    pub rows_with_value: usize,
+}
+
+/// One covariate (or the observed indicator) compared across arms.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArmComparison {
+    /// Mean in the comparison arm (by = 0).
+    pub mean_comparison: f64,
+    /// Mean in the treated arm (by = 1).
+    pub mean_treated: f64,
+    /// Rows in each arm.
+    pub n_comparison: usize,
+    /// Rows in the treated arm.
+    pub n_treated: usize,
+    /// Treated minus comparison (OLS on the arm indicator).
+    pub difference: f64,
+    /// Its standard error with the declared error type.
+    pub std_error: f64,
+    /// Its test.
+    pub test: TestResult,
+}
+
+/// The balance table.
+#[derive(Debug, Clone, Serialize)]
+pub struct BalanceResult {
+    /// Arm indicator.
+    pub by: String,
+    /// Error type.
+    pub errors: &'static str,
+    /// Rows used (complete in the arm and every covariate).
+    pub n: usize,
+    /// Per covariate.
+    pub covariates: BTreeMap<String, ArmComparison>,
+    /// Joint test: the arm regressed on all covariates, Wald F.
+    pub joint: TestResult,
+}
+
+/// Lee (2009) bounds for one outcome.
+#[derive(Debug, Clone, Serialize)]
+pub struct LeeResult {
+    /// Lower bound of the effect for always-observed units.
+    pub lower: f64,
+    /// Upper bound.
+    pub upper: f64,
+    /// Share trimmed from the arm with more observed outcomes.
+    pub trim_share: f64,
+    /// "treated" | "comparison".
+    pub trimmed_arm: &'static str,
+}
+
+/// Attrition checks.
+#[derive(Debug, Clone, Serialize)]
+pub struct AttritionResult {
+    /// Arm indicator.
+    pub by: String,
+    /// Observed-outcome expression.
+    pub observed: String,
+    /// Error type of the differential test.
+    pub errors: &'static str,
+    /// Share observed in each arm and their difference, tested.
+    pub differential: ArmComparison,
+    /// Lee bounds by outcome.
+    pub bounds: BTreeMap<String, LeeResult>,
+}
+
 /// The outcome of one `[[contingency]]` rule.
 #[derive(Debug, Clone, Serialize)]
 pub struct ContingencyResult {
@@ -386,6 +469,10 @@ pub struct HypothesisResult {
     /// Confidence set for the term at the specification's confidence level (one piece for an
     /// ordinary interval; the Anderson–Rubin set may have unbounded or several pieces).
     pub ci: Option<Vec<SetPiece>>,
+    /// Resampled tests: the number of draws used (the observed one included).
+    pub draws: Option<usize>,
+    /// Resampled tests: whether every possible draw was enumerated.
+    pub exact: Option<bool>,
     /// supported | not-supported | undetermined.
     pub verdict: &'static str,
     /// Why a verdict is undetermined.
@@ -474,6 +561,9 @@ mod tests {
             specifications: BTreeMap::new(),
             hypotheses: BTreeMap::new(),
             contingencies: Vec::new(),
+            indices: BTreeMap::new(),
+            balance: None,
+            attrition: None,
             deviations: vec![Deviation::new(
                 "x",
                 crate::deviation::Severity::Note,

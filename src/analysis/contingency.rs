@@ -7,8 +7,8 @@
 //! hypotheses; a later rule that also fires is recorded as superseded and changes nothing.
 //! Invoking a rule is not a deviation: it was fixed before the data were seen.
 
-use super::spec::{Fitted, Needs};
-use crate::plan::{Action, Diagnostic, Plan, Trigger};
+use super::spec::{Fitted, Needs, ResampleNeed};
+use crate::plan::{Action, Diagnostic, Method, Plan, Trigger};
 use crate::report::{num, pval};
 use crate::results::ContingencyResult;
 use std::collections::BTreeMap;
@@ -46,7 +46,35 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
                     }
                 }
             }
+            Action::WildBootstrap => {
+                n.wild_bootstrap = true;
+                let model = plan
+                    .hypotheses
+                    .iter()
+                    .filter(|h| h.specification == c.specification && h.method == Method::Model);
+                for h in model {
+                    n.resample.push(ResampleNeed {
+                        hypothesis: h.id.clone(),
+                        term: h.term.clone(),
+                        null: h.null,
+                        method: Method::WildBootstrap { webb: false },
+                    });
+                }
+            }
             Action::Tf | Action::UseSpecification(_) => {}
+        }
+    }
+    for h in &plan.hypotheses {
+        if h.method != Method::Model {
+            out.entry(h.specification.clone())
+                .or_default()
+                .resample
+                .push(ResampleNeed {
+                    hypothesis: h.id.clone(),
+                    term: h.term.clone(),
+                    null: h.null,
+                    method: h.method,
+                });
         }
     }
     out
@@ -117,7 +145,7 @@ pub fn evaluate(
                     .iter()
                     .filter(|h| h.specification == c.specification)
                     .filter(|h| match c.action {
-                        Action::UseSpecification(_) => true,
+                        Action::UseSpecification(_) | Action::WildBootstrap => true,
                         _ => spec.is_some_and(|s| s.endogenous.contains(&h.term)),
                     })
                     .map(|h| h.id.clone())
@@ -158,5 +186,6 @@ fn action_words(a: &Action) -> String {
                 .into()
         }
         Action::UseSpecification(s) => format!("specification `{s}` is reported as primary"),
+        Action::WildBootstrap => "hypotheses use the restricted wild cluster bootstrap".into(),
     }
 }

@@ -17,7 +17,7 @@ use super::contingency::Substitution;
 use super::spec::Fitted;
 use crate::estimate;
 use crate::inference::{self, Correction, Direction};
-use crate::plan::{Action, Hypothesis, Plan};
+use crate::plan::{Action, Hypothesis, Method, Plan};
 use crate::results::{HypothesisResult, SetPiece, Term};
 use std::collections::BTreeMap;
 
@@ -98,7 +98,13 @@ fn test_one(
     let f = &fitted[&h.specification];
     let spec = plan.specifications.iter().find(|s| s.id == h.specification);
     let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
-    let sub = sub.filter(|s| on_endog || matches!(s.action, Action::UseSpecification(_)));
+    let sub = sub.filter(|s| {
+        on_endog
+            || matches!(
+                s.action,
+                Action::UseSpecification(_) | Action::WildBootstrap
+            )
+    });
     let mut r = HypothesisResult {
         claim: h.claim.clone(),
         specification: h.specification.clone(),
@@ -119,6 +125,8 @@ fn test_one(
         contingency: sub.map(|s| s.contingency.clone()),
         df: f.result.df,
         ci: None,
+        draws: None,
+        exact: None,
         verdict: "undetermined",
         reason: None,
         pre_registered: f.result.pre_registered,
@@ -155,11 +163,62 @@ fn test_one(
     };
     r.estimate = Some(t.estimate);
     r.std_error = Some(t.std_error);
+    // A hypothesis's own resampled inference is explicit and wins over a rule's.
+    let resampled = match (sub.map(|s| &s.action), h.method) {
+        (Some(Action::UseSpecification(_)), _) => None,
+        (_, Method::Randomization { .. } | Method::WildBootstrap { .. }) => {
+            Some(super::spec::method_name(&h.method))
+        }
+        (Some(Action::WildBootstrap), Method::Model) => Some("wild-bootstrap"),
+        _ => None,
+    };
+    if let Some(kind) = resampled {
+        return resampled_test(h, f, t, kind, &mut r);
+    }
     match sub.map(|s| &s.action) {
         Some(Action::AndersonRubin) => anderson_rubin(h, f, &mut r),
         Some(Action::Tf) => tf(h, f, t, &mut r),
         _ => t_test(h, t, &reference, &mut r),
     }
+}
+
+/// A resampled test: randomization inference or the wild cluster bootstrap.
+fn resampled_test(
+    h: &Hypothesis,
+    f: &Fitted,
+    t: &Term,
+    kind: &'static str,
+    r: &mut HypothesisResult,
+) -> (HypothesisResult, bool) {
+    // No resampled interval is computed; the model-based one would mislead here.
+    r.ci = None;
+    let Some(res) = f.resampled.get(&(h.id.clone(), kind)) else {
+        r.reason = Some(format!("the {kind} test is not available"));
+        return (r.clone(), false);
+    };
+    r.method = kind;
+    r.df = None;
+    r.draws = Some(res.draws_used);
+    r.exact = Some(res.exact);
+    r.statistic = Some(res.observed);
+    // The randomization AR statistic is non-negative and two-sided by nature: for a
+    // one-sided hypothesis its p-value counts only when the estimate lies on the claimed side.
+    let ar = f.result.estimator != "ols";
+    let p = match h.direction {
+        Direction::TwoSided => res.p_value,
+        _ if ar => {
+            if on_side(t.estimate, h.null, h.direction) {
+                res.p_value
+            } else {
+                1.0
+            }
+        }
+        Direction::Greater => res.p_upper,
+        Direction::Less => res.p_lower,
+    };
+    r.p_value = Some(p);
+    r.adjusted_p_value = Some(p);
+    (r.clone(), true)
 }
 
 fn t_test(

@@ -8,6 +8,7 @@ mod contingency;
 mod hypotheses;
 mod integrity;
 mod spec;
+mod summaries;
 
 use crate::data::{load_table, Table};
 use crate::deviation::{self, Deviation, Severity};
@@ -80,7 +81,11 @@ pub fn execute(
     for s in &plan.specifications {
         let source = &plan.data[&s.data];
         let need = needs.get(&s.id).unwrap_or(&none);
-        let mut f = spec::fit_spec(s, &tables[&s.data], source, need)?;
+        let rc = spec::ResampleContext {
+            assignment: plan.assignment.as_ref(),
+            resampling: plan.resampling,
+        };
+        let mut f = spec::fit_spec(s, &tables[&s.data], source, need, &rc)?;
         spec_deviations(
             plan,
             s,
@@ -126,6 +131,9 @@ pub fn execute(
         specifications: fitted.into_iter().map(|(k, f)| (k, f.result)).collect(),
         hypotheses,
         contingencies,
+        indices: summaries::indices(plan, tables),
+        balance: summaries::balance(plan, tables)?,
+        attrition: summaries::attrition(plan, tables)?,
         deviations: devs,
         digest: String::new(),
     };

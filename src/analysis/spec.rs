@@ -6,7 +6,10 @@ use crate::distribution::{Reference, TestStatistic};
 use crate::error::{Error, Result};
 use crate::estimate::{self, CovSpec, EstimateError, LinearFit};
 use crate::inference::{self, Direction};
-use crate::plan::{ColumnKind, DataSource, Diagnostic, Distribution, Errors, Estimator, Spec};
+use crate::plan::{
+    Assignment, ColumnKind, DataSource, Diagnostic, Distribution, Errors, Estimator, Method,
+    Resampling, Spec,
+};
 use crate::results::{
     AlternativeEstimate, AndersonRubinResult, EndogeneityResult, FirstStageResult, LpmInfo,
     OveridResult, Regression, SampleInfo, SetPiece, SpecResult, StockYogoValue, Term, TestResult,
@@ -25,6 +28,30 @@ pub struct Fitted {
     pub deviations: Vec<Deviation>,
     /// Anderson–Rubin tests at the nulls asked for in [`Needs::ar_nulls`].
     pub ar_tests: Vec<(f64, TestStatistic)>,
+    /// Resampled tests by (hypothesis id, method name).
+    pub resampled: BTreeMap<(String, &'static str), estimate::ResampleResult>,
+}
+
+/// A resampled test a hypothesis needs.
+#[derive(Debug, Clone)]
+pub struct ResampleNeed {
+    /// Hypothesis id.
+    pub hypothesis: String,
+    /// Term tested.
+    pub term: String,
+    /// Null value.
+    pub null: f64,
+    /// How.
+    pub method: Method,
+}
+
+/// The name of a resampling method in results.json.
+pub fn method_name(m: &Method) -> &'static str {
+    match m {
+        Method::Model => "model",
+        Method::Randomization { .. } => "randomization",
+        Method::WildBootstrap { .. } => "wild-bootstrap",
+    }
 }
 
 /// What beyond the plan's own diagnostics a specification must compute, because a
@@ -38,6 +65,10 @@ pub struct Needs {
     /// Nulls at which the Anderson–Rubin statistic is wanted (hypotheses on the endogenous
     /// regressor).
     pub ar_nulls: Vec<f64>,
+    /// A cluster-count rule may switch the hypotheses to the wild cluster bootstrap.
+    pub wild_bootstrap: bool,
+    /// Resampled tests of hypotheses on this specification.
+    pub resample: Vec<ResampleNeed>,
 }
 
 fn est_err(spec: &Spec, message: impl Into<String>) -> Error {
@@ -230,8 +261,22 @@ fn parts(spec: &Spec, d: &Design) -> Result<Parts> {
     Ok(p)
 }
 
+/// What resampled tests need from the plan beyond the specification.
+pub struct ResampleContext<'a> {
+    /// `[assignment]`.
+    pub assignment: Option<&'a Assignment>,
+    /// `[resampling]`.
+    pub resampling: Option<Resampling>,
+}
+
 /// Estimate `spec` on `table`, computing also what `needs` asks for.
-pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource, needs: &Needs) -> Result<Fitted> {
+pub fn fit_spec(
+    spec: &Spec,
+    table: &Table,
+    source: &DataSource,
+    needs: &Needs,
+    rc: &ResampleContext,
+) -> Result<Fitted> {
     let d = design(table, spec)?;
     if d.n == 0 {
         return Err(est_err(spec, "no row of the sample is complete in every variable used; check the sample restriction and missing values"));
@@ -363,12 +408,166 @@ pub fn fit_spec(spec: &Spec, table: &Table, source: &DataSource, needs: &Needs) 
         };
         ar_tests = ctx.diagnostics(&mut result)?;
     }
+    let mut resampled = BTreeMap::new();
+    for need in &needs.resample {
+        let r = resample(spec, table, &d, &p, &cov, need, rc)?;
+        resampled.insert((need.hypothesis.clone(), method_name(&need.method)), r);
+    }
     Ok(Fitted {
         result,
         reference,
         deviations,
         ar_tests,
+        resampled,
     })
+}
+
+/// Group ids of `column` for the design's rows.
+fn ids_of(table: &Table, column: &str, d: &Design, spec: &Spec) -> Result<Vec<usize>> {
+    let labels = table.labels.get(column).ok_or_else(|| {
+        est_err(
+            spec,
+            format!(
+                "assignment column `{column}` is not available in data table `{}`",
+                table.id
+            ),
+        )
+    })?;
+    let mut map: BTreeMap<&str, usize> = BTreeMap::new();
+    let mut out = Vec::with_capacity(d.rows.len());
+    for &r in &d.rows {
+        let Some(v) = labels[r].as_deref() else {
+            return Err(est_err(spec, format!("assignment column `{column}` is missing in a row the specification uses; randomization inference needs it in every row")));
+        };
+        let next = map.len();
+        out.push(*map.entry(v).or_insert(next));
+    }
+    Ok(out)
+}
+
+/// One resampled test of `need` on the fitted design.
+fn resample(
+    spec: &Spec,
+    table: &Table,
+    d: &Design,
+    p: &Parts,
+    cov: &CovSpec,
+    need: &ResampleNeed,
+    rc: &ResampleContext,
+) -> Result<estimate::ResampleResult> {
+    let r = rc
+        .resampling
+        .ok_or_else(|| est_err(spec, "resampled inference needs [resampling]"))?;
+    let draws = estimate::Draws {
+        draws: r.draws,
+        seed: r.seed,
+        exact_below: r.exact_below,
+    };
+    let err = |e: estimate::ResampleError| {
+        est_err(
+            spec,
+            format!(
+                "{} test of hypothesis `{}`: {e}",
+                method_name(&need.method),
+                need.hypothesis
+            ),
+        )
+    };
+    let x = hstack(&[&p.focal, &p.exog]);
+    let names: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
+    let index = names.iter().position(|n| **n == need.term).ok_or_else(|| {
+        est_err(
+            spec,
+            format!(
+                "term `{}` was dropped, so hypothesis `{}` cannot be resampled",
+                need.term, need.hypothesis
+            ),
+        )
+    })?;
+    match need.method {
+        Method::Randomization { studentized } => {
+            let a = rc
+                .assignment
+                .ok_or_else(|| est_err(spec, "randomization inference needs [assignment]"))?;
+            let design = match (&a.blocks, &a.clusters) {
+                (None, None) => estimate::AssignmentDesign::Complete,
+                (Some(b), None) => estimate::AssignmentDesign::Blocked {
+                    blocks: ids_of(table, b, d, spec)?,
+                },
+                (None, Some(c)) => estimate::AssignmentDesign::Clustered {
+                    clusters: ids_of(table, c, d, spec)?,
+                },
+                (Some(b), Some(c)) => estimate::AssignmentDesign::BlockedClustered {
+                    blocks: ids_of(table, b, d, spec)?,
+                    clusters: ids_of(table, c, d, spec)?,
+                },
+            };
+            if spec.estimator == Estimator::Ols {
+                let statistic = if studentized {
+                    estimate::RiStatistic::T
+                } else {
+                    estimate::RiStatistic::Estimate
+                };
+                estimate::randomization_test(
+                    &d.y,
+                    &x,
+                    index,
+                    need.null,
+                    cov,
+                    &d.absorbed,
+                    &design,
+                    statistic,
+                    &draws,
+                )
+                .map_err(err)
+            } else {
+                estimate::randomization_ar(
+                    &d.y,
+                    &p.exog,
+                    &p.focal,
+                    &p.instruments,
+                    need.null,
+                    cov,
+                    &d.absorbed,
+                    &design,
+                    &draws,
+                )
+                .map_err(err)
+            }
+        }
+        Method::WildBootstrap { webb } => {
+            let Some((ids, _)) = d.clusters.first() else {
+                return Err(est_err(
+                    spec,
+                    "the wild cluster bootstrap needs clustered errors",
+                ));
+            };
+            if d.absorbed.nested_df < d.absorbed.df {
+                return Err(est_err(spec, format!(
+                    "hypothesis `{}`: the wild cluster bootstrap with absorbed fixed effects is exact only when every fixed effect is nested in the cluster variable, and `{}` is not; drop the fixed effect (or use one nested in the clusters)",
+                    need.hypothesis,
+                    spec.fixed_effects.join("`, `")
+                )));
+            }
+            let weights = if webb {
+                estimate::Weights::Webb
+            } else {
+                estimate::Weights::Rademacher
+            };
+            estimate::wild_cluster_bootstrap(
+                &d.y,
+                &x,
+                index,
+                need.null,
+                ids,
+                weights,
+                &draws,
+                &d.absorbed,
+            )
+            .map_err(err)
+        }
+        Method::Model => Err(est_err(spec, "no resampling was asked for")),
+    }
 }
 
 /// Handle columns the fixed-effect sweep left without variation: an error naming them, or

@@ -30,6 +30,8 @@ pub struct Design {
     pub n_sample: usize,
     /// Rows used (sample rows with no missing value in any variable used).
     pub n: usize,
+    /// Table row index of each used row.
+    pub rows: Vec<usize>,
     /// Outcome (swept of fixed effects when there are any).
     pub y: DVector<f64>,
     /// Outcome as in the data (for fitted values in levels: y_raw − residual).
@@ -250,6 +252,7 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         n_table: table.rows,
         n_sample,
         n,
+        rows,
         y,
         y_raw,
         focal,

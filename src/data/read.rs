@@ -126,6 +126,30 @@ fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
             names.extend(e.names());
         }
     }
+    for i in plan.indices.iter().filter(|i| i.data == src.id) {
+        names.extend(i.components.iter().map(|(c, _)| c.clone()));
+        names.extend(i.reference.1.names());
+    }
+    if let Some(b) = plan.balance.as_ref().filter(|b| b.data == src.id) {
+        names.insert(b.by.clone());
+        names.extend(b.covariates.iter().cloned());
+        if let crate::plan::Errors::Cluster(by) = &b.errors {
+            names.extend(by.iter().cloned());
+        }
+    }
+    if let Some(a) = plan.attrition.as_ref().filter(|a| a.data == src.id) {
+        names.insert(a.by.clone());
+        names.extend(a.observed.1.names());
+        names.extend(a.bounds.iter().cloned());
+        if let crate::plan::Errors::Cluster(by) = &a.errors {
+            names.extend(by.iter().cloned());
+        }
+    }
+    if let Some(a) = &plan.assignment {
+        names.insert(a.variable.clone());
+        names.extend(a.blocks.iter().cloned());
+        names.extend(a.clusters.iter().cloned());
+    }
     for d in plan.derive.iter().rev() {
         if names.contains(&d.name) {
             names.extend(d.expr.names());
@@ -189,6 +213,7 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
     order_rows(src, &mut table)?;
     check_rows_and_key(src, &table, &mut devs);
     derive_columns(plan, src, &mut table)?;
+    index_columns(plan, src, &mut table)?;
     Ok((table, devs))
 }
 
@@ -362,6 +387,50 @@ fn derive_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()
             )
         })?;
         table.numeric.insert(d.name.clone(), values);
+    }
+    Ok(())
+}
+
+/// Summary indices (`[[index]]`) as new numeric columns. A row with no observed component
+/// is missing; the reference group is where the reference expression is non-zero (missing
+/// counts as outside it).
+fn index_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()> {
+    for i in plan.indices.iter().filter(|i| i.data == src.id) {
+        let fail = |message: String| data_err(src, format!("index `{}`: {message}", i.id));
+        let mut cols = Vec::new();
+        for (c, _) in &i.components {
+            let values = table
+                .numeric
+                .get(c)
+                .ok_or_else(|| fail(format!("component `{c}` is not available")))?;
+            cols.push(values);
+        }
+        let m = nalgebra::DMatrix::from_fn(table.rows, cols.len(), |r, j| {
+            cols[j][r].unwrap_or(f64::NAN)
+        });
+        let reference: Vec<bool> = {
+            let numeric = &table.numeric;
+            let lookup = |name: &str| numeric.get(name).map(Vec::as_slice);
+            i.reference
+                .1
+                .eval(table.rows, &lookup)
+                .map_err(|e| fail(format!("reference \"{}\": {}", i.reference.0, e.message)))?
+                .into_iter()
+                .map(|v| v.is_some_and(|v| v != 0.0))
+                .collect()
+        };
+        let flip: Vec<bool> = i.components.iter().map(|(_, f)| *f).collect();
+        let values = match i.method {
+            crate::plan::IndexMethod::MeanZ => crate::estimate::mean_z(&m, &reference, &flip),
+            crate::plan::IndexMethod::InverseCovariance => {
+                crate::estimate::inverse_covariance(&m, &reference, &flip)
+            }
+        }
+        .map_err(|e| fail(format!("{e}")))?;
+        table.numeric.insert(
+            i.id.clone(),
+            values.iter().map(|v| v.is_finite().then_some(*v)).collect(),
+        );
     }
     Ok(())
 }

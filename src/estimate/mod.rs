@@ -35,6 +35,8 @@ mod kclass;
 mod linear;
 mod qr;
 mod refine;
+mod resample;
+mod summaries;
 mod tf;
 mod wald;
 mod weak;
@@ -62,6 +64,15 @@ pub use diagnostics::{
 pub use kclass::{kclass, KClass, KClassFit, DEFAULT_FULLER_ALPHA};
 pub use linear::{ols, tsls};
 pub use qr::collinear_columns;
+pub use resample::{
+    count_assignments, randomization_ar, randomization_test, wild_cluster_bootstrap,
+    AssignmentDesign, Draws, ResampleError, ResampleResult, RiStatistic, Weights,
+    DEFAULT_EXACT_BELOW, TIE_TOLERANCE,
+};
+pub use summaries::{
+    balance, differential_attrition, inverse_covariance, lee_bounds, mean_z, BalanceRow,
+    BalanceTable, LeeBounds, SummaryError, TrimmedArm,
+};
 pub use tf::{tf_critical_value, tf_p_value};
 pub use wald::wald;
 pub use weak::{

@@ -5,7 +5,8 @@
 //! hypothesis is rejected at level α exactly when its adjusted p-value is ≤ α.
 //!
 //! Invariants: the output has the input's length and order; every adjusted value lies in
-//! [p, 1] for its own p; the adjustment is monotone in p and does not depend on the order
+//! [p, 1] for its own p, except BKY's sharpened q-values, which fall below p when the first
+//! stage estimates that most nulls are false (Benjamini, Krieger and Yekutieli 2006); the adjustment is monotone in p and does not depend on the order
 //! in which tied p-values are listed. A NaN p-value stays NaN in the output but still
 //! counts as one of the m hypotheses, entering the others' adjustment as p = 1 (the
 //! conservative reading of a test that could not be computed).
@@ -24,6 +25,12 @@ pub enum Correction {
     Holm,
     /// Benjamini and Hochberg's (1995) step-up procedure, controlling the FDR.
     BenjaminiHochberg,
+    /// Sharpened q-values of Benjamini, Krieger and Yekutieli (2006), controlling the FDR.
+    Bky,
+    /// Romano and Wolf's (2005) resampling step-down, controlling the FWER. It needs the
+    /// family's joint resampling draws; [`adjust`], which sees only p-values, returns Holm's
+    /// adjustment for it, a valid but more conservative bound.
+    RomanoWolf,
 }
 
 /// Adjusted p-values, in input order.
@@ -42,6 +49,8 @@ pub fn adjust(p_values: &[f64], correction: Correction) -> Vec<f64> {
         Correction::Bonferroni => p_values.iter().map(|&p| (m * p).min(1.0)).collect(),
         Correction::Holm => step_down(p_values),
         Correction::BenjaminiHochberg => step_up(p_values),
+        Correction::Bky => super::bky_q_values(p_values),
+        Correction::RomanoWolf => step_down(p_values),
     };
     adjusted
         .into_iter()

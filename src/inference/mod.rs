@@ -11,17 +11,21 @@
 //! here returns NaN except where documented (a directional p-value of an F or chi-square
 //! statistic, an interval from a non-symmetric reference, a level outside (0, 1)).
 
+mod bky;
 mod correction;
 mod normal;
 mod quantile;
 mod special;
+mod stepdown;
 mod tails;
 
 #[cfg(test)]
 mod tests;
 
+pub use bky::bky_q_values;
 pub use correction::{adjust, Correction};
 pub use quantile::quantile;
+pub use stepdown::{romano_wolf, StepDownError, OBSERVED_DRAW_TOLERANCE};
 pub use tails::{is_valid, log10_lower_tail, log10_upper_tail, lower_tail, upper_tail};
 
 use crate::distribution::{Reference, TestStatistic};

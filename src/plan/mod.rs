@@ -11,6 +11,7 @@ mod suggest;
 mod validate;
 mod validate_rules;
 mod validate_spec;
+mod validate_summaries;
 
 use crate::expr::Expr;
 use crate::inference::{Correction, Direction};
@@ -49,6 +50,94 @@ pub struct Plan {
     pub tables: Vec<Table>,
     /// Decision rules in plan order.
     pub contingencies: Vec<Contingency>,
+    /// Resampling settings, when declared.
+    pub resampling: Option<Resampling>,
+    /// Summary indices in plan order.
+    pub indices: Vec<Index>,
+    /// Balance table, when declared.
+    pub balance: Option<Balance>,
+    /// Attrition checks, when declared.
+    pub attrition: Option<Attrition>,
+}
+
+/// How a summary index weights its standardized components.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum IndexMethod {
+    /// Equal weights (Kling, Liebman and Katz 2007).
+    MeanZ,
+    /// Inverse-covariance weights (Anderson 2008).
+    InverseCovariance,
+}
+
+/// A summary index.
+#[derive(Debug, Clone)]
+pub struct Index {
+    /// Name (usable as a variable).
+    pub id: String,
+    /// Data table.
+    pub data: String,
+    /// Weighting.
+    pub method: IndexMethod,
+    /// Components and whether each is flipped.
+    pub components: Vec<(String, bool)>,
+    /// Reference-group expression as written, and parsed.
+    pub reference: (String, Expr),
+}
+
+/// A balance table.
+#[derive(Debug, Clone)]
+pub struct Balance {
+    /// Data table.
+    pub data: String,
+    /// Binary arm indicator.
+    pub by: String,
+    /// Covariates.
+    pub covariates: Vec<String>,
+    /// Standard errors.
+    pub errors: Errors,
+}
+
+/// Attrition checks.
+#[derive(Debug, Clone)]
+pub struct Attrition {
+    /// Data table.
+    pub data: String,
+    /// Binary arm indicator.
+    pub by: String,
+    /// Observed-outcome expression as written, and parsed.
+    pub observed: (String, Expr),
+    /// Outcomes to bound.
+    pub bounds: Vec<String>,
+    /// Standard errors of the differential-attrition test.
+    pub errors: Errors,
+}
+
+/// `[resampling]`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Resampling {
+    /// Random draws (the observed one not counted) when enumeration is too large.
+    pub draws: usize,
+    /// Seed.
+    pub seed: u64,
+    /// Enumerate exactly when the number of possible draws is below this.
+    pub exact_below: u64,
+}
+
+/// How a hypothesis is tested.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    /// The specification's own model-based test.
+    Model,
+    /// Randomization inference from `[assignment]`.
+    Randomization {
+        /// Studentized t (true) or the raw estimate (false).
+        studentized: bool,
+    },
+    /// Restricted wild cluster bootstrap.
+    WildBootstrap {
+        /// Webb's six-point weights (true) or Rademacher (false).
+        webb: bool,
+    },
 }
 
 /// `[study]`.
@@ -378,6 +467,8 @@ pub enum Action {
     Tf,
     /// Report this (OLS) specification as primary for the hypotheses.
     UseSpecification(String),
+    /// Test with the restricted wild cluster bootstrap.
+    WildBootstrap,
 }
 
 impl Action {
@@ -388,6 +479,7 @@ impl Action {
             Action::Liml => "liml".into(),
             Action::Tf => "tf".into(),
             Action::UseSpecification(s) => s.clone(),
+            Action::WildBootstrap => "wild-bootstrap".into(),
         }
     }
 }
@@ -411,6 +503,8 @@ pub struct Hypothesis {
     pub family: Option<String>,
     /// Level the hypothesis is tested at: its family's, else its own, else the plan's.
     pub alpha: f64,
+    /// Inference method.
+    pub method: Method,
 }
 
 /// A family of hypotheses.
@@ -422,6 +516,13 @@ pub struct Family {
     pub alpha: f64,
     /// Correction.
     pub correction: Correction,
+}
+
+impl Family {
+    /// Whether the correction needs the joint resampling draws of the family.
+    pub fn needs_draws(&self) -> bool {
+        self.correction == Correction::RomanoWolf
+    }
 }
 
 /// A table shell.

@@ -42,6 +42,74 @@ pub struct RawPlan {
     /// Table shells.
     #[serde(default, rename = "table")]
     pub tables: Vec<Spanned<RawTable>>,
+    /// Resampling settings (randomization inference, wild bootstrap, Romano–Wolf).
+    pub resampling: Option<Spanned<RawResampling>>,
+    /// Summary indices, in document order.
+    #[serde(default, rename = "index")]
+    pub indices: Vec<Spanned<RawIndex>>,
+    /// Balance table of baseline covariates.
+    pub balance: Option<Spanned<RawBalance>>,
+    /// Attrition checks and bounds.
+    pub attrition: Option<Spanned<RawAttrition>>,
+}
+
+/// `[[index]]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawIndex {
+    /// Name of the index variable.
+    pub id: Spanned<String>,
+    /// Data table (optional with one table).
+    pub data: Option<Spanned<String>>,
+    /// "anderson" | "mean-z".
+    pub method: Spanned<String>,
+    /// Components; a leading "-" flips the direction.
+    pub components: Vec<Spanned<String>>,
+    /// Expression selecting the reference group.
+    pub reference: Spanned<String>,
+}
+
+/// `[balance]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawBalance {
+    /// Data table (optional with one table).
+    pub data: Option<Spanned<String>>,
+    /// Binary arm indicator.
+    pub by: Spanned<String>,
+    /// Baseline covariates.
+    pub covariates: Vec<Spanned<String>>,
+    /// Standard errors.
+    pub errors: Option<Spanned<toml::Value>>,
+}
+
+/// `[attrition]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawAttrition {
+    /// Data table (optional with one table).
+    pub data: Option<Spanned<String>>,
+    /// Binary arm indicator.
+    pub by: Spanned<String>,
+    /// Expression: non-zero when the unit's outcome was observed.
+    pub observed: Spanned<String>,
+    /// Outcomes to bound (Lee 2009).
+    #[serde(default)]
+    pub bounds: Vec<Spanned<String>>,
+    /// Standard errors of the differential-attrition test.
+    pub errors: Option<Spanned<toml::Value>>,
+}
+
+/// `[resampling]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawResampling {
+    /// Random draws when exact enumeration is too large.
+    pub draws: Option<Spanned<i64>>,
+    /// Seed of every resampled p-value.
+    pub seed: Spanned<i64>,
+    /// Enumerate all assignments / sign vectors when there are fewer than this.
+    pub exact_below: Option<Spanned<i64>>,
 }
 
 /// `[study]`.
@@ -221,6 +289,12 @@ pub struct RawHypothesis {
     pub family: Option<Spanned<String>>,
     /// Significance level when the hypothesis has no family.
     pub alpha: Option<Spanned<f64>>,
+    /// "model" | "randomization" | "wild-bootstrap".
+    pub inference: Option<Spanned<String>>,
+    /// Randomization statistic: "t" | "estimate".
+    pub statistic: Option<Spanned<String>>,
+    /// Wild-bootstrap weights: "rademacher" | "webb".
+    pub weights: Option<Spanned<String>>,
 }
 
 /// `[family.NAME]`.

@@ -138,13 +138,22 @@ fn build(ctx: &Ctx, raw: RawPlan, text: String) -> Result<Plan> {
         families: BTreeMap::new(),
         tables: Vec::new(),
         contingencies: Vec::new(),
+        resampling: None,
+        indices: Vec::new(),
+        balance: None,
+        attrition: None,
     };
     plan.assignment = super::validate_spec::assignment(ctx, &raw, &plan)?;
+    plan.resampling = super::validate_rules::resampling(ctx, &raw)?;
+    plan.indices = super::validate_summaries::indices(ctx, &raw, &plan)?;
+    plan.balance = super::validate_summaries::balance(ctx, &raw, &plan)?;
+    plan.attrition = super::validate_summaries::attrition(ctx, &raw, &plan)?;
     plan.specifications = super::validate_spec::specifications(ctx, &raw, &plan)?;
     plan.families = super::validate_spec::families(ctx, &raw, &plan)?;
     plan.hypotheses = super::validate_spec::hypotheses(ctx, &raw, &plan)?;
     plan.tables = super::validate_spec::tables(ctx, &raw, &plan)?;
     plan.contingencies = super::validate_rules::contingencies(ctx, &raw, &plan)?;
+    super::validate_rules::families_resampled(ctx, &raw, &plan)?;
     Ok(plan)
 }
 

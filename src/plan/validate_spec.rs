@@ -3,7 +3,7 @@
 
 use super::raw::{RawPlan, RawSpec};
 use super::suggest::hint;
-use super::validate::{available, distribution, expr_error, Ctx};
+use super::validate::{distribution, expr_error, Ctx};
 use super::{
     Assignment, DataSource, Diagnostic, Errors, Estimator, Family, Hypothesis, Plan, Spec, Table,
 };
@@ -147,7 +147,7 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
         Some(b) => ctx.unit_open(b, &key("worst_case_bias"))?,
         None => 0.10,
     };
-    let names = available(table, &plan.derive);
+    let names = super::validate_summaries::available_with_indices(table, plan);
     let numeric = |v: &Spanned<String>, k: &str| -> Result<String> {
         let n = v.get_ref();
         if names.contains(n) {
@@ -221,7 +221,7 @@ fn spec_table<'p>(ctx: &Ctx, s: &RawSpec, plan: &'p Plan, key: &str) -> Result<&
     }
 }
 
-fn groupings(
+pub(super) fn groupings(
     ctx: &Ctx,
     vs: &[Spanned<String>],
     table: &DataSource,
@@ -276,7 +276,17 @@ fn sample(
 }
 
 fn errors(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Errors> {
-    let Some(v) = &s.errors else {
+    errors_value(ctx, s.errors.as_ref(), table, key)
+}
+
+/// An `errors` value (plain kind or cluster table); hc1 when absent.
+pub(super) fn errors_value(
+    ctx: &Ctx,
+    v: Option<&Spanned<toml::Value>>,
+    table: &DataSource,
+    key: &str,
+) -> Result<Errors> {
+    let Some(v) = v else {
         return Ok(Errors::Hc1);
     };
     let plain = ["classical", "hc0", "hc1", "hc2", "hc3"];
@@ -479,18 +489,24 @@ pub(super) fn families(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<BTreeMap
         };
         let correction = match &f.correction {
             Some(c) => {
-                if ["romano-wolf", "bky"].contains(&c.get_ref().as_str()) {
-                    return Err(ctx.at(c, format!("{key}.correction"), format!("correction `{}` needs resampling, which this version of sworn does not support yet", c.get_ref())));
-                }
                 ctx.one_of(
                     c,
                     &format!("{key}.correction"),
-                    &["none", "bonferroni", "holm", "benjamini-hochberg"],
+                    &[
+                        "none",
+                        "bonferroni",
+                        "holm",
+                        "benjamini-hochberg",
+                        "bky",
+                        "romano-wolf",
+                    ],
                 )?;
                 match c.get_ref().as_str() {
                     "none" => Correction::None,
                     "bonferroni" => Correction::Bonferroni,
                     "holm" => Correction::Holm,
+                    "bky" => Correction::Bky,
+                    "romano-wolf" => Correction::RomanoWolf,
                     _ => Correction::BenjaminiHochberg,
                 }
             }
@@ -600,7 +616,9 @@ pub(super) fn hypotheses(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Hy
             (None, Some(a)) => ctx.unit_open(a, &key("alpha"))?,
             (None, None) => plan.inference.alpha,
         };
+        let method = super::validate_rules::method(ctx, h, spec, plan)?;
         out.push(Hypothesis {
+            method,
             id: h.id.get_ref().clone(),
             claim: h.claim.clone().unwrap_or_default(),
             specification: spec.id.clone(),

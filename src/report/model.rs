@@ -18,11 +18,31 @@ pub struct ReportModel {
     integrity: String,
     hypotheses: Vec<HypRow>,
     contingencies: Vec<RuleRow>,
+    indices: Vec<String>,
+    balance: Option<BalanceModel>,
+    attrition: Vec<String>,
     tables: Vec<TableModel>,
     specs: Vec<SpecModel>,
     apart: Vec<SpecModel>,
     deviations: Vec<DevRow>,
     cautions: Vec<String>,
+}
+
+#[derive(Debug, Serialize)]
+struct BalanceRowModel {
+    covariate: String,
+    comparison: String,
+    treated: String,
+    difference: String,
+    se: String,
+    p: String,
+}
+
+#[derive(Debug, Serialize)]
+struct BalanceModel {
+    heading: String,
+    rows: Vec<BalanceRowModel>,
+    joint: String,
 }
 
 #[derive(Debug, Serialize)]
@@ -120,6 +140,8 @@ fn correction_name(c: Correction) -> &'static str {
         Correction::Bonferroni => "Bonferroni",
         Correction::Holm => "Holm",
         Correction::BenjaminiHochberg => "Benjamini–Hochberg",
+        Correction::Bky => "BKY sharpened q-values",
+        Correction::RomanoWolf => "Romano–Wolf",
     }
 }
 
@@ -207,6 +229,38 @@ impl ReportModel {
                 .zip(&r.contingencies)
                 .map(|(c, res)| rule_row(c, res))
                 .collect(),
+            indices: r
+                .indices
+                .iter()
+                .map(|(id, i)| format!(
+                    "`{id}`: {} of [{}], standardised against the reference group \"{}\" ({} rows); {} rows have a value (components missing in a row are left out of its average)",
+                    if i.method == "anderson" { "inverse-covariance-weighted index (Anderson 2008)" } else { "mean of z-scores (Kling, Liebman and Katz 2007)" },
+                    i.components.join(", "),
+                    i.reference,
+                    i.reference_rows,
+                    i.rows_with_value
+                ))
+                .collect(),
+            balance: r.balance.as_ref().map(|b| BalanceModel {
+                heading: format!(
+                    "By `{}` ({} complete rows; differences from OLS on the arm with {} errors)",
+                    b.by, b.n, b.errors
+                ),
+                rows: b
+                    .covariates
+                    .iter()
+                    .map(|(c, v)| BalanceRowModel {
+                        covariate: c.clone(),
+                        comparison: format!("{} (n = {})", num(v.mean_comparison), v.n_comparison),
+                        treated: format!("{} (n = {})", num(v.mean_treated), v.n_treated),
+                        difference: num(v.difference),
+                        se: num(v.std_error),
+                        p: pval(v.test.p_value),
+                    })
+                    .collect(),
+                joint: test_line("joint test (the arm on all covariates)", &b.joint),
+            }),
+            attrition: attrition_lines(r),
             tables: plan.tables.iter().map(|t| table_model(t, r)).collect(),
             specs,
             apart,
@@ -274,6 +328,35 @@ fn integrity_line(r: &Results) -> String {
     }
 }
 
+fn attrition_lines(r: &Results) -> Vec<String> {
+    let Some(a) = &r.attrition else {
+        return Vec::new();
+    };
+    let d = &a.differential;
+    let mut lines = vec![format!(
+        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}, {} errors), p = {}",
+        a.observed,
+        num(d.mean_comparison),
+        d.n_comparison,
+        num(d.mean_treated),
+        d.n_treated,
+        num(d.difference),
+        num(d.std_error),
+        a.errors,
+        pval(d.test.p_value)
+    )];
+    for (y, b) in &a.bounds {
+        lines.push(format!(
+            "Lee (2009) bounds on the effect on `{y}` for units observed in either arm: [{}, {}] (the {} arm trimmed by {})",
+            num(b.lower),
+            num(b.upper),
+            b.trimmed_arm,
+            num(b.trim_share)
+        ));
+    }
+    lines
+}
+
 fn rule_row(c: &crate::plan::Contingency, r: &crate::results::ContingencyResult) -> RuleRow {
     let trigger = match &c.trigger {
         crate::plan::Trigger::WeakInstruments { below } => {
@@ -291,6 +374,9 @@ fn rule_row(c: &crate::plan::Contingency, r: &crate::results::ContingencyResult)
         crate::plan::Action::Liml => "use the LIML estimate".to_string(),
         crate::plan::Action::Tf => "use the tF critical value".to_string(),
         crate::plan::Action::UseSpecification(s) => format!("report `{s}` as primary"),
+        crate::plan::Action::WildBootstrap => {
+            "use the restricted wild cluster bootstrap".to_string()
+        }
     };
     let mut rule = format!("{trigger}, {action}");
     if let Some(d) = &c.description {
@@ -310,9 +396,19 @@ fn rule_row(c: &crate::plan::Contingency, r: &crate::results::ContingencyResult)
 }
 
 fn method_text(h: &crate::results::HypothesisResult) -> String {
+    let draws = match (h.draws, h.exact) {
+        (Some(b), Some(true)) => format!("exact, all {b} draws"),
+        (Some(b), _) => format!("{b} draws"),
+        _ => String::new(),
+    };
     let base = match h.method {
         "anderson-rubin" => "Anderson–Rubin".to_string(),
         "tf" => "tF".to_string(),
+        "randomization" if h.estimator != "ols" => {
+            format!("randomization inference on the AR statistic ({draws})")
+        }
+        "randomization" => format!("randomization inference ({draws})"),
+        "wild-bootstrap" => format!("restricted wild cluster bootstrap ({draws})"),
         "normal" => format!("{} z", h.estimator.to_uppercase()),
         _ => format!(
             "{} t{}",

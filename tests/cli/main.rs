@@ -7,3 +7,4 @@ mod deviations;
 mod happy;
 mod nist;
 mod reference;
+mod resampling;

@@ -1,0 +1,262 @@
+//! Validation of the field-experiment summaries: `[[index]]` summary indices, `[balance]`
+//! and `[attrition]`. Indices run after derived variables and before specifications, which
+//! may use an index as a variable.
+
+use super::raw::RawPlan;
+use super::suggest::hint;
+use super::validate::{available, expr_error, Ctx};
+use super::validate_spec::{errors_value, unique, unknown};
+use super::{Attrition, Balance, DataSource, Index, IndexMethod, Plan};
+use crate::error::Result;
+use crate::expr;
+use std::collections::BTreeSet;
+use toml::Spanned;
+
+/// Names usable in `table`: [`available`] plus the indices computed on it.
+pub(super) fn available_with_indices(table: &DataSource, plan: &Plan) -> BTreeSet<String> {
+    let mut names = available(table, &plan.derive);
+    names.extend(
+        plan.indices
+            .iter()
+            .filter(|i| i.data == table.id)
+            .map(|i| i.id.clone()),
+    );
+    names
+}
+
+fn table<'p>(
+    ctx: &Ctx,
+    plan: &'p Plan,
+    data: Option<&Spanned<String>>,
+    at: &Spanned<String>,
+    key: &str,
+) -> Result<&'p DataSource> {
+    match data {
+        Some(d) => plan.data.get(d.get_ref()).ok_or_else(|| {
+            ctx.at(
+                d,
+                key,
+                unknown(
+                    "data table",
+                    d.get_ref(),
+                    plan.data.keys().map(String::as_str),
+                ),
+            )
+        }),
+        None if plan.data.len() == 1 => plan
+            .data
+            .values()
+            .next()
+            .ok_or_else(|| ctx.at(at, key, "the plan has no data table")),
+        None => Err(ctx.at(
+            at,
+            key,
+            "the plan has several data tables; say which one with data = \"NAME\"",
+        )),
+    }
+}
+
+fn name_in(
+    ctx: &Ctx,
+    v: &Spanned<String>,
+    names: &BTreeSet<String>,
+    key: &str,
+    what: &str,
+) -> Result<String> {
+    if names.contains(v.get_ref()) {
+        Ok(v.get_ref().clone())
+    } else {
+        Err(ctx.at(
+            v,
+            key,
+            format!(
+                "{} {what}",
+                unknown("variable", v.get_ref(), names.iter().map(String::as_str))
+            ),
+        ))
+    }
+}
+
+fn expression(
+    ctx: &Ctx,
+    text: &Spanned<String>,
+    names: &BTreeSet<String>,
+    key: &str,
+) -> Result<(String, expr::Expr)> {
+    let e = expr::parse(text.get_ref()).map_err(|e| expr_error(ctx, text, key, &e))?;
+    if let Some(n) = e.names().into_iter().find(|n| !names.contains(n)) {
+        return Err(ctx.at(
+            text,
+            key,
+            format!(
+                "unknown name `{n}` in \"{}\"{}",
+                text.get_ref(),
+                hint(&n, names.iter().map(String::as_str))
+            ),
+        ));
+    }
+    Ok((text.get_ref().clone(), e))
+}
+
+fn binary_arm(ctx: &Ctx, t: &DataSource, by: &Spanned<String>, key: &str) -> Result<String> {
+    match t.columns.get(by.get_ref()) {
+        Some(c) if c.kind == super::ColumnKind::Binary => Ok(by.get_ref().clone()),
+        Some(c) => Err(ctx.at(
+            by,
+            key,
+            format!(
+                "`{}` is of kind {}; the arm indicator must be a binary (0/1) column",
+                by.get_ref(),
+                c.kind.name()
+            ),
+        )),
+        None => Err(ctx.at(
+            by,
+            key,
+            unknown("column", by.get_ref(), t.columns.keys().map(String::as_str)),
+        )),
+    }
+}
+
+/// `[[index]]` entries.
+pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index>> {
+    unique(ctx, raw.indices.iter().map(|i| &i.get_ref().id), "index")?;
+    let mut out: Vec<Index> = Vec::new();
+    for i in &raw.indices {
+        let i = i.get_ref();
+        let id = i.id.get_ref().clone();
+        let key = |k: &str| format!("index[{id}].{k}");
+        let t = table(ctx, plan, i.data.as_ref(), &i.id, &key("data"))?;
+        let names = available(t, &plan.derive);
+        if names.contains(&id) || t.columns.contains_key(&id) || id == "intercept" {
+            return Err(ctx.at(
+                &i.id,
+                key("id"),
+                format!(
+                    "index id `{id}` is already a column or derived variable; choose another name"
+                ),
+            ));
+        }
+        if !super::validate::is_identifier(&id) {
+            return Err(ctx.at(&i.id, key("id"), "an index id must be a plain name (letters, digits, underscores, not starting with a digit)"));
+        }
+        ctx.one_of(&i.method, &key("method"), &["anderson", "mean-z"])?;
+        let method = if i.method.get_ref() == "anderson" {
+            IndexMethod::InverseCovariance
+        } else {
+            IndexMethod::MeanZ
+        };
+        if i.components.len() < 2 {
+            return Err(ctx.at(
+                &i.id,
+                key("components"),
+                "a summary index needs at least two components",
+            ));
+        }
+        let mut components = Vec::new();
+        let mut seen = BTreeSet::new();
+        for c in &i.components {
+            let (flip, name) = match c.get_ref().strip_prefix('-') {
+                Some(rest) => (true, rest.trim().to_string()),
+                None => (false, c.get_ref().clone()),
+            };
+            let named = Spanned::new(c.span(), name);
+            let name = name_in(
+                ctx,
+                &named,
+                &names,
+                &key("components"),
+                "among the index's components",
+            )?;
+            if !seen.insert(name.clone()) {
+                return Err(ctx.at(c, key("components"), format!("`{name}` is listed twice")));
+            }
+            components.push((name, flip));
+        }
+        let reference = expression(ctx, &i.reference, &names, &key("reference"))?;
+        out.push(Index {
+            id,
+            data: t.id.clone(),
+            method,
+            components,
+            reference,
+        });
+    }
+    Ok(out)
+}
+
+/// `[balance]`.
+pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Balance>> {
+    let Some(b) = &raw.balance else {
+        return Ok(None);
+    };
+    let b = b.get_ref();
+    let t = table(ctx, plan, b.data.as_ref(), &b.by, "balance.data")?;
+    let by = binary_arm(ctx, t, &b.by, "balance.by")?;
+    let names = available_with_indices(t, plan);
+    if b.covariates.is_empty() {
+        return Err(ctx.at(
+            &b.by,
+            "balance.covariates",
+            "list at least one baseline covariate",
+        ));
+    }
+    let covariates = b
+        .covariates
+        .iter()
+        .map(|c| {
+            name_in(
+                ctx,
+                c,
+                &names,
+                "balance.covariates",
+                "among the baseline covariates",
+            )
+        })
+        .collect::<Result<Vec<_>>>()?;
+    if covariates.contains(&by) {
+        return Err(ctx.at(
+            &b.by,
+            "balance.covariates",
+            "the arm indicator cannot be its own covariate",
+        ));
+    }
+    Ok(Some(Balance {
+        data: t.id.clone(),
+        by,
+        covariates,
+        errors: errors_value(ctx, b.errors.as_ref(), t, "balance.errors")?,
+    }))
+}
+
+/// `[attrition]`.
+pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Attrition>> {
+    let Some(a) = &raw.attrition else {
+        return Ok(None);
+    };
+    let a = a.get_ref();
+    let t = table(ctx, plan, a.data.as_ref(), &a.by, "attrition.data")?;
+    let by = binary_arm(ctx, t, &a.by, "attrition.by")?;
+    let names = available_with_indices(t, plan);
+    let observed = expression(ctx, &a.observed, &names, "attrition.observed")?;
+    let bounds = a
+        .bounds
+        .iter()
+        .map(|c| {
+            name_in(
+                ctx,
+                c,
+                &names,
+                "attrition.bounds",
+                "among the outcomes to bound",
+            )
+        })
+        .collect::<Result<Vec<_>>>()?;
+    Ok(Some(Attrition {
+        data: t.id.clone(),
+        by,
+        observed,
+        bounds,
+        errors: errors_value(ctx, a.errors.as_ref(), t, "attrition.errors")?,
+    }))
+}
