@@ -27,7 +27,7 @@ pub fn test_all(
     fitted: &BTreeMap<String, Fitted>,
     subs: &BTreeMap<String, Substitution>,
 ) -> BTreeMap<String, HypothesisResult> {
-    let mut live = BTreeMap::new();
+    let mut live: BTreeMap<String, bool> = BTreeMap::new();
     let mut out = BTreeMap::new();
     for h in &plan.hypotheses {
         let (r, is_live) = test_one(plan, h, fitted, subs.get(&h.specification));
@@ -50,7 +50,24 @@ pub fn test_all(
             .iter()
             .map(|id| out[*id].p_value.unwrap_or(1.0))
             .collect();
-        for (id, adj) in members.iter().zip(inference::adjust(&ps, correction)) {
+        let adjusted = if correction == Correction::RomanoWolf {
+            match romano_wolf(plan, &members, fitted) {
+                Ok(a) => a,
+                Err(why) => {
+                    for id in &members {
+                        if let Some(h) = out.get_mut(*id) {
+                            h.reason = Some(format!("Romano–Wolf step-down not possible: {why}"));
+                            h.correction = correction;
+                        }
+                        live.insert((*id).clone(), false);
+                    }
+                    continue;
+                }
+            }
+        } else {
+            inference::adjust(&ps, correction)
+        };
+        for (id, adj) in members.iter().zip(adjusted) {
             if let Some(h) = out.get_mut(*id) {
                 h.adjusted_p_value = Some(adj);
                 h.correction = correction;
@@ -70,6 +87,62 @@ pub fn test_all(
         }
     }
     out
+}
+
+/// Romano–Wolf adjusted p-values of a family from its members' joint resampling draws.
+/// Each statistic is oriented so that large values are evidence for the claim (|t| for
+/// two-sided hypotheses, −t for "less"), and the one-sided step-down runs on them.
+fn romano_wolf(
+    plan: &Plan,
+    members: &[&String],
+    fitted: &BTreeMap<String, Fitted>,
+) -> Result<Vec<f64>, String> {
+    let mut observed = Vec::new();
+    let mut columns: Vec<Vec<f64>> = Vec::new();
+    let mut units: Option<&str> = None;
+    let mut exact = None;
+    for id in members {
+        let h = plan
+            .hypotheses
+            .iter()
+            .find(|h| &&h.id == id)
+            .ok_or_else(|| format!("hypothesis `{id}` is unknown"))?;
+        let f = &fitted[&h.specification];
+        let kind = super::spec::method_name(&h.method);
+        let r = f
+            .resampled
+            .get(&(h.id.clone(), kind))
+            .ok_or_else(|| format!("hypothesis `{id}` has no resampled draws"))?;
+        if units.is_some_and(|u| u != f.resample_units) || exact.is_some_and(|e| e != r.exact) {
+            return Err("its hypotheses resample different units or designs, so their draws cannot be lined up; use one data table, sample and design for the family".into());
+        }
+        units = Some(&f.resample_units);
+        exact = Some(r.exact);
+        let orient = |v: f64| match h.direction {
+            Direction::TwoSided => v.abs(),
+            Direction::Greater => v,
+            Direction::Less => -v,
+        };
+        let ar = f.result.estimator != "ols";
+        let orient = |v: f64| if ar { v } else { orient(v) };
+        let draws: Option<Vec<f64>> = r.statistics.iter().map(|s| s.map(orient)).collect();
+        let draws = draws.ok_or_else(|| format!("hypothesis `{id}` skipped degenerate draws"))?;
+        if columns.first().is_some_and(|c| c.len() != draws.len()) {
+            return Err("its hypotheses used different numbers of draws".into());
+        }
+        observed.push(orient(r.observed));
+        columns.push(draws);
+    }
+    let b = columns.first().map_or(0, Vec::len);
+    let draws: Vec<Vec<f64>> = (0..b)
+        .map(|i| columns.iter().map(|c| c[i]).collect())
+        .collect();
+    let result = if exact == Some(true) {
+        inference::romano_wolf_enumerated(&observed, &draws, false)
+    } else {
+        inference::romano_wolf(&observed, &draws, false)
+    };
+    result.map_err(|e| e.to_string())
 }
 
 fn piece(ci: [f64; 2]) -> Vec<SetPiece> {

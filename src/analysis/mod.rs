@@ -7,6 +7,7 @@
 mod contingency;
 mod hypotheses;
 mod integrity;
+mod progress;
 mod spec;
 mod summaries;
 
@@ -77,6 +78,9 @@ pub fn execute(
     devs.extend(schema_devs);
     let mut fitted = BTreeMap::new();
     let needs = contingency::needs(plan);
+    let resampling = needs.values().any(|n| !n.resample.is_empty());
+    let _progress = (resampling && std::io::IsTerminal::is_terminal(&std::io::stderr()))
+        .then(progress::Progress::start);
     let none = spec::Needs::default();
     for s in &plan.specifications {
         let source = &plan.data[&s.data];

@@ -30,6 +30,10 @@ pub struct Fitted {
     pub ar_tests: Vec<(f64, TestStatistic)>,
     /// Resampled tests by (hypothesis id, method name).
     pub resampled: BTreeMap<(String, &'static str), estimate::ResampleResult>,
+    /// What resampled draws of this specification are draws of: the data table, the rows
+    /// used and the clustering, so that tests of several specifications can be lined up
+    /// draw by draw only when they resample the same units the same way.
+    pub resample_units: String,
 }
 
 /// A resampled test a hypothesis needs.
@@ -413,12 +417,24 @@ pub fn fit_spec(
         let r = resample(spec, table, &d, &p, &cov, need, rc)?;
         resampled.insert((need.hypothesis.clone(), method_name(&need.method)), r);
     }
+    let rows_bytes: Vec<u8> = d
+        .rows
+        .iter()
+        .flat_map(|r| (*r as u64).to_le_bytes())
+        .collect();
+    let resample_units = format!(
+        "{}:{}:{:?}",
+        table.id,
+        crate::ledger::sha256_hex(&rows_bytes),
+        result.cluster_by
+    );
     Ok(Fitted {
         result,
         reference,
         deviations,
         ar_tests,
         resampled,
+        resample_units,
     })
 }
 

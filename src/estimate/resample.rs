@@ -62,6 +62,18 @@ pub use wild::{wild_cluster_bootstrap, Weights};
 /// least as extreme).
 pub const TIE_TOLERANCE: f64 = 1e-12;
 
+/// Draws computed so far by this process, across all resampling tests: a counter the
+/// caller may read from another thread to show progress (this module never prints).
+pub static DRAWS_DONE: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+
+fn counted<T>(f: impl Fn(u64) -> T + Sync + Send) -> impl Fn(u64) -> T + Sync + Send {
+    move |i| {
+        let out = f(i);
+        DRAWS_DONE.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+        out
+    }
+}
+
 /// The default `exact_below`: enumerate when there are at most this many distinct draws.
 pub const DEFAULT_EXACT_BELOW: u64 = 100_000;
 
@@ -93,6 +105,10 @@ pub struct ResampleResult {
     pub skipped: usize,
     /// Whether every distinct draw was enumerated (no random numbers used).
     pub exact: bool,
+    /// The statistic of every draw in draw order (`None`: skipped). Random mode: draw 0 is the
+    /// observed one; exact mode: the enumeration order, which depends only on the design, so
+    /// tests on the same units and design line up draw by draw (for Romano–Wolf).
+    pub statistics: Vec<Option<f64>>,
 }
 
 /// Why a resampling test could not be run.
@@ -201,14 +217,14 @@ where
         Some(c) if c <= u128::from(plan.exact_below) => {
             // c ≤ exact_below ≤ u64::MAX.
             let c = c as u64;
-            Ok(((0..c).into_par_iter().map(exact).collect(), true))
+            Ok(((0..c).into_par_iter().map(counted(exact)).collect(), true))
         }
         _ if plan.draws == 0 => Err(ResampleError::NoDraws { count }),
         _ => {
             let b = plan.draws as u64;
             let mut stats = Vec::with_capacity(plan.draws + 1);
             stats.push(Some(observed));
-            stats.par_extend((1..=b).into_par_iter().map(random));
+            stats.par_extend((1..=b).into_par_iter().map(counted(random)));
             Ok((stats, false))
         }
     }
@@ -233,5 +249,6 @@ pub(crate) fn summarise(observed: f64, stats: &[Option<f64>], exact: bool) -> Re
         draws_used: used,
         skipped: stats.len() - used,
         exact,
+        statistics: stats.to_vec(),
     }
 }

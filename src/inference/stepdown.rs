@@ -53,13 +53,18 @@ pub enum StepDownError {
 /// by different code paths).
 pub const OBSERVED_DRAW_TOLERANCE: f64 = 1e-10;
 
+/// Relative tolerance under which a draw ties an observed statistic (and counts as reaching
+/// it), as for single resampled p-values.
+pub const TIE_TOLERANCE: f64 = 1e-12;
+
 /// Romano–Wolf step-down adjusted p-values, in input order.
 ///
 /// # Formula
 /// Order the hypotheses so that s_(1) ≥ … ≥ s_(S), with s = |t| (two-sided) or t. For step
 /// j, p̂_(j) = #{b : max_{k ≥ j} s*_{b,(k)} ≥ s_(j)} / B, the share of draws whose maximum
 /// over the hypotheses not yet rejected reaches the j-th largest observed statistic; then
-/// monotonicity is enforced, p̃_(j) = max(p̂_(j), p̃_(j−1)) (Romano and Wolf 2016). Tied observed statistics receive equal adjusted p-values.
+/// monotonicity is enforced, p̃_(j) = max(p̂_(j), p̃_(j−1)) (Romano and Wolf 2016). Tied observed statistics receive equal adjusted p-values. "Reaches" allows a relative tie
+/// tolerance of [`TIE_TOLERANCE`].
 ///
 /// # Errors
 /// [`StepDownError::Empty`], [`StepDownError::DrawLength`], [`StepDownError::NotFinite`],
@@ -69,6 +74,29 @@ pub fn romano_wolf(
     observed: &[f64],
     draws: &[Vec<f64>],
     two_sided: bool,
+) -> Result<Vec<f64>, StepDownError> {
+    step_down(observed, draws, two_sided, true)
+}
+
+/// [`romano_wolf`] over a complete enumeration of the draws (exact randomization or every
+/// sign vector): the observed draw is one of `draws`, wherever the enumeration puts it, so
+/// draw 0 is not required to be the observed one.
+///
+/// # Errors
+/// As [`romano_wolf`], without [`StepDownError::FirstDrawNotObserved`].
+pub fn romano_wolf_enumerated(
+    observed: &[f64],
+    draws: &[Vec<f64>],
+    two_sided: bool,
+) -> Result<Vec<f64>, StepDownError> {
+    step_down(observed, draws, two_sided, false)
+}
+
+fn step_down(
+    observed: &[f64],
+    draws: &[Vec<f64>],
+    two_sided: bool,
+    first_is_observed: bool,
 ) -> Result<Vec<f64>, StepDownError> {
     let s = observed.len();
     if s == 0 || draws.is_empty() {
@@ -92,7 +120,7 @@ pub fn romano_wolf(
             return Err(StepDownError::NotFinite);
         }
     }
-    if let Some(h) = (0..s).find(|&h| {
+    if let Some(h) = (0..s).filter(|_| first_is_observed).find(|&h| {
         (draws[0][h] - observed[h]).abs() > OBSERVED_DRAW_TOLERANCE * observed[h].abs().max(1.0)
     }) {
         return Err(StepDownError::FirstDrawNotObserved { hypothesis: h });
@@ -101,7 +129,15 @@ pub fn romano_wolf(
     // Descending by score; stable, so tied statistics keep their input order.
     let mut order: Vec<usize> = (0..s).collect();
     order.sort_by(|&i, &j| score(observed[j]).total_cmp(&score(observed[i])));
-    let thresholds: Vec<f64> = order.iter().map(|&h| score(observed[h])).collect();
+    // A draw ties the observed statistic when within 1e-12 relative (the project's p-value
+    // convention), so the same statistic computed by another code path still counts.
+    let thresholds: Vec<f64> = order
+        .iter()
+        .map(|&h| {
+            let t = score(observed[h]);
+            t - TIE_TOLERANCE * t.abs()
+        })
+        .collect();
     let mut counts = vec![0_u64; s];
     let mut suffix = vec![0.0_f64; s];
     for draw in draws {
@@ -150,6 +186,22 @@ mod tests {
         assert_eq!(two, vec![0.4, 0.6, 0.6]);
         let one = romano_wolf(&observed, &draws, false).unwrap();
         assert_eq!(one, vec![0.2, 1.0, 0.4]);
+        // An enumeration that lists the observed draw last gives the same hand values, and the
+        // draw-0 check is what the plain version would refuse it for.
+        let mut moved = draws.clone();
+        moved.rotate_left(1);
+        assert_eq!(
+            romano_wolf_enumerated(&observed, &moved, true).unwrap(),
+            vec![0.4, 0.6, 0.6]
+        );
+        assert_eq!(
+            romano_wolf_enumerated(&observed, &moved, false).unwrap(),
+            vec![0.2, 1.0, 0.4]
+        );
+        assert!(matches!(
+            romano_wolf(&observed, &moved, true),
+            Err(StepDownError::FirstDrawNotObserved { .. })
+        ));
     }
 
     #[test]

@@ -411,9 +411,6 @@ pub(super) fn families_resampled(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Resul
             Method::WildBootstrap { .. } => 2,
         };
         let kinds: BTreeSet<u8> = members.iter().map(|h| kind(&h.method)).collect();
-        if !kinds.contains(&0) && kinds.len() == 1 {
-            return Err(ctx.at(at, key, "the Romano–Wolf step-down is not run by this version of sworn yet (its joint draws are not wired into families); use \"holm\" or \"bky\" for now"));
-        }
         if kinds.contains(&0) || kinds.len() > 1 {
             return Err(ctx.at(at, key, "the Romano–Wolf step-down uses the family's joint resampling draws: every hypothesis of the family needs the same inference, \"randomization\" or \"wild-bootstrap\""));
         }

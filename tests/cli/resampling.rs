@@ -84,3 +84,226 @@ fn romano_wolf_needs_resampled_members() {
         .replace("correction = \"holm\"", "correction = \"romano-wolf\"");
     check_fails(&plan, &["family.main.correction", "same inference"]);
 }
+
+fn fixture_case(file: &str, name: &str) -> serde_json::Value {
+    let f = crate::reference::fixture(file);
+    f["cases"]
+        .as_array()
+        .and_then(|a| a.iter().find(|c| c["name"] == name).cloned())
+        .unwrap_or_else(|| panic!("case {name} in {file}"))
+}
+
+/// CSV of y and the columns 1.. of the fixture's x (column 0 is the intercept), plus ids.
+fn csv_from(case: &serde_json::Value, names: &[&str], ids: Option<&str>) -> String {
+    let y = case["y"].as_array().expect("y");
+    let x = case["x"].as_array().expect("x");
+    let mut out = format!("y,{}", names.join(","));
+    if let Some(ids) = ids {
+        out.push_str(&format!(",{ids}"));
+    }
+    out.push('\n');
+    for (i, yi) in y.iter().enumerate() {
+        let row = x[i].as_array().expect("row");
+        let cells: Vec<String> = row[1..]
+            .iter()
+            .map(|v| format!("{}", v.as_f64().unwrap()))
+            .collect();
+        out.push_str(&format!("{},{}", yi.as_f64().unwrap(), cells.join(",")));
+        if ids.is_some() {
+            out.push_str(&format!(",g{}", case["clusters"][i]));
+        }
+        out.push('\n');
+    }
+    out
+}
+
+fn small_plan(
+    errors: &str,
+    regressors: &str,
+    hypothesis: &str,
+    extra_columns: &str,
+    assignment: &str,
+) -> String {
+    format!(
+        r#"format = 1
+
+[study]
+title = "Exact resampling reference"
+
+[data.main]
+path = "data.csv"
+
+[data.main.columns]
+y = {{ kind = "number" }}
+t = {{ kind = "number" }}
+w = {{ kind = "number" }}
+{extra_columns}
+
+{assignment}
+
+[resampling]
+seed = 7
+draws = 999
+
+[[specification]]
+id = "s"
+estimator = "ols"
+outcome = "y"
+regressors = [{regressors}]
+controls = ["w"]
+errors = {errors}
+
+{hypothesis}
+"#
+    )
+}
+
+/// All 924 assignments of 6 treated among 12 units, HC1 t statistic: the p-values are the
+/// counts of tests/reference/resampling.py (statsmodels refit of every assignment) over 924.
+#[test]
+fn exact_randomization_inference_through_the_plan_path() {
+    let case = fixture_case("resample_ri.json", "complete_hc1_t_0.0");
+    let csv = csv_from(&case, &["t", "w"], None);
+    for (direction, count) in [("two-sided", "count_two"), ("greater", "count_upper")] {
+        let hyp = format!(
+            "[[hypothesis]]\nid = \"R\"\nspecification = \"s\"\nterm = \"t\"\ndirection = \"{direction}\"\ninference = \"randomization\"\n"
+        );
+        let plan = small_plan(
+            "\"hc1\"",
+            "\"t\"",
+            &hyp,
+            "",
+            "[assignment]\nvariable = \"t\"\ndesign = \"complete\"",
+        );
+        let s = Study::with(&plan, &csv);
+        let v = s.seal_and_run();
+        let h = &v["hypotheses"]["R"];
+        assert_eq!(h["method"], "randomization", "{h}");
+        assert_eq!(h["exact"], true, "{h}");
+        assert_eq!(h["draws"], 924, "{h}");
+        let want = case[count].as_f64().unwrap() / 924.0;
+        assert_eq!(h["p_value"].as_f64(), Some(want), "{direction}: {h}");
+        crate::reference::close(
+            "observed t",
+            h["statistic"].as_f64().unwrap(),
+            case["observed"].as_f64().unwrap(),
+        );
+        // verify re-derives the resampled p-value bit for bit.
+        let r = s.sworn(&["verify", "out"]);
+        assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    }
+}
+
+/// Ten clusters, all 1,024 Rademacher sign vectors of the restricted wild bootstrap: the
+/// p-value is the numpy brute-force count over 1,024 (tests/reference/resampling.py).
+#[test]
+fn exact_wild_bootstrap_through_the_plan_path() {
+    let case = fixture_case("resample_wild.json", "wild_rademacher_g10");
+    let csv = csv_from(&case, &["t", "w"], Some("g"));
+    let hyp = "[[hypothesis]]\nid = \"W\"\nspecification = \"s\"\nterm = \"t\"\ninference = \"wild-bootstrap\"\n";
+    let plan = small_plan(
+        "{ kind = \"cluster\", by = \"g\" }",
+        "\"t\"",
+        hyp,
+        "g = { kind = \"category\" }",
+        "",
+    );
+    let s = Study::with(&plan, &csv);
+    let v = s.seal_and_run();
+    let h = &v["hypotheses"]["W"];
+    assert_eq!(h["method"], "wild-bootstrap", "{h}");
+    assert_eq!(h["exact"], true, "{h}");
+    assert_eq!(h["draws"], 1024, "{h}");
+    assert_eq!(
+        h["p_value"].as_f64(),
+        Some(case["count_two"].as_f64().unwrap() / 1024.0),
+        "{h}"
+    );
+    crate::reference::close(
+        "observed t",
+        h["statistic"].as_f64().unwrap(),
+        case["observed"].as_f64().unwrap(),
+    );
+    assert!(s
+        .read("out/report.md")
+        .contains("restricted wild cluster bootstrap (exact, all 1024 draws)"));
+}
+
+/// A cluster-count rule switches a model-based hypothesis to the wild bootstrap.
+#[test]
+fn few_clusters_rule_switches_to_the_wild_bootstrap() {
+    let case = fixture_case("resample_wild.json", "wild_rademacher_g10");
+    let csv = csv_from(&case, &["t", "w"], Some("g"));
+    let hyp = "[[hypothesis]]\nid = \"W\"\nspecification = \"s\"\nterm = \"t\"\n\n[[contingency]]\nid = \"few\"\nspecification = \"s\"\nwhen = { clusters = { fewer_than = 30 } }\nthen = \"wild-bootstrap\"\n";
+    let plan = small_plan(
+        "{ kind = \"cluster\", by = \"g\" }",
+        "\"t\"",
+        hyp,
+        "g = { kind = \"category\" }",
+        "",
+    );
+    let v = Study::with(&plan, &csv).seal_and_run();
+    let c = &v["contingencies"][0];
+    assert_eq!(c["invoked"], true, "{c}");
+    assert_eq!(c["value"], 10.0, "{c}");
+    let h = &v["hypotheses"]["W"];
+    assert_eq!(h["method"], "wild-bootstrap", "{h}");
+    assert_eq!(h["contingency"], "few", "{h}");
+    assert_eq!(
+        h["p_value"].as_f64(),
+        Some(case["count_two"].as_f64().unwrap() / 1024.0)
+    );
+    // With more clusters than the threshold the rule stays idle.
+    let idle = plan.replace("fewer_than = 30", "fewer_than = 5");
+    let v = Study::with(&idle, &csv).seal_and_run();
+    assert_eq!(v["contingencies"][0]["invoked"], false);
+    assert_eq!(v["hypotheses"]["W"]["method"], "t");
+}
+
+/// Romano–Wolf over the joint draws of two randomization tests on the same units. With two
+/// identical outcomes the maximum over the family equals each statistic, so the step-down
+/// must return the raw exact p-values (84/924, from the statsmodels refits); with an unrelated
+/// second outcome the adjusted values lie between the raw ones and Bonferroni's.
+#[test]
+fn romano_wolf_on_joint_randomization_draws() {
+    let case = fixture_case("resample_ri.json", "complete_hc1_t_0.0");
+    let base = csv_from(&case, &["t", "w"], None);
+    let with_y2 = |reverse: bool| {
+        let lines: Vec<&str> = base.lines().collect();
+        let ys: Vec<&str> = lines[1..]
+            .iter()
+            .map(|l| l.split(',').next().unwrap_or(""))
+            .collect();
+        let mut out = format!("{},y2\n", lines[0]);
+        for (i, l) in lines[1..].iter().enumerate() {
+            let y2 = if reverse { ys[ys.len() - 1 - i] } else { ys[i] };
+            out.push_str(&format!("{l},{y2}\n"));
+        }
+        out
+    };
+    let hyps = "[[specification]]\nid = \"s2\"\nestimator = \"ols\"\noutcome = \"y2\"\nregressors = [\"t\"]\ncontrols = [\"w\"]\nerrors = \"hc1\"\n\n[[hypothesis]]\nid = \"A\"\nspecification = \"s\"\nterm = \"t\"\ninference = \"randomization\"\nfamily = \"f\"\n\n[[hypothesis]]\nid = \"B\"\nspecification = \"s2\"\nterm = \"t\"\ninference = \"randomization\"\nfamily = \"f\"\n\n[family.f]\ncorrection = \"romano-wolf\"\n";
+    let plan = small_plan(
+        "\"hc1\"",
+        "\"t\"",
+        hyps,
+        "y2 = { kind = \"number\" }",
+        "[assignment]\nvariable = \"t\"\ndesign = \"complete\"",
+    );
+    let v = Study::with(&plan, &with_y2(false)).seal_and_run();
+    let want = case["count_two"].as_f64().unwrap() / 924.0;
+    for id in ["A", "B"] {
+        let h = &v["hypotheses"][id];
+        assert_eq!(h["correction"], "romano-wolf", "{h}");
+        assert_eq!(h["p_value"].as_f64(), Some(want), "{h}");
+        assert_eq!(h["adjusted_p_value"].as_f64(), Some(want), "{h}");
+    }
+    let v = Study::with(&plan, &with_y2(true)).seal_and_run();
+    for id in ["A", "B"] {
+        let h = &v["hypotheses"][id];
+        let (p, adj) = (
+            h["p_value"].as_f64().unwrap(),
+            h["adjusted_p_value"].as_f64().unwrap(),
+        );
+        assert!(p <= adj && adj <= (2.0 * p).min(1.0) + 1e-15, "{h}");
+    }
+}

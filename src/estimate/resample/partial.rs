@@ -167,14 +167,41 @@ impl Partialled {
                 return None;
             }
         }
-        let qr = PivotedQr::new(&zt).ok()?;
-        let g = qr.solve(&zt, &self.y_tilde);
-        if !with_cov {
-            return Some((g, None));
-        }
-        let u = residual(&zt, &self.y_tilde, &g);
-        let t = qr.t_matrix();
-        let q1 = qr.thin_q();
+        // One re-drawn column (the usual case): closed form, g = z̃'ỹ / z̃'z̃, Q₁ = z̃/‖z̃‖ and
+        // T = 1/‖z̃‖, with no factorisation per draw. Several columns: pivoted QR.
+        let (g, u, t, q1) = if l == 1 {
+            let zc = zt.column(0);
+            let zz = zc.norm_squared();
+            let g = DVector::from_element(1, zc.dot(&self.y_tilde) / zz);
+            if !with_cov {
+                return Some((g, None));
+            }
+            // Clustered, one column: the score sums in one pass, V = c·Σ_g (Σ z̃ᵢuᵢ)² / (z̃'z̃)².
+            if let Kind::Cluster { ids, g: groups } = &self.kind {
+                let (zs, ys) = (zc.as_slice(), self.y_tilde.as_slice());
+                let mut sums = vec![0.0_f64; *groups];
+                for i in 0..n {
+                    sums[ids[i]] += zs[i] * (ys[i] - zs[i] * g[0]);
+                }
+                let meat: f64 = sums.iter().map(|v| v * v).sum();
+                let gf = *groups as f64;
+                let c = gf / (gf - 1.0) * ((n - 1) as f64 / self.df_cluster as f64);
+                return Some((g, Some(DMatrix::from_element(1, 1, c * meat / (zz * zz)))));
+            }
+            let u = &self.y_tilde - zc * g[0];
+            let norm = zz.sqrt();
+            let t = DMatrix::from_element(1, 1, 1.0 / norm);
+            let q1 = &zt / norm;
+            (g, u, t, q1)
+        } else {
+            let qr = PivotedQr::new(&zt).ok()?;
+            let g = qr.solve(&zt, &self.y_tilde);
+            if !with_cov {
+                return Some((g, None));
+            }
+            let u = residual(&zt, &self.y_tilde, &g);
+            (g, u, qr.t_matrix(), qr.thin_q())
+        };
         let meat = match &self.kind {
             Kind::Classical => {
                 let s2 = u.norm_squared() / self.df_resid as f64;
