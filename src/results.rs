@@ -246,6 +246,8 @@ pub struct IndexResult {
     pub components: Vec<String>,
     /// Reference-group expression.
     pub reference: String,
+    /// "available" (observed components averaged) | "complete" (complete rows only).
+    pub missing: &'static str,
     /// Rows in the reference group.
     pub reference_rows: usize,
     /// Rows with an index value.

@@ -118,6 +118,11 @@ pub fn indices(plan: &Plan, tables: &BTreeMap<String, Table>) -> BTreeMap<String
                         .map(|(c, f)| if *f { format!("-{c}") } else { c.clone() })
                         .collect(),
                     reference: i.reference.0.clone(),
+                    missing: if i.complete_cases {
+                        "complete"
+                    } else {
+                        "available"
+                    },
                     reference_rows,
                     rows_with_value,
                 },

@@ -405,8 +405,13 @@ fn index_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()>
                 .ok_or_else(|| fail(format!("component `{c}` is not available")))?;
             cols.push(values);
         }
+        let complete = |r: usize| cols.iter().all(|c| c[r].is_some());
         let m = nalgebra::DMatrix::from_fn(table.rows, cols.len(), |r, j| {
-            cols[j][r].unwrap_or(f64::NAN)
+            if i.complete_cases && !complete(r) {
+                f64::NAN
+            } else {
+                cols[j][r].unwrap_or(f64::NAN)
+            }
         });
         let reference: Vec<bool> = {
             let numeric = &table.numeric;

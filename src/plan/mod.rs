@@ -82,6 +82,8 @@ pub struct Index {
     pub components: Vec<(String, bool)>,
     /// Reference-group expression as written, and parsed.
     pub reference: (String, Expr),
+    /// A row missing any component has no index (else the observed components are averaged).
+    pub complete_cases: bool,
 }
 
 /// A balance table.

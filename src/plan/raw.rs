@@ -67,6 +67,9 @@ pub struct RawIndex {
     pub components: Vec<Spanned<String>>,
     /// Expression selecting the reference group.
     pub reference: Spanned<String>,
+    /// Missing components: "available" (average the observed ones, default) | "complete"
+    /// (a row missing any component has no index).
+    pub missing: Option<Spanned<String>>,
 }
 
 /// `[balance]`.

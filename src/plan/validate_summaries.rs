@@ -174,7 +174,15 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
             components.push((name, flip));
         }
         let reference = expression(ctx, &i.reference, &names, &key("reference"))?;
+        let complete_cases = match &i.missing {
+            Some(m) => {
+                ctx.one_of(m, &key("missing"), &["available", "complete"])?;
+                m.get_ref() == "complete"
+            }
+            None => false,
+        };
         out.push(Index {
+            complete_cases,
             id,
             data: t.id.clone(),
             method,

@@ -233,12 +233,13 @@ impl ReportModel {
                 .indices
                 .iter()
                 .map(|(id, i)| format!(
-                    "`{id}`: {} of [{}], standardised against the reference group \"{}\" ({} rows); {} rows have a value (components missing in a row are left out of its average)",
+                    "`{id}`: {} of [{}], standardised against the reference group \"{}\" ({} rows); {} rows have a value ({})",
                     if i.method == "anderson" { "inverse-covariance-weighted index (Anderson 2008)" } else { "mean of z-scores (Kling, Liebman and Katz 2007)" },
                     i.components.join(", "),
                     i.reference,
                     i.reference_rows,
-                    i.rows_with_value
+                    i.rows_with_value,
+                    if i.missing == "complete" { "a row missing any component has no value" } else { "components missing in a row are left out of its average" }
                 ))
                 .collect(),
             balance: r.balance.as_ref().map(|b| BalanceModel {

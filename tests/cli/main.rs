@@ -8,3 +8,4 @@ mod happy;
 mod nist;
 mod reference;
 mod resampling;
+mod summaries;
