@@ -48,10 +48,15 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
             }
             Action::WildBootstrap => {
                 n.wild_bootstrap = true;
-                let model = plan
-                    .hypotheses
-                    .iter()
-                    .filter(|h| h.specification == c.specification && h.method == Method::Model);
+                let spec = plan.specifications.iter().find(|s| s.id == c.specification);
+                let testable = |term: &String| {
+                    spec.is_some_and(|s| !s.estimator.is_iv() || s.endogenous.contains(term))
+                };
+                let model = plan.hypotheses.iter().filter(|h| {
+                    h.specification == c.specification
+                        && h.method == Method::Model
+                        && testable(&h.term)
+                });
                 for h in model {
                     n.resample.push(ResampleNeed {
                         hypothesis: h.id.clone(),
@@ -144,8 +149,14 @@ pub fn evaluate(
                     .hypotheses
                     .iter()
                     .filter(|h| h.specification == c.specification)
+                    .filter(|h| {
+                        h.method == Method::Model || !matches!(c.action, Action::WildBootstrap)
+                    })
                     .filter(|h| match c.action {
-                        Action::UseSpecification(_) | Action::WildBootstrap => true,
+                        Action::UseSpecification(_) => true,
+                        Action::WildBootstrap => spec.is_some_and(|s| {
+                            !s.estimator.is_iv() || s.endogenous.contains(&h.term)
+                        }),
                         _ => spec.is_some_and(|s| s.endogenous.contains(&h.term)),
                     })
                     .map(|h| h.id.clone())

@@ -171,12 +171,11 @@ fn test_one(
     let f = &fitted[&h.specification];
     let spec = plan.specifications.iter().find(|s| s.id == h.specification);
     let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
-    let sub = sub.filter(|s| {
-        on_endog
-            || matches!(
-                s.action,
-                Action::UseSpecification(_) | Action::WildBootstrap
-            )
+    let is_iv = spec.is_some_and(|s| s.estimator.is_iv());
+    let sub = sub.filter(|s| match s.action {
+        Action::UseSpecification(_) => true,
+        Action::WildBootstrap => on_endog || !is_iv,
+        _ => on_endog,
     });
     let mut r = HypothesisResult {
         claim: h.claim.clone(),

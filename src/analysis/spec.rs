@@ -570,17 +570,32 @@ fn resample(
             } else {
                 estimate::Weights::Rademacher
             };
-            estimate::wild_cluster_bootstrap(
-                &d.y,
-                &x,
-                index,
-                need.null,
-                ids,
-                weights,
-                &draws,
-                &d.absorbed,
-            )
-            .map_err(err)
+            if spec.estimator == Estimator::Tsls {
+                estimate::wild_restricted_efficient(
+                    &d.y,
+                    &p.exog,
+                    &p.focal,
+                    &p.instruments,
+                    need.null,
+                    ids,
+                    weights,
+                    &draws,
+                    &d.absorbed,
+                )
+                .map_err(err)
+            } else {
+                estimate::wild_cluster_bootstrap(
+                    &d.y,
+                    &x,
+                    index,
+                    need.null,
+                    ids,
+                    weights,
+                    &draws,
+                    &d.absorbed,
+                )
+                .map_err(err)
+            }
         }
         Method::Model => Err(est_err(spec, "no resampling was asked for")),
     }

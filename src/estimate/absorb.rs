@@ -23,10 +23,9 @@
 //! the iteration error and is set to exactly zero, so that the QR factorisation reports it as
 //! a collinear regressor instead of fitting rounding noise.
 
-use std::collections::HashMap;
-
 use nalgebra::{DMatrix, DVector};
 
+use super::covariance::densify;
 use super::{Absorbed, EstimateError};
 
 /// Stop when the largest change in a sweep is at most this times the column's scale.
@@ -37,19 +36,6 @@ pub const MAX_SWEEPS: usize = 10_000;
 
 /// A swept column with ‖M_D v‖ ≤ √n · this · ‖v‖ is treated as absorbed (set to zero).
 pub const ABSORBED_COLUMN_TOLERANCE: f64 = 1e-12;
-
-/// Relabels ids as 0..G in order of first appearance; returns the labels and G.
-fn densify(ids: &[usize]) -> (Vec<usize>, usize) {
-    let mut map = HashMap::new();
-    let dense = ids
-        .iter()
-        .map(|id| {
-            let next = map.len();
-            *map.entry(*id).or_insert(next)
-        })
-        .collect();
-    (dense, map.len())
-}
 
 /// Checks that every dimension has one id per observation; returns n.
 fn common_length(groups: &[Vec<usize>]) -> Result<usize, EstimateError> {

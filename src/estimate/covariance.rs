@@ -233,7 +233,7 @@ fn cluster_meat(
 }
 
 /// Relabels arbitrary ids as 0..G in order of first appearance.
-fn densify<T: std::hash::Hash + Eq + Copy>(ids: &[T]) -> (Vec<usize>, usize) {
+pub(crate) fn densify<T: std::hash::Hash + Eq + Copy>(ids: &[T]) -> (Vec<usize>, usize) {
     let mut map = HashMap::new();
     let dense = ids
         .iter()

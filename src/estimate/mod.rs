@@ -66,8 +66,8 @@ pub use linear::{ols, tsls};
 pub use qr::collinear_columns;
 pub use resample::{
     count_assignments, randomization_ar, randomization_test, wild_cluster_bootstrap,
-    AssignmentDesign, Draws, ResampleError, ResampleResult, RiStatistic, Weights,
-    DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
+    wild_restricted_efficient, AssignmentDesign, Draws, ResampleError, ResampleResult, RiStatistic,
+    Weights, DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
 };
 pub use summaries::{
     balance, differential_attrition, inverse_covariance, lee_bounds, mean_z, BalanceRow,

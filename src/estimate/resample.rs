@@ -35,8 +35,8 @@
 //! * `randomization`: [`randomization_test`] and [`randomization_ar`].
 //! * `wild`: [`wild_cluster_bootstrap`].
 //!
-//! Not implemented: the wild restricted efficient bootstrap for 2SLS (Davidson and MacKinnon
-//! 2010, JBES 28).
+//! * `wre`: [`wild_restricted_efficient`], the wild restricted efficient bootstrap for 2SLS
+//!   (Davidson and MacKinnon 2010, JBES 28).
 //!
 //! [`CovSpec`]: super::CovSpec
 
@@ -44,6 +44,7 @@ mod assignment;
 mod partial;
 mod randomization;
 mod wild;
+mod wre;
 
 #[cfg(test)]
 mod reference_tests;
@@ -57,6 +58,7 @@ use super::EstimateError;
 pub use assignment::{count_assignments, AssignmentDesign};
 pub use randomization::{randomization_ar, randomization_test, RiStatistic};
 pub use wild::{wild_cluster_bootstrap, Weights};
+pub use wre::wild_restricted_efficient;
 
 /// Relative tolerance under which two statistics count as tied (tied draws count as at
 /// least as extreme).

@@ -240,10 +240,15 @@ fn wild_bootstrap_fits(
     if plan.resampling.is_none() {
         return Err(ctx.at(at, key, "the wild cluster bootstrap needs [resampling] with a seed (e.g. [resampling] seed = 20260501) so its p-values can be reproduced"));
     }
-    if spec.estimator != Estimator::Ols {
+    let fits = match spec.estimator {
+        Estimator::Ols => true,
+        Estimator::Tsls => spec.endogenous.len() == 1,
+        _ => false,
+    };
+    if !fits {
         return Err(ctx.at(at, key, format!(
-            "the wild cluster bootstrap is implemented for OLS specifications (reduced forms, intention-to-treat); `{}` is estimated by {}",
-            spec.id, spec.estimator.name()
+            "the wild cluster bootstrap is implemented for OLS specifications and for 2SLS with one endogenous regressor (the wild restricted efficient bootstrap); `{}` is estimated by {} with {} endogenous regressor(s)",
+            spec.id, spec.estimator.name(), spec.endogenous.len()
         )));
     }
     match &spec.errors {
@@ -376,6 +381,12 @@ pub(super) fn method(ctx: &Ctx, h: &RawHypothesis, spec: &Spec, plan: &Plan) -> 
         }
         "wild-bootstrap" => {
             wild_bootstrap_fits(ctx, plan, spec, at, &key("inference"))?;
+            if spec.estimator.is_iv() && !spec.endogenous.contains(h.term.get_ref()) {
+                return Err(ctx.at(at, key("inference"), format!(
+                    "the wild restricted efficient bootstrap tests the endogenous coefficient `{}` of a 2SLS specification; use model inference for `{}`",
+                    spec.endogenous.join("`, `"), h.term.get_ref()
+                )));
+            }
             let webb = match &h.weights {
                 Some(w) => {
                     ctx.one_of(w, &key("weights"), &["rademacher", "webb"])?;

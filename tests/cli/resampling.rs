@@ -307,3 +307,80 @@ fn romano_wolf_on_joint_randomization_draws() {
         assert!(p <= adj && adj <= (2.0 * p).min(1.0) + 1e-15, "{h}");
     }
 }
+
+/// The wild restricted efficient bootstrap for a 2SLS coefficient through a plan: eight
+/// clusters, all 256 Rademacher vectors, two instruments; p-value = the numpy brute-force
+/// count over 256 (tests/reference/wre.py, fixture resample_wre).
+#[test]
+fn exact_wre_bootstrap_through_the_plan_path() {
+    let case = fixture_case("resample_wre.json", "rademacher_g8_over_null0");
+    let n = case["y"].as_array().expect("y").len();
+    let mut csv = String::from("y,w,d,z1,z2,g\n");
+    for i in 0..n {
+        let f = |v: &serde_json::Value| format!("{}", v.as_f64().unwrap());
+        csv.push_str(&format!(
+            "{},{},{},{},{},g{}\n",
+            f(&case["y"][i]),
+            f(&case["exog"][i][1]),
+            f(&case["endog"][i]),
+            f(&case["instruments"][i][0]),
+            f(&case["instruments"][i][1]),
+            case["clusters"][i]
+        ));
+    }
+    let plan = r#"format = 1
+
+[study]
+title = "WRE reference"
+
+[data.main]
+path = "data.csv"
+
+[data.main.columns]
+y = { kind = "number" }
+w = { kind = "number" }
+d = { kind = "number" }
+z1 = { kind = "number" }
+z2 = { kind = "number" }
+g = { kind = "category" }
+
+[resampling]
+seed = 3
+
+[[specification]]
+id = "iv"
+estimator = "2sls"
+outcome = "y"
+endogenous = ["d"]
+instruments = ["z1", "z2"]
+controls = ["w"]
+errors = { kind = "cluster", by = "g" }
+
+[[hypothesis]]
+id = "E"
+specification = "iv"
+term = "d"
+inference = "wild-bootstrap"
+"#;
+    let v = Study::with(plan, &csv).seal_and_run();
+    let h = &v["hypotheses"]["E"];
+    assert_eq!(h["method"], "wild-bootstrap", "{h}");
+    assert_eq!(h["exact"], true, "{h}");
+    assert_eq!(h["draws"], 256, "{h}");
+    assert_eq!(
+        h["p_value"].as_f64(),
+        Some(case["count_two"].as_f64().unwrap() / 256.0),
+        "{h}"
+    );
+    crate::reference::close(
+        "observed t",
+        h["statistic"].as_f64().unwrap(),
+        case["observed"].as_f64().unwrap(),
+    );
+    // A hypothesis on a control of a 2SLS specification cannot use it.
+    let on_w = plan.replace("term = \"d\"", "term = \"w\"");
+    let s = Study::with(&on_w, &csv);
+    let r = s.sworn(&["check", "plan.toml"]);
+    assert_eq!(r.code, 2, "{}", r.stderr);
+    assert!(r.stderr.contains("endogenous coefficient"), "{}", r.stderr);
+}

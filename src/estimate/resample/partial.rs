@@ -11,10 +11,9 @@
 //! Two-way clustering clamps eigenvalues of the whole covariance matrix, which the Z-block
 //! alone does not determine, so there each draw refits [Z | W] in full with `ols`.
 
-use std::collections::HashMap;
-
 use nalgebra::{DMatrix, DVector};
 
+use super::super::covariance::densify;
 use super::super::covariance::CovSpec;
 use super::super::linear::ols;
 use super::super::qr::PivotedQr;
@@ -53,18 +52,6 @@ pub(crate) struct Partialled {
 
 /// The coefficients of Z and, when asked, their covariance.
 pub(crate) type ZFit = (DVector<f64>, Option<DMatrix<f64>>);
-
-fn densify(ids: &[usize]) -> (Vec<usize>, usize) {
-    let mut map = HashMap::new();
-    let dense = ids
-        .iter()
-        .map(|id| {
-            let next = map.len();
-            *map.entry(*id).or_insert(next)
-        })
-        .collect();
-    (dense, map.len())
-}
 
 impl Partialled {
     /// Prepares the regression of `y` on [Z | `w`] for Z with `l` columns.

@@ -29,7 +29,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use super::super::covariance::CovSpec;
+use super::super::covariance::{densify, CovSpec};
 use super::super::linear::{ols, validate};
 use super::super::qr::PivotedQr;
 use super::super::refine::residual;
@@ -47,7 +47,7 @@ pub enum Weights {
 
 impl Weights {
     /// The support points, in the order used for enumeration digits.
-    fn points(self) -> Vec<f64> {
+    pub(super) fn points(self) -> Vec<f64> {
         match self {
             Weights::Rademacher => vec![1.0, -1.0],
             Weights::Webb => {
@@ -56,19 +56,6 @@ impl Weights {
             }
         }
     }
-}
-
-/// Relabels cluster ids 0..G in order of first appearance.
-fn densify(ids: &[usize]) -> (Vec<usize>, usize) {
-    let mut map = std::collections::HashMap::new();
-    let dense = ids
-        .iter()
-        .map(|id| {
-            let next = map.len();
-            *map.entry(*id).or_insert(next)
-        })
-        .collect();
-    (dense, map.len())
 }
 
 /// Restricted wild cluster bootstrap test of β_`coef_index` = `null` in the OLS of `y` on
