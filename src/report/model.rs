@@ -759,6 +759,21 @@ fn cautions(r: &Results) -> Vec<String> {
     {
         c.push("Linear probability models can predict outside [0, 1]; their coefficients are average marginal effects on the probability, and their errors are heteroskedastic by construction.".into());
     }
+    if r.hypotheses.values().any(|h| h.method == "randomization") {
+        c.push("Randomization p-values test the sharp null that the assignment changed no unit's outcome beyond the stated null value, a stronger hypothesis than a zero average effect; they are exact given the registered assignment design, so they are only as good as the record of how the assignment was actually drawn.".into());
+    }
+    if r.hypotheses.values().any(|h| h.method == "wild-bootstrap") {
+        c.push("Wild cluster bootstrap p-values are more reliable than cluster-robust t-tests when clusters are few, but remain approximations; with very few treated clusters they can mislead as well.".into());
+    }
+    if r.hypotheses
+        .values()
+        .any(|h| h.correction == Correction::Bky)
+    {
+        c.push("BKY q-values control the false discovery rate (the expected share of false claims among those made), not the chance of any false claim; a q-value can be below its raw p-value when most hypotheses of the family appear false.".into());
+    }
+    if r.attrition.as_ref().is_some_and(|a| !a.bounds.is_empty()) {
+        c.push("Lee bounds bound the effect for units whose outcome would be observed in either arm, assuming assignment affects whether an outcome is observed in one direction only.".into());
+    }
     c.push("A verified run shows that the registered plan was followed on these data; it does not show that the design is sound or that its assumptions hold. Decisions rest with the study's own review and its registry's rules.".into());
     c
 }

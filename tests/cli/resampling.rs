@@ -188,6 +188,10 @@ fn exact_randomization_inference_through_the_plan_path() {
             h["statistic"].as_f64().unwrap(),
             case["observed"].as_f64().unwrap(),
         );
+        assert!(
+            s.read("out/report.md").contains("sharp null"),
+            "the caution on randomization p-values"
+        );
         // verify re-derives the resampled p-value bit for bit.
         let r = s.sworn(&["verify", "out"]);
         assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
