@@ -266,15 +266,20 @@ pub(super) fn resampling(ctx: &Ctx, raw: &RawPlan) -> Result<Option<Resampling>>
         return Ok(None);
     };
     let r = r.get_ref();
+    // Every draw's statistic is kept (for Romano–Wolf), so the counts are capped to keep
+    // memory bounded: 10 million draws are 160 MB per test.
+    const MAX_DRAWS: i64 = 10_000_000;
     let positive = |v: &Spanned<i64>, key: &str, min: i64| -> Result<i64> {
-        if *v.get_ref() >= min {
-            Ok(*v.get_ref())
-        } else {
+        if *v.get_ref() < min {
             Err(ctx.at(
                 v,
                 key,
                 format!("{key} must be a whole number of at least {min}"),
             ))
+        } else if *v.get_ref() > MAX_DRAWS && key != "resampling.seed" {
+            Err(ctx.at(v, key, format!("{key} may be at most {MAX_DRAWS}")))
+        } else {
+            Ok(*v.get_ref())
         }
     };
     let draws = match &r.draws {

@@ -44,6 +44,13 @@ fn resampled_inference_needs_a_seed() {
         ),
         &["resampling.draws", "at least 99"],
     );
+    check_fails(
+        &plan_with(
+            "[resampling]\nseed = 1\nexact_below = 100000000000\n",
+            "inference = \"randomization\"",
+        ),
+        &["resampling.exact_below", "at most 10000000"],
+    );
 }
 
 #[test]
