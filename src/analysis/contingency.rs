@@ -58,11 +58,16 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
                         && testable(&h.term)
                 });
                 for h in model {
+                    let fewer_than = match c.trigger {
+                        Trigger::Clusters { fewer_than } => Some(fewer_than),
+                        _ => None,
+                    };
                     n.resample.push(ResampleNeed {
                         hypothesis: h.id.clone(),
                         term: h.term.clone(),
                         null: h.null,
                         method: Method::WildBootstrap { webb: false },
+                        only_below_clusters: fewer_than,
                     });
                 }
             }
@@ -79,6 +84,7 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
                     term: h.term.clone(),
                     null: h.null,
                     method: h.method,
+                    only_below_clusters: None,
                 });
         }
     }
@@ -150,7 +156,7 @@ pub fn evaluate(
                     .iter()
                     .filter(|h| h.specification == c.specification)
                     .filter(|h| {
-                        h.method == Method::Model || !matches!(c.action, Action::WildBootstrap)
+                        h.method == Method::Model || matches!(c.action, Action::UseSpecification(_))
                     })
                     .filter(|h| match c.action {
                         Action::UseSpecification(_) => true,

@@ -123,14 +123,23 @@ fn romano_wolf(
             Direction::Greater => v,
             Direction::Less => -v,
         };
-        let ar = f.result.estimator != "ols";
+        // The randomization AR statistic (2SLS) is non-negative: it is used as it is, and a
+        // one-sided member whose estimate lies on the other side can never be rejected.
+        let ar = kind == "randomization" && f.result.estimator != "ols";
         let orient = |v: f64| if ar { v } else { orient(v) };
         let draws: Option<Vec<f64>> = r.statistics.iter().map(|s| s.map(orient)).collect();
         let draws = draws.ok_or_else(|| format!("hypothesis `{id}` skipped degenerate draws"))?;
         if columns.first().is_some_and(|c| c.len() != draws.len()) {
             return Err("its hypotheses used different numbers of draws".into());
         }
-        observed.push(orient(r.observed));
+        let estimate = f.result.terms.get(&h.term).map_or(f64::NAN, |t| t.estimate);
+        let against =
+            ar && h.direction != Direction::TwoSided && !on_side(estimate, h.null, h.direction);
+        observed.push(if against {
+            f64::INFINITY
+        } else {
+            orient(r.observed)
+        });
         columns.push(draws);
     }
     let b = columns.first().map_or(0, Vec::len);
@@ -172,10 +181,13 @@ fn test_one(
     let spec = plan.specifications.iter().find(|s| s.id == h.specification);
     let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
     let is_iv = spec.is_some_and(|s| s.estimator.is_iv());
+    // A hypothesis's own resampled inference is explicit: rules change only model-based
+    // hypotheses, except that an endogeneity rule moves every hypothesis to the OLS spec.
+    let model = h.method == Method::Model;
     let sub = sub.filter(|s| match s.action {
         Action::UseSpecification(_) => true,
-        Action::WildBootstrap => on_endog || !is_iv,
-        _ => on_endog,
+        Action::WildBootstrap => model && (on_endog || !is_iv),
+        _ => model && on_endog,
     });
     let mut r = HypothesisResult {
         claim: h.claim.clone(),
@@ -248,7 +260,7 @@ fn test_one(
         return resampled_test(h, f, t, kind, &mut r);
     }
     match sub.map(|s| &s.action) {
-        Some(Action::AndersonRubin) => anderson_rubin(h, f, &mut r),
+        Some(Action::AndersonRubin) => anderson_rubin(h, f, t, &mut r),
         Some(Action::Tf) => tf(h, f, t, &mut r),
         _ => t_test(h, t, &reference, &mut r),
     }
@@ -275,7 +287,7 @@ fn resampled_test(
     r.statistic = Some(res.observed);
     // The randomization AR statistic is non-negative and two-sided by nature: for a
     // one-sided hypothesis its p-value counts only when the estimate lies on the claimed side.
-    let ar = f.result.estimator != "ols";
+    let ar = kind == "randomization" && f.result.estimator != "ols";
     let p = match h.direction {
         Direction::TwoSided => res.p_value,
         _ if ar => {
@@ -316,6 +328,7 @@ fn t_test(
 fn anderson_rubin(
     h: &Hypothesis,
     f: &Fitted,
+    t: &Term,
     r: &mut HypothesisResult,
 ) -> (HypothesisResult, bool) {
     r.method = "anderson-rubin";
@@ -355,10 +368,11 @@ fn anderson_rubin(
         Direction::TwoSided => Direction::TwoSided,
     };
     let wrong_side = h.direction != Direction::TwoSided
-        && ar.set.iter().all(|p| {
-            p.lower.is_some_and(|x| on_side(x, h.null, flip))
-                && p.upper.is_some_and(|x| on_side(x, h.null, flip))
-        });
+        && (!on_side(t.estimate, h.null, h.direction)
+            || ar.set.iter().all(|p| {
+                p.lower.is_some_and(|x| on_side(x, h.null, flip))
+                    && p.upper.is_some_and(|x| on_side(x, h.null, flip))
+            }));
     let p = if wrong_side { 1.0 } else { two_sided };
     r.p_value = Some(p);
     r.adjusted_p_value = Some(p);

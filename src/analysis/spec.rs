@@ -47,6 +47,9 @@ pub struct ResampleNeed {
     pub null: f64,
     /// How.
     pub method: Method,
+    /// Compute only when the specification has fewer clusters than this (a cluster-count
+    /// rule's test, useless unless the rule fires).
+    pub only_below_clusters: Option<usize>,
 }
 
 /// The name of a resampling method in results.json.
@@ -413,7 +416,19 @@ pub fn fit_spec(
         ar_tests = ctx.diagnostics(&mut result)?;
     }
     let mut resampled = BTreeMap::new();
+    let kept: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
     for need in &needs.resample {
+        let clusters = d.clusters.first().map(|(_, g)| *g);
+        if need
+            .only_below_clusters
+            .is_some_and(|g| clusters.is_some_and(|c| c >= g))
+        {
+            continue;
+        }
+        // A dropped term leaves its hypothesis undetermined (reported by the hypothesis).
+        if !kept.contains(&&need.term) {
+            continue;
+        }
         let r = resample(spec, table, &d, &p, &cov, need, rc)?;
         resampled.insert((need.hypothesis.clone(), method_name(&need.method)), r);
     }

@@ -152,7 +152,7 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
         b.covariates.iter().map(|c| col(c)).collect::<Result<_>>()?;
     let rows: Vec<usize> = (0..t.rows)
         .filter(|&r| {
-            arm[r].is_some()
+            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
                 && covs.iter().all(|c| c[r].is_some())
                 && clusters_present(&b.errors, t, r)
         })
@@ -203,7 +203,9 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
         })?
     };
     let rows: Vec<usize> = (0..t.rows)
-        .filter(|&r| arm[r].is_some() && clusters_present(&a.errors, t, r))
+        .filter(|&r| {
+            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0) && clusters_present(&a.errors, t, r)
+        })
         .collect();
     let treated: Vec<bool> = rows.iter().map(|&r| arm[r] == Some(1.0)).collect();
     let observed: Vec<bool> = rows

@@ -81,9 +81,13 @@ fn expression(
     ctx: &Ctx,
     text: &Spanned<String>,
     names: &BTreeSet<String>,
+    table: &DataSource,
     key: &str,
 ) -> Result<(String, expr::Expr)> {
     let e = expr::parse(text.get_ref()).map_err(|e| expr_error(ctx, text, key, &e))?;
+    if e.uses_lag() && table.order_by.is_none() {
+        return Err(ctx.at(text, key, "lag/diff need the table's row order: add order_by = \"COLUMN\" to its [data.NAME] table"));
+    }
     if let Some(n) = e.names().into_iter().find(|n| !names.contains(n)) {
         return Err(ctx.at(
             text,
@@ -173,7 +177,7 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
             }
             components.push((name, flip));
         }
-        let reference = expression(ctx, &i.reference, &names, &key("reference"))?;
+        let reference = expression(ctx, &i.reference, &names, t, &key("reference"))?;
         let complete_cases = match &i.missing {
             Some(m) => {
                 ctx.one_of(m, &key("missing"), &["available", "complete"])?;
@@ -222,6 +226,18 @@ pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Ba
             )
         })
         .collect::<Result<Vec<_>>>()?;
+    let mut seen = BTreeSet::new();
+    if let Some(dup) = b
+        .covariates
+        .iter()
+        .find(|c| !seen.insert(c.get_ref().clone()))
+    {
+        return Err(ctx.at(
+            dup,
+            "balance.covariates",
+            format!("`{}` is listed twice", dup.get_ref()),
+        ));
+    }
     if covariates.contains(&by) {
         return Err(ctx.at(
             &b.by,
@@ -246,7 +262,7 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
     let t = table(ctx, plan, a.data.as_ref(), &a.by, "attrition.data")?;
     let by = binary_arm(ctx, t, &a.by, "attrition.by")?;
     let names = available_with_indices(t, plan);
-    let observed = expression(ctx, &a.observed, &names, "attrition.observed")?;
+    let observed = expression(ctx, &a.observed, &names, t, "attrition.observed")?;
     let bounds = a
         .bounds
         .iter()

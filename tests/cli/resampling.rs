@@ -264,11 +264,45 @@ fn few_clusters_rule_switches_to_the_wild_bootstrap() {
         h["p_value"].as_f64(),
         Some(case["count_two"].as_f64().unwrap() / 1024.0)
     );
-    // With more clusters than the threshold the rule stays idle.
+    // With more clusters than the threshold the rule stays idle, and its bootstrap is not run
+    // (so a fixed effect not nested in the clusters, which would stop it, does no harm).
     let idle = plan.replace("fewer_than = 30", "fewer_than = 5");
     let v = Study::with(&idle, &csv).seal_and_run();
     assert_eq!(v["contingencies"][0]["invoked"], false);
     assert_eq!(v["hypotheses"]["W"]["method"], "t");
+    let with_fe = idle
+        .replace(
+            "g = { kind = \"category\" }",
+            "g = { kind = \"category\" }\nband = { kind = \"category\" }",
+        )
+        .replace(
+            "controls = [\"w\"]",
+            "controls = [\"w\"]\nfixed_effects = [\"band\"]",
+        );
+    let banded: String = csv
+        .lines()
+        .enumerate()
+        .map(|(i, l)| {
+            if i == 0 {
+                format!("{l},band\n")
+            } else {
+                format!("{l},b{}\n", i % 3)
+            }
+        })
+        .collect();
+    let v = Study::with(&with_fe, &banded).seal_and_run();
+    assert_eq!(v["contingencies"][0]["invoked"], false);
+    // Fired, the same plan stops with a clear message instead of an inexact bootstrap.
+    let fired = with_fe.replace("fewer_than = 5", "fewer_than = 30");
+    let s = Study::with(&fired, &banded);
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["run", "plan.toml", "--out", "out"]);
+    assert_eq!(r.code, 2, "{}", r.stdout);
+    assert!(
+        r.stderr.contains("nested in the cluster variable"),
+        "{}",
+        r.stderr
+    );
 }
 
 /// Romano–Wolf over the joint draws of two randomization tests on the same units. With two
@@ -387,6 +421,16 @@ inference = "wild-bootstrap"
         "observed t",
         h["statistic"].as_f64().unwrap(),
         case["observed"].as_f64().unwrap(),
+    );
+    // One-sided: the upper count of the same enumeration (a signed t, not the AR statistic).
+    let greater = plan.replace(
+        "inference = \"wild-bootstrap\"",
+        "direction = \"greater\"\ninference = \"wild-bootstrap\"",
+    );
+    let v = Study::with(&greater, &csv).seal_and_run();
+    assert_eq!(
+        v["hypotheses"]["E"]["p_value"].as_f64(),
+        Some(case["count_upper"].as_f64().unwrap() / 256.0)
     );
     // A hypothesis on a control of a 2SLS specification cannot use it.
     let on_w = plan.replace("term = \"d\"", "term = \"w\"");
