@@ -47,7 +47,7 @@ pub enum Weights {
 
 impl Weights {
     /// The support points, in the order used for enumeration digits.
-    pub(super) fn points(self) -> Vec<f64> {
+    fn points(self) -> Vec<f64> {
         match self {
             Weights::Rademacher => vec![1.0, -1.0],
             Weights::Webb => {
@@ -56,6 +56,43 @@ impl Weights {
             }
         }
     }
+}
+
+/// Runs `stat` over cluster weight vectors of length `g`: every vector (digit d of the
+/// enumeration index ↦ the d-th support point) when there are at most `plan.exact_below`,
+/// else the observed all-ones vector and `plan.draws` random ones. Shared by the OLS and the
+/// 2SLS (`wre`) bootstraps so both enumerate and draw the same vectors.
+pub(super) fn weight_draws(
+    g: usize,
+    weights: Weights,
+    plan: &Draws,
+    observed: f64,
+    stat: impl Fn(&DVector<f64>) -> Option<f64> + Sync + Send,
+) -> Result<(Vec<Option<f64>>, bool), ResampleError> {
+    let points = weights.points();
+    let base = points.len() as u64;
+    let count = u32::try_from(g)
+        .ok()
+        .and_then(|g| u128::from(base).checked_pow(g));
+    run_draws(
+        count,
+        plan,
+        observed,
+        |i| {
+            let mut rest = i;
+            let wv = DVector::from_fn(g, |_, _| {
+                let digit = rest % base;
+                rest /= base;
+                points[digit as usize]
+            });
+            stat(&wv)
+        },
+        |b| {
+            let mut stream = Stream::for_draw(plan.seed, b);
+            let wv = DVector::from_fn(g, |_, _| points[stream.below(base) as usize]);
+            stat(&wv)
+        },
+    )
 }
 
 /// Restricted wild cluster bootstrap test of β_`coef_index` = `null` in the OLS of `y` on
@@ -160,29 +197,6 @@ pub(crate) fn wild_statistics(
         let s = v[coef_index] / (factor * d.norm_squared()).sqrt();
         s.is_finite().then_some(s)
     };
-    let points = weights.points();
-    let base = points.len() as u64;
-    let count = u32::try_from(g)
-        .ok()
-        .and_then(|g| u128::from(base).checked_pow(g));
-    let (stats, exact) = run_draws(
-        count,
-        plan,
-        observed,
-        |i| {
-            let mut rest = i;
-            let wv = DVector::from_fn(g, |_, _| {
-                let digit = rest % base;
-                rest /= base;
-                points[digit as usize]
-            });
-            stat(&wv)
-        },
-        |b| {
-            let mut stream = Stream::for_draw(plan.seed, b);
-            let wv = DVector::from_fn(g, |_, _| points[stream.below(base) as usize]);
-            stat(&wv)
-        },
-    )?;
+    let (stats, exact) = weight_draws(g, weights, plan, observed, stat)?;
     Ok((observed, stats, exact))
 }

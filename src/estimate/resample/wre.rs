@@ -37,8 +37,9 @@ use super::super::linear::{hcat, iv_setup, tsls, tsls_from, IvSetup};
 use super::super::qr::PivotedQr;
 use super::super::refine::residual;
 use super::super::{Absorbed, EstimateError};
+use super::wild::weight_draws;
 use super::Weights;
-use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
+use super::{summarise, DrawStats, Draws, ResampleError, ResampleResult};
 
 /// Least-squares coefficients and residuals of `y` on `x` (`x` may have no columns).
 fn fit(x: &DMatrix<f64>, y: &DVector<f64>) -> Result<(DVector<f64>, DVector<f64>), EstimateError> {
@@ -164,30 +165,7 @@ pub(crate) fn wre_statistics(
         let s = (f.coef[0] - null) / f.cov[(0, 0)].sqrt();
         s.is_finite().then_some(s)
     };
-    let points = weights.points();
-    let base = points.len() as u64;
-    let count = u32::try_from(g)
-        .ok()
-        .and_then(|g| u128::from(base).checked_pow(g));
-    let (stats, exact) = run_draws(
-        count,
-        plan,
-        observed,
-        |i| {
-            let mut rest = i;
-            let wv = DVector::from_fn(g, |_, _| {
-                let digit = rest % base;
-                rest /= base;
-                points[digit as usize]
-            });
-            stat(&wv)
-        },
-        |b| {
-            let mut stream = Stream::for_draw(plan.seed, b);
-            let wv = DVector::from_fn(g, |_, _| points[stream.below(base) as usize]);
-            stat(&wv)
-        },
-    )?;
+    let (stats, exact) = weight_draws(g, weights, plan, observed, stat)?;
     Ok((observed, stats, exact))
 }
 
