@@ -1,6 +1,6 @@
 //! Estimating one specification: design → collinearity check → fit → diagnostics → results.
 
-use crate::data::{design, Design, Table};
+use crate::data::{design, Design, LabelIdsError, Table};
 use crate::deviation::{Deviation, Severity};
 use crate::distribution::{Reference, TestStatistic};
 use crate::error::{Error, Result};
@@ -118,10 +118,6 @@ fn hstack(blocks: &[&DMatrix<f64>]) -> DMatrix<f64> {
     }
 }
 
-fn display(name: &str) -> String {
-    format!("`{name}`")
-}
-
 /// Resolve collinearity among `[exog | extra]`: returns the columns of `exog` and of `extra`
 /// to keep, recording dropped names, or fails naming the dependent columns.
 fn resolve(
@@ -139,7 +135,10 @@ fn resolve(
     if dependent.is_empty() {
         return Ok(((0..exog.ncols()).collect(), (0..extra.ncols()).collect()));
     }
-    let listed: Vec<String> = dependent.iter().map(|&j| display(names[j])).collect();
+    let listed: Vec<String> = dependent
+        .iter()
+        .map(|&j| format!("`{}`", names[j]))
+        .collect();
     if !spec.drop_collinear {
         return Err(est_err(spec, format!(
             "rank-deficient design: {} {} a linear combination of the other {what}; remove the term(s) or set on_collinear = \"drop\" (a dropped term is reported as a deviation)",
@@ -334,7 +333,7 @@ pub fn fit_spec(
             "collinear-dropped",
             Severity::Deviation,
             format!("{}.{}", spec.id, name),
-            format!("term dropped as collinear: {}", display(name)),
+            format!("term dropped as collinear: `{name}`"),
         ));
     }
     if d.singletons > 0 {
@@ -455,25 +454,16 @@ pub fn fit_spec(
 
 /// Group ids of `column` for the design's rows.
 fn ids_of(table: &Table, column: &str, d: &Design, spec: &Spec) -> Result<Vec<usize>> {
-    let labels = table.labels.get(column).ok_or_else(|| {
-        est_err(
+    table.label_ids(column, &d.rows).map_err(|e| match e {
+        LabelIdsError::NoColumn => est_err(
             spec,
             format!(
                 "assignment column `{column}` is not available in data table `{}`",
                 table.id
             ),
-        )
-    })?;
-    let mut map: BTreeMap<&str, usize> = BTreeMap::new();
-    let mut out = Vec::with_capacity(d.rows.len());
-    for &r in &d.rows {
-        let Some(v) = labels[r].as_deref() else {
-            return Err(est_err(spec, format!("assignment column `{column}` is missing in a row the specification uses; randomization inference needs it in every row")));
-        };
-        let next = map.len();
-        out.push(*map.entry(v).or_insert(next));
-    }
-    Ok(out)
+        ),
+        LabelIdsError::Missing => est_err(spec, format!("assignment column `{column}` is missing in a row the specification uses; randomization inference needs it in every row")),
+    })
 }
 
 /// One resampled test of `need` on the fitted design.

@@ -1,7 +1,7 @@
 //! The plan's field-experiment summaries: summary indices (built with the data, reported
 //! here), the balance table of baseline covariates by arm, and attrition with Lee bounds.
 
-use crate::data::Table;
+use crate::data::{LabelIdsError, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{self, BalanceRow, CovSpec, TrimmedArm};
 use crate::inference;
@@ -45,24 +45,15 @@ fn cov_for(errors: &Errors, table: &Table, rows: &[usize], what: &str) -> Result
         Errors::Cluster(by) => {
             let mut dims = Vec::new();
             for b in by {
-                let labels = table
-                    .labels
-                    .get(b)
-                    .ok_or_else(|| err(what, format!("cluster column `{b}` is not available")))?;
-                let mut map: BTreeMap<&str, usize> = BTreeMap::new();
-                let ids = rows
-                    .iter()
-                    .map(|&r| {
-                        let next = map.len();
-                        labels[r].as_deref().map(|v| *map.entry(v).or_insert(next))
-                    })
-                    .collect::<Option<Vec<usize>>>()
-                    .ok_or_else(|| {
-                        err(
-                            what,
-                            format!("cluster column `{b}` is missing in a used row"),
-                        )
-                    })?;
+                let ids = table.label_ids(b, rows).map_err(|e| match e {
+                    LabelIdsError::NoColumn => {
+                        err(what, format!("cluster column `{b}` is not available"))
+                    }
+                    LabelIdsError::Missing => err(
+                        what,
+                        format!("cluster column `{b}` is missing in a used row"),
+                    ),
+                })?;
                 dims.push(ids);
             }
             match dims.len() {

@@ -31,5 +31,31 @@ pub struct Table {
     pub labels: BTreeMap<String, Vec<Option<String>>>,
 }
 
+/// Why [`Table::label_ids`] found no ids.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LabelIdsError {
+    /// The table has no grouping column of that name.
+    NoColumn,
+    /// A requested row has no label.
+    Missing,
+}
+
+impl Table {
+    /// Dense 0-based ids (in order of first appearance) of the labels of `column` at `rows`.
+    pub fn label_ids(&self, column: &str, rows: &[usize]) -> Result<Vec<usize>, LabelIdsError> {
+        let labels = self.labels.get(column).ok_or(LabelIdsError::NoColumn)?;
+        let mut map: BTreeMap<&str, usize> = BTreeMap::new();
+        rows.iter()
+            .map(|&r| {
+                let next = map.len();
+                labels[r]
+                    .as_deref()
+                    .map(|v| *map.entry(v).or_insert(next))
+                    .ok_or(LabelIdsError::Missing)
+            })
+            .collect()
+    }
+}
+
 /// Tokens read as missing in text data, besides an empty field.
 pub const MISSING_TOKENS: [&str; 2] = ["NA", "."];
