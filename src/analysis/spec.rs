@@ -431,17 +431,22 @@ pub fn fit_spec(
         let r = resample(spec, table, &d, &p, &cov, need, rc)?;
         resampled.insert((need.hypothesis.clone(), method_name(&need.method)), r);
     }
-    let rows_bytes: Vec<u8> = d
-        .rows
-        .iter()
-        .flat_map(|r| (*r as u64).to_le_bytes())
-        .collect();
-    let resample_units = format!(
-        "{}:{}:{:?}",
-        table.id,
-        crate::ledger::sha256_hex(&rows_bytes),
-        result.cluster_by
-    );
+    // Only resampled tests are ever lined up across specifications.
+    let resample_units = if resampled.is_empty() {
+        String::new()
+    } else {
+        let rows_bytes: Vec<u8> = d
+            .rows
+            .iter()
+            .flat_map(|r| (*r as u64).to_le_bytes())
+            .collect();
+        format!(
+            "{}:{}:{:?}",
+            table.id,
+            crate::ledger::sha256_hex(&rows_bytes),
+            result.cluster_by
+        )
+    };
     Ok(Fitted {
         result,
         reference,
