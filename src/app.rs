@@ -31,6 +31,7 @@ impl Outcome {
 /// Run one command.
 pub fn dispatch(command: Command) -> Result<Outcome> {
     match command {
+        Command::Init { data, out } => init(&data, &out),
         Command::Check { plan, data } => check(&plan, data),
         Command::Seal { plan } => seal(&plan),
         Command::Amend { plan, reason } => amend(&plan, &reason),
@@ -40,6 +41,18 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
             crate::demo::run_demo(out.as_deref().unwrap_or(Path::new("sworn-demo")))
         }
     }
+}
+
+/// `sworn init DATA… [--out PLAN]`.
+pub fn init(data: &[PathBuf], out: &Path) -> Result<Outcome> {
+    crate::starter::init(data, out)?;
+    println!(
+        "wrote {}: a starter plan for {} data file(s)",
+        out.display(),
+        data.len()
+    );
+    println!("next: fill each place marked \"<fill: …>\", review the declared kinds, then `sworn check {}`", out.display());
+    Ok(Outcome::Success)
 }
 
 /// `sworn check PLAN [--data]`.

@@ -15,6 +15,15 @@ pub struct Cli {
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    /// Start a plan from data files: the declared schema inferred, the team's places marked.
+    Init {
+        /// The data files (CSV or Parquet), one data table each.
+        #[arg(required = true)]
+        data: Vec<PathBuf>,
+        /// The plan file to write (default plan.toml); never overwritten.
+        #[arg(long, default_value = "plan.toml")]
+        out: PathBuf,
+    },
     /// Validate a plan; with --data also check its data files against the declared schema.
     Check {
         /// The plan file (TOML).

@@ -20,3 +20,4 @@ pub mod ledger;
 pub mod plan;
 pub mod report;
 pub mod results;
+pub mod starter;

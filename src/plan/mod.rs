@@ -8,6 +8,7 @@ pub mod canonical;
 pub mod raw;
 mod source;
 mod suggest;
+pub mod unfilled;
 mod validate;
 mod validate_rules;
 mod validate_spec;

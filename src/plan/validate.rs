@@ -88,6 +88,7 @@ pub fn load(path: &Path) -> Result<Plan> {
         std::fs::read_to_string(path).map_err(|e| Error::io(path, "cannot read the plan", e))?;
     let path = std::path::absolute(path)
         .map_err(|e| Error::io(path, "cannot resolve the plan path", e))?;
+    super::unfilled::refuse_marks(&path, &text)?;
     let ctx = Ctx {
         path: path.clone(),
         map: SourceMap::new(&text),
