@@ -10,11 +10,19 @@ use std::fmt;
 
 use super::{prec, BinOp, Expr};
 
+/// A name that reads back as itself without backticks: an identifier that is not reserved.
+fn is_bare_name(name: &str) -> bool {
+    name.starts_with(|c: char| c.is_ascii_alphabetic() || c == '_')
+        && name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_')
+        && !super::parse_error::is_reserved(name)
+}
+
 impl fmt::Display for Expr {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             Expr::Number(v) => write_number(f, *v),
-            Expr::Name(name) => f.write_str(name),
+            Expr::Name(name) if is_bare_name(name) => f.write_str(name),
+            Expr::Name(name) => write!(f, "`{name}`"),
             Expr::Neg(a) => {
                 f.write_str("-")?;
                 operand(f, a, prec::NEG)
@@ -205,7 +213,7 @@ mod tests {
         let sub = |state: &mut u64| Box::new(random_tree(state, depth.saturating_sub(1)));
         match pick {
             0 => Expr::Number(leaf),
-            1 => Expr::Name(["x", "y_2", "ln", "_z"][k % 4].to_string()),
+            1 => Expr::Name(["x", "y_2", "ln", "_z", "floor area", "and"][k % 6].to_string()),
             2 => Expr::Neg(sub(state)),
             3 => Expr::Not(sub(state)),
             4 => Expr::Lag { arg: sub(state), k },

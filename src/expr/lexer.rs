@@ -13,6 +13,8 @@ pub(crate) enum Tok {
     Number(f64),
     /// A word: a name, a function name or a reserved word.
     Word(String),
+    /// A name written between backticks (`` `floor area` ``): always a column or derived name.
+    Quoted(String),
     /// An operator or punctuation mark, as written (`+`, `<=`, `(`, `,` ...).
     Sym(&'static str),
     /// The end of the source.
@@ -49,6 +51,8 @@ pub(crate) fn tokenize(src: &str) -> Result<Vec<Token>, ExprError> {
             number(&chars, i)?
         } else if c.is_ascii_alphabetic() || c == '_' {
             word(&chars, i)
+        } else if c == '`' {
+            quoted(&chars, i)?
         } else {
             symbol(&chars, i)?
         };
@@ -66,6 +70,25 @@ pub(crate) fn tokenize(src: &str) -> Result<Vec<Token>, ExprError> {
 fn word(chars: &[char], start: usize) -> (Tok, usize) {
     let len = run_len(chars, start, |c| c.is_ascii_alphanumeric() || c == '_');
     (Tok::Word(chars[start..start + len].iter().collect()), len)
+}
+
+/// Reads a backtick-quoted name starting at `start` (the opening backtick).
+fn quoted(chars: &[char], start: usize) -> Result<(Tok, usize), ExprError> {
+    let len = run_len(chars, start + 1, |c| c != '`');
+    if start + 1 + len >= chars.len() {
+        return Err(ExprError::at(
+            start,
+            "this backtick opens a quoted name that is never closed; end the name with another `",
+        ));
+    }
+    if len == 0 {
+        return Err(ExprError::at(
+            start,
+            "a quoted name cannot be empty; write the column name between the backticks",
+        ));
+    }
+    let name: String = chars[start + 1..start + 1 + len].iter().collect();
+    Ok((Tok::Quoted(name), len + 2))
 }
 
 /// Reads a number starting at `start`: digits, an optional fraction, an optional exponent.
@@ -167,6 +190,21 @@ mod tests {
 
     fn error(src: &str) -> ExprError {
         tokenize(src).expect_err("invalid")
+    }
+
+    #[test]
+    fn backticks_quote_any_name() {
+        assert_eq!(
+            toks("`floor area` + x"),
+            vec![
+                (Tok::Quoted("floor area".into()), 0),
+                (Tok::Sym("+"), 13),
+                (Tok::Word("x".into()), 15),
+                (Tok::End, 16)
+            ]
+        );
+        assert!(error("`open").message.contains("never closed"));
+        assert!(error("x + ``").message.contains("cannot be empty"));
     }
 
     #[test]

@@ -17,6 +17,7 @@ pub(crate) fn describe(tok: &Tok) -> String {
         Tok::Number(v) => format!("the number `{v}`"),
         Tok::Word(w) if is_reserved(w) => format!("`{w}`"),
         Tok::Word(w) => format!("the name `{w}`"),
+        Tok::Quoted(w) => format!("the quoted name `{w}`"),
         Tok::Sym(s) => format!("`{s}`"),
         Tok::End => "the end of the expression".to_string(),
     }

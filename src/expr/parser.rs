@@ -149,6 +149,10 @@ impl Parser {
                 self.advance();
                 Ok(Node::leaf(Expr::Name(w.clone())))
             }
+            Tok::Quoted(name) => {
+                self.advance();
+                Ok(Node::leaf(Expr::Name(name.clone())))
+            }
             Tok::Sym("(") => self.parenthesised(token.offset),
             _ => Err(self.missing_operand(&token)),
         }

@@ -129,3 +129,27 @@ fn two_tables_ask_which_one_a_specification_uses() {
 fn sha256_hex(bytes: &[u8]) -> String {
     sworn::ledger::sha256_hex(bytes)
 }
+
+#[test]
+fn a_column_name_with_a_space_is_usable_in_expressions_between_backticks() {
+    let s = Study::with("", &data_csv().replacen(",x,", ",roof size,", 1));
+    assert_eq!(s.sworn(&["init", "data.csv", "--out", "p.toml"]).code, 0);
+    s.edit(
+        "p.toml",
+        "\"<fill: the study's title>\"",
+        "\"Quoted names\"",
+    );
+    s.edit(
+        "p.toml",
+        "\"<fill: what this specification estimates>\"",
+        "\"Main\"",
+    );
+    s.edit("p.toml", "\"<fill: the outcome column>\"", "\"y\"");
+    s.edit(
+        "p.toml",
+        "regressors = [\"<fill: the treatment or exposure column>\"]",
+        "regressors = [\"d\"]\nsample = \"`roof size` > 1 and not (`roof size` > 9)\"",
+    );
+    let r = s.sworn(&["check", "p.toml", "--data"]);
+    assert_eq!(r.code, 0, "{}\n{}", r.stderr, r.stdout);
+}
