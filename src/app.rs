@@ -32,6 +32,11 @@ impl Outcome {
 pub fn dispatch(command: Command) -> Result<Outcome> {
     match command {
         Command::Init { data, out } => init(&data, &out),
+        Command::Help { topic } => crate::guide::help(topic.as_deref()).map(|()| Outcome::Success),
+        Command::Completions { shell } => {
+            crate::guide::completions(shell);
+            Ok(Outcome::Success)
+        }
         Command::Check { plan, data } => check(&plan, data),
         Command::Seal { plan } => seal(&plan),
         Command::Amend { plan, reason } => amend(&plan, &reason),

@@ -5,7 +5,13 @@ use std::path::PathBuf;
 
 /// Execute pre-registered analysis plans and produce locked, verifiable reports.
 #[derive(Debug, Parser)]
-#[command(name = "sworn", version, about)]
+#[command(
+    name = "sworn",
+    version,
+    about,
+    disable_help_subcommand = true,
+    after_help = "A first session:\n  sworn init baseline.csv --out plan.toml   # a starter plan from your data\n  sworn check plan.toml --data              # fill the marks, then check\n  sworn seal plan.toml                      # deposit the printed fingerprint\n  sworn run plan.toml                       # once the outcome data are in\n  sworn verify out/plan                     # what a replicator runs\n\nMore: sworn help plan (the plan's sections), sworn help COMMAND."
+)]
 pub struct Cli {
     /// What to do.
     #[command(subcommand)]
@@ -16,6 +22,7 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Start a plan from data files: the declared schema inferred, the team's places marked.
+    #[command(after_help = "Example:\n  sworn init endline.csv baseline.parquet --out plan.toml")]
     Init {
         /// The data files (CSV or Parquet), one data table each.
         #[arg(required = true)]
@@ -25,6 +32,9 @@ pub enum Command {
         out: PathBuf,
     },
     /// Validate a plan; with --data also check its data files against the declared schema.
+    #[command(
+        after_help = "Examples:\n  sworn check plan.toml          # the plan alone\n  sworn check plan.toml --data   # also the data against the declared schema"
+    )]
     Check {
         /// The plan file (TOML).
         plan: PathBuf,
@@ -33,11 +43,17 @@ pub enum Command {
         data: bool,
     },
     /// Seal a plan: write its fingerprint as the first entry of its ledger.
+    #[command(
+        after_help = "Example:\n  sworn seal plan.toml   # prints the fingerprint to deposit with the registry"
+    )]
     Seal {
         /// The plan file.
         plan: PathBuf,
     },
     /// Record a changed plan in its ledger, with the reason for the change.
+    #[command(
+        after_help = "Example:\n  sworn amend plan.toml --reason \"the survey firm renamed column hh to hh_id\""
+    )]
     Amend {
         /// The plan file.
         plan: PathBuf,
@@ -46,6 +62,9 @@ pub enum Command {
         reason: String,
     },
     /// Run a plan: estimate everything and write report.md, report.tex and results.json.
+    #[command(
+        after_help = "Examples:\n  sworn run plan.toml                      # writes out/plan/\n  sworn run plan.toml --out results/main --strict"
+    )]
     Run {
         /// The plan file.
         plan: PathBuf,
@@ -57,14 +76,32 @@ pub enum Command {
         strict: bool,
     },
     /// Re-derive a run directory's outputs from its plan and data and check them.
+    #[command(
+        after_help = "Example:\n  sworn verify out/plan   # exit 0: re-derived byte for byte"
+    )]
     Verify {
         /// The run directory (holding results.json).
         dir: PathBuf,
     },
     /// Write the built-in demo plans and data, seal and run them.
+    #[command(after_help = "Example:\n  sworn demo --out /tmp/sworn-demo")]
     Demo {
         /// Where to write the demo (default sworn-demo/).
         #[arg(long)]
         out: Option<PathBuf>,
+    },
+    /// Explain a command, or a topic: `plan` (the plan's sections and where each is documented).
+    #[command(after_help = "Examples:\n  sworn help plan\n  sworn help run")]
+    Help {
+        /// A command name or `plan`; without it, the list of commands.
+        topic: Option<String>,
+    },
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
+    #[command(
+        after_help = "Example (bash):\n  sworn completions bash > ~/.local/share/bash-completion/completions/sworn"
+    )]
+    Completions {
+        /// The shell.
+        shell: clap_complete::Shell,
     },
 }

@@ -59,6 +59,12 @@ pub enum Error {
         /// What is wrong and what to do.
         message: String,
     },
+    /// The command line asked for something that does not exist (e.g. an unknown help topic).
+    #[error("{message}")]
+    Usage {
+        /// What is wrong and what to do.
+        message: String,
+    },
     /// A report template failed to render (a bug in a template, never user input).
     #[error("report template `{template}`: {message}")]
     Template {

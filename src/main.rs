@@ -7,7 +7,7 @@ fn main() {
     let code = match sworn::app::dispatch(cli.command) {
         Ok(outcome) => outcome.code(),
         Err(err) => {
-            eprintln!("error: {err}");
+            eprintln!("{} {err}", sworn::terminal::error_prefix());
             err.exit_code()
         }
     };
