@@ -6,7 +6,7 @@
 //! pre-registered one. The places only the study team can fill are marked `"<fill: …>"`;
 //! `sworn check` refuses a plan that still holds a mark (see [`crate::plan::unfilled`]).
 
-use crate::data::MISSING_TOKENS;
+use crate::data::dialect::{self, DEFAULT_MISSING};
 use crate::error::{Error, Result};
 use std::collections::BTreeSet;
 use std::fmt::Write as _;
@@ -40,6 +40,10 @@ pub struct TableProfile {
     pub rows: usize,
     /// SHA-256 of the file's bytes.
     pub sha256: String,
+    /// The CSV field separator found in the header line.
+    pub separator: u8,
+    /// Whether numbers use a decimal comma.
+    pub decimal_comma: bool,
     /// One profile per column, in file order.
     pub columns: Vec<ColumnProfile>,
 }
@@ -78,8 +82,10 @@ pub fn init(files: &[PathBuf], out: &Path) -> Result<()> {
 pub fn profile_file(file: &Path, plan_dir: &Path) -> Result<TableProfile> {
     let bytes = std::fs::read(file).map_err(|e| Error::io(file, "cannot read the data file", e))?;
     let sha256 = crate::ledger::sha256_hex(&bytes);
-    let columns = read_text_columns(file)?;
+    let separator = dialect::detect(file);
+    let columns = read_text_columns(file, separator)?;
     let rows = columns.first().map_or(0, |(_, v)| v.len());
+    let decimal_comma = separator != b',' && columns.iter().any(|(_, v)| uses_decimal_comma(v));
     let stem = file
         .file_stem()
         .map(|s| s.to_string_lossy().into_owned())
@@ -89,12 +95,17 @@ pub fn profile_file(file: &Path, plan_dir: &Path) -> Result<TableProfile> {
         path_text: relative_path(file, plan_dir),
         rows,
         sha256,
-        columns: columns.iter().map(|(n, v)| profile_column(n, v)).collect(),
+        separator,
+        decimal_comma,
+        columns: columns
+            .iter()
+            .map(|(n, v)| profile_column(n, v, decimal_comma))
+            .collect(),
     })
 }
 
 /// The file's columns as text (missing values as `None`).
-fn read_text_columns(file: &Path) -> Result<Vec<(String, Vec<Option<String>>)>> {
+fn read_text_columns(file: &Path, separator: u8) -> Result<Vec<(String, Vec<Option<String>>)>> {
     use polars::prelude::*;
     let ext = file
         .extension()
@@ -108,6 +119,7 @@ fn read_text_columns(file: &Path) -> Result<Vec<(String, Vec<Option<String>>)>> 
         "csv" => CsvReadOptions::default()
             .with_has_header(true)
             .with_infer_schema_length(Some(0))
+            .with_parse_options(CsvParseOptions::default().with_separator(separator))
             .try_into_reader_with_file_path(Some(file.to_path_buf()))
             .and_then(|r| r.finish()),
         "parquet" | "pq" => {
@@ -130,7 +142,12 @@ fn read_text_columns(file: &Path) -> Result<Vec<(String, Vec<Option<String>>)>> 
             )))
         }
     }
-    .map_err(|e| data_err(format!("cannot read the file: {}", first_line(&e.to_string()))))?;
+    .map_err(|e| {
+        data_err(format!(
+            "cannot read the file: {}",
+            dialect::reader_message(&e.to_string(), separator)
+        ))
+    })?;
     let mut out = Vec::new();
     for col in frame.columns() {
         let name = col.name().to_string();
@@ -145,7 +162,7 @@ fn read_text_columns(file: &Path) -> Result<Vec<(String, Vec<Option<String>>)>> 
             .map(|i| ca.get(i))
             .map(|v| {
                 v.map(str::trim)
-                    .filter(|s| !s.is_empty() && !MISSING_TOKENS.contains(s))
+                    .filter(|s| !s.is_empty() && !DEFAULT_MISSING.contains(s))
                     .map(String::from)
             })
             .collect();
@@ -159,15 +176,27 @@ fn first_line(s: &str) -> String {
     line.chars().take(200).collect()
 }
 
+/// Every value parses with a decimal comma and at least one only with it.
+fn uses_decimal_comma(values: &[Option<String>]) -> bool {
+    let present: Vec<&str> = values.iter().flatten().map(String::as_str).collect();
+    !present.is_empty()
+        && present
+            .iter()
+            .all(|s| dialect::parse_number(s, true).is_some())
+        && present
+            .iter()
+            .any(|s| dialect::parse_number(s, false).is_none())
+}
+
 /// Propose a kind for a column from its values.
-pub fn profile_column(name: &str, values: &[Option<String>]) -> ColumnProfile {
+pub fn profile_column(name: &str, values: &[Option<String>], decimal_comma: bool) -> ColumnProfile {
     let present: Vec<&str> = values.iter().flatten().map(String::as_str).collect();
     let missing = values.len() - present.len();
     let distinct = present.iter().collect::<BTreeSet<_>>().len();
     let key_candidate = missing == 0 && distinct == values.len() && !values.is_empty();
     let numbers: Option<Vec<f64>> = present
         .iter()
-        .map(|s| s.parse::<f64>().ok().filter(|x| x.is_finite()))
+        .map(|s| dialect::parse_number(s, decimal_comma))
         .collect();
     let looks_like_id = {
         let lower = name.to_ascii_lowercase();
@@ -327,6 +356,22 @@ pub fn starter_text(tables: &[TableProfile]) -> String {
 fn table_text(t: &mut String, table: &TableProfile) {
     let _ = writeln!(t, "\n[data.{}]", table.id);
     let _ = writeln!(t, "path = {}", quoted(&table.path_text));
+    if table.separator != b',' {
+        let _ = writeln!(
+            t,
+            "separator = {}   # found in the header line",
+            dialect::shown(table.separator)
+                .split(' ')
+                .next()
+                .unwrap_or("\",\"")
+        );
+    }
+    if table.decimal_comma {
+        let _ = writeln!(
+            t,
+            "decimal = \",\"   # numbers are written with a decimal comma"
+        );
+    }
     let _ = writeln!(
         t,
         "# {} rows read; state the rows you expect, e.g. rows = {{ min = …, max = … }}",
@@ -483,27 +528,39 @@ mod tests {
 
     #[test]
     fn kinds_follow_the_values() {
-        assert_eq!(profile_column("z", &col(&["0", "1", "1"])).kind, "binary");
-        assert_eq!(profile_column("hh_id", &col(&["4", "5", "6"])).kind, "id");
         assert_eq!(
-            profile_column("storeys", &col(&["1", "2", "2"])).kind,
+            profile_column("z", &col(&["0", "1", "1"]), false).kind,
+            "binary"
+        );
+        assert_eq!(
+            profile_column("hh_id", &col(&["4", "5", "6"]), false).kind,
+            "id"
+        );
+        assert_eq!(
+            profile_column("storeys", &col(&["1", "2", "2"]), false).kind,
             "integer"
         );
         assert_eq!(
-            profile_column("temp", &col(&["20.5", "21", ""])).kind,
+            profile_column("temp", &col(&["20.5", "21", ""]), false).kind,
             "number"
         );
-        assert_eq!(profile_column("code", &col(&["a1", "b2", "c3"])).kind, "id");
         assert_eq!(
-            profile_column("district", &col(&["n", "s", "n"])).kind,
+            profile_column("code", &col(&["a1", "b2", "c3"]), false).kind,
+            "id"
+        );
+        assert_eq!(
+            profile_column("district", &col(&["n", "s", "n"]), false).kind,
             "category"
         );
-        assert_eq!(profile_column("empty", &col(&["", ""])).kind, "category");
+        assert_eq!(
+            profile_column("empty", &col(&["", ""]), false).kind,
+            "category"
+        );
     }
 
     #[test]
     fn observed_facts_are_counted() {
-        let p = profile_column("temp", &col(&["20.5", "", "31"]));
+        let p = profile_column("temp", &col(&["20.5", "", "31"]), false);
         assert_eq!(p.missing, 1);
         assert_eq!(p.range, Some((20.5, 31.0)));
         assert!(!p.key_candidate);

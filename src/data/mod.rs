@@ -6,6 +6,7 @@
 //! missing; grouping columns (category, id, integer, binary) are also available as labels.
 
 mod design;
+pub mod dialect;
 mod read;
 
 pub use design::{design, Design};
@@ -56,6 +57,3 @@ impl Table {
             .collect()
     }
 }
-
-/// Tokens read as missing in text data, besides an empty field.
-pub const MISSING_TOKENS: [&str; 2] = ["NA", "."];

@@ -1,6 +1,6 @@
 //! Reading a table with polars and checking it against the declared schema.
 
-use super::{Table, MISSING_TOKENS};
+use super::Table;
 use crate::deviation::{Deviation, Severity};
 use crate::error::{Error, Result};
 use crate::plan::{Column, ColumnKind, DataFormat, DataSource, Plan};
@@ -27,10 +27,15 @@ fn read_frame(src: &DataSource) -> Result<DataFrame> {
             src.id, src.path_text
         )));
     }
+    if src.format == DataFormat::Csv {
+        super::dialect::check_separator(&src.path, &src.id, src.separator)
+            .map_err(|m| data_err(src, m))?;
+    }
     let frame = match src.format {
         DataFormat::Csv => CsvReadOptions::default()
             .with_has_header(true)
             .with_infer_schema_length(Some(0))
+            .with_parse_options(CsvParseOptions::default().with_separator(src.separator))
             .try_into_reader_with_file_path(Some(src.path.clone()))
             .and_then(|r| r.finish()),
         DataFormat::Parquet => std::fs::File::open(&src.path)
@@ -40,7 +45,11 @@ fn read_frame(src: &DataSource) -> Result<DataFrame> {
     frame.map_err(|e| {
         data_err(
             src,
-            format!("cannot read the file as {}: {e}", format_name(src.format)),
+            format!(
+                "cannot read the file as {}: {}",
+                format_name(src.format),
+                super::dialect::reader_message(&e.to_string(), src.separator)
+            ),
         )
     })
 }
@@ -70,7 +79,7 @@ fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<
         .map(|i| ca.get(i))
         .map(|v| {
             v.map(str::trim)
-                .filter(|s| !s.is_empty() && !MISSING_TOKENS.contains(s))
+                .filter(|s| !s.is_empty() && !src.missing.iter().any(|m| m == s))
                 .map(String::from)
         })
         .collect();
@@ -81,19 +90,29 @@ fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<
 fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Vec<Option<f64>>> {
     match raw {
         RawValues::Numbers(v) => Ok(v.into_iter().map(|x| x.filter(|x| x.is_finite())).collect()),
-        RawValues::Text(v) => v
-            .into_iter()
-            .enumerate()
-            .map(|(i, s)| match s {
-                None => Ok(None),
-                Some(s) => s.parse::<f64>().ok().filter(|x| x.is_finite()).map(Some).ok_or_else(|| {
-                    data_err(src, format!(
-                        "column `{name}` is declared numeric but row {} holds `{s}`; fix the value or declare the column as kind = \"category\"",
-                        i + 1
-                    ))
-                }),
-            })
-            .collect(),
+        RawValues::Text(v) => {
+            v.into_iter()
+                .enumerate()
+                .map(|(i, s)| match s {
+                    None => Ok(None),
+                    Some(s) => {
+                        super::dialect::parse_number(&s, src.decimal_comma)
+                            .map(Some)
+                            .ok_or_else(|| {
+                                data_err(
+                                    src,
+                                    format!(
+                        "column `{name}` is declared numeric but row {} holds `{}`; {}",
+                        i + 1,
+                        s.chars().take(80).collect::<String>(),
+                        super::dialect::not_a_number_advice(&s, src.decimal_comma, &src.missing)
+                    ),
+                                )
+                            })
+                    }
+                })
+                .collect()
+        }
     }
 }
 

@@ -208,6 +208,12 @@ pub struct DataSource {
     pub order_by: Option<String>,
     /// Largest acceptable share of rows lost to listwise deletion in any specification.
     pub max_missing_share: Option<f64>,
+    /// CSV field separator byte (`,` by default).
+    pub separator: u8,
+    /// Whether CSV numbers use a decimal comma.
+    pub decimal_comma: bool,
+    /// Text values read as missing (trimmed, exact match; an empty field is always missing).
+    pub missing: Vec<String>,
     /// Declared columns.
     pub columns: BTreeMap<String, Column>,
 }

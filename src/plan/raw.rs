@@ -160,6 +160,12 @@ pub struct RawData {
     pub order_by: Option<Spanned<String>>,
     /// Largest acceptable share of rows lost to listwise deletion.
     pub max_missing_share: Option<Spanned<f64>>,
+    /// CSV field separator: `","` (default), `";"`, a tab or `"|"`.
+    pub separator: Option<Spanned<String>>,
+    /// CSV decimal mark: `"."` (default) or `","`.
+    pub decimal: Option<Spanned<String>>,
+    /// The text values that mean missing (default: `""`, `"NA"`, `"."`).
+    pub missing: Option<Spanned<Vec<String>>>,
     /// Declared schema.
     #[serde(default)]
     pub columns: BTreeMap<Spanned<String>, Spanned<RawColumn>>,

@@ -277,6 +277,7 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
         Some(s) => Some(*s.get_ref()),
         None => None,
     };
+    let dialect = dialect(ctx, d, &key, format)?;
     Ok(DataSource {
         id: id.get_ref().clone(),
         path,
@@ -287,7 +288,84 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
         key: key_col,
         order_by,
         max_missing_share,
+        separator: dialect.separator,
+        decimal_comma: dialect.decimal_comma,
+        missing: dialect.missing,
         columns,
+    })
+}
+
+/// A table's declared CSV dialect and missing-value codes.
+struct Dialect {
+    separator: u8,
+    decimal_comma: bool,
+    missing: Vec<String>,
+}
+
+fn dialect(
+    ctx: &Ctx,
+    d: &RawData,
+    key: &dyn Fn(&str) -> String,
+    format: DataFormat,
+) -> Result<Dialect> {
+    use crate::data::dialect::{DEFAULT_MISSING, SEPARATORS};
+    if format == DataFormat::Parquet {
+        for (k, v) in [("separator", &d.separator), ("decimal", &d.decimal)] {
+            if let Some(v) = v {
+                return Err(ctx.at(v, key(k), format!(
+                    "`{k}` applies to CSV files only; a Parquet file stores its own types: remove the key"
+                )));
+            }
+        }
+    }
+    let separator = match &d.separator {
+        None => b',',
+        Some(v) => match SEPARATORS.iter().find(|(text, _, _)| *text == v.get_ref()) {
+            Some((_, byte, _)) => *byte,
+            None => {
+                let list: Vec<String> = SEPARATORS
+                    .iter()
+                    .map(|(_, _, shown)| shown.to_string())
+                    .collect();
+                return Err(ctx.at(
+                    v,
+                    key("separator"),
+                    format!(
+                        "`{}` is not a separator sworn reads; use one of {}",
+                        v.get_ref().chars().take(20).collect::<String>(),
+                        list.join(", ")
+                    ),
+                ));
+            }
+        },
+    };
+    let decimal_comma = match &d.decimal {
+        None => false,
+        Some(v) => {
+            ctx.one_of(v, &key("decimal"), &[".", ","])?;
+            v.get_ref() == ","
+        }
+    };
+    if decimal_comma && separator == b',' {
+        let at = d.decimal.as_ref().map_or(0..0, |v| v.span());
+        return Err(ctx.err(at, key("decimal"), "a decimal comma needs another field separator; set separator = \";\" (the usual pairing) or a tab"));
+    }
+    let missing = match &d.missing {
+        None => DEFAULT_MISSING.iter().map(|s| s.to_string()).collect(),
+        Some(v) => {
+            if let Some(bad) = v.get_ref().iter().find(|s| s.trim() != s.as_str()) {
+                return Err(ctx.at(v, key("missing"), format!(
+                    "missing-value code `{}` has spaces around it; values are trimmed before they are compared, so write it without them",
+                    bad.chars().take(80).collect::<String>()
+                )));
+            }
+            v.get_ref().clone()
+        }
+    };
+    Ok(Dialect {
+        separator,
+        decimal_comma,
+        missing,
     })
 }
 
