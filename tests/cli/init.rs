@@ -56,22 +56,7 @@ fn check_refuses_the_marks_then_accepts_the_filled_plan() {
         "{}",
         r.stderr
     );
-    s.edit(
-        "starter.toml",
-        "\"<fill: the study's title>\"",
-        "\"Starter\"",
-    );
-    s.edit(
-        "starter.toml",
-        "\"<fill: what this specification estimates>\"",
-        "\"Main\"",
-    );
-    s.edit("starter.toml", "\"<fill: the outcome column>\"", "\"y\"");
-    s.edit(
-        "starter.toml",
-        "\"<fill: the treatment or exposure column>\"",
-        "\"d\"",
-    );
+    fill_marks(&s, "starter.toml", "\"d\"");
     let r = s.sworn(&["check", "starter.toml", "--data"]);
     assert_eq!(r.code, 0, "{}\n{}", r.stderr, r.stdout);
     assert!(
@@ -126,6 +111,19 @@ fn two_tables_ask_which_one_a_specification_uses() {
     );
 }
 
+/// Fill the starter plan's marks: a title, `y` as outcome and `regressor` (TOML text, quotes
+/// included) as the regressor.
+fn fill_marks(s: &Study, plan: &str, regressor: &str) {
+    for (mark, value) in [
+        ("\"<fill: the study's title>\"", "\"Starter\""),
+        ("\"<fill: what this specification estimates>\"", "\"Main\""),
+        ("\"<fill: the outcome column>\"", "\"y\""),
+        ("\"<fill: the treatment or exposure column>\"", regressor),
+    ] {
+        s.edit(plan, mark, value);
+    }
+}
+
 fn sha256_hex(bytes: &[u8]) -> String {
     sworn::ledger::sha256_hex(bytes)
 }
@@ -134,20 +132,10 @@ fn sha256_hex(bytes: &[u8]) -> String {
 fn a_column_name_with_a_space_is_usable_in_expressions_between_backticks() {
     let s = Study::with("", &data_csv().replacen(",x,", ",roof size,", 1));
     assert_eq!(s.sworn(&["init", "data.csv", "--out", "p.toml"]).code, 0);
+    fill_marks(&s, "p.toml", "\"d\"");
     s.edit(
         "p.toml",
-        "\"<fill: the study's title>\"",
-        "\"Quoted names\"",
-    );
-    s.edit(
-        "p.toml",
-        "\"<fill: what this specification estimates>\"",
-        "\"Main\"",
-    );
-    s.edit("p.toml", "\"<fill: the outcome column>\"", "\"y\"");
-    s.edit(
-        "p.toml",
-        "regressors = [\"<fill: the treatment or exposure column>\"]",
+        "regressors = [\"d\"]",
         "regressors = [\"d\"]\nsample = \"`roof size` > 1 and not (`roof size` > 9)\"",
     );
     let r = s.sworn(&["check", "p.toml", "--data"]);
