@@ -4,6 +4,7 @@ mod bad_input;
 mod common;
 mod contingency;
 mod deviations;
+mod hac;
 mod happy;
 mod nist;
 mod reference;
