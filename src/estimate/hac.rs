@@ -44,19 +44,21 @@ pub(crate) fn hac_meat(
 ) -> Result<DMatrix<f64>, EstimateError> {
     let (n, k) = scores.shape();
     check(n, positions, bandwidth)?;
-    let mut meat = scores.transpose() * scores;
-    let mut cross = DMatrix::zeros(k, k);
+    // Row i of `ahead` is Σ_{j > i} k(dᵢⱼ/b) sⱼ, so the lagged terms are Sᵀ·ahead.
+    let mut ahead = DMatrix::zeros(n, k);
     for i in 0..n {
         for j in (i + 1)..n {
             let w = bartlett(positions[j] - positions[i], bandwidth);
             if w == 0.0 {
                 break;
             }
-            cross += scores.row(i).transpose() * scores.row(j) * w;
+            for c in 0..k {
+                ahead[(i, c)] += w * scores[(j, c)];
+            }
         }
     }
-    meat += &cross + cross.transpose();
-    Ok(meat)
+    let cross = scores.transpose() * ahead;
+    Ok(scores.transpose() * scores + &cross + cross.transpose())
 }
 
 fn check(n: usize, positions: &[usize], bandwidth: f64) -> Result<(), EstimateError> {

@@ -12,6 +12,7 @@ Where each expected value comes from:
     (the factor n/(n-k)); asserted equal to a direct numpy sandwich.
   * 2SLS HAC covariance: linearmodels IV2SLS cov_type="kernel", kernel="bartlett",
     bandwidth=L, debiased=True; asserted equal to a direct numpy sandwich on X-hat.
+  * LIML HAC covariance: linearmodels IVLIML cov_type="kernel", bandwidth=L, debiased=True.
   * First-stage robust F and Anderson-Rubin at beta0 = 0: statsmodels OLS with HAC and
     wald_test(use_f=True), i.e. Wald/q.
   * Hansen's J with a HAC weight: two-step GMM written out in numpy (Omega from the 2SLS
@@ -34,7 +35,7 @@ import linearmodels
 import numpy as np
 import statsmodels
 import statsmodels.api as sm
-from linearmodels.iv import IV2SLS, IVGMM
+from linearmodels.iv import IV2SLS, IVGMM, IVLIML
 
 SEED = 20261203
 OUT = os.path.join(os.path.dirname(__file__), "fixtures", "hac.json")
@@ -129,6 +130,13 @@ def main():
     assert np.allclose(lm_cov, direct, rtol=1e-9, atol=0)
     expected["tsls_coef"] = params.tolist()
     expected["tsls_cov"] = lm_cov.tolist()
+
+    # LIML with the same kernel (linearmodels IVLIML, debiased).
+    liml = IVLIML(y, exog, x[:, None], np.column_stack([z1, z2])).fit(
+        cov_type="kernel", kernel="bartlett", bandwidth=lags, debiased=True
+    )
+    expected["liml_coef"] = np.asarray(liml.params)[order].tolist()
+    expected["liml_cov"] = np.asarray(liml.cov)[np.ix_(order, order)].tolist()
 
     # First stage: x on [z1, z2, w, 1], robust F of the instruments (Wald/2).
     fs = sm.OLS(x, Z).fit(cov_type="HAC", cov_kwds={"maxlags": lags, "use_correction": True})

@@ -1,6 +1,6 @@
 //! HAC (Bartlett kernel) errors against `tests/reference/fixtures/hac.json`, written by
 //! `tests/reference/hac.py`: statsmodels OLS HAC (use_correction), linearmodels IV2SLS
-//! kernel covariance (debiased), statsmodels Wald tests for the first-stage robust F and
+//! and IVLIML kernel covariances (debiased), statsmodels Wald tests for the first-stage robust F and
 //! Anderson–Rubin, two-step GMM J (numpy, equal to linearmodels IVGMM), the dropped-rows
 //! convention (numpy) and the Newey–West (1994) bandwidth rule (numpy, from the paper).
 
@@ -9,7 +9,8 @@ use serde_json::Value;
 
 use super::{load, Tracker};
 use crate::estimate::{
-    anderson_rubin, first_stages, hansen_j, newey_west_1994_bandwidth, ols, tsls, Absorbed, CovSpec,
+    anderson_rubin, first_stages, hansen_j, kclass, newey_west_1994_bandwidth, ols, tsls, Absorbed,
+    CovSpec, KClass,
 };
 
 fn matrix_entries(t: &mut Tracker, what: &str, got: &DMatrix<f64>, expected: &Value) {
@@ -48,6 +49,10 @@ fn hac_matches_statsmodels_and_linearmodels() {
     let iv = tsls(&y, &exog, &endog, &z, true, &cov, &none).expect("2sls");
     t.vector("2sls coef", &iv.coef, &ex["tsls_coef"]);
     matrix_entries(&mut t, "2sls cov", &iv.cov, &ex["tsls_cov"]);
+
+    let liml = kclass(&y, &exog, &endog, &z, true, &cov, KClass::Liml, &none).expect("liml");
+    t.vector("liml coef", &liml.fit.coef, &ex["liml_coef"]);
+    matrix_entries(&mut t, "liml cov", &liml.fit.cov, &ex["liml_cov"]);
 
     let stage = &first_stages(&exog, &endog, &z, true, &cov, &none).expect("first stage")[0];
     matrix_entries(
