@@ -75,6 +75,23 @@ pub struct DataInfo {
     pub rows: usize,
 }
 
+/// How HAC errors were computed.
+#[derive(Debug, Clone, Serialize)]
+pub struct HacResult {
+    /// "bartlett".
+    pub kernel: &'static str,
+    /// Bandwidth b: rows d apart get weight 1 − d/b.
+    pub bandwidth: f64,
+    /// "stated" (in the plan) | "newey-west-1994" (chosen from the data).
+    pub bandwidth_rule: &'static str,
+    /// Lags with a positive weight (the largest d below b).
+    pub lags: usize,
+    /// The column whose order the lags follow.
+    pub order_by: String,
+    /// The small-sample factor applied to the sandwich.
+    pub small_sample_factor: &'static str,
+}
+
 /// One coefficient.
 #[derive(Debug, Clone, Serialize)]
 pub struct Term {
@@ -376,6 +393,8 @@ pub struct SpecResult {
     pub cluster_by: Option<Vec<String>>,
     /// Number of clusters.
     pub clusters: Option<usize>,
+    /// Kernel and bandwidth of HAC errors (`errors = "hac"` only).
+    pub hac: Option<HacResult>,
     /// "t" | "normal".
     pub distribution: &'static str,
     /// Degrees of freedom of coefficient tests (t only).

@@ -5,6 +5,7 @@
 //! a run's outputs byte for byte with the same function.
 
 mod contingency;
+mod hac;
 mod hypotheses;
 mod integrity;
 mod progress;

@@ -290,7 +290,19 @@ pub fn fit_spec(
     let mut deviations = Vec::new();
     let d = absorbed_columns(spec, d, &mut deviations)?;
     let p = parts(spec, &d)?;
-    let cov = cov_spec(spec, &d);
+    let scores = super::hac::Scores {
+        y: &d.y,
+        exog: &p.exog,
+        exog_names: &p.exog_names,
+        focal: &p.focal,
+        instruments: &p.instruments,
+        has_constant: d.has_constant,
+        absorbed: &d.absorbed,
+    };
+    let (cov, hac) = match super::hac::resolve(spec, table, &d, &scores, spec.estimator.is_iv())? {
+        Some((cov, record)) => (cov, Some(record)),
+        None => (cov_spec(spec, &d), None),
+    };
     let has_c = d.has_constant;
     let ab = &d.absorbed;
     let err = |e| map_estimate_error(spec, e);
@@ -368,6 +380,7 @@ pub fn fit_spec(
             _ => None,
         },
         clusters: fit.clusters,
+        hac,
         distribution: match spec.distribution {
             Distribution::T => "t",
             Distribution::Normal => "normal",

@@ -42,6 +42,12 @@ fn cov_for(errors: &Errors, table: &Table, rows: &[usize], what: &str) -> Result
         Errors::Hc1 => CovSpec::Hc1,
         Errors::Hc2 => CovSpec::Hc2,
         Errors::Hc3 => CovSpec::Hc3,
+        Errors::Hac { .. } => {
+            return Err(err(
+                what,
+                "hac errors are offered for specifications only".to_string(),
+            ))
+        }
         Errors::Cluster(by) => {
             let mut dims = Vec::new();
             for b in by {

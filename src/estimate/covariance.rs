@@ -22,12 +22,17 @@
 //!   has a negative eigenvalue, the eigenvalues are clamped at zero and V is rebuilt from its
 //!   eigenvectors, the fix CGM (2011, section 2.3) propose. `clusters` reports min(G_A, G_B).
 //!
+//! * HAC (Newey and West 1987, Econometrica 55), Bartlett kernel over the observations'
+//!   time positions (module `hac`): A = Σᵢ Σⱼ k(|pᵢ − pⱼ|/b) sᵢ sⱼᵀ with sᵢ = qᵢ uᵢ, and
+//!   the HC1 factor c = n/(n − k).
+//!
 //! For 2SLS the design is X̂ (first-stage fitted regressors) and u the structural residuals.
 
 use std::collections::HashMap;
 
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
+use super::hac::hac_meat;
 use super::qr::PivotedQr;
 use super::{Absorbed, EstimateError};
 
@@ -56,6 +61,13 @@ pub enum CovSpec {
         /// Second clustering dimension, one dense 0-based index per observation.
         second: Vec<usize>,
     },
+    /// Heteroskedasticity and autocorrelation consistent, Bartlett kernel (module `hac`).
+    Hac {
+        /// Position of each observation in time order, strictly increasing.
+        positions: Vec<usize>,
+        /// Bandwidth b: observations d apart get weight 1 − d/b (b ≥ 1).
+        bandwidth: f64,
+    },
 }
 
 impl CovSpec {
@@ -69,6 +81,7 @@ impl CovSpec {
             CovSpec::Hc3 => "hc3",
             CovSpec::Cluster { .. } => "cluster",
             CovSpec::TwoWay { .. } => "two-way cluster",
+            CovSpec::Hac { .. } => "hac",
         }
     }
 }
@@ -136,6 +149,13 @@ pub(crate) fn covariance(
                 cov,
                 clusters: Some(g),
             })
+        }
+        CovSpec::Hac {
+            positions,
+            bandwidth,
+        } => {
+            let meat = hac_meat(&scores(&qr.thin_q(), resid), positions, *bandwidth)?;
+            Ok(plain(sandwich(meat, n as f64 / (n - k) as f64)))
         }
         CovSpec::TwoWay { first, second } => {
             let scores = scores(&qr.thin_q(), resid);

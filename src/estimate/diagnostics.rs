@@ -14,6 +14,7 @@
 use nalgebra::{Cholesky, DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Leverage};
+use super::hac::hac_meat;
 use super::linear::{
     assemble, hcat, instrument_qr, iv_setup, least_squares, require_observations, tsls_from,
     validate, IvSetup, LeastSquares,
@@ -418,7 +419,8 @@ fn moment_meat(
 /// # Formula
 /// Step 1 is 2SLS, with residuals u. With Z = [instruments | exog] (L columns) and
 /// Ω = Σᵢ uᵢ² zᵢ zᵢᵀ (heteroskedasticity-robust), or Ω = Σ_g (Σ_{i∈g} zᵢ uᵢ)(Σ_{i∈g} zᵢ uᵢ)ᵀ
-/// for `CovSpec::Cluster`, step 2 is b = argmin_β (Z'(y − Xβ))ᵀ Ω^{-1} Z'(y − Xβ) and
+/// for `CovSpec::Cluster`, or the Bartlett-weighted Σᵢ Σⱼ k(|pᵢ − pⱼ|/b) zᵢ uᵢ uⱼ zⱼᵀ for
+/// `CovSpec::Hac` (module `hac`), step 2 is b = argmin_β (Z'(y − Xβ))ᵀ Ω^{-1} Z'(y − Xβ) and
 /// J = (Z'e)ᵀ Ω^{-1} Z'e at e = y − X b, i.e. n·ḡᵀ S^{-1} ḡ with ḡ = Z'e/n, S = Ω/n; chi²(q − p).
 ///
 /// Conventions: Ω is evaluated at the step-1 (2SLS) residuals, is not centered (the mean of
@@ -474,7 +476,19 @@ pub fn hansen_j(
     )?
     .resid;
     let q = setup.zqr.thin_q();
-    let omega = moment_meat(&q, &u, ids)?;
+    let omega = match cov {
+        CovSpec::Hac {
+            positions,
+            bandwidth,
+        } => {
+            let mut scores = q.clone();
+            for (i, ui) in u.iter().enumerate() {
+                scores.row_mut(i).scale_mut(*ui);
+            }
+            hac_meat(&scores, positions, *bandwidth)?
+        }
+        _ => moment_meat(&q, &u, ids)?,
+    };
     let singular = EstimateError::SingularMomentCovariance { moments: l };
     let max_diag = omega.diagonal().max();
     let chol = Cholesky::new(omega).ok_or(singular.clone())?;

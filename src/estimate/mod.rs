@@ -31,6 +31,7 @@ mod absorb;
 mod anderson_rubin;
 mod covariance;
 mod diagnostics;
+mod hac;
 mod kclass;
 mod linear;
 mod qr;
@@ -61,6 +62,7 @@ pub use diagnostics::{
     endogeneity, first_stages, hansen_j, overidentification, reduced_form, Endogeneity, FirstStage,
     Overidentification,
 };
+pub use hac::{bartlett_lags, newey_west_1994_bandwidth, NEWEY_WEST_1994_BARTLETT_C};
 pub use kclass::{kclass, KClass, KClassFit, DEFAULT_FULLER_ALPHA};
 pub use linear::{ols, tsls};
 pub use qr::collinear_columns;
@@ -181,6 +183,14 @@ pub enum EstimateError {
         /// Number of moment conditions (instruments, exog included).
         moments: usize,
     },
+    /// HAC positions not strictly increasing, or a bandwidth below 1.
+    #[error("hac errors need strictly increasing time positions and a bandwidth of at least 1")]
+    HacPositions,
+    /// The automatic HAC bandwidth has no value (no variation in the weighted scores).
+    #[error(
+        "the automatic hac bandwidth is undefined: the weighted scores have no long-run variance"
+    )]
+    HacBandwidthUndefined,
     /// The covariance block of a Wald test is singular.
     #[error("the covariance of coefficients {indices:?} is singular")]
     SingularCovariance {

@@ -10,6 +10,7 @@
 //! Invariant: a missing fixture is a failure (they are committed with the crate).
 
 mod fixed_effects;
+mod hac;
 mod iv;
 mod plan;
 

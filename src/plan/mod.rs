@@ -10,6 +10,7 @@ mod source;
 mod suggest;
 pub mod unfilled;
 mod validate;
+mod validate_hac;
 mod validate_rules;
 mod validate_spec;
 mod validate_summaries;
@@ -344,6 +345,23 @@ pub enum Errors {
     Hc3,
     /// Cluster-robust (CR1) by one variable, or two-way by two.
     Cluster(Vec<String>),
+    /// Heteroskedasticity-and-autocorrelation-consistent (Bartlett kernel) over the rows in
+    /// the table's `order_by` order.
+    Hac {
+        /// The table's `order_by` column (its values must not repeat in the rows used).
+        order_by: String,
+        /// How the bandwidth is set.
+        bandwidth: HacBandwidth,
+    },
+}
+
+/// The bandwidth of HAC errors: lag d gets the Bartlett weight 1 − d/b.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum HacBandwidth {
+    /// b stated in the plan (an integer, at least 1).
+    Stated(u32),
+    /// b chosen from the data by the Newey–West (1994) rule for the Bartlett kernel.
+    NeweyWest1994,
 }
 
 impl Errors {
@@ -356,6 +374,7 @@ impl Errors {
             Errors::Hc2 => "hc2",
             Errors::Hc3 => "hc3",
             Errors::Cluster(_) => "cluster",
+            Errors::Hac { .. } => "hac",
         }
     }
 }

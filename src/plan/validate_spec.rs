@@ -291,11 +291,14 @@ pub(super) fn errors_value(
     };
     let plain = ["classical", "hc0", "hc1", "hc2", "hc3"];
     let bad = || {
-        ctx.at(v, key, "errors must be one of \"classical\", \"hc0\", \"hc1\", \"hc2\", \"hc3\", or { kind = \"cluster\", by = \"COLUMN\" }")
+        ctx.at(v, key, "errors must be one of \"classical\", \"hc0\", \"hc1\", \"hc2\", \"hc3\", { kind = \"cluster\", by = \"COLUMN\" }, or { kind = \"hac\", bandwidth = 4 }")
     };
     let (kind, by) = match v.get_ref() {
         toml::Value::String(k) => (k.clone(), None),
         toml::Value::Table(t) => {
+            if t.get("kind").and_then(toml::Value::as_str) == Some("hac") {
+                return super::validate_hac::hac(ctx, v, t, table, key);
+            }
             if let Some(extra) = t.keys().find(|k| *k != "kind" && *k != "by") {
                 return Err(ctx.at(
                     v,
@@ -314,13 +317,16 @@ pub(super) fn errors_value(
         _ => return Err(bad()),
     };
     if kind != "cluster" {
+        if kind == "hac" {
+            return Err(ctx.at(v, key, "hac errors need a bandwidth: errors = { kind = \"hac\", bandwidth = 4 } (or bandwidth = \"newey-west-1994\")"));
+        }
         if !plain.contains(&kind.as_str()) {
             return Err(ctx.at(
                 v,
                 key,
                 format!(
                     "unknown error kind `{kind}`{}",
-                    hint(&kind, plain.iter().copied().chain(["cluster"]))
+                    hint(&kind, plain.iter().copied().chain(["cluster", "hac"]))
                 ),
             ));
         }

@@ -6,7 +6,7 @@ use super::raw::RawPlan;
 use super::suggest::hint;
 use super::validate::{available, expr_error, Ctx};
 use super::validate_spec::{errors_value, unique, unknown};
-use super::{Attrition, Balance, DataSource, Index, IndexMethod, Plan};
+use super::{Attrition, Balance, DataSource, Errors, Index, IndexMethod, Plan};
 use crate::error::Result;
 use crate::expr;
 use std::collections::BTreeSet;
@@ -249,7 +249,7 @@ pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Ba
         data: t.id.clone(),
         by,
         covariates,
-        errors: errors_value(ctx, b.errors.as_ref(), t, "balance.errors")?,
+        errors: summary_errors(ctx, b.errors.as_ref(), t, "balance.errors")?,
     }))
 }
 
@@ -281,6 +281,24 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         by,
         observed,
         bounds,
-        errors: errors_value(ctx, a.errors.as_ref(), t, "attrition.errors")?,
+        errors: summary_errors(ctx, a.errors.as_ref(), t, "attrition.errors")?,
     }))
+}
+
+/// An `errors` value for balance or attrition, where HAC errors have no time order to use.
+fn summary_errors(
+    ctx: &Ctx,
+    v: Option<&toml::Spanned<toml::Value>>,
+    t: &DataSource,
+    key: &str,
+) -> Result<Errors> {
+    let e = errors_value(ctx, v, t, key)?;
+    match (&e, v) {
+        (Errors::Hac { .. }, Some(v)) => Err(ctx.at(
+            v,
+            key,
+            "hac errors are offered for specifications only; use classical, hc0-hc3 or cluster errors here",
+        )),
+        _ => Ok(e),
+    }
 }

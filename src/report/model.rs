@@ -494,7 +494,10 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
             .iter()
             .map(|s| match (&s.cluster_by, s.clusters) {
                 (Some(by), Some(g)) => format!("cluster {} ({g})", by.join("×")),
-                _ => s.errors.to_uppercase(),
+                _ => match &s.hac {
+                    Some(h) => format!("HAC (b = {})", bandwidth_text(h.bandwidth)),
+                    None => s.errors.to_uppercase(),
+                },
             })
             .collect(),
         stars: t.stars,
@@ -507,6 +510,9 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
         format!("standard errors: {}{}; tests use {}{}", r.errors, match (&r.cluster_by, r.clusters) { (Some(b), Some(g)) => format!(" by {} ({g} clusters)", b.join(", ")), _ => String::new() }, r.distribution, r.df.map_or(String::new(), |d| format!(" with {d} df"))),
         format!("R² {} · residual SD {} · {:.0}% intervals", num(r.r_squared), num(r.residual_sd), 100.0 * r.confidence),
     ];
+    if let Some(h) = &r.hac {
+        facts.push(hac_fact(h));
+    }
     if !r.fixed_effects.is_empty() {
         facts.push(format!(
             "absorbed fixed effects (alternating projections): {}; they use {} degrees of freedom, counted in the residual df{} · within R² {}{}",
@@ -697,9 +703,33 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
     }
 }
 
+/// A HAC bandwidth: whole numbers as stated, others to the usual precision.
+fn bandwidth_text(b: f64) -> String {
+    if b.fract() == 0.0 && b < 1e9 {
+        format!("{}", b as u64)
+    } else {
+        num(b)
+    }
+}
+
+/// How HAC errors were computed, in one sentence.
+fn hac_fact(h: &crate::results::HacResult) -> String {
+    let rule = match h.bandwidth_rule {
+        "stated" => "stated in the plan",
+        _ => {
+            "chosen from the data by the Newey–West (1994) rule, on the scores of a preliminary fit"
+        }
+    };
+    format!(
+        "autocorrelation: Bartlett kernel over the rows in `{}` order with bandwidth b = {} ({rule}), so rows d ≤ {} apart are weighted 1 − d/b; a row missing from the sample keeps its place; sandwich scaled by {}",
+        h.order_by, bandwidth_text(h.bandwidth), h.lags, h.small_sample_factor
+    )
+}
+
 fn robust_name(r: &SpecResult) -> &'static str {
     match r.errors {
         "cluster" => "cluster-robust",
+        "hac" => "heteroskedasticity-and-autocorrelation-robust",
         _ => "heteroskedasticity-robust",
     }
 }
@@ -723,6 +753,8 @@ fn df_convention(r: &SpecResult) -> String {
             r.absorbed_df - r.absorbed_nested_df
         ),
         "cluster" => " · CR1 factor G/(G − 1)·(n − 1)/(n − K)".to_string(),
+        "hac" if r.absorbed_df > 0 => " · HAC factor n/(n − K − absorbed)".to_string(),
+        "hac" => " · HAC factor n/(n − K)".to_string(),
         _ => String::new(),
     };
     let coef = match (r.distribution, r.df) {

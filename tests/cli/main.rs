@@ -6,6 +6,7 @@ mod contingency;
 mod deviations;
 mod dialects;
 mod guide;
+mod hac;
 mod happy;
 mod init;
 mod nist;

@@ -9,7 +9,8 @@
 //! computed once (thin Q of W); a draw costs O(n·(|W|·L + L²)). The conventions (df,
 //! small-sample factors, absorbed coefficients) are those of `covariance`: k = |W| + L + a.
 //! Two-way clustering clamps eigenvalues of the whole covariance matrix, which the Z-block
-//! alone does not determine, so there each draw refits [Z | W] in full with `ols`.
+//! alone does not determine, so there (and for HAC errors, whose meat lives in module `hac`)
+//! each draw refits [Z | W] in full with `ols`.
 
 use nalgebra::{DMatrix, DVector};
 
@@ -113,7 +114,7 @@ impl Partialled {
                 }
                 Kind::Cluster { ids, g }
             }
-            CovSpec::TwoWay { .. } => Kind::TwoWay(cov.clone()),
+            CovSpec::TwoWay { .. } | CovSpec::Hac { .. } => Kind::TwoWay(cov.clone()),
         };
         let h_fixed = (0..n)
             .map(|i| {
@@ -230,7 +231,7 @@ impl Partialled {
         Some((g, Some(&t * meat * t.transpose())))
     }
 
-    /// The two-way fallback: OLS of y on [Z | W] with the full covariance.
+    /// The two-way and HAC fallback: OLS of y on [Z | W] with the full covariance.
     fn fit_full(&self, z: &DMatrix<f64>, spec: &CovSpec) -> Option<ZFit> {
         let (n, l) = z.shape();
         let mut x = DMatrix::zeros(n, l + self.w.ncols());
