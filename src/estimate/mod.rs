@@ -34,6 +34,7 @@ mod diagnostics;
 mod kclass;
 mod linear;
 mod qr;
+mod quadratic_meat;
 mod refine;
 mod resample;
 mod summaries;
