@@ -18,6 +18,7 @@ use crate::error::Result;
 use crate::ledger::{Ledger, PlanPrint, TOOL_VERSION};
 use crate::plan::Plan;
 use crate::results::{DataInfo, PlanInfo, Results, Tool};
+use rayon::prelude::*;
 use std::collections::BTreeMap;
 use std::path::{Component, Path, PathBuf};
 
@@ -83,14 +84,23 @@ pub fn execute(
     let _progress = (resampling && std::io::IsTerminal::is_terminal(&std::io::stderr()))
         .then(progress::Progress::start);
     let none = spec::Needs::default();
-    for s in &plan.specifications {
-        let source = &plan.data[&s.data];
-        let need = needs.get(&s.id).unwrap_or(&none);
-        let rc = spec::ResampleContext {
-            assignment: plan.assignment.as_ref(),
-            resampling: plan.resampling,
-        };
-        let mut f = spec::fit_spec(s, &tables[&s.data], source, need, &rc)?;
+    // Specifications are independent: fit them on all cores, then take the results (and the
+    // first error) in plan order, so the output does not depend on which finished first.
+    let fits: Vec<Result<spec::Fitted>> = plan
+        .specifications
+        .par_iter()
+        .map(|s| {
+            let source = &plan.data[&s.data];
+            let need = needs.get(&s.id).unwrap_or(&none);
+            let rc = spec::ResampleContext {
+                assignment: plan.assignment.as_ref(),
+                resampling: plan.resampling,
+            };
+            spec::fit_spec(s, &tables[&s.data], source, need, &rc)
+        })
+        .collect();
+    for (s, f) in plan.specifications.iter().zip(fits) {
+        let mut f = f?;
         spec_deviations(
             plan,
             s,

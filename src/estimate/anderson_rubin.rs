@@ -50,7 +50,10 @@
 //!   points beside it are refined. Guarantee: every boundary point separated from the others
 //!   by more than a grid cell (π/[`GRID`] in θ) is found to full precision, as is every pair
 //!   straddling a grid-visible extremum; a pair of boundary points within one cell with no
-//!   grid-visible extremum (a sliver narrower than the cell) can be missed.
+//!   grid-visible extremum (a sliver narrower than the cell) can be missed. Except for
+//!   two-way clusters, V is evaluated at each point from its exact quadratic form in
+//!   (cos θ, sin θ), built once in one pass over the rows (module `quadratic_meat`), so a
+//!   point costs O(k³) whatever n; two-way V is recomputed from the residuals at each point.
 //! * Evaluation points where V(β) is singular (u(β) = 0: an exact fit) count as rejected.
 
 use nalgebra::{DMatrix, DVector};
@@ -58,6 +61,7 @@ use nalgebra::{DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Covariance, Leverage};
 use super::linear::{iv_setup, require_observations};
 use super::qr::PivotedQr;
+use super::quadratic_meat::{quadratic_meat, QuadraticMeat};
 use super::refine::residual;
 use super::wald::wald;
 use super::{Absorbed, EstimateError};
@@ -294,11 +298,13 @@ impl<'a> Problem<'a> {
     /// AR in the homogeneous form: residuals cy·ũ_y − cx·ũ_x and coefficients likewise,
     /// for the (centred, scaled) basis `basis`; +∞ where V is singular.
     fn ar_direction(&self, basis: &Basis, cy: f64, cx: f64) -> Result<f64, EstimateError> {
-        let resid = &basis.e_y * cy - &basis.e_x * cx;
         let coef = &basis.coef_y * cy - &basis.coef_x * cx;
-        let v = self.covariance(&resid)?;
+        let v = match &basis.meat {
+            Some(meat) => meat.covariance(cy, cx),
+            None => self.covariance(&(&basis.e_y * cy - &basis.e_x * cx))?.cov,
+        };
         let indices: Vec<usize> = (0..self.l).collect();
-        match wald(&coef, &v.cov, &indices) {
+        match wald(&coef, &v, &indices) {
             Ok(w) => Ok(w / self.l as f64),
             Err(EstimateError::SingularCovariance { .. }) => Ok(f64::INFINITY),
             Err(e) => Err(e),
@@ -356,7 +362,7 @@ impl<'a> Problem<'a> {
     }
 
     /// The 2SLS-type centre and scale for the numerical search.
-    fn basis(&self) -> Basis {
+    fn basis(&self) -> Result<Basis, EstimateError> {
         let rxx = self.r_x.norm_squared();
         let centre = self.r_x.dot(&self.r_y) / rxx;
         let (centre, scale) = if rxx > 0.0 && centre.is_finite() {
@@ -376,19 +382,30 @@ impl<'a> Problem<'a> {
                 1.0
             }
         };
-        Basis {
+        let e_y = &self.e_y - &self.e_x * centre;
+        let e_x = &self.e_x * scale;
+        let meat = quadratic_meat(
+            &self.zqr,
+            &e_y,
+            &e_x,
+            self.spec,
+            Leverage::Allowed,
+            self.absorbed,
+        )?;
+        Ok(Basis {
             centre,
             scale,
-            e_y: &self.e_y - &self.e_x * centre,
-            e_x: &self.e_x * scale,
+            e_y,
+            e_x,
             coef_y: &self.coef_y - &self.coef_x * centre,
             coef_x: &self.coef_x * scale,
-        }
+            meat,
+        })
     }
 
     /// Grid in θ, bisection of sign changes, golden-section checks of extrema.
     fn numerical_set(&self, c: f64) -> Result<ConfidenceSet, EstimateError> {
-        let basis = self.basis();
+        let basis = self.basis()?;
         let half_pi = std::f64::consts::FRAC_PI_2;
         let phi = |theta: f64| -> Result<f64, EstimateError> {
             let (cy, cx) = if theta.abs() >= half_pi {
@@ -461,6 +478,8 @@ struct Basis {
     e_x: DVector<f64>,
     coef_y: DVector<f64>,
     coef_x: DVector<f64>,
+    /// The covariance as a quadratic form in the two residual weights, when it is one.
+    meat: Option<QuadraticMeat>,
 }
 
 /// R = M_W Z (Z itself when W has no columns), column by column by least squares.

@@ -142,8 +142,8 @@ pub(crate) fn covariance(
             Ok(plain(sandwich(weighted_gram(&q1, &weights), c)))
         }
         CovSpec::Cluster { ids } => {
-            let scores = scores(&qr.thin_q(), resid);
-            let (meat, g) = cluster_meat(&scores, ids)?;
+            let (sums, g) = cluster_sums(&qr.thin_q(), resid, ids)?;
+            let meat = sums.transpose() * &sums;
             let cov = sandwich(meat, cr1_factor(g, n, k_cluster));
             Ok(Covariance {
                 cov,
@@ -175,7 +175,7 @@ pub(crate) fn covariance(
 }
 
 /// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ.
-fn hc_weights(
+pub(crate) fn hc_weights(
     q1: &DMatrix<f64>,
     resid: &DVector<f64>,
     spec: &CovSpec,
@@ -252,6 +252,33 @@ fn cluster_meat(
     Ok((sums.transpose() * &sums, g))
 }
 
+/// The within-cluster sums s_g = Σ_{i∈g} qᵢ uᵢ (G × k, clusters in order of first
+/// appearance) and the cluster count, without an n × k score matrix (the same products and
+/// the same order of summation as summing the score rows).
+pub(crate) fn cluster_sums(
+    q1: &DMatrix<f64>,
+    resid: &DVector<f64>,
+    ids: &[usize],
+) -> Result<(DMatrix<f64>, usize), EstimateError> {
+    let (n, k) = q1.shape();
+    if ids.len() != n {
+        return Err(EstimateError::ClusterLength { n, ids: ids.len() });
+    }
+    let (dense, g) = densify(ids);
+    if g < 2 {
+        return Err(EstimateError::TooFewClusters { clusters: g });
+    }
+    let mut sums = DMatrix::zeros(g, k);
+    for j in 0..k {
+        let column = q1.column(j);
+        let mut target = sums.column_mut(j);
+        for (i, &c) in dense.iter().enumerate() {
+            target[c] += column[i] * resid[i];
+        }
+    }
+    Ok((sums, g))
+}
+
 /// Relabels arbitrary ids as 0..G in order of first appearance.
 pub(crate) fn densify<T: std::hash::Hash + Eq + Copy>(ids: &[T]) -> (Vec<usize>, usize) {
     let mut map = HashMap::new();
@@ -272,7 +299,7 @@ fn intersect(first: &[usize], second: &[usize]) -> Vec<usize> {
 }
 
 /// The CR1 small-sample factor G/(G − 1) · (n − 1)/(n − k).
-fn cr1_factor(g: usize, n: usize, k: usize) -> f64 {
+pub(crate) fn cr1_factor(g: usize, n: usize, k: usize) -> f64 {
     (g as f64 / (g - 1) as f64) * ((n - 1) as f64 / (n - k) as f64)
 }
 

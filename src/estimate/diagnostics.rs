@@ -16,7 +16,7 @@ use nalgebra::{Cholesky, DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::hac::hac_meat;
 use super::linear::{
-    assemble, hcat, instrument_qr, iv_setup, least_squares, require_observations, tsls_from,
+    assemble, hcat, instrument_qr, iv_setup, least_squares, require_observations, tsls_residuals,
     validate, IvSetup, LeastSquares,
 };
 use super::qr::PivotedQr;
@@ -312,7 +312,7 @@ pub fn endogeneity(
     let tested: Vec<usize> = (k..k + p).collect();
     let control_function = joint_f(&cf, &cf.cov, &tested, inference_df(&cf))?;
     let e_o = least_squares(y, &setup.x)?.resid;
-    let e_iv = tsls_from(y, &setup, p, has_intercept, &CovSpec::Classical, absorbed)?.resid;
+    let e_iv = tsls_residuals(y, &setup, p)?;
     let wide = instrument_qr(&hcat(&setup.z, &endog.clone_owned()))?;
     let delta = wide.project(&e_o).norm_squared() - setup.zqr.project(&e_iv).norm_squared();
     let rss_o = e_o.norm_squared();
@@ -356,8 +356,7 @@ pub fn overidentification(
     if over == 0 {
         return Ok(None);
     }
-    let classical = CovSpec::Classical;
-    let e = tsls_from(y, &setup, endog.ncols(), false, &classical, absorbed)?.resid;
+    let e = tsls_residuals(y, &setup, endog.ncols())?;
     let projected = setup.zqr.project(&e);
     let explained = projected.norm_squared();
     let unexplained = (&e - &projected).norm_squared();
@@ -466,15 +465,7 @@ pub fn hansen_j(
     if over == 0 {
         return Ok(None);
     }
-    let u = tsls_from(
-        y,
-        &setup,
-        endog.ncols(),
-        false,
-        &CovSpec::Classical,
-        absorbed,
-    )?
-    .resid;
+    let u = tsls_residuals(y, &setup, endog.ncols())?;
     let q = setup.zqr.thin_q();
     let omega = match cov {
         CovSpec::Hac {

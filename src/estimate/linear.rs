@@ -279,3 +279,19 @@ pub(crate) fn tsls_from(
         absorbed,
     )
 }
+
+/// The structural 2SLS residuals u = y − X b alone, for tests that need nothing else.
+///
+/// # Formula
+/// As [`tsls_from`] (the same factorisation, solve and compensated residual, so the same
+/// bits), without the covariance that a fit would also compute and the caller would discard.
+pub(crate) fn tsls_residuals(
+    y: &DVector<f64>,
+    setup: &IvSetup,
+    endogenous: usize,
+) -> Result<DVector<f64>, EstimateError> {
+    let xhat = projected_regressors(setup, endogenous)?;
+    let qr = PivotedQr::new(&xhat)?;
+    let coef = qr.solve(&xhat, y);
+    Ok(residual(&setup.x, y, &coef))
+}

@@ -35,6 +35,7 @@ mod hac;
 mod kclass;
 mod linear;
 mod qr;
+mod quadratic_meat;
 mod refine;
 mod resample;
 mod summaries;
