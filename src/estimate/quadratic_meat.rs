@@ -38,7 +38,7 @@ impl QuadraticMeat {
 }
 
 /// Builds the quadratic form for the design factorised in `qr` and residual vectors `e1`,
-/// `e2`; `None` for the classical and two-way covariances (not handled here).
+/// `e2`; `None` for the classical, two-way and HAC covariances (evaluated directly).
 ///
 /// # Errors
 /// As `covariance::covariance`: cluster ids of the wrong length, fewer than two clusters,
@@ -51,7 +51,10 @@ pub(crate) fn quadratic_meat(
     leverage: Leverage,
     absorbed: &Absorbed,
 ) -> Result<Option<QuadraticMeat>, EstimateError> {
-    if matches!(spec, CovSpec::Classical | CovSpec::TwoWay { .. }) {
+    if matches!(
+        spec,
+        CovSpec::Classical | CovSpec::TwoWay { .. } | CovSpec::Hac { .. }
+    ) {
         return Ok(None);
     }
     let t = qr.t_matrix();
@@ -138,6 +141,26 @@ mod tests {
                     "{spec:?} at {a}, {b}"
                 );
             }
+        }
+    }
+
+    /// Covariances that are not evaluated as this quadratic form (HAC's kernel-weighted meat
+    /// among them) are left to the direct evaluation, never approximated by an HC form.
+    #[test]
+    fn hac_two_way_and_classical_are_evaluated_directly() {
+        let n = 12;
+        let x = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { (i as f64).sqrt() });
+        let e = DVector::from_fn(n, |i, _| (i % 3) as f64 - 1.0);
+        let qr = PivotedQr::new(&x).expect("full rank");
+        for spec in [
+            CovSpec::Classical,
+            CovSpec::Hac {
+                positions: (0..n).collect(),
+                bandwidth: 3.0,
+            },
+        ] {
+            let quad = quadratic_meat(&qr, &e, &e, &spec, Leverage::Allowed, &Absorbed::NONE);
+            assert!(matches!(quad, Ok(None)), "{spec:?}");
         }
     }
 }
