@@ -60,11 +60,12 @@ pub fn relative_path(from: &Path, to: &Path) -> PathBuf {
 }
 
 /// Run `plan` against its data, judging integrity by `ledger` as it stood before this run.
-/// `out_dir` (absolute) is where the outputs will live; paths in results.json are relative to it.
+/// `source` is the path of the plan file the run read, relative to the run directory (the
+/// directory holds its own copy of the plan; `source` says where the data paths start from).
 pub fn execute(
     plan: &Plan,
     ledger: &Ledger,
-    out_dir: &Path,
+    source: &str,
     tables: &BTreeMap<String, Table>,
     schema_devs: Vec<Deviation>,
 ) -> Result<RunOutput> {
@@ -109,9 +110,8 @@ pub fn execute(
             version: TOOL_VERSION,
         },
         plan: PlanInfo {
-            path: relative_path(out_dir, &plan.path)
-                .to_string_lossy()
-                .replace('\\', "/"),
+            path: crate::app::PLAN_FILE.to_string(),
+            source: source.to_string(),
             bytes_sha256: print.bytes_sha256.clone(),
             content_sha256: print.content_sha256.clone(),
             sealed: integrity.sealed,

@@ -5,6 +5,7 @@ mod common;
 mod contingency;
 mod deviations;
 mod happy;
+mod integrity;
 mod nist;
 mod reference;
 mod resampling;
