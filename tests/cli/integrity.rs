@@ -233,3 +233,36 @@ fn plan_path_outside_the_directory_is_refused() {
     assert!(v.stdout.contains("own plan copy"), "{}", v.stdout);
     assert!(!v.stdout.contains("root:"), "{}", v.stdout);
 }
+
+/// Issue 9: verify said "verified" (exit 0) for runs carrying data-changed or unsealed
+/// findings; `--registered` ties the run to the deposited fingerprint.
+#[test]
+fn verify_fails_on_integrity_findings_and_checks_the_deposit() {
+    let s = Study::new();
+    let seal = s.sworn(&["seal", "plan.toml"]);
+    let print = seal
+        .stdout
+        .split_whitespace()
+        .find(|w| w.starts_with("sha256:"))
+        .expect("seal prints the fingerprint")
+        .to_string();
+    s.run_ok();
+    let v = s.sworn(&["verify", "out", "--registered", &print]);
+    assert_eq!(v.code, 0, "{}", v.stdout);
+    assert!(v.stdout.contains(&print), "{}", v.stdout);
+    let other = format!("sha256:{}", "ab".repeat(32));
+    let v = s.sworn(&["verify", "out", "--registered", &other]);
+    assert_eq!(v.code, 1, "{}", v.stdout);
+    assert!(v.stdout.contains("not the deposited"), "{}", v.stdout);
+    s.edit("data.csv", "r000,g00,", "r000,g01,");
+    s.run_ok();
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 1, "{}", v.stdout);
+    assert!(v.stdout.contains("data-changed"), "{}", v.stdout);
+    assert!(v.stdout.contains("re-derive, but"), "{}", v.stdout);
+    let u = Study::new();
+    u.run_ok();
+    let v = u.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 1, "{}", v.stdout);
+    assert!(v.stdout.contains("unsealed"), "{}", v.stdout);
+}
