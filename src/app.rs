@@ -292,7 +292,11 @@ fn stage_run(
 
 fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {
     let r = &output.results;
-    println!("{}: integrity {}", plan.study.title, r.plan.integrity);
+    println!(
+        "{}: integrity: {}",
+        plan.study.title,
+        crate::report::integrity_line(r)
+    );
     for (id, h) in &r.hypotheses {
         let p = h
             .adjusted_p_value

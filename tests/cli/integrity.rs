@@ -266,3 +266,18 @@ fn verify_fails_on_integrity_findings_and_checks_the_deposit() {
     assert_eq!(v.code, 1, "{}", v.stdout);
     assert!(v.stdout.contains("unsealed"), "{}", v.stdout);
 }
+
+/// Issue 9: after a data value changed, the banner still said "Sealed and unchanged".
+#[test]
+fn banner_and_summary_name_every_integrity_finding() {
+    let s = Study::new();
+    s.seal_and_run();
+    s.edit("data.csv", "r000,g00,", "r000,g01,");
+    let r = s.sworn(&["run", "plan.toml", "--out", "out", "--replace"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let banner = "NOT AS REGISTERED: data changed since first read ([data.main])";
+    assert!(r.stdout.contains(banner), "{}", r.stdout);
+    let md = s.read("out/report.md");
+    assert!(md.contains(banner), "{md}");
+    assert!(!md.contains("Sealed and unchanged"), "{md}");
+}
