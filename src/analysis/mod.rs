@@ -101,7 +101,21 @@ pub fn execute(
         fitted.insert(s.id.clone(), f);
     }
     let (contingencies, subs) = contingency::evaluate(plan, &fitted);
-    let hypotheses = hypotheses::test_all(plan, &fitted, &subs);
+    let hypotheses = hypotheses::test_all(
+        plan,
+        &fitted,
+        &subs,
+        integrity.registered_hypotheses.as_ref(),
+    );
+    for (id, h) in &hypotheses {
+        if integrity
+            .registered_hypotheses
+            .as_ref()
+            .is_some_and(|r| !r.contains(id))
+        {
+            devs.push(Deviation::new("hypothesis-added-after-data", Severity::Deviation, id.clone(), format!("this hypothesis was added by an amendment after the data were first read: it is not pre-registered and is corrected apart from the registered members of its family{}", h.family.as_deref().map_or(String::new(), |f| format!(" `{f}`")))));
+        }
+    }
     deviation::sort(&mut devs);
     let mut results = Results {
         format: 1,

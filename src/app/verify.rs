@@ -22,7 +22,11 @@ const PLAN_CAP: u64 = 16 << 20;
 
 /// Deviation codes that are integrity findings besides those of severity `integrity`: the
 /// executed analysis differs from the registered one after the data were read.
-const FINDING_CODES: &[&str] = &["added-after-data", "plan-not-latest"];
+const FINDING_CODES: &[&str] = &[
+    "added-after-data",
+    "hypothesis-added-after-data",
+    "plan-not-latest",
+];
 
 /// The registration point: the plan version in force when the data were first read.
 struct Registration {

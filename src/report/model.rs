@@ -337,6 +337,10 @@ fn integrity_findings(r: &Results) -> Vec<String> {
             "the plan matches an earlier ledger entry, not the latest",
         ),
         ("added-after-data", "added after the data were read"),
+        (
+            "hypothesis-added-after-data",
+            "added after the data were read",
+        ),
     ];
     let mut out = Vec::new();
     for (code, phrase) in ORDER {

@@ -281,3 +281,37 @@ fn banner_and_summary_name_every_integrity_finding() {
     assert!(md.contains(banner), "{md}");
     assert!(!md.contains("Sealed and unchanged"), "{md}");
 }
+
+/// Issue 9: a hypothesis added to family `main` after the first run was reported as
+/// pre-registered and joined the registered Holm family, moving H1's adjusted p-value.
+#[test]
+fn hypothesis_added_after_data_stays_out_of_the_registered_family() {
+    let s = Study::new();
+    let before = s.seal_and_run();
+    let h1 = before["hypotheses"]["H1"]["adjusted_p_value"].clone();
+    let text = s.read("plan.toml").replace(
+        "[family.main]",
+        "[[hypothesis]]\nid = \"H3\"\nspecification = \"ols\"\nterm = \"d\"\nfamily = \"main\"\n\n[family.main]",
+    );
+    s.write("plan.toml", &text);
+    assert_eq!(
+        s.sworn(&["amend", "plan.toml", "--reason", "add H3"]).code,
+        0
+    );
+    let r = s.run_ok();
+    assert_eq!(r["hypotheses"]["H3"]["pre_registered"], false);
+    assert_eq!(r["hypotheses"]["H1"]["pre_registered"], true);
+    assert_eq!(r["hypotheses"]["H1"]["adjusted_p_value"], h1);
+    assert!(
+        crate::common::codes(&r).contains(&"hypothesis-added-after-data".to_string()),
+        "{:?}",
+        crate::common::codes(&r)
+    );
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 1, "{}", v.stdout);
+    assert!(
+        v.stdout.contains("hypothesis-added-after-data"),
+        "{}",
+        v.stdout
+    );
+}
