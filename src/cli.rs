@@ -74,6 +74,9 @@ pub enum Command {
         /// Exit with code 1 when the run has any deviation.
         #[arg(long)]
         strict: bool,
+        /// Replace an existing run directory (otherwise a non-empty one is refused).
+        #[arg(long)]
+        replace: bool,
     },
     /// Re-derive a run directory's outputs from its plan and data and check them.
     #[command(
@@ -82,6 +85,13 @@ pub enum Command {
     Verify {
         /// The run directory (holding results.json).
         dir: PathBuf,
+        /// The fingerprint deposited with the registry (sha256:...): fail unless the run's
+        /// registered plan has exactly this content fingerprint.
+        #[arg(long, value_name = "FINGERPRINT")]
+        registered: Option<String>,
+        /// Data files to use, wherever they now live; matched to the run's tables by SHA-256.
+        #[arg(long, value_name = "PATH", num_args = 1..)]
+        data: Vec<PathBuf>,
     },
     /// Write the built-in demo plans and data, seal and run them.
     #[command(after_help = "Example:\n  sworn demo --out /tmp/sworn-demo")]

@@ -2,8 +2,13 @@
 //!
 //! The ledger is a JSON-lines file. Every entry records `prev`, the SHA-256 of the previous
 //! line's bytes (64 zeros for the first), so editing, removing or reordering any line breaks
-//! the chain at the next one. Appending rewrites the file through a temporary file and a
-//! rename, so a crash never leaves a half-written ledger.
+//! the chain at the next one. Reading and appending live in [`store`]: an append takes an
+//! exclusive lock, re-reads the file under it and writes one line at the end (never a
+//! rewrite), so simultaneous commands cannot lose each other's entries.
+
+mod store;
+
+pub use store::{Ledger, Locked, MAX_BAD};
 
 use crate::error::{Error, Result};
 use serde::{Deserialize, Serialize};
@@ -17,8 +22,18 @@ pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");
 
 /// Hex SHA-256 of some bytes.
 pub fn sha256_hex(bytes: &[u8]) -> String {
-    let digest = Sha256::digest(bytes);
-    digest.iter().map(|b| format!("{b:02x}")).collect()
+    hex(&Sha256::digest(bytes))
+}
+
+/// Lower-case hex of some bytes.
+pub fn hex(bytes: &[u8]) -> String {
+    const DIGITS: &[u8; 16] = b"0123456789abcdef";
+    let mut out = String::with_capacity(2 * bytes.len());
+    for b in bytes {
+        out.push(char::from(DIGITS[usize::from(b >> 4)]));
+        out.push(char::from(DIGITS[usize::from(b & 15)]));
+    }
+    out
 }
 
 /// Hex SHA-256 of a file's bytes.
@@ -90,6 +105,13 @@ pub struct Entry {
     /// SHA-256 of each output file by name (run).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub outputs: Option<BTreeMap<String, String>>,
+    /// Number of ledger lines the run's integrity was judged against (run); later lines were
+    /// appended by other commands while it ran.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub basis: Option<u64>,
+    /// The run directory, relative to the plan's folder (run).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub out: Option<String>,
     /// Version of sworn that wrote the entry.
     pub tool_version: String,
     /// SHA-256 of the previous line's bytes.
@@ -108,135 +130,18 @@ impl Entry {
             data: None,
             results_digest: None,
             outputs: None,
+            basis: None,
+            out: None,
             tool_version: TOOL_VERSION.to_string(),
             prev: String::new(),
         }
     }
 }
 
-/// A ledger as read from disk.
-#[derive(Debug, Clone)]
-pub struct Ledger {
-    /// Where it lives.
-    pub path: PathBuf,
-    /// Each line's text and, when it parses, its entry.
-    lines: Vec<(String, Option<Entry>)>,
-}
-
 /// The ledger path for a plan: `PLAN-stem.ledger` beside the plan.
 pub fn ledger_path(plan: &Path) -> PathBuf {
     let stem = plan.file_stem().and_then(|s| s.to_str()).unwrap_or("plan");
     plan.with_file_name(format!("{stem}.ledger"))
-}
-
-const ZERO_HASH: &str = "0000000000000000000000000000000000000000000000000000000000000000";
-
-impl Ledger {
-    /// An empty ledger that will live at `path`.
-    pub fn empty(path: PathBuf) -> Self {
-        Ledger {
-            path,
-            lines: Vec::new(),
-        }
-    }
-
-    /// Read the ledger at `path`; `None` when there is no file.
-    pub fn read(path: &Path) -> Result<Option<Self>> {
-        let text = match std::fs::read_to_string(path) {
-            Ok(t) => t,
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
-            Err(e) => return Err(Error::io(path, "cannot read the ledger", e)),
-        };
-        let lines = text
-            .lines()
-            .map(|l| (l.to_string(), serde_json::from_str::<Entry>(l).ok()))
-            .collect();
-        Ok(Some(Ledger {
-            path: path.to_path_buf(),
-            lines,
-        }))
-    }
-
-    /// The parsed entries (unparsable lines are skipped; see [`Ledger::problems`]).
-    pub fn entries(&self) -> impl Iterator<Item = &Entry> {
-        self.lines.iter().filter_map(|(_, e)| e.as_ref())
-    }
-
-    /// Number of lines.
-    pub fn len(&self) -> usize {
-        self.lines.len()
-    }
-
-    /// Whether the ledger has no lines.
-    pub fn is_empty(&self) -> bool {
-        self.lines.is_empty()
-    }
-
-    /// The first `n` lines as a ledger of their own (the state before a later event).
-    pub fn prefix(&self, n: usize) -> Ledger {
-        Ledger {
-            path: self.path.clone(),
-            lines: self.lines[..n.min(self.lines.len())].to_vec(),
-        }
-    }
-
-    /// SHA-256 of line `i`'s bytes.
-    pub fn line_hash(&self, i: usize) -> Option<String> {
-        self.lines.get(i).map(|(l, _)| sha256_hex(l.as_bytes()))
-    }
-
-    /// Index of the line holding `entry` (by sequence number).
-    pub fn index_of(&self, seq: u64) -> Option<usize> {
-        self.lines
-            .iter()
-            .position(|(_, e)| e.as_ref().is_some_and(|e| e.seq == seq))
-    }
-
-    /// Integrity problems: unparsable lines, broken hash links, wrong sequence numbers.
-    pub fn problems(&self) -> Vec<String> {
-        let mut out = Vec::new();
-        let mut prev = ZERO_HASH.to_string();
-        for (i, (line, entry)) in self.lines.iter().enumerate() {
-            match entry {
-                None => out.push(format!("line {} is not a valid ledger entry", i + 1)),
-                Some(e) => {
-                    if e.prev != prev {
-                        out.push(format!("line {}: the hash chain is broken (an earlier line was edited, removed or reordered)", i + 1));
-                    }
-                    if e.seq != i as u64 + 1 {
-                        out.push(format!(
-                            "line {}: sequence number {} where {} was expected",
-                            i + 1,
-                            e.seq,
-                            i + 1
-                        ));
-                    }
-                }
-            }
-            prev = sha256_hex(line.as_bytes());
-        }
-        out
-    }
-
-    /// Append `entry` (seq, time and prev are filled in), atomically rewriting the file.
-    pub fn append(&mut self, mut entry: Entry) -> Result<Entry> {
-        entry.seq = self.lines.len() as u64 + 1;
-        entry.time = now_rfc3339();
-        entry.prev = self
-            .lines
-            .last()
-            .map_or(ZERO_HASH.to_string(), |(l, _)| sha256_hex(l.as_bytes()));
-        let line = serde_json::to_string(&entry).map_err(|e| Error::Ledger {
-            path: self.path.clone(),
-            message: format!("cannot serialise the entry: {e}"),
-        })?;
-        let mut text: String = self.lines.iter().map(|(l, _)| format!("{l}\n")).collect();
-        text.push_str(&line);
-        text.push('\n');
-        write_atomic(&self.path, text.as_bytes())?;
-        self.lines.push((line, Some(entry.clone())));
-        Ok(entry)
-    }
 }
 
 /// Write a file through a temporary sibling and a rename, so readers never see half of it.
@@ -316,21 +221,5 @@ mod tests {
         assert_eq!(format_utc(0), "1970-01-01T00:00:00Z");
         assert_eq!(format_utc(951_782_400), "2000-02-29T00:00:00Z");
         assert_eq!(format_utc(1_709_210_096), "2024-02-29T12:34:56Z");
-    }
-
-    #[test]
-    fn chain_detects_edits() {
-        let dir = tempfile::tempdir().expect("temp dir");
-        let path = dir.path().join("p.ledger");
-        let mut ledger = Ledger::empty(path.clone());
-        ledger.append(Entry::new(Event::Sealed)).expect("append");
-        ledger.append(Entry::new(Event::Run)).expect("append");
-        let read = Ledger::read(&path).expect("read").expect("exists");
-        assert!(read.problems().is_empty());
-        assert_eq!(read.entries().count(), 2);
-        let text = std::fs::read_to_string(&path).expect("read");
-        std::fs::write(&path, text.replacen("\"sealed\"", "\"amended\"", 1)).expect("write");
-        let edited = Ledger::read(&path).expect("read").expect("exists");
-        assert_eq!(edited.problems().len(), 1, "{:?}", edited.problems());
     }
 }

@@ -15,6 +15,7 @@ pub mod distribution;
 pub mod error;
 pub mod estimate;
 pub mod expr;
+pub mod files;
 pub mod guide;
 pub mod inference;
 pub mod ledger;

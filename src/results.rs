@@ -50,8 +50,11 @@ pub struct Tool {
 /// The plan's fingerprints and seal state.
 #[derive(Debug, Clone, Serialize)]
 pub struct PlanInfo {
-    /// Path of the plan relative to the run directory.
+    /// The run directory's own copy of the plan (always `plan.toml`, inside the directory).
     pub path: String,
+    /// Path of the plan file the run read, relative to the run directory: where the data
+    /// paths start from. Informative; `verify` reads data only after matching its SHA-256.
+    pub source: String,
     /// SHA-256 of the plan file's bytes.
     pub bytes_sha256: String,
     /// SHA-256 of the plan's canonical form.
@@ -571,7 +574,8 @@ mod tests {
                 version: "0.0.0",
             },
             plan: PlanInfo {
-                path: "p.toml".into(),
+                path: "plan.toml".into(),
+                source: "../p.toml".into(),
                 bytes_sha256: "b".into(),
                 content_sha256: "c".into(),
                 sealed: true,

@@ -26,7 +26,9 @@ pub fn test_all(
     plan: &Plan,
     fitted: &BTreeMap<String, Fitted>,
     subs: &BTreeMap<String, Substitution>,
+    registered: Option<&std::collections::BTreeSet<String>>,
 ) -> BTreeMap<String, HypothesisResult> {
+    let added = |id: &str| registered.is_some_and(|r| !r.contains(id));
     let mut live: BTreeMap<String, bool> = BTreeMap::new();
     let mut out = BTreeMap::new();
     for h in &plan.hypotheses {
@@ -37,10 +39,18 @@ pub fn test_all(
     let mut families: BTreeMap<String, Vec<String>> = BTreeMap::new();
     for h in &plan.hypotheses {
         if let Some(f) = &h.family {
-            families.entry(f.clone()).or_default().push(h.id.clone());
+            // A hypothesis added after the data were read never joins a registered family's
+            // correction: it is corrected only with others added after the data.
+            let key = if added(&h.id) {
+                format!("{f}\u{0}added")
+            } else {
+                f.clone()
+            };
+            families.entry(key).or_default().push(h.id.clone());
         }
     }
     for (name, ids) in families {
+        let name = name.split('\u{0}').next().unwrap_or_default().to_string();
         let correction = plan
             .families
             .get(&name)
@@ -75,6 +85,9 @@ pub fn test_all(
         }
     }
     for (id, h) in out.iter_mut() {
+        if added(id) {
+            h.pre_registered = false;
+        }
         if !live[id] {
             continue;
         }

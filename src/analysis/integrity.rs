@@ -18,6 +18,8 @@ pub struct Integrity {
     pub deviations: Vec<Deviation>,
     /// Specification ids registered before the data were first read (None: no restriction known).
     pub registered_specs: Option<BTreeSet<String>>,
+    /// Hypothesis ids registered before the data were first read (None: no restriction known).
+    pub registered_hypotheses: Option<BTreeSet<String>>,
 }
 
 fn plan_entries(ledger: &Ledger) -> Vec<(usize, &Entry)> {
@@ -94,7 +96,8 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
         ledger_head,
         state,
         deviations: devs,
-        registered_specs: registered_specs(ledger),
+        registered_specs: registered_ids(ledger, "specification"),
+        registered_hypotheses: registered_ids(ledger, "hypothesis"),
     }
 }
 
@@ -134,8 +137,9 @@ fn short(sha: &str) -> String {
     sha.chars().take(12).collect()
 }
 
-/// Specification ids in the last plan recorded before the data were first read.
-fn registered_specs(ledger: &Ledger) -> Option<BTreeSet<String>> {
+/// Ids of the `[[table]]` entries named `table` (e.g. "specification", "hypothesis") in the
+/// last plan recorded before the data were first read.
+fn registered_ids(ledger: &Ledger, table: &str) -> Option<BTreeSet<String>> {
     let first_read = ledger
         .entries()
         .find(|e| e.event == Event::DataFirstRead)?
@@ -146,10 +150,11 @@ fn registered_specs(ledger: &Ledger) -> Option<BTreeSet<String>> {
         .last()?;
     let canonical: serde_json::Value =
         serde_json::from_str(&before.plan.as_ref()?.canonical).ok()?;
-    let specs = canonical.get("specification")?.as_array()?;
+    let items = canonical.get(table).and_then(|v| v.as_array());
     Some(
-        specs
-            .iter()
+        items
+            .into_iter()
+            .flatten()
             .filter_map(|s| s.get("id")?.as_str().map(String::from))
             .collect(),
     )

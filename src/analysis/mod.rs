@@ -62,11 +62,12 @@ pub fn relative_path(from: &Path, to: &Path) -> PathBuf {
 }
 
 /// Run `plan` against its data, judging integrity by `ledger` as it stood before this run.
-/// `out_dir` (absolute) is where the outputs will live; paths in results.json are relative to it.
+/// `source` is the path of the plan file the run read, relative to the run directory (the
+/// directory holds its own copy of the plan; `source` says where the data paths start from).
 pub fn execute(
     plan: &Plan,
     ledger: &Ledger,
-    out_dir: &Path,
+    source: &str,
     tables: &BTreeMap<String, Table>,
     schema_devs: Vec<Deviation>,
 ) -> Result<RunOutput> {
@@ -111,7 +112,21 @@ pub fn execute(
         fitted.insert(s.id.clone(), f);
     }
     let (contingencies, subs) = contingency::evaluate(plan, &fitted);
-    let hypotheses = hypotheses::test_all(plan, &fitted, &subs);
+    let hypotheses = hypotheses::test_all(
+        plan,
+        &fitted,
+        &subs,
+        integrity.registered_hypotheses.as_ref(),
+    );
+    for (id, h) in &hypotheses {
+        if integrity
+            .registered_hypotheses
+            .as_ref()
+            .is_some_and(|r| !r.contains(id))
+        {
+            devs.push(Deviation::new("hypothesis-added-after-data", Severity::Deviation, id.clone(), format!("this hypothesis was added by an amendment after the data were first read: it is not pre-registered and is corrected apart from the registered members of its family{}", h.family.as_deref().map_or(String::new(), |f| format!(" `{f}`")))));
+        }
+    }
     deviation::sort(&mut devs);
     let mut results = Results {
         format: 1,
@@ -120,9 +135,8 @@ pub fn execute(
             version: TOOL_VERSION,
         },
         plan: PlanInfo {
-            path: relative_path(out_dir, &plan.path)
-                .to_string_lossy()
-                .replace('\\', "/"),
+            path: crate::app::PLAN_FILE.to_string(),
+            source: source.to_string(),
             bytes_sha256: print.bytes_sha256.clone(),
             content_sha256: print.content_sha256.clone(),
             sealed: integrity.sealed,

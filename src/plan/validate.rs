@@ -86,6 +86,12 @@ impl Ctx {
 pub fn load(path: &Path) -> Result<Plan> {
     let text =
         std::fs::read_to_string(path).map_err(|e| Error::io(path, "cannot read the plan", e))?;
+    from_text(path, text)
+}
+
+/// Parse and validate plan `text` as if it were the file at `path` (data paths resolve
+/// relative to its folder).
+pub fn from_text(path: &Path, text: String) -> Result<Plan> {
     let path = std::path::absolute(path)
         .map_err(|e| Error::io(path, "cannot resolve the plan path", e))?;
     super::unfilled::refuse_marks(&path, &text)?;

@@ -6,7 +6,7 @@ mod format;
 mod model;
 
 pub use format::{num, pval, set_text, tex};
-pub use model::ReportModel;
+pub use model::{integrity_line, ReportModel};
 
 use crate::error::{Error, Result};
 use crate::plan::Plan;

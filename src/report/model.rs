@@ -310,7 +310,63 @@ fn provenance(r: &Results) -> Vec<(String, String)> {
     v
 }
 
-fn integrity_line(r: &Results) -> String {
+/// The integrity banner: every integrity finding, worst first; the seal state when none.
+pub fn integrity_line(r: &Results) -> String {
+    let findings = integrity_findings(r);
+    if findings.is_empty() {
+        return seal_state_line(r);
+    }
+    format!(
+        "NOT AS REGISTERED: {} (see deviations).",
+        findings.join("; ")
+    )
+}
+
+/// Short phrases for the integrity findings of a run, worst first.
+fn integrity_findings(r: &Results) -> Vec<String> {
+    const ORDER: &[(&str, &str)] = &[
+        ("ledger-broken", "the ledger's hash chain does not verify"),
+        (
+            "plan-changed",
+            "the plan changed since its last ledger entry without an amendment",
+        ),
+        ("data-changed", "data changed since first read"),
+        ("unsealed", "the plan was never sealed"),
+        (
+            "plan-not-latest",
+            "the plan matches an earlier ledger entry, not the latest",
+        ),
+        ("added-after-data", "added after the data were read"),
+        (
+            "hypothesis-added-after-data",
+            "added after the data were read",
+        ),
+    ];
+    let mut out = Vec::new();
+    for (code, phrase) in ORDER {
+        let subjects: Vec<&str> = r
+            .deviations
+            .iter()
+            .filter(|d| d.code == *code)
+            .map(|d| d.subject.as_str())
+            .collect();
+        if subjects.is_empty() {
+            continue;
+        }
+        out.push(match *code {
+            "data-changed" => format!("{phrase} ([data.{}])", subjects.join("], [data.")),
+            "added-after-data" => format!(
+                "{} specification(s) {phrase}: {}",
+                subjects.len(),
+                subjects.join(", ")
+            ),
+            _ => (*phrase).to_string(),
+        });
+    }
+    out
+}
+
+fn seal_state_line(r: &Results) -> String {
     match r.plan.integrity {
         "sealed-unchanged" => {
             "Sealed and unchanged: the plan matches its last ledger entry.".to_string()

@@ -149,7 +149,7 @@ impl Study {
     }
 
     pub fn run_ok(&self) -> serde_json::Value {
-        let r = self.sworn(&["run", "plan.toml", "--out", "out"]);
+        let r = self.sworn(&["run", "plan.toml", "--out", "out", "--replace"]);
         assert_eq!(r.code, 0, "run failed: {}\n{}", r.stderr, r.stdout);
         serde_json::from_str(&self.read("out/results.json")).expect("results.json parses")
     }

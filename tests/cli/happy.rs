@@ -48,12 +48,11 @@ fn same_plan_and_data_give_identical_results() {
 fn verify_fails_after_any_changed_byte() {
     for target in [
         "data.csv",
-        "plan.toml",
-        "plan.ledger",
+        "out/plan.toml",
+        "out/plan.ledger",
         "out/report.md",
         "out/report.tex",
         "out/results.json",
-        "out/ledger-entry.sha256",
     ] {
         let s = Study::new();
         s.seal_and_run();

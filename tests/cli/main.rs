@@ -9,6 +9,7 @@ mod guide;
 mod hac;
 mod happy;
 mod init;
+mod integrity;
 mod nist;
 mod reference;
 mod resampling;
