@@ -11,6 +11,7 @@ mod happy;
 mod init;
 mod integrity;
 mod nist;
+mod readme;
 mod reference;
 mod resampling;
 mod summaries;
