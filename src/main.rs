@@ -7,7 +7,7 @@ fn main() {
     let code = match sworn::app::dispatch(cli.command) {
         Ok(outcome) => outcome.code(),
         Err(err) => {
-            eprintln!("error: {err}");
+            eprintln!("error: {}", sworn::escape::terminal(&err.to_string()));
             err.exit_code()
         }
     };

@@ -6,6 +6,7 @@
 //! missing; grouping columns (category, id, integer, binary) are also available as labels.
 
 mod design;
+mod parquet;
 mod read;
 
 pub use design::{design, Design};
