@@ -335,3 +335,25 @@ fn issue_10_treatment_varying_within_a_cluster_is_found_by_check() {
     let r = s.sworn(&["run", "plan.toml", "--out", "out"]);
     refused(&r, &["`g00` of `grp`"]);
 }
+
+/// A reader that stops early (`sworn demo | head`) ends sworn quietly, not with a panic.
+#[test]
+fn closed_stdout_is_not_a_panic() {
+    let s = Study::new();
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_sworn"))
+        .args(["check", "plan.toml", "--data"])
+        .current_dir(s.dir.path())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("spawn");
+    drop(child.stdout.take());
+    let out = child.wait_with_output().expect("wait");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(!stderr.contains("panicked"), "{stderr}");
+    assert!(
+        matches!(out.status.code(), Some(0) | Some(141)),
+        "{:?}",
+        out.status
+    );
+}
