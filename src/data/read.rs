@@ -382,8 +382,9 @@ fn check_rows_and_key(src: &DataSource, table: &Table, devs: &mut Vec<Deviation>
             Severity::Deviation,
             format!("{}.{key}", src.id),
             format!(
-                "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{first}`)",
-                dups.len()
+                "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{}`)",
+                dups.len(),
+                crate::escape::clip(first, crate::escape::SHOWN)
             ),
         ));
     }
