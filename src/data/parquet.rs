@@ -10,10 +10,14 @@
 //!    length can hold. This bounds every allocation the reader makes by the file's size, so no
 //!    corrupted count can make it ask for exabytes (an allocation failure aborts and cannot be
 //!    caught);
+//!    The page headers inside each column chunk are walked too (`pages.rs`), since the reader
+//!    sizes its buffers by their value counts;
 //! 3. every call into the library runs under `catch_unwind`, so a panic inside the reader
 //!    becomes an error naming the file (and the step that failed).
 //!
 //! Invariant of the returned frame: every column has the frame's height.
+
+mod pages;
 
 use polars::prelude::*;
 use std::io::{Read, Seek, SeekFrom};
@@ -44,6 +48,7 @@ pub fn read(path: &Path) -> std::result::Result<DataFrame, String> {
     })
     .map_err(damaged)?;
     check_metadata(&meta, len)?;
+    check_pages(&meta, &mut file, len)?;
     let frame = isolated("reading the column data", || {
         let mut reader = ParquetReader::new(file);
         reader.set_metadata(meta);
@@ -165,6 +170,33 @@ fn check_chunk(chunk: &Chunk, group_rows: u64, len: u64) -> std::result::Result<
             "it holds {values} values but its row group has {group_rows} rows"
         ));
     }
+    Ok(())
+}
+
+/// Walk the page headers of every column chunk (the reader sizes its buffers by the counts in
+/// them, which the file's metadata does not cover) and check each against its chunk: sizes
+/// non-negative and inside the chunk, value counts at most the chunk's.
+fn check_pages(
+    meta: &polars::io::parquet::read::FileMetadata,
+    file: &mut std::fs::File,
+    len: u64,
+) -> std::result::Result<(), String> {
+    let io = |e: std::io::Error| format!("cannot read the Parquet file: {e}");
+    for (g, group) in meta.row_groups.iter().enumerate() {
+        for chunk in group.parquet_columns() {
+            let column = chunk.descriptor().path_in_schema.join(".");
+            let start = chunk
+                .dictionary_page_offset()
+                .unwrap_or_else(|| chunk.data_page_offset()) as u64;
+            let mut bytes = vec![0u8; chunk.compressed_size() as usize];
+            file.seek(SeekFrom::Start(start)).map_err(io)?;
+            file.read_exact(&mut bytes).map_err(io)?;
+            pages::check(&bytes, chunk.num_values() as u64, len).map_err(|what| {
+                damaged(format!("column `{column}`, row group {}: {what}", g + 1))
+            })?;
+        }
+    }
+    file.seek(SeekFrom::Start(0)).map_err(io)?;
     Ok(())
 }
 
