@@ -4,6 +4,7 @@ use crate::analysis::{self, RunOutput};
 use crate::cli::Command;
 use crate::deviation::Severity;
 use crate::error::{Error, Result};
+use crate::escape::terminal;
 use crate::ledger::{self, ledger_path, Entry, Event, Ledger, PlanPrint};
 use crate::plan::{self, Plan};
 use std::collections::BTreeMap;
@@ -80,7 +81,7 @@ pub fn check(path: &Path, data: bool) -> Result<Outcome> {
     let plan = plan::load(path)?;
     println!(
         "{}: plan is valid ({} specification(s), {} hypothesis(es), {} data table(s))",
-        path.display(),
+        shown(path),
         plan.specifications.len(),
         plan.hypotheses.len(),
         plan.data.len()
@@ -90,15 +91,20 @@ pub fn check(path: &Path, data: bool) -> Result<Outcome> {
     }
     let (tables, devs) = analysis::load_tables(&plan)?;
     for (id, t) in &tables {
-        println!("[data.{id}] {} rows, sha256 {}", t.rows, t.sha256);
+        println!(
+            "[data.{}] {} rows, sha256 {}",
+            terminal(id),
+            t.rows,
+            t.sha256
+        );
     }
     for d in &devs {
         println!(
             "{}: {} ({}): {}",
             d.severity.name(),
             d.code,
-            d.subject,
-            d.message
+            terminal(&d.subject),
+            terminal(&d.message)
         );
     }
     if devs.iter().any(|d| d.severity >= Severity::Deviation) {
@@ -107,6 +113,11 @@ pub fn check(path: &Path, data: bool) -> Result<Outcome> {
     }
     println!("the data match the declared schema");
     Ok(Outcome::Success)
+}
+
+/// A path for a terminal line (see [`crate::escape`]).
+fn shown(path: &Path) -> String {
+    terminal(&path.display().to_string())
 }
 
 /// `sworn seal PLAN`.
@@ -126,12 +137,12 @@ pub fn seal(path: &Path) -> Result<Outcome> {
     let mut entry = Entry::new(Event::Sealed);
     entry.plan = Some(print.clone());
     ledger.append(entry)?;
-    println!("sealed {}", path.display());
+    println!("sealed {}", shown(path));
     println!(
         "content fingerprint (deposit this with the registry): sha256:{}",
         print.content_sha256
     );
-    println!("ledger: {}", lpath.display());
+    println!("ledger: {}", shown(&lpath));
     Ok(Outcome::Success)
 }
 
@@ -185,8 +196,8 @@ pub fn amend(path: &Path, reason: &str) -> Result<Outcome> {
     ledger.append(entry)?;
     println!(
         "amended {}: changed keys {}",
-        path.display(),
-        keys.join(", ")
+        shown(path),
+        terminal(&keys.join(", "))
     );
     println!("new content fingerprint: sha256:{}", print.content_sha256);
     Ok(Outcome::Success)
@@ -312,7 +323,7 @@ fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {
     let r = &output.results;
     println!(
         "{}: integrity: {}",
-        plan.study.title,
+        crate::escape::line(&plan.study.title),
         crate::report::integrity_line(r)
     );
     for (id, h) in &r.hypotheses {
@@ -320,8 +331,11 @@ fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {
             .adjusted_p_value
             .map_or("n/a".to_string(), crate::report::pval);
         println!(
-            "  {id} ({} in {}): {} (adjusted p {p})",
-            h.term, h.specification, h.verdict
+            "  {} ({} in {}): {} (adjusted p {p})",
+            terminal(id),
+            terminal(&h.term),
+            terminal(&h.specification),
+            h.verdict
         );
     }
     let n_dev = r
@@ -334,5 +348,5 @@ fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {
         n_dev,
         r.deviations.len() - n_dev
     );
-    println!("  report: {}", out_dir.join("report.md").display());
+    println!("  report: {}", shown(&out_dir.join("report.md")));
 }

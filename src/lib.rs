@@ -13,6 +13,7 @@ pub mod demo;
 pub mod deviation;
 pub mod distribution;
 pub mod error;
+pub mod escape;
 pub mod estimate;
 pub mod expr;
 pub mod files;

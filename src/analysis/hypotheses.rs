@@ -89,6 +89,8 @@ pub fn test_all(
             h.pre_registered = false;
         }
         if !live[id] {
+            // An undetermined hypothesis has no corrected p-value to show.
+            h.adjusted_p_value = None;
             continue;
         }
         if let Some(adj) = h.adjusted_p_value {
@@ -229,9 +231,11 @@ fn test_one(
         pre_registered: f.result.pre_registered,
     };
     let (mut terms, mut reference) = (&f.result.terms, f.reference);
+    let mut degenerate = &f.degenerate;
     match sub.map(|s| &s.action) {
         Some(Action::UseSpecification(target)) => {
             let t = &fitted[target];
+            degenerate = &t.degenerate;
             terms = &t.result.terms;
             reference = t.reference;
             r.tested_specification = target.clone();
@@ -250,6 +254,10 @@ fn test_one(
             }
         },
         _ => {}
+    }
+    if let Some(reason) = degenerate {
+        r.reason = Some(reason.clone());
+        return (r, false);
     }
     let Some(t) = terms.get(&h.term) else {
         r.reason = Some(format!(

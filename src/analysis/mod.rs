@@ -4,7 +4,9 @@
 //! Nothing here writes files or the ledger: `app` sequences that, so `verify` can re-derive
 //! a run's outputs byte for byte with the same function.
 
+mod assignment;
 mod contingency;
+mod degenerate;
 mod hac;
 mod hypotheses;
 mod integrity;
@@ -43,6 +45,7 @@ pub fn load_tables(plan: &Plan) -> Result<(BTreeMap<String, Table>, Vec<Deviatio
         tables.insert(src.id.clone(), t);
         devs.extend(d);
     }
+    devs.extend(assignment::check(plan, &tables));
     Ok((tables, devs))
 }
 

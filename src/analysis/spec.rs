@@ -22,6 +22,9 @@ use std::collections::BTreeMap;
 pub struct Fitted {
     /// The results as written.
     pub result: SpecResult,
+    /// Why the outcome leaves nothing to test (no variation, or fitted exactly), if so; the
+    /// specification's hypotheses are then undetermined.
+    pub degenerate: Option<String>,
     /// The reference distribution of single-coefficient tests.
     pub reference: Reference,
     /// Deviations and notes raised while estimating.
@@ -209,11 +212,11 @@ fn terms_of(
 }
 
 fn test(t: &TestStatistic) -> TestResult {
-    TestResult {
+    super::degenerate::in_support(TestResult {
         statistic: t.statistic,
         p_value: inference::test_p_value(t),
         distribution: t.reference,
-    }
+    })
 }
 
 struct Parts {
@@ -284,11 +287,19 @@ pub fn fit_spec(
     rc: &ResampleContext,
 ) -> Result<Fitted> {
     let d = design(table, spec)?;
+    if d.n == 0 && d.singletons > 0 {
+        return Err(est_err(spec, format!(
+            "all {} complete rows of the sample are alone in their level of the fixed effect(s) `{}`, and such rows are dropped (they carry no information), so none is left; use a coarser fixed effect or none",
+            d.singletons,
+            spec.fixed_effects.join("`, `")
+        )));
+    }
     if d.n == 0 {
         return Err(est_err(spec, "no row of the sample is complete in every variable used; check the sample restriction and missing values"));
     }
     let mut deviations = Vec::new();
     let d = absorbed_columns(spec, d, &mut deviations)?;
+    super::degenerate::check_scales(spec, &d)?;
     let p = parts(spec, &d)?;
     let scores = super::hac::Scores {
         y: &d.y,
@@ -340,6 +351,18 @@ pub fn fit_spec(
         }
     };
     let reference = reference_for(spec, &fit);
+    let degenerate = super::degenerate::outcome_problem(spec, &d, fit.rss);
+    if let Some(problem) = &degenerate {
+        deviations.push(Deviation::new(
+            "outcome-degenerate",
+            Severity::Deviation,
+            spec.id.clone(),
+            format!(
+                "{}; its t statistics, p-values and the tests involving the outcome are not reported, and its hypotheses are undetermined",
+                problem.reason
+            ),
+        ));
+    }
     for name in &p.dropped {
         deviations.push(Deviation::new(
             "collinear-dropped",
@@ -427,6 +450,10 @@ pub fn fit_spec(
         };
         ar_tests = ctx.diagnostics(&mut result)?;
     }
+    if let Some(problem) = &degenerate {
+        super::degenerate::withhold(&mut result, problem.constant);
+        ar_tests.clear();
+    }
     let mut resampled = BTreeMap::new();
     let kept: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
     for need in &needs.resample {
@@ -437,8 +464,9 @@ pub fn fit_spec(
         {
             continue;
         }
-        // A dropped term leaves its hypothesis undetermined (reported by the hypothesis).
-        if !kept.contains(&&need.term) {
+        // A dropped term, or an outcome with nothing to test, leaves its hypothesis
+        // undetermined (reported by the hypothesis).
+        if !kept.contains(&&need.term) || degenerate.is_some() {
             continue;
         }
         let r = resample(spec, table, &d, &p, &cov, need, rc)?;
@@ -462,6 +490,7 @@ pub fn fit_spec(
     };
     Ok(Fitted {
         result,
+        degenerate: degenerate.map(|p| p.reason),
         reference,
         deviations,
         ar_tests,
@@ -484,6 +513,18 @@ fn ids_of(table: &Table, column: &str, d: &Design, spec: &Spec) -> Result<Vec<us
     })
 }
 
+/// The label with dense id `id` of `column` over `rows` (ids in order of first appearance,
+/// as [`Table::label_ids`] gives them).
+fn nth_label(table: &Table, column: &str, rows: &[usize], id: usize) -> Option<String> {
+    let labels = table.labels.get(column)?;
+    let mut seen = std::collections::BTreeSet::new();
+    rows.iter()
+        .filter_map(|&r| labels.get(r)?.as_deref())
+        .filter(|l| seen.insert(*l))
+        .nth(id)
+        .map(String::from)
+}
+
 /// One resampled test of `need` on the fitted design.
 fn resample(
     spec: &Spec,
@@ -502,11 +543,33 @@ fn resample(
         seed: r.seed,
         exact_below: r.exact_below,
     };
+    let cluster_label = |id: usize| {
+        rc.assignment
+            .and_then(|a| a.clusters.as_deref())
+            .and_then(|c| Some((c, nth_label(table, c, &d.rows, id)?)))
+            .map_or(format!("number {}", id + 1), |(c, l)| {
+                format!(
+                    "`{}` of `{c}`",
+                    crate::escape::clip(&l, crate::escape::SHOWN)
+                )
+            })
+    };
     let err = |e: estimate::ResampleError| {
+        let what = match &e {
+            estimate::ResampleError::VariesWithinCluster { cluster } => format!(
+                "the treatment is not constant within cluster {}; a cluster-randomised design assigns whole clusters, so check the data or the [assignment] clusters column",
+                cluster_label(*cluster)
+            ),
+            estimate::ResampleError::ClusterSpansBlocks { cluster } => format!(
+                "cluster {} lies in more than one block; in a blocked cluster design each cluster lies in one block",
+                cluster_label(*cluster)
+            ),
+            e => e.to_string(),
+        };
         est_err(
             spec,
             format!(
-                "{} test of hypothesis `{}`: {e}",
+                "{} test of hypothesis `{}`: {what}",
                 method_name(&need.method),
                 need.hypothesis
             ),

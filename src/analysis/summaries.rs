@@ -159,7 +159,22 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
     });
     let treated: Vec<bool> = rows.iter().map(|&r| arm[r] == Some(1.0)).collect();
     let cov = cov_for(&b.errors, t, &rows, what)?;
-    let table = estimate::balance(&m, &treated, &cov).map_err(|e| err(what, e))?;
+    let table = estimate::balance(&m, &treated, &cov).map_err(|e| match e {
+        // The balance regression is of the arm on [intercept | covariates].
+        estimate::SummaryError::Estimate(estimate::EstimateError::RankDeficient { dependent }) => err(
+            what,
+            format!(
+                "covariate(s) {} are linear combinations of the covariates listed before them (and a constant); remove them from [balance] covariates",
+                dependent
+                    .iter()
+                    .filter_map(|&j| b.covariates.get(j.checked_sub(1)?))
+                    .map(|c| format!("`{c}`"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ),
+        ),
+        e => err(what, e),
+    })?;
     Ok(Some(BalanceResult {
         by: b.by.clone(),
         errors: b.errors.name(),

@@ -48,22 +48,9 @@ struct Verification {
     data: Vec<String>,
 }
 
-/// Untrusted text as printed (one place, so it can use the project's escaping later).
+/// Untrusted text as printed: control and bidi characters made visible.
 fn shown(s: &str) -> String {
-    let bidi = |c: char| {
-        ('\u{200b}'..='\u{200f}').contains(&c)
-            || ('\u{202a}'..='\u{202e}').contains(&c)
-            || ('\u{2066}'..='\u{2069}').contains(&c)
-    };
-    s.chars()
-        .map(|c| {
-            if c.is_control() || bidi(c) {
-                c.escape_unicode().to_string()
-            } else {
-                c.to_string()
-            }
-        })
-        .collect()
+    crate::escape::terminal(s)
 }
 
 /// `sworn verify DIR [--registered sha256:…] [--data PATH…]`.

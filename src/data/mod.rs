@@ -7,6 +7,7 @@
 
 mod design;
 pub mod dialect;
+mod parquet;
 mod read;
 
 pub use design::{design, Design};

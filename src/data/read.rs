@@ -31,33 +31,25 @@ fn read_frame(src: &DataSource) -> Result<DataFrame> {
         super::dialect::check_separator(&src.path, &src.id, src.separator)
             .map_err(|m| data_err(src, m))?;
     }
-    let frame = match src.format {
-        DataFormat::Csv => CsvReadOptions::default()
-            .with_has_header(true)
-            .with_infer_schema_length(Some(0))
-            .with_parse_options(CsvParseOptions::default().with_separator(src.separator))
-            .try_into_reader_with_file_path(Some(src.path.clone()))
-            .and_then(|r| r.finish()),
-        DataFormat::Parquet => std::fs::File::open(&src.path)
-            .map_err(PolarsError::from)
-            .and_then(|f| ParquetReader::new(f).finish()),
-    };
-    frame.map_err(|e| {
-        data_err(
-            src,
-            format!(
-                "cannot read the file as {}: {}",
-                format_name(src.format),
-                super::dialect::reader_message(&e.to_string(), src.separator)
-            ),
-        )
-    })
-}
-
-fn format_name(f: DataFormat) -> &'static str {
-    match f {
-        DataFormat::Csv => "CSV",
-        DataFormat::Parquet => "Parquet",
+    match src.format {
+        DataFormat::Csv => super::parquet::isolated("reading the file as CSV", || {
+            CsvReadOptions::default()
+                .with_has_header(true)
+                .with_infer_schema_length(Some(0))
+                .with_parse_options(CsvParseOptions::default().with_separator(src.separator))
+                .try_into_reader_with_file_path(Some(src.path.clone()))
+                .and_then(|r| r.finish())
+        })
+        .map_err(|e| {
+            data_err(
+                src,
+                format!(
+                    "cannot read the file as CSV: {}",
+                    super::dialect::reader_message(&e.to_string(), src.separator)
+                ),
+            )
+        }),
+        DataFormat::Parquet => super::parquet::read(&src.path).map_err(|e| data_err(src, e)),
     }
 }
 
@@ -66,6 +58,16 @@ fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<
         return Ok(None);
     };
     let series = col.as_materialized_series();
+    if series.len() != frame.height() {
+        return Err(data_err(
+            src,
+            format!(
+                "column `{name}` holds {} values but the file has {} rows; the file is damaged",
+                series.len(),
+                frame.height()
+            ),
+        ));
+    }
     let err = |e: PolarsError| data_err(src, format!("column `{name}`: {e}"));
     if series.dtype().is_primitive_numeric() || series.dtype() == &DataType::Boolean {
         let cast = series.cast(&DataType::Float64).map_err(err)?;
@@ -86,33 +88,49 @@ fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<
     Ok(Some(RawValues::Text(values)))
 }
 
-/// Parse text values as numbers; the first unparsable one is an error naming row and value.
+/// Where row `i` (0-based, in file order) is, in the user's terms: the file line of a CSV
+/// (the header is line 1) or the row number of a Parquet file.
+fn row_place(src: &DataSource, i: usize) -> String {
+    match src.format {
+        DataFormat::Csv => format!("line {}", i + 2),
+        DataFormat::Parquet => format!("row {}", i + 1),
+    }
+}
+
+/// Parse text values as numbers; the first unparsable or non-finite value is an error naming
+/// its place and value. NaN and infinities are refused alike from CSV text and Parquet
+/// numbers, since neither is a measurement.
 fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Vec<Option<f64>>> {
+    let bad = |i: usize, shown: &str| {
+        data_err(
+            src,
+            format!(
+                "column `{name}` is declared numeric but {} holds `{}`; {}",
+                row_place(src, i),
+                crate::escape::clip(shown, crate::escape::SHOWN),
+                super::dialect::not_a_number_advice(shown, src.decimal_comma, &src.missing)
+            ),
+        )
+    };
     match raw {
-        RawValues::Numbers(v) => Ok(v.into_iter().map(|x| x.filter(|x| x.is_finite())).collect()),
-        RawValues::Text(v) => {
-            v.into_iter()
-                .enumerate()
-                .map(|(i, s)| match s {
-                    None => Ok(None),
-                    Some(s) => {
-                        super::dialect::parse_number(&s, src.decimal_comma)
-                            .map(Some)
-                            .ok_or_else(|| {
-                                data_err(
-                                    src,
-                                    format!(
-                        "column `{name}` is declared numeric but row {} holds `{}`; {}",
-                        i + 1,
-                        s.chars().take(80).collect::<String>(),
-                        super::dialect::not_a_number_advice(&s, src.decimal_comma, &src.missing)
-                    ),
-                                )
-                            })
-                    }
-                })
-                .collect()
-        }
+        RawValues::Numbers(v) => v
+            .into_iter()
+            .enumerate()
+            .map(|(i, x)| match x {
+                Some(x) if !x.is_finite() => Err(bad(i, &format!("{x}"))),
+                x => Ok(x),
+            })
+            .collect(),
+        RawValues::Text(v) => v
+            .into_iter()
+            .enumerate()
+            .map(|(i, s)| match s {
+                None => Ok(None),
+                Some(s) => super::dialect::parse_number(&s, src.decimal_comma)
+                    .map(Some)
+                    .ok_or_else(|| bad(i, &s)),
+            })
+            .collect(),
     }
 }
 
@@ -267,10 +285,10 @@ fn load_column(
             Severity::Deviation,
             subject.clone(),
             format!(
-                "column `{name}` is declared {} but {} value(s) are not (first: row {}, value {v})",
+                "column `{name}` is declared {} but {} value(s) are not (first: {}, value {v})",
                 col.kind.name(),
                 bad_kind.len(),
-                row + 1
+                row_place(src, *row)
             ),
         ));
     }
@@ -279,8 +297,8 @@ fn load_column(
         .collect();
     if let Some((row, v)) = outside.first() {
         devs.push(Deviation::new("value-out-of-range", Severity::Deviation, subject, format!(
-            "{} value(s) of `{name}` lie outside the declared range [{}, {}] (first: row {}, value {v})",
-            outside.len(), bound(col.min), bound(col.max), row + 1
+            "{} value(s) of `{name}` lie outside the declared range [{}, {}] (first: {}, value {v})",
+            outside.len(), bound(col.min), bound(col.max), row_place(src, *row)
         )));
     }
     if col.kind.is_grouping() {
@@ -317,8 +335,8 @@ fn order_rows(src: &DataSource, table: &mut Table) -> Result<()> {
         return Err(data_err(
             src,
             format!(
-                "order_by column `{by}` is missing in row {}; every row needs a position",
-                i + 1
+                "order_by column `{by}` is missing in {}; every row needs a position",
+                row_place(src, i)
             ),
         ));
     }
@@ -377,8 +395,9 @@ fn check_rows_and_key(src: &DataSource, table: &Table, devs: &mut Vec<Deviation>
             Severity::Deviation,
             format!("{}.{key}", src.id),
             format!(
-                "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{first}`)",
-                dups.len()
+                "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{}`)",
+                dups.len(),
+                crate::escape::clip(first, crate::escape::SHOWN)
             ),
         ));
     }
@@ -401,7 +420,9 @@ fn derive_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()
                 src,
                 format!(
                     "derived variable `{}` = \"{}\": {}",
-                    d.name, d.text, e.message
+                    d.name,
+                    crate::escape::clip(&d.text, crate::escape::SHOWN),
+                    e.message
                 ),
             )
         })?;
@@ -438,7 +459,13 @@ fn index_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()>
             i.reference
                 .1
                 .eval(table.rows, &lookup)
-                .map_err(|e| fail(format!("reference \"{}\": {}", i.reference.0, e.message)))?
+                .map_err(|e| {
+                    fail(format!(
+                        "reference \"{}\": {}",
+                        crate::escape::clip(&i.reference.0, crate::escape::SHOWN),
+                        e.message
+                    ))
+                })?
                 .into_iter()
                 .map(|v| v.is_some_and(|v| v != 0.0))
                 .collect()

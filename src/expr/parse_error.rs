@@ -44,8 +44,10 @@ pub(crate) fn too_deep(offset: usize) -> ExprError {
     ExprError::at(
         offset,
         format!(
-            "the expression is nested more than {MAX_DEPTH} levels deep; split it into \
-             several [derive] variables"
+            "the expression is more than {MAX_DEPTH} levels deep (parentheses, function \
+             calls and each operator of a long chain such as `a + b + c + ...` count as a \
+             level); split it into several [derive] variables, e.g. sums of at most \
+             {MAX_DEPTH} terms each"
         ),
     )
 }

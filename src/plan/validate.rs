@@ -65,7 +65,7 @@ impl Ctx {
             key,
             format!(
                 "`{}` is not allowed here; use one of {list}{}",
-                v.get_ref(),
+                crate::escape::clip(v.get_ref(), crate::escape::SHOWN),
                 hint(v.get_ref(), allowed.iter().copied())
             ),
         ))

@@ -325,7 +325,8 @@ pub(super) fn errors_value(
                 v,
                 key,
                 format!(
-                    "unknown error kind `{kind}`{}",
+                    "unknown error kind `{}`; use one of \"classical\", \"hc0\", \"hc1\", \"hc2\", \"hc3\", {{ kind = \"cluster\", by = \"COLUMN\" }} or {{ kind = \"hac\", kernel = \"bartlett\", bandwidth = … }}{}",
+                    crate::escape::clip(&kind, crate::escape::SHOWN),
                     hint(&kind, plain.iter().copied().chain(["cluster", "hac"]))
                 ),
             ));
@@ -447,14 +448,13 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
             }
         }
     }
-    let mut seen = BTreeSet::new();
-    let all = s
-        .endogenous
-        .iter()
-        .chain(&s.instruments)
-        .chain(&s.regressors)
-        .chain(&s.controls);
-    for v in all {
+    let mut seen = BTreeMap::new();
+    let listed = |list: &'static str| s_list(s, list).iter().map(move |v| (list, v));
+    let all = listed("endogenous")
+        .chain(listed("instruments"))
+        .chain(listed("regressors"))
+        .chain(listed("controls"));
+    for (list, v) in all {
         if v.get_ref() == &spec.outcome {
             return Err(ctx.at(
                 v,
@@ -465,12 +465,19 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
                 ),
             ));
         }
-        if !seen.insert(v.get_ref()) {
-            return Err(ctx.at(
-                v,
-                key("controls"),
-                format!("`{}` is listed twice in this specification", v.get_ref()),
-            ));
+        if let Some(first) = seen.insert(v.get_ref(), list) {
+            let message = if first == list {
+                format!(
+                    "`{}` is listed twice in `{list}`; list it once",
+                    v.get_ref()
+                )
+            } else {
+                format!(
+                    "`{}` is listed in both `{first}` and `{list}`; a variable plays one role in a specification, so remove it from one of them",
+                    v.get_ref()
+                )
+            };
+            return Err(ctx.at(v, key(list), message));
         }
     }
     if seen.is_empty() && !spec.intercept && spec.fixed_effects.is_empty() {
@@ -685,4 +692,14 @@ pub(super) fn tables(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Table>
         });
     }
     Ok(out)
+}
+
+/// The raw list of a specification named by its key.
+fn s_list<'r>(s: &'r RawSpec, list: &str) -> &'r [Spanned<String>] {
+    match list {
+        "endogenous" => &s.endogenous,
+        "instruments" => &s.instruments,
+        "regressors" => &s.regressors,
+        _ => &s.controls,
+    }
 }

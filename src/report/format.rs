@@ -1,15 +1,10 @@
 //! Number and text formatting for reports; LaTeX escaping lives here and only here.
 
 /// A number for display: fixed with 3 decimals in the usual range, scientific outside it.
+/// A value that is not finite is not a number the data support: it shows as "n/a".
 pub fn num(x: f64) -> String {
     if !x.is_finite() {
-        return if x.is_nan() {
-            "n/a".to_string()
-        } else if x > 0.0 {
-            "inf".to_string()
-        } else {
-            "-inf".to_string()
-        };
+        return "n/a".to_string();
     }
     let a = x.abs();
     if x == 0.0 {
@@ -23,7 +18,7 @@ pub fn num(x: f64) -> String {
 
 /// A p-value for display; values below 1e-300 (or underflowing to 0) print as such.
 pub fn pval(p: f64) -> String {
-    if p.is_nan() {
+    if !(0.0..=1.0).contains(&p) {
         "n/a".to_string()
     } else if p < 1e-300 {
         "< 1e-300".to_string()
@@ -74,6 +69,7 @@ pub fn tex(s: &str) -> String {
             '→' => out.push_str("$\\rightarrow$"),
             '′' => out.push_str("$'$"),
             c if (c as u32) < 0x20 && c != '\n' => {}
+            c if c.is_control() => {}
             c if (c as u32) <= 0xFF => out.push(c),
             _ => out.push('?'),
         }
@@ -103,9 +99,10 @@ pub fn set_text(pieces: &[crate::results::SetPiece]) -> String {
         .join(" ∪ ")
 }
 
-/// Escape text for a Markdown table cell.
+/// Escape text for the Markdown report (see [`crate::escape::markdown`]): one line, no
+/// control or bidirectional-formatting character, HTML and table pipes escaped.
 pub fn md(s: &str) -> String {
-    s.replace('|', "\\|").replace('\n', " ")
+    crate::escape::markdown(s)
 }
 
 #[cfg(test)]

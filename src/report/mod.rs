@@ -1,6 +1,8 @@
 //! Reports: one serialisable [`ReportModel`], rendered to Markdown and LaTeX by the
 //! templates in `templates/` (compiled into the binary). All numbers are formatted here, so
-//! templates only place text; the report never depends on the clock.
+//! templates only place text; the report never depends on the clock. Every string placed in
+//! the Markdown report passes through [`crate::escape::markdown`] (the environment's formatter
+//! does it, so a template cannot forget); the LaTeX template escapes with its `tex` filter.
 
 mod format;
 mod model;
@@ -29,7 +31,12 @@ fn environment() -> Result<Environment<'static>> {
         })?;
     env.set_syntax(syntax);
     env.add_filter("tex", |s: String| format::tex(&s));
-    env.add_filter("md", |s: String| format::md(&s));
+    env.set_formatter(|out, state, value| match value.as_str() {
+        Some(text) if state.name() == "report.md" => out
+            .write_str(&format::md(text))
+            .map_err(|_| minijinja::Error::new(minijinja::ErrorKind::WriteFailure, "report.md")),
+        _ => minijinja::escape_formatter(out, state, value),
+    });
     for (name, src) in [("report.md", MD_TEMPLATE), ("report.tex", TEX_TEMPLATE)] {
         env.add_template(name, src).map_err(|e| Error::Template {
             template: name.to_string(),

@@ -215,7 +215,7 @@ impl ReportModel {
             }
         }
         ReportModel {
-            title: plan.study.title.clone(),
+            title: crate::escape::line(&plan.study.title),
             study_id: plan.study.id.clone(),
             authors: plan.study.authors.join("; "),
             registered: plan.study.registered.clone(),
@@ -541,7 +541,7 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
         })
         .collect();
     TableModel {
-        title: t.title.clone(),
+        title: crate::escape::line(&t.title),
         columns: t.columns.clone(),
         estimators: specs.iter().map(|s| s.estimator.to_uppercase()).collect(),
         rows,
@@ -748,7 +748,7 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
     }
     SpecModel {
         id: s.id.clone(),
-        title: r.title.clone(),
+        title: crate::escape::line(&r.title),
         facts,
         main: Block {
             title: "Estimates".into(),
