@@ -10,6 +10,7 @@ use crate::plan::{self, Plan};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
+mod machine;
 mod rundir;
 mod verify;
 
@@ -44,7 +45,7 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
             crate::guide::completions(shell);
             Ok(Outcome::Success)
         }
-        Command::Check { plan, data } => check(&plan, data),
+        Command::Check { plan, data, json } => check(&plan, data, json),
         Command::Seal { plan } => seal(&plan),
         Command::Amend { plan, reason } => amend(&plan, &reason),
         Command::Run {
@@ -52,12 +53,14 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
             out,
             strict,
             replace,
-        } => run(&plan, out.as_deref(), strict, replace).map(|(o, _)| o),
+            json,
+        } => run(&plan, out.as_deref(), strict, replace, json).map(|(o, _)| o),
         Command::Verify {
             dir,
             registered,
             data,
-        } => verify(&dir, registered.as_deref(), &data),
+            json,
+        } => verify(&dir, registered.as_deref(), &data, json),
         Command::Demo { out } => {
             crate::demo::run_demo(out.as_deref().unwrap_or(Path::new("sworn-demo")))
         }
@@ -76,20 +79,75 @@ pub fn init(data: &[PathBuf], out: &Path) -> Result<Outcome> {
     Ok(Outcome::Success)
 }
 
-/// `sworn check PLAN [--data]`.
-pub fn check(path: &Path, data: bool) -> Result<Outcome> {
+/// The JSON object printed for an error under `--json` (the message also goes to stderr).
+pub fn emit_error_json(command: &str, message: &str) {
+    machine::emit(&machine::error(command, message));
+}
+
+/// `sworn check PLAN [--data] [--json]`.
+pub fn check(path: &Path, data: bool, json: bool) -> Result<Outcome> {
     let plan = plan::load(path)?;
-    println!(
-        "{}: plan is valid ({} specification(s), {} hypothesis(es), {} data table(s))",
-        shown(path),
+    let counts = (
         plan.specifications.len(),
         plan.hypotheses.len(),
-        plan.data.len()
+        plan.data.len(),
     );
-    if !data {
-        return Ok(Outcome::Success);
+    if !json {
+        println!(
+            "{}: plan is valid ({} specification(s), {} hypothesis(es), {} data table(s))",
+            shown(path),
+            counts.0,
+            counts.1,
+            counts.2
+        );
     }
-    let (tables, devs) = analysis::load_tables(&plan)?;
+    let loaded = if data {
+        Some(analysis::load_tables(&plan)?)
+    } else {
+        None
+    };
+    let mismatch = loaded
+        .as_ref()
+        .is_some_and(|(_, devs)| devs.iter().any(|d| d.severity >= Severity::Deviation));
+    let outcome = if mismatch {
+        Outcome::CheckFailed
+    } else {
+        Outcome::Success
+    };
+    if json {
+        let (tables, deviations) = match &loaded {
+            Some((tables, devs)) => (
+                serde_json::Value::Array(
+                    tables
+                        .iter()
+                        .map(|(id, t)| {
+                            serde_json::json!({ "table": id, "rows": t.rows, "sha256": t.sha256 })
+                        })
+                        .collect(),
+                ),
+                serde_json::Value::Array(devs.iter().map(deviation_json).collect()),
+            ),
+            None => (serde_json::Value::Null, serde_json::Value::Null),
+        };
+        machine::emit(&machine::envelope(
+            "check",
+            outcome.code(),
+            serde_json::json!({
+                "plan": path.display().to_string(),
+                "plan_valid": true,
+                "specifications": counts.0,
+                "hypotheses": counts.1,
+                "data_tables": counts.2,
+                "data": tables,
+                "deviations": deviations,
+                "data_match_schema": loaded.as_ref().map(|_| !mismatch),
+            }),
+        ));
+        return Ok(outcome);
+    }
+    let Some((tables, devs)) = loaded else {
+        return Ok(outcome);
+    };
     for (id, t) in &tables {
         println!(
             "[data.{}] {} rows, sha256 {}",
@@ -107,12 +165,21 @@ pub fn check(path: &Path, data: bool) -> Result<Outcome> {
             terminal(&d.message)
         );
     }
-    if devs.iter().any(|d| d.severity >= Severity::Deviation) {
+    if mismatch {
         println!("the data do not match the declared schema");
-        return Ok(Outcome::CheckFailed);
+    } else {
+        println!("the data match the declared schema");
     }
-    println!("the data match the declared schema");
-    Ok(Outcome::Success)
+    Ok(outcome)
+}
+
+fn deviation_json(d: &crate::deviation::Deviation) -> serde_json::Value {
+    serde_json::json!({
+        "severity": d.severity.name(),
+        "code": d.code,
+        "subject": d.subject,
+        "message": d.message,
+    })
 }
 
 /// A path for a terminal line (see [`crate::escape`]).
@@ -222,6 +289,7 @@ pub fn run(
     out: Option<&Path>,
     strict: bool,
     replace: bool,
+    json: bool,
 ) -> Result<(Outcome, PathBuf)> {
     let plan = plan::load(path)?;
     let out_dir = out.map_or_else(|| default_out(path), Path::to_path_buf);
@@ -272,20 +340,22 @@ pub fn run(
             return Err(e);
         }
     }
-    print_summary(&plan, &output, &out_dir);
     let deviating = output
         .results
         .deviations
         .iter()
         .any(|d| d.severity >= Severity::Deviation);
-    Ok((
-        if strict && deviating {
-            Outcome::CheckFailed
-        } else {
-            Outcome::Success
-        },
-        out_dir,
-    ))
+    let outcome = if strict && deviating {
+        Outcome::CheckFailed
+    } else {
+        Outcome::Success
+    };
+    if json {
+        machine::emit(&run_json(&output, &out_dir, outcome));
+    } else {
+        print_summary(&plan, &output, &out_dir);
+    }
+    Ok((outcome, out_dir))
 }
 
 fn slashed(p: &Path) -> String {
@@ -317,6 +387,41 @@ fn stage_run(
     let bytes = locked.ledger().prefix_bytes(n + 1).unwrap_or_default();
     drop(locked);
     staged.write(LEDGER_FILE, &bytes)
+}
+
+fn run_json(output: &RunOutput, out_dir: &Path, outcome: Outcome) -> serde_json::Value {
+    let r = &output.results;
+    let hypotheses: Vec<serde_json::Value> = r
+        .hypotheses
+        .iter()
+        .map(|(id, h)| {
+            serde_json::json!({
+                "id": id,
+                "specification": h.specification,
+                "term": h.term,
+                "verdict": h.verdict.to_string(),
+                "adjusted_p_value": h.adjusted_p_value,
+            })
+        })
+        .collect();
+    let (deviations, notes): (Vec<_>, Vec<_>) = r
+        .deviations
+        .iter()
+        .partition(|d| d.severity >= Severity::Deviation);
+    machine::envelope(
+        "run",
+        outcome.code(),
+        serde_json::json!({
+            "out": out_dir.display().to_string(),
+            "results": out_dir.join("results.json").display().to_string(),
+            "report": out_dir.join("report.md").display().to_string(),
+            "results_digest": r.digest,
+            "integrity": crate::report::integrity_line(r),
+            "hypotheses": hypotheses,
+            "deviations": deviations.len(),
+            "notes": notes.len(),
+        }),
+    )
 }
 
 fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {

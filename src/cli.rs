@@ -18,6 +18,18 @@ pub struct Cli {
     pub command: Command,
 }
 
+impl Command {
+    /// The command's name and whether it was asked for JSON output.
+    pub fn json_output(&self) -> Option<&'static str> {
+        match self {
+            Command::Check { json: true, .. } => Some("check"),
+            Command::Run { json: true, .. } => Some("run"),
+            Command::Verify { json: true, .. } => Some("verify"),
+            _ => None,
+        }
+    }
+}
+
 /// The commands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -41,6 +53,9 @@ pub enum Command {
         /// Also read the data files and check them, without estimating anything.
         #[arg(long)]
         data: bool,
+        /// Print one JSON object instead of text (shape: docs/json-output.md).
+        #[arg(long)]
+        json: bool,
     },
     /// Seal a plan: write its fingerprint as the first entry of its ledger.
     #[command(
@@ -77,6 +92,9 @@ pub enum Command {
         /// Replace an existing run directory (otherwise a non-empty one is refused).
         #[arg(long)]
         replace: bool,
+        /// Print one JSON object instead of text (shape: docs/json-output.md).
+        #[arg(long)]
+        json: bool,
     },
     /// Re-derive a run directory's outputs from its plan and data and check them.
     #[command(
@@ -92,6 +110,9 @@ pub enum Command {
         /// Data files to use, wherever they now live; matched to the run's tables by SHA-256.
         #[arg(long, value_name = "PATH", num_args = 1..)]
         data: Vec<PathBuf>,
+        /// Print one JSON object instead of text (shape: docs/json-output.md).
+        #[arg(long)]
+        json: bool,
     },
     /// Write the built-in demo plans and data, seal and run them.
     #[command(after_help = "Example:\n  sworn demo --out /tmp/sworn-demo")]

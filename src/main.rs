@@ -25,9 +25,13 @@ fn quiet_on_closed_pipe() {
 fn main() {
     quiet_on_closed_pipe();
     let cli = sworn::cli::Cli::parse();
+    let json = cli.command.json_output();
     let code = match sworn::app::dispatch(cli.command) {
         Ok(outcome) => outcome.code(),
         Err(err) => {
+            if let Some(command) = json {
+                sworn::app::emit_error_json(command, &err.to_string());
+            }
             eprintln!(
                 "{} {}",
                 sworn::terminal::error_prefix(),

@@ -57,7 +57,12 @@ fn shown(s: &str) -> String {
 ///
 /// # Errors
 /// DIR holds no readable results.json (exit 2); everything else is an outcome.
-pub fn verify(dir: &Path, registered: Option<&str>, data: &[PathBuf]) -> Result<Outcome> {
+pub fn verify(
+    dir: &Path,
+    registered: Option<&str>,
+    data: &[PathBuf],
+    json: bool,
+) -> Result<Outcome> {
     let results_path = dir.join("results.json");
     let text =
         files::read_text_capped(&results_path, Links::Refuse, OUTPUT_CAP).map_err(|e| match e {
@@ -83,13 +88,21 @@ pub fn verify(dir: &Path, registered: Option<&str>, data: &[PathBuf]) -> Result<
         v.problems
             .push("the run has no registration point to compare with --registered".into());
     }
-    v.print(dir);
-    Ok(if v.problems.is_empty() && v.findings.is_empty() {
+    let outcome = if v.problems.is_empty() && v.findings.is_empty() {
         Outcome::Success
     } else {
         Outcome::CheckFailed
-    })
+    };
+    if json {
+        super::machine::emit(&v.json(dir, outcome));
+    } else {
+        v.print(dir);
+    }
+    Ok(outcome)
 }
+
+/// What verify cannot establish, printed with every verification.
+const NOT_ESTABLISHED: &str = "ledger times come from the clock of the machine that ran sworn, and a ledger can be rebuilt by its author; only the fingerprint deposited with the registry (compare it with --registered) ties the plan to a date. A verified run shows the registered analysis was executed as recorded, not that the design is valid.";
 
 impl Verification {
     fn check(&mut self, dir: &Path, text: &str, data: &[PathBuf]) {
@@ -275,6 +288,40 @@ impl Verification {
         }
     }
 
+    fn json(&self, dir: &Path, outcome: Outcome) -> serde_json::Value {
+        use serde_json::json;
+        let registered = self.registration.as_ref().map(|r| {
+            json!({
+                "fingerprint": format!("sha256:{}", r.fingerprint),
+                "event": r.event,
+                "ledger_line": r.line,
+                "recorded": r.time,
+            })
+        });
+        let run = self.run.as_ref().map(|run| {
+            json!({
+                "ledger_line": run.seq,
+                "recorded": run.time,
+                "plan_content_sha256": run.plan.as_ref().map(|p| p.content_sha256.clone()),
+            })
+        });
+        super::machine::envelope(
+            "verify",
+            outcome.code(),
+            json!({
+                "dir": dir.display().to_string(),
+                "verified": outcome == Outcome::Success,
+                "rederives": self.problems.is_empty(),
+                "registered_plan": registered,
+                "run": run,
+                "data": self.data,
+                "rederivation_problems": self.problems,
+                "integrity_findings": self.findings,
+                "not_established": NOT_ESTABLISHED,
+            }),
+        )
+    }
+
     fn print(&self, dir: &Path) {
         println!("verify {}", shown(&dir.display().to_string()));
         match &self.registration {
@@ -313,7 +360,7 @@ impl Verification {
                 println!("    - {f}");
             }
         }
-        println!("  not established: ledger times come from the clock of the machine that ran sworn, and a ledger can be rebuilt by its author; only the fingerprint deposited with the registry (compare it with --registered) ties the plan to a date. A verified run shows the registered analysis was executed as recorded, not that the design is valid.");
+        println!("  not established: {NOT_ESTABLISHED}");
         let verdict = match (self.problems.is_empty(), self.findings.is_empty()) {
             (true, true) => "verified: the outputs re-derive exactly and the run carries no integrity finding".to_string(),
             (false, true) => "NOT verified: the outputs do not re-derive (see above)".to_string(),

@@ -71,7 +71,7 @@ pub fn run_demo(dir: &Path) -> Result<app::Outcome> {
             .and_then(|s| s.to_str())
             .unwrap_or("plan")
             .to_string();
-        let (_, out) = app::run(&plan, Some(&dir.join("out").join(stem)), false, true)?;
+        let (_, out) = app::run(&plan, Some(&dir.join("out").join(stem)), false, true, false)?;
         reports.push(out.join("report.md"));
         println!();
     }

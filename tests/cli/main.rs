@@ -12,6 +12,7 @@ mod happy;
 mod hostile;
 mod init;
 mod integrity;
+mod json;
 mod nist;
 mod readme;
 mod reference;
