@@ -106,6 +106,9 @@ fn completions_are_scripts_for_the_named_shell() {
     );
     let r = s.sworn(&["completions", "zsh"]);
     assert!(r.stdout.starts_with("#compdef sworn"), "{}", r.stdout);
+    let r = s.sworn(&["completions", "fish"]);
+    assert_eq!(r.code, 0);
+    assert!(r.stdout.contains("complete -c sworn"), "{}", r.stdout);
     let r = s.sworn(&["completions", "tcsh"]);
     assert_eq!(r.code, 2);
     assert!(r.stderr.contains("bash"), "{}", r.stderr);
