@@ -71,7 +71,7 @@ pub fn check_scales(spec: &Spec, d: &Design) -> Result<()> {
         };
         return Err(Error::Estimation {
             spec: spec.id.clone(),
-            message: format!("column `{name}` cannot be estimated with in double precision: {fix}"),
+            message: format!("column `{name}` cannot be estimated in double precision: {fix}"),
         });
     }
     Ok(())
