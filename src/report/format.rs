@@ -34,8 +34,15 @@ pub fn pval(p: f64) -> String {
 /// document always compiles with pdflatex.
 pub fn tex(s: &str) -> String {
     let mut out = String::with_capacity(s.len());
+    let mut code = false;
     for c in s.chars() {
         match c {
+            // Markdown-style `code` is set in monospace; an unclosed one ends with the text.
+            '`' => {
+                out.push_str(if code { "}" } else { "\\texttt{" });
+                code = !code;
+            }
+            '\n' => out.push('\n'),
             '\\' => out.push_str("\\textbackslash{}"),
             '&' | '%' | '$' | '#' | '_' | '{' | '}' => {
                 out.push('\\');
@@ -72,6 +79,24 @@ pub fn tex(s: &str) -> String {
             c if c.is_control() => {}
             c if (c as u32) <= 0xFF => out.push(c),
             _ => out.push('?'),
+        }
+    }
+    if code {
+        out.push('}');
+    }
+    out
+}
+
+/// [`tex`] for long unbroken values (fingerprints, paths) in a narrow column: a line may break
+/// after every `/` and after each 16 characters without a space.
+pub fn tex_breakable(s: &str) -> String {
+    let mut out = String::with_capacity(s.len() + s.len() / 8);
+    let mut run = 0;
+    for c in s.chars() {
+        out.push_str(&tex(&c.to_string()));
+        run = if c.is_whitespace() { 0 } else { run + 1 };
+        if c == '/' || run % 16 == 0 && run > 0 {
+            out.push_str("\\allowbreak{}");
         }
     }
     out

@@ -31,6 +31,7 @@ fn environment() -> Result<Environment<'static>> {
         })?;
     env.set_syntax(syntax);
     env.add_filter("tex", |s: String| format::tex(&s));
+    env.add_filter("tex_breakable", |s: String| format::tex_breakable(&s));
     env.set_formatter(|out, state, value| match value.as_str() {
         Some(text) if state.name() == "report.md" => out
             .write_str(&format::md(text))

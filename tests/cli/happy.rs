@@ -102,6 +102,53 @@ fn latex_report_compiles() {
         String::from_utf8_lossy(&out.stdout)
     );
     assert!(s.path("out/report.pdf").exists());
+    let log = std::fs::read_to_string(s.path("out/report.log")).unwrap_or_default();
+    assert_eq!(overfull_over_1pt(&log), Vec::<String>::new());
+}
+
+/// Lines of a LaTeX log reporting a box more than 1 pt too wide.
+fn overfull_over_1pt(log: &str) -> Vec<String> {
+    log.lines()
+        .filter(|l| l.starts_with("Overfull \\hbox ("))
+        .filter(|l| {
+            l.trim_start_matches("Overfull \\hbox (")
+                .split("pt")
+                .next()
+                .and_then(|v| v.parse::<f64>().ok())
+                .is_some_and(|v| v > 1.0)
+        })
+        .map(String::from)
+        .collect()
+}
+
+/// Both demo reports compile and fit the page: no box more than 1 pt too wide.
+#[test]
+fn demo_pdfs_fit_the_page() {
+    if std::process::Command::new("pdflatex")
+        .arg("--version")
+        .output()
+        .is_err()
+    {
+        println!("skipped: pdflatex is not installed (.ci/run installs it)");
+        return;
+    }
+    let dir = tempfile::tempdir().expect("temp dir");
+    assert_eq!(run_in(dir.path(), &["demo", "--out", "demo"]).code, 0);
+    for plan in ["cool-roofs", "grid-demand"] {
+        let out_dir = dir.path().join("demo/out").join(plan);
+        let out = std::process::Command::new("pdflatex")
+            .args(["-interaction=nonstopmode", "-halt-on-error", "report.tex"])
+            .current_dir(&out_dir)
+            .output()
+            .expect("pdflatex runs");
+        assert!(
+            out.status.success(),
+            "{plan}: {}",
+            String::from_utf8_lossy(&out.stdout)
+        );
+        let log = std::fs::read_to_string(out_dir.join("report.log")).unwrap_or_default();
+        assert_eq!(overfull_over_1pt(&log), Vec::<String>::new(), "{plan}");
+    }
 }
 
 #[test]
