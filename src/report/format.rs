@@ -9,6 +9,10 @@ pub fn num(x: f64) -> String {
     let a = x.abs();
     if x == 0.0 {
         "0.000".to_string()
+    } else if (1e-6..1e-3).contains(&a) {
+        // Three significant digits without an exponent (0.000477, not 4.770e-4).
+        let decimals = (2.0 - a.log10().floor()) as usize;
+        format!("{x:.decimals$}")
     } else if !(1e-3..1e6).contains(&a) {
         format!("{x:.3e}")
     } else {
@@ -29,14 +33,34 @@ pub fn pval(p: f64) -> String {
     }
 }
 
+/// A p-value in running text: `p = 0.0123`, or `p < 1e-300` below what is printed.
+pub fn p_is(p: f64) -> String {
+    let shown = pval(p);
+    if shown.starts_with('<') {
+        format!("p {shown}")
+    } else {
+        format!("p = {shown}")
+    }
+}
+
 /// Escape text for LaTeX. Characters with a special meaning are escaped; common symbols
 /// outside Latin-1 get LaTeX equivalents; any other such character becomes `?` so the
 /// document always compiles with pdflatex.
 pub fn tex(s: &str) -> String {
     let mut out = String::with_capacity(s.len());
     let mut code = false;
-    for c in s.chars() {
+    let chars: Vec<char> = s.chars().collect();
+    let mut skip = false;
+    for (i, &c) in chars.iter().enumerate() {
+        if std::mem::take(&mut skip) {
+            continue;
+        }
+        // A minus sign before a number (not a hyphen inside a word or date) is a true minus.
+        let negative_number = c == '-'
+            && chars.get(i + 1).is_some_and(char::is_ascii_digit)
+            && (i == 0 || !chars[i - 1].is_alphanumeric());
         match c {
+            '-' if negative_number && !code => out.push_str("$-$"),
             // Markdown-style `code` is set in monospace; an unclosed one ends with the text.
             '`' => {
                 out.push_str(if code { "}" } else { "\\texttt{" });
@@ -57,7 +81,11 @@ pub fn tex(s: &str) -> String {
             '≥' => out.push_str("$\\geq$"),
             '≤' => out.push_str("$\\leq$"),
             '≠' => out.push_str("$\\neq$"),
-            '−' => out.push('-'),
+            '−' if chars.get(i + 1) == Some(&'∞') => {
+                out.push_str("$-\\infty$");
+                skip = true;
+            }
+            '−' => out.push_str("$-$"),
             '–' => out.push_str("--"),
             '—' => out.push_str("---"),
             '²' => out.push_str("\\textsuperscript{2}"),
@@ -137,7 +165,13 @@ mod tests {
     #[test]
     fn numbers() {
         assert_eq!(num(-1.90123), "-1.901");
-        assert_eq!(num(0.000431), "4.310e-4");
+        assert_eq!(num(0.000431), "0.000431");
+        assert_eq!(num(-0.00000957), "-0.00000957");
+        assert_eq!(num(4.2e-7), "4.200e-7");
+        assert_eq!(p_is(0.0), "p < 1e-300");
+        assert_eq!(p_is(0.5), "p = 0.5000");
+        assert_eq!(tex("[-0.874, -1]"), "[$-$0.874, $-$1]");
+        assert_eq!(tex("2026-05-01 n - k"), "2026-05-01 n - k");
         assert_eq!(num(2.5e7), "2.500e7");
         assert_eq!(num(f64::NAN), "n/a");
         assert_eq!(pval(0.0), "< 1e-300");
@@ -153,7 +187,7 @@ mod tests {
         assert_eq!(md("a|b"), "a\\|b");
         assert_eq!(
             tex("(−∞, 1] ∪ [2, ∞)"),
-            "(-$\\infty$, 1] $\\cup$ [2, $\\infty$)"
+            "($-\\infty$, 1] $\\cup$ [2, $\\infty$)"
         );
     }
 

@@ -1,6 +1,6 @@
 //! The report model: everything a report shows, already formatted as text.
 
-use super::format::{num, pval, set_text};
+use super::format::{num, p_is, pval, set_text};
 use crate::inference::{Correction, Direction};
 use crate::plan::{spec_terms, Plan};
 use crate::results::{Results, SpecResult, Term, TestResult};
@@ -176,11 +176,7 @@ fn test_line(name: &str, t: &TestResult) -> String {
         crate::distribution::Reference::F { df1, df2 } => format!("F({df1}, {df2})"),
         crate::distribution::Reference::ChiSquare { df } => format!("χ²({df})"),
     };
-    format!(
-        "{name}: {} ({dist}), p = {}",
-        num(t.statistic),
-        pval(t.p_value)
-    )
+    format!("{name}: {} ({dist}), {}", num(t.statistic), p_is(t.p_value))
 }
 
 fn ordered_terms(
@@ -391,7 +387,7 @@ fn attrition_lines(r: &Results) -> Vec<String> {
     };
     let d = &a.differential;
     let mut lines = vec![format!(
-        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}, {} errors), p = {}",
+        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}, {} errors), {}",
         a.observed,
         num(d.mean_comparison),
         d.n_comparison,
@@ -400,7 +396,7 @@ fn attrition_lines(r: &Results) -> Vec<String> {
         num(d.difference),
         num(d.std_error),
         a.errors,
-        pval(d.test.p_value)
+        p_is(d.test.p_value)
     )];
     for (y, b) in &a.bounds {
         lines.push(format!(
@@ -617,15 +613,15 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
             terms: ordered_terms(&z_order, &fs.terms),
             lines: vec![
                 format!(
-                    "F on excluded instruments (classical): {}, p = {}",
+                    "F on excluded instruments (classical): {}, {}",
                     num(fs.f_statistic),
-                    pval(fs.f_p_value)
+                    p_is(fs.f_p_value)
                 ),
                 format!(
-                    "F on excluded instruments ({}): {}, p = {}",
+                    "F on excluded instruments ({}): {}, {}",
                     r.errors,
                     num(fs.robust_f_statistic),
-                    pval(fs.robust_f_p_value)
+                    p_is(fs.robust_f_p_value)
                 ),
                 format!(
                     "partial R² of excluded instruments: {} · Shea's partial R² {} · first-stage R² {}",
