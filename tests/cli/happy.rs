@@ -81,12 +81,7 @@ fn verify_without_results_is_bad_input() {
 
 #[test]
 fn latex_report_compiles() {
-    if std::process::Command::new("pdflatex")
-        .arg("--version")
-        .output()
-        .is_err()
-    {
-        println!("skipped: pdflatex is not installed (.ci/run installs it)");
+    if pdflatex_missing() {
         return;
     }
     let s = Study::new();
@@ -104,6 +99,18 @@ fn latex_report_compiles() {
     assert!(s.path("out/report.pdf").exists());
     let log = std::fs::read_to_string(s.path("out/report.log")).unwrap_or_default();
     assert_eq!(overfull_over_1pt(&log), Vec::<String>::new());
+}
+
+/// Whether pdflatex is absent (the test then skips, saying why).
+fn pdflatex_missing() -> bool {
+    let missing = std::process::Command::new("pdflatex")
+        .arg("--version")
+        .output()
+        .is_err();
+    if missing {
+        println!("skipped: pdflatex is not installed (.ci/run installs it)");
+    }
+    missing
 }
 
 /// Lines of a LaTeX log reporting a box more than 1 pt too wide.
@@ -124,12 +131,7 @@ fn overfull_over_1pt(log: &str) -> Vec<String> {
 /// Both demo reports compile and fit the page: no box more than 1 pt too wide.
 #[test]
 fn demo_pdfs_fit_the_page() {
-    if std::process::Command::new("pdflatex")
-        .arg("--version")
-        .output()
-        .is_err()
-    {
-        println!("skipped: pdflatex is not installed (.ci/run installs it)");
+    if pdflatex_missing() {
         return;
     }
     let dir = tempfile::tempdir().expect("temp dir");
