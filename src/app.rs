@@ -9,6 +9,7 @@ use crate::plan::{self, Plan};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
+mod history;
 mod rundir;
 mod verify;
 
@@ -57,6 +58,8 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
             registered,
             data,
         } => verify(&dir, registered.as_deref(), &data),
+        Command::Log { plan } => history::log(&plan),
+        Command::Diff { plan, from, to } => history::diff(&plan, from, to),
         Command::Demo { out } => {
             crate::demo::run_demo(out.as_deref().unwrap_or(Path::new("sworn-demo")))
         }

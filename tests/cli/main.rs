@@ -8,6 +8,7 @@ mod dialects;
 mod guide;
 mod hac;
 mod happy;
+mod history;
 mod init;
 mod integrity;
 mod nist;
