@@ -198,7 +198,8 @@ pub struct WeakInstrumentResult {
     pub weak: bool,
     /// Cragg–Donald minimum-eigenvalue statistic (homoskedastic).
     pub cragg_donald: f64,
-    /// Stock–Yogo critical values for this number of instruments, where tabulated.
+    /// Stock–Yogo critical values for this number of instruments, where tabulated (2SLS
+    /// specifications only: empty for LIML and Fuller, whose tables are not carried).
     pub stock_yogo: Vec<StockYogoValue>,
     /// tF critical value for the 2SLS t-ratio at 5% given the first-stage F (just-identified
     /// specifications; null when no finite value exists).

@@ -690,6 +690,19 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
             ),
             format!("Cragg–Donald statistic (homoskedastic): {}", num(w.cragg_donald)),
         ];
+        let kclass = match s.estimator {
+            crate::plan::Estimator::Liml => Some("LIML"),
+            crate::plan::Estimator::Fuller => Some("Fuller"),
+            _ => None,
+        };
+        if let Some(name) = kclass {
+            lines[0].push_str(
+                "; this critical value bounds the bias of 2SLS, not of this specification's estimator",
+            );
+            lines.push(format!(
+                "Stock–Yogo critical values: none given; Stock and Yogo (2005) tabulate separate values for {name}, which this version does not carry, and the 2SLS values do not apply to a {name} estimate"
+            ));
+        }
         for v in &w.stock_yogo {
             lines.push(format!(
                 "Stock–Yogo critical value, {} {:.0}%: {}",

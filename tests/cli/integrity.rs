@@ -315,3 +315,43 @@ fn hypothesis_added_after_data_stays_out_of_the_registered_family() {
         v.stdout
     );
 }
+
+/// Issue 9 item 8: a LIML or Fuller specification never shows the 2SLS Stock–Yogo values.
+#[test]
+fn kclass_specifications_get_no_2sls_stock_yogo_values() {
+    for (estimator, name) in [("2sls", ""), ("liml", "LIML"), ("fuller", "Fuller")] {
+        let s = Study::new();
+        s.edit(
+            "plan.toml",
+            "estimator = \"2sls\"",
+            &format!("estimator = \"{estimator}\""),
+        );
+        s.edit(
+            "plan.toml",
+            "\"reduced_form\", \"endogeneity\"]",
+            "\"reduced_form\", \"endogeneity\", \"weak_instruments\"]",
+        );
+        let v = s.seal_and_run();
+        let sy = &v["specifications"]["iv"]["weak_instruments"]["stock_yogo"];
+        let report = s.read("out/report.md");
+        if estimator == "2sls" {
+            // One instrument: the four Wald-size cells (16.38 at 10% first).
+            assert_eq!(sy.as_array().map(Vec::len), Some(4), "{sy}");
+            assert!(
+                report.contains("Stock–Yogo critical value, maximal size"),
+                "{report}"
+            );
+            assert!(!report.contains("none given"), "{report}");
+        } else {
+            assert_eq!(sy.as_array().map(Vec::len), Some(0), "{estimator}: {sy}");
+            assert!(!report.contains("16.38"), "{estimator}: {report}");
+            assert!(
+                report.contains(&format!(
+                    "Stock–Yogo critical values: none given; Stock and Yogo (2005) tabulate separate values for {name}"
+                )),
+                "{estimator}: {report}"
+            );
+            assert!(report.contains("bounds the bias of 2SLS"), "{report}");
+        }
+    }
+}
