@@ -494,6 +494,12 @@ pub struct HypothesisResult {
     /// Confidence set for the term at the specification's confidence level (one piece for an
     /// ordinary interval; the Anderson–Rubin set may have unbounded or several pieces).
     pub ci: Option<Vec<SetPiece>>,
+    /// One-sided hypotheses tested with a t or normal reference: the (1 − alpha) one-sided
+    /// bound the test implies, before any family correction (a lower bound for `greater`, an
+    /// upper bound for `less`; the null lies beyond it exactly when the unadjusted test
+    /// rejects). Null for two-sided hypotheses and for tests that imply no such bound
+    /// (resampled, Anderson–Rubin, tF).
+    pub one_sided_bound: Option<f64>,
     /// Resampled tests: the number of draws used (the observed one included).
     pub draws: Option<usize>,
     /// Resampled tests: whether every possible draw was enumerated.

@@ -500,7 +500,21 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
             direction_text(h.direction, h.null)
         ),
         method: method_text(h),
-        interval: h.ci.as_deref().map_or("n/a".to_string(), set_text),
+        interval: match (h.one_sided_bound, h.direction) {
+            (Some(b), crate::inference::Direction::Greater) => format!(
+                "lower bound {} (one-sided {:.0}%); two-sided {}",
+                num(b),
+                100.0 * (1.0 - h.alpha),
+                h.ci.as_deref().map_or("n/a".to_string(), set_text)
+            ),
+            (Some(b), crate::inference::Direction::Less) => format!(
+                "upper bound {} (one-sided {:.0}%); two-sided {}",
+                num(b),
+                100.0 * (1.0 - h.alpha),
+                h.ci.as_deref().map_or("n/a".to_string(), set_text)
+            ),
+            _ => h.ci.as_deref().map_or("n/a".to_string(), set_text),
+        },
         estimate: opt(h.estimate, num),
         p: opt(h.p_value, pval),
         adjusted: format!(

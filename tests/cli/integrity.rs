@@ -355,3 +355,28 @@ fn kclass_specifications_get_no_2sls_stock_yogo_values() {
         }
     }
 }
+
+/// Issue 9 item 8: a one-sided hypothesis reports the one-sided bound its test implies.
+#[test]
+fn one_sided_hypotheses_report_their_bound() {
+    let s = Study::new();
+    let v = s.seal_and_run();
+    let h1 = &v["hypotheses"]["H1"];
+    assert_eq!(h1["direction"], "greater", "{h1}");
+    let (est, se, df) = (
+        h1["estimate"].as_f64().expect("estimate"),
+        h1["std_error"].as_f64().expect("std_error"),
+        h1["df"].as_f64(),
+    );
+    let bound = h1["one_sided_bound"].as_f64().expect("one_sided_bound");
+    assert!(bound < est, "{h1}");
+    // The unadjusted test rejects at alpha exactly when the null lies below the bound.
+    let p = h1["p_value"].as_f64().expect("p");
+    let alpha = h1["alpha"].as_f64().expect("alpha");
+    assert_eq!(bound > 0.0, p <= alpha, "{h1} (df {df:?}, se {se})");
+    let report = s.read("out/report.md");
+    assert!(report.contains("lower bound"), "{report}");
+    assert!(report.contains("(one-sided 95%); two-sided ["), "{report}");
+    // A two-sided hypothesis has none.
+    assert!(v["hypotheses"]["H2"]["one_sided_bound"].is_null());
+}
