@@ -325,6 +325,15 @@ pub struct LeeResult {
 /// Attrition checks.
 #[derive(Debug, Clone, Serialize)]
 pub struct AttritionResult {
+    /// The data table checked.
+    pub data: String,
+    /// The level the differential test is judged at (the plan's `[inference]` alpha).
+    pub alpha: f64,
+    /// Whether the differential test's p-value is at most `alpha`; the report then adds a
+    /// caution naming `hypotheses_on_table`.
+    pub significant: bool,
+    /// Hypotheses whose specification uses this data table.
+    pub hypotheses_on_table: Vec<String>,
     /// Arm indicator.
     pub by: String,
     /// Observed-outcome expression.

@@ -886,6 +886,19 @@ fn cautions(r: &Results) -> Vec<String> {
     {
         c.push("BKY q-values control the false discovery rate (the expected share of false claims among those made), not the chance of any false claim; a q-value can be below its raw p-value when most hypotheses of the family appear false.".into());
     }
+    if let Some(a) = r.attrition.as_ref().filter(|a| a.significant) {
+        let named = if a.hypotheses_on_table.is_empty() {
+            "no hypothesis uses it".to_string()
+        } else {
+            format!("this affects {}", a.hypotheses_on_table.join(", "))
+        };
+        c.push(format!(
+            "Outcomes are observed at different rates in the two arms of table `{}` (differential attrition test p = {} at level {}): the arms' observed units may no longer be comparable, so estimates on this table can be biased whatever their p-values say; {named}. Lee bounds, where reported, bound the effect under their own assumption.",
+            a.data,
+            pval(a.differential.test.p_value),
+            num(a.alpha)
+        ));
+    }
     if r.attrition.as_ref().is_some_and(|a| !a.bounds.is_empty()) {
         c.push("Lee bounds bound the effect for units whose outcome would be observed in either arm, assuming assignment affects whether an outcome is observed in one direction only.".into());
     }
