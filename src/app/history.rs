@@ -99,6 +99,14 @@ pub fn log(plan: &Path) -> Result<Outcome> {
             }
         }
         if e.event == Event::Run {
+            let recorded = ledger.entries().take_while(|x| x.seq < e.seq).any(|x| {
+                is_version(x)
+                    && x.plan.as_ref().map(|p| &p.content_sha256)
+                        == e.plan.as_ref().map(|p| &p.content_sha256)
+            });
+            if !recorded {
+                println!("    this run's plan content matches no earlier seal or amendment");
+            }
             if let Some(d) = &e.results_digest {
                 println!("    results {d}");
             }

@@ -46,6 +46,18 @@ fn log_lists_every_event_and_the_missing_run_directory() {
         assert!(out.contains(needle), "missing `{needle}` in:\n{out}");
     }
     assert!(!out.contains("ledger problem"), "{out}");
+    assert!(!out.contains("matches no earlier"), "{out}");
+    // A run of an edited plan that was never amended is pointed out.
+    s.edit("plan.toml", "errors = \"hc3\"", "errors = \"hc2\"");
+    let r = s.sworn(&["run", "plan.toml", "--out", "edited"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let l = s.sworn(&["log", "plan.toml"]);
+    assert!(
+        l.stdout
+            .contains("this run's plan content matches no earlier seal or amendment"),
+        "{}",
+        l.stdout
+    );
     let none = s.sworn(&["log", "other.toml"]);
     assert_eq!(none.code, 2);
     assert!(
