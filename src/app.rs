@@ -10,6 +10,7 @@ use crate::plan::{self, Plan};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
+mod history;
 mod machine;
 mod rundir;
 mod verify;
@@ -61,6 +62,8 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
             data,
             json,
         } => verify(&dir, registered.as_deref(), &data, json),
+        Command::Log { plan } => history::log(&plan),
+        Command::Diff { plan, from, to } => history::diff(&plan, from, to),
         Command::Demo { out } => {
             crate::demo::run_demo(out.as_deref().unwrap_or(Path::new("sworn-demo")))
         }

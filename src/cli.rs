@@ -114,6 +114,27 @@ pub enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Print a plan's ledger history: seal, amendments, first data read, runs.
+    #[command(
+        after_help = "Example:\n  sworn log plan.toml   # each line: number, time, event, fingerprint"
+    )]
+    Log {
+        /// The plan file (its ledger lies beside it).
+        plan: PathBuf,
+    },
+    /// Show what changed between two plan versions, element by element.
+    #[command(
+        after_help = "Examples:\n  sworn diff plan.toml         # the registered version against the current file\n  sworn diff plan.toml 1 4     # ledger line 1 against ledger line 4"
+    )]
+    Diff {
+        /// The plan file (its ledger lies beside it).
+        plan: PathBuf,
+        /// Ledger line of the older version (default: the registered version, in force when
+        /// the data were first read, else the seal).
+        from: Option<usize>,
+        /// Ledger line of the newer version (default: the current plan file).
+        to: Option<usize>,
+    },
     /// Write the built-in demo plans and data, seal and run them.
     #[command(after_help = "Example:\n  sworn demo --out /tmp/sworn-demo")]
     Demo {

@@ -198,7 +198,8 @@ pub struct WeakInstrumentResult {
     pub weak: bool,
     /// Cragg–Donald minimum-eigenvalue statistic (homoskedastic).
     pub cragg_donald: f64,
-    /// Stock–Yogo critical values for this number of instruments, where tabulated.
+    /// Stock–Yogo critical values for this number of instruments, where tabulated (2SLS
+    /// specifications only: empty for LIML and Fuller, whose tables are not carried).
     pub stock_yogo: Vec<StockYogoValue>,
     /// tF critical value for the 2SLS t-ratio at 5% given the first-stage F (just-identified
     /// specifications; null when no finite value exists).
@@ -324,6 +325,15 @@ pub struct LeeResult {
 /// Attrition checks.
 #[derive(Debug, Clone, Serialize)]
 pub struct AttritionResult {
+    /// The data table checked.
+    pub data: String,
+    /// The level the differential test is judged at (the plan's `[inference]` alpha).
+    pub alpha: f64,
+    /// Whether the differential test's p-value is at most `alpha`; the report then adds a
+    /// caution naming `hypotheses_on_table`.
+    pub significant: bool,
+    /// Hypotheses whose specification uses this data table.
+    pub hypotheses_on_table: Vec<String>,
     /// Arm indicator.
     pub by: String,
     /// Observed-outcome expression.
@@ -493,6 +503,12 @@ pub struct HypothesisResult {
     /// Confidence set for the term at the specification's confidence level (one piece for an
     /// ordinary interval; the Anderson–Rubin set may have unbounded or several pieces).
     pub ci: Option<Vec<SetPiece>>,
+    /// One-sided hypotheses tested with a t or normal reference: the (1 − alpha) one-sided
+    /// bound the test implies, before any family correction (a lower bound for `greater`, an
+    /// upper bound for `less`; the null lies beyond it exactly when the unadjusted test
+    /// rejects). Null for two-sided hypotheses and for tests that imply no such bound
+    /// (resampled, Anderson–Rubin, tF).
+    pub one_sided_bound: Option<f64>,
     /// Resampled tests: the number of draws used (the observed one included).
     pub draws: Option<usize>,
     /// Resampled tests: whether every possible draw was enumerated.

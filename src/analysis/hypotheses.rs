@@ -224,6 +224,7 @@ fn test_one(
         contingency: sub.map(|s| s.contingency.clone()),
         df: f.result.df,
         ci: None,
+        one_sided_bound: None,
         draws: None,
         exact: None,
         verdict: "undetermined",
@@ -340,6 +341,8 @@ fn t_test(
     }
     let statistic = (t.estimate - h.null) / t.std_error;
     let p = inference::p_value(statistic, reference, h.direction);
+    r.one_sided_bound =
+        inference::one_sided_bound(t.estimate, t.std_error, reference, h.alpha, h.direction);
     r.statistic = Some(statistic);
     r.p_value = Some(p);
     r.adjusted_p_value = Some(p);

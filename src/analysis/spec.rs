@@ -917,9 +917,12 @@ impl IvContext<'_> {
                 effective_df: w.effective_df,
                 weak: w.weak,
                 cragg_donald: w.cragg_donald,
+                // Stock and Yogo's tables differ by estimator; only the 2SLS ones are carried,
+                // so a LIML or Fuller specification gets none rather than the 2SLS values.
                 stock_yogo: w
                     .stock_yogo
                     .iter()
+                    .filter(|_| spec.estimator == crate::plan::Estimator::Tsls)
                     .map(|s| StockYogoValue {
                         criterion: s.criterion,
                         level: s.level,

@@ -260,11 +260,28 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
             },
         );
     }
+    let differential = comparison(&differential);
+    let alpha = plan.inference.alpha;
+    let significant = differential.test.p_value <= alpha;
+    let hypotheses_on_table = plan
+        .hypotheses
+        .iter()
+        .filter(|h| {
+            plan.specifications
+                .iter()
+                .any(|s| s.id == h.specification && s.data == a.data)
+        })
+        .map(|h| h.id.clone())
+        .collect();
     Ok(Some(AttritionResult {
+        data: a.data.clone(),
+        alpha,
+        significant,
+        hypotheses_on_table,
         by: a.by.clone(),
         observed: a.observed.0.clone(),
         errors: a.errors.name(),
-        differential: comparison(&differential),
+        differential,
         bounds,
     }))
 }

@@ -106,6 +106,30 @@ pub fn critical_value(reference: &Reference, level: f64) -> f64 {
     -quantile(reference, 0.5 * (1.0 - level))
 }
 
+/// The one-sided confidence bound a one-sided test at level `alpha` implies: for `greater`
+/// the lower bound β̂ − q·se, for `less` the upper bound β̂ + q·se, with q the 1 − alpha
+/// quantile of `reference` (normal or Student's t). The test rejects the null exactly when the
+/// null lies beyond the bound. `None` for a two-sided direction, alpha outside (0, ½), a
+/// negative or NaN standard error, or a reference that is not symmetric about 0.
+pub fn one_sided_bound(
+    estimate: f64,
+    std_error: f64,
+    reference: &Reference,
+    alpha: f64,
+    direction: Direction,
+) -> Option<f64> {
+    if !(is_symmetric(reference) && alpha > 0.0 && alpha < 0.5 && std_error >= 0.0) {
+        return None;
+    }
+    let q = -quantile(reference, alpha);
+    match direction {
+        Direction::TwoSided => None,
+        Direction::Greater => Some(estimate - q * std_error),
+        Direction::Less => Some(estimate + q * std_error),
+    }
+    .filter(|b| b.is_finite())
+}
+
 /// Confidence interval estimate ± q·se, with q the (1 + level)/2 quantile of `reference`
 /// (normal or Student's t).
 ///

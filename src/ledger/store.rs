@@ -183,6 +183,14 @@ impl Ledger {
         self.lines.iter().filter_map(|l| l.entry.as_ref())
     }
 
+    /// Every kept line with its 1-based line number and its entry (`None`: unparsable).
+    pub fn numbered(&self) -> impl Iterator<Item = (usize, Option<&Entry>)> {
+        self.lines
+            .iter()
+            .enumerate()
+            .map(|(i, l)| (i + 1, l.entry.as_ref()))
+    }
+
     /// Number of lines.
     pub fn len(&self) -> usize {
         self.lines.len() + self.unkept.as_ref().map_or(0, |u| u.count)

@@ -496,7 +496,21 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
             direction_text(h.direction, h.null)
         ),
         method: method_text(h),
-        interval: h.ci.as_deref().map_or("n/a".to_string(), set_text),
+        interval: match (h.one_sided_bound, h.direction) {
+            (Some(b), crate::inference::Direction::Greater) => format!(
+                "lower bound {} (one-sided {:.0}%); two-sided {}",
+                num(b),
+                100.0 * (1.0 - h.alpha),
+                h.ci.as_deref().map_or("n/a".to_string(), set_text)
+            ),
+            (Some(b), crate::inference::Direction::Less) => format!(
+                "upper bound {} (one-sided {:.0}%); two-sided {}",
+                num(b),
+                100.0 * (1.0 - h.alpha),
+                h.ci.as_deref().map_or("n/a".to_string(), set_text)
+            ),
+            _ => h.ci.as_deref().map_or("n/a".to_string(), set_text),
+        },
         estimate: opt(h.estimate, num),
         p: opt(h.p_value, pval),
         adjusted: format!(
@@ -686,6 +700,19 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
             ),
             format!("Cragg–Donald statistic (homoskedastic): {}", num(w.cragg_donald)),
         ];
+        let kclass = match s.estimator {
+            crate::plan::Estimator::Liml => Some("LIML"),
+            crate::plan::Estimator::Fuller => Some("Fuller"),
+            _ => None,
+        };
+        if let Some(name) = kclass {
+            lines[0].push_str(
+                "; this critical value bounds the bias of 2SLS, not of this specification's estimator",
+            );
+            lines.push(format!(
+                "Stock–Yogo critical values: none given; Stock and Yogo (2005) tabulate separate values for {name}, which this version does not carry, and the 2SLS values do not apply to a {name} estimate"
+            ));
+        }
         for v in &w.stock_yogo {
             lines.push(format!(
                 "Stock–Yogo critical value, {} {:.0}%: {}",
@@ -854,6 +881,19 @@ fn cautions(r: &Results) -> Vec<String> {
         .any(|h| h.correction == Correction::Bky)
     {
         c.push("BKY q-values control the false discovery rate (the expected share of false claims among those made), not the chance of any false claim; a q-value can be below its raw p-value when most hypotheses of the family appear false.".into());
+    }
+    if let Some(a) = r.attrition.as_ref().filter(|a| a.significant) {
+        let named = if a.hypotheses_on_table.is_empty() {
+            "no hypothesis uses it".to_string()
+        } else {
+            format!("this affects {}", a.hypotheses_on_table.join(", "))
+        };
+        c.push(format!(
+            "Outcomes are observed at different rates in the two arms of table `{}` (differential attrition test p = {} at level {}): the arms' observed units may no longer be comparable, so estimates on this table can be biased whatever their p-values say; {named}. Lee bounds, where reported, bound the effect under their own assumption.",
+            a.data,
+            pval(a.differential.test.p_value),
+            num(a.alpha)
+        ));
     }
     if r.attrition.as_ref().is_some_and(|a| !a.bounds.is_empty()) {
         c.push("Lee bounds bound the effect for units whose outcome would be observed in either arm, assuming assignment affects whether an outcome is observed in one direction only.".into());

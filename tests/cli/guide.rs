@@ -12,6 +12,8 @@ fn every_command_help_carries_an_example() {
         "amend",
         "run",
         "verify",
+        "log",
+        "diff",
         "demo",
         "help",
         "completions",

@@ -315,3 +315,68 @@ fn hypothesis_added_after_data_stays_out_of_the_registered_family() {
         v.stdout
     );
 }
+
+/// Issue 9 item 8: a LIML or Fuller specification never shows the 2SLS Stock–Yogo values.
+#[test]
+fn kclass_specifications_get_no_2sls_stock_yogo_values() {
+    for (estimator, name) in [("2sls", ""), ("liml", "LIML"), ("fuller", "Fuller")] {
+        let s = Study::new();
+        s.edit(
+            "plan.toml",
+            "estimator = \"2sls\"",
+            &format!("estimator = \"{estimator}\""),
+        );
+        s.edit(
+            "plan.toml",
+            "\"reduced_form\", \"endogeneity\"]",
+            "\"reduced_form\", \"endogeneity\", \"weak_instruments\"]",
+        );
+        let v = s.seal_and_run();
+        let sy = &v["specifications"]["iv"]["weak_instruments"]["stock_yogo"];
+        let report = s.read("out/report.md");
+        if estimator == "2sls" {
+            // One instrument: the four Wald-size cells (16.38 at 10% first).
+            assert_eq!(sy.as_array().map(Vec::len), Some(4), "{sy}");
+            assert!(
+                report.contains("Stock–Yogo critical value, maximal size"),
+                "{report}"
+            );
+            assert!(!report.contains("none given"), "{report}");
+        } else {
+            assert_eq!(sy.as_array().map(Vec::len), Some(0), "{estimator}: {sy}");
+            assert!(!report.contains("16.38"), "{estimator}: {report}");
+            assert!(
+                report.contains(&format!(
+                    "Stock–Yogo critical values: none given; Stock and Yogo (2005) tabulate separate values for {name}"
+                )),
+                "{estimator}: {report}"
+            );
+            assert!(report.contains("bounds the bias of 2SLS"), "{report}");
+        }
+    }
+}
+
+/// Issue 9 item 8: a one-sided hypothesis reports the one-sided bound its test implies.
+#[test]
+fn one_sided_hypotheses_report_their_bound() {
+    let s = Study::new();
+    let v = s.seal_and_run();
+    let h1 = &v["hypotheses"]["H1"];
+    assert_eq!(h1["direction"], "greater", "{h1}");
+    let (est, se, df) = (
+        h1["estimate"].as_f64().expect("estimate"),
+        h1["std_error"].as_f64().expect("std_error"),
+        h1["df"].as_f64(),
+    );
+    let bound = h1["one_sided_bound"].as_f64().expect("one_sided_bound");
+    assert!(bound < est, "{h1}");
+    // The unadjusted test rejects at alpha exactly when the null lies below the bound.
+    let p = h1["p_value"].as_f64().expect("p");
+    let alpha = h1["alpha"].as_f64().expect("alpha");
+    assert_eq!(bound > 0.0, p <= alpha, "{h1} (df {df:?}, se {se})");
+    let report = s.read("out/report.md");
+    assert!(report.contains("lower bound"), "{report}");
+    assert!(report.contains("(one-sided 95%); two-sided ["), "{report}");
+    // A two-sided hypothesis has none.
+    assert!(v["hypotheses"]["H2"]["one_sided_bound"].is_null());
+}

@@ -9,6 +9,7 @@ mod fuzz;
 mod guide;
 mod hac;
 mod happy;
+mod history;
 mod hostile;
 mod init;
 mod integrity;

@@ -288,3 +288,75 @@ fn summaries_are_checked_at_check() {
         &["attrition.observed", "`q`"],
     );
 }
+
+/// Issue 9 item 8: differential attrition significant at the plan's alpha adds a caution
+/// naming the hypotheses on the table; equal observation rates add none.
+#[test]
+fn significant_differential_attrition_names_the_hypotheses() {
+    let plan = r#"format = 1
+
+[study]
+title = "Attrition caution"
+
+[data.main]
+path = "data.csv"
+
+[data.main.columns]
+y = { kind = "number" }
+arm = { kind = "binary" }
+
+[attrition]
+by = "arm"
+observed = "not is_missing(y)"
+
+[[specification]]
+id = "s"
+estimator = "ols"
+outcome = "y"
+regressors = ["arm"]
+
+[[hypothesis]]
+id = "H_arm"
+specification = "s"
+term = "arm"
+"#;
+    for differential in [true, false] {
+        let mut csv = String::from("y,arm\n");
+        for i in 0..200 {
+            let arm = i % 2;
+            // Treated 95% observed against 75% (differential), or 75% in both arms.
+            let seen = if differential && arm == 1 {
+                (i / 2) % 20 != 0
+            } else {
+                (i / 2) % 4 != 0
+            };
+            let y = if seen {
+                format!(
+                    "{}",
+                    0.01 * f64::from(i) + f64::from(arm) + f64::from(i % 7)
+                )
+            } else {
+                "NA".into()
+            };
+            csv.push_str(&format!("{y},{arm}\n"));
+        }
+        let s = Study::with(plan, &csv);
+        let v = s.seal_and_run();
+        let a = &v["attrition"];
+        assert_eq!(a["data"], "main", "{a}");
+        assert_eq!(a["alpha"].as_f64(), Some(0.05), "{a}");
+        assert_eq!(
+            a["hypotheses_on_table"],
+            serde_json::json!(["H_arm"]),
+            "{a}"
+        );
+        let p = a["differential"]["test"]["p_value"].as_f64().expect("p");
+        assert_eq!(a["significant"].as_bool(), Some(differential), "{a}");
+        assert_eq!(p <= 0.05, differential, "{a}");
+        let report = s.read("out/report.md");
+        let caution = report
+            .contains("Outcomes are observed at different rates in the two arms of table `main`")
+            && report.contains("this affects H_arm");
+        assert_eq!(caution, differential, "{report}");
+    }
+}

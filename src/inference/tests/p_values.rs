@@ -3,7 +3,8 @@
 use super::{assert_rel, chi2, f, t, LIBRARY};
 use crate::distribution::{Reference, TestStatistic};
 use crate::inference::{
-    confidence_interval, critical_value, log10_p_value, p_value, test_p_value, Direction,
+    confidence_interval, critical_value, log10_p_value, one_sided_bound, p_value, test_p_value,
+    Direction,
 };
 
 /// Two-sided, greater and less p-values of a t statistic.
@@ -155,5 +156,31 @@ fn serialized_names_follow_the_plan_format() {
             "\"holm\"",
             "\"benjamini-hochberg\""
         ]
+    );
+}
+
+/// The one-sided bound uses the 1 − alpha quantile: 1.6448536269514715 for the standard normal
+/// at 5% (Python's `statistics.NormalDist().inv_cdf(0.95)`) and 1.8124611228116756 for t(10)
+/// (scipy `t.ppf(0.95, 10)`).
+#[test]
+fn one_sided_bounds_use_the_one_sided_quantile() {
+    let lower = one_sided_bound(1.0, 0.5, &Reference::Normal, 0.05, Direction::Greater);
+    let want = 1.0 - 0.5 * 1.6448536269514715;
+    assert!(lower.is_some_and(|b| (b - want).abs() < 1e-12), "{lower:?}");
+    let t10 = t(10.0);
+    let upper = one_sided_bound(-2.0, 0.25, &t10, 0.05, Direction::Less);
+    let want = -2.0 + 0.25 * 1.8124611228116756;
+    assert!(upper.is_some_and(|b| (b - want).abs() < 1e-10), "{upper:?}");
+    assert_eq!(
+        one_sided_bound(1.0, 0.5, &Reference::Normal, 0.05, Direction::TwoSided),
+        None
+    );
+    assert_eq!(
+        one_sided_bound(1.0, f64::NAN, &Reference::Normal, 0.05, Direction::Greater),
+        None
+    );
+    assert_eq!(
+        one_sided_bound(1.0, 0.5, &Reference::Normal, 0.6, Direction::Greater),
+        None
     );
 }

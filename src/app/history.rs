@@ -1,0 +1,418 @@
+//! `sworn log` (the ledger's history) and `sworn diff` (what changed between two plan
+//! versions, element by element).
+
+use super::Outcome;
+use crate::error::{Error, Result};
+use crate::ledger::{ledger_path, Entry, Event, Ledger};
+use crate::plan::canonical::{canonical_text, changed_keys};
+use serde_json::Value as Json;
+use std::path::Path;
+
+fn read_ledger(plan: &Path) -> Result<Ledger> {
+    let lpath = ledger_path(plan);
+    Ledger::read(&lpath)?.ok_or_else(|| Error::Ledger {
+        path: lpath,
+        message: "there is no ledger: seal the plan first with `sworn seal PLAN`".into(),
+    })
+}
+
+fn is_version(e: &Entry) -> bool {
+    matches!(e.event, Event::Sealed | Event::Amended) && e.plan.is_some()
+}
+
+/// The line number of the registered version: the plan version in force when the data were
+/// first read, else the seal.
+pub fn registered_line(ledger: &Ledger) -> Option<usize> {
+    let mut current = None;
+    let mut seal = None;
+    for (n, e) in ledger.numbered() {
+        let Some(e) = e else { continue };
+        if e.event == Event::DataFirstRead {
+            return current.or(seal);
+        }
+        if is_version(e) {
+            if e.event == Event::Sealed && seal.is_none() {
+                seal = Some(n);
+            }
+            current = Some(n);
+        }
+    }
+    seal
+}
+
+fn short(sha: &str) -> String {
+    format!("sha256:{sha}")
+}
+
+/// `sworn log PLAN`.
+pub fn log(plan: &Path) -> Result<Outcome> {
+    let ledger = read_ledger(plan)?;
+    let plan_dir = plan
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let registered = registered_line(&ledger);
+    println!(
+        "history of {} ({} ledger line(s))",
+        plan.display(),
+        ledger.len()
+    );
+    let mut previous: Option<String> = None;
+    for (n, entry) in ledger.numbered() {
+        let Some(e) = entry else {
+            println!("line {n}: not a readable entry (see the problems below)");
+            continue;
+        };
+        let what = match e.event {
+            Event::Sealed => "sealed",
+            Event::Amended => "amended",
+            Event::DataFirstRead => "data first read",
+            Event::Run => "run",
+        };
+        let mark = if registered == Some(n) {
+            "  [registered version]"
+        } else {
+            ""
+        };
+        println!("line {n}  {}  {what}{mark}", e.time);
+        if let Some(p) = &e.plan {
+            println!("    plan content {}", short(&p.content_sha256));
+        }
+        if is_version(e) {
+            if let Some(r) = &e.reason {
+                println!("    reason: {r}");
+            }
+            let canonical = e.plan.as_ref().map(|p| p.canonical.as_str()).unwrap_or("");
+            if canonical.is_empty() {
+                println!(
+                    "    this version's content is not recorded in the ledger; diff cannot show it"
+                );
+            } else if let Some(old) = &previous {
+                let keys = changed_keys(old, canonical);
+                println!("    changed: {}", keys.join(", "));
+            }
+            previous = (!canonical.is_empty()).then(|| canonical.to_string());
+        }
+        if let Some(data) = &e.data {
+            for (table, sha) in data {
+                println!("    data.{table} {}", short(sha));
+            }
+        }
+        if e.event == Event::Run {
+            let recorded = ledger.entries().take_while(|x| x.seq < e.seq).any(|x| {
+                is_version(x)
+                    && x.plan.as_ref().map(|p| &p.content_sha256)
+                        == e.plan.as_ref().map(|p| &p.content_sha256)
+            });
+            if !recorded {
+                println!("    this run's plan content matches no earlier seal or amendment");
+            }
+            if let Some(d) = &e.results_digest {
+                println!("    results {d}");
+            }
+            match &e.out {
+                Some(out) => {
+                    let dir = plan_dir.join(out);
+                    if dir.join("results.json").is_file() {
+                        println!("    directory {out}");
+                    } else {
+                        println!("    directory {out} (not there now: never published, e.g. the run was interrupted, or moved or replaced since)");
+                    }
+                }
+                None => println!("    directory not recorded"),
+            }
+        }
+    }
+    for p in ledger.problems() {
+        println!("ledger problem: {p}");
+    }
+    println!("line times are written by the machine that appended them; the fingerprint deposited with the registry is the outside anchor");
+    Ok(Outcome::Success)
+}
+
+/// One side of a diff: a description and canonical content.
+struct Version {
+    label: String,
+    sha: String,
+    canonical: String,
+}
+
+fn version_at(ledger: &Ledger, plan: &Path, line: usize) -> Result<Version> {
+    let lpath = ledger_path(plan);
+    let versions: Vec<String> = ledger
+        .numbered()
+        .filter(|(_, e)| e.is_some_and(|e| e.plan.is_some()))
+        .map(|(n, _)| n.to_string())
+        .collect();
+    let err = |why: &str| Error::Ledger {
+        path: lpath.clone(),
+        message: format!(
+            "line {line} {why}; lines recording a plan version: {} (see `sworn log {}`)",
+            if versions.is_empty() {
+                "none".to_string()
+            } else {
+                versions.join(", ")
+            },
+            plan.display()
+        ),
+    };
+    let entry = ledger
+        .numbered()
+        .find(|(n, _)| *n == line)
+        .map(|(_, e)| e)
+        .ok_or_else(|| err("is not in the ledger"))?
+        .ok_or_else(|| err("is not a readable entry"))?;
+    let print = entry
+        .plan
+        .as_ref()
+        .ok_or_else(|| err("records no plan version"))?;
+    if print.canonical.is_empty() {
+        return Err(err("does not record the plan's content"));
+    }
+    let what = match entry.event {
+        Event::Sealed => "sealed",
+        Event::Amended => "amended",
+        Event::DataFirstRead => "data first read",
+        Event::Run => "run",
+    };
+    Ok(Version {
+        label: format!("line {line} ({what}, {})", entry.time),
+        sha: print.content_sha256.clone(),
+        canonical: print.canonical.clone(),
+    })
+}
+
+fn current_version(plan: &Path) -> Result<Version> {
+    let text =
+        std::fs::read_to_string(plan).map_err(|e| Error::io(plan, "cannot read the plan", e))?;
+    let canonical = canonical_text(plan, &text)?;
+    Ok(Version {
+        label: format!("the current {}", plan.display()),
+        sha: crate::ledger::sha256_hex(canonical.as_bytes()),
+        canonical,
+    })
+}
+
+/// `sworn diff PLAN [FROM] [TO]`.
+pub fn diff(plan: &Path, from: Option<usize>, to: Option<usize>) -> Result<Outcome> {
+    let ledger = read_ledger(plan)?;
+    let from_line = match from {
+        Some(n) => n,
+        None => registered_line(&ledger).ok_or_else(|| Error::Ledger {
+            path: ledger_path(plan),
+            message: "the ledger holds no seal: seal the plan first with `sworn seal PLAN`".into(),
+        })?,
+    };
+    let old = version_at(&ledger, plan, from_line)?;
+    let new = match to {
+        Some(n) => version_at(&ledger, plan, n)?,
+        None => current_version(plan)?,
+    };
+    let registered = if from.is_none() {
+        ", the registered version"
+    } else {
+        ""
+    };
+    println!("from {}{registered}: {}", old.label, short(&old.sha));
+    println!("to   {}: {}", new.label, short(&new.sha));
+    let (Ok(a), Ok(b)) = (
+        serde_json::from_str::<Json>(&old.canonical),
+        serde_json::from_str::<Json>(&new.canonical),
+    ) else {
+        println!(
+            "a version's recorded content cannot be read; only the fingerprints can be compared"
+        );
+        return Ok(Outcome::Success);
+    };
+    let changes = element_changes(&a, &b);
+    if changes.is_empty() {
+        println!("no change: the two versions have the same content");
+        return Ok(Outcome::Success);
+    }
+    let (mut added, mut removed, mut changed) = (0, 0, 0);
+    for c in &changes {
+        match c.kind {
+            Kind::Added => added += 1,
+            Kind::Removed => removed += 1,
+            Kind::Changed => changed += 1,
+        }
+        println!("{:<8} {}", c.kind.name(), c.element);
+        for line in &c.keys {
+            println!("           {line}");
+        }
+    }
+    println!("{changed} element(s) changed, {added} added, {removed} removed");
+    Ok(Outcome::Success)
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Kind {
+    Added,
+    Removed,
+    Changed,
+}
+
+impl Kind {
+    fn name(self) -> &'static str {
+        match self {
+            Kind::Added => "added",
+            Kind::Removed => "removed",
+            Kind::Changed => "changed",
+        }
+    }
+}
+
+/// One element's change, with its keys shown old → new.
+#[derive(Debug)]
+struct Change {
+    kind: Kind,
+    element: String,
+    keys: Vec<String>,
+}
+
+fn id_of(v: &Json) -> Option<&str> {
+    v.get("id").and_then(Json::as_str)
+}
+
+fn with_ids(v: &Json) -> Option<&Vec<Json>> {
+    v.as_array()
+        .filter(|a| !a.is_empty() && a.iter().all(|x| id_of(x).is_some()))
+}
+
+fn tables_only(v: &Json) -> Option<&serde_json::Map<String, Json>> {
+    v.as_object()
+        .filter(|m| !m.is_empty() && m.values().all(Json::is_object))
+}
+
+/// The plan's elements: `section[id]` for arrays of tables with ids, `section.name` for
+/// tables of tables (data tables, families), the section itself otherwise.
+fn elements(v: &Json) -> Vec<(String, &Json)> {
+    let mut out = Vec::new();
+    let Some(map) = v.as_object() else {
+        return vec![("(plan)".into(), v)];
+    };
+    for (k, val) in map {
+        if let Some(items) = with_ids(val) {
+            for item in items {
+                out.push((format!("{k}[{}]", id_of(item).unwrap_or_default()), item));
+            }
+        } else if let Some(sub) = tables_only(val) {
+            for (name, t) in sub {
+                out.push((format!("{k}.{name}"), t));
+            }
+        } else {
+            out.push((k.clone(), val));
+        }
+    }
+    out
+}
+
+fn show(v: &Json) -> String {
+    let mut s = String::new();
+    crate::plan::canonical::write_canonical(v, &mut s);
+    s
+}
+
+fn key_changes(a: &Json, b: &Json, path: &str, out: &mut Vec<String>) {
+    let name = |k: &str| {
+        if path.is_empty() {
+            k.to_string()
+        } else {
+            format!("{path}.{k}")
+        }
+    };
+    match (a, b) {
+        (Json::Object(x), Json::Object(y)) => {
+            let mut keys: Vec<&String> = x.keys().chain(y.keys()).collect();
+            keys.sort();
+            keys.dedup();
+            for k in keys {
+                match (x.get(k), y.get(k)) {
+                    (Some(va), Some(vb)) => key_changes(va, vb, &name(k), out),
+                    (Some(va), None) => out.push(format!("{}: {} → (absent)", name(k), show(va))),
+                    (None, Some(vb)) => out.push(format!("{}: (absent) → {}", name(k), show(vb))),
+                    (None, None) => {}
+                }
+            }
+        }
+        _ if a != b => out.push(format!(
+            "{}: {} → {}",
+            if path.is_empty() { "(value)" } else { path },
+            show(a),
+            show(b)
+        )),
+        _ => {}
+    }
+}
+
+fn element_changes(a: &Json, b: &Json) -> Vec<Change> {
+    let old = elements(a);
+    let new = elements(b);
+    let mut out = Vec::new();
+    for (name, va) in &old {
+        match new.iter().find(|(n, _)| n == name) {
+            Some((_, vb)) if va != vb => {
+                let mut keys = Vec::new();
+                key_changes(va, vb, "", &mut keys);
+                out.push(Change {
+                    kind: Kind::Changed,
+                    element: name.clone(),
+                    keys,
+                });
+            }
+            Some(_) => {}
+            None => out.push(Change {
+                kind: Kind::Removed,
+                element: name.clone(),
+                keys: vec![],
+            }),
+        }
+    }
+    for (name, vb) in &new {
+        if !old.iter().any(|(n, _)| n == name) {
+            let mut keys = Vec::new();
+            if let Json::Object(m) = vb {
+                for (k, v) in m {
+                    keys.push(format!("{k}: {}", show(v)));
+                }
+            }
+            out.push(Change {
+                kind: Kind::Added,
+                element: name.clone(),
+                keys,
+            });
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn canon(text: &str) -> Json {
+        let c = canonical_text(Path::new("p.toml"), text).expect("valid TOML");
+        serde_json::from_str(&c).expect("JSON")
+    }
+
+    #[test]
+    fn changes_are_grouped_by_element() {
+        let a = canon("[[hypothesis]]\nid = \"H1\"\ntest = \"two-sided\"\n[family.primary]\ncorrection = \"holm\"\n[data.main]\npath = \"a.csv\"\n");
+        let b = canon("[[hypothesis]]\nid = \"H1\"\ntest = \"greater\"\n[[hypothesis]]\nid = \"H2\"\ntest = \"less\"\n[family.primary]\ncorrection = \"none\"\n");
+        let c = element_changes(&a, &b);
+        let lines: Vec<String> = c
+            .iter()
+            .map(|c| format!("{} {} {}", c.kind.name(), c.element, c.keys.join("; ")))
+            .collect();
+        assert_eq!(
+            lines,
+            vec![
+                "removed data.main ",
+                "changed family.primary correction: \"holm\" → \"none\"",
+                "changed hypothesis[H1] test: \"two-sided\" → \"greater\"",
+                "added hypothesis[H2] id: \"H2\"; test: \"less\"",
+            ]
+        );
+        assert!(element_changes(&a, &a).is_empty());
+    }
+}
