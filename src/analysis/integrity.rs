@@ -4,6 +4,7 @@
 use crate::deviation::{Deviation, Severity};
 use crate::ledger::{Entry, Event, Ledger, PlanPrint};
 use crate::plan::canonical::changed_keys;
+use crate::plan::compare::{element_changes, Kind};
 use std::collections::{BTreeMap, BTreeSet};
 
 /// The integrity findings of a run.
@@ -91,6 +92,7 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
         state = "ledger-broken";
     }
     data_changes(ledger, data, &mut devs);
+    amended_after_data(ledger, print, &mut devs);
     Integrity {
         sealed,
         ledger_head,
@@ -130,6 +132,59 @@ fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec
             )),
             _ => {}
         }
+    }
+}
+
+/// Every element of the executed plan that differs from the registered version (the last seal
+/// or amendment before the data were first read) is a deviation `amended-after-data` naming the
+/// element and each changed key old → new. Added specifications and hypotheses have codes of
+/// their own (`added-after-data`, `hypothesis-added-after-data`) and are not repeated here.
+fn amended_after_data(ledger: &Ledger, print: &PlanPrint, devs: &mut Vec<Deviation>) {
+    let Some(first_read) = ledger.entries().find(|e| e.event == Event::DataFirstRead) else {
+        return;
+    };
+    let Some((line, registered)) = ledger
+        .entries()
+        .enumerate()
+        .filter(|(_, e)| {
+            e.seq < first_read.seq && matches!(e.event, Event::Sealed | Event::Amended)
+        })
+        .filter_map(|(i, e)| e.plan.as_ref().map(|p| (i + 1, p)))
+        .last()
+    else {
+        return;
+    };
+    if registered.content_sha256 == print.content_sha256 {
+        return;
+    }
+    let (Ok(old), Ok(new)) = (
+        serde_json::from_str::<serde_json::Value>(&registered.canonical),
+        serde_json::from_str::<serde_json::Value>(&print.canonical),
+    ) else {
+        return;
+    };
+    for change in element_changes(&old, &new) {
+        let covered = change.kind == Kind::Added
+            && (change.element.starts_with("specification[")
+                || change.element.starts_with("hypothesis["));
+        if covered {
+            continue;
+        }
+        let keys = if change.keys.is_empty() || change.kind == Kind::Added {
+            String::new()
+        } else {
+            format!(": {}", change.keys.join("; "))
+        };
+        devs.push(Deviation::new(
+            "amended-after-data",
+            Severity::Deviation,
+            change.element.clone(),
+            format!(
+                "{} after the data were first read; the registered version (ledger line {line}, fingerprint {}) differs{keys}",
+                change.kind.name(),
+                short(&registered.content_sha256)
+            ),
+        ));
     }
 }
 

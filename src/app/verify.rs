@@ -23,6 +23,7 @@ const PLAN_CAP: u64 = 16 << 20;
 /// Deviation codes that are integrity findings besides those of severity `integrity`: the
 /// executed analysis differs from the registered one after the data were read.
 const FINDING_CODES: &[&str] = &[
+    "amended-after-data",
     "added-after-data",
     "hypothesis-added-after-data",
     "plan-not-latest",

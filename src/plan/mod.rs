@@ -5,6 +5,7 @@
 //! every expression has been parsed. Nothing here reads data. The structs are plain data.
 
 pub mod canonical;
+pub mod compare;
 pub mod raw;
 mod source;
 mod suggest;

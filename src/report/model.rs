@@ -332,6 +332,10 @@ fn integrity_findings(r: &Results) -> Vec<String> {
             "plan-not-latest",
             "the plan matches an earlier ledger entry, not the latest",
         ),
+        (
+            "amended-after-data",
+            "registered plan amended after the data were read",
+        ),
         ("added-after-data", "added after the data were read"),
         (
             "hypothesis-added-after-data",
@@ -351,6 +355,11 @@ fn integrity_findings(r: &Results) -> Vec<String> {
         }
         out.push(match *code {
             "data-changed" => format!("{phrase} ([data.{}])", subjects.join("], [data.")),
+            "amended-after-data" => format!(
+                "{phrase}: {} change(s) ({})",
+                subjects.len(),
+                subjects.join(", ")
+            ),
             "added-after-data" => format!(
                 "{} specification(s) {phrase}: {}",
                 subjects.len(),

@@ -380,3 +380,36 @@ fn one_sided_hypotheses_report_their_bound() {
     // A two-sided hypothesis has none.
     assert!(v["hypotheses"]["H2"]["one_sided_bound"].is_null());
 }
+
+/// An amendment after the data were read that changes a registered element (here a
+/// specification's error type) is disclosed per element with its keys old → new, the banner
+/// says the run is not as registered, and verify refuses it.
+#[test]
+fn an_element_changed_after_the_data_is_a_finding_with_its_keys() {
+    let s = Study::new();
+    s.seal_and_run();
+    s.edit("plan.toml", "errors = \"hc1\"", "errors = \"hc3\"");
+    let a = s.sworn(&["amend", "plan.toml", "--reason", "robust to leverage"]);
+    assert_eq!(a.code, 0, "{}", a.stderr);
+    let r = s.run_ok();
+    let dev = r["deviations"]
+        .as_array()
+        .and_then(|d| d.iter().find(|d| d["code"] == "amended-after-data"))
+        .cloned()
+        .expect("an amended-after-data deviation");
+    assert_eq!(dev["subject"], "specification[ols]");
+    assert!(
+        dev["message"]
+            .as_str()
+            .is_some_and(|m| m.contains("errors: \"hc1\" → \"hc3\"")),
+        "{dev}"
+    );
+    let report = s.read("out/report.md");
+    assert!(
+        report.contains("NOT AS REGISTERED: registered plan amended after the data were read: 1 change(s) (specification[ols])"),
+        "{report}"
+    );
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 1, "{}", v.stdout);
+    assert!(v.stdout.contains("amended-after-data"), "{}", v.stdout);
+}
