@@ -82,54 +82,14 @@ pub fn execute(
     let integrity = integrity::assess(ledger, &print, &hashes);
     let mut devs = integrity.deviations;
     devs.extend(schema_devs);
-    let mut fitted = BTreeMap::new();
-    let needs = contingency::needs(plan);
-    let resampling = needs.values().any(|n| !n.resample.is_empty());
-    let _progress = (resampling && std::io::IsTerminal::is_terminal(&std::io::stderr()))
-        .then(progress::Progress::start);
-    let none = spec::Needs::default();
-    // Specifications are independent: fit them on all cores, then take the results (and the
-    // first error) in plan order, so the output does not depend on which finished first.
-    let fits: Vec<Result<spec::Fitted>> = plan
-        .specifications
-        .par_iter()
-        .map(|s| {
-            let source = &plan.data[&s.data];
-            let need = needs.get(&s.id).unwrap_or(&none);
-            let rc = spec::ResampleContext {
-                assignment: plan.assignment.as_ref(),
-                resampling: plan.resampling,
-            };
-            spec::fit_spec(s, &tables[&s.data], source, need, &rc)
-        })
-        .collect();
-    for (s, f) in plan.specifications.iter().zip(fits) {
-        let mut f = f?;
-        spec_deviations(
-            plan,
-            s,
-            &mut f,
-            integrity.registered_specs.as_ref(),
-            &mut devs,
-        );
-        fitted.insert(s.id.clone(), f);
-    }
-    let (contingencies, subs) = contingency::evaluate(plan, &fitted);
-    let hypotheses = hypotheses::test_all(
+    let a = analyse(
         plan,
-        &fitted,
-        &subs,
+        tables,
+        integrity.registered_specs.as_ref(),
         integrity.registered_hypotheses.as_ref(),
-    );
-    for (id, h) in &hypotheses {
-        if integrity
-            .registered_hypotheses
-            .as_ref()
-            .is_some_and(|r| !r.contains(id))
-        {
-            devs.push(Deviation::new("hypothesis-added-after-data", Severity::Deviation, id.clone(), format!("this hypothesis was added by an amendment after the data were first read: it is not pre-registered and is corrected apart from the registered members of its family{}", h.family.as_deref().map_or(String::new(), |f| format!(" `{f}`")))));
-        }
-    }
+    )?;
+    devs.extend(a.deviations);
+    let (fitted, hypotheses, contingencies) = (a.fitted, a.hypotheses, a.contingencies);
     deviation::sort(&mut devs);
     let mut results = Results {
         format: 1,
@@ -180,6 +140,70 @@ pub fn execute(
         results,
         files,
         print,
+    })
+}
+
+/// What [`analyse`] computes: every specification, decision rule and hypothesis of a plan.
+pub(crate) struct Analysed {
+    /// Fitted specifications by id.
+    pub fitted: BTreeMap<String, spec::Fitted>,
+    /// Decision rules as evaluated.
+    pub contingencies: Vec<crate::results::ContingencyResult>,
+    /// Hypotheses by id.
+    pub hypotheses: BTreeMap<String, crate::results::HypothesisResult>,
+    /// Deviations found while fitting and testing (not integrity or schema findings).
+    pub deviations: Vec<Deviation>,
+}
+
+/// Fit every specification, evaluate the decision rules and test every hypothesis of `plan`
+/// on `tables`. `registered_specs` / `registered_hypotheses` are the ids registered before the
+/// data were first read (None: no restriction known); the others are disclosed as added.
+/// No I/O; the same call serves a run, its verification and a rehearsal.
+pub(crate) fn analyse(
+    plan: &Plan,
+    tables: &BTreeMap<String, Table>,
+    registered_specs: Option<&std::collections::BTreeSet<String>>,
+    registered_hypotheses: Option<&std::collections::BTreeSet<String>>,
+) -> Result<Analysed> {
+    let mut devs = Vec::new();
+    let mut fitted = BTreeMap::new();
+    let needs = contingency::needs(plan);
+    let resampling = needs.values().any(|n| !n.resample.is_empty());
+    let _progress = (resampling && std::io::IsTerminal::is_terminal(&std::io::stderr()))
+        .then(progress::Progress::start);
+    let none = spec::Needs::default();
+    // Specifications are independent: fit them on all cores, then take the results (and the
+    // first error) in plan order, so the output does not depend on which finished first.
+    let fits: Vec<Result<spec::Fitted>> = plan
+        .specifications
+        .par_iter()
+        .map(|s| {
+            let source = &plan.data[&s.data];
+            let need = needs.get(&s.id).unwrap_or(&none);
+            let rc = spec::ResampleContext {
+                assignment: plan.assignment.as_ref(),
+                resampling: plan.resampling,
+            };
+            spec::fit_spec(s, &tables[&s.data], source, need, &rc)
+        })
+        .collect();
+    for (s, f) in plan.specifications.iter().zip(fits) {
+        let mut f = f?;
+        spec_deviations(plan, s, &mut f, registered_specs, &mut devs);
+        fitted.insert(s.id.clone(), f);
+    }
+    let (contingencies, subs) = contingency::evaluate(plan, &fitted);
+    let hypotheses = hypotheses::test_all(plan, &fitted, &subs, registered_hypotheses);
+    for (id, h) in &hypotheses {
+        if registered_hypotheses.is_some_and(|r| !r.contains(id)) {
+            devs.push(Deviation::new("hypothesis-added-after-data", Severity::Deviation, id.clone(), format!("this hypothesis was added by an amendment after the data were first read: it is not pre-registered and is corrected apart from the registered members of its family{}", h.family.as_deref().map_or(String::new(), |f| format!(" `{f}`")))));
+        }
+    }
+    Ok(Analysed {
+        fitted,
+        contingencies,
+        hypotheses,
+        deviations: devs,
     })
 }
 
