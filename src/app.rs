@@ -109,6 +109,10 @@ pub fn check(path: &Path, data: bool, json: bool) -> Result<Outcome> {
     } else {
         None
     };
+    let inspected = match &loaded {
+        Some((tables, _)) => record_inspection(&plan, tables)?,
+        None => None,
+    };
     let mismatch = loaded
         .as_ref()
         .is_some_and(|(_, devs)| devs.iter().any(|d| d.severity >= Severity::Deviation));
@@ -144,6 +148,7 @@ pub fn check(path: &Path, data: bool, json: bool) -> Result<Outcome> {
                 "data": tables,
                 "deviations": deviations,
                 "data_match_schema": loaded.as_ref().map(|_| !mismatch),
+                "data_inspected_line": inspected.map(|l| l.number),
             }),
         ));
         return Ok(outcome);
@@ -151,6 +156,9 @@ pub fn check(path: &Path, data: bool, json: bool) -> Result<Outcome> {
     let Some((tables, devs)) = loaded else {
         return Ok(outcome);
     };
+    if let Some(line) = inspected {
+        println!("{}", inspection_line(line));
+    }
     for (id, t) in &tables {
         println!(
             "[data.{}] {} rows, sha256 {}",
@@ -174,6 +182,60 @@ pub fn check(path: &Path, data: bool, json: bool) -> Result<Outcome> {
         println!("the data match the declared schema");
     }
     Ok(outcome)
+}
+
+/// A ledger line written by [`record_inspection`].
+#[derive(Clone, Copy)]
+struct Recorded {
+    number: usize,
+    first: bool,
+}
+
+fn inspection_line(r: Recorded) -> String {
+    if r.first {
+        format!("recorded in the ledger (line {}): the data were inspected; the plan version in force now is the registered version, and any later amendment is disclosed as made after the data were seen", r.number)
+    } else {
+        format!(
+            "recorded in the ledger (line {}): data inspected that differ from every earlier inspection or read",
+            r.number
+        )
+    }
+}
+
+/// `check --data` on a sealed plan records that the data were inspected (`data-inspected`),
+/// unless an earlier inspection or read recorded exactly these files. An unsealed plan has no
+/// ledger to record in; nothing is written then.
+fn record_inspection(
+    plan: &Plan,
+    tables: &BTreeMap<String, crate::data::Table>,
+) -> Result<Option<Recorded>> {
+    let lpath = ledger_path(&plan.path);
+    let Some(mut locked) = Ledger::lock(&lpath, false)? else {
+        return Ok(None);
+    };
+    let hashes: BTreeMap<String, String> = tables
+        .iter()
+        .map(|(k, t)| (k.clone(), t.sha256.clone()))
+        .collect();
+    let ledger = locked.ledger();
+    if !ledger.entries().any(|e| e.event == Event::Sealed) {
+        return Ok(None);
+    }
+    let seen = ledger.entries().any(|e| {
+        matches!(e.event, Event::DataInspected | Event::DataFirstRead)
+            && e.data.as_ref() == Some(&hashes)
+    });
+    if seen {
+        return Ok(None);
+    }
+    let first = ledger.first_data().is_none();
+    let mut entry = Entry::new(Event::DataInspected);
+    entry.data = Some(hashes);
+    locked.append(entry)?;
+    Ok(Some(Recorded {
+        number: locked.ledger().len(),
+        first,
+    }))
 }
 
 fn deviation_json(d: &crate::deviation::Deviation) -> serde_json::Value {
@@ -438,8 +500,21 @@ fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {
         let p = h
             .adjusted_p_value
             .map_or("n/a".to_string(), crate::report::pval);
+        let note = match (h.registration, h.as_amended.as_deref()) {
+            ("added-after-data", _) => " [added after the data: not pre-registered]".to_string(),
+            ("removed-after-data", _) => {
+                " [as registered; removed from the plan after the data]".to_string()
+            }
+            (_, Some(a)) => format!(
+                " [as registered; as amended: {}, adjusted p {}]",
+                a.verdict,
+                a.adjusted_p_value
+                    .map_or("n/a".to_string(), crate::report::pval)
+            ),
+            _ => String::new(),
+        };
         println!(
-            "  {} ({} in {}): {} (adjusted p {p})",
+            "  {} ({} in {}): {} (adjusted p {p}){note}",
             terminal(id),
             terminal(&h.term),
             terminal(&h.specification),

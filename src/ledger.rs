@@ -6,8 +6,10 @@
 //! exclusive lock, re-reads the file under it and writes one line at the end (never a
 //! rewrite), so simultaneous commands cannot lose each other's entries.
 
+mod registration;
 mod store;
 
+pub use registration::{is_version, Line, Moment};
 pub use store::{Ledger, Locked, MAX_BAD};
 
 use crate::error::{Error, Result};
@@ -74,8 +76,11 @@ pub enum Event {
     Sealed,
     /// The plan was changed, with a reason.
     Amended,
-    /// The data files were read for the first time.
+    /// The data files were read for the first time by a run (results are about to be
+    /// computed).
     DataFirstRead,
+    /// `sworn check --data` read the data files of a sealed plan (the data were seen).
+    DataInspected,
     /// A run wrote outputs.
     Run,
 }
@@ -96,7 +101,7 @@ pub struct Entry {
     /// Reason for an amendment.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub reason: Option<String>,
-    /// Data file fingerprints by table id (data-first-read, run).
+    /// Data file fingerprints by table id (data-inspected, data-first-read, run).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub data: Option<BTreeMap<String, String>>,
     /// Digest of results.json (run).

@@ -34,6 +34,12 @@ pub struct Results {
     pub attrition: Option<AttritionResult>,
     /// Deviations and notes, most severe first.
     pub deviations: Vec<Deviation>,
+    /// The registration point and every element of the executed plan classified against it
+    /// (null when the plan was never sealed).
+    pub registration: Option<Registration>,
+    /// The registered version's own results, when the executed plan differs from it after the
+    /// data were seen (null otherwise).
+    pub as_registered: Option<AsRegistered>,
     /// `sha256:` digest of everything above.
     pub digest: String,
 }
@@ -65,6 +71,65 @@ pub struct PlanInfo {
     pub ledger_head: Option<String>,
     /// One of `sealed-unchanged`, `sealed-cosmetic-change`, `changed`, `not-sealed`, `ledger-broken`.
     pub integrity: &'static str,
+}
+
+/// The registered version of the plan (the last seal or amendment before the data were first
+/// seen) and how each element of the executed plan stands against it.
+#[derive(Debug, Clone, Serialize)]
+pub struct Registration {
+    /// SHA-256 of the registered version's canonical form.
+    pub content_sha256: String,
+    /// Its ledger line.
+    pub ledger_line: usize,
+    /// `sealed` or `amended`: how it was recorded.
+    pub recorded_as: &'static str,
+    /// When the data were first seen (the first `data-inspected` or `data-first-read` entry).
+    pub data_inspected: Option<Moment>,
+    /// When results were first computed (the first `data-first-read` entry).
+    pub results_computed: Option<Moment>,
+    /// Every element of the registered and executed plans, in canonical order.
+    pub elements: Vec<ElementRegistration>,
+}
+
+/// A ledger moment.
+#[derive(Debug, Clone, Serialize)]
+pub struct Moment {
+    /// Ledger line.
+    pub ledger_line: usize,
+    /// The event recorded there (`data-inspected`, `data-first-read`).
+    pub event: &'static str,
+    /// Its time as recorded (the recording machine's clock).
+    pub time: String,
+}
+
+/// One element of the plan against the registered version.
+#[derive(Debug, Clone, Serialize)]
+pub struct ElementRegistration {
+    /// `specification[id]`, `hypothesis[id]`, `family.NAME`, `data.ID` or a section.
+    pub element: String,
+    /// `unchanged`, `changed`, `added` or `removed`.
+    pub status: &'static str,
+    /// Each changed key as `key: old → new` (every key for an added element).
+    pub keys: Vec<String>,
+    /// `data-inspected` or `results-computed`: the moment the change followed.
+    pub after: Option<&'static str>,
+    /// Ledger line of the amendment that first made the change (null: no amendment records it).
+    pub amendment_line: Option<usize>,
+    /// That amendment's reason.
+    pub reason: Option<String>,
+}
+
+/// The registered version run on the same data, reported beside the executed plan.
+#[derive(Debug, Clone, Serialize)]
+pub struct AsRegistered {
+    /// SHA-256 of the registered version's canonical form.
+    pub content_sha256: String,
+    /// Why the registered version could not be run (null when it ran).
+    pub error: Option<String>,
+    /// The registered version of each specification that was changed or removed afterwards.
+    pub specifications: BTreeMap<String, SpecResult>,
+    /// The registered version's decision rules as evaluated.
+    pub contingencies: Vec<ContingencyResult>,
 }
 
 /// One data table.
@@ -519,6 +584,12 @@ pub struct HypothesisResult {
     pub reason: Option<String>,
     /// False when the specification is not pre-registered.
     pub pre_registered: bool,
+    /// `registered` (in the registered version: the fields above are its result as
+    /// registered), `added-after-data`, `removed-after-data` (the registered result of a
+    /// hypothesis the executed plan no longer has) or `not-registered` (no registration point).
+    pub registration: &'static str,
+    /// The executed plan's result, when it differs from the registered one.
+    pub as_amended: Option<Box<HypothesisResult>>,
 }
 
 /// Canonical JSON text of a serialisable value (sorted keys, no whitespace).
@@ -611,6 +682,8 @@ mod tests {
                 "s",
                 "m",
             )],
+            registration: None,
+            as_registered: None,
             digest: String::new(),
         }
     }

@@ -230,6 +230,8 @@ fn test_one(
         verdict: "undetermined",
         reason: None,
         pre_registered: f.result.pre_registered,
+        registration: "not-registered",
+        as_amended: None,
     };
     let (mut terms, mut reference) = (&f.result.terms, f.reference);
     let mut degenerate = &f.degenerate;

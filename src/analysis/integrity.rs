@@ -1,10 +1,13 @@
-//! What the ledger says about this run: seal state, plan changes, data changes, and which
-//! specifications were registered before the data were first read.
+//! What the ledger says about this run: seal state, plan changes, data changes, the
+//! registered version (the plan in force when the data were first seen; see
+//! [`crate::ledger::Moment`]) and every element of the executed plan classified against it.
 
 use crate::deviation::{Deviation, Severity};
-use crate::ledger::{Entry, Event, Ledger, PlanPrint};
+use crate::ledger::{Entry, Event, Ledger, Line, PlanPrint};
 use crate::plan::canonical::changed_keys;
-use crate::plan::compare::{element_changes, Kind};
+use crate::plan::compare::{element_changes, element_names, Change, Kind};
+use crate::results::{ElementRegistration, Moment, Registration};
+use serde_json::Value as Json;
 use std::collections::{BTreeMap, BTreeSet};
 
 /// The integrity findings of a run.
@@ -21,6 +24,11 @@ pub struct Integrity {
     pub registered_specs: Option<BTreeSet<String>>,
     /// Hypothesis ids registered before the data were first read (None: no restriction known).
     pub registered_hypotheses: Option<BTreeSet<String>>,
+    /// The registration point and each element against it (None: no registered version).
+    pub registration: Option<Registration>,
+    /// The registered version's canonical text, when the executed plan's content differs
+    /// from it (the registered analysis is then run beside the executed one).
+    pub registered_text: Option<String>,
 }
 
 fn plan_entries(ledger: &Ledger) -> Vec<(usize, &Entry)> {
@@ -92,7 +100,12 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
         state = "ledger-broken";
     }
     data_changes(ledger, data, &mut devs);
-    amended_after_data(ledger, print, &mut devs);
+    let registration = registration(ledger, print, &mut devs);
+    let registered_text = ledger
+        .registered()
+        .and_then(|l| l.entry.plan.as_ref())
+        .filter(|p| p.content_sha256 != print.content_sha256 && !p.canonical.is_empty())
+        .map(|p| p.canonical.clone());
     Integrity {
         sealed,
         ledger_head,
@@ -100,12 +113,18 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
         deviations: devs,
         registered_specs: registered_ids(ledger, "specification"),
         registered_hypotheses: registered_ids(ledger, "hypothesis"),
+        registration,
+        registered_text,
     }
 }
 
 fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec<Deviation>) {
-    let Some(first) = ledger.entries().find(|e| e.event == Event::DataFirstRead) else {
+    let Some(Line { entry: first, .. }) = ledger.first_data() else {
         return;
+    };
+    let seen = match first.event {
+        Event::DataInspected => "first inspected",
+        _ => "first read",
     };
     let recorded = first.data.clone().unwrap_or_default();
     for (id, sha) in data {
@@ -115,7 +134,7 @@ fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec
                 Severity::Integrity,
                 id.clone(),
                 format!(
-                    "data file of [data.{id}] changed since it was first read ({} at {}, now {})",
+                    "data file of [data.{id}] changed since it was {seen} ({} at {}, now {})",
                     short(r),
                     first.time,
                     short(sha)
@@ -126,7 +145,7 @@ fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec
                 Severity::Deviation,
                 id.clone(),
                 format!(
-                    "[data.{id}] was not among the data first read at {}",
+                    "[data.{id}] was not among the data {seen} at {}",
                     first.time
                 ),
             )),
@@ -135,57 +154,144 @@ fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec
     }
 }
 
-/// Every element of the executed plan that differs from the registered version (the last seal
-/// or amendment before the data were first read) is a deviation `amended-after-data` naming the
-/// element and each changed key old → new. Added specifications and hypotheses have codes of
-/// their own (`added-after-data`, `hypothesis-added-after-data`) and are not repeated here.
-fn amended_after_data(ledger: &Ledger, print: &PlanPrint, devs: &mut Vec<Deviation>) {
-    let Some(first_read) = ledger.entries().find(|e| e.event == Event::DataFirstRead) else {
-        return;
-    };
-    let Some((line, registered)) = ledger
-        .entries()
-        .enumerate()
-        .filter(|(_, e)| {
-            e.seq < first_read.seq && matches!(e.event, Event::Sealed | Event::Amended)
+/// The registration point and every element of the executed plan against it. Each element
+/// that differs is a deviation `amended-after-data` naming the element, each changed key
+/// old → new, the moment the change followed and the amendment (with its reason) that made
+/// it. Added specifications and hypotheses have codes of their own (`added-after-data`,
+/// `hypothesis-added-after-data`) and are not repeated here.
+fn registration(
+    ledger: &Ledger,
+    print: &PlanPrint,
+    devs: &mut Vec<Deviation>,
+) -> Option<Registration> {
+    let registered = ledger.registered()?;
+    let reg_print = registered.entry.plan.as_ref()?;
+    let parse = |c: &str| serde_json::from_str::<Json>(c).ok();
+    let moment = |l: Option<Line>| {
+        l.map(|l| Moment {
+            ledger_line: l.number,
+            event: if l.entry.event == Event::DataInspected {
+                "data-inspected"
+            } else {
+                "data-first-read"
+            },
+            time: l.entry.time.clone(),
         })
-        .filter_map(|(i, e)| e.plan.as_ref().map(|p| (i + 1, p)))
-        .last()
-    else {
-        return;
     };
-    if registered.content_sha256 == print.content_sha256 {
-        return;
-    }
-    let (Ok(old), Ok(new)) = (
-        serde_json::from_str::<serde_json::Value>(&registered.canonical),
-        serde_json::from_str::<serde_json::Value>(&print.canonical),
-    ) else {
-        return;
-    };
-    for change in element_changes(&old, &new) {
-        let covered = change.kind == Kind::Added
-            && (change.element.starts_with("specification[")
-                || change.element.starts_with("hypothesis["));
-        if covered {
-            continue;
-        }
-        let keys = if change.keys.is_empty() || change.kind == Kind::Added {
-            String::new()
+    let mut out = Registration {
+        content_sha256: reg_print.content_sha256.clone(),
+        ledger_line: registered.number,
+        recorded_as: if registered.entry.event == Event::Sealed {
+            "sealed"
         } else {
-            format!(": {}", change.keys.join("; "))
-        };
-        devs.push(Deviation::new(
-            "amended-after-data",
-            Severity::Deviation,
-            change.element.clone(),
-            format!(
-                "{} after the data were first read; the registered version (ledger line {line}, fingerprint {}) differs{keys}",
-                change.kind.name(),
-                short(&registered.content_sha256)
-            ),
-        ));
+            "amended"
+        },
+        data_inspected: moment(ledger.first_data()),
+        results_computed: moment(ledger.first_results()),
+        elements: Vec::new(),
+    };
+    let (Some(old), Some(new)) = (parse(&reg_print.canonical), parse(&print.canonical)) else {
+        // A version written before the ledger kept content: nothing to compare element-wise.
+        return Some(out);
+    };
+    let later: Vec<(Line, Json)> = ledger
+        .versions()
+        .filter(|l| l.entry.seq > registered.entry.seq)
+        .filter_map(|l| Some((l, parse(&l.entry.plan.as_ref()?.canonical)?)))
+        .collect();
+    let changes = element_changes(&old, &new);
+    let mut names = element_names(&old);
+    for n in element_names(&new) {
+        if !names.contains(&n) {
+            names.push(n);
+        }
     }
+    for name in names {
+        let Some(change) = changes.iter().find(|c| c.element == name) else {
+            out.elements.push(ElementRegistration {
+                element: name,
+                status: "unchanged",
+                keys: Vec::new(),
+                after: None,
+                amendment_line: None,
+                reason: None,
+            });
+            continue;
+        };
+        let made_by = first_amendment(&old, &later, &name);
+        let after = made_by
+            .and_then(|l| ledger.moment_of(l.entry))
+            .or(ledger.current_moment());
+        let element = ElementRegistration {
+            element: name,
+            status: change.kind.name(),
+            keys: change.keys.clone(),
+            after: after.map(|m| m.key()),
+            amendment_line: made_by.map(|l| l.number),
+            reason: made_by.and_then(|l| l.entry.reason.clone()),
+        };
+        if let Some(d) = amended_deviation(change, &element, after, registered, reg_print) {
+            devs.push(d);
+        }
+        out.elements.push(element);
+    }
+    Some(out)
+}
+
+/// The first amendment after the registered version that touched `element`.
+fn first_amendment<'a>(
+    registered: &Json,
+    later: &[(Line<'a>, Json)],
+    element: &str,
+) -> Option<Line<'a>> {
+    let mut previous = registered;
+    for (line, version) in later {
+        if element_changes(previous, version)
+            .iter()
+            .any(|c| c.element == element)
+        {
+            return Some(*line);
+        }
+        previous = version;
+    }
+    None
+}
+
+fn amended_deviation(
+    change: &Change,
+    element: &ElementRegistration,
+    after: Option<crate::ledger::Moment>,
+    registered: Line,
+    reg_print: &PlanPrint,
+) -> Option<Deviation> {
+    let covered = change.kind == Kind::Added
+        && (change.element.starts_with("specification[")
+            || change.element.starts_with("hypothesis["));
+    if covered {
+        return None;
+    }
+    let keys = if change.keys.is_empty() || change.kind == Kind::Added {
+        String::new()
+    } else {
+        format!(": {}", change.keys.join("; "))
+    };
+    let when = after.map_or("after the data were seen", |m| m.phrase());
+    let by = match (element.amendment_line, &element.reason) {
+        (Some(n), Some(r)) => format!(" by the amendment at ledger line {n} (reason: {r})"),
+        (Some(n), None) => format!(" by the amendment at ledger line {n}"),
+        (None, _) => " and no amendment records it".to_string(),
+    };
+    Some(Deviation::new(
+        "amended-after-data",
+        Severity::Deviation,
+        change.element.clone(),
+        format!(
+            "{} {when}{by}; the registered version (ledger line {}, fingerprint {}) differs{keys}",
+            change.kind.name(),
+            registered.number,
+            short(&reg_print.content_sha256)
+        ),
+    ))
 }
 
 fn short(sha: &str) -> String {
@@ -195,14 +301,7 @@ fn short(sha: &str) -> String {
 /// Ids of the `[[table]]` entries named `table` (e.g. "specification", "hypothesis") in the
 /// last plan recorded before the data were first read.
 fn registered_ids(ledger: &Ledger, table: &str) -> Option<BTreeSet<String>> {
-    let first_read = ledger
-        .entries()
-        .find(|e| e.event == Event::DataFirstRead)?
-        .seq;
-    let before = ledger
-        .entries()
-        .filter(|e| e.seq < first_read && matches!(e.event, Event::Sealed | Event::Amended))
-        .last()?;
+    let before = ledger.registered()?.entry;
     let canonical: serde_json::Value =
         serde_json::from_str(&before.plan.as_ref()?.canonical).ok()?;
     let items = canonical.get(table).and_then(|v| v.as_array());

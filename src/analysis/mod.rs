@@ -11,6 +11,7 @@ mod hac;
 mod hypotheses;
 mod integrity;
 mod progress;
+mod registered;
 mod spec;
 mod summaries;
 
@@ -89,7 +90,43 @@ pub fn execute(
         integrity.registered_hypotheses.as_ref(),
     )?;
     devs.extend(a.deviations);
-    let (fitted, hypotheses, contingencies) = (a.fitted, a.hypotheses, a.contingencies);
+    let (fitted, mut hypotheses, contingencies) = (a.fitted, a.hypotheses, a.contingencies);
+    let specifications: BTreeMap<_, _> = fitted.into_iter().map(|(k, f)| (k, f.result)).collect();
+    let as_registered = match (&integrity.registered_text, &integrity.registration) {
+        (Some(canonical), Some(point)) => {
+            let mut rerun = registered::rerun(plan, canonical, &point.content_sha256);
+            rerun.keep_differing(&specifications);
+            match rerun.hypotheses.take() {
+                Some(reg) => hypotheses = registered::merge(reg, hypotheses),
+                None => {
+                    registered::mark(
+                        &mut hypotheses,
+                        true,
+                        integrity.registered_hypotheses.as_ref(),
+                    );
+                    devs.push(Deviation::new(
+                        "registered-version-failed",
+                        Severity::Integrity,
+                        "plan",
+                        format!(
+                            "the plan was amended after the data were seen, and its registered version (ledger line {}) could not be run beside it: {}; only the amended analysis is reported",
+                            point.ledger_line,
+                            rerun.report.error.as_deref().unwrap_or("unknown reason")
+                        ),
+                    ));
+                }
+            }
+            Some(rerun.report)
+        }
+        _ => {
+            registered::mark(
+                &mut hypotheses,
+                integrity.registration.is_some(),
+                integrity.registered_hypotheses.as_ref(),
+            );
+            None
+        }
+    };
     deviation::sort(&mut devs);
     let mut results = Results {
         format: 1,
@@ -120,13 +157,15 @@ pub fn execute(
                 )
             })
             .collect(),
-        specifications: fitted.into_iter().map(|(k, f)| (k, f.result)).collect(),
+        specifications,
         hypotheses,
         contingencies,
         indices: summaries::indices(plan, tables),
         balance: summaries::balance(plan, tables)?,
         attrition: summaries::attrition(plan, tables)?,
         deviations: devs,
+        registration: integrity.registration,
+        as_registered,
         digest: String::new(),
     };
     results.digest = results.compute_digest();

@@ -3,7 +3,7 @@
 
 use super::Outcome;
 use crate::error::{Error, Result};
-use crate::ledger::{ledger_path, Entry, Event, Ledger};
+use crate::ledger::{is_version, ledger_path, Event, Ledger};
 use crate::plan::canonical::{canonical_text, changed_keys};
 use crate::plan::compare::{element_changes, Kind};
 use serde_json::Value as Json;
@@ -17,28 +17,24 @@ fn read_ledger(plan: &Path) -> Result<Ledger> {
     })
 }
 
-fn is_version(e: &Entry) -> bool {
-    matches!(e.event, Event::Sealed | Event::Amended) && e.plan.is_some()
+/// The line number of the registered version: the plan version in force when the data were
+/// first seen (see [`crate::ledger::Moment`]); before that, the seal.
+pub fn registered_line(ledger: &Ledger) -> Option<usize> {
+    ledger
+        .registered()
+        .or_else(|| ledger.versions().find(|l| l.entry.event == Event::Sealed))
+        .map(|l| l.number)
 }
 
-/// The line number of the registered version: the plan version in force when the data were
-/// first read, else the seal.
-pub fn registered_line(ledger: &Ledger) -> Option<usize> {
-    let mut current = None;
-    let mut seal = None;
-    for (n, e) in ledger.numbered() {
-        let Some(e) = e else { continue };
-        if e.event == Event::DataFirstRead {
-            return current.or(seal);
-        }
-        if is_version(e) {
-            if e.event == Event::Sealed && seal.is_none() {
-                seal = Some(n);
-            }
-            current = Some(n);
-        }
+/// How an event is named in the history.
+fn event_name(e: Event) -> &'static str {
+    match e {
+        Event::Sealed => "sealed",
+        Event::Amended => "amended",
+        Event::DataFirstRead => "data first read",
+        Event::DataInspected => "data inspected",
+        Event::Run => "run",
     }
-    seal
 }
 
 fn short(sha: &str) -> String {
@@ -64,12 +60,7 @@ pub fn log(plan: &Path) -> Result<Outcome> {
             println!("line {n}: not a readable entry (see the problems below)");
             continue;
         };
-        let what = match e.event {
-            Event::Sealed => "sealed",
-            Event::Amended => "amended",
-            Event::DataFirstRead => "data first read",
-            Event::Run => "run",
-        };
+        let what = event_name(e.event);
         let mark = if registered == Some(n) {
             "  [registered version]"
         } else {
@@ -82,6 +73,9 @@ pub fn log(plan: &Path) -> Result<Outcome> {
         if is_version(e) {
             if let Some(r) = &e.reason {
                 println!("    reason: {r}");
+            }
+            if let Some(m) = ledger.moment_of(e) {
+                println!("    made {}: not part of the registered plan", m.phrase());
             }
             let canonical = e.plan.as_ref().map(|p| p.canonical.as_str()).unwrap_or("");
             if canonical.is_empty() {
@@ -170,12 +164,7 @@ fn version_at(ledger: &Ledger, plan: &Path, line: usize) -> Result<Version> {
     if print.canonical.is_empty() {
         return Err(err("does not record the plan's content"));
     }
-    let what = match entry.event {
-        Event::Sealed => "sealed",
-        Event::Amended => "amended",
-        Event::DataFirstRead => "data first read",
-        Event::Run => "run",
-    };
+    let what = event_name(entry.event);
     Ok(Version {
         label: format!("line {line} ({what}, {})", entry.time),
         sha: print.content_sha256.clone(),

@@ -372,20 +372,14 @@ impl Verification {
     }
 }
 
-/// The plan version in force when the data were first read: the last seal or amendment
-/// before the `data-first-read` entry (before the run, when no read is recorded).
+/// The registration point (see [`crate::ledger::Moment`]): the last seal or amendment before
+/// the data were first seen; before the run, when the prefix records no data being seen.
 fn registration(ledger: &Ledger) -> Option<Registration> {
-    let cut = ledger
-        .entries()
-        .find(|e| e.event == Event::DataFirstRead)
-        .map_or(u64::MAX, |e| e.seq);
-    let e = ledger
-        .entries()
-        .filter(|e| e.seq < cut && matches!(e.event, Event::Sealed | Event::Amended))
-        .last()?;
+    let line = ledger.registered().or_else(|| ledger.versions().last())?;
+    let e = line.entry;
     Some(Registration {
         fingerprint: e.plan.as_ref()?.content_sha256.clone(),
-        line: ledger.index_of(e.seq)? + 1,
+        line: line.number,
         event: if e.event == Event::Sealed {
             "sealed"
         } else {

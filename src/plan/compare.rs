@@ -113,6 +113,12 @@ fn key_changes(a: &Json, b: &Json, path: &str, out: &mut Vec<String>) {
     }
 }
 
+/// The names of a plan's elements (see [`element_changes`]), in canonical order.
+pub fn element_names(v: &Json) -> Vec<String> {
+    elements(v).into_iter().map(|(name, _)| name).collect()
+}
+
+/// Every element added, removed or changed between two canonical plans, with its keys.
 pub fn element_changes(a: &Json, b: &Json) -> Vec<Change> {
     let old = elements(a);
     let new = elements(b);

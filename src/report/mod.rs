@@ -6,6 +6,7 @@
 
 mod format;
 mod model;
+mod registration;
 
 pub use format::{num, pval, set_text, tex};
 pub use model::{integrity_line, ReportModel};

@@ -17,6 +17,7 @@ pub struct ReportModel {
     provenance: Vec<(String, String)>,
     integrity: String,
     hypotheses: Vec<HypRow>,
+    registration: Option<super::registration::RegistrationModel>,
     contingencies: Vec<RuleRow>,
     indices: Vec<String>,
     balance: Option<BalanceModel>,
@@ -134,7 +135,7 @@ fn direction_text(d: Direction, null: f64) -> String {
     }
 }
 
-fn correction_name(c: Correction) -> &'static str {
+pub(super) fn correction_name(c: Correction) -> &'static str {
     match c {
         Correction::None => "none",
         Correction::Bonferroni => "Bonferroni",
@@ -218,7 +219,19 @@ impl ReportModel {
             summary: plan.study.summary.clone(),
             provenance: provenance(r),
             integrity: integrity_line(r),
-            hypotheses: plan.hypotheses.iter().map(|h| hyp_row(&h.id, r)).collect(),
+            hypotheses: plan
+                .hypotheses
+                .iter()
+                .map(|h| h.id.as_str())
+                .chain(
+                    r.hypotheses
+                        .iter()
+                        .filter(|(_, h)| h.registration == "removed-after-data")
+                        .map(|(id, _)| id.as_str()),
+                )
+                .map(|id| hyp_row(id, r))
+                .collect(),
+            registration: super::registration::build(r),
             contingencies: plan
                 .contingencies
                 .iter()
@@ -329,6 +342,10 @@ fn integrity_findings(r: &Results) -> Vec<String> {
         ("data-changed", "data changed since first read"),
         ("unsealed", "the plan was never sealed"),
         (
+            "registered-version-failed",
+            "the registered version could not be run beside the amended plan",
+        ),
+        (
             "plan-not-latest",
             "the plan matches an earlier ledger entry, not the latest",
         ),
@@ -356,7 +373,8 @@ fn integrity_findings(r: &Results) -> Vec<String> {
         out.push(match *code {
             "data-changed" => format!("{phrase} ([data.{}])", subjects.join("], [data.")),
             "amended-after-data" => format!(
-                "{phrase}: {} change(s) ({})",
+                "{}: {} change(s) ({})",
+                amended_phrase(r),
                 subjects.len(),
                 subjects.join(", ")
             ),
@@ -369,6 +387,20 @@ fn integrity_findings(r: &Results) -> Vec<String> {
         });
     }
     out
+}
+
+/// "registered plan amended after …", naming the later of the two moments any change followed.
+fn amended_phrase(r: &Results) -> &'static str {
+    let after_results = r.registration.as_ref().is_some_and(|p| {
+        p.elements
+            .iter()
+            .any(|e| e.after == Some("results-computed"))
+    });
+    if after_results {
+        "registered plan amended after results were computed"
+    } else {
+        "registered plan amended after the data were inspected"
+    }
 }
 
 fn seal_state_line(r: &Results) -> String {
@@ -494,6 +526,16 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
     let mut note = h.reason.clone().unwrap_or_default();
     if !h.pre_registered {
         note = format!("not pre-registered. {note}").trim().to_string();
+    }
+    if h.registration == "removed-after-data" {
+        note =
+            format!("removed from the plan after the data were seen; result as registered. {note}")
+                .trim()
+                .to_string();
+    } else if h.as_amended.is_some() {
+        note = format!("as registered; the amended plan gives a different result (see Registered and amended analyses). {note}")
+            .trim()
+            .to_string();
     }
     HypRow {
         id: id.to_string(),

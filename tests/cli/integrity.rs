@@ -406,7 +406,7 @@ fn an_element_changed_after_the_data_is_a_finding_with_its_keys() {
     );
     let report = s.read("out/report.md");
     assert!(
-        report.contains("NOT AS REGISTERED: registered plan amended after the data were read: 1 change(s) (specification[ols])"),
+        report.contains("NOT AS REGISTERED: registered plan amended after results were computed: 1 change(s) (specification[ols])"),
         "{report}"
     );
     let v = s.sworn(&["verify", "out"]);
