@@ -487,6 +487,29 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
             "the specification has no terms at all",
         ));
     }
+    leverage_errors(ctx, s, spec)
+}
+
+/// HC2 and HC3 weight residuals by leverage: fixed by the literature for OLS only, and
+/// computed by sworn for at most one absorbed fixed effect. Refused here, at `check`, rather
+/// than when the run reaches the specification.
+fn leverage_errors(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
+    let (Some(v), Errors::Hc2 | Errors::Hc3) = (&s.errors, &spec.errors) else {
+        return Ok(());
+    };
+    let key = format!("specification[{}].errors", spec.id);
+    let kind = spec.errors.name();
+    if spec.estimator != Estimator::Ols {
+        return Err(ctx.at(v, key, format!(
+            "{kind} errors are not available for {} (no leverage is fixed for an instrumental-variable estimator); use \"classical\", \"hc0\", \"hc1\" or cluster errors",
+            spec.estimator.name()
+        )));
+    }
+    if spec.fixed_effects.len() > 1 {
+        return Err(ctx.at(v, key, format!(
+            "{kind} errors need the leverage of the absorbed fixed effects, which sworn computes for a single fixed effect only; use \"hc0\", \"hc1\" or cluster errors, or one fixed effect"
+        )));
+    }
     Ok(())
 }
 

@@ -126,3 +126,37 @@ fn bad_expression_points_into_it() {
     let s = Study::with(&plan, &data_csv());
     fails(&s, &["derive.lx", "ln(x +)"]);
 }
+
+/// Issue 11: HC2/HC3 with an instrumental-variable estimator, or with more than one absorbed
+/// fixed effect, passed `check` and failed only when the run reached the specification.
+#[test]
+fn leverage_errors_are_refused_at_check() {
+    let s = Study::new();
+    s.edit(
+        "plan.toml",
+        "errors = { kind = \"cluster\", by = \"grp\" }",
+        "errors = \"hc3\"",
+    );
+    let c = s.sworn(&["check", "plan.toml"]);
+    assert_eq!(c.code, 2, "{}{}", c.stdout, c.stderr);
+    assert!(
+        c.stderr.contains("hc3 errors are not available for 2sls")
+            && c.stderr.contains("specification[iv].errors"),
+        "{}",
+        c.stderr
+    );
+    let s = Study::new();
+    s.edit(
+        "plan.toml",
+        "errors = \"hc1\"",
+        "errors = \"hc2\"\nfixed_effects = [\"grp\", \"z\"]",
+    );
+    let c = s.sworn(&["check", "plan.toml"]);
+    assert_eq!(c.code, 2, "{}{}", c.stdout, c.stderr);
+    assert!(
+        c.stderr.contains("single fixed effect only")
+            && c.stderr.contains("specification[ols].errors"),
+        "{}",
+        c.stderr
+    );
+}
