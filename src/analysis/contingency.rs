@@ -2,7 +2,8 @@
 //!
 //! Rules are evaluated in plan order after every specification is fitted. A rule fires when
 //! its trigger holds: the effective first-stage F is below `below`, the control-function
-//! endogeneity test (with the specification's error type) has p > `not_rejected_at`. The first
+//! endogeneity test (with the specification's error type) has p > `not_rejected_at`, or the
+//! estimation sample has fewer clusters than `fewer_than`. The first
 //! rule that fires on a specification decides the inference of that specification's
 //! hypotheses; a later rule that also fires is recorded as superseded and changes nothing.
 //! Invoking a rule is not a deviation: it was fixed before the data were seen.

@@ -1,9 +1,13 @@
 //! The numerical core: OLS, 2SLS, coefficient covariances and IV diagnostics.
 //!
-//! Role: pure numerics over nalgebra matrices. Nothing here reads files, sees polars or
-//! prints; results are named structs, statistics are reported as
+//! Role: numerics over nalgebra matrices. Nothing here reads files, sees polars or prints;
+//! results are named structs, statistics are reported as
 //! [`TestStatistic`](crate::distribution::TestStatistic) values (statistic plus reference
-//! distribution) and p-values are left to `crate::inference`.
+//! distribution) and p-values are left to `crate::inference`. Two stated exceptions, both in
+//! `resample`: resampled p-values are computed there (`summarise`: they are shares of draws,
+//! with no reference distribution), and a process-wide counter of finished draws
+//! (`DRAWS_DONE`) feeds the progress display; it is only ever incremented and never affects a
+//! result.
 //!
 //! Invariants shared by every function:
 //! * The caller builds the design: if the model has an intercept, the caller includes a

@@ -229,7 +229,8 @@ fn trigger(ctx: &Ctx, when: &Spanned<toml::Value>, key: &str) -> Result<Trigger>
     }
 }
 
-/// The wild cluster bootstrap needs `[resampling]`, an OLS specification and one-way clusters.
+/// The wild cluster bootstrap needs `[resampling]`, one-way clusters and an OLS specification
+/// or a 2SLS one with one endogenous regressor (the wild restricted efficient bootstrap).
 fn wild_bootstrap_fits(
     ctx: &Ctx,
     plan: &Plan,
