@@ -15,6 +15,8 @@ mod validate_hac;
 mod validate_rules;
 mod validate_spec;
 mod validate_summaries;
+#[cfg(test)]
+mod validate_tests;
 
 use crate::expr::Expr;
 use crate::inference::{Correction, Direction};
