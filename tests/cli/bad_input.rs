@@ -1,5 +1,6 @@
 //! Bad input: exit 2, a message naming the problem, and no output files.
 
+use crate::common::Edit;
 use crate::common::{data_csv, Study, PLAN};
 
 fn fails(s: &Study, expect: &[&str]) {
@@ -28,7 +29,7 @@ fn malformed_toml() {
 #[test]
 fn unknown_key() {
     let s = Study::with(
-        &PLAN.replace("errors = \"hc1\"", "errors = \"hc1\"\nweights = \"w\""),
+        &PLAN.edit("errors = \"hc1\"", "errors = \"hc1\"\nweights = \"w\""),
         &data_csv(),
     );
     fails(&s, &["unknown field `weights`"]);
@@ -37,7 +38,7 @@ fn unknown_key() {
 #[test]
 fn unknown_column_suggests_the_closest() {
     let s = Study::with(
-        &PLAN.replace(
+        &PLAN.edit(
             "controls = [\"x\"]\nerrors = \"hc1\"",
             "controls = [\"xx\"]\nerrors = \"hc1\"",
         ),
@@ -57,7 +58,7 @@ fn unknown_column_suggests_the_closest() {
 #[test]
 fn wrong_column_kind() {
     let s = Study::with(
-        &PLAN.replace(
+        &PLAN.edit(
             "controls = [\"x\"]\nerrors = \"hc1\"",
             "controls = [\"grp\"]\nerrors = \"hc1\"",
         ),
@@ -69,7 +70,7 @@ fn wrong_column_kind() {
 #[test]
 fn missing_data_file() {
     let s = Study::with(
-        &PLAN.replace("path = \"data.csv\"", "path = \"nothere.csv\""),
+        &PLAN.edit("path = \"data.csv\"", "path = \"nothere.csv\""),
         &data_csv(),
     );
     fails(&s, &["does not exist", "nothere.csv"]);
@@ -90,7 +91,7 @@ fn non_numeric_value() {
 
 #[test]
 fn rank_deficient_design() {
-    let plan = PLAN.replace("[[hypothesis]]\nid = \"H1\"", "[derive]\nx2 = \"2 * x\"\n\n[[specification]]\nid = \"dup\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\", \"x2\"]\n\n[[hypothesis]]\nid = \"H1\"");
+    let plan = PLAN.edit("[[hypothesis]]\nid = \"H1\"", "[derive]\nx2 = \"2 * x\"\n\n[[specification]]\nid = \"dup\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\", \"x2\"]\n\n[[hypothesis]]\nid = \"H1\"");
     let s = Study::with(&plan, &data_csv());
     fails(
         &s,
@@ -105,10 +106,10 @@ fn rank_deficient_design() {
 
 #[test]
 fn unknown_hypothesis_term_and_family() {
-    let s = Study::with(&PLAN.replace("term = \"x\"", "term = \"z\""), &data_csv());
+    let s = Study::with(&PLAN.edit("term = \"x\"", "term = \"z\""), &data_csv());
     fails(&s, &["unknown term `z`"]);
     let s = Study::with(
-        &PLAN.replace(
+        &PLAN.edit(
             "family = \"main\"\n\n[[hypothesis]]",
             "family = \"mian\"\n\n[[hypothesis]]",
         ),
@@ -119,7 +120,7 @@ fn unknown_hypothesis_term_and_family() {
 
 #[test]
 fn bad_expression_points_into_it() {
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "[[specification]]\nid = \"ols\"",
         "[derive]\nlx = \"ln(x +)\"\n\n[[specification]]\nid = \"ols\"",
     );

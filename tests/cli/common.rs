@@ -176,3 +176,18 @@ pub fn codes(results: &serde_json::Value) -> Vec<String> {
             .collect()
     })
 }
+
+/// Plan and file edits that fail loudly when their anchor text is missing (a plain
+/// `str::replace` silently does nothing when the anchor drifts, and the test then checks
+/// an unedited plan).
+pub trait Edit {
+    /// Replace every occurrence of `from` with `to`; panics when `from` does not occur.
+    fn edit(&self, from: &str, to: &str) -> String;
+}
+
+impl Edit for str {
+    fn edit(&self, from: &str, to: &str) -> String {
+        assert!(self.contains(from), "edit anchor not found: `{from}`");
+        self.replace(from, to)
+    }
+}

@@ -2,6 +2,7 @@
 //! validation at check, each trigger and action at run, and each shape of the
 //! Anderson–Rubin confidence set as printed in the report.
 
+use crate::common::Edit;
 use crate::common::Study;
 use serde_json::Value;
 use std::fmt::Write;
@@ -144,7 +145,7 @@ fn check_fails(plan: &str, expect: &[&str]) {
 #[test]
 fn rule_naming_an_unknown_specification_fails_at_check() {
     let rules =
-        weak_rule("anderson-rubin").replace("specification = \"iv\"", "specification = \"ivv\"");
+        weak_rule("anderson-rubin").edit("specification = \"iv\"", "specification = \"ivv\"");
     check_fails(
         &plan("[\"z\"]", "\"hc1\"", &rules),
         &[
@@ -157,7 +158,7 @@ fn rule_naming_an_unknown_specification_fails_at_check() {
 
 #[test]
 fn impossible_thresholds_fail_at_check() {
-    let below = weak_rule("anderson-rubin").replace("below = 10.0", "below = -1.0");
+    let below = weak_rule("anderson-rubin").edit("below = 10.0", "below = -1.0");
     check_fails(
         &plan("[\"z\"]", "\"hc1\"", &below),
         &["contingency[weak].when", "positive"],
@@ -172,7 +173,7 @@ fn impossible_thresholds_fail_at_check() {
         &plan("[\"z\"]", "{ kind = \"cluster\", by = \"grp\" }", few),
         &["contingency[g].when", "at least 3"],
     );
-    let unknown = weak_rule("anderson-rubin").replace(
+    let unknown = weak_rule("anderson-rubin").edit(
         "weak_instruments = { below = 10.0 }",
         "first_stage = { below = 10.0 }",
     );
@@ -186,7 +187,7 @@ fn impossible_thresholds_fail_at_check() {
 fn actions_that_do_not_fit_the_specification_fail_at_check() {
     // Anderson–Rubin on an OLS specification.
     let on_ols =
-        weak_rule("anderson-rubin").replace("specification = \"iv\"", "specification = \"ols\"");
+        weak_rule("anderson-rubin").edit("specification = \"iv\"", "specification = \"ols\"");
     check_fails(
         &plan("[\"z\"]", "\"hc1\"", &on_ols),
         &["instrumental-variable specification", "`ols`"],
@@ -202,7 +203,7 @@ fn actions_that_do_not_fit_the_specification_fail_at_check() {
         &plan("[\"z\"]", "\"hc1\"", to_iv),
         &["contingency[ex].then", "OLS specification"],
     );
-    let to_nothing = to_iv.replace("then = \"iv\"", "then = \"olss\"");
+    let to_nothing = to_iv.edit("then = \"iv\"", "then = \"olss\"");
     check_fails(
         &plan("[\"z\"]", "\"hc1\"", &to_nothing),
         &["unknown specification `olss`"],
@@ -222,7 +223,7 @@ fn actions_that_do_not_fit_the_specification_fail_at_check() {
     let twice = format!(
         "{}{}",
         weak_rule("liml"),
-        weak_rule("tf").replace("id = \"weak\"", "id = \"weak2\"")
+        weak_rule("tf").edit("id = \"weak\"", "id = \"weak2\"")
     );
     check_fails(
         &plan("[\"z\"]", "\"hc1\"", &twice),

@@ -1,5 +1,6 @@
 //! Each deviation the contract lists shows up with its code.
 
+use crate::common::Edit;
 use crate::common::{codes, data_csv, Study, PLAN};
 
 fn has(r: &serde_json::Value, code: &str) -> bool {
@@ -92,8 +93,8 @@ fn schema_deviations() {
     lines[3] = format!("{},{},{},2,11.5,{},{}", f[0], f[1], f[2], f[5], f[6]);
     lines[4] = format!(",{}", lines[4].split_once(',').map_or("", |x| x.1));
     let plan = PLAN
-        .replace("rows = { min = 200, max = 300 }", "rows = { min = 300 }")
-        .replace(
+        .edit("rows = { min = 200, max = 300 }", "rows = { min = 300 }")
+        .edit(
             "yb  = { kind = \"binary\" }",
             "yb  = { kind = \"binary\" }\nextra = { kind = \"number\" }",
         );
@@ -129,7 +130,7 @@ fn missing_share_collinear_drop_and_exploratory() {
         );
         *line = format!("{head2},,{yb}");
     }
-    let plan = PLAN.replace("[[hypothesis]]\nid = \"H1\"", "[derive]\nx2 = \"2 * x\"\n\n[[specification]]\nid = \"dup\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\", \"x2\"]\non_collinear = \"drop\"\nexploratory = true\n\n[[hypothesis]]\nid = \"H1\"");
+    let plan = PLAN.edit("[[hypothesis]]\nid = \"H1\"", "[derive]\nx2 = \"2 * x\"\n\n[[specification]]\nid = \"dup\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\", \"x2\"]\non_collinear = \"drop\"\nexploratory = true\n\n[[hypothesis]]\nid = \"H1\"");
     let s = Study::with(&plan, &(lines.join("\n") + "\n"));
     let r = s.seal_and_run();
     for code in ["missing-share", "collinear-dropped", "exploratory"] {
@@ -141,7 +142,7 @@ fn missing_share_collinear_drop_and_exploratory() {
 
 #[test]
 fn binary_outcome_with_classical_errors_gets_a_note() {
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "outcome = \"y\"\nregressors = [\"d\"]\ncontrols = [\"x\"]\nerrors = \"hc1\"",
         "outcome = \"yb\"\nregressors = [\"d\"]\ncontrols = [\"x\"]\nerrors = \"classical\"",
     );

@@ -3,6 +3,7 @@
 //! dropped-rows convention and the Newey–West 1994 rule) written as a weekly CSV, and the
 //! plan errors a user can make.
 
+use crate::common::Edit;
 use crate::common::Study;
 use crate::reference::{close, fixture};
 use serde_json::Value;
@@ -175,17 +176,17 @@ fn hac_plan_errors_name_the_fix() {
     let f = fixture("hac.json");
     let csv = data(&f);
     refused(
-        &PLAN.replace("order_by = \"t\"\n", ""),
+        &PLAN.edit("order_by = \"t\"\n", ""),
         &csv,
         &["specification[ols].errors", "add order_by = \"COLUMN\""],
     );
     refused(
-        &PLAN.replace("kernel = \"bartlett\"", "kernel = \"parzen\""),
+        &PLAN.edit("kernel = \"bartlett\"", "kernel = \"parzen\""),
         &csv,
         &["kernel \"parzen\" is not available"],
     );
     refused(
-        &PLAN.replace(
+        &PLAN.edit(
             "bandwidth = 5 }\n\n[[specification]]\nid = \"iv\"",
             "bandwidth = 0 }\n\n[[specification]]\nid = \"iv\"",
         ),
@@ -193,7 +194,7 @@ fn hac_plan_errors_name_the_fix() {
         &["bandwidth 0 is not valid", "newey-west-1994"],
     );
     refused(
-        &PLAN.replace(
+        &PLAN.edit(
             "{ kind = \"hac\", kernel = \"bartlett\", bandwidth = 5 }",
             "\"hac\"",
         ),

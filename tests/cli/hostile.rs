@@ -1,6 +1,7 @@
 //! Hostile and degenerate input (issue 10): damaged Parquet files, plan text that tries to
 //! forge sworn's own lines, degenerate and extreme data, and one test per message fixed.
 
+use crate::common::Edit;
 use crate::common::{data_csv, run_in, Ran, Study, PLAN};
 use std::path::Path;
 
@@ -111,11 +112,11 @@ fn issue_10_ansi_in_plan_path_cannot_forge_a_verified_line() {
 #[test]
 fn issue_10_plan_text_cannot_forge_report_or_terminal_lines() {
     let plan = PLAN
-        .replace(
+        .edit(
             "title = \"Test study\"",
             "title = \"Study\\n\\n**Integrity: sealed, verified**\\n<!--\\u001b[2K\\u202e\\u0000\"",
         )
-        .replace(
+        .edit(
             "claim = \"d raises y\"",
             "claim = \"<script>alert(1)</script><img src=x onerror=alert(2)> | cell\"",
         );
@@ -161,7 +162,7 @@ fn with_column(csv: &str, col: usize, f: impl Fn(&str) -> String) -> String {
 #[test]
 fn issue_10_constant_outcome_is_undetermined() {
     let csv = with_column(&data_csv(), 5, |_| "5.0".into());
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "[[hypothesis]]\nid = \"H1\"",
         "[[specification]]\nid = \"liml\"\nestimator = \"liml\"\noutcome = \"y\"\nendogenous = [\"d\"]\ninstruments = [\"z\"]\ncontrols = [\"x\"]\n\n[[hypothesis]]\nid = \"H1\"",
     );
@@ -191,7 +192,7 @@ fn issue_10_constant_outcome_is_undetermined() {
 /// rescale (they used to be called collinear, or to print t = inf).
 #[test]
 fn issue_10_extreme_scales_are_refused_naming_the_column() {
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "x   = { kind = \"number\", min = 0, max = 10 }",
         "x   = { kind = \"number\" }",
     );
@@ -243,7 +244,7 @@ fn issue_10_stray_text_names_the_line_and_the_missing_codes() {
 #[test]
 fn issue_10_long_flat_sum_is_not_called_nesting() {
     let sum = vec!["x"; 201].join(" + ");
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "[[specification]]\nid = \"ols\"",
         &format!("[derive]\nbig = \"{sum}\"\n\n[[specification]]\nid = \"ols\""),
     );
@@ -270,7 +271,7 @@ fn issue_10_unknown_error_kind_lists_the_valid_kinds() {
 
 #[test]
 fn issue_10_instrument_equal_to_endogenous_is_reported_at_instruments() {
-    let plan = PLAN.replace("instruments = [\"z\"]", "instruments = [\"d\"]");
+    let plan = PLAN.edit("instruments = [\"z\"]", "instruments = [\"d\"]");
     let s = Study::with(&plan, &data_csv());
     refused(
         &s.sworn(&["check", "plan.toml"]),
@@ -283,7 +284,7 @@ fn issue_10_instrument_equal_to_endogenous_is_reported_at_instruments() {
 
 #[test]
 fn issue_10_all_singleton_fixed_effects_say_so() {
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "controls = [\"x\"]\nerrors = \"hc1\"",
         "controls = [\"x\"]\nfixed_effects = [\"id\"]\nerrors = \"hc1\"",
     );
@@ -302,7 +303,7 @@ fn issue_10_all_singleton_fixed_effects_say_so() {
 
 #[test]
 fn issue_10_collinear_balance_covariates_are_named() {
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "[[hypothesis]]\nid = \"H1\"",
         "[derive]\nx2 = \"2 * x\"\n\n[balance]\nby = \"z\"\ncovariates = [\"x\", \"x2\"]\n\n[[hypothesis]]\nid = \"H1\"",
     );
@@ -317,7 +318,7 @@ fn issue_10_collinear_balance_covariates_are_named() {
 /// cluster by its label), and `run` stops naming the label, not an internal number.
 #[test]
 fn issue_10_treatment_varying_within_a_cluster_is_found_by_check() {
-    let plan = PLAN.replace(
+    let plan = PLAN.edit(
         "[[hypothesis]]\nid = \"H1\"",
         "[resampling]\nseed = 1\n\n[assignment]\nvariable = \"z\"\ndesign = \"clustered\"\nclusters = \"grp\"\n\n[[specification]]\nid = \"itt\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"z\"]\nerrors = { kind = \"cluster\", by = \"grp\" }\n\n[[hypothesis]]\nid = \"H3\"\nspecification = \"itt\"\nterm = \"z\"\ninference = \"randomization\"\n\n[[hypothesis]]\nid = \"H1\"",
     );

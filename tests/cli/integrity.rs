@@ -1,6 +1,7 @@
 //! Integrity of the ledger and run directories (issue 9): concurrent appends, atomic and
 //! self-contained run directories, verify on directories somebody else prepared.
 
+use crate::common::Edit;
 use crate::common::{run_in, Ran, Study};
 use std::path::Path;
 use std::process::{Command, Stdio};
@@ -224,10 +225,10 @@ fn plan_path_outside_the_directory_is_refused() {
     let s = Study::new();
     s.seal_and_run();
     let text = s.read("out/results.json");
-    let forged = text.replace("\"path\": \"plan.toml\"", "\"path\": \"/etc/passwd\"");
+    let forged = text.edit("\"path\": \"plan.toml\"", "\"path\": \"/etc/passwd\"");
     assert_ne!(forged, text);
     let (old, new) = sworn::results::digest_of_text(&forged).expect("digest");
-    s.write("out/results.json", &forged.replace(&old, &new));
+    s.write("out/results.json", &forged.edit(&old, &new));
     let v = s.sworn(&["verify", "out"]);
     assert_eq!(v.code, 1, "{}", v.stdout);
     assert!(v.stdout.contains("own plan copy"), "{}", v.stdout);
@@ -289,7 +290,7 @@ fn hypothesis_added_after_data_stays_out_of_the_registered_family() {
     let s = Study::new();
     let before = s.seal_and_run();
     let h1 = before["hypotheses"]["H1"]["adjusted_p_value"].clone();
-    let text = s.read("plan.toml").replace(
+    let text = s.read("plan.toml").edit(
         "[family.main]",
         "[[hypothesis]]\nid = \"H3\"\nspecification = \"ols\"\nterm = \"d\"\nfamily = \"main\"\n\n[family.main]",
     );

@@ -2,6 +2,7 @@
 //! edit it describes, must take a new user from data to a verified report.
 
 use crate::common::run_in;
+use crate::common::Edit;
 
 /// The first fenced block after `marker` in the README.
 fn block_after(readme: &str, marker: &str) -> String {
@@ -50,7 +51,7 @@ fn the_walkthrough_reaches_a_verified_report() {
     let cut = plan
         .find("# One specification is required")
         .expect("the starter plan's specification comment");
-    let edited = plan[..cut].replace(
+    let edited = plan[..cut].edit(
         "\"<fill: the study's title>\"",
         "\"Cool-roof offer and indoor heat\"",
     ) + &block_after(&readme, "<!-- walkthrough-plan -->");

@@ -2,6 +2,7 @@
 //! `[assignment]`, the restricted wild cluster bootstrap, and resampling-based family
 //! corrections; validation at check and exact results on small designs.
 
+use crate::common::Edit;
 use crate::common::{data_csv, Study, PLAN};
 
 fn check_fails(plan: &str, expect: &[&str]) {
@@ -16,7 +17,7 @@ fn check_fails(plan: &str, expect: &[&str]) {
 
 /// The base plan with an ITT spec on `z`, an assignment, and the given hypothesis lines.
 fn plan_with(resampling: &str, hypothesis: &str) -> String {
-    PLAN.replace(
+    PLAN.edit(
         "[[hypothesis]]\nid = \"H1\"",
         &format!(
             "{resampling}\n[assignment]\nvariable = \"z\"\ndesign = \"complete\"\n\n[[specification]]\nid = \"itt\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"z\"]\ncontrols = [\"x\"]\nerrors = {{ kind = \"cluster\", by = \"grp\" }}\n\n[[hypothesis]]\nid = \"H3\"\nspecification = \"itt\"\nterm = \"z\"\n{hypothesis}\n\n[[hypothesis]]\nid = \"H1\""
@@ -58,7 +59,7 @@ fn resampled_inference_must_fit_the_hypothesis() {
     let r = "[resampling]\nseed = 20260501\n";
     // Randomization inference on a term that was not randomized.
     let on_x = plan_with(r, "inference = \"randomization\"")
-        .replace("term = \"z\"\ninference", "term = \"x\"\ninference");
+        .edit("term = \"z\"\ninference", "term = \"x\"\ninference");
     check_fails(
         &on_x,
         &["hypothesis[H3].inference", "assigned variable `z`"],
@@ -73,7 +74,7 @@ fn resampled_inference_must_fit_the_hypothesis() {
         &["hypothesis[H3].weights"],
     );
     // The wild bootstrap needs clustered errors.
-    let hc1 = plan_with(r, "inference = \"wild-bootstrap\"").replace(
+    let hc1 = plan_with(r, "inference = \"wild-bootstrap\"").edit(
         "regressors = [\"z\"]\ncontrols = [\"x\"]\nerrors = { kind = \"cluster\", by = \"grp\" }",
         "regressors = [\"z\"]\ncontrols = [\"x\"]\nerrors = \"hc1\"",
     );
@@ -88,7 +89,7 @@ fn resampled_inference_must_fit_the_hypothesis() {
 fn romano_wolf_needs_resampled_members() {
     let r = "[resampling]\nseed = 20260501\n";
     let plan = plan_with(r, "inference = \"randomization\"")
-        .replace("correction = \"holm\"", "correction = \"romano-wolf\"");
+        .edit("correction = \"holm\"", "correction = \"romano-wolf\"");
     check_fails(&plan, &["family.main.correction", "same inference"]);
 }
 
@@ -266,16 +267,16 @@ fn few_clusters_rule_switches_to_the_wild_bootstrap() {
     );
     // With more clusters than the threshold the rule stays idle, and its bootstrap is not run
     // (so a fixed effect not nested in the clusters, which would stop it, does no harm).
-    let idle = plan.replace("fewer_than = 30", "fewer_than = 5");
+    let idle = plan.edit("fewer_than = 30", "fewer_than = 5");
     let v = Study::with(&idle, &csv).seal_and_run();
     assert_eq!(v["contingencies"][0]["invoked"], false);
     assert_eq!(v["hypotheses"]["W"]["method"], "t");
     let with_fe = idle
-        .replace(
+        .edit(
             "g = { kind = \"category\" }",
             "g = { kind = \"category\" }\nband = { kind = \"category\" }",
         )
-        .replace(
+        .edit(
             "controls = [\"w\"]",
             "controls = [\"w\"]\nfixed_effects = [\"band\"]",
         );
@@ -293,7 +294,7 @@ fn few_clusters_rule_switches_to_the_wild_bootstrap() {
     let v = Study::with(&with_fe, &banded).seal_and_run();
     assert_eq!(v["contingencies"][0]["invoked"], false);
     // Fired, the same plan stops with a clear message instead of an inexact bootstrap.
-    let fired = with_fe.replace("fewer_than = 5", "fewer_than = 30");
+    let fired = with_fe.edit("fewer_than = 5", "fewer_than = 30");
     let s = Study::with(&fired, &banded);
     assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
     let r = s.sworn(&["run", "plan.toml", "--out", "out"]);
@@ -423,7 +424,7 @@ inference = "wild-bootstrap"
         case["observed"].as_f64().unwrap(),
     );
     // One-sided: the upper count of the same enumeration (a signed t, not the AR statistic).
-    let greater = plan.replace(
+    let greater = plan.edit(
         "inference = \"wild-bootstrap\"",
         "direction = \"greater\"\ninference = \"wild-bootstrap\"",
     );
@@ -433,7 +434,7 @@ inference = "wild-bootstrap"
         Some(case["count_upper"].as_f64().unwrap() / 256.0)
     );
     // A hypothesis on a control of a 2SLS specification cannot use it.
-    let on_w = plan.replace("term = \"d\"", "term = \"w\"");
+    let on_w = plan.edit("term = \"d\"", "term = \"w\"");
     let s = Study::with(&on_w, &csv);
     let r = s.sworn(&["check", "plan.toml"]);
     assert_eq!(r.code, 2, "{}", r.stderr);
