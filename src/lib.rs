@@ -24,4 +24,5 @@ pub mod plan;
 pub mod report;
 pub mod results;
 pub mod starter;
+pub mod suggest;
 pub mod terminal;

@@ -61,8 +61,8 @@ pub use wild::{wild_cluster_bootstrap, Weights};
 pub use wre::wild_restricted_efficient;
 
 /// Relative tolerance under which two statistics count as tied (tied draws count as at
-/// least as extreme).
-pub const TIE_TOLERANCE: f64 = 1e-12;
+/// least as extreme): one value for single resampled p-values and the step-down.
+pub use crate::inference::TIE_TOLERANCE;
 
 /// Draws computed so far by this process, across all resampling tests: a counter the
 /// caller may read from another thread to show progress (this module never prints).

@@ -133,13 +133,13 @@ fn unknown_message(name: &str) -> String {
         return format!("unknown function `{name}`; the natural logarithm is `ln(x)`");
     }
     let lower = name.to_ascii_lowercase();
-    let (distance, closest) = FUNCTIONS
+    let (_, closest) = FUNCTIONS
         .iter()
-        .map(|(known, _)| (edit_distance(&lower, known), *known))
+        .map(|(known, _)| (crate::suggest::distance(&lower, known), *known))
         .min_by_key(|(d, _)| *d)
         .unwrap_or((usize::MAX, ""));
-    if distance <= 2 && distance < lower.chars().count() {
-        format!("unknown function `{name}`; did you mean `{closest}`?")
+    if let Some(near) = crate::suggest::closest(&lower, FUNCTIONS.iter().map(|(k, _)| *k)) {
+        format!("unknown function `{name}`; did you mean `{near}`?")
     } else {
         let all: Vec<&str> = FUNCTIONS.iter().map(|(_, usage)| *usage).collect();
         format!(
@@ -148,26 +148,6 @@ fn unknown_message(name: &str) -> String {
             all.join(", ")
         )
     }
-}
-
-/// Levenshtein distance between `a` and `b`, in characters.
-///
-/// # Formula
-/// The standard dynamic programme over prefixes (Wagner and Fischer 1974, "The
-/// string-to-string correction problem", JACM 21(1)), keeping one row.
-fn edit_distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut row: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut diagonal = row[0];
-        row[0] = i + 1;
-        for (j, cb) in b.iter().enumerate() {
-            let substitute = diagonal + usize::from(ca != *cb);
-            diagonal = row[j + 1];
-            row[j + 1] = substitute.min(row[j] + 1).min(diagonal + 1);
-        }
-    }
-    row[b.len()]
 }
 
 #[cfg(test)]
@@ -184,12 +164,12 @@ mod tests {
     #[test]
     fn edit_distance_of_known_pairs() {
         // Textbook Levenshtein examples (from memory), checked by hand.
-        assert_eq!(edit_distance("kitten", "sitting"), 3);
-        assert_eq!(edit_distance("flaw", "lawn"), 2);
-        assert_eq!(edit_distance("", "abc"), 3);
-        assert_eq!(edit_distance("abc", ""), 3);
-        assert_eq!(edit_distance("sqrt", "sqrt"), 0);
-        assert_eq!(edit_distance("sqr", "sqrt"), 1);
+        assert_eq!(crate::suggest::distance("kitten", "sitting"), 3);
+        assert_eq!(crate::suggest::distance("flaw", "lawn"), 2);
+        assert_eq!(crate::suggest::distance("", "abc"), 3);
+        assert_eq!(crate::suggest::distance("abc", ""), 3);
+        assert_eq!(crate::suggest::distance("sqrt", "sqrt"), 0);
+        assert_eq!(crate::suggest::distance("sqr", "sqrt"), 1);
     }
 
     #[test]

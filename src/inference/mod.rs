@@ -25,7 +25,9 @@ mod tests;
 pub use bky::bky_q_values;
 pub use correction::{adjust, Correction};
 pub use quantile::quantile;
-pub use stepdown::{romano_wolf, romano_wolf_enumerated, StepDownError, OBSERVED_DRAW_TOLERANCE};
+pub use stepdown::{
+    romano_wolf, romano_wolf_enumerated, StepDownError, OBSERVED_DRAW_TOLERANCE, TIE_TOLERANCE,
+};
 pub use tails::{is_valid, log10_lower_tail, log10_upper_tail, lower_tail, upper_tail};
 
 use crate::distribution::{Reference, TestStatistic};

@@ -8,7 +8,6 @@ pub mod canonical;
 pub mod compare;
 pub mod raw;
 mod source;
-mod suggest;
 pub mod unfilled;
 mod validate;
 mod validate_hac;
@@ -23,8 +22,8 @@ use crate::inference::{Correction, Direction};
 use std::collections::BTreeMap;
 use std::path::PathBuf;
 
+pub use crate::suggest::{closest, hint as suggest_hint};
 pub use source::SourceMap;
-pub use suggest::{closest, hint as suggest_hint};
 pub use validate::{from_text, load};
 pub use validate_spec::spec_terms;
 

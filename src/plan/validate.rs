@@ -4,13 +4,13 @@
 //! for an unknown name, the closest known one. The first problem found is reported.
 
 use super::raw::{RawColumn, RawData, RawPlan};
-use super::suggest::hint;
 use super::{
     Column, ColumnKind, DataFormat, DataSource, Derived, Distribution, InferenceDefaults, Plan,
     SourceMap, Study,
 };
 use crate::error::{Error, Result};
 use crate::expr;
+use crate::suggest::hint;
 use std::collections::{BTreeMap, BTreeSet};
 use std::ops::Range;
 use std::path::{Path, PathBuf};

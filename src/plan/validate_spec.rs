@@ -2,7 +2,6 @@
 //! table shells and the assignment. Runs after data sources and derived variables are known.
 
 use super::raw::{RawPlan, RawSpec};
-use super::suggest::hint;
 use super::validate::{distribution, expr_error, Ctx};
 use super::{
     Assignment, DataSource, Diagnostic, Errors, Estimator, Family, Hypothesis, Plan, Spec, Table,
@@ -10,6 +9,7 @@ use super::{
 use crate::error::Result;
 use crate::expr;
 use crate::inference::{Correction, Direction};
+use crate::suggest::hint;
 use std::collections::{BTreeMap, BTreeSet};
 use toml::Spanned;
 

@@ -3,12 +3,12 @@
 //! may use an index as a variable.
 
 use super::raw::RawPlan;
-use super::suggest::hint;
 use super::validate::{available, expr_error, Ctx};
 use super::validate_spec::{errors_value, unique, unknown};
 use super::{Attrition, Balance, DataSource, Errors, Index, IndexMethod, Plan};
 use crate::error::Result;
 use crate::expr;
+use crate::suggest::hint;
 use std::collections::BTreeSet;
 use toml::Spanned;
 

@@ -1,7 +1,12 @@
-//! "Did you mean …?": the closest known name by edit distance.
+//! "Did you mean …?": the closest known name by edit distance, for plan keys, column names
+//! and expression functions alike.
 
 /// Levenshtein distance between two strings, by characters.
-fn distance(a: &str, b: &str) -> usize {
+///
+/// # Formula
+/// The standard dynamic programme over prefixes (Wagner and Fischer 1974, "The
+/// string-to-string correction problem", JACM 21(1)), keeping one row.
+pub fn distance(a: &str, b: &str) -> usize {
     let b: Vec<char> = b.chars().collect();
     let mut row: Vec<usize> = (0..=b.len()).collect();
     for (i, ca) in a.chars().enumerate() {
