@@ -158,15 +158,8 @@ pub enum ResampleError {
 /// whether the draws were enumerated.
 pub(crate) type DrawStats = (f64, Vec<Option<f64>>, bool);
 
-/// The SplitMix64 finaliser (a bijection of u64).
-pub(crate) fn mix(mut z: u64) -> u64 {
-    z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-    z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-    z ^ (z >> 31)
-}
-
-/// The SplitMix64 increment (the golden-ratio constant).
-const GOLDEN: u64 = 0x9E37_79B9_7F4A_7C15;
+pub(crate) use crate::random::mix;
+use crate::random::GOLDEN;
 
 /// A SplitMix64 stream; [`Stream::for_draw`] makes draw b's numbers depend on (seed, b) only.
 #[derive(Debug, Clone)]
