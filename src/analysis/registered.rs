@@ -7,6 +7,7 @@
 
 use super::{analyse, load_tables, Analysed};
 use crate::data::Table;
+use crate::error::Error;
 use crate::plan::Plan;
 use crate::results::{canonical_json, AsRegistered, HypothesisResult, SpecResult};
 use serde_json::Value as Json;
@@ -71,8 +72,10 @@ fn run(plan: &Plan, canonical: &str) -> Result<Analysed, String> {
     restore_datetimes(&mut table);
     let text = toml::to_string(&table)
         .map_err(|e| format!("its recorded content cannot be written as TOML: {e}"))?;
-    let mut registered =
-        crate::plan::from_text(&plan.path, text).map_err(|e| format!("it no longer loads: {e}"))?;
+    // Messages here end up in results.json: they name keys and plan-relative paths only, never
+    // this machine's absolute paths, so a verification elsewhere re-derives the same bytes.
+    let mut registered = crate::plan::from_text(&plan.path, text)
+        .map_err(|e| format!("it no longer loads: {}", portable(&e)))?;
     for src in registered.data.values_mut() {
         if let Some(same) = plan
             .data
@@ -82,9 +85,19 @@ fn run(plan: &Plan, canonical: &str) -> Result<Analysed, String> {
             src.path = same.path.clone();
         }
     }
-    let (tables, _): (BTreeMap<String, Table>, _) =
-        load_tables(&registered).map_err(|e| format!("its data cannot be read: {e}"))?;
-    analyse(&registered, &tables, None, None).map_err(|e| format!("it stops with an error: {e}"))
+    let (tables, _): (BTreeMap<String, Table>, _) = load_tables(&registered).map_err(|_| {
+        let declared: Vec<String> = registered
+            .data
+            .values()
+            .map(|d| format!("[data.{}] at `{}`", d.id, d.path_text))
+            .collect();
+        format!(
+            "its data cannot be read as it declares them ({})",
+            declared.join(", ")
+        )
+    })?;
+    analyse(&registered, &tables, None, None)
+        .map_err(|e| format!("it stops with an error: {}", portable(&e)))
 }
 
 /// The canonical form writes TOML dates as strings; put back the one key the plan format
@@ -100,6 +113,17 @@ fn restore_datetimes(table: &mut toml::Table) {
         {
             *v = toml::Value::Datetime(d);
         }
+    }
+}
+
+/// An error's message without this machine's paths.
+fn portable(e: &Error) -> String {
+    match e {
+        Error::Plan { key, message, .. } if key.is_empty() => message.clone(),
+        Error::Plan { key, message, .. } => format!("{message} (at `{key}`)"),
+        Error::Data { message, .. } => message.clone(),
+        Error::Estimation { .. } => e.to_string(),
+        _ => "an input could not be read".to_string(),
     }
 }
 

@@ -203,9 +203,17 @@ fn registered_version_that_cannot_run_is_a_finding() {
         "{:?}",
         codes(&r)
     );
-    assert!(r["as_registered"]["error"]
-        .as_str()
-        .is_some_and(|e| e.contains("cannot be read")));
+    let error = r["as_registered"]["error"].as_str().unwrap_or_default();
+    assert!(
+        error.contains("cannot be read as it declares them ([data.main] at `data.csv`)"),
+        "{error}"
+    );
+    // No absolute path of this machine in results.json (a verification elsewhere must
+    // re-derive the same bytes).
+    let here = s.path("").display().to_string();
+    assert!(!s
+        .read("out/results.json")
+        .contains(here.trim_end_matches('/')));
     assert_eq!(r["hypotheses"]["H1"]["registration"], "registered");
     let md = s.read("out/report.md");
     assert!(
