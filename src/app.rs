@@ -332,6 +332,12 @@ pub fn amend(path: &Path, reason: &str) -> Result<Outcome> {
         terminal(&keys.join(", "))
     );
     println!("new content fingerprint: sha256:{}", print.content_sha256);
+    if let Some(m) = ledger.ledger().current_moment() {
+        println!(
+            "this amendment is made {}: it is not part of the registered plan; runs disclose it and also report the registered version's results beside it",
+            m.phrase()
+        );
+    }
     Ok(Outcome::Success)
 }
 

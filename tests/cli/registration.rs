@@ -39,6 +39,12 @@ fn weakened_correction_after_results_keeps_the_registered_family() {
     );
     let a = s.sworn(&["amend", "plan.toml", "--reason", "fewer tests"]);
     assert_eq!(a.code, 0, "{}", a.stderr);
+    assert!(
+        a.stdout
+            .contains("this amendment is made after results were computed"),
+        "{}",
+        a.stdout
+    );
     let r = s.run_ok();
     for id in ["H1", "H2"] {
         let h = &r["hypotheses"][id];
