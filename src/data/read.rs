@@ -259,7 +259,7 @@ fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
 /// Read `src`, check it against its declared schema and evaluate derived variables.
 /// Returns the table and the schema deviations found.
 pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation>)> {
-    let (frame, sha256) = read_frame(src)?;
+    let (mut frame, sha256) = read_frame(src)?;
     let rows = frame.height();
     if rows == 0 {
         return Err(data_err(
@@ -271,6 +271,11 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
         ));
     }
     let needed = needed_columns(plan, src);
+    let file_columns: Vec<String> = frame
+        .get_column_names()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
     let mut devs = Vec::new();
     let mut table = Table {
         id: src.id.clone(),
@@ -287,10 +292,7 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
                     src,
                     format!(
                         "declared column `{name}` is not in the file, and the plan uses it{}",
-                        crate::plan::suggest_hint(
-                            name,
-                            frame.get_column_names().iter().map(|s| s.as_str())
-                        )
+                        crate::plan::suggest_hint(name, file_columns.iter().map(String::as_str))
                     ),
                 ));
             }
@@ -302,6 +304,9 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
             ));
             continue;
         };
+        // Each polars column is released once converted, so the text of the whole file
+        // and every converted column are never held at once.
+        drop(frame.drop_in_place(name));
         load_column(src, &mut table, name, col, raw, &mut devs)?;
     }
     order_rows(src, &mut table)?;
