@@ -1,6 +1,6 @@
 //! Reading a table with polars and checking it against the declared schema.
 
-use super::Table;
+use super::{Labels, Table};
 use crate::deviation::{Deviation, Severity};
 use crate::error::{Error, Result};
 use crate::plan::{Column, ColumnKind, DataFormat, DataSource, Plan};
@@ -192,11 +192,22 @@ fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Vec<Option
     }
 }
 
-fn to_labels(raw: RawValues) -> Vec<Option<String>> {
+fn to_labels(src: &DataSource, name: &str, kind: ColumnKind, raw: RawValues) -> Result<Labels> {
     match raw {
-        RawValues::Text(v) => v,
-        RawValues::Numbers(v) => v.into_iter().map(|x| x.map(|x| format!("{x}"))).collect(),
+        RawValues::Text(v) if kind == ColumnKind::Id => Labels::by_row(v),
+        RawValues::Text(v) => Labels::from_text(v),
+        RawValues::Numbers(v) => Labels::from_numbers(&v),
     }
+    .map_err(|_| too_many_labels(src, name))
+}
+
+fn too_many_labels(src: &DataSource, name: &str) -> Error {
+    data_err(
+        src,
+        format!(
+            "grouping column `{name}` has more than 4,294,967,295 distinct labels; split the file"
+        ),
+    )
 }
 
 /// Declared columns a run needs: those used by specifications (directly or through derived
@@ -326,7 +337,9 @@ fn load_column(
 ) -> Result<()> {
     let subject = format!("{}.{name}", src.id);
     if !col.kind.is_numeric() {
-        table.labels.insert(name.to_string(), to_labels(raw));
+        table
+            .labels
+            .insert(name.to_string(), to_labels(src, name, col.kind, raw)?);
         return Ok(());
     }
     let values = to_numbers(src, name, raw)?;
@@ -364,10 +377,8 @@ fn load_column(
         )));
     }
     if col.kind.is_grouping() {
-        table.labels.insert(
-            name.to_string(),
-            values.iter().map(|x| x.map(|x| format!("{x}"))).collect(),
-        );
+        let labels = Labels::from_numbers(&values).map_err(|_| too_many_labels(src, name))?;
+        table.labels.insert(name.to_string(), labels);
     }
     table.numeric.insert(name.to_string(), values);
     Ok(())
@@ -412,7 +423,7 @@ fn order_rows(src: &DataSource, table: &mut Table) -> Result<()> {
         *v = idx.iter().map(|&i| v[i]).collect();
     }
     for v in table.labels.values_mut() {
-        *v = idx.iter().map(|&i| v[i].clone()).collect();
+        *v = v.reorder(&idx);
     }
     Ok(())
 }
