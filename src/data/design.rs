@@ -10,7 +10,7 @@
 //! below [`ABSORBED_TOLERANCE`]) is constant within the fixed effects and is reported by name.
 //! Collinearity among the remaining columns is resolved left to right by the caller.
 
-use super::Table;
+use super::{Labels, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{Absorbed, FixedEffects};
 use crate::plan::{Errors, Spec};
@@ -77,18 +77,14 @@ fn column<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t [Option<f
         })
 }
 
-fn labels<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t [Option<String>]> {
-    table
-        .labels
-        .get(name)
-        .map(Vec::as_slice)
-        .ok_or_else(|| Error::Estimation {
-            spec: spec.id.clone(),
-            message: format!(
-                "grouping column `{name}` is not available in data table `{}`",
-                table.id
-            ),
-        })
+fn labels<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Labels> {
+    table.labels.get(name).ok_or_else(|| Error::Estimation {
+        spec: spec.id.clone(),
+        message: format!(
+            "grouping column `{name}` is not available in data table `{}`",
+            table.id
+        ),
+    })
 }
 
 /// Rows kept: in the sample and complete in every variable used.
@@ -111,7 +107,7 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
         .iter()
         .map(|n| column(table, n, spec))
         .collect::<Result<_>>()?;
-    let groups: Vec<&[Option<String>]> = used_groups(spec)
+    let groups: Vec<&Labels> = used_groups(spec)
         .iter()
         .map(|n| labels(table, n, spec))
         .collect::<Result<_>>()?;
@@ -157,7 +153,7 @@ fn matrix(table: &Table, names: &[String], rows: &[usize], spec: &Spec) -> Resul
 }
 
 /// Dense 0-based group index per kept row (groups numbered in sorted label order).
-fn group_index(values: &[Option<String>], rows: &[usize]) -> (Vec<usize>, usize) {
+fn group_index(values: &Labels, rows: &[usize]) -> (Vec<usize>, usize) {
     let mut ids: BTreeMap<&str, usize> = BTreeMap::new();
     for &r in rows {
         if let Some(v) = &values[r] {

@@ -7,10 +7,12 @@
 
 mod design;
 pub mod dialect;
+mod labels;
 mod parquet;
 mod read;
 
 pub use design::{design, Design};
+pub use labels::{Labels, TooManyLabels};
 pub use read::load_table;
 
 use std::collections::BTreeMap;
@@ -30,7 +32,7 @@ pub struct Table {
     /// Numeric columns and derived variables.
     pub numeric: BTreeMap<String, Vec<Option<f64>>>,
     /// Group labels of grouping columns.
-    pub labels: BTreeMap<String, Vec<Option<String>>>,
+    pub labels: BTreeMap<String, Labels>,
 }
 
 /// Why [`Table::label_ids`] found no ids.

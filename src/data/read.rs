@@ -1,6 +1,6 @@
 //! Reading a table with polars and checking it against the declared schema.
 
-use super::Table;
+use super::{Labels, Table};
 use crate::deviation::{Deviation, Severity};
 use crate::error::{Error, Result};
 use crate::plan::{Column, ColumnKind, DataFormat, DataSource, Plan};
@@ -20,7 +20,11 @@ fn data_err(src: &DataSource, message: impl Into<String>) -> Error {
     }
 }
 
-fn read_frame(src: &DataSource) -> Result<DataFrame> {
+/// Reads the file once: CSV is parsed from the bytes in memory while another thread hashes
+/// the same bytes (so the fingerprint is of exactly the bytes parsed, with no second read);
+/// Parquet is read by its checked reader and hashed in blocks. Returns the frame and the
+/// file's SHA-256.
+fn read_frame(src: &DataSource) -> Result<(DataFrame, String)> {
     if !src.path.exists() {
         return Err(data_err(src, format!(
             "the data file of [data.{}] does not exist (path = \"{}\", relative to the plan); check the path",
@@ -32,28 +36,65 @@ fn read_frame(src: &DataSource) -> Result<DataFrame> {
             .map_err(|m| data_err(src, m))?;
     }
     match src.format {
-        DataFormat::Csv => super::parquet::isolated("reading the file as CSV", || {
-            CsvReadOptions::default()
-                .with_has_header(true)
-                .with_infer_schema_length(Some(0))
-                .with_parse_options(CsvParseOptions::default().with_separator(src.separator))
-                .try_into_reader_with_file_path(Some(src.path.clone()))
-                .and_then(|r| r.finish())
-        })
-        .map_err(|e| {
-            data_err(
-                src,
-                format!(
-                    "cannot read the file as CSV: {}",
-                    super::dialect::reader_message(&e.to_string(), src.separator)
-                ),
-            )
-        }),
-        DataFormat::Parquet => super::parquet::read(&src.path).map_err(|e| data_err(src, e)),
+        DataFormat::Csv => {
+            let bytes = read_bytes(src)?;
+            let (frame, sha256) = std::thread::scope(|scope| {
+                let hash = scope.spawn(|| crate::ledger::sha256_hex(&bytes));
+                let frame = parse_csv(src, &bytes);
+                (frame, hash.join())
+            });
+            let sha256 = sha256.map_err(|_| data_err(src, "hashing the file failed"))?;
+            Ok((frame?, sha256))
+        }
+        DataFormat::Parquet => {
+            let frame = super::parquet::read(&src.path).map_err(|e| data_err(src, e))?;
+            let sha256 = crate::files::sha256_streamed(&src.path, crate::files::Links::Follow)?;
+            Ok((frame, sha256))
+        }
     }
 }
 
-fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<RawValues>> {
+/// The whole file (a regular file only, never blocking on a FIFO or device).
+fn read_bytes(src: &DataSource) -> Result<Vec<u8>> {
+    use std::io::Read;
+    let mut file = crate::files::open_regular(&src.path, crate::files::Links::Follow)?;
+    let len = file.metadata().map_or(0, |m| m.len());
+    let mut bytes = Vec::with_capacity(usize::try_from(len).unwrap_or(0));
+    file.read_to_end(&mut bytes)
+        .map_err(|e| Error::io(&src.path, "cannot read the data file", e))?;
+    Ok(bytes)
+}
+
+/// Every column as text (numbers are parsed by Rust's correctly rounded parser later).
+fn parse_csv(src: &DataSource, bytes: &[u8]) -> Result<DataFrame> {
+    super::parquet::isolated("reading the file as CSV", || {
+        CsvReadOptions::default()
+            .with_has_header(true)
+            .with_infer_schema_length(Some(0))
+            .with_parse_options(CsvParseOptions::default().with_separator(src.separator))
+            .into_reader_with_file_handle(std::io::Cursor::new(bytes))
+            .finish()
+    })
+    .map_err(|e| {
+        data_err(
+            src,
+            format!(
+                "cannot read the file as CSV: {}",
+                super::dialect::reader_message(&e.to_string(), src.separator)
+            ),
+        )
+    })
+}
+
+/// The values of column `name`, `None` when the file has no such column. A text column
+/// declared numeric (`numeric`) is parsed straight from polars' text, cell by cell, with no
+/// intermediate copy; the first unparsable value is an error naming its place.
+fn raw_values(
+    src: &DataSource,
+    frame: &DataFrame,
+    name: &str,
+    numeric: bool,
+) -> Result<Option<RawValues>> {
     let Ok(col) = frame.column(name) else {
         return Ok(None);
     };
@@ -72,20 +113,32 @@ fn raw_values(src: &DataSource, frame: &DataFrame, name: &str) -> Result<Option<
     if series.dtype().is_primitive_numeric() || series.dtype() == &DataType::Boolean {
         let cast = series.cast(&DataType::Float64).map_err(err)?;
         let ca = cast.f64().map_err(err)?;
-        let values = (0..ca.len()).map(|i| ca.get(i)).collect();
-        return Ok(Some(RawValues::Numbers(values)));
+        return Ok(Some(RawValues::Numbers(ca.iter().collect())));
     }
     let cast = series.cast(&DataType::String).map_err(err)?;
     let ca = cast.str().map_err(err)?;
-    let values = (0..ca.len())
-        .map(|i| ca.get(i))
-        .map(|v| {
-            v.map(str::trim)
-                .filter(|s| !s.is_empty() && !src.missing.iter().any(|m| m == s))
-                .map(String::from)
-        })
-        .collect();
+    let cell = |v| present(src, v);
+    if numeric {
+        let values = ca
+            .iter()
+            .enumerate()
+            .map(|(i, v)| match cell(v) {
+                None => Ok(None),
+                Some(s) => super::dialect::parse_number(s, src.decimal_comma)
+                    .map(Some)
+                    .ok_or_else(|| not_a_number(src, name, i, s)),
+            })
+            .collect::<Result<Vec<_>>>()?;
+        return Ok(Some(RawValues::Numbers(values)));
+    }
+    let values = ca.iter().map(|v| cell(v).map(String::from)).collect();
     Ok(Some(RawValues::Text(values)))
+}
+
+/// A cell's trimmed text, `None` when empty or one of the table's missing codes.
+fn present<'a>(src: &DataSource, v: Option<&'a str>) -> Option<&'a str> {
+    v.map(str::trim)
+        .filter(|s| !s.is_empty() && !src.missing.iter().any(|m| m == s))
 }
 
 /// Where row `i` (0-based, in file order) is, in the user's terms: the file line of a CSV
@@ -97,30 +150,35 @@ fn row_place(src: &DataSource, i: usize) -> String {
     }
 }
 
-/// Parse text values as numbers; the first unparsable or non-finite value is an error naming
-/// its place and value. NaN and infinities are refused alike from CSV text and Parquet
-/// numbers, since neither is a measurement.
+/// The error for a value of a numeric column that is not a finite number.
+fn not_a_number(src: &DataSource, name: &str, i: usize, shown: &str) -> Error {
+    data_err(
+        src,
+        format!(
+            "column `{name}` is declared numeric but {} holds `{}`; {}",
+            row_place(src, i),
+            crate::escape::clip(shown, crate::escape::SHOWN),
+            super::dialect::not_a_number_advice(shown, src.decimal_comma, &src.missing)
+        ),
+    )
+}
+
+/// Numbers of a numeric column; the first non-finite value is an error naming its place and
+/// value. NaN and infinities are refused alike from CSV text and Parquet numbers, since
+/// neither is a measurement.
 fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Vec<Option<f64>>> {
-    let bad = |i: usize, shown: &str| {
-        data_err(
-            src,
-            format!(
-                "column `{name}` is declared numeric but {} holds `{}`; {}",
-                row_place(src, i),
-                crate::escape::clip(shown, crate::escape::SHOWN),
-                super::dialect::not_a_number_advice(shown, src.decimal_comma, &src.missing)
-            ),
-        )
-    };
     match raw {
-        RawValues::Numbers(v) => v
-            .into_iter()
-            .enumerate()
-            .map(|(i, x)| match x {
-                Some(x) if !x.is_finite() => Err(bad(i, &format!("{x}"))),
-                x => Ok(x),
-            })
-            .collect(),
+        RawValues::Numbers(mut v) => {
+            if let Some((i, x)) = v
+                .iter()
+                .enumerate()
+                .find_map(|(i, x)| x.filter(|x| !x.is_finite()).map(|x| (i, x)))
+            {
+                return Err(not_a_number(src, name, i, &format!("{x}")));
+            }
+            v.shrink_to_fit();
+            Ok(v)
+        }
         RawValues::Text(v) => v
             .into_iter()
             .enumerate()
@@ -128,17 +186,28 @@ fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Vec<Option
                 None => Ok(None),
                 Some(s) => super::dialect::parse_number(&s, src.decimal_comma)
                     .map(Some)
-                    .ok_or_else(|| bad(i, &s)),
+                    .ok_or_else(|| not_a_number(src, name, i, &s)),
             })
             .collect(),
     }
 }
 
-fn to_labels(raw: RawValues) -> Vec<Option<String>> {
+fn to_labels(src: &DataSource, name: &str, kind: ColumnKind, raw: RawValues) -> Result<Labels> {
     match raw {
-        RawValues::Text(v) => v,
-        RawValues::Numbers(v) => v.into_iter().map(|x| x.map(|x| format!("{x}"))).collect(),
+        RawValues::Text(v) if kind == ColumnKind::Id => Labels::by_row(v),
+        RawValues::Text(v) => Labels::from_text(v),
+        RawValues::Numbers(v) => Labels::from_numbers(&v),
     }
+    .map_err(|_| too_many_labels(src, name))
+}
+
+fn too_many_labels(src: &DataSource, name: &str) -> Error {
+    data_err(
+        src,
+        format!(
+            "grouping column `{name}` has more than 4,294,967,295 distinct labels; split the file"
+        ),
+    )
 }
 
 /// Declared columns a run needs: those used by specifications (directly or through derived
@@ -201,8 +270,7 @@ fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
 /// Read `src`, check it against its declared schema and evaluate derived variables.
 /// Returns the table and the schema deviations found.
 pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation>)> {
-    let frame = read_frame(src)?;
-    let sha256 = crate::ledger::file_sha256(&src.path)?;
+    let (mut frame, sha256) = read_frame(src)?;
     let rows = frame.height();
     if rows == 0 {
         return Err(data_err(
@@ -214,6 +282,11 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
         ));
     }
     let needed = needed_columns(plan, src);
+    let file_columns: Vec<String> = frame
+        .get_column_names()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
     let mut devs = Vec::new();
     let mut table = Table {
         id: src.id.clone(),
@@ -224,16 +297,13 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
         labels: Default::default(),
     };
     for (name, col) in &src.columns {
-        let Some(raw) = raw_values(src, &frame, name)? else {
+        let Some(raw) = raw_values(src, &frame, name, col.kind.is_numeric())? else {
             if needed.contains(name) {
                 return Err(data_err(
                     src,
                     format!(
                         "declared column `{name}` is not in the file, and the plan uses it{}",
-                        crate::plan::suggest_hint(
-                            name,
-                            frame.get_column_names().iter().map(|s| s.as_str())
-                        )
+                        crate::plan::suggest_hint(name, file_columns.iter().map(String::as_str))
                     ),
                 ));
             }
@@ -245,6 +315,9 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
             ));
             continue;
         };
+        // Each polars column is released once converted, so the text of the whole file
+        // and every converted column are never held at once.
+        drop(frame.drop_in_place(name));
         load_column(src, &mut table, name, col, raw, &mut devs)?;
     }
     order_rows(src, &mut table)?;
@@ -264,7 +337,9 @@ fn load_column(
 ) -> Result<()> {
     let subject = format!("{}.{name}", src.id);
     if !col.kind.is_numeric() {
-        table.labels.insert(name.to_string(), to_labels(raw));
+        table
+            .labels
+            .insert(name.to_string(), to_labels(src, name, col.kind, raw)?);
         return Ok(());
     }
     let values = to_numbers(src, name, raw)?;
@@ -302,10 +377,8 @@ fn load_column(
         )));
     }
     if col.kind.is_grouping() {
-        table.labels.insert(
-            name.to_string(),
-            values.iter().map(|x| x.map(|x| format!("{x}"))).collect(),
-        );
+        let labels = Labels::from_numbers(&values).map_err(|_| too_many_labels(src, name))?;
+        table.labels.insert(name.to_string(), labels);
     }
     table.numeric.insert(name.to_string(), values);
     Ok(())
@@ -350,7 +423,7 @@ fn order_rows(src: &DataSource, table: &mut Table) -> Result<()> {
         *v = idx.iter().map(|&i| v[i]).collect();
     }
     for v in table.labels.values_mut() {
-        *v = idx.iter().map(|&i| v[i].clone()).collect();
+        *v = v.reorder(&idx);
     }
     Ok(())
 }

@@ -32,6 +32,8 @@
 //! * `assignment`: designs, counting and enumerating assignments, random permutations.
 //! * `partial`: the regression of a fixed outcome on re-drawn columns after partialling out
 //!   fixed controls once (Frisch–Waugh–Lovell), with every covariance of [`CovSpec`].
+//! * `cells`: the same regression when the re-drawn columns are constant within clusters,
+//!   from cell-level statistics computed once, so a draw costs O(G·k²) rather than O(n).
 //! * `randomization`: [`randomization_test`] and [`randomization_ar`].
 //! * `wild`: [`wild_cluster_bootstrap`].
 //!
@@ -41,6 +43,7 @@
 //! [`CovSpec`]: super::CovSpec
 
 mod assignment;
+mod cells;
 mod partial;
 mod randomization;
 mod wild;

@@ -222,18 +222,42 @@ impl Assigner {
     }
 
     /// Unit labels from group labels.
-    fn expand(&self, group_label: &[usize]) -> Vec<usize> {
+    pub(crate) fn expand(&self, group_label: &[usize]) -> Vec<usize> {
         self.unit_group.iter().map(|&g| group_label[g]).collect()
     }
 
+    /// The permutation group of each unit.
+    pub(crate) fn unit_group(&self) -> &[usize] {
+        &self.unit_group
+    }
+
+    /// Whether some group holds more than one unit (a cluster-randomised design).
+    pub(crate) fn grouped(&self) -> bool {
+        self.group_label.len() < self.unit_group.len()
+    }
+
     /// The observed label of every unit.
+    #[cfg(test)]
     pub(crate) fn observed(&self) -> Vec<usize> {
         self.expand(&self.group_label)
     }
 
-    /// Assignment number `index` (0 ≤ index < total ≤ 2^64) in the enumeration order:
-    /// mixed radix over strata (stratum 0 varies fastest), lexicographic within strata.
+    /// The observed label of every group.
+    pub(crate) fn observed_groups(&self) -> Vec<usize> {
+        self.group_label.clone()
+    }
+
+    /// Assignment number `index` (0 ≤ index < total ≤ 2^64) in the enumeration order, as
+    /// unit labels (see [`Assigner::unrank_groups`]).
+    #[cfg(test)]
     pub(crate) fn unrank(&self, index: u64) -> Vec<usize> {
+        self.expand(&self.unrank_groups(index))
+    }
+
+    /// Assignment number `index` (0 ≤ index < total ≤ 2^64) in the enumeration order, as
+    /// group labels: mixed radix over strata (stratum 0 varies fastest), lexicographic within
+    /// strata.
+    pub(crate) fn unrank_groups(&self, index: u64) -> Vec<usize> {
         let mut rest = u128::from(index);
         let mut labels = vec![0; self.group_label.len()];
         for (s, groups) in self.strata.iter().enumerate() {
@@ -261,11 +285,17 @@ impl Assigner {
                 left -= 1;
             }
         }
-        self.expand(&labels)
+        labels
     }
 
-    /// A uniformly random assignment: each stratum shuffled by Fisher–Yates.
+    /// A uniformly random assignment as unit labels (see [`Assigner::shuffle_groups`]).
+    #[cfg(test)]
     pub(crate) fn shuffle(&self, stream: &mut Stream) -> Vec<usize> {
+        self.expand(&self.shuffle_groups(stream))
+    }
+
+    /// A uniformly random assignment as group labels: each stratum shuffled by Fisher–Yates.
+    pub(crate) fn shuffle_groups(&self, stream: &mut Stream) -> Vec<usize> {
         let mut labels = self.group_label.clone();
         for groups in &self.strata {
             let mut vals: Vec<usize> = groups.iter().map(|&g| labels[g]).collect();
@@ -277,7 +307,13 @@ impl Assigner {
                 labels[g] = v;
             }
         }
-        self.expand(&labels)
+        labels
+    }
+
+    /// The value matrix (G × m) of an assignment given as group labels.
+    pub(crate) fn group_values(&self, labels: &[usize]) -> DMatrix<f64> {
+        let m = self.rows.first().map_or(0, Vec::len);
+        DMatrix::from_fn(labels.len(), m, |g, j| self.rows[labels[g]][j])
     }
 
     /// The value matrix (n × m) of an assignment given as unit labels.

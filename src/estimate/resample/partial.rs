@@ -54,6 +54,31 @@ pub(crate) struct Partialled {
 /// The coefficients of Z and, when asked, their covariance.
 pub(crate) type ZFit = (DVector<f64>, Option<DMatrix<f64>>);
 
+/// The rows a fit works on (see [`Partialled::fit_rows`]).
+pub(super) struct Rows<'a> {
+    /// The partialled re-drawn columns (m × L).
+    pub(super) zt: &'a DMatrix<f64>,
+    /// ‖zⱼ‖ of the columns before partialling (for the rounding-noise test).
+    pub(super) z_norms: &'a [f64],
+    /// The partialled outcome (m).
+    pub(super) y: &'a DVector<f64>,
+    /// The cluster of each row (one-way clustered covariance only).
+    pub(super) ids: Option<&'a [usize]>,
+    /// The residual sum of squares the rows leave out (fixed across draws).
+    pub(super) rss_extra: f64,
+}
+
+/// What module `cells` needs from the fixed parts: Q of the controls, M_W y, and the
+/// covariance clusters (dense ids and their number; `None` for the classical covariance).
+pub(super) struct CellParts<'a> {
+    /// Thin Q of the controls.
+    pub(super) q: Option<&'a DMatrix<f64>>,
+    /// M_W y.
+    pub(super) y_tilde: &'a DVector<f64>,
+    /// Dense cluster ids and their number.
+    pub(super) clusters: Option<(&'a [usize], usize)>,
+}
+
 impl Partialled {
     /// Prepares the regression of `y` on [Z | `w`] for Z with `l` columns.
     ///
@@ -143,15 +168,59 @@ impl Partialled {
         if let Kind::TwoWay(spec) = &self.kind {
             return self.fit_full(z, spec);
         }
-        let (n, l) = z.shape();
         let zt = match &self.q {
             Some(q) => z - q * (q.transpose() * z),
             None => z.clone(),
         };
+        let norms: Vec<f64> = z.column_iter().map(|c| c.norm()).collect();
+        let rows = Rows {
+            zt: &zt,
+            z_norms: &norms,
+            y: &self.y_tilde,
+            ids: self.cluster_ids(),
+            rss_extra: 0.0,
+        };
+        self.fit_rows(&rows, with_cov)
+    }
+
+    /// The cluster of each unit under a one-way clustered covariance.
+    fn cluster_ids(&self) -> Option<&[usize]> {
+        match &self.kind {
+            Kind::Cluster { ids, .. } => Some(ids),
+            _ => None,
+        }
+    }
+
+    /// Whether draws can be fitted from cell-level statistics (module `cells`): the
+    /// classical and one-way clustered covariances need only sums over cells and clusters;
+    /// HC weights each unit by its own squared residual and leverage, two-way and HAC refit.
+    pub(super) fn cell_parts(&self) -> Option<CellParts<'_>> {
+        let ids = match &self.kind {
+            Kind::Classical => None,
+            Kind::Cluster { ids, g } => Some((ids.as_slice(), *g)),
+            _ => return None,
+        };
+        Some(CellParts {
+            q: self.q.as_ref(),
+            y_tilde: &self.y_tilde,
+            clusters: ids,
+        })
+    }
+
+    /// The fit from rows that represent the partialled regression: the units themselves, or
+    /// the compressed rows of module `cells` (whose cross-products and cluster score sums
+    /// equal the units' in exact arithmetic). Small-sample factors use the units' n.
+    pub(super) fn fit_rows(&self, rows: &Rows<'_>, with_cov: bool) -> Option<ZFit> {
+        let zt = rows.zt;
+        let (m, l) = zt.shape();
+        let n = self.y.len();
         let k = self.w.ncols() + l;
+        if m < l {
+            return None;
+        }
         let tol = 16.0 * n.max(k) as f64 * f64::EPSILON;
         for j in 0..l {
-            if zt.column(j).norm() <= tol * z.column(j).norm() {
+            if zt.column(j).norm() <= tol * rows.z_norms[j] {
                 return None;
             }
         }
@@ -160,15 +229,15 @@ impl Partialled {
         let (g, u, t, q1) = if l == 1 {
             let zc = zt.column(0);
             let zz = zc.norm_squared();
-            let g = DVector::from_element(1, zc.dot(&self.y_tilde) / zz);
+            let g = DVector::from_element(1, zc.dot(rows.y) / zz);
             if !with_cov {
                 return Some((g, None));
             }
             // Clustered, one column: the score sums in one pass, V = c·Σ_g (Σ z̃ᵢuᵢ)² / (z̃'z̃)².
-            if let Kind::Cluster { ids, g: groups } = &self.kind {
-                let (zs, ys) = (zc.as_slice(), self.y_tilde.as_slice());
+            if let (Kind::Cluster { g: groups, .. }, Some(ids)) = (&self.kind, rows.ids) {
+                let (zs, ys) = (zc.as_slice(), rows.y.as_slice());
                 let mut sums = vec![0.0_f64; *groups];
-                for i in 0..n {
+                for i in 0..m {
                     sums[ids[i]] += zs[i] * (ys[i] - zs[i] * g[0]);
                 }
                 let meat: f64 = sums.iter().map(|v| v * v).sum();
@@ -176,29 +245,30 @@ impl Partialled {
                 let c = gf / (gf - 1.0) * ((n - 1) as f64 / self.df_cluster as f64);
                 return Some((g, Some(DMatrix::from_element(1, 1, c * meat / (zz * zz)))));
             }
-            let u = &self.y_tilde - zc * g[0];
+            let u = rows.y - zc * g[0];
             let norm = zz.sqrt();
             let t = DMatrix::from_element(1, 1, 1.0 / norm);
-            let q1 = &zt / norm;
+            let q1 = zt / norm;
             (g, u, t, q1)
         } else {
-            let qr = PivotedQr::new(&zt).ok()?;
-            let g = qr.solve(&zt, &self.y_tilde);
+            let qr = PivotedQr::new(zt).ok()?;
+            let g = qr.solve(zt, rows.y);
             if !with_cov {
                 return Some((g, None));
             }
-            let u = residual(&zt, &self.y_tilde, &g);
+            let u = residual(zt, rows.y, &g);
             (g, u, qr.t_matrix(), qr.thin_q())
         };
         let meat = match &self.kind {
             Kind::Classical => {
-                let s2 = u.norm_squared() / self.df_resid as f64;
+                let s2 = (u.norm_squared() + rows.rss_extra) / self.df_resid as f64;
                 return Some((g, Some(&t * t.transpose() * s2)));
             }
             Kind::Hc { power, scaled } => {
+                // Only unit rows reach here (`cell_parts` excludes HC).
                 let mut scaled_q = q1.clone();
                 let tol_h = n.max(k) as f64 * f64::EPSILON;
-                for i in 0..n {
+                for i in 0..m {
                     let mut wgt = u[i] * u[i];
                     if *power > 0 {
                         let one_minus_h = 1.0 - self.h_fixed[i] - q1.row(i).norm_squared();
@@ -216,7 +286,8 @@ impl Partialled {
                 };
                 q1.transpose() * scaled_q * c
             }
-            Kind::Cluster { ids, g: groups } => {
+            Kind::Cluster { g: groups, .. } => {
+                let ids = rows.ids?;
                 let mut sums = DMatrix::zeros(*groups, l);
                 for (i, &c) in ids.iter().enumerate() {
                     let mut row = sums.row_mut(c);

@@ -5,7 +5,8 @@
 //! Under the sharp null "the effect is `null` for every unit", the outcome net of the
 //! effect, y₀ = y − null · t, does not depend on the assignment, so the statistic of every
 //! possible assignment t* is computable: regress y₀ on [t* | W] (W the other columns, fixed).
-//! The controls are partialled out once (module `partial`).
+//! The controls are partialled out once (module `partial`); under a cluster-randomised design
+//! each draw is fitted from cell-level statistics (module `cells`).
 
 use nalgebra::{DMatrix, DVector};
 
@@ -14,7 +15,8 @@ use super::super::linear::validate;
 use super::super::wald::wald;
 use super::super::{Absorbed, EstimateError};
 use super::assignment::{Assigner, AssignmentDesign};
-use super::partial::Partialled;
+use super::cells::Cells;
+use super::partial::{Partialled, ZFit};
 use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
 
 /// The statistic of a randomization test for one coefficient.
@@ -31,26 +33,69 @@ fn without_column(x: &DMatrix<f64>, j: usize) -> DMatrix<f64> {
     x.clone().remove_column(j)
 }
 
-/// Evaluates `stat` on the observed draw (must succeed) and on every re-drawn assignment.
+/// Fits the re-drawn columns of a draw given as group labels: from cell-level statistics
+/// (module `cells`) when the design is cluster-randomised and the covariance allows it,
+/// else unit by unit.
+struct DrawFitter<'a> {
+    part: &'a Partialled,
+    assigner: &'a Assigner,
+    cells: Option<Cells>,
+}
+
+impl<'a> DrawFitter<'a> {
+    fn new(part: &'a Partialled, assigner: &'a Assigner) -> Self {
+        let cells = if assigner.grouped() {
+            part.cell_parts()
+                .map(|parts| Cells::new(&parts, assigner.unit_group()))
+        } else {
+            None
+        };
+        DrawFitter {
+            part,
+            assigner,
+            cells,
+        }
+    }
+
+    /// A re-drawn assignment (`units` false) or the observed one (`units` true: always
+    /// fitted unit by unit, so the observed statistic has the bits of the direct fit; draws
+    /// that reproduce it differ by rounding only, far inside [`TIE_TOLERANCE`]).
+    ///
+    /// [`TIE_TOLERANCE`]: super::TIE_TOLERANCE
+    fn fit(&self, labels: &[usize], units: bool, with_cov: bool) -> Option<ZFit> {
+        match &self.cells {
+            Some(cells) if !units => {
+                cells.fit(self.part, &self.assigner.group_values(labels), with_cov)
+            }
+            _ => {
+                let units = self.assigner.expand(labels);
+                self.part.fit(&self.assigner.values(&units), with_cov)
+            }
+        }
+    }
+}
+
+/// Evaluates `stat` on the observed draw (must succeed; second argument true) and on every
+/// re-drawn assignment (false), each given as group labels.
 fn permutation_run<F>(
     assigner: &Assigner,
     plan: &Draws,
     stat: F,
 ) -> Result<DrawStats, ResampleError>
 where
-    F: Fn(&DMatrix<f64>) -> Option<f64> + Sync + Send,
+    F: Fn(&[usize], bool) -> Option<f64> + Sync + Send,
 {
-    let observed_z = assigner.values(&assigner.observed());
-    let observed = stat(&observed_z).ok_or(ResampleError::ObservedNotFinite)?;
+    let observed =
+        stat(&assigner.observed_groups(), true).ok_or(ResampleError::ObservedNotFinite)?;
     let keep = |s: Option<f64>| s.filter(|v| v.is_finite());
     let (stats, exact) = run_draws(
         assigner.total(),
         plan,
         observed,
-        |i| keep(stat(&assigner.values(&assigner.unrank(i)))),
+        |i| keep(stat(&assigner.unrank_groups(i), false)),
         |b| {
             let mut stream = Stream::for_draw(plan.seed, b);
-            keep(stat(&assigner.values(&assigner.shuffle(&mut stream))))
+            keep(stat(&assigner.shuffle_groups(&mut stream), false))
         },
     )?;
     Ok((observed, stats, exact))
@@ -136,8 +181,9 @@ pub(crate) fn randomization_statistics(
         .into());
     }
     let assigner = Assigner::new(design, &observed_values)?;
-    permutation_run(&assigner, plan, |z| {
-        let (g, v) = part.fit(z, with_cov)?;
+    let fitter = DrawFitter::new(&part, &assigner);
+    permutation_run(&assigner, plan, |labels, observed| {
+        let (g, v) = fitter.fit(labels, observed, with_cov)?;
         Some(match v {
             Some(v) => g[0] / v[(0, 0)].sqrt(),
             None => g[0],
@@ -232,8 +278,9 @@ pub(crate) fn randomization_ar_statistics(
         wald(g, v, &indices)?;
     }
     let assigner = Assigner::new(design, instruments)?;
-    permutation_run(&assigner, plan, |z| {
-        let (g, v) = part.fit(z, true)?;
+    let fitter = DrawFitter::new(&part, &assigner);
+    permutation_run(&assigner, plan, |labels, observed| {
+        let (g, v) = fitter.fit(labels, observed, true)?;
         Some(wald(&g, &v?, &indices).ok()? / l as f64)
     })
 }

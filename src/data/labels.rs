@@ -1,0 +1,177 @@
+//! The labels of a grouping column, stored once per distinct label: a dictionary of the
+//! distinct values and a 4-byte code per row, so a column of n rows with few distinct
+//! labels (clusters, blocks, binary indicators) costs about 4·n bytes rather than a heap
+//! string per row. Reads give the same `&Option<String>` a plain vector would.
+
+use std::collections::HashMap;
+use std::ops::Index;
+
+/// Labels of one column, row by row (`None`: missing).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Labels {
+    /// The distinct values, `None` (missing) included when it occurs.
+    dict: Vec<Option<String>>,
+    /// The dictionary entry of each row.
+    codes: Vec<u32>,
+}
+
+/// More distinct labels than a 4-byte code can number.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct TooManyLabels;
+
+impl Labels {
+    /// Labels from text values, in row order.
+    pub(crate) fn from_text(values: Vec<Option<String>>) -> Result<Self, TooManyLabels> {
+        let mut index: HashMap<String, u32> = HashMap::new();
+        let mut missing: Option<u32> = None;
+        let mut labels = Labels {
+            dict: Vec::new(),
+            codes: Vec::with_capacity(values.len()),
+        };
+        for v in values {
+            let code = match v {
+                None => match missing {
+                    Some(c) => c,
+                    None => *missing.insert(labels.push(None)?),
+                },
+                Some(v) => match index.get(&v) {
+                    Some(&c) => c,
+                    None => {
+                        let c = labels.push(Some(v.clone()))?;
+                        index.insert(v, c);
+                        c
+                    }
+                },
+            };
+            labels.codes.push(code);
+        }
+        Ok(labels)
+    }
+
+    /// Labels expected to be distinct row by row (identifiers): kept as they are, one entry
+    /// per row, with no hashing (duplicates are found by the key check, not here).
+    pub(crate) fn by_row(values: Vec<Option<String>>) -> Result<Self, TooManyLabels> {
+        let n = u32::try_from(values.len()).map_err(|_| TooManyLabels)?;
+        Ok(Labels {
+            dict: values,
+            codes: (0..n).collect(),
+        })
+    }
+
+    /// Labels of a numeric column: each distinct number written once, as `{}` writes it.
+    pub(crate) fn from_numbers(values: &[Option<f64>]) -> Result<Self, TooManyLabels> {
+        let mut index: HashMap<Option<u64>, u32> = HashMap::new();
+        let mut labels = Labels {
+            dict: Vec::new(),
+            codes: Vec::with_capacity(values.len()),
+        };
+        for v in values {
+            let code = match index.get(&v.map(f64::to_bits)) {
+                Some(&c) => c,
+                None => {
+                    let c = labels.push(v.map(|x| format!("{x}")))?;
+                    index.insert(v.map(f64::to_bits), c);
+                    c
+                }
+            };
+            labels.codes.push(code);
+        }
+        Ok(labels)
+    }
+
+    fn push(&mut self, value: Option<String>) -> Result<u32, TooManyLabels> {
+        let code = u32::try_from(self.dict.len()).map_err(|_| TooManyLabels)?;
+        self.dict.push(value);
+        Ok(code)
+    }
+
+    /// Number of rows.
+    pub fn len(&self) -> usize {
+        self.codes.len()
+    }
+
+    /// Whether there are no rows.
+    pub fn is_empty(&self) -> bool {
+        self.codes.is_empty()
+    }
+
+    /// The label of row `r`, `None` past the end.
+    pub fn get(&self, r: usize) -> Option<&Option<String>> {
+        self.codes.get(r).map(|&c| &self.dict[c as usize])
+    }
+
+    /// The labels row by row.
+    pub fn iter(&self) -> impl Iterator<Item = &Option<String>> + '_ {
+        self.codes.iter().map(|&c| &self.dict[c as usize])
+    }
+
+    /// The rows in the order `rows` gives.
+    pub(crate) fn reorder(&self, rows: &[usize]) -> Labels {
+        Labels {
+            dict: self.dict.clone(),
+            codes: rows.iter().map(|&r| self.codes[r]).collect(),
+        }
+    }
+}
+
+impl Index<usize> for Labels {
+    type Output = Option<String>;
+
+    fn index(&self, r: usize) -> &Option<String> {
+        &self.dict[self.codes[r] as usize]
+    }
+}
+
+impl<'a> IntoIterator for &'a Labels {
+    type Item = &'a Option<String>;
+    type IntoIter = Box<dyn Iterator<Item = &'a Option<String>> + 'a>;
+
+    fn into_iter(self) -> Self::IntoIter {
+        Box::new(self.iter())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn labels_read_back_row_by_row() {
+        let text = vec![
+            Some("b".to_string()),
+            None,
+            Some("a".into()),
+            Some("b".into()),
+            None,
+        ];
+        let l = Labels::from_text(text.clone()).unwrap();
+        assert_eq!(l.iter().cloned().collect::<Vec<_>>(), text);
+        assert_eq!(l.dict.len(), 3);
+        assert_eq!(l[3], Some("b".to_string()));
+        assert_eq!(l.get(5), None);
+        let r = l.reorder(&[2, 0, 4]);
+        assert_eq!(
+            r.iter().cloned().collect::<Vec<_>>(),
+            vec![Some("a".into()), Some("b".into()), None]
+        );
+    }
+
+    #[test]
+    fn identifiers_are_kept_row_by_row() {
+        let text = vec![Some("x".to_string()), None, Some("x".into())];
+        let l = Labels::by_row(text.clone()).unwrap();
+        assert_eq!(l.iter().cloned().collect::<Vec<_>>(), text);
+        assert_eq!(l.reorder(&[1, 0])[1], Some("x".to_string()));
+    }
+
+    #[test]
+    fn numbers_are_written_once_as_display_writes_them() {
+        let l = Labels::from_numbers(&[Some(1.0), Some(0.5), None, Some(1.0), Some(-0.0)]).unwrap();
+        let shown: Vec<Option<&str>> = l.iter().map(Option::as_deref).collect();
+        assert_eq!(
+            shown,
+            vec![Some("1"), Some("0.5"), None, Some("1"), Some("-0")]
+        );
+        assert_eq!(l.dict.len(), 4);
+    }
+}
