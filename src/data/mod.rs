@@ -11,7 +11,8 @@ mod parquet;
 mod read;
 
 pub use design::{design, Design};
-pub use read::load_table;
+pub use read::{load_table, table_from_columns};
+pub(crate) use read::needed_columns;
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;

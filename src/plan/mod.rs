@@ -12,6 +12,7 @@ mod suggest;
 pub mod unfilled;
 mod validate;
 mod validate_hac;
+mod validate_rehearsal;
 mod validate_rules;
 mod validate_spec;
 mod validate_summaries;
@@ -61,6 +62,47 @@ pub struct Plan {
     pub balance: Option<Balance>,
     /// Attrition checks, when declared.
     pub attrition: Option<Attrition>,
+    /// Simulated data for `sworn rehearse`, when declared.
+    pub rehearsal: Option<Rehearsal>,
+}
+
+/// `[rehearsal]`: how to simulate the study's data before they exist.
+#[derive(Debug, Clone)]
+pub struct Rehearsal {
+    /// Simulated data sets per effect size.
+    pub replications: usize,
+    /// Seed; replication r at effect e uses the stream of (seed, r) whatever e.
+    pub seed: u64,
+    /// Power at which the minimum detectable effect is read.
+    pub target_power: f64,
+    /// Values of `effect` simulated, ascending, starting at 0.
+    pub effects: Vec<f64>,
+    /// A data-generating process per data table id.
+    pub generators: BTreeMap<String, Generator>,
+}
+
+/// A data-generating process for one table.
+#[derive(Debug, Clone)]
+pub struct Generator {
+    /// Rows simulated.
+    pub rows: usize,
+    /// Columns in evaluation order (each after the columns it uses; ties by name).
+    pub columns: Vec<GeneratedColumn>,
+}
+
+/// One simulated column.
+#[derive(Debug, Clone)]
+pub struct GeneratedColumn {
+    /// Declared column name.
+    pub name: String,
+    /// The expression as written.
+    pub text: String,
+    /// Parsed (random draws allowed).
+    pub expr: Expr,
+    /// Declared kind.
+    pub kind: ColumnKind,
+    /// Line and column of the expression in the plan (for errors found while simulating).
+    pub place: (usize, usize),
 }
 
 /// How a summary index weights its standardized components.
