@@ -21,6 +21,7 @@ pub mod guide;
 pub mod inference;
 pub mod ledger;
 pub mod plan;
+pub mod rehearse;
 pub mod report;
 pub mod results;
 pub mod starter;

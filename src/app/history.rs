@@ -69,6 +69,7 @@ pub fn log(plan: &Path) -> Result<Outcome> {
             Event::Amended => "amended",
             Event::DataFirstRead => "data first read",
             Event::Run => "run",
+            Event::Rehearsed => "rehearsed",
         };
         let mark = if registered == Some(n) {
             "  [registered version]"
@@ -175,6 +176,7 @@ fn version_at(ledger: &Ledger, plan: &Path, line: usize) -> Result<Version> {
         Event::Amended => "amended",
         Event::DataFirstRead => "data first read",
         Event::Run => "run",
+        Event::Rehearsed => "rehearsed",
     };
     Ok(Version {
         label: format!("line {line} ({what}, {})", entry.time),

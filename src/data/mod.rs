@@ -11,8 +11,8 @@ mod parquet;
 mod read;
 
 pub use design::{design, Design};
-pub use read::{load_table, table_from_columns};
 pub(crate) use read::needed_columns;
+pub use read::{load_table, table_from_columns};
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;

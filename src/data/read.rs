@@ -285,11 +285,16 @@ pub fn table_from_columns(
         if values.len() != rows {
             return Err(data_err(
                 src,
-                format!("column `{name}` holds {} values for {rows} rows", values.len()),
+                format!(
+                    "column `{name}` holds {} values for {rows} rows",
+                    values.len()
+                ),
             ));
         }
         if !col.kind.is_numeric() || col.kind.is_grouping() {
-            table.labels.insert(name.clone(), to_labels(RawValues::Numbers(values.clone())));
+            table
+                .labels
+                .insert(name.clone(), to_labels(RawValues::Numbers(values.clone())));
         }
         if col.kind.is_numeric() {
             table.numeric.insert(name, values);

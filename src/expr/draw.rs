@@ -62,7 +62,10 @@ impl Draw {
 
     /// The draw function called `name`, if any.
     pub fn named(name: &str) -> Option<Draw> {
-        DRAWS.iter().find(|(_, n, _)| *n == name).map(|(d, _, _)| *d)
+        DRAWS
+            .iter()
+            .find(|(_, n, _)| *n == name)
+            .map(|(d, _, _)| *d)
     }
 
     /// Number of arguments.

@@ -25,6 +25,7 @@ use std::path::PathBuf;
 pub use source::SourceMap;
 pub use suggest::{closest, hint as suggest_hint};
 pub use validate::{from_text, load};
+pub use validate_rehearsal::EFFECT;
 pub use validate_spec::spec_terms;
 
 /// A validated plan.
