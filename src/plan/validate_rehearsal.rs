@@ -154,6 +154,13 @@ fn generator(
                 ),
             ));
         };
+        if n == EFFECT {
+            return Err(ctx.at(
+                name,
+                ckey,
+                format!("`{EFFECT}` is the name through which a rehearsal reads the effect size simulated; rename the column in [data.{table}] to rehearse this plan"),
+            ));
+        }
         let e = expr::parse_random(text.get_ref()).map_err(|e| expr_error(ctx, text, &ckey, &e))?;
         let uses_assigned = e.draws().contains(&Draw::Assigned);
         let assigned_here = plan.assignment.as_ref().is_some_and(|a| &a.variable == n);

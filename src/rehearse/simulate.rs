@@ -29,7 +29,7 @@ pub fn tables(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<BTreeMap<St
     let stream = RefCell::new(Stream::new(seed, r));
     let mut out = BTreeMap::new();
     for (id, g) in &reh.generators {
-        let columns = columns(plan, g, &stream, effect)?;
+        let columns = columns(plan, id, g, &stream, effect)?;
         let src = &plan.data[id];
         let t = table_from_columns(plan, src, columns, g.rows, format!("simulated:{r}"))?;
         out.insert(id.clone(), t);
@@ -39,6 +39,7 @@ pub fn tables(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<BTreeMap<St
 
 fn columns(
     plan: &Plan,
+    table: &str,
     g: &Generator,
     stream: &RefCell<Stream>,
     effect: f64,
@@ -61,21 +62,21 @@ fn columns(
             };
             c.expr
                 .eval_drawn(g.rows, &lookup, &source)
-                .map_err(|e| at(plan, c, effect, &e.message))?
+                .map_err(|e| at(plan, table, c, effect, &e.message))?
         };
-        check_kind(plan, c, effect, &values)?;
+        check_kind(plan, table, c, effect, &values)?;
         done.insert(c.name.clone(), values);
     }
     Ok(done)
 }
 
 /// An error at the expression of column `c`.
-fn at(plan: &Plan, c: &GeneratedColumn, effect: f64, message: &str) -> Error {
+fn at(plan: &Plan, table: &str, c: &GeneratedColumn, effect: f64, message: &str) -> Error {
     Error::Plan {
         path: plan.path.clone(),
         line: c.place.0,
         column: c.place.1,
-        key: format!("rehearsal.data.*.columns.{}", c.name),
+        key: format!("rehearsal.data.{table}.columns.{}", c.name),
         message: format!(
             "simulating \"{}\" at effect = {effect}: {message}",
             crate::escape::clip(&c.text, crate::escape::SHOWN)
@@ -84,7 +85,13 @@ fn at(plan: &Plan, c: &GeneratedColumn, effect: f64, message: &str) -> Error {
 }
 
 /// Binary columns must come out 0/1 and integer columns whole, as the run would require.
-fn check_kind(plan: &Plan, c: &GeneratedColumn, effect: f64, values: &[Option<f64>]) -> Result<()> {
+fn check_kind(
+    plan: &Plan,
+    table: &str,
+    c: &GeneratedColumn,
+    effect: f64,
+    values: &[Option<f64>],
+) -> Result<()> {
     let bad = |v: f64| match c.kind {
         ColumnKind::Binary => v != 0.0 && v != 1.0,
         ColumnKind::Integer => v.fract() != 0.0,
@@ -95,7 +102,7 @@ fn check_kind(plan: &Plan, c: &GeneratedColumn, effect: f64, values: &[Option<f6
         .enumerate()
         .find_map(|(i, v)| v.filter(|v| bad(*v)).map(|v| (i, v)))
     {
-        return Err(at(plan, c, effect, &format!(
+        return Err(at(plan, table, c, effect, &format!(
             "row {} is {v} but `{}` is declared {}; use bernoulli(p) for a 0/1 column, level(k) or group(k) for whole numbers",
             row + 1,
             c.name,

@@ -196,7 +196,7 @@ fn mde(effects: &[f64], curve: &[CurvePoint], target: f64) -> (Option<f64>, Opti
         return (
             None,
             None,
-            "the claim is supported in at least the target share of data sets with no effect: the test does not hold its size under this data-generating process".into(),
+            "the claim is supported in at least the target share of data sets at effect 0: its term does not depend on `effect` in the data-generating process, or the test does not hold its size".into(),
         );
     }
     let (a, b) = (&curve[i - 1], &curve[i]);

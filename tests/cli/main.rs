@@ -17,5 +17,6 @@ mod json;
 mod nist;
 mod readme;
 mod reference;
+mod rehearse;
 mod resampling;
 mod summaries;
