@@ -61,6 +61,18 @@ pub fn rehearse(
         });
     };
     let reps = replications.unwrap_or(reh.replications).max(1);
+    let registered_draws = plan.resampling.map(|r| r.draws);
+    let cheaper;
+    let plan = match (reh.resampling_draws, plan.resampling) {
+        (Some(draws), Some(r)) => {
+            cheaper = Plan {
+                resampling: Some(crate::plan::Resampling { draws, ..r }),
+                ..plan.clone()
+            };
+            &cheaper
+        }
+        _ => plan,
+    };
     let total = reps * reh.effects.len();
     let done = AtomicUsize::new(0);
     let outcomes: Vec<Result<Outcome>> = (0..total)
@@ -88,7 +100,7 @@ pub fn rehearse(
         });
     }
     let per_effect: Vec<&[Outcome]> = outcomes.chunks(reps).collect();
-    summary::summarise(plan, reh, reps, &per_effect)
+    summary::summarise(plan, registered_draws, reh, reps, &per_effect)
 }
 
 /// Simulate replication `r` at `effect` and run the registered analysis on it.

@@ -78,6 +78,8 @@ pub struct Rehearsal {
     pub target_power: f64,
     /// Values of `effect` simulated, ascending, starting at 0.
     pub effects: Vec<f64>,
+    /// Draws of each resampled test in a rehearsal (None: as `[resampling]` registers).
+    pub resampling_draws: Option<usize>,
     /// A data-generating process per data table id.
     pub generators: BTreeMap<String, Generator>,
 }
@@ -100,8 +102,10 @@ pub struct GeneratedColumn {
     pub text: String,
     /// Parsed (random draws allowed).
     pub expr: Expr,
-    /// Declared kind.
+    /// Declared kind (latent variables: number).
     pub kind: ColumnKind,
+    /// An unobserved variable: simulated for later columns, never part of the table.
+    pub latent: bool,
     /// Line and column of the expression in the plan (for errors found while simulating).
     pub place: (usize, usize),
 }

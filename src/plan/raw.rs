@@ -67,6 +67,8 @@ pub struct RawRehearsal {
     pub target_power: Option<Spanned<f64>>,
     /// Values of `effect` to simulate (0 is always added).
     pub effects: Spanned<Vec<Spanned<f64>>>,
+    /// Draws of each resampled test in a rehearsal (default: `[resampling].draws`).
+    pub resampling_draws: Option<Spanned<i64>>,
     /// A data-generating process per data table, keyed by table id.
     pub data: BTreeMap<Spanned<String>, Spanned<RawGenerator>>,
 }
@@ -80,6 +82,9 @@ pub struct RawGenerator {
     /// Column = expression (with random draws), in document order.
     #[serde(deserialize_with = "ordered_pairs")]
     pub columns: Vec<SpannedPair>,
+    /// Unobserved variables = expression: simulated and usable by columns, never in the table.
+    #[serde(default, deserialize_with = "ordered_pairs")]
+    pub latent: Vec<SpannedPair>,
 }
 
 /// `[[index]]`.

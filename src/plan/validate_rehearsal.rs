@@ -54,6 +54,17 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         None => 0.80,
     };
     let effects = effects(ctx, r)?;
+    let resampling_draws = match &r.resampling_draws {
+        Some(v) if !(99..=10_000_000).contains(v.get_ref()) => {
+            return Err(ctx.at(
+                v,
+                "rehearsal.resampling_draws",
+                "resampling_draws must be a whole number from 99 to 10000000",
+            ))
+        }
+        Some(v) => Some(*v.get_ref() as usize),
+        None => None,
+    };
     let mut generators = BTreeMap::new();
     for (id, g) in &r.data {
         let key = format!("rehearsal.data.{}", id.get_ref());
@@ -82,6 +93,7 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         seed: *r.seed.get_ref() as u64,
         target_power,
         effects,
+        resampling_draws,
         generators,
     }))
 }
@@ -141,18 +153,47 @@ fn generator(
         ));
     }
     let mut parsed: BTreeMap<String, (Spanned<String>, GeneratedColumn)> = BTreeMap::new();
-    for (name, text) in &g.get_ref().columns {
+    let all = g
+        .get_ref()
+        .columns
+        .iter()
+        .map(|p| (p, false))
+        .chain(g.get_ref().latent.iter().map(|p| (p, true)));
+    for ((name, text), latent) in all {
         let n = name.get_ref();
-        let ckey = format!("{key}.columns.{n}");
-        let Some(col) = src.columns.get(n) else {
+        let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
+        if parsed.contains_key(n) {
             return Err(ctx.at(
                 name,
                 ckey,
+                format!("`{n}` is simulated twice; keep one of its definitions"),
+            ));
+        }
+        let declared = src.columns.get(n);
+        if latent
+            && (declared.is_some()
+                || plan.derive.iter().any(|d| &d.name == n)
+                || !super::validate::is_identifier(n))
+        {
+            return Err(ctx.at(
+                name,
+                ckey,
+                format!("a latent variable needs a new name (letters, digits, underscores), not a declared column or derived variable; `{n}` is taken or not a name"),
+            ));
+        }
+        let kind = match declared {
+            Some(c) => c.kind,
+            None if latent => crate::plan::ColumnKind::Number,
+            None => {
+                return Err(ctx.at(
+                name,
+                ckey,
                 format!(
-                    "`{n}` is not a declared column of [data.{table}]{}; simulate declared columns (derived variables and indices are computed from them as in a run)",
+                    "`{n}` is not a declared column of [data.{table}]{}; simulate declared columns (derived variables and indices are computed from them as in a run) and put unobserved variables under [{key}.latent]",
                     hint(n, src.columns.keys().map(String::as_str))
                 ),
             ));
+            }
         };
         if n == EFFECT {
             return Err(ctx.at(
@@ -179,7 +220,8 @@ fn generator(
                     name: n.clone(),
                     text: text.get_ref().clone(),
                     expr: e,
-                    kind: col.kind,
+                    kind,
+                    latent,
                     place: (line, column),
                 },
             ),

@@ -40,6 +40,9 @@ pub struct Rehearsed {
     pub target_power: f64,
     /// Effect sizes simulated (values of `effect`).
     pub effects: Vec<f64>,
+    /// Draws of each resampled test in the rehearsal, when `resampling_draws` lowered them
+    /// from the registered count (`[resampling].draws`, the second number).
+    pub resampling_draws: Option<(usize, usize)>,
     /// Per hypothesis.
     pub hypotheses: BTreeMap<String, HypothesisPower>,
     /// Per decision rule: the share of data sets in which it fired, per effect size.
@@ -218,6 +221,7 @@ fn mde(effects: &[f64], curve: &[CurvePoint], target: f64) -> (Option<f64>, Opti
 
 pub(super) fn summarise(
     plan: &Plan,
+    registered_draws: Option<usize>,
     reh: &Rehearsal,
     reps: usize,
     per_effect: &[&[Outcome]],
@@ -337,6 +341,7 @@ pub(super) fn summarise(
         seed: reh.seed,
         target_power: reh.target_power,
         effects: reh.effects.clone(),
+        resampling_draws: reh.resampling_draws.zip(registered_draws),
         hypotheses,
         rules,
         first_stage,
