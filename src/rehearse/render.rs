@@ -32,6 +32,12 @@ pub fn markdown(r: &Rehearsed, title: &str) -> String {
         r.plan_content_sha256,
         r.assumptions_sha256
     );
+    if let Some((used, registered)) = r.resampling_draws {
+        let _ = writeln!(
+            o,
+            "Resampled tests used {used} draws each in this rehearsal (`resampling_draws`); the registered analysis uses {registered}. Their power is estimated with the coarser p-values.\n"
+        );
+    }
     let _ = writeln!(
         o,
         "## Power and minimum detectable effect (target power {})\n",

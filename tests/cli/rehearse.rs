@@ -200,3 +200,36 @@ fn rehearse_json_prints_one_object() {
     assert_eq!(v["command"], "rehearse");
     assert_eq!(v["rehearsal"]["replications"], 3);
 }
+
+#[test]
+fn the_demo_plan_rehearses_every_hypothesis_and_rule() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    std::fs::create_dir(dir.path().join("plans")).expect("mkdir");
+    std::fs::copy(
+        root.join("plans/cool-roofs.toml"),
+        dir.path().join("plans/cool-roofs.toml"),
+    )
+    .expect("copy the demo plan");
+    let r = crate::common::run_in(
+        dir.path(),
+        &["rehearse", "plans/cool-roofs.toml", "--replications", "2"],
+    );
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    for h in ["H1", "H2", "H3", "H4", "H5", "H6"] {
+        assert!(r.stdout.contains(&format!("  {h} (")), "{h}: {}", r.stdout);
+    }
+    for rule in ["few-blocks", "weak-call", "exogenous-painting"] {
+        assert!(
+            r.stdout.contains(&format!("rule {rule} fires in")),
+            "{rule}: {}",
+            r.stdout
+        );
+    }
+    let md = std::fs::read_to_string(dir.path().join("plans/cool-roofs-rehearsal/rehearsal.md"))
+        .expect("rehearsal.md beside the plan");
+    assert!(
+        md.contains("used 199 draws") && md.contains("uses 9999"),
+        "{md}"
+    );
+}
