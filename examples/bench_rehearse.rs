@@ -55,7 +55,7 @@ fn main() {
     .expect("plans/cool-roofs.toml");
     let model_text = text
         .replace("inference = \"randomization\"\n", "")
-        .replace("fewer_than = 100", "fewer_than = 2");
+        .replace("fewer_than = 100", "fewer_than = 3");
     let model = plan(&model_text);
     let registered = plan(&text);
     let full = plan(&text.replace("resampling_draws = 199\n", ""));
