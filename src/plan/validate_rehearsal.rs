@@ -162,13 +162,6 @@ fn generator(
     for ((name, text), latent) in all {
         let n = name.get_ref();
         let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
-        if parsed.contains_key(n) {
-            return Err(ctx.at(
-                name,
-                ckey,
-                format!("`{n}` is simulated twice; keep one of its definitions"),
-            ));
-        }
         let declared = src.columns.get(n);
         if latent
             && (declared.is_some()
@@ -179,6 +172,13 @@ fn generator(
                 name,
                 ckey,
                 format!("a latent variable needs a new name (letters, digits, underscores), not a declared column or derived variable; `{n}` is taken or not a name"),
+            ));
+        }
+        if parsed.contains_key(n) {
+            return Err(ctx.at(
+                name,
+                ckey,
+                format!("`{n}` is simulated twice; keep one of its definitions"),
             ));
         }
         let kind = match declared {

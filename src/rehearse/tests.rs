@@ -303,3 +303,50 @@ fn clusters_are_assigned_whole() {
     let n_treated = treated.iter().flatten().sum::<f64>();
     assert_eq!(n_treated, 200.0, "20 of 40 schools treated");
 }
+
+#[test]
+fn draws_parse_only_for_rehearsals_and_print_back() {
+    let src = "effect * arm + group_normal(school, sqrt(0.1)) + normal(0, 1)";
+    let e = crate::expr::parse_random(src).expect("parses");
+    assert_eq!(crate::expr::parse_random(&e.to_string()).as_ref(), Ok(&e));
+    assert!(e.uses_draws());
+    let refused = crate::expr::parse(src).expect_err("draws refused in [derive]");
+    assert!(
+        refused.message.contains("only a [rehearsal]"),
+        "{}",
+        refused.message
+    );
+    let err = crate::expr::parse_random("normal(1)").expect_err("arity");
+    assert!(err.message.contains("normal(mean, sd)"), "{}", err.message);
+    // Evaluating a draw without a rehearsal's stream is an error, never a number.
+    let col = [Some(1.0)];
+    let e = crate::expr::parse_random("bernoulli(0.5)").expect("parses");
+    assert!(e.eval(1, &|_| Some(&col[..])).is_err());
+}
+
+#[test]
+fn latent_variables_drive_columns_but_stay_out_of_the_table() {
+    let text = TWO_ARM
+        .replace(
+            "y = \"effect * arm + normal(0, 1)\"",
+            "y = \"effect * arm + grit\"",
+        )
+        .replace(
+            "arm = \"assigned(0.5)\"",
+            "arm = \"assigned(0.5)\"\n[rehearsal.data.people.latent]\ngrit = \"normal(0, 1)\"",
+        );
+    let p = plan(&text);
+    let t = simulated_tables(&p, 0, 0.0).expect("tables");
+    assert!(!t["people"].numeric.contains_key("grit"));
+    assert!(t["people"].numeric["y"].iter().all(Option::is_some));
+    // A latent variable may not reuse a declared column's name.
+    let clash = TWO_ARM.replace(
+        "arm = \"assigned(0.5)\"",
+        "arm = \"assigned(0.5)\"\n[rehearsal.data.people.latent]\ny = \"normal(0, 1)\"",
+    );
+    let e = from_text(std::path::Path::new("/nonexistent/check.toml"), clash).expect_err("refused");
+    assert!(
+        e.to_string().contains("latent variable needs a new name"),
+        "{e}"
+    );
+}
