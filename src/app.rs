@@ -12,6 +12,7 @@ use std::path::{Path, PathBuf};
 
 mod history;
 mod machine;
+mod rehearse;
 mod rundir;
 mod verify;
 
@@ -62,6 +63,13 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
             data,
             json,
         } => verify(&dir, registered.as_deref(), &data, json),
+        Command::Rehearse {
+            plan,
+            replications,
+            out,
+            replace,
+            json,
+        } => rehearse::rehearse(&plan, replications, out.as_deref(), replace, json),
         Command::Log { plan } => history::log(&plan),
         Command::Diff { plan, from, to } => history::diff(&plan, from, to),
         Command::Demo { out } => {
@@ -341,7 +349,7 @@ pub fn amend(path: &Path, reason: &str) -> Result<Outcome> {
     Ok(Outcome::Success)
 }
 
-fn locked(path: &Path, create: bool) -> Result<ledger::Locked> {
+pub(crate) fn locked(path: &Path, create: bool) -> Result<ledger::Locked> {
     Ledger::lock(path, create)?.ok_or_else(|| Error::Ledger {
         path: path.to_path_buf(),
         message: "there is no ledger: seal the plan first with `sworn seal PLAN`".into(),
@@ -429,7 +437,7 @@ pub fn run(
     Ok((outcome, out_dir))
 }
 
-fn slashed(p: &Path) -> String {
+pub(crate) fn slashed(p: &Path) -> String {
     p.to_string_lossy().replace('\\', "/")
 }
 

@@ -25,6 +25,7 @@ impl Command {
             Command::Check { json: true, .. } => Some("check"),
             Command::Run { json: true, .. } => Some("run"),
             Command::Verify { json: true, .. } => Some("verify"),
+            Command::Rehearse { json: true, .. } => Some("rehearse"),
             _ => None,
         }
     }
@@ -90,6 +91,27 @@ pub enum Command {
         #[arg(long)]
         strict: bool,
         /// Replace an existing run directory (otherwise a non-empty one is refused).
+        #[arg(long)]
+        replace: bool,
+        /// Print one JSON object instead of text (shape: docs/json-output.md).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Simulate the study from the plan's [rehearsal] section and run the registered analysis
+    /// on every simulated data set: power, minimum detectable effects, size, rule firing rates.
+    #[command(
+        after_help = "Examples:\n  sworn rehearse plan.toml                       # writes plan-rehearsal/ beside the plan\n  sworn rehearse plan.toml --replications 2000 --out power --replace"
+    )]
+    Rehearse {
+        /// The plan file.
+        plan: PathBuf,
+        /// Simulated data sets per effect size (default: the plan's `replications`).
+        #[arg(long)]
+        replications: Option<usize>,
+        /// Output directory (default PLAN-stem-rehearsal/ beside the plan).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Replace an existing output directory (otherwise a non-empty one is refused).
         #[arg(long)]
         replace: bool,
         /// Print one JSON object instead of text (shape: docs/json-output.md).

@@ -46,6 +46,7 @@
 
 mod call;
 mod display;
+mod draw;
 mod eval;
 mod lexer;
 mod parse_error;
@@ -53,7 +54,8 @@ mod parser;
 
 use std::collections::BTreeSet;
 
-pub use parser::parse;
+pub use draw::{Draw, DrawSource};
+pub use parser::{parse, parse_random};
 
 /// The deepest nesting [`parse`] accepts: of parentheses and prefix operators while
 /// parsing, and of the resulting tree.
@@ -101,6 +103,13 @@ pub enum Expr {
         then: Box<Expr>,
         /// The value where the condition is false.
         otherwise: Box<Expr>,
+    },
+    /// A random draw (rehearsal data-generating processes only; see [`parse_random`]).
+    Draw {
+        /// The draw function.
+        draw: Draw,
+        /// Its arguments, in order.
+        args: Vec<Expr>,
     },
 }
 
@@ -314,7 +323,25 @@ impl Expr {
                 then,
                 otherwise,
             } => vec![cond, then, otherwise],
+            Expr::Draw { args, .. } => args.iter().collect(),
         }
+    }
+
+    /// True when a random draw appears anywhere in the expression.
+    pub fn uses_draws(&self) -> bool {
+        matches!(self, Expr::Draw { .. }) || self.children().into_iter().any(Expr::uses_draws)
+    }
+
+    /// Every draw function used, outermost first, left to right.
+    pub fn draws(&self) -> Vec<Draw> {
+        let mut out = Vec::new();
+        if let Expr::Draw { draw, .. } = self {
+            out.push(*draw);
+        }
+        for c in self.children() {
+            out.extend(c.draws());
+        }
+        out
     }
 }
 

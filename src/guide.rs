@@ -28,6 +28,8 @@ A plan is one TOML file. Its sections, in the order a plan usually gives them
   [[index]], [balance],       summary indices, balance and         Summary indices,
   [attrition]                 attrition checks                     balance, attrition
   [[table]]                   tables for the report                Top level
+  [rehearsal]                 simulated data for `rehearse`:       Rehearsal
+                              power, MDE, rule firing rates
 
 Missing values in data files: an empty field, NA or . (Data tables).
 Names in expressions that are not identifiers go between backticks: `floor area`.

@@ -83,6 +83,8 @@ pub enum Event {
     DataInspected,
     /// A run wrote outputs.
     Run,
+    /// `sworn rehearse` simulated the study (no data read; never counts as a data read).
+    Rehearsed,
 }
 
 /// One ledger line.
@@ -117,6 +119,10 @@ pub struct Entry {
     /// The run directory, relative to the plan's folder (run).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub out: Option<String>,
+    /// SHA-256 of a rehearsal's assumptions: its canonical `[rehearsal]` section and
+    /// replication count (rehearsed).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub assumptions: Option<String>,
     /// Version of sworn that wrote the entry.
     pub tool_version: String,
     /// SHA-256 of the previous line's bytes.
@@ -137,6 +143,7 @@ impl Entry {
             outputs: None,
             basis: None,
             out: None,
+            assumptions: None,
             tool_version: TOOL_VERSION.to_string(),
             prev: String::new(),
         }

@@ -22,6 +22,7 @@ pub mod inference;
 pub mod ledger;
 pub mod plan;
 pub mod random;
+pub mod rehearse;
 pub mod report;
 pub mod results;
 pub mod starter;

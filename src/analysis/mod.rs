@@ -182,6 +182,17 @@ pub fn execute(
     })
 }
 
+/// Set while a caller that draws its own progress (a rehearsal) runs [`analyse`] many times.
+static QUIET: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
+
+/// Run `f` with [`analyse`]'s resampling progress line switched off.
+pub fn quietly<T>(f: impl FnOnce() -> T) -> T {
+    QUIET.store(true, std::sync::atomic::Ordering::Relaxed);
+    let out = f();
+    QUIET.store(false, std::sync::atomic::Ordering::Relaxed);
+    out
+}
+
 /// What [`analyse`] computes: every specification, decision rule and hypothesis of a plan.
 pub(crate) struct Analysed {
     /// Fitted specifications by id.
@@ -208,8 +219,10 @@ pub(crate) fn analyse(
     let mut fitted = BTreeMap::new();
     let needs = contingency::needs(plan);
     let resampling = needs.values().any(|n| !n.resample.is_empty());
-    let _progress = (resampling && std::io::IsTerminal::is_terminal(&std::io::stderr()))
-        .then(progress::Progress::start);
+    let _progress = (resampling
+        && !QUIET.load(std::sync::atomic::Ordering::Relaxed)
+        && std::io::IsTerminal::is_terminal(&std::io::stderr()))
+    .then(progress::Progress::start);
     let none = spec::Needs::default();
     // Specifications are independent: fit them on all cores, then take the results (and the
     // first error) in plan order, so the output does not depend on which finished first.

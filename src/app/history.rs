@@ -34,6 +34,7 @@ fn event_name(e: Event) -> &'static str {
         Event::DataFirstRead => "data first read",
         Event::DataInspected => "data inspected",
         Event::Run => "run",
+        Event::Rehearsed => "rehearsed",
     }
 }
 

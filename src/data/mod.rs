@@ -13,7 +13,8 @@ mod read;
 
 pub use design::{design, Design};
 pub use labels::{Labels, TooManyLabels};
-pub use read::load_table;
+pub(crate) use read::needed_columns;
+pub use read::{load_table, table_from_columns};
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;

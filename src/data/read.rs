@@ -5,7 +5,7 @@ use crate::deviation::{Deviation, Severity};
 use crate::error::{Error, Result};
 use crate::plan::{Column, ColumnKind, DataFormat, DataSource, Plan};
 use polars::prelude::*;
-use std::collections::BTreeSet;
+use std::collections::{BTreeMap, BTreeSet};
 
 /// Raw values of one column: text (CSV, or text columns in Parquet) or numbers.
 enum RawValues {
@@ -212,7 +212,7 @@ fn too_many_labels(src: &DataSource, name: &str) -> Error {
 
 /// Declared columns a run needs: those used by specifications (directly or through derived
 /// variables), keys, row orders, clusters and the assignment.
-fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
+pub(crate) fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
     let mut names = BTreeSet::new();
     for s in plan.specifications.iter().filter(|s| s.data == src.id) {
         names.extend(
@@ -325,6 +325,57 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
     derive_columns(plan, src, &mut table)?;
     index_columns(plan, src, &mut table)?;
     Ok((table, devs))
+}
+
+/// A table from columns held in memory (a rehearsal's simulated data) rather than a file.
+/// Each declared column given is read as `load_column` reads numbers from a file (grouping
+/// kinds also as labels, non-numeric kinds as labels only); then rows are ordered and derived
+/// variables and indices computed exactly as for a file. `sha256` stands for the file's
+/// fingerprint. No schema deviations are produced: the caller built the values.
+///
+/// # Errors
+/// Every column must have `rows` values; ordering, derived variables and indices fail as for
+/// a file.
+pub fn table_from_columns(
+    plan: &Plan,
+    src: &DataSource,
+    columns: BTreeMap<String, Vec<Option<f64>>>,
+    rows: usize,
+    sha256: String,
+) -> Result<Table> {
+    let mut table = Table {
+        id: src.id.clone(),
+        path: src.path.clone(),
+        sha256,
+        rows,
+        numeric: Default::default(),
+        labels: Default::default(),
+    };
+    for (name, values) in columns {
+        let Some(col) = src.columns.get(&name) else {
+            continue;
+        };
+        if values.len() != rows {
+            return Err(data_err(
+                src,
+                format!(
+                    "column `{name}` holds {} values for {rows} rows",
+                    values.len()
+                ),
+            ));
+        }
+        if !col.kind.is_numeric() || col.kind.is_grouping() {
+            let labels = to_labels(src, &name, col.kind, RawValues::Numbers(values.clone()))?;
+            table.labels.insert(name.clone(), labels);
+        }
+        if col.kind.is_numeric() {
+            table.numeric.insert(name, values);
+        }
+    }
+    order_rows(src, &mut table)?;
+    derive_columns(plan, src, &mut table)?;
+    index_columns(plan, src, &mut table)?;
+    Ok(table)
 }
 
 fn load_column(

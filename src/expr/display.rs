@@ -44,6 +44,16 @@ impl fmt::Display for Expr {
                 then,
                 otherwise,
             } => write!(f, "if({cond}, {then}, {otherwise})"),
+            Expr::Draw { draw, args } => {
+                write!(f, "{}(", draw.name())?;
+                for (i, a) in args.iter().enumerate() {
+                    if i > 0 {
+                        f.write_str(", ")?;
+                    }
+                    write!(f, "{a}")?;
+                }
+                f.write_str(")")
+            }
         }
     }
 }

@@ -5,7 +5,7 @@
 //! in the parent module. Recursion follows the tree, whose depth [`parse`](super::parse)
 //! bounds.
 
-use super::{BinOp, Expr, ExprError, Func};
+use super::{BinOp, DrawSource, Expr, ExprError, Func};
 
 /// One evaluated column; `None` is missing.
 type Column = Vec<Option<f64>>;
@@ -33,12 +33,31 @@ impl Expr {
         n: usize,
         lookup: &dyn Fn(&str) -> Option<&'a [Option<f64>]>,
     ) -> Result<Vec<Option<f64>>, ExprError> {
-        evaluate(self, n, lookup)
+        evaluate(self, n, lookup, None)
+    }
+
+    /// Evaluates the expression over `n` rows like [`Expr::eval`], taking the values of
+    /// random draws from `source`.
+    ///
+    /// # Errors
+    /// As [`Expr::eval`], or a draw's arguments outside its domain.
+    pub fn eval_drawn<'a>(
+        &self,
+        n: usize,
+        lookup: &dyn Fn(&str) -> Option<&'a [Option<f64>]>,
+        source: &dyn DrawSource,
+    ) -> Result<Vec<Option<f64>>, ExprError> {
+        evaluate(self, n, lookup, Some(source))
     }
 }
 
-fn evaluate(e: &Expr, n: usize, lookup: Lookup<'_, '_>) -> Result<Column, ExprError> {
-    let eval = |sub: &Expr| evaluate(sub, n, lookup);
+fn evaluate(
+    e: &Expr,
+    n: usize,
+    lookup: Lookup<'_, '_>,
+    source: Option<&dyn DrawSource>,
+) -> Result<Column, ExprError> {
+    let eval = |sub: &Expr| evaluate(sub, n, lookup, source);
     Ok(match e {
         Expr::Number(v) => vec![finite(*v); n],
         Expr::Name(name) => column(name, n, lookup)?,
@@ -52,6 +71,24 @@ fn evaluate(e: &Expr, n: usize, lookup: Lookup<'_, '_>) -> Result<Column, ExprEr
             then,
             otherwise,
         } => choose(eval(cond)?, eval(then)?, eval(otherwise)?),
+        Expr::Draw { draw, args } => {
+            let source = source.ok_or_else(|| {
+                ExprError::eval(format!(
+                    "`{}` draws random numbers, which only a rehearsal may evaluate",
+                    draw.name()
+                ))
+            })?;
+            let values = args.iter().map(eval).collect::<Result<Vec<_>, _>>()?;
+            let out = source.draw(*draw, &values, n)?;
+            if out.len() != n {
+                return Err(ExprError::eval(format!(
+                    "`{}` gave {} values for {n} rows",
+                    draw.name(),
+                    out.len()
+                )));
+            }
+            out.into_iter().map(|v| v.and_then(finite)).collect()
+        }
     })
 }
 

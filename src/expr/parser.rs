@@ -39,6 +39,19 @@ impl Node {
 /// after a complete expression, or nesting deeper than [`MAX_DEPTH`]. Each error carries
 /// the character offset of the problem.
 pub fn parse(src: &str) -> Result<Expr, ExprError> {
+    parse_with(src, false)
+}
+
+/// Parses `src` like [`parse`], also accepting the random-draw functions of a rehearsal's
+/// data-generating process (`normal`, `bernoulli`, ...; see [`Draw`](super::Draw)).
+///
+/// # Errors
+/// As [`parse`].
+pub fn parse_random(src: &str) -> Result<Expr, ExprError> {
+    parse_with(src, true)
+}
+
+fn parse_with(src: &str, draws: bool) -> Result<Expr, ExprError> {
     let tokens = tokenize(src)?;
     if tokens.len() == 1 {
         return Err(ExprError::at(
@@ -50,6 +63,7 @@ pub fn parse(src: &str) -> Result<Expr, ExprError> {
         tokens,
         pos: 0,
         nesting: 0,
+        draws,
     };
     let node = parser.nested(0, prec::OR)?;
     parser.expect_end()?;
@@ -60,6 +74,8 @@ struct Parser {
     tokens: Vec<Token>,
     pos: usize,
     nesting: usize,
+    /// Whether random-draw functions are accepted.
+    draws: bool,
 }
 
 impl Parser {
@@ -170,7 +186,10 @@ impl Parser {
 
     /// A call `name(arg, ...)`; the current token is `name`, the next one `(`.
     fn call(&mut self, name: &str, offset: usize) -> Result<Node, ExprError> {
-        super::call::check_known(name, offset)?;
+        let draw = super::Draw::named(name);
+        if draw.is_none() {
+            super::call::check_known(name, offset)?;
+        }
         self.advance();
         let open = self.advance().offset;
         let mut args = Vec::new();
@@ -188,7 +207,10 @@ impl Parser {
             return Err(self.unclosed(open, &format!("the `(` of `{name}(`")));
         }
         self.advance();
-        build_call(name, offset, args)
+        match draw {
+            Some(d) => super::draw::build_draw(d, self.draws, offset, args),
+            None => build_call(name, offset, args),
+        }
     }
 
     /// The error for a `(` at `open` that is not closed where the parser stands now.

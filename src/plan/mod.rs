@@ -11,6 +11,7 @@ mod source;
 pub mod unfilled;
 mod validate;
 mod validate_hac;
+mod validate_rehearsal;
 mod validate_rules;
 mod validate_spec;
 mod validate_summaries;
@@ -25,6 +26,7 @@ use std::path::PathBuf;
 pub use crate::suggest::{closest, hint as suggest_hint};
 pub use source::SourceMap;
 pub use validate::{from_text, load};
+pub use validate_rehearsal::EFFECT;
 pub use validate_spec::spec_terms;
 
 /// A validated plan.
@@ -62,6 +64,51 @@ pub struct Plan {
     pub balance: Option<Balance>,
     /// Attrition checks, when declared.
     pub attrition: Option<Attrition>,
+    /// Simulated data for `sworn rehearse`, when declared.
+    pub rehearsal: Option<Rehearsal>,
+}
+
+/// `[rehearsal]`: how to simulate the study's data before they exist.
+#[derive(Debug, Clone)]
+pub struct Rehearsal {
+    /// Simulated data sets per effect size.
+    pub replications: usize,
+    /// Seed; replication r at effect e uses the stream of (seed, r) whatever e.
+    pub seed: u64,
+    /// Power at which the minimum detectable effect is read.
+    pub target_power: f64,
+    /// Values of `effect` simulated, ascending, starting at 0.
+    pub effects: Vec<f64>,
+    /// Draws of each resampled test in a rehearsal (None: as `[resampling]` registers).
+    pub resampling_draws: Option<usize>,
+    /// A data-generating process per data table id.
+    pub generators: BTreeMap<String, Generator>,
+}
+
+/// A data-generating process for one table.
+#[derive(Debug, Clone)]
+pub struct Generator {
+    /// Rows simulated.
+    pub rows: usize,
+    /// Columns in evaluation order (each after the columns it uses; ties by name).
+    pub columns: Vec<GeneratedColumn>,
+}
+
+/// One simulated column.
+#[derive(Debug, Clone)]
+pub struct GeneratedColumn {
+    /// Declared column name.
+    pub name: String,
+    /// The expression as written.
+    pub text: String,
+    /// Parsed (random draws allowed).
+    pub expr: Expr,
+    /// Declared kind (latent variables: number).
+    pub kind: ColumnKind,
+    /// An unobserved variable: simulated for later columns, never part of the table.
+    pub latent: bool,
+    /// Line and column of the expression in the plan (for errors found while simulating).
+    pub place: (usize, usize),
 }
 
 /// How a summary index weights its standardized components.

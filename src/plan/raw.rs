@@ -51,6 +51,40 @@ pub struct RawPlan {
     pub balance: Option<Spanned<RawBalance>>,
     /// Attrition checks and bounds.
     pub attrition: Option<Spanned<RawAttrition>>,
+    /// Simulated data for `sworn rehearse` (power, minimum detectable effects).
+    pub rehearsal: Option<Spanned<RawRehearsal>>,
+}
+
+/// `[rehearsal]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawRehearsal {
+    /// Simulated data sets per effect size (default 500).
+    pub replications: Option<Spanned<i64>>,
+    /// Seed of every simulated data set.
+    pub seed: Spanned<i64>,
+    /// Power at which the minimum detectable effect is read (default 0.80).
+    pub target_power: Option<Spanned<f64>>,
+    /// Values of `effect` to simulate (0 is always added).
+    pub effects: Spanned<Vec<Spanned<f64>>>,
+    /// Draws of each resampled test in a rehearsal (default: `[resampling].draws`).
+    pub resampling_draws: Option<Spanned<i64>>,
+    /// A data-generating process per data table, keyed by table id.
+    pub data: BTreeMap<Spanned<String>, Spanned<RawGenerator>>,
+}
+
+/// `[rehearsal.data.NAME]`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawGenerator {
+    /// Rows of each simulated table.
+    pub rows: Spanned<i64>,
+    /// Column = expression (with random draws), in document order.
+    #[serde(deserialize_with = "ordered_pairs")]
+    pub columns: Vec<SpannedPair>,
+    /// Unobserved variables = expression: simulated and usable by columns, never in the table.
+    #[serde(default, deserialize_with = "ordered_pairs")]
+    pub latent: Vec<SpannedPair>,
 }
 
 /// `[[index]]`.

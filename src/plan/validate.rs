@@ -149,6 +149,7 @@ fn build(ctx: &Ctx, raw: RawPlan, text: String) -> Result<Plan> {
         indices: Vec::new(),
         balance: None,
         attrition: None,
+        rehearsal: None,
     };
     plan.assignment = super::validate_spec::assignment(ctx, &raw, &plan)?;
     plan.resampling = super::validate_rules::resampling(ctx, &raw)?;
@@ -161,6 +162,7 @@ fn build(ctx: &Ctx, raw: RawPlan, text: String) -> Result<Plan> {
     plan.tables = super::validate_spec::tables(ctx, &raw, &plan)?;
     plan.contingencies = super::validate_rules::contingencies(ctx, &raw, &plan)?;
     super::validate_rules::families_resampled(ctx, &raw, &plan)?;
+    plan.rehearsal = super::validate_rehearsal::rehearsal(ctx, &raw, &plan)?;
     Ok(plan)
 }
 

@@ -18,5 +18,6 @@ mod nist;
 mod readme;
 mod reference;
 mod registration;
+mod rehearse;
 mod resampling;
 mod summaries;

@@ -1,0 +1,306 @@
+//! `[rehearsal]` → [`Rehearsal`]: the simulated study, checked before anything is drawn.
+//!
+//! Invariants of the result: every data table has a generator; every generated column is a
+//! declared column of its table and every declared column the analysis uses is generated;
+//! each expression uses only `effect` and columns generated before it (the order is
+//! resolved here, so the plan's key order does not matter); `assigned(share)` appears only
+//! in the column `[assignment]` randomizes, after its blocks and clusters.
+
+use super::raw::{RawGenerator, RawPlan, RawRehearsal};
+use super::validate::{expr_error, Ctx};
+use super::{GeneratedColumn, Generator, Plan, Rehearsal};
+use crate::error::Result;
+use crate::expr::{self, Draw};
+use crate::suggest::hint;
+use std::collections::{BTreeMap, BTreeSet};
+use toml::Spanned;
+
+/// The name through which a data-generating process reads the effect size being simulated.
+pub const EFFECT: &str = "effect";
+
+/// Largest number of replications accepted.
+const MAX_REPLICATIONS: i64 = 1_000_000;
+
+/// Largest simulated table.
+const MAX_ROWS: i64 = 10_000_000;
+
+/// Validate `[rehearsal]`, when present.
+pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Rehearsal>> {
+    let Some(r) = &raw.rehearsal else {
+        return Ok(None);
+    };
+    let spanned = r;
+    let r = r.get_ref();
+    let replications = match &r.replications {
+        Some(v) if !(1..=MAX_REPLICATIONS).contains(v.get_ref()) => {
+            return Err(ctx.at(
+                v,
+                "rehearsal.replications",
+                format!("replications must be a whole number from 1 to {MAX_REPLICATIONS}; 500 to 2,000 give power to about ±0.02"),
+            ))
+        }
+        Some(v) => *v.get_ref() as usize,
+        None => 500,
+    };
+    if *r.seed.get_ref() < 0 {
+        return Err(ctx.at(
+            &r.seed,
+            "rehearsal.seed",
+            "seed must be a whole number of at least 0",
+        ));
+    }
+    let target_power = match &r.target_power {
+        Some(v) => ctx.unit_open(v, "rehearsal.target_power")?,
+        None => 0.80,
+    };
+    let effects = effects(ctx, r)?;
+    let resampling_draws = match &r.resampling_draws {
+        Some(v) if !(99..=10_000_000).contains(v.get_ref()) => {
+            return Err(ctx.at(
+                v,
+                "rehearsal.resampling_draws",
+                "resampling_draws must be a whole number from 99 to 10000000",
+            ))
+        }
+        Some(v) => Some(*v.get_ref() as usize),
+        None => None,
+    };
+    let mut generators = BTreeMap::new();
+    for (id, g) in &r.data {
+        let key = format!("rehearsal.data.{}", id.get_ref());
+        let Some(src) = plan.data.get(id.get_ref()) else {
+            return Err(ctx.at(
+                id,
+                key,
+                format!(
+                    "there is no data table `{}` to simulate{}; use the id of a [data.NAME] table",
+                    id.get_ref(),
+                    hint(id.get_ref(), plan.data.keys().map(String::as_str))
+                ),
+            ));
+        };
+        generators.insert(src.id.clone(), generator(ctx, plan, &src.id, g, &key)?);
+    }
+    if let Some(missing) = plan.data.keys().find(|k| !generators.contains_key(*k)) {
+        return Err(ctx.at(
+            spanned,
+            "rehearsal.data",
+            format!("[data.{missing}] has no data-generating process; add [rehearsal.data.{missing}] with rows and columns"),
+        ));
+    }
+    Ok(Some(Rehearsal {
+        replications,
+        seed: *r.seed.get_ref() as u64,
+        target_power,
+        effects,
+        resampling_draws,
+        generators,
+    }))
+}
+
+/// The effect sizes: finite, non-negative, strictly increasing; 0 added in front.
+fn effects(ctx: &Ctx, r: &RawRehearsal) -> Result<Vec<f64>> {
+    let mut out = vec![0.0];
+    if r.effects.get_ref().is_empty() {
+        return Err(ctx.at(
+            &r.effects,
+            "rehearsal.effects",
+            "list at least one effect size to simulate, such as effects = [0.5, 1.0, 1.5]",
+        ));
+    }
+    for v in r.effects.get_ref() {
+        let x = *v.get_ref();
+        if !x.is_finite() || x < 0.0 {
+            return Err(ctx.at(v, "rehearsal.effects", format!("{x} is not a size: effects are finite and at least 0 (write the effect's sign into the data-generating process)")));
+        }
+        let last = out[out.len() - 1];
+        if x == 0.0 && out.len() == 1 {
+            continue;
+        }
+        if x <= last {
+            return Err(ctx.at(
+                v,
+                "rehearsal.effects",
+                format!("effects must increase from left to right; {x} follows {last}"),
+            ));
+        }
+        out.push(x);
+    }
+    if out.len() < 2 {
+        return Err(ctx.at(
+            &r.effects,
+            "rehearsal.effects",
+            "list at least one effect size above 0 (0 is always simulated, for the size of each test)",
+        ));
+    }
+    Ok(out)
+}
+
+fn generator(
+    ctx: &Ctx,
+    plan: &Plan,
+    table: &str,
+    g: &Spanned<RawGenerator>,
+    key: &str,
+) -> Result<Generator> {
+    let src = &plan.data[table];
+    let rows = *g.get_ref().rows.get_ref();
+    if !(2..=MAX_ROWS).contains(&rows) {
+        return Err(ctx.at(
+            &g.get_ref().rows,
+            format!("{key}.rows"),
+            format!("rows must be a whole number from 2 to {MAX_ROWS}"),
+        ));
+    }
+    let mut parsed: BTreeMap<String, (Spanned<String>, GeneratedColumn)> = BTreeMap::new();
+    let all = g
+        .get_ref()
+        .columns
+        .iter()
+        .map(|p| (p, false))
+        .chain(g.get_ref().latent.iter().map(|p| (p, true)));
+    for ((name, text), latent) in all {
+        let n = name.get_ref();
+        let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
+        let declared = src.columns.get(n);
+        if latent
+            && (declared.is_some()
+                || plan.derive.iter().any(|d| &d.name == n)
+                || !super::validate::is_identifier(n))
+        {
+            return Err(ctx.at(
+                name,
+                ckey,
+                format!("a latent variable needs a new name (letters, digits, underscores), not a declared column or derived variable; `{n}` is taken or not a name"),
+            ));
+        }
+        if parsed.contains_key(n) {
+            return Err(ctx.at(
+                name,
+                ckey,
+                format!("`{n}` is simulated twice; keep one of its definitions"),
+            ));
+        }
+        let kind = match declared {
+            Some(c) => c.kind,
+            None if latent => crate::plan::ColumnKind::Number,
+            None => {
+                return Err(ctx.at(
+                name,
+                ckey,
+                format!(
+                    "`{n}` is not a declared column of [data.{table}]{}; simulate declared columns (derived variables and indices are computed from them as in a run) and put unobserved variables under [{key}.latent]",
+                    hint(n, src.columns.keys().map(String::as_str))
+                ),
+            ));
+            }
+        };
+        if n == EFFECT {
+            return Err(ctx.at(
+                name,
+                ckey,
+                format!("`{EFFECT}` is the name through which a rehearsal reads the effect size simulated; rename the column in [data.{table}] to rehearse this plan"),
+            ));
+        }
+        let e = expr::parse_random(text.get_ref()).map_err(|e| expr_error(ctx, text, &ckey, &e))?;
+        let uses_assigned = e.draws().contains(&Draw::Assigned);
+        let assigned_here = plan.assignment.as_ref().is_some_and(|a| &a.variable == n);
+        if uses_assigned && !assigned_here {
+            return Err(ctx.at(text, ckey, match &plan.assignment {
+                Some(a) => format!("`assigned(share)` draws the variable [assignment] randomizes, `{}`; use bernoulli(p) here", a.variable),
+                None => "`assigned(share)` needs an [assignment] section saying how the treatment is randomized; declare one, or use bernoulli(p)".to_string(),
+            }));
+        }
+        let (line, column) = ctx.map.position(text.span().start + 1);
+        parsed.insert(
+            n.clone(),
+            (
+                text.clone(),
+                GeneratedColumn {
+                    name: n.clone(),
+                    text: text.get_ref().clone(),
+                    expr: e,
+                    kind,
+                    latent,
+                    place: (line, column),
+                },
+            ),
+        );
+    }
+    let needed = crate::data::needed_columns(plan, src);
+    if let Some(n) = needed.iter().find(|n| !parsed.contains_key(*n)) {
+        return Err(ctx.at(
+            g,
+            format!("{key}.columns"),
+            format!("the analysis uses column `{n}` of [data.{table}], which the rehearsal does not simulate; add `{n} = \"...\"` under [{key}.columns]"),
+        ));
+    }
+    let columns = order(ctx, plan, parsed, key)?;
+    Ok(Generator {
+        rows: rows as usize,
+        columns,
+    })
+}
+
+/// What column `c` needs before it: the names it uses, and for `assigned` the design's
+/// blocks and clusters.
+fn dependencies(plan: &Plan, c: &GeneratedColumn) -> BTreeSet<String> {
+    let mut deps = c.expr.names();
+    deps.remove(EFFECT);
+    if c.expr.draws().contains(&Draw::Assigned) {
+        if let Some(a) = &plan.assignment {
+            deps.extend(a.blocks.iter().cloned());
+            deps.extend(a.clusters.iter().cloned());
+        }
+    }
+    deps
+}
+
+/// Columns in evaluation order: repeatedly the first (by name) whose inputs are all ready.
+fn order(
+    ctx: &Ctx,
+    plan: &Plan,
+    mut parsed: BTreeMap<String, (Spanned<String>, GeneratedColumn)>,
+    key: &str,
+) -> Result<Vec<GeneratedColumn>> {
+    for (name, (text, c)) in &parsed {
+        for d in dependencies(plan, c) {
+            if !parsed.contains_key(&d) {
+                let known = parsed.keys().map(String::as_str).chain([EFFECT]);
+                return Err(ctx.at(text, format!("{key}.columns.{name}"), format!(
+                    "`{d}` is not simulated in this table{}; a data-generating process may use `{EFFECT}` and the table's other simulated columns",
+                    hint(&d, known)
+                )));
+            }
+        }
+    }
+    let mut out: Vec<GeneratedColumn> = Vec::new();
+    while !parsed.is_empty() {
+        let ready = parsed
+            .iter()
+            .find(|(_, (_, c))| {
+                dependencies(plan, c)
+                    .iter()
+                    .all(|d| out.iter().any(|o| &o.name == d))
+            })
+            .map(|(n, _)| n.clone());
+        let Some(name) = ready else {
+            let Some((first, (text, _))) = parsed.iter().next() else {
+                break;
+            };
+            let names: Vec<&str> = parsed.keys().map(String::as_str).collect();
+            return Err(ctx.at(
+                text,
+                format!("{key}.columns.{first}"),
+                format!(
+                    "these columns depend on each other in a circle: {}; simulate one of them without the others",
+                    names.join(", ")
+                ),
+            ));
+        };
+        if let Some((_, c)) = parsed.remove(&name) {
+            out.push(c);
+        }
+    }
+    Ok(out)
+}

@@ -1,0 +1,154 @@
+//! `sworn rehearse`: simulate the study from the plan's `[rehearsal]` section and run the
+//! complete registered analysis ([`crate::analysis::analyse`]: every specification, decision
+//! rule, correction and resampled test) on each simulated data set, to state power, the
+//! minimum detectable effect, the size of each test, how often each rule fires, the
+//! first-stage strength and the sample after deletions, all before any data exist.
+//!
+//! Invariants: nothing here reads a data file or writes anything; the model depends only on
+//! the plan and the replication count (each replication's stream comes from (seed,
+//! replication), and outcomes are gathered in replication order, so the thread count does
+//! not matter); the same stream serves a replication at every effect size.
+
+mod render;
+mod rng;
+mod simulate;
+mod summary;
+#[cfg(test)]
+mod tests;
+
+pub use render::markdown;
+pub use summary::{Rehearsed, WILSON_Z};
+
+use crate::error::{Error, Result};
+use crate::plan::Plan;
+use rayon::prelude::*;
+use std::collections::BTreeMap;
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+/// What one replication at one effect size gave.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct Outcome {
+    /// Why the analysis failed on this data set, if it did.
+    pub failed: Option<String>,
+    /// Per hypothesis: (supported, undetermined, estimate).
+    pub hypotheses: BTreeMap<String, (bool, bool, Option<f64>)>,
+    /// Per decision rule: whether it fired.
+    pub rules: BTreeMap<String, bool>,
+    /// Per IV specification: first-stage strength and which statistic it is.
+    pub first_stage: BTreeMap<String, (f64, &'static str)>,
+    /// Per specification: observations used.
+    pub used: BTreeMap<String, usize>,
+}
+
+/// Rehearse `plan` with `replications` data sets per effect size (the plan's count when
+/// None). `tick` is called after each data set (for a progress bar).
+///
+/// # Errors
+/// The plan has no `[rehearsal]` section; a data-generating process fails (an error at its
+/// expression); or the analysis fails on every simulated data set.
+pub fn rehearse(
+    plan: &Plan,
+    replications: Option<usize>,
+    tick: &(dyn Fn(usize, usize) + Sync),
+) -> Result<Rehearsed> {
+    let Some(reh) = &plan.rehearsal else {
+        return Err(Error::Plan {
+            path: plan.path.clone(),
+            line: 1,
+            column: 1,
+            key: "rehearsal".into(),
+            message: "the plan has no [rehearsal] section: add one with seed, effects and a data-generating process per table (docs/plan-reference.md, section rehearsal)".into(),
+        });
+    };
+    let reps = replications.unwrap_or(reh.replications).max(1);
+    let registered_draws = plan.resampling.map(|r| r.draws);
+    let cheaper;
+    let plan = match (reh.resampling_draws, plan.resampling) {
+        (Some(draws), Some(r)) => {
+            cheaper = Plan {
+                resampling: Some(crate::plan::Resampling { draws, ..r }),
+                ..plan.clone()
+            };
+            &cheaper
+        }
+        _ => plan,
+    };
+    let total = reps * reh.effects.len();
+    let done = AtomicUsize::new(0);
+    let outcomes: Vec<Result<Outcome>> = (0..total)
+        .into_par_iter()
+        .map(|i| {
+            let (e, r) = (i / reps, i % reps);
+            let out = one(plan, reh.seed, r as u64, reh.effects[e]);
+            tick(done.fetch_add(1, Ordering::Relaxed) + 1, total);
+            out
+        })
+        .collect();
+    let outcomes: Vec<Outcome> = outcomes.into_iter().collect::<Result<_>>()?;
+    if let Some(all_failed) = outcomes
+        .iter()
+        .all(|o| o.failed.is_some())
+        .then(|| outcomes[0].failed.clone())
+        .flatten()
+    {
+        return Err(Error::Plan {
+            path: plan.path.clone(),
+            line: 1,
+            column: 1,
+            key: "rehearsal".into(),
+            message: format!("the registered analysis failed on every simulated data set; the first failure: {all_failed}. Check the data-generating process"),
+        });
+    }
+    let per_effect: Vec<&[Outcome]> = outcomes.chunks(reps).collect();
+    summary::summarise(plan, registered_draws, reh, reps, &per_effect)
+}
+
+/// Simulate replication `r` at `effect` and run the registered analysis on it.
+fn one(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<Outcome> {
+    let tables = simulate::tables(plan, seed, r, effect)?;
+    let a = match crate::analysis::analyse(plan, &tables, None, None) {
+        Ok(a) => a,
+        Err(e) => {
+            return Ok(Outcome {
+                failed: Some(e.to_string()),
+                ..Outcome::default()
+            })
+        }
+    };
+    let mut o = Outcome::default();
+    for (id, h) in &a.hypotheses {
+        let supported = h.verdict == "supported";
+        let undetermined = h.verdict == "undetermined";
+        o.hypotheses
+            .insert(id.clone(), (supported, undetermined, h.estimate));
+    }
+    for c in &a.contingencies {
+        o.rules.insert(c.id.clone(), c.invoked);
+    }
+    for (id, f) in &a.fitted {
+        o.used.insert(id.clone(), f.result.n);
+        if let Some(w) = &f.result.weak_instruments {
+            o.first_stage
+                .insert(id.clone(), (w.effective_f, "effective"));
+        } else if let Some(fs) = f.result.first_stage.as_ref().filter(|m| m.len() == 1) {
+            if let Some(s) = fs.values().next() {
+                o.first_stage
+                    .insert(id.clone(), (s.robust_f_statistic, "wald"));
+            }
+        }
+    }
+    Ok(o)
+}
+
+/// The same simulated tables a rehearsal analyses (for tests and inspection).
+///
+/// # Errors
+/// As [`rehearse`] for a data-generating process.
+pub fn simulated_tables(
+    plan: &Plan,
+    replication: u64,
+    effect: f64,
+) -> Result<BTreeMap<String, crate::data::Table>> {
+    let seed = plan.rehearsal.as_ref().map_or(0, |r| r.seed);
+    simulate::tables(plan, seed, replication, effect)
+}

@@ -1,0 +1,308 @@
+//! One simulated data set: each table's columns evaluated in the generator's order with the
+//! random draws of one replication's stream, then built into a [`Table`] through the same
+//! ordering, derivation and index code as a file.
+//!
+//! Invariants: the values depend only on (seed, replication, effect) and the plan; the
+//! columns are drawn in the validated order, tables in id order, from one stream per
+//! replication (the same stream at every effect size, so effect sizes are compared on the
+//! same simulated units).
+
+use super::rng::Stream;
+use crate::data::{table_from_columns, Table};
+use crate::error::{Error, Result};
+use crate::expr::{Draw, DrawSource, ExprError};
+use crate::plan::{Assignment, ColumnKind, GeneratedColumn, Generator, Plan};
+use std::cell::RefCell;
+use std::collections::{BTreeMap, HashMap};
+
+type Column = Vec<Option<f64>>;
+
+/// The tables of replication `r` at effect size `effect`.
+///
+/// # Errors
+/// A draw's argument outside its domain or a generated value that does not fit its declared
+/// kind (an error at the column's expression in the plan), or a table that cannot be built.
+pub fn tables(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<BTreeMap<String, Table>> {
+    let Some(reh) = &plan.rehearsal else {
+        return Ok(BTreeMap::new());
+    };
+    let stream = RefCell::new(Stream::new(seed, r));
+    let mut out = BTreeMap::new();
+    for (id, g) in &reh.generators {
+        let columns = columns(plan, id, g, &stream, effect)?;
+        let src = &plan.data[id];
+        let t = table_from_columns(plan, src, columns, g.rows, format!("simulated:{r}"))?;
+        out.insert(id.clone(), t);
+    }
+    Ok(out)
+}
+
+fn columns(
+    plan: &Plan,
+    table: &str,
+    g: &Generator,
+    stream: &RefCell<Stream>,
+    effect: f64,
+) -> Result<BTreeMap<String, Column>> {
+    let effect_column = vec![Some(effect); g.rows];
+    let mut done: BTreeMap<String, Column> = BTreeMap::new();
+    for c in &g.columns {
+        let values = {
+            let lookup = |name: &str| {
+                if name == crate::plan::EFFECT {
+                    Some(effect_column.as_slice())
+                } else {
+                    done.get(name).map(Vec::as_slice)
+                }
+            };
+            let source = Source {
+                stream,
+                columns: &done,
+                assignment: plan.assignment.as_ref(),
+            };
+            c.expr
+                .eval_drawn(g.rows, &lookup, &source)
+                .map_err(|e| at(plan, table, c, effect, &e.message))?
+        };
+        check_kind(plan, table, c, effect, &values)?;
+        done.insert(c.name.clone(), values);
+    }
+    Ok(done)
+}
+
+/// An error at the expression of column `c`.
+fn at(plan: &Plan, table: &str, c: &GeneratedColumn, effect: f64, message: &str) -> Error {
+    Error::Plan {
+        path: plan.path.clone(),
+        line: c.place.0,
+        column: c.place.1,
+        key: format!("rehearsal.data.{table}.columns.{}", c.name),
+        message: format!(
+            "simulating \"{}\" at effect = {effect}: {message}",
+            crate::escape::clip(&c.text, crate::escape::SHOWN)
+        ),
+    }
+}
+
+/// Binary columns must come out 0/1 and integer columns whole, as the run would require.
+fn check_kind(
+    plan: &Plan,
+    table: &str,
+    c: &GeneratedColumn,
+    effect: f64,
+    values: &[Option<f64>],
+) -> Result<()> {
+    let bad = |v: f64| match c.kind {
+        ColumnKind::Binary => v != 0.0 && v != 1.0,
+        ColumnKind::Integer => v.fract() != 0.0,
+        _ => false,
+    };
+    if let Some((row, v)) = values
+        .iter()
+        .enumerate()
+        .find_map(|(i, v)| v.filter(|v| bad(*v)).map(|v| (i, v)))
+    {
+        return Err(at(plan, table, c, effect, &format!(
+            "row {} is {v} but `{}` is declared {}; use bernoulli(p) for a 0/1 column, level(k) or group(k) for whole numbers",
+            row + 1,
+            c.name,
+            c.kind.name()
+        )));
+    }
+    Ok(())
+}
+
+/// The random numbers of one replication, and the columns drawn so far (for `assigned`).
+struct Source<'a> {
+    stream: &'a RefCell<Stream>,
+    columns: &'a BTreeMap<String, Column>,
+    assignment: Option<&'a Assignment>,
+}
+
+fn domain(draw: Draw, row: usize, what: &str) -> ExprError {
+    ExprError::eval(format!("{} in row {}: {what}", draw.usage(), row + 1))
+}
+
+/// The first row's value of a constant argument.
+fn constant(draw: Draw, arg: &[Option<f64>], what: &str) -> std::result::Result<f64, ExprError> {
+    arg.first()
+        .copied()
+        .flatten()
+        .ok_or_else(|| domain(draw, 0, &format!("{what} is missing")))
+}
+
+fn whole(draw: Draw, k: f64, max: f64) -> std::result::Result<u64, ExprError> {
+    if k >= 1.0 && k.fract() == 0.0 && k <= max {
+        Ok(k as u64)
+    } else {
+        Err(domain(
+            draw,
+            0,
+            &format!("k = {k} must be a whole number from 1 to {max}"),
+        ))
+    }
+}
+
+impl DrawSource for Source<'_> {
+    fn draw(
+        &self,
+        draw: Draw,
+        args: &[Column],
+        n: usize,
+    ) -> std::result::Result<Column, ExprError> {
+        let mut s = self.stream.borrow_mut();
+        let arg = |i: usize, row: usize| args.get(i).and_then(|a| a.get(row).copied().flatten());
+        match draw {
+            Draw::Normal => (0..n)
+                .map(|i| {
+                    let z = s.normal();
+                    match (arg(0, i), arg(1, i)) {
+                        (Some(_), Some(sd)) if sd < 0.0 => {
+                            Err(domain(draw, i, &format!("sd = {sd} is negative")))
+                        }
+                        (Some(m), Some(sd)) => Ok(Some(m + sd * z)),
+                        _ => Ok(None),
+                    }
+                })
+                .collect(),
+            Draw::Uniform => (0..n)
+                .map(|i| {
+                    let u = s.uniform();
+                    match (arg(0, i), arg(1, i)) {
+                        (Some(a), Some(b)) if b < a => {
+                            Err(domain(draw, i, &format!("high = {b} is below low = {a}")))
+                        }
+                        (Some(a), Some(b)) => Ok(Some(a + (b - a) * u)),
+                        _ => Ok(None),
+                    }
+                })
+                .collect(),
+            Draw::Bernoulli => (0..n)
+                .map(|i| {
+                    let u = s.uniform();
+                    match arg(0, i) {
+                        Some(p) if !(0.0..=1.0).contains(&p) => Err(domain(draw, i, &format!(
+                            "p = {p} is not a probability (from 0 to 1); check how the effect enters it"
+                        ))),
+                        Some(p) => Ok(Some(if u < p { 1.0 } else { 0.0 })),
+                        None => Ok(None),
+                    }
+                })
+                .collect(),
+            Draw::Level => {
+                let k = whole(draw, constant(draw, &args[0], "k")?, 1e9)?;
+                Ok((0..n).map(|_| Some((1 + s.below(k)) as f64)).collect())
+            }
+            Draw::Group => {
+                let k = whole(draw, constant(draw, &args[0], "k")?, n as f64)?;
+                Ok((0..n)
+                    .map(|i| Some((1 + (i as u128 * u128::from(k) / n as u128)) as f64))
+                    .collect())
+            }
+            Draw::GroupNormal => {
+                let mut shocks: HashMap<u64, f64> = HashMap::new();
+                (0..n)
+                    .map(|i| match (arg(0, i), arg(1, i)) {
+                        (Some(_), Some(sd)) if sd < 0.0 => {
+                            Err(domain(draw, i, &format!("sd = {sd} is negative")))
+                        }
+                        (Some(g), Some(sd)) => {
+                            let z = *shocks.entry(g.to_bits()).or_insert_with(|| s.normal());
+                            Ok(Some(sd * z))
+                        }
+                        _ => Ok(None),
+                    })
+                    .collect()
+            }
+            Draw::Assigned => {
+                let share = constant(draw, &args[0], "share")?;
+                if !(share > 0.0 && share < 1.0) {
+                    return Err(domain(draw, 0, &format!("share = {share} must lie strictly between 0 and 1")));
+                }
+                assign(&mut s, self.assignment, self.columns, share, n)
+            }
+        }
+    }
+}
+
+/// The treatment drawn as `[assignment]` declares: in each block (or overall), `share` of
+/// the clusters (or units), rounded to the nearest whole number, get 1, chosen by a
+/// Fisher–Yates shuffle (Durstenfeld 1964, CACM 7(7)).
+fn assign(
+    s: &mut Stream,
+    a: Option<&Assignment>,
+    columns: &BTreeMap<String, Column>,
+    share: f64,
+    n: usize,
+) -> std::result::Result<Column, ExprError> {
+    let draw = Draw::Assigned;
+    let ids = |name: Option<&String>| -> std::result::Result<Vec<u64>, ExprError> {
+        match name {
+            None => Ok((0..n as u64).collect()),
+            Some(c) => {
+                let col = columns.get(c).ok_or_else(|| {
+                    domain(
+                        draw,
+                        0,
+                        &format!("`{c}` is not simulated before the assignment"),
+                    )
+                })?;
+                col.iter()
+                    .enumerate()
+                    .map(|(i, v)| {
+                        v.map(f64::to_bits)
+                            .ok_or_else(|| domain(draw, i, &format!("`{c}` is missing")))
+                    })
+                    .collect()
+            }
+        }
+    };
+    let clusters = ids(a.and_then(|a| a.clusters.as_ref()))?;
+    let blocks = match a.and_then(|a| a.blocks.as_ref()) {
+        Some(b) => ids(Some(b))?,
+        None => vec![0; n],
+    };
+    // Clusters of each block, in order of first appearance; a cluster in two blocks is refused.
+    let mut block_of: HashMap<u64, u64> = HashMap::new();
+    let mut strata: Vec<Vec<u64>> = Vec::new();
+    let mut stratum_of: HashMap<u64, usize> = HashMap::new();
+    for i in 0..n {
+        match block_of.get(&clusters[i]) {
+            Some(b) if *b != blocks[i] => {
+                return Err(domain(draw, i, "a cluster lies in two blocks; simulate the clusters nested in the blocks (e.g. group(k) for both, with the block count dividing the cluster count)"));
+            }
+            Some(_) => {}
+            None => {
+                block_of.insert(clusters[i], blocks[i]);
+                let next = strata.len();
+                let at = *stratum_of.entry(blocks[i]).or_insert(next);
+                if at == next {
+                    strata.push(Vec::new());
+                }
+                strata[at].push(clusters[i]);
+            }
+        }
+    }
+    let mut treated: HashMap<u64, bool> = HashMap::new();
+    for mut list in strata {
+        let m = list.len();
+        let k = ((m as f64) * share).round() as usize;
+        for i in 0..k.min(m) {
+            let j = i + s.below((m - i) as u64) as usize;
+            list.swap(i, j);
+        }
+        for (i, c) in list.into_iter().enumerate() {
+            treated.insert(c, i < k);
+        }
+    }
+    Ok(clusters
+        .iter()
+        .map(|c| {
+            Some(if treated.get(c).copied().unwrap_or(false) {
+                1.0
+            } else {
+                0.0
+            })
+        })
+        .collect())
+}

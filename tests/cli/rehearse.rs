@@ -1,0 +1,239 @@
+//! `sworn rehearse`: outputs, determinism across thread counts, ledger semantics (a
+//! rehearsal never counts as reading the data and changes nothing a later run or verify
+//! accepts), and the errors of a bad `[rehearsal]` section.
+
+use crate::common::{data_csv, Study, PLAN};
+use std::process::Command;
+
+/// The base plan's data simulated: 12 groups of 20, take-up by instrument arm, an effect of
+/// d on y with a group-level shock.
+const SECTION: &str = r#"
+[rehearsal]
+replications = 30
+seed = 9
+effects = [0.5, 1.5]
+
+[rehearsal.data.main]
+rows = 240
+
+[rehearsal.data.main.columns]
+id = "group(240)"
+grp = "group(12)"
+z = "bernoulli(0.5)"
+d = "bernoulli(if(z, 0.7, 0.2))"
+x = "uniform(0, 10)"
+y = "1 + effect * d + 0.5 * x + group_normal(grp, 0.5) + normal(0, 1)"
+yb = "bernoulli(0.3)"
+"#;
+
+fn study() -> Study {
+    Study::with(&format!("{PLAN}{SECTION}"), &data_csv())
+}
+
+fn rehearse_with_threads(s: &Study, threads: &str, out: &str) -> String {
+    let o = Command::new(env!("CARGO_BIN_EXE_sworn"))
+        .args(["rehearse", "plan.toml", "--out", out])
+        .env("RAYON_NUM_THREADS", threads)
+        .current_dir(s.dir.path())
+        .output()
+        .expect("run sworn");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    s.read(&format!("{out}/rehearsal.json"))
+}
+
+#[test]
+fn rehearse_writes_power_for_every_hypothesis_and_is_the_same_on_one_or_two_threads() {
+    let s = study();
+    let one = rehearse_with_threads(&s, "1", "r1");
+    let two = rehearse_with_threads(&s, "2", "r2");
+    assert_eq!(one, two, "rehearsal.json depends on the thread count");
+    let j: serde_json::Value = serde_json::from_str(&one).expect("json");
+    for h in ["H1", "H2"] {
+        let curve = j["hypotheses"][h]["curve"].as_array().expect("curve");
+        assert_eq!(curve.len(), 3, "effects 0, 0.5, 1.5");
+        assert_eq!(curve[0]["effect"], 0.0);
+    }
+    // x's coefficient is 0.5 in every data set: power 1 at every effect size.
+    assert_eq!(j["hypotheses"]["H2"]["size"]["share"], 1.0);
+    assert!(
+        j["first_stage"]["iv"]["quantiles"][0][2]
+            .as_f64()
+            .expect("median")
+            > 10.0
+    );
+    assert_eq!(j["samples"]["ols"]["min"], 240);
+    let md = s.read("r1/rehearsal.md");
+    assert!(
+        md.contains("| H1 |") && md.contains("Read with care"),
+        "{md}"
+    );
+    // Only `rehearsed` entries: the data were never read.
+    let ledger = s.read("plan.ledger");
+    assert_eq!(
+        ledger.matches("\"event\":\"rehearsed\"").count(),
+        2,
+        "{ledger}"
+    );
+    assert!(!ledger.contains("data-first-read"));
+    let log = s.sworn(&["log", "plan.toml"]);
+    assert!(log.stdout.contains("rehearsed"), "{}", log.stdout);
+}
+
+#[test]
+fn a_rehearsal_changes_nothing_a_later_run_or_verify_accepts() {
+    let strip = |mut v: serde_json::Value| {
+        v["plan"]["ledger_head"] = serde_json::Value::Null;
+        v["digest"] = serde_json::Value::Null;
+        // The rehearsal's own ledger line moves later lines down by one; their times differ.
+        for moment in ["data_inspected", "results_computed"] {
+            v["registration"][moment] = serde_json::Value::Null;
+        }
+        v
+    };
+    let plain = study();
+    let a = strip(plain.seal_and_run());
+    let rehearsed = study();
+    assert_eq!(rehearsed.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = rehearsed.sworn(&["rehearse", "plan.toml", "--replications", "5"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let b = strip(rehearsed.run_ok());
+    assert_eq!(a, b, "the run differs after a rehearsal");
+    for s in [&plain, &rehearsed] {
+        let v = s.sworn(&["verify", "out"]);
+        assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
+    }
+}
+
+#[test]
+fn rehearse_refuses_a_non_empty_output_folder_and_a_plan_without_the_section() {
+    let s = study();
+    std::fs::create_dir(s.path("busy")).expect("mkdir");
+    s.write("busy/keep.txt", "mine");
+    let r = s.sworn(&["rehearse", "plan.toml", "--out", "busy"]);
+    assert_eq!(r.code, 2);
+    assert!(r.stderr.contains("--replace"), "{}", r.stderr);
+    assert_eq!(s.read("busy/keep.txt"), "mine");
+    let plain = Study::new();
+    let r = plain.sworn(&["rehearse", "plan.toml"]);
+    assert_eq!(r.code, 2);
+    assert!(r.stderr.contains("no [rehearsal] section"), "{}", r.stderr);
+    assert!(!plain.path("plan-rehearsal").exists());
+}
+
+fn refused(from: &str, to: &str, wanted: &[&str]) {
+    let s = study();
+    s.edit("plan.toml", from, to);
+    let r = s.sworn(&["rehearse", "plan.toml"]);
+    assert_eq!(r.code, 2, "{to}: {}", r.stdout);
+    for w in wanted {
+        assert!(r.stderr.contains(w), "`{w}` not in: {}", r.stderr);
+    }
+    assert!(!s.path("plan-rehearsal").exists());
+    assert!(!s.path("plan.ledger").exists());
+}
+
+#[test]
+fn bad_rehearsal_sections_are_refused_with_the_key_and_the_fix() {
+    refused(
+        "grp = \"group(12)\"\n",
+        "grpp = \"group(12)\"\n",
+        &["rehearsal.data.main.columns.grpp", "did you mean `grp`"],
+    );
+    refused(
+        "id = \"group(240)\"\n",
+        "",
+        &["rehearsal.data.main.columns", "`id`", "add `id = \"...\"`"],
+    );
+    refused(
+        "effects = [0.5, 1.5]",
+        "effects = [1.5, 0.5]",
+        &["rehearsal.effects", "increase"],
+    );
+    refused(
+        "x = \"uniform(0, 10)\"",
+        "x = \"uniform(0, 10) + w\"",
+        &["rehearsal.data.main.columns.x", "`w` is not simulated"],
+    );
+    refused(
+        "z = \"bernoulli(0.5)\"",
+        "z = \"assigned(0.5)\"",
+        &["needs an [assignment] section"],
+    );
+    refused(
+        "x = \"uniform(0, 10)\"",
+        "x = \"uniform(0, 10) + y\"",
+        &["depend on each other in a circle"],
+    );
+    refused("seed = 9", "seed = -1", &["rehearsal.seed"]);
+    refused("rows = 240", "rows = 1", &["rehearsal.data.main.rows"]);
+    // Simulating fails on a probability outside [0, 1]: the error names the expression.
+    refused(
+        "yb = \"bernoulli(0.3)\"",
+        "yb = \"bernoulli(0.3 + effect)\"",
+        &[
+            "rehearsal.data.main.columns.yb",
+            "bernoulli(p) in row 1",
+            "p = 1.8",
+        ],
+    );
+}
+
+#[test]
+fn random_draws_are_refused_outside_a_rehearsal() {
+    let s = Study::new();
+    s.edit(
+        "plan.toml",
+        "[[specification]]",
+        "[derive]\nnoise = \"normal(0, 1)\"\n\n[[specification]]",
+    );
+    let r = s.sworn(&["check", "plan.toml"]);
+    assert_eq!(r.code, 2);
+    assert!(
+        r.stderr.contains("derive.noise") && r.stderr.contains("only a [rehearsal]"),
+        "{}",
+        r.stderr
+    );
+}
+
+#[test]
+fn rehearse_json_prints_one_object() {
+    let s = study();
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "3", "--json"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let v: serde_json::Value = serde_json::from_str(r.stdout.trim()).expect("one JSON object");
+    assert_eq!(v["command"], "rehearse");
+    assert_eq!(v["rehearsal"]["replications"], 3);
+}
+
+#[test]
+fn the_demo_plan_rehearses_every_hypothesis_and_rule() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    std::fs::create_dir(dir.path().join("plans")).expect("mkdir");
+    std::fs::copy(
+        root.join("plans/cool-roofs.toml"),
+        dir.path().join("plans/cool-roofs.toml"),
+    )
+    .expect("copy the demo plan");
+    let r = crate::common::run_in(
+        dir.path(),
+        &["rehearse", "plans/cool-roofs.toml", "--replications", "2"],
+    );
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    for h in ["H1", "H2", "H3", "H4", "H5", "H6"] {
+        assert!(r.stdout.contains(&format!("  {h} (")), "{h}: {}", r.stdout);
+    }
+    for rule in ["few-blocks", "weak-call", "exogenous-painting"] {
+        assert!(
+            r.stdout.contains(&format!("rule {rule} fires in")),
+            "{rule}: {}",
+            r.stdout
+        );
+    }
+    let md = std::fs::read_to_string(dir.path().join("plans/cool-roofs-rehearsal/rehearsal.md"))
+        .expect("rehearsal.md beside the plan");
+    assert!(
+        md.contains("used 199 draws") && md.contains("uses 9999"),
+        "{md}"
+    );
+}
