@@ -565,6 +565,6 @@ pub struct Table {
     pub columns: Vec<String>,
     /// Terms.
     pub rows: Vec<String>,
-    /// Significance stars.
-    pub stars: bool,
+    /// Significance-mark thresholds, largest first (empty: no marks).
+    pub stars: Vec<f64>,
 }

@@ -5,6 +5,7 @@
 //! does it, so a template cannot forget); the LaTeX template escapes with its `tex` filter.
 
 mod format;
+mod identification;
 mod model;
 
 pub use format::{num, pval, set_text, tex};
