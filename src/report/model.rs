@@ -25,6 +25,7 @@ pub struct ReportModel {
     specs: Vec<SpecModel>,
     apart: Vec<SpecModel>,
     conventions: Vec<String>,
+    figures: Vec<super::plots::Figure>,
     deviations: Vec<DevRow>,
     cautions: Vec<String>,
 }
@@ -270,6 +271,7 @@ impl ReportModel {
             specs,
             apart,
             conventions,
+            figures: super::plots::figures(plan, r),
             deviations: r
                 .deviations
                 .iter()
