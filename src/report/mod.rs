@@ -11,7 +11,7 @@ mod identification;
 mod model;
 mod plots;
 
-pub use format::{num, pval, set_text, tex};
+pub use format::{num, pval, set_text, tex, tex_breakable};
 pub use model::{integrity_line, ReportModel};
 
 use crate::error::{Error, Result};

@@ -17,5 +17,6 @@ mod json;
 mod nist;
 mod readme;
 mod reference;
+mod reports;
 mod resampling;
 mod summaries;
