@@ -62,6 +62,15 @@ fn rejects(p: f64, alpha: f64) -> bool {
     p.is_finite() && p <= alpha
 }
 
+/// The name of a specification's error type in a row label.
+fn errors_name(r: &SpecResult) -> String {
+    match r.errors {
+        "classical" => "classical".to_string(),
+        "cluster" => "clustered".to_string(),
+        e => e.to_uppercase(),
+    }
+}
+
 /// Whether the errors are the classical ones (tests that assume them need no remark).
 fn homoskedastic_remark(r: &SpecResult) -> &'static str {
     if r.errors == "classical" {
@@ -116,7 +125,7 @@ fn strength(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
             }
         };
         rows.push(Evidence {
-            test: format!("{of}first-stage F, {} errors", r.errors),
+            test: format!("{of}first-stage F, {} errors", errors_name(r)),
             statistic: num(fs.robust_f_statistic),
             reference: dist_text(fs.robust_f_distribution),
             threshold: p_is(fs.robust_f_p_value),
@@ -156,7 +165,7 @@ fn strength(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
     if let Some(w) = &r.weak_instruments {
         let kclass = matches!(s.estimator, Estimator::Liml | Estimator::Fuller);
         rows.push(Evidence {
-            test: format!("Montiel Olea–Pflueger effective F, {} errors", r.errors),
+            test: format!("Montiel Olea–Pflueger effective F, {} errors", errors_name(r)),
             statistic: num(w.effective_f),
             reference: format!("Patnaik approximation, {} effective df", num(w.effective_df)),
             threshold: format!(
@@ -345,7 +354,7 @@ fn endogeneity(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
         };
         let remark = homoskedastic_remark(r);
         rows.push(row(
-            format!("control-function test, {} errors", r.errors),
+            format!("control-function test, {} errors", errors_name(r)),
             &e.control_function,
             read(e.control_function.p_value, ""),
         ));
@@ -378,7 +387,7 @@ fn agreement(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
             if rejects(p, alpha) {
                 format!("the instruments point to different coefficients at {alpha}: one is invalid, or effects differ between the groups each moves{remark}")
             } else {
-                format!("no evidence at {alpha} that the instruments disagree (agreement does not show they are valid){remark}")
+                format!("no evidence at {alpha} that the instruments disagree; agreement does not show validity{remark}")
             }
         };
         rows.push(row(
@@ -393,7 +402,7 @@ fn agreement(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
         ));
         match &o.hansen_j {
             Some(j) => rows.push(row(
-                format!("Hansen J, two-step GMM, {} weight", r.errors),
+                format!("Hansen J, two-step GMM, {} weight", errors_name(r)),
                 j,
                 read(j.p_value, ""),
             )),

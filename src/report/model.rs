@@ -25,6 +25,7 @@ pub struct ReportModel {
     specs: Vec<SpecModel>,
     apart: Vec<SpecModel>,
     conventions: Vec<String>,
+    resampling: Vec<String>,
     figures: Vec<super::plots::Figure>,
     deviations: Vec<DevRow>,
     cautions: Vec<String>,
@@ -271,6 +272,7 @@ impl ReportModel {
             specs,
             apart,
             conventions,
+            resampling: resampling_lines(plan, r),
             figures: super::plots::figures(plan, r),
             deviations: r
                 .deviations
@@ -470,8 +472,8 @@ fn rule_row(c: &crate::plan::Contingency, r: &crate::results::ContingencyResult)
 
 fn method_text(h: &crate::results::HypothesisResult) -> String {
     let draws = match (h.draws, h.exact) {
-        (Some(b), Some(true)) => format!("exact, all {b} draws"),
-        (Some(b), _) => format!("{b} draws"),
+        (Some(b), Some(true)) => format!("exact: all {b} draws"),
+        (Some(b), _) => format!("{b} draws counting the observed one, sampled"),
         _ => String::new(),
     };
     let base = match h.method {
@@ -497,6 +499,78 @@ fn method_text(h: &crate::results::HypothesisResult) -> String {
         text = format!("{text}, by contingency {c}");
     }
     text
+}
+
+/// How each resampled test drew its replicates: the procedure, the design it follows, the
+/// number of draws and whether the observed one is counted, exact or sampled, and the seed.
+fn resampling_lines(plan: &Plan, r: &Results) -> Vec<String> {
+    let Some(rs) = &plan.resampling else {
+        return Vec::new();
+    };
+    let mut out = Vec::new();
+    for h in &plan.hypotheses {
+        let Some(res) = r.hypotheses.get(&h.id) else {
+            continue;
+        };
+        let count = match (res.draws, res.exact) {
+            (Some(b), Some(true)) => format!("exact: every one of the {b} possible draws enumerated (the observed one among them), so the seed is not used"),
+            (Some(b), _) if res.method == "wild-bootstrap" => format!("sampled: {} random weight draws with seed {} plus the original sample, {b} in all, the original counted in the p-value", b.saturating_sub(1), rs.seed),
+            (Some(b), _) => format!("sampled: {} random draws with seed {} plus the observed assignment, {b} in all, the observed one counted in the p-value", b.saturating_sub(1), rs.seed),
+            _ => continue,
+        };
+        let procedure = match (res.method, h.method) {
+            ("randomization", crate::plan::Method::Randomization { studentized }) => {
+                let design = plan
+                    .assignment
+                    .as_ref()
+                    .map_or("as registered".to_string(), |a| {
+                        let how = match (&a.blocks, &a.clusters) {
+                            (Some(b), Some(c)) => format!(
+                                "whole clusters of `{c}` re-assigned within blocks of `{b}`"
+                            ),
+                            (Some(b), None) => format!("units re-assigned within blocks of `{b}`"),
+                            (None, Some(c)) => format!("whole clusters of `{c}` re-assigned"),
+                            (None, None) => {
+                                "the observed values permuted among all units".to_string()
+                            }
+                        };
+                        format!(
+                            "`{}` re-drawn by the registered design ({}: {how})",
+                            a.variable, a.design
+                        )
+                    });
+                format!(
+                    "randomization test: {design}; statistic {} recomputed under the sharp null",
+                    if res.estimator != "ols" {
+                        "Anderson–Rubin"
+                    } else if studentized {
+                        "the studentized coefficient (t)"
+                    } else {
+                        "the coefficient estimate"
+                    }
+                )
+            }
+            ("wild-bootstrap", method) => format!(
+                "restricted wild cluster bootstrap: null imposed, {} weights drawn per cluster{}",
+                // A decision rule that switches to the bootstrap uses Rademacher weights.
+                if method == (crate::plan::Method::WildBootstrap { webb: true }) {
+                    "Webb six-point"
+                } else {
+                    "Rademacher"
+                },
+                r.specifications
+                    .get(&res.tested_specification)
+                    .and_then(|s| s.cluster_by.as_ref().zip(s.clusters))
+                    .map_or(String::new(), |(by, g)| format!(
+                        " of `{}` ({g} clusters)",
+                        by.join("`, `")
+                    ))
+            ),
+            (m, _) => m.to_string(),
+        };
+        out.push(format!("{}: {procedure}; {count}.", h.id));
+    }
+    out
 }
 
 fn hyp_row(id: &str, r: &Results) -> HypRow {
