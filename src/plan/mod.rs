@@ -567,4 +567,6 @@ pub struct Table {
     pub rows: Vec<String>,
     /// Significance-mark thresholds, largest first (empty: no marks).
     pub stars: Vec<f64>,
+    /// Rows added beneath the coefficients (`first-stage-strength`).
+    pub summary_rows: Vec<String>,
 }

@@ -332,6 +332,9 @@ pub struct RawTable {
     /// p-value falls below (default: no marks). `false` means none; `true` is refused because
     /// it states no thresholds.
     pub stars: Option<Spanned<toml::Value>>,
+    /// Rows added beneath the coefficients: `first-stage-strength` (default none).
+    #[serde(default)]
+    pub summary_rows: Vec<Spanned<String>>,
 }
 
 /// A `name = "text"` entry with both spans kept.

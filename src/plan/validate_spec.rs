@@ -689,6 +689,14 @@ pub(super) fn tables(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Table>
             columns: t.columns.iter().map(|c| c.get_ref().clone()).collect(),
             rows: t.rows.iter().map(|r| r.get_ref().clone()).collect(),
             stars: star_thresholds(ctx, t.stars.as_ref(), &key("stars"))?,
+            summary_rows: t
+                .summary_rows
+                .iter()
+                .map(|r| {
+                    ctx.one_of(r, &key("summary_rows"), &["first-stage-strength"])
+                        .map(|()| r.get_ref().clone())
+                })
+                .collect::<Result<_>>()?,
         });
     }
     Ok(out)

@@ -75,6 +75,8 @@ struct HypRow {
 #[derive(Debug, Serialize)]
 struct Cell {
     est: String,
+    /// Significance marks (`*` per plan threshold passed); Markdown escapes them.
+    marks: String,
     se: String,
 }
 
@@ -92,6 +94,8 @@ struct TableModel {
     rows: Vec<TableRow>,
     n: Vec<String>,
     errors: Vec<String>,
+    /// Rows the plan asked for beneath the coefficients: a label and one cell per column.
+    extra: Vec<(String, Vec<String>)>,
     notes: Vec<String>,
 }
 
@@ -629,11 +633,13 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
                 .iter()
                 .map(|s| match s.terms.get(term) {
                     Some(v) => Cell {
-                        est: format!("{}{}", num(v.estimate), stars(v.p_value, &t.stars)),
+                        est: num(v.estimate),
+                        marks: stars(v.p_value, &t.stars),
                         se: format!("({})", num(v.std_error)),
                     },
                     None => Cell {
                         est: String::new(),
+                        marks: String::new(),
                         se: String::new(),
                     },
                 })
@@ -656,7 +662,46 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
                 },
             })
             .collect(),
+        extra: t
+            .summary_rows
+            .iter()
+            .flat_map(|row| summary_rows(row, &specs))
+            .collect(),
         notes: table_notes(t, &specs),
+    }
+}
+
+/// The rows a table's `summary_rows` entry adds (blank cells where a column has no value).
+fn summary_rows(row: &str, specs: &[&SpecResult]) -> Vec<(String, Vec<String>)> {
+    match row {
+        "first-stage-strength" => {
+            let first = |s: &&SpecResult| {
+                s.first_stage
+                    .as_ref()
+                    .and_then(|m| m.values().next().cloned())
+            };
+            vec![
+                (
+                    "first-stage F, the column's errors".to_string(),
+                    specs
+                        .iter()
+                        .map(|s| first(s).map_or(String::new(), |f| num(f.robust_f_statistic)))
+                        .collect(),
+                ),
+                (
+                    "effective F (Montiel Olea–Pflueger)".to_string(),
+                    specs
+                        .iter()
+                        .map(|s| {
+                            s.weak_instruments
+                                .as_ref()
+                                .map_or(String::new(), |w| num(w.effective_f))
+                        })
+                        .collect(),
+                ),
+            ]
+        }
+        _ => Vec::new(),
     }
 }
 
@@ -666,6 +711,9 @@ fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<String> {
         vec!["Each estimate has its standard error beneath it, in parentheses.".to_string()];
     if !t.stars.is_empty() {
         notes.push(stars_legend(&t.stars));
+    }
+    if t.summary_rows.iter().any(|r| r == "first-stage-strength") {
+        notes.push("First-stage strength: the F on the excluded instruments of the first endogenous regressor with the column's own errors, and the effective F where the plan requested the weak-instrument diagnostic; blank for OLS columns.".to_string());
     }
     let mut ns: Vec<usize> = specs.iter().map(|s| s.n).collect();
     ns.sort_unstable();

@@ -419,3 +419,98 @@ fn demo_html_renders_in_chromium() {
     assert!(share > 0.01, "the page looks blank: {share}");
     assert!(blue > 500, "the figures do not show: {blue} blue pixels");
 }
+
+/// Significance marks only with thresholds the plan states; the legend repeats them.
+#[test]
+fn stars_follow_the_plans_thresholds() {
+    let s = crate::common::Study::new();
+    let plain = {
+        s.seal_and_run();
+        s.read("out/report.md")
+    };
+    assert!(!plain.contains("Marks ("), "no marks unless asked");
+    let s = crate::common::Study::new();
+    s.edit(
+        "plan.toml",
+        "rows = [\"d\", \"x\"]",
+        "rows = [\"d\", \"x\"]\nstars = [0.01, 0.05]",
+    );
+    let v = s.seal_and_run();
+    let md = s.read("out/report.md");
+    assert!(md.contains("\\* p &lt; 0.05, \\*\\* p &lt; 0.01"), "{md}");
+    // Each cell carries one mark per threshold its p-value is below.
+    let p = v["specifications"]["ols"]["terms"]["d"]["p_value"]
+        .as_f64()
+        .unwrap();
+    let marks = [0.05, 0.01].iter().filter(|&&t| p < t).count();
+    let est = sworn::report::num(
+        v["specifications"]["ols"]["terms"]["d"]["estimate"]
+            .as_f64()
+            .unwrap(),
+    );
+    assert!(
+        md.contains(&format!("| `d` | {est}{} |", "\\*".repeat(marks))),
+        "{md}"
+    );
+    for (bad, says) in [
+        ("stars = true", "does not say which thresholds"),
+        ("stars = [1.5]", "strictly between 0 and 1"),
+        ("stars = \"yes\"", "expected a list of p-value thresholds"),
+    ] {
+        let s = crate::common::Study::new();
+        s.edit(
+            "plan.toml",
+            "rows = [\"d\", \"x\"]",
+            &format!("rows = [\"d\", \"x\"]\n{bad}"),
+        );
+        let r = s.sworn(&["check", "plan.toml"]);
+        assert_eq!(r.code, 2, "{bad}");
+        assert!(
+            r.stderr.contains(says) && r.stderr.contains("table[t1].stars"),
+            "{bad}: {}",
+            r.stderr
+        );
+        assert!(
+            r.stderr.contains("stars = [0.05, 0.01]"),
+            "the fix: {}",
+            r.stderr
+        );
+    }
+}
+
+/// `summary_rows = ["first-stage-strength"]` adds the first-stage F beneath an IV column, blank
+/// beneath OLS; an unknown row name is refused with the valid ones.
+#[test]
+fn first_stage_strength_rows_on_request() {
+    let s = crate::common::Study::new();
+    s.edit(
+        "plan.toml",
+        "rows = [\"d\", \"x\"]",
+        "rows = [\"d\", \"x\"]\nsummary_rows = [\"first-stage-strength\"]",
+    );
+    let v = s.seal_and_run();
+    let f = v["specifications"]["iv"]["first_stage"]["d"]["robust_f_statistic"]
+        .as_f64()
+        .unwrap();
+    let md = s.read("out/report.md");
+    assert!(
+        md.contains(&format!(
+            "| first-stage F, the column's errors |  | {} |",
+            sworn::report::num(f)
+        )),
+        "{md}"
+    );
+    let s = crate::common::Study::new();
+    s.edit(
+        "plan.toml",
+        "rows = [\"d\", \"x\"]",
+        "rows = [\"d\", \"x\"]\nsummary_rows = [\"first-stage-strenght\"]",
+    );
+    let r = s.sworn(&["check", "plan.toml"]);
+    assert_eq!(r.code, 2);
+    assert!(
+        r.stderr.contains("table[t1].summary_rows") && r.stderr.contains("`first-stage-strength`"),
+        "{}",
+        r.stderr
+    );
+}
