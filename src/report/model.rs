@@ -713,7 +713,7 @@ fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<String> {
         notes.push(stars_legend(&t.stars));
     }
     if t.summary_rows.iter().any(|r| r == "first-stage-strength") {
-        notes.push("First-stage strength: the F on the excluded instruments of the first endogenous regressor with the column's own errors, and the effective F where the plan requested the weak-instrument diagnostic; blank for OLS columns.".to_string());
+        notes.push("First-stage strength: how strongly the instruments move the first endogenous regressor, as the first-stage F with the column's own errors and as the effective F where the plan requested the weak-instrument diagnostic; blank for OLS columns.".to_string());
     }
     let mut ns: Vec<usize> = specs.iter().map(|s| s.n).collect();
     ns.sort_unstable();
