@@ -14,9 +14,11 @@
 //!   one space, then [`terminal`]'s escaping applies;
 //! - [`markdown`] for text placed in a Markdown report: [`line`], then `&`, `<`, `>` as HTML
 //!   entities and `|` escaped for tables;
+//! - [`html`] for text placed in the HTML report: [`line`], then `&`, `<`, `>`, `"` and `'` as
+//!   character references, so no tag, attribute or comment can be opened by plan or data text;
 //! - [`clip`] to show at most a given number of characters of a bad value in a message.
 //!
-//! Invariant: the output of [`terminal`], [`line`] and [`markdown`] holds no control or
+//! Invariant: the output of [`terminal`], [`line`], [`markdown`] and [`html`] holds no control or
 //! bidirectional-formatting character and no line break.
 
 use std::fmt::Write;
@@ -81,6 +83,23 @@ pub fn markdown(s: &str) -> String {
     out
 }
 
+/// Text for an HTML report (element content or a quoted attribute value): [`line`], then `&`,
+/// `<`, `>`, `"` and `'` as character references.
+pub fn html(s: &str) -> String {
+    let mut out = String::with_capacity(s.len() + 8);
+    for c in line(s).chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            c => out.push(c),
+        }
+    }
+    out
+}
+
 /// At most `max` characters of `s` (made safe by [`terminal`]); a longer value is cut and
 /// says how long it was.
 pub fn clip(s: &str, max: usize) -> String {
@@ -118,7 +137,7 @@ mod tests {
             .chain(0x2000..0x2070)
             .filter_map(char::from_u32)
             .collect();
-        for f in [terminal, line, markdown] {
+        for f in [terminal, line, markdown, html] {
             assert!(!f(&nasty).chars().any(is_unsafe));
         }
     }
@@ -141,6 +160,15 @@ mod tests {
             markdown("<img src=x onerror=alert(1)>"),
             "&lt;img src=x onerror=alert(1)&gt;"
         );
+    }
+
+    #[test]
+    fn html_escapes_markup_and_quotes() {
+        assert_eq!(
+            html("<script>alert('x')</script> & \"q\" <!--\n-->"),
+            "&lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt; &amp; &quot;q&quot; &lt;!-- --&gt;"
+        );
+        assert!(!html("a\u{202e}b\u{1b}[2K").chars().any(is_unsafe));
     }
 
     #[test]

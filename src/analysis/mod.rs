@@ -31,7 +31,8 @@ pub use spec::term;
 pub struct RunOutput {
     /// The results model.
     pub results: Results,
-    /// Output files by name (results.json, report.md, report.tex), in writing order.
+    /// Output files by name (results.json, report.md, report.tex, report.html), in writing
+    /// order.
     pub files: Vec<(String, String)>,
     /// The plan's fingerprints as used for this run.
     pub print: PlanPrint,
@@ -169,11 +170,12 @@ pub fn execute(
         digest: String::new(),
     };
     results.digest = results.compute_digest();
-    let (md, tex) = crate::report::render(plan, &results)?;
+    let reports = crate::report::render(plan, &results)?;
     let files = vec![
         ("results.json".to_string(), results.to_file_text()),
-        ("report.md".to_string(), md),
-        ("report.tex".to_string(), tex),
+        ("report.md".to_string(), reports.md),
+        ("report.tex".to_string(), reports.tex),
+        ("report.html".to_string(), reports.html),
     ];
     Ok(RunOutput {
         results,

@@ -613,6 +613,8 @@ pub struct Table {
     pub columns: Vec<String>,
     /// Terms.
     pub rows: Vec<String>,
-    /// Significance stars.
-    pub stars: bool,
+    /// Significance-mark thresholds, largest first (empty: no marks).
+    pub stars: Vec<f64>,
+    /// Rows added beneath the coefficients (`first-stage-strength`).
+    pub summary_rows: Vec<String>,
 }

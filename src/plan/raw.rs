@@ -362,9 +362,13 @@ pub struct RawTable {
     pub columns: Vec<Spanned<String>>,
     /// Terms, top to bottom.
     pub rows: Vec<Spanned<String>>,
-    /// Print significance stars (default false).
+    /// Significance marks: the p-value thresholds, one mark per threshold a coefficient's
+    /// p-value falls below (default: no marks). `false` means none; `true` is refused because
+    /// it states no thresholds.
+    pub stars: Option<Spanned<toml::Value>>,
+    /// Rows added beneath the coefficients: `first-stage-strength` (default none).
     #[serde(default)]
-    pub stars: bool,
+    pub summary_rows: Vec<Spanned<String>>,
 }
 
 /// A `name = "text"` entry with both spans kept.

@@ -152,6 +152,26 @@ pub fn set_text(pieces: &[crate::results::SetPiece]) -> String {
         .join(" ∪ ")
 }
 
+/// Text for the HTML report: [`crate::escape::html`], then Markdown-style `code` spans as
+/// `<code>` elements (backticks survive escaping, so plan text cannot open any other element).
+pub fn html(s: &str) -> String {
+    let escaped = crate::escape::html(s);
+    let mut out = String::with_capacity(escaped.len() + 16);
+    let mut open = false;
+    for c in escaped.chars() {
+        if c == '`' {
+            out.push_str(if open { "</code>" } else { "<code>" });
+            open = !open;
+        } else {
+            out.push(c);
+        }
+    }
+    if open {
+        out.push_str("</code>");
+    }
+    out
+}
+
 /// Escape text for the Markdown report (see [`crate::escape::markdown`]): one line, no
 /// control or bidirectional-formatting character, HTML and table pipes escaped.
 pub fn md(s: &str) -> String {
@@ -178,6 +198,14 @@ mod tests {
         assert_eq!(pval(1e-310), "< 1e-300");
         assert_eq!(pval(0.01234), "0.0123");
         assert_eq!(pval(3.2e-7), "3.20e-7");
+    }
+
+    #[test]
+    fn html_text_marks_code_and_escapes() {
+        assert_eq!(
+            html("`a<b>` & `c"),
+            "<code>a&lt;b&gt;</code> &amp; <code>c</code>"
+        );
     }
 
     #[test]

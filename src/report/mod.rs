@@ -1,14 +1,18 @@
-//! Reports: one serialisable [`ReportModel`], rendered to Markdown and LaTeX by the
+//! Reports: one serialisable [`ReportModel`], rendered to Markdown, LaTeX and HTML by the
 //! templates in `templates/` (compiled into the binary). All numbers are formatted here, so
 //! templates only place text; the report never depends on the clock. Every string placed in
-//! the Markdown report passes through [`crate::escape::markdown`] (the environment's formatter
-//! does it, so a template cannot forget); the LaTeX template escapes with its `tex` filter.
+//! the Markdown report passes through [`crate::escape::markdown`] and every string placed in
+//! the HTML report through [`crate::escape::html`] (the environment's formatter does both, so a
+//! template cannot forget; only the SVG figures drawn in `plots.rs`, marked safe, pass raw);
+//! the LaTeX template escapes with its `tex` filter.
 
 mod format;
+mod identification;
 mod model;
+mod plots;
 mod registration;
 
-pub use format::{num, pval, set_text, tex};
+pub use format::{num, pval, set_text, tex, tex_breakable};
 pub use model::{integrity_line, ReportModel};
 
 use crate::error::{Error, Result};
@@ -18,6 +22,7 @@ use minijinja::Environment;
 
 const MD_TEMPLATE: &str = include_str!("../../templates/report.md.j2");
 const TEX_TEMPLATE: &str = include_str!("../../templates/report.tex.j2");
+const HTML_TEMPLATE: &str = include_str!("../../templates/report.html.j2");
 
 fn environment() -> Result<Environment<'static>> {
     let mut env = Environment::new();
@@ -33,13 +38,24 @@ fn environment() -> Result<Environment<'static>> {
     env.set_syntax(syntax);
     env.add_filter("tex", |s: String| format::tex(&s));
     env.add_filter("tex_breakable", |s: String| format::tex_breakable(&s));
-    env.set_formatter(|out, state, value| match value.as_str() {
-        Some(text) if state.name() == "report.md" => out
-            .write_str(&format::md(text))
-            .map_err(|_| minijinja::Error::new(minijinja::ErrorKind::WriteFailure, "report.md")),
-        _ => minijinja::escape_formatter(out, state, value),
+    env.set_formatter(|out, state, value| {
+        let fail = |_| minijinja::Error::new(minijinja::ErrorKind::WriteFailure, "report");
+        match value.as_str() {
+            Some(text) if state.name() == "report.md" => {
+                out.write_str(&format::md(text)).map_err(fail)
+            }
+            Some(text) if state.name() == "report.html" && !value.is_safe() => {
+                out.write_str(&format::html(text)).map_err(fail)
+            }
+            Some(text) if state.name() == "report.html" => out.write_str(text).map_err(fail),
+            _ => minijinja::escape_formatter(out, state, value),
+        }
     });
-    for (name, src) in [("report.md", MD_TEMPLATE), ("report.tex", TEX_TEMPLATE)] {
+    for (name, src) in [
+        ("report.md", MD_TEMPLATE),
+        ("report.tex", TEX_TEMPLATE),
+        ("report.html", HTML_TEMPLATE),
+    ] {
         env.add_template(name, src).map_err(|e| Error::Template {
             template: name.to_string(),
             message: e.to_string(),
@@ -48,8 +64,18 @@ fn environment() -> Result<Environment<'static>> {
     Ok(env)
 }
 
-/// Render the Markdown and LaTeX reports of a run.
-pub fn render(plan: &Plan, results: &Results) -> Result<(String, String)> {
+/// The reports of a run: Markdown, LaTeX and HTML, in that order.
+pub struct Rendered {
+    /// report.md
+    pub md: String,
+    /// report.tex
+    pub tex: String,
+    /// report.html
+    pub html: String,
+}
+
+/// Render the Markdown, LaTeX and HTML reports of a run.
+pub fn render(plan: &Plan, results: &Results) -> Result<Rendered> {
     let env = environment()?;
     let model = ReportModel::build(plan, results);
     let render = |name: &str| {
@@ -60,5 +86,9 @@ pub fn render(plan: &Plan, results: &Results) -> Result<(String, String)> {
                 message: e.to_string(),
             })
     };
-    Ok((render("report.md")?, render("report.tex")?))
+    Ok(Rendered {
+        md: render("report.md")?,
+        tex: render("report.tex")?,
+        html: render("report.html")?,
+    })
 }

@@ -25,6 +25,9 @@ pub struct ReportModel {
     tables: Vec<TableModel>,
     specs: Vec<SpecModel>,
     apart: Vec<SpecModel>,
+    conventions: Vec<String>,
+    resampling: Vec<String>,
+    figures: Vec<super::plots::Figure>,
     deviations: Vec<DevRow>,
     cautions: Vec<String>,
 }
@@ -73,6 +76,8 @@ struct HypRow {
 #[derive(Debug, Serialize)]
 struct Cell {
     est: String,
+    /// Significance marks (`*` per plan threshold passed); Markdown escapes them.
+    marks: String,
     se: String,
 }
 
@@ -90,7 +95,9 @@ struct TableModel {
     rows: Vec<TableRow>,
     n: Vec<String>,
     errors: Vec<String>,
-    stars: bool,
+    /// Rows the plan asked for beneath the coefficients: a label and one cell per column.
+    extra: Vec<(String, Vec<String>)>,
+    notes: Vec<String>,
 }
 
 #[derive(Debug, Serialize)]
@@ -116,6 +123,7 @@ struct SpecModel {
     title: String,
     facts: Vec<String>,
     main: Block,
+    identification: Option<super::identification::Panel>,
     blocks: Vec<Block>,
 }
 
@@ -146,17 +154,22 @@ pub(super) fn correction_name(c: Correction) -> &'static str {
     }
 }
 
-fn stars(p: f64) -> &'static str {
-    // Conventional thresholds 0.01 / 0.05 / 0.10 (common practice).
-    if p < 0.01 {
-        "***"
-    } else if p < 0.05 {
-        "**"
-    } else if p < 0.1 {
-        "*"
-    } else {
-        ""
-    }
+/// Significance marks: one `*` per plan threshold (largest first) that `p` falls below.
+fn stars(p: f64, thresholds: &[f64]) -> String {
+    "*".repeat(thresholds.iter().filter(|&&t| p < t).count())
+}
+
+/// The legend of a table's marks, from the plan's thresholds.
+fn stars_legend(thresholds: &[f64]) -> String {
+    let parts: Vec<String> = thresholds
+        .iter()
+        .enumerate()
+        .map(|(i, t)| format!("{} p < {t}", "*".repeat(i + 1)))
+        .collect();
+    format!(
+        "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): {}.",
+        parts.join(", ")
+    )
 }
 
 fn term_row(name: &str, t: &Term) -> TermRow {
@@ -171,12 +184,7 @@ fn term_row(name: &str, t: &Term) -> TermRow {
 }
 
 fn test_line(name: &str, t: &TestResult) -> String {
-    let dist = match t.distribution {
-        crate::distribution::Reference::Normal => "N(0,1)".to_string(),
-        crate::distribution::Reference::StudentT { df } => format!("t({df})"),
-        crate::distribution::Reference::F { df1, df2 } => format!("F({df1}, {df2})"),
-        crate::distribution::Reference::ChiSquare { df } => format!("χ²({df})"),
-    };
+    let dist = super::identification::dist_text(t.distribution);
     format!("{name}: {} ({dist}), {}", num(t.statistic), p_is(t.p_value))
 }
 
@@ -202,9 +210,15 @@ impl ReportModel {
     pub fn build(plan: &Plan, r: &Results) -> Self {
         let mut specs = Vec::new();
         let mut apart = Vec::new();
+        let mut conventions: Vec<String> = Vec::new();
         for s in &plan.specifications {
             let res = &r.specifications[&s.id];
-            let m = spec_model(s, res);
+            for rule in df_convention(res).1 {
+                if !conventions.contains(&rule) {
+                    conventions.push(rule);
+                }
+            }
+            let m = spec_model(s, res, plan.inference.alpha);
             if res.pre_registered {
                 specs.push(m)
             } else {
@@ -274,6 +288,9 @@ impl ReportModel {
             tables: plan.tables.iter().map(|t| table_model(t, r)).collect(),
             specs,
             apart,
+            conventions,
+            resampling: resampling_lines(plan, r),
+            figures: super::plots::figures(plan, r),
             deviations: r
                 .deviations
                 .iter()
@@ -491,8 +508,8 @@ fn rule_row(c: &crate::plan::Contingency, r: &crate::results::ContingencyResult)
 
 fn method_text(h: &crate::results::HypothesisResult) -> String {
     let draws = match (h.draws, h.exact) {
-        (Some(b), Some(true)) => format!("exact, all {b} draws"),
-        (Some(b), _) => format!("{b} draws"),
+        (Some(b), Some(true)) => format!("exact: all {b} draws"),
+        (Some(b), _) => format!("{b} draws counting the observed one, sampled"),
         _ => String::new(),
     };
     let base = match h.method {
@@ -518,6 +535,78 @@ fn method_text(h: &crate::results::HypothesisResult) -> String {
         text = format!("{text}, by contingency {c}");
     }
     text
+}
+
+/// How each resampled test drew its replicates: the procedure, the design it follows, the
+/// number of draws and whether the observed one is counted, exact or sampled, and the seed.
+fn resampling_lines(plan: &Plan, r: &Results) -> Vec<String> {
+    let Some(rs) = &plan.resampling else {
+        return Vec::new();
+    };
+    let mut out = Vec::new();
+    for h in &plan.hypotheses {
+        let Some(res) = r.hypotheses.get(&h.id) else {
+            continue;
+        };
+        let count = match (res.draws, res.exact) {
+            (Some(b), Some(true)) => format!("exact: every one of the {b} possible draws enumerated (the observed one among them), so the seed is not used"),
+            (Some(b), _) if res.method == "wild-bootstrap" => format!("sampled: {} random weight draws with seed {} plus the original sample, {b} in all, the original counted in the p-value", b.saturating_sub(1), rs.seed),
+            (Some(b), _) => format!("sampled: {} random draws with seed {} plus the observed assignment, {b} in all, the observed one counted in the p-value", b.saturating_sub(1), rs.seed),
+            _ => continue,
+        };
+        let procedure = match (res.method, h.method) {
+            ("randomization", crate::plan::Method::Randomization { studentized }) => {
+                let design = plan
+                    .assignment
+                    .as_ref()
+                    .map_or("as registered".to_string(), |a| {
+                        let how = match (&a.blocks, &a.clusters) {
+                            (Some(b), Some(c)) => format!(
+                                "whole clusters of `{c}` re-assigned within blocks of `{b}`"
+                            ),
+                            (Some(b), None) => format!("units re-assigned within blocks of `{b}`"),
+                            (None, Some(c)) => format!("whole clusters of `{c}` re-assigned"),
+                            (None, None) => {
+                                "the observed values permuted among all units".to_string()
+                            }
+                        };
+                        format!(
+                            "`{}` re-drawn by the registered design ({}: {how})",
+                            a.variable, a.design
+                        )
+                    });
+                format!(
+                    "randomization test: {design}; statistic {} recomputed under the sharp null",
+                    if res.estimator != "ols" {
+                        "Anderson–Rubin"
+                    } else if studentized {
+                        "the studentized coefficient (t)"
+                    } else {
+                        "the coefficient estimate"
+                    }
+                )
+            }
+            ("wild-bootstrap", method) => format!(
+                "restricted wild cluster bootstrap: null imposed, {} weights drawn per cluster{}",
+                // A decision rule that switches to the bootstrap uses Rademacher weights.
+                if method == (crate::plan::Method::WildBootstrap { webb: true }) {
+                    "Webb six-point"
+                } else {
+                    "Rademacher"
+                },
+                r.specifications
+                    .get(&res.tested_specification)
+                    .and_then(|s| s.cluster_by.as_ref().zip(s.clusters))
+                    .map_or(String::new(), |(by, g)| format!(
+                        " of `{}` ({g} clusters)",
+                        by.join("`, `")
+                    ))
+            ),
+            (m, _) => m.to_string(),
+        };
+        out.push(format!("{}: {procedure}; {count}.", h.id));
+    }
+    out
 }
 
 fn hyp_row(id: &str, r: &Results) -> HypRow {
@@ -586,15 +675,13 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
                 .iter()
                 .map(|s| match s.terms.get(term) {
                     Some(v) => Cell {
-                        est: format!(
-                            "{}{}",
-                            num(v.estimate),
-                            if t.stars { stars(v.p_value) } else { "" }
-                        ),
+                        est: num(v.estimate),
+                        marks: stars(v.p_value, &t.stars),
                         se: format!("({})", num(v.std_error)),
                     },
                     None => Cell {
                         est: String::new(),
+                        marks: String::new(),
                         se: String::new(),
                     },
                 })
@@ -617,38 +704,107 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
                 },
             })
             .collect(),
-        stars: t.stars,
+        extra: t
+            .summary_rows
+            .iter()
+            .flat_map(|row| summary_rows(row, &specs))
+            .collect(),
+        notes: table_notes(t, &specs),
     }
 }
 
-fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
+/// The rows a table's `summary_rows` entry adds (blank cells where a column has no value).
+fn summary_rows(row: &str, specs: &[&SpecResult]) -> Vec<(String, Vec<String>)> {
+    match row {
+        "first-stage-strength" => {
+            let first = |s: &&SpecResult| {
+                s.first_stage
+                    .as_ref()
+                    .and_then(|m| m.values().next().cloned())
+            };
+            vec![
+                (
+                    "first-stage F, the column's errors".to_string(),
+                    specs
+                        .iter()
+                        .map(|s| first(s).map_or(String::new(), |f| num(f.robust_f_statistic)))
+                        .collect(),
+                ),
+                (
+                    "effective F (Montiel Olea–Pflueger)".to_string(),
+                    specs
+                        .iter()
+                        .map(|s| {
+                            s.weak_instruments
+                                .as_ref()
+                                .map_or(String::new(), |w| num(w.effective_f))
+                        })
+                        .collect(),
+                ),
+            ]
+        }
+        _ => Vec::new(),
+    }
+}
+
+/// What a reader of a table needs beside it: the parentheses, the marks, mixed samples.
+fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<String> {
+    let mut notes =
+        vec!["Each estimate has its standard error beneath it, in parentheses.".to_string()];
+    if !t.stars.is_empty() {
+        notes.push(stars_legend(&t.stars));
+    }
+    if t.summary_rows.iter().any(|r| r == "first-stage-strength") {
+        notes.push("First-stage strength: how strongly the instruments move the first endogenous regressor, as the first-stage F with the column's own errors and as the effective F where the plan requested the weak-instrument diagnostic; blank for OLS columns.".to_string());
+    }
+    let mut ns: Vec<usize> = specs.iter().map(|s| s.n).collect();
+    ns.sort_unstable();
+    ns.dedup();
+    if ns.len() > 1 {
+        notes.push(format!(
+            "The columns rest on different rows (N = {}): each specification leaves out the rows missing any variable it uses, so differences between columns mix a change of method with a change of sample.",
+            ns.iter().map(usize::to_string).collect::<Vec<_>>().join(", ")
+        ));
+    }
+    notes
+}
+
+fn errors_text(r: &SpecResult) -> String {
+    match (&r.cluster_by, r.clusters) {
+        (Some(b), Some(g)) => format!("clustered by {} ({g} clusters)", b.join(" and ")),
+        _ => match r.errors {
+            "classical" => "classical (homoskedastic)".to_string(),
+            "hac" => "HAC".to_string(),
+            e => e.to_uppercase(),
+        },
+    }
+}
+
+fn spec_model(s: &crate::plan::Spec, r: &SpecResult, alpha: f64) -> SpecModel {
+    let (df_fact, _) = df_convention(r);
     let mut facts = vec![
-        format!("estimator {}, outcome `{}`, {} observations ({} in sample, {} dropped for missing values)", r.estimator.to_uppercase(), r.outcome, r.n, r.sample.in_sample, r.sample.dropped_missing),
-        format!("standard errors: {}{}; tests use {}{}", r.errors, match (&r.cluster_by, r.clusters) { (Some(b), Some(g)) => format!(" by {} ({g} clusters)", b.join(", ")), _ => String::new() }, r.distribution, r.df.map_or(String::new(), |d| format!(" with {d} df"))),
-        format!("R² {} · residual SD {} · {:.0}% intervals", num(r.r_squared), num(r.residual_sd), 100.0 * r.confidence),
+        format!(
+            "{} of `{}` on {} rows ({} in the sample, {} left out for a missing value)",
+            r.estimator.to_uppercase(),
+            r.outcome,
+            r.n,
+            r.sample.in_sample,
+            r.sample.dropped_missing
+        ),
+        format!("errors {}; {df_fact}", errors_text(r)),
+        format!(
+            "R² {} · residual SD {} · {:.0}% intervals",
+            num(r.r_squared),
+            num(r.residual_sd),
+            100.0 * r.confidence
+        ),
     ];
     if let Some(h) = &r.hac {
         facts.push(hac_fact(h));
     }
     if !r.fixed_effects.is_empty() {
-        facts.push(format!(
-            "absorbed fixed effects (alternating projections): {}; they use {} degrees of freedom, counted in the residual df{} · within R² {}{}",
-            r.fixed_effects
-                .iter()
-                .map(|(k, v)| format!("{k} ({v} levels)"))
-                .collect::<Vec<_>>()
-                .join(", "),
-            r.absorbed_df,
-            match (r.cluster_by.is_some(), r.absorbed_nested_df) {
-                (false, _) => String::new(),
-                (true, 0) => " (none nested in a cluster variable)".to_string(),
-                (true, m) => format!(" ({m} of them from fixed effects nested in a cluster variable, not counted in the CR1 factor's K)"),
-            },
-            r.within_r_squared.map_or("n/a".into(), num),
-            if r.singletons_dropped > 0 { format!(" · {} singleton row(s) dropped", r.singletons_dropped) } else { String::new() }
-        ));
+        facts.push(fixed_effects_fact(r));
     }
-    facts.push(df_convention(r));
     if let Some(k) = r.kappa {
         facts.push(format!("k-class κ = {}", num(k)));
     }
@@ -674,148 +830,24 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
     let mut blocks = Vec::new();
     for (name, fs) in r.first_stage.iter().flatten() {
         blocks.push(Block {
-            title: format!("First stage for `{name}`"),
+            title: format!("First stage: `{name}` on the instruments and controls"),
             terms: ordered_terms(&z_order, &fs.terms),
-            lines: vec![
-                format!(
-                    "F on excluded instruments (classical): {}, {}",
-                    num(fs.f_statistic),
-                    p_is(fs.f_p_value)
-                ),
-                format!(
-                    "F on excluded instruments ({}): {}, {}",
-                    r.errors,
-                    num(fs.robust_f_statistic),
-                    p_is(fs.robust_f_p_value)
-                ),
-                format!(
-                    "partial R² of excluded instruments: {} · Shea's partial R² {} · first-stage R² {}",
-                    num(fs.partial_r_squared),
-                    num(fs.shea_partial_r_squared),
-                    num(fs.r_squared)
-                ),
-            ],
+            lines: vec![format!("R² {}", num(fs.r_squared))],
         });
     }
     if let Some(rf) = &r.reduced_form {
         blocks.push(Block {
             title: format!(
-                "Reduced form (`{}` on instruments and controls)",
+                "Reduced form: `{}` on the instruments and controls",
                 rf.outcome
             ),
             terms: ordered_terms(&z_order, &rf.terms),
             lines: vec![format!("R² {}", num(rf.r_squared))],
         });
     }
-    if let Some(e) = &r.endogeneity {
-        blocks.push(Block {
-            title: "Endogeneity tests (null: the endogenous regressors are exogenous)".into(),
-            terms: vec![],
-            lines: vec![
-                test_line(
-                    &format!("control function ({})", r.errors),
-                    &e.control_function,
-                ),
-                test_line("Durbin", &e.durbin),
-                test_line("Wu–Hausman", &e.wu_hausman),
-            ],
-        });
-    }
-    if let Some(o) = &r.overidentification {
-        blocks.push(Block {
-            title: "Over-identification tests (null: all instruments valid)".into(),
-            terms: vec![],
-            lines: vec![
-                test_line("Sargan (homoskedastic)", &o.sargan),
-                test_line("Basmann (homoskedastic)", &o.basmann),
-                match &o.hansen_j {
-                    Some(j) => test_line(
-                        &format!("Hansen's J (two-step GMM, {} weight)", robust_name(r)),
-                        j,
-                    ),
-                    None => "Hansen's J: not computed with two-way clustering (no positive definite weight is guaranteed)".to_string(),
-                },
-            ],
-        });
-    }
-    if let Some(w) = &r.weak_instruments {
-        let mut lines = vec![
-            format!(
-                "effective first-stage F (Montiel Olea–Pflueger, {} errors): {} against the critical value {} for a worst-case bias of {:.0}% at 5% size (Patnaik approximation, {} effective df): {}",
-                r.errors,
-                num(w.effective_f),
-                num(w.critical_value),
-                100.0 * w.worst_case_bias,
-                num(w.effective_df),
-                if w.weak { "WEAK" } else { "not weak by this test" }
-            ),
-            format!("Cragg–Donald statistic (homoskedastic): {}", num(w.cragg_donald)),
-        ];
-        let kclass = match s.estimator {
-            crate::plan::Estimator::Liml => Some("LIML"),
-            crate::plan::Estimator::Fuller => Some("Fuller"),
-            _ => None,
-        };
-        if let Some(name) = kclass {
-            lines[0].push_str(
-                "; this critical value bounds the bias of 2SLS, not of this specification's estimator",
-            );
-            lines.push(format!(
-                "Stock–Yogo critical values: none given; Stock and Yogo (2005) tabulate separate values for {name}, which this version does not carry, and the 2SLS values do not apply to a {name} estimate"
-            ));
-        }
-        for v in &w.stock_yogo {
-            lines.push(format!(
-                "Stock–Yogo critical value, {} {:.0}%: {}",
-                if v.criterion == "relative-bias" {
-                    "2SLS relative bias"
-                } else {
-                    "maximal size of a 5% Wald test"
-                },
-                100.0 * v.level,
-                num(v.critical_value)
-            ));
-        }
-        if let Some(c) = w.tf_critical_value {
-            lines.push(format!(
-                "tF critical value for the 2SLS t-ratio at 5% given the first-stage F: {} (instead of 1.96)",
-                num(c)
-            ));
-        }
-        blocks.push(Block {
-            title: "Weak-instrument diagnostics".into(),
-            terms: vec![],
-            lines,
-        });
-    }
-    if let Some(ar) = &r.anderson_rubin {
-        blocks.push(Block {
-            title: "Anderson–Rubin inference (robust to weak instruments)".into(),
-            terms: vec![],
-            lines: vec![
-                format!(
-                    "test of a zero coefficient: {}",
-                    test_line(
-                        "AR",
-                        &TestResult {
-                            statistic: ar.statistic,
-                            p_value: ar.p_value,
-                            distribution: ar.distribution,
-                        }
-                    )
-                ),
-                format!(
-                    "{:.0}% confidence set ({}): {}",
-                    100.0 * ar.confidence,
-                    ar.shape,
-                    set_text(&ar.set)
-                ),
-            ],
-        });
-    }
     if let Some(l) = &r.liml {
         blocks.push(Block {
-            title: format!("LIML estimate (κ = {}), for a contingency", num(l.kappa)),
+            title: format!("LIML estimate (κ = {}), for a decision rule", num(l.kappa)),
             terms: ordered_terms(&order, &l.terms),
             lines: vec![],
         });
@@ -829,8 +861,38 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
             terms: ordered_terms(&order, &r.terms),
             lines: vec![],
         },
+        identification: super::identification::panel(s, r, alpha),
         blocks,
     }
+}
+
+/// The fixed effects swept out of a specification, in one sentence.
+fn fixed_effects_fact(r: &SpecResult) -> String {
+    let levels = r
+        .fixed_effects
+        .iter()
+        .map(|(k, v)| format!("`{k}` ({v} levels)"))
+        .collect::<Vec<_>>()
+        .join(", ");
+    let inside = match (r.cluster_by.is_some(), r.absorbed_nested_df) {
+        (true, m) if m > 0 => format!(
+            "; {m} of these df belong to groups lying wholly inside one cluster and are left out of the CR1 factor's K"
+        ),
+        _ => String::new(),
+    };
+    let singletons = if r.singletons_dropped > 0 {
+        format!(
+            " · {} row(s) alone in their group set aside",
+            r.singletons_dropped
+        )
+    } else {
+        String::new()
+    };
+    format!(
+        "group means removed for {levels}, costing {} df in the residual count{inside} · R² within groups {}{singletons}",
+        r.absorbed_df,
+        r.within_r_squared.map_or("n/a".into(), num),
+    )
 }
 
 /// A HAC bandwidth: whole numbers as stated, others to the usual precision.
@@ -856,50 +918,32 @@ fn hac_fact(h: &crate::results::HacResult) -> String {
     )
 }
 
-fn robust_name(r: &SpecResult) -> &'static str {
-    match r.errors {
-        "cluster" => "cluster-robust",
-        "hac" => "heteroskedasticity-and-autocorrelation-robust",
-        _ => "heteroskedasticity-robust",
-    }
-}
-
-/// The degrees-of-freedom conventions a specification's numbers use.
-fn df_convention(r: &SpecResult) -> String {
+/// A specification's degrees of freedom as numbers, and the general rules they follow (stated
+/// once per report, in its conventions section).
+fn df_convention(r: &SpecResult) -> (String, Vec<String>) {
     let k = r.n - r.df_resid - r.absorbed_df;
     let resid = if r.absorbed_df > 0 {
         format!(
-            "residual df {} = n − K − absorbed = {} − {k} − {}",
+            "residual df {} = {} − {k} − {} (n − K − absorbed)",
             r.df_resid, r.n, r.absorbed_df
         )
     } else {
-        format!("residual df {} = n − K = {} − {k}", r.df_resid, r.n)
-    };
-    let factor = match r.errors {
-        "hc1" if r.absorbed_df > 0 => " · HC1 factor n/(n − K − absorbed)".to_string(),
-        "hc1" => " · HC1 factor n/(n − K)".to_string(),
-        "cluster" if r.absorbed_df > 0 => format!(
-            " · CR1 factor G/(G − 1)·(n − 1)/(n − K − a′) with a′ = {} (absorbed df not nested in a cluster variable)",
-            r.absorbed_df - r.absorbed_nested_df
-        ),
-        "cluster" => " · CR1 factor G/(G − 1)·(n − 1)/(n − K)".to_string(),
-        "hac" if r.absorbed_df > 0 => " · HAC factor n/(n − K − absorbed)".to_string(),
-        "hac" => " · HAC factor n/(n − K)".to_string(),
-        _ => String::new(),
+        format!("residual df {} = {} − {k} (n − K)", r.df_resid, r.n)
     };
     let coef = match (r.distribution, r.df) {
         ("normal", _) => "N(0, 1)".to_string(),
-        (_, Some(df)) if r.clusters.is_some() => format!("t(G − 1) = t({df})"),
         (_, Some(df)) => format!("t({df})"),
         _ => "t".to_string(),
     };
-    let joint = if r.clusters.is_some() {
-        "robust F tests refer to F(q, G − 1), classical ones to F(q, n − L − absorbed)"
-    } else {
-        "F tests refer to F(q, n − L − absorbed), L the regressors of that regression"
-    };
-    let tests = format!("coefficient tests use {coef}; {joint}");
-    format!("degrees of freedom: {resid}{factor}; {tests}")
+    let mut rules = Vec::new();
+    match r.errors {
+        "hc1" => rules.push("HC1 errors scale the sandwich by n/(n − K − absorbed)".to_string()),
+        "hac" => rules.push("HAC errors scale the sandwich by n/(n − K − absorbed)".to_string()),
+        "cluster" => rules.push("Clustered (CR1) errors scale the sandwich by G/(G − 1)·(n − 1)/(n − K − a′), G the clusters and a′ the absorbed df of groups not lying wholly inside one cluster; their coefficient tests refer to t(G − 1) and their robust F tests to F(q, G − 1)".to_string()),
+        _ => {}
+    }
+    rules.push("K counts the estimated coefficients and absorbed the df used by swept-out group means (zero without fixed effects); classical F tests refer to F(q, n − L − absorbed), L the regressors of that regression".to_string());
+    (format!("{resid}; coefficient tests {coef}"), rules)
 }
 
 fn cautions(r: &Results) -> Vec<String> {

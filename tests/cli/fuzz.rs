@@ -3,8 +3,9 @@
 //!
 //! A finding is a panic, an input that takes longer than [`SLOW`], or a report that breaks
 //! an output invariant (a control or bidirectional-formatting character, or raw HTML from the
-//! plan, in report.md). Errors are not findings: bad input must be refused, and is. An abort
-//! (an allocation the reader could not make) ends the test process, which fails the test too.
+//! plan, in report.md or report.html). Errors are not findings: bad input must be refused, and
+//! is. An abort (an allocation the reader could not make) ends the test process, which fails
+//! the test too.
 //!
 //! The mutations are seeded (SplitMix64), so a run is reproducible: a finding prints its seed
 //! and input number, and writes the input to a folder it names.
@@ -201,18 +202,20 @@ fn exercise(dir: &Path) -> Verdict {
         let (tables, devs) = sworn::analysis::load_tables(&plan).ok()?;
         let ledger = sworn::ledger::Ledger::empty(dir.join("plan.toml.ledger"));
         let out = sworn::analysis::execute(&plan, &ledger, "..", &tables, devs).ok()?;
-        let md = out.files.iter().find(|(n, _)| n == "report.md")?;
-        let bad =
-            md.1.chars()
+        for name in ["report.md", "report.html"] {
+            let (_, text) = out.files.iter().find(|(n, _)| n == name)?;
+            let bad = text
+                .chars()
                 .find(|c| *c != '\n' && sworn::escape::is_unsafe(*c));
-        if let Some(c) = bad {
-            return Some(format!(
-                "report.md holds the unsafe character U+{:04X}",
-                c as u32
-            ));
-        }
-        if md.1.contains("<script") || md.1.contains("<!--") {
-            return Some("report.md holds raw HTML from the plan".into());
+            if let Some(c) = bad {
+                return Some(format!(
+                    "{name} holds the unsafe character U+{:04X}",
+                    c as u32
+                ));
+            }
+            if text.contains("<script") || text.contains("<!--") {
+                return Some(format!("{name} holds raw HTML from the plan"));
+            }
         }
         None
     }));

@@ -52,6 +52,7 @@ fn verify_fails_after_any_changed_byte() {
         "out/plan.ledger",
         "out/report.md",
         "out/report.tex",
+        "out/report.html",
         "out/results.json",
     ] {
         let s = Study::new();

@@ -19,5 +19,6 @@ mod readme;
 mod reference;
 mod registration;
 mod rehearse;
+mod reports;
 mod resampling;
 mod summaries;

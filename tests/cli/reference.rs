@@ -101,7 +101,7 @@ errors = { kind = "cluster", by = ["g1", "g2"] }
     }
     assert_eq!(r["clusters"], e["clusters"]["twoway"], "min(G1, G2)");
     assert_eq!(r["cluster_by"], serde_json::json!(["g1", "g2"]));
-    assert!(s.read("out/report.md").contains("by g1, g2"));
+    assert!(s.read("out/report.md").contains("clustered by g1 and g2"));
 }
 
 fn fixture_csv(name: &str) -> String {
@@ -281,7 +281,7 @@ errors = {{ kind = "cluster", by = "group" }}
     assert!(crate::common::codes(&v).contains(&"singletons-dropped".to_string()));
     assert!(s
         .read("out/report.md")
-        .contains("2 singleton row(s) dropped"));
+        .contains("2 row(s) alone in their group set aside"));
 }
 
 /// A fixed effect nested in the cluster variable through a plan: its levels count in the

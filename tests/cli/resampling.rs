@@ -238,7 +238,7 @@ fn exact_wild_bootstrap_through_the_plan_path() {
     );
     assert!(s
         .read("out/report.md")
-        .contains("restricted wild cluster bootstrap (exact, all 1024 draws)"));
+        .contains("restricted wild cluster bootstrap (exact: all 1024 draws)"));
 }
 
 /// A cluster-count rule switches a model-based hypothesis to the wild bootstrap.
