@@ -71,7 +71,10 @@ fn weakened_correction_after_results_keeps_the_registered_family() {
     let md = s.read("out/report.md");
     assert!(md.contains("## Registered and amended analyses"), "{md}");
     let html = s.read("out/report.html");
-    assert!(html.contains("<h2>Registered and amended analyses</h2>"), "{html}");
+    assert!(
+        html.contains("<h2>Registered and amended analyses</h2>"),
+        "{html}"
+    );
     assert!(
         md.contains("NOT AS REGISTERED: registered plan amended after results were computed: 1 change(s) (family.main)"),
         "{md}"
