@@ -622,7 +622,7 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
                 .trim()
                 .to_string();
     } else if h.as_amended.is_some() {
-        note = format!("as registered; the amended plan gives a different result (see Registered and amended analyses). {note}")
+        note = format!("as registered; the amended plan's result differs, see Registered and amended analyses. {note}")
             .trim()
             .to_string();
     }
