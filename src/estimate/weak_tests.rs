@@ -11,7 +11,8 @@ use nalgebra::{DMatrix, DVector};
 
 use super::{
     effective_f_critical_value, noncentral_chi_square_quantile, noncentral_chi_square_upper_tail,
-    stock_yogo, stock_yogo_critical_value, weak_instruments, WeakInstruments, DEFAULT_TAU,
+    stock_yogo, stock_yogo_critical_value, stock_yogo_rows, weak_instruments, StockYogoTable,
+    WeakInstruments, DEFAULT_TAU,
 };
 use crate::estimate::kclass::tests::{demean, dummies};
 use crate::estimate::reference_tests::{load, Fixture, Tracker, TOL};
@@ -51,7 +52,6 @@ fn check_fixture(case: &str) {
     let d = data(&fx);
     let ex = &fx.expected;
     assert_eq!(fx.n as u64, ex["n"].as_u64().expect("n"));
-    let q = d.instruments.ncols();
     let mut t = Tracker::default();
     for kind in KINDS {
         for tau in fx.setup["taus"].as_array().expect("taus") {
@@ -76,7 +76,6 @@ fn check_fixture(case: &str) {
             t.scalar("cragg_donald", got.cragg_donald, &ex["cragg_donald"]);
             assert_eq!(Some(got.weak), e["weak"].as_bool(), "{case} {kind} {tau}");
             assert_eq!(got.tau, tau);
-            assert_eq!(got.stock_yogo, stock_yogo(q));
         }
     }
     t.finish(case);
@@ -169,8 +168,8 @@ fn just_identified_critical_value_from_literature() {
     assert!((got.critical_value - c).abs() <= 1e-12 * c);
 }
 
-/// Table lookups: the included cells (from memory, Stock and Yogo 2005 Tables 5.1 and 5.2)
-/// and `None` outside them.
+/// Table lookups: the included cells (from memory, Stock and Yogo 2005 Tables 5.1, 5.2
+/// and 5.4) and `None` outside them; each estimator gets only its own tables.
 #[test]
 fn stock_yogo_cells() {
     // Table 5.2, q = 1, 10% maximal size: 16.38 (from memory).
@@ -190,10 +189,40 @@ fn stock_yogo_cells() {
     assert_eq!(stock_yogo_critical_value("wald-size", 0.05, 1), None);
     assert_eq!(stock_yogo_critical_value("other", 0.10, 3), None);
     assert_eq!(stock_yogo_critical_value("wald-size", 0.10, 0), None);
-    // q = 3: four relative-bias and four size cells; q = 1: size only; q = 12: none.
-    assert_eq!(stock_yogo(3).len(), 8);
-    assert!(stock_yogo(1).iter().all(|s| s.criterion == "wald-size"));
-    assert!(stock_yogo(12).is_empty());
+    // Table 5.4, q = 3, 15% maximal size: 4.36; q = 10, 25%: 2.25 (from memory).
+    assert_eq!(
+        stock_yogo_critical_value("liml-wald-size", 0.15, 3),
+        Some(4.36)
+    );
+    assert_eq!(
+        stock_yogo_critical_value("liml-wald-size", 0.25, 10),
+        Some(2.25)
+    );
+    assert_eq!(stock_yogo_critical_value("liml-wald-size", 0.10, 11), None);
+    assert_eq!(stock_yogo_critical_value("liml-wald-size", 0.05, 2), None);
+    // With one instrument LIML is 2SLS: Table 5.4's first row is Table 5.2's.
+    for level in [0.10, 0.15, 0.20, 0.25] {
+        assert_eq!(
+            stock_yogo_critical_value("liml-wald-size", level, 1),
+            stock_yogo_critical_value("wald-size", level, 1)
+        );
+    }
+    // 2SLS, q = 3: four relative-bias and four size cells; q = 1: size only; q = 12: none.
+    let tsls = |q| stock_yogo(StockYogoTable::Tsls, q);
+    assert_eq!(tsls(3).len(), 8);
+    assert!(tsls(1).iter().all(|s| s.criterion == "wald-size"));
+    assert!(tsls(12).is_empty());
+    // LIML: its own four size cells for q = 1..=10, never a 2SLS cell.
+    for q in 1..=10 {
+        let liml = stock_yogo(StockYogoTable::Liml, q);
+        assert_eq!(liml.len(), 4, "{q}");
+        assert!(liml.iter().all(|s| s.criterion == "liml-wald-size"), "{q}");
+    }
+    assert!(stock_yogo(StockYogoTable::Liml, 11).is_empty());
+    assert_eq!(stock_yogo_rows("relative-bias"), Some(3..=10));
+    assert_eq!(stock_yogo_rows("wald-size"), Some(1..=5));
+    assert_eq!(stock_yogo_rows("liml-wald-size"), Some(1..=10));
+    assert_eq!(stock_yogo_rows("fuller-bias"), None);
 }
 
 /// Frisch–Waugh–Lovell: fixed effects of g2 as dummies in exog, or swept out with

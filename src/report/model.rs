@@ -751,26 +751,25 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
             ),
             format!("Cragg–Donald statistic (homoskedastic): {}", num(w.cragg_donald)),
         ];
-        let kclass = match s.estimator {
-            crate::plan::Estimator::Liml => Some("LIML"),
-            crate::plan::Estimator::Fuller => Some("Fuller"),
-            _ => None,
-        };
-        if let Some(name) = kclass {
+        let kclass = matches!(
+            s.estimator,
+            crate::plan::Estimator::Liml | crate::plan::Estimator::Fuller
+        );
+        if kclass {
             lines[0].push_str(
                 "; this critical value bounds the bias of 2SLS, not of this specification's estimator",
             );
-            lines.push(format!(
-                "Stock–Yogo critical values: none given; Stock and Yogo (2005) tabulate separate values for {name}, which this version does not carry, and the 2SLS values do not apply to a {name} estimate"
-            ));
+        }
+        if let Some(note) = &w.stock_yogo_note {
+            lines.push(format!("Stock–Yogo critical values: {note}"));
         }
         for v in &w.stock_yogo {
             lines.push(format!(
                 "Stock–Yogo critical value, {} {:.0}%: {}",
-                if v.criterion == "relative-bias" {
-                    "2SLS relative bias"
-                } else {
-                    "maximal size of a 5% Wald test"
+                match v.criterion {
+                    "relative-bias" => "2SLS relative bias",
+                    "wald-size" => "maximal size of a 5% 2SLS Wald test",
+                    _ => "maximal size of a 5% LIML Wald test",
                 },
                 100.0 * v.level,
                 num(v.critical_value)
