@@ -1005,15 +1005,16 @@ fn stock_yogo_for(
 }
 
 /// Why a Fuller specification gets no Stock–Yogo values (results.json and the report).
-const FULLER_STOCK_YOGO_NOTE: &str = "none given for Fuller's estimator: the values of Stock \
-and Yogo's (2005) Fuller table available to this version did not pass its simulation check, so \
-none are shown, and the 2SLS and LIML values do not apply to a Fuller estimate";
+const FULLER_STOCK_YOGO_NOTE: &str = "none given for Fuller's estimator: the Stock and Yogo \
+(2005) Fuller values known to this version were not confirmed by the project's simulation check, \
+so none are shown, and the 2SLS and LIML values do not apply to a Fuller estimate";
 
 /// A short name for a Stock–Yogo criterion, used in notes.
 fn stock_yogo_label(criterion: &str) -> &'static str {
     match criterion {
         "relative-bias" => "2SLS relative-bias",
         "wald-size" => "2SLS Wald-size",
-        _ => "LIML Wald-size",
+        "liml-wald-size" => "LIML Wald-size",
+        _ => "Stock–Yogo",
     }
 }

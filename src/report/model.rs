@@ -769,7 +769,8 @@ fn spec_model(s: &crate::plan::Spec, r: &SpecResult) -> SpecModel {
                 match v.criterion {
                     "relative-bias" => "2SLS relative bias",
                     "wald-size" => "maximal size of a 5% 2SLS Wald test",
-                    _ => "maximal size of a 5% LIML Wald test",
+                    "liml-wald-size" => "maximal size of a 5% LIML Wald test",
+                    other => other,
                 },
                 100.0 * v.level,
                 num(v.critical_value)

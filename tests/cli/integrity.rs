@@ -403,7 +403,7 @@ fn kclass_specifications_get_no_2sls_stock_yogo_values() {
             }
             _ => {
                 assert!(sy.is_empty(), "{case}");
-                let expected = "none given for Fuller's estimator: the values of Stock and Yogo's (2005) Fuller table available to this version did not pass its simulation check";
+                let expected = "none given for Fuller's estimator: the Stock and Yogo (2005) Fuller values known to this version were not confirmed by the project's simulation check";
                 assert!(note.is_some_and(|n| n.starts_with(expected)), "{case}");
                 assert!(
                     report.contains(&format!("Stock–Yogo critical values: {expected}")),
