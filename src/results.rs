@@ -263,9 +263,13 @@ pub struct WeakInstrumentResult {
     pub weak: bool,
     /// Cragg–Donald minimum-eigenvalue statistic (homoskedastic).
     pub cragg_donald: f64,
-    /// Stock–Yogo critical values for this number of instruments, where tabulated (2SLS
-    /// specifications only: empty for LIML and Fuller, whose tables are not carried).
+    /// Stock–Yogo critical values of the specification's own estimator for this number of
+    /// instruments, where carried: 2SLS specifications get the 2SLS tables ("relative-bias",
+    /// "wald-size"), LIML ones the LIML table ("liml-wald-size"), Fuller ones none.
     pub stock_yogo: Vec<StockYogoValue>,
+    /// What `stock_yogo` lacks for this specification and why (a Fuller estimator, or a
+    /// number of instruments outside a carried table's rows); null when nothing is lacking.
+    pub stock_yogo_note: Option<String>,
     /// tF critical value for the 2SLS t-ratio at 5% given the first-stage F (just-identified
     /// specifications; null when no finite value exists).
     pub tf_critical_value: Option<f64>,
@@ -274,7 +278,7 @@ pub struct WeakInstrumentResult {
 /// One Stock–Yogo critical value.
 #[derive(Debug, Clone, Serialize)]
 pub struct StockYogoValue {
-    /// "relative-bias" or "wald-size".
+    /// "relative-bias" or "wald-size" (2SLS), "liml-wald-size" (LIML).
     pub criterion: &'static str,
     /// Bias share or size level.
     pub level: f64,

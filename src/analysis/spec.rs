@@ -910,6 +910,8 @@ impl IvContext<'_> {
             } else {
                 None
             };
+            let (stock_yogo, stock_yogo_note) =
+                stock_yogo_for(spec.estimator, p.instruments.ncols());
             result.weak_instruments = Some(WeakInstrumentResult {
                 effective_f: w.effective_f,
                 critical_value: w.critical_value,
@@ -917,18 +919,8 @@ impl IvContext<'_> {
                 effective_df: w.effective_df,
                 weak: w.weak,
                 cragg_donald: w.cragg_donald,
-                // Stock and Yogo's tables differ by estimator; only the 2SLS ones are carried,
-                // so a LIML or Fuller specification gets none rather than the 2SLS values.
-                stock_yogo: w
-                    .stock_yogo
-                    .iter()
-                    .filter(|_| spec.estimator == crate::plan::Estimator::Tsls)
-                    .map(|s| StockYogoValue {
-                        criterion: s.criterion,
-                        level: s.level,
-                        critical_value: s.critical_value,
-                    })
-                    .collect(),
+                stock_yogo,
+                stock_yogo_note,
                 tf_critical_value: tf,
             });
             let ar = |null: f64| {
@@ -963,5 +955,66 @@ impl IvContext<'_> {
             }
         }
         Ok(ar_tests)
+    }
+}
+
+/// The Stock–Yogo (2005) critical values of `estimator`'s own tables at `excluded`
+/// instruments, and a note on what is not given and why (`None` when nothing is lacking).
+/// Stock and Yogo's tables differ by estimator, so a specification never gets another
+/// estimator's values: 2SLS gets the 2SLS tables, LIML the LIML table, Fuller none (the
+/// Fuller values were not confirmed, see `estimate::StockYogoTable`).
+fn stock_yogo_for(
+    estimator: crate::plan::Estimator,
+    excluded: usize,
+) -> (Vec<StockYogoValue>, Option<String>) {
+    use crate::plan::Estimator;
+    let table = match estimator {
+        Estimator::Tsls => estimate::StockYogoTable::Tsls,
+        Estimator::Liml => estimate::StockYogoTable::Liml,
+        Estimator::Fuller => return (Vec::new(), Some(FULLER_STOCK_YOGO_NOTE.to_string())),
+        Estimator::Ols => return (Vec::new(), None),
+    };
+    let values: Vec<StockYogoValue> = estimate::stock_yogo(table, excluded)
+        .into_iter()
+        .map(|s| StockYogoValue {
+            criterion: s.criterion,
+            level: s.level,
+            critical_value: s.critical_value,
+        })
+        .collect();
+    let lacking: Vec<String> = table
+        .criteria()
+        .iter()
+        .filter(|&&c| !values.iter().any(|v| v.criterion == c))
+        .filter_map(|&c| {
+            let rows = estimate::stock_yogo_rows(c)?;
+            Some(format!(
+                "{} values are carried for {} to {} excluded instruments, not for {excluded}",
+                stock_yogo_label(c),
+                rows.start(),
+                rows.end()
+            ))
+        })
+        .collect();
+    let note = match (values.is_empty(), lacking.is_empty()) {
+        (_, true) => None,
+        (true, false) => Some(format!("none given: {}", lacking.join("; "))),
+        (false, false) => Some(lacking.join("; ")),
+    };
+    (values, note)
+}
+
+/// Why a Fuller specification gets no Stock–Yogo values (results.json and the report).
+const FULLER_STOCK_YOGO_NOTE: &str = "none given for Fuller's estimator: the Stock and Yogo \
+(2005) Fuller values known to this version were not confirmed by the project's simulation check, \
+so none are shown, and the 2SLS and LIML values do not apply to a Fuller estimate";
+
+/// A short name for a Stock–Yogo criterion, used in notes.
+fn stock_yogo_label(criterion: &str) -> &'static str {
+    match criterion {
+        "relative-bias" => "2SLS relative-bias",
+        "wald-size" => "2SLS Wald-size",
+        "liml-wald-size" => "LIML Wald-size",
+        _ => "Stock–Yogo",
     }
 }

@@ -84,8 +84,8 @@ pub use tf::{tf_critical_value, tf_p_value};
 pub use wald::wald;
 pub use weak::{
     effective_f_critical_value, noncentral_chi_square_quantile, noncentral_chi_square_upper_tail,
-    stock_yogo, stock_yogo_critical_value, weak_instruments, StockYogo, WeakInstruments,
-    DEFAULT_TAU, EFFECTIVE_F_SIZE,
+    stock_yogo, stock_yogo_critical_value, stock_yogo_rows, weak_instruments, StockYogo,
+    StockYogoTable, WeakInstruments, DEFAULT_TAU, EFFECTIVE_F_SIZE,
 };
 
 /// Why an estimate could not be computed.

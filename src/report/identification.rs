@@ -183,7 +183,13 @@ fn strength(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
                 if kclass { "; this bounds 2SLS, not this specification's estimator" } else { "" }
             ),
         });
-        rows.extend(stock_yogo_rows(s, r, w.cragg_donald, &w.stock_yogo));
+        rows.extend(stock_yogo_rows(
+            s,
+            r,
+            w.cragg_donald,
+            &w.stock_yogo,
+            w.stock_yogo_note.as_deref(),
+        ));
     }
     let n = s.instruments.len();
     Question {
@@ -196,32 +202,36 @@ fn strength(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
     }
 }
 
-/// The Cragg–Donald statistic read against each Stock–Yogo table carried: one row per
-/// criterion, naming the strictest tabulated level the statistic passes.
-fn stock_yogo_rows(s: &Spec, r: &SpecResult, cd: f64, values: &[StockYogoValue]) -> Vec<Evidence> {
-    let reference = format!(
-        "Stock–Yogo (2005) 2SLS table, {} instrument(s)",
-        s.instruments.len()
-    );
+/// The Cragg–Donald statistic read against each Stock–Yogo table carried for the
+/// specification's estimator (2SLS: relative bias and Wald size; LIML: Wald size; Fuller:
+/// none): one row per criterion, naming the strictest tabulated level the statistic passes,
+/// and a row with the note on what is not given and why.
+fn stock_yogo_rows(
+    s: &Spec,
+    r: &SpecResult,
+    cd: f64,
+    values: &[StockYogoValue],
+    note: Option<&str>,
+) -> Vec<Evidence> {
     let remark = homoskedastic_remark(r);
-    let name = match s.estimator {
-        Estimator::Liml => Some("LIML"),
-        Estimator::Fuller => Some("Fuller"),
-        _ => None,
+    let estimator = match s.estimator {
+        Estimator::Liml => "LIML",
+        Estimator::Fuller => "Fuller",
+        _ => "2SLS",
     };
-    if let Some(name) = name {
-        return vec![Evidence {
-            test: "Cragg–Donald minimum eigenvalue".into(),
-            statistic: num(cd),
-            reference: "—".into(),
-            threshold: "no critical value".into(),
-            reading: format!("the Stock–Yogo tables carried are for 2SLS and do not apply to a {name} estimate; {name}'s own tables are not carried{remark}"),
-        }];
-    }
     let mut rows = Vec::new();
-    for (criterion, what) in [
-        ("wald-size", "size of a nominal 5% Wald test of 2SLS"),
-        ("relative-bias", "bias of 2SLS relative to OLS"),
+    for (criterion, table_name, what) in [
+        (
+            "wald-size",
+            "Table 5.2",
+            "size of a nominal 5% Wald test of 2SLS",
+        ),
+        ("relative-bias", "Table 5.1", "bias of 2SLS relative to OLS"),
+        (
+            "liml-wald-size",
+            "Table 5.4",
+            "size of a nominal 5% Wald test of LIML",
+        ),
     ] {
         let mut table: Vec<&StockYogoValue> =
             values.iter().filter(|v| v.criterion == criterion).collect();
@@ -256,12 +266,27 @@ fn stock_yogo_rows(s: &Spec, r: &SpecResult, cd: f64, values: &[StockYogoValue])
         rows.push(Evidence {
             test: "Cragg–Donald minimum eigenvalue".into(),
             statistic: num(cd),
-            reference: reference.clone(),
+            reference: format!(
+                "Stock–Yogo (2005) {table_name}, {} instrument(s)",
+                s.instruments.len()
+            ),
             threshold,
             reading,
         });
     }
-    if rows.is_empty() {
+    if let Some(note) = note {
+        rows.push(Evidence {
+            test: "Cragg–Donald minimum eigenvalue".into(),
+            statistic: num(cd),
+            reference: "—".into(),
+            threshold: if rows.is_empty() {
+                "no critical value".into()
+            } else {
+                "—".into()
+            },
+            reading: format!("Stock–Yogo values for {estimator}: {note}"),
+        });
+    } else if rows.is_empty() {
         rows.push(Evidence {
             test: "Cragg–Donald minimum eigenvalue".into(),
             statistic: num(cd),
