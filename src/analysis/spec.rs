@@ -988,12 +988,20 @@ fn stock_yogo_for(
         .filter(|&&c| !values.iter().any(|v| v.criterion == c))
         .filter_map(|&c| {
             let rows = estimate::stock_yogo_rows(c)?;
-            Some(format!(
-                "{} values are carried for {} to {} excluded instruments, not for {excluded}",
-                stock_yogo_label(c),
-                rows.start(),
-                rows.end()
-            ))
+            Some(if excluded < *rows.start() {
+                format!(
+                    "Stock and Yogo's {} table starts at {} excluded instruments; this specification has {excluded}",
+                    stock_yogo_label(c),
+                    rows.start()
+                )
+            } else {
+                format!(
+                    "{} values are carried for {} to {} excluded instruments, not for {excluded}",
+                    stock_yogo_label(c),
+                    rows.start(),
+                    rows.end()
+                )
+            })
         })
         .collect();
     let note = match (values.is_empty(), lacking.is_empty()) {

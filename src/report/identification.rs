@@ -214,11 +214,6 @@ fn stock_yogo_rows(
     note: Option<&str>,
 ) -> Vec<Evidence> {
     let remark = homoskedastic_remark(r);
-    let estimator = match s.estimator {
-        Estimator::Liml => "LIML",
-        Estimator::Fuller => "Fuller",
-        _ => "2SLS",
-    };
     let mut rows = Vec::new();
     for (criterion, table_name, what) in [
         (
@@ -284,7 +279,7 @@ fn stock_yogo_rows(
             } else {
                 "—".into()
             },
-            reading: format!("Stock–Yogo values for {estimator}: {note}"),
+            reading: note.to_string(),
         });
     } else if rows.is_empty() {
         rows.push(Evidence {

@@ -232,3 +232,58 @@ fn registered_version_that_cannot_run_is_a_finding() {
         "{md}"
     );
 }
+
+/// Issue 9: switching a hypothesis from randomization to model inference after the data were
+/// read passed without a deviation. Now the switch is an `amended-after-data` finding naming
+/// the key, the hypothesis keeps its registered (randomization) p-value at the top level and
+/// the model-based one is reported beside it as amended.
+#[test]
+fn inference_switched_after_results_keeps_the_registered_test() {
+    let s = Study::new();
+    s.edit(
+        "plan.toml",
+        "[[specification]]\nid = \"ols\"",
+        "[assignment]\nvariable = \"d\"\ndesign = \"complete\"\n\n[resampling]\nseed = 7\ndraws = 199\n\n[[specification]]\nid = \"ols\"",
+    );
+    s.edit(
+        "plan.toml",
+        "specification = \"ols\"\nterm = \"x\"",
+        "specification = \"ols\"\nterm = \"d\"\ninference = \"randomization\"",
+    );
+    let before = s.seal_and_run();
+    let registered_p = before["hypotheses"]["H2"]["p_value"].clone();
+    assert!(registered_p.is_number(), "{before}");
+    s.edit(
+        "plan.toml",
+        "inference = \"randomization\"",
+        "inference = \"model\"",
+    );
+    let a = s.sworn(&["amend", "plan.toml", "--reason", "faster"]);
+    assert_eq!(a.code, 0, "{}", a.stderr);
+    let r = s.run_ok();
+    let h = &r["hypotheses"]["H2"];
+    assert_eq!(h["registration"], "registered", "{h}");
+    assert_eq!(h["p_value"], registered_p, "{h}");
+    assert!(h["as_amended"]["p_value"].is_number(), "{h}");
+    assert_ne!(h["as_amended"]["p_value"], registered_p, "{h}");
+    let el = element(&r, "hypothesis[H2]");
+    assert_eq!(el["status"], "changed", "{el}");
+    assert_eq!(el["after"], "results-computed", "{el}");
+    assert_eq!(el["reason"], "faster", "{el}");
+    let dev = r["deviations"]
+        .as_array()
+        .and_then(|d| {
+            d.iter()
+                .find(|d| d["code"] == "amended-after-data" && d["subject"] == "hypothesis[H2]")
+        })
+        .cloned()
+        .expect("an amended-after-data deviation for H2");
+    assert!(
+        dev["message"]
+            .as_str()
+            .is_some_and(|m| m.contains("inference") && m.contains("randomization")),
+        "{dev}"
+    );
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 1, "{}", v.stdout);
+}
