@@ -319,15 +319,16 @@ pub fn fit_spec(
     let err = |e| map_estimate_error(spec, e);
     let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
     let mut kappa = None;
-    let fit = match spec.estimator {
-        Estimator::Ols => {
-            let x = hstack(&[&p.focal, &p.exog]);
-            estimate::ols(&d.y, &x, has_c, &cov, ab).map_err(err)?
-        }
-        Estimator::Tsls => {
-            estimate::tsls(&d.y, &p.exog, &p.focal, &p.instruments, has_c, &cov, ab).map_err(err)?
-        }
-        Estimator::Liml | Estimator::Fuller => {
+    // An IV specification's data are validated and its instruments factorised once, for
+    // the fit and every diagnostic.
+    let iv = if spec.estimator.is_iv() {
+        Some(estimate::IvProblem::new(&d.y, &p.exog, &p.focal, &p.instruments).map_err(err)?)
+    } else {
+        None
+    };
+    let fit = match (&iv, spec.estimator) {
+        (Some(iv), Estimator::Tsls) => iv.tsls(has_c, &cov, ab).map_err(err)?,
+        (Some(iv), Estimator::Liml | Estimator::Fuller) => {
             let which = if spec.estimator == Estimator::Liml {
                 estimate::KClass::Liml
             } else {
@@ -335,19 +336,13 @@ pub fn fit_spec(
                     alpha: spec.fuller_k,
                 }
             };
-            let k = estimate::kclass(
-                &d.y,
-                &p.exog,
-                &p.focal,
-                &p.instruments,
-                has_c,
-                &cov,
-                which,
-                ab,
-            )
-            .map_err(err)?;
+            let k = iv.kclass(has_c, &cov, which, ab).map_err(err)?;
             kappa = Some(k.kappa);
             k.fit
+        }
+        _ => {
+            let x = hstack(&[&p.focal, &p.exog]);
+            estimate::ols(&d.y, &x, has_c, &cov, ab).map_err(err)?
         }
     };
     let reference = reference_for(spec, &fit);
@@ -440,12 +435,14 @@ pub fn fit_spec(
         pre_registered: !spec.exploratory,
     };
     let mut ar_tests = Vec::new();
-    if spec.estimator.is_iv() {
+    if let Some(iv) = &iv {
         let ctx = IvContext {
             spec,
-            d: &d,
+            iv,
             p: &p,
             cov: &cov,
+            has_constant: d.has_constant,
+            absorbed: &d.absorbed,
             needs,
         };
         ar_tests = ctx.diagnostics(&mut result)?;
@@ -787,9 +784,12 @@ pub fn shape_name(set: &estimate::ConfidenceSet) -> &'static str {
 /// Everything the IV diagnostics of one specification share.
 struct IvContext<'a> {
     spec: &'a Spec,
-    d: &'a Design,
+    /// The specification's IV problem, prepared once (shared factorisations).
+    iv: &'a estimate::IvProblem<'a>,
     p: &'a Parts,
     cov: &'a CovSpec,
+    has_constant: bool,
+    absorbed: &'a estimate::Absorbed,
     needs: &'a Needs,
 }
 
@@ -800,10 +800,10 @@ impl IvContext<'_> {
 
     /// Fills the diagnostic blocks of `result`; returns the AR tests at the needed nulls.
     fn diagnostics(&self, result: &mut SpecResult) -> Result<Vec<(f64, TestStatistic)>> {
-        let (spec, d, p, cov) = (self.spec, self.d, self.p, self.cov);
+        let (spec, iv, p, cov) = (self.spec, self.iv, self.p, self.cov);
         let err = |e| map_estimate_error(spec, e);
-        let has_c = d.has_constant;
-        let ab = &d.absorbed;
+        let has_c = self.has_constant;
+        let ab = self.absorbed;
         let z_names: Vec<String> = p
             .instrument_names
             .iter()
@@ -812,8 +812,7 @@ impl IvContext<'_> {
             .collect();
         let weak = self.wants(Diagnostic::WeakInstruments) && p.focal.ncols() == 1;
         if self.wants(Diagnostic::FirstStage) || weak {
-            let stages = estimate::first_stages(&p.exog, &p.focal, &p.instruments, has_c, cov, ab)
-                .map_err(err)?;
+            let stages = iv.first_stages(has_c, cov, ab).map_err(err)?;
             let mut out = BTreeMap::new();
             for (name, s) in p.focal_names.iter().zip(&stages) {
                 let reference = reference_for(spec, &s.fit);
@@ -836,8 +835,7 @@ impl IvContext<'_> {
             result.first_stage = Some(out);
         }
         if self.wants(Diagnostic::ReducedForm) {
-            let rf = estimate::reduced_form(&d.y, &p.exog, &p.instruments, has_c, cov, ab)
-                .map_err(err)?;
+            let rf = iv.reduced_form(has_c, cov, ab).map_err(err)?;
             let reference = reference_for(spec, &rf);
             result.reduced_form = Some(Regression {
                 outcome: spec.outcome.clone(),
@@ -847,8 +845,7 @@ impl IvContext<'_> {
             });
         }
         if self.wants(Diagnostic::Endogeneity) {
-            let e = estimate::endogeneity(&d.y, &p.exog, &p.focal, &p.instruments, has_c, cov, ab)
-                .map_err(err)?;
+            let e = iv.endogeneity(has_c, cov, ab).map_err(err)?;
             result.endogeneity = Some(EndogeneityResult {
                 control_function: test(&e.control_function),
                 durbin: test(&e.durbin),
@@ -856,12 +853,10 @@ impl IvContext<'_> {
             });
         }
         if self.wants(Diagnostic::Overidentification) {
-            let o = estimate::overidentification(&d.y, &p.exog, &p.focal, &p.instruments, ab)
-                .map_err(err)?;
+            let o = iv.overidentification(ab).map_err(err)?;
             let j = match cov {
                 CovSpec::TwoWay { .. } => None,
-                _ => estimate::hansen_j(&d.y, &p.exog, &p.focal, &p.instruments, cov, ab)
-                    .map_err(err)?,
+                _ => iv.hansen_j(cov, ab).map_err(err)?,
             };
             result.overidentification = o.map(|o| OveridResult {
                 sargan: test(&o.sargan),
@@ -870,17 +865,9 @@ impl IvContext<'_> {
             });
         }
         if self.needs.liml && spec.estimator == Estimator::Tsls {
-            let k = estimate::kclass(
-                &d.y,
-                &p.exog,
-                &p.focal,
-                &p.instruments,
-                has_c,
-                cov,
-                estimate::KClass::Liml,
-                ab,
-            )
-            .map_err(err)?;
+            let k = iv
+                .kclass(has_c, cov, estimate::KClass::Liml, ab)
+                .map_err(err)?;
             let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
             let reference = reference_for(spec, &k.fit);
             result.liml = Some(AlternativeEstimate {
@@ -891,16 +878,9 @@ impl IvContext<'_> {
         }
         let mut ar_tests = Vec::new();
         if weak {
-            let endog = p.focal.column(0).into_owned();
-            let w = estimate::weak_instruments(
-                &p.exog,
-                &endog,
-                &p.instruments,
-                cov,
-                spec.worst_case_bias,
-                ab,
-            )
-            .map_err(err)?;
+            let w = iv
+                .weak_instruments(cov, spec.worst_case_bias, ab)
+                .map_err(err)?;
             let tf = if p.instruments.ncols() == 1 {
                 result
                     .first_stage
@@ -923,20 +903,9 @@ impl IvContext<'_> {
                 stock_yogo_note,
                 tf_critical_value: tf,
             });
-            let ar = |null: f64| {
-                estimate::anderson_rubin(
-                    &d.y,
-                    &p.exog,
-                    &p.focal,
-                    &p.instruments,
-                    cov,
-                    ab,
-                    null,
-                    spec.confidence,
-                )
-                .map_err(err)
-            };
-            let at_zero = ar(0.0)?;
+            let at_zero = iv
+                .anderson_rubin(cov, ab, 0.0, spec.confidence)
+                .map_err(err)?;
             result.anderson_rubin = Some(AndersonRubinResult {
                 null: 0.0,
                 statistic: at_zero.test.statistic,
@@ -950,9 +919,9 @@ impl IvContext<'_> {
                 set: set_pieces(&at_zero.set),
                 confidence: spec.confidence,
             });
-            for &null in &self.needs.ar_nulls {
-                ar_tests.push((null, ar(null)?.test));
-            }
+            let nulls = &self.needs.ar_nulls;
+            let tests = iv.anderson_rubin_tests(cov, ab, nulls).map_err(err)?;
+            ar_tests.extend(nulls.iter().copied().zip(tests));
         }
         Ok(ar_tests)
     }

@@ -59,7 +59,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Covariance, Leverage};
-use super::linear::{iv_setup, require_observations};
+use super::linear::{require_observations, IvProblem};
 use super::qr::PivotedQr;
 use super::quadratic_meat::{quadratic_meat, QuadraticMeat};
 use super::refine::residual;
@@ -169,6 +169,12 @@ pub fn anderson_rubin(
     beta0: f64,
     confidence: f64,
 ) -> Result<AndersonRubin, EstimateError> {
+    check_inputs(endog, beta0, confidence)?;
+    IvProblem::new(y, exog, endog, instruments)?.anderson_rubin(cov, absorbed, beta0, confidence)
+}
+
+/// One endogenous regressor, a finite null and a confidence level in (0, 1).
+fn check_inputs(endog: &DMatrix<f64>, beta0: f64, confidence: f64) -> Result<(), EstimateError> {
     if endog.ncols() != 1 {
         return Err(EstimateError::DimensionMismatch {
             what: "endog columns",
@@ -179,44 +185,81 @@ pub fn anderson_rubin(
     if !(beta0.is_finite() && confidence > 0.0 && confidence < 1.0) {
         return Err(EstimateError::NotFinite);
     }
-    let setup = iv_setup(y, exog, endog, instruments)?;
-    let problem = Problem::new(
-        y,
-        exog,
-        endog,
-        instruments,
-        setup.z,
-        setup.zqr,
-        cov,
-        absorbed,
-    )?;
-    let reference = problem.reference();
-    let x = endog.column(0).into_owned();
-    let shifted = y - &x * beta0;
-    let coef = problem.zqr.solve(&problem.z, &shifted);
-    let resid = residual(&problem.z, &shifted, &coef);
-    let indices: Vec<usize> = (0..problem.l).collect();
-    let v = problem.covariance(&resid)?;
-    let statistic = wald(&coef, &v.cov, &indices)? / problem.l as f64;
-    let critical_value = quantile(&reference, confidence);
-    if !critical_value.is_finite() {
-        return Err(EstimateError::NotFinite);
+    Ok(())
+}
+
+impl IvProblem<'_> {
+    /// [`anderson_rubin`] on this problem, sharing its setup.
+    ///
+    /// # Errors
+    /// As [`anderson_rubin`].
+    pub fn anderson_rubin(
+        &self,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+        beta0: f64,
+        confidence: f64,
+    ) -> Result<AndersonRubin, EstimateError> {
+        check_inputs(self.endog, beta0, confidence)?;
+        let problem = self.ar_problem(cov, absorbed)?;
+        let test = problem.test(self.y, self.endog, beta0)?;
+        let critical_value = quantile(&test.reference, confidence);
+        if !critical_value.is_finite() {
+            return Err(EstimateError::NotFinite);
+        }
+        let set = problem.confidence_set(critical_value)?;
+        Ok(AndersonRubin {
+            test,
+            set,
+            critical_value,
+        })
     }
-    let set = problem.confidence_set(critical_value)?;
-    Ok(AndersonRubin {
-        test: TestStatistic {
-            statistic,
-            reference,
-        },
-        set,
-        critical_value,
-    })
+
+    /// The Anderson–Rubin tests of β = β₀ for each β₀ in `nulls`, without the confidence
+    /// set: the same statistics as [`anderson_rubin`] at each null, from one set of shared
+    /// regressions.
+    ///
+    /// # Errors
+    /// As [`anderson_rubin`].
+    pub fn anderson_rubin_tests(
+        &self,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+        nulls: &[f64],
+    ) -> Result<Vec<TestStatistic>, EstimateError> {
+        if nulls.iter().any(|b| !b.is_finite()) {
+            return Err(EstimateError::NotFinite);
+        }
+        let problem = self.ar_problem(cov, absorbed)?;
+        nulls
+            .iter()
+            .map(|&beta0| problem.test(self.y, self.endog, beta0))
+            .collect()
+    }
+
+    fn ar_problem<'p>(
+        &'p self,
+        cov: &'p CovSpec,
+        absorbed: &'p Absorbed,
+    ) -> Result<Problem<'p>, EstimateError> {
+        check_inputs(self.endog, 0.0, 0.5)?; // one endogenous regressor
+        Problem::new(
+            self.y,
+            self.exog,
+            self.endog,
+            self.instruments,
+            &self.setup.z,
+            &self.setup.zqr,
+            cov,
+            absorbed,
+        )
+    }
 }
 
 /// The regressions shared by the test and the set.
 struct Problem<'a> {
-    z: DMatrix<f64>,
-    zqr: PivotedQr,
+    z: &'a DMatrix<f64>,
+    zqr: &'a PivotedQr,
     spec: &'a CovSpec,
     absorbed: &'a Absorbed,
     n: usize,
@@ -240,22 +283,22 @@ impl<'a> Problem<'a> {
         exog: &DMatrix<f64>,
         endog: &DMatrix<f64>,
         instruments: &DMatrix<f64>,
-        z: DMatrix<f64>,
-        zqr: PivotedQr,
+        z: &'a DMatrix<f64>,
+        zqr: &'a PivotedQr,
         spec: &'a CovSpec,
         absorbed: &'a Absorbed,
     ) -> Result<Self, EstimateError> {
         let (n, l) = (y.len(), instruments.ncols());
         require_observations(n, z.ncols() + absorbed.df)?;
         let x = endog.column(0).into_owned();
-        let coef_y = zqr.solve(&z, y);
-        let coef_x = zqr.solve(&z, &x);
-        let e_y = residual(&z, y, &coef_y);
-        let e_x = residual(&z, &x, &coef_x);
+        let coef_y = zqr.solve(z, y);
+        let coef_x = zqr.solve(z, &x);
+        let e_y = residual(z, y, &coef_y);
+        let e_x = residual(z, &x, &coef_x);
         let r = partial_out(instruments, exog)?;
         let r_y = &r * coef_y.rows(0, l);
         let r_x = &r * coef_x.rows(0, l);
-        let clusters = covariance(&zqr, &z, &e_y, spec, Leverage::Allowed, absorbed)?.clusters;
+        let clusters = covariance(zqr, z, &e_y, spec, Leverage::Allowed, absorbed)?.clusters;
         Ok(Problem {
             z,
             zqr,
@@ -284,10 +327,32 @@ impl<'a> Problem<'a> {
         }
     }
 
+    /// The AR test of β = β₀: the Wald F of the instruments' coefficients in the
+    /// regression of y − x β₀ on [Z | W].
+    fn test(
+        &self,
+        y: &DVector<f64>,
+        endog: &DMatrix<f64>,
+        beta0: f64,
+    ) -> Result<TestStatistic, EstimateError> {
+        let reference = self.reference();
+        let x = endog.column(0).into_owned();
+        let shifted = y - &x * beta0;
+        let coef = self.zqr.solve(self.z, &shifted);
+        let resid = residual(self.z, &shifted, &coef);
+        let indices: Vec<usize> = (0..self.l).collect();
+        let v = self.covariance(&resid)?;
+        let statistic = wald(&coef, &v.cov, &indices)? / self.l as f64;
+        Ok(TestStatistic {
+            statistic,
+            reference,
+        })
+    }
+
     fn covariance(&self, resid: &DVector<f64>) -> Result<Covariance, EstimateError> {
         covariance(
-            &self.zqr,
-            &self.z,
+            self.zqr,
+            self.z,
             resid,
             self.spec,
             Leverage::Allowed,
@@ -385,7 +450,7 @@ impl<'a> Problem<'a> {
         let e_y = &self.e_y - &self.e_x * centre;
         let e_x = &self.e_x * scale;
         let meat = quadratic_meat(
-            &self.zqr,
+            self.zqr,
             &e_y,
             &e_x,
             self.spec,

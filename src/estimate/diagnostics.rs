@@ -16,8 +16,8 @@ use nalgebra::{Cholesky, DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::hac::hac_meat;
 use super::linear::{
-    assemble, hcat, instrument_qr, iv_setup, least_squares, require_observations, tsls_residuals,
-    validate, IvSetup, LeastSquares,
+    assemble, hcat, instrument_qr, least_squares, require_observations, validate, IvProblem,
+    IvSetup, LeastSquares,
 };
 use super::qr::PivotedQr;
 use super::refine::residual;
@@ -147,43 +147,60 @@ pub fn first_stages(
     cov: &CovSpec,
     absorbed: &Absorbed,
 ) -> Result<Vec<FirstStage>, EstimateError> {
-    let setup = iv_setup(&DVector::zeros(endog.nrows()), exog, endog, instruments)?;
-    require_observations(endog.nrows(), setup.z.ncols() + absorbed.df)?;
-    let excluded: Vec<usize> = (0..instruments.ncols()).collect();
-    let shea = shea_partial_r_squared(&setup, endog.ncols())?;
-    (0..endog.ncols())
-        .map(|j| {
-            let yj = endog.column(j).into_owned();
-            let ls = solve_with(&setup.zqr, &setup.z, &yj);
-            let fit = assemble(
-                &yj,
-                &setup.z,
-                &ls,
-                has_intercept,
-                cov,
-                Leverage::Allowed,
-                absorbed,
-            )?;
-            let classical = covariance(
-                &ls.qr,
-                &ls.design,
-                &fit.resid,
-                &CovSpec::Classical,
-                Leverage::Allowed,
-                absorbed,
-            )?;
-            let f = joint_f(&fit, &classical.cov, &excluded, fit.df_resid)?;
-            let robust_f = joint_f(&fit, &fit.cov, &excluded, inference_df(&fit))?;
-            let partial_r_squared = 1.0 - fit.rss / restricted_rss(&yj, exog)?;
-            Ok(FirstStage {
-                fit,
-                f,
-                robust_f,
-                partial_r_squared,
-                shea_partial_r_squared: shea[j],
+    let y = DVector::zeros(endog.nrows());
+    IvProblem::new(&y, exog, endog, instruments)?.first_stages(has_intercept, cov, absorbed)
+}
+
+impl IvProblem<'_> {
+    /// [`first_stages`] on this problem, sharing its setup.
+    ///
+    /// # Errors
+    /// As [`first_stages`].
+    pub fn first_stages(
+        &self,
+        has_intercept: bool,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<Vec<FirstStage>, EstimateError> {
+        let (setup, exog, endog, instruments) =
+            (&self.setup, self.exog, self.endog, self.instruments);
+        require_observations(endog.nrows(), setup.z.ncols() + absorbed.df)?;
+        let excluded: Vec<usize> = (0..instruments.ncols()).collect();
+        let shea = shea_partial_r_squared(&setup, endog.ncols())?;
+        (0..endog.ncols())
+            .map(|j| {
+                let yj = endog.column(j).into_owned();
+                let ls = solve_with(&setup.zqr, &setup.z, &yj);
+                let fit = assemble(
+                    &yj,
+                    &setup.z,
+                    &ls,
+                    has_intercept,
+                    cov,
+                    Leverage::Allowed,
+                    absorbed,
+                )?;
+                let classical = covariance(
+                    &ls.qr,
+                    &ls.design,
+                    &fit.resid,
+                    &CovSpec::Classical,
+                    Leverage::Allowed,
+                    absorbed,
+                )?;
+                let f = joint_f(&fit, &classical.cov, &excluded, fit.df_resid)?;
+                let robust_f = joint_f(&fit, &fit.cov, &excluded, inference_df(&fit))?;
+                let partial_r_squared = 1.0 - fit.rss / restricted_rss(&yj, exog)?;
+                Ok(FirstStage {
+                    fit,
+                    f,
+                    robust_f,
+                    partial_r_squared,
+                    shea_partial_r_squared: shea[j],
+                })
             })
-        })
-        .collect()
+            .collect()
+    }
 }
 
 /// The columns of `m` other than `j`.
@@ -236,6 +253,24 @@ pub fn reduced_form(
     require_observations(z.nrows(), z.ncols() + absorbed.df)?;
     let ls = solve_with(&instrument_qr(&z)?, &z, y);
     assemble(y, &z, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
+}
+
+impl IvProblem<'_> {
+    /// [`reduced_form`] on this problem: the same Z and the same factorisation of it.
+    ///
+    /// # Errors
+    /// As [`reduced_form`].
+    pub fn reduced_form(
+        &self,
+        has_intercept: bool,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<LinearFit, EstimateError> {
+        let (y, z) = (self.y, &self.setup.z);
+        require_observations(z.nrows(), z.ncols() + absorbed.df)?;
+        let ls = solve_with(&self.setup.zqr, z, y);
+        assemble(y, z, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
+    }
 }
 
 /// First-stage residuals V̂ = M_Z endog (n × p).
@@ -295,39 +330,54 @@ pub fn endogeneity(
     cov: &CovSpec,
     absorbed: &Absorbed,
 ) -> Result<Endogeneity, EstimateError> {
-    let setup = iv_setup(y, exog, endog, instruments)?;
-    let (n, k, p) = (y.len(), setup.x.ncols(), endog.ncols());
-    require_observations(n, (k + p).max(setup.z.ncols()) + absorbed.df)?;
-    let augmented = hcat(&setup.x, &first_stage_residuals(&setup, p)?);
-    let ls = least_squares(y, &augmented)?;
-    let cf = assemble(
-        y,
-        &augmented,
-        &ls,
-        has_intercept,
-        cov,
-        Leverage::Allowed,
-        absorbed,
-    )?;
-    let tested: Vec<usize> = (k..k + p).collect();
-    let control_function = joint_f(&cf, &cf.cov, &tested, inference_df(&cf))?;
-    let e_o = least_squares(y, &setup.x)?.resid;
-    let e_iv = tsls_residuals(y, &setup, p)?;
-    let wide = instrument_qr(&hcat(&setup.z, &endog.clone_owned()))?;
-    let delta = wide.project(&e_o).norm_squared() - setup.zqr.project(&e_iv).norm_squared();
-    let rss_o = e_o.norm_squared();
-    let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
-    Ok(Endogeneity {
-        control_function,
-        durbin: TestStatistic {
-            statistic: delta / (rss_o / n as f64),
-            reference: Reference::ChiSquare { df: pf },
-        },
-        wu_hausman: TestStatistic {
-            statistic: (delta / pf) / ((rss_o - delta) / df2),
-            reference: Reference::F { df1: pf, df2 },
-        },
-    })
+    IvProblem::new(y, exog, endog, instruments)?.endogeneity(has_intercept, cov, absorbed)
+}
+
+impl IvProblem<'_> {
+    /// [`endogeneity`] on this problem, sharing its setup and 2SLS residuals.
+    ///
+    /// # Errors
+    /// As [`endogeneity`].
+    pub fn endogeneity(
+        &self,
+        has_intercept: bool,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<Endogeneity, EstimateError> {
+        let (y, setup, endog) = (self.y, &self.setup, self.endog);
+        let (n, k, p) = (y.len(), setup.x.ncols(), endog.ncols());
+        require_observations(n, (k + p).max(setup.z.ncols()) + absorbed.df)?;
+        let augmented = hcat(&setup.x, &first_stage_residuals(&setup, p)?);
+        let ls = least_squares(y, &augmented)?;
+        let cf = assemble(
+            y,
+            &augmented,
+            &ls,
+            has_intercept,
+            cov,
+            Leverage::Allowed,
+            absorbed,
+        )?;
+        let tested: Vec<usize> = (k..k + p).collect();
+        let control_function = joint_f(&cf, &cf.cov, &tested, inference_df(&cf))?;
+        let e_o = least_squares(y, &setup.x)?.resid;
+        let e_iv = self.tsls_residuals()?;
+        let wide = instrument_qr(&hcat(&setup.z, &endog.clone_owned()))?;
+        let delta = wide.project(&e_o).norm_squared() - setup.zqr.project(&e_iv).norm_squared();
+        let rss_o = e_o.norm_squared();
+        let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
+        Ok(Endogeneity {
+            control_function,
+            durbin: TestStatistic {
+                statistic: delta / (rss_o / n as f64),
+                reference: Reference::ChiSquare { df: pf },
+            },
+            wu_hausman: TestStatistic {
+                statistic: (delta / pf) / ((rss_o - delta) / df2),
+                reference: Reference::F { df1: pf, df2 },
+            },
+        })
+    }
 }
 
 /// Overidentification tests; `None` when exactly identified.
@@ -350,28 +400,41 @@ pub fn overidentification(
     instruments: &DMatrix<f64>,
     absorbed: &Absorbed,
 ) -> Result<Option<Overidentification>, EstimateError> {
-    let setup = iv_setup(y, exog, endog, instruments)?;
-    require_observations(y.len(), setup.z.ncols().max(setup.x.ncols()) + absorbed.df)?;
-    let over = instruments.ncols() - endog.ncols();
-    if over == 0 {
-        return Ok(None);
+    IvProblem::new(y, exog, endog, instruments)?.overidentification(absorbed)
+}
+
+impl IvProblem<'_> {
+    /// [`overidentification`] on this problem, sharing its setup and 2SLS residuals.
+    ///
+    /// # Errors
+    /// As [`overidentification`].
+    pub fn overidentification(
+        &self,
+        absorbed: &Absorbed,
+    ) -> Result<Option<Overidentification>, EstimateError> {
+        let (y, setup, endog, instruments) = (self.y, &self.setup, self.endog, self.instruments);
+        require_observations(y.len(), setup.z.ncols().max(setup.x.ncols()) + absorbed.df)?;
+        let over = instruments.ncols() - endog.ncols();
+        if over == 0 {
+            return Ok(None);
+        }
+        let e = self.tsls_residuals()?;
+        let projected = setup.zqr.project(&e);
+        let explained = projected.norm_squared();
+        let unexplained = (&e - &projected).norm_squared();
+        let (n, l) = (y.len() as f64, (setup.z.ncols() + absorbed.df) as f64);
+        let reference = Reference::ChiSquare { df: over as f64 };
+        Ok(Some(Overidentification {
+            sargan: TestStatistic {
+                statistic: n * explained / e.norm_squared(),
+                reference,
+            },
+            basmann: TestStatistic {
+                statistic: (n - l) * explained / unexplained,
+                reference,
+            },
+        }))
     }
-    let e = tsls_residuals(y, &setup, endog.ncols())?;
-    let projected = setup.zqr.project(&e);
-    let explained = projected.norm_squared();
-    let unexplained = (&e - &projected).norm_squared();
-    let (n, l) = (y.len() as f64, (setup.z.ncols() + absorbed.df) as f64);
-    let reference = Reference::ChiSquare { df: over as f64 };
-    Ok(Some(Overidentification {
-        sargan: TestStatistic {
-            statistic: n * explained / e.norm_squared(),
-            reference,
-        },
-        basmann: TestStatistic {
-            statistic: (n - l) * explained / unexplained,
-            reference,
-        },
-    }))
 }
 
 /// Ω = Σ_c s_c s_cᵀ with s_c the sums of the moment rows qᵢ uᵢ over the groups `ids`
@@ -447,58 +510,72 @@ pub fn hansen_j(
     cov: &CovSpec,
     absorbed: &Absorbed,
 ) -> Result<Option<TestStatistic>, EstimateError> {
-    let setup = iv_setup(y, exog, endog, instruments)?;
-    let (n, l, k) = (y.len(), setup.z.ncols(), setup.x.ncols());
-    require_observations(n, l.max(k) + absorbed.df)?;
-    let ids = match cov {
-        CovSpec::TwoWay { .. } => {
-            let kind = cov.name();
-            return Err(EstimateError::CovarianceUnavailable {
-                estimator: "hansen j",
-                kind,
-            });
-        }
-        CovSpec::Cluster { ids } => Some(ids.as_slice()),
-        _ => None,
-    };
-    let over = instruments.ncols() - endog.ncols();
-    if over == 0 {
-        return Ok(None);
-    }
-    let u = tsls_residuals(y, &setup, endog.ncols())?;
-    let q = setup.zqr.thin_q();
-    let omega = match cov {
-        CovSpec::Hac {
-            positions,
-            bandwidth,
-        } => {
-            let mut scores = q.clone();
-            for (i, ui) in u.iter().enumerate() {
-                scores.row_mut(i).scale_mut(*ui);
+    IvProblem::new(y, exog, endog, instruments)?.hansen_j(cov, absorbed)
+}
+
+impl IvProblem<'_> {
+    /// [`hansen_j`] on this problem, sharing its setup and 2SLS residuals.
+    ///
+    /// # Errors
+    /// As [`hansen_j`].
+    pub fn hansen_j(
+        &self,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<Option<TestStatistic>, EstimateError> {
+        let (y, setup, endog, instruments) = (self.y, &self.setup, self.endog, self.instruments);
+        let (n, l, k) = (y.len(), setup.z.ncols(), setup.x.ncols());
+        require_observations(n, l.max(k) + absorbed.df)?;
+        let ids = match cov {
+            CovSpec::TwoWay { .. } => {
+                let kind = cov.name();
+                return Err(EstimateError::CovarianceUnavailable {
+                    estimator: "hansen j",
+                    kind,
+                });
             }
-            hac_meat(&scores, positions, *bandwidth)?
+            CovSpec::Cluster { ids } => Some(ids.as_slice()),
+            _ => None,
+        };
+        let over = instruments.ncols() - endog.ncols();
+        if over == 0 {
+            return Ok(None);
         }
-        _ => moment_meat(&q, &u, ids)?,
-    };
-    let singular = EstimateError::SingularMomentCovariance { moments: l };
-    let max_diag = omega.diagonal().max();
-    let chol = Cholesky::new(omega).ok_or(singular.clone())?;
-    let factor = chol.l();
-    let tol = n.max(l) as f64 * f64::EPSILON * max_diag;
-    if factor.diagonal().iter().any(|d| d * d <= tol) {
-        return Err(singular);
+        let u = self.tsls_residuals()?;
+        let q = setup.zqr.thin_q();
+        let omega = match cov {
+            CovSpec::Hac {
+                positions,
+                bandwidth,
+            } => {
+                let mut scores = q.clone();
+                for (i, ui) in u.iter().enumerate() {
+                    scores.row_mut(i).scale_mut(*ui);
+                }
+                hac_meat(&scores, positions, *bandwidth)?
+            }
+            _ => moment_meat(&q, &u, ids)?,
+        };
+        let singular = EstimateError::SingularMomentCovariance { moments: l };
+        let max_diag = omega.diagonal().max();
+        let chol = Cholesky::new(omega).ok_or(singular.clone())?;
+        let factor = chol.l();
+        let tol = n.max(l) as f64 * f64::EPSILON * max_diag;
+        if factor.diagonal().iter().any(|d| d * d <= tol) {
+            return Err(singular);
+        }
+        let whiten = |m: DMatrix<f64>| {
+            factor
+                .solve_lower_triangular(&m)
+                .ok_or(EstimateError::SingularMomentCovariance { moments: l })
+        };
+        let xt = whiten(q.transpose() * &setup.x)?;
+        let yt = whiten(q.transpose() * DMatrix::from_column_slice(n, 1, y.as_slice()))?;
+        let yt = yt.column(0).into_owned();
+        let statistic = least_squares(&yt, &xt)?.resid.norm_squared();
+        Ok(Some(TestStatistic {
+            statistic,
+            reference: Reference::ChiSquare { df: over as f64 },
+        }))
     }
-    let whiten = |m: DMatrix<f64>| {
-        factor
-            .solve_lower_triangular(&m)
-            .ok_or(EstimateError::SingularMomentCovariance { moments: l })
-    };
-    let xt = whiten(q.transpose() * &setup.x)?;
-    let yt = whiten(q.transpose() * DMatrix::from_column_slice(n, 1, y.as_slice()))?;
-    let yt = yt.column(0).into_owned();
-    let statistic = least_squares(&yt, &xt)?.resid.norm_squared();
-    Ok(Some(TestStatistic {
-        statistic,
-        reference: Reference::ChiSquare { df: over as f64 },
-    }))
 }

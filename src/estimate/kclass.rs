@@ -58,7 +58,7 @@ use std::collections::HashMap;
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
 use super::covariance::{clamp_negative_eigenvalues, covariance, CovSpec, Leverage};
-use super::linear::{assemble, iv_setup, require_observations, LeastSquares};
+use super::linear::{assemble, require_observations, IvProblem, LeastSquares};
 use super::qr::PivotedQr;
 use super::refine::residual;
 use super::{Absorbed, EstimateError, LinearFit};
@@ -134,6 +134,12 @@ pub fn kclass(
     which: KClass,
     absorbed: &Absorbed,
 ) -> Result<KClassFit, EstimateError> {
+    refuse_leverage(cov)?;
+    IvProblem::new(y, exog, endog, instruments)?.kclass(has_intercept, cov, which, absorbed)
+}
+
+/// HC2/HC3 need leverages, which a k-class fit does not define.
+fn refuse_leverage(cov: &CovSpec) -> Result<(), EstimateError> {
     if matches!(cov, CovSpec::Hc2 | CovSpec::Hc3) {
         let kind = cov.name();
         return Err(EstimateError::CovarianceUnavailable {
@@ -141,71 +147,89 @@ pub fn kclass(
             kind,
         });
     }
-    let setup = iv_setup(y, exog, endog, instruments)?;
-    let (n, k, l, p) = (y.len(), setup.x.ncols(), setup.z.ncols(), endog.ncols());
-    require_observations(n, l.max(k) + absorbed.df)?;
-    let kappa_liml = liml_kappa(y, exog, endog, &setup.zqr, instruments.ncols())?;
-    let kappa = match which {
-        KClass::Liml => kappa_liml,
-        KClass::Fuller { alpha } => kappa_liml - alpha / (n - l - absorbed.df) as f64,
-        KClass::Kappa { kappa } => kappa,
-    };
-    if !kappa.is_finite() {
-        return Err(EstimateError::NotFinite);
-    }
-    // X̂ = P_Z X and V̂ = M_Z X (exog columns: themselves and exactly zero).
-    let mut xhat = setup.x.clone();
-    let mut vhat = DMatrix::zeros(n, k);
-    let tol = n.max(l) as f64 * f64::EPSILON;
-    let mut orthogonal = Vec::new();
-    for j in 0..p {
-        let col = setup.x.column(j).into_owned();
-        let projected = setup.zqr.project(&col);
-        if projected.norm() <= tol * col.norm() {
-            orthogonal.push(j);
+    Ok(())
+}
+
+impl IvProblem<'_> {
+    /// [`kclass`] on this problem, sharing its setup.
+    ///
+    /// # Errors
+    /// As [`kclass`].
+    pub fn kclass(
+        &self,
+        has_intercept: bool,
+        cov: &CovSpec,
+        which: KClass,
+        absorbed: &Absorbed,
+    ) -> Result<KClassFit, EstimateError> {
+        refuse_leverage(cov)?;
+        let (y, setup, exog, endog, instruments) =
+            (self.y, &self.setup, self.exog, self.endog, self.instruments);
+        let (n, k, l, p) = (y.len(), setup.x.ncols(), setup.z.ncols(), endog.ncols());
+        require_observations(n, l.max(k) + absorbed.df)?;
+        let kappa_liml = liml_kappa(y, exog, endog, &setup.zqr, instruments.ncols())?;
+        let kappa = match which {
+            KClass::Liml => kappa_liml,
+            KClass::Fuller { alpha } => kappa_liml - alpha / (n - l - absorbed.df) as f64,
+            KClass::Kappa { kappa } => kappa,
+        };
+        if !kappa.is_finite() {
+            return Err(EstimateError::NotFinite);
         }
-        vhat.set_column(j, &(&col - &projected));
-        xhat.set_column(j, &projected);
-    }
-    if !orthogonal.is_empty() {
-        return Err(EstimateError::RankDeficient {
-            dependent: orthogonal,
-        });
-    }
-    let xk = if kappa == 1.0 {
-        xhat.clone()
-    } else {
-        &xhat + &vhat * (1.0 - kappa)
-    };
-    let coef = kclass_solve(y, &setup.x, &xk)?;
-    let qr_hat = PivotedQr::new(&xhat)?;
-    let ls = LeastSquares {
-        qr: qr_hat.clone(),
-        design: xhat.clone(),
-        coef,
-        resid: DVector::zeros(0),
-    };
-    let leverage = Leverage::Refused(ESTIMATOR);
-    let mut fit = assemble(y, &setup.x, &ls, has_intercept, cov, leverage, absorbed)?;
-    let j = bread_ratio(&qr_hat, &vhat, kappa, k)?;
-    fit.cov = match cov {
-        CovSpec::Classical => symmetric(&j * &fit.cov),
-        CovSpec::TwoWay { first, second } => {
-            let cells = intersection(first, second);
-            let part = |ids: &[usize]| {
-                let spec = CovSpec::Cluster { ids: ids.to_vec() };
-                covariance(&qr_hat, &xhat, &fit.resid, &spec, leverage, absorbed).map(|c| c.cov)
-            };
-            let sum = part(first)? + part(second)? - part(&cells)?;
-            clamp_negative_eigenvalues(symmetric(&j * sum * j.transpose()))
+        // X̂ = P_Z X and V̂ = M_Z X (exog columns: themselves and exactly zero).
+        let mut xhat = setup.x.clone();
+        let mut vhat = DMatrix::zeros(n, k);
+        let tol = n.max(l) as f64 * f64::EPSILON;
+        let mut orthogonal = Vec::new();
+        for j in 0..p {
+            let col = setup.x.column(j).into_owned();
+            let projected = setup.zqr.project(&col);
+            if projected.norm() <= tol * col.norm() {
+                orthogonal.push(j);
+            }
+            vhat.set_column(j, &(&col - &projected));
+            xhat.set_column(j, &projected);
         }
-        _ => symmetric(&j * &fit.cov * j.transpose()),
-    };
-    Ok(KClassFit {
-        fit,
-        kappa,
-        kappa_liml,
-    })
+        if !orthogonal.is_empty() {
+            return Err(EstimateError::RankDeficient {
+                dependent: orthogonal,
+            });
+        }
+        let xk = if kappa == 1.0 {
+            xhat.clone()
+        } else {
+            &xhat + &vhat * (1.0 - kappa)
+        };
+        let coef = kclass_solve(y, &setup.x, &xk)?;
+        let qr_hat = PivotedQr::new(&xhat)?;
+        let ls = LeastSquares {
+            qr: qr_hat.clone(),
+            design: xhat.clone(),
+            coef,
+            resid: DVector::zeros(0),
+        };
+        let leverage = Leverage::Refused(ESTIMATOR);
+        let mut fit = assemble(y, &setup.x, &ls, has_intercept, cov, leverage, absorbed)?;
+        let j = bread_ratio(&qr_hat, &vhat, kappa, k)?;
+        fit.cov = match cov {
+            CovSpec::Classical => symmetric(&j * &fit.cov),
+            CovSpec::TwoWay { first, second } => {
+                let cells = intersection(first, second);
+                let part = |ids: &[usize]| {
+                    let spec = CovSpec::Cluster { ids: ids.to_vec() };
+                    covariance(&qr_hat, &xhat, &fit.resid, &spec, leverage, absorbed).map(|c| c.cov)
+                };
+                let sum = part(first)? + part(second)? - part(&cells)?;
+                clamp_negative_eigenvalues(symmetric(&j * sum * j.transpose()))
+            }
+            _ => symmetric(&j * &fit.cov * j.transpose()),
+        };
+        Ok(KClassFit {
+            fit,
+            kappa,
+            kappa_liml,
+        })
+    }
 }
 
 /// (V + V')/2.

@@ -200,6 +200,81 @@ pub(crate) fn iv_setup(
     Ok(IvSetup { x, z, zqr })
 }
 
+/// One IV problem, prepared once and shared by the fit and every diagnostic of a
+/// specification: the inputs, the validated setup (X = [endog | exog], Z = [instruments |
+/// exog] and the QR of Z) and, computed on first use, the 2SLS residuals that the
+/// endogeneity and over-identification tests share.
+///
+/// Each method gives exactly the bits of the free function of the same name called with
+/// the same inputs (the same factorisations of the same matrices); it only avoids repeating
+/// them. Before, every diagnostic rebuilt the setup from the raw columns: nine QRs of Z and
+/// eight collinearity scans of X per 2SLS specification with every diagnostic.
+#[derive(Debug)]
+pub struct IvProblem<'a> {
+    pub(crate) y: &'a DVector<f64>,
+    pub(crate) exog: &'a DMatrix<f64>,
+    pub(crate) endog: &'a DMatrix<f64>,
+    pub(crate) instruments: &'a DMatrix<f64>,
+    pub(crate) setup: IvSetup,
+    tsls_resid: std::sync::OnceLock<Result<DVector<f64>, EstimateError>>,
+}
+
+impl<'a> IvProblem<'a> {
+    /// Validates the inputs and factorises the instruments.
+    ///
+    /// # Errors
+    /// As [`tsls`]: non-finite or mismatched inputs, under-identification, too few rows,
+    /// collinear regressors or instruments.
+    pub fn new(
+        y: &'a DVector<f64>,
+        exog: &'a DMatrix<f64>,
+        endog: &'a DMatrix<f64>,
+        instruments: &'a DMatrix<f64>,
+    ) -> Result<Self, EstimateError> {
+        let setup = iv_setup(y, exog, endog, instruments)?;
+        Ok(IvProblem {
+            y,
+            exog,
+            endog,
+            instruments,
+            setup,
+            tsls_resid: std::sync::OnceLock::new(),
+        })
+    }
+
+    /// The structural 2SLS residuals (as [`tsls_residuals`]), computed once.
+    pub(crate) fn tsls_residuals(&self) -> Result<DVector<f64>, EstimateError> {
+        self.tsls_resid
+            .get_or_init(|| tsls_residuals(self.y, &self.setup, self.endog.ncols()))
+            .clone()
+    }
+
+    /// Two-stage least squares on this problem (as [`tsls`]).
+    ///
+    /// # Errors
+    /// As [`tsls`].
+    pub fn tsls(
+        &self,
+        has_intercept: bool,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<LinearFit, EstimateError> {
+        let setup = &self.setup;
+        require_observations(
+            self.y.len(),
+            setup.z.ncols().max(setup.x.ncols()) + absorbed.df,
+        )?;
+        tsls_from(
+            self.y,
+            setup,
+            self.endog.ncols(),
+            has_intercept,
+            cov,
+            absorbed,
+        )
+    }
+}
+
 /// X̂ = [P_Z endog | exog]: exogenous columns are their own projections.
 ///
 /// # Errors
@@ -253,9 +328,7 @@ pub fn tsls(
     cov: &CovSpec,
     absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
-    let setup = iv_setup(y, exog, endog, instruments)?;
-    require_observations(y.len(), setup.z.ncols().max(setup.x.ncols()) + absorbed.df)?;
-    tsls_from(y, &setup, endog.ncols(), has_intercept, cov, absorbed)
+    IvProblem::new(y, exog, endog, instruments)?.tsls(has_intercept, cov, absorbed)
 }
 
 /// 2SLS on a prepared [`IvSetup`].

@@ -47,7 +47,7 @@ use nalgebra::{DMatrix, DVector, SymmetricEigen};
 use statrs::function::gamma::ln_gamma;
 
 use super::covariance::{CovSpec, Leverage};
-use super::linear::{assemble, iv_setup, require_observations, LeastSquares};
+use super::linear::{assemble, require_observations, IvProblem, LeastSquares};
 use super::qr::PivotedQr;
 use super::{Absorbed, EstimateError};
 use crate::distribution::Reference;
@@ -120,56 +120,83 @@ pub fn weak_instruments(
         return Err(EstimateError::NotFinite);
     }
     let endog_m = DMatrix::from_column_slice(endog.len(), 1, endog.as_slice());
-    let setup = iv_setup(endog, exog, &endog_m, instruments)?;
-    let (n, l, q) = (endog.len(), setup.z.ncols(), instruments.ncols());
-    require_observations(n, l + absorbed.df)?;
-    let ls = LeastSquares {
-        qr: setup.zqr.clone(),
-        design: setup.z.clone(),
-        coef: setup.zqr.solve(&setup.z, endog),
-        resid: DVector::zeros(0),
-    };
-    let fit = assemble(
-        endog,
-        &setup.z,
-        &ls,
-        false,
-        cov,
-        Leverage::Allowed,
-        absorbed,
-    )?;
-    // Z̃ = M_exog instruments and its triangular factor R (Z̃'Z̃ = R'R).
-    let mut z_tilde = instruments.clone();
-    if exog.ncols() > 0 {
-        let exog_qr = PivotedQr::new(exog)?;
-        for j in 0..q {
-            let col = z_tilde.column(j).into_owned();
-            z_tilde.set_column(j, &(&col - exog_qr.project(&col)));
+    IvProblem::new(endog, exog, &endog_m, instruments)?.weak_instruments(cov, tau, absorbed)
+}
+
+impl IvProblem<'_> {
+    /// [`weak_instruments`] for this problem's one endogenous regressor, sharing its setup.
+    ///
+    /// # Errors
+    /// As [`weak_instruments`]; [`EstimateError::DimensionMismatch`] unless the problem has
+    /// exactly one endogenous regressor.
+    pub fn weak_instruments(
+        &self,
+        cov: &CovSpec,
+        tau: f64,
+        absorbed: &Absorbed,
+    ) -> Result<WeakInstruments, EstimateError> {
+        if !(tau.is_finite() && tau > 0.0 && (1.0 / tau).is_finite()) {
+            return Err(EstimateError::NotFinite);
         }
+        if self.endog.ncols() != 1 {
+            return Err(EstimateError::DimensionMismatch {
+                what: "endog columns",
+                expected: 1,
+                got: self.endog.ncols(),
+            });
+        }
+        let endog = &self.endog.column(0).into_owned();
+        let (setup, exog, instruments) = (&self.setup, self.exog, self.instruments);
+        let (n, l, q) = (endog.len(), setup.z.ncols(), instruments.ncols());
+        require_observations(n, l + absorbed.df)?;
+        let ls = LeastSquares {
+            qr: setup.zqr.clone(),
+            design: setup.z.clone(),
+            coef: setup.zqr.solve(&setup.z, endog),
+            resid: DVector::zeros(0),
+        };
+        let fit = assemble(
+            endog,
+            &setup.z,
+            &ls,
+            false,
+            cov,
+            Leverage::Allowed,
+            absorbed,
+        )?;
+        // Z̃ = M_exog instruments and its triangular factor R (Z̃'Z̃ = R'R).
+        let mut z_tilde = instruments.clone();
+        if exog.ncols() > 0 {
+            let exog_qr = PivotedQr::new(exog)?;
+            for j in 0..q {
+                let col = z_tilde.column(j).into_owned();
+                z_tilde.set_column(j, &(&col - exog_qr.project(&col)));
+            }
+        }
+        let r = z_tilde.qr().r();
+        let pi = fit.coef.rows(0, q).into_owned();
+        let explained = (&r * &pi).norm_squared();
+        let v_pi = fit.cov.view((0, 0), (q, q)).into_owned();
+        let w2 = r.clone() * v_pi * r.transpose();
+        let w2 = (&w2 + w2.transpose()) * 0.5;
+        let trace = w2.trace();
+        let s2 = fit.rss / (n - l - absorbed.df) as f64;
+        let cragg_donald = explained / (q as f64 * s2);
+        let (effective_f, effective_df) = if trace > 0.0 {
+            (explained / trace, effective_df(&w2, 1.0 / tau))
+        } else {
+            (f64::INFINITY, 1.0)
+        };
+        let critical_value = effective_f_critical_value(effective_df, tau);
+        Ok(WeakInstruments {
+            effective_f,
+            effective_df,
+            critical_value,
+            tau,
+            cragg_donald,
+            weak: effective_f < critical_value,
+        })
     }
-    let r = z_tilde.qr().r();
-    let pi = fit.coef.rows(0, q).into_owned();
-    let explained = (&r * &pi).norm_squared();
-    let v_pi = fit.cov.view((0, 0), (q, q)).into_owned();
-    let w2 = r.clone() * v_pi * r.transpose();
-    let w2 = (&w2 + w2.transpose()) * 0.5;
-    let trace = w2.trace();
-    let s2 = fit.rss / (n - l - absorbed.df) as f64;
-    let cragg_donald = explained / (q as f64 * s2);
-    let (effective_f, effective_df) = if trace > 0.0 {
-        (explained / trace, effective_df(&w2, 1.0 / tau))
-    } else {
-        (f64::INFINITY, 1.0)
-    };
-    let critical_value = effective_f_critical_value(effective_df, tau);
-    Ok(WeakInstruments {
-        effective_f,
-        effective_df,
-        critical_value,
-        tau,
-        cragg_donald,
-        weak: effective_f < critical_value,
-    })
 }
 
 /// K_eff = tr(W)²(1 + 2x) / [tr(W'W) + 2x·tr(W)·λ_max(W)] for symmetric positive
