@@ -250,6 +250,11 @@ impl IvProblem<'_> {
             self.instruments,
             &self.setup.z,
             &self.setup.zqr,
+            if self.exog.ncols() == 0 {
+                None
+            } else {
+                Some(self.exog_qr()?)
+            },
             cov,
             absorbed,
         )
@@ -285,6 +290,7 @@ impl<'a> Problem<'a> {
         instruments: &DMatrix<f64>,
         z: &'a DMatrix<f64>,
         zqr: &'a PivotedQr,
+        exog_qr: Option<&PivotedQr>,
         spec: &'a CovSpec,
         absorbed: &'a Absorbed,
     ) -> Result<Self, EstimateError> {
@@ -295,7 +301,7 @@ impl<'a> Problem<'a> {
         let coef_x = zqr.solve(z, &x);
         let e_y = residual(z, y, &coef_y);
         let e_x = residual(z, &x, &coef_x);
-        let r = partial_out(instruments, exog)?;
+        let r = partial_out(instruments, exog, exog_qr);
         let r_y = &r * coef_y.rows(0, l);
         let r_x = &r * coef_x.rows(0, l);
         let clusters = covariance(zqr, z, &e_y, spec, Leverage::Allowed, absorbed)?.clusters;
@@ -548,18 +554,17 @@ struct Basis {
 }
 
 /// R = M_W Z (Z itself when W has no columns), column by column by least squares.
-fn partial_out(z: &DMatrix<f64>, w: &DMatrix<f64>) -> Result<DMatrix<f64>, EstimateError> {
-    if w.ncols() == 0 {
-        return Ok(z.clone());
-    }
-    let qr = PivotedQr::new(w)?;
+fn partial_out(z: &DMatrix<f64>, w: &DMatrix<f64>, qr: Option<&PivotedQr>) -> DMatrix<f64> {
+    let Some(qr) = qr else {
+        return z.clone();
+    };
     let mut r = z.clone();
     for j in 0..z.ncols() {
         let col = z.column(j).into_owned();
         let b = qr.solve(w, &col);
         r.set_column(j, &residual(w, &col, &b));
     }
-    Ok(r)
+    r
 }
 
 /// b² − a·c evaluated with fused multiply-adds (Kahan's discriminant).

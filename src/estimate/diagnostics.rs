@@ -162,11 +162,10 @@ impl IvProblem<'_> {
         cov: &CovSpec,
         absorbed: &Absorbed,
     ) -> Result<Vec<FirstStage>, EstimateError> {
-        let (setup, exog, endog, instruments) =
-            (&self.setup, self.exog, self.endog, self.instruments);
+        let (setup, endog, instruments) = (&self.setup, self.endog, self.instruments);
         require_observations(endog.nrows(), setup.z.ncols() + absorbed.df)?;
         let excluded: Vec<usize> = (0..instruments.ncols()).collect();
-        let shea = shea_partial_r_squared(&setup, endog.ncols())?;
+        let shea = shea_partial_r_squared(setup, endog.ncols())?;
         (0..endog.ncols())
             .map(|j| {
                 let yj = endog.column(j).into_owned();
@@ -190,7 +189,7 @@ impl IvProblem<'_> {
                 )?;
                 let f = joint_f(&fit, &classical.cov, &excluded, fit.df_resid)?;
                 let robust_f = joint_f(&fit, &fit.cov, &excluded, inference_df(&fit))?;
-                let partial_r_squared = 1.0 - fit.rss / restricted_rss(&yj, exog)?;
+                let partial_r_squared = 1.0 - fit.rss / self.exog_residuals(&yj)?.norm_squared();
                 Ok(FirstStage {
                     fit,
                     f,
@@ -347,7 +346,7 @@ impl IvProblem<'_> {
         let (y, setup, endog) = (self.y, &self.setup, self.endog);
         let (n, k, p) = (y.len(), setup.x.ncols(), endog.ncols());
         require_observations(n, (k + p).max(setup.z.ncols()) + absorbed.df)?;
-        let augmented = hcat(&setup.x, &first_stage_residuals(&setup, p)?);
+        let augmented = hcat(&setup.x, &first_stage_residuals(setup, p)?);
         let ls = least_squares(y, &augmented)?;
         let cf = assemble(
             y,

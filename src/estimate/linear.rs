@@ -217,6 +217,7 @@ pub struct IvProblem<'a> {
     pub(crate) instruments: &'a DMatrix<f64>,
     pub(crate) setup: IvSetup,
     tsls_resid: std::sync::OnceLock<Result<DVector<f64>, EstimateError>>,
+    exog_qr: std::sync::OnceLock<Result<PivotedQr, EstimateError>>,
 }
 
 impl<'a> IvProblem<'a> {
@@ -239,7 +240,27 @@ impl<'a> IvProblem<'a> {
             instruments,
             setup,
             tsls_resid: std::sync::OnceLock::new(),
+            exog_qr: std::sync::OnceLock::new(),
         })
+    }
+
+    /// The QR of the exogenous regressors, computed once (callers check that there are
+    /// some: the factorisation of no columns is never asked for).
+    pub(crate) fn exog_qr(&self) -> Result<&PivotedQr, EstimateError> {
+        self.exog_qr
+            .get_or_init(|| PivotedQr::new(self.exog))
+            .as_ref()
+            .map_err(Clone::clone)
+    }
+
+    /// Residuals of `v` on the exogenous regressors (`v` itself when there are none), by
+    /// the shared factorisation: the same bits as a fresh least-squares fit.
+    pub(crate) fn exog_residuals(&self, v: &DVector<f64>) -> Result<DVector<f64>, EstimateError> {
+        if self.exog.ncols() == 0 {
+            return Ok(v.clone());
+        }
+        let coef = self.exog_qr()?.solve(self.exog, v);
+        Ok(residual(self.exog, v, &coef))
     }
 
     /// The structural 2SLS residuals (as [`tsls_residuals`]), computed once.
@@ -264,14 +285,18 @@ impl<'a> IvProblem<'a> {
             self.y.len(),
             setup.z.ncols().max(setup.x.ncols()) + absorbed.df,
         )?;
-        tsls_from(
+        let fit = tsls_from(
             self.y,
             setup,
             self.endog.ncols(),
             has_intercept,
             cov,
             absorbed,
-        )
+        )?;
+        // The fit's residuals are exactly those `tsls_residuals` computes (same projection,
+        // factorisation, solve and compensated residual): the tests reuse them.
+        let _ = self.tsls_resid.set(Ok(fit.resid.clone()));
+        Ok(fit)
     }
 }
 

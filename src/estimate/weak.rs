@@ -48,7 +48,6 @@ use statrs::function::gamma::ln_gamma;
 
 use super::covariance::{CovSpec, Leverage};
 use super::linear::{assemble, require_observations, IvProblem, LeastSquares};
-use super::qr::PivotedQr;
 use super::{Absorbed, EstimateError};
 use crate::distribution::Reference;
 use crate::inference::{quantile, upper_tail};
@@ -167,7 +166,7 @@ impl IvProblem<'_> {
         // Z̃ = M_exog instruments and its triangular factor R (Z̃'Z̃ = R'R).
         let mut z_tilde = instruments.clone();
         if exog.ncols() > 0 {
-            let exog_qr = PivotedQr::new(exog)?;
+            let exog_qr = self.exog_qr()?;
             for j in 0..q {
                 let col = z_tilde.column(j).into_owned();
                 z_tilde.set_column(j, &(&col - exog_qr.project(&col)));
