@@ -293,7 +293,7 @@ pub(crate) fn densify<T: std::hash::Hash + Eq + Copy>(ids: &[T]) -> (Vec<usize>,
 }
 
 /// Cluster index of the intersection cells A × B (only non-empty cells are counted).
-fn intersect(first: &[usize], second: &[usize]) -> Vec<usize> {
+pub(crate) fn intersect(first: &[usize], second: &[usize]) -> Vec<usize> {
     let pairs: Vec<(usize, usize)> = first.iter().copied().zip(second.iter().copied()).collect();
     densify(&pairs).0
 }

@@ -13,7 +13,7 @@
 
 use nalgebra::{Cholesky, DMatrix, DVector};
 
-use super::covariance::{covariance, CovSpec, Leverage};
+use super::covariance::{covariance, densify, CovSpec, Leverage};
 use super::hac::hac_meat;
 use super::linear::{
     assemble, hcat, instrument_qr, least_squares, require_observations, validate, IvProblem,
@@ -24,7 +24,6 @@ use super::refine::residual;
 use super::wald::wald;
 use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::{Reference, TestStatistic};
-use std::collections::HashMap;
 
 /// The first-stage regression of one endogenous regressor.
 #[derive(Debug, Clone, PartialEq)]
@@ -454,14 +453,9 @@ fn moment_meat(
     if ids.len() != n {
         return Err(EstimateError::ClusterLength { n, ids: ids.len() });
     }
-    let mut index = HashMap::new();
-    let mut sums: Vec<DVector<f64>> = Vec::new();
-    for (i, id) in ids.iter().enumerate() {
-        let next = index.len();
-        let c = *index.entry(*id).or_insert(next);
-        if c == sums.len() {
-            sums.push(DVector::zeros(l));
-        }
+    let (dense, g) = densify(ids);
+    let mut sums: Vec<DVector<f64>> = vec![DVector::zeros(l); g];
+    for (i, &c) in dense.iter().enumerate() {
         sums[c] += scores.row(i).transpose();
     }
     if sums.len() < 2 {

@@ -53,11 +53,9 @@
 //! Coefficient order `[endog | exog]`; t statistics refer to t(n − k − a), or t(G − 1)
 //! when clustered, as for 2SLS.
 
-use std::collections::HashMap;
-
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
-use super::covariance::{clamp_negative_eigenvalues, covariance, CovSpec, Leverage};
+use super::covariance::{clamp_negative_eigenvalues, covariance, intersect, CovSpec, Leverage};
 use super::linear::{assemble, require_observations, IvProblem, LeastSquares};
 use super::qr::PivotedQr;
 use super::refine::residual;
@@ -214,7 +212,7 @@ impl IvProblem<'_> {
         fit.cov = match cov {
             CovSpec::Classical => symmetric(&j * &fit.cov),
             CovSpec::TwoWay { first, second } => {
-                let cells = intersection(first, second);
+                let cells = intersect(first, second);
                 let part = |ids: &[usize]| {
                     let spec = CovSpec::Cluster { ids: ids.to_vec() };
                     covariance(&qr_hat, &xhat, &fit.resid, &spec, leverage, absorbed).map(|c| c.cov)
@@ -348,17 +346,4 @@ fn bread_ratio(
         return Err(singular());
     }
     Ok(j)
-}
-
-/// Dense cell index of the pairs (first[i], second[i]), in order of first appearance.
-fn intersection(first: &[usize], second: &[usize]) -> Vec<usize> {
-    let mut map = HashMap::new();
-    first
-        .iter()
-        .zip(second)
-        .map(|pair| {
-            let next = map.len();
-            *map.entry(pair).or_insert(next)
-        })
-        .collect()
 }
