@@ -6,8 +6,9 @@
 //! dropped, repeatedly, and every column (outcome, regressors, instruments, controls) is
 //! swept of the fixed effects by alternating projections (`estimate::FixedEffects`); the
 //! intercept is absorbed and the degrees of freedom the fixed effects use travel with the
-//! design as [`Absorbed`]. A column with no variation left after the sweep (relative norm
-//! below [`ABSORBED_TOLERANCE`]) is constant within the fixed effects and is reported by name.
+//! design as [`Absorbed`]. A column with no variation left after the sweep (one the sweep sets
+//! to zero: `estimate::absorb` decides, with its one tolerance) is constant within the fixed
+//! effects and is reported by name.
 //! Collinearity among the remaining columns is resolved left to right by the caller.
 
 use super::{Labels, Table};
@@ -16,10 +17,6 @@ use crate::estimate::{Absorbed, FixedEffects};
 use crate::plan::{Errors, Spec};
 use nalgebra::{DMatrix, DVector};
 use std::collections::BTreeMap;
-
-/// A swept column whose norm is at most this share of its norm before the sweep has no
-/// variation within the fixed effects (it is constant within their levels).
-pub const ABSORBED_TOLERANCE: f64 = 1e-9;
 
 /// The matrices of one specification after sample restriction and listwise deletion.
 #[derive(Debug, Clone)]
@@ -217,9 +214,10 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         absorbed = fe.absorbed(&cluster_ids);
         let mut sweep = |m: &mut DMatrix<f64>, names: &[String]| -> Result<()> {
             let swept = fe.sweep(m).map_err(|e| sweep_error(spec, &e))?;
+            // The sweep sets a column to exactly zero when no variation is left within the
+            // fixed effects (`estimate::ABSORBED_COLUMN_TOLERANCE`, the one tolerance).
             for (j, name) in names.iter().enumerate() {
-                let before = m.column(j).norm();
-                if swept.column(j).norm() <= ABSORBED_TOLERANCE * before {
+                if swept.column(j).iter().all(|v| *v == 0.0) {
                     absorbed_columns.push(name.clone());
                 }
             }

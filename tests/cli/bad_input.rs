@@ -161,3 +161,47 @@ fn leverage_errors_are_refused_at_check() {
         c.stderr
     );
 }
+
+/// A control constant within the absorbed fixed effect is named in the error (the sweep
+/// sets it to zero, and that one decision is what the design reports), while one with real
+/// variation within the groups, however small beside its between-group variation, is kept.
+#[test]
+fn control_constant_within_fixed_effects() {
+    let mut data = String::new();
+    for (i, line) in data_csv().lines().enumerate() {
+        if i == 0 {
+            data.push_str(&format!("{line},gc,gv\n"));
+            continue;
+        }
+        let cells: Vec<&str> = line.split(',').collect();
+        let g: f64 = cells[1][1..].parse().expect("group number");
+        let x: f64 = cells[4].parse().expect("x");
+        data.push_str(&format!(
+            "{line},{},{}\n",
+            1000.0 * g,
+            1000.0 * g + 1e-3 * x
+        ));
+    }
+    let plan = PLAN
+        .edit(
+            "yb  = { kind = \"binary\" }",
+            "yb  = { kind = \"binary\" }\ngc  = { kind = \"number\" }\ngv  = { kind = \"number\" }",
+        )
+        .edit(
+            "controls = [\"x\"]\nerrors = \"hc1\"",
+            "controls = [\"x\", \"gv\", \"gc\"]\nfixed_effects = [\"grp\"]\nerrors = \"hc1\"",
+        );
+    let s = Study::with(&plan, &data);
+    fails(
+        &s,
+        &[
+            "specification `ols`",
+            "`gc` is constant within the fixed effects `grp`",
+            "on_collinear = \"drop\"",
+        ],
+    );
+    assert!(!s
+        .sworn(&["run", "plan.toml", "--out", "out"])
+        .stderr
+        .contains("`gv`"));
+}
