@@ -582,6 +582,10 @@ pub struct HypothesisResult {
     pub draws: Option<usize>,
     /// Resampled tests: whether every possible draw was enumerated.
     pub exact: Option<bool>,
+    /// Resampled tests: how the p-value was obtained (procedure, design re-drawn, draws,
+    /// seed, counting rule); null for every other test. The reports' Resampling section is
+    /// written from this object.
+    pub resampling: Option<ResamplingInfo>,
     /// supported | not-supported | undetermined.
     pub verdict: &'static str,
     /// Why a verdict is undetermined.
@@ -594,6 +598,72 @@ pub struct HypothesisResult {
     pub registration: &'static str,
     /// The executed plan's result, when it differs from the registered one.
     pub as_amended: Option<Box<HypothesisResult>>,
+}
+
+/// How a resampled p-value was obtained: everything needed to repeat it.
+#[derive(Debug, Clone, Serialize)]
+pub struct ResamplingInfo {
+    /// "randomization" (the assignment re-drawn) | "wild-bootstrap" (cluster weights drawn).
+    pub procedure: &'static str,
+    /// The bootstrap's variant: "restricted-wild-cluster" (OLS; Cameron, Gelbach and Miller
+    /// 2008) | "wild-restricted-efficient" (2SLS; Davidson and MacKinnon 2010); null for
+    /// randomization.
+    pub bootstrap: Option<&'static str>,
+    /// Bootstrap weights per cluster: "rademacher" | "webb"; null for randomization.
+    pub weights: Option<&'static str>,
+    /// What each draw recomputes: "t" (the coefficient over its standard error with the
+    /// specification's errors), "estimate" (the coefficient), "anderson-rubin" (the AR
+    /// statistic of a 2SLS specification at the null) or "cr1-t" (the bootstrap's
+    /// CR1-studentized coefficient).
+    pub statistic: &'static str,
+    /// The coefficient value imposed on every draw (the sharp null, or the bootstrap's
+    /// restricted null).
+    pub null_imposed: f64,
+    /// What is re-drawn.
+    pub redrawn: Redrawn,
+    /// "exact": every possible draw enumerated, the seed not used | "sampled": random draws.
+    pub mode: &'static str,
+    /// Random draws the plan asks for (`[resampling].draws`), besides the observed one.
+    pub draws_requested: usize,
+    /// Enumerate instead when the possible draws number at most this (`exact_below`).
+    pub exact_below: u64,
+    /// Draws in the p-value's denominator: sampled mode, the requested draws plus the observed
+    /// one minus `draws_skipped`; exact mode, every possible draw minus `draws_skipped`.
+    pub draws_used: usize,
+    /// Whether the observed assignment (the bootstrap's original sample, all weights 1) is
+    /// one of `draws_used`: always true (sampled mode adds it as draw 0; exact mode
+    /// enumerates it among all draws).
+    pub observed_counted: bool,
+    /// Draws whose statistic could not be computed (a degenerate re-draw), left out.
+    pub draws_skipped: usize,
+    /// `[resampling].seed`.
+    pub seed: u64,
+    /// Whether the seed drew anything (false in exact mode).
+    pub seed_used: bool,
+    /// Which draws count towards the p-value, as a formula over the draw statistic T* and the
+    /// observed T: "|T*| >= |T|" (two-sided), "T* >= T" (greater), "T* <= T" (less), or
+    /// "AR* >= AR, 1 if the estimate is on the other side" (a one-sided hypothesis tested by
+    /// randomizing the Anderson–Rubin statistic). p = counted draws / `draws_used`.
+    pub p_value_counts: &'static str,
+    /// Relative tolerance within which a draw ties with the observed statistic (ties count).
+    pub tie_tolerance: f64,
+}
+
+/// What a resampled test re-draws.
+#[derive(Debug, Clone, Serialize)]
+pub struct Redrawn {
+    /// Randomization: "complete" | "blocked" | "clustered" | "blocked-clustered" (the
+    /// registered `[assignment].design`); bootstrap: "cluster-weights".
+    pub design: String,
+    /// Randomization: the assigned variable re-drawn; null for the bootstrap.
+    pub variable: Option<String>,
+    /// Randomization: the block variable within which it is re-drawn (null: none).
+    pub blocks: Option<String>,
+    /// The cluster variable whose clusters are re-assigned whole (randomization) or get one
+    /// weight each (bootstrap); null: units are re-drawn one by one.
+    pub clusters: Option<String>,
+    /// Bootstrap: the number of clusters weighted; null for randomization.
+    pub cluster_count: Option<usize>,
 }
 
 /// Canonical JSON text of a serialisable value (sorted keys, no whitespace).

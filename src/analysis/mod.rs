@@ -12,6 +12,7 @@ mod hypotheses;
 mod integrity;
 mod progress;
 mod registered;
+mod resampled;
 mod spec;
 mod summaries;
 
