@@ -456,6 +456,58 @@ pub struct LpmInfo {
     pub fitted_outside_unit_interval: usize,
 }
 
+/// Arm summaries of a specification's estimation sample (the rows it was fitted on).
+///
+/// The arms are the values 0 (comparison) and 1 of one binary column: the single excluded
+/// instrument of an IV specification; for OLS the `[assignment]` variable when it is a
+/// regressor of interest, else the single regressor of interest. Standard errors are those of
+/// a mean: cluster-robust (CR1, factor G/(G − 1) with G the arm's clusters) by the
+/// specification's first cluster variable when it clusters, else s/√n (n − 1 divisor, which
+/// HC1 equals for a mean).
+#[derive(Debug, Clone, Serialize)]
+pub struct ArmSummary {
+    /// The binary column defining the arms; null when none qualifies (see `comparison_note`).
+    pub by: Option<String>,
+    /// "instrument" | "assignment" | "regressor": why `by` was chosen.
+    pub by_role: Option<&'static str>,
+    /// "cluster" (CR1 by `cluster_by`) | "unclustered" (s/√n).
+    pub std_error_kind: &'static str,
+    /// The cluster variable of cluster-robust standard errors.
+    pub cluster_by: Option<String>,
+    /// The outcome in the comparison arm (`by` = 0).
+    pub comparison_mean: Option<ArmMean>,
+    /// Why `comparison_mean` is null.
+    pub comparison_note: Option<String>,
+    /// The endogenous regressor's mean in arm 0 and in arm 1 of the instrument (IV only).
+    pub take_up: Option<[ArmMean; 2]>,
+    /// Why `take_up` is null (an OLS specification, several endogenous regressors or
+    /// instruments, or an instrument that is not 0/1).
+    pub take_up_note: Option<String>,
+    /// The short reason `take_up` is null, for a table cell: "ols", "instruments" (not exactly
+    /// one), "endogenous" (not exactly one), "not-binary", "one-arm", "small-arm" (an arm
+    /// with fewer than two rows or in one cluster), "not-a-column"; null when shown.
+    pub take_up_missing: Option<&'static str>,
+}
+
+/// A variable's mean in one arm.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArmMean {
+    /// The variable averaged.
+    pub variable: String,
+    /// The arm (0 or 1 of `by`).
+    pub arm: u8,
+    /// Rows in the arm.
+    pub n: usize,
+    /// Clusters with rows in the arm (cluster-robust errors only).
+    pub clusters: Option<usize>,
+    /// Mean.
+    pub mean: f64,
+    /// Standard deviation (n − 1 divisor).
+    pub sd: f64,
+    /// Standard error of the mean (kind in `ArmSummary::std_error_kind`).
+    pub std_error: f64,
+}
+
 /// One specification.
 #[derive(Debug, Clone, Serialize)]
 pub struct SpecResult {
@@ -523,6 +575,10 @@ pub struct SpecResult {
     pub liml: Option<AlternativeEstimate>,
     /// Linear probability model check (binary outcomes).
     pub linear_probability: Option<LpmInfo>,
+    /// The outcome's mean in the comparison arm and, for IV specifications, take-up by arm
+    /// of the instrument (the numbers of the tables' `comparison-mean` and `take-up-by-arm`
+    /// rows).
+    pub arms: ArmSummary,
     /// Marked exploratory in the plan.
     pub exploratory: bool,
     /// False when exploratory or added after the data were first read.

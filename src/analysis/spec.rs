@@ -436,6 +436,7 @@ pub fn fit_spec(
         anderson_rubin: None,
         liml: None,
         linear_probability: lpm,
+        arms: super::arms::summarise(spec, table, &d, rc.assignment.map(|a| a.variable.as_str())),
         exploratory: spec.exploratory,
         pre_registered: !spec.exploratory,
     };

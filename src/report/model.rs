@@ -741,43 +741,9 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
         extra: t
             .summary_rows
             .iter()
-            .flat_map(|row| summary_rows(row, &specs))
+            .flat_map(|row| super::summary_rows::rows(row, &specs))
             .collect(),
         notes: table_notes(t, &specs),
-    }
-}
-
-/// The rows a table's `summary_rows` entry adds (blank cells where a column has no value).
-fn summary_rows(row: &str, specs: &[&SpecResult]) -> Vec<(String, Vec<String>)> {
-    match row {
-        "first-stage-strength" => {
-            let first = |s: &&SpecResult| {
-                s.first_stage
-                    .as_ref()
-                    .and_then(|m| m.values().next().cloned())
-            };
-            vec![
-                (
-                    "first-stage F, the column's errors".to_string(),
-                    specs
-                        .iter()
-                        .map(|s| first(s).map_or(String::new(), |f| num(f.robust_f_statistic)))
-                        .collect(),
-                ),
-                (
-                    "effective F (Montiel Olea–Pflueger)".to_string(),
-                    specs
-                        .iter()
-                        .map(|s| {
-                            s.weak_instruments
-                                .as_ref()
-                                .map_or(String::new(), |w| num(w.effective_f))
-                        })
-                        .collect(),
-                ),
-            ]
-        }
-        _ => Vec::new(),
     }
 }
 
@@ -788,8 +754,8 @@ fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<String> {
     if !t.stars.is_empty() {
         notes.push(stars_legend(&t.stars));
     }
-    if t.summary_rows.iter().any(|r| r == "first-stage-strength") {
-        notes.push("First-stage strength: how strongly the instruments move the first endogenous regressor, as the first-stage F with the column's own errors and as the effective F where the plan requested the weak-instrument diagnostic; blank for OLS columns.".to_string());
+    for row in &t.summary_rows {
+        notes.extend(super::summary_rows::notes(row, &t.columns, specs));
     }
     let mut ns: Vec<usize> = specs.iter().map(|s| s.n).collect();
     ns.sort_unstable();

@@ -22,3 +22,4 @@ mod rehearse;
 mod reports;
 mod resampling;
 mod summaries;
+mod table_rows;
