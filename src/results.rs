@@ -314,7 +314,29 @@ pub struct AndersonRubinResult {
     pub ci: Option<[f64; 2]>,
     /// Confidence level of the set.
     pub confidence: f64,
+    /// The critical value the set inverts: the `confidence` quantile of `distribution`
+    /// (the set is every coefficient whose AR statistic is at most this).
+    pub critical_value: f64,
+    /// The AR statistic against the hypothesised coefficient on a fixed grid, for the HTML
+    /// report's curve; null when it could not be computed.
+    pub curve: Option<ArCurve>,
 }
+
+/// The Anderson–Rubin statistic on a grid of hypothesised coefficient values.
+///
+/// The grid has [`AR_CURVE_POINTS`] equally spaced values over the span of the set's finite
+/// endpoints, the estimate and its Wald interval, widened by a fifth of that span on each
+/// side.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArCurve {
+    /// The hypothesised coefficient values, increasing.
+    pub coefficient: Vec<f64>,
+    /// AR at each value (null where its covariance is singular: an exact fit).
+    pub statistic: Vec<Option<f64>>,
+}
+
+/// Points of the Anderson–Rubin curve's grid.
+pub const AR_CURVE_POINTS: usize = 101;
 
 /// An alternative k-class estimate computed for a contingency.
 #[derive(Debug, Clone, Serialize)]

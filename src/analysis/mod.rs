@@ -4,6 +4,7 @@
 //! Nothing here writes files or the ledger: `app` sequences that, so `verify` can re-derive
 //! a run's outputs byte for byte with the same function.
 
+mod ar_curve;
 mod arms;
 mod assignment;
 mod contingency;

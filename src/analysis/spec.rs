@@ -938,6 +938,17 @@ impl IvContext<'_> {
                 .map_err(err)
             };
             let at_zero = ar(0.0)?;
+            let set = set_pieces(&at_zero.set);
+            let curve = super::ar_curve::curve(
+                &d.y,
+                &p.exog,
+                &p.focal,
+                &p.instruments,
+                cov,
+                ab,
+                &set,
+                p.focal_names.first().and_then(|x| result.terms.get(x)),
+            );
             result.anderson_rubin = Some(AndersonRubinResult {
                 null: 0.0,
                 statistic: at_zero.test.statistic,
@@ -948,8 +959,10 @@ impl IvContext<'_> {
                     [(lo, hi)] if lo.is_finite() && hi.is_finite() => Some([*lo, *hi]),
                     _ => None,
                 },
-                set: set_pieces(&at_zero.set),
+                set,
                 confidence: spec.confidence,
+                critical_value: at_zero.critical_value,
+                curve,
             });
             for &null in &self.needs.ar_nulls {
                 ar_tests.push((null, ar(null)?.test));
