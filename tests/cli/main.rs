@@ -1,5 +1,6 @@
 //! Integration tests: the built binary on generated studies (one test binary).
 
+mod ar_curve;
 mod bad_input;
 mod common;
 mod contingency;
