@@ -314,7 +314,29 @@ pub struct AndersonRubinResult {
     pub ci: Option<[f64; 2]>,
     /// Confidence level of the set.
     pub confidence: f64,
+    /// The critical value the set inverts: the `confidence` quantile of `distribution`
+    /// (the set is every coefficient whose AR statistic is at most this).
+    pub critical_value: f64,
+    /// The AR statistic against the hypothesised coefficient on a fixed grid, for the HTML
+    /// report's curve; null when it could not be computed.
+    pub curve: Option<ArCurve>,
 }
+
+/// The Anderson–Rubin statistic on a grid of hypothesised coefficient values.
+///
+/// The grid has [`AR_CURVE_POINTS`] equally spaced values over the span of the set's finite
+/// endpoints, the estimate and its Wald interval, widened by a fifth of that span on each
+/// side.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArCurve {
+    /// The hypothesised coefficient values, increasing.
+    pub coefficient: Vec<f64>,
+    /// AR at each value (null where its covariance is singular: an exact fit).
+    pub statistic: Vec<Option<f64>>,
+}
+
+/// Points of the Anderson–Rubin curve's grid.
+pub const AR_CURVE_POINTS: usize = 101;
 
 /// An alternative k-class estimate computed for a contingency.
 #[derive(Debug, Clone, Serialize)]
@@ -456,6 +478,58 @@ pub struct LpmInfo {
     pub fitted_outside_unit_interval: usize,
 }
 
+/// Arm summaries of a specification's estimation sample (the rows it was fitted on).
+///
+/// The arms are the values 0 (comparison) and 1 of one binary column: the single excluded
+/// instrument of an IV specification; for OLS the `[assignment]` variable when it is a
+/// regressor of interest, else the single regressor of interest. Standard errors are those of
+/// a mean: cluster-robust (CR1, factor G/(G − 1) with G the arm's clusters) by the
+/// specification's first cluster variable when it clusters, else s/√n (n − 1 divisor, which
+/// HC1 equals for a mean).
+#[derive(Debug, Clone, Serialize)]
+pub struct ArmSummary {
+    /// The binary column defining the arms; null when none qualifies (see `comparison_note`).
+    pub by: Option<String>,
+    /// "instrument" | "assignment" | "regressor": why `by` was chosen.
+    pub by_role: Option<&'static str>,
+    /// "cluster" (CR1 by `cluster_by`) | "unclustered" (s/√n).
+    pub std_error_kind: &'static str,
+    /// The cluster variable of cluster-robust standard errors.
+    pub cluster_by: Option<String>,
+    /// The outcome in the comparison arm (`by` = 0).
+    pub comparison_mean: Option<ArmMean>,
+    /// Why `comparison_mean` is null.
+    pub comparison_note: Option<String>,
+    /// The endogenous regressor's mean in arm 0 and in arm 1 of the instrument (IV only).
+    pub take_up: Option<[ArmMean; 2]>,
+    /// Why `take_up` is null (an OLS specification, several endogenous regressors or
+    /// instruments, or an instrument that is not 0/1).
+    pub take_up_note: Option<String>,
+    /// The short reason `take_up` is null, for a table cell: "ols", "instruments" (not exactly
+    /// one), "endogenous" (not exactly one), "not-binary", "one-arm", "small-arm" (an arm
+    /// with fewer than two rows or in one cluster), "not-a-column"; null when shown.
+    pub take_up_missing: Option<&'static str>,
+}
+
+/// A variable's mean in one arm.
+#[derive(Debug, Clone, Serialize)]
+pub struct ArmMean {
+    /// The variable averaged.
+    pub variable: String,
+    /// The arm (0 or 1 of `by`).
+    pub arm: u8,
+    /// Rows in the arm.
+    pub n: usize,
+    /// Clusters with rows in the arm (cluster-robust errors only).
+    pub clusters: Option<usize>,
+    /// Mean.
+    pub mean: f64,
+    /// Standard deviation (n − 1 divisor).
+    pub sd: f64,
+    /// Standard error of the mean (kind in `ArmSummary::std_error_kind`).
+    pub std_error: f64,
+}
+
 /// One specification.
 #[derive(Debug, Clone, Serialize)]
 pub struct SpecResult {
@@ -523,6 +597,10 @@ pub struct SpecResult {
     pub liml: Option<AlternativeEstimate>,
     /// Linear probability model check (binary outcomes).
     pub linear_probability: Option<LpmInfo>,
+    /// The outcome's mean in the comparison arm and, for IV specifications, take-up by arm
+    /// of the instrument (the numbers of the tables' `comparison-mean` and `take-up-by-arm`
+    /// rows).
+    pub arms: ArmSummary,
     /// Marked exploratory in the plan.
     pub exploratory: bool,
     /// False when exploratory or added after the data were first read.
@@ -582,6 +660,10 @@ pub struct HypothesisResult {
     pub draws: Option<usize>,
     /// Resampled tests: whether every possible draw was enumerated.
     pub exact: Option<bool>,
+    /// Resampled tests: how the p-value was obtained (procedure, design re-drawn, draws,
+    /// seed, counting rule); null for every other test. The reports' Resampling section is
+    /// written from this object.
+    pub resampling: Option<ResamplingInfo>,
     /// supported | not-supported | undetermined.
     pub verdict: &'static str,
     /// Why a verdict is undetermined.
@@ -594,6 +676,72 @@ pub struct HypothesisResult {
     pub registration: &'static str,
     /// The executed plan's result, when it differs from the registered one.
     pub as_amended: Option<Box<HypothesisResult>>,
+}
+
+/// How a resampled p-value was obtained: everything needed to repeat it.
+#[derive(Debug, Clone, Serialize)]
+pub struct ResamplingInfo {
+    /// "randomization" (the assignment re-drawn) | "wild-bootstrap" (cluster weights drawn).
+    pub procedure: &'static str,
+    /// The bootstrap's variant: "restricted-wild-cluster" (OLS; Cameron, Gelbach and Miller
+    /// 2008) | "wild-restricted-efficient" (2SLS; Davidson and MacKinnon 2010); null for
+    /// randomization.
+    pub bootstrap: Option<&'static str>,
+    /// Bootstrap weights per cluster: "rademacher" | "webb"; null for randomization.
+    pub weights: Option<&'static str>,
+    /// What each draw recomputes: "t" (the coefficient over its standard error with the
+    /// specification's errors), "estimate" (the coefficient), "anderson-rubin" (the AR
+    /// statistic of a 2SLS specification at the null) or "cr1-t" (the bootstrap's
+    /// CR1-studentized coefficient).
+    pub statistic: &'static str,
+    /// The coefficient value imposed on every draw (the sharp null, or the bootstrap's
+    /// restricted null).
+    pub null_imposed: f64,
+    /// What is re-drawn.
+    pub redrawn: Redrawn,
+    /// "exact": every possible draw enumerated, the seed not used | "sampled": random draws.
+    pub mode: &'static str,
+    /// Random draws the plan asks for (`[resampling].draws`), besides the observed one.
+    pub draws_requested: usize,
+    /// Enumerate instead when the possible draws number at most this (`exact_below`).
+    pub exact_below: u64,
+    /// Draws in the p-value's denominator: sampled mode, the requested draws plus the observed
+    /// one minus `draws_skipped`; exact mode, every possible draw minus `draws_skipped`.
+    pub draws_used: usize,
+    /// Whether the observed assignment (the bootstrap's original sample, all weights 1) is
+    /// one of `draws_used`: always true (sampled mode adds it as draw 0; exact mode
+    /// enumerates it among all draws).
+    pub observed_counted: bool,
+    /// Draws whose statistic could not be computed (a degenerate re-draw), left out.
+    pub draws_skipped: usize,
+    /// `[resampling].seed`.
+    pub seed: u64,
+    /// Whether the seed drew anything (false in exact mode).
+    pub seed_used: bool,
+    /// Which draws count towards the p-value, as a formula over the draw statistic T* and the
+    /// observed T: "|T*| >= |T|" (two-sided), "T* >= T" (greater), "T* <= T" (less), or
+    /// "AR* >= AR, 1 if the estimate is on the other side" (a one-sided hypothesis tested by
+    /// randomizing the Anderson–Rubin statistic). p = counted draws / `draws_used`.
+    pub p_value_counts: &'static str,
+    /// Relative tolerance within which a draw ties with the observed statistic (ties count).
+    pub tie_tolerance: f64,
+}
+
+/// What a resampled test re-draws.
+#[derive(Debug, Clone, Serialize)]
+pub struct Redrawn {
+    /// Randomization: "complete" | "blocked" | "clustered" | "blocked-clustered" (the
+    /// registered `[assignment].design`); bootstrap: "cluster-weights".
+    pub design: String,
+    /// Randomization: the assigned variable re-drawn; null for the bootstrap.
+    pub variable: Option<String>,
+    /// Randomization: the block variable within which it is re-drawn (null: none).
+    pub blocks: Option<String>,
+    /// The cluster variable whose clusters are re-assigned whole (randomization) or get one
+    /// weight each (bootstrap); null: units are re-drawn one by one.
+    pub clusters: Option<String>,
+    /// Bootstrap: the number of clusters weighted; null for randomization.
+    pub cluster_count: Option<usize>,
 }
 
 /// Canonical JSON text of a serialisable value (sorted keys, no whitespace).

@@ -227,6 +227,7 @@ fn test_one(
         one_sided_bound: None,
         draws: None,
         exact: None,
+        resampling: None,
         verdict: "undetermined",
         reason: None,
         pre_registered: f.result.pre_registered,
@@ -281,7 +282,7 @@ fn test_one(
         _ => None,
     };
     if let Some(kind) = resampled {
-        return resampled_test(h, f, t, kind, &mut r);
+        return resampled_test(plan, h, f, t, kind, &mut r);
     }
     match sub.map(|s| &s.action) {
         Some(Action::AndersonRubin) => anderson_rubin(h, f, t, &mut r),
@@ -292,6 +293,7 @@ fn test_one(
 
 /// A resampled test: randomization inference or the wild cluster bootstrap.
 fn resampled_test(
+    plan: &Plan,
     h: &Hypothesis,
     f: &Fitted,
     t: &Term,
@@ -308,6 +310,7 @@ fn resampled_test(
     r.df = None;
     r.draws = Some(res.draws_used);
     r.exact = Some(res.exact);
+    r.resampling = super::resampled::describe(plan, h, f, kind, res);
     r.statistic = Some(res.observed);
     // The randomization AR statistic is non-negative and two-sided by nature: for a
     // one-sided hypothesis its p-value counts only when the estimate lies on the claimed side.

@@ -4,6 +4,8 @@
 //! Nothing here writes files or the ledger: `app` sequences that, so `verify` can re-derive
 //! a run's outputs byte for byte with the same function.
 
+mod ar_curve;
+mod arms;
 mod assignment;
 mod contingency;
 mod degenerate;
@@ -12,6 +14,7 @@ mod hypotheses;
 mod integrity;
 mod progress;
 mod registered;
+mod resampled;
 mod spec;
 mod summaries;
 

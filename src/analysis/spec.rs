@@ -431,6 +431,7 @@ pub fn fit_spec(
         anderson_rubin: None,
         liml: None,
         linear_probability: lpm,
+        arms: super::arms::summarise(spec, table, &d, rc.assignment.map(|a| a.variable.as_str())),
         exploratory: spec.exploratory,
         pre_registered: !spec.exploratory,
     };
@@ -906,6 +907,14 @@ impl IvContext<'_> {
             let at_zero = iv
                 .anderson_rubin(cov, ab, 0.0, spec.confidence)
                 .map_err(err)?;
+            let set = set_pieces(&at_zero.set);
+            let curve = super::ar_curve::curve(
+                iv,
+                cov,
+                ab,
+                &set,
+                p.focal_names.first().and_then(|x| result.terms.get(x)),
+            );
             result.anderson_rubin = Some(AndersonRubinResult {
                 null: 0.0,
                 statistic: at_zero.test.statistic,
@@ -916,8 +925,10 @@ impl IvContext<'_> {
                     [(lo, hi)] if lo.is_finite() && hi.is_finite() => Some([*lo, *hi]),
                     _ => None,
                 },
-                set: set_pieces(&at_zero.set),
+                set,
                 confidence: spec.confidence,
+                critical_value: at_zero.critical_value,
+                curve,
             });
             let nulls = &self.needs.ar_nulls;
             let tests = iv.anderson_rubin_tests(cov, ab, nulls).map_err(err)?;

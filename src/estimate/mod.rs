@@ -61,7 +61,9 @@ use crate::distribution::Reference;
 pub use absorb::{
     drop_singletons, FixedEffects, ABSORBED_COLUMN_TOLERANCE, MAX_SWEEPS, SWEEP_TOLERANCE,
 };
-pub use anderson_rubin::{anderson_rubin, AndersonRubin, ConfidenceSet, SetShape};
+pub use anderson_rubin::{
+    anderson_rubin, anderson_rubin_curve, AndersonRubin, ConfidenceSet, SetShape,
+};
 pub use covariance::CovSpec;
 pub use diagnostics::{
     endogeneity, first_stages, hansen_j, overidentification, reduced_form, Endogeneity, FirstStage,

@@ -716,7 +716,7 @@ pub(super) fn tables(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Table>
                 .summary_rows
                 .iter()
                 .map(|r| {
-                    ctx.one_of(r, &key("summary_rows"), &["first-stage-strength"])
+                    ctx.one_of(r, &key("summary_rows"), &crate::report::SUMMARY_ROWS)
                         .map(|()| r.get_ref().clone())
                 })
                 .collect::<Result<_>>()?,

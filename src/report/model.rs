@@ -538,75 +538,109 @@ fn method_text(h: &crate::results::HypothesisResult) -> String {
 }
 
 /// How each resampled test drew its replicates: the procedure, the design it follows, the
-/// number of draws and whether the observed one is counted, exact or sampled, and the seed.
+/// number of draws and whether the observed one is counted, exact or sampled, the seed and
+/// the counting rule, all formatted from the hypothesis's `resampling` record in results.json.
 fn resampling_lines(plan: &Plan, r: &Results) -> Vec<String> {
-    let Some(rs) = &plan.resampling else {
-        return Vec::new();
-    };
-    let mut out = Vec::new();
-    for h in &plan.hypotheses {
-        let Some(res) = r.hypotheses.get(&h.id) else {
-            continue;
-        };
-        let count = match (res.draws, res.exact) {
-            (Some(b), Some(true)) => format!("exact: every one of the {b} possible draws enumerated (the observed one among them), so the seed is not used"),
-            (Some(b), _) if res.method == "wild-bootstrap" => format!("sampled: {} random weight draws with seed {} plus the original sample, {b} in all, the original counted in the p-value", b.saturating_sub(1), rs.seed),
-            (Some(b), _) => format!("sampled: {} random draws with seed {} plus the observed assignment, {b} in all, the observed one counted in the p-value", b.saturating_sub(1), rs.seed),
-            _ => continue,
-        };
-        let procedure = match (res.method, h.method) {
-            ("randomization", crate::plan::Method::Randomization { studentized }) => {
-                let design = plan
-                    .assignment
-                    .as_ref()
-                    .map_or("as registered".to_string(), |a| {
-                        let how = match (&a.blocks, &a.clusters) {
-                            (Some(b), Some(c)) => format!(
-                                "whole clusters of `{c}` re-assigned within blocks of `{b}`"
-                            ),
-                            (Some(b), None) => format!("units re-assigned within blocks of `{b}`"),
-                            (None, Some(c)) => format!("whole clusters of `{c}` re-assigned"),
-                            (None, None) => {
-                                "the observed values permuted among all units".to_string()
-                            }
-                        };
-                        format!(
-                            "`{}` re-drawn by the registered design ({}: {how})",
-                            a.variable, a.design
-                        )
-                    });
-                format!(
-                    "randomization test: {design}; statistic {} recomputed under the sharp null",
-                    if res.estimator != "ols" {
-                        "Anderson–Rubin"
-                    } else if studentized {
-                        "the studentized coefficient (t)"
-                    } else {
-                        "the coefficient estimate"
-                    }
-                )
+    plan.hypotheses
+        .iter()
+        .filter_map(|h| {
+            let info = r.hypotheses.get(&h.id)?.resampling.as_ref()?;
+            Some(format!(
+                "{}: {}; {}; {}.",
+                h.id,
+                resampling_procedure(info),
+                resampling_count(info),
+                resampling_p_value(info)
+            ))
+        })
+        .collect()
+}
+
+/// The procedure and what it re-draws, in words.
+fn resampling_procedure(i: &crate::results::ResamplingInfo) -> String {
+    let d = &i.redrawn;
+    if i.procedure == "randomization" {
+        let how = match (&d.blocks, &d.clusters) {
+            (Some(b), Some(c)) => {
+                format!("whole clusters of `{c}` re-assigned within blocks of `{b}`")
             }
-            ("wild-bootstrap", method) => format!(
-                "restricted wild cluster bootstrap: null imposed, {} weights drawn per cluster{}",
-                // A decision rule that switches to the bootstrap uses Rademacher weights.
-                if method == (crate::plan::Method::WildBootstrap { webb: true }) {
-                    "Webb six-point"
-                } else {
-                    "Rademacher"
-                },
-                r.specifications
-                    .get(&res.tested_specification)
-                    .and_then(|s| s.cluster_by.as_ref().zip(s.clusters))
-                    .map_or(String::new(), |(by, g)| format!(
-                        " of `{}` ({g} clusters)",
-                        by.join("`, `")
-                    ))
-            ),
-            (m, _) => m.to_string(),
+            (Some(b), None) => format!("units re-assigned within blocks of `{b}`"),
+            (None, Some(c)) => format!("whole clusters of `{c}` re-assigned"),
+            (None, None) => "the observed values permuted among all units".to_string(),
         };
-        out.push(format!("{}: {procedure}; {count}.", h.id));
+        let statistic = match i.statistic {
+            "anderson-rubin" => "the Anderson–Rubin statistic",
+            "t" => "the studentized coefficient (t)",
+            _ => "the coefficient estimate",
+        };
+        format!(
+            "randomization test: `{}` re-drawn by the registered design ({}: {how}); {statistic} recomputed under the sharp null (coefficient {})",
+            d.variable.as_deref().unwrap_or_default(),
+            d.design,
+            i.null_imposed
+        )
+    } else {
+        let variant = match i.bootstrap {
+            Some("wild-restricted-efficient") => "wild restricted efficient bootstrap (2SLS)",
+            _ => "restricted wild cluster bootstrap",
+        };
+        let weights = if i.weights == Some("webb") {
+            "Webb six-point"
+        } else {
+            "Rademacher"
+        };
+        let clusters = match (&d.clusters, d.cluster_count) {
+            (Some(c), Some(g)) => format!(" of `{c}` ({g} clusters)"),
+            (Some(c), None) => format!(" of `{c}`"),
+            _ => String::new(),
+        };
+        format!(
+            "{variant}: null imposed (coefficient {}), {weights} weights drawn per cluster{clusters}, CR1 t recomputed",
+            i.null_imposed
+        )
     }
-    out
+}
+
+/// Exact or sampled, the draws asked for and used, the observed draw and the seed.
+fn resampling_count(i: &crate::results::ResamplingInfo) -> String {
+    let original = if i.procedure == "randomization" {
+        "the observed assignment"
+    } else {
+        "the original sample (all weights 1)"
+    };
+    let skipped = match i.draws_skipped {
+        0 => String::new(),
+        1 => ", 1 draw left out because its statistic could not be computed".to_string(),
+        k => format!(", {k} draws left out because their statistic could not be computed"),
+    };
+    if i.mode == "exact" {
+        format!(
+            "exact: every possible draw enumerated ({original} among them), {} used{skipped}; the seed is not used",
+            i.draws_used
+        )
+    } else {
+        format!(
+            "sampled: {} random draws with seed {} plus {original}, {} used{skipped} (the {} one counted)",
+            i.draws_requested,
+            i.seed,
+            i.draws_used,
+            if i.procedure == "randomization" { "observed" } else { "original" }
+        )
+    }
+}
+
+/// How the p-value is formed from the draws.
+fn resampling_p_value(i: &crate::results::ResamplingInfo) -> String {
+    let rule = match i.p_value_counts {
+        "|T*| >= |T|" => "|T*| ≥ |T|",
+        "T* >= T" => "T* ≥ T",
+        "T* <= T" => "T* ≤ T",
+        _ => "AR* ≥ AR (p = 1 when the estimate lies on the other side of the null)",
+    };
+    format!(
+        "p-value: the share of the {} draws with {rule}, ties within a relative {:e} counted",
+        i.draws_used, i.tie_tolerance
+    )
 }
 
 fn hyp_row(id: &str, r: &Results) -> HypRow {
@@ -707,43 +741,9 @@ fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
         extra: t
             .summary_rows
             .iter()
-            .flat_map(|row| summary_rows(row, &specs))
+            .flat_map(|row| super::summary_rows::rows(row, &specs))
             .collect(),
         notes: table_notes(t, &specs),
-    }
-}
-
-/// The rows a table's `summary_rows` entry adds (blank cells where a column has no value).
-fn summary_rows(row: &str, specs: &[&SpecResult]) -> Vec<(String, Vec<String>)> {
-    match row {
-        "first-stage-strength" => {
-            let first = |s: &&SpecResult| {
-                s.first_stage
-                    .as_ref()
-                    .and_then(|m| m.values().next().cloned())
-            };
-            vec![
-                (
-                    "first-stage F, the column's errors".to_string(),
-                    specs
-                        .iter()
-                        .map(|s| first(s).map_or(String::new(), |f| num(f.robust_f_statistic)))
-                        .collect(),
-                ),
-                (
-                    "effective F (Montiel Olea–Pflueger)".to_string(),
-                    specs
-                        .iter()
-                        .map(|s| {
-                            s.weak_instruments
-                                .as_ref()
-                                .map_or(String::new(), |w| num(w.effective_f))
-                        })
-                        .collect(),
-                ),
-            ]
-        }
-        _ => Vec::new(),
     }
 }
 
@@ -754,8 +754,8 @@ fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<String> {
     if !t.stars.is_empty() {
         notes.push(stars_legend(&t.stars));
     }
-    if t.summary_rows.iter().any(|r| r == "first-stage-strength") {
-        notes.push("First-stage strength: how strongly the instruments move the first endogenous regressor, as the first-stage F with the column's own errors and as the effective F where the plan requested the weak-instrument diagnostic; blank for OLS columns.".to_string());
+    for row in &t.summary_rows {
+        notes.extend(super::summary_rows::notes(row, &t.columns, specs));
     }
     let mut ns: Vec<usize> = specs.iter().map(|s| s.n).collect();
     ns.sort_unstable();

@@ -2,12 +2,13 @@
 //! intervals for each declared table (one panel per row term, its columns side by side so OLS
 //! sits beside IV), each IV specification's first stage (the instruments' coefficients on the
 //! endogenous regressor) and each Anderson–Rubin set drawn on the coefficient's line beside the
-//! Wald interval. Every label passes through [`crate::escape::line`] and then the SVG backend's
+//! Wald interval, beneath the AR statistic against the coefficient with its critical line
+//! (the curve's values are results.json's `anderson_rubin.curve`; nothing is recomputed). Every label passes through [`crate::escape::line`] and then the SVG backend's
 //! own text escaping; a figure that cannot be drawn says so instead of disappearing. Output
 //! depends only on the results, so it re-derives byte for byte.
 
 use super::format::num;
-use crate::results::{Results, SetPiece, SpecResult, Term};
+use crate::results::{AndersonRubinResult, ArCurve, Results, SpecResult, Term};
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use serde::Serialize;
@@ -271,7 +272,13 @@ fn first_stages(plan: &crate::plan::Plan, r: &Results) -> Option<Figure> {
 
 /// One AR set on the coefficient's line: thick pieces for the set (rays run to the edge), the
 /// Wald interval thin beneath it, the estimate as a dot.
-fn ar_svg(set: &[SetPiece], wald: &Term, color: RGBColor, heading: &str) -> DrawResult<String> {
+fn ar_svg(
+    ar: &AndersonRubinResult,
+    wald: &Term,
+    color: RGBColor,
+    heading: &str,
+) -> DrawResult<String> {
+    let set = &ar.set;
     let mut finite: Vec<f64> = set
         .iter()
         .flat_map(|p| [p.lower, p.upper])
@@ -282,11 +289,22 @@ fn ar_svg(set: &[SetPiece], wald: &Term, color: RGBColor, heading: &str) -> Draw
     finite.sort_by(f64::total_cmp);
     let (lo, hi) = (finite[0], finite[finite.len() - 1]);
     let pad = ((hi - lo) * 0.15).max(1e-9 * lo.abs().max(hi.abs()).max(1.0));
-    let (xlo, xhi) = (lo - pad, hi + pad);
+    // With a curve, both charts share the curve's grid as their horizontal range.
+    let curve = ar.curve.as_ref().filter(|c| c.coefficient.len() > 1);
+    let (xlo, xhi) = match curve {
+        Some(c) => (c.coefficient[0], c.coefficient[c.coefficient.len() - 1]),
+        None => (lo - pad, hi + pad),
+    };
+    let curve_height = if curve.is_some() { CURVE_HEIGHT } else { 0 };
     let mut out = String::new();
     {
-        let root = SVGBackend::with_string(&mut out, (WIDTH, 130)).into_drawing_area();
-        root.fill(&WHITE).map_err(|e| e.to_string())?;
+        let whole =
+            SVGBackend::with_string(&mut out, (WIDTH, 130 + curve_height)).into_drawing_area();
+        whole.fill(&WHITE).map_err(|e| e.to_string())?;
+        let (top, root) = whole.split_vertically(curve_height);
+        if let Some(c) = curve {
+            draw_curve(&top, c, ar.critical_value, ar.confidence, (xlo, xhi))?;
+        }
         let mut chart = ChartBuilder::on(&root)
             .caption(heading, ("sans-serif", 14))
             .margin(6)
@@ -329,15 +347,121 @@ fn ar_svg(set: &[SetPiece], wald: &Term, color: RGBColor, heading: &str) -> Draw
                 )))
                 .map_err(|e| e.to_string())?;
         }
+        if xlo < 0.0 && 0.0 < xhi {
+            chart
+                .draw_series(std::iter::once(PathElement::new(
+                    vec![(0.0, -0.5), (0.0, 1.5)],
+                    BLACK.mix(0.35),
+                )))
+                .map_err(|e| e.to_string())?;
+        }
+        whole.present().map_err(|e| e.to_string())?;
+    }
+    Ok(out)
+}
+
+/// Height of the curve chart above an AR set.
+const CURVE_HEIGHT: u32 = 250;
+const RED: RGBColor = RGBColor(178, 34, 34);
+
+/// The highest statistic drawn: the curve is cut at the top edge above this, so the region
+/// near the critical value stays readable.
+fn curve_top(curve: &ArCurve, critical: f64) -> f64 {
+    let highest = curve
+        .statistic
+        .iter()
+        .flatten()
+        .copied()
+        .fold(0.0_f64, f64::max);
+    highest.min(5.0 * critical).max(2.0 * critical)
+}
+
+/// The AR statistic against the coefficient (from results.json, never recomputed), with the
+/// critical value as a dashed line: the set is where the curve lies on or under it.
+fn draw_curve<DB: DrawingBackend>(
+    area: &DrawingArea<DB, plotters::coord::Shift>,
+    curve: &ArCurve,
+    critical: f64,
+    confidence: f64,
+    (xlo, xhi): (f64, f64),
+) -> DrawResult<()> {
+    let top = curve_top(curve, critical);
+    let mut chart = ChartBuilder::on(area)
+        .caption(
+            "Anderson–Rubin statistic against the hypothesised coefficient",
+            ("sans-serif", 14),
+        )
+        .margin(6)
+        .x_label_area_size(22)
+        .y_label_area_size(210)
+        .build_cartesian_2d(xlo..xhi, 0.0..top)
+        .map_err(|e| e.to_string())?;
+    chart
+        .configure_mesh()
+        .light_line_style(WHITE.mix(0.0))
+        .bold_line_style(BLACK.mix(0.08))
+        .x_label_formatter(&|x| num(*x))
+        .y_label_formatter(&|y| num(*y))
+        .x_labels(6)
+        .y_labels(5)
+        .y_desc("AR statistic")
+        .axis_desc_style(("sans-serif", 12))
+        .label_style(("sans-serif", 12))
+        .draw()
+        .map_err(|e| e.to_string())?;
+    let label = format!(
+        "critical value {} ({:.0}% set)",
+        num(critical),
+        100.0 * confidence
+    );
+    let style = ("sans-serif", 12)
+        .into_text_style(area)
+        .color(&RED)
+        .pos(Pos::new(HPos::Left, VPos::Bottom));
+    chart
+        .draw_series(std::iter::once(Text::new(
+            label,
+            (xlo + 0.01 * (xhi - xlo), critical + 0.02 * top),
+            style,
+        )))
+        .map_err(|e| e.to_string())?;
+    // One line per run of computed points (a null statistic breaks the line).
+    let mut run: Vec<(f64, f64)> = Vec::new();
+    let points = curve.coefficient.iter().zip(&curve.statistic);
+    for (x, v) in points
+        .map(|(x, v)| (*x, v.map(|v| v.min(top))))
+        .chain([(xhi, None)])
+    {
+        match v {
+            Some(v) => run.push((x, v)),
+            None if !run.is_empty() => {
+                chart
+                    .draw_series(LineSeries::new(
+                        std::mem::take(&mut run),
+                        BLACK.stroke_width(2),
+                    ))
+                    .map_err(|e| e.to_string())?;
+            }
+            None => {}
+        }
+    }
+    chart
+        .draw_series(DashedLineSeries::new(
+            [(xlo, critical), (xhi, critical)],
+            6,
+            4,
+            RED.stroke_width(2),
+        ))
+        .map_err(|e| e.to_string())?;
+    if xlo < 0.0 && 0.0 < xhi {
         chart
             .draw_series(std::iter::once(PathElement::new(
-                vec![(0.0, -0.5), (0.0, 1.5)],
+                vec![(0.0, 0.0), (0.0, top)],
                 BLACK.mix(0.35),
             )))
             .map_err(|e| e.to_string())?;
-        root.present().map_err(|e| e.to_string())?;
     }
-    Ok(out)
+    Ok(())
 }
 
 fn anderson_rubin(plan: &crate::plan::Plan, r: &Results) -> Vec<Figure> {
@@ -358,8 +482,16 @@ fn anderson_rubin(plan: &crate::plan::Plan, r: &Results) -> Vec<Figure> {
             100.0 * ar.confidence,
             crate::escape::line(&s.id)
         );
+        let curve = match &ar.curve {
+            Some(c) => format!(
+                "Above, the Anderson–Rubin statistic at {} coefficient values, as computed in the run (results.json), and the dashed critical value: the set is every value where the curve lies on or under the line, so a curve still under it at an edge means the set goes on past that edge; values above {} are cut at the top. ",
+                c.coefficient.len(),
+                num(curve_top(c, ar.critical_value))
+            ),
+            None => String::new(),
+        };
         let caption = format!(
-            "The thick bar is the set of coefficient values the Anderson–Rubin test does not reject ({}, shape: {}); a bar reaching an edge continues without end. Beneath it the {} estimate and its Wald interval, which rely on strong instruments. The set is {}.",
+            "{curve}The thick bar is the set of coefficient values the Anderson–Rubin test does not reject ({}, shape: {}); a bar reaching an edge continues without end. Beneath it the {} estimate and its Wald interval, which rely on strong instruments. The set is {}.",
             super::format::set_text(&ar.set),
             ar.shape,
             res.estimator.to_uppercase(),
@@ -371,7 +503,7 @@ fn anderson_rubin(plan: &crate::plan::Plan, r: &Results) -> Vec<Figure> {
             }
         );
         out.push(
-            match ar_svg(&ar.set, wald, estimator_color(res.estimator), &heading) {
+            match ar_svg(ar, wald, estimator_color(res.estimator), &heading) {
                 Ok(svg) => Figure {
                     title,
                     svg,

@@ -1,5 +1,6 @@
 //! Integration tests: the built binary on generated studies (one test binary).
 
+mod ar_curve;
 mod bad_input;
 mod common;
 mod contingency;
@@ -22,3 +23,4 @@ mod rehearse;
 mod reports;
 mod resampling;
 mod summaries;
+mod table_rows;

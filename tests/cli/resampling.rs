@@ -189,6 +189,21 @@ fn exact_randomization_inference_through_the_plan_path() {
         assert_eq!(h["method"], "randomization", "{h}");
         assert_eq!(h["exact"], true, "{h}");
         assert_eq!(h["draws"], 924, "{h}");
+        let info = &h["resampling"];
+        assert_eq!(info["procedure"], "randomization", "{info}");
+        assert_eq!(info["mode"], "exact", "{info}");
+        assert_eq!(info["draws_used"], 924, "{info}");
+        assert_eq!(info["draws_skipped"], 0, "{info}");
+        assert_eq!(info["seed_used"], false, "{info}");
+        assert_eq!(info["statistic"], "t", "{info}");
+        assert_eq!(info["redrawn"]["design"], "complete", "{info}");
+        assert_eq!(info["redrawn"]["variable"], "t", "{info}");
+        let rule = if direction == "greater" {
+            "T* >= T"
+        } else {
+            "|T*| >= |T|"
+        };
+        assert_eq!(info["p_value_counts"], rule, "{info}");
         let want = case[count].as_f64().unwrap() / 924.0;
         assert_eq!(h["p_value"].as_f64(), Some(want), "{direction}: {h}");
         crate::reference::close(
@@ -204,6 +219,43 @@ fn exact_randomization_inference_through_the_plan_path() {
         let r = s.sworn(&["verify", "out"]);
         assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
     }
+}
+
+/// With `exact_below` under the 924 possible assignments the test samples: results.json
+/// records the requested and used draws, the seed and the counting rule, and the report's
+/// Resampling line states those same values.
+#[test]
+fn sampled_randomization_is_described_in_results_and_report() {
+    let case = fixture_case("resample_ri.json", "complete_hc1_t_0.0");
+    let csv = csv_from(&case, &["t", "w"], None);
+    let hyp = "[[hypothesis]]\nid = \"R\"\nspecification = \"s\"\nterm = \"t\"\ndirection = \"less\"\ninference = \"randomization\"\nstatistic = \"estimate\"\n";
+    let plan = small_plan(
+        "\"hc1\"",
+        "\"t\"",
+        hyp,
+        "",
+        "[assignment]\nvariable = \"t\"\ndesign = \"complete\"",
+    )
+    .replace("draws = 999", "draws = 199\nexact_below = 100");
+    let s = Study::with(&plan, &csv);
+    let v = s.seal_and_run();
+    let info = &v["hypotheses"]["R"]["resampling"];
+    assert_eq!(info["mode"], "sampled", "{info}");
+    assert_eq!(info["draws_requested"], 199, "{info}");
+    assert_eq!(info["exact_below"], 100, "{info}");
+    assert_eq!(info["draws_used"], 200, "{info}");
+    assert_eq!(info["draws_skipped"], 0, "{info}");
+    assert_eq!(info["seed"], 7, "{info}");
+    assert_eq!(info["seed_used"], true, "{info}");
+    assert_eq!(info["statistic"], "estimate", "{info}");
+    assert_eq!(info["p_value_counts"], "T* <= T", "{info}");
+    assert_eq!(info["null_imposed"], 0.0, "{info}");
+    assert_eq!(v["hypotheses"]["R"]["draws"], 200);
+    let md = s.read("out/report.md");
+    assert!(
+        md.contains("the coefficient estimate recomputed under the sharp null (coefficient 0); sampled: 199 random draws with seed 7 plus the observed assignment, 200 used (the observed one counted); p-value: the share of the 200 draws with T* ≤ T"),
+        "{md}"
+    );
 }
 
 /// Ten clusters, all 1,024 Rademacher sign vectors of the restricted wild bootstrap: the
@@ -226,6 +278,14 @@ fn exact_wild_bootstrap_through_the_plan_path() {
     assert_eq!(h["method"], "wild-bootstrap", "{h}");
     assert_eq!(h["exact"], true, "{h}");
     assert_eq!(h["draws"], 1024, "{h}");
+    let info = &h["resampling"];
+    assert_eq!(info["procedure"], "wild-bootstrap", "{info}");
+    assert_eq!(info["bootstrap"], "restricted-wild-cluster", "{info}");
+    assert_eq!(info["weights"], "rademacher", "{info}");
+    assert_eq!(info["mode"], "exact", "{info}");
+    assert_eq!(info["redrawn"]["clusters"], "g", "{info}");
+    assert_eq!(info["redrawn"]["cluster_count"], 10, "{info}");
+    assert_eq!(info["observed_counted"], true, "{info}");
     assert_eq!(
         h["p_value"].as_f64(),
         Some(case["count_two"].as_f64().unwrap() / 1024.0),
@@ -413,6 +473,10 @@ inference = "wild-bootstrap"
     assert_eq!(h["method"], "wild-bootstrap", "{h}");
     assert_eq!(h["exact"], true, "{h}");
     assert_eq!(h["draws"], 256, "{h}");
+    assert_eq!(
+        h["resampling"]["bootstrap"], "wild-restricted-efficient",
+        "{h}"
+    );
     assert_eq!(
         h["p_value"].as_f64(),
         Some(case["count_two"].as_f64().unwrap() / 256.0),

@@ -1,0 +1,235 @@
+//! Arm summaries of a specification's estimation sample: the outcome's mean in the comparison
+//! arm and, for IV specifications, take-up (the endogenous regressor's mean) in each arm of a
+//! binary instrument. The tables' `comparison-mean` and `take-up-by-arm` rows only format
+//! these numbers (contract in `results::ArmSummary`).
+
+use crate::data::{Design, Table};
+use crate::plan::Spec;
+use crate::results::{ArmMean, ArmSummary};
+
+/// A short reason code and the sentence saying why a summary is not available.
+type Why = (&'static str, String);
+
+/// The arm summaries of `spec` fitted on design `d` of `table`; `assigned` is the plan's
+/// `[assignment]` variable.
+pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>) -> ArmSummary {
+    let clusters = d.clusters.first().map(|(ids, _)| ids.as_slice());
+    let mut out = ArmSummary {
+        by: None,
+        by_role: None,
+        std_error_kind: if clusters.is_some() {
+            "cluster"
+        } else {
+            "unclustered"
+        },
+        cluster_by: match &spec.errors {
+            crate::plan::Errors::Cluster(by) if clusters.is_some() => by.first().cloned(),
+            _ => None,
+        },
+        comparison_mean: None,
+        comparison_note: None,
+        take_up: None,
+        take_up_note: None,
+        take_up_missing: None,
+    };
+    let iv = spec.estimator.is_iv();
+    if !iv {
+        out.take_up_note = Some("an OLS specification has no instrument".to_string());
+        out.take_up_missing = Some("ols");
+    }
+    let chosen = choose_by(spec, assigned);
+    let (by, role) = match chosen {
+        Ok(c) => c,
+        Err((code, why)) => {
+            out.comparison_note = Some(why.clone());
+            if iv {
+                out.take_up_note = Some(why);
+                out.take_up_missing = Some(code);
+            }
+            return out;
+        }
+    };
+    let arm = match arm_of(table, by, &d.rows) {
+        Ok(a) => a,
+        Err((code, why)) => {
+            out.comparison_note = Some(why.clone());
+            if iv {
+                out.take_up_note = Some(why);
+                out.take_up_missing = Some(code);
+            }
+            return out;
+        }
+    };
+    out.by = Some(by.to_string());
+    out.by_role = Some(role);
+    let y: Vec<f64> = d.y_raw.iter().copied().collect();
+    match arm_mean(&spec.outcome, &y, &arm, 0, clusters) {
+        Ok(m) => out.comparison_mean = Some(m),
+        Err((_, why)) => out.comparison_note = Some(why),
+    }
+    if iv {
+        let take_up = take_up(spec, table, d, &arm, clusters);
+        match take_up {
+            Ok(t) => out.take_up = Some(t),
+            Err((code, why)) => {
+                out.take_up_note = Some(why);
+                out.take_up_missing = Some(code);
+            }
+        }
+    }
+    out
+}
+
+/// The binary column that defines the arms, and its role.
+fn choose_by<'s>(
+    spec: &'s Spec,
+    assigned: Option<&'s str>,
+) -> Result<(&'s str, &'static str), Why> {
+    if spec.estimator.is_iv() {
+        return match spec.instruments.as_slice() {
+            [z] => Ok((z.as_str(), "instrument")),
+            zs => Err((
+                "instruments",
+                format!(
+                    "the specification has {} instruments; arms need a single binary instrument",
+                    zs.len()
+                ),
+            )),
+        };
+    }
+    if let Some(a) = assigned.filter(|a| spec.regressors.iter().any(|r| r == a)) {
+        return Ok((a, "assignment"));
+    }
+    match spec.regressors.as_slice() {
+        [x] => Ok((x.as_str(), "regressor")),
+        xs => Err(("regressors", format!(
+            "the specification has {} regressors of interest and none is the [assignment] variable; arms need one binary regressor",
+            xs.len()
+        ))),
+    }
+}
+
+/// The arm (0 or 1) of each estimation row, or why `by` does not split them in two.
+fn arm_of(table: &Table, by: &str, rows: &[usize]) -> Result<Vec<u8>, Why> {
+    let col = table.numeric.get(by).ok_or_else(|| {
+        (
+            "not-a-column",
+            format!("`{by}` is not a numeric data column, so it defines no arms"),
+        )
+    })?;
+    let mut arm = Vec::with_capacity(rows.len());
+    for &r in rows {
+        match col.get(r).copied().flatten() {
+            Some(0.0) => arm.push(0),
+            Some(1.0) => arm.push(1),
+            _ => {
+                return Err(("not-binary", format!(
+                    "`{by}` takes values other than 0 and 1 in the estimation sample, so it has no arms"
+                )))
+            }
+        }
+    }
+    if !arm.contains(&0) || !arm.contains(&1) {
+        return Err((
+            "one-arm",
+            format!(
+                "`{by}` takes only one value in the estimation sample, so there is no second arm"
+            ),
+        ));
+    }
+    Ok(arm)
+}
+
+/// The endogenous regressor's mean in each arm of the instrument.
+fn take_up(
+    spec: &Spec,
+    table: &Table,
+    d: &Design,
+    arm: &[u8],
+    clusters: Option<&[usize]>,
+) -> Result<[ArmMean; 2], Why> {
+    let [x] = spec.endogenous.as_slice() else {
+        return Err((
+            "endogenous",
+            format!(
+                "the specification has {} endogenous regressors; take-up by arm needs one",
+                spec.endogenous.len()
+            ),
+        ));
+    };
+    let col = table.numeric.get(x).ok_or_else(|| {
+        (
+            "not-a-column",
+            format!("`{x}` is not a numeric data column"),
+        )
+    })?;
+    let values: Vec<f64> = d
+        .rows
+        .iter()
+        .map(|&r| col.get(r).copied().flatten().unwrap_or(f64::NAN))
+        .collect();
+    Ok([
+        arm_mean(x, &values, arm, 0, clusters)?,
+        arm_mean(x, &values, arm, 1, clusters)?,
+    ])
+}
+
+/// Mean, SD and standard error of `values` over the rows in arm `which`.
+///
+/// # Formula
+/// mean m = Σx/n, sd = √(Σ(x − m)²/(n − 1)); unclustered SE = sd/√n; cluster-robust SE =
+/// √(G/(G − 1) · Σ_g (Σ_{i∈g} (x_i − m))²) / n, the CR1 standard error of the intercept in a
+/// regression of x on a constant (Cameron and Miller 2015, JHR 50, eq. 12, with k = 1).
+fn arm_mean(
+    variable: &str,
+    values: &[f64],
+    arm: &[u8],
+    which: u8,
+    clusters: Option<&[usize]>,
+) -> Result<ArmMean, Why> {
+    let idx: Vec<usize> = (0..values.len()).filter(|&i| arm[i] == which).collect();
+    let n = idx.len();
+    if n < 2 {
+        return Err((
+            "small-arm",
+            format!("arm {which} has fewer than two rows, so no spread can be estimated"),
+        ));
+    }
+    if idx.iter().any(|&i| !values[i].is_finite()) {
+        return Err((
+            "not-a-column",
+            format!("`{variable}` has a value that is not finite in arm {which}"),
+        ));
+    }
+    let nf = n as f64;
+    let mean = idx.iter().map(|&i| values[i]).sum::<f64>() / nf;
+    let ss: f64 = idx.iter().map(|&i| (values[i] - mean).powi(2)).sum();
+    let sd = (ss / (nf - 1.0)).sqrt();
+    let (std_error, g) = match clusters {
+        None => (sd / nf.sqrt(), None),
+        Some(ids) => {
+            let mut sums = std::collections::BTreeMap::new();
+            for &i in &idx {
+                *sums.entry(ids[i]).or_insert(0.0) += values[i] - mean;
+            }
+            let g = sums.len();
+            if g < 2 {
+                return Err(("small-arm", format!(
+                    "arm {which} lies in a single cluster, so no cluster-robust standard error exists"
+                )));
+            }
+            let gf = g as f64;
+            let meat: f64 = sums.values().map(|s: &f64| s * s).sum();
+            ((gf / (gf - 1.0) * meat).sqrt() / nf, Some(g))
+        }
+    };
+    Ok(ArmMean {
+        variable: variable.to_string(),
+        arm: which,
+        n,
+        clusters: g,
+        mean,
+        sd,
+        std_error,
+    })
+}

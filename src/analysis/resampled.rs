@@ -1,0 +1,85 @@
+//! The record of how a resampled p-value was obtained (`results.json`'s `resampling` object of
+//! a hypothesis), built from the plan and the test's own counts so that the reports, which
+//! only format it, and the JSON state the same values.
+
+use super::spec::Fitted;
+use crate::estimate::ResampleResult;
+use crate::inference::{Direction, TIE_TOLERANCE};
+use crate::plan::{Hypothesis, Method, Plan};
+use crate::results::{Redrawn, ResamplingInfo};
+
+/// The record of hypothesis `h`'s resampled test `res` of kind `kind` ("randomization" or
+/// "wild-bootstrap"); null without `[resampling]` (the test cannot then have run).
+pub fn describe(
+    plan: &Plan,
+    h: &Hypothesis,
+    f: &Fitted,
+    kind: &'static str,
+    res: &ResampleResult,
+) -> Option<ResamplingInfo> {
+    let rs = plan.resampling.as_ref()?;
+    let iv = f.result.estimator != "ols";
+    let randomization = kind == "randomization";
+    let (statistic, bootstrap, weights, redrawn) = if randomization {
+        let studentized = matches!(h.method, Method::Randomization { studentized: true });
+        let statistic = match (iv, studentized) {
+            (true, _) => "anderson-rubin",
+            (false, true) => "t",
+            (false, false) => "estimate",
+        };
+        let a = plan.assignment.as_ref()?;
+        let redrawn = Redrawn {
+            design: a.design.clone(),
+            variable: Some(a.variable.clone()),
+            blocks: a.blocks.clone(),
+            clusters: a.clusters.clone(),
+            cluster_count: None,
+        };
+        (statistic, None, None, redrawn)
+    } else {
+        // A decision rule that switches to the bootstrap uses Rademacher weights.
+        let webb = h.method == (Method::WildBootstrap { webb: true });
+        let redrawn = Redrawn {
+            design: "cluster-weights".into(),
+            variable: None,
+            blocks: None,
+            clusters: f
+                .result
+                .cluster_by
+                .as_ref()
+                .and_then(|c| c.first().cloned()),
+            cluster_count: f.result.clusters,
+        };
+        let variant = if f.result.estimator == "2sls" {
+            "wild-restricted-efficient"
+        } else {
+            "restricted-wild-cluster"
+        };
+        let weights = if webb { "webb" } else { "rademacher" };
+        ("cr1-t", Some(variant), Some(weights), redrawn)
+    };
+    let p_value_counts = match h.direction {
+        Direction::TwoSided => "|T*| >= |T|",
+        _ if randomization && iv => "AR* >= AR, 1 if the estimate is on the other side",
+        Direction::Greater => "T* >= T",
+        Direction::Less => "T* <= T",
+    };
+    Some(ResamplingInfo {
+        procedure: kind,
+        bootstrap,
+        weights,
+        statistic,
+        null_imposed: h.null,
+        redrawn,
+        mode: if res.exact { "exact" } else { "sampled" },
+        draws_requested: rs.draws,
+        exact_below: rs.exact_below,
+        draws_used: res.draws_used,
+        observed_counted: true,
+        draws_skipped: res.skipped,
+        seed: rs.seed,
+        seed_used: !res.exact,
+        p_value_counts,
+        tie_tolerance: TIE_TOLERANCE,
+    })
+}
