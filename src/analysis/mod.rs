@@ -12,6 +12,7 @@ mod hypotheses;
 mod integrity;
 mod progress;
 mod registered;
+mod rehearsals;
 mod spec;
 mod summaries;
 
@@ -167,6 +168,7 @@ pub fn execute(
         deviations: devs,
         registration: integrity.registration,
         as_registered,
+        rehearsals: rehearsals::cite(ledger),
         digest: String::new(),
     };
     results.digest = results.compute_digest();

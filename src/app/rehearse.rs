@@ -88,6 +88,7 @@ pub fn rehearse(
     let mut entry = Entry::new(Event::Rehearsed);
     entry.plan = Some(PlanPrint::of(&plan.path, &plan.text)?);
     entry.assumptions = Some(r.assumptions_sha256.clone());
+    entry.power = Some(r.power_record());
     entry.outputs = Some(
         [(REHEARSAL_JSON, &json_text), (REHEARSAL_MD, &md)]
             .into_iter()

@@ -370,3 +370,27 @@ pub fn assumptions_sha256(print: &PlanPrint, reps: usize) -> String {
     );
     crate::ledger::sha256_hex(out.as_bytes())
 }
+
+impl Rehearsed {
+    /// What the `rehearsed` ledger entry records, for a later run to cite.
+    pub fn power_record(&self) -> crate::ledger::PowerRecord {
+        crate::ledger::PowerRecord {
+            replications: self.replications,
+            target_power: self.target_power,
+            effects: self.effects.clone(),
+            hypotheses: self
+                .hypotheses
+                .iter()
+                .map(|(id, h)| {
+                    (
+                        id.clone(),
+                        crate::ledger::HypothesisPowerRecord {
+                            power: h.curve.iter().map(|c| c.power.share).collect(),
+                            mde: h.mde,
+                        },
+                    )
+                })
+                .collect(),
+        }
+    }
+}

@@ -88,6 +88,8 @@ fn a_rehearsal_changes_nothing_a_later_run_or_verify_accepts() {
         for moment in ["data_inspected", "results_computed"] {
             v["registration"][moment] = serde_json::Value::Null;
         }
+        // The citation of the rehearsal itself (checked in the tests below).
+        v["rehearsals"] = serde_json::Value::Null;
         v
     };
     let plain = study();
@@ -102,6 +104,91 @@ fn a_rehearsal_changes_nothing_a_later_run_or_verify_accepts() {
         let v = s.sworn(&["verify", "out"]);
         assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
     }
+}
+
+/// The assumptions fingerprint recorded in the ledger's `rehearsed` line `line` (1-based).
+fn assumptions_at(s: &Study, line: usize) -> String {
+    let ledger = s.read("plan.ledger");
+    let entry: serde_json::Value =
+        serde_json::from_str(ledger.lines().nth(line - 1).expect("line")).expect("entry");
+    assert_eq!(entry["event"], "rehearsed", "{entry}");
+    entry["assumptions"]
+        .as_str()
+        .expect("assumptions")
+        .to_string()
+}
+
+#[test]
+fn a_run_cites_the_rehearsal_made_before_registration_as_power_stated_in_advance() {
+    let s = study();
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "20"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let rehearsal: serde_json::Value =
+        serde_json::from_str(&s.read("plan-rehearsal/rehearsal.json")).expect("json");
+    let v = s.seal_and_run();
+    let c = &v["rehearsals"][0];
+    assert_eq!(v["rehearsals"].as_array().map(Vec::len), Some(1), "{v}");
+    assert_eq!(c["timing"], "before-registration");
+    assert_eq!(c["ledger_line"], 1);
+    assert_eq!(c["rehearsed_registered_version"], true);
+    let sha = assumptions_at(&s, 1);
+    assert_eq!(c["assumptions_sha256"], sha.as_str());
+    // The power cited is the rehearsal's own, read from the ledger.
+    let h1 = rehearsal["hypotheses"]["H1"]["curve"][1]["power"]["share"].clone();
+    assert_eq!(c["power"]["hypotheses"]["H1"]["power"][1], h1);
+    assert_eq!(c["power"]["replications"], 20);
+    for report in ["out/report.md", "out/report.html", "out/report.tex"] {
+        // LaTeX may break a fingerprint after any 16 characters.
+        let text = s.read(report).replace("\\allowbreak{}", "");
+        assert!(
+            text.contains("Power as rehearsed before the data"),
+            "{report}"
+        );
+        assert!(text.contains(&sha), "{report}: no assumptions fingerprint");
+        assert!(text.contains("power rests on them"), "{report}: no caution");
+    }
+    let md = s.read("out/report.md");
+    let power = h1.as_f64().expect("share");
+    assert!(
+        md.contains(&format!("H1: power {power:.2} / ")),
+        "H1's power {power} not cited: {md}"
+    );
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
+}
+
+#[test]
+fn a_rehearsal_after_registration_or_after_the_data_is_cited_as_such() {
+    let s = study();
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "5"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let v = s.run_ok();
+    assert_eq!(v["rehearsals"][0]["timing"], "after-registration", "{v}");
+    let md = s.read("out/report.md");
+    assert!(md.contains("## Power as rehearsed\n"), "{md}");
+    assert!(!md.contains("Power as rehearsed before the data"), "{md}");
+    assert!(
+        md.contains("No rehearsal precedes the registered version"),
+        "{md}"
+    );
+    assert!(
+        md.contains("not as evidence of power stated before registration"),
+        "{md}"
+    );
+    // A rehearsal after results were computed, cited by a later run.
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "5", "--replace"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let v = s.run_ok();
+    assert_eq!(
+        v["rehearsals"][1]["timing"], "after-results-computed",
+        "{v}"
+    );
+    assert!(s
+        .read("out/report.md")
+        .contains("after results were computed: not evidence"));
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
 }
 
 #[test]
