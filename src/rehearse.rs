@@ -2,13 +2,16 @@
 //! complete registered analysis ([`crate::analysis::analyse`]: every specification, decision
 //! rule, correction and resampled test) on each simulated data set, to state power, the
 //! minimum detectable effect, the size of each test, how often each rule fires, the
-//! first-stage strength and the sample after deletions, all before any data exist.
+//! first-stage strength and the sample after deletions, all before any data exist; and the
+//! blinded run ([`blinded`]): the registered analysis on real tables with the assignment
+//! re-drawn, keeping nothing that reveals an estimate.
 //!
 //! Invariants: nothing here reads a data file or writes anything; the model depends only on
 //! the plan and the replication count (each replication's stream comes from (seed,
 //! replication), and outcomes are gathered in replication order, so the thread count does
 //! not matter); the same stream serves a replication at every effect size.
 
+mod blind;
 mod render;
 mod rng;
 mod simulate;
@@ -16,6 +19,7 @@ mod summary;
 #[cfg(test)]
 mod tests;
 
+pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
 pub use render::markdown;
 pub use summary::{Rehearsed, WILSON_Z};
 

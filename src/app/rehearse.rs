@@ -156,3 +156,115 @@ fn print_summary(plan: &Plan, r: &Rehearsed, out_dir: &Path) {
         terminal(&out_dir.join(REHEARSAL_MD).to_string_lossy())
     );
 }
+
+/// `sworn rehearse PLAN --blind [--json]`: the registered plan on the real data with the
+/// assignment re-drawn by the registered design. The plan must be sealed and match its
+/// latest ledger version (a blinded run rehearses the registered plan). The data files are
+/// recorded as inspected (`data-inspected`, as `check --data` records them), never as a run's
+/// read, so no results-computed moment is created and a later real run is judged as usual.
+/// Nothing is written but that ledger line; what is printed holds no estimate.
+pub fn blind(path: &Path, json: bool) -> Result<Outcome> {
+    let plan = plan::load(path)?;
+    let lpath = ledger_path(&plan.path);
+    let print = PlanPrint::of(&plan.path, &plan.text)?;
+    {
+        let ledger = crate::ledger::Ledger::read(&lpath)?;
+        let latest = ledger
+            .as_ref()
+            .and_then(|l| l.versions().last().map(|v| v.entry.clone()));
+        let Some(latest) = latest else {
+            return Err(Error::Ledger {
+                path: lpath,
+                message: "a blinded run reads the real data, so the ledger must first show the plan fixed: seal it with `sworn seal PLAN`".into(),
+            });
+        };
+        if latest.plan.as_ref().map(|p| &p.content_sha256) != Some(&print.content_sha256) {
+            return Err(Error::Ledger {
+                path: lpath,
+                message: format!(
+                    "the plan's content differs from its latest ledger version (line {}): a blinded run runs the plan as recorded; record the change with `sworn amend PLAN --reason ...` or restore the plan",
+                    latest.seq
+                ),
+            });
+        }
+    }
+    let (tables, _schema) = crate::analysis::load_tables(&plan)?;
+    let seed = crate::rehearse::blind_seed(&plan);
+    // Re-draw before recording, so a plan that cannot be blinded leaves no ledger line.
+    crate::rehearse::blind_redraw(&plan, &tables, seed)?;
+    let recorded = super::record_inspection(&plan, &tables)?;
+    let b = crate::rehearse::blinded(&plan, &tables, seed)?;
+    if json {
+        let body = serde_json::json!({
+            "blinded": b,
+            "ledger_line": recorded.map(|r| r.number),
+        });
+        machine::emit(&machine::envelope("rehearse", 0, body));
+    } else {
+        print_blinded(&plan, &b, recorded);
+    }
+    Ok(if b.error.is_some() {
+        Outcome::CheckFailed
+    } else {
+        Outcome::Success
+    })
+}
+
+fn print_blinded(plan: &Plan, b: &crate::rehearse::Blinded, recorded: Option<super::Recorded>) {
+    println!(
+        "{}: blinded run, `{}` re-drawn by the registered design (seed {}); estimates masked",
+        crate::escape::line(&plan.study.title),
+        terminal(&b.assignment),
+        b.seed
+    );
+    for (id, t) in &b.tables {
+        println!(
+            "  data {}: {} rows, {} units re-drawn in {} block(s), {} row(s) kept their value",
+            terminal(id),
+            t.rows,
+            t.units,
+            t.blocks,
+            t.kept
+        );
+    }
+    for (id, s) in &b.specifications {
+        let clusters = s
+            .clusters
+            .map_or(String::new(), |c| format!(", {c} clusters"));
+        match s.used {
+            Some(n) => println!(
+                "  specification {}: ran on {n} observations{clusters}",
+                terminal(id)
+            ),
+            None => println!("  specification {}: did not run", terminal(id)),
+        }
+    }
+    for (id, h) in &b.hypotheses {
+        let what = if *h == "tested" {
+            "tested (result masked)"
+        } else {
+            "no test result"
+        };
+        println!("  hypothesis {}: {what}", terminal(id));
+    }
+    for (id, fired) in &b.rules {
+        let what = if *fired { "fired" } else { "did not fire" };
+        println!("  rule {}: {what} on the re-drawn data", terminal(id));
+    }
+    if !b.deviation_codes.is_empty() {
+        println!(
+            "  findings (codes only): {}",
+            terminal(&b.deviation_codes.join(", "))
+        );
+    }
+    if let Some(e) = &b.error {
+        println!("  the analysis stopped: {}", terminal(e));
+    }
+    match recorded {
+        Some(r) => println!("  {}", super::inspection_line(r)),
+        None => println!("  the ledger already records these data files as seen; nothing appended"),
+    }
+    for c in &b.cautions {
+        println!("  note: {c}");
+    }
+}

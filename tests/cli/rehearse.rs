@@ -191,6 +191,123 @@ fn a_rehearsal_after_registration_or_after_the_data_is_cited_as_such() {
     assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
 }
 
+/// The rehearsal study with its instrument declared as the randomized assignment.
+fn assigned_study() -> Study {
+    let s = study();
+    s.edit(
+        "plan.toml",
+        "[[specification]]",
+        "[assignment]\nvariable = \"z\"\ndesign = \"complete\"\n\n[[specification]]",
+    );
+    s
+}
+
+#[test]
+fn a_blinded_run_masks_estimates_writes_nothing_and_counts_as_inspecting_the_data() {
+    let s = assigned_study();
+    // Unsealed: refused before any data are read, nothing written.
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 2, "{}", r.stdout);
+    assert!(r.stderr.contains("sworn seal PLAN"), "{}", r.stderr);
+    assert!(!s.path("plan.ledger").exists());
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    assert!(r.stdout.contains("`z` re-drawn") && r.stdout.contains("estimates masked"));
+    assert!(
+        r.stdout.contains("specification iv: ran on"),
+        "{}",
+        r.stdout
+    );
+    assert!(
+        r.stdout.contains("hypothesis H1: tested (result masked)"),
+        "{}",
+        r.stdout
+    );
+    // No number with a decimal point: no estimate, statistic or p-value is printed.
+    let decimal = r
+        .stdout
+        .as_bytes()
+        .windows(3)
+        .any(|w| w[0].is_ascii_digit() && w[1] == b'.' && w[2].is_ascii_digit());
+    assert!(!decimal, "{}", r.stdout);
+    assert!(
+        !s.path("plan-rehearsal").exists(),
+        "a blinded run writes no folder"
+    );
+    let again = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    let strip = |t: &str| {
+        t.lines()
+            .filter(|l| !l.contains("ledger"))
+            .collect::<Vec<_>>()
+            .join("\n")
+    };
+    assert_eq!(
+        strip(&again.stdout),
+        strip(&r.stdout),
+        "the re-draw depends on the seed only"
+    );
+    let ledger = s.read("plan.ledger");
+    assert_eq!(
+        ledger.matches("\"event\":\"data-inspected\"").count(),
+        1,
+        "{ledger}"
+    );
+    assert!(!ledger.contains("data-first-read"), "{ledger}");
+    // The later real run: the data were inspected at line 2, results computed at line 3, and
+    // nothing is flagged.
+    let v = s.run_ok();
+    assert_eq!(v["registration"]["data_inspected"]["ledger_line"], 2, "{v}");
+    assert_eq!(
+        v["registration"]["data_inspected"]["event"],
+        "data-inspected"
+    );
+    assert_eq!(v["registration"]["results_computed"]["ledger_line"], 3);
+    assert_eq!(v["plan"]["integrity"], "sealed-unchanged");
+    let codes = crate::common::codes(&v);
+    assert!(
+        !codes
+            .iter()
+            .any(|c| c.contains("data") || c.contains("amended")),
+        "{codes:?}"
+    );
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
+}
+
+#[test]
+fn an_amendment_after_a_blinded_run_is_disclosed_as_made_after_the_data_were_inspected() {
+    let s = assigned_study();
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    assert_eq!(s.sworn(&["rehearse", "plan.toml", "--blind"]).code, 0);
+    s.edit("plan.toml", "seed = 9", "seed = 10");
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 2, "a changed plan is refused: {}", r.stdout);
+    assert!(r.stderr.contains("sworn amend"), "{}", r.stderr);
+    let a = s.sworn(&["amend", "plan.toml", "--reason", "another seed"]);
+    assert_eq!(a.code, 0, "{}", a.stderr);
+    let v = s.run_ok();
+    let after: Vec<&str> = v["registration"]["elements"]
+        .as_array()
+        .expect("elements")
+        .iter()
+        .filter_map(|e| e["after"].as_str())
+        .collect();
+    assert_eq!(after, ["data-inspected"], "{v}");
+}
+
+#[test]
+fn a_blinded_run_needs_an_assignment_to_redraw() {
+    let s = study();
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 2, "{}", r.stdout);
+    assert!(r.stderr.contains("no [assignment] section"), "{}", r.stderr);
+    assert!(!s.read("plan.ledger").contains("data-inspected"));
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind", "--replications", "3"]);
+    assert_eq!(r.code, 2, "--blind and --replications conflict");
+}
+
 #[test]
 fn rehearse_refuses_a_non_empty_output_folder_and_a_plan_without_the_section() {
     let s = study();
