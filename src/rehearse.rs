@@ -12,6 +12,9 @@
 //! not matter); the same stream serves a replication at every effect size.
 
 mod blind;
+mod figure;
+mod html;
+mod latex;
 mod render;
 mod rng;
 mod simulate;
@@ -20,6 +23,8 @@ mod summary;
 mod tests;
 
 pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
+pub use html::page as html;
+pub use latex::latex;
 pub use render::markdown;
 pub use summary::{Rehearsed, WILSON_Z};
 

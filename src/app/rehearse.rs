@@ -1,5 +1,5 @@
 //! `sworn rehearse PLAN`: simulate, run the registered analysis on every simulated data set,
-//! write rehearsal.json and rehearsal.md into an output folder whole (staged and renamed, as
+//! write rehearsal.json, rehearsal.md, rehearsal.tex and rehearsal.html into an output folder whole (staged and renamed, as
 //! a run directory is), then record a `rehearsed` ledger entry. No data file is opened, so
 //! the ledger never counts a rehearsal as reading the data.
 
@@ -16,6 +16,10 @@ use std::path::{Path, PathBuf};
 pub const REHEARSAL_JSON: &str = "rehearsal.json";
 /// The rehearsal's report.
 pub const REHEARSAL_MD: &str = "rehearsal.md";
+/// The rehearsal's report in LaTeX.
+pub const REHEARSAL_TEX: &str = "rehearsal.tex";
+/// The rehearsal's page with the power curve.
+pub const REHEARSAL_HTML: &str = "rehearsal.html";
 
 fn default_out(plan: &Plan) -> PathBuf {
     let stem = plan
@@ -73,11 +77,15 @@ pub fn rehearse(
         ))?
     );
     let md = crate::rehearse::markdown(&r, &plan.study.title);
+    let tex = crate::rehearse::latex(&r, &plan.study.title);
+    let html = crate::rehearse::html(&r, &plan.study.title);
     rundir::clean_stale(&abs_out);
     let staged = rundir::Staged::new(&abs_out, replace)?;
     let written = staged
         .write(REHEARSAL_JSON, json_text.as_bytes())
-        .and_then(|()| staged.write(REHEARSAL_MD, md.as_bytes()));
+        .and_then(|()| staged.write(REHEARSAL_MD, md.as_bytes()))
+        .and_then(|()| staged.write(REHEARSAL_TEX, tex.as_bytes()))
+        .and_then(|()| staged.write(REHEARSAL_HTML, html.as_bytes()));
     match written {
         Ok(()) => staged.publish()?,
         Err(e) => {
@@ -90,10 +98,15 @@ pub fn rehearse(
     entry.assumptions = Some(r.assumptions_sha256.clone());
     entry.power = Some(r.power_record());
     entry.outputs = Some(
-        [(REHEARSAL_JSON, &json_text), (REHEARSAL_MD, &md)]
-            .into_iter()
-            .map(|(n, t)| (n.to_string(), ledger::sha256_hex(t.as_bytes())))
-            .collect(),
+        [
+            (REHEARSAL_JSON, &json_text),
+            (REHEARSAL_MD, &md),
+            (REHEARSAL_TEX, &tex),
+            (REHEARSAL_HTML, &html),
+        ]
+        .into_iter()
+        .map(|(n, t)| (n.to_string(), ledger::sha256_hex(t.as_bytes())))
+        .collect(),
     );
     let plan_dir = plan.path.parent().unwrap_or(Path::new("/"));
     entry.out = Some(slashed(&crate::analysis::relative_path(plan_dir, &abs_out)));

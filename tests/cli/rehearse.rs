@@ -309,6 +309,48 @@ fn a_blinded_run_needs_an_assignment_to_redraw() {
 }
 
 #[test]
+fn the_rehearsal_report_compiles_in_latex_and_its_page_draws_the_power_curve() {
+    let s = study();
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "10"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let html = s.read("plan-rehearsal/rehearsal.html");
+    assert!(
+        html.contains("<svg") && html.contains("</svg>"),
+        "no figure"
+    );
+    assert!(
+        html.contains("target power 0.8"),
+        "no target line in the legend"
+    );
+    for h in ["H1", "H2"] {
+        assert!(html.contains(&format!(">{h}<")), "{h} not in the legend");
+    }
+    let tex = s.read("plan-rehearsal/rehearsal.tex");
+    assert!(tex.contains("\\begin{picture}") && tex.contains("Read with care"));
+    let ledger = s.read("plan.ledger");
+    assert!(ledger.contains("\"rehearsal.tex\"") && ledger.contains("\"rehearsal.html\""));
+    if crate::happy::pdflatex_missing() {
+        return;
+    }
+    let out = Command::new("pdflatex")
+        .args([
+            "-interaction=nonstopmode",
+            "-halt-on-error",
+            "rehearsal.tex",
+        ])
+        .current_dir(s.path("plan-rehearsal"))
+        .output()
+        .expect("pdflatex runs");
+    assert!(
+        out.status.success(),
+        "pdflatex failed:\n{}",
+        String::from_utf8_lossy(&out.stdout)
+    );
+    let log = s.read("plan-rehearsal/rehearsal.log");
+    assert_eq!(crate::happy::overfull_over_1pt(&log), Vec::<String>::new());
+}
+
+#[test]
 fn rehearse_refuses_a_non_empty_output_folder_and_a_plan_without_the_section() {
     let s = study();
     std::fs::create_dir(s.path("busy")).expect("mkdir");
