@@ -17,6 +17,7 @@ mod html;
 mod latex;
 mod render;
 mod rng;
+mod search;
 mod simulate;
 mod summary;
 #[cfg(test)]
@@ -84,7 +85,22 @@ pub fn rehearse(
     };
     let total = reps * reh.effects.len();
     let done = AtomicUsize::new(0);
-    let outcomes: Vec<Result<Outcome>> = (0..total)
+    // The search's effects are not known in advance: the bar grows by one effect per step.
+    let expected = AtomicUsize::new(total);
+    let simulate = |effect: f64| -> Result<Vec<Outcome>> {
+        (0..reps)
+            .into_par_iter()
+            .map(|r| {
+                let out = one(plan, reh.seed, r as u64, effect);
+                tick(
+                    done.fetch_add(1, Ordering::Relaxed) + 1,
+                    expected.load(Ordering::Relaxed),
+                );
+                out
+            })
+            .collect()
+    };
+    let outcomes: Vec<Outcome> = (0..total)
         .into_par_iter()
         .map(|i| {
             let (e, r) = (i / reps, i % reps);
@@ -92,8 +108,7 @@ pub fn rehearse(
             tick(done.fetch_add(1, Ordering::Relaxed) + 1, total);
             out
         })
-        .collect();
-    let outcomes: Vec<Outcome> = outcomes.into_iter().collect::<Result<_>>()?;
+        .collect::<Result<_>>()?;
     if let Some(all_failed) = outcomes
         .iter()
         .all(|o| o.failed.is_some())
@@ -109,7 +124,15 @@ pub fn rehearse(
         });
     }
     let per_effect: Vec<&[Outcome]> = outcomes.chunks(reps).collect();
-    summary::summarise(plan, registered_draws, reh, reps, &per_effect)
+    let mut r = summary::summarise(plan, registered_draws, reh, reps, &per_effect)?;
+    if reh.mde_steps > 0 {
+        let step = |effect: f64| {
+            expected.fetch_add(reps, Ordering::Relaxed);
+            simulate(effect)
+        };
+        search::refine(plan, &mut r, reh.mde_steps, &step)?;
+    }
+    Ok(r)
 }
 
 /// Simulate replication `r` at `effect` and run the registered analysis on it.

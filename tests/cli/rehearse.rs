@@ -411,6 +411,11 @@ fn bad_rehearsal_sections_are_refused_with_the_key_and_the_fix() {
         &["depend on each other in a circle"],
     );
     refused("seed = 9", "seed = -1", &["rehearsal.seed"]);
+    refused(
+        "seed = 9",
+        "seed = 9\nmde_steps = 21",
+        &["rehearsal.mde_steps", "from 0"],
+    );
     refused("rows = 240", "rows = 1", &["rehearsal.data.main.rows"]);
     // Simulating fails on a probability outside [0, 1]: the error names the expression.
     refused(
