@@ -68,8 +68,15 @@ pub fn dispatch(command: Command) -> Result<Outcome> {
             replications,
             out,
             replace,
+            blind,
             json,
-        } => rehearse::rehearse(&plan, replications, out.as_deref(), replace, json),
+        } => {
+            if blind {
+                rehearse::blind(&plan, json)
+            } else {
+                rehearse::rehearse(&plan, replications, out.as_deref(), replace, json)
+            }
+        }
         Command::Log { plan } => history::log(&plan),
         Command::Diff { plan, from, to } => history::diff(&plan, from, to),
         Command::Demo { out } => {
@@ -194,12 +201,12 @@ pub fn check(path: &Path, data: bool, json: bool) -> Result<Outcome> {
 
 /// A ledger line written by [`record_inspection`].
 #[derive(Clone, Copy)]
-struct Recorded {
-    number: usize,
-    first: bool,
+pub(crate) struct Recorded {
+    pub(crate) number: usize,
+    pub(crate) first: bool,
 }
 
-fn inspection_line(r: Recorded) -> String {
+pub(crate) fn inspection_line(r: Recorded) -> String {
     if r.first {
         format!("recorded in the ledger (line {}): the data were inspected; the plan version in force now is the registered version, and any later amendment is disclosed as made after the data were seen", r.number)
     } else {
@@ -213,7 +220,7 @@ fn inspection_line(r: Recorded) -> String {
 /// `check --data` on a sealed plan records that the data were inspected (`data-inspected`),
 /// unless an earlier inspection or read recorded exactly these files. An unsealed plan has no
 /// ledger to record in; nothing is written then.
-fn record_inspection(
+pub(crate) fn record_inspection(
     plan: &Plan,
     tables: &BTreeMap<String, crate::data::Table>,
 ) -> Result<Option<Recorded>> {

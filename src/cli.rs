@@ -100,7 +100,7 @@ pub enum Command {
     /// Simulate the study from the plan's [rehearsal] section and run the registered analysis
     /// on every simulated data set: power, minimum detectable effects, size, rule firing rates.
     #[command(
-        after_help = "Examples:\n  sworn rehearse plan.toml                       # writes plan-rehearsal/ beside the plan\n  sworn rehearse plan.toml --replications 2000 --out power --replace"
+        after_help = "Examples:\n  sworn rehearse plan.toml                       # writes plan-rehearsal/ beside the plan\n  sworn rehearse plan.toml --replications 2000 --out power --replace\n  sworn rehearse plan.toml --blind                # the real data, assignment re-drawn, estimates masked"
     )]
     Rehearse {
         /// The plan file.
@@ -114,6 +114,11 @@ pub enum Command {
         /// Replace an existing output directory (otherwise a non-empty one is refused).
         #[arg(long)]
         replace: bool,
+        /// Run the registered plan on the real data with the assignment re-drawn by the
+        /// registered design: prints only what ran, estimates masked, writes no output file;
+        /// the ledger records the data as inspected (the plan must be sealed).
+        #[arg(long, conflicts_with_all = ["replications", "out", "replace"])]
+        blind: bool,
         /// Print one JSON object instead of text (shape: docs/json-output.md).
         #[arg(long)]
         json: bool,

@@ -87,6 +87,32 @@ pub enum Event {
     Rehearsed,
 }
 
+/// A rehearsal's power as its `rehearsed` entry records it: what a run's report cites as
+/// "power as rehearsed", read from the ledger (which `verify` re-reads) rather than from the
+/// rehearsal's folder, which may have moved.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PowerRecord {
+    /// Simulated data sets per effect size.
+    pub replications: usize,
+    /// Power at which the minimum detectable effect was read.
+    pub target_power: f64,
+    /// Effect sizes simulated (0 first).
+    pub effects: Vec<f64>,
+    /// Per hypothesis id.
+    pub hypotheses: BTreeMap<String, HypothesisPowerRecord>,
+}
+
+/// One hypothesis in a [`PowerRecord`].
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct HypothesisPowerRecord {
+    /// Share of simulated data sets supporting the claim, per effect size (same order).
+    pub power: Vec<f64>,
+    /// The minimum detectable effect at the target power (null: none within the sizes).
+    pub mde: Option<f64>,
+}
+
 /// One ledger line.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -123,6 +149,9 @@ pub struct Entry {
     /// replication count (rehearsed).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub assumptions: Option<String>,
+    /// What a rehearsal found (rehearsed), so a later run can cite it from the ledger alone.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub power: Option<PowerRecord>,
     /// Version of sworn that wrote the entry.
     pub tool_version: String,
     /// SHA-256 of the previous line's bytes.
@@ -144,6 +173,7 @@ impl Entry {
             basis: None,
             out: None,
             assumptions: None,
+            power: None,
             tool_version: TOOL_VERSION.to_string(),
             prev: String::new(),
         }

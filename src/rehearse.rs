@@ -2,20 +2,30 @@
 //! complete registered analysis ([`crate::analysis::analyse`]: every specification, decision
 //! rule, correction and resampled test) on each simulated data set, to state power, the
 //! minimum detectable effect, the size of each test, how often each rule fires, the
-//! first-stage strength and the sample after deletions, all before any data exist.
+//! first-stage strength and the sample after deletions, all before any data exist; and the
+//! blinded run ([`blinded`]): the registered analysis on real tables with the assignment
+//! re-drawn, keeping nothing that reveals an estimate.
 //!
 //! Invariants: nothing here reads a data file or writes anything; the model depends only on
 //! the plan and the replication count (each replication's stream comes from (seed,
 //! replication), and outcomes are gathered in replication order, so the thread count does
 //! not matter); the same stream serves a replication at every effect size.
 
+mod blind;
+mod figure;
+mod html;
+mod latex;
 mod render;
 mod rng;
+mod search;
 mod simulate;
 mod summary;
 #[cfg(test)]
 mod tests;
 
+pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
+pub use html::page as html;
+pub use latex::latex;
 pub use render::markdown;
 pub use summary::{Rehearsed, WILSON_Z};
 
@@ -75,7 +85,22 @@ pub fn rehearse(
     };
     let total = reps * reh.effects.len();
     let done = AtomicUsize::new(0);
-    let outcomes: Vec<Result<Outcome>> = (0..total)
+    // The search's effects are not known in advance: the bar grows by one effect per step.
+    let expected = AtomicUsize::new(total);
+    let simulate = |effect: f64| -> Result<Vec<Outcome>> {
+        (0..reps)
+            .into_par_iter()
+            .map(|r| {
+                let out = one(plan, reh.seed, r as u64, effect);
+                tick(
+                    done.fetch_add(1, Ordering::Relaxed) + 1,
+                    expected.load(Ordering::Relaxed),
+                );
+                out
+            })
+            .collect()
+    };
+    let outcomes: Vec<Outcome> = (0..total)
         .into_par_iter()
         .map(|i| {
             let (e, r) = (i / reps, i % reps);
@@ -83,8 +108,7 @@ pub fn rehearse(
             tick(done.fetch_add(1, Ordering::Relaxed) + 1, total);
             out
         })
-        .collect();
-    let outcomes: Vec<Outcome> = outcomes.into_iter().collect::<Result<_>>()?;
+        .collect::<Result<_>>()?;
     if let Some(all_failed) = outcomes
         .iter()
         .all(|o| o.failed.is_some())
@@ -100,7 +124,15 @@ pub fn rehearse(
         });
     }
     let per_effect: Vec<&[Outcome]> = outcomes.chunks(reps).collect();
-    summary::summarise(plan, registered_draws, reh, reps, &per_effect)
+    let mut r = summary::summarise(plan, registered_draws, reh, reps, &per_effect)?;
+    if reh.mde_steps > 0 {
+        let step = |effect: f64| {
+            expected.fetch_add(reps, Ordering::Relaxed);
+            simulate(effect)
+        };
+        search::refine(plan, &mut r, reh.mde_steps, &step)?;
+    }
+    Ok(r)
 }
 
 /// Simulate replication `r` at `effect` and run the registered analysis on it.

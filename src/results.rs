@@ -40,6 +40,9 @@ pub struct Results {
     /// The registered version's own results, when the executed plan differs from it after the
     /// data were seen (null otherwise).
     pub as_registered: Option<AsRegistered>,
+    /// Every `rehearsed` entry of the ledger the run was judged against, with when it came
+    /// relative to the registration point (empty when the plan was never rehearsed).
+    pub rehearsals: Vec<RehearsalCitation>,
     /// `sha256:` digest of everything above.
     pub digest: String,
 }
@@ -89,6 +92,28 @@ pub struct Registration {
     pub results_computed: Option<Moment>,
     /// Every element of the registered and executed plans, in canonical order.
     pub elements: Vec<ElementRegistration>,
+}
+
+/// A rehearsal the ledger records, as a run cites it.
+#[derive(Debug, Clone, Serialize)]
+pub struct RehearsalCitation {
+    /// Its ledger line.
+    pub ledger_line: usize,
+    /// Its time as recorded (the recording machine's clock).
+    pub time: String,
+    /// `before-registration` (before the registered version's seal or amendment: evidence of
+    /// power stated before registration), `after-registration` (after it, before the data
+    /// were seen), `after-data-inspected`, `after-results-computed`, or `no-registration`
+    /// (the run has no registered version).
+    pub timing: &'static str,
+    /// SHA-256 of its assumptions (the canonical `[rehearsal]` section and replication count).
+    pub assumptions_sha256: Option<String>,
+    /// Content SHA-256 of the plan it rehearsed.
+    pub plan_content_sha256: Option<String>,
+    /// Whether that plan is the registered version (same content fingerprint).
+    pub rehearsed_registered_version: bool,
+    /// The power it recorded (null for an entry written before sworn recorded it).
+    pub power: Option<crate::ledger::PowerRecord>,
 }
 
 /// A ledger moment.
@@ -836,6 +861,7 @@ mod tests {
             )],
             registration: None,
             as_registered: None,
+            rehearsals: Vec::new(),
             digest: String::new(),
         }
     }

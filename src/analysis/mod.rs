@@ -14,6 +14,7 @@ mod hypotheses;
 mod integrity;
 mod progress;
 mod registered;
+mod rehearsals;
 mod resampled;
 mod spec;
 mod summaries;
@@ -170,6 +171,7 @@ pub fn execute(
         deviations: devs,
         registration: integrity.registration,
         as_registered,
+        rehearsals: rehearsals::cite(ledger),
         digest: String::new(),
     };
     results.digest = results.compute_digest();

@@ -1,5 +1,5 @@
 //! `sworn rehearse PLAN`: simulate, run the registered analysis on every simulated data set,
-//! write rehearsal.json and rehearsal.md into an output folder whole (staged and renamed, as
+//! write rehearsal.json, rehearsal.md, rehearsal.tex and rehearsal.html into an output folder whole (staged and renamed, as
 //! a run directory is), then record a `rehearsed` ledger entry. No data file is opened, so
 //! the ledger never counts a rehearsal as reading the data.
 
@@ -16,6 +16,10 @@ use std::path::{Path, PathBuf};
 pub const REHEARSAL_JSON: &str = "rehearsal.json";
 /// The rehearsal's report.
 pub const REHEARSAL_MD: &str = "rehearsal.md";
+/// The rehearsal's report in LaTeX.
+pub const REHEARSAL_TEX: &str = "rehearsal.tex";
+/// The rehearsal's page with the power curve.
+pub const REHEARSAL_HTML: &str = "rehearsal.html";
 
 fn default_out(plan: &Plan) -> PathBuf {
     let stem = plan
@@ -73,11 +77,15 @@ pub fn rehearse(
         ))?
     );
     let md = crate::rehearse::markdown(&r, &plan.study.title);
+    let tex = crate::rehearse::latex(&r, &plan.study.title);
+    let html = crate::rehearse::html(&r, &plan.study.title);
     rundir::clean_stale(&abs_out);
     let staged = rundir::Staged::new(&abs_out, replace)?;
     let written = staged
         .write(REHEARSAL_JSON, json_text.as_bytes())
-        .and_then(|()| staged.write(REHEARSAL_MD, md.as_bytes()));
+        .and_then(|()| staged.write(REHEARSAL_MD, md.as_bytes()))
+        .and_then(|()| staged.write(REHEARSAL_TEX, tex.as_bytes()))
+        .and_then(|()| staged.write(REHEARSAL_HTML, html.as_bytes()));
     match written {
         Ok(()) => staged.publish()?,
         Err(e) => {
@@ -88,11 +96,17 @@ pub fn rehearse(
     let mut entry = Entry::new(Event::Rehearsed);
     entry.plan = Some(PlanPrint::of(&plan.path, &plan.text)?);
     entry.assumptions = Some(r.assumptions_sha256.clone());
+    entry.power = Some(r.power_record());
     entry.outputs = Some(
-        [(REHEARSAL_JSON, &json_text), (REHEARSAL_MD, &md)]
-            .into_iter()
-            .map(|(n, t)| (n.to_string(), ledger::sha256_hex(t.as_bytes())))
-            .collect(),
+        [
+            (REHEARSAL_JSON, &json_text),
+            (REHEARSAL_MD, &md),
+            (REHEARSAL_TEX, &tex),
+            (REHEARSAL_HTML, &html),
+        ]
+        .into_iter()
+        .map(|(n, t)| (n.to_string(), ledger::sha256_hex(t.as_bytes())))
+        .collect(),
     );
     let plan_dir = plan.path.parent().unwrap_or(Path::new("/"));
     entry.out = Some(slashed(&crate::analysis::relative_path(plan_dir, &abs_out)));
@@ -154,4 +168,116 @@ fn print_summary(plan: &Plan, r: &Rehearsed, out_dir: &Path) {
         "  report: {}",
         terminal(&out_dir.join(REHEARSAL_MD).to_string_lossy())
     );
+}
+
+/// `sworn rehearse PLAN --blind [--json]`: the registered plan on the real data with the
+/// assignment re-drawn by the registered design. The plan must be sealed and match its
+/// latest ledger version (a blinded run rehearses the registered plan). The data files are
+/// recorded as inspected (`data-inspected`, as `check --data` records them), never as a run's
+/// read, so no results-computed moment is created and a later real run is judged as usual.
+/// Nothing is written but that ledger line; what is printed holds no estimate.
+pub fn blind(path: &Path, json: bool) -> Result<Outcome> {
+    let plan = plan::load(path)?;
+    let lpath = ledger_path(&plan.path);
+    let print = PlanPrint::of(&plan.path, &plan.text)?;
+    {
+        let ledger = crate::ledger::Ledger::read(&lpath)?;
+        let latest = ledger
+            .as_ref()
+            .and_then(|l| l.versions().last().map(|v| v.entry.clone()));
+        let Some(latest) = latest else {
+            return Err(Error::Ledger {
+                path: lpath,
+                message: "a blinded run reads the real data, so the ledger must first show the plan fixed: seal it with `sworn seal PLAN`".into(),
+            });
+        };
+        if latest.plan.as_ref().map(|p| &p.content_sha256) != Some(&print.content_sha256) {
+            return Err(Error::Ledger {
+                path: lpath,
+                message: format!(
+                    "the plan's content differs from its latest ledger version (line {}): a blinded run runs the plan as recorded; record the change with `sworn amend PLAN --reason ...` or restore the plan",
+                    latest.seq
+                ),
+            });
+        }
+    }
+    let (tables, _schema) = crate::analysis::load_tables(&plan)?;
+    let seed = crate::rehearse::blind_seed(&plan);
+    // Re-draw before recording, so a plan that cannot be blinded leaves no ledger line.
+    crate::rehearse::blind_redraw(&plan, &tables, seed)?;
+    let recorded = super::record_inspection(&plan, &tables)?;
+    let b = crate::rehearse::blinded(&plan, &tables, seed)?;
+    if json {
+        let body = serde_json::json!({
+            "blinded": b,
+            "ledger_line": recorded.map(|r| r.number),
+        });
+        machine::emit(&machine::envelope("rehearse", 0, body));
+    } else {
+        print_blinded(&plan, &b, recorded);
+    }
+    Ok(if b.error.is_some() {
+        Outcome::CheckFailed
+    } else {
+        Outcome::Success
+    })
+}
+
+fn print_blinded(plan: &Plan, b: &crate::rehearse::Blinded, recorded: Option<super::Recorded>) {
+    println!(
+        "{}: blinded run, `{}` re-drawn by the registered design (seed {}); estimates masked",
+        crate::escape::line(&plan.study.title),
+        terminal(&b.assignment),
+        b.seed
+    );
+    for (id, t) in &b.tables {
+        println!(
+            "  data {}: {} rows, {} units re-drawn in {} block(s), {} row(s) kept their value",
+            terminal(id),
+            t.rows,
+            t.units,
+            t.blocks,
+            t.kept
+        );
+    }
+    for (id, s) in &b.specifications {
+        let clusters = s
+            .clusters
+            .map_or(String::new(), |c| format!(", {c} clusters"));
+        match s.used {
+            Some(n) => println!(
+                "  specification {}: ran on {n} observations{clusters}",
+                terminal(id)
+            ),
+            None => println!("  specification {}: did not run", terminal(id)),
+        }
+    }
+    for (id, h) in &b.hypotheses {
+        let what = if *h == "tested" {
+            "tested (result masked)"
+        } else {
+            "no test result"
+        };
+        println!("  hypothesis {}: {what}", terminal(id));
+    }
+    for (id, fired) in &b.rules {
+        let what = if *fired { "fired" } else { "did not fire" };
+        println!("  rule {}: {what} on the re-drawn data", terminal(id));
+    }
+    if !b.deviation_codes.is_empty() {
+        println!(
+            "  findings (codes only): {}",
+            terminal(&b.deviation_codes.join(", "))
+        );
+    }
+    if let Some(e) = &b.error {
+        println!("  the analysis stopped: {}", terminal(e));
+    }
+    match recorded {
+        Some(r) => println!("  {}", super::inspection_line(r)),
+        None => println!("  the ledger already records these data files as seen; nothing appended"),
+    }
+    for c in &b.cautions {
+        println!("  note: {c}");
+    }
 }

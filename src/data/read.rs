@@ -378,6 +378,41 @@ pub fn table_from_columns(
     Ok(table)
 }
 
+/// `table` with the numeric column `name` replaced by `values` (a blinded run's re-drawn
+/// assignment), its labels rebuilt as a file's would be, and derived variables and indices
+/// recomputed from it, so nothing computed from the old values survives.
+///
+/// # Errors
+/// `name` is not a numeric column of `src`, the length differs, or a derived variable or
+/// index fails as for a file.
+pub fn with_column(
+    plan: &Plan,
+    src: &DataSource,
+    table: &Table,
+    name: &str,
+    values: Vec<Option<f64>>,
+) -> Result<Table> {
+    let col = src
+        .columns
+        .get(name)
+        .filter(|c| c.kind.is_numeric() && values.len() == table.rows)
+        .ok_or_else(|| {
+            data_err(
+                src,
+                format!("column `{name}` must be a declared numeric column to be re-drawn"),
+            )
+        })?;
+    let mut out = table.clone();
+    if col.kind.is_grouping() {
+        let labels = to_labels(src, name, col.kind, RawValues::Numbers(values.clone()))?;
+        out.labels.insert(name.to_string(), labels);
+    }
+    out.numeric.insert(name.to_string(), values);
+    derive_columns(plan, src, &mut out)?;
+    index_columns(plan, src, &mut out)?;
+    Ok(out)
+}
+
 fn load_column(
     src: &DataSource,
     table: &mut Table,

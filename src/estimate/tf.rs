@@ -179,15 +179,51 @@ pub fn tf_critical_value(f: f64, alpha: f64) -> Option<f64> {
             return None;
         }
     }
+    Some(bracket_root(|c| worst_rejection(f, c) - alpha, lo, hi))
+}
+
+/// The upper end of a bracket [lo, hi] of the sign change of `g` (g(lo) > 0 ≥ g(hi)) narrowed
+/// to a relative width of 1e-13, as the bisection it replaces: the root lies in the final
+/// bracket either way, so the two differ by less than 1e-13 relative.
+///
+/// # Formula
+/// The Illinois variant of regula falsi (Dowell and Jarratt 1971, BIT 11): the secant point
+/// of the bracket, halving the retained end's value when the same end is kept twice, so both
+/// ends converge; a step that does not halve the bracket is followed by a bisection step, so
+/// it never takes more than about twice bisection's steps. Each `g` here is a supremum over a
+/// grid with golden-section refinement, so the 8–12 evaluations this takes instead of about
+/// 45 are where the time goes.
+fn bracket_root(g: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64) -> f64 {
+    let (mut glo, mut ghi) = (g(lo), g(hi));
+    let mut kept = 0i8;
+    let mut bisect = false;
     while hi - lo > 1e-13 * hi {
-        let mid = 0.5 * (lo + hi);
-        if too_low(mid) {
-            lo = mid;
+        let width = hi - lo;
+        let secant = hi - ghi * (hi - lo) / (ghi - glo);
+        let x = if bisect || !(secant > lo && secant < hi) {
+            0.5 * (lo + hi)
         } else {
-            hi = mid;
+            secant
+        };
+        let gx = g(x);
+        if gx > 0.0 {
+            lo = x;
+            glo = gx;
+            if kept == 1 {
+                ghi *= 0.5;
+            }
+            kept = 1;
+        } else {
+            hi = x;
+            ghi = gx;
+            if kept == -1 {
+                glo *= 0.5;
+            }
+            kept = -1;
         }
+        bisect = hi - lo > 0.5 * width;
     }
-    Some(hi)
+    hi
 }
 
 /// The tF p-value: the smallest α at which |t| > c_α(F).

@@ -10,6 +10,13 @@
 //! applied after, so quantile(1 - p) = -quantile(p) whenever 1 - p is exact; p = 0 and
 //! p = 1 give the ends of the support; p outside [0, 1], NaN p or an invalid reference give
 //! NaN. An exact quantile below the smallest subnormal comes out as that subnormal.
+//!
+//! Memo: each search costs some 64 tail evaluations (for t and F, incomplete beta functions
+//! in double-double arithmetic), and a run, and above all a rehearsal, asks for the same few
+//! quantiles again and again (the t critical value of every interval with the same degrees
+//! of freedom). Each thread keeps the answers it computed, keyed by the bit patterns of the
+//! reference's parameters and p; the function is pure, so a remembered answer is the same
+//! bits a new search would give. The memo is emptied when it reaches [`MEMO_CAPACITY`].
 
 use super::tails::{is_valid, ln_lower_tail, ln_upper_tail};
 use crate::distribution::Reference;
@@ -28,6 +35,42 @@ enum Side {
 /// p = 0 and p = 1 give the ends of the support (±inf, or 0 for F and chi-square). NaN for
 /// p outside [0, 1], NaN p, or an invalid reference.
 pub fn quantile(reference: &Reference, p: f64) -> f64 {
+    let key = memo_key(reference, p);
+    if let Some(x) = MEMO.with(|m| m.borrow().get(&key).copied()) {
+        return x;
+    }
+    let x = compute(reference, p);
+    MEMO.with(|m| {
+        let mut m = m.borrow_mut();
+        if m.len() >= MEMO_CAPACITY {
+            m.clear();
+        }
+        m.insert(key, x);
+    });
+    x
+}
+
+/// Remembered quantiles per thread, at most this many.
+const MEMO_CAPACITY: usize = 4096;
+
+thread_local! {
+    static MEMO: std::cell::RefCell<std::collections::HashMap<[u64; 4], f64>> =
+        std::cell::RefCell::new(std::collections::HashMap::new());
+}
+
+/// The memo's key: the reference's kind and parameters and p, as bit patterns.
+fn memo_key(reference: &Reference, p: f64) -> [u64; 4] {
+    let (kind, a, b) = match *reference {
+        Reference::Normal => (0, 0.0, 0.0),
+        Reference::StudentT { df } => (1, df, 0.0),
+        Reference::F { df1, df2 } => (2, df1, df2),
+        Reference::ChiSquare { df } => (3, df, 0.0),
+    };
+    [kind, a.to_bits(), b.to_bits(), p.to_bits()]
+}
+
+/// The quantile itself (see [`quantile`]).
+fn compute(reference: &Reference, p: f64) -> f64 {
     if !is_valid(reference) || !(0.0..=1.0).contains(&p) {
         return f64::NAN;
     }
@@ -97,5 +140,43 @@ fn solve(reference: &Reference, side: Side, target: f64) -> f64 {
         lo
     } else {
         hi
+    }
+}
+
+#[cfg(test)]
+mod memo_tests {
+    use super::*;
+
+    #[test]
+    fn a_remembered_quantile_is_the_same_bits_as_a_fresh_search() {
+        let cases = [
+            (Reference::StudentT { df: 71.0 }, 0.975),
+            (
+                Reference::F {
+                    df1: 1.0,
+                    df2: 2302.0,
+                },
+                0.95,
+            ),
+            (Reference::ChiSquare { df: 3.5 }, 0.05),
+            (Reference::Normal, 1e-300),
+        ];
+        for (r, p) in cases {
+            let fresh = compute(&r, p);
+            let first = quantile(&r, p);
+            let again = quantile(&r, p);
+            assert_eq!(fresh.to_bits(), first.to_bits(), "{r:?} {p}");
+            assert_eq!(first.to_bits(), again.to_bits(), "{r:?} {p}");
+        }
+        // Parameters that differ in the last bit are different keys.
+        let df = 71.0f64;
+        let near = f64::from_bits(df.to_bits() + 1);
+        let a = quantile(&Reference::StudentT { df }, 0.975);
+        let b = quantile(&Reference::StudentT { df: near }, 0.975);
+        assert_eq!(
+            b.to_bits(),
+            compute(&Reference::StudentT { df: near }, 0.975).to_bits()
+        );
+        assert!(a.is_finite() && b.is_finite());
     }
 }

@@ -81,6 +81,9 @@ pub struct Rehearsal {
     pub effects: Vec<f64>,
     /// Draws of each resampled test in a rehearsal (None: as `[resampling]` registers).
     pub resampling_draws: Option<usize>,
+    /// Bisection steps of the MDE search between the simulated effects that bracket the
+    /// target power (0: linear interpolation only).
+    pub mde_steps: usize,
     /// A data-generating process per data table id.
     pub generators: BTreeMap<String, Generator>,
 }

@@ -69,6 +69,8 @@ pub struct RawRehearsal {
     pub effects: Spanned<Vec<Spanned<f64>>>,
     /// Draws of each resampled test in a rehearsal (default: `[resampling].draws`).
     pub resampling_draws: Option<Spanned<i64>>,
+    /// Bisection steps of the search for the minimum detectable effect (default 4).
+    pub mde_steps: Option<Spanned<i64>>,
     /// A data-generating process per data table, keyed by table id.
     pub data: BTreeMap<Spanned<String>, Spanned<RawGenerator>>,
 }

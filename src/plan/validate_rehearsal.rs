@@ -65,6 +65,17 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         Some(v) => Some(*v.get_ref() as usize),
         None => None,
     };
+    let mde_steps = match &r.mde_steps {
+        Some(v) if !(0..=20).contains(v.get_ref()) => {
+            return Err(ctx.at(
+                v,
+                "rehearsal.mde_steps",
+                "mde_steps must be a whole number from 0 (interpolate between the simulated effects) to 20",
+            ))
+        }
+        Some(v) => *v.get_ref() as usize,
+        None => 4,
+    };
     let mut generators = BTreeMap::new();
     for (id, g) in &r.data {
         let key = format!("rehearsal.data.{}", id.get_ref());
@@ -94,6 +105,7 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         target_power,
         effects,
         resampling_draws,
+        mde_steps,
         generators,
     }))
 }

@@ -82,8 +82,28 @@ pub struct HypothesisPower {
     pub mde_estimate: Option<f64>,
     /// Why there is no MDE, or what bounds it.
     pub mde_note: String,
+    /// The bisection search that located the MDE (null: read by interpolation on the grid).
+    pub mde_search: Option<MdeSearch>,
     /// Power at each effect size (the power-curve series).
     pub curve: Vec<CurvePoint>,
+}
+
+/// The search for the minimum detectable effect: bisection on the simulated power between the
+/// simulated effects bracketing the target, every point simulated with the same replication
+/// streams (common random numbers), then linear interpolation inside the final bracket.
+#[derive(Debug, Clone, Serialize)]
+pub struct MdeSearch {
+    /// Bisection steps taken.
+    pub steps: usize,
+    /// The final bracket: power below the target at `low`, at or above it at `high`.
+    pub low: f64,
+    /// Upper end of the final bracket.
+    pub high: f64,
+    /// Half the final bracket's width: how far the MDE can be from the reported value on the
+    /// simulated power curve (Monte Carlo error comes on top).
+    pub tolerance: f64,
+    /// Each effect simulated by the search, with its power, in the order simulated.
+    pub points: Vec<CurvePoint>,
 }
 
 /// A share of replications with its 95% Wilson interval.
@@ -143,12 +163,20 @@ pub struct SampleSize {
 }
 
 /// The cautions every rehearsal states.
-const CAUTIONS: [&str; 4] = [
+const CAUTIONS: [&str; 3] = [
     "Power, size and the minimum detectable effect rest on the data-generating process written in [rehearsal]: base rates, take-up, intra-cluster correlation and covariate strength are assumptions, not measurements.",
     "Each figure is a Monte Carlo estimate from the stated number of simulated data sets; the intervals are 95% Wilson intervals for that simulation error only.",
     "A rehearsal runs the registered analysis; it does not show that the design identifies the effect (exclusion and monotonicity remain untestable, and a 2SLS estimate is a local average effect among compliers).",
-    "The minimum detectable effect is interpolated between the simulated effect sizes; simulate more sizes near it to narrow it.",
 ];
+
+/// The caution on how the MDE was read (`mde_steps` 0: interpolation only).
+fn mde_caution(steps: usize) -> &'static str {
+    if steps == 0 {
+        "The minimum detectable effect is interpolated between the simulated effect sizes; simulate more sizes near it (or set mde_steps) to narrow it."
+    } else {
+        "The minimum detectable effect is found by bisection on the simulated power with common random numbers, to the stated tolerance; its Monte Carlo error (the power's error over the curve's slope) comes on top."
+    }
+}
 
 /// The 95% Wilson score interval for k successes in n trials.
 ///
@@ -219,6 +247,20 @@ fn mde(effects: &[f64], curve: &[CurvePoint], target: f64) -> (Option<f64>, Opti
     )
 }
 
+/// Power of hypothesis `id` at `effect` over the replications `outs` (of `reps`).
+pub(super) fn point(id: &str, effect: f64, outs: &[Outcome], reps: usize) -> CurvePoint {
+    let got: Vec<&(bool, bool, Option<f64>)> =
+        outs.iter().filter_map(|o| o.hypotheses.get(id)).collect();
+    let estimates: Vec<f64> = got.iter().filter_map(|g| g.2).collect();
+    CurvePoint {
+        effect,
+        power: wilson(got.iter().filter(|g| g.0).count(), reps),
+        undetermined: got.iter().filter(|g| g.1).count(),
+        mean_estimate: (!estimates.is_empty())
+            .then(|| estimates.iter().sum::<f64>() / estimates.len() as f64),
+    }
+}
+
 pub(super) fn summarise(
     plan: &Plan,
     registered_draws: Option<usize>,
@@ -233,20 +275,7 @@ pub(super) fn summarise(
             .effects
             .iter()
             .zip(per_effect)
-            .map(|(e, outs)| {
-                let got: Vec<&(bool, bool, Option<f64>)> = outs
-                    .iter()
-                    .filter_map(|o| o.hypotheses.get(&h.id))
-                    .collect();
-                let estimates: Vec<f64> = got.iter().filter_map(|g| g.2).collect();
-                CurvePoint {
-                    effect: *e,
-                    power: wilson(got.iter().filter(|g| g.0).count(), reps),
-                    undetermined: got.iter().filter(|g| g.1).count(),
-                    mean_estimate: (!estimates.is_empty())
-                        .then(|| estimates.iter().sum::<f64>() / estimates.len() as f64),
-                }
-            })
+            .map(|(e, outs)| point(&h.id, *e, outs, reps))
             .collect();
         let (m, est, note) = mde(&reh.effects, &curve, reh.target_power);
         hypotheses.insert(
@@ -261,6 +290,7 @@ pub(super) fn summarise(
                 mde: m,
                 mde_estimate: est,
                 mde_note: note,
+                mde_search: None,
                 curve,
             },
         );
@@ -351,7 +381,11 @@ pub(super) fn summarise(
             .map(|o| o.iter().filter(|x| x.failed.is_some()).count())
             .collect(),
         first_failure: all.filter_map(|o| o.failed.clone()).next(),
-        cautions: CAUTIONS.to_vec(),
+        cautions: CAUTIONS
+            .iter()
+            .copied()
+            .chain(std::iter::once(mde_caution(reh.mde_steps)))
+            .collect(),
     })
 }
 
@@ -369,4 +403,28 @@ pub fn assumptions_sha256(print: &PlanPrint, reps: usize) -> String {
         &mut out,
     );
     crate::ledger::sha256_hex(out.as_bytes())
+}
+
+impl Rehearsed {
+    /// What the `rehearsed` ledger entry records, for a later run to cite.
+    pub fn power_record(&self) -> crate::ledger::PowerRecord {
+        crate::ledger::PowerRecord {
+            replications: self.replications,
+            target_power: self.target_power,
+            effects: self.effects.clone(),
+            hypotheses: self
+                .hypotheses
+                .iter()
+                .map(|(id, h)| {
+                    (
+                        id.clone(),
+                        crate::ledger::HypothesisPowerRecord {
+                            power: h.curve.iter().map(|c| c.power.share).collect(),
+                            mde: h.mde,
+                        },
+                    )
+                })
+                .collect(),
+        }
+    }
 }

@@ -5,7 +5,7 @@
 
 use super::{rehearse, simulated_tables, Rehearsed};
 use crate::plan::{from_text, Plan};
-use statrs::distribution::{ContinuousCDF, Normal};
+use statrs::distribution::{Continuous, ContinuousCDF, Normal};
 
 fn phi(x: f64) -> f64 {
     Normal::standard().cdf(x)
@@ -349,4 +349,55 @@ fn latent_variables_drive_columns_but_stay_out_of_the_table() {
         e.to_string().contains("latent variable needs a new name"),
         "{e}"
     );
+}
+
+/// The MDE search against the closed form: for a two-sided test at level α with power 1 − β
+/// and standard error se, MDE = (z₁₋α/₂ + z₁₋β)·se (Bloom 1995, Evaluation Review 19(5),
+/// "Minimum detectable effects"; the normal approximation). Its Monte Carlo error is the power's
+/// error at the target over the curve's slope there, φ(MDE/se − z₁₋α/₂)/se (delta method); the
+/// search's stated tolerance comes on top.
+fn check_mde_search(reps: usize) {
+    let r = run(&plan(TWO_ARM), reps);
+    let h = &r.hypotheses["H1"];
+    let se = (2.0f64 / 100.0).sqrt();
+    let closed = (z(0.975) + z(0.80)) * se;
+    let s = h
+        .mde_search
+        .as_ref()
+        .expect("the target is bracketed, so the MDE is searched");
+    assert_eq!(s.steps, 4);
+    assert!(
+        s.low < s.high && s.high - s.low <= 0.1 / 16.0 + 1e-12,
+        "{s:?}"
+    );
+    assert_eq!(s.points.len(), 4);
+    let mde = h.mde.expect("mde");
+    assert!(s.low <= mde && mde <= s.high, "{mde} outside {s:?}");
+    let slope = Normal::standard().pdf(closed / se - z(0.975)) / se;
+    let tol = 3.0 * mcse(0.8, reps) / slope + s.tolerance;
+    assert!(
+        (mde - closed).abs() <= tol,
+        "searched MDE {mde} vs closed form {closed} (± {tol})"
+    );
+    // Without steps the MDE is the grid interpolation, and no search is reported.
+    let grid = run(
+        &plan(&TWO_ARM.replace("seed = 11", "seed = 11\nmde_steps = 0")),
+        reps,
+    );
+    let g = &grid.hypotheses["H1"];
+    assert!(g.mde_search.is_none());
+    assert!(g.mde.is_some_and(|m| (0.3..=0.4).contains(&m)));
+    assert!(grid.cautions.iter().any(|c| c.contains("interpolated")));
+    assert!(r.cautions.iter().any(|c| c.contains("bisection")));
+}
+
+#[test]
+fn the_mde_search_finds_the_closed_form_mde_of_a_two_arm_design() {
+    check_mde_search(300);
+}
+
+#[test]
+#[ignore = "slow: 4,000 replications per effect"]
+fn the_mde_search_finds_the_closed_form_mde_of_a_two_arm_design_closely() {
+    check_mde_search(4000);
 }

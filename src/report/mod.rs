@@ -11,6 +11,7 @@ mod identification;
 mod model;
 mod plots;
 mod registration;
+mod rehearsal;
 mod summary_rows;
 
 pub use format::{num, pval, set_text, tex, tex_breakable};

@@ -18,6 +18,7 @@ pub struct ReportModel {
     integrity: String,
     hypotheses: Vec<HypRow>,
     registration: Option<super::registration::RegistrationModel>,
+    rehearsal: Option<super::rehearsal::RehearsalModel>,
     contingencies: Vec<RuleRow>,
     indices: Vec<String>,
     balance: Option<BalanceModel>,
@@ -246,6 +247,7 @@ impl ReportModel {
                 .map(|id| hyp_row(id, r))
                 .collect(),
             registration: super::registration::build(r),
+            rehearsal: super::rehearsal::build(r),
             contingencies: plan
                 .contingencies
                 .iter()

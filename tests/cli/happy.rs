@@ -103,7 +103,7 @@ fn latex_report_compiles() {
 }
 
 /// Whether pdflatex is absent (the test then skips, saying why).
-fn pdflatex_missing() -> bool {
+pub(crate) fn pdflatex_missing() -> bool {
     let missing = std::process::Command::new("pdflatex")
         .arg("--version")
         .output()
@@ -115,7 +115,7 @@ fn pdflatex_missing() -> bool {
 }
 
 /// Lines of a LaTeX log reporting a box more than 1 pt too wide.
-fn overfull_over_1pt(log: &str) -> Vec<String> {
+pub(crate) fn overfull_over_1pt(log: &str) -> Vec<String> {
     log.lines()
         .filter(|l| l.starts_with("Overfull \\hbox ("))
         .filter(|l| {

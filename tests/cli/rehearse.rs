@@ -88,6 +88,8 @@ fn a_rehearsal_changes_nothing_a_later_run_or_verify_accepts() {
         for moment in ["data_inspected", "results_computed"] {
             v["registration"][moment] = serde_json::Value::Null;
         }
+        // The citation of the rehearsal itself (checked in the tests below).
+        v["rehearsals"] = serde_json::Value::Null;
         v
     };
     let plain = study();
@@ -102,6 +104,250 @@ fn a_rehearsal_changes_nothing_a_later_run_or_verify_accepts() {
         let v = s.sworn(&["verify", "out"]);
         assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
     }
+}
+
+/// The assumptions fingerprint recorded in the ledger's `rehearsed` line `line` (1-based).
+fn assumptions_at(s: &Study, line: usize) -> String {
+    let ledger = s.read("plan.ledger");
+    let entry: serde_json::Value =
+        serde_json::from_str(ledger.lines().nth(line - 1).expect("line")).expect("entry");
+    assert_eq!(entry["event"], "rehearsed", "{entry}");
+    entry["assumptions"]
+        .as_str()
+        .expect("assumptions")
+        .to_string()
+}
+
+#[test]
+fn a_run_cites_the_rehearsal_made_before_registration_as_power_stated_in_advance() {
+    let s = study();
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "20"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let rehearsal: serde_json::Value =
+        serde_json::from_str(&s.read("plan-rehearsal/rehearsal.json")).expect("json");
+    let v = s.seal_and_run();
+    let c = &v["rehearsals"][0];
+    assert_eq!(v["rehearsals"].as_array().map(Vec::len), Some(1), "{v}");
+    assert_eq!(c["timing"], "before-registration");
+    assert_eq!(c["ledger_line"], 1);
+    assert_eq!(c["rehearsed_registered_version"], true);
+    let sha = assumptions_at(&s, 1);
+    assert_eq!(c["assumptions_sha256"], sha.as_str());
+    // The power cited is the rehearsal's own, read from the ledger.
+    let h1 = rehearsal["hypotheses"]["H1"]["curve"][1]["power"]["share"].clone();
+    assert_eq!(c["power"]["hypotheses"]["H1"]["power"][1], h1);
+    assert_eq!(c["power"]["replications"], 20);
+    for report in ["out/report.md", "out/report.html", "out/report.tex"] {
+        // LaTeX may break a fingerprint after any 16 characters.
+        let text = s.read(report).replace("\\allowbreak{}", "");
+        assert!(
+            text.contains("Power as rehearsed before the data"),
+            "{report}"
+        );
+        assert!(text.contains(&sha), "{report}: no assumptions fingerprint");
+        assert!(text.contains("power rests on them"), "{report}: no caution");
+    }
+    let md = s.read("out/report.md");
+    let power = h1.as_f64().expect("share");
+    assert!(
+        md.contains(&format!("H1: power {power:.2} / ")),
+        "H1's power {power} not cited: {md}"
+    );
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
+}
+
+#[test]
+fn a_rehearsal_after_registration_or_after_the_data_is_cited_as_such() {
+    let s = study();
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "5"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let v = s.run_ok();
+    assert_eq!(v["rehearsals"][0]["timing"], "after-registration", "{v}");
+    let md = s.read("out/report.md");
+    assert!(md.contains("## Power as rehearsed\n"), "{md}");
+    assert!(!md.contains("Power as rehearsed before the data"), "{md}");
+    assert!(
+        md.contains("No rehearsal precedes the registered version"),
+        "{md}"
+    );
+    assert!(
+        md.contains("not as evidence of power stated before registration"),
+        "{md}"
+    );
+    // A rehearsal after results were computed, cited by a later run.
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "5", "--replace"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let v = s.run_ok();
+    assert_eq!(
+        v["rehearsals"][1]["timing"], "after-results-computed",
+        "{v}"
+    );
+    assert!(s
+        .read("out/report.md")
+        .contains("after results were computed: not evidence"));
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
+}
+
+/// The rehearsal study with its instrument declared as the randomized assignment.
+fn assigned_study() -> Study {
+    let s = study();
+    s.edit(
+        "plan.toml",
+        "[[specification]]",
+        "[assignment]\nvariable = \"z\"\ndesign = \"complete\"\n\n[[specification]]",
+    );
+    s
+}
+
+#[test]
+fn a_blinded_run_masks_estimates_writes_nothing_and_counts_as_inspecting_the_data() {
+    let s = assigned_study();
+    // Unsealed: refused before any data are read, nothing written.
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 2, "{}", r.stdout);
+    assert!(r.stderr.contains("sworn seal PLAN"), "{}", r.stderr);
+    assert!(!s.path("plan.ledger").exists());
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    assert!(r.stdout.contains("`z` re-drawn") && r.stdout.contains("estimates masked"));
+    assert!(
+        r.stdout.contains("specification iv: ran on"),
+        "{}",
+        r.stdout
+    );
+    assert!(
+        r.stdout.contains("hypothesis H1: tested (result masked)"),
+        "{}",
+        r.stdout
+    );
+    // No number with a decimal point: no estimate, statistic or p-value is printed.
+    let decimal = r
+        .stdout
+        .as_bytes()
+        .windows(3)
+        .any(|w| w[0].is_ascii_digit() && w[1] == b'.' && w[2].is_ascii_digit());
+    assert!(!decimal, "{}", r.stdout);
+    assert!(
+        !s.path("plan-rehearsal").exists(),
+        "a blinded run writes no folder"
+    );
+    let again = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    let strip = |t: &str| {
+        t.lines()
+            .filter(|l| !l.contains("ledger"))
+            .collect::<Vec<_>>()
+            .join("\n")
+    };
+    assert_eq!(
+        strip(&again.stdout),
+        strip(&r.stdout),
+        "the re-draw depends on the seed only"
+    );
+    let ledger = s.read("plan.ledger");
+    assert_eq!(
+        ledger.matches("\"event\":\"data-inspected\"").count(),
+        1,
+        "{ledger}"
+    );
+    assert!(!ledger.contains("data-first-read"), "{ledger}");
+    // The later real run: the data were inspected at line 2, results computed at line 3, and
+    // nothing is flagged.
+    let v = s.run_ok();
+    assert_eq!(v["registration"]["data_inspected"]["ledger_line"], 2, "{v}");
+    assert_eq!(
+        v["registration"]["data_inspected"]["event"],
+        "data-inspected"
+    );
+    assert_eq!(v["registration"]["results_computed"]["ledger_line"], 3);
+    assert_eq!(v["plan"]["integrity"], "sealed-unchanged");
+    let codes = crate::common::codes(&v);
+    assert!(
+        !codes
+            .iter()
+            .any(|c| c.contains("data") || c.contains("amended")),
+        "{codes:?}"
+    );
+    let v = s.sworn(&["verify", "out"]);
+    assert_eq!(v.code, 0, "{}{}", v.stdout, v.stderr);
+}
+
+#[test]
+fn an_amendment_after_a_blinded_run_is_disclosed_as_made_after_the_data_were_inspected() {
+    let s = assigned_study();
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    assert_eq!(s.sworn(&["rehearse", "plan.toml", "--blind"]).code, 0);
+    s.edit("plan.toml", "seed = 9", "seed = 10");
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 2, "a changed plan is refused: {}", r.stdout);
+    assert!(r.stderr.contains("sworn amend"), "{}", r.stderr);
+    let a = s.sworn(&["amend", "plan.toml", "--reason", "another seed"]);
+    assert_eq!(a.code, 0, "{}", a.stderr);
+    let v = s.run_ok();
+    let after: Vec<&str> = v["registration"]["elements"]
+        .as_array()
+        .expect("elements")
+        .iter()
+        .filter_map(|e| e["after"].as_str())
+        .collect();
+    assert_eq!(after, ["data-inspected"], "{v}");
+}
+
+#[test]
+fn a_blinded_run_needs_an_assignment_to_redraw() {
+    let s = study();
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind"]);
+    assert_eq!(r.code, 2, "{}", r.stdout);
+    assert!(r.stderr.contains("no [assignment] section"), "{}", r.stderr);
+    assert!(!s.read("plan.ledger").contains("data-inspected"));
+    let r = s.sworn(&["rehearse", "plan.toml", "--blind", "--replications", "3"]);
+    assert_eq!(r.code, 2, "--blind and --replications conflict");
+}
+
+#[test]
+fn the_rehearsal_report_compiles_in_latex_and_its_page_draws_the_power_curve() {
+    let s = study();
+    let r = s.sworn(&["rehearse", "plan.toml", "--replications", "10"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let html = s.read("plan-rehearsal/rehearsal.html");
+    assert!(
+        html.contains("<svg") && html.contains("</svg>"),
+        "no figure"
+    );
+    assert!(
+        html.contains("target power 0.8"),
+        "no target line in the legend"
+    );
+    for h in ["H1", "H2"] {
+        assert!(html.contains(&format!(">{h}<")), "{h} not in the legend");
+    }
+    let tex = s.read("plan-rehearsal/rehearsal.tex");
+    assert!(tex.contains("\\begin{picture}") && tex.contains("Read with care"));
+    let ledger = s.read("plan.ledger");
+    assert!(ledger.contains("\"rehearsal.tex\"") && ledger.contains("\"rehearsal.html\""));
+    if crate::happy::pdflatex_missing() {
+        return;
+    }
+    let out = Command::new("pdflatex")
+        .args([
+            "-interaction=nonstopmode",
+            "-halt-on-error",
+            "rehearsal.tex",
+        ])
+        .current_dir(s.path("plan-rehearsal"))
+        .output()
+        .expect("pdflatex runs");
+    assert!(
+        out.status.success(),
+        "pdflatex failed:\n{}",
+        String::from_utf8_lossy(&out.stdout)
+    );
+    let log = s.read("plan-rehearsal/rehearsal.log");
+    assert_eq!(crate::happy::overfull_over_1pt(&log), Vec::<String>::new());
 }
 
 #[test]
@@ -165,6 +411,11 @@ fn bad_rehearsal_sections_are_refused_with_the_key_and_the_fix() {
         &["depend on each other in a circle"],
     );
     refused("seed = 9", "seed = -1", &["rehearsal.seed"]);
+    refused(
+        "seed = 9",
+        "seed = 9\nmde_steps = 21",
+        &["rehearsal.mde_steps", "from 0"],
+    );
     refused("rows = 240", "rows = 1", &["rehearsal.data.main.rows"]);
     // Simulating fails on a probability outside [0, 1]: the error names the expression.
     refused(

@@ -102,3 +102,33 @@ fn p_value_is_the_monotone_search() {
         assert!((hi - p).abs() < 1e-6, "t {tt} F {f}: search {hi} vs {p}");
     }
 }
+
+/// The regula falsi search ends where the bisection it replaced ends: the root is in both
+/// final brackets, so they agree to the 1e-13 relative width (checked at 2e-13).
+#[test]
+fn the_illinois_search_agrees_with_bisection() {
+    for f in [4.0, 6.5, 10.0, 23.1, 50.0, 90.0] {
+        let alpha = 0.05;
+        let g = |c: f64| super::worst_rejection(f, c) - alpha;
+        let z = 1.959_963_984_540_054;
+        let (mut lo, mut hi) = (z, 2.0 * z);
+        while g(hi) > 0.0 {
+            lo = hi;
+            hi *= 2.0;
+        }
+        let (a, b) = (lo, hi);
+        while hi - lo > 1e-13 * hi {
+            let mid = 0.5 * (lo + hi);
+            if g(mid) > 0.0 {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        let fast = super::bracket_root(g, a, b);
+        assert!(
+            (fast - hi).abs() <= 2e-13 * hi,
+            "F {f}: Illinois {fast} vs bisection {hi}"
+        );
+    }
+}
