@@ -553,6 +553,9 @@ pub struct ArmMean {
     pub sd: f64,
     /// Standard error of the mean (kind in `ArmSummary::std_error_kind`).
     pub std_error: f64,
+    /// Normal-approximation interval at the specification's confidence level,
+    /// mean ± z·std_error (it may reach past the variable's range, below 0 for a share).
+    pub ci: [f64; 2],
 }
 
 /// One specification.

@@ -13,6 +13,10 @@ type Why = (&'static str, String);
 /// The arm summaries of `spec` fitted on design `d` of `table`; `assigned` is the plan's
 /// `[assignment]` variable.
 pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>) -> ArmSummary {
+    let z = crate::inference::quantile(
+        &crate::distribution::Reference::Normal,
+        0.5 + spec.confidence / 2.0,
+    );
     let clusters = d.clusters.first().map(|(ids, _)| ids.as_slice());
     let mut out = ArmSummary {
         by: None,
@@ -63,12 +67,12 @@ pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>)
     out.by = Some(by.to_string());
     out.by_role = Some(role);
     let y: Vec<f64> = d.y_raw.iter().copied().collect();
-    match arm_mean(&spec.outcome, &y, &arm, 0, clusters) {
+    match arm_mean(&spec.outcome, &y, &arm, 0, clusters, z) {
         Ok(m) => out.comparison_mean = Some(m),
         Err((_, why)) => out.comparison_note = Some(why),
     }
     if iv {
-        let take_up = take_up(spec, table, d, &arm, clusters);
+        let take_up = take_up(spec, table, d, &arm, clusters, z);
         match take_up {
             Ok(t) => out.take_up = Some(t),
             Err((code, why)) => {
@@ -147,6 +151,7 @@ fn take_up(
     d: &Design,
     arm: &[u8],
     clusters: Option<&[usize]>,
+    z: f64,
 ) -> Result<[ArmMean; 2], Why> {
     let [x] = spec.endogenous.as_slice() else {
         return Err((
@@ -169,8 +174,8 @@ fn take_up(
         .map(|&r| col.get(r).copied().flatten().unwrap_or(f64::NAN))
         .collect();
     Ok([
-        arm_mean(x, &values, arm, 0, clusters)?,
-        arm_mean(x, &values, arm, 1, clusters)?,
+        arm_mean(x, &values, arm, 0, clusters, z)?,
+        arm_mean(x, &values, arm, 1, clusters, z)?,
     ])
 }
 
@@ -179,13 +184,15 @@ fn take_up(
 /// # Formula
 /// mean m = Σx/n, sd = √(Σ(x − m)²/(n − 1)); unclustered SE = sd/√n; cluster-robust SE =
 /// √(G/(G − 1) · Σ_g (Σ_{i∈g} (x_i − m))²) / n, the CR1 standard error of the intercept in a
-/// regression of x on a constant (Cameron and Miller 2015, JHR 50, eq. 12, with k = 1).
+/// regression of x on a constant (Cameron and Miller 2015, JHR 50, eq. 12, with k = 1);
+/// interval m ± z·SE with z the normal quantile of the specification's confidence level.
 fn arm_mean(
     variable: &str,
     values: &[f64],
     arm: &[u8],
     which: u8,
     clusters: Option<&[usize]>,
+    z: f64,
 ) -> Result<ArmMean, Why> {
     let idx: Vec<usize> = (0..values.len()).filter(|&i| arm[i] == which).collect();
     let n = idx.len();
@@ -231,5 +238,6 @@ fn arm_mean(
         mean,
         sd,
         std_error,
+        ci: [mean - z * std_error, mean + z * std_error],
     })
 }

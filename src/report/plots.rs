@@ -262,11 +262,30 @@ fn first_stages(plan: &crate::plan::Plan, r: &Results) -> Option<Figure> {
                     .collect(),
             });
         }
+        if let (Some(t), Some(by)) = (&res.arms.take_up, &res.arms.by) {
+            panels.push(Panel {
+                heading: crate::escape::line(&format!(
+                    "{}: mean of {} in each arm of {by}",
+                    s.id, t[0].variable
+                )),
+                bars: t
+                    .iter()
+                    .filter(|m| m.mean.is_finite())
+                    .map(|m| Bar {
+                        label: crate::escape::line(&format!("{by} = {}", m.arm)),
+                        estimate: m.mean,
+                        lo: m.ci[0],
+                        hi: m.ci[1],
+                        color: GREY,
+                    })
+                    .collect(),
+            });
+        }
     }
     figure(
         "First stages".into(),
         panels,
-        "How far each instrument shifts the endogenous regressor (take-up), holding the controls fixed: dots are first-stage coefficients, lines their intervals with the specification's errors. An interval reaching zero is a first stage the data cannot distinguish from none.".into(),
+        "How far each instrument shifts the endogenous regressor (take-up), holding the controls fixed: dots are first-stage coefficients, lines their intervals with the specification's errors. An interval reaching zero is a first stage the data cannot distinguish from none. Where the instrument is a 0/1 assignment, a grey panel shows take-up itself in each arm (the endogenous regressor's mean over the rows estimated on, with a normal-approximation interval at the specification's level from the standard error of the mean; results.json `arms`).".into(),
     )
 }
 

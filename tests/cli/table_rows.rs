@@ -30,6 +30,13 @@ fn check_mean(what: &str, got: &Value, want: &Value) {
             want[reference].as_f64().unwrap_or(f64::NAN),
         );
     }
+    for k in 0..2 {
+        close(
+            &format!("{what} interval end {k}"),
+            got["ci"][k].as_f64().unwrap_or(f64::NAN),
+            want["ci95"][k].as_f64().unwrap_or(f64::NAN),
+        );
+    }
 }
 
 /// The demo's arm summaries (clustered by block) match pandas means and statsmodels' CR1

@@ -8,7 +8,8 @@ demo data (demo-data/cool-roofs/households.csv, invented by src/demo/generate.rs
 Source: pandas for the estimation sample and the arm means; statsmodels OLS of the variable
 on a constant within the arm for the standard error: cov_type "cluster" by `block` (CR1:
 statsmodels' default small-sample correction G/(G-1) * (n-1)/(n-k), which is G/(G-1) with
-k = 1), and the classical standard error s/sqrt(n) as a second check.
+k = 1), and the classical standard error s/sqrt(n) as a second check; the 95% interval
+mean +- z * SE with z = scipy.stats.norm.ppf(0.975).
 """
 import json
 import os
@@ -17,6 +18,8 @@ import numpy as np
 import pandas as pd
 import statsmodels
 import statsmodels.api as sm
+import scipy
+from scipy.stats import norm
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 ROOT = os.path.dirname(os.path.dirname(HERE))
@@ -53,6 +56,11 @@ def arm_mean(frame, variable, arm_var, arm):
         "sd": float(np.std(x, ddof=1)),
         "std_error_cluster": float(clustered.bse[0]),
         "std_error_classical": float(classical.bse[0]),
+        # 95% normal-approximation interval, z from scipy.stats.norm.ppf.
+        "ci95": [
+            float(np.mean(x) - norm.ppf(0.975) * clustered.bse[0]),
+            float(np.mean(x) + norm.ppf(0.975) * clustered.bse[0]),
+        ],
     }
 
 
@@ -77,6 +85,7 @@ def main():
         "versions": {
             "numpy": np.__version__,
             "pandas": pd.__version__,
+            "scipy": scipy.__version__,
             "statsmodels": statsmodels.__version__,
         },
         "cases": cases,
