@@ -370,12 +370,27 @@ pub struct BalanceResult {
     pub by: String,
     /// Error type.
     pub errors: &'static str,
+    /// Cluster columns of the errors (empty unless clustered).
+    pub clusters: Vec<String>,
+    /// The registered blocks absorbed as fixed effects, when the design is blocked.
+    pub blocks: Option<BlocksUsed>,
     /// Rows used (complete in the arm and every covariate).
     pub n: usize,
     /// Per covariate.
     pub covariates: BTreeMap<String, ArmComparison>,
     /// Joint test: the arm regressed on all covariates, Wald F.
     pub joint: TestResult,
+}
+
+/// Randomization blocks absorbed as fixed effects in a balance or attrition regression.
+#[derive(Debug, Clone, Serialize)]
+pub struct BlocksUsed {
+    /// The `[assignment]` block column.
+    pub column: String,
+    /// Blocks in the regression.
+    pub levels: usize,
+    /// Rows dropped because they were alone in their block.
+    pub singletons_dropped: usize,
 }
 
 /// Lee (2009) bounds for one outcome.
@@ -409,6 +424,11 @@ pub struct AttritionResult {
     pub observed: String,
     /// Error type of the differential test.
     pub errors: &'static str,
+    /// Cluster columns of the differential test's errors (empty unless clustered).
+    pub clusters: Vec<String>,
+    /// The registered blocks absorbed in the differential test, when the design is blocked
+    /// (Lee bounds pool the blocks).
+    pub blocks: Option<BlocksUsed>,
     /// Share observed in each arm and their difference, tested.
     pub differential: ArmComparison,
     /// Lee bounds by outcome.

@@ -267,8 +267,10 @@ impl ReportModel {
                 .collect(),
             balance: r.balance.as_ref().map(|b| BalanceModel {
                 heading: format!(
-                    "By `{}` ({} complete rows; differences from OLS on the arm with {} errors)",
-                    b.by, b.n, b.errors
+                    "By `{}` ({} complete rows; {})",
+                    b.by,
+                    b.n,
+                    summary_design(b.errors, &b.clusters, b.blocks.as_ref())
                 ),
                 rows: b
                     .covariates
@@ -282,7 +284,14 @@ impl ReportModel {
                         p: pval(v.test.p_value),
                     })
                     .collect(),
-                joint: test_line("joint test (the arm on all covariates)", &b.joint),
+                joint: test_line(
+                    if b.blocks.is_some() {
+                        "joint test (the arm on all covariates and the blocks)"
+                    } else {
+                        "joint test (the arm on all covariates)"
+                    },
+                    &b.joint,
+                ),
             }),
             attrition: attrition_lines(r),
             tables: plan.tables.iter().map(|t| table_model(t, r)).collect(),
@@ -439,13 +448,41 @@ fn seal_state_line(r: &Results) -> String {
     }
 }
 
+/// How a balance or attrition regression was run: the difference (within the registered
+/// blocks, when absorbed) and the errors (naming the cluster columns).
+fn summary_design(
+    errors: &str,
+    clusters: &[String],
+    blocks: Option<&crate::results::BlocksUsed>,
+) -> String {
+    let errors = if clusters.is_empty() {
+        format!("{errors} errors")
+    } else {
+        let by: Vec<String> = clusters.iter().map(|c| format!("`{c}`")).collect();
+        format!("errors clustered by {}", by.join(" and "))
+    };
+    match blocks {
+        None => format!("differences from OLS on the arm with {errors}"),
+        Some(b) => format!(
+            "within-block differences from OLS on the arm with the {} registered blocks of `{}` as fixed effects{}, {errors}",
+            b.levels,
+            b.column,
+            match b.singletons_dropped {
+                0 => String::new(),
+                1 => " (1 row alone in its block left out)".to_string(),
+                k => format!(" ({k} rows alone in their block left out)"),
+            }
+        ),
+    }
+}
+
 fn attrition_lines(r: &Results) -> Vec<String> {
     let Some(a) = &r.attrition else {
         return Vec::new();
     };
     let d = &a.differential;
     let mut lines = vec![format!(
-        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}, {} errors), {}",
+        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}; {}), {}",
         a.observed,
         num(d.mean_comparison),
         d.n_comparison,
@@ -453,9 +490,15 @@ fn attrition_lines(r: &Results) -> Vec<String> {
         d.n_treated,
         num(d.difference),
         num(d.std_error),
-        a.errors,
+        summary_design(a.errors, &a.clusters, a.blocks.as_ref()),
         p_is(d.test.p_value)
     )];
+    if let (Some(b), false) = (&a.blocks, a.bounds.is_empty()) {
+        lines.push(format!(
+            "The Lee bounds below pool the blocks of `{}`: they are computed on the arms as wholes, not within blocks, which bounds the effect only if every block assigned the same share of units to treatment.",
+            b.column
+        ));
+    }
     for (y, b) in &a.bounds {
         lines.push(format!(
             "Lee (2009) bounds on the effect on `{y}` for units observed in either arm: [{}, {}] (the {} arm trimmed by {})",

@@ -1,6 +1,7 @@
 //! Integration tests: the built binary on generated studies (one test binary).
 
 mod bad_input;
+mod blocked_summaries;
 mod common;
 mod contingency;
 mod deviations;
