@@ -404,6 +404,20 @@ pub struct LeeResult {
     pub trim_share: f64,
     /// "treated" | "comparison".
     pub trimmed_arm: &'static str,
+    /// Standard error of `lower` (Lee 2009, Proposition 3; independent units, so `None`
+    /// when the attrition errors are clustered).
+    pub std_error_lower: Option<f64>,
+    /// Standard error of `upper` (as `std_error_lower`).
+    pub std_error_upper: Option<f64>,
+    /// Imbens and Manski (2004) interval for the effect at `interval_level`, when one can
+    /// be given.
+    pub interval: Option<[f64; 2]>,
+    /// Its critical value C (between the one- and two-sided normal quantiles).
+    pub interval_critical_value: Option<f64>,
+    /// Coverage of `interval` (the plan's `[inference]` confidence).
+    pub interval_level: f64,
+    /// Why there is no interval, when there is none.
+    pub no_interval: Option<String>,
 }
 
 /// Attrition checks.

@@ -345,18 +345,7 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
             }
         }
         let lee = estimate::lee_bounds(&values, &observed, &treated).map_err(|e| err(what, e))?;
-        bounds.insert(
-            name.clone(),
-            LeeResult {
-                lower: lee.lower,
-                upper: lee.upper,
-                trim_share: lee.trim_share,
-                trimmed_arm: match lee.trimmed_arm {
-                    TrimmedArm::Treated => "treated",
-                    TrimmedArm::Comparison => "comparison",
-                },
-            },
-        );
+        bounds.insert(name.clone(), lee_result(&lee, a, plan.inference.confidence));
     }
     let differential = (comparison(&differential.0), differential.1);
     let alpha = plan.inference.alpha;
@@ -415,4 +404,37 @@ fn attrition_test(
     )
     .map_err(|e| err(what, e))?;
     Ok((row, blocks.map(|b| b.used)))
+}
+
+/// Lee bounds with their Imbens–Manski (2004) interval. No interval when the attrition
+/// errors are clustered (the bounds' standard errors assume independently sampled units) or
+/// when the standard errors cannot support one.
+fn lee_result(lee: &estimate::LeeBounds, a: &crate::plan::Attrition, level: f64) -> LeeResult {
+    let im =
+        inference::imbens_manski_interval(lee.lower, lee.upper, lee.se_lower, lee.se_upper, level);
+    let no_interval = match (&a.errors, im) {
+        (Errors::Cluster(by), _) => Some(format!(
+            "the standard errors of Lee bounds assume independently sampled units, and this table's units are clustered by {}",
+            by.iter().map(|c| format!("`{c}`")).collect::<Vec<_>>().join(" and ")
+        )),
+        (_, None) => Some("the bounds' standard errors are zero or not finite (too few observed outcomes, or no spread)".to_string()),
+        (_, Some(_)) => None,
+    };
+    let im = im.filter(|_| no_interval.is_none());
+    let independent = !matches!(a.errors, Errors::Cluster(_));
+    LeeResult {
+        lower: lee.lower,
+        upper: lee.upper,
+        trim_share: lee.trim_share,
+        trimmed_arm: match lee.trimmed_arm {
+            TrimmedArm::Treated => "treated",
+            TrimmedArm::Comparison => "comparison",
+        },
+        std_error_lower: independent.then_some(lee.se_lower),
+        std_error_upper: independent.then_some(lee.se_upper),
+        interval: im.map(|i| i.interval),
+        interval_critical_value: im.map(|i| i.critical_value),
+        interval_level: level,
+        no_interval,
+    }
 }

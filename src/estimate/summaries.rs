@@ -505,6 +505,37 @@ pub struct LeeBounds {
     pub n_observed_treated: usize,
     /// Observed outcomes in the comparison arm.
     pub n_observed_comparison: usize,
+    /// Standard error of `lower` (Lee 2009, Proposition 3; see [`lee_bounds`]).
+    pub se_lower: f64,
+    /// Standard error of `upper`.
+    pub se_upper: f64,
+}
+
+/// Mean, variance (divisor = the kept mass) and the value at the cut of the lowest `kept`
+/// mass of the ascending `sorted` values, the boundary observation weighted fractionally as
+/// in [`lower_trimmed_mean`].
+fn lower_trimmed_moments(sorted: &[f64], kept: f64) -> (f64, f64, f64) {
+    let mean = lower_trimmed_mean(sorted, kept);
+    let (mut remaining, mut ss, mut cut) = (kept, 0.0, f64::NAN);
+    for &v in sorted {
+        if remaining <= 0.0 {
+            break;
+        }
+        let w = remaining.min(1.0);
+        ss += w * (v - mean) * (v - mean);
+        cut = v;
+        remaining -= w;
+    }
+    (mean, ss / kept, cut)
+}
+
+/// Sampling variance of a trimmed mean of the trimmed arm (Lee 2009, Proposition 3): the
+/// truncated-mean term [σ² + p (y_cut − μ)²] / K and the term of the estimated trimming
+/// share ((y_cut − μ)/(1 − p))² Var(p̂).
+fn trimmed_mean_variance(moments: (f64, f64, f64), p: f64, kept: f64, var_p: f64) -> f64 {
+    let (mean, var, cut) = moments;
+    let gap = cut - mean;
+    (var + p * gap * gap) / kept + (gap / (1.0 - p)).powi(2) * var_p
 }
 
 /// Mean of the lowest share `keep` (in (0, 1]) of the ascending `sorted` values, with the
@@ -536,8 +567,18 @@ fn lower_trimmed_mean(sorted: &[f64], kept: f64) -> f64 {
 /// its lowest K) − ȳ_c and upper = (mean of its highest K) − ȳ_c; with the comparison arm
 /// trimmed, lower = ȳ_t − (mean of its highest K) and upper = ȳ_t − (mean of its lowest K).
 ///
-/// `outcome` is read only where `observed` is true (it may be NaN elsewhere). No standard
-/// errors are computed.
+/// Standard errors (Lee 2009, Proposition 3, typed from memory and re-derived here by the
+/// delta method from the influence functions of a truncated mean and of p̂; the two are
+/// uncorrelated because p̂ depends only on who is observed): with m_t, m_c the observed
+/// counts, Var(p̂) = (1 − p)² [(1 − q_l)/m_l + (1 − q_h)/m_h]; for a trimmed mean μ̂ of the
+/// trimmed arm with kept mass K, kept values' variance σ̂² (fractional weights, divisor K) and
+/// the value at the cut y_cut (the last kept value), Var(μ̂) = [σ̂² + p (y_cut − μ̂)²]/K +
+/// ((y_cut − μ̂)/(1 − p))² Var(p̂); the untrimmed arm's mean adds s²/m (divisor m). A bound's
+/// variance is the sum for the trimmed mean it uses and the untrimmed mean. Units are taken
+/// as sampled independently (no clusters), and at p = 0 the estimator sits at a kink of the
+/// trimming, where the normal approximation is poorest.
+///
+/// `outcome` is read only where `observed` is true (it may be NaN elsewhere).
 ///
 /// # Errors
 /// [`SummaryError::Length`], [`SummaryError::EmptyArm`] (an arm without observations or
@@ -582,12 +623,40 @@ pub fn lee_bounds(
     let trim_share = (q_high - q_low) / q_high;
     // Kept mass N_h q_l, never above the n observed (guards the rounding of equal shares).
     let kept = (n_high as f64 * q_low).min(high.len() as f64);
-    let low_mean = lower_trimmed_mean(high, kept);
+    let low = lower_trimmed_moments(high, kept);
     let reversed: Vec<f64> = high.iter().rev().copied().collect();
-    let high_mean = lower_trimmed_mean(&reversed, kept);
+    let top = lower_trimmed_moments(&reversed, kept);
+    let (low_mean, high_mean) = (low.0, top.0);
     let (lower, upper) = match trimmed_arm {
         TrimmedArm::Treated => (low_mean - mean(&yc), high_mean - mean(&yc)),
         TrimmedArm::Comparison => (mean(&yt) - high_mean, mean(&yt) - low_mean),
+    };
+    // Var(p̂) for p̂ = 1 − q_l/q_h by the delta method: (1 − p)² Σ_arms (1 − q)/m, m the
+    // arm's observed count.
+    let (m_low, m_high) = match trimmed_arm {
+        TrimmedArm::Treated => (yc.len(), yt.len()),
+        TrimmedArm::Comparison => (yt.len(), yc.len()),
+    };
+    let var_p = (1.0 - trim_share).powi(2)
+        * ((1.0 - q_low) / m_low as f64 + (1.0 - q_high) / m_high as f64);
+    let untrimmed = if trimmed_arm == TrimmedArm::Treated {
+        &yc
+    } else {
+        &yt
+    };
+    let u_mean = mean(untrimmed);
+    let var_untrimmed = untrimmed
+        .iter()
+        .map(|v| (v - u_mean) * (v - u_mean))
+        .sum::<f64>()
+        / (untrimmed.len() as f64).powi(2);
+    let var_low = trimmed_mean_variance(low, trim_share, kept, var_p) + var_untrimmed;
+    let var_high = trimmed_mean_variance(top, trim_share, kept, var_p) + var_untrimmed;
+    // The lower bound uses the lower trimmed mean when the treated arm is trimmed and the
+    // upper one when the comparison arm is.
+    let (se_lower, se_upper) = match trimmed_arm {
+        TrimmedArm::Treated => (var_low.sqrt(), var_high.sqrt()),
+        TrimmedArm::Comparison => (var_high.sqrt(), var_low.sqrt()),
     };
     Ok(LeeBounds {
         lower,
@@ -598,6 +667,8 @@ pub fn lee_bounds(
         observed_share_comparison: qc,
         n_observed_treated: yt.len(),
         n_observed_comparison: yc.len(),
+        se_lower,
+        se_upper,
     })
 }
 

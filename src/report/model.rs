@@ -500,12 +500,27 @@ fn attrition_lines(r: &Results) -> Vec<String> {
         ));
     }
     for (y, b) in &a.bounds {
+        let interval = match (&b.interval, &b.no_interval) {
+            (Some([lo, hi]), _) => format!(
+                "; {}% interval for the effect (Imbens and Manski 2004, critical value {}): [{}, {}]",
+                (1e6 * 100.0 * b.interval_level).round() / 1e6,
+                num(b.interval_critical_value.unwrap_or(f64::NAN)),
+                num(*lo),
+                num(*hi)
+            ),
+            (None, Some(why)) => format!("; no interval: {why}"),
+            (None, None) => String::new(),
+        };
         lines.push(format!(
-            "Lee (2009) bounds on the effect on `{y}` for units observed in either arm: [{}, {}] (the {} arm trimmed by {})",
+            "Lee (2009) bounds on the effect on `{y}` for units observed in either arm: [{}, {}] (the {} arm trimmed by {}{}){interval}",
             num(b.lower),
             num(b.upper),
             b.trimmed_arm,
-            num(b.trim_share)
+            num(b.trim_share),
+            match (b.std_error_lower, b.std_error_upper) {
+                (Some(l), Some(u)) => format!("; s.e. {} and {}", num(l), num(u)),
+                _ => String::new(),
+            }
         ));
     }
     lines
@@ -1034,7 +1049,7 @@ fn cautions(r: &Results) -> Vec<String> {
         ));
     }
     if r.attrition.as_ref().is_some_and(|a| !a.bounds.is_empty()) {
-        c.push("Lee bounds bound the effect for units whose outcome would be observed in either arm, assuming assignment affects whether an outcome is observed in one direction only.".into());
+        c.push("Lee bounds bound the effect for units whose outcome would be observed in either arm, assuming assignment affects whether an outcome is observed in one direction only. Their interval (Imbens and Manski 2004) covers that effect, not the whole bounded set, and rests on a large-sample normal approximation for independently sampled units.".into());
     }
     c.push("A verified run shows that the registered plan was followed on these data; it does not show that the design is sound or that its assumptions hold. Decisions rest with the study's own review and its registry's rules.".into());
     c

@@ -14,6 +14,7 @@ mod history;
 mod hostile;
 mod init;
 mod integrity;
+mod intervals;
 mod json;
 mod nist;
 mod readme;
