@@ -612,6 +612,9 @@ pub struct HypothesisResult {
     /// rejects). Null for two-sided hypotheses and for tests that imply no such bound
     /// (resampled, Anderson–Rubin, tF).
     pub one_sided_bound: Option<f64>,
+    /// Randomization tests of an OLS coefficient: the constant effects the two-sided test
+    /// does not reject at the plan's alpha, found by test inversion on common draws.
+    pub randomization_interval: Option<RandomizationIntervalResult>,
     /// Resampled tests: the number of draws used (the observed one included).
     pub draws: Option<usize>,
     /// Resampled tests: whether every possible draw was enumerated.
@@ -628,6 +631,21 @@ pub struct HypothesisResult {
     pub registration: &'static str,
     /// The executed plan's result, when it differs from the registered one.
     pub as_amended: Option<Box<HypothesisResult>>,
+}
+
+/// A randomization-inference interval by test inversion.
+#[derive(Debug, Clone, Serialize)]
+pub struct RandomizationIntervalResult {
+    /// Lower end (null: no rejection found below the estimate out to 4096 standard errors).
+    pub lower: Option<f64>,
+    /// Upper end (null: likewise above).
+    pub upper: Option<f64>,
+    /// 1 − alpha, alpha the plan's `[inference]` level.
+    pub level: f64,
+    /// Each end lies within this of an effect the test rejects.
+    pub tolerance: f64,
+    /// Candidate effects tested (each on the same draws).
+    pub evaluations: usize,
 }
 
 /// Canonical JSON text of a serialisable value (sorted keys, no whitespace).

@@ -663,8 +663,28 @@ fn resampling_lines(plan: &Plan, r: &Results) -> Vec<String> {
             (m, _) => m.to_string(),
         };
         out.push(format!("{}: {procedure}; {count}.", h.id));
+        if let Some(i) = &res.randomization_interval {
+            out.push(format!(
+                "{}: the {}% randomization interval is the set of constant additive effects τ (every unit's outcome moved by τ when treated) that the two-sided test does not reject at {}: {} candidate effects tested, each on the same draws, stepping out from the estimate by its standard error times 1, 2, 4, … (up to 4096) and then bisecting, so each end lies within {} of a rejected effect; an end with no rejection found is shown as unbounded.",
+                h.id,
+                (1e6 * 100.0 * i.level).round() / 1e6,
+                num(1.0 - i.level),
+                i.evaluations,
+                num(i.tolerance)
+            ));
+        }
     }
     out
+}
+
+/// A randomization interval's text, unbounded ends as ∞.
+fn ri_interval_text(i: &crate::results::RandomizationIntervalResult) -> String {
+    format!(
+        "randomization {}%: [{}, {}]",
+        (1e6 * 100.0 * i.level).round() / 1e6,
+        i.lower.map_or("−∞".to_string(), num),
+        i.upper.map_or("+∞".to_string(), num)
+    )
 }
 
 fn hyp_row(id: &str, r: &Results) -> HypRow {
@@ -707,7 +727,10 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
                 100.0 * (1.0 - h.alpha),
                 h.ci.as_deref().map_or("n/a".to_string(), set_text)
             ),
-            _ => h.ci.as_deref().map_or("n/a".to_string(), set_text),
+            _ => match &h.randomization_interval {
+                Some(i) => ri_interval_text(i),
+                None => h.ci.as_deref().map_or("n/a".to_string(), set_text),
+            },
         },
         estimate: opt(h.estimate, num),
         p: opt(h.p_value, pval),
@@ -1025,6 +1048,12 @@ fn cautions(r: &Results) -> Vec<String> {
     }
     if r.hypotheses.values().any(|h| h.method == "randomization") {
         c.push("Randomization p-values test the sharp null that the assignment changed no unit's outcome beyond the stated null value, a stronger hypothesis than a zero average effect; they are exact given the registered assignment design, so they are only as good as the record of how the assignment was actually drawn.".into());
+        if r.hypotheses
+            .values()
+            .any(|h| h.randomization_interval.is_some())
+        {
+            c.push("A randomization interval collects the effects the test does not reject if every unit's outcome moves by the same amount when treated; with effects that differ between units it is not an interval for the average effect.".into());
+        }
     }
     if r.hypotheses.values().any(|h| h.method == "wild-bootstrap") {
         c.push("Wild cluster bootstrap p-values are more reliable than cluster-robust t-tests when clusters are few, but remain approximations; with very few treated clusters they can mislead as well.".into());

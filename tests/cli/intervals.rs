@@ -1,7 +1,8 @@
-//! Intervals where only point values or p-values existed: Lee bounds with their Imbens and
-//! Manski (2004) interval, through the plan path, against tests/reference/lee_interval.py
-//! (an implementation of its own in numpy/scipy of Lee 2009, Proposition 3, whose variance
-//! formula it also checks by simulation).
+//! Intervals where only point values or p-values existed, through the plan path: Lee bounds
+//! with their Imbens and Manski (2004) interval, against tests/reference/lee_interval.py (an
+//! implementation of its own in numpy/scipy of Lee 2009, Proposition 3, whose variance
+//! formula it also checks by simulation), and randomization intervals by test inversion,
+//! against tests/reference/ri_interval.py (brute-force numpy enumeration).
 
 use crate::common::Study;
 use crate::reference::{close, fixture};
@@ -113,4 +114,85 @@ fn lee_interval_is_withheld_under_clustered_errors() {
     assert!(s.read("out/report.md").contains(
         "no interval: the standard errors of Lee bounds assume independently sampled units"
     ));
+}
+
+/// Randomization intervals by test inversion on an exact design (12 units, all 924
+/// assignments), for the coefficient and the t statistic, against the brute-force numpy
+/// enumeration of tests/reference/ri_interval.py. sworn's ends lie within 1e-7 standard
+/// errors of the boundary (its documented tolerance), the reference's within 1e-12.
+#[test]
+fn randomization_intervals_match_the_brute_force_enumeration() {
+    let f = fixture("ri_interval.json");
+    let d = &f["data"];
+    let mut csv = String::from("y,t,w\n");
+    for i in 0..d["y"].as_array().expect("y").len() {
+        csv.push_str(&format!(
+            "{},{},{}\n",
+            f64_of(&d["y"][i]),
+            d["t"][i],
+            f64_of(&d["w"][i])
+        ));
+    }
+    for case in f["cases"].as_array().expect("cases") {
+        let statistic = case["statistic"].as_str().expect("statistic");
+        let plan = format!(
+            r#"format = 1
+
+[study]
+title = "Randomization interval reference"
+
+[data.main]
+path = "data.csv"
+
+[data.main.columns]
+y = {{ kind = "number" }}
+t = {{ kind = "binary" }}
+w = {{ kind = "number" }}
+
+[assignment]
+variable = "t"
+design = "complete"
+
+[resampling]
+seed = 7
+
+[[specification]]
+id = "itt"
+estimator = "ols"
+outcome = "y"
+regressors = ["t"]
+controls = ["w"]
+errors = "classical"
+
+[[hypothesis]]
+id = "H1"
+specification = "itt"
+term = "t"
+inference = "randomization"
+statistic = "{statistic}"
+"#
+        );
+        let s = Study::with(&plan, &csv);
+        let v = s.seal_and_run();
+        let h = &v["hypotheses"]["H1"];
+        assert_eq!(h["exact"], true, "{statistic}");
+        assert_eq!(h["draws"].as_u64(), Some(924));
+        let i = &h["randomization_interval"];
+        let se = f64_of(&case["std_error"]);
+        for end in ["lower", "upper"] {
+            let (got, want) = (f64_of(&i[end]), f64_of(&case[end]));
+            assert!(
+                (got - want).abs() <= 2e-7 * se,
+                "{statistic} {end}: got {got}, brute force {want} (se {se})"
+            );
+        }
+        assert_eq!(i["level"].as_f64(), Some(0.95));
+        let report = s.read("out/report.md");
+        assert!(report.contains("randomization 95%: ["), "{report}");
+        assert!(
+            report
+                .contains("the 95% randomization interval is the set of constant additive effects"),
+            "{report}"
+        );
+    }
 }
