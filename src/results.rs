@@ -417,12 +417,27 @@ pub struct BalanceResult {
     pub by: String,
     /// Error type.
     pub errors: &'static str,
+    /// Cluster columns of the errors (empty unless clustered).
+    pub clusters: Vec<String>,
+    /// The registered blocks absorbed as fixed effects, when the design is blocked.
+    pub blocks: Option<BlocksUsed>,
     /// Rows used (complete in the arm and every covariate).
     pub n: usize,
     /// Per covariate.
     pub covariates: BTreeMap<String, ArmComparison>,
     /// Joint test: the arm regressed on all covariates, Wald F.
     pub joint: TestResult,
+}
+
+/// Randomization blocks absorbed as fixed effects in a balance or attrition regression.
+#[derive(Debug, Clone, Serialize)]
+pub struct BlocksUsed {
+    /// The `[assignment]` block column.
+    pub column: String,
+    /// Blocks in the regression.
+    pub levels: usize,
+    /// Rows dropped because they were alone in their block.
+    pub singletons_dropped: usize,
 }
 
 /// Lee (2009) bounds for one outcome.
@@ -436,6 +451,20 @@ pub struct LeeResult {
     pub trim_share: f64,
     /// "treated" | "comparison".
     pub trimmed_arm: &'static str,
+    /// Standard error of `lower` (Lee 2009, Proposition 3; independent units, so `None`
+    /// when the attrition errors are clustered).
+    pub std_error_lower: Option<f64>,
+    /// Standard error of `upper` (as `std_error_lower`).
+    pub std_error_upper: Option<f64>,
+    /// Imbens and Manski (2004) interval for the effect at `interval_level`, when one can
+    /// be given.
+    pub interval: Option<[f64; 2]>,
+    /// Its critical value C (between the one- and two-sided normal quantiles).
+    pub interval_critical_value: Option<f64>,
+    /// Coverage of `interval` (the plan's `[inference]` confidence).
+    pub interval_level: f64,
+    /// Why there is no interval, when there is none.
+    pub no_interval: Option<String>,
 }
 
 /// Attrition checks.
@@ -456,6 +485,11 @@ pub struct AttritionResult {
     pub observed: String,
     /// Error type of the differential test.
     pub errors: &'static str,
+    /// Cluster columns of the differential test's errors (empty unless clustered).
+    pub clusters: Vec<String>,
+    /// The registered blocks absorbed in the differential test, when the design is blocked
+    /// (Lee bounds pool the blocks).
+    pub blocks: Option<BlocksUsed>,
     /// Share observed in each arm and their difference, tested.
     pub differential: ArmComparison,
     /// Lee bounds by outcome.
@@ -684,6 +718,9 @@ pub struct HypothesisResult {
     /// rejects). Null for two-sided hypotheses and for tests that imply no such bound
     /// (resampled, Anderson–Rubin, tF).
     pub one_sided_bound: Option<f64>,
+    /// Randomization tests of an OLS coefficient: the constant effects the two-sided test
+    /// does not reject at the plan's alpha, found by test inversion on common draws.
+    pub randomization_interval: Option<RandomizationIntervalResult>,
     /// Resampled tests: the number of draws used (the observed one included).
     pub draws: Option<usize>,
     /// Resampled tests: whether every possible draw was enumerated.
@@ -770,6 +807,21 @@ pub struct Redrawn {
     pub clusters: Option<String>,
     /// Bootstrap: the number of clusters weighted; null for randomization.
     pub cluster_count: Option<usize>,
+}
+
+/// A randomization-inference interval by test inversion.
+#[derive(Debug, Clone, Serialize)]
+pub struct RandomizationIntervalResult {
+    /// Lower end (null: no rejection found below the estimate out to 4096 standard errors).
+    pub lower: Option<f64>,
+    /// Upper end (null: likewise above).
+    pub upper: Option<f64>,
+    /// 1 − alpha, alpha the plan's `[inference]` level.
+    pub level: f64,
+    /// Each end lies within this of an effect the test rejects.
+    pub tolerance: f64,
+    /// Candidate effects tested (each on the same draws).
+    pub evaluations: usize,
 }
 
 /// Canonical JSON text of a serialisable value (sorted keys, no whitespace).

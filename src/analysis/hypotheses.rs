@@ -225,6 +225,7 @@ fn test_one(
         df: f.result.df,
         ci: None,
         one_sided_bound: None,
+        randomization_interval: None,
         draws: None,
         exact: None,
         resampling: None,
@@ -308,6 +309,9 @@ fn resampled_test(
     };
     r.method = kind;
     r.df = None;
+    if kind == "randomization" {
+        r.randomization_interval = f.ri_intervals.get(&h.id).cloned();
+    }
     r.draws = Some(res.draws_used);
     r.exact = Some(res.exact);
     r.resampling = super::resampled::describe(plan, h, f, kind, res);

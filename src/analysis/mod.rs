@@ -242,6 +242,7 @@ pub(crate) fn analyse(
             let rc = spec::ResampleContext {
                 assignment: plan.assignment.as_ref(),
                 resampling: plan.resampling,
+                alpha: plan.inference.alpha,
             };
             spec::fit_spec(s, &tables[&s.data], source, need, &rc)
         })

@@ -33,6 +33,8 @@ pub struct Fitted {
     pub ar_tests: Vec<(f64, TestStatistic)>,
     /// Resampled tests by (hypothesis id, method name).
     pub resampled: BTreeMap<(String, &'static str), estimate::ResampleResult>,
+    /// Randomization-inference intervals of OLS coefficients by hypothesis id.
+    pub ri_intervals: BTreeMap<String, crate::results::RandomizationIntervalResult>,
     /// What resampled draws of this specification are draws of: the data table, the rows
     /// used and the clustering, so that tests of several specifications can be lined up
     /// draw by draw only when they resample the same units the same way.
@@ -276,6 +278,8 @@ pub struct ResampleContext<'a> {
     pub assignment: Option<&'a Assignment>,
     /// `[resampling]`.
     pub resampling: Option<Resampling>,
+    /// The plan's `[inference]` alpha (randomization intervals invert the test at it).
+    pub alpha: f64,
 }
 
 /// Estimate `spec` on `table`, computing also what `needs` asks for.
@@ -453,6 +457,7 @@ pub fn fit_spec(
         ar_tests.clear();
     }
     let mut resampled = BTreeMap::new();
+    let mut ri_intervals = BTreeMap::new();
     let kept: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
     for need in &needs.resample {
         let clusters = d.clusters.first().map(|(_, g)| *g);
@@ -467,7 +472,10 @@ pub fn fit_spec(
         if !kept.contains(&&need.term) || degenerate.is_some() {
             continue;
         }
-        let r = resample(spec, table, &d, &p, &cov, need, rc)?;
+        let (r, interval) = resample(spec, table, &d, &p, &cov, need, rc)?;
+        if let Some(i) = interval {
+            ri_intervals.insert(need.hypothesis.clone(), i);
+        }
         resampled.insert((need.hypothesis.clone(), method_name(&need.method)), r);
     }
     // Only resampled tests are ever lined up across specifications.
@@ -493,6 +501,7 @@ pub fn fit_spec(
         deviations,
         ar_tests,
         resampled,
+        ri_intervals,
         resample_units,
     })
 }
@@ -532,7 +541,10 @@ fn resample(
     cov: &CovSpec,
     need: &ResampleNeed,
     rc: &ResampleContext,
-) -> Result<estimate::ResampleResult> {
+) -> Result<(
+    estimate::ResampleResult,
+    Option<crate::results::RandomizationIntervalResult>,
+)> {
     let r = rc
         .resampling
         .ok_or_else(|| est_err(spec, "resampled inference needs [resampling]"))?;
@@ -608,7 +620,7 @@ fn resample(
                 } else {
                     estimate::RiStatistic::Estimate
                 };
-                estimate::randomization_test(
+                let test = estimate::randomization_test(
                     &d.y,
                     &x,
                     index,
@@ -619,7 +631,19 @@ fn resample(
                     statistic,
                     &draws,
                 )
-                .map_err(err)
+                .map_err(err)?;
+                let problem = estimate::IntervalProblem {
+                    y: &d.y,
+                    x: &x,
+                    treatment: index,
+                    cov,
+                    absorbed: &d.absorbed,
+                    design: &design,
+                    statistic,
+                    plan: &draws,
+                };
+                let interval = ri_interval(&problem, rc.alpha).map_err(err)?;
+                Ok((test, interval))
             } else {
                 estimate::randomization_ar(
                     &d.y,
@@ -632,6 +656,7 @@ fn resample(
                     &design,
                     &draws,
                 )
+                .map(|t| (t, None))
                 .map_err(err)
             }
         }
@@ -666,6 +691,7 @@ fn resample(
                     &draws,
                     &d.absorbed,
                 )
+                .map(|t| (t, None))
                 .map_err(err)
             } else {
                 estimate::wild_cluster_bootstrap(
@@ -678,11 +704,32 @@ fn resample(
                     &draws,
                     &d.absorbed,
                 )
+                .map(|t| (t, None))
                 .map_err(err)
             }
         }
         Method::Model => Err(est_err(spec, "no resampling was asked for")),
     }
+}
+
+/// The randomization interval of `problem`'s treatment coefficient at `alpha`, stepping
+/// from the OLS estimate by its model standard error (module `estimate::resample::interval`).
+fn ri_interval(
+    problem: &estimate::IntervalProblem,
+    alpha: f64,
+) -> std::result::Result<Option<crate::results::RandomizationIntervalResult>, estimate::ResampleError>
+{
+    let fit = estimate::ols(problem.y, problem.x, true, problem.cov, problem.absorbed)?;
+    let j = problem.treatment;
+    let found =
+        estimate::randomization_interval(problem, fit.coef[j], fit.cov[(j, j)].sqrt(), alpha)?;
+    Ok(found.map(|i| crate::results::RandomizationIntervalResult {
+        lower: i.lower,
+        upper: i.upper,
+        level: 1.0 - alpha,
+        tolerance: i.tolerance,
+        evaluations: i.evaluations,
+    }))
 }
 
 /// Handle columns the fixed-effect sweep left without variation: an error naming them, or

@@ -3,11 +3,11 @@
 
 use crate::data::{LabelIdsError, Table};
 use crate::error::{Error, Result};
-use crate::estimate::{self, BalanceRow, CovSpec, TrimmedArm};
+use crate::estimate::{self, BalanceRow, CovSpec, FixedEffects, TrimmedArm};
 use crate::inference;
 use crate::plan::{Errors, IndexMethod, Plan};
 use crate::results::{
-    ArmComparison, AttritionResult, BalanceResult, IndexResult, LeeResult, TestResult,
+    ArmComparison, AttritionResult, BalanceResult, BlocksUsed, IndexResult, LeeResult, TestResult,
 };
 use std::collections::BTreeMap;
 
@@ -85,6 +85,82 @@ fn clusters_present(errors: &Errors, table: &Table, r: usize) -> bool {
     }
 }
 
+/// Rows where the block column, when registered, has a label.
+fn block_present(blocks: Option<&String>, table: &Table, r: usize) -> bool {
+    blocks.is_none_or(|b| table.labels.get(b).is_some_and(|l| l[r].is_some()))
+}
+
+/// The registered blocks, absorbed as fixed effects.
+struct Blocked {
+    fe: FixedEffects,
+    used: BlocksUsed,
+}
+
+/// The registered blocks on `rows`: the rows kept once those alone in their block are
+/// dropped (repeatedly, as for every absorbed fixed effect: a singleton has no within-block
+/// comparison) and the blocks on the kept rows. `treated` gives the arm of each of `rows`;
+/// an arm that varies within no block is refused (the blocks would absorb it).
+fn blocked_rows(
+    blocks: Option<&String>,
+    table: &Table,
+    rows: Vec<usize>,
+    treated: impl Fn(usize) -> bool,
+    by: &str,
+    what: &str,
+) -> Result<(Vec<usize>, Option<Blocked>)> {
+    let Some(column) = blocks else {
+        return Ok((rows, None));
+    };
+    let ids = |rows: &[usize]| {
+        table.label_ids(column, rows).map_err(|_| {
+            err(
+                what,
+                format!("block column `{column}` has no label in a used row"),
+            )
+        })
+    };
+    let keep = estimate::drop_singletons(&[ids(&rows)?]);
+    let kept: Vec<usize> = rows
+        .iter()
+        .zip(&keep)
+        .filter(|(_, k)| **k)
+        .map(|(r, _)| *r)
+        .collect();
+    let kept_ids = ids(&kept)?;
+    let levels = kept_ids.iter().max().map_or(0, |m| m + 1);
+    let mut arms = vec![(false, false); levels];
+    for (&r, &l) in kept.iter().zip(&kept_ids) {
+        if treated(r) {
+            arms[l].0 = true;
+        } else {
+            arms[l].1 = true;
+        }
+    }
+    if !arms.iter().any(|&(t, c)| t && c) {
+        return Err(err(
+            what,
+            format!(
+                "no block of `{column}` (the [assignment] blocks) has units in both arms of `{by}`, so the blocks absorb the arm; check the arm and block columns"
+            ),
+        ));
+    }
+    let fe = FixedEffects::new(vec![kept_ids]).map_err(|e| err(what, e))?;
+    let used = BlocksUsed {
+        column: column.clone(),
+        levels,
+        singletons_dropped: rows.len() - kept.len(),
+    };
+    Ok((kept, Some(Blocked { fe, used })))
+}
+
+/// The cluster columns of `errors` (empty unless clustered).
+fn cluster_columns(errors: &Errors) -> Vec<String> {
+    match errors {
+        Errors::Cluster(by) => by.clone(),
+        _ => Vec::new(),
+    }
+}
+
 /// Index metadata for results.json.
 pub fn indices(plan: &Plan, tables: &BTreeMap<String, Table>) -> BTreeMap<String, IndexResult> {
     plan.indices
@@ -152,32 +228,54 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
             matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
                 && covs.iter().all(|c| c[r].is_some())
                 && clusters_present(&b.errors, t, r)
+                && block_present(b.blocks.as_ref(), t, r)
         })
         .collect();
+    let (rows, blocks) = blocked_rows(
+        b.blocks.as_ref(),
+        t,
+        rows,
+        |r| arm[r] == Some(1.0),
+        &b.by,
+        what,
+    )?;
     let m = nalgebra::DMatrix::from_fn(rows.len(), covs.len(), |i, j| {
         covs[j][rows[i]].unwrap_or(f64::NAN)
     });
     let treated: Vec<bool> = rows.iter().map(|&r| arm[r] == Some(1.0)).collect();
     let cov = cov_for(&b.errors, t, &rows, what)?;
-    let table = estimate::balance(&m, &treated, &cov).map_err(|e| match e {
-        // The balance regression is of the arm on [intercept | covariates].
-        estimate::SummaryError::Estimate(estimate::EstimateError::RankDeficient { dependent }) => err(
-            what,
-            format!(
-                "covariate(s) {} are linear combinations of the covariates listed before them (and a constant); remove them from [balance] covariates",
-                dependent
-                    .iter()
-                    .filter_map(|&j| b.covariates.get(j.checked_sub(1)?))
-                    .map(|c| format!("`{c}`"))
-                    .collect::<Vec<_>>()
-                    .join(", ")
+    // Without blocks the joint regression is of the arm on [intercept | covariates]; with
+    // them, on [covariates] with the blocks absorbed.
+    let first = usize::from(blocks.is_none());
+    let table = estimate::balance(&m, &treated, &cov, blocks.as_ref().map(|b| &b.fe)).map_err(
+        |e| match e {
+            estimate::SummaryError::Estimate(estimate::EstimateError::RankDeficient {
+                dependent,
+            }) => err(
+                what,
+                format!(
+                    "covariate(s) {} are linear combinations of the covariates listed before them ({}); remove them from [balance] covariates",
+                    dependent
+                        .iter()
+                        .filter_map(|&j| b.covariates.get(j.checked_sub(first)?))
+                        .map(|c| format!("`{c}`"))
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                    if first == 1 {
+                        "and a constant"
+                    } else {
+                        "and the registered blocks: a covariate constant within each block is absorbed by them"
+                    }
+                ),
             ),
-        ),
-        e => err(what, e),
-    })?;
+            e => err(what, e),
+        },
+    )?;
     Ok(Some(BalanceResult {
         by: b.by.clone(),
         errors: b.errors.name(),
+        clusters: cluster_columns(&b.errors),
+        blocks: blocks.map(|b| b.used),
         n: rows.len(),
         covariates: b
             .covariates
@@ -216,7 +314,9 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
     };
     let rows: Vec<usize> = (0..t.rows)
         .filter(|&r| {
-            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0) && clusters_present(&a.errors, t, r)
+            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
+                && clusters_present(&a.errors, t, r)
+                && block_present(a.blocks.as_ref(), t, r)
         })
         .collect();
     let treated: Vec<bool> = rows.iter().map(|&r| arm[r] == Some(1.0)).collect();
@@ -224,9 +324,7 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
         .iter()
         .map(|&r| observed_all[r].is_some_and(|v| v != 0.0))
         .collect();
-    let cov = cov_for(&a.errors, t, &rows, what)?;
-    let differential =
-        estimate::differential_attrition(&observed, &treated, &cov).map_err(|e| err(what, e))?;
+    let differential = attrition_test(a, t, &rows, &treated, &observed, what)?;
     let mut bounds = BTreeMap::new();
     for name in &a.bounds {
         let y = t
@@ -247,22 +345,11 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
             }
         }
         let lee = estimate::lee_bounds(&values, &observed, &treated).map_err(|e| err(what, e))?;
-        bounds.insert(
-            name.clone(),
-            LeeResult {
-                lower: lee.lower,
-                upper: lee.upper,
-                trim_share: lee.trim_share,
-                trimmed_arm: match lee.trimmed_arm {
-                    TrimmedArm::Treated => "treated",
-                    TrimmedArm::Comparison => "comparison",
-                },
-            },
-        );
+        bounds.insert(name.clone(), lee_result(&lee, a, plan.inference.confidence));
     }
-    let differential = comparison(&differential);
+    let differential = (comparison(&differential.0), differential.1);
     let alpha = plan.inference.alpha;
-    let significant = differential.test.p_value <= alpha;
+    let significant = differential.0.test.p_value <= alpha;
     let hypotheses_on_table = plan
         .hypotheses
         .iter()
@@ -281,7 +368,73 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
         by: a.by.clone(),
         observed: a.observed.0.clone(),
         errors: a.errors.name(),
-        differential,
+        clusters: cluster_columns(&a.errors),
+        blocks: differential.1,
+        differential: differential.0,
         bounds,
     }))
+}
+
+/// The differential-attrition regression on `rows` (blocks absorbed when registered, on the
+/// rows left once singleton blocks are dropped).
+fn attrition_test(
+    a: &crate::plan::Attrition,
+    t: &Table,
+    rows: &[usize],
+    treated: &[bool],
+    observed: &[bool],
+    what: &str,
+) -> Result<(BalanceRow, Option<BlocksUsed>)> {
+    let position: BTreeMap<usize, usize> = rows.iter().enumerate().map(|(i, &r)| (r, i)).collect();
+    let (kept, blocks) = blocked_rows(
+        a.blocks.as_ref(),
+        t,
+        rows.to_vec(),
+        |r| treated[position[&r]],
+        &a.by,
+        what,
+    )?;
+    let pick = |v: &[bool]| -> Vec<bool> { kept.iter().map(|r| v[position[r]]).collect() };
+    let cov = cov_for(&a.errors, t, &kept, what)?;
+    let row = estimate::differential_attrition(
+        &pick(observed),
+        &pick(treated),
+        &cov,
+        blocks.as_ref().map(|b| &b.fe),
+    )
+    .map_err(|e| err(what, e))?;
+    Ok((row, blocks.map(|b| b.used)))
+}
+
+/// Lee bounds with their Imbens–Manski (2004) interval. No interval when the attrition
+/// errors are clustered (the bounds' standard errors assume independently sampled units) or
+/// when the standard errors cannot support one.
+fn lee_result(lee: &estimate::LeeBounds, a: &crate::plan::Attrition, level: f64) -> LeeResult {
+    let im =
+        inference::imbens_manski_interval(lee.lower, lee.upper, lee.se_lower, lee.se_upper, level);
+    let no_interval = match (&a.errors, im) {
+        (Errors::Cluster(by), _) => Some(format!(
+            "the standard errors of Lee bounds assume independently sampled units, and this table's units are clustered by {}",
+            by.iter().map(|c| format!("`{c}`")).collect::<Vec<_>>().join(" and ")
+        )),
+        (_, None) => Some("the bounds' standard errors are zero or not finite (too few observed outcomes, or no spread)".to_string()),
+        (_, Some(_)) => None,
+    };
+    let im = im.filter(|_| no_interval.is_none());
+    let independent = !matches!(a.errors, Errors::Cluster(_));
+    LeeResult {
+        lower: lee.lower,
+        upper: lee.upper,
+        trim_share: lee.trim_share,
+        trimmed_arm: match lee.trimmed_arm {
+            TrimmedArm::Treated => "treated",
+            TrimmedArm::Comparison => "comparison",
+        },
+        std_error_lower: independent.then_some(lee.se_lower),
+        std_error_upper: independent.then_some(lee.se_upper),
+        interval: im.map(|i| i.interval),
+        interval_critical_value: im.map(|i| i.critical_value),
+        interval_level: level,
+        no_interval,
+    }
 }

@@ -74,9 +74,10 @@ pub use kclass::{kclass, KClass, KClassFit, DEFAULT_FULLER_ALPHA};
 pub use linear::{ols, tsls, IvProblem};
 pub use qr::collinear_columns;
 pub use resample::{
-    count_assignments, randomization_ar, randomization_test, wild_cluster_bootstrap,
-    wild_restricted_efficient, AssignmentDesign, Draws, ResampleError, ResampleResult, RiStatistic,
-    Weights, DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
+    count_assignments, randomization_ar, randomization_interval, randomization_test,
+    wild_cluster_bootstrap, wild_restricted_efficient, AssignmentDesign, Draws, IntervalProblem,
+    RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Weights,
+    DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
 };
 pub use summaries::{
     balance, differential_attrition, inverse_covariance, lee_bounds, mean_z, BalanceRow,

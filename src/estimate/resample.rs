@@ -44,6 +44,7 @@
 
 mod assignment;
 mod cells;
+mod interval;
 mod partial;
 mod randomization;
 mod wild;
@@ -59,6 +60,7 @@ use rayon::prelude::*;
 use super::EstimateError;
 
 pub use assignment::{count_assignments, AssignmentDesign};
+pub use interval::{randomization_interval, IntervalProblem, RandomizationInterval};
 pub use randomization::{randomization_ar, randomization_test, RiStatistic};
 pub use wild::{wild_cluster_bootstrap, Weights};
 pub use wre::wild_restricted_efficient;

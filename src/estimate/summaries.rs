@@ -14,7 +14,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use super::{ols, wald, Absorbed, CovSpec, EstimateError};
+use super::{ols, wald, Absorbed, CovSpec, EstimateError, FixedEffects};
 use crate::distribution::{Reference, TestStatistic};
 
 /// Why a summary could not be computed.
@@ -315,18 +315,63 @@ fn arm_counts(treated: &[bool]) -> Result<(usize, usize), SummaryError> {
     Ok((nt, nc))
 }
 
+/// The absorbed degrees of freedom of `blocks` under `cov` (blocks nested in a cluster
+/// dimension are not counted in the CR1 factor; see [`Absorbed`]).
+fn absorbed_for(blocks: &FixedEffects, cov: &CovSpec) -> Absorbed {
+    match cov {
+        CovSpec::Cluster { ids } => blocks.absorbed(&[ids.as_slice()]),
+        CovSpec::TwoWay { first, second } => {
+            blocks.absorbed(&[first.as_slice(), second.as_slice()])
+        }
+        _ => blocks.absorbed(&[]),
+    }
+}
+
+/// OLS of `y` on `x` (which has no constant column) plus, when `blocks` are given, the block
+/// dummies absorbed; without blocks a constant column is put first. Returns the fit and the
+/// position of `x`'s first column among the fitted coefficients.
+fn fit_with_blocks(
+    y: &[f64],
+    x: &DMatrix<f64>,
+    cov: &CovSpec,
+    blocks: Option<&FixedEffects>,
+) -> Result<(super::LinearFit, usize), SummaryError> {
+    let (n, k) = x.shape();
+    let y = DVector::from_column_slice(y);
+    match blocks {
+        None => {
+            let mut with_one = DMatrix::from_element(n, k + 1, 1.0);
+            with_one.columns_mut(1, k).copy_from(x);
+            Ok((ols(&y, &with_one, true, cov, &Absorbed::NONE)?, 1))
+        }
+        Some(fe) => {
+            if fe.observations() != n {
+                return Err(SummaryError::Length {
+                    what: "blocks",
+                    expected: n,
+                    got: fe.observations(),
+                });
+            }
+            let ys = fe.sweep_vector(&y)?;
+            let xs = fe.sweep(x)?;
+            // A column the blocks absorb entirely (zero after the sweep) is left to the QR
+            // factorisation to report as collinear.
+            let fit = ols(&ys, &xs, true, cov, &absorbed_for(fe, cov))?;
+            Ok((fit, 0))
+        }
+    }
+}
+
 /// Compares one variable across the arms (inputs checked by the caller).
-fn compare(y: &[f64], treated: &[bool], cov: &CovSpec) -> Result<BalanceRow, SummaryError> {
+fn compare(
+    y: &[f64],
+    treated: &[bool],
+    cov: &CovSpec,
+    blocks: Option<&FixedEffects>,
+) -> Result<BalanceRow, SummaryError> {
     let n = y.len();
-    // Columns [1, treated].
-    let x = DMatrix::from_fn(n, 2, |i, c| if c == 0 || treated[i] { 1.0 } else { 0.0 });
-    let fit = ols(
-        &DVector::from_column_slice(y),
-        &x,
-        true,
-        cov,
-        &Absorbed::NONE,
-    )?;
+    let arm = DMatrix::from_fn(n, 1, |i, _| if treated[i] { 1.0 } else { 0.0 });
+    let (fit, at) = fit_with_blocks(y, &arm, cov, blocks)?;
     let split = |arm: bool| -> Vec<f64> {
         y.iter()
             .zip(treated)
@@ -336,8 +381,8 @@ fn compare(y: &[f64], treated: &[bool], cov: &CovSpec) -> Result<BalanceRow, Sum
     };
     let (n_treated, mean_treated, sd_treated) = moments(&split(true));
     let (n_comparison, mean_comparison, sd_comparison) = moments(&split(false));
-    let difference = fit.coef[1];
-    let std_error = fit.cov[(1, 1)].sqrt();
+    let difference = fit.coef[at];
+    let std_error = fit.cov[(at, at)].sqrt();
     Ok(BalanceRow {
         mean_comparison,
         mean_treated,
@@ -362,16 +407,25 @@ fn compare(y: &[f64], treated: &[bool], cov: &CovSpec) -> Result<BalanceRow, Sum
 /// treated indicator on [1, x_1 … x_K] and F = W/K with W = b_Sᵀ V_S⁻¹ b_S over the K slopes
 /// (Wald 1943) and V under `cov`, referred to F(K, n − K − 1), or F(K, G − 1) when clustered.
 ///
+/// With `blocks` (the randomization blocks, singletons already dropped by the caller) the
+/// constant is replaced by one dummy per block, absorbed (module `absorb`; by
+/// Frisch–Waugh–Lovell the slopes and sandwich covariances are those of the explicit dummy
+/// regression): d is then the within-block difference, a weighted average of the block
+/// differences, and the residual df is n − 1 − L (L blocks) for a row, n − K − L for the
+/// joint test. Blocks nested in a cluster dimension are left out of the CR1 factor, as for
+/// every absorbed fixed effect ([`Absorbed`]).
+///
 /// `covariates` is n × K and must be finite (complete cases are the caller's business).
 ///
 /// # Errors
 /// [`SummaryError::Length`], [`SummaryError::Empty`], [`SummaryError::EmptyArm`], and the
-/// [`EstimateError`]s of [`ols`] and [`wald`] (non-finite input, collinear covariates, too
-/// few clusters, a singular covariance block).
+/// [`EstimateError`]s of [`ols`] and [`wald`] (non-finite input, collinear covariates, an arm
+/// constant within every block, too few clusters, a singular covariance block).
 pub fn balance(
     covariates: &DMatrix<f64>,
     treated: &[bool],
     cov: &CovSpec,
+    blocks: Option<&FixedEffects>,
 ) -> Result<BalanceTable, SummaryError> {
     let (n, k) = covariates.shape();
     if k == 0 {
@@ -383,12 +437,10 @@ pub fn balance(
         return Err(SummaryError::NotFinite);
     }
     let rows = (0..k)
-        .map(|j| compare(covariates.column(j).as_slice(), treated, cov))
+        .map(|j| compare(covariates.column(j).as_slice(), treated, cov, blocks))
         .collect::<Result<Vec<_>, _>>()?;
-    let mut x = DMatrix::from_element(n, k + 1, 1.0);
-    x.columns_mut(1, k).copy_from(covariates);
-    let fit = ols(&indicator(treated), &x, true, cov, &Absorbed::NONE)?;
-    let indices: Vec<usize> = (1..=k).collect();
+    let (fit, at) = fit_with_blocks(indicator(treated).as_slice(), covariates, cov, blocks)?;
+    let indices: Vec<usize> = (at..at + k).collect();
     let w = wald(&fit.coef, &fit.cov, &indices)?;
     let df2 = match fit.coef_reference {
         Reference::StudentT { df } => df,
@@ -408,7 +460,8 @@ pub fn balance(
 /// # Formula
 /// The linear probability model observed = a + d·treated + e by OLS; the row reports the
 /// observed shares by arm (as means), d = q_treated − q_comparison and its SE under `cov`
-/// (a [`BalanceRow`] for the observed indicator).
+/// (a [`BalanceRow`] for the observed indicator). With `blocks`, the constant is replaced by
+/// absorbed block dummies as in [`balance`], so d is the within-block difference.
 ///
 /// # Errors
 /// [`SummaryError::Length`], [`SummaryError::EmptyArm`], and the [`EstimateError`]s of
@@ -417,10 +470,11 @@ pub fn differential_attrition(
     observed: &[bool],
     treated: &[bool],
     cov: &CovSpec,
+    blocks: Option<&FixedEffects>,
 ) -> Result<BalanceRow, SummaryError> {
     check_len("treated", observed.len(), treated.len())?;
     arm_counts(treated)?;
-    compare(indicator(observed).as_slice(), treated, cov)
+    compare(indicator(observed).as_slice(), treated, cov, blocks)
 }
 
 /// Which arm Lee bounds trim.
@@ -451,6 +505,37 @@ pub struct LeeBounds {
     pub n_observed_treated: usize,
     /// Observed outcomes in the comparison arm.
     pub n_observed_comparison: usize,
+    /// Standard error of `lower` (Lee 2009, Proposition 3; see [`lee_bounds`]).
+    pub se_lower: f64,
+    /// Standard error of `upper`.
+    pub se_upper: f64,
+}
+
+/// Mean, variance (divisor = the kept mass) and the value at the cut of the lowest `kept`
+/// mass of the ascending `sorted` values, the boundary observation weighted fractionally as
+/// in [`lower_trimmed_mean`].
+fn lower_trimmed_moments(sorted: &[f64], kept: f64) -> (f64, f64, f64) {
+    let mean = lower_trimmed_mean(sorted, kept);
+    let (mut remaining, mut ss, mut cut) = (kept, 0.0, f64::NAN);
+    for &v in sorted {
+        if remaining <= 0.0 {
+            break;
+        }
+        let w = remaining.min(1.0);
+        ss += w * (v - mean) * (v - mean);
+        cut = v;
+        remaining -= w;
+    }
+    (mean, ss / kept, cut)
+}
+
+/// Sampling variance of a trimmed mean of the trimmed arm (Lee 2009, Proposition 3): the
+/// truncated-mean term [σ² + p (y_cut − μ)²] / K and the term of the estimated trimming
+/// share ((y_cut − μ)/(1 − p))² Var(p̂).
+fn trimmed_mean_variance(moments: (f64, f64, f64), p: f64, kept: f64, var_p: f64) -> f64 {
+    let (mean, var, cut) = moments;
+    let gap = cut - mean;
+    (var + p * gap * gap) / kept + (gap / (1.0 - p)).powi(2) * var_p
 }
 
 /// Mean of the lowest share `keep` (in (0, 1]) of the ascending `sorted` values, with the
@@ -482,8 +567,18 @@ fn lower_trimmed_mean(sorted: &[f64], kept: f64) -> f64 {
 /// its lowest K) − ȳ_c and upper = (mean of its highest K) − ȳ_c; with the comparison arm
 /// trimmed, lower = ȳ_t − (mean of its highest K) and upper = ȳ_t − (mean of its lowest K).
 ///
-/// `outcome` is read only where `observed` is true (it may be NaN elsewhere). No standard
-/// errors are computed.
+/// Standard errors (Lee 2009, Proposition 3, typed from memory and re-derived here by the
+/// delta method from the influence functions of a truncated mean and of p̂; the two are
+/// uncorrelated because p̂ depends only on who is observed): with m_t, m_c the observed
+/// counts, Var(p̂) = (1 − p)² [(1 − q_l)/m_l + (1 − q_h)/m_h]; for a trimmed mean μ̂ of the
+/// trimmed arm with kept mass K, kept values' variance σ̂² (fractional weights, divisor K) and
+/// the value at the cut y_cut (the last kept value), Var(μ̂) = [σ̂² + p (y_cut − μ̂)²]/K +
+/// ((y_cut − μ̂)/(1 − p))² Var(p̂); the untrimmed arm's mean adds s²/m (divisor m). A bound's
+/// variance is the sum for the trimmed mean it uses and the untrimmed mean. Units are taken
+/// as sampled independently (no clusters), and at p = 0 the estimator sits at a kink of the
+/// trimming, where the normal approximation is poorest.
+///
+/// `outcome` is read only where `observed` is true (it may be NaN elsewhere).
 ///
 /// # Errors
 /// [`SummaryError::Length`], [`SummaryError::EmptyArm`] (an arm without observations or
@@ -528,12 +623,40 @@ pub fn lee_bounds(
     let trim_share = (q_high - q_low) / q_high;
     // Kept mass N_h q_l, never above the n observed (guards the rounding of equal shares).
     let kept = (n_high as f64 * q_low).min(high.len() as f64);
-    let low_mean = lower_trimmed_mean(high, kept);
+    let low = lower_trimmed_moments(high, kept);
     let reversed: Vec<f64> = high.iter().rev().copied().collect();
-    let high_mean = lower_trimmed_mean(&reversed, kept);
+    let top = lower_trimmed_moments(&reversed, kept);
+    let (low_mean, high_mean) = (low.0, top.0);
     let (lower, upper) = match trimmed_arm {
         TrimmedArm::Treated => (low_mean - mean(&yc), high_mean - mean(&yc)),
         TrimmedArm::Comparison => (mean(&yt) - high_mean, mean(&yt) - low_mean),
+    };
+    // Var(p̂) for p̂ = 1 − q_l/q_h by the delta method: (1 − p)² Σ_arms (1 − q)/m, m the
+    // arm's observed count.
+    let (m_low, m_high) = match trimmed_arm {
+        TrimmedArm::Treated => (yc.len(), yt.len()),
+        TrimmedArm::Comparison => (yt.len(), yc.len()),
+    };
+    let var_p = (1.0 - trim_share).powi(2)
+        * ((1.0 - q_low) / m_low as f64 + (1.0 - q_high) / m_high as f64);
+    let untrimmed = if trimmed_arm == TrimmedArm::Treated {
+        &yc
+    } else {
+        &yt
+    };
+    let u_mean = mean(untrimmed);
+    let var_untrimmed = untrimmed
+        .iter()
+        .map(|v| (v - u_mean) * (v - u_mean))
+        .sum::<f64>()
+        / (untrimmed.len() as f64).powi(2);
+    let var_low = trimmed_mean_variance(low, trim_share, kept, var_p) + var_untrimmed;
+    let var_high = trimmed_mean_variance(top, trim_share, kept, var_p) + var_untrimmed;
+    // The lower bound uses the lower trimmed mean when the treated arm is trimmed and the
+    // upper one when the comparison arm is.
+    let (se_lower, se_upper) = match trimmed_arm {
+        TrimmedArm::Treated => (var_low.sqrt(), var_high.sqrt()),
+        TrimmedArm::Comparison => (var_high.sqrt(), var_low.sqrt()),
     };
     Ok(LeeBounds {
         lower,
@@ -544,6 +667,8 @@ pub fn lee_bounds(
         observed_share_comparison: qc,
         n_observed_treated: yt.len(),
         n_observed_comparison: yc.len(),
+        se_lower,
+        se_upper,
     })
 }
 
@@ -823,7 +948,7 @@ mod tests {
         for case in doc["cases"].as_array().unwrap() {
             let kind = case["kind"].as_str().unwrap();
             let s = spec(kind, &clusters);
-            let table = balance(&x, &treated, &s).unwrap();
+            let table = balance(&x, &treated, &s, None).unwrap();
             let diff = floats(&case["difference"]);
             let se = floats(&case["std_error"]);
             let p = floats(&case["p_value"]);
@@ -846,7 +971,7 @@ mod tests {
                     df2
                 }
             );
-            let a = differential_attrition(&observed, &treated, &s).unwrap();
+            let a = differential_attrition(&observed, &treated, &s, None).unwrap();
             let att = &case["attrition"];
             assert!(close(
                 a.difference,

@@ -14,6 +14,7 @@
 mod bky;
 mod correction;
 mod normal;
+mod partial;
 mod quantile;
 mod special;
 mod stepdown;
@@ -24,6 +25,7 @@ mod tests;
 
 pub use bky::bky_q_values;
 pub use correction::{adjust, Correction};
+pub use partial::{imbens_manski_interval, ImbensManski};
 pub use quantile::quantile;
 pub use stepdown::{
     romano_wolf, romano_wolf_enumerated, StepDownError, OBSERVED_DRAW_TOLERANCE, TIE_TOLERANCE,

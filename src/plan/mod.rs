@@ -149,8 +149,11 @@ pub struct Balance {
     pub by: String,
     /// Covariates.
     pub covariates: Vec<String>,
-    /// Standard errors.
+    /// Standard errors (the registered clusters when `[assignment]` is clustered).
     pub errors: Errors,
+    /// The registered blocks, absorbed as fixed effects (when `by` is the `[assignment]`
+    /// variable of a blocked design).
+    pub blocks: Option<String>,
 }
 
 /// Attrition checks.
@@ -164,8 +167,12 @@ pub struct Attrition {
     pub observed: (String, Expr),
     /// Outcomes to bound.
     pub bounds: Vec<String>,
-    /// Standard errors of the differential-attrition test.
+    /// Standard errors of the differential-attrition test (the registered clusters when
+    /// `[assignment]` is clustered).
     pub errors: Errors,
+    /// The registered blocks, absorbed as fixed effects in the differential-attrition test
+    /// (when `by` is the `[assignment]` variable of a blocked design).
+    pub blocks: Option<String>,
 }
 
 /// `[resampling]`.

@@ -245,11 +245,13 @@ pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Ba
             "the arm indicator cannot be its own covariate",
         ));
     }
+    let (errors, blocks) = registered_design(ctx, plan, t, &b.by, b.errors.as_ref(), "balance")?;
     Ok(Some(Balance {
         data: t.id.clone(),
         by,
         covariates,
-        errors: summary_errors(ctx, b.errors.as_ref(), t, "balance.errors")?,
+        errors,
+        blocks,
     }))
 }
 
@@ -276,12 +278,14 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
             )
         })
         .collect::<Result<Vec<_>>>()?;
+    let (errors, blocks) = registered_design(ctx, plan, t, &a.by, a.errors.as_ref(), "attrition")?;
     Ok(Some(Attrition {
         data: t.id.clone(),
         by,
         observed,
         bounds,
-        errors: summary_errors(ctx, a.errors.as_ref(), t, "attrition.errors")?,
+        errors,
+        blocks,
     }))
 }
 
@@ -301,4 +305,62 @@ fn summary_errors(
         )),
         _ => Ok(e),
     }
+}
+
+/// The errors and blocks of a balance or attrition check. When `by` is the variable
+/// `[assignment]` randomizes, the check follows the registered design: its blocks are
+/// absorbed as fixed effects, and under a clustered design the errors are clustered at the
+/// registered clusters (the default when `errors` is left out; any other `errors` must
+/// cluster by them, alone or with a second dimension). Otherwise `errors` alone decides.
+fn registered_design(
+    ctx: &Ctx,
+    plan: &Plan,
+    t: &DataSource,
+    by: &Spanned<String>,
+    raw: Option<&toml::Spanned<toml::Value>>,
+    section: &str,
+) -> Result<(Errors, Option<String>)> {
+    let key = format!("{section}.errors");
+    let design = plan
+        .assignment
+        .as_ref()
+        .filter(|a| &a.variable == by.get_ref());
+    let Some(a) = design else {
+        return Ok((summary_errors(ctx, raw, t, &key)?, None));
+    };
+    for column in a.blocks.iter().chain(&a.clusters) {
+        if !t.columns.contains_key(column) {
+            return Err(ctx.at(
+                by,
+                format!("{section}.by"),
+                format!(
+                    "`{}` is the [assignment] variable, so this check follows the registered design, but its block or cluster column `{column}` is not in data table `{}`; add the column to [data.{}] or check another table",
+                    by.get_ref(),
+                    t.id,
+                    t.id
+                ),
+            ));
+        }
+    }
+    let errors = match (&a.clusters, raw) {
+        (Some(c), None) => Errors::Cluster(vec![c.clone()]),
+        (Some(c), Some(v)) => {
+            let e = summary_errors(ctx, Some(v), t, &key)?;
+            match &e {
+                Errors::Cluster(dims) if dims.contains(c) => e,
+                _ => {
+                    return Err(ctx.at(
+                        v,
+                        &key,
+                        format!(
+                            "[assignment] randomized `{}` by cluster `{c}`, so these errors must be clustered by it: write errors = {{ kind = \"cluster\", by = \"{c}\" }} or leave errors out (it is then the default)",
+                            a.variable
+                        ),
+                    ))
+                }
+            }
+        }
+        (None, _) => summary_errors(ctx, raw, t, &key)?,
+    };
+    Ok((errors, a.blocks.clone()))
 }

@@ -269,8 +269,10 @@ impl ReportModel {
                 .collect(),
             balance: r.balance.as_ref().map(|b| BalanceModel {
                 heading: format!(
-                    "By `{}` ({} complete rows; differences from OLS on the arm with {} errors)",
-                    b.by, b.n, b.errors
+                    "By `{}` ({} complete rows; {})",
+                    b.by,
+                    b.n,
+                    summary_design(b.errors, &b.clusters, b.blocks.as_ref())
                 ),
                 rows: b
                     .covariates
@@ -284,7 +286,14 @@ impl ReportModel {
                         p: pval(v.test.p_value),
                     })
                     .collect(),
-                joint: test_line("joint test (the arm on all covariates)", &b.joint),
+                joint: test_line(
+                    if b.blocks.is_some() {
+                        "joint test (the arm on all covariates and the blocks)"
+                    } else {
+                        "joint test (the arm on all covariates)"
+                    },
+                    &b.joint,
+                ),
             }),
             attrition: attrition_lines(r),
             tables: plan.tables.iter().map(|t| table_model(t, r)).collect(),
@@ -441,13 +450,41 @@ fn seal_state_line(r: &Results) -> String {
     }
 }
 
+/// How a balance or attrition regression was run: the difference (within the registered
+/// blocks, when absorbed) and the errors (naming the cluster columns).
+fn summary_design(
+    errors: &str,
+    clusters: &[String],
+    blocks: Option<&crate::results::BlocksUsed>,
+) -> String {
+    let errors = if clusters.is_empty() {
+        format!("{errors} errors")
+    } else {
+        let by: Vec<String> = clusters.iter().map(|c| format!("`{c}`")).collect();
+        format!("errors clustered by {}", by.join(" and "))
+    };
+    match blocks {
+        None => format!("differences from OLS on the arm with {errors}"),
+        Some(b) => format!(
+            "within-block differences from OLS on the arm with the {} registered blocks of `{}` as fixed effects{}, {errors}",
+            b.levels,
+            b.column,
+            match b.singletons_dropped {
+                0 => String::new(),
+                1 => " (1 row alone in its block left out)".to_string(),
+                k => format!(" ({k} rows alone in their block left out)"),
+            }
+        ),
+    }
+}
+
 fn attrition_lines(r: &Results) -> Vec<String> {
     let Some(a) = &r.attrition else {
         return Vec::new();
     };
     let d = &a.differential;
     let mut lines = vec![format!(
-        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}, {} errors), {}",
+        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}; {}), {}",
         a.observed,
         num(d.mean_comparison),
         d.n_comparison,
@@ -455,16 +492,37 @@ fn attrition_lines(r: &Results) -> Vec<String> {
         d.n_treated,
         num(d.difference),
         num(d.std_error),
-        a.errors,
+        summary_design(a.errors, &a.clusters, a.blocks.as_ref()),
         p_is(d.test.p_value)
     )];
-    for (y, b) in &a.bounds {
+    if let (Some(b), false) = (&a.blocks, a.bounds.is_empty()) {
         lines.push(format!(
-            "Lee (2009) bounds on the effect on `{y}` for units observed in either arm: [{}, {}] (the {} arm trimmed by {})",
+            "The Lee bounds below pool the blocks of `{}`: they are computed on the arms as wholes, not within blocks, which bounds the effect only if every block assigned the same share of units to treatment.",
+            b.column
+        ));
+    }
+    for (y, b) in &a.bounds {
+        let interval = match (&b.interval, &b.no_interval) {
+            (Some([lo, hi]), _) => format!(
+                "; {}% interval for the effect (Imbens and Manski 2004, critical value {}): [{}, {}]",
+                (1e6 * 100.0 * b.interval_level).round() / 1e6,
+                num(b.interval_critical_value.unwrap_or(f64::NAN)),
+                num(*lo),
+                num(*hi)
+            ),
+            (None, Some(why)) => format!("; no interval: {why}"),
+            (None, None) => String::new(),
+        };
+        lines.push(format!(
+            "Lee (2009) bounds on the effect on `{y}` for units observed in either arm: [{}, {}] (the {} arm trimmed by {}{}){interval}",
             num(b.lower),
             num(b.upper),
             b.trimmed_arm,
-            num(b.trim_share)
+            num(b.trim_share),
+            match (b.std_error_lower, b.std_error_upper) {
+                (Some(l), Some(u)) => format!("; s.e. {} and {}", num(l), num(u)),
+                _ => String::new(),
+            }
         ));
     }
     lines
@@ -543,19 +601,33 @@ fn method_text(h: &crate::results::HypothesisResult) -> String {
 /// number of draws and whether the observed one is counted, exact or sampled, the seed and
 /// the counting rule, all formatted from the hypothesis's `resampling` record in results.json.
 fn resampling_lines(plan: &Plan, r: &Results) -> Vec<String> {
-    plan.hypotheses
-        .iter()
-        .filter_map(|h| {
-            let info = r.hypotheses.get(&h.id)?.resampling.as_ref()?;
-            Some(format!(
-                "{}: {}; {}; {}.",
+    let mut out = Vec::new();
+    for h in &plan.hypotheses {
+        let Some(res) = r.hypotheses.get(&h.id) else {
+            continue;
+        };
+        let Some(info) = res.resampling.as_ref() else {
+            continue;
+        };
+        out.push(format!(
+            "{}: {}; {}; {}.",
+            h.id,
+            resampling_procedure(info),
+            resampling_count(info),
+            resampling_p_value(info)
+        ));
+        if let Some(i) = &res.randomization_interval {
+            out.push(format!(
+                "{}: the {}% randomization interval is the set of constant additive effects τ (every unit's outcome moved by τ when treated) that the two-sided test does not reject at {}: {} candidate effects tested, each on the same draws, stepping out from the estimate by its standard error times 1, 2, 4, … (up to 4096) and then bisecting, so each end lies within {} of a rejected effect; an end with no rejection found is shown as unbounded.",
                 h.id,
-                resampling_procedure(info),
-                resampling_count(info),
-                resampling_p_value(info)
-            ))
-        })
-        .collect()
+                (1e6 * 100.0 * i.level).round() / 1e6,
+                num(1.0 - i.level),
+                i.evaluations,
+                num(i.tolerance)
+            ));
+        }
+    }
+    out
 }
 
 /// The procedure and what it re-draws, in words.
@@ -645,6 +717,16 @@ fn resampling_p_value(i: &crate::results::ResamplingInfo) -> String {
     )
 }
 
+/// A randomization interval's text, unbounded ends as ∞.
+fn ri_interval_text(i: &crate::results::RandomizationIntervalResult) -> String {
+    format!(
+        "randomization {}%: [{}, {}]",
+        (1e6 * 100.0 * i.level).round() / 1e6,
+        i.lower.map_or("−∞".to_string(), num),
+        i.upper.map_or("+∞".to_string(), num)
+    )
+}
+
 fn hyp_row(id: &str, r: &Results) -> HypRow {
     let h = &r.hypotheses[id];
     let opt = |v: Option<f64>, f: fn(f64) -> String| v.map_or("n/a".to_string(), f);
@@ -685,7 +767,10 @@ fn hyp_row(id: &str, r: &Results) -> HypRow {
                 100.0 * (1.0 - h.alpha),
                 h.ci.as_deref().map_or("n/a".to_string(), set_text)
             ),
-            _ => h.ci.as_deref().map_or("n/a".to_string(), set_text),
+            _ => match &h.randomization_interval {
+                Some(i) => ri_interval_text(i),
+                None => h.ci.as_deref().map_or("n/a".to_string(), set_text),
+            },
         },
         estimate: opt(h.estimate, num),
         p: opt(h.p_value, pval),
@@ -969,6 +1054,12 @@ fn cautions(r: &Results) -> Vec<String> {
     }
     if r.hypotheses.values().any(|h| h.method == "randomization") {
         c.push("Randomization p-values test the sharp null that the assignment changed no unit's outcome beyond the stated null value, a stronger hypothesis than a zero average effect; they are exact given the registered assignment design, so they are only as good as the record of how the assignment was actually drawn.".into());
+        if r.hypotheses
+            .values()
+            .any(|h| h.randomization_interval.is_some())
+        {
+            c.push("A randomization interval collects the effects the test does not reject if every unit's outcome moves by the same amount when treated; with effects that differ between units it is not an interval for the average effect.".into());
+        }
     }
     if r.hypotheses.values().any(|h| h.method == "wild-bootstrap") {
         c.push("Wild cluster bootstrap p-values are more reliable than cluster-robust t-tests when clusters are few, but remain approximations; with very few treated clusters they can mislead as well.".into());
@@ -993,7 +1084,7 @@ fn cautions(r: &Results) -> Vec<String> {
         ));
     }
     if r.attrition.as_ref().is_some_and(|a| !a.bounds.is_empty()) {
-        c.push("Lee bounds bound the effect for units whose outcome would be observed in either arm, assuming assignment affects whether an outcome is observed in one direction only.".into());
+        c.push("Lee bounds bound the effect for units whose outcome would be observed in either arm, assuming assignment affects whether an outcome is observed in one direction only. Their interval (Imbens and Manski 2004) covers that effect, not the whole bounded set, and rests on a large-sample normal approximation for independently sampled units.".into());
     }
     c.push("A verified run shows that the registered plan was followed on these data; it does not show that the design is sound or that its assumptions hold. Decisions rest with the study's own review and its registry's rules.".into());
     c

@@ -2,6 +2,7 @@
 
 mod ar_curve;
 mod bad_input;
+mod blocked_summaries;
 mod common;
 mod contingency;
 mod deviations;
@@ -14,6 +15,7 @@ mod history;
 mod hostile;
 mod init;
 mod integrity;
+mod intervals;
 mod json;
 mod nist;
 mod readme;
