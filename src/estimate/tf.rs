@@ -40,9 +40,10 @@
 //! # Numerics
 //! The sup over f₀ is taken on a grid (geometric on [1e-4, 1], step 0.25 on [1, 60],
 //! geometric on [60, 1e5], plus both limits), each grid-local maximum refined by
-//! golden-section search in log f₀ to 1e-12; c_α(F) is found by bisection in c to 1e-13
-//! relative. The grid step bounds how narrow a peak of R in f₀ could be missed; R varies on
-//! the scale of the N(0, 1) noise, which the grid resolves.
+//! golden-section search in log f₀ to 1e-12; c_α(F) is found by a safeguarded Illinois
+//! regula falsi in c (`bracket_root`) to a bracket of 1e-13 relative. The grid step bounds
+//! how narrow a peak of R in f₀ could be missed; R varies on the scale of the N(0, 1) noise,
+//! which the grid resolves.
 
 use crate::distribution::Reference;
 use crate::inference::{lower_tail, quantile, upper_tail};
