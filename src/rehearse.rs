@@ -24,10 +24,11 @@ mod summary;
 mod tests;
 
 pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
+pub use figure::{power_curve_svg, PowerSeries};
 pub use html::page as html;
 pub use latex::latex;
 pub use render::markdown;
-pub use summary::{Rehearsed, WILSON_Z};
+pub use summary::{wilson, Rehearsed, WILSON_Z};
 
 use crate::error::{Error, Result};
 use crate::plan::Plan;
@@ -138,7 +139,7 @@ pub fn rehearse(
 /// Simulate replication `r` at `effect` and run the registered analysis on it.
 fn one(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<Outcome> {
     let tables = simulate::tables(plan, seed, r, effect)?;
-    let a = match crate::analysis::analyse(plan, &tables, None, None) {
+    let a = match crate::analysis::analyse(plan, &tables, None, None, false) {
         Ok(a) => a,
         Err(e) => {
             return Ok(Outcome {

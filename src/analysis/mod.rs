@@ -93,6 +93,7 @@ pub fn execute(
         tables,
         integrity.registered_specs.as_ref(),
         integrity.registered_hypotheses.as_ref(),
+        true,
     )?;
     devs.extend(a.deviations);
     let (fitted, mut hypotheses, contingencies) = (a.fitted, a.hypotheses, a.contingencies);
@@ -215,12 +216,14 @@ pub(crate) struct Analysed {
 /// Fit every specification, evaluate the decision rules and test every hypothesis of `plan`
 /// on `tables`. `registered_specs` / `registered_hypotheses` are the ids registered before the
 /// data were first read (None: no restriction known); the others are disclosed as added.
+/// `intervals`: invert randomization tests into intervals (a run; not a rehearsal).
 /// No I/O; the same call serves a run, its verification and a rehearsal.
 pub(crate) fn analyse(
     plan: &Plan,
     tables: &BTreeMap<String, Table>,
     registered_specs: Option<&std::collections::BTreeSet<String>>,
     registered_hypotheses: Option<&std::collections::BTreeSet<String>>,
+    intervals: bool,
 ) -> Result<Analysed> {
     let mut devs = Vec::new();
     let mut fitted = BTreeMap::new();
@@ -243,6 +246,7 @@ pub(crate) fn analyse(
                 assignment: plan.assignment.as_ref(),
                 resampling: plan.resampling,
                 alpha: plan.inference.alpha,
+                intervals,
             };
             spec::fit_spec(s, &tables[&s.data], source, need, &rc)
         })

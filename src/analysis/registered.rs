@@ -96,7 +96,7 @@ fn run(plan: &Plan, canonical: &str) -> Result<Analysed, String> {
             declared.join(", ")
         )
     })?;
-    analyse(&registered, &tables, None, None)
+    analyse(&registered, &tables, None, None, true)
         .map_err(|e| format!("it stops with an error: {}", portable(&e)))
 }
 

@@ -280,6 +280,10 @@ pub struct ResampleContext<'a> {
     pub resampling: Option<Resampling>,
     /// The plan's `[inference]` alpha (randomization intervals invert the test at it).
     pub alpha: f64,
+    /// Whether to invert randomization tests into intervals (a run and its verification do;
+    /// a rehearsal, which reports only whether each hypothesis is supported, does not: the
+    /// inversion costs some fifty further tests per hypothesis).
+    pub intervals: bool,
 }
 
 /// Estimate `spec` on `table`, computing also what `needs` asks for.
@@ -642,7 +646,11 @@ fn resample(
                     statistic,
                     plan: &draws,
                 };
-                let interval = ri_interval(&problem, rc.alpha).map_err(err)?;
+                let interval = if rc.intervals {
+                    ri_interval(&problem, rc.alpha).map_err(err)?
+                } else {
+                    None
+                };
                 Ok((test, interval))
             } else {
                 estimate::randomization_ar(

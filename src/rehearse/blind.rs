@@ -217,7 +217,7 @@ pub fn blinded(plan: &Plan, tables: &BTreeMap<String, Table>, seed: u64) -> Resu
         error: None,
         cautions: CAUTIONS.to_vec(),
     };
-    match crate::analysis::analyse(plan, &redrawn, None, None) {
+    match crate::analysis::analyse(plan, &redrawn, None, None, false) {
         Ok(a) => {
             for (id, f) in &a.fitted {
                 let spec = BlindSpec {

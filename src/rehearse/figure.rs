@@ -20,12 +20,45 @@ pub(super) const PALETTE: [RGBColor; 6] = [
     RGBColor(183, 28, 28),
 ];
 
+/// One hypothesis's curve: its id and, per effect size, (effect, share, interval low, high).
+pub struct PowerSeries {
+    /// Hypothesis id.
+    pub id: String,
+    /// (effect, share supporting the claim, 95% Wilson interval low, high).
+    pub points: Vec<(f64, f64, f64, f64)>,
+}
+
 /// The power curve as an SVG document, or why it could not be drawn.
 ///
 /// # Errors
 /// A plotting error, as text.
 pub fn power_curve(r: &Rehearsed) -> Result<String, String> {
-    let xmax = r.effects.iter().copied().fold(0.0_f64, f64::max);
+    let series: Vec<PowerSeries> = r
+        .hypotheses
+        .iter()
+        .map(|(id, h)| PowerSeries {
+            id: id.clone(),
+            points: h
+                .curve
+                .iter()
+                .map(|c| (c.effect, c.power.share, c.power.low, c.power.high))
+                .collect(),
+        })
+        .collect();
+    power_curve_svg(&r.effects, r.target_power, &series)
+}
+
+/// The power curve of `series` over `effects` with the `target` line, as an SVG document
+/// (also drawn in a run's report.html from the power its ledger records for a rehearsal).
+///
+/// # Errors
+/// A plotting error, as text.
+pub fn power_curve_svg(
+    effects: &[f64],
+    target: f64,
+    series: &[PowerSeries],
+) -> Result<String, String> {
+    let xmax = effects.iter().copied().fold(0.0_f64, f64::max);
     let xpad = (xmax * 0.04).max(1e-9);
     let mut out = String::new();
     {
@@ -49,7 +82,6 @@ pub fn power_curve(r: &Rehearsed) -> Result<String, String> {
             .label_style(("sans-serif", 12))
             .draw()
             .map_err(|e| e.to_string())?;
-        let target = r.target_power;
         chart
             .draw_series(DashedLineSeries::new(
                 vec![(-xpad, target), (xmax + xpad, target)],
@@ -60,23 +92,19 @@ pub fn power_curve(r: &Rehearsed) -> Result<String, String> {
             .map_err(|e| e.to_string())?
             .label(format!("target power {target}"))
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], BLACK.mix(0.6)));
-        for (i, (id, h)) in r.hypotheses.iter().enumerate() {
+        for (i, s) in series.iter().enumerate() {
             let color = PALETTE[i % PALETTE.len()];
-            let points: Vec<(f64, f64)> =
-                h.curve.iter().map(|c| (c.effect, c.power.share)).collect();
+            let points: Vec<(f64, f64)> = s.points.iter().map(|p| (p.0, p.1)).collect();
             chart
                 .draw_series(LineSeries::new(points.clone(), color.stroke_width(2)))
                 .map_err(|e| e.to_string())?
-                .label(crate::escape::line(id))
+                .label(crate::escape::line(&s.id))
                 .legend(move |(x, y)| {
                     PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2))
                 });
             chart
-                .draw_series(h.curve.iter().map(|c| {
-                    PathElement::new(
-                        vec![(c.effect, c.power.low), (c.effect, c.power.high)],
-                        color.mix(0.7).stroke_width(1),
-                    )
+                .draw_series(s.points.iter().map(|p| {
+                    PathElement::new(vec![(p.0, p.2), (p.0, p.3)], color.mix(0.7).stroke_width(1))
                 }))
                 .map_err(|e| e.to_string())?;
             chart

@@ -21,6 +21,33 @@ pub struct RehearsalModel {
     others: Vec<String>,
     /// What rehearsed power rests on.
     caution: String,
+    /// The cited rehearsal's power curve as inline SVG (report.html only), drawn from the
+    /// power its ledger entry records; none when it records none.
+    figure: Option<String>,
+}
+
+/// The power curve of a ledger power record: each share with its 95% Wilson interval over
+/// the recorded number of simulated data sets.
+fn power_figure(p: &PowerRecord) -> Option<String> {
+    let n = p.replications;
+    let series: Vec<crate::rehearse::PowerSeries> = p
+        .hypotheses
+        .iter()
+        .map(|(id, h)| crate::rehearse::PowerSeries {
+            id: id.clone(),
+            points: p
+                .effects
+                .iter()
+                .zip(&h.power)
+                .map(|(&e, &share)| {
+                    let k = (share * n as f64).round() as usize;
+                    let w = crate::rehearse::wilson(k, n);
+                    (e, share, w.low, w.high)
+                })
+                .collect(),
+        })
+        .collect();
+    crate::rehearse::power_curve_svg(&p.effects, p.target_power, &series).ok()
 }
 
 const CAUTION: &str = "Rehearsed power is a Monte Carlo estimate under the data-generating process the plan's [rehearsal] section states: base rates, take-up, intra-cluster correlation and covariate strength are assumptions, not measurements, and power rests on them. It says nothing about whether the design identifies the effect.";
@@ -111,6 +138,7 @@ pub fn build(r: &Results) -> Option<RehearsalModel> {
             rows: Vec::new(),
             others,
             caution: CAUTION.into(),
+            figure: None,
         });
     };
     let registered_at = r.registration.as_ref().map_or(String::new(), |p| {
@@ -141,5 +169,6 @@ pub fn build(r: &Results) -> Option<RehearsalModel> {
         rows: c.power.as_ref().map(power_rows).unwrap_or_default(),
         others,
         caution: CAUTION.into(),
+        figure: c.power.as_ref().and_then(power_figure),
     })
 }

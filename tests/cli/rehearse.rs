@@ -147,6 +147,19 @@ fn a_run_cites_the_rehearsal_made_before_registration_as_power_stated_in_advance
         assert!(text.contains(&sha), "{report}: no assumptions fingerprint");
         assert!(text.contains("power rests on them"), "{report}: no caution");
     }
+    // report.html draws the cited rehearsal's power curve (an inline SVG, with its legend
+    // naming the hypotheses); the after-registration case below draws none.
+    let html = s.read("out/report.html");
+    let at = html
+        .find("<h4>Power as rehearsed, by effect size</h4>")
+        .expect("power-curve figure in report.html");
+    let figure = &html[at..];
+    assert!(
+        figure.starts_with("<h4>Power as rehearsed, by effect size</h4>\n<svg"),
+        "{figure}"
+    );
+    let svg = &figure[..figure.find("</svg>").expect("closed svg")];
+    assert!(svg.contains("H1"), "legend lacks H1: {svg}");
     let md = s.read("out/report.md");
     let power = h1.as_f64().expect("share");
     assert!(
@@ -168,6 +181,9 @@ fn a_rehearsal_after_registration_or_after_the_data_is_cited_as_such() {
     let md = s.read("out/report.md");
     assert!(md.contains("## Power as rehearsed\n"), "{md}");
     assert!(!md.contains("Power as rehearsed before the data"), "{md}");
+    assert!(!s
+        .read("out/report.html")
+        .contains("Power as rehearsed, by effect size"));
     assert!(
         md.contains("No rehearsal precedes the registered version"),
         "{md}"
