@@ -256,7 +256,7 @@ pub(crate) fn record_inspection(
 fn deviation_json(d: &crate::deviation::Deviation) -> serde_json::Value {
     serde_json::json!({
         "severity": d.severity.name(),
-        "code": d.code,
+        "code": d.code.as_str(),
         "subject": d.subject,
         "message": d.message,
     })

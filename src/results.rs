@@ -909,8 +909,7 @@ mod tests {
             balance: None,
             attrition: None,
             deviations: vec![Deviation::new(
-                "x",
-                crate::deviation::Severity::Note,
+                crate::deviation::DeviationCode::Exploratory,
                 "s",
                 "m",
             )],

@@ -7,7 +7,7 @@
 //! sample holds the breach cannot be randomization-tested and stops the run).
 
 use crate::data::Table;
-use crate::deviation::{Deviation, Severity};
+use crate::deviation::{Deviation, DeviationCode};
 use crate::plan::Plan;
 use std::collections::BTreeMap;
 
@@ -46,8 +46,7 @@ pub fn check(plan: &Plan, tables: &BTreeMap<String, Table>) -> Vec<Deviation> {
     for t in tables.values() {
         if let Some((g, x, y)) = first_varying(t, c, &a.variable) {
             devs.push(Deviation::new(
-                "assignment-varies-in-cluster",
-                Severity::Deviation,
+                DeviationCode::AssignmentVariesInCluster,
                 format!("{}.{}", t.id, a.variable),
                 format!(
                     "the assignment is declared clustered by `{c}`, but `{}` takes both {x} and {y} within cluster `{g}`; check the data or the [assignment] clusters column (randomization inference on rows holding this cluster will stop)",
@@ -58,8 +57,7 @@ pub fn check(plan: &Plan, tables: &BTreeMap<String, Table>) -> Vec<Deviation> {
         if let Some(b) = &a.blocks {
             if let Some((g, x, y)) = first_varying(t, c, b) {
                 devs.push(Deviation::new(
-                    "assignment-cluster-spans-blocks",
-                    Severity::Deviation,
+                    DeviationCode::AssignmentClusterSpansBlocks,
                     format!("{}.{c}", t.id),
                     format!(
                         "cluster `{g}` of `{c}` lies in blocks {x} and {y} of `{b}`; in a blocked cluster design each cluster lies in one block"

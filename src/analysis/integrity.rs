@@ -2,7 +2,7 @@
 //! registered version (the plan in force when the data were first seen; see
 //! [`crate::ledger::Moment`]) and every element of the executed plan classified against it.
 
-use crate::deviation::{Deviation, Severity};
+use crate::deviation::{Deviation, DeviationCode};
 use crate::ledger::{Entry, Event, Ledger, Line, PlanPrint};
 use crate::plan::canonical::changed_keys;
 use crate::plan::compare::{element_changes, element_names, Change, Kind};
@@ -45,8 +45,7 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
     let problems = ledger.problems();
     for p in &problems {
         devs.push(Deviation::new(
-            "ledger-broken",
-            Severity::Integrity,
+            DeviationCode::LedgerBroken,
             "ledger",
             p.clone(),
         ));
@@ -65,7 +64,7 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
     match (latest, matching) {
         (None, _) => {
             state = "not-sealed";
-            devs.push(Deviation::new("unsealed", Severity::Integrity, "plan", "the plan was never sealed: nothing shows it was fixed before the data were seen (run `sworn seal PLAN` before the data arrive)"));
+            devs.push(Deviation::new(DeviationCode::Unsealed, "plan", "the plan was never sealed: nothing shows it was fixed before the data were seen (run `sworn seal PLAN` before the data arrive)"));
         }
         (Some(last), Some((_, m))) if m.seq == last.seq => {
             if last
@@ -74,7 +73,7 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
                 .is_some_and(|p| p.bytes_sha256 != print.bytes_sha256)
             {
                 state = "sealed-cosmetic-change";
-                devs.push(Deviation::new("plan-cosmetic-change", Severity::Note, "plan", "the plan file changed since its last ledger entry, but only in comments or layout; its content is unchanged"));
+                devs.push(Deviation::new(DeviationCode::PlanCosmeticChange, "plan", "the plan file changed since its last ledger entry, but only in comments or layout; its content is unchanged"));
             }
         }
         (Some(last), m) => {
@@ -84,13 +83,12 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
                 .as_ref()
                 .map(|p| changed_keys(&p.canonical, &print.canonical))
                 .unwrap_or_default();
-            let (code, sev, what) = match m {
-                Some(_) => ("plan-not-latest", Severity::Deviation, "the plan matches an earlier ledger entry, not the latest amendment"),
-                None => ("plan-changed", Severity::Integrity, "the plan's content changed since its last ledger entry and matches no entry (record changes with `sworn amend PLAN --reason ...`)"),
+            let (code, what) = match m {
+                Some(_) => (DeviationCode::PlanNotLatest, "the plan matches an earlier ledger entry, not the latest amendment"),
+                None => (DeviationCode::PlanChanged, "the plan's content changed since its last ledger entry and matches no entry (record changes with `sworn amend PLAN --reason ...`)"),
             };
             devs.push(Deviation::new(
                 code,
-                sev,
                 "plan",
                 format!("{what}; changed keys: {}", keys.join(", ")),
             ));
@@ -130,8 +128,7 @@ fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec
     for (id, sha) in data {
         match recorded.get(id) {
             Some(r) if r != sha => devs.push(Deviation::new(
-                "data-changed",
-                Severity::Integrity,
+                DeviationCode::DataChanged,
                 id.clone(),
                 format!(
                     "data file of [data.{id}] changed since it was {seen} ({} at {}, now {})",
@@ -141,8 +138,7 @@ fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec
                 ),
             )),
             None => devs.push(Deviation::new(
-                "data-added",
-                Severity::Deviation,
+                DeviationCode::DataAdded,
                 id.clone(),
                 format!(
                     "[data.{id}] was not among the data {seen} at {}",
@@ -282,8 +278,7 @@ fn amended_deviation(
         (None, _) => " and no amendment records it".to_string(),
     };
     Some(Deviation::new(
-        "amended-after-data",
-        Severity::Deviation,
+        DeviationCode::AmendedAfterData,
         change.element.clone(),
         format!(
             "{} {when}{by}; the registered version (ledger line {}, fingerprint {}) differs{keys}",

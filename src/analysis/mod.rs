@@ -20,7 +20,7 @@ mod spec;
 mod summaries;
 
 use crate::data::{load_table, Table};
-use crate::deviation::{self, Deviation, Severity};
+use crate::deviation::{self, Deviation, DeviationCode};
 use crate::error::Result;
 use crate::ledger::{Ledger, PlanPrint, TOOL_VERSION};
 use crate::plan::Plan;
@@ -111,8 +111,7 @@ pub fn execute(
                         integrity.registered_hypotheses.as_ref(),
                     );
                     devs.push(Deviation::new(
-                        "registered-version-failed",
-                        Severity::Integrity,
+                        DeviationCode::RegisteredVersionFailed,
                         "plan",
                         format!(
                             "the plan was amended after the data were seen, and its registered version (ledger line {}) could not be run beside it: {}; only the amended analysis is reported",
@@ -260,7 +259,7 @@ pub(crate) fn analyse(
     let hypotheses = hypotheses::test_all(plan, &fitted, &subs, registered_hypotheses);
     for (id, h) in &hypotheses {
         if registered_hypotheses.is_some_and(|r| !r.contains(id)) {
-            devs.push(Deviation::new("hypothesis-added-after-data", Severity::Deviation, id.clone(), format!("this hypothesis was added by an amendment after the data were first read: it is not pre-registered and is corrected apart from the registered members of its family{}", h.family.as_deref().map_or(String::new(), |f| format!(" `{f}`")))));
+            devs.push(Deviation::new(DeviationCode::HypothesisAddedAfterData, id.clone(), format!("this hypothesis was added by an amendment after the data were first read: it is not pre-registered and is corrected apart from the registered members of its family{}", h.family.as_deref().map_or(String::new(), |f| format!(" `{f}`")))));
         }
     }
     Ok(Analysed {
@@ -281,15 +280,14 @@ fn spec_deviations(
     devs.append(&mut f.deviations);
     if s.exploratory {
         devs.push(Deviation::new(
-            "exploratory",
-            Severity::Note,
+            DeviationCode::Exploratory,
             s.id.clone(),
             "marked exploratory in the plan: reported apart, not pre-registered",
         ));
     }
     if registered.is_some_and(|r| !r.contains(&s.id)) {
         f.result.pre_registered = false;
-        devs.push(Deviation::new("added-after-data", Severity::Deviation, s.id.clone(), "this specification was added by an amendment after the data were first read: it is not pre-registered"));
+        devs.push(Deviation::new(DeviationCode::AddedAfterData, s.id.clone(), "this specification was added by an amendment after the data were first read: it is not pre-registered"));
     }
     let sample = &f.result.sample;
     let share = if sample.in_sample == 0 {
@@ -299,7 +297,7 @@ fn spec_deviations(
     };
     if let Some(max) = plan.data[&s.data].max_missing_share {
         if share > max {
-            devs.push(Deviation::new("missing-share", Severity::Deviation, s.id.clone(), format!(
+            devs.push(Deviation::new(DeviationCode::MissingShare, s.id.clone(), format!(
                 "listwise deletion dropped {} of {} sample rows ({:.1}%), above the declared max_missing_share of {:.1}%",
                 sample.dropped_missing, sample.in_sample, 100.0 * share, 100.0 * max
             )));

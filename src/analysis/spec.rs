@@ -1,7 +1,7 @@
 //! Estimating one specification: design → collinearity check → fit → diagnostics → results.
 
 use crate::data::{design, Design, LabelIdsError, Table};
-use crate::deviation::{Deviation, Severity};
+use crate::deviation::{Deviation, DeviationCode};
 use crate::distribution::{Reference, TestStatistic};
 use crate::error::{Error, Result};
 use crate::estimate::{self, CovSpec, EstimateError, LinearFit};
@@ -357,8 +357,7 @@ pub fn fit_spec(
     let degenerate = super::degenerate::outcome_problem(spec, &d, fit.rss);
     if let Some(problem) = &degenerate {
         deviations.push(Deviation::new(
-            "outcome-degenerate",
-            Severity::Deviation,
+            DeviationCode::OutcomeDegenerate,
             spec.id.clone(),
             format!(
                 "{}; its t statistics, p-values and the tests involving the outcome are not reported, and its hypotheses are undetermined",
@@ -368,16 +367,14 @@ pub fn fit_spec(
     }
     for name in &p.dropped {
         deviations.push(Deviation::new(
-            "collinear-dropped",
-            Severity::Deviation,
+            DeviationCode::CollinearDropped,
             format!("{}.{}", spec.id, name),
             format!("term dropped as collinear: `{name}`"),
         ));
     }
     if d.singletons > 0 {
         deviations.push(Deviation::new(
-            "singletons-dropped",
-            Severity::Note,
+            DeviationCode::SingletonsDropped,
             spec.id.clone(),
             format!(
                 "{} observation(s) alone in their level of a fixed effect were dropped before estimation (they would be fitted exactly and carry no information on the other coefficients)",
@@ -775,8 +772,7 @@ fn absorbed_columns(spec: &Spec, mut d: Design, devs: &mut Vec<Deviation>) -> Re
         .collect();
     for c in &d.absorbed_columns {
         devs.push(Deviation::new(
-            "collinear-dropped",
-            Severity::Deviation,
+            DeviationCode::CollinearDropped,
             format!("{}.{}", spec.id, c),
             format!("term dropped: `{c}` is constant within the fixed effects `{fes}`"),
         ));
@@ -809,7 +805,7 @@ fn lpm_check(
         .filter(|v| *v < 0.0 || *v > 1.0)
         .count();
     if spec.errors == Errors::Classical {
-        devs.push(Deviation::new("lpm-classical-errors", Severity::Note, spec.id.clone(), "the outcome is binary (a linear probability model), whose errors are heteroskedastic by construction; classical standard errors are not valid here, robust ones (hc1 or cluster) are recommended"));
+        devs.push(Deviation::new(DeviationCode::LpmClassicalErrors, spec.id.clone(), "the outcome is binary (a linear probability model), whose errors are heteroskedastic by construction; classical standard errors are not valid here, robust ones (hc1 or cluster) are recommended"));
     }
     Some(LpmInfo {
         fitted_outside_unit_interval: outside,

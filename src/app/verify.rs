@@ -10,6 +10,7 @@
 
 use super::{Outcome, LEDGER_FILE, PLAN_FILE};
 use crate::analysis;
+use crate::deviation::DeviationCode;
 use crate::error::{Error, Result};
 use crate::files::{self, Links};
 use crate::ledger::{Entry, Event, Ledger};
@@ -22,11 +23,11 @@ const PLAN_CAP: u64 = 16 << 20;
 
 /// Deviation codes that are integrity findings besides those of severity `integrity`: the
 /// executed analysis differs from the registered one after the data were read.
-const FINDING_CODES: &[&str] = &[
-    "amended-after-data",
-    "added-after-data",
-    "hypothesis-added-after-data",
-    "plan-not-latest",
+const FINDING_CODES: &[DeviationCode] = &[
+    DeviationCode::AmendedAfterData,
+    DeviationCode::AddedAfterData,
+    DeviationCode::HypothesisAddedAfterData,
+    DeviationCode::PlanNotLatest,
 ];
 
 /// The registration point: the plan version in force when the data were first read.
@@ -145,7 +146,7 @@ impl Verification {
     fn findings_of(&mut self, json: &serde_json::Value) {
         for d in json["deviations"].as_array().into_iter().flatten() {
             let code = d["code"].as_str().unwrap_or("");
-            if d["severity"] == "integrity" || FINDING_CODES.contains(&code) {
+            if d["severity"] == "integrity" || FINDING_CODES.iter().any(|c| c.as_str() == code) {
                 self.findings.push(format!(
                     "{} ({}): {}",
                     shown(code),

@@ -1,7 +1,7 @@
 //! Reading a table with polars and checking it against the declared schema.
 
 use super::{Labels, Table};
-use crate::deviation::{Deviation, Severity};
+use crate::deviation::{Deviation, DeviationCode};
 use crate::error::{Error, Result};
 use crate::plan::{Column, ColumnKind, DataFormat, DataSource, Plan};
 use polars::prelude::*;
@@ -308,8 +308,7 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
                 ));
             }
             devs.push(Deviation::new(
-                "column-missing",
-                Severity::Deviation,
+                DeviationCode::ColumnMissing,
                 format!("{}.{name}", src.id),
                 format!("declared column `{name}` is not in the data file"),
             ));
@@ -442,8 +441,7 @@ fn load_column(
     };
     if let Some((row, v)) = bad_kind.first() {
         devs.push(Deviation::new(
-            "column-kind",
-            Severity::Deviation,
+            DeviationCode::ColumnKind,
             subject.clone(),
             format!(
                 "column `{name}` is declared {} but {} value(s) are not (first: {}, value {v})",
@@ -457,7 +455,7 @@ fn load_column(
         .filter(|(_, v)| col.min.is_some_and(|m| *v < m) || col.max.is_some_and(|m| *v > m))
         .collect();
     if let Some((row, v)) = outside.first() {
-        devs.push(Deviation::new("value-out-of-range", Severity::Deviation, subject, format!(
+        devs.push(Deviation::new(DeviationCode::ValueOutOfRange, subject, format!(
             "{} value(s) of `{name}` lie outside the declared range [{}, {}] (first: {}, value {v})",
             outside.len(), bound(col.min), bound(col.max), row_place(src, *row)
         )));
@@ -518,8 +516,7 @@ fn check_rows_and_key(src: &DataSource, table: &Table, devs: &mut Vec<Deviation>
     let n = table.rows as i64;
     if src.rows_min.is_some_and(|m| n < m) || src.rows_max.is_some_and(|m| n > m) {
         devs.push(Deviation::new(
-            "rows-out-of-range",
-            Severity::Deviation,
+            DeviationCode::RowsOutOfRange,
             src.id.clone(),
             format!(
                 "[data.{}] has {n} rows; the plan expected between {} and {}",
@@ -536,8 +533,7 @@ fn check_rows_and_key(src: &DataSource, table: &Table, devs: &mut Vec<Deviation>
     let missing = labels.iter().filter(|v| v.is_none()).count();
     if missing > 0 {
         devs.push(Deviation::new(
-            "key-missing",
-            Severity::Deviation,
+            DeviationCode::KeyMissing,
             format!("{}.{key}", src.id),
             format!("key `{key}` is missing in {missing} row(s)"),
         ));
@@ -550,8 +546,7 @@ fn check_rows_and_key(src: &DataSource, table: &Table, devs: &mut Vec<Deviation>
         .collect();
     if let Some(first) = dups.first() {
         devs.push(Deviation::new(
-            "key-duplicate",
-            Severity::Deviation,
+            DeviationCode::KeyDuplicate,
             format!("{}.{key}", src.id),
             format!(
                 "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{}`)",

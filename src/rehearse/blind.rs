@@ -237,7 +237,11 @@ pub fn blinded(plan: &Plan, tables: &BTreeMap<String, Table>, seed: u64) -> Resu
             for c in &a.contingencies {
                 b.rules.insert(c.id.clone(), c.invoked);
             }
-            let mut codes: Vec<String> = a.deviations.iter().map(|d| d.code.to_string()).collect();
+            let mut codes: Vec<String> = a
+                .deviations
+                .iter()
+                .map(|d| d.code.as_str().to_string())
+                .collect();
             codes.sort();
             codes.dedup();
             b.deviation_codes = codes;

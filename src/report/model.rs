@@ -1,6 +1,7 @@
 //! The report model: everything a report shows, already formatted as text.
 
 use super::format::{num, p_is, pval, set_text};
+use crate::deviation::DeviationCode;
 use crate::inference::{Correction, Direction};
 use crate::plan::{spec_terms, Plan};
 use crate::results::{Results, SpecResult, Term, TestResult};
@@ -307,7 +308,7 @@ impl ReportModel {
                 .iter()
                 .map(|d| DevRow {
                     severity: d.severity.name().to_string(),
-                    code: d.code.to_string(),
+                    code: d.code.as_str().to_string(),
                     subject: d.subject.clone(),
                     message: d.message.clone(),
                 })
@@ -361,29 +362,35 @@ pub fn integrity_line(r: &Results) -> String {
 
 /// Short phrases for the integrity findings of a run, worst first.
 fn integrity_findings(r: &Results) -> Vec<String> {
-    const ORDER: &[(&str, &str)] = &[
-        ("ledger-broken", "the ledger's hash chain does not verify"),
+    const ORDER: &[(DeviationCode, &str)] = &[
         (
-            "plan-changed",
+            DeviationCode::LedgerBroken,
+            "the ledger's hash chain does not verify",
+        ),
+        (
+            DeviationCode::PlanChanged,
             "the plan changed since its last ledger entry without an amendment",
         ),
-        ("data-changed", "data changed since first read"),
-        ("unsealed", "the plan was never sealed"),
+        (DeviationCode::DataChanged, "data changed since first read"),
+        (DeviationCode::Unsealed, "the plan was never sealed"),
         (
-            "registered-version-failed",
+            DeviationCode::RegisteredVersionFailed,
             "the registered version could not be run beside the amended plan",
         ),
         (
-            "plan-not-latest",
+            DeviationCode::PlanNotLatest,
             "the plan matches an earlier ledger entry, not the latest",
         ),
         (
-            "amended-after-data",
+            DeviationCode::AmendedAfterData,
             "registered plan amended after the data were read",
         ),
-        ("added-after-data", "added after the data were read"),
         (
-            "hypothesis-added-after-data",
+            DeviationCode::AddedAfterData,
+            "added after the data were read",
+        ),
+        (
+            DeviationCode::HypothesisAddedAfterData,
             "added after the data were read",
         ),
     ];
@@ -399,14 +406,16 @@ fn integrity_findings(r: &Results) -> Vec<String> {
             continue;
         }
         out.push(match *code {
-            "data-changed" => format!("{phrase} ([data.{}])", subjects.join("], [data.")),
-            "amended-after-data" => format!(
+            DeviationCode::DataChanged => {
+                format!("{phrase} ([data.{}])", subjects.join("], [data."))
+            }
+            DeviationCode::AmendedAfterData => format!(
                 "{}: {} change(s) ({})",
                 amended_phrase(r),
                 subjects.len(),
                 subjects.join(", ")
             ),
-            "added-after-data" => format!(
+            DeviationCode::AddedAfterData => format!(
                 "{} specification(s) {phrase}: {}",
                 subjects.len(),
                 subjects.join(", ")
