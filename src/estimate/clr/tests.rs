@@ -1,0 +1,131 @@
+//! Tests of the Kleibergen LM and Moreira CLR tests.
+//!
+//! Sources: the fixture `tests/reference/fixtures/clr_lm.json` written by
+//! `tests/reference/clr_lm.py` (ivmodels `lagrange_multiplier_test` and
+//! `conditional_likelihood_ratio_test` with the "moreira2003conditional" integration at
+//! tol 1e-10; versions recorded in the fixture), statistics to 1e-6 relative and p-values
+//! to 1e-6 absolute (observed differences are printed); and the limits of the conditional
+//! law stated by Moreira (2003, section 3): as Q_T → 0 the CLR p-value tends to the
+//! χ²(L) tail (the AR test), as Q_T → ∞ to the χ²(1) tail (the LR test with strong
+//! instruments); with L = 1 CLR = AR and the p-value is the χ²(1) tail.
+
+use nalgebra::{DMatrix, DVector};
+use serde_json::Value;
+
+use super::clr_p_value;
+use crate::distribution::Reference;
+use crate::estimate::{Absorbed, IvProblem};
+use crate::inference::{p_value, test_p_value, Direction};
+
+fn column(data: &Value, name: &str, n: usize) -> DVector<f64> {
+    if name == "const" {
+        return DVector::from_element(n, 1.0);
+    }
+    let v: Vec<f64> = data[name]
+        .as_array()
+        .expect("column")
+        .iter()
+        .map(|x| x.as_f64().expect("number"))
+        .collect();
+    DVector::from_vec(v)
+}
+
+fn matrix(data: &Value, names: &Value, n: usize) -> DMatrix<f64> {
+    let names = names.as_array().expect("names");
+    let mut m = DMatrix::zeros(n, names.len());
+    for (j, name) in names.iter().enumerate() {
+        m.set_column(j, &column(data, name.as_str().expect("name"), n));
+    }
+    m
+}
+
+#[test]
+fn matches_ivmodels() {
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/reference/fixtures/clr_lm.json"
+    );
+    let text = std::fs::read_to_string(path).expect("fixture clr_lm.json");
+    let doc: Value = serde_json::from_str(&text).expect("fixture is JSON");
+    let cases = doc["cases"].as_array().expect("cases");
+    assert_eq!(cases.len(), 3);
+    for case in cases {
+        let name = case["name"].as_str().expect("name");
+        let (data, setup, ex) = (&case["data"], &case["setup"], &case["expected"]);
+        let y = column(data, setup["outcome"].as_str().expect("outcome"), 0);
+        let n = y.len();
+        let exog = matrix(data, &setup["exog"], n);
+        let endog = matrix(data, &setup["endog"], n);
+        let z = matrix(data, &setup["instruments"], n);
+        let beta0 = setup["beta0"].as_f64().expect("beta0");
+        let problem = IvProblem::new(&y, &exog, &endog, &z).expect("problem");
+        let got = problem.lm_clr(&Absorbed::NONE, beta0).expect("lm_clr");
+        let want = |k: &str| ex[k].as_f64().expect(k);
+        for (what, g, w) in [
+            ("lm", got.lm.statistic, want("lm")),
+            ("clr", got.clr.statistic, want("clr")),
+            ("q_t", got.clr.conditioning, want("q_t")),
+        ] {
+            let rel = (g - w).abs() / w.abs();
+            println!("{name} {what}: relative difference {rel:.2e}");
+            assert!(rel < 1e-6, "{name} {what}: {g} vs {w}");
+        }
+        for (what, g, w) in [
+            ("lm p", test_p_value(&got.lm), want("lm_p_value")),
+            ("clr p", got.clr.p_value, want("clr_p_value")),
+        ] {
+            let abs = (g - w).abs();
+            println!("{name} {what}: absolute difference {abs:.2e}");
+            assert!(abs < 1e-6, "{name} {what}: {g} vs {w}");
+        }
+    }
+}
+
+fn chi2_tail(x: f64, df: f64) -> f64 {
+    p_value(x, &Reference::ChiSquare { df }, Direction::TwoSided)
+}
+
+#[test]
+fn conditional_law_limits() {
+    for &m in &[0.5, 2.0, 3.84, 9.0] {
+        for l in 2..=6 {
+            // Q_T = 0: CLR = Q_S ~ χ²(L).
+            let weak = clr_p_value(m, 0.0, l);
+            assert!((weak - chi2_tail(m, l as f64)).abs() < 1e-12);
+            // Q_T tiny and huge: the two limits.
+            let near_weak = clr_p_value(m, 1e-9, l);
+            assert!((near_weak - chi2_tail(m, l as f64)).abs() < 1e-8, "{m} {l}");
+            let strong = clr_p_value(m, 1e9, l);
+            assert!(
+                (strong - chi2_tail(m, 1.0)).abs() < 1e-4,
+                "{m} {l}: {strong}"
+            );
+            // In between, monotone in Q_T: between the χ²(1) and χ²(L) tails.
+            let mid = clr_p_value(m, 10.0, l);
+            assert!(mid > chi2_tail(m, 1.0) && mid < chi2_tail(m, l as f64));
+        }
+        assert!((clr_p_value(m, 7.0, 1) - chi2_tail(m, 1.0)).abs() < 1e-15);
+    }
+    assert_eq!(clr_p_value(0.0, 3.0, 3), 1.0);
+    assert!(clr_p_value(f64::NAN, 3.0, 3).is_nan());
+    assert!(clr_p_value(1.0, -1.0, 3).is_nan());
+}
+
+#[test]
+fn invalid_inputs_are_errors() {
+    let n = 30;
+    let y = DVector::from_fn(n, |i, _| (i as f64 * 0.7).sin());
+    let x = DMatrix::from_fn(n, 1, |i, _| (i as f64 * 1.3).cos());
+    let x2 = DMatrix::from_fn(n, 2, |i, j| ((i * (j + 2)) as f64).cos());
+    let z = DMatrix::from_fn(n, 3, |i, j| ((i * (j + 3)) as f64 * 0.37).sin());
+    let w = DMatrix::from_element(n, 1, 1.0);
+    let p = IvProblem::new(&y, &w, &x, &z).expect("problem");
+    assert!(p.lm_clr(&Absorbed::NONE, f64::NAN).is_err());
+    assert!(p.lm_clr(&Absorbed::NONE, 0.3).is_ok());
+    let p2 = IvProblem::new(&y, &w, &x2, &z).expect("problem");
+    assert!(p2.lm_clr(&Absorbed::NONE, 0.0).is_err());
+    // y = x β₀ exactly: e = 0, the error variance is zero.
+    let exact = x.column(0) * 2.0;
+    let p3 = IvProblem::new(&exact, &w, &x, &z).expect("problem");
+    assert!(p3.lm_clr(&Absorbed::NONE, 2.0).is_err());
+}
