@@ -129,3 +129,72 @@ fn invalid_inputs_are_errors() {
     let p3 = IvProblem::new(&exact, &w, &x, &z).expect("problem");
     assert!(p3.lm_clr(&Absorbed::NONE, 2.0).is_err());
 }
+
+/// Frisch–Waugh–Lovell: demeaning by group and passing `Absorbed { df: G }` gives the same
+/// LM, CLR, Q_T and p-value as including the G group dummies as controls (the degrees of
+/// freedom n − L − |W| − a count the absorbed levels).
+#[test]
+fn absorbed_fixed_effects_equal_dummies() {
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/reference/fixtures/clr_lm.json"
+    );
+    let doc: Value =
+        serde_json::from_str(&std::fs::read_to_string(path).expect("fixture")).expect("JSON");
+    let case = &doc["cases"][0];
+    let (data, setup) = (&case["data"], &case["setup"]);
+    let y = column(data, "y", 0);
+    let n = y.len();
+    let x = matrix(data, &setup["endog"], n);
+    let z = matrix(data, &setup["instruments"], n);
+    let c1 = column(data, "c1", n);
+    let g = 5;
+    let groups: Vec<usize> = (0..n).map(|i| (i * 7 + i / 3) % g).collect();
+    let mut dummies = DMatrix::zeros(n, g + 1);
+    for (i, &gi) in groups.iter().enumerate() {
+        dummies[(i, gi)] = 1.0;
+        dummies[(i, g)] = c1[i];
+    }
+    let demean = |m: &DMatrix<f64>| {
+        let mut out = m.clone();
+        for j in 0..m.ncols() {
+            let (mut sums, mut counts) = (vec![0.0; g], vec![0.0; g]);
+            for (i, &gi) in groups.iter().enumerate() {
+                sums[gi] += m[(i, j)];
+                counts[gi] += 1.0;
+            }
+            for (i, &gi) in groups.iter().enumerate() {
+                out[(i, j)] -= sums[gi] / counts[gi];
+            }
+        }
+        out
+    };
+    let yd = DVector::from_column_slice(
+        demean(&DMatrix::from_column_slice(n, 1, y.as_slice())).as_slice(),
+    );
+    let wd = demean(&DMatrix::from_column_slice(n, 1, c1.as_slice()));
+    let (xd, zd) = (demean(&x), demean(&z));
+    let absorbed = Absorbed {
+        df: g,
+        nested_df: 0,
+        leverage: None,
+    };
+    for beta0 in [0.0, 0.4] {
+        let full = IvProblem::new(&y, &dummies, &x, &z)
+            .expect("dummies")
+            .lm_clr(&Absorbed::NONE, beta0)
+            .expect("lm_clr");
+        let within = IvProblem::new(&yd, &wd, &xd, &zd)
+            .expect("within")
+            .lm_clr(&absorbed, beta0)
+            .expect("lm_clr");
+        for (a, b) in [
+            (full.lm.statistic, within.lm.statistic),
+            (full.clr.statistic, within.clr.statistic),
+            (full.clr.conditioning, within.clr.conditioning),
+            (full.clr.p_value, within.clr.p_value),
+        ] {
+            assert!((a - b).abs() <= 1e-9 * a.abs(), "{beta0}: {a} vs {b}");
+        }
+    }
+}
