@@ -347,6 +347,27 @@ pub struct AndersonRubinResult {
     pub curve: Option<ArCurve>,
 }
 
+/// Kleibergen's (2002) LM test and Moreira's (2003) conditional likelihood ratio test of the
+/// endogenous coefficient = `null`, both valid however weak the instruments are, in their
+/// homoskedastic form (`estimate::LmClr`).
+#[derive(Debug, Clone, Serialize)]
+pub struct LmClrResult {
+    /// Value tested (0).
+    pub null: f64,
+    /// Always "homoskedastic": the only form sworn computes.
+    pub errors: &'static str,
+    /// Kleibergen's LM statistic, its χ²(1) p-value and distribution.
+    pub lm: TestResult,
+    /// Moreira's CLR statistic.
+    pub clr_statistic: f64,
+    /// The statistic the CLR p-value conditions on (Q_T, first-stage strength under the
+    /// null).
+    pub clr_conditioning: f64,
+    /// P(CLR > clr_statistic | Q_T = clr_conditioning) under the null, by numerical
+    /// integration of the conditional law (`estimate::clr_p_value`).
+    pub clr_p_value: f64,
+}
+
 /// The Anderson–Rubin statistic on a grid of hypothesised coefficient values.
 ///
 /// The grid has [`AR_CURVE_POINTS`] equally spaced values over the span of the set's finite
@@ -655,6 +676,10 @@ pub struct SpecResult {
     pub weak_instruments: Option<WeakInstrumentResult>,
     /// Anderson–Rubin test and set.
     pub anderson_rubin: Option<AndersonRubinResult>,
+    /// Kleibergen LM and Moreira CLR tests (homoskedastic form; null unless the
+    /// weak-instrument diagnostic was requested, there is one endogenous regressor and the
+    /// specification's errors are classical).
+    pub lm_clr: Option<LmClrResult>,
     /// LIML estimate computed for a contingency.
     pub liml: Option<AlternativeEstimate>,
     /// Linear probability model check (binary outcomes).

@@ -141,6 +141,7 @@ pub fn withhold(result: &mut SpecResult, constant: bool) {
     result.endogeneity = None;
     result.overidentification = None;
     result.anderson_rubin = None;
+    result.lm_clr = None;
     result.liml = None;
 }
 

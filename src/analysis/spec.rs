@@ -11,9 +11,9 @@ use crate::plan::{
     Resampling, Spec,
 };
 use crate::results::{
-    AlternativeEstimate, AndersonRubinResult, EndogeneityResult, FirstStageResult, LpmInfo,
-    OveridResult, Regression, SampleInfo, SetPiece, SpecResult, StockYogoValue, Term, TestResult,
-    WeakInstrumentResult,
+    AlternativeEstimate, AndersonRubinResult, EndogeneityResult, FirstStageResult, LmClrResult,
+    LpmInfo, OveridResult, Regression, SampleInfo, SetPiece, SpecResult, StockYogoValue, Term,
+    TestResult, WeakInstrumentResult,
 };
 use nalgebra::{DMatrix, DVector};
 use std::collections::BTreeMap;
@@ -434,6 +434,7 @@ pub fn fit_spec(
         overidentification: None,
         weak_instruments: None,
         anderson_rubin: None,
+        lm_clr: None,
         liml: None,
         linear_probability: lpm,
         arms: super::arms::summarise(spec, table, &d, rc.assignment.map(|a| a.variable.as_str())),
@@ -981,6 +982,22 @@ impl IvContext<'_> {
                 critical_value: at_zero.critical_value,
                 curve,
             });
+            // Undefined statistics (an exact fit, Q_T = 0) leave `lm_clr` null; the
+            // identification panel says so.
+            if let (CovSpec::Classical, Ok(t)) = (cov, iv.lm_clr(ab, 0.0)) {
+                result.lm_clr = Some(LmClrResult {
+                    null: t.beta0,
+                    errors: "homoskedastic",
+                    lm: TestResult {
+                        statistic: t.lm.statistic,
+                        p_value: inference::test_p_value(&t.lm),
+                        distribution: t.lm.reference,
+                    },
+                    clr_statistic: t.clr.statistic,
+                    clr_conditioning: t.clr.conditioning,
+                    clr_p_value: t.clr.p_value,
+                });
+            }
             let nulls = &self.needs.ar_nulls;
             let tests = iv.anderson_rubin_tests(cov, ab, nulls).map_err(err)?;
             ar_tests.extend(nulls.iter().copied().zip(tests));

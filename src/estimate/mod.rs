@@ -33,6 +33,7 @@
 
 mod absorb;
 mod anderson_rubin;
+mod clr;
 mod covariance;
 mod diagnostics;
 mod hac;
@@ -64,6 +65,7 @@ pub use absorb::{
 pub use anderson_rubin::{
     anderson_rubin, anderson_rubin_curve, AndersonRubin, ConfidenceSet, SetShape,
 };
+pub use clr::{clr_p_value, ConditionalLr, LmClr, QUADRATURE_DEPTH, QUADRATURE_TOLERANCE};
 pub use covariance::CovSpec;
 pub use diagnostics::{
     endogeneity, first_stages, hansen_j, overidentification, reduced_form, Endogeneity, FirstStage,

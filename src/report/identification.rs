@@ -329,6 +329,47 @@ fn robust(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
             reading: reading.to_string(),
         });
     }
+    if let Some(lc) = &r.lm_clr {
+        let null = lc.null.to_string();
+        let verdict = |p: f64| {
+            if rejects(p, alpha) {
+                format!("rejects `{x}` = {null} at {alpha}; valid however weak the instruments are, if the errors are homoskedastic")
+            } else {
+                format!("does not reject `{x}` = {null} at {alpha}; valid however weak the instruments are, if the errors are homoskedastic")
+            }
+        };
+        rows.push(row(
+            format!("Kleibergen LM test of `{x}` = {null}, homoskedastic errors"),
+            &lc.lm,
+            verdict(lc.lm.p_value),
+        ));
+        rows.push(Evidence {
+            test: format!("Moreira conditional LR test of `{x}` = {null}, homoskedastic errors"),
+            statistic: num(lc.clr_statistic),
+            reference: format!(
+                "conditional law given first-stage strength {}",
+                num(lc.clr_conditioning)
+            ),
+            threshold: p_is(lc.clr_p_value),
+            reading: verdict(lc.clr_p_value),
+        });
+    } else if r.anderson_rubin.is_some() {
+        let why = if r.errors == "classical" {
+            "the statistics are undefined for these data (an exact fit, or no first-stage signal under the null)".to_string()
+        } else {
+            format!(
+                "sworn computes them only with homoskedastic errors, and this specification uses {} errors",
+                errors_name(r)
+            )
+        };
+        rows.push(Evidence {
+            test: "Kleibergen LM and Moreira conditional LR tests".into(),
+            statistic: "—".into(),
+            reference: "—".into(),
+            threshold: "not computed".into(),
+            reading: why,
+        });
+    }
     if let Some(w) = &r.weak_instruments {
         let t = r.terms.get(&x).map(|t| t.statistic.abs());
         if let Some(c) = w.tf_critical_value {

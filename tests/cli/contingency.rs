@@ -418,3 +418,47 @@ fn the_first_rule_that_fires_decides_and_a_later_one_is_superseded() {
     assert_eq!(h["method"], "anderson-rubin");
     assert_eq!(h["tested_specification"], "iv");
 }
+
+#[test]
+fn classical_errors_add_the_lm_and_clr_tests_and_robust_errors_say_why_not() {
+    // Classical errors, two instruments: both tests are computed and reported.
+    let (s, v) = run(
+        &plan("[\"z\", \"z2\"]", "\"classical\"", ""),
+        &Gen::default().csv(),
+    );
+    let lc = &spec(&v, "iv")["lm_clr"];
+    assert_eq!(lc["errors"], "homoskedastic", "{lc}");
+    assert_eq!(lc["lm"]["distribution"]["name"], "chi-square", "{lc}");
+    for p in [&lc["lm"]["p_value"], &lc["clr_p_value"]] {
+        let p = p.as_f64().expect("p-value");
+        assert!((0.0..=1.0).contains(&p), "{lc}");
+    }
+    assert!(lc["clr_statistic"].as_f64().expect("clr") >= 0.0, "{lc}");
+    assert!(lc["clr_conditioning"].as_f64().expect("q_t") > 0.0, "{lc}");
+    let report = s.read("out/report.md");
+    assert!(report.contains("Kleibergen LM test of `d` = 0"), "{report}");
+    assert!(
+        report.contains("Moreira conditional LR test of `d` = 0"),
+        "{report}"
+    );
+
+    // One instrument: CLR = LM = L·AR, and L = 1 (Moreira 2003, section 3).
+    let (_, v) = run(&plan("[\"z\"]", "\"classical\"", ""), &Gen::default().csv());
+    let iv = spec(&v, "iv");
+    let ar = iv["anderson_rubin"]["statistic"].as_f64().expect("ar");
+    let clr = iv["lm_clr"]["clr_statistic"].as_f64().expect("clr");
+    let lm = iv["lm_clr"]["lm"]["statistic"].as_f64().expect("lm");
+    assert!(
+        (clr - ar).abs() <= 1e-9 * ar && (lm - ar).abs() <= 1e-9 * ar,
+        "{ar} {clr} {lm}"
+    );
+
+    // Robust errors: not computed, and the report says why.
+    let (s, v) = run(&plan("[\"z\"]", "\"hc1\"", ""), &Gen::default().csv());
+    assert!(spec(&v, "iv")["lm_clr"].is_null());
+    let report = s.read("out/report.md");
+    assert!(
+        report.contains("sworn computes them only with homoskedastic errors"),
+        "{report}"
+    );
+}
