@@ -26,11 +26,7 @@ pub fn markdown(r: &Rehearsed, title: &str) -> String {
     let _ = writeln!(
         o,
         "Simulated before {}: {} data sets at each of {} effect sizes (seed {}), each run through the complete registered analysis. Plan content fingerprint `sha256:{}`; assumptions fingerprint `sha256:{}`.\n",
-        if r.baselines.is_empty() {
-            "any data"
-        } else {
-            "the study's data (on the rows of a baseline file)"
-        },
+        r.before(),
         r.replications,
         r.effects.len(),
         r.seed,

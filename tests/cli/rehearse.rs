@@ -562,6 +562,8 @@ fn a_baseline_rehearsal_records_the_file_hash_and_never_reads_the_data() {
     assert!(entry.get("data").is_none(), "{entry}");
     assert!(!ledger.contains("data-first-read") && !ledger.contains("data-inspected"));
     assert!(s.read("reh/rehearsal.md").contains(&sha));
+    assert!(s.read("reh/rehearsal.html").contains(&sha));
+    assert!(s.read("reh/rehearsal.tex").contains("baseline.csv"));
 }
 
 #[test]
