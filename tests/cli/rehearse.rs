@@ -564,6 +564,12 @@ fn a_baseline_rehearsal_records_the_file_hash_and_never_reads_the_data() {
     assert!(s.read("reh/rehearsal.md").contains(&sha));
     assert!(s.read("reh/rehearsal.html").contains(&sha));
     assert!(s.read("reh/rehearsal.tex").contains("baseline.csv"));
+    let log = s.sworn(&["log", "plan.toml"]);
+    assert!(
+        log.stdout.contains("baseline of main") && log.stdout.contains("not study data"),
+        "{}",
+        log.stdout
+    );
 }
 
 #[test]
