@@ -1,8 +1,8 @@
 //! Baseline files of a rehearsal (`[rehearsal.data.NAME] baseline`): read once, before any
 //! replication, and checked against the data-generating process.
 //!
-//! Invariants: a baseline is never a file the plan declares as study data (so a rehearsal
-//! never reads the study's data); no name is both a baseline column and a simulated one;
+//! Invariants: a baseline is never a file the plan declares as study data, nor a file whose
+//! hash the ledger records as study data (so a rehearsal never reads the study's data); no name is both a baseline column and a simulated one;
 //! every name an expression uses and every column the analysis needs is either simulated
 //! or a column of the file.
 
@@ -94,6 +94,20 @@ fn one(plan: &Plan, table: &str, g: &Generator, b: &BaselineFile) -> Result<Load
         );
     }
     let columns = read_baseline(src, &b.path, &wanted)?;
+    // A copy of the study's data under another name: caught when the ledger has its hash.
+    let ledger = crate::ledger::ledger_path(&plan.path);
+    if let Ok(Some(l)) = crate::ledger::Ledger::read(&ledger) {
+        if let Some((t, _)) = l
+            .entries()
+            .filter_map(|e| e.data.as_ref())
+            .flat_map(|d| d.iter())
+            .find(|(_, sha)| **sha == columns.sha256)
+        {
+            return Err(at(plan, table, b.place, "baseline", format!(
+                "the baseline file has the same bytes (SHA-256) as the data of [data.{t}] recorded in the ledger; a rehearsal never reads the study's data. Name a baseline survey file, or use `sworn rehearse --blind` on the real data"
+            )));
+        }
+    }
     if let Some(c) = g
         .columns
         .iter()

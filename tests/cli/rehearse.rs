@@ -598,3 +598,18 @@ fn a_bad_baseline_stops_before_any_output_or_ledger_line() {
     );
     assert!(!s.path("reh").exists());
 }
+
+#[test]
+fn a_copy_of_the_study_data_is_refused_as_a_baseline_once_the_ledger_has_its_hash() {
+    let s = Study::with(&format!("{PLAN}{ON_BASELINE}"), &data_csv());
+    s.seal_and_run();
+    s.write("baseline.csv", &data_csv());
+    let r = s.sworn(&["rehearse", "plan.toml", "--out", "reh"]);
+    assert_ne!(r.code, 0, "{}", r.stdout);
+    assert!(
+        r.stderr.contains("same bytes") && r.stderr.contains("[data.main]"),
+        "{}",
+        r.stderr
+    );
+    assert!(!s.path("reh").exists());
+}
