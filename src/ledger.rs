@@ -113,6 +113,16 @@ pub struct HypothesisPowerRecord {
     pub mde: Option<f64>,
 }
 
+/// A baseline file a rehearsal read: the path as the plan writes it and the file's SHA-256.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BaselineFileRecord {
+    /// The path as written in the plan (relative to the plan file).
+    pub path: String,
+    /// SHA-256 of the file's bytes.
+    pub sha256: String,
+}
+
 /// One ledger line.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -152,6 +162,10 @@ pub struct Entry {
     /// What a rehearsal found (rehearsed), so a later run can cite it from the ledger alone.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub power: Option<PowerRecord>,
+    /// Baseline files a rehearsal started from, by table id (rehearsed). Never study data:
+    /// they are kept apart from `data`, so they never count as reading the data.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub baselines: Option<BTreeMap<String, BaselineFileRecord>>,
     /// Version of sworn that wrote the entry.
     pub tool_version: String,
     /// SHA-256 of the previous line's bytes.
@@ -174,6 +188,7 @@ impl Entry {
             out: None,
             assumptions: None,
             power: None,
+            baselines: None,
             tool_version: TOOL_VERSION.to_string(),
             prev: String::new(),
         }

@@ -6,11 +6,14 @@
 //! blinded run ([`blinded`]): the registered analysis on real tables with the assignment
 //! re-drawn, keeping nothing that reveals an estimate.
 //!
-//! Invariants: nothing here reads a data file or writes anything; the model depends only on
-//! the plan and the replication count (each replication's stream comes from (seed,
+//! Invariants: nothing here reads a study data file or writes anything (a baseline file named
+//! by `[rehearsal.data.NAME] baseline` is read once, before the first replication, and is
+//! refused if it is a study data file); the model depends only on the plan, the baseline
+//! files and the replication count (each replication's stream comes from (seed,
 //! replication), and outcomes are gathered in replication order, so the thread count does
 //! not matter); the same stream serves a replication at every effect size.
 
+mod baseline;
 mod blind;
 mod figure;
 mod html;
@@ -23,6 +26,7 @@ mod summary;
 #[cfg(test)]
 mod tests;
 
+pub use baseline::BaselineRecord;
 pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
 pub use figure::{power_curve_svg, PowerSeries};
 pub use html::page as html;
@@ -84,6 +88,8 @@ pub fn rehearse(
         }
         _ => plan,
     };
+    let baselines = baseline::load(plan)?;
+    let baselines = &baselines;
     let total = reps * reh.effects.len();
     let done = AtomicUsize::new(0);
     // The search's effects are not known in advance: the bar grows by one effect per step.
@@ -92,7 +98,7 @@ pub fn rehearse(
         (0..reps)
             .into_par_iter()
             .map(|r| {
-                let out = one(plan, reh.seed, r as u64, effect);
+                let out = one(plan, baselines, reh.seed, r as u64, effect);
                 tick(
                     done.fetch_add(1, Ordering::Relaxed) + 1,
                     expected.load(Ordering::Relaxed),
@@ -105,7 +111,7 @@ pub fn rehearse(
         .into_par_iter()
         .map(|i| {
             let (e, r) = (i / reps, i % reps);
-            let out = one(plan, reh.seed, r as u64, reh.effects[e]);
+            let out = one(plan, baselines, reh.seed, r as u64, reh.effects[e]);
             tick(done.fetch_add(1, Ordering::Relaxed) + 1, total);
             out
         })
@@ -126,6 +132,12 @@ pub fn rehearse(
     }
     let per_effect: Vec<&[Outcome]> = outcomes.chunks(reps).collect();
     let mut r = summary::summarise(plan, registered_draws, reh, reps, &per_effect)?;
+    r.set_baselines(
+        baselines
+            .iter()
+            .map(|(id, b)| (id.clone(), b.record.clone()))
+            .collect(),
+    );
     if reh.mde_steps > 0 {
         let step = |effect: f64| {
             expected.fetch_add(reps, Ordering::Relaxed);
@@ -137,8 +149,14 @@ pub fn rehearse(
 }
 
 /// Simulate replication `r` at `effect` and run the registered analysis on it.
-fn one(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<Outcome> {
-    let tables = simulate::tables(plan, seed, r, effect)?;
+fn one(
+    plan: &Plan,
+    baselines: &BTreeMap<String, baseline::Loaded>,
+    seed: u64,
+    r: u64,
+    effect: f64,
+) -> Result<Outcome> {
+    let tables = simulate::tables(plan, baselines, seed, r, effect)?;
     let a = match crate::analysis::analyse(plan, &tables, None, None, false) {
         Ok(a) => a,
         Err(e) => {
@@ -176,12 +194,13 @@ fn one(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<Outcome> {
 /// The same simulated tables a rehearsal analyses (for tests and inspection).
 ///
 /// # Errors
-/// As [`rehearse`] for a data-generating process.
+/// As [`rehearse`] for a baseline file or a data-generating process.
 pub fn simulated_tables(
     plan: &Plan,
     replication: u64,
     effect: f64,
 ) -> Result<BTreeMap<String, crate::data::Table>> {
     let seed = plan.rehearsal.as_ref().map_or(0, |r| r.seed);
-    simulate::tables(plan, seed, replication, effect)
+    let baselines = baseline::load(plan)?;
+    simulate::tables(plan, &baselines, seed, replication, effect)
 }

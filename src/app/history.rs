@@ -89,6 +89,16 @@ pub fn log(plan: &Path) -> Result<Outcome> {
             }
             previous = (!canonical.is_empty()).then(|| canonical.to_string());
         }
+        if let Some(files) = &e.baselines {
+            for (table, b) in files {
+                println!(
+                    "    baseline of {} {} {} (not study data)",
+                    crate::escape::terminal(table),
+                    crate::escape::terminal(&b.path),
+                    crate::escape::terminal(&short(&b.sha256))
+                );
+            }
+        }
         if let Some(data) = &e.data {
             for (table, sha) in data {
                 println!("    data.{table} {}", short(sha));

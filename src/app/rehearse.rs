@@ -1,7 +1,8 @@
 //! `sworn rehearse PLAN`: simulate, run the registered analysis on every simulated data set,
 //! write rehearsal.json, rehearsal.md, rehearsal.tex and rehearsal.html into an output folder whole (staged and renamed, as
-//! a run directory is), then record a `rehearsed` ledger entry. No data file is opened, so
-//! the ledger never counts a rehearsal as reading the data.
+//! a run directory is), then record a `rehearsed` ledger entry. No study data file is opened
+//! (a baseline file is recorded by its path and hash under `baselines`, never under `data`),
+//! so the ledger never counts a rehearsal as reading the data.
 
 use super::{locked, machine, rundir, slashed, Outcome};
 use crate::error::{Error, Result};
@@ -97,6 +98,20 @@ pub fn rehearse(
     entry.plan = Some(PlanPrint::of(&plan.path, &plan.text)?);
     entry.assumptions = Some(r.assumptions_sha256.clone());
     entry.power = Some(r.power_record());
+    entry.baselines = (!r.baselines.is_empty()).then(|| {
+        r.baselines
+            .iter()
+            .map(|(id, b)| {
+                (
+                    id.clone(),
+                    ledger::BaselineFileRecord {
+                        path: b.path.clone(),
+                        sha256: b.sha256.clone(),
+                    },
+                )
+            })
+            .collect()
+    });
     entry.outputs = Some(
         [
             (REHEARSAL_JSON, &json_text),
@@ -162,6 +177,15 @@ fn print_summary(plan: &Plan, r: &Rehearsed, out_dir: &Path) {
                 .map(|e| e.to_string())
                 .collect::<Vec<_>>()
                 .join(" / ")
+        );
+    }
+    for (id, b) in &r.baselines {
+        println!(
+            "  [data.{}] rows from the baseline file {} ({} rows, sha256 {})",
+            terminal(id),
+            terminal(&b.path),
+            b.rows,
+            &b.sha256[..b.sha256.len().min(12)]
         );
     }
     println!(

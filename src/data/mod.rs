@@ -14,7 +14,7 @@ mod read;
 pub use design::{design, Design};
 pub use labels::{Labels, TooManyLabels};
 pub(crate) use read::needed_columns;
-pub use read::{load_table, table_from_columns, with_column};
+pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;

@@ -326,6 +326,104 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
     Ok((table, devs))
 }
 
+/// A rehearsal's baseline file, read as numbers: its SHA-256, rows, header and the columns
+/// asked for.
+#[derive(Debug, Clone)]
+pub struct BaselineColumns {
+    /// SHA-256 of the file's bytes.
+    pub sha256: String,
+    /// Rows (the header line excluded).
+    pub rows: usize,
+    /// Column names in file order.
+    pub header: Vec<String>,
+    /// The columns of `wanted` the file has, as numbers.
+    pub columns: BTreeMap<String, Vec<Option<f64>>>,
+}
+
+/// Read the baseline file `path` of a rehearsal of table `src`, with the table's dialect
+/// (separator, decimal comma, missing codes) and format. Each column of `wanted` that the
+/// file has is read as numbers: a column `src` declares numeric is parsed as a run parses
+/// it; a declared id or category column holding text gets codes 1, 2, … in order of first
+/// appearance (a rehearsal only needs to tell its labels apart); any other column must hold
+/// numbers. A declared binary or integer column must hold 0/1 or whole numbers.
+///
+/// # Errors
+/// The file cannot be read or parsed, is empty, or a column holds a value its kind refuses
+/// (naming the column, the line and the value).
+pub fn read_baseline(
+    src: &DataSource,
+    path: &std::path::Path,
+    wanted: &BTreeSet<String>,
+) -> Result<BaselineColumns> {
+    let file = DataSource {
+        path: path.to_path_buf(),
+        path_text: path.to_string_lossy().into_owned(),
+        ..src.clone()
+    };
+    let (frame, sha256) = read_frame(&file)?;
+    let rows = frame.height();
+    if rows == 0 {
+        return Err(data_err(
+            &file,
+            "the baseline file has no rows; check that the right file is named",
+        ));
+    }
+    let header: Vec<String> = frame
+        .get_column_names()
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    let mut columns = BTreeMap::new();
+    for name in wanted.iter().filter(|n| header.contains(n)) {
+        let kind = src.columns.get(name).map(|c| c.kind);
+        let numeric = kind.is_none_or(ColumnKind::is_numeric);
+        let Some(raw) = raw_values(&file, &frame, name, numeric)? else {
+            continue;
+        };
+        let values = match raw {
+            RawValues::Text(v) => {
+                let mut codes: BTreeMap<String, f64> = BTreeMap::new();
+                v.into_iter()
+                    .map(|s| {
+                        s.map(|s| {
+                            let next = codes.len() as f64 + 1.0;
+                            *codes.entry(s).or_insert(next)
+                        })
+                    })
+                    .collect()
+            }
+            numbers => to_numbers(&file, name, numbers)?,
+        };
+        let bad = |x: f64| match kind {
+            Some(ColumnKind::Binary) => x != 0.0 && x != 1.0,
+            Some(ColumnKind::Integer) => x.fract() != 0.0,
+            _ => false,
+        };
+        if let Some((i, x)) = values
+            .iter()
+            .enumerate()
+            .find_map(|(i, x)| x.filter(|x| bad(*x)).map(|x| (i, x)))
+        {
+            return Err(data_err(
+                &file,
+                format!(
+                    "column `{name}` is declared {} in [data.{}] but {} holds {x}; correct the baseline file or the declared kind",
+                    kind.map_or("number", ColumnKind::name),
+                    src.id,
+                    row_place(&file, i)
+                ),
+            ));
+        }
+        columns.insert(name.clone(), values);
+    }
+    Ok(BaselineColumns {
+        sha256,
+        rows,
+        header,
+        columns,
+    })
+}
+
 /// A table from columns held in memory (a rehearsal's simulated data) rather than a file.
 /// Each declared column given is read as `load_column` reads numbers from a file (grouping
 /// kinds also as labels, non-numeric kinds as labels only); then rows are ordered and derived

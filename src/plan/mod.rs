@@ -91,10 +91,24 @@ pub struct Rehearsal {
 /// A data-generating process for one table.
 #[derive(Debug, Clone)]
 pub struct Generator {
-    /// Rows simulated.
+    /// Rows simulated (0 when `baseline` is given: its rows are the file's).
     pub rows: usize,
+    /// The baseline file whose rows and columns the simulated table starts from, if any.
+    pub baseline: Option<BaselineFile>,
     /// Columns in evaluation order (each after the columns it uses; ties by name).
     pub columns: Vec<GeneratedColumn>,
+}
+
+/// `[rehearsal.data.NAME] baseline`: a file read as the table's fixed rows, to which a
+/// rehearsal adds the columns it simulates.
+#[derive(Debug, Clone)]
+pub struct BaselineFile {
+    /// The path as written in the plan.
+    pub text: String,
+    /// The path resolved against the plan file's folder.
+    pub path: std::path::PathBuf,
+    /// Line and column of the `baseline` value in the plan.
+    pub place: (usize, usize),
 }
 
 /// One simulated column.

@@ -79,8 +79,12 @@ pub struct RawRehearsal {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct RawGenerator {
-    /// Rows of each simulated table.
-    pub rows: Spanned<i64>,
+    /// Rows of each simulated table (none when `baseline` names a file).
+    #[serde(default)]
+    pub rows: Option<Spanned<i64>>,
+    /// A baseline file whose rows the simulated table keeps (relative to the plan file).
+    #[serde(default)]
+    pub baseline: Option<Spanned<String>>,
     /// Column = expression (with random draws), in document order.
     #[serde(deserialize_with = "ordered_pairs")]
     pub columns: Vec<SpannedPair>,

@@ -8,7 +8,7 @@
 
 use super::raw::{RawGenerator, RawPlan, RawRehearsal};
 use super::validate::{expr_error, Ctx};
-use super::{GeneratedColumn, Generator, Plan, Rehearsal};
+use super::{BaselineFile, GeneratedColumn, Generator, Plan, Rehearsal};
 use crate::error::Result;
 use crate::expr::{self, Draw};
 use crate::suggest::hint;
@@ -156,21 +156,60 @@ fn generator(
     key: &str,
 ) -> Result<Generator> {
     let src = &plan.data[table];
-    let rows = *g.get_ref().rows.get_ref();
-    if !(2..=MAX_ROWS).contains(&rows) {
-        return Err(ctx.at(
-            &g.get_ref().rows,
-            format!("{key}.rows"),
-            format!("rows must be a whole number from 2 to {MAX_ROWS}"),
-        ));
-    }
+    let raw = g.get_ref();
+    let (rows, baseline) = match (&raw.rows, &raw.baseline) {
+        (Some(rows), Some(_)) => {
+            return Err(ctx.at(
+                rows,
+                format!("{key}.rows"),
+                "rows cannot be given with baseline: the simulated table has the baseline file's rows; remove rows, or remove baseline to simulate a table of that many rows",
+            ))
+        }
+        (None, None) => {
+            return Err(ctx.at(
+                g,
+                key.to_string(),
+                "say how many rows to simulate with rows = N, or start from a baseline file with baseline = \"path\" (relative to the plan file)",
+            ))
+        }
+        (Some(rows), None) => {
+            let n = *rows.get_ref();
+            if !(2..=MAX_ROWS).contains(&n) {
+                return Err(ctx.at(
+                    rows,
+                    format!("{key}.rows"),
+                    format!("rows must be a whole number from 2 to {MAX_ROWS}"),
+                ));
+            }
+            (n as usize, None)
+        }
+        (None, Some(b)) => {
+            if b.get_ref().trim().is_empty() {
+                return Err(ctx.at(
+                    b,
+                    format!("{key}.baseline"),
+                    "baseline is empty; name the baseline file, relative to the plan file",
+                ));
+            }
+            let base = ctx.path.parent().map(std::path::Path::to_path_buf).unwrap_or_default();
+            let (line, column) = ctx.map.position(b.span().start + 1);
+            (
+                0,
+                Some(BaselineFile {
+                    text: b.get_ref().clone(),
+                    path: base.join(b.get_ref()),
+                    place: (line, column),
+                }),
+            )
+        }
+    };
     let mut parsed: BTreeMap<String, (Spanned<String>, GeneratedColumn)> = BTreeMap::new();
     let all = g
         .get_ref()
         .columns
         .iter()
         .map(|p| (p, false))
-        .chain(g.get_ref().latent.iter().map(|p| (p, true)));
+        .chain(raw.latent.iter().map(|p| (p, true)));
     for ((name, text), latent) in all {
         let n = name.get_ref();
         let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
@@ -239,17 +278,23 @@ fn generator(
             ),
         );
     }
+    // With a baseline, the columns not simulated come from the file: they are checked
+    // against its header when it is read (crate::rehearse), not here.
     let needed = crate::data::needed_columns(plan, src);
-    if let Some(n) = needed.iter().find(|n| !parsed.contains_key(*n)) {
+    if let Some(n) = needed
+        .iter()
+        .find(|n| baseline.is_none() && !parsed.contains_key(*n))
+    {
         return Err(ctx.at(
             g,
             format!("{key}.columns"),
             format!("the analysis uses column `{n}` of [data.{table}], which the rehearsal does not simulate; add `{n} = \"...\"` under [{key}.columns]"),
         ));
     }
-    let columns = order(ctx, plan, parsed, key)?;
+    let columns = order(ctx, plan, parsed, key, baseline.is_some())?;
     Ok(Generator {
-        rows: rows as usize,
+        rows,
+        baseline,
         columns,
     })
 }
@@ -269,15 +314,18 @@ fn dependencies(plan: &Plan, c: &GeneratedColumn) -> BTreeSet<String> {
 }
 
 /// Columns in evaluation order: repeatedly the first (by name) whose inputs are all ready.
+/// With a baseline (`from_file`), a name that is not simulated is read from the file, so it
+/// is ready from the start.
 fn order(
     ctx: &Ctx,
     plan: &Plan,
     mut parsed: BTreeMap<String, (Spanned<String>, GeneratedColumn)>,
     key: &str,
+    from_file: bool,
 ) -> Result<Vec<GeneratedColumn>> {
     for (name, (text, c)) in &parsed {
         for d in dependencies(plan, c) {
-            if !parsed.contains_key(&d) {
+            if !from_file && !parsed.contains_key(&d) {
                 let known = parsed.keys().map(String::as_str).chain([EFFECT]);
                 return Err(ctx.at(text, format!("{key}.columns.{name}"), format!(
                     "`{d}` is not simulated in this table{}; a data-generating process may use `{EFFECT}` and the table's other simulated columns",
@@ -286,6 +334,7 @@ fn order(
             }
         }
     }
+    let names: BTreeSet<String> = parsed.keys().cloned().collect();
     let mut out: Vec<GeneratedColumn> = Vec::new();
     while !parsed.is_empty() {
         let ready = parsed
@@ -293,7 +342,7 @@ fn order(
             .find(|(_, (_, c))| {
                 dependencies(plan, c)
                     .iter()
-                    .all(|d| out.iter().any(|o| &o.name == d))
+                    .all(|d| out.iter().any(|o| &o.name == d) || (from_file && !names.contains(d)))
             })
             .map(|(n, _)| n.clone());
         let Some(name) = ready else {

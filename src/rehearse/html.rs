@@ -32,12 +32,16 @@ pub fn page(r: &Rehearsed, title: &str) -> String {
     );
     let _ = writeln!(
         o,
-        "<p>Simulated before any data: {} data sets at each of {} effect sizes (seed {}), each run through the complete registered analysis. Assumptions fingerprint <code>sha256:{}</code>.</p>",
+        "<p>Simulated before {}: {} data sets at each of {} effect sizes (seed {}), each run through the complete registered analysis. Assumptions fingerprint <code>sha256:{}</code>.</p>",
+        h(r.before()),
         r.replications,
         r.effects.len(),
         r.seed,
         h(&r.assumptions_sha256)
     );
+    for note in r.baseline_notes() {
+        let _ = writeln!(o, "<p>{}</p>", h(&note));
+    }
     let _ = writeln!(o, "<h2>Power curve</h2>\n<figure>");
     match super::figure::power_curve(r) {
         Ok(svg) => o.push_str(&svg),

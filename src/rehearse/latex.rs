@@ -133,13 +133,17 @@ pub fn latex(r: &Rehearsed, title: &str) -> String {
     let _ = writeln!(o, "\\section*{{Rehearsal: {}}}", tex(title));
     let _ = writeln!(
         o,
-        "Simulated before any data: {} data sets at each of {} effect sizes (seed {}), each run through the complete registered analysis. Plan content fingerprint {}; assumptions fingerprint {}.\n",
+        "Simulated before {}: {} data sets at each of {} effect sizes (seed {}), each run through the complete registered analysis. Plan content fingerprint {}; assumptions fingerprint {}.\n",
+        r.before(),
         r.replications,
         r.effects.len(),
         r.seed,
         tex_breakable(&format!("sha256:{}", r.plan_content_sha256)),
         tex_breakable(&format!("sha256:{}", r.assumptions_sha256))
     );
+    for note in r.baseline_notes() {
+        let _ = writeln!(o, "{}\n", tex_breakable(&note));
+    }
     if let Some((used, registered)) = r.resampling_draws {
         let _ = writeln!(
             o,

@@ -25,13 +25,24 @@ pub fn markdown(r: &Rehearsed, title: &str) -> String {
     let _ = writeln!(o, "# Rehearsal: {}\n", md(title));
     let _ = writeln!(
         o,
-        "Simulated before any data: {} data sets at each of {} effect sizes (seed {}), each run through the complete registered analysis. Plan content fingerprint `sha256:{}`; assumptions fingerprint `sha256:{}`.\n",
+        "Simulated before {}: {} data sets at each of {} effect sizes (seed {}), each run through the complete registered analysis. Plan content fingerprint `sha256:{}`; assumptions fingerprint `sha256:{}`.\n",
+        r.before(),
         r.replications,
         r.effects.len(),
         r.seed,
         r.plan_content_sha256,
         r.assumptions_sha256
     );
+    for (id, b) in &r.baselines {
+        let _ = writeln!(
+            o,
+            "The rows of `{}` are those of the baseline file `{}` ({} rows, `sha256:{}`), the same in every data set; the assignment and the other simulated columns are drawn anew on them each time. Power here is for the units of the baseline, under the effect and take-up the plan states.\n",
+            md(id),
+            md(&b.path),
+            b.rows,
+            b.sha256
+        );
+    }
     if let Some((used, registered)) = r.resampling_draws {
         let _ = writeln!(
             o,

@@ -2,11 +2,16 @@
 //! random draws of one replication's stream, then built into a [`Table`] through the same
 //! ordering, derivation and index code as a file.
 //!
-//! Invariants: the values depend only on (seed, replication, effect) and the plan; the
+//! With a baseline file the table's rows and the file's columns are fixed; only the
+//! simulated columns (and the re-drawn assignment) change between replications.
+//!
+//! Invariants: the values depend only on (seed, replication, effect), the plan and the
+//! baseline files; the
 //! columns are drawn in the validated order, tables in id order, from one stream per
 //! replication (the same stream at every effect size, so effect sizes are compared on the
 //! same simulated units).
 
+use super::baseline::Loaded;
 use super::rng::Stream;
 use crate::data::{table_from_columns, Table};
 use crate::error::{Error, Result};
@@ -22,16 +27,24 @@ type Column = Vec<Option<f64>>;
 /// # Errors
 /// A draw's argument outside its domain or a generated value that does not fit its declared
 /// kind (an error at the column's expression in the plan), or a table that cannot be built.
-pub fn tables(plan: &Plan, seed: u64, r: u64, effect: f64) -> Result<BTreeMap<String, Table>> {
+pub(crate) fn tables(
+    plan: &Plan,
+    baselines: &BTreeMap<String, Loaded>,
+    seed: u64,
+    r: u64,
+    effect: f64,
+) -> Result<BTreeMap<String, Table>> {
     let Some(reh) = &plan.rehearsal else {
         return Ok(BTreeMap::new());
     };
     let stream = RefCell::new(Stream::new(seed, r));
     let mut out = BTreeMap::new();
     for (id, g) in &reh.generators {
-        let columns = columns(plan, id, g, &stream, effect)?;
+        let base = baselines.get(id);
+        let rows = base.map_or(g.rows, |b| b.columns.rows);
+        let columns = columns(plan, id, g, base, rows, &stream, effect)?;
         let src = &plan.data[id];
-        let t = table_from_columns(plan, src, columns, g.rows, format!("simulated:{r}"))?;
+        let t = table_from_columns(plan, src, columns, rows, format!("simulated:{r}"))?;
         out.insert(id.clone(), t);
     }
     Ok(out)
@@ -41,11 +54,15 @@ fn columns(
     plan: &Plan,
     table: &str,
     g: &Generator,
+    base: Option<&Loaded>,
+    rows: usize,
     stream: &RefCell<Stream>,
     effect: f64,
 ) -> Result<BTreeMap<String, Column>> {
-    let effect_column = vec![Some(effect); g.rows];
-    let mut done: BTreeMap<String, Column> = BTreeMap::new();
+    let effect_column = vec![Some(effect); rows];
+    // A baseline's columns are there from the start, the same in every replication.
+    let mut done: BTreeMap<String, Column> =
+        base.map_or_else(BTreeMap::new, |b| b.columns.columns.clone());
     for c in &g.columns {
         let values = {
             let lookup = |name: &str| {
@@ -61,7 +78,7 @@ fn columns(
                 assignment: plan.assignment.as_ref(),
             };
             c.expr
-                .eval_drawn(g.rows, &lookup, &source)
+                .eval_drawn(rows, &lookup, &source)
                 .map_err(|e| at(plan, table, c, effect, &e.message))?
         };
         check_kind(plan, table, c, effect, &values)?;

@@ -32,6 +32,10 @@ pub struct Rehearsed {
     /// SHA-256 of the rehearsal's assumptions: the canonical `[rehearsal]` section with the
     /// replication count used.
     pub assumptions_sha256: String,
+    /// Baseline files the simulated tables started from, by table id (absent when every
+    /// table was simulated whole).
+    #[serde(skip_serializing_if = "BTreeMap::is_empty")]
+    pub baselines: BTreeMap<String, super::BaselineRecord>,
     /// Simulated data sets per effect size.
     pub replications: usize,
     /// Seed.
@@ -367,6 +371,7 @@ pub(super) fn summarise(
         plan_content_sha256: print.content_sha256.clone(),
         plan_bytes_sha256: print.bytes_sha256.clone(),
         assumptions_sha256: assumptions_sha256(&print, reps),
+        baselines: BTreeMap::new(),
         replications: reps,
         seed: reh.seed,
         target_power: reh.target_power,
@@ -406,6 +411,49 @@ pub fn assumptions_sha256(print: &PlanPrint, reps: usize) -> String {
 }
 
 impl Rehearsed {
+    /// What comes before "data" in the report's opening sentence.
+    pub(crate) fn before(&self) -> &'static str {
+        if self.baselines.is_empty() {
+            "any data"
+        } else {
+            "the study's data (on the rows of a baseline file)"
+        }
+    }
+
+    /// One plain sentence per baseline file, for the reports.
+    pub(crate) fn baseline_notes(&self) -> Vec<String> {
+        self.baselines
+            .iter()
+            .map(|(id, b)| format!(
+                "The rows of {id} are those of the baseline file {} ({} rows, sha256:{}), the same in every data set; the assignment and the other simulated columns are drawn anew on them each time. Power here is for the units of the baseline, under the effect and take-up the plan states.",
+                b.path, b.rows, b.sha256
+            ))
+            .collect()
+    }
+    /// Record the baseline files the rehearsal read; they join its assumptions, so the
+    /// assumptions' fingerprint also covers the files' bytes.
+    pub(crate) fn set_baselines(&mut self, baselines: BTreeMap<String, super::BaselineRecord>) {
+        if baselines.is_empty() {
+            return;
+        }
+        let files: serde_json::Map<String, serde_json::Value> = baselines
+            .iter()
+            .map(|(id, b)| {
+                (
+                    id.clone(),
+                    serde_json::json!({"path": b.path, "sha256": b.sha256}),
+                )
+            })
+            .collect();
+        let mut out = String::new();
+        crate::plan::canonical::write_canonical(
+            &serde_json::json!({"assumptions": self.assumptions_sha256, "baselines": files}),
+            &mut out,
+        );
+        self.assumptions_sha256 = crate::ledger::sha256_hex(out.as_bytes());
+        self.baselines = baselines;
+    }
+
     /// What the `rehearsed` ledger entry records, for a later run to cite.
     pub fn power_record(&self) -> crate::ledger::PowerRecord {
         crate::ledger::PowerRecord {

@@ -504,3 +504,112 @@ fn the_demo_plan_rehearses_every_hypothesis_and_rule() {
         "{md}"
     );
 }
+
+/// The base plan rehearsed on the rows of a baseline file holding id, grp and x.
+const ON_BASELINE: &str = r#"
+[rehearsal]
+replications = 10
+seed = 9
+effects = [1.0]
+
+[rehearsal.data.main]
+baseline = "baseline.csv"
+
+[rehearsal.data.main.columns]
+z = "bernoulli(0.5)"
+d = "bernoulli(if(z, 0.7, 0.2))"
+y = "1 + effect * d + 0.5 * x + group_normal(grp, 0.5) + normal(0, 1)"
+yb = "bernoulli(0.3)"
+"#;
+
+/// 240 invented baseline rows in 12 groups.
+fn baseline_rows() -> String {
+    let mut s = String::from("id,grp,x\n");
+    for i in 0..240u32 {
+        s.push_str(&format!(
+            "b{i},g{},{}\n",
+            i % 12,
+            f64::from((i * 7) % 41) / 4.1
+        ));
+    }
+    s
+}
+
+#[test]
+fn a_baseline_rehearsal_records_the_file_hash_and_never_reads_the_data() {
+    let s = Study::with(&format!("{PLAN}{ON_BASELINE}"), &data_csv());
+    let csv = baseline_rows();
+    s.write("baseline.csv", &csv);
+    let r = s.sworn(&["rehearse", "plan.toml", "--out", "reh"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(r.stdout.contains("baseline.csv"), "{}", r.stdout);
+    let sha = {
+        use sha2::Digest;
+        sha2::Sha256::digest(csv.as_bytes())
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect::<String>()
+    };
+    let j: serde_json::Value = serde_json::from_str(&s.read("reh/rehearsal.json")).expect("json");
+    assert_eq!(j["baselines"]["main"]["sha256"], sha.as_str());
+    assert_eq!(j["baselines"]["main"]["path"], "baseline.csv");
+    assert_eq!(j["samples"]["ols"]["min"], 240);
+    let ledger = s.read("plan.ledger");
+    let entry: serde_json::Value =
+        serde_json::from_str(ledger.lines().last().expect("line")).expect("entry");
+    assert_eq!(entry["event"], "rehearsed");
+    assert_eq!(entry["baselines"]["main"]["sha256"], sha.as_str());
+    assert!(entry.get("data").is_none(), "{entry}");
+    assert!(!ledger.contains("data-first-read") && !ledger.contains("data-inspected"));
+    assert!(s.read("reh/rehearsal.md").contains(&sha));
+    assert!(s.read("reh/rehearsal.html").contains(&sha));
+    assert!(s.read("reh/rehearsal.tex").contains("baseline.csv"));
+    let log = s.sworn(&["log", "plan.toml"]);
+    assert!(
+        log.stdout.contains("baseline of main") && log.stdout.contains("not study data"),
+        "{}",
+        log.stdout
+    );
+}
+
+#[test]
+fn a_bad_baseline_stops_before_any_output_or_ledger_line() {
+    let s = Study::with(&format!("{PLAN}{ON_BASELINE}"), &data_csv());
+    let r = s.sworn(&["rehearse", "plan.toml", "--out", "reh"]);
+    assert_ne!(r.code, 0);
+    assert!(
+        r.stderr.contains("rehearsal.data.main.baseline") && r.stderr.contains("does not exist"),
+        "{}",
+        r.stderr
+    );
+    assert!(!r.stderr.contains("panicked"), "{}", r.stderr);
+    assert!(!s.path("reh").exists(), "no half-written output");
+    assert!(!s.read("plan.ledger").contains("rehearsed"));
+    s.write(
+        "baseline.csv",
+        &baseline_rows().replace("id,grp,x", "id,grp,y"),
+    );
+    let r = s.sworn(&["rehearse", "plan.toml", "--out", "reh"]);
+    assert_ne!(r.code, 0);
+    assert!(
+        r.stderr.contains("is both a column of the baseline file"),
+        "{}",
+        r.stderr
+    );
+    assert!(!s.path("reh").exists());
+}
+
+#[test]
+fn a_copy_of_the_study_data_is_refused_as_a_baseline_once_the_ledger_has_its_hash() {
+    let s = Study::with(&format!("{PLAN}{ON_BASELINE}"), &data_csv());
+    s.seal_and_run();
+    s.write("baseline.csv", &data_csv());
+    let r = s.sworn(&["rehearse", "plan.toml", "--out", "reh"]);
+    assert_ne!(r.code, 0, "{}", r.stdout);
+    assert!(
+        r.stderr.contains("same bytes") && r.stderr.contains("[data.main]"),
+        "{}",
+        r.stderr
+    );
+    assert!(!s.path("reh").exists());
+}
