@@ -1,7 +1,7 @@
 //! The Anderson–Rubin statistic on a grid of coefficient values (results.json's
 //! `anderson_rubin.curve`), so the HTML report can draw it without recomputing a statistic.
 
-use crate::estimate::{Absorbed, CovSpec, IvProblem};
+use crate::estimate::ArProblem;
 use crate::results::{ArCurve, SetPiece, Term, AR_CURVE_POINTS};
 
 /// The grid: [`AR_CURVE_POINTS`] equally spaced values over the span of the set's finite
@@ -38,15 +38,9 @@ pub fn grid(set: &[SetPiece], wald: Option<&Term>) -> Vec<f64> {
 
 /// AR on the grid for the set `set` and Wald term `wald`; null when it cannot be computed
 /// (the test at a single null then failed too, or the grid is not finite).
-pub fn curve(
-    iv: &IvProblem,
-    cov: &CovSpec,
-    absorbed: &Absorbed,
-    set: &[SetPiece],
-    wald: Option<&Term>,
-) -> Option<ArCurve> {
+pub fn curve(ar: &ArProblem, set: &[SetPiece], wald: Option<&Term>) -> Option<ArCurve> {
     let coefficient = grid(set, wald);
-    let statistic = iv.anderson_rubin_curve(cov, absorbed, &coefficient).ok()?;
+    let statistic = ar.curve(&coefficient).ok()?;
     Some(ArCurve {
         coefficient,
         statistic,

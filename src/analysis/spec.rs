@@ -956,14 +956,13 @@ impl IvContext<'_> {
                 stock_yogo_note,
                 tf_critical_value: tf,
             });
-            let at_zero = iv
-                .anderson_rubin(cov, ab, 0.0, spec.confidence)
-                .map_err(err)?;
+            // One set of AR regressions serves the test at 0 with its set, the curve and
+            // the tests at the nulls the decision rules need.
+            let ar = iv.anderson_rubin_problem(cov, ab).map_err(err)?;
+            let at_zero = ar.at(0.0, spec.confidence).map_err(err)?;
             let set = set_pieces(&at_zero.set);
             let curve = super::ar_curve::curve(
-                iv,
-                cov,
-                ab,
+                &ar,
                 &set,
                 p.focal_names.first().and_then(|x| result.terms.get(x)),
             );
@@ -998,9 +997,9 @@ impl IvContext<'_> {
                     clr_p_value: t.clr.p_value,
                 });
             }
-            let nulls = &self.needs.ar_nulls;
-            let tests = iv.anderson_rubin_tests(cov, ab, nulls).map_err(err)?;
-            ar_tests.extend(nulls.iter().copied().zip(tests));
+            for &null in &self.needs.ar_nulls {
+                ar_tests.push((null, ar.test(null).map_err(err)?));
+            }
         }
         Ok(ar_tests)
     }

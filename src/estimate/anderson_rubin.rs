@@ -175,6 +175,15 @@ pub fn anderson_rubin(
 
 /// One endogenous regressor, a finite null and a confidence level in (0, 1).
 fn check_inputs(endog: &DMatrix<f64>, beta0: f64, confidence: f64) -> Result<(), EstimateError> {
+    check_one_endogenous(endog)?;
+    if !(beta0.is_finite() && confidence > 0.0 && confidence < 1.0) {
+        return Err(EstimateError::NotFinite);
+    }
+    Ok(())
+}
+
+/// The AR test and set are defined for one endogenous regressor.
+fn check_one_endogenous(endog: &DMatrix<f64>) -> Result<(), EstimateError> {
     if endog.ncols() != 1 {
         return Err(EstimateError::DimensionMismatch {
             what: "endog columns",
@@ -182,13 +191,52 @@ fn check_inputs(endog: &DMatrix<f64>, beta0: f64, confidence: f64) -> Result<(),
             got: endog.ncols(),
         });
     }
-    if !(beta0.is_finite() && confidence > 0.0 && confidence < 1.0) {
-        return Err(EstimateError::NotFinite);
-    }
     Ok(())
 }
 
+/// The regressions of y and x on [Z | W] for one covariance choice, computed once and shared
+/// by the test at any null, the confidence set and the curve (each gives the same bits as the
+/// free function of its name, which builds one of these per call).
+pub struct ArProblem<'p> {
+    problem: Problem<'p>,
+    y: &'p DVector<f64>,
+    endog: &'p DMatrix<f64>,
+}
+
 impl IvProblem<'_> {
+    /// The shared Anderson–Rubin regressions of this problem under `cov`.
+    ///
+    /// # Errors
+    /// As [`anderson_rubin`] for the inputs.
+    pub fn anderson_rubin_problem<'p>(
+        &'p self,
+        cov: &'p CovSpec,
+        absorbed: &'p Absorbed,
+    ) -> Result<ArProblem<'p>, EstimateError> {
+        check_one_endogenous(self.endog)?;
+        let exog_qr = if self.exog.ncols() == 0 {
+            None
+        } else {
+            Some(self.exog_qr()?)
+        };
+        let problem = Problem::new(
+            self.y,
+            self.exog,
+            self.endog,
+            self.instruments,
+            &self.setup.z,
+            &self.setup.zqr,
+            exog_qr,
+            cov,
+            absorbed,
+        )?;
+        Ok(ArProblem {
+            problem,
+            y: self.y,
+            endog: self.endog,
+        })
+    }
+
     /// [`anderson_rubin`] on this problem, sharing its setup.
     ///
     /// # Errors
@@ -201,13 +249,36 @@ impl IvProblem<'_> {
         confidence: f64,
     ) -> Result<AndersonRubin, EstimateError> {
         check_inputs(self.endog, beta0, confidence)?;
-        let problem = self.ar_problem(cov, absorbed)?;
-        let test = problem.test(self.y, self.endog, beta0)?;
+        self.anderson_rubin_problem(cov, absorbed)?
+            .at(beta0, confidence)
+    }
+}
+
+impl ArProblem<'_> {
+    /// The AR test of β = β₀ alone, without the confidence set.
+    ///
+    /// # Errors
+    /// [`EstimateError::NotFinite`] for a non-finite `beta0`;
+    /// [`EstimateError::SingularCovariance`] when V(β₀) is singular.
+    pub fn test(&self, beta0: f64) -> Result<TestStatistic, EstimateError> {
+        if !beta0.is_finite() {
+            return Err(EstimateError::NotFinite);
+        }
+        self.problem.test(self.y, self.endog, beta0)
+    }
+
+    /// The test of β = β₀ with the confidence set at `confidence` (as [`anderson_rubin`]).
+    ///
+    /// # Errors
+    /// As [`anderson_rubin`].
+    pub fn at(&self, beta0: f64, confidence: f64) -> Result<AndersonRubin, EstimateError> {
+        check_inputs(self.endog, beta0, confidence)?;
+        let test = self.test(beta0)?;
         let critical_value = quantile(&test.reference, confidence);
         if !critical_value.is_finite() {
             return Err(EstimateError::NotFinite);
         }
-        let set = problem.confidence_set(critical_value)?;
+        let set = self.problem.confidence_set(critical_value)?;
         Ok(AndersonRubin {
             test,
             set,
@@ -215,49 +286,23 @@ impl IvProblem<'_> {
         })
     }
 
-    /// The Anderson–Rubin tests of β = β₀ for each β₀ in `nulls`, without the confidence
-    /// set: the same statistics as [`anderson_rubin`] at each null, from one set of shared
-    /// regressions.
+    /// The statistic at each value of `grid` (as [`anderson_rubin_curve`]).
     ///
     /// # Errors
-    /// As [`anderson_rubin`].
-    pub fn anderson_rubin_tests(
-        &self,
-        cov: &CovSpec,
-        absorbed: &Absorbed,
-        nulls: &[f64],
-    ) -> Result<Vec<TestStatistic>, EstimateError> {
-        if nulls.iter().any(|b| !b.is_finite()) {
+    /// As [`anderson_rubin_curve`].
+    pub fn curve(&self, grid: &[f64]) -> Result<Vec<Option<f64>>, EstimateError> {
+        if grid.iter().any(|b| !b.is_finite()) {
             return Err(EstimateError::NotFinite);
         }
-        let problem = self.ar_problem(cov, absorbed)?;
-        nulls
-            .iter()
-            .map(|&beta0| problem.test(self.y, self.endog, beta0))
+        let basis = self.problem.basis()?;
+        grid.iter()
+            .map(|&beta| {
+                let ar =
+                    self.problem
+                        .ar_direction(&basis, 1.0, (beta - basis.centre) / basis.scale)?;
+                Ok(ar.is_finite().then_some(ar))
+            })
             .collect()
-    }
-
-    fn ar_problem<'p>(
-        &'p self,
-        cov: &'p CovSpec,
-        absorbed: &'p Absorbed,
-    ) -> Result<Problem<'p>, EstimateError> {
-        check_inputs(self.endog, 0.0, 0.5)?; // one endogenous regressor
-        Problem::new(
-            self.y,
-            self.exog,
-            self.endog,
-            self.instruments,
-            &self.setup.z,
-            &self.setup.zqr,
-            if self.exog.ncols() == 0 {
-                None
-            } else {
-                Some(self.exog_qr()?)
-            },
-            cov,
-            absorbed,
-        )
     }
 }
 
@@ -282,42 +327,13 @@ pub fn anderson_rubin_curve(
     absorbed: &Absorbed,
     grid: &[f64],
 ) -> Result<Vec<Option<f64>>, EstimateError> {
-    if endog.ncols() != 1 {
-        return Err(EstimateError::DimensionMismatch {
-            what: "endog columns",
-            expected: 1,
-            got: endog.ncols(),
-        });
-    }
+    check_one_endogenous(endog)?;
     if grid.iter().any(|b| !b.is_finite()) {
         return Err(EstimateError::NotFinite);
     }
-    IvProblem::new(y, exog, endog, instruments)?.anderson_rubin_curve(cov, absorbed, grid)
-}
-
-impl IvProblem<'_> {
-    /// [`anderson_rubin_curve`] on this problem, sharing its setup.
-    ///
-    /// # Errors
-    /// As [`anderson_rubin_curve`].
-    pub fn anderson_rubin_curve(
-        &self,
-        cov: &CovSpec,
-        absorbed: &Absorbed,
-        grid: &[f64],
-    ) -> Result<Vec<Option<f64>>, EstimateError> {
-        if grid.iter().any(|b| !b.is_finite()) {
-            return Err(EstimateError::NotFinite);
-        }
-        let problem = self.ar_problem(cov, absorbed)?;
-        let basis = problem.basis()?;
-        grid.iter()
-            .map(|&beta| {
-                let ar = problem.ar_direction(&basis, 1.0, (beta - basis.centre) / basis.scale)?;
-                Ok(ar.is_finite().then_some(ar))
-            })
-            .collect()
-    }
+    IvProblem::new(y, exog, endog, instruments)?
+        .anderson_rubin_problem(cov, absorbed)?
+        .curve(grid)
 }
 
 /// The regressions shared by the test and the set.

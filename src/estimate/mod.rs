@@ -63,7 +63,7 @@ pub use absorb::{
     drop_singletons, FixedEffects, ABSORBED_COLUMN_TOLERANCE, MAX_SWEEPS, SWEEP_TOLERANCE,
 };
 pub use anderson_rubin::{
-    anderson_rubin, anderson_rubin_curve, AndersonRubin, ConfidenceSet, SetShape,
+    anderson_rubin, anderson_rubin_curve, AndersonRubin, ArProblem, ConfidenceSet, SetShape,
 };
 pub use clr::{clr_p_value, ConditionalLr, LmClr, QUADRATURE_DEPTH, QUADRATURE_TOLERANCE};
 pub use covariance::CovSpec;
