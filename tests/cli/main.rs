@@ -24,5 +24,6 @@ mod registration;
 mod rehearse;
 mod reports;
 mod resampling;
+mod results_bytes;
 mod summaries;
 mod table_rows;
