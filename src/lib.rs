@@ -15,6 +15,7 @@ pub mod distribution;
 pub mod error;
 pub mod escape;
 pub mod estimate;
+pub mod exact;
 pub mod expr;
 pub mod files;
 pub mod guide;

@@ -158,20 +158,37 @@ pub(crate) fn covariance(
             Ok(plain(sandwich(meat, n as f64 / (n - k) as f64)))
         }
         CovSpec::TwoWay { first, second } => {
-            let scores = scores(&qr.thin_q(), resid);
-            let (meat_a, ga) = cluster_meat(&scores, first)?;
-            let (meat_b, gb) = cluster_meat(&scores, second)?;
-            let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;
-            let kc = k_cluster;
-            let meat = meat_a * cr1_factor(ga, n, kc) + meat_b * cr1_factor(gb, n, kc)
-                - meat_ab * cr1_factor(gab, n, kc);
-            let cov = clamp_negative_eigenvalues(sandwich(meat, 1.0));
+            let (v, clusters) = two_way_unclamped(qr, resid, first, second, absorbed)?;
             Ok(Covariance {
-                cov,
-                clusters: Some(ga.min(gb)),
+                cov: clamp_negative_eigenvalues(v),
+                clusters: Some(clusters),
             })
         }
     }
+}
+
+/// The two-way clustered covariance before its eigenvalue clamp, and the smaller of the two
+/// cluster counts: V_A + V_B − V_{A∩B}, each a CR1 sandwich over the design factorised in
+/// `qr` (Cameron, Gelbach and Miller 2011). Callers clamp it ([`clamp_negative_eigenvalues`])
+/// after any further transformation (the k-class estimators multiply it by their bread
+/// correction first).
+pub(crate) fn two_way_unclamped(
+    qr: &PivotedQr,
+    resid: &DVector<f64>,
+    first: &[usize],
+    second: &[usize],
+    absorbed: &Absorbed,
+) -> Result<(DMatrix<f64>, usize), EstimateError> {
+    let t = qr.t_matrix();
+    let n = resid.len();
+    let kc = t.nrows() + absorbed.df - absorbed.nested_df;
+    let scores = scores(&qr.thin_q(), resid);
+    let (meat_a, ga) = cluster_meat(&scores, first)?;
+    let (meat_b, gb) = cluster_meat(&scores, second)?;
+    let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;
+    let meat = meat_a * cr1_factor(ga, n, kc) + meat_b * cr1_factor(gb, n, kc)
+        - meat_ab * cr1_factor(gab, n, kc);
+    Ok((&t * meat * t.transpose(), ga.min(gb)))
 }
 
 /// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ.

@@ -55,7 +55,7 @@
 
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
-use super::covariance::{clamp_negative_eigenvalues, covariance, intersect, CovSpec, Leverage};
+use super::covariance::{clamp_negative_eigenvalues, two_way_unclamped, CovSpec, Leverage};
 use super::linear::{assemble, require_observations, IvProblem, LeastSquares};
 use super::qr::PivotedQr;
 use super::refine::residual;
@@ -212,13 +212,8 @@ impl IvProblem<'_> {
         fit.cov = match cov {
             CovSpec::Classical => symmetric(&j * &fit.cov),
             CovSpec::TwoWay { first, second } => {
-                let cells = intersect(first, second);
-                let part = |ids: &[usize]| {
-                    let spec = CovSpec::Cluster { ids: ids.to_vec() };
-                    covariance(&qr_hat, &xhat, &fit.resid, &spec, leverage, absorbed).map(|c| c.cov)
-                };
-                let sum = part(first)? + part(second)? - part(&cells)?;
-                clamp_negative_eigenvalues(symmetric(&j * sum * j.transpose()))
+                let (v, _) = two_way_unclamped(&qr_hat, &fit.resid, first, second, absorbed)?;
+                clamp_negative_eigenvalues(symmetric(&j * v * j.transpose()))
             }
             _ => symmetric(&j * &fit.cov * j.transpose()),
         };

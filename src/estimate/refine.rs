@@ -14,24 +14,10 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::qr::PivotedQr;
+use crate::exact::{two_prod, two_sum};
 
 /// Refinement steps; each costs O(nk), and three reach working precision on the NIST sets.
 const STEPS: usize = 3;
-
-/// Error-free product: a·b = p + e exactly (uses a fused multiply-add).
-#[inline(always)]
-fn two_prod(a: f64, b: f64) -> (f64, f64) {
-    let p = a * b;
-    (p, a.mul_add(b, -p))
-}
-
-/// Error-free sum: a + b = s + e exactly (Knuth's TwoSum).
-#[inline(always)]
-fn two_sum(a: f64, b: f64) -> (f64, f64) {
-    let s = a + b;
-    let z = s - a;
-    (s, (a - (s - z)) + (b - z))
-}
 
 /// Σ aᵢ bᵢ evaluated as if in twice the working precision, then rounded (Dot2): the
 /// definition the row and column kernels below reproduce bit for bit (checked in the tests).

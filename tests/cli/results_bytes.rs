@@ -37,7 +37,10 @@ fn normalized(text: &str) -> String {
     ] {
         let mut found = Vec::new();
         values_under(&json, key, &mut found);
-        assert!(!found.is_empty(), "results.json has no `{key}` value to mark");
+        assert!(
+            !found.is_empty(),
+            "results.json has no `{key}` value to mark"
+        );
         for value in found {
             out = out.replace(&format!("\"{value}\""), &format!("\"{mark}\""));
         }
@@ -69,7 +72,9 @@ fn demo_results_json_is_byte_identical_to_its_snapshot() {
                 .lines()
                 .zip(fresh.lines())
                 .position(|(a, b)| a != b)
-                .map_or(kept.lines().count().min(fresh.lines().count()) + 1, |i| i + 1);
+                .map_or(kept.lines().count().min(fresh.lines().count()) + 1, |i| {
+                    i + 1
+                });
             stale.push(format!(
                 "{plan}: first difference at line {line}:\n  kept:  {}\n  fresh: {}",
                 kept.lines().nth(line - 1).unwrap_or("(end)"),

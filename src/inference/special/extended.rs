@@ -9,6 +9,8 @@
 
 use std::ops::{Add, Div, Mul, Neg, Sub};
 
+use crate::exact::{two_prod, two_sum};
+
 /// A double-double number hi + lo.
 #[derive(Debug, Clone, Copy)]
 pub(crate) struct Extended {
@@ -18,20 +20,10 @@ pub(crate) struct Extended {
     pub lo: f64,
 }
 
-/// s + e = a + b exactly, with s = fl(a + b) (Knuth's two-sum).
-fn two_sum(a: f64, b: f64) -> (f64, f64) {
-    let s = a + b;
-    let bb = s - a;
-    (s, (a - (s - bb)) + (b - bb))
-}
-
 /// s + e = a + b exactly, assuming |a| ≥ |b| (Dekker's fast two-sum).
 fn quick_two_sum(a: f64, b: f64) -> Extended {
-    let s = a + b;
-    Extended {
-        hi: s,
-        lo: b - (s - a),
-    }
+    let (hi, lo) = crate::exact::quick_two_sum(a, b);
+    Extended { hi, lo }
 }
 
 impl Extended {
@@ -87,8 +79,7 @@ impl Sub for Extended {
 impl Mul for Extended {
     type Output = Extended;
     fn mul(self, other: Extended) -> Extended {
-        let p = self.hi * other.hi;
-        let e = self.hi.mul_add(other.hi, -p);
+        let (p, e) = two_prod(self.hi, other.hi);
         quick_two_sum(p, e + (self.hi * other.lo + self.lo * other.hi))
     }
 }
