@@ -31,6 +31,24 @@ impl SplitMix64 {
         mix(self.state)
     }
 
+    /// The stream of resampling draw `b` under `seed`: its numbers depend on (seed, b) only,
+    /// so a draw's statistic does not depend on which thread computes it or in what order.
+    pub fn for_draw(seed: u64, b: u64) -> Self {
+        SplitMix64::new(seed ^ mix(b.wrapping_add(1).wrapping_mul(GOLDEN)))
+    }
+
+    /// A uniform integer in 0..m (m ≥ 1), exactly uniform by rejection (Lemire 2019, "Fast
+    /// random integer generation in an interval", ACM TOMACS 29(1)).
+    pub fn below(&mut self, m: u64) -> u64 {
+        let threshold = m.wrapping_neg() % m;
+        loop {
+            let product = u128::from(self.next_u64()) * u128::from(m);
+            if (product as u64) >= threshold {
+                return (product >> 64) as u64;
+            }
+        }
+    }
+
     /// Uniform on (0, 1): 53 random bits, offset by half a unit (never 0 or 1).
     pub fn uniform(&mut self) -> f64 {
         ((self.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64

@@ -163,40 +163,9 @@ pub enum ResampleError {
 /// whether the draws were enumerated.
 pub(crate) type DrawStats = (f64, Vec<Option<f64>>, bool);
 
-pub(crate) use crate::random::mix;
-use crate::random::GOLDEN;
-
-/// A SplitMix64 stream; [`Stream::for_draw`] makes draw b's numbers depend on (seed, b) only.
-#[derive(Debug, Clone)]
-pub(crate) struct Stream {
-    state: u64,
-}
-
-impl Stream {
-    /// The stream of draw `b` under `seed`.
-    pub(crate) fn for_draw(seed: u64, b: u64) -> Self {
-        Stream {
-            state: seed ^ mix(b.wrapping_add(1).wrapping_mul(GOLDEN)),
-        }
-    }
-
-    /// Next 64 random bits.
-    pub(crate) fn next_u64(&mut self) -> u64 {
-        self.state = self.state.wrapping_add(GOLDEN);
-        mix(self.state)
-    }
-
-    /// A uniform integer in 0..m (m ≥ 1), exactly uniform (Lemire 2019).
-    pub(crate) fn below(&mut self, m: u64) -> u64 {
-        let threshold = m.wrapping_neg() % m;
-        loop {
-            let product = u128::from(self.next_u64()) * u128::from(m);
-            if (product as u64) >= threshold {
-                return (product >> 64) as u64;
-            }
-        }
-    }
-}
+/// The random stream of one draw: SplitMix64 started from (seed, draw) by
+/// [`SplitMix64::for_draw`](crate::random::SplitMix64::for_draw).
+pub(crate) use crate::random::SplitMix64 as Stream;
 
 /// Computes the statistic of every draw: all `count` of them when `count ≤ exact_below`
 /// (`exact(i)` for i in 0..count), else the observed one and B random ones (`random(b)` for

@@ -2,26 +2,23 @@
 //! "Fast splittable pseudorandom number generators", OOPSLA), seeded from (seed, replication)
 //! so a replication's data do not depend on which thread simulates it or in what order.
 
-use crate::random::{mix, GOLDEN};
+use crate::random::{mix, SplitMix64, GOLDEN};
 
-/// A SplitMix64 stream.
+/// A SplitMix64 stream with the rehearsal's own uniform (53 bits on [0, 1)) and normal.
 #[derive(Debug, Clone)]
-pub struct Stream {
-    state: u64,
-}
+pub struct Stream(SplitMix64);
 
 impl Stream {
     /// The stream of replication `r` under `seed`.
     pub fn new(seed: u64, r: u64) -> Self {
-        Stream {
-            state: mix(seed ^ mix(r.wrapping_add(1).wrapping_mul(GOLDEN))),
-        }
+        Stream(SplitMix64::new(mix(
+            seed ^ mix(r.wrapping_add(1).wrapping_mul(GOLDEN))
+        )))
     }
 
     /// Next 64 random bits.
     pub fn next_u64(&mut self) -> u64 {
-        self.state = self.state.wrapping_add(GOLDEN);
-        mix(self.state)
+        self.0.next_u64()
     }
 
     /// A uniform number in [0, 1) with 53 random bits.
@@ -32,13 +29,7 @@ impl Stream {
     /// A uniform integer in 0..m (m ≥ 1), exactly uniform (Lemire 2019, "Fast random integer
     /// generation in an interval", ACM TOMACS 29(1)).
     pub fn below(&mut self, m: u64) -> u64 {
-        let threshold = m.wrapping_neg() % m;
-        loop {
-            let product = u128::from(self.next_u64()) * u128::from(m);
-            if (product as u64) >= threshold {
-                return (product >> 64) as u64;
-            }
-        }
+        self.0.below(m)
     }
 
     /// A standard normal draw.

@@ -243,45 +243,6 @@ fn invalid_inputs_are_errors() {
     .is_err());
 }
 
-/// SplitMix64 (Steele, Lea and Flood 2014) with Box–Muller normals, for the Monte Carlo.
-struct Rng {
-    state: u64,
-    spare: Option<f64>,
-}
-
-impl Rng {
-    fn new(seed: u64) -> Self {
-        Rng {
-            state: seed,
-            spare: None,
-        }
-    }
-
-    fn next_u64(&mut self) -> u64 {
-        self.state = self.state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.state;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-
-    /// Uniform on (0, 1): 53 random bits, offset by half a unit.
-    fn uniform(&mut self) -> f64 {
-        ((self.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    }
-
-    fn normal(&mut self) -> f64 {
-        if let Some(z) = self.spare.take() {
-            return z;
-        }
-        let (u1, u2) = (self.uniform(), self.uniform());
-        let r = (-2.0 * u1.ln()).sqrt();
-        let angle = 2.0 * std::f64::consts::PI * u2;
-        self.spare = Some(r * angle.sin());
-        r * angle.cos()
-    }
-}
-
 /// Monte Carlo size at 5% under a weak design: n = 100, L = 3 instruments, concentration
 /// parameter μ² = n·‖π‖² = 3 (π = 0.1 for each instrument), corr(u, v) = 0.95, null
 /// β = 0 true, 20,000 replications. The homoskedastic AR test is exact under normal errors
@@ -295,7 +256,7 @@ fn ar_monte_carlo_size() {
     use crate::inference::{p_value, Direction};
     let (reps, n, l) = (20_000usize, 100usize, 3usize);
     let (pi, rho) = (0.1, 0.95);
-    let mut rng = Rng::new(20_261_201);
+    let mut rng = crate::random::SplitMix64::new(20_261_201);
     let (mut ar_rejections, mut t_rejections) = (0usize, 0usize);
     let exog = DMatrix::from_element(n, 1, 1.0);
     for _ in 0..reps {
@@ -359,7 +320,7 @@ fn ar_monte_carlo_size() {
 /// The closed-form quadratic sets, worked by hand: β² − 6β + 5 = (β − 1)(β − 5).
 #[test]
 fn quadratic_shapes_by_hand() {
-    use super::quadratic_set;
+    use super::set::quadratic_set;
     let inf = f64::INFINITY;
     let bounded = quadratic_set(1.0, 3.0, 5.0, 1.0);
     assert_eq!(bounded.pieces, vec![(1.0, 5.0)]);
@@ -389,7 +350,7 @@ fn quadratic_shapes_by_hand() {
 /// 1/(1 + √(1 − 1e-10)).
 #[test]
 fn quadratic_without_cancellation() {
-    let set = super::quadratic_set(1e-10, 1.0, 1.0, 1.0);
+    let set = super::set::quadratic_set(1e-10, 1.0, 1.0, 1.0);
     let exact = 1.0 / (1.0 + (1.0 - 1e-10f64).sqrt());
     assert_eq!(set.pieces.len(), 1);
     assert!((set.pieces[0].0 - exact).abs() <= 2.0 * f64::EPSILON * exact);

@@ -199,24 +199,6 @@ fn absorbed_fixed_effects_equal_dummies() {
     }
 }
 
-/// SplitMix64 (Steele, Lea and Flood 2014) with Box–Muller normals, for the Monte Carlo.
-struct Rng(u64);
-
-impl Rng {
-    fn uniform(&mut self) -> f64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        (((z ^ (z >> 31)) >> 11) as f64 + 0.5) / (1u64 << 53) as f64
-    }
-
-    fn normal(&mut self) -> f64 {
-        let (u1, u2) = (self.uniform(), self.uniform());
-        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-    }
-}
-
 /// Monte Carlo size at 5% under a weak design with the null true: n = 200, L = 4,
 /// π = 0.07 per instrument (concentration parameter n‖π‖² ≈ 3.9), corr(u, v) = 0.95,
 /// normal homoskedastic errors, 4,000 replications. Both tests are asymptotically exact
@@ -226,7 +208,7 @@ impl Rng {
 #[test]
 fn monte_carlo_size_under_weak_instruments() {
     let (n, l, reps) = (200, 4, 4000);
-    let mut rng = Rng(20_261_204);
+    let mut rng = crate::random::SplitMix64::new(20_261_204);
     let w = DMatrix::from_element(n, 1, 1.0);
     let (mut lm_rej, mut clr_rej) = (0usize, 0usize);
     for _ in 0..reps {
