@@ -29,3 +29,5 @@ pub mod results;
 pub mod starter;
 pub mod suggest;
 pub mod terminal;
+#[cfg(test)]
+pub(crate) mod testing;

@@ -22,7 +22,7 @@ use serde_json::Value;
 use super::{ols, Absorbed, CovSpec, LinearFit};
 
 /// Relative tolerance for every fixture comparison.
-pub(super) const TOL: f64 = 1e-8;
+pub(super) const TOL: f64 = crate::testing::FIXTURE_TOL;
 
 /// Covariance kinds computed for OLS fixtures.
 pub(super) const OLS_KINDS: [&str; 7] =
@@ -38,11 +38,7 @@ pub(super) struct Fixture {
 
 /// Loads `case`, keeping the rows where every column is present (listwise deletion).
 pub(super) fn load(case: &str) -> Fixture {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/fixtures/").to_string()
-        + case
-        + ".json";
-    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("fixture {path}: {e}"));
-    let doc: Value = serde_json::from_str(&text).expect("fixture is JSON");
+    let doc = crate::testing::fixture(&format!("{case}.json"));
     let data = doc["data"].as_object().expect("data object");
     let raw: BTreeMap<String, Vec<Option<f64>>> = data
         .iter()

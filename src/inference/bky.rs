@@ -174,12 +174,7 @@ mod tests {
     /// relative 1e-9 of a q-value are skipped, where rounding decides).
     #[test]
     fn agrees_with_statsmodels_decisions() {
-        let path = concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/tests/reference/fixtures/summary_bky.json"
-        );
-        let text = std::fs::read_to_string(path).expect("fixture");
-        let doc: serde_json::Value = serde_json::from_str(&text).expect("JSON");
+        let doc = crate::testing::fixture("summary_bky.json");
         let families = doc["families"].as_array().expect("families");
         let mut checked = 0;
         for family in families {

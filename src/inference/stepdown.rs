@@ -261,12 +261,7 @@ mod tests {
     /// counts, so equality to 1e-15.
     #[test]
     fn agrees_with_numpy() {
-        let path = concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/tests/reference/fixtures/summary_romano_wolf.json"
-        );
-        let text = std::fs::read_to_string(path).expect("fixture");
-        let doc: serde_json::Value = serde_json::from_str(&text).expect("JSON");
+        let doc = crate::testing::fixture("summary_romano_wolf.json");
         let vec_of = |v: &serde_json::Value| -> Vec<f64> {
             v.as_array()
                 .unwrap()

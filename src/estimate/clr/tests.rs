@@ -41,12 +41,7 @@ fn matrix(data: &Value, names: &Value, n: usize) -> DMatrix<f64> {
 
 #[test]
 fn matches_ivmodels() {
-    let path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/reference/fixtures/clr_lm.json"
-    );
-    let text = std::fs::read_to_string(path).expect("fixture clr_lm.json");
-    let doc: Value = serde_json::from_str(&text).expect("fixture is JSON");
+    let doc = crate::testing::fixture("clr_lm.json");
     let cases = doc["cases"].as_array().expect("cases");
     assert_eq!(cases.len(), 3);
     for case in cases {
@@ -135,12 +130,7 @@ fn invalid_inputs_are_errors() {
 /// freedom n − L − |W| − a count the absorbed levels).
 #[test]
 fn absorbed_fixed_effects_equal_dummies() {
-    let path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/reference/fixtures/clr_lm.json"
-    );
-    let doc: Value =
-        serde_json::from_str(&std::fs::read_to_string(path).expect("fixture")).expect("JSON");
+    let doc = crate::testing::fixture("clr_lm.json");
     let case = &doc["cases"][0];
     let (data, setup) = (&case["data"], &case["setup"]);
     let y = column(data, "y", 0);

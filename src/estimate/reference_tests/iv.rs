@@ -254,12 +254,7 @@ fn iv_two_endogenous() {
 /// regressor Shea's R² equals the partial R².
 #[test]
 fn hansen_j_and_shea() {
-    let path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/reference/fixtures/iv_gmm.json"
-    );
-    let text = std::fs::read_to_string(path).expect("iv_gmm fixture");
-    let doc: Value = serde_json::from_str(&text).expect("JSON");
+    let doc = crate::testing::fixture("iv_gmm.json");
     let mut t = Tracker::default();
     for case in ["iv_just", "iv_over", "iv_two_endog"] {
         let fx = load(case);

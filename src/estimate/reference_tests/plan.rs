@@ -15,9 +15,8 @@ use crate::estimate::{
 
 /// Reads `name.csv` and `name.json` from the fixtures; cells as text ("NA" for missing).
 fn read(name: &str) -> (BTreeMap<String, Vec<String>>, Value) {
-    let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference/fixtures/");
-    let csv = std::fs::read_to_string(format!("{dir}{name}.csv")).expect("csv");
-    let json = std::fs::read_to_string(format!("{dir}{name}.json")).expect("json");
+    let csv = crate::testing::fixture_text(&format!("{name}.csv"));
+    let json = crate::testing::fixture_text(&format!("{name}.json"));
     let mut lines = csv.lines();
     let header: Vec<String> = lines
         .next()

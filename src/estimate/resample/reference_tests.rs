@@ -13,12 +13,7 @@ use super::wild::wild_statistics;
 use super::*;
 
 pub(super) fn fixture(name: &str) -> Vec<Value> {
-    let path = format!(
-        "{}/tests/reference/fixtures/{name}",
-        env!("CARGO_MANIFEST_DIR")
-    );
-    let text = std::fs::read_to_string(&path).unwrap();
-    let v: Value = serde_json::from_str(&text).unwrap();
+    let v = crate::testing::fixture(name);
     v["cases"].as_array().unwrap().clone()
 }
 

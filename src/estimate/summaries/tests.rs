@@ -4,13 +4,14 @@ use super::*;
 use crate::distribution::Reference;
 use crate::estimate::CovSpec;
 use crate::inference::test_p_value;
+use crate::testing::fixture;
 use nalgebra::DMatrix;
 use serde_json::Value;
 
 const NAN: f64 = f64::NAN;
 
 fn close(a: f64, b: f64, rel: f64) -> bool {
-    (a - b).abs() <= rel * b.abs().max(1.0)
+    crate::testing::rel_diff(a, b) <= rel
 }
 
 /// Hand example (6 rows, reference rows 0–2). Component A: reference 1, 2, 3 → mean 2,
@@ -182,15 +183,6 @@ fn lee_bounds_by_hand() {
         lee_bounds(&[1.0, NAN], &[true, true], &[true, false]),
         Err(SummaryError::NotFinite)
     );
-}
-
-fn fixture(name: &str) -> Value {
-    let path = format!(
-        "{}/tests/reference/fixtures/{name}",
-        env!("CARGO_MANIFEST_DIR")
-    );
-    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"));
-    serde_json::from_str(&text).unwrap()
 }
 
 fn floats(v: &Value) -> Vec<f64> {

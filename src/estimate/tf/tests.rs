@@ -12,12 +12,7 @@ use super::{tf_critical_value, tf_p_value};
 use crate::estimate::reference_tests::Tracker;
 
 fn fixture() -> Value {
-    let path = concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/reference/fixtures/ar_tf.json"
-    );
-    let text = std::fs::read_to_string(path).expect("fixture ar_tf.json");
-    serde_json::from_str(&text).expect("JSON")
+    crate::testing::fixture("ar_tf.json")
 }
 
 /// From memory (LMMP 2022): no finite 5% critical value for F below 1.96² = 3.8415.
