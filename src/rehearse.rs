@@ -16,9 +16,7 @@
 mod baseline;
 mod blind;
 mod figure;
-mod html;
-mod latex;
-mod render;
+mod model;
 mod rng;
 mod search;
 mod simulate;
@@ -29,9 +27,7 @@ mod tests;
 pub use baseline::BaselineRecord;
 pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
 pub use figure::{power_curve_svg, PowerSeries};
-pub use html::page as html;
-pub use latex::latex;
-pub use render::markdown;
+pub use model::RehearsalReport;
 pub use summary::{wilson, Rehearsed, WILSON_Z};
 
 use crate::error::{Error, Result};

@@ -4,6 +4,8 @@
 //! (a baseline file is recorded by its path and hash under `baselines`, never under `data`),
 //! so the ledger never counts a rehearsal as reading the data.
 
+mod render;
+
 use super::{locked, machine, rundir, slashed, Outcome};
 use crate::error::{Error, Result};
 use crate::escape::terminal;
@@ -77,9 +79,7 @@ pub fn rehearse(
             std::io::Error::other(e)
         ))?
     );
-    let md = crate::rehearse::markdown(&r, &plan.study.title);
-    let tex = crate::rehearse::latex(&r, &plan.study.title);
-    let html = crate::rehearse::html(&r, &plan.study.title);
+    let render::Rendered { md, tex, html } = render::render(&r, &plan.study.title)?;
     rundir::clean_stale(&abs_out);
     let staged = rundir::Staged::new(&abs_out, replace)?;
     let written = staged

@@ -411,25 +411,6 @@ pub fn assumptions_sha256(print: &PlanPrint, reps: usize) -> String {
 }
 
 impl Rehearsed {
-    /// What comes before "data" in the report's opening sentence.
-    pub(crate) fn before(&self) -> &'static str {
-        if self.baselines.is_empty() {
-            "any data"
-        } else {
-            "the study's data (on the rows of a baseline file)"
-        }
-    }
-
-    /// One plain sentence per baseline file, for the reports.
-    pub(crate) fn baseline_notes(&self) -> Vec<String> {
-        self.baselines
-            .iter()
-            .map(|(id, b)| format!(
-                "The rows of {id} are those of the baseline file {} ({} rows, sha256:{}), the same in every data set; the assignment and the other simulated columns are drawn anew on them each time. Power here is for the units of the baseline, under the effect and take-up the plan states.",
-                b.path, b.rows, b.sha256
-            ))
-            .collect()
-    }
     /// Record the baseline files the rehearsal read; they join its assumptions, so the
     /// assumptions' fingerprint also covers the files' bytes.
     pub(crate) fn set_baselines(&mut self, baselines: BTreeMap<String, super::BaselineRecord>) {
