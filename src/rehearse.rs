@@ -17,6 +17,7 @@ mod baseline;
 mod blind;
 mod figure;
 mod model;
+mod picture;
 mod rng;
 mod search;
 mod simulate;

@@ -9,7 +9,7 @@
 use super::Outcome;
 use crate::error::Result;
 use crate::ledger::{PlanPrint, TOOL_VERSION};
-use crate::plan::{Plan, Rehearsal};
+use crate::plan::{Hypothesis, Plan, Rehearsal};
 
 use serde::Serialize;
 use std::collections::BTreeMap;
@@ -265,6 +265,11 @@ pub(super) fn point(id: &str, effect: f64, outs: &[Outcome], reps: usize) -> Cur
     }
 }
 
+/// Summarise the outcomes `per_effect` (one slice of `reps` replications per effect size of
+/// `reh`) into the rehearsal model.
+///
+/// # Errors
+/// The plan's fingerprint cannot be computed.
 pub(super) fn summarise(
     plan: &Plan,
     registered_draws: Option<usize>,
@@ -273,97 +278,31 @@ pub(super) fn summarise(
     per_effect: &[&[Outcome]],
 ) -> Result<Rehearsed> {
     let print = PlanPrint::of(&plan.path, &plan.text)?;
-    let mut hypotheses = BTreeMap::new();
-    for h in &plan.hypotheses {
-        let curve: Vec<CurvePoint> = reh
-            .effects
-            .iter()
-            .zip(per_effect)
-            .map(|(e, outs)| point(&h.id, *e, outs, reps))
-            .collect();
-        let (m, est, note) = mde(&reh.effects, &curve, reh.target_power);
-        hypotheses.insert(
-            h.id.clone(),
-            HypothesisPower {
-                claim: h.claim.clone(),
-                specification: h.specification.clone(),
-                term: h.term.clone(),
-                family: h.family.clone(),
-                alpha: h.alpha,
-                size: curve[0].power,
-                mde: m,
-                mde_estimate: est,
-                mde_note: note,
-                mde_search: None,
-                curve,
-            },
-        );
-    }
-    let mut rules = BTreeMap::new();
-    for c in &plan.contingencies {
-        let fired = per_effect
-            .iter()
-            .map(|outs| {
-                wilson(
-                    outs.iter()
-                        .filter(|o| o.rules.get(&c.id) == Some(&true))
-                        .count(),
-                    reps,
-                )
-            })
-            .collect();
-        rules.insert(
-            c.id.clone(),
-            RuleRate {
-                specification: c.specification.clone(),
-                fired,
-            },
-        );
-    }
-    let mut first_stage = BTreeMap::new();
-    let mut samples = BTreeMap::new();
-    for s in &plan.specifications {
-        let stat = per_effect
-            .iter()
-            .flat_map(|o| o.iter())
-            .find_map(|o| o.first_stage.get(&s.id).map(|f| f.1));
-        if let Some(statistic) = stat {
-            let quantiles = per_effect
-                .iter()
-                .map(|outs| {
-                    let mut f: Vec<f64> = outs
-                        .iter()
-                        .filter_map(|o| o.first_stage.get(&s.id).map(|f| f.0))
-                        .filter(|f| f.is_finite())
-                        .collect();
-                    f.sort_by(f64::total_cmp);
-                    [0.05, 0.25, 0.5, 0.75, 0.95].map(|q| quantile(&f, q))
-                })
-                .collect();
-            first_stage.insert(
-                s.id.clone(),
-                FirstStage {
-                    statistic,
-                    quantiles,
-                },
-            );
-        }
-        let used: Vec<usize> = per_effect
-            .iter()
-            .flat_map(|o| o.iter())
-            .filter_map(|o| o.used.get(&s.id).copied())
-            .collect();
-        if let (Some(min), Some(max)) = (used.iter().min(), used.iter().max()) {
-            samples.insert(
-                s.id.clone(),
-                SampleSize {
-                    mean: used.iter().sum::<usize>() as f64 / used.len() as f64,
-                    min: *min,
-                    max: *max,
-                },
-            );
-        }
-    }
+    let hypotheses = plan
+        .hypotheses
+        .iter()
+        .map(|h| (h.id.clone(), hypothesis_power(h, reh, reps, per_effect)))
+        .collect();
+    let rules = plan
+        .contingencies
+        .iter()
+        .map(|c| {
+            (
+                c.id.clone(),
+                rule_rate(&c.id, &c.specification, reps, per_effect),
+            )
+        })
+        .collect();
+    let first_stage = plan
+        .specifications
+        .iter()
+        .filter_map(|s| Some((s.id.clone(), first_stage(&s.id, per_effect)?)))
+        .collect();
+    let samples = plan
+        .specifications
+        .iter()
+        .filter_map(|s| Some((s.id.clone(), sample_size(&s.id, per_effect)?)))
+        .collect();
     let all = per_effect.iter().flat_map(|o| o.iter());
     Ok(Rehearsed {
         format: 1,
@@ -386,11 +325,104 @@ pub(super) fn summarise(
             .map(|o| o.iter().filter(|x| x.failed.is_some()).count())
             .collect(),
         first_failure: all.filter_map(|o| o.failed.clone()).next(),
-        cautions: CAUTIONS
+        cautions: cautions(reh.mde_steps),
+    })
+}
+
+/// The cautions of a rehearsal whose MDE search took `mde_steps` steps at most.
+fn cautions(mde_steps: usize) -> Vec<&'static str> {
+    CAUTIONS
+        .iter()
+        .copied()
+        .chain(std::iter::once(mde_caution(mde_steps)))
+        .collect()
+}
+
+/// Power of hypothesis `h` at every effect size of `reh`, its size and its MDE read by
+/// interpolation on the grid.
+fn hypothesis_power(
+    h: &Hypothesis,
+    reh: &Rehearsal,
+    reps: usize,
+    per_effect: &[&[Outcome]],
+) -> HypothesisPower {
+    let curve: Vec<CurvePoint> = reh
+        .effects
+        .iter()
+        .zip(per_effect)
+        .map(|(e, outs)| point(&h.id, *e, outs, reps))
+        .collect();
+    let (m, est, note) = mde(&reh.effects, &curve, reh.target_power);
+    HypothesisPower {
+        claim: h.claim.clone(),
+        specification: h.specification.clone(),
+        term: h.term.clone(),
+        family: h.family.clone(),
+        alpha: h.alpha,
+        size: curve[0].power,
+        mde: m,
+        mde_estimate: est,
+        mde_note: note,
+        mde_search: None,
+        curve,
+    }
+}
+
+/// How often rule `id` (watching `specification`) fired at each effect size.
+fn rule_rate(id: &str, specification: &str, reps: usize, per_effect: &[&[Outcome]]) -> RuleRate {
+    RuleRate {
+        specification: specification.to_string(),
+        fired: per_effect
             .iter()
-            .copied()
-            .chain(std::iter::once(mde_caution(reh.mde_steps)))
+            .map(|outs| wilson(fired(outs, id), reps))
             .collect(),
+    }
+}
+
+/// How many of `outs` fired rule `id`.
+fn fired(outs: &[Outcome], id: &str) -> usize {
+    outs.iter()
+        .filter(|o| o.rules.get(id) == Some(&true))
+        .count()
+}
+
+/// Quantiles of specification `id`'s first-stage statistic per effect size; none when no
+/// data set gave one (not an instrumented specification, or it never ran).
+fn first_stage(id: &str, per_effect: &[&[Outcome]]) -> Option<FirstStage> {
+    let statistic = per_effect
+        .iter()
+        .flat_map(|o| o.iter())
+        .find_map(|o| o.first_stage.get(id).map(|f| f.1))?;
+    let quantiles = per_effect
+        .iter()
+        .map(|outs| {
+            let mut f: Vec<f64> = outs
+                .iter()
+                .filter_map(|o| o.first_stage.get(id).map(|f| f.0))
+                .filter(|f| f.is_finite())
+                .collect();
+            f.sort_by(f64::total_cmp);
+            [0.05, 0.25, 0.5, 0.75, 0.95].map(|q| quantile(&f, q))
+        })
+        .collect();
+    Some(FirstStage {
+        statistic,
+        quantiles,
+    })
+}
+
+/// Observations specification `id` used over every data set; none when it never ran.
+fn sample_size(id: &str, per_effect: &[&[Outcome]]) -> Option<SampleSize> {
+    let used: Vec<usize> = per_effect
+        .iter()
+        .flat_map(|o| o.iter())
+        .filter_map(|o| o.used.get(id).copied())
+        .collect();
+    let (min, max) = (used.iter().min()?, used.iter().max()?);
+    Some(SampleSize {
+        mean: used.iter().sum::<usize>() as f64 / used.len() as f64,
+        min: *min,
+        max: *max,
     })
 }
 
