@@ -268,7 +268,7 @@ fn first_stage(r: &Rehearsed) -> Vec<FirstStageRow> {
         .iter()
         .map(|(id, f)| FirstStageRow {
             id: id.clone(),
-            statistic: f.statistic.to_string(),
+            statistic: f.statistic.name().to_string(),
             quantiles: f
                 .quantiles
                 .first()

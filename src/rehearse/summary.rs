@@ -6,7 +6,8 @@
 //! number is finite; the model holds no clock and no path, so it is reproducible from the
 //! plan, seed and replication count.
 
-use super::Outcome;
+use super::baseline::BaselineRecord;
+use super::replicate::{FirstStageStatistic, Outcome};
 use crate::error::Result;
 use crate::ledger::{PlanPrint, TOOL_VERSION};
 use crate::plan::{Hypothesis, Plan, Rehearsal};
@@ -35,7 +36,7 @@ pub struct Rehearsed {
     /// Baseline files the simulated tables started from, by table id (absent when every
     /// table was simulated whole).
     #[serde(skip_serializing_if = "BTreeMap::is_empty")]
-    pub baselines: BTreeMap<String, super::BaselineRecord>,
+    pub baselines: BTreeMap<String, BaselineRecord>,
     /// Simulated data sets per effect size.
     pub replications: usize,
     /// Seed.
@@ -150,7 +151,7 @@ pub struct RuleRate {
 pub struct FirstStage {
     /// "effective" (Montiel Olea–Pflueger effective F, where the plan asks for weak-instrument
     /// diagnostics) or "wald" (the first-stage Wald F with the specification's errors).
-    pub statistic: &'static str,
+    pub statistic: FirstStageStatistic,
     /// Quantiles 5%, 25%, 50%, 75%, 95% per effect size (null where no data set gave one).
     pub quantiles: Vec<[f64; 5]>,
 }
@@ -445,7 +446,7 @@ pub fn assumptions_sha256(print: &PlanPrint, reps: usize) -> String {
 impl Rehearsed {
     /// Record the baseline files the rehearsal read; they join its assumptions, so the
     /// assumptions' fingerprint also covers the files' bytes.
-    pub(crate) fn set_baselines(&mut self, baselines: BTreeMap<String, super::BaselineRecord>) {
+    pub(crate) fn set_baselines(&mut self, baselines: BTreeMap<String, BaselineRecord>) {
         if baselines.is_empty() {
             return;
         }
