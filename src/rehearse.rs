@@ -12,6 +12,11 @@
 //! files and the replication count (each replication's stream comes from (seed,
 //! replication), and outcomes are gathered in replication order, so the thread count does
 //! not matter); the same stream serves a replication at every effect size.
+//!
+//! Layout: this file runs the replications (in parallel, gathered in order) and hands them to
+//! [`summary`]; one replication is [`replicate`]; the reports' model is [`model`] (rendered
+//! by `app/rehearse/render.rs`). Child modules depend only on each other and on lower layers
+//! (plan, data, expr, analysis, ledger, escape), never on this file, `report` or `app`.
 
 mod baseline;
 mod blind;
