@@ -32,7 +32,7 @@ mod summary;
 mod tests;
 
 pub use baseline::BaselineRecord;
-pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
+pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, BlindTest, Blinded, Redrawn};
 pub use figure::{power_curve_svg, PowerSeries};
 pub use model::RehearsalReport;
 pub use replicate::FirstStageStatistic;

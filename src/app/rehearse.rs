@@ -11,7 +11,7 @@ use crate::error::{Error, Result};
 use crate::escape::terminal;
 use crate::ledger::{self, ledger_path, Entry, Event, PlanPrint};
 use crate::plan::{self, Plan};
-use crate::rehearse::Rehearsed;
+use crate::rehearse::{BlindTest, Rehearsed};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 
@@ -309,10 +309,9 @@ fn print_blinded(plan: &Plan, b: &crate::rehearse::Blinded, recorded: Option<sup
         }
     }
     for (id, h) in &b.hypotheses {
-        let what = if *h == "tested" {
-            "tested (result masked)"
-        } else {
-            "no test result"
+        let what = match h {
+            BlindTest::Tested => "tested (result masked)",
+            BlindTest::NotTested => "no test result",
         };
         println!("  hypothesis {}: {what}", terminal(id));
     }

@@ -93,3 +93,23 @@ pub(super) fn one(
     }
     Ok(o)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::FirstStageStatistic;
+
+    /// The statistic's JSON spelling in rehearsal.json, and the name the reports print.
+    #[test]
+    fn first_stage_statistics_keep_their_spelling() {
+        for (s, name) in [
+            (FirstStageStatistic::Effective, "effective"),
+            (FirstStageStatistic::Wald, "wald"),
+        ] {
+            assert_eq!(
+                serde_json::to_string(&s).expect("json"),
+                format!("\"{name}\"")
+            );
+            assert_eq!(s.name(), name);
+        }
+    }
+}
