@@ -12,13 +12,18 @@
 //! files and the replication count (each replication's stream comes from (seed,
 //! replication), and outcomes are gathered in replication order, so the thread count does
 //! not matter); the same stream serves a replication at every effect size.
+//!
+//! Layout: this file runs the replications (in parallel, gathered in order) and hands them to
+//! [`summary`]; one replication is [`replicate`]; the reports' model is [`model`] (rendered
+//! by `app/rehearse/render.rs`). Child modules depend only on each other and on lower layers
+//! (plan, data, expr, analysis, ledger, escape), never on this file, `report` or `app`.
 
 mod baseline;
 mod blind;
 mod figure;
-mod html;
-mod latex;
-mod render;
+mod model;
+mod picture;
+mod replicate;
 mod rng;
 mod search;
 mod simulate;
@@ -27,33 +32,18 @@ mod summary;
 mod tests;
 
 pub use baseline::BaselineRecord;
-pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, Blinded, Redrawn};
+pub use blind::{blinded, redraw as blind_redraw, seed as blind_seed, BlindTest, Blinded, Redrawn};
 pub use figure::{power_curve_svg, PowerSeries};
-pub use html::page as html;
-pub use latex::latex;
-pub use render::markdown;
+pub use model::RehearsalReport;
+pub use replicate::FirstStageStatistic;
 pub use summary::{wilson, Rehearsed, WILSON_Z};
 
 use crate::error::{Error, Result};
 use crate::plan::Plan;
 use rayon::prelude::*;
+use replicate::Outcome;
 use std::collections::BTreeMap;
 use std::sync::atomic::{AtomicUsize, Ordering};
-
-/// What one replication at one effect size gave.
-#[derive(Debug, Clone, Default)]
-pub(crate) struct Outcome {
-    /// Why the analysis failed on this data set, if it did.
-    pub failed: Option<String>,
-    /// Per hypothesis: (supported, undetermined, estimate).
-    pub hypotheses: BTreeMap<String, (bool, bool, Option<f64>)>,
-    /// Per decision rule: whether it fired.
-    pub rules: BTreeMap<String, bool>,
-    /// Per IV specification: first-stage strength and which statistic it is.
-    pub first_stage: BTreeMap<String, (f64, &'static str)>,
-    /// Per specification: observations used.
-    pub used: BTreeMap<String, usize>,
-}
 
 /// Rehearse `plan` with `replications` data sets per effect size (the plan's count when
 /// None). `tick` is called after each data set (for a progress bar).
@@ -98,7 +88,7 @@ pub fn rehearse(
         (0..reps)
             .into_par_iter()
             .map(|r| {
-                let out = one(plan, baselines, reh.seed, r as u64, effect);
+                let out = replicate::one(plan, baselines, reh.seed, r as u64, effect);
                 tick(
                     done.fetch_add(1, Ordering::Relaxed) + 1,
                     expected.load(Ordering::Relaxed),
@@ -111,7 +101,7 @@ pub fn rehearse(
         .into_par_iter()
         .map(|i| {
             let (e, r) = (i / reps, i % reps);
-            let out = one(plan, baselines, reh.seed, r as u64, reh.effects[e]);
+            let out = replicate::one(plan, baselines, reh.seed, r as u64, reh.effects[e]);
             tick(done.fetch_add(1, Ordering::Relaxed) + 1, total);
             out
         })
@@ -146,49 +136,6 @@ pub fn rehearse(
         search::refine(plan, &mut r, reh.mde_steps, &step)?;
     }
     Ok(r)
-}
-
-/// Simulate replication `r` at `effect` and run the registered analysis on it.
-fn one(
-    plan: &Plan,
-    baselines: &BTreeMap<String, baseline::Loaded>,
-    seed: u64,
-    r: u64,
-    effect: f64,
-) -> Result<Outcome> {
-    let tables = simulate::tables(plan, baselines, seed, r, effect)?;
-    let a = match crate::analysis::analyse(plan, &tables, None, None, false) {
-        Ok(a) => a,
-        Err(e) => {
-            return Ok(Outcome {
-                failed: Some(e.to_string()),
-                ..Outcome::default()
-            })
-        }
-    };
-    let mut o = Outcome::default();
-    for (id, h) in &a.hypotheses {
-        let supported = h.verdict == "supported";
-        let undetermined = h.verdict == "undetermined";
-        o.hypotheses
-            .insert(id.clone(), (supported, undetermined, h.estimate));
-    }
-    for c in &a.contingencies {
-        o.rules.insert(c.id.clone(), c.invoked);
-    }
-    for (id, f) in &a.fitted {
-        o.used.insert(id.clone(), f.result.n);
-        if let Some(w) = &f.result.weak_instruments {
-            o.first_stage
-                .insert(id.clone(), (w.effective_f, "effective"));
-        } else if let Some(fs) = f.result.first_stage.as_ref().filter(|m| m.len() == 1) {
-            if let Some(s) = fs.values().next() {
-                o.first_stage
-                    .insert(id.clone(), (s.robust_f_statistic, "wald"));
-            }
-        }
-    }
-    Ok(o)
 }
 
 /// The same simulated tables a rehearsal analyses (for tests and inspection).

@@ -4,12 +4,14 @@
 //! (a baseline file is recorded by its path and hash under `baselines`, never under `data`),
 //! so the ledger never counts a rehearsal as reading the data.
 
+mod render;
+
 use super::{locked, machine, rundir, slashed, Outcome};
 use crate::error::{Error, Result};
 use crate::escape::terminal;
 use crate::ledger::{self, ledger_path, Entry, Event, PlanPrint};
 use crate::plan::{self, Plan};
-use crate::rehearse::Rehearsed;
+use crate::rehearse::{BlindTest, Rehearsed};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 
@@ -49,6 +51,30 @@ pub fn rehearse(
     let abs_out = std::path::absolute(&out_dir)
         .map_err(|e| Error::io(&out_dir, "cannot resolve the output folder", e))?;
     rundir::check_target(&abs_out, replace)?;
+    let r = simulate_with_progress(&plan, replications, json)?;
+    let files = outputs(&r, &plan.study.title, &abs_out)?;
+    write_outputs(&abs_out, replace, &files)?;
+    let entry = ledger_entry(&plan, &r, &files, &abs_out)?;
+    locked(&ledger_path(&plan.path), true)?.append(entry)?;
+    if json {
+        let body = serde_json::json!({
+            "out": slashed(&out_dir),
+            "rehearsal": r,
+        });
+        machine::emit(&machine::envelope("rehearse", 0, body));
+    } else {
+        print_summary(&plan, &r, &out_dir);
+    }
+    Ok(Outcome::Success)
+}
+
+/// Run the rehearsal, with a progress bar on stderr when it is a terminal and the output is
+/// not JSON.
+fn simulate_with_progress(
+    plan: &Plan,
+    replications: Option<usize>,
+    json: bool,
+) -> Result<Rehearsed> {
     let bar = (!json && std::io::stderr().is_terminal()).then(|| {
         let b = indicatif::ProgressBar::new(0);
         if let Ok(style) = indicatif::ProgressStyle::with_template(
@@ -64,36 +90,57 @@ pub fn rehearse(
             b.set_position(done as u64);
         }
     };
-    let result = crate::analysis::quietly(|| crate::rehearse::rehearse(&plan, replications, &tick));
+    let result = crate::analysis::quietly(|| crate::rehearse::rehearse(plan, replications, &tick));
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
-    let r = result?;
+    result
+}
+
+/// The four output files of rehearsal `r`, by name, in the order written.
+fn outputs(r: &Rehearsed, title: &str, abs_out: &Path) -> Result<[(&'static str, String); 4]> {
     let json_text = format!(
         "{}\n",
-        serde_json::to_string_pretty(&r).map_err(|e| Error::io(
-            &abs_out,
+        serde_json::to_string_pretty(r).map_err(|e| Error::io(
+            abs_out,
             "cannot encode rehearsal.json",
             std::io::Error::other(e)
         ))?
     );
-    let md = crate::rehearse::markdown(&r, &plan.study.title);
-    let tex = crate::rehearse::latex(&r, &plan.study.title);
-    let html = crate::rehearse::html(&r, &plan.study.title);
-    rundir::clean_stale(&abs_out);
-    let staged = rundir::Staged::new(&abs_out, replace)?;
-    let written = staged
-        .write(REHEARSAL_JSON, json_text.as_bytes())
-        .and_then(|()| staged.write(REHEARSAL_MD, md.as_bytes()))
-        .and_then(|()| staged.write(REHEARSAL_TEX, tex.as_bytes()))
-        .and_then(|()| staged.write(REHEARSAL_HTML, html.as_bytes()));
+    let render::Rendered { md, tex, html } = render::render(r, title)?;
+    Ok([
+        (REHEARSAL_JSON, json_text),
+        (REHEARSAL_MD, md),
+        (REHEARSAL_TEX, tex),
+        (REHEARSAL_HTML, html),
+    ])
+}
+
+/// Write `files` into the output folder whole: staged beside it, then renamed into place
+/// (nothing is left behind when a write fails).
+fn write_outputs(abs_out: &Path, replace: bool, files: &[(&str, String)]) -> Result<()> {
+    rundir::clean_stale(abs_out);
+    let staged = rundir::Staged::new(abs_out, replace)?;
+    let written = files
+        .iter()
+        .try_for_each(|(name, text)| staged.write(name, text.as_bytes()));
     match written {
-        Ok(()) => staged.publish()?,
+        Ok(()) => staged.publish(),
         Err(e) => {
             staged.discard();
-            return Err(e);
+            Err(e)
         }
     }
+}
+
+/// The `rehearsed` ledger entry: the plan's fingerprints, the assumptions' fingerprint, the
+/// power for a later run to cite, the baseline files read, and the hash of each output.
+fn ledger_entry(
+    plan: &Plan,
+    r: &Rehearsed,
+    files: &[(&str, String)],
+    abs_out: &Path,
+) -> Result<Entry> {
     let mut entry = Entry::new(Event::Rehearsed);
     entry.plan = Some(PlanPrint::of(&plan.path, &plan.text)?);
     entry.assumptions = Some(r.assumptions_sha256.clone());
@@ -113,29 +160,14 @@ pub fn rehearse(
             .collect()
     });
     entry.outputs = Some(
-        [
-            (REHEARSAL_JSON, &json_text),
-            (REHEARSAL_MD, &md),
-            (REHEARSAL_TEX, &tex),
-            (REHEARSAL_HTML, &html),
-        ]
-        .into_iter()
-        .map(|(n, t)| (n.to_string(), ledger::sha256_hex(t.as_bytes())))
-        .collect(),
+        files
+            .iter()
+            .map(|(n, t)| (n.to_string(), ledger::sha256_hex(t.as_bytes())))
+            .collect(),
     );
     let plan_dir = plan.path.parent().unwrap_or(Path::new("/"));
-    entry.out = Some(slashed(&crate::analysis::relative_path(plan_dir, &abs_out)));
-    locked(&ledger_path(&plan.path), true)?.append(entry)?;
-    if json {
-        let body = serde_json::json!({
-            "out": slashed(&out_dir),
-            "rehearsal": r,
-        });
-        machine::emit(&machine::envelope("rehearse", 0, body));
-    } else {
-        print_summary(&plan, &r, &out_dir);
-    }
-    Ok(Outcome::Success)
+    entry.out = Some(slashed(&crate::analysis::relative_path(plan_dir, abs_out)));
+    Ok(entry)
 }
 
 fn print_summary(plan: &Plan, r: &Rehearsed, out_dir: &Path) {
@@ -277,10 +309,9 @@ fn print_blinded(plan: &Plan, b: &crate::rehearse::Blinded, recorded: Option<sup
         }
     }
     for (id, h) in &b.hypotheses {
-        let what = if *h == "tested" {
-            "tested (result masked)"
-        } else {
-            "no test result"
+        let what = match h {
+            BlindTest::Tested => "tested (result masked)",
+            BlindTest::NotTested => "no test result",
         };
         println!("  hypothesis {}: {what}", terminal(id));
     }

@@ -8,7 +8,7 @@
 
 use crate::data::{read_baseline, BaselineColumns};
 use crate::error::{Error, Result};
-use crate::plan::{BaselineFile, Generator, Plan};
+use crate::plan::{BaselineFile, DataSource, Generator, Plan};
 use serde::Serialize;
 use std::collections::{BTreeMap, BTreeSet};
 
@@ -60,83 +60,15 @@ pub(crate) fn load(plan: &Plan) -> Result<BTreeMap<String, Loaded>> {
     Ok(out)
 }
 
+/// Read table `table`'s baseline file `b` and check it against the generator `g`.
 fn one(plan: &Plan, table: &str, g: &Generator, b: &BaselineFile) -> Result<Loaded> {
     let src = &plan.data[table];
-    if !b.path.is_file() {
-        return Err(at(plan, table, b.place, "baseline", format!(
-            "the baseline file \"{}\" does not exist (paths are relative to the plan file); correct the path, or simulate the table with rows = N instead",
-            crate::escape::clip(&b.text, crate::escape::SHOWN)
-        )));
-    }
-    let same = |p: &std::path::Path| match (p.canonicalize(), b.path.canonicalize()) {
-        (Ok(x), Ok(y)) => x == y,
-        _ => false,
-    };
-    if let Some(d) = plan.data.values().find(|d| same(&d.path)) {
-        return Err(at(plan, table, b.place, "baseline", format!(
-            "the baseline file is the study's data file of [data.{}]; a rehearsal never reads the study's data (that would be a look at the data before registration). Name a baseline survey file, or use `sworn rehearse --blind` on the real data",
-            d.id
-        )));
-    }
+    refuse_missing_or_study_file(plan, table, b)?;
     let simulated: BTreeSet<&str> = g.columns.iter().map(|c| c.name.as_str()).collect();
-    let mut wanted: BTreeSet<String> = src
-        .columns
-        .keys()
-        .filter(|n| !simulated.contains(n.as_str()))
-        .cloned()
-        .collect();
-    for c in &g.columns {
-        wanted.extend(
-            c.expr
-                .names()
-                .into_iter()
-                .filter(|n| n != crate::plan::EFFECT && !simulated.contains(n.as_str())),
-        );
-    }
-    let columns = read_baseline(src, &b.path, &wanted)?;
-    // A copy of the study's data under another name: caught when the ledger has its hash.
-    let ledger = crate::ledger::ledger_path(&plan.path);
-    if let Ok(Some(l)) = crate::ledger::Ledger::read(&ledger) {
-        if let Some((t, _)) = l
-            .entries()
-            .filter_map(|e| e.data.as_ref())
-            .flat_map(|d| d.iter())
-            .find(|(_, sha)| **sha == columns.sha256)
-        {
-            return Err(at(plan, table, b.place, "baseline", format!(
-                "the baseline file has the same bytes (SHA-256) as the data of [data.{t}] recorded in the ledger; a rehearsal never reads the study's data. Name a baseline survey file, or use `sworn rehearse --blind` on the real data"
-            )));
-        }
-    }
-    if let Some(c) = g
-        .columns
-        .iter()
-        .find(|c| columns.header.iter().any(|h| h == &c.name))
-    {
-        let kind = if c.latent { "latent" } else { "columns" };
-        return Err(at(plan, table, c.place, &format!("{kind}.{}", c.name), format!(
-            "`{}` is both a column of the baseline file (rehearsal.data.{table}.baseline = \"{}\") and simulated here (rehearsal.data.{table}.{kind}.{}); keep the file's column and remove this line, or rename one of them",
-            c.name,
-            crate::escape::clip(&b.text, crate::escape::SHOWN),
-            c.name
-        )));
-    }
-    for c in &g.columns {
-        let mut names: Vec<String> = c.expr.names().into_iter().collect();
-        names.sort();
-        if let Some(n) = names.iter().find(|n| {
-            n.as_str() != crate::plan::EFFECT
-                && !simulated.contains(n.as_str())
-                && !columns.columns.contains_key(n.as_str())
-        }) {
-            let kind = if c.latent { "latent" } else { "columns" };
-            return Err(at(plan, table, c.place, &format!("{kind}.{}", c.name), format!(
-                "`{n}` is neither simulated in this table nor a column of the baseline file \"{}\"{}; simulate it or add it to the file",
-                crate::escape::clip(&b.text, crate::escape::SHOWN),
-                crate::plan::suggest_hint(n, columns.header.iter().map(String::as_str).chain(simulated.iter().copied()))
-            )));
-        }
-    }
+    let columns = read_baseline(src, &b.path, &wanted(src, g, &simulated))?;
+    refuse_ledger_copy(plan, table, b, &columns.sha256)?;
+    refuse_clash(plan, table, g, b, &columns)?;
+    refuse_unknown_names(plan, table, g, b, &columns, &simulated)?;
     let needed = crate::data::needed_columns(plan, src);
     if let Some(n) = needed
         .iter()
@@ -166,4 +98,115 @@ fn one(plan: &Plan, table: &str, g: &Generator, b: &BaselineFile) -> Result<Load
         },
         columns,
     })
+}
+
+/// A baseline file must exist and must not be one of the plan's study data files.
+fn refuse_missing_or_study_file(plan: &Plan, table: &str, b: &BaselineFile) -> Result<()> {
+    if !b.path.is_file() {
+        return Err(at(plan, table, b.place, "baseline", format!(
+            "the baseline file \"{}\" does not exist (paths are relative to the plan file); correct the path, or simulate the table with rows = N instead",
+            crate::escape::clip(&b.text, crate::escape::SHOWN)
+        )));
+    }
+    let same = |p: &std::path::Path| match (p.canonicalize(), b.path.canonicalize()) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => false,
+    };
+    if let Some(d) = plan.data.values().find(|d| same(&d.path)) {
+        return Err(at(plan, table, b.place, "baseline", format!(
+            "the baseline file is the study's data file of [data.{}]; a rehearsal never reads the study's data (that would be a look at the data before registration). Name a baseline survey file, or use `sworn rehearse --blind` on the real data",
+            d.id
+        )));
+    }
+    Ok(())
+}
+
+/// The columns to read from the file: the table's declared columns that are not simulated,
+/// and every name an expression uses that is neither simulated nor `effect`.
+fn wanted(src: &DataSource, g: &Generator, simulated: &BTreeSet<&str>) -> BTreeSet<String> {
+    let mut wanted: BTreeSet<String> = src
+        .columns
+        .keys()
+        .filter(|n| !simulated.contains(n.as_str()))
+        .cloned()
+        .collect();
+    for c in &g.columns {
+        wanted.extend(
+            c.expr
+                .names()
+                .into_iter()
+                .filter(|n| n != crate::plan::EFFECT && !simulated.contains(n.as_str())),
+        );
+    }
+    wanted
+}
+
+/// A copy of the study's data under another name: caught when the ledger has its hash.
+fn refuse_ledger_copy(plan: &Plan, table: &str, b: &BaselineFile, sha256: &str) -> Result<()> {
+    let ledger = crate::ledger::ledger_path(&plan.path);
+    if let Ok(Some(l)) = crate::ledger::Ledger::read(&ledger) {
+        if let Some((t, _)) = l
+            .entries()
+            .filter_map(|e| e.data.as_ref())
+            .flat_map(|d| d.iter())
+            .find(|(_, sha)| **sha == sha256)
+        {
+            return Err(at(plan, table, b.place, "baseline", format!(
+                "the baseline file has the same bytes (SHA-256) as the data of [data.{t}] recorded in the ledger; a rehearsal never reads the study's data. Name a baseline survey file, or use `sworn rehearse --blind` on the real data"
+            )));
+        }
+    }
+    Ok(())
+}
+
+/// No name may be both a column of the file and simulated.
+fn refuse_clash(
+    plan: &Plan,
+    table: &str,
+    g: &Generator,
+    b: &BaselineFile,
+    columns: &BaselineColumns,
+) -> Result<()> {
+    if let Some(c) = g
+        .columns
+        .iter()
+        .find(|c| columns.header.iter().any(|h| h == &c.name))
+    {
+        let kind = if c.latent { "latent" } else { "columns" };
+        return Err(at(plan, table, c.place, &format!("{kind}.{}", c.name), format!(
+            "`{}` is both a column of the baseline file (rehearsal.data.{table}.baseline = \"{}\") and simulated here (rehearsal.data.{table}.{kind}.{}); keep the file's column and remove this line, or rename one of them",
+            c.name,
+            crate::escape::clip(&b.text, crate::escape::SHOWN),
+            c.name
+        )));
+    }
+    Ok(())
+}
+
+/// Every name an expression uses is `effect`, simulated, or a column of the file.
+fn refuse_unknown_names(
+    plan: &Plan,
+    table: &str,
+    g: &Generator,
+    b: &BaselineFile,
+    columns: &BaselineColumns,
+    simulated: &BTreeSet<&str>,
+) -> Result<()> {
+    for c in &g.columns {
+        let mut names: Vec<String> = c.expr.names().into_iter().collect();
+        names.sort();
+        if let Some(n) = names.iter().find(|n| {
+            n.as_str() != crate::plan::EFFECT
+                && !simulated.contains(n.as_str())
+                && !columns.columns.contains_key(n.as_str())
+        }) {
+            let kind = if c.latent { "latent" } else { "columns" };
+            return Err(at(plan, table, c.place, &format!("{kind}.{}", c.name), format!(
+                "`{n}` is neither simulated in this table nor a column of the baseline file \"{}\"{}; simulate it or add it to the file",
+                crate::escape::clip(&b.text, crate::escape::SHOWN),
+                crate::plan::suggest_hint(n, columns.header.iter().map(String::as_str).chain(simulated.iter().copied()))
+            )));
+        }
+    }
+    Ok(())
 }

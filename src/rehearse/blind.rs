@@ -32,7 +32,7 @@ pub struct Blinded {
     /// Per specification: observations used (null when it failed) and why it failed.
     pub specifications: BTreeMap<String, BlindSpec>,
     /// Per hypothesis: `tested` (a test ran; its result is masked) or `not-tested`.
-    pub hypotheses: BTreeMap<String, &'static str>,
+    pub hypotheses: BTreeMap<String, BlindTest>,
     /// Per decision rule: whether it fired on the re-drawn data.
     pub rules: BTreeMap<String, bool>,
     /// Codes of the deviations the analysis found (messages, which may quote numbers, are
@@ -42,6 +42,16 @@ pub struct Blinded {
     pub error: Option<String>,
     /// What the run shows and what it does not.
     pub cautions: Vec<&'static str>,
+}
+
+/// Whether a blinded run tested a hypothesis (its result is masked either way).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum BlindTest {
+    /// A test ran (it gave an estimate or a p-value); its result is masked.
+    Tested,
+    /// No test result.
+    NotTested,
 }
 
 /// The re-draw in one table.
@@ -228,9 +238,9 @@ pub fn blinded(plan: &Plan, tables: &BTreeMap<String, Table>, seed: u64) -> Resu
             }
             for (id, h) in &a.hypotheses {
                 let tested = if h.p_value.is_some() || h.estimate.is_some() {
-                    "tested"
+                    BlindTest::Tested
                 } else {
-                    "not-tested"
+                    BlindTest::NotTested
                 };
                 b.hypotheses.insert(id.clone(), tested);
             }
@@ -255,6 +265,15 @@ pub fn blinded(plan: &Plan, tables: &BTreeMap<String, Table>, seed: u64) -> Resu
 mod tests {
     use super::*;
     use crate::data::Labels;
+
+    /// The JSON spelling of a blinded test is the one `sworn rehearse --blind --json` has
+    /// always printed.
+    #[test]
+    fn blinded_tests_keep_their_json_spelling() {
+        let json = |t: BlindTest| serde_json::to_string(&t).expect("json");
+        assert_eq!(json(BlindTest::Tested), "\"tested\"");
+        assert_eq!(json(BlindTest::NotTested), "\"not-tested\"");
+    }
 
     /// 4 blocks × 5 clusters × 3 rows; in each block 2 clusters treated; one row has no block.
     fn table() -> Table {

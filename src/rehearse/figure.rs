@@ -48,6 +48,13 @@ pub fn power_curve(r: &Rehearsed) -> Result<String, String> {
     power_curve_svg(&r.effects, r.target_power, &series)
 }
 
+/// The chart the curve is drawn on: effect against power.
+type Chart<'a, 'b> = ChartContext<
+    'a,
+    SVGBackend<'b>,
+    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+>;
+
 /// The power curve of `series` over `effects` with the `target` line, as an SVG document
 /// (also drawn in a run's report.html from the power its ledger records for a rehearsal).
 ///
@@ -70,18 +77,7 @@ pub fn power_curve_svg(
             .y_label_area_size(48)
             .build_cartesian_2d(-xpad..xmax + xpad, 0.0..1.0)
             .map_err(|e| e.to_string())?;
-        chart
-            .configure_mesh()
-            .light_line_style(BLACK.mix(0.06))
-            .x_desc("effect (the plan's effect scale)")
-            .y_desc("share of data sets supporting the claim")
-            .x_labels(8)
-            .y_labels(6)
-            .y_label_formatter(&|y| format!("{y:.1}"))
-            .x_label_formatter(&|x| format!("{x}"))
-            .label_style(("sans-serif", 12))
-            .draw()
-            .map_err(|e| e.to_string())?;
+        draw_axes(&mut chart)?;
         chart
             .draw_series(DashedLineSeries::new(
                 vec![(-xpad, target), (xmax + xpad, target)],
@@ -93,23 +89,7 @@ pub fn power_curve_svg(
             .label(format!("target power {target}"))
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], BLACK.mix(0.6)));
         for (i, s) in series.iter().enumerate() {
-            let color = PALETTE[i % PALETTE.len()];
-            let points: Vec<(f64, f64)> = s.points.iter().map(|p| (p.0, p.1)).collect();
-            chart
-                .draw_series(LineSeries::new(points.clone(), color.stroke_width(2)))
-                .map_err(|e| e.to_string())?
-                .label(crate::escape::line(&s.id))
-                .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2))
-                });
-            chart
-                .draw_series(s.points.iter().map(|p| {
-                    PathElement::new(vec![(p.0, p.2), (p.0, p.3)], color.mix(0.7).stroke_width(1))
-                }))
-                .map_err(|e| e.to_string())?;
-            chart
-                .draw_series(points.iter().map(|&p| Circle::new(p, 3, color.filled())))
-                .map_err(|e| e.to_string())?;
+            draw_one(&mut chart, PALETTE[i % PALETTE.len()], s)?;
         }
         chart
             .configure_series_labels()
@@ -122,4 +102,39 @@ pub fn power_curve_svg(
         root.present().map_err(|e| e.to_string())?;
     }
     Ok(out)
+}
+
+/// The grid, the tick labels and the axis titles.
+fn draw_axes(chart: &mut Chart<'_, '_>) -> Result<(), String> {
+    chart
+        .configure_mesh()
+        .light_line_style(BLACK.mix(0.06))
+        .x_desc("effect (the plan's effect scale)")
+        .y_desc("share of data sets supporting the claim")
+        .x_labels(8)
+        .y_labels(6)
+        .y_label_formatter(&|y| format!("{y:.1}"))
+        .x_label_formatter(&|x| format!("{x}"))
+        .label_style(("sans-serif", 12))
+        .draw()
+        .map_err(|e| e.to_string())
+}
+
+/// One series in `color`: its line (with a legend entry), its interval bars and its points.
+fn draw_one(chart: &mut Chart<'_, '_>, color: RGBColor, s: &PowerSeries) -> Result<(), String> {
+    let points: Vec<(f64, f64)> = s.points.iter().map(|p| (p.0, p.1)).collect();
+    chart
+        .draw_series(LineSeries::new(points.clone(), color.stroke_width(2)))
+        .map_err(|e| e.to_string())?
+        .label(crate::escape::line(&s.id))
+        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], color.stroke_width(2)));
+    chart
+        .draw_series(s.points.iter().map(|p| {
+            PathElement::new(vec![(p.0, p.2), (p.0, p.3)], color.mix(0.7).stroke_width(1))
+        }))
+        .map_err(|e| e.to_string())?;
+    chart
+        .draw_series(points.iter().map(|&p| Circle::new(p, 3, color.filled())))
+        .map_err(|e| e.to_string())?;
+    Ok(())
 }

@@ -8,8 +8,8 @@
 //! half-width is the stated tolerance. Midpoints shared by several hypotheses are simulated
 //! once.
 
+use super::replicate::Outcome;
 use super::summary::{point, CurvePoint, MdeSearch, Rehearsed};
-use super::Outcome;
 use crate::error::Result;
 use crate::plan::Plan;
 use std::collections::BTreeMap;

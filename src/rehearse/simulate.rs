@@ -160,86 +160,124 @@ fn whole(draw: Draw, k: f64, max: f64) -> std::result::Result<u64, ExprError> {
     }
 }
 
+/// The column a draw gives, or why it cannot.
+type Drawn = std::result::Result<Column, ExprError>;
+
+/// Argument `i` of a draw at row `row` (none when missing).
+fn arg(args: &[Column], i: usize, row: usize) -> Option<f64> {
+    args.get(i).and_then(|a| a.get(row).copied().flatten())
+}
+
 impl DrawSource for Source<'_> {
-    fn draw(
-        &self,
-        draw: Draw,
-        args: &[Column],
-        n: usize,
-    ) -> std::result::Result<Column, ExprError> {
+    fn draw(&self, draw: Draw, args: &[Column], n: usize) -> Drawn {
         let mut s = self.stream.borrow_mut();
-        let arg = |i: usize, row: usize| args.get(i).and_then(|a| a.get(row).copied().flatten());
         match draw {
-            Draw::Normal => (0..n)
-                .map(|i| {
-                    let z = s.normal();
-                    match (arg(0, i), arg(1, i)) {
-                        (Some(_), Some(sd)) if sd < 0.0 => {
-                            Err(domain(draw, i, &format!("sd = {sd} is negative")))
-                        }
-                        (Some(m), Some(sd)) => Ok(Some(m + sd * z)),
-                        _ => Ok(None),
-                    }
-                })
-                .collect(),
-            Draw::Uniform => (0..n)
-                .map(|i| {
-                    let u = s.uniform();
-                    match (arg(0, i), arg(1, i)) {
-                        (Some(a), Some(b)) if b < a => {
-                            Err(domain(draw, i, &format!("high = {b} is below low = {a}")))
-                        }
-                        (Some(a), Some(b)) => Ok(Some(a + (b - a) * u)),
-                        _ => Ok(None),
-                    }
-                })
-                .collect(),
-            Draw::Bernoulli => (0..n)
-                .map(|i| {
-                    let u = s.uniform();
-                    match arg(0, i) {
-                        Some(p) if !(0.0..=1.0).contains(&p) => Err(domain(draw, i, &format!(
-                            "p = {p} is not a probability (from 0 to 1); check how the effect enters it"
-                        ))),
-                        Some(p) => Ok(Some(if u < p { 1.0 } else { 0.0 })),
-                        None => Ok(None),
-                    }
-                })
-                .collect(),
+            Draw::Normal => normal(&mut s, args, n),
+            Draw::Uniform => uniform(&mut s, args, n),
+            Draw::Bernoulli => bernoulli(&mut s, args, n),
             Draw::Level => {
                 let k = whole(draw, constant(draw, &args[0], "k")?, 1e9)?;
                 Ok((0..n).map(|_| Some((1 + s.below(k)) as f64)).collect())
             }
-            Draw::Group => {
-                let k = whole(draw, constant(draw, &args[0], "k")?, n as f64)?;
-                Ok((0..n)
-                    .map(|i| Some((1 + (i as u128 * u128::from(k) / n as u128)) as f64))
-                    .collect())
-            }
-            Draw::GroupNormal => {
-                let mut shocks: HashMap<u64, f64> = HashMap::new();
-                (0..n)
-                    .map(|i| match (arg(0, i), arg(1, i)) {
-                        (Some(_), Some(sd)) if sd < 0.0 => {
-                            Err(domain(draw, i, &format!("sd = {sd} is negative")))
-                        }
-                        (Some(g), Some(sd)) => {
-                            let z = *shocks.entry(g.to_bits()).or_insert_with(|| s.normal());
-                            Ok(Some(sd * z))
-                        }
-                        _ => Ok(None),
-                    })
-                    .collect()
-            }
+            Draw::Group => group(args, n),
+            Draw::GroupNormal => group_normal(&mut s, args, n),
             Draw::Assigned => {
                 let share = constant(draw, &args[0], "share")?;
                 if !(share > 0.0 && share < 1.0) {
-                    return Err(domain(draw, 0, &format!("share = {share} must lie strictly between 0 and 1")));
+                    return Err(domain(
+                        draw,
+                        0,
+                        &format!("share = {share} must lie strictly between 0 and 1"),
+                    ));
                 }
                 assign(&mut s, self.assignment, self.columns, share, n)
             }
         }
     }
+}
+
+/// `normal(mean, sd)`: one standard normal per row, drawn whether or not the row's
+/// arguments are present.
+fn normal(s: &mut Stream, args: &[Column], n: usize) -> Drawn {
+    (0..n)
+        .map(|i| {
+            let z = s.normal();
+            match (arg(args, 0, i), arg(args, 1, i)) {
+                (Some(_), Some(sd)) if sd < 0.0 => {
+                    Err(domain(Draw::Normal, i, &format!("sd = {sd} is negative")))
+                }
+                (Some(m), Some(sd)) => Ok(Some(m + sd * z)),
+                _ => Ok(None),
+            }
+        })
+        .collect()
+}
+
+/// `uniform(low, high)`: one uniform per row.
+fn uniform(s: &mut Stream, args: &[Column], n: usize) -> Drawn {
+    (0..n)
+        .map(|i| {
+            let u = s.uniform();
+            match (arg(args, 0, i), arg(args, 1, i)) {
+                (Some(a), Some(b)) if b < a => Err(domain(
+                    Draw::Uniform,
+                    i,
+                    &format!("high = {b} is below low = {a}"),
+                )),
+                (Some(a), Some(b)) => Ok(Some(a + (b - a) * u)),
+                _ => Ok(None),
+            }
+        })
+        .collect()
+}
+
+/// `bernoulli(p)`: 1 when the row's uniform falls below p.
+fn bernoulli(s: &mut Stream, args: &[Column], n: usize) -> Drawn {
+    (0..n)
+        .map(|i| {
+            let u = s.uniform();
+            match arg(args, 0, i) {
+                Some(p) if !(0.0..=1.0).contains(&p) => Err(domain(
+                    Draw::Bernoulli,
+                    i,
+                    &format!(
+                    "p = {p} is not a probability (from 0 to 1); check how the effect enters it"
+                ),
+                )),
+                Some(p) => Ok(Some(if u < p { 1.0 } else { 0.0 })),
+                None => Ok(None),
+            }
+        })
+        .collect()
+}
+
+/// `group(k)`: rows split into k consecutive groups of (nearly) equal size; no draw.
+fn group(args: &[Column], n: usize) -> Drawn {
+    let draw = Draw::Group;
+    let k = whole(draw, constant(draw, &args[0], "k")?, n as f64)?;
+    Ok((0..n)
+        .map(|i| Some((1 + (i as u128 * u128::from(k) / n as u128)) as f64))
+        .collect())
+}
+
+/// `group_normal(group, sd)`: one normal shock per distinct group value, drawn when the
+/// value first appears.
+fn group_normal(s: &mut Stream, args: &[Column], n: usize) -> Drawn {
+    let mut shocks: HashMap<u64, f64> = HashMap::new();
+    (0..n)
+        .map(|i| match (arg(args, 0, i), arg(args, 1, i)) {
+            (Some(_), Some(sd)) if sd < 0.0 => Err(domain(
+                Draw::GroupNormal,
+                i,
+                &format!("sd = {sd} is negative"),
+            )),
+            (Some(g), Some(sd)) => {
+                let z = *shocks.entry(g.to_bits()).or_insert_with(|| s.normal());
+                Ok(Some(sd * z))
+            }
+            _ => Ok(None),
+        })
+        .collect()
 }
 
 /// The treatment drawn as `[assignment]` declares: in each block (or overall), `share` of
@@ -251,55 +289,82 @@ fn assign(
     columns: &BTreeMap<String, Column>,
     share: f64,
     n: usize,
-) -> std::result::Result<Column, ExprError> {
-    let draw = Draw::Assigned;
-    let ids = |name: Option<&String>| -> std::result::Result<Vec<u64>, ExprError> {
-        match name {
-            None => Ok((0..n as u64).collect()),
-            Some(c) => {
-                let col = columns.get(c).ok_or_else(|| {
-                    domain(
-                        draw,
-                        0,
-                        &format!("`{c}` is not simulated before the assignment"),
-                    )
-                })?;
-                col.iter()
-                    .enumerate()
-                    .map(|(i, v)| {
-                        v.map(f64::to_bits)
-                            .ok_or_else(|| domain(draw, i, &format!("`{c}` is missing")))
-                    })
-                    .collect()
-            }
-        }
-    };
-    let clusters = ids(a.and_then(|a| a.clusters.as_ref()))?;
+) -> Drawn {
+    let clusters = unit_ids(columns, a.and_then(|a| a.clusters.as_ref()), n)?;
     let blocks = match a.and_then(|a| a.blocks.as_ref()) {
-        Some(b) => ids(Some(b))?,
+        Some(b) => unit_ids(columns, Some(b), n)?,
         None => vec![0; n],
     };
-    // Clusters of each block, in order of first appearance; a cluster in two blocks is refused.
+    let treated = shuffle(s, strata(&clusters, &blocks)?, share);
+    Ok(clusters
+        .iter()
+        .map(|c| {
+            Some(if treated.get(c).copied().unwrap_or(false) {
+                1.0
+            } else {
+                0.0
+            })
+        })
+        .collect())
+}
+
+/// Each row's unit of assignment: the value of column `name` (as bits), or the row itself.
+fn unit_ids(
+    columns: &BTreeMap<String, Column>,
+    name: Option<&String>,
+    n: usize,
+) -> std::result::Result<Vec<u64>, ExprError> {
+    let draw = Draw::Assigned;
+    let Some(c) = name else {
+        return Ok((0..n as u64).collect());
+    };
+    let col = columns.get(c).ok_or_else(|| {
+        domain(
+            draw,
+            0,
+            &format!("`{c}` is not simulated before the assignment"),
+        )
+    })?;
+    col.iter()
+        .enumerate()
+        .map(|(i, v)| {
+            v.map(f64::to_bits)
+                .ok_or_else(|| domain(draw, i, &format!("`{c}` is missing")))
+        })
+        .collect()
+}
+
+/// The clusters of each block, blocks and clusters in order of first appearance.
+///
+/// # Errors
+/// A cluster lies in two blocks.
+fn strata(clusters: &[u64], blocks: &[u64]) -> std::result::Result<Vec<Vec<u64>>, ExprError> {
     let mut block_of: HashMap<u64, u64> = HashMap::new();
     let mut strata: Vec<Vec<u64>> = Vec::new();
     let mut stratum_of: HashMap<u64, usize> = HashMap::new();
-    for i in 0..n {
-        match block_of.get(&clusters[i]) {
-            Some(b) if *b != blocks[i] => {
-                return Err(domain(draw, i, "a cluster lies in two blocks; simulate the clusters nested in the blocks (e.g. group(k) for both, with the block count dividing the cluster count)"));
+    for (i, (&cluster, &block)) in clusters.iter().zip(blocks).enumerate() {
+        match block_of.get(&cluster) {
+            Some(b) if *b != block => {
+                return Err(domain(Draw::Assigned, i, "a cluster lies in two blocks; simulate the clusters nested in the blocks (e.g. group(k) for both, with the block count dividing the cluster count)"));
             }
             Some(_) => {}
             None => {
-                block_of.insert(clusters[i], blocks[i]);
+                block_of.insert(cluster, block);
                 let next = strata.len();
-                let at = *stratum_of.entry(blocks[i]).or_insert(next);
+                let at = *stratum_of.entry(block).or_insert(next);
                 if at == next {
                     strata.push(Vec::new());
                 }
-                strata[at].push(clusters[i]);
+                strata[at].push(cluster);
             }
         }
     }
+    Ok(strata)
+}
+
+/// Treat `share` of each stratum's clusters (rounded), chosen by a partial Fisher–Yates
+/// shuffle, strata in order.
+fn shuffle(s: &mut Stream, strata: Vec<Vec<u64>>, share: f64) -> HashMap<u64, bool> {
     let mut treated: HashMap<u64, bool> = HashMap::new();
     for mut list in strata {
         let m = list.len();
@@ -312,14 +377,5 @@ fn assign(
             treated.insert(c, i < k);
         }
     }
-    Ok(clusters
-        .iter()
-        .map(|c| {
-            Some(if treated.get(c).copied().unwrap_or(false) {
-                1.0
-            } else {
-                0.0
-            })
-        })
-        .collect())
+    treated
 }

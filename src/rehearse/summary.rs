@@ -6,10 +6,11 @@
 //! number is finite; the model holds no clock and no path, so it is reproducible from the
 //! plan, seed and replication count.
 
-use super::Outcome;
+use super::baseline::BaselineRecord;
+use super::replicate::{FirstStageStatistic, Outcome};
 use crate::error::Result;
 use crate::ledger::{PlanPrint, TOOL_VERSION};
-use crate::plan::{Plan, Rehearsal};
+use crate::plan::{Hypothesis, Plan, Rehearsal};
 
 use serde::Serialize;
 use std::collections::BTreeMap;
@@ -35,7 +36,7 @@ pub struct Rehearsed {
     /// Baseline files the simulated tables started from, by table id (absent when every
     /// table was simulated whole).
     #[serde(skip_serializing_if = "BTreeMap::is_empty")]
-    pub baselines: BTreeMap<String, super::BaselineRecord>,
+    pub baselines: BTreeMap<String, BaselineRecord>,
     /// Simulated data sets per effect size.
     pub replications: usize,
     /// Seed.
@@ -150,7 +151,7 @@ pub struct RuleRate {
 pub struct FirstStage {
     /// "effective" (Montiel Olea–Pflueger effective F, where the plan asks for weak-instrument
     /// diagnostics) or "wald" (the first-stage Wald F with the specification's errors).
-    pub statistic: &'static str,
+    pub statistic: FirstStageStatistic,
     /// Quantiles 5%, 25%, 50%, 75%, 95% per effect size (null where no data set gave one).
     pub quantiles: Vec<[f64; 5]>,
 }
@@ -265,6 +266,11 @@ pub(super) fn point(id: &str, effect: f64, outs: &[Outcome], reps: usize) -> Cur
     }
 }
 
+/// Summarise the outcomes `per_effect` (one slice of `reps` replications per effect size of
+/// `reh`) into the rehearsal model.
+///
+/// # Errors
+/// The plan's fingerprint cannot be computed.
 pub(super) fn summarise(
     plan: &Plan,
     registered_draws: Option<usize>,
@@ -273,97 +279,31 @@ pub(super) fn summarise(
     per_effect: &[&[Outcome]],
 ) -> Result<Rehearsed> {
     let print = PlanPrint::of(&plan.path, &plan.text)?;
-    let mut hypotheses = BTreeMap::new();
-    for h in &plan.hypotheses {
-        let curve: Vec<CurvePoint> = reh
-            .effects
-            .iter()
-            .zip(per_effect)
-            .map(|(e, outs)| point(&h.id, *e, outs, reps))
-            .collect();
-        let (m, est, note) = mde(&reh.effects, &curve, reh.target_power);
-        hypotheses.insert(
-            h.id.clone(),
-            HypothesisPower {
-                claim: h.claim.clone(),
-                specification: h.specification.clone(),
-                term: h.term.clone(),
-                family: h.family.clone(),
-                alpha: h.alpha,
-                size: curve[0].power,
-                mde: m,
-                mde_estimate: est,
-                mde_note: note,
-                mde_search: None,
-                curve,
-            },
-        );
-    }
-    let mut rules = BTreeMap::new();
-    for c in &plan.contingencies {
-        let fired = per_effect
-            .iter()
-            .map(|outs| {
-                wilson(
-                    outs.iter()
-                        .filter(|o| o.rules.get(&c.id) == Some(&true))
-                        .count(),
-                    reps,
-                )
-            })
-            .collect();
-        rules.insert(
-            c.id.clone(),
-            RuleRate {
-                specification: c.specification.clone(),
-                fired,
-            },
-        );
-    }
-    let mut first_stage = BTreeMap::new();
-    let mut samples = BTreeMap::new();
-    for s in &plan.specifications {
-        let stat = per_effect
-            .iter()
-            .flat_map(|o| o.iter())
-            .find_map(|o| o.first_stage.get(&s.id).map(|f| f.1));
-        if let Some(statistic) = stat {
-            let quantiles = per_effect
-                .iter()
-                .map(|outs| {
-                    let mut f: Vec<f64> = outs
-                        .iter()
-                        .filter_map(|o| o.first_stage.get(&s.id).map(|f| f.0))
-                        .filter(|f| f.is_finite())
-                        .collect();
-                    f.sort_by(f64::total_cmp);
-                    [0.05, 0.25, 0.5, 0.75, 0.95].map(|q| quantile(&f, q))
-                })
-                .collect();
-            first_stage.insert(
-                s.id.clone(),
-                FirstStage {
-                    statistic,
-                    quantiles,
-                },
-            );
-        }
-        let used: Vec<usize> = per_effect
-            .iter()
-            .flat_map(|o| o.iter())
-            .filter_map(|o| o.used.get(&s.id).copied())
-            .collect();
-        if let (Some(min), Some(max)) = (used.iter().min(), used.iter().max()) {
-            samples.insert(
-                s.id.clone(),
-                SampleSize {
-                    mean: used.iter().sum::<usize>() as f64 / used.len() as f64,
-                    min: *min,
-                    max: *max,
-                },
-            );
-        }
-    }
+    let hypotheses = plan
+        .hypotheses
+        .iter()
+        .map(|h| (h.id.clone(), hypothesis_power(h, reh, reps, per_effect)))
+        .collect();
+    let rules = plan
+        .contingencies
+        .iter()
+        .map(|c| {
+            (
+                c.id.clone(),
+                rule_rate(&c.id, &c.specification, reps, per_effect),
+            )
+        })
+        .collect();
+    let first_stage = plan
+        .specifications
+        .iter()
+        .filter_map(|s| Some((s.id.clone(), first_stage(&s.id, per_effect)?)))
+        .collect();
+    let samples = plan
+        .specifications
+        .iter()
+        .filter_map(|s| Some((s.id.clone(), sample_size(&s.id, per_effect)?)))
+        .collect();
     let all = per_effect.iter().flat_map(|o| o.iter());
     Ok(Rehearsed {
         format: 1,
@@ -386,11 +326,104 @@ pub(super) fn summarise(
             .map(|o| o.iter().filter(|x| x.failed.is_some()).count())
             .collect(),
         first_failure: all.filter_map(|o| o.failed.clone()).next(),
-        cautions: CAUTIONS
+        cautions: cautions(reh.mde_steps),
+    })
+}
+
+/// The cautions of a rehearsal whose MDE search took `mde_steps` steps at most.
+fn cautions(mde_steps: usize) -> Vec<&'static str> {
+    CAUTIONS
+        .iter()
+        .copied()
+        .chain(std::iter::once(mde_caution(mde_steps)))
+        .collect()
+}
+
+/// Power of hypothesis `h` at every effect size of `reh`, its size and its MDE read by
+/// interpolation on the grid.
+fn hypothesis_power(
+    h: &Hypothesis,
+    reh: &Rehearsal,
+    reps: usize,
+    per_effect: &[&[Outcome]],
+) -> HypothesisPower {
+    let curve: Vec<CurvePoint> = reh
+        .effects
+        .iter()
+        .zip(per_effect)
+        .map(|(e, outs)| point(&h.id, *e, outs, reps))
+        .collect();
+    let (m, est, note) = mde(&reh.effects, &curve, reh.target_power);
+    HypothesisPower {
+        claim: h.claim.clone(),
+        specification: h.specification.clone(),
+        term: h.term.clone(),
+        family: h.family.clone(),
+        alpha: h.alpha,
+        size: curve[0].power,
+        mde: m,
+        mde_estimate: est,
+        mde_note: note,
+        mde_search: None,
+        curve,
+    }
+}
+
+/// How often rule `id` (watching `specification`) fired at each effect size.
+fn rule_rate(id: &str, specification: &str, reps: usize, per_effect: &[&[Outcome]]) -> RuleRate {
+    RuleRate {
+        specification: specification.to_string(),
+        fired: per_effect
             .iter()
-            .copied()
-            .chain(std::iter::once(mde_caution(reh.mde_steps)))
+            .map(|outs| wilson(fired(outs, id), reps))
             .collect(),
+    }
+}
+
+/// How many of `outs` fired rule `id`.
+fn fired(outs: &[Outcome], id: &str) -> usize {
+    outs.iter()
+        .filter(|o| o.rules.get(id) == Some(&true))
+        .count()
+}
+
+/// Quantiles of specification `id`'s first-stage statistic per effect size; none when no
+/// data set gave one (not an instrumented specification, or it never ran).
+fn first_stage(id: &str, per_effect: &[&[Outcome]]) -> Option<FirstStage> {
+    let statistic = per_effect
+        .iter()
+        .flat_map(|o| o.iter())
+        .find_map(|o| o.first_stage.get(id).map(|f| f.1))?;
+    let quantiles = per_effect
+        .iter()
+        .map(|outs| {
+            let mut f: Vec<f64> = outs
+                .iter()
+                .filter_map(|o| o.first_stage.get(id).map(|f| f.0))
+                .filter(|f| f.is_finite())
+                .collect();
+            f.sort_by(f64::total_cmp);
+            [0.05, 0.25, 0.5, 0.75, 0.95].map(|q| quantile(&f, q))
+        })
+        .collect();
+    Some(FirstStage {
+        statistic,
+        quantiles,
+    })
+}
+
+/// Observations specification `id` used over every data set; none when it never ran.
+fn sample_size(id: &str, per_effect: &[&[Outcome]]) -> Option<SampleSize> {
+    let used: Vec<usize> = per_effect
+        .iter()
+        .flat_map(|o| o.iter())
+        .filter_map(|o| o.used.get(id).copied())
+        .collect();
+    let (min, max) = (used.iter().min()?, used.iter().max()?);
+    Some(SampleSize {
+        mean: used.iter().sum::<usize>() as f64 / used.len() as f64,
+        min: *min,
+        max: *max,
     })
 }
 
@@ -411,28 +444,9 @@ pub fn assumptions_sha256(print: &PlanPrint, reps: usize) -> String {
 }
 
 impl Rehearsed {
-    /// What comes before "data" in the report's opening sentence.
-    pub(crate) fn before(&self) -> &'static str {
-        if self.baselines.is_empty() {
-            "any data"
-        } else {
-            "the study's data (on the rows of a baseline file)"
-        }
-    }
-
-    /// One plain sentence per baseline file, for the reports.
-    pub(crate) fn baseline_notes(&self) -> Vec<String> {
-        self.baselines
-            .iter()
-            .map(|(id, b)| format!(
-                "The rows of {id} are those of the baseline file {} ({} rows, sha256:{}), the same in every data set; the assignment and the other simulated columns are drawn anew on them each time. Power here is for the units of the baseline, under the effect and take-up the plan states.",
-                b.path, b.rows, b.sha256
-            ))
-            .collect()
-    }
     /// Record the baseline files the rehearsal read; they join its assumptions, so the
     /// assumptions' fingerprint also covers the files' bytes.
-    pub(crate) fn set_baselines(&mut self, baselines: BTreeMap<String, super::BaselineRecord>) {
+    pub(crate) fn set_baselines(&mut self, baselines: BTreeMap<String, BaselineRecord>) {
         if baselines.is_empty() {
             return;
         }

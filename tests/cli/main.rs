@@ -21,6 +21,7 @@ mod nist;
 mod readme;
 mod reference;
 mod registration;
+mod rehearsal_reports;
 mod rehearse;
 mod reports;
 mod resampling;
