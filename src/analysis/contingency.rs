@@ -9,8 +9,8 @@
 //! Invoking a rule is not a deviation: it was fixed before the data were seen.
 
 use super::spec::{Fitted, Needs, ResampleNeed};
+use crate::format::{num, pval};
 use crate::plan::{Action, Diagnostic, Method, Plan, Trigger};
-use crate::report::{num, pval};
 use crate::results::ContingencyResult;
 use std::collections::BTreeMap;
 

@@ -269,7 +269,7 @@ impl Verification {
 
     fn rederive(&mut self, dir: &Path, plan: &crate::plan::Plan, prefix: &Ledger, source: &str) {
         let out = analysis::load_tables(plan)
-            .and_then(|(t, d)| analysis::execute(plan, prefix, source, &t, d));
+            .and_then(|(t, d)| super::execute(plan, prefix, source, &t, d));
         let out = match out {
             Ok(o) => o,
             Err(e) => {
