@@ -112,15 +112,7 @@ pub fn execute(
             name: "sworn",
             version: TOOL_VERSION,
         },
-        plan: PlanInfo {
-            path: crate::layout::PLAN_FILE.to_string(),
-            source: source.to_string(),
-            bytes_sha256: print.bytes_sha256.clone(),
-            content_sha256: print.content_sha256.clone(),
-            sealed: integrity.sealed,
-            ledger_head: integrity.ledger_head,
-            integrity: integrity.state,
-        },
+        plan: plan_info(&print, source, &mut integrity),
         data: data_info(plan, tables),
         specifications,
         hypotheses,
@@ -136,6 +128,20 @@ pub fn execute(
     };
     results.digest = results.compute_digest();
     Ok(Executed { results, print })
+}
+
+/// What results.json records of the plan: its copy in the run directory, where the run read
+/// it, its fingerprints and its integrity state (the ledger head is taken from `integrity`).
+fn plan_info(print: &PlanPrint, source: &str, integrity: &mut integrity::Integrity) -> PlanInfo {
+    PlanInfo {
+        path: crate::layout::PLAN_FILE.to_string(),
+        source: source.to_string(),
+        bytes_sha256: print.bytes_sha256.clone(),
+        content_sha256: print.content_sha256.clone(),
+        sealed: integrity.sealed,
+        ledger_head: integrity.ledger_head.take(),
+        integrity: integrity.state,
+    }
 }
 
 /// Each declared table's path, SHA-256 and row count, by table id.
