@@ -1,10 +1,11 @@
 //! Estimating one specification: columns (design, absorbed and collinear columns) → fit →
 //! diagnostics → resampled tests → results.
 //!
-//! One file per concern: `resolve.rs` makes the specification's data ready to fit (a
-//! [`Prepared`]), `fit.rs` fits its estimator, `diagnostics.rs` adds the IV diagnostics,
-//! `resample.rs` runs the resampled tests the hypotheses ask for, `result.rs` assembles what
-//! results.json records. [`fit_spec`] runs them in that order.
+//! One file per concern: `resolve.rs` reads the design and resolves its columns, `fit.rs`
+//! chooses the covariance (with the columns, a [`Prepared`]) and fits the estimator,
+//! `diagnostics.rs` adds the IV diagnostics, `resample.rs` runs the resampled tests the
+//! hypotheses ask for, `result.rs` assembles what results.json records. [`fit_spec`] runs
+//! them in that order.
 
 mod diagnostics;
 mod fit;
@@ -153,7 +154,16 @@ pub fn fit_spec(
     rc: &ResampleContext,
 ) -> Result<Fitted> {
     let mut deviations = Vec::new();
-    let prepared = resolve::prepare(spec, table, &mut deviations)?;
+    let (d, p) = resolve::columns(spec, table, &mut deviations)?;
+    let (cov, hac) = fit::covariance(spec, table, &d, &p)?;
+    let prepared = Prepared {
+        spec,
+        table,
+        d,
+        p,
+        cov,
+        hac,
+    };
     let estimated = fit::estimate(&prepared)?;
     let reference = result::reference_for(spec, &estimated.fit);
     let degenerate = super::degenerate::outcome_problem(spec, &prepared.d, estimated.fit.rss);

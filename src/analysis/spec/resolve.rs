@@ -2,7 +2,7 @@
 //! columns the fixed effects leave without information handled, and collinearity resolved
 //! left to right over `[intercept, controls | focal terms]` (so the later column is named).
 
-use super::{est_err, fit, Prepared};
+use super::est_err;
 use crate::analysis::degenerate;
 use crate::data::{design, Design, Table};
 use crate::deviation::{Deviation, DeviationCode};
@@ -37,28 +37,19 @@ struct Block<'a> {
     names: &'a [String],
 }
 
-/// Read `spec`'s design from `table`, resolve absorbed and collinear columns and choose the
-/// covariance estimator. Columns dropped with `on_collinear = "drop"` are recorded in
-/// `deviations`.
-pub(super) fn prepare<'a>(
-    spec: &'a Spec,
-    table: &'a Table,
+/// Read `spec`'s design from `table` and resolve its absorbed and collinear columns.
+/// Columns dropped with `on_collinear = "drop"` are recorded in `deviations`.
+pub(super) fn columns(
+    spec: &Spec,
+    table: &Table,
     deviations: &mut Vec<Deviation>,
-) -> Result<Prepared<'a>> {
+) -> Result<(Design, Parts)> {
     let d = design(table, spec)?;
     check_rows_left(spec, &d)?;
     let d = absorbed_columns(spec, d, deviations)?;
     degenerate::check_scales(spec, &d)?;
     let p = parts(spec, &d)?;
-    let (cov, hac) = fit::covariance(spec, table, &d, &p)?;
-    Ok(Prepared {
-        spec,
-        table,
-        d,
-        p,
-        cov,
-        hac,
-    })
+    Ok((d, p))
 }
 
 /// Refuse a design with no row left: every row incomplete, or every complete row alone in
