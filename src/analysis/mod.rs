@@ -1,8 +1,10 @@
 //! Running a plan: load data, assess integrity, fit every specification, test every
-//! hypothesis and assemble the results and reports, all in memory.
+//! hypothesis and assemble the results model, all in memory.
 //!
-//! Nothing here writes files or the ledger: `app` sequences that, so `verify` can re-derive
-//! a run's outputs byte for byte with the same function.
+//! Nothing here renders a report or writes files or the ledger: `app` renders the reports
+//! from the results (`app::execute`) and sequences the writing, so `verify` can re-derive a
+//! run's outputs byte for byte with the same functions. The layer depends on no report, app
+//! or demo module.
 
 mod ar_curve;
 mod arms;
