@@ -117,7 +117,7 @@ deviation_codes! {
         "The declared key column has missing values.";
     KeyDuplicate = "key-duplicate", Deviation,
         "The declared key column has duplicate values.";
-    // Samples and fits (src/analysis/mod.rs, src/analysis/spec.rs).
+    // Samples and fits (src/analysis/mod.rs, src/analysis/spec/).
     MissingShare = "missing-share", Deviation,
         "Listwise deletion dropped a larger share of a sample than max_missing_share allows.";
     OutcomeDegenerate = "outcome-degenerate", Deviation,

@@ -18,42 +18,15 @@ pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>)
         0.5 + spec.confidence / 2.0,
     );
     let clusters = d.clusters.first().map(|(ids, _)| ids.as_slice());
-    let mut out = ArmSummary {
-        by: None,
-        by_role: None,
-        std_error_kind: if clusters.is_some() {
-            "cluster"
-        } else {
-            "unclustered"
-        },
-        cluster_by: match &spec.errors {
-            crate::plan::Errors::Cluster(by) if clusters.is_some() => by.first().cloned(),
-            _ => None,
-        },
-        comparison_mean: None,
-        comparison_note: None,
-        take_up: None,
-        take_up_note: None,
-        take_up_missing: None,
-    };
+    let mut out = unsummarised(spec, clusters.is_some());
     let iv = spec.estimator.is_iv();
     if !iv {
         out.take_up_note = Some("an OLS specification has no instrument".to_string());
         out.take_up_missing = Some("ols");
     }
-    let chosen = choose_by(spec, assigned);
-    let (by, role) = match chosen {
-        Ok(c) => c,
-        Err((code, why)) => {
-            out.comparison_note = Some(why.clone());
-            if iv {
-                out.take_up_note = Some(why);
-                out.take_up_missing = Some(code);
-            }
-            return out;
-        }
-    };
-    let arm = match arm_of(table, by, &d.rows) {
+    let arms = choose_by(spec, assigned)
+        .and_then(|(by, role)| Ok((by, role, arm_of(table, by, &d.rows)?)));
+    let (by, role, arm) = match arms {
         Ok(a) => a,
         Err((code, why)) => {
             out.comparison_note = Some(why.clone());
@@ -82,6 +55,25 @@ pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>)
         }
     }
     out
+}
+
+/// The summary before any arm is found: how its standard errors are computed (clustered
+/// by the specification's first cluster column when the design has clusters), nothing else.
+fn unsummarised(spec: &Spec, clustered: bool) -> ArmSummary {
+    ArmSummary {
+        by: None,
+        by_role: None,
+        std_error_kind: if clustered { "cluster" } else { "unclustered" },
+        cluster_by: match &spec.errors {
+            crate::plan::Errors::Cluster(by) if clustered => by.first().cloned(),
+            _ => None,
+        },
+        comparison_mean: None,
+        comparison_note: None,
+        take_up: None,
+        take_up_note: None,
+        take_up_missing: None,
+    }
 }
 
 /// The binary column that defines the arms, and its role.

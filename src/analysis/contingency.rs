@@ -9,9 +9,9 @@
 //! Invoking a rule is not a deviation: it was fixed before the data were seen.
 
 use super::spec::{Fitted, Needs, ResampleNeed};
-use crate::plan::{Action, Diagnostic, Method, Plan, Trigger};
-use crate::report::{num, pval};
-use crate::results::ContingencyResult;
+use crate::format::{num, pval};
+use crate::plan::{Action, Contingency, Diagnostic, Method, Plan, Trigger};
+use crate::results::{ContingencyResult, SpecResult};
 use std::collections::BTreeMap;
 
 /// How the hypotheses of one specification are tested after a rule fired.
@@ -23,7 +23,8 @@ pub struct Substitution {
     pub action: Action,
 }
 
-/// What each specification must compute for the plan's rules.
+/// What each specification must compute for the plan's rules and its hypotheses' own
+/// resampled tests.
 pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
     let mut out: BTreeMap<String, Needs> = BTreeMap::new();
     for c in &plan.contingencies {
@@ -35,43 +36,8 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
         }
         match &c.action {
             Action::Liml => n.liml = true,
-            Action::AndersonRubin => {
-                let spec = plan.specifications.iter().find(|s| s.id == c.specification);
-                for h in &plan.hypotheses {
-                    let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
-                    if h.specification == c.specification
-                        && on_endog
-                        && !n.ar_nulls.contains(&h.null)
-                    {
-                        n.ar_nulls.push(h.null);
-                    }
-                }
-            }
-            Action::WildBootstrap => {
-                n.wild_bootstrap = true;
-                let spec = plan.specifications.iter().find(|s| s.id == c.specification);
-                let testable = |term: &String| {
-                    spec.is_some_and(|s| !s.estimator.is_iv() || s.endogenous.contains(term))
-                };
-                let model = plan.hypotheses.iter().filter(|h| {
-                    h.specification == c.specification
-                        && h.method == Method::Model
-                        && testable(&h.term)
-                });
-                for h in model {
-                    let fewer_than = match c.trigger {
-                        Trigger::Clusters { fewer_than } => Some(fewer_than),
-                        _ => None,
-                    };
-                    n.resample.push(ResampleNeed {
-                        hypothesis: h.id.clone(),
-                        term: h.term.clone(),
-                        null: h.null,
-                        method: Method::WildBootstrap { webb: false },
-                        only_below_clusters: fewer_than,
-                    });
-                }
-            }
+            Action::AndersonRubin => ar_nulls(plan, c, n),
+            Action::WildBootstrap => wild_bootstrap_needs(plan, c, n),
             Action::Tf | Action::UseSpecification(_) => {}
         }
     }
@@ -92,6 +58,132 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
     out
 }
 
+/// An Anderson–Rubin rule needs the AR test at the null of every hypothesis on the
+/// specification's endogenous regressor.
+fn ar_nulls(plan: &Plan, c: &Contingency, n: &mut Needs) {
+    let spec = plan.specifications.iter().find(|s| s.id == c.specification);
+    for h in &plan.hypotheses {
+        let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
+        if h.specification == c.specification && on_endog && !n.ar_nulls.contains(&h.null) {
+            n.ar_nulls.push(h.null);
+        }
+    }
+}
+
+/// A wild-bootstrap rule needs a bootstrap test of every model-based hypothesis it may
+/// switch (any term of OLS, the endogenous regressor of IV); under a cluster-count trigger,
+/// only below that count.
+fn wild_bootstrap_needs(plan: &Plan, c: &Contingency, n: &mut Needs) {
+    n.wild_bootstrap = true;
+    let spec = plan.specifications.iter().find(|s| s.id == c.specification);
+    let testable =
+        |term: &String| spec.is_some_and(|s| !s.estimator.is_iv() || s.endogenous.contains(term));
+    let model = plan.hypotheses.iter().filter(|h| {
+        h.specification == c.specification && h.method == Method::Model && testable(&h.term)
+    });
+    for h in model {
+        let fewer_than = match c.trigger {
+            Trigger::Clusters { fewer_than } => Some(fewer_than),
+            _ => None,
+        };
+        n.resample.push(ResampleNeed {
+            hypothesis: h.id.clone(),
+            term: h.term.clone(),
+            null: h.null,
+            method: Method::WildBootstrap { webb: false },
+            only_below_clusters: fewer_than,
+        });
+    }
+}
+
+/// A rule's trigger as evaluated on its specification.
+struct Triggered {
+    /// The trigger's name in results.json.
+    trigger: &'static str,
+    /// The threshold the plan states.
+    threshold: f64,
+    /// The value compared with it, when it could be computed.
+    value: Option<f64>,
+    /// Whether the rule fires.
+    fires: bool,
+    /// The comparison in words.
+    reason: String,
+}
+
+/// Evaluate `c`'s trigger on the results of its specification.
+fn triggered(c: &Contingency, r: &SpecResult) -> Triggered {
+    match &c.trigger {
+        Trigger::WeakInstruments { below } => {
+            let f = r.weak_instruments.as_ref().map(|w| w.effective_f);
+            let fires = f.is_some_and(|f| f < *below);
+            let reason = match f {
+                Some(f) if fires => format!("effective first-stage F {} < {below}", num(f)),
+                Some(f) => format!("effective first-stage F {} ≥ {below}", num(f)),
+                None => "the effective F could not be computed".to_string(),
+            };
+            Triggered {
+                trigger: "weak_instruments",
+                threshold: *below,
+                value: f,
+                fires,
+                reason,
+            }
+        }
+        Trigger::Endogeneity { not_rejected_at } => {
+            let p = r.endogeneity.as_ref().map(|e| e.control_function.p_value);
+            let fires = p.is_some_and(|p| p > *not_rejected_at);
+            let reason = match p {
+                Some(p) if fires => format!(
+                    "control-function endogeneity test p = {} > {not_rejected_at}: exogeneity not rejected",
+                    pval(p)
+                ),
+                Some(p) => format!(
+                    "control-function endogeneity test p = {} ≤ {not_rejected_at}: exogeneity rejected",
+                    pval(p)
+                ),
+                None => "the endogeneity test could not be computed".to_string(),
+            };
+            Triggered {
+                trigger: "endogeneity",
+                threshold: *not_rejected_at,
+                value: p,
+                fires,
+                reason,
+            }
+        }
+        Trigger::Clusters { fewer_than } => {
+            let g = r.clusters;
+            Triggered {
+                trigger: "clusters",
+                threshold: *fewer_than as f64,
+                value: g.map(|g| g as f64),
+                fires: g.is_some_and(|g| g < *fewer_than),
+                reason: format!("{} clusters", g.unwrap_or(0)),
+            }
+        }
+    }
+}
+
+/// The hypotheses a rule that fires changes: those of its specification that are
+/// model-based (every one for a switch of specification), on the endogenous regressor (or
+/// any term of OLS for the wild bootstrap).
+fn affected(plan: &Plan, c: &Contingency) -> Vec<String> {
+    let spec = plan.specifications.iter().find(|s| s.id == c.specification);
+    plan.hypotheses
+        .iter()
+        .filter(|h| h.specification == c.specification)
+        .filter(|h| h.method == Method::Model || matches!(c.action, Action::UseSpecification(_)))
+        .filter(|h| match c.action {
+            Action::UseSpecification(_) => true,
+            Action::WildBootstrap => {
+                spec.is_some_and(|s| !s.estimator.is_iv() || s.endogenous.contains(&h.term))
+            }
+            _ => spec.is_some_and(|s| s.endogenous.contains(&h.term)),
+        })
+        .map(|h| h.id.clone())
+        .collect()
+}
+
 /// Evaluate every rule; returns the results (plan order) and the substitution per
 /// specification.
 pub fn evaluate(
@@ -101,73 +193,17 @@ pub fn evaluate(
     let mut results = Vec::new();
     let mut subs: BTreeMap<String, Substitution> = BTreeMap::new();
     for c in &plan.contingencies {
-        let r = &fitted[&c.specification].result;
-        let (trigger, threshold, value, fires, reason) = match &c.trigger {
-            Trigger::WeakInstruments { below } => {
-                let f = r.weak_instruments.as_ref().map(|w| w.effective_f);
-                let fires = f.is_some_and(|f| f < *below);
-                let reason = match f {
-                    Some(f) if fires => format!("effective first-stage F {} < {below}", num(f)),
-                    Some(f) => format!("effective first-stage F {} ≥ {below}", num(f)),
-                    None => "the effective F could not be computed".to_string(),
-                };
-                ("weak_instruments", *below, f, fires, reason)
-            }
-            Trigger::Endogeneity { not_rejected_at } => {
-                let p = r.endogeneity.as_ref().map(|e| e.control_function.p_value);
-                let fires = p.is_some_and(|p| p > *not_rejected_at);
-                let reason = match p {
-                    Some(p) if fires => format!(
-                        "control-function endogeneity test p = {} > {not_rejected_at}: exogeneity not rejected",
-                        pval(p)
-                    ),
-                    Some(p) => format!(
-                        "control-function endogeneity test p = {} ≤ {not_rejected_at}: exogeneity rejected",
-                        pval(p)
-                    ),
-                    None => "the endogeneity test could not be computed".to_string(),
-                };
-                ("endogeneity", *not_rejected_at, p, fires, reason)
-            }
-            Trigger::Clusters { fewer_than } => {
-                let g = r.clusters;
-                let fires = g.is_some_and(|g| g < *fewer_than);
-                let reason = format!("{} clusters", g.unwrap_or(0));
-                (
-                    "clusters",
-                    *fewer_than as f64,
-                    g.map(|g| g as f64),
-                    fires,
-                    reason,
-                )
-            }
-        };
+        let t = triggered(c, &fitted[&c.specification].result);
         let mut hypotheses = Vec::new();
-        let mut reason = reason;
-        if fires {
+        let mut reason = t.reason;
+        if t.fires {
             if let Some(first) = subs.get(&c.specification) {
                 reason = format!(
                     "{reason}; superseded by contingency `{}`, which fired first on this specification",
                     first.contingency
                 );
             } else {
-                let spec = plan.specifications.iter().find(|s| s.id == c.specification);
-                hypotheses = plan
-                    .hypotheses
-                    .iter()
-                    .filter(|h| h.specification == c.specification)
-                    .filter(|h| {
-                        h.method == Method::Model || matches!(c.action, Action::UseSpecification(_))
-                    })
-                    .filter(|h| match c.action {
-                        Action::UseSpecification(_) => true,
-                        Action::WildBootstrap => spec.is_some_and(|s| {
-                            !s.estimator.is_iv() || s.endogenous.contains(&h.term)
-                        }),
-                        _ => spec.is_some_and(|s| s.endogenous.contains(&h.term)),
-                    })
-                    .map(|h| h.id.clone())
-                    .collect();
+                hypotheses = affected(plan, c);
                 subs.insert(
                     c.specification.clone(),
                     Substitution {
@@ -181,10 +217,10 @@ pub fn evaluate(
         results.push(ContingencyResult {
             id: c.id.clone(),
             specification: c.specification.clone(),
-            trigger,
-            threshold,
-            value,
-            invoked: fires,
+            trigger: t.trigger,
+            threshold: t.threshold,
+            value: t.value,
+            invoked: t.fires,
             action: c.action.name(),
             hypotheses,
             reason,
@@ -193,6 +229,7 @@ pub fn evaluate(
     (results, subs)
 }
 
+/// What a rule that fired does, in words.
 fn action_words(a: &Action) -> String {
     match a {
         Action::AndersonRubin => {

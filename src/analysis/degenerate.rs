@@ -104,8 +104,8 @@ pub fn outcome_problem(spec: &Spec, d: &Design, rss: f64) -> Option<OutcomeProbl
         return problem(format!(
             "the regressors fit the outcome `{}` exactly (residual sum of squares {} of a total {}), so t statistics and tests are not defined",
             spec.outcome,
-            crate::report::num(rss),
-            crate::report::num(tss)
+            crate::format::num(rss),
+            crate::format::num(tss)
         ), false);
     }
     None

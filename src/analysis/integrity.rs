@@ -31,6 +31,7 @@ pub struct Integrity {
     pub registered_text: Option<String>,
 }
 
+/// The ledger's plan versions (seals and amendments carrying a plan), with their indices.
 fn plan_entries(ledger: &Ledger) -> Vec<(usize, &Entry)> {
     ledger
         .entries()
@@ -52,7 +53,6 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
     }
     let entries = plan_entries(ledger);
     let sealed = entries.iter().any(|(_, e)| e.event == Event::Sealed);
-    let latest = entries.last().map(|(_, e)| *e);
     let matching = entries.iter().rev().find(|(_, e)| {
         e.plan
             .as_ref()
@@ -60,40 +60,8 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
     });
     let head_of = |e: &Entry| ledger.index_of(e.seq).and_then(|i| ledger.line_hash(i));
     let ledger_head = matching.or(entries.last()).and_then(|(_, e)| head_of(e));
-    let mut state = "sealed-unchanged";
-    match (latest, matching) {
-        (None, _) => {
-            state = "not-sealed";
-            devs.push(Deviation::new(DeviationCode::Unsealed, "plan", "the plan was never sealed: nothing shows it was fixed before the data were seen (run `sworn seal PLAN` before the data arrive)"));
-        }
-        (Some(last), Some((_, m))) if m.seq == last.seq => {
-            if last
-                .plan
-                .as_ref()
-                .is_some_and(|p| p.bytes_sha256 != print.bytes_sha256)
-            {
-                state = "sealed-cosmetic-change";
-                devs.push(Deviation::new(DeviationCode::PlanCosmeticChange, "plan", "the plan file changed since its last ledger entry, but only in comments or layout; its content is unchanged"));
-            }
-        }
-        (Some(last), m) => {
-            state = "changed";
-            let keys = last
-                .plan
-                .as_ref()
-                .map(|p| changed_keys(&p.canonical, &print.canonical))
-                .unwrap_or_default();
-            let (code, what) = match m {
-                Some(_) => (DeviationCode::PlanNotLatest, "the plan matches an earlier ledger entry, not the latest amendment"),
-                None => (DeviationCode::PlanChanged, "the plan's content changed since its last ledger entry and matches no entry (record changes with `sworn amend PLAN --reason ...`)"),
-            };
-            devs.push(Deviation::new(
-                code,
-                "plan",
-                format!("{what}; changed keys: {}", keys.join(", ")),
-            ));
-        }
-    }
+    let latest = entries.last().map(|(_, e)| *e);
+    let mut state = plan_state(latest, matching.map(|(_, e)| *e), print, &mut devs);
     if !problems.is_empty() {
         state = "ledger-broken";
     }
@@ -116,6 +84,54 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
     }
 }
 
+/// The plan's state against its last ledger version (`latest`) and the last version with
+/// the same content (`matching`): not sealed, unchanged, changed only in layout, or
+/// changed; every state but unchanged adds its deviation to `devs`.
+fn plan_state(
+    latest: Option<&Entry>,
+    matching: Option<&Entry>,
+    print: &PlanPrint,
+    devs: &mut Vec<Deviation>,
+) -> &'static str {
+    match (latest, matching) {
+        (None, _) => {
+            devs.push(Deviation::new(DeviationCode::Unsealed, "plan", "the plan was never sealed: nothing shows it was fixed before the data were seen (run `sworn seal PLAN` before the data arrive)"));
+            "not-sealed"
+        }
+        (Some(last), Some(m)) if m.seq == last.seq => {
+            if last
+                .plan
+                .as_ref()
+                .is_some_and(|p| p.bytes_sha256 != print.bytes_sha256)
+            {
+                devs.push(Deviation::new(DeviationCode::PlanCosmeticChange, "plan", "the plan file changed since its last ledger entry, but only in comments or layout; its content is unchanged"));
+                "sealed-cosmetic-change"
+            } else {
+                "sealed-unchanged"
+            }
+        }
+        (Some(last), m) => {
+            let keys = last
+                .plan
+                .as_ref()
+                .map(|p| changed_keys(&p.canonical, &print.canonical))
+                .unwrap_or_default();
+            let (code, what) = match m {
+                Some(_) => (DeviationCode::PlanNotLatest, "the plan matches an earlier ledger entry, not the latest amendment"),
+                None => (DeviationCode::PlanChanged, "the plan's content changed since its last ledger entry and matches no entry (record changes with `sworn amend PLAN --reason ...`)"),
+            };
+            devs.push(Deviation::new(
+                code,
+                "plan",
+                format!("{what}; changed keys: {}", keys.join(", ")),
+            ));
+            "changed"
+        }
+    }
+}
+
+/// Each declared table whose data changed since the data were first inspected or read, or
+/// that was not among them, as a deviation.
 fn data_changes(ledger: &Ledger, data: &BTreeMap<String, String>, devs: &mut Vec<Deviation>) {
     let Some(Line { entry: first, .. }) = ledger.first_data() else {
         return;
@@ -163,29 +179,7 @@ fn registration(
     let registered = ledger.registered()?;
     let reg_print = registered.entry.plan.as_ref()?;
     let parse = |c: &str| serde_json::from_str::<Json>(c).ok();
-    let moment = |l: Option<Line>| {
-        l.map(|l| Moment {
-            ledger_line: l.number,
-            event: if l.entry.event == Event::DataInspected {
-                "data-inspected"
-            } else {
-                "data-first-read"
-            },
-            time: l.entry.time.clone(),
-        })
-    };
-    let mut out = Registration {
-        content_sha256: reg_print.content_sha256.clone(),
-        ledger_line: registered.number,
-        recorded_as: if registered.entry.event == Event::Sealed {
-            "sealed"
-        } else {
-            "amended"
-        },
-        data_inspected: moment(ledger.first_data()),
-        results_computed: moment(ledger.first_results()),
-        elements: Vec::new(),
-    };
+    let mut out = registration_point(ledger, registered, reg_print);
     let (Some(old), Some(new)) = (parse(&reg_print.canonical), parse(&print.canonical)) else {
         // A version written before the ledger kept content: nothing to compare element-wise.
         return Some(out);
@@ -234,6 +228,34 @@ fn registration(
     Some(out)
 }
 
+/// The registration point: the registered version's fingerprint, its ledger line, how it
+/// was recorded, and the two moments (data inspected, results computed); no elements yet.
+fn registration_point(ledger: &Ledger, registered: Line, reg_print: &PlanPrint) -> Registration {
+    let moment = |l: Option<Line>| {
+        l.map(|l| Moment {
+            ledger_line: l.number,
+            event: if l.entry.event == Event::DataInspected {
+                "data-inspected"
+            } else {
+                "data-first-read"
+            },
+            time: l.entry.time.clone(),
+        })
+    };
+    Registration {
+        content_sha256: reg_print.content_sha256.clone(),
+        ledger_line: registered.number,
+        recorded_as: if registered.entry.event == Event::Sealed {
+            "sealed"
+        } else {
+            "amended"
+        },
+        data_inspected: moment(ledger.first_data()),
+        results_computed: moment(ledger.first_results()),
+        elements: Vec::new(),
+    }
+}
+
 /// The first amendment after the registered version that touched `element`.
 fn first_amendment<'a>(
     registered: &Json,
@@ -253,6 +275,8 @@ fn first_amendment<'a>(
     None
 }
 
+/// The `amended-after-data` deviation of a changed element (none for an added
+/// specification or hypothesis, which have codes of their own).
 fn amended_deviation(
     change: &Change,
     element: &ElementRegistration,
@@ -289,6 +313,7 @@ fn amended_deviation(
     ))
 }
 
+/// The first 12 hex digits of a fingerprint.
 fn short(sha: &str) -> String {
     sha.chars().take(12).collect()
 }

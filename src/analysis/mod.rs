@@ -1,8 +1,10 @@
 //! Running a plan: load data, assess integrity, fit every specification, test every
-//! hypothesis and assemble the results and reports, all in memory.
+//! hypothesis and assemble the results model, all in memory.
 //!
-//! Nothing here writes files or the ledger: `app` sequences that, so `verify` can re-derive
-//! a run's outputs byte for byte with the same function.
+//! Nothing here renders a report or writes files or the ledger: `app` renders the reports
+//! from the results (`app::execute`) and sequences the writing, so `verify` can re-derive a
+//! run's outputs byte for byte with the same functions. The layer depends on no report, app
+//! or demo module.
 
 mod ar_curve;
 mod arms;
@@ -24,20 +26,20 @@ use crate::deviation::{self, Deviation, DeviationCode};
 use crate::error::Result;
 use crate::ledger::{Ledger, PlanPrint, TOOL_VERSION};
 use crate::plan::Plan;
-use crate::results::{DataInfo, PlanInfo, Results, Tool};
+use crate::results::{
+    AsRegistered, DataInfo, HypothesisResult, PlanInfo, Results, SpecResult, Tool,
+};
 use rayon::prelude::*;
 use std::collections::BTreeMap;
 use std::path::{Component, Path, PathBuf};
 
 pub use spec::term;
 
-/// The outputs of a run, not yet written.
-pub struct RunOutput {
-    /// The results model.
+/// A run computed in memory: the results model and the plan's fingerprints, not yet rendered
+/// or written (`app` renders the reports and writes the run directory).
+pub struct Executed {
+    /// The results model, digest included.
     pub results: Results,
-    /// Output files by name (results.json, report.md, report.tex, report.html), in writing
-    /// order.
-    pub files: Vec<(String, String)>,
     /// The plan's fingerprints as used for this run.
     pub print: PlanPrint,
 }
@@ -79,14 +81,14 @@ pub fn execute(
     source: &str,
     tables: &BTreeMap<String, Table>,
     schema_devs: Vec<Deviation>,
-) -> Result<RunOutput> {
+) -> Result<Executed> {
     let print = PlanPrint::of(&plan.path, &plan.text)?;
     let hashes: BTreeMap<String, String> = tables
         .iter()
         .map(|(id, t)| (id.clone(), t.sha256.clone()))
         .collect();
-    let integrity = integrity::assess(ledger, &print, &hashes);
-    let mut devs = integrity.deviations;
+    let mut integrity = integrity::assess(ledger, &print, &hashes);
+    let mut devs = std::mem::take(&mut integrity.deviations);
     devs.extend(schema_devs);
     let a = analyse(
         plan,
@@ -96,42 +98,15 @@ pub fn execute(
         true,
     )?;
     devs.extend(a.deviations);
-    let (fitted, mut hypotheses, contingencies) = (a.fitted, a.hypotheses, a.contingencies);
-    let specifications: BTreeMap<_, _> = fitted.into_iter().map(|(k, f)| (k, f.result)).collect();
-    let as_registered = match (&integrity.registered_text, &integrity.registration) {
-        (Some(canonical), Some(point)) => {
-            let mut rerun = registered::rerun(plan, canonical, &point.content_sha256);
-            rerun.keep_differing(&specifications);
-            match rerun.hypotheses.take() {
-                Some(reg) => hypotheses = registered::merge(reg, hypotheses),
-                None => {
-                    registered::mark(
-                        &mut hypotheses,
-                        true,
-                        integrity.registered_hypotheses.as_ref(),
-                    );
-                    devs.push(Deviation::new(
-                        DeviationCode::RegisteredVersionFailed,
-                        "plan",
-                        format!(
-                            "the plan was amended after the data were seen, and its registered version (ledger line {}) could not be run beside it: {}; only the amended analysis is reported",
-                            point.ledger_line,
-                            rerun.report.error.as_deref().unwrap_or("unknown reason")
-                        ),
-                    ));
-                }
-            }
-            Some(rerun.report)
-        }
-        _ => {
-            registered::mark(
-                &mut hypotheses,
-                integrity.registration.is_some(),
-                integrity.registered_hypotheses.as_ref(),
-            );
-            None
-        }
-    };
+    let specifications: BTreeMap<_, _> = a.fitted.into_iter().map(|(k, f)| (k, f.result)).collect();
+    let mut hypotheses = a.hypotheses;
+    let as_registered = beside_registered(
+        plan,
+        &integrity,
+        &specifications,
+        &mut hypotheses,
+        &mut devs,
+    );
     deviation::sort(&mut devs);
     let mut results = Results {
         format: 1,
@@ -139,32 +114,11 @@ pub fn execute(
             name: "sworn",
             version: TOOL_VERSION,
         },
-        plan: PlanInfo {
-            path: crate::app::PLAN_FILE.to_string(),
-            source: source.to_string(),
-            bytes_sha256: print.bytes_sha256.clone(),
-            content_sha256: print.content_sha256.clone(),
-            sealed: integrity.sealed,
-            ledger_head: integrity.ledger_head,
-            integrity: integrity.state,
-        },
-        data: plan
-            .data
-            .values()
-            .map(|d| {
-                (
-                    d.id.clone(),
-                    DataInfo {
-                        path: d.path_text.clone(),
-                        sha256: tables[&d.id].sha256.clone(),
-                        rows: tables[&d.id].rows,
-                    },
-                )
-            })
-            .collect(),
+        plan: plan_info(&print, source, &mut integrity),
+        data: data_info(plan, tables),
         specifications,
         hypotheses,
-        contingencies,
+        contingencies: a.contingencies,
         indices: summaries::indices(plan, tables),
         balance: summaries::balance(plan, tables)?,
         attrition: summaries::attrition(plan, tables)?,
@@ -175,18 +129,80 @@ pub fn execute(
         digest: String::new(),
     };
     results.digest = results.compute_digest();
-    let reports = crate::report::render(plan, &results)?;
-    let files = vec![
-        ("results.json".to_string(), results.to_file_text()),
-        ("report.md".to_string(), reports.md),
-        ("report.tex".to_string(), reports.tex),
-        ("report.html".to_string(), reports.html),
-    ];
-    Ok(RunOutput {
-        results,
-        files,
-        print,
-    })
+    Ok(Executed { results, print })
+}
+
+/// What results.json records of the plan: its copy in the run directory, where the run read
+/// it, its fingerprints and its integrity state (the ledger head is taken from `integrity`).
+fn plan_info(print: &PlanPrint, source: &str, integrity: &mut integrity::Integrity) -> PlanInfo {
+    PlanInfo {
+        path: crate::layout::PLAN_FILE.to_string(),
+        source: source.to_string(),
+        bytes_sha256: print.bytes_sha256.clone(),
+        content_sha256: print.content_sha256.clone(),
+        sealed: integrity.sealed,
+        ledger_head: integrity.ledger_head.take(),
+        integrity: integrity.state,
+    }
+}
+
+/// Each declared table's path, SHA-256 and row count, by table id.
+fn data_info(plan: &Plan, tables: &BTreeMap<String, Table>) -> BTreeMap<String, DataInfo> {
+    plan.data
+        .values()
+        .map(|d| {
+            (
+                d.id.clone(),
+                DataInfo {
+                    path: d.path_text.clone(),
+                    sha256: tables[&d.id].sha256.clone(),
+                    rows: tables[&d.id].rows,
+                },
+            )
+        })
+        .collect()
+}
+
+/// For a plan amended after the data were seen, run its registered version beside it: the
+/// registered hypotheses replace the amended ones (which stay attached as `as_amended`), and
+/// the registered specifications that differ are kept for the report. When the registered
+/// version cannot be run, or there is none to run, the hypotheses are marked as they stand
+/// and a failure is disclosed as a deviation.
+fn beside_registered(
+    plan: &Plan,
+    integrity: &integrity::Integrity,
+    specifications: &BTreeMap<String, SpecResult>,
+    hypotheses: &mut BTreeMap<String, HypothesisResult>,
+    devs: &mut Vec<Deviation>,
+) -> Option<AsRegistered> {
+    let registered_hypotheses = integrity.registered_hypotheses.as_ref();
+    let (Some(canonical), Some(point)) = (&integrity.registered_text, &integrity.registration)
+    else {
+        registered::mark(
+            hypotheses,
+            integrity.registration.is_some(),
+            registered_hypotheses,
+        );
+        return None;
+    };
+    let mut rerun = registered::rerun(plan, canonical, &point.content_sha256);
+    rerun.keep_differing(specifications);
+    match rerun.hypotheses.take() {
+        Some(reg) => *hypotheses = registered::merge(reg, std::mem::take(hypotheses)),
+        None => {
+            registered::mark(hypotheses, true, registered_hypotheses);
+            devs.push(Deviation::new(
+                DeviationCode::RegisteredVersionFailed,
+                "plan",
+                format!(
+                    "the plan was amended after the data were seen, and its registered version (ledger line {}) could not be run beside it: {}; only the amended analysis is reported",
+                    point.ledger_line,
+                    rerun.report.error.as_deref().unwrap_or("unknown reason")
+                ),
+            ));
+        }
+    }
+    Some(rerun.report)
 }
 
 /// Set while a caller that draws its own progress (a rehearsal) runs [`analyse`] many times.

@@ -21,42 +21,9 @@ pub fn describe(
     let iv = f.result.estimator != "ols";
     let randomization = kind == "randomization";
     let (statistic, bootstrap, weights, redrawn) = if randomization {
-        let studentized = matches!(h.method, Method::Randomization { studentized: true });
-        let statistic = match (iv, studentized) {
-            (true, _) => "anderson-rubin",
-            (false, true) => "t",
-            (false, false) => "estimate",
-        };
-        let a = plan.assignment.as_ref()?;
-        let redrawn = Redrawn {
-            design: a.design.clone(),
-            variable: Some(a.variable.clone()),
-            blocks: a.blocks.clone(),
-            clusters: a.clusters.clone(),
-            cluster_count: None,
-        };
-        (statistic, None, None, redrawn)
+        randomization_record(plan, h, iv)?
     } else {
-        // A decision rule that switches to the bootstrap uses Rademacher weights.
-        let webb = h.method == (Method::WildBootstrap { webb: true });
-        let redrawn = Redrawn {
-            design: "cluster-weights".into(),
-            variable: None,
-            blocks: None,
-            clusters: f
-                .result
-                .cluster_by
-                .as_ref()
-                .and_then(|c| c.first().cloned()),
-            cluster_count: f.result.clusters,
-        };
-        let variant = if f.result.estimator == "2sls" {
-            "wild-restricted-efficient"
-        } else {
-            "restricted-wild-cluster"
-        };
-        let weights = if webb { "webb" } else { "rademacher" };
-        ("cr1-t", Some(variant), Some(weights), redrawn)
+        bootstrap_record(h, f)
     };
     let p_value_counts = match h.direction {
         Direction::TwoSided => "|T*| >= |T|",
@@ -82,4 +49,58 @@ pub fn describe(
         p_value_counts,
         tie_tolerance: TIE_TOLERANCE,
     })
+}
+
+/// What a resampled test computed and re-drew: the statistic, the bootstrap variant and its
+/// weights (none for a randomization test), and what was re-drawn.
+type Procedure = (
+    &'static str,
+    Option<&'static str>,
+    Option<&'static str>,
+    Redrawn,
+);
+
+/// A randomization test re-draws the registered assignment; its statistic is the estimate,
+/// its t, or (IV) the Anderson–Rubin statistic. Null without `[assignment]`.
+fn randomization_record(plan: &Plan, h: &Hypothesis, iv: bool) -> Option<Procedure> {
+    let studentized = matches!(h.method, Method::Randomization { studentized: true });
+    let statistic = match (iv, studentized) {
+        (true, _) => "anderson-rubin",
+        (false, true) => "t",
+        (false, false) => "estimate",
+    };
+    let a = plan.assignment.as_ref()?;
+    let redrawn = Redrawn {
+        design: a.design.clone(),
+        variable: Some(a.variable.clone()),
+        blocks: a.blocks.clone(),
+        clusters: a.clusters.clone(),
+        cluster_count: None,
+    };
+    Some((statistic, None, None, redrawn))
+}
+
+/// A wild cluster bootstrap re-draws cluster weights (Rademacher, or Webb when the
+/// hypothesis asks); restricted efficient for 2SLS, restricted for OLS, on the CR1 t.
+fn bootstrap_record(h: &Hypothesis, f: &Fitted) -> Procedure {
+    // A decision rule that switches to the bootstrap uses Rademacher weights.
+    let webb = h.method == (Method::WildBootstrap { webb: true });
+    let redrawn = Redrawn {
+        design: "cluster-weights".into(),
+        variable: None,
+        blocks: None,
+        clusters: f
+            .result
+            .cluster_by
+            .as_ref()
+            .and_then(|c| c.first().cloned()),
+        cluster_count: f.result.clusters,
+    };
+    let variant = if f.result.estimator == "2sls" {
+        "wild-restricted-efficient"
+    } else {
+        "restricted-wild-cluster"
+    };
+    let weights = if webb { "webb" } else { "rademacher" };
+    ("cr1-t", Some(variant), Some(weights), redrawn)
 }

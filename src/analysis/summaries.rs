@@ -223,14 +223,7 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
     let arm = col(&b.by)?;
     let covs: Vec<&Vec<Option<f64>>> =
         b.covariates.iter().map(|c| col(c)).collect::<Result<_>>()?;
-    let rows: Vec<usize> = (0..t.rows)
-        .filter(|&r| {
-            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
-                && covs.iter().all(|c| c[r].is_some())
-                && clusters_present(&b.errors, t, r)
-                && block_present(b.blocks.as_ref(), t, r)
-        })
-        .collect();
+    let rows = balance_rows(b, t, arm, &covs);
     let (rows, blocks) = blocked_rows(
         b.blocks.as_ref(),
         t,
@@ -247,30 +240,8 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
     // Without blocks the joint regression is of the arm on [intercept | covariates]; with
     // them, on [covariates] with the blocks absorbed.
     let first = usize::from(blocks.is_none());
-    let table = estimate::balance(&m, &treated, &cov, blocks.as_ref().map(|b| &b.fe)).map_err(
-        |e| match e {
-            estimate::SummaryError::Estimate(estimate::EstimateError::RankDeficient {
-                dependent,
-            }) => err(
-                what,
-                format!(
-                    "covariate(s) {} are linear combinations of the covariates listed before them ({}); remove them from [balance] covariates",
-                    dependent
-                        .iter()
-                        .filter_map(|&j| b.covariates.get(j.checked_sub(first)?))
-                        .map(|c| format!("`{c}`"))
-                        .collect::<Vec<_>>()
-                        .join(", "),
-                    if first == 1 {
-                        "and a constant"
-                    } else {
-                        "and the registered blocks: a covariate constant within each block is absorbed by them"
-                    }
-                ),
-            ),
-            e => err(what, e),
-        },
-    )?;
+    let table = estimate::balance(&m, &treated, &cov, blocks.as_ref().map(|b| &b.fe))
+        .map_err(|e| balance_error(b, first, e))?;
     Ok(Some(BalanceResult {
         by: b.by.clone(),
         errors: b.errors.name(),
@@ -289,6 +260,53 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
             distribution: table.joint.reference,
         },
     }))
+}
+
+/// The rows of the balance table: complete cases in the arm (0 or 1), every covariate, the
+/// cluster columns and the block column.
+fn balance_rows(
+    b: &crate::plan::Balance,
+    t: &Table,
+    arm: &[Option<f64>],
+    covs: &[&Vec<Option<f64>>],
+) -> Vec<usize> {
+    (0..t.rows)
+        .filter(|&r| {
+            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
+                && covs.iter().all(|c| c[r].is_some())
+                && clusters_present(&b.errors, t, r)
+                && block_present(b.blocks.as_ref(), t, r)
+        })
+        .collect()
+}
+
+/// A failed balance regression in the user's terms: a covariate that is a linear
+/// combination of those before it (and the constant, or the blocks when `first` is 0) is
+/// named, with the fix.
+fn balance_error(b: &crate::plan::Balance, first: usize, e: estimate::SummaryError) -> Error {
+    let what = "balance";
+    match e {
+        estimate::SummaryError::Estimate(estimate::EstimateError::RankDeficient { dependent }) => {
+            err(
+                what,
+                format!(
+                    "covariate(s) {} are linear combinations of the covariates listed before them ({}); remove them from [balance] covariates",
+                    dependent
+                        .iter()
+                        .filter_map(|&j| b.covariates.get(j.checked_sub(first)?))
+                        .map(|c| format!("`{c}`"))
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                    if first == 1 {
+                        "and a constant"
+                    } else {
+                        "and the registered blocks: a covariate constant within each block is absorbed by them"
+                    }
+                ),
+            )
+        }
+        e => err(what, e),
+    }
 }
 
 /// Attrition checks, when declared: rows with a known arm (and cluster ids); an observed
@@ -327,39 +345,14 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
     let differential = attrition_test(a, t, &rows, &treated, &observed, what)?;
     let mut bounds = BTreeMap::new();
     for name in &a.bounds {
-        let y = t
-            .numeric
-            .get(name)
-            .ok_or_else(|| err(what, format!("`{name}` is not available")))?;
-        let mut values = Vec::with_capacity(rows.len());
-        for (&r, &o) in rows.iter().zip(&observed) {
-            match (o, y[r]) {
-                (true, Some(v)) => values.push(v),
-                (true, None) => {
-                    return Err(err(what, format!(
-                        "`{name}` is missing in a row that \"{}\" counts as observed; make the observed expression imply the outcome is present",
-                        a.observed.0
-                    )))
-                }
-                (false, _) => values.push(f64::NAN),
-            }
-        }
+        let values = bounded_values(a, t, name, &rows, &observed)?;
         let lee = estimate::lee_bounds(&values, &observed, &treated).map_err(|e| err(what, e))?;
         bounds.insert(name.clone(), lee_result(&lee, a, plan.inference.confidence));
     }
     let differential = (comparison(&differential.0), differential.1);
     let alpha = plan.inference.alpha;
     let significant = differential.0.test.p_value <= alpha;
-    let hypotheses_on_table = plan
-        .hypotheses
-        .iter()
-        .filter(|h| {
-            plan.specifications
-                .iter()
-                .any(|s| s.id == h.specification && s.data == a.data)
-        })
-        .map(|h| h.id.clone())
-        .collect();
+    let hypotheses_on_table = hypotheses_on(plan, &a.data);
     Ok(Some(AttritionResult {
         data: a.data.clone(),
         alpha,
@@ -373,6 +366,49 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
         differential: differential.0,
         bounds,
     }))
+}
+
+/// The values of the bounded outcome `name` on `rows`: NaN where the row is not observed;
+/// an observed row missing the outcome is refused (the observed expression must imply it).
+fn bounded_values(
+    a: &crate::plan::Attrition,
+    t: &Table,
+    name: &str,
+    rows: &[usize],
+    observed: &[bool],
+) -> Result<Vec<f64>> {
+    let what = "attrition";
+    let y = t
+        .numeric
+        .get(name)
+        .ok_or_else(|| err(what, format!("`{name}` is not available")))?;
+    let mut values = Vec::with_capacity(rows.len());
+    for (&r, &o) in rows.iter().zip(observed) {
+        match (o, y[r]) {
+            (true, Some(v)) => values.push(v),
+            (true, None) => {
+                return Err(err(what, format!(
+                    "`{name}` is missing in a row that \"{}\" counts as observed; make the observed expression imply the outcome is present",
+                    a.observed.0
+                )))
+            }
+            (false, _) => values.push(f64::NAN),
+        }
+    }
+    Ok(values)
+}
+
+/// The hypotheses whose specifications use the data table `data`.
+fn hypotheses_on(plan: &Plan, data: &str) -> Vec<String> {
+    plan.hypotheses
+        .iter()
+        .filter(|h| {
+            plan.specifications
+                .iter()
+                .any(|s| s.id == h.specification && s.data == data)
+        })
+        .map(|h| h.id.clone())
+        .collect()
 }
 
 /// The differential-attrition regression on `rows` (blocks absorbed when registered, on the

@@ -3,7 +3,7 @@
 
 use super::Outcome;
 use crate::error::{Error, Result};
-use crate::ledger::{is_version, ledger_path, Event, Ledger};
+use crate::ledger::{is_version, ledger_path, Entry, Event, Ledger};
 use crate::plan::canonical::{canonical_text, changed_keys};
 use crate::plan::compare::{element_changes, Kind};
 use serde_json::Value as Json;
@@ -72,61 +72,11 @@ pub fn log(plan: &Path) -> Result<Outcome> {
             println!("    plan content {}", short(&p.content_sha256));
         }
         if is_version(e) {
-            if let Some(r) = &e.reason {
-                println!("    reason: {r}");
-            }
-            if let Some(m) = ledger.moment_of(e) {
-                println!("    made {}: not part of the registered plan", m.phrase());
-            }
-            let canonical = e.plan.as_ref().map(|p| p.canonical.as_str()).unwrap_or("");
-            if canonical.is_empty() {
-                println!(
-                    "    this version's content is not recorded in the ledger; diff cannot show it"
-                );
-            } else if let Some(old) = &previous {
-                let keys = changed_keys(old, canonical);
-                println!("    changed: {}", keys.join(", "));
-            }
-            previous = (!canonical.is_empty()).then(|| canonical.to_string());
+            print_version(&ledger, e, &mut previous);
         }
-        if let Some(files) = &e.baselines {
-            for (table, b) in files {
-                println!(
-                    "    baseline of {} {} {} (not study data)",
-                    crate::escape::terminal(table),
-                    crate::escape::terminal(&b.path),
-                    crate::escape::terminal(&short(&b.sha256))
-                );
-            }
-        }
-        if let Some(data) = &e.data {
-            for (table, sha) in data {
-                println!("    data.{table} {}", short(sha));
-            }
-        }
+        print_files(e);
         if e.event == Event::Run {
-            let recorded = ledger.entries().take_while(|x| x.seq < e.seq).any(|x| {
-                is_version(x)
-                    && x.plan.as_ref().map(|p| &p.content_sha256)
-                        == e.plan.as_ref().map(|p| &p.content_sha256)
-            });
-            if !recorded {
-                println!("    this run's plan content matches no earlier seal or amendment");
-            }
-            if let Some(d) = &e.results_digest {
-                println!("    results {d}");
-            }
-            match &e.out {
-                Some(out) => {
-                    let dir = plan_dir.join(out);
-                    if dir.join("results.json").is_file() {
-                        println!("    directory {out}");
-                    } else {
-                        println!("    directory {out} (not there now: never published, e.g. the run was interrupted, or moved or replaced since)");
-                    }
-                }
-                None => println!("    directory not recorded"),
-            }
+            print_run(&ledger, e, plan_dir);
         }
     }
     for p in ledger.problems() {
@@ -134,6 +84,71 @@ pub fn log(plan: &Path) -> Result<Outcome> {
     }
     println!("line times are written by the machine that appended them; the fingerprint deposited with the registry is the outside anchor");
     Ok(Outcome::Success)
+}
+
+/// The lines of a seal or amendment: its reason, the moment it followed, and the keys it
+/// changed against the `previous` version's content (which it then replaces).
+fn print_version(ledger: &Ledger, e: &Entry, previous: &mut Option<String>) {
+    if let Some(r) = &e.reason {
+        println!("    reason: {r}");
+    }
+    if let Some(m) = ledger.moment_of(e) {
+        println!("    made {}: not part of the registered plan", m.phrase());
+    }
+    let canonical = e.plan.as_ref().map(|p| p.canonical.as_str()).unwrap_or("");
+    if canonical.is_empty() {
+        println!("    this version's content is not recorded in the ledger; diff cannot show it");
+    } else if let Some(old) = previous.as_deref() {
+        let keys = changed_keys(old, canonical);
+        println!("    changed: {}", keys.join(", "));
+    }
+    *previous = (!canonical.is_empty()).then(|| canonical.to_string());
+}
+
+/// The files an entry records: baseline files of a rehearsal, then the study data.
+fn print_files(e: &Entry) {
+    if let Some(files) = &e.baselines {
+        for (table, b) in files {
+            println!(
+                "    baseline of {} {} {} (not study data)",
+                crate::escape::terminal(table),
+                crate::escape::terminal(&b.path),
+                crate::escape::terminal(&short(&b.sha256))
+            );
+        }
+    }
+    if let Some(data) = &e.data {
+        for (table, sha) in data {
+            println!("    data.{table} {}", short(sha));
+        }
+    }
+}
+
+/// The lines of a run: whether its plan content was recorded before it, its results digest
+/// and whether its directory (relative to `plan_dir`) is still there.
+fn print_run(ledger: &Ledger, e: &Entry, plan_dir: &Path) {
+    let recorded = ledger.entries().take_while(|x| x.seq < e.seq).any(|x| {
+        is_version(x)
+            && x.plan.as_ref().map(|p| &p.content_sha256)
+                == e.plan.as_ref().map(|p| &p.content_sha256)
+    });
+    if !recorded {
+        println!("    this run's plan content matches no earlier seal or amendment");
+    }
+    if let Some(d) = &e.results_digest {
+        println!("    results {d}");
+    }
+    match &e.out {
+        Some(out) => {
+            let dir = plan_dir.join(out);
+            if dir.join("results.json").is_file() {
+                println!("    directory {out}");
+            } else {
+                println!("    directory {out} (not there now: never published, e.g. the run was interrupted, or moved or replaced since)");
+            }
+        }
+        None => println!("    directory not recorded"),
+    }
 }
 
 /// One side of a diff: a description and canonical content.

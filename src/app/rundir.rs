@@ -10,11 +10,7 @@ use crate::error::{Error, Result};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
-/// The plan's exact bytes inside a run directory.
-pub const PLAN_FILE: &str = "plan.toml";
-
-/// The ledger prefix (up to and including the run's entry) inside a run directory.
-pub const LEDGER_FILE: &str = "plan.ledger";
+pub use crate::layout::{LEDGER_FILE, PLAN_FILE};
 
 const TMP_MARK: &str = ".sworn-tmp-";
 const OLD_MARK: &str = ".sworn-old-";

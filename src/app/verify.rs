@@ -8,12 +8,17 @@
 //! is the one the run recorded. Exit 0 only when every output re-derives exactly and the run
 //! carries no integrity finding.
 
+mod difference;
+mod named;
+
 use super::{Outcome, LEDGER_FILE, PLAN_FILE};
 use crate::analysis;
 use crate::deviation::DeviationCode;
 use crate::error::{Error, Result};
 use crate::files::{self, Links};
 use crate::ledger::{Entry, Event, Ledger};
+use difference::first_difference;
+use named::NamedData;
 use std::path::{Path, PathBuf};
 
 /// Largest results.json or report read (far above any real run's).
@@ -269,7 +274,7 @@ impl Verification {
 
     fn rederive(&mut self, dir: &Path, plan: &crate::plan::Plan, prefix: &Ledger, source: &str) {
         let out = analysis::load_tables(plan)
-            .and_then(|(t, d)| analysis::execute(plan, prefix, source, &t, d));
+            .and_then(|(t, d)| super::execute(plan, prefix, source, &t, d));
         let out = match out {
             Ok(o) => o,
             Err(e) => {
@@ -388,129 +393,4 @@ fn registration(ledger: &Ledger) -> Option<Registration> {
         },
         time: shown(&e.time),
     })
-}
-
-/// Data files named on the command line, hashed once each.
-struct NamedData {
-    hashed: Vec<(PathBuf, Option<String>)>,
-    problems: Vec<String>,
-}
-
-impl NamedData {
-    fn new(paths: &[PathBuf]) -> Self {
-        let mut problems = Vec::new();
-        let hashed = paths
-            .iter()
-            .map(|p| {
-                let h = files::sha256_streamed(p, Links::Follow)
-                    .map_err(|e| problems.push(format!("--data {}", shown(&e.to_string()))))
-                    .ok();
-                (p.clone(), h)
-            })
-            .collect();
-        NamedData { hashed, problems }
-    }
-
-    /// The file with SHA-256 `want`: a named one, else `default` when it matches.
-    fn find(
-        &mut self,
-        want: &str,
-        default: &Path,
-        problems: &mut Vec<String>,
-        id: &str,
-    ) -> Option<PathBuf> {
-        if let Some((p, _)) = self.hashed.iter().find(|(_, h)| h.as_deref() == Some(want)) {
-            return Some(std::path::absolute(p).unwrap_or_else(|_| p.clone()));
-        }
-        let shown_default = shown(&default.display().to_string());
-        if std::fs::symlink_metadata(default).is_err() {
-            problems.push(format!("the data file of [data.{id}] is not at {shown_default}, and no --data file has its SHA-256 {want}; name it with --data PATH"));
-            return None;
-        }
-        match files::sha256_streamed(default, Links::Follow) {
-            Ok(h) if h == want => Some(default.to_path_buf()),
-            Ok(h) => {
-                problems.push(format!("the data file of [data.{id}] changed: {shown_default} has SHA-256 {h}, the run read {want} (name the original with --data PATH)"));
-                None
-            }
-            Err(e) => {
-                problems.push(format!(
-                    "the data file of [data.{id}]: {}",
-                    shown(&e.to_string())
-                ));
-                None
-            }
-        }
-    }
-}
-
-/// Where a re-derived output first differs from the file: a results key or a report line.
-fn first_difference(name: &str, on_disk: &[u8], fresh: &str) -> String {
-    let disk = String::from_utf8_lossy(on_disk);
-    if name == "results.json" {
-        let a: serde_json::Value = serde_json::from_str(&disk).unwrap_or_default();
-        let b: serde_json::Value = serde_json::from_str(fresh).unwrap_or_default();
-        let mut keys = Vec::new();
-        json_diff("", &a, &b, &mut keys);
-        if !keys.is_empty() {
-            let more = keys.len().saturating_sub(5);
-            keys.truncate(5);
-            let list: Vec<String> = keys.iter().map(|k| shown(k)).collect();
-            return format!(
-                "results.json is not what the plan and data give now; differing keys: {}{}",
-                list.join(", "),
-                if more > 0 {
-                    format!(" and {more} more")
-                } else {
-                    String::new()
-                }
-            );
-        }
-    }
-    let line = disk
-        .lines()
-        .zip(fresh.lines())
-        .position(|(a, b)| a != b)
-        .unwrap_or_else(|| disk.lines().count().min(fresh.lines().count()));
-    let cut = |s: Option<&str>| {
-        shown(
-            &s.unwrap_or("(no line)")
-                .chars()
-                .take(80)
-                .collect::<String>(),
-        )
-    };
-    format!(
-        "{name} is not what the plan and data give now; line {} is \"{}\" in the file, \"{}\" re-derived",
-        line + 1,
-        cut(disk.lines().nth(line)),
-        cut(fresh.lines().nth(line))
-    )
-}
-
-fn json_diff(path: &str, a: &serde_json::Value, b: &serde_json::Value, out: &mut Vec<String>) {
-    use serde_json::Value;
-    match (a, b) {
-        (Value::Object(x), Value::Object(y)) => {
-            let keys: std::collections::BTreeSet<&String> = x.keys().chain(y.keys()).collect();
-            for k in keys {
-                let p = if path.is_empty() {
-                    k.clone()
-                } else {
-                    format!("{path}.{k}")
-                };
-                match (x.get(k), y.get(k)) {
-                    (Some(u), Some(w)) => json_diff(&p, u, w, out),
-                    _ => out.push(p),
-                }
-            }
-        }
-        (Value::Array(x), Value::Array(y)) if x.len() == y.len() => {
-            for (i, (u, w)) in x.iter().zip(y).enumerate() {
-                json_diff(&format!("{path}[{i}]"), u, w, out);
-            }
-        }
-        _ if a != b => out.push(path.to_string()),
-        _ => {}
-    }
 }

@@ -1,4 +1,5 @@
 //! The built-in demo: two invented scenarios, generated deterministically, with their plans.
+//! Data only: `sworn demo` (`app/demo.rs`) writes them and runs the plans.
 //!
 //! 1. `cool-roofs`: a municipal programme offers a subsidy to paint roofs white, randomized
 //!    by street block within districts. Households that take it up tend to have hotter homes
@@ -15,10 +16,6 @@
 mod generate;
 
 pub use generate::{cool_roofs_csv, grid_demand_csv};
-
-use crate::app;
-use crate::error::{Error, Result};
-use std::path::Path;
 
 /// The demo plans, as committed in `plans/`.
 pub const PLANS: [(&str, &str); 2] = [
@@ -38,50 +35,4 @@ pub fn data_files() -> Vec<(&'static str, String)> {
         ("demo-data/cool-roofs/households.csv", cool_roofs_csv()),
         ("demo-data/grid-demand/weekly.csv", grid_demand_csv()),
     ]
-}
-
-fn write(dir: &Path, rel: &str, text: &str) -> Result<()> {
-    let path = dir.join(rel);
-    if let Some(parent) = path.parent() {
-        std::fs::create_dir_all(parent)
-            .map_err(|e| Error::io(parent, "cannot create the demo folder", e))?;
-    }
-    crate::ledger::write_atomic(&path, text.as_bytes())
-}
-
-/// `sworn demo`: write plans and data under `dir`, seal and run each plan.
-pub fn run_demo(dir: &Path) -> Result<app::Outcome> {
-    for (rel, text) in PLANS {
-        write(dir, rel, text)?;
-        let ledger = crate::ledger::ledger_path(&dir.join(rel));
-        if ledger.exists() {
-            std::fs::remove_file(&ledger)
-                .map_err(|e| Error::io(&ledger, "cannot replace the demo ledger", e))?;
-        }
-    }
-    for (rel, text) in data_files() {
-        write(dir, rel, &text)?;
-    }
-    let mut reports = Vec::new();
-    for (rel, _) in PLANS {
-        let plan = dir.join(rel);
-        app::seal(&plan)?;
-        let stem = plan
-            .file_stem()
-            .and_then(|s| s.to_str())
-            .unwrap_or("plan")
-            .to_string();
-        let (_, out) = app::run(&plan, Some(&dir.join("out").join(stem)), false, true, false)?;
-        reports.push(out.join("report.md"));
-        println!();
-    }
-    println!("demo written to {}", dir.display());
-    for r in reports {
-        println!("report: {}", r.display());
-    }
-    println!(
-        "check a run with: sworn verify {}",
-        dir.join("out").join("cool-roofs").display()
-    );
-    Ok(app::Outcome::Success)
 }

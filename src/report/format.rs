@@ -1,37 +1,8 @@
 //! Number and text formatting for reports; LaTeX escaping lives here and only here.
 
-/// A number for display: fixed with 3 decimals in the usual range, scientific outside it.
-/// A value that is not finite is not a number the data support: it shows as "n/a".
-pub fn num(x: f64) -> String {
-    if !x.is_finite() {
-        return "n/a".to_string();
-    }
-    let a = x.abs();
-    if x == 0.0 {
-        "0.000".to_string()
-    } else if (1e-6..1e-3).contains(&a) {
-        // Three significant digits without an exponent (0.000477, not 4.770e-4).
-        let decimals = (2.0 - a.log10().floor()) as usize;
-        format!("{x:.decimals$}")
-    } else if !(1e-3..1e6).contains(&a) {
-        format!("{x:.3e}")
-    } else {
-        format!("{x:.3}")
-    }
-}
-
-/// A p-value for display; values below 1e-300 (or underflowing to 0) print as such.
-pub fn pval(p: f64) -> String {
-    if !(0.0..=1.0).contains(&p) {
-        "n/a".to_string()
-    } else if p < 1e-300 {
-        "< 1e-300".to_string()
-    } else if p < 1e-4 {
-        format!("{p:.2e}")
-    } else {
-        format!("{p:.4}")
-    }
-}
+// `num` and `pval` live in the leaf module `crate::format`, so the analysis can word its
+// messages with them without depending on the report.
+pub use crate::format::{num, pval};
 
 /// A p-value in running text: `p = 0.0123`, or `p < 1e-300` below what is printed.
 pub fn p_is(p: f64) -> String {

@@ -1,5 +1,6 @@
 //! Mutation fuzzer: damaged plans, CSV files and Parquet files driven through the library's
-//! entry points (`plan::load`, `analysis::load_tables`, `analysis::execute`), in process.
+//! entry points (`plan::load`, `analysis::load_tables`, `app::execute`: the analysis and its
+//! rendered reports), in process.
 //!
 //! A finding is a panic, an input that takes longer than [`SLOW`], or a report that breaks
 //! an output invariant (a control or bidirectional-formatting character, or raw HTML from the
@@ -201,7 +202,7 @@ fn exercise(dir: &Path) -> Verdict {
         let plan = sworn::plan::load(&dir.join("plan.toml")).ok()?;
         let (tables, devs) = sworn::analysis::load_tables(&plan).ok()?;
         let ledger = sworn::ledger::Ledger::empty(dir.join("plan.toml.ledger"));
-        let out = sworn::analysis::execute(&plan, &ledger, "..", &tables, devs).ok()?;
+        let out = sworn::app::execute(&plan, &ledger, "..", &tables, devs).ok()?;
         for name in ["report.md", "report.html"] {
             let (_, text) = out.files.iter().find(|(n, _)| n == name)?;
             let bad = text
