@@ -10,13 +10,6 @@ pub mod raw;
 mod source;
 pub mod unfilled;
 mod validate;
-mod validate_hac;
-mod validate_rehearsal;
-mod validate_rules;
-mod validate_spec;
-mod validate_summaries;
-#[cfg(test)]
-mod validate_tests;
 
 use crate::expr::Expr;
 use crate::inference::{Correction, Direction};
@@ -25,9 +18,9 @@ use std::path::PathBuf;
 
 pub use crate::suggest::{closest, hint as suggest_hint};
 pub use source::SourceMap;
+pub use validate::rehearsal::EFFECT;
+pub use validate::scope::spec_terms;
 pub use validate::{from_text, load};
-pub use validate_rehearsal::EFFECT;
-pub use validate_spec::spec_terms;
 
 /// A validated plan.
 #[derive(Debug, Clone)]

@@ -2,8 +2,8 @@
 //! anchor (the test fails if the anchor is missing, so a drifting base plan cannot make a case
 //! pass silently) and expects the error to name the key and say the fix.
 
-use super::from_text;
 use crate::error::Error;
+use crate::plan::from_text;
 use std::path::Path;
 
 const BASE: &str = r#"format = 1

@@ -1,16 +1,15 @@
-//! Validation of `[[contingency]]` decision rules: the trigger must be one the tool can
+//! `[[contingency]]` decision rules and `[resampling]`: the trigger must be one the tool can
 //! evaluate, its threshold possible, and the action must fit the specification it watches.
 
-use super::raw::{RawContingency, RawHypothesis, RawPlan};
-use super::validate::Ctx;
-use super::validate_spec::{spec_terms, unique, unknown};
-use super::{Action, Contingency, Errors, Estimator, Method, Plan, Resampling, Spec, Trigger};
+use super::scope::{find_spec, spec_terms, unique, unknown, wild_bootstrap_fits, Ctx};
 use crate::error::Result;
-use crate::inference::Correction;
+use crate::plan::raw::{RawContingency, RawPlan};
+use crate::plan::{Action, Contingency, Errors, Estimator, Plan, Resampling, Trigger};
 use std::collections::BTreeSet;
 use toml::Spanned;
 
 const TRIGGERS: [&str; 3] = ["weak_instruments", "endogeneity", "clusters"];
+
 const WEAK_ACTIONS: [&str; 3] = ["anderson-rubin", "liml", "tf"];
 
 /// All `[[contingency]]` entries, in plan order.
@@ -146,23 +145,6 @@ fn contingency(ctx: &Ctx, c: &RawContingency, plan: &Plan) -> Result<Contingency
     })
 }
 
-fn find_spec<'p>(ctx: &Ctx, plan: &'p Plan, name: &Spanned<String>, key: &str) -> Result<&'p Spec> {
-    plan.specifications
-        .iter()
-        .find(|s| &s.id == name.get_ref())
-        .ok_or_else(|| {
-            ctx.at(
-                name,
-                key,
-                unknown(
-                    "specification",
-                    name.get_ref(),
-                    plan.specifications.iter().map(|s| s.id.as_str()),
-                ),
-            )
-        })
-}
-
 fn trigger(ctx: &Ctx, when: &Spanned<toml::Value>, key: &str) -> Result<Trigger> {
     let shape = "when must be a table with one trigger, e.g. { weak_instruments = { below = 10.0 } }, { endogeneity = { not_rejected_at = 0.05 } } or { clusters = { fewer_than = 30 } }";
     let Some(table) = when.get_ref().as_table() else {
@@ -229,38 +211,6 @@ fn trigger(ctx: &Ctx, when: &Spanned<toml::Value>, key: &str) -> Result<Trigger>
     }
 }
 
-/// The wild cluster bootstrap needs `[resampling]`, one-way clusters and an OLS specification
-/// or a 2SLS one with one endogenous regressor (the wild restricted efficient bootstrap).
-fn wild_bootstrap_fits(
-    ctx: &Ctx,
-    plan: &Plan,
-    spec: &Spec,
-    at: &Spanned<String>,
-    key: &str,
-) -> Result<()> {
-    if plan.resampling.is_none() {
-        return Err(ctx.at(at, key, "the wild cluster bootstrap needs [resampling] with a seed (e.g. [resampling] seed = 20260501) so its p-values can be reproduced"));
-    }
-    let fits = match spec.estimator {
-        Estimator::Ols => true,
-        Estimator::Tsls => spec.endogenous.len() == 1,
-        _ => false,
-    };
-    if !fits {
-        return Err(ctx.at(at, key, format!(
-            "the wild cluster bootstrap is implemented for OLS specifications and for 2SLS with one endogenous regressor (the wild restricted efficient bootstrap); `{}` is estimated by {} with {} endogenous regressor(s)",
-            spec.id, spec.estimator.name(), spec.endogenous.len()
-        )));
-    }
-    match &spec.errors {
-        Errors::Cluster(by) if by.len() == 1 => Ok(()),
-        _ => Err(ctx.at(at, key, format!(
-            "the wild cluster bootstrap resamples one-way clusters; specification `{}` must use errors = {{ kind = \"cluster\", by = \"COLUMN\" }}",
-            spec.id
-        ))),
-    }
-}
-
 /// `[resampling]`.
 pub(super) fn resampling(ctx: &Ctx, raw: &RawPlan) -> Result<Option<Resampling>> {
     let Some(r) = &raw.resampling else {
@@ -297,140 +247,4 @@ pub(super) fn resampling(ctx: &Ctx, raw: &RawPlan) -> Result<Option<Resampling>>
         seed,
         exact_below,
     }))
-}
-
-/// A hypothesis's `inference`, `statistic` and `weights`.
-pub(super) fn method(ctx: &Ctx, h: &RawHypothesis, spec: &Spec, plan: &Plan) -> Result<Method> {
-    let id = h.id.get_ref();
-    let key = |k: &str| format!("hypothesis[{id}].{k}");
-    let inference = h.inference.as_ref();
-    if let Some(i) = inference {
-        ctx.one_of(
-            i,
-            &key("inference"),
-            &["model", "randomization", "wild-bootstrap"],
-        )?;
-    }
-    let kind = inference.map_or("model", |i| i.get_ref().as_str());
-    if let (Some(s), false) = (&h.statistic, kind == "randomization") {
-        return Err(ctx.at(
-            s,
-            key("statistic"),
-            "statistic belongs to inference = \"randomization\"",
-        ));
-    }
-    if let (Some(w), false) = (&h.weights, kind == "wild-bootstrap") {
-        return Err(ctx.at(
-            w,
-            key("weights"),
-            "weights belong to inference = \"wild-bootstrap\"",
-        ));
-    }
-    let Some(at) = inference else {
-        return Ok(Method::Model);
-    };
-    match kind {
-        "randomization" => {
-            if plan.resampling.is_none() {
-                return Err(ctx.at(at, key("inference"), "randomization inference needs [resampling] with a seed (e.g. [resampling] seed = 20260501) so its p-values can be reproduced"));
-            }
-            let Some(a) = &plan.assignment else {
-                return Err(ctx.at(at, key("inference"), "randomization inference re-draws the assignment, which the plan must declare in [assignment]"));
-            };
-            let table = &plan.data[&spec.data];
-            for col in std::iter::once(&a.variable)
-                .chain(&a.blocks)
-                .chain(&a.clusters)
-            {
-                if !table.columns.contains_key(col) {
-                    return Err(ctx.at(at, key("inference"), format!(
-                        "the assignment column `{col}` is not declared in data table `{}`, which specification `{}` uses",
-                        table.id, spec.id
-                    )));
-                }
-            }
-            let term = h.term.get_ref();
-            let fits = match spec.estimator {
-                Estimator::Ols => term == &a.variable,
-                Estimator::Tsls => {
-                    spec.endogenous.len() == 1
-                        && &spec.endogenous[0] == term
-                        && spec.instruments == [a.variable.clone()]
-                }
-                _ => false,
-            };
-            if !fits {
-                return Err(ctx.at(at, key("inference"), format!(
-                    "randomization inference applies to the assigned variable `{}` in an OLS specification (intention to treat, reduced form), or to the endogenous coefficient of a 2SLS specification whose only instrument is `{}` (through the Anderson–Rubin statistic)",
-                    a.variable, a.variable
-                )));
-            }
-            // Permuting the swept assignment is valid only when sweeping commutes with the
-            // permutations: every fixed effect must be the design's block variable.
-            if let Some(fe) = spec
-                .fixed_effects
-                .iter()
-                .find(|f| a.blocks.as_ref() != Some(*f))
-            {
-                return Err(ctx.at(at, key("inference"), format!(
-                    "randomization inference with absorbed fixed effects needs each fixed effect to be the assignment's block variable; `{fe}` is not (use it as a control, or declare the blocks)"
-                )));
-            }
-            let studentized = match &h.statistic {
-                Some(s) => {
-                    ctx.one_of(s, &key("statistic"), &["t", "estimate"])?;
-                    s.get_ref() == "t"
-                }
-                None => true,
-            };
-            Ok(Method::Randomization { studentized })
-        }
-        "wild-bootstrap" => {
-            wild_bootstrap_fits(ctx, plan, spec, at, &key("inference"))?;
-            if spec.estimator.is_iv() && !spec.endogenous.contains(h.term.get_ref()) {
-                return Err(ctx.at(at, key("inference"), format!(
-                    "the wild restricted efficient bootstrap tests the endogenous coefficient `{}` of a 2SLS specification; use model inference for `{}`",
-                    spec.endogenous.join("`, `"), h.term.get_ref()
-                )));
-            }
-            let webb = match &h.weights {
-                Some(w) => {
-                    ctx.one_of(w, &key("weights"), &["rademacher", "webb"])?;
-                    w.get_ref() == "webb"
-                }
-                None => false,
-            };
-            Ok(Method::WildBootstrap { webb })
-        }
-        _ => Ok(Method::Model),
-    }
-}
-
-/// A Romano–Wolf family needs every member resampled the same way.
-pub(super) fn families_resampled(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<()> {
-    for (name, f) in &raw.family {
-        let Some(family) = plan.families.get(name.get_ref()) else {
-            continue;
-        };
-        if family.correction != Correction::RomanoWolf {
-            continue;
-        }
-        let at = f.get_ref().correction.as_ref().map_or(name, |c| c);
-        let key = format!("family.{}.correction", name.get_ref());
-        let members: Vec<_> = plan
-            .hypotheses
-            .iter()
-            .filter(|h| h.family.as_deref() == Some(name.get_ref().as_str()))
-            .collect();
-        let kind = |m: &Method| match m {
-            Method::Model => 0,
-            Method::Randomization { .. } => 1,
-            Method::WildBootstrap { .. } => 2,
-        };
-        let kinds: BTreeSet<u8> = members.iter().map(|h| kind(&h.method)).collect();
-        if kinds.contains(&0) || kinds.len() > 1 {
-            return Err(ctx.at(at, key, "the Romano–Wolf step-down uses the family's joint resampling draws: every hypothesis of the family needs the same inference, \"randomization\" or \"wild-bootstrap\""));
-        }
-    }
-    Ok(())
 }

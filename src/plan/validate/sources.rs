@@ -1,172 +1,19 @@
-//! Raw plan → validated [`Plan`]: every name resolved before any data is read.
-//!
-//! Errors point at the file, line and column of the offending value, give the key path and,
-//! for an unknown name, the closest known one. The first problem found is reported.
+//! The study, the plan-wide inference defaults, the data tables (paths, formats, columns,
+//! CSV dialect) and the derived variables: what every later section resolves names against.
 
-use super::raw::{RawColumn, RawData, RawPlan};
-use super::{
-    Column, ColumnKind, DataFormat, DataSource, Derived, Distribution, InferenceDefaults, Plan,
-    SourceMap, Study,
-};
-use crate::error::{Error, Result};
+use super::scope::{available, distribution, expr_error, is_identifier, Ctx};
+use crate::error::Result;
 use crate::expr;
+use crate::plan::raw::{RawColumn, RawData, RawPlan};
+use crate::plan::{
+    Column, ColumnKind, DataFormat, DataSource, Derived, Distribution, InferenceDefaults, Study,
+};
 use crate::suggest::hint;
 use std::collections::{BTreeMap, BTreeSet};
-use std::ops::Range;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use toml::Spanned;
 
-/// Validation context: where the plan is, and how to point into it.
-pub(super) struct Ctx {
-    pub path: PathBuf,
-    pub map: SourceMap,
-}
-
-impl Ctx {
-    /// An error at a byte span of the plan.
-    pub fn err(
-        &self,
-        span: Range<usize>,
-        key: impl Into<String>,
-        message: impl Into<String>,
-    ) -> Error {
-        let (line, column) = self.map.position(span.start);
-        Error::Plan {
-            path: self.path.clone(),
-            line,
-            column,
-            key: key.into(),
-            message: message.into(),
-        }
-    }
-
-    /// An error at a spanned value.
-    pub fn at<T>(
-        &self,
-        v: &Spanned<T>,
-        key: impl Into<String>,
-        message: impl Into<String>,
-    ) -> Error {
-        self.err(v.span(), key, message)
-    }
-
-    /// Check that `v` is one of `allowed`.
-    pub fn one_of(&self, v: &Spanned<String>, key: &str, allowed: &[&str]) -> Result<()> {
-        if allowed.contains(&v.get_ref().as_str()) {
-            return Ok(());
-        }
-        let list = allowed
-            .iter()
-            .map(|a| format!("`{a}`"))
-            .collect::<Vec<_>>()
-            .join(", ");
-        Err(self.at(
-            v,
-            key,
-            format!(
-                "`{}` is not allowed here; use one of {list}{}",
-                crate::escape::clip(v.get_ref(), crate::escape::SHOWN),
-                hint(v.get_ref(), allowed.iter().copied())
-            ),
-        ))
-    }
-
-    /// Check a probability-like value lies strictly between 0 and 1.
-    pub fn unit_open(&self, v: &Spanned<f64>, key: &str) -> Result<f64> {
-        let x = *v.get_ref();
-        if x > 0.0 && x < 1.0 {
-            Ok(x)
-        } else {
-            Err(self.at(v, key, format!("{x} must lie strictly between 0 and 1")))
-        }
-    }
-}
-
-/// Read, parse and validate the plan at `path`.
-pub fn load(path: &Path) -> Result<Plan> {
-    let text =
-        std::fs::read_to_string(path).map_err(|e| Error::io(path, "cannot read the plan", e))?;
-    from_text(path, text)
-}
-
-/// Parse and validate plan `text` as if it were the file at `path` (data paths resolve
-/// relative to its folder).
-pub fn from_text(path: &Path, text: String) -> Result<Plan> {
-    let path = std::path::absolute(path)
-        .map_err(|e| Error::io(path, "cannot resolve the plan path", e))?;
-    super::unfilled::refuse_marks(&path, &text)?;
-    let ctx = Ctx {
-        path: path.clone(),
-        map: SourceMap::new(&text),
-    };
-    let raw: RawPlan = toml::from_str(&text).map_err(|e| {
-        let span = e.span().unwrap_or(0..0);
-        let message = e.message().trim().to_string();
-        ctx.err(span, "", parse_message(&message))
-    })?;
-    build(&ctx, raw, text)
-}
-
-fn parse_message(message: &str) -> String {
-    if message.starts_with("unknown field") {
-        format!("{message}; remove or correct the key (see docs/plan-reference.md)")
-    } else if message.starts_with("missing field") {
-        format!("{message}; this key is required")
-    } else {
-        format!("malformed plan: {message}")
-    }
-}
-
-fn build(ctx: &Ctx, raw: RawPlan, text: String) -> Result<Plan> {
-    if *raw.format.get_ref() != 1 {
-        return Err(ctx.at(
-            &raw.format,
-            "format",
-            format!(
-                "plan format {} is not supported; this version of sworn reads format 1",
-                raw.format.get_ref()
-            ),
-        ));
-    }
-    let study = study(ctx, &raw)?;
-    let inference = inference(ctx, &raw)?;
-    let data = data_sources(ctx, &raw)?;
-    let derive = derived(ctx, &raw, &data)?;
-    let mut plan = Plan {
-        path: ctx.path.clone(),
-        text,
-        study,
-        inference,
-        data,
-        derive,
-        assignment: None,
-        specifications: Vec::new(),
-        hypotheses: Vec::new(),
-        families: BTreeMap::new(),
-        tables: Vec::new(),
-        contingencies: Vec::new(),
-        resampling: None,
-        indices: Vec::new(),
-        balance: None,
-        attrition: None,
-        rehearsal: None,
-    };
-    plan.assignment = super::validate_spec::assignment(ctx, &raw, &plan)?;
-    plan.resampling = super::validate_rules::resampling(ctx, &raw)?;
-    plan.indices = super::validate_summaries::indices(ctx, &raw, &plan)?;
-    plan.balance = super::validate_summaries::balance(ctx, &raw, &plan)?;
-    plan.attrition = super::validate_summaries::attrition(ctx, &raw, &plan)?;
-    plan.specifications = super::validate_spec::specifications(ctx, &raw, &plan)?;
-    plan.families = super::validate_spec::families(ctx, &raw, &plan)?;
-    plan.hypotheses = super::validate_spec::hypotheses(ctx, &raw, &plan)?;
-    plan.tables = super::validate_spec::tables(ctx, &raw, &plan)?;
-    plan.contingencies = super::validate_rules::contingencies(ctx, &raw, &plan)?;
-    super::validate_rules::families_resampled(ctx, &raw, &plan)?;
-    plan.rehearsal = super::validate_rehearsal::rehearsal(ctx, &raw, &plan)?;
-    Ok(plan)
-}
-
-fn study(ctx: &Ctx, raw: &RawPlan) -> Result<Study> {
+pub(super) fn study(ctx: &Ctx, raw: &RawPlan) -> Result<Study> {
     let s = raw.study.get_ref();
     if s.title.trim().is_empty() {
         return Err(ctx.at(&raw.study, "study.title", "the study needs a title"));
@@ -180,7 +27,7 @@ fn study(ctx: &Ctx, raw: &RawPlan) -> Result<Study> {
     })
 }
 
-fn inference(ctx: &Ctx, raw: &RawPlan) -> Result<InferenceDefaults> {
+pub(super) fn inference(ctx: &Ctx, raw: &RawPlan) -> Result<InferenceDefaults> {
     let r = &raw.inference;
     let alpha = match &r.alpha {
         Some(a) => ctx.unit_open(a, "inference.alpha")?,
@@ -201,17 +48,7 @@ fn inference(ctx: &Ctx, raw: &RawPlan) -> Result<InferenceDefaults> {
     })
 }
 
-/// Parse a distribution name.
-pub(super) fn distribution(ctx: &Ctx, d: &Spanned<String>, key: &str) -> Result<Distribution> {
-    ctx.one_of(d, key, &["t", "normal"])?;
-    Ok(if d.get_ref() == "t" {
-        Distribution::T
-    } else {
-        Distribution::Normal
-    })
-}
-
-fn data_sources(ctx: &Ctx, raw: &RawPlan) -> Result<BTreeMap<String, DataSource>> {
+pub(super) fn data_sources(ctx: &Ctx, raw: &RawPlan) -> Result<BTreeMap<String, DataSource>> {
     if raw.data.is_empty() {
         return Err(ctx.err(
             0..0,
@@ -410,16 +247,11 @@ fn column(ctx: &Ctx, name: &Spanned<String>, c: &Spanned<RawColumn>, key: &str) 
     })
 }
 
-/// A valid variable name: letters, digits and underscores, not starting with a digit.
-pub(super) fn is_identifier(name: &str) -> bool {
-    let mut chars = name.chars();
-    chars
-        .next()
-        .is_some_and(|c| c.is_ascii_alphabetic() || c == '_')
-        && chars.all(|c| c.is_ascii_alphanumeric() || c == '_')
-}
-
-fn derived(ctx: &Ctx, raw: &RawPlan, data: &BTreeMap<String, DataSource>) -> Result<Vec<Derived>> {
+pub(super) fn derived(
+    ctx: &Ctx,
+    raw: &RawPlan,
+    data: &BTreeMap<String, DataSource>,
+) -> Result<Vec<Derived>> {
     let mut out: Vec<Derived> = Vec::new();
     for (name, text) in &raw.derive {
         let key = format!("derive.{}", name.get_ref());
@@ -448,40 +280,6 @@ fn derived(ctx: &Ctx, raw: &RawPlan, data: &BTreeMap<String, DataSource>) -> Res
         });
     }
     Ok(out)
-}
-
-/// Point an expression error at its place inside the string value.
-pub(super) fn expr_error(
-    ctx: &Ctx,
-    text: &Spanned<String>,
-    key: &str,
-    e: &expr::ExprError,
-) -> Error {
-    let start = text.span().start + 1 + e.offset.unwrap_or(0);
-    ctx.err(
-        start..start,
-        key,
-        format!("in expression \"{}\": {}", text.get_ref(), e.message),
-    )
-}
-
-/// Names available in table `t`: its numeric declared columns, then derived variables whose
-/// inputs are all available (and, for lag/diff, whose table has an `order_by`).
-pub(super) fn available(t: &DataSource, derive: &[Derived]) -> BTreeSet<String> {
-    let mut names: BTreeSet<String> = t
-        .columns
-        .iter()
-        .filter(|(_, c)| c.kind.is_numeric())
-        .map(|(n, _)| n.clone())
-        .collect();
-    for d in derive {
-        if d.expr.names().iter().all(|n| names.contains(n))
-            && (!d.expr.uses_lag() || t.order_by.is_some())
-        {
-            names.insert(d.name.clone());
-        }
-    }
-    names
 }
 
 fn check_expr_names(

@@ -6,11 +6,11 @@
 //! resolved here, so the plan's key order does not matter); `assigned(share)` appears only
 //! in the column `[assignment]` randomizes, after its blocks and clusters.
 
-use super::raw::{RawGenerator, RawPlan, RawRehearsal};
-use super::validate::{expr_error, Ctx};
-use super::{BaselineFile, GeneratedColumn, Generator, Plan, Rehearsal};
+use super::scope::{expr_error, is_identifier, Ctx};
 use crate::error::Result;
 use crate::expr::{self, Draw};
+use crate::plan::raw::{RawGenerator, RawPlan, RawRehearsal};
+use crate::plan::{BaselineFile, GeneratedColumn, Generator, Plan, Rehearsal};
 use crate::suggest::hint;
 use std::collections::{BTreeMap, BTreeSet};
 use toml::Spanned;
@@ -215,9 +215,7 @@ fn generator(
         let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
         let declared = src.columns.get(n);
         if latent
-            && (declared.is_some()
-                || plan.derive.iter().any(|d| &d.name == n)
-                || !super::validate::is_identifier(n))
+            && (declared.is_some() || plan.derive.iter().any(|d| &d.name == n) || !is_identifier(n))
         {
             return Err(ctx.at(
                 name,
