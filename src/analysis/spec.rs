@@ -90,19 +90,10 @@ fn est_err(spec: &Spec, message: impl Into<String>) -> Error {
     }
 }
 
-fn cov_spec(spec: &Spec, d: &Design) -> CovSpec {
-    match (&spec.errors, d.clusters.as_slice()) {
-        (Errors::Classical, _) => CovSpec::Classical,
-        (Errors::Hc0, _) => CovSpec::Hc0,
-        (Errors::Hc2, _) => CovSpec::Hc2,
-        (Errors::Hc3, _) => CovSpec::Hc3,
-        (Errors::Cluster(_), [(ids, _)]) => CovSpec::Cluster { ids: ids.clone() },
-        (Errors::Cluster(_), [(a, _), (b, _)]) => CovSpec::TwoWay {
-            first: a.clone(),
-            second: b.clone(),
-        },
-        _ => CovSpec::Hc1,
-    }
+/// The covariance of a specification without HAC errors (see [`crate::data::cov_spec`]).
+fn cov_spec(spec: &Spec, d: &Design) -> Result<CovSpec> {
+    let clusters = d.clusters.iter().map(|(ids, _)| ids.clone()).collect();
+    crate::data::cov_spec(&spec.errors, clusters).map_err(|gap| est_err(spec, gap.to_string()))
 }
 
 /// Columns of `m` selected by `keep`.
@@ -320,7 +311,7 @@ pub fn fit_spec(
     };
     let (cov, hac) = match super::hac::resolve(spec, table, &d, &scores, spec.estimator.is_iv())? {
         Some((cov, record)) => (cov, Some(record)),
-        None => (cov_spec(spec, &d), None),
+        None => (cov_spec(spec, &d)?, None),
     };
     let has_c = d.has_constant;
     let ab = &d.absorbed;

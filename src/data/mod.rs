@@ -11,7 +11,7 @@ mod labels;
 mod parquet;
 mod read;
 
-pub use design::{design, Design};
+pub use design::{cov_spec, design, CovSpecGap, Design};
 pub use labels::{Labels, TooManyLabels};
 pub(crate) use read::needed_columns;
 pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};

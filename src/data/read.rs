@@ -225,9 +225,7 @@ pub(crate) fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> 
         );
         names.insert(s.outcome.clone());
         names.extend(s.fixed_effects.iter().cloned());
-        if let crate::plan::Errors::Cluster(by) = &s.errors {
-            names.extend(by.iter().cloned());
-        }
+        names.extend(s.errors.cluster_columns().iter().cloned());
         if let Some((_, e)) = &s.sample {
             names.extend(e.names());
         }
@@ -239,17 +237,13 @@ pub(crate) fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> 
     if let Some(b) = plan.balance.as_ref().filter(|b| b.data == src.id) {
         names.insert(b.by.clone());
         names.extend(b.covariates.iter().cloned());
-        if let crate::plan::Errors::Cluster(by) = &b.errors {
-            names.extend(by.iter().cloned());
-        }
+        names.extend(b.errors.cluster_columns().iter().cloned());
     }
     if let Some(a) = plan.attrition.as_ref().filter(|a| a.data == src.id) {
         names.insert(a.by.clone());
         names.extend(a.observed.1.names());
         names.extend(a.bounds.iter().cloned());
-        if let crate::plan::Errors::Cluster(by) = &a.errors {
-            names.extend(by.iter().cloned());
-        }
+        names.extend(a.errors.cluster_columns().iter().cloned());
     }
     if let Some(a) = &plan.assignment {
         names.insert(a.variable.clone());

@@ -443,6 +443,19 @@ impl Errors {
             Errors::Hac { .. } => "hac",
         }
     }
+
+    /// The columns these errors cluster by, in plan order (none unless clustered).
+    pub fn cluster_columns(&self) -> &[String] {
+        match self {
+            Errors::Cluster(by) => by,
+            Errors::Classical
+            | Errors::Hc0
+            | Errors::Hc1
+            | Errors::Hc2
+            | Errors::Hc3
+            | Errors::Hac { .. } => &[],
+        }
+    }
 }
 
 /// A diagnostic a specification asks for.

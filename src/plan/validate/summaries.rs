@@ -8,7 +8,7 @@ use super::scope::{
 };
 use crate::error::Result;
 use crate::expr;
-use crate::plan::raw::RawPlan;
+use crate::plan::raw::{RawErrors, RawPlan};
 use crate::plan::{Attrition, Balance, ColumnKind, DataSource, Errors, Index, IndexMethod, Plan};
 use crate::suggest::hint;
 use std::collections::BTreeSet;
@@ -250,7 +250,7 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
 /// An `errors` value for balance or attrition, where HAC errors have no time order to use.
 fn summary_errors(
     ctx: &Ctx,
-    v: Option<&toml::Spanned<toml::Value>>,
+    v: Option<&Spanned<RawErrors>>,
     t: &DataSource,
     key: &str,
 ) -> Result<Errors> {
@@ -275,7 +275,7 @@ fn registered_design(
     plan: &Plan,
     t: &DataSource,
     by: &Spanned<String>,
-    raw: Option<&toml::Spanned<toml::Value>>,
+    raw: Option<&Spanned<RawErrors>>,
     section: &str,
 ) -> Result<(Errors, Option<String>)> {
     let key = format!("{section}.errors");
