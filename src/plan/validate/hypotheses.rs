@@ -7,6 +7,7 @@ use crate::inference::{Correction, Direction};
 use crate::plan::raw::{RawHypothesis, RawPlan};
 use crate::plan::{Estimator, Family, Hypothesis, Method, Plan, Spec};
 use std::collections::{BTreeMap, BTreeSet};
+use toml::Spanned;
 
 /// `[family.NAME]` tables.
 pub(super) fn families(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<BTreeMap<String, Family>> {
@@ -79,50 +80,8 @@ pub(super) fn hypotheses(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Hy
                 ),
             ));
         }
-        let direction = match &h.direction {
-            Some(d) => {
-                ctx.one_of(d, &key("direction"), &["two-sided", "greater", "less"])?;
-                match d.get_ref().as_str() {
-                    "greater" => Direction::Greater,
-                    "less" => Direction::Less,
-                    _ => Direction::TwoSided,
-                }
-            }
-            None => Direction::TwoSided,
-        };
-        let family = match &h.family {
-            Some(f) if !plan.families.contains_key(f.get_ref()) => {
-                return Err(ctx.at(
-                    f,
-                    key("family"),
-                    format!(
-                        "{}; declare it as [family.{}]",
-                        unknown(
-                            "family",
-                            f.get_ref(),
-                            plan.families.keys().map(String::as_str)
-                        ),
-                        f.get_ref()
-                    ),
-                ))
-            }
-            Some(f) => Some(f.get_ref().clone()),
-            None => None,
-        };
-        let alpha = match (&family, &h.alpha) {
-            (Some(f), Some(a)) => {
-                return Err(ctx.at(
-                    a,
-                    key("alpha"),
-                    format!(
-                        "the hypothesis is tested at the level of family `{f}`; remove alpha here"
-                    ),
-                ))
-            }
-            (Some(f), None) => plan.families[f].alpha,
-            (None, Some(a)) => ctx.unit_open(a, &key("alpha"))?,
-            (None, None) => plan.inference.alpha,
-        };
+        let direction = direction(ctx, h)?;
+        let (family, alpha) = level(ctx, h, plan)?;
         let method = method(ctx, h, spec, plan)?;
         out.push(Hypothesis {
             method,
@@ -137,6 +96,60 @@ pub(super) fn hypotheses(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Hy
         });
     }
     Ok(out)
+}
+
+/// A hypothesis's `direction`; two-sided when absent.
+fn direction(ctx: &Ctx, h: &RawHypothesis) -> Result<Direction> {
+    let key = |k: &str| format!("hypothesis[{}].{k}", h.id.get_ref());
+    Ok(match &h.direction {
+        Some(d) => {
+            ctx.one_of(d, &key("direction"), &["two-sided", "greater", "less"])?;
+            match d.get_ref().as_str() {
+                "greater" => Direction::Greater,
+                "less" => Direction::Less,
+                _ => Direction::TwoSided,
+            }
+        }
+        None => Direction::TwoSided,
+    })
+}
+
+/// A hypothesis's family (which must be declared) and its level: the family's, its own
+/// `alpha` when it has no family, else the plan's.
+fn level(ctx: &Ctx, h: &RawHypothesis, plan: &Plan) -> Result<(Option<String>, f64)> {
+    let key = |k: &str| format!("hypothesis[{}].{k}", h.id.get_ref());
+    let family = match &h.family {
+        Some(f) if !plan.families.contains_key(f.get_ref()) => {
+            return Err(ctx.at(
+                f,
+                key("family"),
+                format!(
+                    "{}; declare it as [family.{}]",
+                    unknown(
+                        "family",
+                        f.get_ref(),
+                        plan.families.keys().map(String::as_str)
+                    ),
+                    f.get_ref()
+                ),
+            ))
+        }
+        Some(f) => Some(f.get_ref().clone()),
+        None => None,
+    };
+    let alpha = match (&family, &h.alpha) {
+        (Some(f), Some(a)) => {
+            return Err(ctx.at(
+                a,
+                key("alpha"),
+                format!("the hypothesis is tested at the level of family `{f}`; remove alpha here"),
+            ))
+        }
+        (Some(f), None) => plan.families[f].alpha,
+        (None, Some(a)) => ctx.unit_open(a, &key("alpha"))?,
+        (None, None) => plan.inference.alpha,
+    };
+    Ok((family, alpha))
 }
 
 /// A hypothesis's `inference`, `statistic` and `weights`.
@@ -170,80 +183,102 @@ fn method(ctx: &Ctx, h: &RawHypothesis, spec: &Spec, plan: &Plan) -> Result<Meth
         return Ok(Method::Model);
     };
     match kind {
-        "randomization" => {
-            if plan.resampling.is_none() {
-                return Err(ctx.at(at, key("inference"), "randomization inference needs [resampling] with a seed (e.g. [resampling] seed = 20260501) so its p-values can be reproduced"));
-            }
-            let Some(a) = &plan.assignment else {
-                return Err(ctx.at(at, key("inference"), "randomization inference re-draws the assignment, which the plan must declare in [assignment]"));
-            };
-            let table = &plan.data[&spec.data];
-            for col in std::iter::once(&a.variable)
-                .chain(&a.blocks)
-                .chain(&a.clusters)
-            {
-                if !table.columns.contains_key(col) {
-                    return Err(ctx.at(at, key("inference"), format!(
-                        "the assignment column `{col}` is not declared in data table `{}`, which specification `{}` uses",
-                        table.id, spec.id
-                    )));
-                }
-            }
-            let term = h.term.get_ref();
-            let fits = match spec.estimator {
-                Estimator::Ols => term == &a.variable,
-                Estimator::Tsls => {
-                    spec.endogenous.len() == 1
-                        && &spec.endogenous[0] == term
-                        && spec.instruments == [a.variable.clone()]
-                }
-                _ => false,
-            };
-            if !fits {
-                return Err(ctx.at(at, key("inference"), format!(
-                    "randomization inference applies to the assigned variable `{}` in an OLS specification (intention to treat, reduced form), or to the endogenous coefficient of a 2SLS specification whose only instrument is `{}` (through the Anderson–Rubin statistic)",
-                    a.variable, a.variable
-                )));
-            }
-            // Permuting the swept assignment is valid only when sweeping commutes with the
-            // permutations: every fixed effect must be the design's block variable.
-            if let Some(fe) = spec
-                .fixed_effects
-                .iter()
-                .find(|f| a.blocks.as_ref() != Some(*f))
-            {
-                return Err(ctx.at(at, key("inference"), format!(
-                    "randomization inference with absorbed fixed effects needs each fixed effect to be the assignment's block variable; `{fe}` is not (use it as a control, or declare the blocks)"
-                )));
-            }
-            let studentized = match &h.statistic {
-                Some(s) => {
-                    ctx.one_of(s, &key("statistic"), &["t", "estimate"])?;
-                    s.get_ref() == "t"
-                }
-                None => true,
-            };
-            Ok(Method::Randomization { studentized })
-        }
-        "wild-bootstrap" => {
-            wild_bootstrap_fits(ctx, plan, spec, at, &key("inference"))?;
-            if spec.estimator.is_iv() && !spec.endogenous.contains(h.term.get_ref()) {
-                return Err(ctx.at(at, key("inference"), format!(
-                    "the wild restricted efficient bootstrap tests the endogenous coefficient `{}` of a 2SLS specification; use model inference for `{}`",
-                    spec.endogenous.join("`, `"), h.term.get_ref()
-                )));
-            }
-            let webb = match &h.weights {
-                Some(w) => {
-                    ctx.one_of(w, &key("weights"), &["rademacher", "webb"])?;
-                    w.get_ref() == "webb"
-                }
-                None => false,
-            };
-            Ok(Method::WildBootstrap { webb })
-        }
+        "randomization" => randomization(ctx, h, spec, plan, at),
+        "wild-bootstrap" => wild_bootstrap(ctx, h, spec, plan, at),
         _ => Ok(Method::Model),
     }
+}
+
+/// `inference = "randomization"`: the plan declares the assignment and resampling, and the
+/// term is the assigned variable (OLS) or the endogenous coefficient it instruments (2SLS).
+fn randomization(
+    ctx: &Ctx,
+    h: &RawHypothesis,
+    spec: &Spec,
+    plan: &Plan,
+    at: &Spanned<String>,
+) -> Result<Method> {
+    let key = |k: &str| format!("hypothesis[{}].{k}", h.id.get_ref());
+    if plan.resampling.is_none() {
+        return Err(ctx.at(at, key("inference"), "randomization inference needs [resampling] with a seed (e.g. [resampling] seed = 20260501) so its p-values can be reproduced"));
+    }
+    let Some(a) = &plan.assignment else {
+        return Err(ctx.at(at, key("inference"), "randomization inference re-draws the assignment, which the plan must declare in [assignment]"));
+    };
+    let table = &plan.data[&spec.data];
+    for col in std::iter::once(&a.variable)
+        .chain(&a.blocks)
+        .chain(&a.clusters)
+    {
+        if !table.columns.contains_key(col) {
+            return Err(ctx.at(at, key("inference"), format!(
+                "the assignment column `{col}` is not declared in data table `{}`, which specification `{}` uses",
+                table.id, spec.id
+            )));
+        }
+    }
+    let term = h.term.get_ref();
+    let fits = match spec.estimator {
+        Estimator::Ols => term == &a.variable,
+        Estimator::Tsls => {
+            spec.endogenous.len() == 1
+                && &spec.endogenous[0] == term
+                && spec.instruments == [a.variable.clone()]
+        }
+        _ => false,
+    };
+    if !fits {
+        return Err(ctx.at(at, key("inference"), format!(
+            "randomization inference applies to the assigned variable `{}` in an OLS specification (intention to treat, reduced form), or to the endogenous coefficient of a 2SLS specification whose only instrument is `{}` (through the Anderson–Rubin statistic)",
+            a.variable, a.variable
+        )));
+    }
+    // Permuting the swept assignment is valid only when sweeping commutes with the
+    // permutations: every fixed effect must be the design's block variable.
+    if let Some(fe) = spec
+        .fixed_effects
+        .iter()
+        .find(|f| a.blocks.as_ref() != Some(*f))
+    {
+        return Err(ctx.at(at, key("inference"), format!(
+            "randomization inference with absorbed fixed effects needs each fixed effect to be the assignment's block variable; `{fe}` is not (use it as a control, or declare the blocks)"
+        )));
+    }
+    let studentized = match &h.statistic {
+        Some(s) => {
+            ctx.one_of(s, &key("statistic"), &["t", "estimate"])?;
+            s.get_ref() == "t"
+        }
+        None => true,
+    };
+    Ok(Method::Randomization { studentized })
+}
+
+/// `inference = "wild-bootstrap"`: the specification fits the wild cluster bootstrap and, for
+/// 2SLS, the term is the endogenous coefficient.
+fn wild_bootstrap(
+    ctx: &Ctx,
+    h: &RawHypothesis,
+    spec: &Spec,
+    plan: &Plan,
+    at: &Spanned<String>,
+) -> Result<Method> {
+    let key = |k: &str| format!("hypothesis[{}].{k}", h.id.get_ref());
+    wild_bootstrap_fits(ctx, plan, spec, at, &key("inference"))?;
+    if spec.estimator.is_iv() && !spec.endogenous.contains(h.term.get_ref()) {
+        return Err(ctx.at(at, key("inference"), format!(
+            "the wild restricted efficient bootstrap tests the endogenous coefficient `{}` of a 2SLS specification; use model inference for `{}`",
+            spec.endogenous.join("`, `"), h.term.get_ref()
+        )));
+    }
+    let webb = match &h.weights {
+        Some(w) => {
+            ctx.one_of(w, &key("weights"), &["rademacher", "webb"])?;
+            w.get_ref() == "webb"
+        }
+        None => false,
+    };
+    Ok(Method::WildBootstrap { webb })
 }
 
 /// A Romano–Wolf family needs every member resampled the same way.

@@ -4,7 +4,7 @@
 use super::scope::{find_spec, spec_terms, unique, unknown, wild_bootstrap_fits, Ctx};
 use crate::error::Result;
 use crate::plan::raw::{RawContingency, RawPlan};
-use crate::plan::{Action, Contingency, Errors, Estimator, Plan, Resampling, Trigger};
+use crate::plan::{Action, Contingency, Errors, Estimator, Plan, Resampling, Spec, Trigger};
 use std::collections::BTreeSet;
 use toml::Spanned;
 
@@ -46,95 +46,10 @@ fn contingency(ctx: &Ctx, c: &RawContingency, plan: &Plan) -> Result<Contingency
     let key = |k: &str| format!("contingency[{id}].{k}");
     let spec = find_spec(ctx, plan, &c.specification, &key("specification"))?;
     let trigger = trigger(ctx, &c.when, &key("when"))?;
-    let then = c.then.get_ref();
     let action = match &trigger {
-        Trigger::WeakInstruments { .. } => {
-            if !spec.estimator.is_iv() {
-                return Err(ctx.at(&c.specification, key("specification"), format!(
-                    "a weak-instrument rule needs an instrumental-variable specification; `{}` is estimated by {}",
-                    spec.id, spec.estimator.name()
-                )));
-            }
-            if spec.endogenous.len() != 1 {
-                return Err(ctx.at(&c.specification, key("specification"), format!(
-                    "the effective first-stage F is defined for one endogenous regressor; `{}` has {}",
-                    spec.id, spec.endogenous.len()
-                )));
-            }
-            ctx.one_of(&c.then, &key("then"), &WEAK_ACTIONS)?;
-            match then.as_str() {
-                "anderson-rubin" => Action::AndersonRubin,
-                "liml" => {
-                    if spec.estimator != Estimator::Tsls {
-                        return Err(ctx.at(&c.then, key("then"), format!(
-                            "specification `{}` is already estimated by {}; then = \"liml\" replaces 2SLS only",
-                            spec.id, spec.estimator.name()
-                        )));
-                    }
-                    Action::Liml
-                }
-                _ => {
-                    if spec.estimator != Estimator::Tsls || spec.instruments.len() != 1 {
-                        return Err(ctx.at(&c.then, key("then"),
-                            "the tF procedure applies to a just-identified 2SLS specification (one endogenous regressor, one instrument); use \"anderson-rubin\" here"));
-                    }
-                    Action::Tf
-                }
-            }
-        }
-        Trigger::Endogeneity { .. } => {
-            if !spec.estimator.is_iv() {
-                return Err(ctx.at(&c.specification, key("specification"), format!(
-                    "an endogeneity rule watches an instrumental-variable specification; `{}` is estimated by {}",
-                    spec.id, spec.estimator.name()
-                )));
-            }
-            let target = find_spec(ctx, plan, &c.then, &key("then"))?;
-            if target.estimator != Estimator::Ols {
-                return Err(ctx.at(&c.then, key("then"), format!(
-                    "then must name an OLS specification to report as primary; `{}` is estimated by {}",
-                    target.id, target.estimator.name()
-                )));
-            }
-            if target.outcome != spec.outcome || target.data != spec.data {
-                return Err(ctx.at(&c.then, key("then"), format!(
-                    "specification `{}` must have the same outcome and data table as `{}` to replace it",
-                    target.id, spec.id
-                )));
-            }
-            let terms: BTreeSet<String> = spec_terms(target).into_iter().collect();
-            if let Some(h) = plan
-                .hypotheses
-                .iter()
-                .find(|h| h.specification == spec.id && !terms.contains(&h.term))
-            {
-                return Err(ctx.at(
-                    &c.then,
-                    key("then"),
-                    format!(
-                        "hypothesis `{}` tests `{}`, which specification `{}` does not estimate",
-                        h.id, h.term, target.id
-                    ),
-                ));
-            }
-            Action::UseSpecification(target.id.clone())
-        }
-        Trigger::Clusters { .. } => {
-            if !matches!(spec.errors, Errors::Cluster(_)) {
-                return Err(ctx.at(
-                    &c.specification,
-                    key("specification"),
-                    format!(
-                        "a cluster-count rule needs clustered errors; `{}` uses {}",
-                        spec.id,
-                        spec.errors.name()
-                    ),
-                ));
-            }
-            ctx.one_of(&c.then, &key("then"), &["wild-bootstrap"])?;
-            wild_bootstrap_fits(ctx, plan, spec, &c.then, &key("then"))?;
-            Action::WildBootstrap
-        }
+        Trigger::WeakInstruments { .. } => weak_action(ctx, c, spec)?,
+        Trigger::Endogeneity { .. } => endogeneity_action(ctx, c, spec, plan)?,
+        Trigger::Clusters { .. } => cluster_action(ctx, c, spec, plan)?,
     };
     Ok(Contingency {
         id,
@@ -143,6 +58,119 @@ fn contingency(ctx: &Ctx, c: &RawContingency, plan: &Plan) -> Result<Contingency
         trigger,
         action,
     })
+}
+
+/// The action of a weak-instrument rule: the specification is IV with one endogenous regressor
+/// and the action fits its estimator.
+fn weak_action(ctx: &Ctx, c: &RawContingency, spec: &Spec) -> Result<Action> {
+    let key = |k: &str| format!("contingency[{}].{k}", c.id.get_ref());
+    let then = c.then.get_ref();
+    if !spec.estimator.is_iv() {
+        return Err(ctx.at(&c.specification, key("specification"), format!(
+            "a weak-instrument rule needs an instrumental-variable specification; `{}` is estimated by {}",
+            spec.id, spec.estimator.name()
+        )));
+    }
+    if spec.endogenous.len() != 1 {
+        return Err(ctx.at(
+            &c.specification,
+            key("specification"),
+            format!(
+                "the effective first-stage F is defined for one endogenous regressor; `{}` has {}",
+                spec.id,
+                spec.endogenous.len()
+            ),
+        ));
+    }
+    ctx.one_of(&c.then, &key("then"), &WEAK_ACTIONS)?;
+    Ok(match then.as_str() {
+        "anderson-rubin" => Action::AndersonRubin,
+        "liml" => {
+            if spec.estimator != Estimator::Tsls {
+                return Err(ctx.at(&c.then, key("then"), format!(
+                    "specification `{}` is already estimated by {}; then = \"liml\" replaces 2SLS only",
+                    spec.id, spec.estimator.name()
+                )));
+            }
+            Action::Liml
+        }
+        _ => {
+            if spec.estimator != Estimator::Tsls || spec.instruments.len() != 1 {
+                return Err(ctx.at(&c.then, key("then"),
+                    "the tF procedure applies to a just-identified 2SLS specification (one endogenous regressor, one instrument); use \"anderson-rubin\" here"));
+            }
+            Action::Tf
+        }
+    })
+}
+
+/// The action of an endogeneity rule: an OLS specification with the same outcome and data that
+/// estimates every term the watched specification's hypotheses test.
+fn endogeneity_action(ctx: &Ctx, c: &RawContingency, spec: &Spec, plan: &Plan) -> Result<Action> {
+    let key = |k: &str| format!("contingency[{}].{k}", c.id.get_ref());
+    if !spec.estimator.is_iv() {
+        return Err(ctx.at(&c.specification, key("specification"), format!(
+            "an endogeneity rule watches an instrumental-variable specification; `{}` is estimated by {}",
+            spec.id, spec.estimator.name()
+        )));
+    }
+    let target = find_spec(ctx, plan, &c.then, &key("then"))?;
+    if target.estimator != Estimator::Ols {
+        return Err(ctx.at(
+            &c.then,
+            key("then"),
+            format!(
+                "then must name an OLS specification to report as primary; `{}` is estimated by {}",
+                target.id,
+                target.estimator.name()
+            ),
+        ));
+    }
+    if target.outcome != spec.outcome || target.data != spec.data {
+        return Err(ctx.at(
+            &c.then,
+            key("then"),
+            format!(
+            "specification `{}` must have the same outcome and data table as `{}` to replace it",
+            target.id, spec.id
+        ),
+        ));
+    }
+    let terms: BTreeSet<String> = spec_terms(target).into_iter().collect();
+    if let Some(h) = plan
+        .hypotheses
+        .iter()
+        .find(|h| h.specification == spec.id && !terms.contains(&h.term))
+    {
+        return Err(ctx.at(
+            &c.then,
+            key("then"),
+            format!(
+                "hypothesis `{}` tests `{}`, which specification `{}` does not estimate",
+                h.id, h.term, target.id
+            ),
+        ));
+    }
+    Ok(Action::UseSpecification(target.id.clone()))
+}
+
+/// The action of a cluster-count rule: the wild cluster bootstrap, on clustered errors.
+fn cluster_action(ctx: &Ctx, c: &RawContingency, spec: &Spec, plan: &Plan) -> Result<Action> {
+    let key = |k: &str| format!("contingency[{}].{k}", c.id.get_ref());
+    if !matches!(spec.errors, Errors::Cluster(_)) {
+        return Err(ctx.at(
+            &c.specification,
+            key("specification"),
+            format!(
+                "a cluster-count rule needs clustered errors; `{}` uses {}",
+                spec.id,
+                spec.errors.name()
+            ),
+        ));
+    }
+    ctx.one_of(&c.then, &key("then"), &["wild-bootstrap"])?;
+    wild_bootstrap_fits(ctx, plan, spec, &c.then, &key("then"))?;
+    Ok(Action::WildBootstrap)
 }
 
 fn trigger(ctx: &Ctx, when: &Spanned<toml::Value>, key: &str) -> Result<Trigger> {

@@ -84,35 +84,7 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
     let id = s.id.get_ref().clone();
     let key = |k: &str| format!("specification[{id}].{k}");
     let table = data_table(ctx, plan, s.data.as_ref(), &s.id, &key("data"))?;
-    ctx.one_of(
-        &s.estimator,
-        &key("estimator"),
-        &["ols", "2sls", "liml", "fuller"],
-    )?;
-    let estimator = match s.estimator.get_ref().as_str() {
-        "ols" => Estimator::Ols,
-        "liml" => Estimator::Liml,
-        "fuller" => Estimator::Fuller,
-        _ => Estimator::Tsls,
-    };
-    let fuller_k = match &s.fuller_k {
-        Some(k) if estimator != Estimator::Fuller => {
-            return Err(ctx.at(
-                k,
-                key("fuller_k"),
-                "fuller_k belongs to estimator = \"fuller\"",
-            ))
-        }
-        Some(k) if !(k.get_ref().is_finite() && *k.get_ref() > 0.0) => {
-            return Err(ctx.at(
-                k,
-                key("fuller_k"),
-                "fuller_k must be a positive number (1 is the usual choice, 4 minimises mean squared error)",
-            ))
-        }
-        Some(k) => *k.get_ref(),
-        None => 1.0,
-    };
+    let (estimator, fuller_k) = estimator(ctx, s, &key)?;
     let worst_case_bias = match &s.worst_case_bias {
         Some(b) => ctx.unit_open(b, &key("worst_case_bias"))?,
         None => 0.10,
@@ -167,6 +139,40 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
     };
     check_shape(ctx, s, &spec)?;
     Ok(spec)
+}
+
+/// The estimator and Fuller's constant (1 unless stated; stated only for Fuller).
+fn estimator(ctx: &Ctx, s: &RawSpec, key: &dyn Fn(&str) -> String) -> Result<(Estimator, f64)> {
+    ctx.one_of(
+        &s.estimator,
+        &key("estimator"),
+        &["ols", "2sls", "liml", "fuller"],
+    )?;
+    let estimator = match s.estimator.get_ref().as_str() {
+        "ols" => Estimator::Ols,
+        "liml" => Estimator::Liml,
+        "fuller" => Estimator::Fuller,
+        _ => Estimator::Tsls,
+    };
+    let fuller_k = match &s.fuller_k {
+        Some(k) if estimator != Estimator::Fuller => {
+            return Err(ctx.at(
+                k,
+                key("fuller_k"),
+                "fuller_k belongs to estimator = \"fuller\"",
+            ))
+        }
+        Some(k) if !(k.get_ref().is_finite() && *k.get_ref() > 0.0) => {
+            return Err(ctx.at(
+                k,
+                key("fuller_k"),
+                "fuller_k must be a positive number (1 is the usual choice, 4 minimises mean squared error)",
+            ))
+        }
+        Some(k) => *k.get_ref(),
+        None => 1.0,
+    };
+    Ok((estimator, fuller_k))
 }
 
 fn sample(
