@@ -168,23 +168,11 @@ fn group_index(values: &Labels, rows: &[usize]) -> (Vec<usize>, usize) {
 /// Build the design of `spec` from `table`.
 pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
     let (n_sample, mut rows) = kept_rows(table, spec)?;
-    let mut singletons = 0;
     let mut groups = Vec::new();
     for fe in &spec.fixed_effects {
         groups.push(labels(table, fe, spec)?);
     }
-    if !groups.is_empty() {
-        let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, &rows).0).collect();
-        let keep = crate::estimate::drop_singletons(&ids);
-        let before = rows.len();
-        rows = rows
-            .iter()
-            .zip(&keep)
-            .filter(|(_, k)| **k)
-            .map(|(r, _)| *r)
-            .collect();
-        singletons = before - rows.len();
-    }
+    let singletons = drop_singleton_rows(&groups, &mut rows);
     let n = rows.len();
     let outcome = column(table, &spec.outcome, spec)?;
     let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
@@ -228,17 +216,7 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         sweep(&mut instruments, &spec.instruments)?;
         sweep(&mut controls, &spec.controls)?;
     }
-    let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
-    let mut exog_names = Vec::new();
-    let exog = if with_intercept {
-        exog_names.push("intercept".to_string());
-        let mut m = DMatrix::from_element(n, 1 + controls.ncols(), 1.0);
-        m.columns_mut(1, controls.ncols()).copy_from(&controls);
-        m
-    } else {
-        controls
-    };
-    exog_names.extend(spec.controls.iter().cloned());
+    let (exog, exog_names) = exogenous(spec, controls, n);
     Ok(Design {
         n_table: table.rows,
         n_sample,
@@ -259,6 +237,42 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         absorbed_columns,
         has_constant: spec.intercept || !spec.fixed_effects.is_empty(),
     })
+}
+
+/// Drops, from `rows`, the rows alone in their level of any fixed effect (`groups`, one
+/// label column per fixed effect), repeatedly (`estimate::drop_singletons`); returns how
+/// many were dropped.
+fn drop_singleton_rows(groups: &[&Labels], rows: &mut Vec<usize>) -> usize {
+    if groups.is_empty() {
+        return 0;
+    }
+    let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, rows).0).collect();
+    let keep = crate::estimate::drop_singletons(&ids);
+    let before = rows.len();
+    *rows = rows
+        .iter()
+        .zip(&keep)
+        .filter(|(_, k)| **k)
+        .map(|(r, _)| *r)
+        .collect();
+    before - rows.len()
+}
+
+/// The included exogenous block and its names: the intercept (when asked for and not
+/// absorbed by fixed effects), then the controls.
+fn exogenous(spec: &Spec, controls: DMatrix<f64>, n: usize) -> (DMatrix<f64>, Vec<String>) {
+    let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
+    let mut exog_names = Vec::new();
+    let exog = if with_intercept {
+        exog_names.push("intercept".to_string());
+        let mut m = DMatrix::from_element(n, 1 + controls.ncols(), 1.0);
+        m.columns_mut(1, controls.ncols()).copy_from(&controls);
+        m
+    } else {
+        controls
+    };
+    exog_names.extend(spec.controls.iter().cloned());
+    (exog, exog_names)
 }
 
 fn sweep_error(spec: &Spec, e: &crate::estimate::EstimateError) -> Error {

@@ -5,6 +5,7 @@
 //! numeric columns (declared numeric kinds and derived variables) are `f64` with `None` for
 //! missing; grouping columns (category, id, integer, binary) are also available as labels.
 
+mod cells;
 mod design;
 pub mod dialect;
 mod labels;

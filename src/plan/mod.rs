@@ -1,3 +1,6 @@
+// Over 500 lines because it holds the validated plan's plain data types, one per plan section
+// with every field documented, read together as the shape of a plan; no logic hangs off them
+// beyond small naming helpers. The logic lives in `raw.rs` and `validate/`.
 //! The analysis plan: TOML text → raw structs ([`raw`]) → a validated [`Plan`].
 //!
 //! Invariants of a [`Plan`]: every name it uses (columns, derived variables, data tables,

@@ -76,8 +76,26 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         Some(v) => *v.get_ref() as usize,
         None => 4,
     };
+    let generators = generators(ctx, plan, spanned)?;
+    Ok(Some(Rehearsal {
+        replications,
+        seed: *r.seed.get_ref() as u64,
+        target_power,
+        effects,
+        resampling_draws,
+        mde_steps,
+        generators,
+    }))
+}
+
+/// One data-generating process per data table, each named by a table of the plan.
+fn generators(
+    ctx: &Ctx,
+    plan: &Plan,
+    spanned: &Spanned<RawRehearsal>,
+) -> Result<BTreeMap<String, Generator>> {
     let mut generators = BTreeMap::new();
-    for (id, g) in &r.data {
+    for (id, g) in &spanned.get_ref().data {
         let key = format!("rehearsal.data.{}", id.get_ref());
         let Some(src) = plan.data.get(id.get_ref()) else {
             return Err(ctx.at(
@@ -99,15 +117,7 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
             format!("[data.{missing}] has no data-generating process; add [rehearsal.data.{missing}] with rows and columns"),
         ));
     }
-    Ok(Some(Rehearsal {
-        replications,
-        seed: *r.seed.get_ref() as u64,
-        target_power,
-        effects,
-        resampling_draws,
-        mde_steps,
-        generators,
-    }))
+    Ok(generators)
 }
 
 /// The effect sizes: finite, non-negative, strictly increasing; 0 added in front.

@@ -1,3 +1,4 @@
+// Over 500 lines because it is one table of cases, one per user-facing validation message.
 //! One test per user-facing plan validation message: each case edits a valid base plan at an
 //! anchor (the test fails if the anchor is missing, so a drifting base plan cannot make a case
 //! pass silently) and expects the error to name the key and say the fix.
