@@ -69,19 +69,7 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
     let key = |k: &str| format!("data.{}.{k}", id.get_ref());
     let path_text = d.path.get_ref().clone();
     let path = base.join(&path_text);
-    let format = match &d.format {
-        Some(f) => {
-            ctx.one_of(f, &key("format"), &["csv", "parquet"])?;
-            if f.get_ref() == "csv" { DataFormat::Csv } else { DataFormat::Parquet }
-        }
-        None => match path.extension().and_then(|e| e.to_str()).map(str::to_lowercase).as_deref() {
-            Some("csv") => DataFormat::Csv,
-            Some("parquet") | Some("pq") => DataFormat::Parquet,
-            _ => return Err(ctx.at(&d.path, key("path"), format!(
-                "cannot tell the format of `{path_text}` from its extension; add format = \"csv\" or \"parquet\""
-            ))),
-        },
-    };
+    let format = data_format(ctx, d, &path, &key)?;
     let mut columns = BTreeMap::new();
     for (name, c) in &d.columns {
         columns.insert(
@@ -89,16 +77,7 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
             column(ctx, name, c, &key("columns"))?,
         );
     }
-    let (rows_min, rows_max) = match &d.rows {
-        Some(r) => {
-            let (lo, hi) = (r.get_ref().min, r.get_ref().max);
-            if lo.zip(hi).is_some_and(|(lo, hi)| lo > hi) || lo.is_some_and(|v| v < 0) {
-                return Err(ctx.at(r, key("rows"), "rows needs 0 <= min <= max"));
-            }
-            (lo, hi)
-        }
-        None => (None, None),
-    };
+    let (rows_min, rows_max) = row_bounds(ctx, d, &key)?;
     let declared = |v: &Option<Spanned<String>>, k: &str| -> Result<Option<String>> {
         let Some(v) = v else { return Ok(None) };
         if !columns.contains_key(v.get_ref()) {
@@ -137,6 +116,47 @@ fn data_source(ctx: &Ctx, id: &Spanned<String>, d: &RawData, base: &Path) -> Res
         decimal_comma: dialect.decimal_comma,
         missing: dialect.missing,
         columns,
+    })
+}
+
+/// A table's format: stated, or read off the path's extension.
+fn data_format(
+    ctx: &Ctx,
+    d: &RawData,
+    path: &Path,
+    key: &dyn Fn(&str) -> String,
+) -> Result<DataFormat> {
+    let path_text = d.path.get_ref();
+    Ok(match &d.format {
+        Some(f) => {
+            ctx.one_of(f, &key("format"), &["csv", "parquet"])?;
+            if f.get_ref() == "csv" { DataFormat::Csv } else { DataFormat::Parquet }
+        }
+        None => match path.extension().and_then(|e| e.to_str()).map(str::to_lowercase).as_deref() {
+            Some("csv") => DataFormat::Csv,
+            Some("parquet") | Some("pq") => DataFormat::Parquet,
+            _ => return Err(ctx.at(&d.path, key("path"), format!(
+                "cannot tell the format of `{path_text}` from its extension; add format = \"csv\" or \"parquet\""
+            ))),
+        },
+    })
+}
+
+/// A table's `rows = { min, max }` bounds, when stated.
+fn row_bounds(
+    ctx: &Ctx,
+    d: &RawData,
+    key: &dyn Fn(&str) -> String,
+) -> Result<(Option<i64>, Option<i64>)> {
+    Ok(match &d.rows {
+        Some(r) => {
+            let (lo, hi) = (r.get_ref().min, r.get_ref().max);
+            if lo.zip(hi).is_some_and(|(lo, hi)| lo > hi) || lo.is_some_and(|v| v < 0) {
+                return Err(ctx.at(r, key("rows"), "rows needs 0 <= min <= max"));
+            }
+            (lo, hi)
+        }
+        None => (None, None),
     })
 }
 

@@ -283,6 +283,14 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
             }
         }
     }
+    one_role_each(ctx, s, spec)?;
+    leverage_errors(ctx, s, spec)
+}
+
+/// Each term plays one role: not the outcome, not listed twice, not in two lists; and the
+/// specification has at least one term.
+fn one_role_each(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
+    let key = |k: &str| format!("specification[{}].{k}", spec.id);
     let mut seen = BTreeMap::new();
     let listed = |list: &'static str| s_list(s, list).iter().map(move |v| (list, v));
     let all = listed("endogenous")
@@ -322,7 +330,7 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
             "the specification has no terms at all",
         ));
     }
-    leverage_errors(ctx, s, spec)
+    Ok(())
 }
 
 /// HC2 and HC3 weight residuals by leverage: fixed by the literature for OLS only, and

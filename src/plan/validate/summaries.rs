@@ -115,26 +115,7 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
                 "a summary index needs at least two components",
             ));
         }
-        let mut components = Vec::new();
-        let mut seen = BTreeSet::new();
-        for c in &i.components {
-            let (flip, name) = match c.get_ref().strip_prefix('-') {
-                Some(rest) => (true, rest.trim().to_string()),
-                None => (false, c.get_ref().clone()),
-            };
-            let named = Spanned::new(c.span(), name);
-            let name = name_in(
-                ctx,
-                &named,
-                &names,
-                &key("components"),
-                "among the index's components",
-            )?;
-            if !seen.insert(name.clone()) {
-                return Err(ctx.at(c, key("components"), format!("`{name}` is listed twice")));
-            }
-            components.push((name, flip));
-        }
+        let components = components(ctx, &i.components, &names, &key("components"))?;
         let reference = expression(ctx, &i.reference, &names, t, &key("reference"))?;
         let complete_cases = match &i.missing {
             Some(m) => {
@@ -153,6 +134,31 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
         });
     }
     Ok(out)
+}
+
+/// An index's components, each a variable of its table, `-name` flipping its sign; no name
+/// twice.
+fn components(
+    ctx: &Ctx,
+    listed: &[Spanned<String>],
+    names: &BTreeSet<String>,
+    key: &str,
+) -> Result<Vec<(String, bool)>> {
+    let mut components = Vec::new();
+    let mut seen = BTreeSet::new();
+    for c in listed {
+        let (flip, name) = match c.get_ref().strip_prefix('-') {
+            Some(rest) => (true, rest.trim().to_string()),
+            None => (false, c.get_ref().clone()),
+        };
+        let named = Spanned::new(c.span(), name);
+        let name = name_in(ctx, &named, names, key, "among the index's components")?;
+        if !seen.insert(name.clone()) {
+            return Err(ctx.at(c, key, format!("`{name}` is listed twice")));
+        }
+        components.push((name, flip));
+    }
+    Ok(components)
 }
 
 /// `[balance]`.
