@@ -176,41 +176,7 @@ pub fn read_baseline(
         let Some(raw) = raw_values(&file, &frame, name, numeric)? else {
             continue;
         };
-        let values = match raw {
-            RawValues::Text(v) => {
-                let mut codes: BTreeMap<String, f64> = BTreeMap::new();
-                v.into_iter()
-                    .map(|s| {
-                        s.map(|s| {
-                            let next = codes.len() as f64 + 1.0;
-                            *codes.entry(s).or_insert(next)
-                        })
-                    })
-                    .collect()
-            }
-            numbers => to_numbers(&file, name, numbers)?,
-        };
-        let bad = |x: f64| match kind {
-            Some(ColumnKind::Binary) => x != 0.0 && x != 1.0,
-            Some(ColumnKind::Integer) => x.fract() != 0.0,
-            _ => false,
-        };
-        if let Some((i, x)) = values
-            .iter()
-            .enumerate()
-            .find_map(|(i, x)| x.filter(|x| bad(*x)).map(|x| (i, x)))
-        {
-            return Err(data_err(
-                &file,
-                format!(
-                    "column `{name}` is declared {} in [data.{}] but {} holds {x}; correct the baseline file or the declared kind",
-                    kind.map_or("number", ColumnKind::name),
-                    src.id,
-                    row_place(&file, i)
-                ),
-            ));
-        }
-        columns.insert(name.clone(), values);
+        columns.insert(name.clone(), baseline_values(&file, src, name, raw)?);
     }
     Ok(BaselineColumns {
         sha256,
@@ -218,6 +184,53 @@ pub fn read_baseline(
         header,
         columns,
     })
+}
+
+/// One column of a baseline file as numbers: text coded 1, 2, … in order of first
+/// appearance, numbers as read; a value its declared kind forbids (binary, integer) is an
+/// error naming its row.
+fn baseline_values(
+    file: &DataSource,
+    src: &DataSource,
+    name: &str,
+    raw: RawValues,
+) -> Result<Vec<Option<f64>>> {
+    let kind = src.columns.get(name).map(|c| c.kind);
+    let values = match raw {
+        RawValues::Text(v) => {
+            let mut codes: BTreeMap<String, f64> = BTreeMap::new();
+            v.into_iter()
+                .map(|s| {
+                    s.map(|s| {
+                        let next = codes.len() as f64 + 1.0;
+                        *codes.entry(s).or_insert(next)
+                    })
+                })
+                .collect()
+        }
+        numbers => to_numbers(file, name, numbers)?,
+    };
+    let bad = |x: f64| match kind {
+        Some(ColumnKind::Binary) => x != 0.0 && x != 1.0,
+        Some(ColumnKind::Integer) => x.fract() != 0.0,
+        _ => false,
+    };
+    if let Some((i, x)) = values
+        .iter()
+        .enumerate()
+        .find_map(|(i, x)| x.filter(|x| bad(*x)).map(|x| (i, x)))
+    {
+        return Err(data_err(
+            file,
+            format!(
+                "column `{name}` is declared {} in [data.{}] but {} holds {x}; correct the baseline file or the declared kind",
+                kind.map_or("number", ColumnKind::name),
+                src.id,
+                row_place(file, i)
+            ),
+        ));
+    }
+    Ok(values)
 }
 
 /// A table from columns held in memory (a rehearsal's simulated data) rather than a file.

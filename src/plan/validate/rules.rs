@@ -208,10 +208,22 @@ fn trigger(ctx: &Ctx, when: &Spanned<toml::Value>, key: &str) -> Result<Trigger>
                 format!("trigger `{name}` takes exactly one key, `{field}`: {name} = {{ {field} = ... }}"),
             )
         })?;
+    threshold(ctx, when, key, name, value)
+}
+
+/// The trigger `name` with its threshold `value`, which must be possible: a positive F, a
+/// level strictly between 0 and 1, or a whole number of at least 3 clusters.
+fn threshold(
+    ctx: &Ctx,
+    when: &Spanned<toml::Value>,
+    key: &str,
+    name: &str,
+    value: &toml::Value,
+) -> Result<Trigger> {
     let number = value
         .as_float()
         .or_else(|| value.as_integer().map(|i| i as f64));
-    match (name.as_str(), number) {
+    match (name, number) {
         ("weak_instruments", Some(f)) if f.is_finite() && f > 0.0 => {
             Ok(Trigger::WeakInstruments { below: f })
         }

@@ -173,7 +173,7 @@ fn dialect(
     key: &dyn Fn(&str) -> String,
     format: DataFormat,
 ) -> Result<Dialect> {
-    use crate::data::dialect::{DEFAULT_MISSING, SEPARATORS};
+    use crate::data::dialect::DEFAULT_MISSING;
     if format == DataFormat::Parquet {
         for (k, v) in [("separator", &d.separator), ("decimal", &d.decimal)] {
             if let Some(v) = v {
@@ -183,27 +183,7 @@ fn dialect(
             }
         }
     }
-    let separator = match &d.separator {
-        None => b',',
-        Some(v) => match SEPARATORS.iter().find(|(text, _, _)| *text == v.get_ref()) {
-            Some((_, byte, _)) => *byte,
-            None => {
-                let list: Vec<String> = SEPARATORS
-                    .iter()
-                    .map(|(_, _, shown)| shown.to_string())
-                    .collect();
-                return Err(ctx.at(
-                    v,
-                    key("separator"),
-                    format!(
-                        "`{}` is not a separator sworn reads; use one of {}",
-                        v.get_ref().chars().take(20).collect::<String>(),
-                        list.join(", ")
-                    ),
-                ));
-            }
-        },
-    };
+    let separator = separator(ctx, d, key)?;
     let decimal_comma = match &d.decimal {
         None => false,
         Some(v) => {
@@ -231,6 +211,32 @@ fn dialect(
         separator,
         decimal_comma,
         missing,
+    })
+}
+
+/// The CSV field separator: a comma unless one of `dialect::SEPARATORS` is stated.
+fn separator(ctx: &Ctx, d: &RawData, key: &dyn Fn(&str) -> String) -> Result<u8> {
+    use crate::data::dialect::SEPARATORS;
+    Ok(match &d.separator {
+        None => b',',
+        Some(v) => match SEPARATORS.iter().find(|(text, _, _)| *text == v.get_ref()) {
+            Some((_, byte, _)) => *byte,
+            None => {
+                let list: Vec<String> = SEPARATORS
+                    .iter()
+                    .map(|(_, _, shown)| shown.to_string())
+                    .collect();
+                return Err(ctx.at(
+                    v,
+                    key("separator"),
+                    format!(
+                        "`{}` is not a separator sworn reads; use one of {}",
+                        v.get_ref().chars().take(20).collect::<String>(),
+                        list.join(", ")
+                    ),
+                ));
+            }
+        },
     })
 }
 
