@@ -306,14 +306,7 @@ fn generated_column(
         ));
     }
     let e = expr::parse_random(text.get_ref()).map_err(|e| expr_error(ctx, text, &ckey, &e))?;
-    let uses_assigned = e.draws().contains(&Draw::Assigned);
-    let assigned_here = plan.assignment.as_ref().is_some_and(|a| &a.variable == n);
-    if uses_assigned && !assigned_here {
-        return Err(ctx.at(text, ckey, match &plan.assignment {
-            Some(a) => format!("`assigned(share)` draws the variable [assignment] randomizes, `{}`; use bernoulli(p) here", a.variable),
-            None => "`assigned(share)` needs an [assignment] section saying how the treatment is randomized; declare one, or use bernoulli(p)".to_string(),
-        }));
-    }
+    assigned_only_where_randomized(ctx, plan, n, text, &ckey, &e)?;
     let (line, column) = ctx.map.position(text.span().start + 1);
     Ok(GeneratedColumn {
         name: n.clone(),
@@ -323,6 +316,29 @@ fn generated_column(
         latent,
         place: (line, column),
     })
+}
+
+/// `assigned(share)` draws only the column `[assignment]` randomizes (`column`).
+fn assigned_only_where_randomized(
+    ctx: &Ctx,
+    plan: &Plan,
+    column: &str,
+    text: &Spanned<String>,
+    ckey: &str,
+    e: &expr::Expr,
+) -> Result<()> {
+    let uses_assigned = e.draws().contains(&Draw::Assigned);
+    let assigned_here = plan
+        .assignment
+        .as_ref()
+        .is_some_and(|a| a.variable == column);
+    if uses_assigned && !assigned_here {
+        return Err(ctx.at(text, ckey.to_string(), match &plan.assignment {
+            Some(a) => format!("`assigned(share)` draws the variable [assignment] randomizes, `{}`; use bernoulli(p) here", a.variable),
+            None => "`assigned(share)` needs an [assignment] section saying how the treatment is randomized; declare one, or use bernoulli(p)".to_string(),
+        }));
+    }
+    Ok(())
 }
 
 /// What column `c` needs before it: the names it uses, and for `assigned` the design's
