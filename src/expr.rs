@@ -49,6 +49,7 @@ mod display;
 mod draw;
 mod eval;
 mod lexer;
+mod node;
 mod parse_error;
 mod parser;
 

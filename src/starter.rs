@@ -1,3 +1,6 @@
+// Over 500 lines (about 520 of code, the rest tests) because it is one command end to end:
+// profile each file's columns, then write the starter plan from those profiles; the two halves
+// share the profile types and nothing else uses them.
 //! `sworn init DATA…`: a starter plan whose declared schema is inferred from data files.
 //!
 //! The starter plan declares every column with the kind its values suggest and records what

@@ -34,45 +34,21 @@ fn comparison(r: &BalanceRow) -> ArmComparison {
     }
 }
 
-/// The covariance for `errors` on `rows` of `table` (cluster ids densified).
+/// The covariance for `errors` on `rows` of `table` (cluster ids densified; see
+/// [`crate::data::cov_spec`]).
 fn cov_for(errors: &Errors, table: &Table, rows: &[usize], what: &str) -> Result<CovSpec> {
-    Ok(match errors {
-        Errors::Classical => CovSpec::Classical,
-        Errors::Hc0 => CovSpec::Hc0,
-        Errors::Hc1 => CovSpec::Hc1,
-        Errors::Hc2 => CovSpec::Hc2,
-        Errors::Hc3 => CovSpec::Hc3,
-        Errors::Hac { .. } => {
-            return Err(err(
+    let mut dims = Vec::new();
+    for b in errors.cluster_columns() {
+        let ids = table.label_ids(b, rows).map_err(|e| match e {
+            LabelIdsError::NoColumn => err(what, format!("cluster column `{b}` is not available")),
+            LabelIdsError::Missing => err(
                 what,
-                "hac errors are offered for specifications only".to_string(),
-            ))
-        }
-        Errors::Cluster(by) => {
-            let mut dims = Vec::new();
-            for b in by {
-                let ids = table.label_ids(b, rows).map_err(|e| match e {
-                    LabelIdsError::NoColumn => {
-                        err(what, format!("cluster column `{b}` is not available"))
-                    }
-                    LabelIdsError::Missing => err(
-                        what,
-                        format!("cluster column `{b}` is missing in a used row"),
-                    ),
-                })?;
-                dims.push(ids);
-            }
-            match dims.len() {
-                1 => CovSpec::Cluster {
-                    ids: dims.remove(0),
-                },
-                _ => CovSpec::TwoWay {
-                    second: dims.remove(1),
-                    first: dims.remove(0),
-                },
-            }
-        }
-    })
+                format!("cluster column `{b}` is missing in a used row"),
+            ),
+        })?;
+        dims.push(ids);
+    }
+    crate::data::cov_spec(errors, dims).map_err(|gap| err(what, gap.to_string()))
 }
 
 /// Rows where the cluster columns of `errors` are present.

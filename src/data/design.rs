@@ -13,7 +13,7 @@
 
 use super::{Labels, Table};
 use crate::error::{Error, Result};
-use crate::estimate::{Absorbed, FixedEffects};
+use crate::estimate::{Absorbed, CovSpec, FixedEffects};
 use crate::plan::{Errors, Spec};
 use nalgebra::{DMatrix, DVector};
 use std::collections::BTreeMap;
@@ -133,9 +133,7 @@ fn used_numeric(spec: &Spec) -> Vec<String> {
 
 fn used_groups(spec: &Spec) -> Vec<String> {
     let mut v = spec.fixed_effects.clone();
-    if let Errors::Cluster(by) = &spec.errors {
-        v.extend(by.iter().cloned());
-    }
+    v.extend(spec.errors.cluster_columns().iter().cloned());
     v
 }
 
@@ -170,36 +168,23 @@ fn group_index(values: &Labels, rows: &[usize]) -> (Vec<usize>, usize) {
 /// Build the design of `spec` from `table`.
 pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
     let (n_sample, mut rows) = kept_rows(table, spec)?;
-    let mut singletons = 0;
     let mut groups = Vec::new();
     for fe in &spec.fixed_effects {
         groups.push(labels(table, fe, spec)?);
     }
-    if !groups.is_empty() {
-        let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, &rows).0).collect();
-        let keep = crate::estimate::drop_singletons(&ids);
-        let before = rows.len();
-        rows = rows
-            .iter()
-            .zip(&keep)
-            .filter(|(_, k)| **k)
-            .map(|(r, _)| *r)
-            .collect();
-        singletons = before - rows.len();
-    }
+    let singletons = drop_singleton_rows(&groups, &mut rows);
     let n = rows.len();
     let outcome = column(table, &spec.outcome, spec)?;
     let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
     let mut focal = matrix(table, spec.focal(), &rows, spec)?;
     let mut instruments = matrix(table, &spec.instruments, &rows, spec)?;
     let mut controls = matrix(table, &spec.controls, &rows, spec)?;
-    let clusters = match &spec.errors {
-        Errors::Cluster(by) => by
-            .iter()
-            .map(|b| Ok(group_index(labels(table, b, spec)?, &rows)))
-            .collect::<Result<Vec<_>>>()?,
-        _ => Vec::new(),
-    };
+    let clusters = spec
+        .errors
+        .cluster_columns()
+        .iter()
+        .map(|b| Ok(group_index(labels(table, b, spec)?, &rows)))
+        .collect::<Result<Vec<_>>>()?;
     let mut y = y_raw.clone();
     let mut fixed_effects = Vec::new();
     let mut absorbed = Absorbed::default();
@@ -231,17 +216,7 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         sweep(&mut instruments, &spec.instruments)?;
         sweep(&mut controls, &spec.controls)?;
     }
-    let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
-    let mut exog_names = Vec::new();
-    let exog = if with_intercept {
-        exog_names.push("intercept".to_string());
-        let mut m = DMatrix::from_element(n, 1 + controls.ncols(), 1.0);
-        m.columns_mut(1, controls.ncols()).copy_from(&controls);
-        m
-    } else {
-        controls
-    };
-    exog_names.extend(spec.controls.iter().cloned());
+    let (exog, exog_names) = exogenous(spec, controls, n);
     Ok(Design {
         n_table: table.rows,
         n_sample,
@@ -264,9 +239,98 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
     })
 }
 
+/// Drops, from `rows`, the rows alone in their level of any fixed effect (`groups`, one
+/// label column per fixed effect), repeatedly (`estimate::drop_singletons`); returns how
+/// many were dropped.
+fn drop_singleton_rows(groups: &[&Labels], rows: &mut Vec<usize>) -> usize {
+    if groups.is_empty() {
+        return 0;
+    }
+    let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, rows).0).collect();
+    let keep = crate::estimate::drop_singletons(&ids);
+    let before = rows.len();
+    *rows = rows
+        .iter()
+        .zip(&keep)
+        .filter(|(_, k)| **k)
+        .map(|(r, _)| *r)
+        .collect();
+    before - rows.len()
+}
+
+/// The included exogenous block and its names: the intercept (when asked for and not
+/// absorbed by fixed effects), then the controls.
+fn exogenous(spec: &Spec, controls: DMatrix<f64>, n: usize) -> (DMatrix<f64>, Vec<String>) {
+    let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
+    let mut exog_names = Vec::new();
+    let exog = if with_intercept {
+        exog_names.push("intercept".to_string());
+        let mut m = DMatrix::from_element(n, 1 + controls.ncols(), 1.0);
+        m.columns_mut(1, controls.ncols()).copy_from(&controls);
+        m
+    } else {
+        controls
+    };
+    exog_names.extend(spec.controls.iter().cloned());
+    (exog, exog_names)
+}
+
 fn sweep_error(spec: &Spec, e: &crate::estimate::EstimateError) -> Error {
     Error::Estimation {
         spec: spec.id.clone(),
         message: format!("absorbing the fixed effects failed: {e}"),
     }
+}
+
+/// Why [`cov_spec`] cannot name the covariance estimator from the errors and cluster ids alone.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CovSpecGap {
+    /// HAC errors need the rows' time positions and a bandwidth, which `analysis::hac` builds
+    /// from the table's `order_by` column.
+    TimeOrder,
+    /// The cluster ids given are not one vector per column the errors cluster by.
+    ClusterDimensions,
+}
+
+impl std::fmt::Display for CovSpecGap {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            CovSpecGap::TimeOrder => "hac errors are offered for specifications only",
+            CovSpecGap::ClusterDimensions => {
+                "the cluster ids do not match the columns the errors cluster by"
+            }
+        })
+    }
+}
+
+/// The covariance estimator `errors` asks for: the one place a plan's [`Errors`] become an
+/// [`estimate::CovSpec`](CovSpec). `clusters` holds the dense cluster id of each used row,
+/// one vector per column in [`Errors::cluster_columns`] (empty unless clustered).
+///
+/// # Errors
+/// [`CovSpecGap::TimeOrder`] for HAC errors (built by `analysis::hac`);
+/// [`CovSpecGap::ClusterDimensions`] when `clusters` does not match the columns.
+pub fn cov_spec(
+    errors: &Errors,
+    clusters: Vec<Vec<usize>>,
+) -> std::result::Result<CovSpec, CovSpecGap> {
+    if clusters.len() != errors.cluster_columns().len() {
+        return Err(CovSpecGap::ClusterDimensions);
+    }
+    Ok(match errors {
+        Errors::Classical => CovSpec::Classical,
+        Errors::Hc0 => CovSpec::Hc0,
+        Errors::Hc1 => CovSpec::Hc1,
+        Errors::Hc2 => CovSpec::Hc2,
+        Errors::Hc3 => CovSpec::Hc3,
+        Errors::Hac { .. } => return Err(CovSpecGap::TimeOrder),
+        Errors::Cluster(_) => {
+            let mut dims = clusters.into_iter();
+            match (dims.next(), dims.next()) {
+                (Some(ids), None) => CovSpec::Cluster { ids },
+                (Some(first), Some(second)) => CovSpec::TwoWay { first, second },
+                (None, _) => return Err(CovSpecGap::ClusterDimensions),
+            }
+        }
+    })
 }

@@ -5,13 +5,14 @@
 //! numeric columns (declared numeric kinds and derived variables) are `f64` with `None` for
 //! missing; grouping columns (category, id, integer, binary) are also available as labels.
 
+mod cells;
 mod design;
 pub mod dialect;
 mod labels;
 mod parquet;
 mod read;
 
-pub use design::{design, Design};
+pub use design::{cov_spec, design, CovSpecGap, Design};
 pub use labels::{Labels, TooManyLabels};
 pub(crate) use read::needed_columns;
 pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};

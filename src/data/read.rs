@@ -1,214 +1,16 @@
-//! Reading a table with polars and checking it against the declared schema.
+//! Reading a table with polars and checking it against the declared schema: the columns a
+//! plan needs, the rows in `order_by` order, row counts and keys, derived variables and
+//! indices; baseline files for rehearsals; tables built from simulated columns. The cells
+//! themselves are read in `cells.rs`.
 
-use super::{Labels, Table};
+use super::cells::{
+    data_err, load_column, raw_values, read_frame, row_place, to_labels, to_numbers, RawValues,
+};
+use super::Table;
 use crate::deviation::{Deviation, DeviationCode};
-use crate::error::{Error, Result};
-use crate::plan::{Column, ColumnKind, DataFormat, DataSource, Plan};
-use polars::prelude::*;
+use crate::error::Result;
+use crate::plan::{ColumnKind, DataSource, Plan};
 use std::collections::{BTreeMap, BTreeSet};
-
-/// Raw values of one column: text (CSV, or text columns in Parquet) or numbers.
-enum RawValues {
-    Text(Vec<Option<String>>),
-    Numbers(Vec<Option<f64>>),
-}
-
-fn data_err(src: &DataSource, message: impl Into<String>) -> Error {
-    Error::Data {
-        path: src.path.clone(),
-        message: message.into(),
-    }
-}
-
-/// Reads the file once: CSV is parsed from the bytes in memory while another thread hashes
-/// the same bytes (so the fingerprint is of exactly the bytes parsed, with no second read);
-/// Parquet is read by its checked reader and hashed in blocks. Returns the frame and the
-/// file's SHA-256.
-fn read_frame(src: &DataSource) -> Result<(DataFrame, String)> {
-    if !src.path.exists() {
-        return Err(data_err(src, format!(
-            "the data file of [data.{}] does not exist (path = \"{}\", relative to the plan); check the path",
-            src.id, src.path_text
-        )));
-    }
-    if src.format == DataFormat::Csv {
-        super::dialect::check_separator(&src.path, &src.id, src.separator)
-            .map_err(|m| data_err(src, m))?;
-    }
-    match src.format {
-        DataFormat::Csv => {
-            let bytes = read_bytes(src)?;
-            let (frame, sha256) = std::thread::scope(|scope| {
-                let hash = scope.spawn(|| crate::ledger::sha256_hex(&bytes));
-                let frame = parse_csv(src, &bytes);
-                (frame, hash.join())
-            });
-            let sha256 = sha256.map_err(|_| data_err(src, "hashing the file failed"))?;
-            Ok((frame?, sha256))
-        }
-        DataFormat::Parquet => {
-            let frame = super::parquet::read(&src.path).map_err(|e| data_err(src, e))?;
-            let sha256 = crate::files::sha256_streamed(&src.path, crate::files::Links::Follow)?;
-            Ok((frame, sha256))
-        }
-    }
-}
-
-/// The whole file (a regular file only, never blocking on a FIFO or device).
-fn read_bytes(src: &DataSource) -> Result<Vec<u8>> {
-    use std::io::Read;
-    let mut file = crate::files::open_regular(&src.path, crate::files::Links::Follow)?;
-    let len = file.metadata().map_or(0, |m| m.len());
-    let mut bytes = Vec::with_capacity(usize::try_from(len).unwrap_or(0));
-    file.read_to_end(&mut bytes)
-        .map_err(|e| Error::io(&src.path, "cannot read the data file", e))?;
-    Ok(bytes)
-}
-
-/// Every column as text (numbers are parsed by Rust's correctly rounded parser later).
-fn parse_csv(src: &DataSource, bytes: &[u8]) -> Result<DataFrame> {
-    super::parquet::isolated("reading the file as CSV", || {
-        CsvReadOptions::default()
-            .with_has_header(true)
-            .with_infer_schema_length(Some(0))
-            .with_parse_options(CsvParseOptions::default().with_separator(src.separator))
-            .into_reader_with_file_handle(std::io::Cursor::new(bytes))
-            .finish()
-    })
-    .map_err(|e| {
-        data_err(
-            src,
-            format!(
-                "cannot read the file as CSV: {}",
-                super::dialect::reader_message(&e.to_string(), src.separator)
-            ),
-        )
-    })
-}
-
-/// The values of column `name`, `None` when the file has no such column. A text column
-/// declared numeric (`numeric`) is parsed straight from polars' text, cell by cell, with no
-/// intermediate copy; the first unparsable value is an error naming its place.
-fn raw_values(
-    src: &DataSource,
-    frame: &DataFrame,
-    name: &str,
-    numeric: bool,
-) -> Result<Option<RawValues>> {
-    let Ok(col) = frame.column(name) else {
-        return Ok(None);
-    };
-    let series = col.as_materialized_series();
-    if series.len() != frame.height() {
-        return Err(data_err(
-            src,
-            format!(
-                "column `{name}` holds {} values but the file has {} rows; the file is damaged",
-                series.len(),
-                frame.height()
-            ),
-        ));
-    }
-    let err = |e: PolarsError| data_err(src, format!("column `{name}`: {e}"));
-    if series.dtype().is_primitive_numeric() || series.dtype() == &DataType::Boolean {
-        let cast = series.cast(&DataType::Float64).map_err(err)?;
-        let ca = cast.f64().map_err(err)?;
-        return Ok(Some(RawValues::Numbers(ca.iter().collect())));
-    }
-    let cast = series.cast(&DataType::String).map_err(err)?;
-    let ca = cast.str().map_err(err)?;
-    let cell = |v| present(src, v);
-    if numeric {
-        let values = ca
-            .iter()
-            .enumerate()
-            .map(|(i, v)| match cell(v) {
-                None => Ok(None),
-                Some(s) => super::dialect::parse_number(s, src.decimal_comma)
-                    .map(Some)
-                    .ok_or_else(|| not_a_number(src, name, i, s)),
-            })
-            .collect::<Result<Vec<_>>>()?;
-        return Ok(Some(RawValues::Numbers(values)));
-    }
-    let values = ca.iter().map(|v| cell(v).map(String::from)).collect();
-    Ok(Some(RawValues::Text(values)))
-}
-
-/// A cell's trimmed text, `None` when empty or one of the table's missing codes.
-fn present<'a>(src: &DataSource, v: Option<&'a str>) -> Option<&'a str> {
-    v.map(str::trim)
-        .filter(|s| !s.is_empty() && !src.missing.iter().any(|m| m == s))
-}
-
-/// Where row `i` (0-based, in file order) is, in the user's terms: the file line of a CSV
-/// (the header is line 1) or the row number of a Parquet file.
-fn row_place(src: &DataSource, i: usize) -> String {
-    match src.format {
-        DataFormat::Csv => format!("line {}", i + 2),
-        DataFormat::Parquet => format!("row {}", i + 1),
-    }
-}
-
-/// The error for a value of a numeric column that is not a finite number.
-fn not_a_number(src: &DataSource, name: &str, i: usize, shown: &str) -> Error {
-    data_err(
-        src,
-        format!(
-            "column `{name}` is declared numeric but {} holds `{}`; {}",
-            row_place(src, i),
-            crate::escape::clip(shown, crate::escape::SHOWN),
-            super::dialect::not_a_number_advice(shown, src.decimal_comma, &src.missing)
-        ),
-    )
-}
-
-/// Numbers of a numeric column; the first non-finite value is an error naming its place and
-/// value. NaN and infinities are refused alike from CSV text and Parquet numbers, since
-/// neither is a measurement.
-fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Vec<Option<f64>>> {
-    match raw {
-        RawValues::Numbers(mut v) => {
-            if let Some((i, x)) = v
-                .iter()
-                .enumerate()
-                .find_map(|(i, x)| x.filter(|x| !x.is_finite()).map(|x| (i, x)))
-            {
-                return Err(not_a_number(src, name, i, &format!("{x}")));
-            }
-            v.shrink_to_fit();
-            Ok(v)
-        }
-        RawValues::Text(v) => v
-            .into_iter()
-            .enumerate()
-            .map(|(i, s)| match s {
-                None => Ok(None),
-                Some(s) => super::dialect::parse_number(&s, src.decimal_comma)
-                    .map(Some)
-                    .ok_or_else(|| not_a_number(src, name, i, &s)),
-            })
-            .collect(),
-    }
-}
-
-fn to_labels(src: &DataSource, name: &str, kind: ColumnKind, raw: RawValues) -> Result<Labels> {
-    match raw {
-        RawValues::Text(v) if kind == ColumnKind::Id => Labels::by_row(v),
-        RawValues::Text(v) => Labels::from_text(v),
-        RawValues::Numbers(v) => Labels::from_numbers(&v),
-    }
-    .map_err(|_| too_many_labels(src, name))
-}
-
-fn too_many_labels(src: &DataSource, name: &str) -> Error {
-    data_err(
-        src,
-        format!(
-            "grouping column `{name}` has more than 4,294,967,295 distinct labels; split the file"
-        ),
-    )
-}
 
 /// Declared columns a run needs: those used by specifications (directly or through derived
 /// variables), keys, row orders, clusters and the assignment.
@@ -225,9 +27,7 @@ pub(crate) fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> 
         );
         names.insert(s.outcome.clone());
         names.extend(s.fixed_effects.iter().cloned());
-        if let crate::plan::Errors::Cluster(by) = &s.errors {
-            names.extend(by.iter().cloned());
-        }
+        names.extend(s.errors.cluster_columns().iter().cloned());
         if let Some((_, e)) = &s.sample {
             names.extend(e.names());
         }
@@ -239,17 +39,13 @@ pub(crate) fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> 
     if let Some(b) = plan.balance.as_ref().filter(|b| b.data == src.id) {
         names.insert(b.by.clone());
         names.extend(b.covariates.iter().cloned());
-        if let crate::plan::Errors::Cluster(by) = &b.errors {
-            names.extend(by.iter().cloned());
-        }
+        names.extend(b.errors.cluster_columns().iter().cloned());
     }
     if let Some(a) = plan.attrition.as_ref().filter(|a| a.data == src.id) {
         names.insert(a.by.clone());
         names.extend(a.observed.1.names());
         names.extend(a.bounds.iter().cloned());
-        if let crate::plan::Errors::Cluster(by) = &a.errors {
-            names.extend(by.iter().cloned());
-        }
+        names.extend(a.errors.cluster_columns().iter().cloned());
     }
     if let Some(a) = &plan.assignment {
         names.insert(a.variable.clone());
@@ -380,41 +176,7 @@ pub fn read_baseline(
         let Some(raw) = raw_values(&file, &frame, name, numeric)? else {
             continue;
         };
-        let values = match raw {
-            RawValues::Text(v) => {
-                let mut codes: BTreeMap<String, f64> = BTreeMap::new();
-                v.into_iter()
-                    .map(|s| {
-                        s.map(|s| {
-                            let next = codes.len() as f64 + 1.0;
-                            *codes.entry(s).or_insert(next)
-                        })
-                    })
-                    .collect()
-            }
-            numbers => to_numbers(&file, name, numbers)?,
-        };
-        let bad = |x: f64| match kind {
-            Some(ColumnKind::Binary) => x != 0.0 && x != 1.0,
-            Some(ColumnKind::Integer) => x.fract() != 0.0,
-            _ => false,
-        };
-        if let Some((i, x)) = values
-            .iter()
-            .enumerate()
-            .find_map(|(i, x)| x.filter(|x| bad(*x)).map(|x| (i, x)))
-        {
-            return Err(data_err(
-                &file,
-                format!(
-                    "column `{name}` is declared {} in [data.{}] but {} holds {x}; correct the baseline file or the declared kind",
-                    kind.map_or("number", ColumnKind::name),
-                    src.id,
-                    row_place(&file, i)
-                ),
-            ));
-        }
-        columns.insert(name.clone(), values);
+        columns.insert(name.clone(), baseline_values(&file, src, name, raw)?);
     }
     Ok(BaselineColumns {
         sha256,
@@ -422,6 +184,53 @@ pub fn read_baseline(
         header,
         columns,
     })
+}
+
+/// One column of a baseline file as numbers: text coded 1, 2, … in order of first
+/// appearance, numbers as read; a value its declared kind forbids (binary, integer) is an
+/// error naming its row.
+fn baseline_values(
+    file: &DataSource,
+    src: &DataSource,
+    name: &str,
+    raw: RawValues,
+) -> Result<Vec<Option<f64>>> {
+    let kind = src.columns.get(name).map(|c| c.kind);
+    let values = match raw {
+        RawValues::Text(v) => {
+            let mut codes: BTreeMap<String, f64> = BTreeMap::new();
+            v.into_iter()
+                .map(|s| {
+                    s.map(|s| {
+                        let next = codes.len() as f64 + 1.0;
+                        *codes.entry(s).or_insert(next)
+                    })
+                })
+                .collect()
+        }
+        numbers => to_numbers(file, name, numbers)?,
+    };
+    let bad = |x: f64| match kind {
+        Some(ColumnKind::Binary) => x != 0.0 && x != 1.0,
+        Some(ColumnKind::Integer) => x.fract() != 0.0,
+        _ => false,
+    };
+    if let Some((i, x)) = values
+        .iter()
+        .enumerate()
+        .find_map(|(i, x)| x.filter(|x| bad(*x)).map(|x| (i, x)))
+    {
+        return Err(data_err(
+            file,
+            format!(
+                "column `{name}` is declared {} in [data.{}] but {} holds {x}; correct the baseline file or the declared kind",
+                kind.map_or("number", ColumnKind::name),
+                src.id,
+                row_place(file, i)
+            ),
+        ));
+    }
+    Ok(values)
 }
 
 /// A table from columns held in memory (a rehearsal's simulated data) rather than a file.
@@ -508,66 +317,6 @@ pub fn with_column(
     derive_columns(plan, src, &mut out)?;
     index_columns(plan, src, &mut out)?;
     Ok(out)
-}
-
-fn load_column(
-    src: &DataSource,
-    table: &mut Table,
-    name: &str,
-    col: &Column,
-    raw: RawValues,
-    devs: &mut Vec<Deviation>,
-) -> Result<()> {
-    let subject = format!("{}.{name}", src.id);
-    if !col.kind.is_numeric() {
-        table
-            .labels
-            .insert(name.to_string(), to_labels(src, name, col.kind, raw)?);
-        return Ok(());
-    }
-    let values = to_numbers(src, name, raw)?;
-    let present = || {
-        values
-            .iter()
-            .enumerate()
-            .filter_map(|(i, v)| v.map(|v| (i, v)))
-    };
-    let bad_kind: Vec<(usize, f64)> = match col.kind {
-        ColumnKind::Binary => present().filter(|(_, v)| *v != 0.0 && *v != 1.0).collect(),
-        ColumnKind::Integer => present().filter(|(_, v)| v.fract() != 0.0).collect(),
-        _ => Vec::new(),
-    };
-    if let Some((row, v)) = bad_kind.first() {
-        devs.push(Deviation::new(
-            DeviationCode::ColumnKind,
-            subject.clone(),
-            format!(
-                "column `{name}` is declared {} but {} value(s) are not (first: {}, value {v})",
-                col.kind.name(),
-                bad_kind.len(),
-                row_place(src, *row)
-            ),
-        ));
-    }
-    let outside: Vec<(usize, f64)> = present()
-        .filter(|(_, v)| col.min.is_some_and(|m| *v < m) || col.max.is_some_and(|m| *v > m))
-        .collect();
-    if let Some((row, v)) = outside.first() {
-        devs.push(Deviation::new(DeviationCode::ValueOutOfRange, subject, format!(
-            "{} value(s) of `{name}` lie outside the declared range [{}, {}] (first: {}, value {v})",
-            outside.len(), bound(col.min), bound(col.max), row_place(src, *row)
-        )));
-    }
-    if col.kind.is_grouping() {
-        let labels = Labels::from_numbers(&values).map_err(|_| too_many_labels(src, name))?;
-        table.labels.insert(name.to_string(), labels);
-    }
-    table.numeric.insert(name.to_string(), values);
-    Ok(())
-}
-
-fn bound(b: Option<f64>) -> String {
-    b.map_or("unbounded".to_string(), |v| format!("{v}"))
 }
 
 /// Sort all columns by `order_by` (numeric ascending, or text order for labels).

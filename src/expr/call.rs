@@ -4,7 +4,7 @@
 //! Invariants: a call node is built only with the right number of arguments, and a `lag`
 //! node only with a whole-number shift of at least 1, written as a literal.
 
-use super::parser::Node;
+use super::node::Node;
 use super::{Expr, ExprError, Func};
 
 /// Every function, with how it is called (for messages).

@@ -7,7 +7,7 @@
 //! has none and reports a draw as an error. Arguments are evaluated column-wise like any
 //! other operand and handed to the source with the function.
 
-use super::parser::Node;
+use super::node::Node;
 use super::{Expr, ExprError};
 
 /// A random-draw (or row-structure) function of a rehearsal.

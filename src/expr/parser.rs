@@ -7,29 +7,9 @@
 
 use super::call::build_call;
 use super::lexer::{tokenize, Tok, Token};
+use super::node::Node;
 use super::parse_error::{self, chained, is_reserved, too_deep};
 use super::{prec, BinOp, Expr, ExprError, MAX_DEPTH};
-
-/// A parsed subtree with its depth (a leaf has depth 1).
-pub(crate) struct Node {
-    pub(crate) expr: Expr,
-    pub(crate) depth: usize,
-}
-
-impl Node {
-    fn leaf(expr: Expr) -> Node {
-        Node { expr, depth: 1 }
-    }
-
-    /// `expr` over children of the given depths, refused (at `offset`) when too deep.
-    pub(crate) fn over(offset: usize, depths: &[usize], expr: Expr) -> Result<Node, ExprError> {
-        let depth = 1 + depths.iter().copied().max().unwrap_or(0);
-        if depth > MAX_DEPTH {
-            return Err(too_deep(offset));
-        }
-        Ok(Node { expr, depth })
-    }
-}
 
 /// Parses `src` into an expression tree.
 ///

@@ -1,3 +1,6 @@
+// Over 500 lines because it holds the validated plan's plain data types, one per plan section
+// with every field documented, read together as the shape of a plan; no logic hangs off them
+// beyond small naming helpers. The logic lives in `raw.rs` and `validate/`.
 //! The analysis plan: TOML text → raw structs ([`raw`]) → a validated [`Plan`].
 //!
 //! Invariants of a [`Plan`]: every name it uses (columns, derived variables, data tables,
@@ -10,13 +13,6 @@ pub mod raw;
 mod source;
 pub mod unfilled;
 mod validate;
-mod validate_hac;
-mod validate_rehearsal;
-mod validate_rules;
-mod validate_spec;
-mod validate_summaries;
-#[cfg(test)]
-mod validate_tests;
 
 use crate::expr::Expr;
 use crate::inference::{Correction, Direction};
@@ -25,9 +21,9 @@ use std::path::PathBuf;
 
 pub use crate::suggest::{closest, hint as suggest_hint};
 pub use source::SourceMap;
+pub use validate::rehearsal::EFFECT;
+pub use validate::scope::spec_terms;
 pub use validate::{from_text, load};
-pub use validate_rehearsal::EFFECT;
-pub use validate_spec::spec_terms;
 
 /// A validated plan.
 #[derive(Debug, Clone)]
@@ -448,6 +444,19 @@ impl Errors {
             Errors::Hc3 => "hc3",
             Errors::Cluster(_) => "cluster",
             Errors::Hac { .. } => "hac",
+        }
+    }
+
+    /// The columns these errors cluster by, in plan order (none unless clustered).
+    pub fn cluster_columns(&self) -> &[String] {
+        match self {
+            Errors::Cluster(by) => by,
+            Errors::Classical
+            | Errors::Hc0
+            | Errors::Hc1
+            | Errors::Hc2
+            | Errors::Hc3
+            | Errors::Hac { .. } => &[],
         }
     }
 }

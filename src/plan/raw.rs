@@ -1,8 +1,13 @@
 //! The plan as written: plain serde structs mirroring the TOML, unknown keys rejected.
 //!
 //! Every name-bearing value is wrapped in [`Spanned`] so that validation can point at the
-//! exact line and column. No logic lives here; [`super::validate`] turns a [`RawPlan`] into a
-//! checked [`super::Plan`].
+//! exact line and column. No logic lives here, apart from reading an `errors` value into its
+//! typed form ([`errors`]); [`super::validate`] turns a [`RawPlan`] into a checked
+//! [`super::Plan`].
+
+mod errors;
+
+pub use errors::RawErrors;
 
 use serde::{Deserialize, Deserializer};
 use std::collections::BTreeMap;
@@ -123,7 +128,7 @@ pub struct RawBalance {
     /// Baseline covariates.
     pub covariates: Vec<Spanned<String>>,
     /// Standard errors.
-    pub errors: Option<Spanned<toml::Value>>,
+    pub errors: Option<Spanned<RawErrors>>,
 }
 
 /// `[attrition]`.
@@ -140,7 +145,7 @@ pub struct RawAttrition {
     #[serde(default)]
     pub bounds: Vec<Spanned<String>>,
     /// Standard errors of the differential-attrition test.
-    pub errors: Option<Spanned<toml::Value>>,
+    pub errors: Option<Spanned<RawErrors>>,
 }
 
 /// `[resampling]`.
@@ -287,7 +292,7 @@ pub struct RawSpec {
     /// Sample restriction.
     pub sample: Option<Spanned<String>>,
     /// Standard-error choice: `"hc1"` or `{ kind = "cluster", by = "block" }`.
-    pub errors: Option<Spanned<toml::Value>>,
+    pub errors: Option<Spanned<RawErrors>>,
     /// Diagnostics to compute.
     #[serde(default)]
     pub diagnostics: Vec<Spanned<String>>,

@@ -42,7 +42,7 @@ pub(super) fn covariance(
     Ok(
         match hac::resolve(spec, table, d, &scores, spec.estimator.is_iv())? {
             Some((cov, record)) => (cov, Some(record)),
-            None => (cov_spec(spec, d), None),
+            None => (cov_spec(spec, d)?, None),
         },
     )
 }

@@ -98,19 +98,9 @@ fn est_err(spec: &Spec, message: impl Into<String>) -> Error {
 }
 
 /// The covariance estimator `spec`'s errors ask for, with the design's cluster ids.
-fn cov_spec(spec: &Spec, d: &Design) -> CovSpec {
-    match (&spec.errors, d.clusters.as_slice()) {
-        (Errors::Classical, _) => CovSpec::Classical,
-        (Errors::Hc0, _) => CovSpec::Hc0,
-        (Errors::Hc2, _) => CovSpec::Hc2,
-        (Errors::Hc3, _) => CovSpec::Hc3,
-        (Errors::Cluster(_), [(ids, _)]) => CovSpec::Cluster { ids: ids.clone() },
-        (Errors::Cluster(_), [(a, _), (b, _)]) => CovSpec::TwoWay {
-            first: a.clone(),
-            second: b.clone(),
-        },
-        _ => CovSpec::Hc1,
-    }
+fn cov_spec(spec: &Spec, d: &Design) -> Result<CovSpec> {
+    let clusters = d.clusters.iter().map(|(ids, _)| ids.clone()).collect();
+    crate::data::cov_spec(&spec.errors, clusters).map_err(|gap| est_err(spec, gap.to_string()))
 }
 
 /// What resampled tests need from the plan beyond the specification.

@@ -6,11 +6,11 @@
 //! resolved here, so the plan's key order does not matter); `assigned(share)` appears only
 //! in the column `[assignment]` randomizes, after its blocks and clusters.
 
-use super::raw::{RawGenerator, RawPlan, RawRehearsal};
-use super::validate::{expr_error, Ctx};
-use super::{BaselineFile, GeneratedColumn, Generator, Plan, Rehearsal};
+use super::scope::{expr_error, is_identifier, Ctx};
 use crate::error::Result;
 use crate::expr::{self, Draw};
+use crate::plan::raw::{RawGenerator, RawPlan, RawRehearsal};
+use crate::plan::{BaselineFile, GeneratedColumn, Generator, Plan, Rehearsal};
 use crate::suggest::hint;
 use std::collections::{BTreeMap, BTreeSet};
 use toml::Spanned;
@@ -76,8 +76,26 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         Some(v) => *v.get_ref() as usize,
         None => 4,
     };
+    let generators = generators(ctx, plan, spanned)?;
+    Ok(Some(Rehearsal {
+        replications,
+        seed: *r.seed.get_ref() as u64,
+        target_power,
+        effects,
+        resampling_draws,
+        mde_steps,
+        generators,
+    }))
+}
+
+/// One data-generating process per data table, each named by a table of the plan.
+fn generators(
+    ctx: &Ctx,
+    plan: &Plan,
+    spanned: &Spanned<RawRehearsal>,
+) -> Result<BTreeMap<String, Generator>> {
     let mut generators = BTreeMap::new();
-    for (id, g) in &r.data {
+    for (id, g) in &spanned.get_ref().data {
         let key = format!("rehearsal.data.{}", id.get_ref());
         let Some(src) = plan.data.get(id.get_ref()) else {
             return Err(ctx.at(
@@ -99,15 +117,7 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
             format!("[data.{missing}] has no data-generating process; add [rehearsal.data.{missing}] with rows and columns"),
         ));
     }
-    Ok(Some(Rehearsal {
-        replications,
-        seed: *r.seed.get_ref() as u64,
-        target_power,
-        effects,
-        resampling_draws,
-        mde_steps,
-        generators,
-    }))
+    Ok(generators)
 }
 
 /// The effect sizes: finite, non-negative, strictly increasing; 0 added in front.
@@ -157,7 +167,44 @@ fn generator(
 ) -> Result<Generator> {
     let src = &plan.data[table];
     let raw = g.get_ref();
-    let (rows, baseline) = match (&raw.rows, &raw.baseline) {
+    let (rows, baseline) = size(ctx, g, key)?;
+    let mut parsed: BTreeMap<String, (Spanned<String>, GeneratedColumn)> = BTreeMap::new();
+    let all = g
+        .get_ref()
+        .columns
+        .iter()
+        .map(|p| (p, false))
+        .chain(raw.latent.iter().map(|p| (p, true)));
+    for ((name, text), latent) in all {
+        let column = generated_column(ctx, plan, table, key, (name, text), latent, &parsed)?;
+        parsed.insert(name.get_ref().clone(), (text.clone(), column));
+    }
+    // With a baseline, the columns not simulated come from the file: they are checked
+    // against its header when it is read (crate::rehearse), not here.
+    let needed = crate::data::needed_columns(plan, src);
+    if let Some(n) = needed
+        .iter()
+        .find(|n| baseline.is_none() && !parsed.contains_key(*n))
+    {
+        return Err(ctx.at(
+            g,
+            format!("{key}.columns"),
+            format!("the analysis uses column `{n}` of [data.{table}], which the rehearsal does not simulate; add `{n} = \"...\"` under [{key}.columns]"),
+        ));
+    }
+    let columns = order(ctx, plan, parsed, key, baseline.is_some())?;
+    Ok(Generator {
+        rows,
+        baseline,
+        columns,
+    })
+}
+
+/// How big the simulated table is: `rows`, or the rows of the `baseline` file (exactly one of
+/// the two).
+fn size(ctx: &Ctx, g: &Spanned<RawGenerator>, key: &str) -> Result<(usize, Option<BaselineFile>)> {
+    let raw = g.get_ref();
+    Ok(match (&raw.rows, &raw.baseline) {
         (Some(rows), Some(_)) => {
             return Err(ctx.at(
                 rows,
@@ -202,101 +249,96 @@ fn generator(
                 }),
             )
         }
-    };
-    let mut parsed: BTreeMap<String, (Spanned<String>, GeneratedColumn)> = BTreeMap::new();
-    let all = g
-        .get_ref()
-        .columns
-        .iter()
-        .map(|p| (p, false))
-        .chain(raw.latent.iter().map(|p| (p, true)));
-    for ((name, text), latent) in all {
-        let n = name.get_ref();
-        let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
-        let declared = src.columns.get(n);
-        if latent
-            && (declared.is_some()
-                || plan.derive.iter().any(|d| &d.name == n)
-                || !super::validate::is_identifier(n))
-        {
-            return Err(ctx.at(
-                name,
-                ckey,
-                format!("a latent variable needs a new name (letters, digits, underscores), not a declared column or derived variable; `{n}` is taken or not a name"),
-            ));
-        }
-        if parsed.contains_key(n) {
-            return Err(ctx.at(
-                name,
-                ckey,
-                format!("`{n}` is simulated twice; keep one of its definitions"),
-            ));
-        }
-        let kind = match declared {
-            Some(c) => c.kind,
-            None if latent => crate::plan::ColumnKind::Number,
-            None => {
-                return Err(ctx.at(
-                name,
-                ckey,
-                format!(
-                    "`{n}` is not a declared column of [data.{table}]{}; simulate declared columns (derived variables and indices are computed from them as in a run) and put unobserved variables under [{key}.latent]",
-                    hint(n, src.columns.keys().map(String::as_str))
-                ),
-            ));
-            }
-        };
-        if n == EFFECT {
-            return Err(ctx.at(
-                name,
-                ckey,
-                format!("`{EFFECT}` is the name through which a rehearsal reads the effect size simulated; rename the column in [data.{table}] to rehearse this plan"),
-            ));
-        }
-        let e = expr::parse_random(text.get_ref()).map_err(|e| expr_error(ctx, text, &ckey, &e))?;
-        let uses_assigned = e.draws().contains(&Draw::Assigned);
-        let assigned_here = plan.assignment.as_ref().is_some_and(|a| &a.variable == n);
-        if uses_assigned && !assigned_here {
-            return Err(ctx.at(text, ckey, match &plan.assignment {
-                Some(a) => format!("`assigned(share)` draws the variable [assignment] randomizes, `{}`; use bernoulli(p) here", a.variable),
-                None => "`assigned(share)` needs an [assignment] section saying how the treatment is randomized; declare one, or use bernoulli(p)".to_string(),
-            }));
-        }
-        let (line, column) = ctx.map.position(text.span().start + 1);
-        parsed.insert(
-            n.clone(),
-            (
-                text.clone(),
-                GeneratedColumn {
-                    name: n.clone(),
-                    text: text.get_ref().clone(),
-                    expr: e,
-                    kind,
-                    latent,
-                    place: (line, column),
-                },
-            ),
-        );
-    }
-    // With a baseline, the columns not simulated come from the file: they are checked
-    // against its header when it is read (crate::rehearse), not here.
-    let needed = crate::data::needed_columns(plan, src);
-    if let Some(n) = needed
-        .iter()
-        .find(|n| baseline.is_none() && !parsed.contains_key(*n))
+    })
+}
+
+/// One simulated column (`latent` for an unobserved variable): a new name, declared in the
+/// table unless latent, its expression parsed with the random draws, `assigned(share)` only
+/// in the column `[assignment]` randomizes.
+fn generated_column(
+    ctx: &Ctx,
+    plan: &Plan,
+    table: &str,
+    key: &str,
+    (name, text): (&Spanned<String>, &Spanned<String>),
+    latent: bool,
+    parsed: &BTreeMap<String, (Spanned<String>, GeneratedColumn)>,
+) -> Result<GeneratedColumn> {
+    let src = &plan.data[table];
+    let n = name.get_ref();
+    let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
+    let declared = src.columns.get(n);
+    if latent
+        && (declared.is_some() || plan.derive.iter().any(|d| &d.name == n) || !is_identifier(n))
     {
         return Err(ctx.at(
-            g,
-            format!("{key}.columns"),
-            format!("the analysis uses column `{n}` of [data.{table}], which the rehearsal does not simulate; add `{n} = \"...\"` under [{key}.columns]"),
+            name,
+            ckey,
+            format!("a latent variable needs a new name (letters, digits, underscores), not a declared column or derived variable; `{n}` is taken or not a name"),
         ));
     }
-    let columns = order(ctx, plan, parsed, key, baseline.is_some())?;
-    Ok(Generator {
-        rows,
-        baseline,
-        columns,
+    if parsed.contains_key(n) {
+        return Err(ctx.at(
+            name,
+            ckey,
+            format!("`{n}` is simulated twice; keep one of its definitions"),
+        ));
+    }
+    let kind = match declared {
+        Some(c) => c.kind,
+        None if latent => crate::plan::ColumnKind::Number,
+        None => {
+            return Err(ctx.at(
+            name,
+            ckey,
+            format!(
+                "`{n}` is not a declared column of [data.{table}]{}; simulate declared columns (derived variables and indices are computed from them as in a run) and put unobserved variables under [{key}.latent]",
+                hint(n, src.columns.keys().map(String::as_str))
+            ),
+        ));
+        }
+    };
+    if n == EFFECT {
+        return Err(ctx.at(
+            name,
+            ckey,
+            format!("`{EFFECT}` is the name through which a rehearsal reads the effect size simulated; rename the column in [data.{table}] to rehearse this plan"),
+        ));
+    }
+    let e = expr::parse_random(text.get_ref()).map_err(|e| expr_error(ctx, text, &ckey, &e))?;
+    assigned_only_where_randomized(ctx, plan, n, text, &ckey, &e)?;
+    let (line, column) = ctx.map.position(text.span().start + 1);
+    Ok(GeneratedColumn {
+        name: n.clone(),
+        text: text.get_ref().clone(),
+        expr: e,
+        kind,
+        latent,
+        place: (line, column),
     })
+}
+
+/// `assigned(share)` draws only the column `[assignment]` randomizes (`column`).
+fn assigned_only_where_randomized(
+    ctx: &Ctx,
+    plan: &Plan,
+    column: &str,
+    text: &Spanned<String>,
+    ckey: &str,
+    e: &expr::Expr,
+) -> Result<()> {
+    let uses_assigned = e.draws().contains(&Draw::Assigned);
+    let assigned_here = plan
+        .assignment
+        .as_ref()
+        .is_some_and(|a| a.variable == column);
+    if uses_assigned && !assigned_here {
+        return Err(ctx.at(text, ckey.to_string(), match &plan.assignment {
+            Some(a) => format!("`assigned(share)` draws the variable [assignment] randomizes, `{}`; use bernoulli(p) here", a.variable),
+            None => "`assigned(share)` needs an [assignment] section saying how the treatment is randomized; declare one, or use bernoulli(p)".to_string(),
+        }));
+    }
+    Ok(())
 }
 
 /// What column `c` needs before it: the names it uses, and for `assigned` the design's

@@ -2,59 +2,17 @@
 //! and `[attrition]`. Indices run after derived variables and before specifications, which
 //! may use an index as a variable.
 
-use super::raw::RawPlan;
-use super::validate::{available, expr_error, Ctx};
-use super::validate_spec::{errors_value, unique, unknown};
-use super::{Attrition, Balance, DataSource, Errors, Index, IndexMethod, Plan};
+use super::errors::errors_value;
+use super::scope::{
+    available, available_with_indices, data_table, expr_error, is_identifier, unique, unknown, Ctx,
+};
 use crate::error::Result;
 use crate::expr;
+use crate::plan::raw::{RawErrors, RawPlan};
+use crate::plan::{Attrition, Balance, ColumnKind, DataSource, Errors, Index, IndexMethod, Plan};
 use crate::suggest::hint;
 use std::collections::BTreeSet;
 use toml::Spanned;
-
-/// Names usable in `table`: [`available`] plus the indices computed on it.
-pub(super) fn available_with_indices(table: &DataSource, plan: &Plan) -> BTreeSet<String> {
-    let mut names = available(table, &plan.derive);
-    names.extend(
-        plan.indices
-            .iter()
-            .filter(|i| i.data == table.id)
-            .map(|i| i.id.clone()),
-    );
-    names
-}
-
-fn table<'p>(
-    ctx: &Ctx,
-    plan: &'p Plan,
-    data: Option<&Spanned<String>>,
-    at: &Spanned<String>,
-    key: &str,
-) -> Result<&'p DataSource> {
-    match data {
-        Some(d) => plan.data.get(d.get_ref()).ok_or_else(|| {
-            ctx.at(
-                d,
-                key,
-                unknown(
-                    "data table",
-                    d.get_ref(),
-                    plan.data.keys().map(String::as_str),
-                ),
-            )
-        }),
-        None if plan.data.len() == 1 => plan
-            .data
-            .values()
-            .next()
-            .ok_or_else(|| ctx.at(at, key, "the plan has no data table")),
-        None => Err(ctx.at(
-            at,
-            key,
-            "the plan has several data tables; say which one with data = \"NAME\"",
-        )),
-    }
-}
 
 fn name_in(
     ctx: &Ctx,
@@ -104,7 +62,7 @@ fn expression(
 
 fn binary_arm(ctx: &Ctx, t: &DataSource, by: &Spanned<String>, key: &str) -> Result<String> {
     match t.columns.get(by.get_ref()) {
-        Some(c) if c.kind == super::ColumnKind::Binary => Ok(by.get_ref().clone()),
+        Some(c) if c.kind == ColumnKind::Binary => Ok(by.get_ref().clone()),
         Some(c) => Err(ctx.at(
             by,
             key,
@@ -130,7 +88,7 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
         let i = i.get_ref();
         let id = i.id.get_ref().clone();
         let key = |k: &str| format!("index[{id}].{k}");
-        let t = table(ctx, plan, i.data.as_ref(), &i.id, &key("data"))?;
+        let t = data_table(ctx, plan, i.data.as_ref(), &i.id, &key("data"))?;
         let names = available(t, &plan.derive);
         if names.contains(&id) || t.columns.contains_key(&id) || id == "intercept" {
             return Err(ctx.at(
@@ -141,7 +99,7 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
                 ),
             ));
         }
-        if !super::validate::is_identifier(&id) {
+        if !is_identifier(&id) {
             return Err(ctx.at(&i.id, key("id"), "an index id must be a plain name (letters, digits, underscores, not starting with a digit)"));
         }
         ctx.one_of(&i.method, &key("method"), &["anderson", "mean-z"])?;
@@ -157,26 +115,7 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
                 "a summary index needs at least two components",
             ));
         }
-        let mut components = Vec::new();
-        let mut seen = BTreeSet::new();
-        for c in &i.components {
-            let (flip, name) = match c.get_ref().strip_prefix('-') {
-                Some(rest) => (true, rest.trim().to_string()),
-                None => (false, c.get_ref().clone()),
-            };
-            let named = Spanned::new(c.span(), name);
-            let name = name_in(
-                ctx,
-                &named,
-                &names,
-                &key("components"),
-                "among the index's components",
-            )?;
-            if !seen.insert(name.clone()) {
-                return Err(ctx.at(c, key("components"), format!("`{name}` is listed twice")));
-            }
-            components.push((name, flip));
-        }
+        let components = components(ctx, &i.components, &names, &key("components"))?;
         let reference = expression(ctx, &i.reference, &names, t, &key("reference"))?;
         let complete_cases = match &i.missing {
             Some(m) => {
@@ -197,13 +136,38 @@ pub(super) fn indices(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Index
     Ok(out)
 }
 
+/// An index's components, each a variable of its table, `-name` flipping its sign; no name
+/// twice.
+fn components(
+    ctx: &Ctx,
+    listed: &[Spanned<String>],
+    names: &BTreeSet<String>,
+    key: &str,
+) -> Result<Vec<(String, bool)>> {
+    let mut components = Vec::new();
+    let mut seen = BTreeSet::new();
+    for c in listed {
+        let (flip, name) = match c.get_ref().strip_prefix('-') {
+            Some(rest) => (true, rest.trim().to_string()),
+            None => (false, c.get_ref().clone()),
+        };
+        let named = Spanned::new(c.span(), name);
+        let name = name_in(ctx, &named, names, key, "among the index's components")?;
+        if !seen.insert(name.clone()) {
+            return Err(ctx.at(c, key, format!("`{name}` is listed twice")));
+        }
+        components.push((name, flip));
+    }
+    Ok(components)
+}
+
 /// `[balance]`.
 pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Balance>> {
     let Some(b) = &raw.balance else {
         return Ok(None);
     };
     let b = b.get_ref();
-    let t = table(ctx, plan, b.data.as_ref(), &b.by, "balance.data")?;
+    let t = data_table(ctx, plan, b.data.as_ref(), &b.by, "balance.data")?;
     let by = binary_arm(ctx, t, &b.by, "balance.by")?;
     let names = available_with_indices(t, plan);
     if b.covariates.is_empty() {
@@ -261,7 +225,7 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         return Ok(None);
     };
     let a = a.get_ref();
-    let t = table(ctx, plan, a.data.as_ref(), &a.by, "attrition.data")?;
+    let t = data_table(ctx, plan, a.data.as_ref(), &a.by, "attrition.data")?;
     let by = binary_arm(ctx, t, &a.by, "attrition.by")?;
     let names = available_with_indices(t, plan);
     let observed = expression(ctx, &a.observed, &names, t, "attrition.observed")?;
@@ -292,7 +256,7 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
 /// An `errors` value for balance or attrition, where HAC errors have no time order to use.
 fn summary_errors(
     ctx: &Ctx,
-    v: Option<&toml::Spanned<toml::Value>>,
+    v: Option<&Spanned<RawErrors>>,
     t: &DataSource,
     key: &str,
 ) -> Result<Errors> {
@@ -317,7 +281,7 @@ fn registered_design(
     plan: &Plan,
     t: &DataSource,
     by: &Spanned<String>,
-    raw: Option<&toml::Spanned<toml::Value>>,
+    raw: Option<&Spanned<RawErrors>>,
     section: &str,
 ) -> Result<(Errors, Option<String>)> {
     let key = format!("{section}.errors");
