@@ -18,7 +18,7 @@ use crate::deviation::Deviation;
 use crate::distribution::{Reference, TestStatistic};
 use crate::error::{Error, Result};
 use crate::estimate::{self, CovSpec};
-use crate::plan::{Assignment, DataSource, Diagnostic, Errors, Method, Resampling, Spec};
+use crate::plan::{Assignment, DataSource, Diagnostic, Method, Resampling, Spec};
 use crate::results::{HacResult, SpecResult};
 use std::collections::BTreeMap;
 
