@@ -8,7 +8,7 @@ use crate::plan::Spec;
 use crate::results::{ArmMean, ArmSummary};
 
 /// A short reason code and the sentence saying why a summary is not available.
-type Why = (&'static str, String);
+type Why = (crate::results::TakeUpMissing, String);
 
 /// The arm summaries of `spec` fitted on design `d` of `table`; `assigned` is the plan's
 /// `[assignment]` variable.
@@ -22,7 +22,7 @@ pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>)
     let iv = spec.estimator.is_iv();
     if !iv {
         out.take_up_note = Some("an OLS specification has no instrument".to_string());
-        out.take_up_missing = Some("ols");
+        out.take_up_missing = Some(crate::results::TakeUpMissing::Ols);
     }
     let arms = choose_by(spec, assigned)
         .and_then(|(by, role)| Ok((by, role, arm_of(table, by, &d.rows)?)));
@@ -63,7 +63,11 @@ fn unsummarised(spec: &Spec, clustered: bool) -> ArmSummary {
     ArmSummary {
         by: None,
         by_role: None,
-        std_error_kind: if clustered { "cluster" } else { "unclustered" },
+        std_error_kind: if clustered {
+            crate::results::ArmStdError::Cluster
+        } else {
+            crate::results::ArmStdError::Unclustered
+        },
         cluster_by: match &spec.errors {
             crate::plan::Errors::Cluster(by) if clustered => by.first().cloned(),
             _ => None,
@@ -80,12 +84,12 @@ fn unsummarised(spec: &Spec, clustered: bool) -> ArmSummary {
 fn choose_by<'s>(
     spec: &'s Spec,
     assigned: Option<&'s str>,
-) -> Result<(&'s str, &'static str), Why> {
+) -> Result<(&'s str, crate::results::ArmRole), Why> {
     if spec.estimator.is_iv() {
         return match spec.instruments.as_slice() {
-            [z] => Ok((z.as_str(), "instrument")),
+            [z] => Ok((z.as_str(), crate::results::ArmRole::Instrument)),
             zs => Err((
-                "instruments",
+                crate::results::TakeUpMissing::Instruments,
                 format!(
                     "the specification has {} instruments; arms need a single binary instrument",
                     zs.len()
@@ -94,11 +98,11 @@ fn choose_by<'s>(
         };
     }
     if let Some(a) = assigned.filter(|a| spec.regressors.iter().any(|r| r == a)) {
-        return Ok((a, "assignment"));
+        return Ok((a, crate::results::ArmRole::Assignment));
     }
     match spec.regressors.as_slice() {
-        [x] => Ok((x.as_str(), "regressor")),
-        xs => Err(("regressors", format!(
+        [x] => Ok((x.as_str(), crate::results::ArmRole::Regressor)),
+        xs => Err((crate::results::TakeUpMissing::Regressors, format!(
             "the specification has {} regressors of interest and none is the [assignment] variable; arms need one binary regressor",
             xs.len()
         ))),
@@ -109,7 +113,7 @@ fn choose_by<'s>(
 fn arm_of(table: &Table, by: &str, rows: &[usize]) -> Result<Vec<u8>, Why> {
     let col = table.numeric.get(by).ok_or_else(|| {
         (
-            "not-a-column",
+            crate::results::TakeUpMissing::NotAColumn,
             format!("`{by}` is not a numeric data column, so it defines no arms"),
         )
     })?;
@@ -119,7 +123,7 @@ fn arm_of(table: &Table, by: &str, rows: &[usize]) -> Result<Vec<u8>, Why> {
             Some(0.0) => arm.push(0),
             Some(1.0) => arm.push(1),
             _ => {
-                return Err(("not-binary", format!(
+                return Err((crate::results::TakeUpMissing::NotBinary, format!(
                     "`{by}` takes values other than 0 and 1 in the estimation sample, so it has no arms"
                 )))
             }
@@ -127,7 +131,7 @@ fn arm_of(table: &Table, by: &str, rows: &[usize]) -> Result<Vec<u8>, Why> {
     }
     if !arm.contains(&0) || !arm.contains(&1) {
         return Err((
-            "one-arm",
+            crate::results::TakeUpMissing::OneArm,
             format!(
                 "`{by}` takes only one value in the estimation sample, so there is no second arm"
             ),
@@ -147,7 +151,7 @@ fn take_up(
 ) -> Result<[ArmMean; 2], Why> {
     let [x] = spec.endogenous.as_slice() else {
         return Err((
-            "endogenous",
+            crate::results::TakeUpMissing::Endogenous,
             format!(
                 "the specification has {} endogenous regressors; take-up by arm needs one",
                 spec.endogenous.len()
@@ -156,7 +160,7 @@ fn take_up(
     };
     let col = table.numeric.get(x).ok_or_else(|| {
         (
-            "not-a-column",
+            crate::results::TakeUpMissing::NotAColumn,
             format!("`{x}` is not a numeric data column"),
         )
     })?;
@@ -190,13 +194,13 @@ fn arm_mean(
     let n = idx.len();
     if n < 2 {
         return Err((
-            "small-arm",
+            crate::results::TakeUpMissing::SmallArm,
             format!("arm {which} has fewer than two rows, so no spread can be estimated"),
         ));
     }
     if idx.iter().any(|&i| !values[i].is_finite()) {
         return Err((
-            "not-a-column",
+            crate::results::TakeUpMissing::NotAColumn,
             format!("`{variable}` has a value that is not finite in arm {which}"),
         ));
     }
@@ -213,7 +217,7 @@ fn arm_mean(
             }
             let g = sums.len();
             if g < 2 {
-                return Err(("small-arm", format!(
+                return Err((crate::results::TakeUpMissing::SmallArm, format!(
                     "arm {which} lies in a single cluster, so no cluster-robust standard error exists"
                 )));
             }

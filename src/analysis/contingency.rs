@@ -11,7 +11,7 @@
 use super::spec::{Fitted, Needs, ResampleNeed};
 use crate::format::{num, pval};
 use crate::plan::{Action, Contingency, Diagnostic, Method, Plan, Trigger};
-use crate::results::{ContingencyResult, SpecResult};
+use crate::results::{ContingencyResult, SpecResult, Trigger as Watched};
 use std::collections::BTreeMap;
 
 /// How the hypotheses of one specification are tested after a rule fired.
@@ -99,7 +99,7 @@ fn wild_bootstrap_needs(plan: &Plan, c: &Contingency, n: &mut Needs) {
 /// A rule's trigger as evaluated on its specification.
 struct Triggered {
     /// The trigger's name in results.json.
-    trigger: &'static str,
+    trigger: Watched,
     /// The threshold the plan states.
     threshold: f64,
     /// The value compared with it, when it could be computed.
@@ -122,7 +122,7 @@ fn triggered(c: &Contingency, r: &SpecResult) -> Triggered {
                 None => "the effective F could not be computed".to_string(),
             };
             Triggered {
-                trigger: "weak_instruments",
+                trigger: Watched::WeakInstruments,
                 threshold: *below,
                 value: f,
                 fires,
@@ -144,7 +144,7 @@ fn triggered(c: &Contingency, r: &SpecResult) -> Triggered {
                 None => "the endogeneity test could not be computed".to_string(),
             };
             Triggered {
-                trigger: "endogeneity",
+                trigger: Watched::Endogeneity,
                 threshold: *not_rejected_at,
                 value: p,
                 fires,
@@ -154,7 +154,7 @@ fn triggered(c: &Contingency, r: &SpecResult) -> Triggered {
         Trigger::Clusters { fewer_than } => {
             let g = r.clusters;
             Triggered {
-                trigger: "clusters",
+                trigger: Watched::Clusters,
                 threshold: *fewer_than as f64,
                 value: g.map(|g| g as f64),
                 fires: g.is_some_and(|g| g < *fewer_than),

@@ -61,19 +61,22 @@ pub(super) fn resolve(
     check_order(spec, table, order_by, &d.rows)?;
     let positions = d.rows.clone();
     let (b, rule) = match bandwidth {
-        HacBandwidth::Stated(b) => (f64::from(*b), "stated"),
-        HacBandwidth::NeweyWest1994 => (automatic(spec, s, iv, &positions)?, "newey-west-1994"),
+        HacBandwidth::Stated(b) => (f64::from(*b), crate::results::BandwidthRule::Stated),
+        HacBandwidth::NeweyWest1994 => (
+            automatic(spec, s, iv, &positions)?,
+            crate::results::BandwidthRule::NeweyWest1994,
+        ),
     };
     let record = HacResult {
-        kernel: "bartlett",
+        kernel: crate::results::HacKernel::Bartlett,
         bandwidth: b,
         bandwidth_rule: rule,
         lags: estimate::bartlett_lags(b),
         order_by: order_by.clone(),
         small_sample_factor: if d.absorbed.df > 0 {
-            "n/(n − K − absorbed)"
+            crate::results::SmallSampleFactor::Absorbed
         } else {
-            "n/(n − K)"
+            crate::results::SmallSampleFactor::Plain
         },
     };
     Ok(Some((

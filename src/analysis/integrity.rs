@@ -6,7 +6,7 @@ use crate::deviation::{Deviation, DeviationCode};
 use crate::ledger::{Entry, Event, Ledger, Line, PlanPrint};
 use crate::plan::canonical::changed_keys;
 use crate::plan::compare::{element_changes, element_names, Change, Kind};
-use crate::results::{ElementRegistration, Moment, Registration};
+use crate::results::{ElementRegistration, Moment, MomentEvent, RecordedAs, Registration};
 use serde_json::Value as Json;
 use std::collections::{BTreeMap, BTreeSet};
 
@@ -17,7 +17,7 @@ pub struct Integrity {
     /// Hash of the ledger line of the seal or amendment this run follows.
     pub ledger_head: Option<String>,
     /// Short state name for results.json.
-    pub state: &'static str,
+    pub state: crate::results::Integrity,
     /// Deviations found.
     pub deviations: Vec<Deviation>,
     /// Specification ids registered before the data were first read (None: no restriction known).
@@ -63,7 +63,7 @@ pub fn assess(ledger: &Ledger, print: &PlanPrint, data: &BTreeMap<String, String
     let latest = entries.last().map(|(_, e)| *e);
     let mut state = plan_state(latest, matching.map(|(_, e)| *e), print, &mut devs);
     if !problems.is_empty() {
-        state = "ledger-broken";
+        state = crate::results::Integrity::LedgerBroken;
     }
     data_changes(ledger, data, &mut devs);
     let registration = registration(ledger, print, &mut devs);
@@ -92,11 +92,12 @@ fn plan_state(
     matching: Option<&Entry>,
     print: &PlanPrint,
     devs: &mut Vec<Deviation>,
-) -> &'static str {
+) -> crate::results::Integrity {
+    use crate::results::Integrity as State;
     match (latest, matching) {
         (None, _) => {
             devs.push(Deviation::new(DeviationCode::Unsealed, "plan", "the plan was never sealed: nothing shows it was fixed before the data were seen (run `sworn seal PLAN` before the data arrive)"));
-            "not-sealed"
+            State::NotSealed
         }
         (Some(last), Some(m)) if m.seq == last.seq => {
             if last
@@ -105,9 +106,9 @@ fn plan_state(
                 .is_some_and(|p| p.bytes_sha256 != print.bytes_sha256)
             {
                 devs.push(Deviation::new(DeviationCode::PlanCosmeticChange, "plan", "the plan file changed since its last ledger entry, but only in comments or layout; its content is unchanged"));
-                "sealed-cosmetic-change"
+                State::SealedCosmeticChange
             } else {
-                "sealed-unchanged"
+                State::SealedUnchanged
             }
         }
         (Some(last), m) => {
@@ -125,7 +126,7 @@ fn plan_state(
                 "plan",
                 format!("{what}; changed keys: {}", keys.join(", ")),
             ));
-            "changed"
+            State::Changed
         }
     }
 }
@@ -200,7 +201,7 @@ fn registration(
         let Some(change) = changes.iter().find(|c| c.element == name) else {
             out.elements.push(ElementRegistration {
                 element: name,
-                status: "unchanged",
+                status: crate::results::ElementStatus::Unchanged,
                 keys: Vec::new(),
                 after: None,
                 amendment_line: None,
@@ -214,9 +215,9 @@ fn registration(
             .or(ledger.current_moment());
         let element = ElementRegistration {
             element: name,
-            status: change.kind.name(),
+            status: change.kind.into(),
             keys: change.keys.clone(),
-            after: after.map(|m| m.key()),
+            after: after.map(Into::into),
             amendment_line: made_by.map(|l| l.number),
             reason: made_by.and_then(|l| l.entry.reason.clone()),
         };
@@ -235,9 +236,9 @@ fn registration_point(ledger: &Ledger, registered: Line, reg_print: &PlanPrint) 
         l.map(|l| Moment {
             ledger_line: l.number,
             event: if l.entry.event == Event::DataInspected {
-                "data-inspected"
+                MomentEvent::DataInspected
             } else {
-                "data-first-read"
+                MomentEvent::DataFirstRead
             },
             time: l.entry.time.clone(),
         })
@@ -246,9 +247,9 @@ fn registration_point(ledger: &Ledger, registered: Line, reg_print: &PlanPrint) 
         content_sha256: reg_print.content_sha256.clone(),
         ledger_line: registered.number,
         recorded_as: if registered.entry.event == Event::Sealed {
-            "sealed"
+            RecordedAs::Sealed
         } else {
-            "amended"
+            RecordedAs::Amended
         },
         data_inspected: moment(ledger.first_data()),
         results_computed: moment(ledger.first_results()),

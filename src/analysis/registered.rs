@@ -155,20 +155,20 @@ pub fn merge(
 ) -> BTreeMap<String, HypothesisResult> {
     let mut out = BTreeMap::new();
     for (id, mut r) in registered {
-        r.registration = "registered";
+        r.registration = crate::results::HypothesisRegistration::Registered;
         match executed.remove(&id) {
             Some(mut e) => {
-                e.registration = "registered";
+                e.registration = crate::results::HypothesisRegistration::Registered;
                 if canonical_json(&e) != canonical_json(&r) {
                     r.as_amended = Some(Box::new(e));
                 }
             }
-            None => r.registration = "removed-after-data",
+            None => r.registration = crate::results::HypothesisRegistration::RemovedAfterData,
         }
         out.insert(id, r);
     }
     for (id, mut e) in executed {
-        e.registration = "added-after-data";
+        e.registration = crate::results::HypothesisRegistration::AddedAfterData;
         e.pre_registered = false;
         out.insert(id, e);
     }
@@ -183,9 +183,11 @@ pub fn mark(
 ) {
     for (id, h) in hypotheses.iter_mut() {
         h.registration = match (has_point, registered) {
-            (false, _) => "not-registered",
-            (true, Some(r)) if !r.contains(id) => "added-after-data",
-            _ => "registered",
+            (false, _) => crate::results::HypothesisRegistration::NotRegistered,
+            (true, Some(r)) if !r.contains(id) => {
+                crate::results::HypothesisRegistration::AddedAfterData
+            }
+            _ => crate::results::HypothesisRegistration::Registered,
         };
     }
 }

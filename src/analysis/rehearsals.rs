@@ -22,12 +22,18 @@ pub fn cite(ledger: &Ledger) -> Vec<RehearsalCitation> {
         })
         .map(|(number, e)| {
             let timing = match registered {
-                None => "no-registration",
-                Some(r) if e.seq < r.entry.seq => "before-registration",
+                None => crate::results::RehearsalTiming::NoRegistration,
+                Some(r) if e.seq < r.entry.seq => {
+                    crate::results::RehearsalTiming::BeforeRegistration
+                }
                 Some(_) => match ledger.moment_of(e) {
-                    None => "after-registration",
-                    Some(Moment::DataInspected) => "after-data-inspected",
-                    Some(Moment::ResultsComputed) => "after-results-computed",
+                    None => crate::results::RehearsalTiming::AfterRegistration,
+                    Some(Moment::DataInspected) => {
+                        crate::results::RehearsalTiming::AfterDataInspected
+                    }
+                    Some(Moment::ResultsComputed) => {
+                        crate::results::RehearsalTiming::AfterResultsComputed
+                    }
                 },
             };
             let content = e.plan.as_ref().map(|p| p.content_sha256.clone());

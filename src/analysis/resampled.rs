@@ -6,30 +6,33 @@ use super::spec::Fitted;
 use crate::estimate::ResampleResult;
 use crate::inference::{Direction, TIE_TOLERANCE};
 use crate::plan::{Hypothesis, Method, Plan};
-use crate::results::{Redrawn, ResamplingInfo};
+use crate::results::{
+    BootstrapVariant, BootstrapWeights, CountingRule, DrawStatistic, EstimatorKind, Procedure,
+    Redrawn, ResampleMode, ResamplingInfo,
+};
 
-/// The record of hypothesis `h`'s resampled test `res` of kind `kind` ("randomization" or
-/// "wild-bootstrap"); null without `[resampling]` (the test cannot then have run).
+/// The record of hypothesis `h`'s resampled test `res` by procedure `kind`; null without
+/// `[resampling]` (the test cannot then have run).
 pub fn describe(
     plan: &Plan,
     h: &Hypothesis,
     f: &Fitted,
-    kind: &'static str,
+    kind: Procedure,
     res: &ResampleResult,
 ) -> Option<ResamplingInfo> {
     let rs = plan.resampling.as_ref()?;
-    let iv = f.result.estimator != "ols";
-    let randomization = kind == "randomization";
+    let iv = f.result.estimator.is_iv();
+    let randomization = kind == Procedure::Randomization;
     let (statistic, bootstrap, weights, redrawn) = if randomization {
         randomization_record(plan, h, iv)?
     } else {
         bootstrap_record(h, f)
     };
     let p_value_counts = match h.direction {
-        Direction::TwoSided => "|T*| >= |T|",
-        _ if randomization && iv => "AR* >= AR, 1 if the estimate is on the other side",
-        Direction::Greater => "T* >= T",
-        Direction::Less => "T* <= T",
+        Direction::TwoSided => CountingRule::TwoSided,
+        _ if randomization && iv => CountingRule::ArOneSided,
+        Direction::Greater => CountingRule::Greater,
+        Direction::Less => CountingRule::Less,
     };
     Some(ResamplingInfo {
         procedure: kind,
@@ -38,7 +41,11 @@ pub fn describe(
         statistic,
         null_imposed: h.null,
         redrawn,
-        mode: if res.exact { "exact" } else { "sampled" },
+        mode: if res.exact {
+            ResampleMode::Exact
+        } else {
+            ResampleMode::Sampled
+        },
         draws_requested: rs.draws,
         exact_below: rs.exact_below,
         draws_used: res.draws_used,
@@ -53,21 +60,21 @@ pub fn describe(
 
 /// What a resampled test computed and re-drew: the statistic, the bootstrap variant and its
 /// weights (none for a randomization test), and what was re-drawn.
-type Procedure = (
-    &'static str,
-    Option<&'static str>,
-    Option<&'static str>,
+type Record = (
+    DrawStatistic,
+    Option<BootstrapVariant>,
+    Option<BootstrapWeights>,
     Redrawn,
 );
 
 /// A randomization test re-draws the registered assignment; its statistic is the estimate,
 /// its t, or (IV) the Anderson–Rubin statistic. Null without `[assignment]`.
-fn randomization_record(plan: &Plan, h: &Hypothesis, iv: bool) -> Option<Procedure> {
+fn randomization_record(plan: &Plan, h: &Hypothesis, iv: bool) -> Option<Record> {
     let studentized = matches!(h.method, Method::Randomization { studentized: true });
     let statistic = match (iv, studentized) {
-        (true, _) => "anderson-rubin",
-        (false, true) => "t",
-        (false, false) => "estimate",
+        (true, _) => DrawStatistic::AndersonRubin,
+        (false, true) => DrawStatistic::T,
+        (false, false) => DrawStatistic::Estimate,
     };
     let a = plan.assignment.as_ref()?;
     let redrawn = Redrawn {
@@ -82,7 +89,7 @@ fn randomization_record(plan: &Plan, h: &Hypothesis, iv: bool) -> Option<Procedu
 
 /// A wild cluster bootstrap re-draws cluster weights (Rademacher, or Webb when the
 /// hypothesis asks); restricted efficient for 2SLS, restricted for OLS, on the CR1 t.
-fn bootstrap_record(h: &Hypothesis, f: &Fitted) -> Procedure {
+fn bootstrap_record(h: &Hypothesis, f: &Fitted) -> Record {
     // A decision rule that switches to the bootstrap uses Rademacher weights.
     let webb = h.method == (Method::WildBootstrap { webb: true });
     let redrawn = Redrawn {
@@ -96,11 +103,15 @@ fn bootstrap_record(h: &Hypothesis, f: &Fitted) -> Procedure {
             .and_then(|c| c.first().cloned()),
         cluster_count: f.result.clusters,
     };
-    let variant = if f.result.estimator == "2sls" {
-        "wild-restricted-efficient"
+    let variant = if f.result.estimator == EstimatorKind::Tsls {
+        BootstrapVariant::WildRestrictedEfficient
     } else {
-        "restricted-wild-cluster"
+        BootstrapVariant::RestrictedWildCluster
     };
-    let weights = if webb { "webb" } else { "rademacher" };
-    ("cr1-t", Some(variant), Some(weights), redrawn)
+    let weights = if webb {
+        BootstrapWeights::Webb
+    } else {
+        BootstrapWeights::Rademacher
+    };
+    (DrawStatistic::Cr1T, Some(variant), Some(weights), redrawn)
 }

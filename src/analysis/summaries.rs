@@ -158,8 +158,8 @@ pub fn indices(plan: &Plan, tables: &BTreeMap<String, Table>) -> BTreeMap<String
                 i.id.clone(),
                 IndexResult {
                     method: match i.method {
-                        IndexMethod::MeanZ => "mean-z",
-                        IndexMethod::InverseCovariance => "anderson",
+                        IndexMethod::MeanZ => crate::results::IndexMethod::MeanZ,
+                        IndexMethod::InverseCovariance => crate::results::IndexMethod::Anderson,
                     },
                     components: i
                         .components
@@ -168,9 +168,9 @@ pub fn indices(plan: &Plan, tables: &BTreeMap<String, Table>) -> BTreeMap<String
                         .collect(),
                     reference: i.reference.0.clone(),
                     missing: if i.complete_cases {
-                        "complete"
+                        crate::results::IndexMissing::Complete
                     } else {
-                        "available"
+                        crate::results::IndexMissing::Available
                     },
                     reference_rows,
                     rows_with_value,
@@ -220,7 +220,7 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
         .map_err(|e| balance_error(b, first, e))?;
     Ok(Some(BalanceResult {
         by: b.by.clone(),
-        errors: b.errors.name(),
+        errors: (&b.errors).into(),
         clusters: cluster_columns(&b.errors),
         blocks: blocks.map(|b| b.used),
         n: rows.len(),
@@ -336,7 +336,7 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
         hypotheses_on_table,
         by: a.by.clone(),
         observed: a.observed.0.clone(),
-        errors: a.errors.name(),
+        errors: (&a.errors).into(),
         clusters: cluster_columns(&a.errors),
         blocks: differential.1,
         differential: differential.0,
@@ -439,8 +439,8 @@ fn lee_result(lee: &estimate::LeeBounds, a: &crate::plan::Attrition, level: f64)
         upper: lee.upper,
         trim_share: lee.trim_share,
         trimmed_arm: match lee.trimmed_arm {
-            TrimmedArm::Treated => "treated",
-            TrimmedArm::Comparison => "comparison",
+            TrimmedArm::Treated => crate::results::TrimmedArm::Treated,
+            TrimmedArm::Comparison => crate::results::TrimmedArm::Comparison,
         },
         std_error_lower: independent.then_some(lee.se_lower),
         std_error_upper: independent.then_some(lee.se_upper),

@@ -9,7 +9,7 @@ use crate::error::{Error, Result};
 use crate::escape::terminal;
 use crate::ledger::{self, ledger_path, Entry, Event, Ledger, PlanPrint};
 use crate::plan::{self, Plan};
-use crate::results::Results;
+use crate::results::{HypothesisRegistration, Results};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
@@ -239,8 +239,10 @@ fn print_summary(plan: &Plan, output: &RunOutput, out_dir: &Path) {
             .adjusted_p_value
             .map_or("n/a".to_string(), crate::report::pval);
         let note = match (h.registration, h.as_amended.as_deref()) {
-            ("added-after-data", _) => " [added after the data: not pre-registered]".to_string(),
-            ("removed-after-data", _) => {
+            (HypothesisRegistration::AddedAfterData, _) => {
+                " [added after the data: not pre-registered]".to_string()
+            }
+            (HypothesisRegistration::RemovedAfterData, _) => {
                 " [as registered; removed from the plan after the data]".to_string()
             }
             (_, Some(a)) => format!(

@@ -7,6 +7,7 @@ use super::baseline::Loaded;
 use super::simulate;
 use crate::error::Result;
 use crate::plan::Plan;
+use crate::results::Verdict;
 use serde::Serialize;
 use std::collections::BTreeMap;
 
@@ -69,8 +70,8 @@ pub(super) fn one(
     };
     let mut o = Outcome::default();
     for (id, h) in &a.hypotheses {
-        let supported = h.verdict == "supported";
-        let undetermined = h.verdict == "undetermined";
+        let supported = h.verdict == Verdict::Supported;
+        let undetermined = h.verdict == Verdict::Undetermined;
         o.hypotheses
             .insert(id.clone(), (supported, undetermined, h.estimate));
     }

@@ -38,52 +38,65 @@ pub fn tex(s: &str) -> String {
                 code = !code;
             }
             '\n' => out.push('\n'),
-            '\\' => out.push_str("\\textbackslash{}"),
-            '&' | '%' | '$' | '#' | '_' | '{' | '}' => {
-                out.push('\\');
-                out.push(c);
-            }
-            '~' => out.push_str("\\textasciitilde{}"),
-            '^' => out.push_str("\\textasciicircum{}"),
-            '<' => out.push_str("\\textless{}"),
-            '>' => out.push_str("\\textgreater{}"),
-            '|' => out.push_str("\\textbar{}"),
-            '"' => out.push_str("\\textquotedbl{}"),
-            '≥' => out.push_str("$\\geq$"),
-            '≤' => out.push_str("$\\leq$"),
-            '≠' => out.push_str("$\\neq$"),
             '−' if chars.get(i + 1) == Some(&'∞') => {
                 out.push_str("$-\\infty$");
                 skip = true;
             }
-            '−' => out.push_str("$-$"),
-            '–' => out.push_str("--"),
-            '—' => out.push_str("---"),
-            '²' => out.push_str("\\textsuperscript{2}"),
-            '±' => out.push_str("$\\pm$"),
-            '×' => out.push_str("$\\times$"),
-            '‘' | '’' => out.push('\''),
-            '“' | '”' => out.push_str("\\textquotedbl{}"),
-            '…' => out.push_str("\\ldots{}"),
-            '∪' => out.push_str("$\\cup$"),
-            '∞' => out.push_str("$\\infty$"),
-            '∅' => out.push_str("$\\emptyset$"),
-            'κ' => out.push_str("$\\kappa$"),
-            'τ' => out.push_str("$\\tau$"),
-            'χ' => out.push_str("$\\chi$"),
-            'β' => out.push_str("$\\beta$"),
-            '→' => out.push_str("$\\rightarrow$"),
-            '′' => out.push_str("$'$"),
-            c if (c as u32) < 0x20 && c != '\n' => {}
-            c if c.is_control() => {}
-            c if (c as u32) <= 0xFF => out.push(c),
-            _ => out.push('?'),
+            c => match tex_symbol(c) {
+                Some(t) => out.push_str(t),
+                None if c.is_control() => {}
+                None if (c as u32) <= 0xFF => out.push(c),
+                None => out.push('?'),
+            },
         }
     }
     if code {
         out.push('}');
     }
     out
+}
+
+/// The LaTeX for a character that is special in LaTeX or a symbol outside Latin-1 with a
+/// LaTeX equivalent; `None` for any other character.
+fn tex_symbol(c: char) -> Option<&'static str> {
+    Some(match c {
+        '\\' => "\\textbackslash{}",
+        '&' => "\\&",
+        '%' => "\\%",
+        '$' => "\\$",
+        '#' => "\\#",
+        '_' => "\\_",
+        '{' => "\\{",
+        '}' => "\\}",
+        '~' => "\\textasciitilde{}",
+        '^' => "\\textasciicircum{}",
+        '<' => "\\textless{}",
+        '>' => "\\textgreater{}",
+        '|' => "\\textbar{}",
+        '"' => "\\textquotedbl{}",
+        '≥' => "$\\geq$",
+        '≤' => "$\\leq$",
+        '≠' => "$\\neq$",
+        '−' => "$-$",
+        '–' => "--",
+        '—' => "---",
+        '²' => "\\textsuperscript{2}",
+        '±' => "$\\pm$",
+        '×' => "$\\times$",
+        '‘' | '’' => "'",
+        '“' | '”' => "\\textquotedbl{}",
+        '…' => "\\ldots{}",
+        '∪' => "$\\cup$",
+        '∞' => "$\\infty$",
+        '∅' => "$\\emptyset$",
+        'κ' => "$\\kappa$",
+        'τ' => "$\\tau$",
+        'χ' => "$\\chi$",
+        'β' => "$\\beta$",
+        '→' => "$\\rightarrow$",
+        '′' => "$'$",
+        _ => return None,
+    })
 }
 
 /// [`tex`] for long unbroken values (fingerprints, paths) in a narrow column: a line may break

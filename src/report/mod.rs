@@ -3,11 +3,12 @@
 //! templates only place text; the report never depends on the clock. Every string placed in
 //! the Markdown report passes through [`crate::escape::markdown`] and every string placed in
 //! the HTML report through [`crate::escape::html`] (the environment's formatter does both, so a
-//! template cannot forget; only the SVG figures drawn in `plots.rs`, marked safe, pass raw);
-//! the LaTeX template escapes with its `tex` filter.
+//! template cannot forget; only the SVG figures drawn in `plots.rs` and `plots/`, marked safe,
+//! pass raw); the LaTeX template escapes with its `tex` filter.
 
 mod format;
 mod identification;
+mod labels;
 mod model;
 mod plots;
 mod registration;

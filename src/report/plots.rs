@@ -7,19 +7,15 @@
 //! own text escaping; a figure that cannot be drawn says so instead of disappearing. Output
 //! depends only on the results, so it re-derives byte for byte.
 
-use super::format::num;
-use crate::results::{AndersonRubinResult, ArCurve, Results, SpecResult, Term};
-use plotters::prelude::*;
-use plotters::style::text_anchor::{HPos, Pos, VPos};
-use serde::Serialize;
+mod anderson_rubin;
+mod chart;
 
-/// One figure: a heading, the SVG markup, and a caption saying how to read it.
-#[derive(Debug, Serialize)]
-pub(super) struct Figure {
-    pub title: String,
-    pub svg: String,
-    pub caption: String,
-}
+pub(super) use chart::Figure;
+
+use crate::results::{Results, SpecResult, Term};
+use anderson_rubin::anderson_rubin;
+use chart::{estimator_color, mesh, row_labels, DrawResult, BLUE, GREY, PANEL_EXTRA, ROW, WIDTH};
+use plotters::prelude::*;
 
 /// One interval row of a panel.
 struct Bar {
@@ -34,21 +30,6 @@ struct Bar {
 struct Panel {
     heading: String,
     bars: Vec<Bar>,
-}
-
-const WIDTH: u32 = 720;
-const ROW: u32 = 26;
-const PANEL_EXTRA: u32 = 58;
-const GREY: RGBColor = RGBColor(110, 110, 110);
-const BLUE: RGBColor = RGBColor(31, 95, 168);
-const ORANGE: RGBColor = RGBColor(192, 90, 0);
-
-fn estimator_color(estimator: &str) -> RGBColor {
-    match estimator {
-        "ols" => GREY,
-        "2sls" => BLUE,
-        _ => ORANGE,
-    }
 }
 
 fn bar(label: String, t: &Term, color: RGBColor) -> Option<Bar> {
@@ -73,53 +54,6 @@ fn x_range(bars: &[Bar]) -> (f64, f64) {
     });
     let pad = ((hi - lo) * 0.08).max(1e-9 * lo.abs().max(hi.abs()).max(1.0));
     (lo - pad, hi + pad)
-}
-
-type DrawResult<T> = std::result::Result<T, String>;
-
-type Chart<'a, DB> = ChartContext<
-    'a,
-    DB,
-    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
->;
-
-/// The horizontal axis with our number format; no horizontal grid and no vertical axis labels
-/// (rows are labelled by [`row_labels`]).
-fn mesh<DB: DrawingBackend>(chart: &mut Chart<'_, DB>) -> DrawResult<()> {
-    chart
-        .configure_mesh()
-        .disable_y_mesh()
-        .light_line_style(WHITE.mix(0.0))
-        .y_labels(0)
-        .x_label_formatter(&|x| num(*x))
-        .x_labels(6)
-        .label_style(("sans-serif", 12))
-        .draw()
-        .map_err(|e| e.to_string())
-}
-
-/// Each row's label, right-aligned just left of the plotting area at the row's height.
-fn row_labels<DB: DrawingBackend>(
-    area: &DrawingArea<DB, plotters::coord::Shift>,
-    chart: &Chart<'_, DB>,
-    xlo: f64,
-    labels: &[String],
-    row_y: impl Fn(usize) -> f64,
-) -> DrawResult<()> {
-    let base = area.get_base_pixel();
-    let style = ("sans-serif", 12)
-        .into_text_style(area)
-        .pos(Pos::new(HPos::Right, VPos::Center));
-    for (i, label) in labels.iter().enumerate() {
-        let (px, py) = chart.backend_coord(&(xlo, row_y(i)));
-        area.draw(&Text::new(
-            label.clone(),
-            (px - base.0 - 8, py - base.1),
-            style.clone(),
-        ))
-        .map_err(|e| e.to_string())?;
-    }
-    Ok(())
 }
 
 fn draw_panel<DB: DrawingBackend>(
@@ -227,7 +161,7 @@ pub(super) fn figures(plan: &crate::plan::Plan, r: &Results) -> Vec<Figure> {
                     .filter_map(|(id, s)| {
                         let t = s.terms.get(term)?;
                         bar(
-                            format!("{id} ({})", s.estimator.to_uppercase()),
+                            format!("{id} ({})", s.estimator.label()),
                             t,
                             estimator_color(s.estimator),
                         )
@@ -287,254 +221,4 @@ fn first_stages(plan: &crate::plan::Plan, r: &Results) -> Option<Figure> {
         panels,
         "How far each instrument shifts the endogenous regressor (take-up), holding the controls fixed: dots are first-stage coefficients, lines their intervals with the specification's errors. An interval reaching zero is a first stage the data cannot distinguish from none. Where the instrument is a 0/1 assignment, a grey panel shows take-up itself in each arm (the endogenous regressor's mean over the rows estimated on, with a normal-approximation interval at the specification's level from the standard error of the mean; results.json `arms`).".into(),
     )
-}
-
-/// One AR set on the coefficient's line: thick pieces for the set (rays run to the edge), the
-/// Wald interval thin beneath it, the estimate as a dot.
-fn ar_svg(
-    ar: &AndersonRubinResult,
-    wald: &Term,
-    color: RGBColor,
-    heading: &str,
-) -> DrawResult<String> {
-    let set = &ar.set;
-    let mut finite: Vec<f64> = set
-        .iter()
-        .flat_map(|p| [p.lower, p.upper])
-        .flatten()
-        .chain([wald.estimate, wald.ci[0], wald.ci[1], 0.0])
-        .filter(|v| v.is_finite())
-        .collect();
-    finite.sort_by(f64::total_cmp);
-    let (lo, hi) = (finite[0], finite[finite.len() - 1]);
-    let pad = ((hi - lo) * 0.15).max(1e-9 * lo.abs().max(hi.abs()).max(1.0));
-    // With a curve, both charts share the curve's grid as their horizontal range.
-    let curve = ar.curve.as_ref().filter(|c| c.coefficient.len() > 1);
-    let (xlo, xhi) = match curve {
-        Some(c) => (c.coefficient[0], c.coefficient[c.coefficient.len() - 1]),
-        None => (lo - pad, hi + pad),
-    };
-    let curve_height = if curve.is_some() { CURVE_HEIGHT } else { 0 };
-    let mut out = String::new();
-    {
-        let whole =
-            SVGBackend::with_string(&mut out, (WIDTH, 130 + curve_height)).into_drawing_area();
-        whole.fill(&WHITE).map_err(|e| e.to_string())?;
-        let (top, root) = whole.split_vertically(curve_height);
-        if let Some(c) = curve {
-            draw_curve(&top, c, ar.critical_value, ar.confidence, (xlo, xhi))?;
-        }
-        let mut chart = ChartBuilder::on(&root)
-            .caption(heading, ("sans-serif", 14))
-            .margin(6)
-            .x_label_area_size(22)
-            .y_label_area_size(210)
-            .build_cartesian_2d(xlo..xhi, -0.5..1.5)
-            .map_err(|e| e.to_string())?;
-        mesh(&mut chart)?;
-        let labels = [
-            "Anderson–Rubin set".to_string(),
-            "Wald interval".to_string(),
-        ];
-        row_labels(&root, &chart, xlo, &labels, |i| 1.0 - i as f64)?;
-        let ar_y = 1.0;
-        for p in set {
-            let a = p.lower.unwrap_or(xlo).max(xlo);
-            let b = p.upper.unwrap_or(xhi).min(xhi);
-            chart
-                .draw_series(std::iter::once(PathElement::new(
-                    vec![(a, ar_y), (b, ar_y)],
-                    BLACK.stroke_width(7),
-                )))
-                .map_err(|e| e.to_string())?;
-        }
-        let w_y = 0.0;
-        if wald.ci.iter().all(|v| v.is_finite()) {
-            chart
-                .draw_series(std::iter::once(PathElement::new(
-                    vec![(wald.ci[0], w_y), (wald.ci[1], w_y)],
-                    color.stroke_width(2),
-                )))
-                .map_err(|e| e.to_string())?;
-        }
-        if wald.estimate.is_finite() {
-            chart
-                .draw_series(std::iter::once(Circle::new(
-                    (wald.estimate, w_y),
-                    4,
-                    color.filled(),
-                )))
-                .map_err(|e| e.to_string())?;
-        }
-        if xlo < 0.0 && 0.0 < xhi {
-            chart
-                .draw_series(std::iter::once(PathElement::new(
-                    vec![(0.0, -0.5), (0.0, 1.5)],
-                    BLACK.mix(0.35),
-                )))
-                .map_err(|e| e.to_string())?;
-        }
-        whole.present().map_err(|e| e.to_string())?;
-    }
-    Ok(out)
-}
-
-/// Height of the curve chart above an AR set.
-const CURVE_HEIGHT: u32 = 250;
-const RED: RGBColor = RGBColor(178, 34, 34);
-
-/// The highest statistic drawn: the curve is cut at the top edge above this, so the region
-/// near the critical value stays readable.
-fn curve_top(curve: &ArCurve, critical: f64) -> f64 {
-    let highest = curve
-        .statistic
-        .iter()
-        .flatten()
-        .copied()
-        .fold(0.0_f64, f64::max);
-    highest.min(5.0 * critical).max(2.0 * critical)
-}
-
-/// The AR statistic against the coefficient (from results.json, never recomputed), with the
-/// critical value as a dashed line: the set is where the curve lies on or under it.
-fn draw_curve<DB: DrawingBackend>(
-    area: &DrawingArea<DB, plotters::coord::Shift>,
-    curve: &ArCurve,
-    critical: f64,
-    confidence: f64,
-    (xlo, xhi): (f64, f64),
-) -> DrawResult<()> {
-    let top = curve_top(curve, critical);
-    let mut chart = ChartBuilder::on(area)
-        .caption(
-            "Anderson–Rubin statistic against the hypothesised coefficient",
-            ("sans-serif", 14),
-        )
-        .margin(6)
-        .x_label_area_size(22)
-        .y_label_area_size(210)
-        .build_cartesian_2d(xlo..xhi, 0.0..top)
-        .map_err(|e| e.to_string())?;
-    chart
-        .configure_mesh()
-        .light_line_style(WHITE.mix(0.0))
-        .bold_line_style(BLACK.mix(0.08))
-        .x_label_formatter(&|x| num(*x))
-        .y_label_formatter(&|y| num(*y))
-        .x_labels(6)
-        .y_labels(5)
-        .y_desc("AR statistic")
-        .axis_desc_style(("sans-serif", 12))
-        .label_style(("sans-serif", 12))
-        .draw()
-        .map_err(|e| e.to_string())?;
-    let label = format!(
-        "critical value {} ({:.0}% set)",
-        num(critical),
-        100.0 * confidence
-    );
-    let style = ("sans-serif", 12)
-        .into_text_style(area)
-        .color(&RED)
-        .pos(Pos::new(HPos::Left, VPos::Bottom));
-    chart
-        .draw_series(std::iter::once(Text::new(
-            label,
-            (xlo + 0.01 * (xhi - xlo), critical + 0.02 * top),
-            style,
-        )))
-        .map_err(|e| e.to_string())?;
-    // One line per run of computed points (a null statistic breaks the line).
-    let mut run: Vec<(f64, f64)> = Vec::new();
-    let points = curve.coefficient.iter().zip(&curve.statistic);
-    for (x, v) in points
-        .map(|(x, v)| (*x, v.map(|v| v.min(top))))
-        .chain([(xhi, None)])
-    {
-        match v {
-            Some(v) => run.push((x, v)),
-            None if !run.is_empty() => {
-                chart
-                    .draw_series(LineSeries::new(
-                        std::mem::take(&mut run),
-                        BLACK.stroke_width(2),
-                    ))
-                    .map_err(|e| e.to_string())?;
-            }
-            None => {}
-        }
-    }
-    chart
-        .draw_series(DashedLineSeries::new(
-            [(xlo, critical), (xhi, critical)],
-            6,
-            4,
-            RED.stroke_width(2),
-        ))
-        .map_err(|e| e.to_string())?;
-    if xlo < 0.0 && 0.0 < xhi {
-        chart
-            .draw_series(std::iter::once(PathElement::new(
-                vec![(0.0, 0.0), (0.0, top)],
-                BLACK.mix(0.35),
-            )))
-            .map_err(|e| e.to_string())?;
-    }
-    Ok(())
-}
-
-fn anderson_rubin(plan: &crate::plan::Plan, r: &Results) -> Vec<Figure> {
-    let mut out = Vec::new();
-    for s in &plan.specifications {
-        let Some(res) = r.specifications.get(&s.id) else {
-            continue;
-        };
-        let (Some(ar), Some(x)) = (&res.anderson_rubin, s.endogenous.first()) else {
-            continue;
-        };
-        let Some(wald) = res.terms.get(x) else {
-            continue;
-        };
-        let heading = crate::escape::line(&format!("{}: coefficient on {x}", s.id));
-        let title = format!(
-            "Anderson–Rubin {:.0}% set, {}",
-            100.0 * ar.confidence,
-            crate::escape::line(&s.id)
-        );
-        let curve = match &ar.curve {
-            Some(c) => format!(
-                "Above, the Anderson–Rubin statistic at {} coefficient values, as computed in the run (results.json), and the dashed critical value: the set is every value where the curve lies on or under the line, so a curve still under it at an edge means the set goes on past that edge; values above {} are cut at the top. ",
-                c.coefficient.len(),
-                num(curve_top(c, ar.critical_value))
-            ),
-            None => String::new(),
-        };
-        let caption = format!(
-            "{curve}The thick bar is the set of coefficient values the Anderson–Rubin test does not reject ({}, shape: {}); a bar reaching an edge continues without end. Beneath it the {} estimate and its Wald interval, which rely on strong instruments. The set is {}.",
-            super::format::set_text(&ar.set),
-            ar.shape,
-            res.estimator.to_uppercase(),
-            match ar.shape {
-                "bounded" => "bounded: the data bound the effect however weak the instruments",
-                "whole-line" => "the whole line: the data cannot bound the effect",
-                "empty" => "empty: the instruments reject each other at this level",
-                _ => "unbounded: the data cannot bound the effect on at least one side",
-            }
-        );
-        out.push(
-            match ar_svg(ar, wald, estimator_color(res.estimator), &heading) {
-                Ok(svg) => Figure {
-                    title,
-                    svg,
-                    caption,
-                },
-                Err(e) => Figure {
-                    title,
-                    svg: String::new(),
-                    caption: format!("The figure could not be drawn: {}", crate::escape::line(&e)),
-                },
-            },
-        );
-    }
-    out
 }

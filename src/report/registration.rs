@@ -2,7 +2,11 @@
 //! data were seen, so the registered analysis is reported beside the executed one.
 
 use super::format::pval;
-use crate::results::{HypothesisResult, Results};
+use super::labels::correction_name;
+use crate::results::{
+    ChangedAfter, ElementRegistration, ElementStatus, HypothesisRegistration, HypothesisResult,
+    Results,
+};
 use serde::Serialize;
 
 /// The section's content, formatted.
@@ -30,7 +34,7 @@ fn verdict(h: &HypothesisResult) -> String {
         "{} (adjusted p {}, {})",
         h.verdict,
         h.adjusted_p_value.map_or("n/a".to_string(), pval),
-        super::model::correction_name(h.correction)
+        correction_name(h.correction)
     )
 }
 
@@ -43,56 +47,6 @@ pub fn build(r: &Results) -> Option<RegistrationModel> {
             format!("ledger line {} ({})", m.ledger_line, m.time)
         })
     };
-    let rows = r
-        .hypotheses
-        .iter()
-        .map(|(id, h)| {
-            let (registered, amended) = match h.registration {
-                "added-after-data" => (
-                    "none: added after the data were seen".to_string(),
-                    verdict(h),
-                ),
-                "removed-after-data" => (
-                    verdict(h),
-                    "none: removed after the data were seen".to_string(),
-                ),
-                _ => (
-                    verdict(h),
-                    h.as_amended
-                        .as_deref()
-                        .map_or("the same".to_string(), verdict),
-                ),
-            };
-            RegRow {
-                id: id.clone(),
-                registered,
-                amended,
-            }
-        })
-        .collect();
-    let changes = point
-        .elements
-        .iter()
-        .filter(|e| e.status != "unchanged")
-        .map(|e| {
-            let when = match e.after {
-                Some("results-computed") => "after results were computed",
-                Some(_) => "after the data were inspected",
-                None => "after the data were seen",
-            };
-            let by = match (e.amendment_line, &e.reason) {
-                (Some(n), Some(why)) => format!("amendment at ledger line {n}, reason: {why}"),
-                (Some(n), None) => format!("amendment at ledger line {n}"),
-                (None, _) => "no amendment records it".to_string(),
-            };
-            let keys = if e.keys.is_empty() || e.status == "added" {
-                String::new()
-            } else {
-                format!(": {}", e.keys.join("; "))
-            };
-            format!("{} {} {when} ({by}){keys}", e.element, e.status)
-        })
-        .collect();
     Some(RegistrationModel {
         point: format!(
             "The registered version is the plan {} at ledger line {} (content sha256:{}). The data were first seen at {}; results were first computed at {}. Each registered hypothesis is reported as registered (its family corrected as registered), with the amended plan's result beside it; hypotheses added after the data are not pre-registered and never enter a registered family's correction.",
@@ -102,8 +56,58 @@ pub fn build(r: &Results) -> Option<RegistrationModel> {
             moment(&point.data_inspected),
             moment(&point.results_computed)
         ),
-        rows,
-        changes,
+        rows: r.hypotheses.iter().map(|(id, h)| reg_row(id, h)).collect(),
+        changes: point
+            .elements
+            .iter()
+            .filter(|e| e.status != ElementStatus::Unchanged)
+            .map(change_line)
+            .collect(),
         error: as_registered.error.clone(),
     })
+}
+
+/// A hypothesis's result as registered beside its result in the executed plan.
+fn reg_row(id: &str, h: &HypothesisResult) -> RegRow {
+    let (registered, amended) = match h.registration {
+        HypothesisRegistration::AddedAfterData => (
+            "none: added after the data were seen".to_string(),
+            verdict(h),
+        ),
+        HypothesisRegistration::RemovedAfterData => (
+            verdict(h),
+            "none: removed after the data were seen".to_string(),
+        ),
+        _ => (
+            verdict(h),
+            h.as_amended
+                .as_deref()
+                .map_or("the same".to_string(), verdict),
+        ),
+    };
+    RegRow {
+        id: id.to_string(),
+        registered,
+        amended,
+    }
+}
+
+/// One changed, added or removed element: when, by which amendment, and its keys.
+fn change_line(e: &ElementRegistration) -> String {
+    let when = match e.after {
+        Some(ChangedAfter::ResultsComputed) => "after results were computed",
+        Some(_) => "after the data were inspected",
+        None => "after the data were seen",
+    };
+    let by = match (e.amendment_line, &e.reason) {
+        (Some(n), Some(why)) => format!("amendment at ledger line {n}, reason: {why}"),
+        (Some(n), None) => format!("amendment at ledger line {n}"),
+        (None, _) => "no amendment records it".to_string(),
+    };
+    let keys = if e.keys.is_empty() || e.status == ElementStatus::Added {
+        String::new()
+    } else {
+        format!(": {}", e.keys.join("; "))
+    };
+    format!("{} {} {when} ({by}){keys}", e.element, e.status)
 }

@@ -4,7 +4,7 @@
 //! in advance.
 
 use crate::ledger::PowerRecord;
-use crate::results::{RehearsalCitation, Results};
+use crate::results::{RehearsalCitation, RehearsalTiming, Results};
 use serde::Serialize;
 
 /// The section's content, formatted.
@@ -88,11 +88,11 @@ fn power_rows(p: &PowerRecord) -> Vec<String> {
 
 fn timing_phrase(c: &RehearsalCitation) -> &'static str {
     match c.timing {
-        "before-registration" => "an earlier rehearsal before registration, superseded by the one cited above",
-        "after-registration" => "after registration, before the data were seen: cited as such, not as evidence of power stated before registration",
-        "after-data-inspected" => "after the data were inspected: its assumptions could have been chosen knowing the data, so it is not evidence of power stated in advance",
-        "after-results-computed" => "after results were computed: not evidence of power stated in advance",
-        _ => "the run has no registered version (the plan was never sealed before the data), so no rehearsal is evidence of power stated before registration",
+        RehearsalTiming::BeforeRegistration => "an earlier rehearsal before registration, superseded by the one cited above",
+        RehearsalTiming::AfterRegistration => "after registration, before the data were seen: cited as such, not as evidence of power stated before registration",
+        RehearsalTiming::AfterDataInspected => "after the data were inspected: its assumptions could have been chosen knowing the data, so it is not evidence of power stated in advance",
+        RehearsalTiming::AfterResultsComputed => "after results were computed: not evidence of power stated in advance",
+        RehearsalTiming::NoRegistration => "the run has no registered version (the plan was never sealed before the data), so no rehearsal is evidence of power stated before registration",
     }
 }
 
@@ -112,7 +112,7 @@ pub fn build(r: &Results) -> Option<RehearsalModel> {
     let cited = r
         .rehearsals
         .iter()
-        .rfind(|c| c.timing == "before-registration");
+        .rfind(|c| c.timing == RehearsalTiming::BeforeRegistration);
     let others = r
         .rehearsals
         .iter()
@@ -141,6 +141,18 @@ pub fn build(r: &Results) -> Option<RehearsalModel> {
             figure: None,
         });
     };
+    Some(RehearsalModel {
+        heading: "Power as rehearsed before the data".into(),
+        lead: cited_lead(r, c),
+        rows: c.power.as_ref().map(power_rows).unwrap_or_default(),
+        others,
+        caution: CAUTION.into(),
+        figure: c.power.as_ref().and_then(power_figure),
+    })
+}
+
+/// The sentence introducing the rehearsal cited as evidence of power before registration.
+fn cited_lead(r: &Results, c: &RehearsalCitation) -> String {
     let registered_at = r.registration.as_ref().map_or(String::new(), |p| {
         format!(" (ledger line {})", p.ledger_line)
     });
@@ -163,12 +175,5 @@ pub fn build(r: &Results) -> Option<RehearsalModel> {
             short(&c.plan_content_sha256)
         ));
     }
-    Some(RehearsalModel {
-        heading: "Power as rehearsed before the data".into(),
-        lead,
-        rows: c.power.as_ref().map(power_rows).unwrap_or_default(),
-        others,
-        caution: CAUTION.into(),
-        figure: c.power.as_ref().and_then(power_figure),
-    })
+    lead
 }

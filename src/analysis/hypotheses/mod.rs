@@ -26,7 +26,7 @@ use super::contingency::Substitution;
 use super::spec::Fitted;
 use crate::inference::{self, Correction, Direction};
 use crate::plan::Plan;
-use crate::results::HypothesisResult;
+use crate::results::{HypothesisResult, Verdict};
 use one::test_one;
 use romano_wolf::romano_wolf;
 use std::collections::BTreeMap;
@@ -141,9 +141,9 @@ impl Tested {
             }
             if let Some(adj) = h.adjusted_p_value {
                 h.verdict = if adj <= h.alpha {
-                    "supported"
+                    Verdict::Supported
                 } else {
-                    "not-supported"
+                    Verdict::NotSupported
                 };
             }
         }

@@ -3,11 +3,13 @@
 
 use super::procedures::{anderson_rubin, resampled_test, t_test, tf};
 use crate::analysis::contingency::Substitution;
-use crate::analysis::spec::{method_name, Fitted};
+use crate::analysis::spec::{procedure, Fitted};
 use crate::distribution::Reference;
 use crate::inference::Correction;
 use crate::plan::{Action, Hypothesis, Method, Plan};
-use crate::results::{HypothesisResult, Term};
+use crate::results::{
+    EstimatorKind, HypothesisRegistration, HypothesisResult, Procedure, Term, Verdict,
+};
 use std::collections::BTreeMap;
 
 /// One hypothesis; the flag says whether it takes part in its family's correction.
@@ -39,10 +41,8 @@ pub(super) fn test_one(
     // A hypothesis's own resampled inference is explicit and wins over a rule's.
     let resampled = match (sub.map(|s| &s.action), h.method) {
         (Some(Action::UseSpecification(_)), _) => None,
-        (_, Method::Randomization { .. } | Method::WildBootstrap { .. }) => {
-            Some(method_name(&h.method))
-        }
-        (Some(Action::WildBootstrap), Method::Model) => Some("wild-bootstrap"),
+        (_, Method::Randomization { .. } | Method::WildBootstrap { .. }) => procedure(&h.method),
+        (Some(Action::WildBootstrap), Method::Model) => Some(Procedure::WildBootstrap),
         _ => None,
     };
     if let Some(kind) = resampled {
@@ -92,7 +92,7 @@ fn untested(h: &Hypothesis, f: &Fitted, sub: Option<&Substitution>) -> Hypothesi
         alpha: h.alpha,
         family: h.family.clone(),
         correction: Correction::None,
-        method: f.result.distribution,
+        method: f.result.distribution.into(),
         estimator: f.result.estimator,
         tested_specification: h.specification.clone(),
         contingency: sub.map(|s| s.contingency.clone()),
@@ -103,10 +103,10 @@ fn untested(h: &Hypothesis, f: &Fitted, sub: Option<&Substitution>) -> Hypothesi
         draws: None,
         exact: None,
         resampling: None,
-        verdict: "undetermined",
+        verdict: Verdict::Undetermined,
         reason: None,
         pre_registered: f.result.pre_registered,
-        registration: "not-registered",
+        registration: HypothesisRegistration::NotRegistered,
         as_amended: None,
     }
 }
@@ -145,13 +145,13 @@ fn tested_source<'a>(
             };
             r.tested_specification = target.clone();
             r.estimator = t.result.estimator;
-            r.method = t.result.distribution;
+            r.method = t.result.distribution.into();
             r.df = t.result.df;
         }
         Some(Action::Liml) => match &f.result.liml {
             Some(l) => {
                 source.terms = &l.terms;
-                r.estimator = "liml";
+                r.estimator = EstimatorKind::Liml;
             }
             None => {
                 r.reason = Some("the LIML estimate is not available".into());

@@ -7,7 +7,7 @@ use crate::analysis::spec::Fitted;
 use crate::estimate;
 use crate::inference::{self, Direction};
 use crate::plan::{Hypothesis, Plan};
-use crate::results::{HypothesisResult, SetPiece, Term};
+use crate::results::{HypothesisResult, Procedure, SetPiece, Term, TestMethod};
 
 /// A model-based interval as a one-piece set.
 fn piece(ci: [f64; 2]) -> Vec<SetPiece> {
@@ -23,7 +23,7 @@ pub(super) fn resampled_test(
     h: &Hypothesis,
     f: &Fitted,
     t: &Term,
-    kind: &'static str,
+    kind: Procedure,
     r: &mut HypothesisResult,
 ) -> (HypothesisResult, bool) {
     // No resampled interval is computed; the model-based one would mislead here.
@@ -32,9 +32,9 @@ pub(super) fn resampled_test(
         r.reason = Some(format!("the {kind} test is not available"));
         return (r.clone(), false);
     };
-    r.method = kind;
+    r.method = kind.into();
     r.df = None;
-    if kind == "randomization" {
+    if kind == Procedure::Randomization {
         r.randomization_interval = f.ri_intervals.get(&h.id).cloned();
     }
     r.draws = Some(res.draws_used);
@@ -43,7 +43,7 @@ pub(super) fn resampled_test(
     r.statistic = Some(res.observed);
     // The randomization AR statistic is non-negative and two-sided by nature: for a
     // one-sided hypothesis its p-value counts only when the estimate lies on the claimed side.
-    let ar = kind == "randomization" && f.result.estimator != "ols";
+    let ar = kind == Procedure::Randomization && f.result.estimator.is_iv();
     let p = match h.direction {
         Direction::TwoSided => res.p_value,
         _ if ar => {
@@ -92,7 +92,7 @@ pub(super) fn anderson_rubin(
     t: &Term,
     r: &mut HypothesisResult,
 ) -> (HypothesisResult, bool) {
-    r.method = "anderson-rubin";
+    r.method = TestMethod::AndersonRubin;
     let Some(ar) = &f.result.anderson_rubin else {
         r.reason = Some("the Anderson–Rubin set is not available".into());
         return (r.clone(), false);
@@ -147,7 +147,7 @@ pub(super) fn tf(
     t: &Term,
     r: &mut HypothesisResult,
 ) -> (HypothesisResult, bool) {
-    r.method = "tf";
+    r.method = TestMethod::Tf;
     let first = f
         .result
         .first_stage

@@ -2,10 +2,11 @@
 //! each statistic oriented so that large values are evidence for the claim.
 
 use super::on_side;
-use crate::analysis::spec::{method_name, Fitted};
+use crate::analysis::spec::{procedure, Fitted};
 use crate::estimate;
 use crate::inference::{self, Direction};
 use crate::plan::{Hypothesis, Plan};
+use crate::results::Procedure;
 use std::collections::BTreeMap;
 
 /// Romano–Wolf adjusted p-values of a family from its members' joint resampling draws.
@@ -27,7 +28,8 @@ pub(super) fn romano_wolf(
             .find(|h| &&h.id == id)
             .ok_or_else(|| format!("hypothesis `{id}` is unknown"))?;
         let f = &fitted[&h.specification];
-        let kind = method_name(&h.method);
+        let kind = procedure(&h.method)
+            .ok_or_else(|| format!("hypothesis `{id}` is tested model-based, not resampled"))?;
         let r = f
             .resampled
             .get(&(h.id.clone(), kind))
@@ -61,7 +63,7 @@ pub(super) fn romano_wolf(
 fn oriented(
     h: &Hypothesis,
     f: &Fitted,
-    kind: &str,
+    kind: Procedure,
     r: &estimate::ResampleResult,
 ) -> Result<(f64, Vec<f64>), String> {
     let orient = |v: f64| match h.direction {
@@ -71,7 +73,7 @@ fn oriented(
     };
     // The randomization AR statistic (2SLS) is non-negative: it is used as it is, and a
     // one-sided member whose estimate lies on the other side can never be rejected.
-    let ar = kind == "randomization" && f.result.estimator != "ols";
+    let ar = kind == Procedure::Randomization && f.result.estimator.is_iv();
     let orient = |v: f64| if ar { v } else { orient(v) };
     let draws: Option<Vec<f64>> = r.statistics.iter().map(|s| s.map(orient)).collect();
     let draws = draws.ok_or_else(|| format!("hypothesis `{}` skipped degenerate draws", h.id))?;

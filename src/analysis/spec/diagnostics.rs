@@ -12,9 +12,9 @@ use crate::estimate::{self, CovSpec, EstimateError};
 use crate::inference;
 use crate::plan::{Diagnostic, Estimator};
 use crate::results::{
-    AlternativeEstimate, AndersonRubinResult, EndogeneityResult, FirstStageResult, LmClrResult,
-    OveridResult, Regression, SetPiece, SpecResult, StockYogoValue, TestResult,
-    WeakInstrumentResult,
+    AlternativeEstimate, AndersonRubinResult, ArShape, EndogeneityResult, EstimatorKind,
+    FirstStageResult, LmClrErrors, LmClrResult, OveridResult, Regression, SetPiece, SpecResult,
+    StockYogoCriterion, StockYogoValue, TestResult, WeakInstrumentResult,
 };
 use std::collections::BTreeMap;
 
@@ -163,7 +163,7 @@ impl IvContext<'_> {
         let names: Vec<String> = p.focal_names.iter().chain(&p.exog_names).cloned().collect();
         let reference = reference_for(spec, &k.fit);
         Ok(AlternativeEstimate {
-            estimator: "liml",
+            estimator: EstimatorKind::Liml,
             kappa: k.kappa,
             terms: terms_of(&k.fit, &names, &reference, spec.confidence),
         })
@@ -244,7 +244,7 @@ impl IvContext<'_> {
         if let (CovSpec::Classical, Ok(t)) = (cov, self.iv.lm_clr(ab, 0.0)) {
             result.lm_clr = Some(LmClrResult {
                 null: t.beta0,
-                errors: "homoskedastic",
+                errors: LmClrErrors::Homoskedastic,
                 lm: TestResult {
                     statistic: t.lm.statistic,
                     p_value: inference::test_p_value(&t.lm),
@@ -275,13 +275,13 @@ fn set_pieces(set: &estimate::ConfidenceSet) -> Vec<SetPiece> {
 }
 
 /// The name of a confidence set's shape in results.json.
-fn shape_name(set: &estimate::ConfidenceSet) -> &'static str {
+fn shape_name(set: &estimate::ConfidenceSet) -> ArShape {
     match set.shape() {
-        estimate::SetShape::Empty => "empty",
-        estimate::SetShape::Bounded => "bounded",
-        estimate::SetShape::TwoRays => "two-rays",
-        estimate::SetShape::WholeLine => "whole-line",
-        estimate::SetShape::Other => "union",
+        estimate::SetShape::Empty => ArShape::Empty,
+        estimate::SetShape::Bounded => ArShape::Bounded,
+        estimate::SetShape::TwoRays => ArShape::TwoRays,
+        estimate::SetShape::WholeLine => ArShape::WholeLine,
+        estimate::SetShape::Other => ArShape::Union,
     }
 }
 
@@ -303,16 +303,18 @@ fn stock_yogo_for(
     };
     let values: Vec<StockYogoValue> = estimate::stock_yogo(table, excluded)
         .into_iter()
-        .map(|s| StockYogoValue {
-            criterion: s.criterion,
-            level: s.level,
-            critical_value: s.critical_value,
+        .filter_map(|s| {
+            Some(StockYogoValue {
+                criterion: StockYogoCriterion::from_table_name(s.criterion)?,
+                level: s.level,
+                critical_value: s.critical_value,
+            })
         })
         .collect();
     let lacking: Vec<String> = table
         .criteria()
         .iter()
-        .filter(|&&c| !values.iter().any(|v| v.criterion == c))
+        .filter(|&&c| !values.iter().any(|v| v.criterion.as_str() == c))
         .filter_map(|&c| {
             let rows = estimate::stock_yogo_rows(c)?;
             Some(if excluded < *rows.start() {

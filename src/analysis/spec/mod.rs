@@ -19,7 +19,7 @@ use crate::distribution::{Reference, TestStatistic};
 use crate::error::{Error, Result};
 use crate::estimate::{self, CovSpec};
 use crate::plan::{Assignment, DataSource, Diagnostic, Method, Resampling, Spec};
-use crate::results::{HacResult, SpecResult};
+use crate::results::{HacResult, Procedure, SpecResult};
 use std::collections::BTreeMap;
 
 pub use result::term;
@@ -38,7 +38,7 @@ pub struct Fitted {
     /// Anderson–Rubin tests at the nulls asked for in [`Needs::ar_nulls`].
     pub ar_tests: Vec<(f64, TestStatistic)>,
     /// Resampled tests by (hypothesis id, method name).
-    pub resampled: BTreeMap<(String, &'static str), estimate::ResampleResult>,
+    pub resampled: BTreeMap<(String, Procedure), estimate::ResampleResult>,
     /// Randomization-inference intervals of OLS coefficients by hypothesis id.
     pub ri_intervals: BTreeMap<String, crate::results::RandomizationIntervalResult>,
     /// What resampled draws of this specification are draws of: the data table, the rows
@@ -63,12 +63,12 @@ pub struct ResampleNeed {
     pub only_below_clusters: Option<usize>,
 }
 
-/// The name of a resampling method in results.json.
-pub fn method_name(m: &Method) -> &'static str {
+/// The resampling procedure of a hypothesis' method; `None` for a model-based test.
+pub fn procedure(m: &Method) -> Option<Procedure> {
     match m {
-        Method::Model => "model",
-        Method::Randomization { .. } => "randomization",
-        Method::WildBootstrap { .. } => "wild-bootstrap",
+        Method::Model => None,
+        Method::Randomization { .. } => Some(Procedure::Randomization),
+        Method::WildBootstrap { .. } => Some(Procedure::WildBootstrap),
     }
 }
 

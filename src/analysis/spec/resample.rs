@@ -3,19 +3,19 @@
 //! cluster bootstrap (restricted efficient for 2SLS).
 
 use super::resolve::hstack;
-use super::{est_err, method_name, Needs, Prepared, ResampleContext, ResampleNeed};
+use super::{est_err, procedure, Needs, Prepared, ResampleContext, ResampleNeed};
 use crate::data::{LabelIdsError, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{self, AssignmentDesign, ResampleError, ResampleResult};
 use crate::plan::{Assignment, Estimator, Method};
-use crate::results::RandomizationIntervalResult;
+use crate::results::{Procedure, RandomizationIntervalResult};
 use nalgebra::DMatrix;
 use std::collections::BTreeMap;
 
 /// The resampled tests of one specification.
 pub(super) struct Tests {
     /// Tests by (hypothesis id, method name).
-    pub(super) resampled: BTreeMap<(String, &'static str), ResampleResult>,
+    pub(super) resampled: BTreeMap<(String, Procedure), ResampleResult>,
     /// Randomization intervals by hypothesis id.
     pub(super) ri_intervals: BTreeMap<String, RandomizationIntervalResult>,
 }
@@ -52,9 +52,9 @@ pub(super) fn resampled_tests(
         if let Some(i) = interval {
             tests.ri_intervals.insert(need.hypothesis.clone(), i);
         }
-        tests
-            .resampled
-            .insert((need.hypothesis.clone(), method_name(&need.method)), r);
+        if let Some(p) = procedure(&need.method) {
+            tests.resampled.insert((need.hypothesis.clone(), p), r);
+        }
     }
     Ok(tests)
 }
@@ -64,7 +64,7 @@ pub(super) fn resampled_tests(
 /// specifications.
 pub(super) fn units(
     prepared: &Prepared,
-    resampled: &BTreeMap<(String, &'static str), ResampleResult>,
+    resampled: &BTreeMap<(String, Procedure), ResampleResult>,
     cluster_by: &Option<Vec<String>>,
 ) -> String {
     if resampled.is_empty() {
@@ -284,7 +284,7 @@ impl Test<'_> {
             self.prepared.spec,
             format!(
                 "{} test of hypothesis `{}`: {what}",
-                method_name(&self.need.method),
+                procedure(&self.need.method).map_or("model-based", Procedure::as_str),
                 self.need.hypothesis
             ),
         )

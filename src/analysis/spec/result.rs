@@ -9,7 +9,7 @@ use crate::distribution::{Reference, TestStatistic};
 use crate::estimate::LinearFit;
 use crate::inference::{self, Direction};
 use crate::plan::{Distribution, Errors, Spec};
-use crate::results::{LpmInfo, SampleInfo, SpecResult, Term, TestResult};
+use crate::results::{CoefDistribution, LpmInfo, SampleInfo, SpecResult, Term, TestResult};
 use std::collections::BTreeMap;
 
 /// A term's estimate, standard error, t, two-sided p and interval.
@@ -124,11 +124,11 @@ pub(super) fn spec_result(
     let absorbing = !d.fixed_effects.is_empty();
     SpecResult {
         title: spec.title.clone(),
-        estimator: spec.estimator.name(),
+        estimator: spec.estimator.into(),
         outcome: spec.outcome.clone(),
         n: fit.n,
         df_resid: fit.df_resid,
-        errors: spec.errors.name(),
+        errors: (&spec.errors).into(),
         cluster_by: match &spec.errors {
             Errors::Cluster(by) => Some(by.clone()),
             _ => None,
@@ -136,8 +136,8 @@ pub(super) fn spec_result(
         clusters: fit.clusters,
         hac: prepared.hac.clone(),
         distribution: match spec.distribution {
-            Distribution::T => "t",
-            Distribution::Normal => "normal",
+            Distribution::T => CoefDistribution::T,
+            Distribution::Normal => CoefDistribution::Normal,
         },
         df: match reference {
             Reference::StudentT { df } => Some(*df),
