@@ -11,12 +11,11 @@
 //! effects and is reported by name.
 //! Collinearity among the remaining columns is resolved left to right by the caller.
 
-use super::{Labels, Table};
+use super::{IdOrder, Labels, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{Absorbed, CovSpec, FixedEffects};
 use crate::plan::{Errors, Spec};
 use nalgebra::{DMatrix, DVector};
-use std::collections::BTreeMap;
 
 /// The matrices of one specification after sample restriction and listwise deletion.
 #[derive(Debug, Clone)]
@@ -147,22 +146,18 @@ fn matrix(table: &Table, names: &[String], rows: &[usize], spec: &Spec) -> Resul
     }))
 }
 
-/// Dense 0-based group index per kept row (groups numbered in sorted label order).
-fn group_index(values: &Labels, rows: &[usize]) -> (Vec<usize>, usize) {
-    let mut ids: BTreeMap<&str, usize> = BTreeMap::new();
-    for &r in rows {
-        if let Some(v) = &values[r] {
-            ids.entry(v.as_str()).or_insert(0);
-        }
-    }
-    for (i, v) in ids.values_mut().enumerate() {
-        *v = i;
-    }
-    let idx = rows
-        .iter()
-        .map(|&r| values[r].as_deref().map_or(0, |v| ids[v]))
-        .collect();
-    (idx, ids.len())
+/// Dense 0-based group index per kept row (groups numbered in sorted label order) and the
+/// number of groups. Kept rows have every grouping label ([`kept_rows`]), so a missing one
+/// is an error of sworn's, reported rather than numbered.
+fn group_index(values: &Labels, rows: &[usize], spec: &Spec) -> Result<(Vec<usize>, usize)> {
+    values
+        .dense_ids(rows, IdOrder::Sorted)
+        .ok_or_else(|| Error::Estimation {
+            spec: spec.id.clone(),
+            message:
+                "a kept row has no label in a grouping column (an error in sworn; please report it)"
+                    .into(),
+        })
 }
 
 /// Build the design of `spec` from `table`.
@@ -172,7 +167,7 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
     for fe in &spec.fixed_effects {
         groups.push(labels(table, fe, spec)?);
     }
-    let singletons = drop_singleton_rows(&groups, &mut rows);
+    let singletons = drop_singleton_rows(&groups, &mut rows, spec)?;
     let n = rows.len();
     let outcome = column(table, &spec.outcome, spec)?;
     let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
@@ -183,14 +178,17 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         .errors
         .cluster_columns()
         .iter()
-        .map(|b| Ok(group_index(labels(table, b, spec)?, &rows)))
+        .map(|b| group_index(labels(table, b, spec)?, &rows, spec))
         .collect::<Result<Vec<_>>>()?;
     let mut y = y_raw.clone();
     let mut fixed_effects = Vec::new();
     let mut absorbed = Absorbed::default();
     let mut absorbed_columns = Vec::new();
     if !groups.is_empty() && n > 0 {
-        let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, &rows).0).collect();
+        let ids: Vec<Vec<usize>> = groups
+            .iter()
+            .map(|g| Ok(group_index(g, &rows, spec)?.0))
+            .collect::<Result<_>>()?;
         let fe = FixedEffects::new(ids).map_err(|e| sweep_error(spec, &e))?;
         for (name, levels) in spec.fixed_effects.iter().zip(fe.levels()) {
             fixed_effects.push((name.clone(), levels));
@@ -242,11 +240,14 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
 /// Drops, from `rows`, the rows alone in their level of any fixed effect (`groups`, one
 /// label column per fixed effect), repeatedly (`estimate::drop_singletons`); returns how
 /// many were dropped.
-fn drop_singleton_rows(groups: &[&Labels], rows: &mut Vec<usize>) -> usize {
+fn drop_singleton_rows(groups: &[&Labels], rows: &mut Vec<usize>, spec: &Spec) -> Result<usize> {
     if groups.is_empty() {
-        return 0;
+        return Ok(0);
     }
-    let ids: Vec<Vec<usize>> = groups.iter().map(|g| group_index(g, rows).0).collect();
+    let ids: Vec<Vec<usize>> = groups
+        .iter()
+        .map(|g| Ok(group_index(g, rows, spec)?.0))
+        .collect::<Result<_>>()?;
     let keep = crate::estimate::drop_singletons(&ids);
     let before = rows.len();
     *rows = rows
@@ -255,7 +256,7 @@ fn drop_singleton_rows(groups: &[&Labels], rows: &mut Vec<usize>) -> usize {
         .filter(|(_, k)| **k)
         .map(|(r, _)| *r)
         .collect();
-    before - rows.len()
+    Ok(before - rows.len())
 }
 
 /// The included exogenous block and its names: the intercept (when asked for and not

@@ -3,7 +3,7 @@
 //! labels (clusters, blocks, binary indicators) costs about 4·n bytes rather than a heap
 //! string per row. Reads give the same `&Option<String>` a plain vector would.
 
-use std::collections::HashMap;
+use std::collections::{BTreeMap, HashMap};
 use std::ops::Index;
 
 /// Labels of one column, row by row (`None`: missing).
@@ -15,11 +15,44 @@ pub struct Labels {
     codes: Vec<u32>,
 }
 
+/// In which order [`Labels::dense_ids`] numbers the distinct labels.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum IdOrder {
+    /// Sorted label order (a design's fixed effects and clusters).
+    Sorted,
+    /// Order of first appearance among the rows (resampling units).
+    FirstSeen,
+}
+
 /// More distinct labels than a 4-byte code can number.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct TooManyLabels;
 
 impl Labels {
+    /// Dense 0-based ids of the labels at `rows`, numbered in `order`, and how many distinct
+    /// labels there are; `None` when one of the rows has no label. Labels are compared as
+    /// text, so identifier columns stored one entry per row number equal labels alike.
+    pub fn dense_ids(&self, rows: &[usize], order: IdOrder) -> Option<(Vec<usize>, usize)> {
+        let mut first: BTreeMap<&str, usize> = BTreeMap::new();
+        let mut ids = Vec::with_capacity(rows.len());
+        for &r in rows {
+            let label = self[r].as_deref()?;
+            let next = first.len();
+            ids.push(*first.entry(label).or_insert(next));
+        }
+        if order == IdOrder::Sorted {
+            // `first` iterates in sorted label order: its k-th entry gets id k.
+            let mut rank = vec![0; first.len()];
+            for (k, &seen) in first.values().enumerate() {
+                rank[seen] = k;
+            }
+            for id in &mut ids {
+                *id = rank[*id];
+            }
+        }
+        Some((ids, first.len()))
+    }
+
     /// Labels from text values, in row order.
     pub(crate) fn from_text(values: Vec<Option<String>>) -> Result<Self, TooManyLabels> {
         let mut index: HashMap<String, u32> = HashMap::new();
@@ -134,6 +167,30 @@ impl<'a> IntoIterator for &'a Labels {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Ids by first appearance and by sorted label, worked by hand: rows 3, 0, 1, 2 of
+    /// ["b", "a", "b", "c"] read "c", "b", "a", "b".
+    #[test]
+    fn dense_ids_number_in_either_order() {
+        let text = ["b", "a", "b", "c"].map(|s| Some(s.to_string())).to_vec();
+        for labels in [
+            Labels::from_text(text.clone()).expect("labels"),
+            Labels::by_row(text).expect("labels"),
+        ] {
+            let rows = [3, 0, 1, 2];
+            assert_eq!(
+                labels.dense_ids(&rows, IdOrder::FirstSeen),
+                Some((vec![0, 1, 2, 1], 3))
+            );
+            assert_eq!(
+                labels.dense_ids(&rows, IdOrder::Sorted),
+                Some((vec![2, 1, 0, 1], 3))
+            );
+        }
+        let gap = Labels::from_text(vec![Some("a".into()), None]).expect("labels");
+        assert_eq!(gap.dense_ids(&[0, 1], IdOrder::Sorted), None);
+        assert_eq!(gap.dense_ids(&[0], IdOrder::Sorted), Some((vec![0], 1)));
+    }
 
     #[test]
     fn labels_read_back_row_by_row() {

@@ -13,7 +13,7 @@ mod parquet;
 mod read;
 
 pub use design::{cov_spec, design, CovSpecGap, Design};
-pub use labels::{Labels, TooManyLabels};
+pub use labels::{IdOrder, Labels, TooManyLabels};
 pub(crate) use read::needed_columns;
 pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};
 
@@ -50,15 +50,9 @@ impl Table {
     /// Dense 0-based ids (in order of first appearance) of the labels of `column` at `rows`.
     pub fn label_ids(&self, column: &str, rows: &[usize]) -> Result<Vec<usize>, LabelIdsError> {
         let labels = self.labels.get(column).ok_or(LabelIdsError::NoColumn)?;
-        let mut map: BTreeMap<&str, usize> = BTreeMap::new();
-        rows.iter()
-            .map(|&r| {
-                let next = map.len();
-                labels[r]
-                    .as_deref()
-                    .map(|v| *map.entry(v).or_insert(next))
-                    .ok_or(LabelIdsError::Missing)
-            })
-            .collect()
+        labels
+            .dense_ids(rows, IdOrder::FirstSeen)
+            .map(|(ids, _)| ids)
+            .ok_or(LabelIdsError::Missing)
     }
 }
