@@ -208,11 +208,7 @@ fn without_column(m: &DMatrix<f64>, j: usize) -> DMatrix<f64> {
 
 /// Shea's partial R² for each endogenous column (formula in [`first_stages`]).
 fn shea_partial_r_squared(setup: &IvSetup, endogenous: usize) -> Result<Vec<f64>, EstimateError> {
-    let mut xhat = setup.x.clone();
-    for j in 0..endogenous {
-        let projected = setup.zqr.project(&setup.x.column(j).into_owned());
-        xhat.set_column(j, &projected);
-    }
+    let (xhat, _) = super::linear::projection(setup, endogenous);
     (0..endogenous)
         .map(|j| {
             let own = restricted_rss(

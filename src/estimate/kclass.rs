@@ -175,24 +175,8 @@ impl IvProblem<'_> {
             return Err(EstimateError::NotFinite);
         }
         // X̂ = P_Z X and V̂ = M_Z X (exog columns: themselves and exactly zero).
-        let mut xhat = setup.x.clone();
-        let mut vhat = DMatrix::zeros(n, k);
-        let tol = n.max(l) as f64 * f64::EPSILON;
-        let mut orthogonal = Vec::new();
-        for j in 0..p {
-            let col = setup.x.column(j).into_owned();
-            let projected = setup.zqr.project(&col);
-            if projected.norm() <= tol * col.norm() {
-                orthogonal.push(j);
-            }
-            vhat.set_column(j, &(&col - &projected));
-            xhat.set_column(j, &projected);
-        }
-        if !orthogonal.is_empty() {
-            return Err(EstimateError::RankDeficient {
-                dependent: orthogonal,
-            });
-        }
+        let xhat = super::linear::projected_regressors(setup, p)?;
+        let vhat = &setup.x - &xhat;
         let xk = if kappa == 1.0 {
             xhat.clone()
         } else {

@@ -310,23 +310,32 @@ pub(crate) fn projected_regressors(
     setup: &IvSetup,
     endogenous: usize,
 ) -> Result<DMatrix<f64>, EstimateError> {
-    let (n, l) = setup.z.shape();
-    let tol = n.max(l) as f64 * f64::EPSILON;
-    let mut xhat = setup.x.clone();
-    let mut dependent = Vec::new();
-    for j in 0..endogenous {
-        let col = setup.x.column(j).into_owned();
-        let projected = setup.zqr.project(&col);
-        if projected.norm() <= tol * col.norm() {
-            dependent.push(j);
-        }
-        xhat.set_column(j, &projected);
-    }
+    let (xhat, dependent) = projection(setup, endogenous);
     if dependent.is_empty() {
         Ok(xhat)
     } else {
         Err(EstimateError::RankDeficient { dependent })
     }
+}
+
+/// X̂ = [P_Z endog | exog] and the indices j of the endogenous columns with
+/// ‖P_Z endog_j‖ ≤ max(n, L)·eps·‖endog_j‖ (orthogonal to the instruments up to rounding).
+/// The one place the endogenous columns are projected; [`projected_regressors`] refuses the
+/// orthogonal ones, Shea's partial R² reads them as zero.
+pub(crate) fn projection(setup: &IvSetup, endogenous: usize) -> (DMatrix<f64>, Vec<usize>) {
+    let (n, l) = setup.z.shape();
+    let tol = n.max(l) as f64 * f64::EPSILON;
+    let mut xhat = setup.x.clone();
+    let mut orthogonal = Vec::new();
+    for j in 0..endogenous {
+        let col = setup.x.column(j).into_owned();
+        let projected = setup.zqr.project(&col);
+        if projected.norm() <= tol * col.norm() {
+            orthogonal.push(j);
+        }
+        xhat.set_column(j, &projected);
+    }
+    (xhat, orthogonal)
 }
 
 /// Two-stage least squares. Coefficient order: endogenous columns first, then exog columns.
