@@ -83,10 +83,40 @@ pub fn changed_keys(old: &str, new: &str) -> Vec<String> {
     ) else {
         return vec!["(whole plan)".to_string()];
     };
-    let mut out = Vec::new();
-    diff(&a, &b, String::new(), &mut out);
+    let mut out: Vec<String> = differences(&a, &b, true)
+        .into_iter()
+        .map(|d| {
+            if d.path.is_empty() {
+                "(root)".to_string()
+            } else {
+                d.path
+            }
+        })
+        .collect();
     out.sort();
     out.dedup();
+    out
+}
+
+/// One place two canonical values differ: its dotted path (empty for the values
+/// themselves) and the value on each side (`None`: absent on that side).
+#[derive(Debug)]
+pub struct Difference<'a> {
+    /// Dotted path, `key.sub`, `array[id]` or `array (order)`.
+    pub path: String,
+    /// The old side.
+    pub old: Option<&'a Json>,
+    /// The new side.
+    pub new: Option<&'a Json>,
+}
+
+/// Every place `a` and `b` differ, objects walked key by key in sorted order. With `by_id`,
+/// arrays whose entries all carry an `id` are matched entry by entry (`path[id]`; an entry
+/// on one side only is a difference of its own) and a change in the order of the common
+/// entries is reported as `path (order)`; otherwise arrays are compared whole.
+pub fn differences<'a>(a: &'a Json, b: &'a Json, by_id: bool) -> Vec<Difference<'a>> {
+    let mut out = Vec::new();
+    walk(a, b, String::new(), by_id, &mut out);
     out
 }
 
@@ -98,7 +128,7 @@ fn join(prefix: &str, key: &str) -> String {
     }
 }
 
-fn diff(a: &Json, b: &Json, path: String, out: &mut Vec<String>) {
+fn walk<'a>(a: &'a Json, b: &'a Json, path: String, by_id: bool, out: &mut Vec<Difference<'a>>) {
     match (a, b) {
         (Json::Object(x), Json::Object(y)) => {
             let mut keys: Vec<&String> = x.keys().chain(y.keys()).collect();
@@ -106,51 +136,72 @@ fn diff(a: &Json, b: &Json, path: String, out: &mut Vec<String>) {
             keys.dedup();
             for k in keys {
                 match (x.get(k), y.get(k)) {
-                    (Some(va), Some(vb)) => diff(va, vb, join(&path, k), out),
-                    _ => out.push(join(&path, k)),
+                    (Some(va), Some(vb)) => walk(va, vb, join(&path, k), by_id, out),
+                    (old, new) => out.push(Difference {
+                        path: join(&path, k),
+                        old,
+                        new,
+                    }),
                 }
             }
         }
-        (Json::Array(x), Json::Array(y)) if all_have_ids(x) && all_have_ids(y) => {
-            diff_by_id(x, y, &path, out)
+        (Json::Array(x), Json::Array(y)) if by_id && all_have_ids(x) && all_have_ids(y) => {
+            walk_by_id(x, y, &path, out)
         }
-        _ if a != b => out.push(if path.is_empty() {
-            "(root)".into()
-        } else {
-            path
+        _ if a != b => out.push(Difference {
+            path,
+            old: Some(a),
+            new: Some(b),
         }),
         _ => {}
     }
 }
 
-fn id_of(v: &Json) -> Option<&str> {
+/// The entry of an array of tables with the given `id`.
+pub(crate) fn id_of(v: &Json) -> Option<&str> {
     v.get("id").and_then(Json::as_str)
 }
 
-fn all_have_ids(items: &[Json]) -> bool {
+/// Whether `items` is a non-empty array of tables each with an `id`.
+pub(crate) fn all_have_ids(items: &[Json]) -> bool {
     !items.is_empty() && items.iter().all(|v| id_of(v).is_some())
 }
 
-fn diff_by_id(x: &[Json], y: &[Json], path: &str, out: &mut Vec<String>) {
+fn walk_by_id<'a>(x: &'a [Json], y: &'a [Json], path: &str, out: &mut Vec<Difference<'a>>) {
     let ids_x: Vec<&str> = x.iter().filter_map(id_of).collect();
     let ids_y: Vec<&str> = y.iter().filter_map(id_of).collect();
     for item in x {
         let id = id_of(item).unwrap_or_default();
         let here = format!("{path}[{id}]");
         match y.iter().find(|v| id_of(v) == Some(id)) {
-            Some(other) => diff(item, other, here, out),
-            None => out.push(here),
+            Some(other) => walk(item, other, here, true, out),
+            None => out.push(Difference {
+                path: here,
+                old: Some(item),
+                new: None,
+            }),
         }
     }
-    for id in ids_y.iter().filter(|id| !ids_x.contains(id)) {
-        out.push(format!("{path}[{id}]"));
+    for item in y
+        .iter()
+        .filter(|v| id_of(v).is_some_and(|id| !ids_x.contains(&id)))
+    {
+        out.push(Difference {
+            path: format!("{path}[{}]", id_of(item).unwrap_or_default()),
+            old: None,
+            new: Some(item),
+        });
     }
     if ids_x
         .iter()
         .filter(|id| ids_y.contains(id))
         .ne(ids_y.iter().filter(|id| ids_x.contains(id)))
     {
-        out.push(format!("{path} (order)"));
+        out.push(Difference {
+            path: format!("{path} (order)"),
+            old: None,
+            new: None,
+        });
     }
 }
 

@@ -3,6 +3,7 @@
 //! changed, each changed key shown old → new. Used by `sworn diff` and by the run's
 //! integrity assessment against the registered version.
 
+use crate::plan::canonical::{all_have_ids, differences, id_of};
 use serde_json::Value as Json;
 
 /// How an element differs between two versions.
@@ -38,13 +39,8 @@ pub struct Change {
     pub keys: Vec<String>,
 }
 
-fn id_of(v: &Json) -> Option<&str> {
-    v.get("id").and_then(Json::as_str)
-}
-
 fn with_ids(v: &Json) -> Option<&Vec<Json>> {
-    v.as_array()
-        .filter(|a| !a.is_empty() && a.iter().all(|x| id_of(x).is_some()))
+    v.as_array().filter(|a| all_have_ids(a))
 }
 
 fn tables_only(v: &Json) -> Option<&serde_json::Map<String, Json>> {
@@ -81,36 +77,21 @@ fn show(v: &Json) -> String {
     s
 }
 
-fn key_changes(a: &Json, b: &Json, path: &str, out: &mut Vec<String>) {
-    let name = |k: &str| {
-        if path.is_empty() {
-            k.to_string()
-        } else {
-            format!("{path}.{k}")
-        }
-    };
-    match (a, b) {
-        (Json::Object(x), Json::Object(y)) => {
-            let mut keys: Vec<&String> = x.keys().chain(y.keys()).collect();
-            keys.sort();
-            keys.dedup();
-            for k in keys {
-                match (x.get(k), y.get(k)) {
-                    (Some(va), Some(vb)) => key_changes(va, vb, &name(k), out),
-                    (Some(va), None) => out.push(format!("{}: {} → (absent)", name(k), show(va))),
-                    (None, Some(vb)) => out.push(format!("{}: (absent) → {}", name(k), show(vb))),
-                    (None, None) => {}
-                }
-            }
-        }
-        _ if a != b => out.push(format!(
-            "{}: {} → {}",
-            if path.is_empty() { "(value)" } else { path },
-            show(a),
-            show(b)
-        )),
-        _ => {}
-    }
+/// Each key at which `a` and `b` differ as `key: old → new` (`(absent)` for a missing side,
+/// `(value)` when the values themselves differ), arrays compared whole.
+fn key_changes(a: &Json, b: &Json) -> Vec<String> {
+    let side = |v: Option<&Json>| v.map_or("(absent)".to_string(), show);
+    differences(a, b, false)
+        .into_iter()
+        .map(|d| {
+            let path = if d.path.is_empty() {
+                "(value)"
+            } else {
+                &d.path
+            };
+            format!("{path}: {} → {}", side(d.old), side(d.new))
+        })
+        .collect()
 }
 
 /// The names of a plan's elements (see [`element_changes`]), in canonical order.
@@ -126,8 +107,7 @@ pub fn element_changes(a: &Json, b: &Json) -> Vec<Change> {
     for (name, va) in &old {
         match new.iter().find(|(n, _)| n == name) {
             Some((_, vb)) if va != vb => {
-                let mut keys = Vec::new();
-                key_changes(va, vb, "", &mut keys);
+                let keys = key_changes(va, vb);
                 out.push(Change {
                     kind: Kind::Changed,
                     element: name.clone(),
