@@ -118,39 +118,16 @@ fn read_text_columns(file: &Path, separator: u8) -> Result<Vec<(String, Vec<Opti
         path: file.to_path_buf(),
         message,
     };
-    let frame = match ext.as_str() {
-        "csv" => CsvReadOptions::default()
-            .with_has_header(true)
-            .with_infer_schema_length(Some(0))
-            .with_parse_options(CsvParseOptions::default().with_separator(separator))
-            .try_into_reader_with_file_path(Some(file.to_path_buf()))
-            .and_then(|r| r.finish()),
-        "parquet" | "pq" => {
-            let path = file.to_path_buf();
-            // A damaged file can make the Parquet library panic; that must become an error.
-            std::panic::catch_unwind(move || {
-                std::fs::File::open(&path)
-                    .map_err(PolarsError::from)
-                    .and_then(|f| ParquetReader::new(f).finish())
-            })
-            .unwrap_or_else(|_| {
-                Err(PolarsError::ComputeError(
-                    "the Parquet reader failed on damaged metadata or pages".into(),
-                ))
-            })
-        }
+    let csv_separator = match ext.as_str() {
+        "csv" => Some(separator),
+        "parquet" | "pq" => None,
         _ => {
             return Err(data_err(format!(
                 "cannot tell the format from the extension `.{ext}`; sworn reads `.csv`, `.parquet` and `.pq` files"
             )))
         }
-    }
-    .map_err(|e| {
-        data_err(format!(
-            "cannot read the file: {}",
-            dialect::reader_message(&e.to_string(), separator)
-        ))
-    })?;
+    };
+    let frame = crate::data::read_text_frame(file, csv_separator).map_err(data_err)?;
     let mut out = Vec::new();
     for col in frame.columns() {
         let name = col.name().to_string();

@@ -358,3 +358,34 @@ fn closed_stdout_is_not_a_panic() {
         out.status
     );
 }
+
+/// `sworn init` reads a Parquet file through the same defensive reader as `run`: every damaged
+/// and truncated fixture is refused in one line naming the file, with no panic and no plan
+/// written (before, init called the library directly, without the footer and metadata checks).
+#[test]
+fn init_refuses_damaged_parquet_like_run() {
+    let good = std::fs::read(fixtures().join("weekly.parquet")).expect("fixture");
+    let mut cases: Vec<Vec<u8>> = std::fs::read_dir(fixtures().join("damaged"))
+        .expect("damaged fixtures")
+        .map(|e| std::fs::read(e.expect("entry").path()).expect("read"))
+        .collect();
+    cases.extend([0, 5, good.len() / 2].map(|keep| good[..keep].to_vec()));
+    for bytes in &cases {
+        let study = parquet_study(bytes);
+        let r = run_in(
+            study.path(),
+            &["init", "weekly.parquet", "--out", "starter.toml"],
+        );
+        no_panic(&r);
+        assert_eq!(r.code, 2, "{}{}", r.stdout, r.stderr);
+        assert!(r.stderr.contains("weekly.parquet"), "{}", r.stderr);
+        assert!(r.stderr.lines().count() == 1, "{}", r.stderr);
+        assert!(!study.path().join("starter.toml").exists());
+    }
+    let study = parquet_study(&good);
+    let r = run_in(
+        study.path(),
+        &["init", "weekly.parquet", "--out", "starter.toml"],
+    );
+    assert_eq!(r.code, 0, "{}", r.stderr);
+}
