@@ -67,17 +67,7 @@ pub fn rehearse(
     };
     let reps = replications.unwrap_or(reh.replications).max(1);
     let registered_draws = plan.resampling.map(|r| r.draws);
-    let cheaper;
-    let plan = match (reh.resampling_draws, plan.resampling) {
-        (Some(draws), Some(r)) => {
-            cheaper = Plan {
-                resampling: Some(crate::plan::Resampling { draws, ..r }),
-                ..plan.clone()
-            };
-            &cheaper
-        }
-        _ => plan,
-    };
+    let plan = &*with_rehearsal_draws(plan, reh.resampling_draws);
     let baselines = baseline::load(plan)?;
     let baselines = &baselines;
     let total = reps * reh.effects.len();
@@ -106,20 +96,7 @@ pub fn rehearse(
             out
         })
         .collect::<Result<_>>()?;
-    if let Some(all_failed) = outcomes
-        .iter()
-        .all(|o| o.failed.is_some())
-        .then(|| outcomes[0].failed.clone())
-        .flatten()
-    {
-        return Err(Error::Plan {
-            path: plan.path.clone(),
-            line: 1,
-            column: 1,
-            key: "rehearsal".into(),
-            message: format!("the registered analysis failed on every simulated data set; the first failure: {all_failed}. Check the data-generating process"),
-        });
-    }
+    refuse_if_all_failed(plan, &outcomes)?;
     let per_effect: Vec<&[Outcome]> = outcomes.chunks(reps).collect();
     let mut r = summary::summarise(plan, registered_draws, reh, reps, &per_effect)?;
     r.set_baselines(
@@ -136,6 +113,33 @@ pub fn rehearse(
         search::refine(plan, &mut r, reh.mde_steps, &step)?;
     }
     Ok(r)
+}
+
+/// The plan a rehearsal runs: the registered one, with `[rehearsal]`'s cheaper number of
+/// resampling draws when it gives one (and the plan resamples).
+fn with_rehearsal_draws(plan: &Plan, draws: Option<usize>) -> std::borrow::Cow<'_, Plan> {
+    match (draws, plan.resampling) {
+        (Some(draws), Some(r)) => std::borrow::Cow::Owned(Plan {
+            resampling: Some(crate::plan::Resampling { draws, ..r }),
+            ..plan.clone()
+        }),
+        _ => std::borrow::Cow::Borrowed(plan),
+    }
+}
+
+/// An error naming the first failure when the analysis failed on every simulated data set.
+fn refuse_if_all_failed(plan: &Plan, outcomes: &[Outcome]) -> Result<()> {
+    let first = outcomes.first().and_then(|o| o.failed.clone());
+    match first {
+        Some(failure) if outcomes.iter().all(|o| o.failed.is_some()) => Err(Error::Plan {
+            path: plan.path.clone(),
+            line: 1,
+            column: 1,
+            key: "rehearsal".into(),
+            message: format!("the registered analysis failed on every simulated data set; the first failure: {failure}. Check the data-generating process"),
+        }),
+        _ => Ok(()),
+    }
 }
 
 /// The same simulated tables a rehearsal analyses (for tests and inspection).
