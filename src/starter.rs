@@ -357,6 +357,25 @@ fn table_text(t: &mut String, table: &TableProfile) {
         "# {} rows read; state the rows you expect, e.g. rows = {{ min = …, max = … }}",
         table.rows
     );
+    key_lines(t, table);
+    let _ = writeln!(t, "\n[data.{}.columns]", table.id);
+    let width = table
+        .columns
+        .iter()
+        .map(|c| toml_key(&c.name).chars().count())
+        .max()
+        .unwrap_or(0);
+    for c in &table.columns {
+        let key = toml_key(&c.name);
+        let pad = " ".repeat(width - key.chars().count());
+        let decl = format!("{{ kind = \"{}\" }}", c.kind);
+        let _ = writeln!(t, "{key}{pad} = {decl:<22} # {}", observed(c));
+    }
+}
+
+/// The table's key (the one complete and unique id column), or a comment naming the
+/// candidates; and a commented `order_by` when a numeric column could order a series.
+fn key_lines(t: &mut String, table: &TableProfile) {
     let keys: Vec<&ColumnProfile> = table.columns.iter().filter(|c| c.key_candidate).collect();
     match keys.iter().find(|c| c.kind == "id") {
         Some(k) => {
@@ -386,19 +405,6 @@ fn table_text(t: &mut String, table: &TableProfile) {
             "# order_by = {}   # for a series: the row order that lag() and diff() follow",
             quoted(&order.name)
         );
-    }
-    let _ = writeln!(t, "\n[data.{}.columns]", table.id);
-    let width = table
-        .columns
-        .iter()
-        .map(|c| toml_key(&c.name).chars().count())
-        .max()
-        .unwrap_or(0);
-    for c in &table.columns {
-        let key = toml_key(&c.name);
-        let pad = " ".repeat(width - key.chars().count());
-        let decl = format!("{{ kind = \"{}\" }}", c.kind);
-        let _ = writeln!(t, "{key}{pad} = {decl:<22} # {}", observed(c));
     }
 }
 
