@@ -143,6 +143,22 @@ pub fn read_text_capped(path: &Path, links: Links, cap: u64) -> Result<String> {
     })
 }
 
+/// Hex SHA-256 of some bytes.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    hex(&Sha256::digest(bytes))
+}
+
+/// Lower-case hex of some bytes.
+pub fn hex(bytes: &[u8]) -> String {
+    const DIGITS: &[u8; 16] = b"0123456789abcdef";
+    let mut out = String::with_capacity(2 * bytes.len());
+    for b in bytes {
+        out.push(char::from(DIGITS[usize::from(b >> 4)]));
+        out.push(char::from(DIGITS[usize::from(b & 15)]));
+    }
+    out
+}
+
 /// Hex SHA-256 of a regular file, read in blocks (memory does not grow with the file).
 ///
 /// # Errors
@@ -160,7 +176,7 @@ pub fn sha256_streamed(path: &Path, links: Links) -> Result<String> {
         }
         hasher.update(&buf[..n]);
     }
-    Ok(crate::ledger::hex(&hasher.finalize()))
+    Ok(hex(&hasher.finalize()))
 }
 
 #[cfg(all(test, unix))]

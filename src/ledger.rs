@@ -14,7 +14,6 @@ pub use store::{Ledger, Locked, MAX_BAD};
 
 use crate::error::{Error, Result};
 use serde::{Deserialize, Serialize};
-use sha2::{Digest, Sha256};
 use std::collections::BTreeMap;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -22,28 +21,7 @@ use std::path::{Path, PathBuf};
 /// The version of this tool, recorded in every entry and output.
 pub const TOOL_VERSION: &str = env!("CARGO_PKG_VERSION");
 
-/// Hex SHA-256 of some bytes.
-pub fn sha256_hex(bytes: &[u8]) -> String {
-    hex(&Sha256::digest(bytes))
-}
-
-/// Lower-case hex of some bytes.
-pub fn hex(bytes: &[u8]) -> String {
-    const DIGITS: &[u8; 16] = b"0123456789abcdef";
-    let mut out = String::with_capacity(2 * bytes.len());
-    for b in bytes {
-        out.push(char::from(DIGITS[usize::from(b >> 4)]));
-        out.push(char::from(DIGITS[usize::from(b & 15)]));
-    }
-    out
-}
-
-/// Hex SHA-256 of a file's bytes.
-pub fn file_sha256(path: &Path) -> Result<String> {
-    let bytes = std::fs::read(path)
-        .map_err(|e| Error::io(path, "cannot read the file to fingerprint it", e))?;
-    Ok(sha256_hex(&bytes))
-}
+pub use crate::files::{hex, sha256_hex};
 
 /// The plan's two fingerprints and its canonical form.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

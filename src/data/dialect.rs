@@ -4,16 +4,7 @@
 use std::io::Read;
 use std::path::Path;
 
-/// The text values read as missing when a table declares no `missing` list.
-pub const DEFAULT_MISSING: [&str; 3] = ["", "NA", "."];
-
-/// Separators sworn reads: (value in the plan, byte, how messages show it).
-pub const SEPARATORS: [(&str, u8, &str); 4] = [
-    (",", b',', "\",\""),
-    (";", b';', "\";\""),
-    ("\t", b'\t', "\"\\t\" (a tab)"),
-    ("|", b'|', "\"|\""),
-];
+pub use crate::plan::{DEFAULT_MISSING, SEPARATORS};
 
 /// How a separator is written in a plan.
 pub fn shown(separator: u8) -> &'static str {

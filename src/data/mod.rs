@@ -14,7 +14,6 @@ mod read;
 
 pub use design::{cov_spec, design, CovSpecGap, Design};
 pub use labels::{IdOrder, Labels, TooManyLabels};
-pub(crate) use read::needed_columns;
 pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};
 
 use std::collections::BTreeMap;

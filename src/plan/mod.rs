@@ -8,6 +8,7 @@
 //! every expression has been parsed. Nothing here reads data. The structs are plain data.
 
 pub mod canonical;
+mod columns;
 pub mod compare;
 pub mod raw;
 mod source;
@@ -20,6 +21,7 @@ use std::collections::BTreeMap;
 use std::path::PathBuf;
 
 pub use crate::suggest::{closest, hint as suggest_hint};
+pub use columns::needed_columns;
 pub use source::SourceMap;
 pub use validate::rehearsal::EFFECT;
 pub use validate::scope::spec_terms;
@@ -256,6 +258,20 @@ pub enum DataFormat {
     /// Apache Parquet.
     Parquet,
 }
+
+/// The text values read as missing when a table declares no `missing` list.
+pub const DEFAULT_MISSING: [&str; 3] = ["", "NA", "."];
+
+/// Separators a table may declare: (value in the plan, byte, how messages show it).
+pub const SEPARATORS: [(&str, u8, &str); 4] = [
+    (",", b',', "\",\""),
+    (";", b';', "\";\""),
+    ("\t", b'\t', "\"\\t\" (a tab)"),
+    ("|", b'|', "\"|\""),
+];
+
+/// The rows a report table's `summary_rows` may add (the report formats each).
+pub const SUMMARY_ROWS: [&str; 3] = ["first-stage-strength", "comparison-mean", "take-up-by-arm"];
 
 /// A declared data table.
 #[derive(Debug, Clone)]

@@ -69,7 +69,7 @@ fn one(plan: &Plan, table: &str, g: &Generator, b: &BaselineFile) -> Result<Load
     refuse_ledger_copy(plan, table, b, &columns.sha256)?;
     refuse_clash(plan, table, g, b, &columns)?;
     refuse_unknown_names(plan, table, g, b, &columns, &simulated)?;
-    let needed = crate::data::needed_columns(plan, src);
+    let needed = crate::plan::needed_columns(plan, src);
     if let Some(n) = needed
         .iter()
         .find(|n| !simulated.contains(n.as_str()) && !columns.columns.contains_key(n.as_str()))

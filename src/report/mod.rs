@@ -17,7 +17,6 @@ mod summary_rows;
 
 pub use format::{num, pval, set_text, tex, tex_breakable};
 pub use model::{integrity_line, ReportModel};
-pub use summary_rows::NAMES as SUMMARY_ROWS;
 
 use crate::error::{Error, Result};
 use crate::plan::Plan;

@@ -5,9 +5,6 @@
 use super::format::num;
 use crate::results::{ArmMean, ArmStdError, SpecResult, TakeUpMissing};
 
-/// The valid `summary_rows` entries (the plan validator offers these).
-pub const NAMES: [&str; 3] = ["first-stage-strength", "comparison-mean", "take-up-by-arm"];
-
 /// The rows entry `row` adds: a label and one cell per column (blank where the column has no
 /// such value; "n/a" and a short reason where it could have one but does not, the full reason
 /// in the notes).

@@ -181,7 +181,7 @@ fn generator(
     }
     // With a baseline, the columns not simulated come from the file: they are checked
     // against its header when it is read (crate::rehearse), not here.
-    let needed = crate::data::needed_columns(plan, src);
+    let needed = crate::plan::needed_columns(plan, src);
     if let Some(n) = needed
         .iter()
         .find(|n| baseline.is_none() && !parsed.contains_key(*n))

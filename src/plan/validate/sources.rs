@@ -173,7 +173,7 @@ fn dialect(
     key: &dyn Fn(&str) -> String,
     format: DataFormat,
 ) -> Result<Dialect> {
-    use crate::data::dialect::DEFAULT_MISSING;
+    use crate::plan::DEFAULT_MISSING;
     if format == DataFormat::Parquet {
         for (k, v) in [("separator", &d.separator), ("decimal", &d.decimal)] {
             if let Some(v) = v {
@@ -216,7 +216,7 @@ fn dialect(
 
 /// The CSV field separator: a comma unless one of `dialect::SEPARATORS` is stated.
 fn separator(ctx: &Ctx, d: &RawData, key: &dyn Fn(&str) -> String) -> Result<u8> {
-    use crate::data::dialect::SEPARATORS;
+    use crate::plan::SEPARATORS;
     Ok(match &d.separator {
         None => b',',
         Some(v) => match SEPARATORS.iter().find(|(text, _, _)| *text == v.get_ref()) {

@@ -42,7 +42,7 @@ pub(super) fn tables(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Table>
                 .summary_rows
                 .iter()
                 .map(|r| {
-                    ctx.one_of(r, &key("summary_rows"), &crate::report::SUMMARY_ROWS)
+                    ctx.one_of(r, &key("summary_rows"), &crate::plan::SUMMARY_ROWS)
                         .map(|()| r.get_ref().clone())
                 })
                 .collect::<Result<_>>()?,
