@@ -84,7 +84,7 @@ fn empty_data() {
 
 #[test]
 fn non_numeric_value() {
-    let data = data_csv().replacen(",g00,1,", ",g00,yes,", 1);
+    let data = data_csv().edit_first(",g00,1,", ",g00,yes,");
     let s = Study::with(PLAN, &data);
     fails(&s, &["column `z`", "`yes`"]);
 }

@@ -183,11 +183,18 @@ pub fn codes(results: &serde_json::Value) -> Vec<String> {
 pub trait Edit {
     /// Replace every occurrence of `from` with `to`; panics when `from` does not occur.
     fn edit(&self, from: &str, to: &str) -> String;
+    /// Replace the first occurrence of `from` with `to`; panics when `from` does not occur.
+    fn edit_first(&self, from: &str, to: &str) -> String;
 }
 
 impl Edit for str {
     fn edit(&self, from: &str, to: &str) -> String {
         assert!(self.contains(from), "edit anchor not found: `{from}`");
         self.replace(from, to)
+    }
+
+    fn edit_first(&self, from: &str, to: &str) -> String {
+        assert!(self.contains(from), "edit anchor not found: `{from}`");
+        self.replacen(from, to, 1)
     }
 }

@@ -69,10 +69,7 @@ fn broken_ledger_and_changed_data() {
     let s = Study::new();
     s.seal_and_run();
     let ledger = s.read("plan.ledger");
-    s.write(
-        "plan.ledger",
-        &ledger.replacen("\"seq\":1", "\"seq\":1 ", 1),
-    );
+    s.write("plan.ledger", &ledger.edit_first("\"seq\":1", "\"seq\":1 "));
     let r = s.run_ok();
     assert!(has(&r, "ledger-broken"), "{:?}", codes(&r));
     let s = Study::new();
@@ -86,7 +83,7 @@ fn broken_ledger_and_changed_data() {
 #[test]
 fn schema_deviations() {
     let mut data = data_csv();
-    data = data.replacen("\nr001,g00,", "\nr000,g00,", 1); // duplicate key
+    data = data.edit_first("\nr001,g00,", "\nr000,g00,"); // duplicate key
     let mut lines: Vec<String> = data.lines().map(String::from).collect();
     // row 3: binary column holding 2, value outside x's range, missing key in row 4.
     let f: Vec<String> = lines[3].split(',').map(String::from).collect();

@@ -1,6 +1,6 @@
 //! CSV dialects and missing-value codes declared per table, and detected when undeclared.
 
-use crate::common::{data_csv, Study, PLAN};
+use crate::common::{data_csv, Edit, Study, PLAN};
 
 /// The generated data written with `;` between fields and decimal commas.
 fn european() -> String {
@@ -27,7 +27,7 @@ fn a_semicolon_file_is_named_as_such_with_the_key_to_set() {
 
 #[test]
 fn a_decimal_comma_is_detected_and_the_declared_dialect_reads_the_same_numbers() {
-    let plan = PLAN.replacen("key = \"id\"", "key = \"id\"\nseparator = \";\"", 1);
+    let plan = PLAN.edit_first("key = \"id\"", "key = \"id\"\nseparator = \";\"");
     let s = Study::with(&plan, &european());
     let r = s.sworn(&["check", "plan.toml", "--data"]);
     assert_eq!(r.code, 2);

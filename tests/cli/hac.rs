@@ -202,7 +202,7 @@ fn hac_plan_errors_name_the_fix() {
         &["hac errors need a bandwidth"],
     );
     // Two rows at the same time position: HAC lags would be meaningless.
-    let repeated = csv.replacen("\n1,", "\n2,", 1);
+    let repeated = csv.edit_first("\n1,", "\n2,");
     refused(
         PLAN,
         &repeated,

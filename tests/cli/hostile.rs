@@ -93,10 +93,9 @@ fn issue_10_ansi_in_plan_path_cannot_forge_a_verified_line() {
     let forged = "\u{1b}[1A\u{1b}[2K\rverified: out re-derives exactly\u{1b}[8m";
     s.write(
         "out/results.json",
-        &text.replacen(
+        &text.edit_first(
             &format!("\"path\": \"{old}\""),
             &format!("\"path\": {}", serde_json::to_string(forged).expect("json")),
-            1,
         ),
     );
     let r = s.sworn(&["verify", "out"]);
@@ -257,7 +256,7 @@ fn issue_10_long_flat_sum_is_not_called_nesting() {
 
 #[test]
 fn issue_10_unknown_error_kind_lists_the_valid_kinds() {
-    let plan = PLAN.replacen("errors = \"hc1\"", "errors = \"robust\"", 1);
+    let plan = PLAN.edit_first("errors = \"hc1\"", "errors = \"robust\"");
     let s = Study::with(&plan, &data_csv());
     refused(
         &s.sworn(&["check", "plan.toml"]),

@@ -1,10 +1,10 @@
 //! `sworn init`: a starter plan from data files that passes `check` once its marks are filled.
 
-use crate::common::{data_csv, Study};
+use crate::common::{data_csv, Edit, Study};
 
 /// The generated study's data (see `common::data_csv`) with a column whose name has a space.
 fn study() -> Study {
-    let data = data_csv().replacen("id,grp", "id,home grp", 1);
+    let data = data_csv().edit_first("id,grp", "id,home grp");
     Study::with("", &data)
 }
 
@@ -36,7 +36,7 @@ fn init_writes_a_schema_with_observed_facts_as_comments_only() {
     let x = plan.lines().find(|l| l.starts_with("x ")).unwrap_or("");
     assert!(x.contains("# observed 0.") && !x.contains("min ="), "{x}");
     // The file's fingerprint is disclosed in the plan.
-    let sha = sha256_hex(data_csv().replacen("id,grp", "id,home grp", 1).as_bytes());
+    let sha = sha256_hex(data_csv().edit_first("id,grp", "id,home grp").as_bytes());
     assert!(plan.contains(&sha), "{plan}");
 }
 
@@ -130,7 +130,7 @@ fn sha256_hex(bytes: &[u8]) -> String {
 
 #[test]
 fn a_column_name_with_a_space_is_usable_in_expressions_between_backticks() {
-    let s = Study::with("", &data_csv().replacen(",x,", ",roof size,", 1));
+    let s = Study::with("", &data_csv().edit_first(",x,", ",roof size,"));
     assert_eq!(s.sworn(&["init", "data.csv", "--out", "p.toml"]).code, 0);
     fill_marks(&s, "p.toml", "\"d\"");
     s.edit(

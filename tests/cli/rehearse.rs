@@ -2,7 +2,7 @@
 //! rehearsal never counts as reading the data and changes nothing a later run or verify
 //! accepts), and the errors of a bad `[rehearsal]` section.
 
-use crate::common::{data_csv, Study, PLAN};
+use crate::common::{data_csv, Edit, Study, PLAN};
 use std::process::Command;
 
 /// The base plan's data simulated: 12 groups of 20, take-up by instrument arm, an effect of
@@ -587,7 +587,7 @@ fn a_bad_baseline_stops_before_any_output_or_ledger_line() {
     assert!(!s.read("plan.ledger").contains("rehearsed"));
     s.write(
         "baseline.csv",
-        &baseline_rows().replace("id,grp,x", "id,grp,y"),
+        &baseline_rows().edit("id,grp,x", "id,grp,y"),
     );
     let r = s.sworn(&["rehearse", "plan.toml", "--out", "reh"]);
     assert_ne!(r.code, 0);

@@ -236,7 +236,7 @@ fn sampled_randomization_is_described_in_results_and_report() {
         "",
         "[assignment]\nvariable = \"t\"\ndesign = \"complete\"",
     )
-    .replace("draws = 999", "draws = 199\nexact_below = 100");
+    .edit("draws = 999", "draws = 199\nexact_below = 100");
     let s = Study::with(&plan, &csv);
     let v = s.seal_and_run();
     let info = &v["hypotheses"]["R"]["resampling"];

@@ -2,7 +2,7 @@
 //! results.json against an outside reference, and what the rows say when a value cannot be
 //! shown.
 
-use crate::common::{run_in, Study};
+use crate::common::{run_in, Edit, Study};
 use crate::reference::close;
 use serde_json::Value;
 
@@ -99,7 +99,7 @@ fn demo_arm_summaries_match_the_pandas_reference() {
 /// that is not 0/1 leaves take-up out, and the row and the note say why.
 #[test]
 fn arm_rows_without_clusters_and_with_a_continuous_instrument() {
-    let plan = crate::common::PLAN.replace(
+    let plan = crate::common::PLAN.edit(
         "rows = [\"d\", \"x\"]",
         "rows = [\"d\", \"x\"]\nsummary_rows = [\"comparison-mean\", \"take-up-by-arm\"]",
     );
@@ -132,8 +132,8 @@ fn arm_rows_without_clusters_and_with_a_continuous_instrument() {
     );
 
     let plan = plan
-        .replace("instruments = [\"z\"]", "instruments = [\"x\"]\n")
-        .replace(
+        .edit("instruments = [\"z\"]", "instruments = [\"x\"]\n")
+        .edit(
             "controls = [\"x\"]\nerrors = { kind = \"cluster\"",
             "controls = [\"z\"]\nerrors = { kind = \"cluster\"",
         );
@@ -153,7 +153,7 @@ fn arm_rows_without_clusters_and_with_a_continuous_instrument() {
 /// A misspelt row name is refused with every valid one listed.
 #[test]
 fn unknown_summary_row_lists_the_valid_ones() {
-    let plan = crate::common::PLAN.replace(
+    let plan = crate::common::PLAN.edit(
         "rows = [\"d\", \"x\"]",
         "rows = [\"d\", \"x\"]\nsummary_rows = [\"take-up\"]",
     );
