@@ -1,3 +1,5 @@
+// Over 500 lines because it is one suite over the resampling module: the hand-checked cases,
+// the p-value convention and the fast paths checked against full refits share their fixtures.
 //! Hand-checked counts and enumerations, the p-value convention, determinism, Monte Carlo
 //! agreement with the exact p-values, and agreement of the partialled fast paths with full
 //! refits by the crate's own `ols` / `anderson_rubin` (themselves checked against
