@@ -190,7 +190,7 @@ impl StockYogoCriterion {
 }
 
 spelled! {
-    /// The shape of an Anderson–Rubin set.
+    /// The shape of a confidence set from an inverted test (Anderson–Rubin, LM, CLR).
     pub enum ArShape {
         /// One bounded interval.
         Bounded = "bounded",

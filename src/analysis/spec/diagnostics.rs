@@ -241,7 +241,15 @@ impl IvContext<'_> {
         });
         // Undefined statistics (an exact fit, Q_T = 0) leave `lm_clr` null; the
         // identification panel says so.
-        if let (CovSpec::Classical, Ok(t)) = (cov, self.iv.lm_clr(ab, 0.0)) {
+        let lm_clr = match cov {
+            CovSpec::Classical => self
+                .iv
+                .lm_clr(ab, 0.0)
+                .and_then(|t| Ok((t, self.iv.lm_clr_sets(ab, spec.confidence)?)))
+                .ok(),
+            _ => None,
+        };
+        if let Some((t, sets)) = lm_clr {
             result.lm_clr = Some(LmClrResult {
                 null: t.beta0,
                 errors: LmClrErrors::Homoskedastic,
@@ -253,6 +261,11 @@ impl IvContext<'_> {
                 clr_statistic: t.clr.statistic,
                 clr_conditioning: t.clr.conditioning,
                 clr_p_value: t.clr.p_value,
+                confidence: spec.confidence,
+                lm_shape: shape_name(&sets.lm),
+                lm_set: set_pieces(&sets.lm),
+                clr_shape: shape_name(&sets.clr),
+                clr_set: set_pieces(&sets.clr),
             });
         }
         self.needs
