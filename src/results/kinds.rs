@@ -386,6 +386,8 @@ spelled! {
         Normal = "normal",
         /// The Anderson–Rubin test.
         AndersonRubin = "anderson-rubin",
+        /// Moreira's conditional likelihood ratio test (homoskedastic).
+        Clr = "clr",
         /// The tF procedure.
         Tf = "tf",
         /// A randomization test.

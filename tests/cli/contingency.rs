@@ -120,19 +120,19 @@ direction = "greater"
     )
 }
 
-fn weak_rule(then: &str) -> String {
+pub(crate) fn weak_rule(then: &str) -> String {
     format!(
         "\n[[contingency]]\nid = \"weak\"\nspecification = \"iv\"\nwhen = {{ weak_instruments = {{ below = 10.0 }} }}\nthen = \"{then}\"\n"
     )
 }
 
-fn run(plan: &str, data: &str) -> (Study, Value) {
+pub(crate) fn run(plan: &str, data: &str) -> (Study, Value) {
     let s = Study::with(plan, data);
     let v = s.seal_and_run();
     (s, v)
 }
 
-fn check_fails(plan: &str, expect: &[&str]) {
+pub(crate) fn check_fails(plan: &str, expect: &[&str]) {
     let s = Study::with(plan, &Gen::default().csv());
     let r = s.sworn(&["check", "plan.toml"]);
     assert_eq!(r.code, 2, "expected exit 2: {}{}", r.stdout, r.stderr);
@@ -231,7 +231,7 @@ fn actions_that_do_not_fit_the_specification_fail_at_check() {
     );
 }
 
-fn spec<'a>(v: &'a Value, id: &str) -> &'a Value {
+pub(crate) fn spec<'a>(v: &'a Value, id: &str) -> &'a Value {
     &v["specifications"][id]
 }
 
