@@ -20,7 +20,7 @@
 //! i.e. Q_T = 0, LM is 0/0 and F = 0 by Cauchy–Schwarz, so such a point counts as inside).
 //! F(1, −t) is a polynomial of degree ≤ 4 in t whose coefficients come from products of the
 //! three quadratic forms. Its real roots (eigenvalues of the companion matrix, those with
-//! imaginary part below 1e-6 of their modulus kept as candidates) cut the line into
+//! imaginary part below 1e-6 of max(modulus, 1) kept as candidates) cut the line into
 //! intervals; each is classified by the sign of F at its midpoint (in θ = atan t, so the two
 //! end intervals meet at β₀ = ∞, classified by F(0, 1) — the exact limit). Each change of
 //! membership is then located by bisection in θ on the sign of F between the two midpoints
@@ -332,7 +332,7 @@ impl Forms {
 
 /// Real roots of the polynomial with ascending coefficients `c` (trailing coefficients below
 /// 1e-14 of the largest are dropped first): eigenvalues of the companion matrix whose
-/// imaginary part is below 1e-6 of their modulus (candidates only; the caller classifies).
+/// imaginary part is below 1e-6 of max(modulus, 1) (candidates only; the caller classifies).
 fn real_roots(c: &[f64]) -> Vec<f64> {
     let big = c.iter().fold(0.0f64, |m, v| m.max(v.abs()));
     if !(big > 0.0 && big.is_finite()) {
