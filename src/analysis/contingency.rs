@@ -36,7 +36,8 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
         }
         match &c.action {
             Action::Liml => n.liml = true,
-            Action::AndersonRubin => ar_nulls(plan, c, n),
+            Action::AndersonRubin => n.ar_nulls.extend(endog_nulls(plan, c, &n.ar_nulls)),
+            Action::Clr => n.clr_nulls.extend(endog_nulls(plan, c, &n.clr_nulls)),
             Action::WildBootstrap => wild_bootstrap_needs(plan, c, n),
             Action::Tf | Action::UseSpecification(_) => {}
         }
@@ -58,16 +59,19 @@ pub fn needs(plan: &Plan) -> BTreeMap<String, Needs> {
     out
 }
 
-/// An Anderson–Rubin rule needs the AR test at the null of every hypothesis on the
-/// specification's endogenous regressor.
-fn ar_nulls(plan: &Plan, c: &Contingency, n: &mut Needs) {
+/// An Anderson–Rubin or CLR rule needs its test at the null of every hypothesis on the
+/// specification's endogenous regressor: the nulls not yet in `have`.
+fn endog_nulls(plan: &Plan, c: &Contingency, have: &[f64]) -> Vec<f64> {
     let spec = plan.specifications.iter().find(|s| s.id == c.specification);
+    let mut out: Vec<f64> = Vec::new();
     for h in &plan.hypotheses {
         let on_endog = spec.is_some_and(|s| s.endogenous.contains(&h.term));
-        if h.specification == c.specification && on_endog && !n.ar_nulls.contains(&h.null) {
-            n.ar_nulls.push(h.null);
+        let new = !have.contains(&h.null) && !out.contains(&h.null);
+        if h.specification == c.specification && on_endog && new {
+            out.push(h.null);
         }
     }
+    out
 }
 
 /// A wild-bootstrap rule needs a bootstrap test of every model-based hypothesis it may
@@ -234,6 +238,9 @@ fn action_words(a: &Action) -> String {
     match a {
         Action::AndersonRubin => {
             "hypotheses on the endogenous regressor use the Anderson–Rubin test and set".into()
+        }
+        Action::Clr => {
+            "hypotheses on the endogenous regressor use the conditional LR test and set (homoskedastic errors)".into()
         }
         Action::Liml => "hypotheses on the endogenous regressor use the LIML estimate".into(),
         Action::Tf => {

@@ -120,7 +120,7 @@ impl ConfidenceSet {
     }
 
     /// Sorts and merges touching or overlapping pieces.
-    fn normalised(mut pieces: Vec<(f64, f64)>) -> Self {
+    pub(in crate::estimate) fn normalised(mut pieces: Vec<(f64, f64)>) -> Self {
         pieces.sort_by(|a, b| a.0.total_cmp(&b.0));
         let mut out: Vec<(f64, f64)> = Vec::with_capacity(pieces.len());
         for (lo, hi) in pieces {
@@ -487,5 +487,6 @@ fn partial_out(z: &DMatrix<f64>, w: &DMatrix<f64>, qr: Option<&PivotedQr>) -> DM
 #[cfg(test)]
 mod curve_tests;
 mod set;
+pub(in crate::estimate) use set::{bisect, golden};
 #[cfg(test)]
 mod tests;

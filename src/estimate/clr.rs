@@ -212,5 +212,10 @@ fn simpson(
         + simpson(f, mid, b, fm, frm, fb, right, 0.5 * tol, depth + 1)
 }
 
+mod set;
+pub use set::{LmClrSets, CLR_GRID};
+
+#[cfg(test)]
+mod set_tests;
 #[cfg(test)]
 mod tests;

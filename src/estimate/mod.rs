@@ -65,7 +65,9 @@ pub use absorb::{
 pub use anderson_rubin::{
     anderson_rubin, anderson_rubin_curve, AndersonRubin, ArProblem, ConfidenceSet, SetShape,
 };
-pub use clr::{clr_p_value, ConditionalLr, LmClr, QUADRATURE_DEPTH, QUADRATURE_TOLERANCE};
+pub use clr::{
+    clr_p_value, ConditionalLr, LmClr, LmClrSets, CLR_GRID, QUADRATURE_DEPTH, QUADRATURE_TOLERANCE,
+};
 pub use covariance::CovSpec;
 pub use diagnostics::{
     endogeneity, first_stages, hansen_j, overidentification, reduced_form, Endogeneity, FirstStage,

@@ -587,6 +587,9 @@ pub enum Trigger {
 pub enum Action {
     /// Test with the Anderson–Rubin statistic; the interval is the AR set.
     AndersonRubin,
+    /// Test with Moreira's conditional LR statistic (homoskedastic); the interval is the
+    /// CLR set.
+    Clr,
     /// Re-estimate by LIML and test its t-ratio.
     Liml,
     /// Compare the 2SLS t-ratio with the tF critical value.
@@ -602,6 +605,7 @@ impl Action {
     pub fn name(&self) -> String {
         match self {
             Action::AndersonRubin => "anderson-rubin".into(),
+            Action::Clr => "clr".into(),
             Action::Liml => "liml".into(),
             Action::Tf => "tf".into(),
             Action::UseSpecification(s) => s.clone(),

@@ -36,7 +36,7 @@ pub struct HypothesisResult {
     pub family: Option<String>,
     /// Correction used.
     pub correction: crate::inference::Correction,
-    /// "t" | "normal" | "anderson-rubin" | "tf".
+    /// "t" | "normal" | "anderson-rubin" | "clr" | "tf" | "randomization" | "wild-bootstrap".
     pub method: TestMethod,
     /// Estimator of the tested estimate ("ols", "2sls", "liml", "fuller").
     pub estimator: EstimatorKind,

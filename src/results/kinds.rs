@@ -190,7 +190,7 @@ impl StockYogoCriterion {
 }
 
 spelled! {
-    /// The shape of an Anderson–Rubin set.
+    /// The shape of a confidence set from an inverted test (Anderson–Rubin, LM, CLR).
     pub enum ArShape {
         /// One bounded interval.
         Bounded = "bounded",
@@ -386,6 +386,8 @@ spelled! {
         Normal = "normal",
         /// The Anderson–Rubin test.
         AndersonRubin = "anderson-rubin",
+        /// Moreira's conditional likelihood ratio test (homoskedastic).
+        Clr = "clr",
         /// The tF procedure.
         Tf = "tf",
         /// A randomization test.

@@ -289,6 +289,18 @@ pub struct LmClrResult {
     /// P(CLR > clr_statistic | Q_T = clr_conditioning) under the null, by numerical
     /// integration of the conditional law (`estimate::clr_p_value`).
     pub clr_p_value: f64,
+    /// Confidence level of the two sets (the specification's).
+    pub confidence: f64,
+    /// Shape of `lm_set`.
+    pub lm_shape: ArShape,
+    /// {β₀ : LM(β₀) ≤ χ²(1) quantile}, disjoint pieces in increasing order (exact roots of a
+    /// quartic, `estimate/clr/set.rs`).
+    pub lm_set: Vec<SetPiece>,
+    /// Shape of `clr_set`.
+    pub clr_shape: ArShape,
+    /// {β₀ : CLR p-value(β₀) ≥ 1 − confidence}, disjoint pieces in increasing order (scan in
+    /// θ with bisection, `estimate/clr/set.rs`).
+    pub clr_set: Vec<SetPiece>,
 }
 
 /// The Anderson–Rubin statistic on a grid of hypothesised coefficient values.

@@ -120,19 +120,19 @@ direction = "greater"
     )
 }
 
-fn weak_rule(then: &str) -> String {
+pub(crate) fn weak_rule(then: &str) -> String {
     format!(
         "\n[[contingency]]\nid = \"weak\"\nspecification = \"iv\"\nwhen = {{ weak_instruments = {{ below = 10.0 }} }}\nthen = \"{then}\"\n"
     )
 }
 
-fn run(plan: &str, data: &str) -> (Study, Value) {
+pub(crate) fn run(plan: &str, data: &str) -> (Study, Value) {
     let s = Study::with(plan, data);
     let v = s.seal_and_run();
     (s, v)
 }
 
-fn check_fails(plan: &str, expect: &[&str]) {
+pub(crate) fn check_fails(plan: &str, expect: &[&str]) {
     let s = Study::with(plan, &Gen::default().csv());
     let r = s.sworn(&["check", "plan.toml"]);
     assert_eq!(r.code, 2, "expected exit 2: {}{}", r.stdout, r.stderr);
@@ -231,7 +231,7 @@ fn actions_that_do_not_fit_the_specification_fail_at_check() {
     );
 }
 
-fn spec<'a>(v: &'a Value, id: &str) -> &'a Value {
+pub(crate) fn spec<'a>(v: &'a Value, id: &str) -> &'a Value {
     &v["specifications"][id]
 }
 
@@ -435,8 +435,22 @@ fn classical_errors_add_the_lm_and_clr_tests_and_robust_errors_say_why_not() {
     }
     assert!(lc["clr_statistic"].as_f64().expect("clr") >= 0.0, "{lc}");
     assert!(lc["clr_conditioning"].as_f64().expect("q_t") > 0.0, "{lc}");
+    for key in ["lm", "clr"] {
+        let shape = lc[format!("{key}_shape")].as_str().expect("shape");
+        assert!(
+            ["bounded", "two-rays", "whole-line", "empty", "union"].contains(&shape),
+            "{lc}"
+        );
+        assert!(lc[format!("{key}_set")].is_array(), "{lc}");
+    }
+    assert_eq!(lc["confidence"], 0.95, "{lc}");
     let report = s.read("out/report.md");
     assert!(report.contains("Kleibergen LM test of `d` = 0"), "{report}");
+    assert!(
+        report.contains("Kleibergen LM 95% confidence set")
+            && report.contains("Moreira conditional LR 95% confidence set"),
+        "{report}"
+    );
     assert!(
         report.contains("Moreira conditional LR test of `d` = 0"),
         "{report}"
@@ -452,6 +466,24 @@ fn classical_errors_add_the_lm_and_clr_tests_and_robust_errors_say_why_not() {
         (clr - ar).abs() <= 1e-9 * ar && (lm - ar).abs() <= 1e-9 * ar,
         "{ar} {clr} {lm}"
     );
+    // ... so the two sets are the same set {Q_S ≤ χ²(1) quantile}, one found exactly and
+    // one by the scan.
+    let (lm_set, clr_set) = (&iv["lm_clr"]["lm_set"], &iv["lm_clr"]["clr_set"]);
+    let ends = |v: &Value| -> Vec<Option<f64>> {
+        let pieces = v.as_array().expect("pieces");
+        pieces
+            .iter()
+            .flat_map(|p| [p["lower"].as_f64(), p["upper"].as_f64()])
+            .collect()
+    };
+    let (a, b) = (ends(lm_set), ends(clr_set));
+    assert_eq!(a.len(), b.len(), "{lm_set} {clr_set}");
+    for (x, y) in a.iter().zip(&b) {
+        match (x, y) {
+            (Some(x), Some(y)) => assert!((x - y).abs() <= 1e-9 * x.abs().max(1.0), "{x} {y}"),
+            _ => assert_eq!(x, y),
+        }
+    }
 
     // Robust errors: not computed, and the report says why.
     let (s, v) = run(&plan("[\"z\"]", "\"hc1\"", ""), &Gen::default().csv());

@@ -3,6 +3,7 @@
 mod ar_curve;
 mod bad_input;
 mod blocked_summaries;
+mod clr_rule;
 mod common;
 mod contingency;
 mod deviations;

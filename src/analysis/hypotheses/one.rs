@@ -1,7 +1,7 @@
 //! One hypothesis: which rule applies to it, which fit it is tested on, and which procedure
 //! tests it.
 
-use super::procedures::{anderson_rubin, resampled_test, t_test, tf};
+use super::procedures::{anderson_rubin, clr, resampled_test, t_test, tf};
 use crate::analysis::contingency::Substitution;
 use crate::analysis::spec::{procedure, Fitted};
 use crate::distribution::Reference;
@@ -50,6 +50,7 @@ pub(super) fn test_one(
     }
     match sub.map(|s| &s.action) {
         Some(Action::AndersonRubin) => anderson_rubin(h, f, t, &mut r),
+        Some(Action::Clr) => clr(h, f, t, &mut r),
         Some(Action::Tf) => tf(h, f, t, &mut r),
         _ => t_test(h, t, &source.reference, &mut r),
     }

@@ -1,5 +1,5 @@
-//! The procedures that test one hypothesis: the t test, the Anderson–Rubin test, the tF
-//! procedure and a resampled test. Each fills the result and says whether the hypothesis
+//! The procedures that test one hypothesis: the t test, the Anderson–Rubin and conditional LR
+//! tests, the tF procedure and a resampled test. Each fills the result and says whether the hypothesis
 //! takes part in its family's correction.
 
 use super::on_side;
@@ -7,7 +7,7 @@ use crate::analysis::spec::Fitted;
 use crate::estimate;
 use crate::inference::{self, Direction};
 use crate::plan::{Hypothesis, Plan};
-use crate::results::{HypothesisResult, Procedure, SetPiece, Term, TestMethod};
+use crate::results::{ArShape, HypothesisResult, Procedure, SetPiece, Term, TestMethod};
 
 /// A model-based interval as a one-piece set.
 fn piece(ci: [f64; 2]) -> Vec<SetPiece> {
@@ -101,22 +101,58 @@ pub(super) fn anderson_rubin(
         r.reason = Some("the Anderson–Rubin test at this null is not available".into());
         return (r.clone(), false);
     };
-    r.ci = Some(ar.set.clone());
-    r.df = None;
     r.statistic = Some(test.statistic);
-    let two_sided = inference::test_p_value(test);
-    let bounded = ar
-        .set
-        .iter()
-        .all(|p| p.lower.is_some() && p.upper.is_some());
-    if !bounded || ar.set.is_empty() {
+    let p = inference::test_p_value(test);
+    set_verdict(h, t, r, &ar.set, ar.shape, "Anderson–Rubin", p)
+}
+
+/// Moreira's conditional LR test at the hypothesis' null (homoskedastic), with the CLR set
+/// as the interval; no verdict when the set is empty or unbounded.
+pub(super) fn clr(
+    h: &Hypothesis,
+    f: &Fitted,
+    t: &Term,
+    r: &mut HypothesisResult,
+) -> (HypothesisResult, bool) {
+    r.method = TestMethod::Clr;
+    let Some(lc) = &f.result.lm_clr else {
+        r.reason = Some(
+            "the conditional LR set is not available (the statistics are undefined for these data)"
+                .into(),
+        );
+        return (r.clone(), false);
+    };
+    let Some((_, test)) = f.clr_tests.iter().find(|(n, _)| *n == h.null) else {
+        r.reason = Some("the conditional LR test at this null is not available (the statistics are undefined there)".into());
+        return (r.clone(), false);
+    };
+    r.statistic = Some(test.statistic);
+    let p = test.p_value;
+    set_verdict(h, t, r, &lc.clr_set, lc.clr_shape, "conditional LR", p)
+}
+
+/// The verdict of a test inverted into `set`, given its two-sided p-value at the null: the
+/// set is the interval; empty or unbounded, no verdict; one-sided, the estimate off the
+/// claimed side or the whole set beyond the null gives p = 1.
+fn set_verdict(
+    h: &Hypothesis,
+    t: &Term,
+    r: &mut HypothesisResult,
+    set: &[SetPiece],
+    shape: ArShape,
+    name: &str,
+    two_sided: f64,
+) -> (HypothesisResult, bool) {
+    r.ci = Some(set.to_vec());
+    r.df = None;
+    let bounded = set.iter().all(|p| p.lower.is_some() && p.upper.is_some());
+    if !bounded || set.is_empty() {
         r.p_value = Some(two_sided);
-        r.reason = Some(if ar.set.is_empty() {
-            "the Anderson–Rubin set is empty (the instruments' exclusion is rejected at every value), so no verdict is possible".into()
+        r.reason = Some(if set.is_empty() {
+            format!("the {name} set is empty (the instruments' exclusion is rejected at every value), so no verdict is possible")
         } else {
             format!(
-                "the Anderson–Rubin set is unbounded ({}), so the data cannot bound the effect and no verdict is possible",
-                ar.shape
+                "the {name} set is unbounded ({shape}), so the data cannot bound the effect and no verdict is possible"
             )
         });
         return (r.clone(), false);
@@ -130,7 +166,7 @@ pub(super) fn anderson_rubin(
     };
     let wrong_side = h.direction != Direction::TwoSided
         && (!on_side(t.estimate, h.null, h.direction)
-            || ar.set.iter().all(|p| {
+            || set.iter().all(|p| {
                 p.lower.is_some_and(|x| on_side(x, h.null, flip))
                     && p.upper.is_some_and(|x| on_side(x, h.null, flip))
             }));

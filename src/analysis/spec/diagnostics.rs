@@ -47,8 +47,9 @@ impl IvContext<'_> {
             .collect()
     }
 
-    /// Fills the diagnostic blocks of `result`; returns the AR tests at the needed nulls.
-    pub(super) fn diagnostics(&self, result: &mut SpecResult) -> Result<Vec<(f64, TestStatistic)>> {
+    /// Fills the diagnostic blocks of `result`; returns the AR and CLR tests at the needed
+    /// nulls.
+    pub(super) fn diagnostics(&self, result: &mut SpecResult) -> Result<NullTests> {
         let weak = self.wants(Diagnostic::WeakInstruments) && self.prepared.p.focal.ncols() == 1;
         if self.wants(Diagnostic::FirstStage) || weak {
             result.first_stage = Some(self.first_stages()?);
@@ -66,7 +67,7 @@ impl IvContext<'_> {
             result.liml = Some(self.liml()?);
         }
         if !weak {
-            return Ok(Vec::new());
+            return Ok(NullTests::default());
         }
         result.weak_instruments = Some(self.weak_instruments(result)?);
         self.anderson_rubin(result)
@@ -206,7 +207,7 @@ impl IvContext<'_> {
     /// The Anderson–Rubin test at 0 with its set and curve, the LM and CLR tests
     /// (homoskedastic errors), and the AR tests at the nulls the decision rules need, which
     /// are returned.
-    fn anderson_rubin(&self, result: &mut SpecResult) -> Result<Vec<(f64, TestStatistic)>> {
+    fn anderson_rubin(&self, result: &mut SpecResult) -> Result<NullTests> {
         let Prepared {
             spec, d, p, cov, ..
         } = self.prepared;
@@ -241,7 +242,15 @@ impl IvContext<'_> {
         });
         // Undefined statistics (an exact fit, Q_T = 0) leave `lm_clr` null; the
         // identification panel says so.
-        if let (CovSpec::Classical, Ok(t)) = (cov, self.iv.lm_clr(ab, 0.0)) {
+        let lm_clr = match cov {
+            CovSpec::Classical => self
+                .iv
+                .lm_clr(ab, 0.0)
+                .and_then(|t| Ok((t, self.iv.lm_clr_sets(ab, spec.confidence)?)))
+                .ok(),
+            _ => None,
+        };
+        if let Some((t, sets)) = lm_clr {
             result.lm_clr = Some(LmClrResult {
                 null: t.beta0,
                 errors: LmClrErrors::Homoskedastic,
@@ -253,14 +262,41 @@ impl IvContext<'_> {
                 clr_statistic: t.clr.statistic,
                 clr_conditioning: t.clr.conditioning,
                 clr_p_value: t.clr.p_value,
+                confidence: spec.confidence,
+                lm_shape: shape_name(&sets.lm),
+                lm_set: set_pieces(&sets.lm),
+                clr_shape: shape_name(&sets.clr),
+                clr_set: set_pieces(&sets.clr),
             });
         }
-        self.needs
+        let ar = self
+            .needs
             .ar_nulls
             .iter()
             .map(|&null| Ok((null, ar.test(null).map_err(|e| self.err(e))?)))
-            .collect()
+            .collect::<Result<Vec<_>>>()?;
+        // Only with classical errors (plan validation refuses a `clr` rule otherwise); a
+        // null where the statistics are undefined is left out, and the hypothesis says so.
+        let clr = match (cov, &result.lm_clr) {
+            (CovSpec::Classical, Some(_)) => self
+                .needs
+                .clr_nulls
+                .iter()
+                .filter_map(|&null| self.iv.lm_clr(ab, null).ok().map(|t| (null, t.clr)))
+                .collect(),
+            _ => Vec::new(),
+        };
+        Ok(NullTests { ar, clr })
     }
+}
+
+/// The tests at the nulls the decision rules need.
+#[derive(Debug, Clone, Default)]
+pub(super) struct NullTests {
+    /// Anderson–Rubin.
+    pub ar: Vec<(f64, TestStatistic)>,
+    /// Conditional LR.
+    pub clr: Vec<(f64, estimate::ConditionalLr)>,
 }
 
 /// The pieces of a confidence set as results.json records them (infinite ends as null).

@@ -37,6 +37,8 @@ pub struct Fitted {
     pub deviations: Vec<Deviation>,
     /// Anderson–Rubin tests at the nulls asked for in [`Needs::ar_nulls`].
     pub ar_tests: Vec<(f64, TestStatistic)>,
+    /// CLR tests at the nulls asked for in [`Needs::clr_nulls`].
+    pub clr_tests: Vec<(f64, estimate::ConditionalLr)>,
     /// Resampled tests by (hypothesis id, method name).
     pub resampled: BTreeMap<(String, Procedure), estimate::ResampleResult>,
     /// Randomization-inference intervals of OLS coefficients by hypothesis id.
@@ -83,6 +85,9 @@ pub struct Needs {
     /// Nulls at which the Anderson–Rubin statistic is wanted (hypotheses on the endogenous
     /// regressor).
     pub ar_nulls: Vec<f64>,
+    /// Nulls at which the CLR test is wanted (a `clr` rule's hypotheses on the endogenous
+    /// regressor).
+    pub clr_nulls: Vec<f64>,
     /// A cluster-count rule may switch the hypotheses to the wild cluster bootstrap.
     pub wild_bootstrap: bool,
     /// Resampled tests of hypotheses on this specification.
@@ -160,18 +165,18 @@ pub fn fit_spec(
     result::fit_deviations(&prepared, degenerate.as_ref(), &mut deviations);
     let lpm = fit::lpm_check(spec, source, &estimated.fit, &prepared.d, &mut deviations);
     let mut result = result::spec_result(&prepared, &estimated, &reference, lpm, rc);
-    let mut ar_tests = match &estimated.iv {
+    let mut null_tests = match &estimated.iv {
         Some(iv) => diagnostics::IvContext {
             prepared: &prepared,
             iv,
             needs,
         }
         .diagnostics(&mut result)?,
-        None => Vec::new(),
+        None => diagnostics::NullTests::default(),
     };
     if let Some(problem) = &degenerate {
         super::degenerate::withhold(&mut result, problem.constant);
-        ar_tests.clear();
+        null_tests = diagnostics::NullTests::default();
     }
     let tests = resample::resampled_tests(&prepared, needs, rc, degenerate.is_some())?;
     let resample_units = resample::units(&prepared, &tests.resampled, &result.cluster_by);
@@ -180,7 +185,8 @@ pub fn fit_spec(
         degenerate: degenerate.map(|p| p.reason),
         reference,
         deviations,
-        ar_tests,
+        ar_tests: null_tests.ar,
+        clr_tests: null_tests.clr,
         resampled: tests.resampled,
         ri_intervals: tests.ri_intervals,
         resample_units,

@@ -216,7 +216,12 @@ pub(super) fn quadratic_set(a: f64, h: f64, k: f64, scale: f64) -> ConfidenceSet
 
 /// Bisection for a sign change of `f` on [lo, hi]; `inside_lo` says whether f(lo) ≤ 0.
 /// Runs until the bracket cannot shrink (adjacent floats), at most 200 steps.
-fn bisect<F>(f: &F, mut lo: f64, mut hi: f64, inside_lo: bool) -> Result<f64, EstimateError>
+pub(in crate::estimate) fn bisect<F>(
+    f: &F,
+    mut lo: f64,
+    mut hi: f64,
+    inside_lo: bool,
+) -> Result<f64, EstimateError>
 where
     F: Fn(f64) -> Result<f64, EstimateError>,
 {
@@ -235,7 +240,11 @@ where
 }
 
 /// Golden-section search for the minimum of `f` on [a, b]; returns (argmin, min).
-fn golden<F>(f: &F, mut a: f64, mut b: f64) -> Result<(f64, f64), EstimateError>
+pub(in crate::estimate) fn golden<F>(
+    f: &F,
+    mut a: f64,
+    mut b: f64,
+) -> Result<(f64, f64), EstimateError>
 where
     F: Fn(f64) -> Result<f64, EstimateError>,
 {

@@ -17,7 +17,7 @@ use crate::distribution::Reference;
 use crate::estimate::{Absorbed, IvProblem};
 use crate::inference::{p_value, test_p_value, Direction};
 
-fn column(data: &Value, name: &str, n: usize) -> DVector<f64> {
+pub(super) fn column(data: &Value, name: &str, n: usize) -> DVector<f64> {
     if name == "const" {
         return DVector::from_element(n, 1.0);
     }
@@ -30,7 +30,7 @@ fn column(data: &Value, name: &str, n: usize) -> DVector<f64> {
     DVector::from_vec(v)
 }
 
-fn matrix(data: &Value, names: &Value, n: usize) -> DMatrix<f64> {
+pub(super) fn matrix(data: &Value, names: &Value, n: usize) -> DMatrix<f64> {
     let names = names.as_array().expect("names");
     let mut m = DMatrix::zeros(n, names.len());
     for (j, name) in names.iter().enumerate() {

@@ -10,7 +10,7 @@ use toml::Spanned;
 
 const TRIGGERS: [&str; 3] = ["weak_instruments", "endogeneity", "clusters"];
 
-const WEAK_ACTIONS: [&str; 3] = ["anderson-rubin", "liml", "tf"];
+const WEAK_ACTIONS: [&str; 4] = ["anderson-rubin", "clr", "liml", "tf"];
 
 /// All `[[contingency]]` entries, in plan order.
 pub(super) fn contingencies(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Vec<Contingency>> {
@@ -85,6 +85,15 @@ fn weak_action(ctx: &Ctx, c: &RawContingency, spec: &Spec) -> Result<Action> {
     ctx.one_of(&c.then, &key("then"), &WEAK_ACTIONS)?;
     Ok(match then.as_str() {
         "anderson-rubin" => Action::AndersonRubin,
+        "clr" => {
+            if spec.errors != Errors::Classical {
+                return Err(ctx.at(&c.then, key("then"), format!(
+                    "the CLR test sworn computes assumes homoskedastic errors, and specification `{}` uses {} errors; set its errors = \"classical\", or use then = \"anderson-rubin\", which follows the specification's errors",
+                    spec.id, spec.errors.name()
+                )));
+            }
+            Action::Clr
+        }
         "liml" => {
             if spec.estimator != Estimator::Tsls {
                 return Err(ctx.at(&c.then, key("then"), format!(

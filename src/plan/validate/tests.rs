@@ -331,6 +331,11 @@ fn weak_rule_needs_iv() {
 }
 
 #[test]
+fn clr_rule_needs_classical_errors() {
+    case("[family.main]", "[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"clr\"\n\n[family.main]", "contingency[c1].then", "assumes homoskedastic errors, and specification `iv` uses");
+}
+
+#[test]
 fn weak_rule_threshold_positive() {
     case("[family.main]", "[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = -1.0 } }\nthen = \"anderson-rubin\"\n\n[family.main]", "contingency[c1].when", "must be a positive F threshold");
 }
@@ -516,7 +521,7 @@ fn message_cases() -> Vec<(
         ("", FAMILY, before_family("[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"liml\"\n\n[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 5.0 } }\nthen = \"liml\""), "contingency", "contingency id `c1` is used twice"),
         ("", FAMILY, before_family("[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"liml\"\n\n[[contingency]]\nid = \"c2\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 5.0 } }\nthen = \"anderson-rubin\""), "contingency[c2].when", "already watches the same trigger"),
         ("", FAMILY, before_family("[[contingency]]\nid = \"c1\"\nspecification = \"iv2\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"liml\""), "contingency[c1].specification", "unknown specification `iv2`"),
-        ("", FAMILY, before_family("[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"bootstrap\""), "contingency[c1].then", "use one of `anderson-rubin`, `liml`, `tf`"),
+        ("", FAMILY, before_family("[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"bootstrap\""), "contingency[c1].then", "use one of `anderson-rubin`, `clr`, `liml`, `tf`"),
         ("", IV_SPEC_TO_H1, IV_SPEC_TO_H1.replacen("2sls", "liml", 1) + "\n\n[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"liml\"", "contingency[c1].then", "is already estimated by"),
         ("", IV_SPEC_TO_H1, IV_SPEC_TO_H1.replacen("2sls", "liml", 1) + "\n\n[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"tf\"", "contingency[c1].then", "the tF procedure applies to a just-identified 2SLS"),
         ("", FAMILY, before_family("[[contingency]]\nid = \"c1\"\nspecification = \"ols\"\nwhen = { endogeneity = { not_rejected_at = 0.05 } }\nthen = \"ols\""), "contingency[c1].specification", "an endogeneity rule watches an instrumental-variable specification"),

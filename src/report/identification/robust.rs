@@ -4,7 +4,7 @@
 use super::super::format::{num, p_is, set_text};
 use super::evidence::{errors_name, rejects, row, Evidence, Question};
 use crate::plan::Spec;
-use crate::results::{ArShape, ErrorKind, SpecResult, TestResult};
+use crate::results::{ArShape, ErrorKind, SetPiece, SpecResult, TestResult};
 
 pub(super) fn robust(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
     let mut rows = Vec::new();
@@ -51,7 +51,20 @@ fn anderson_rubin_rows(
             )
         },
     ));
-    let reading = match ar.shape {
+    rows.push(set_row(
+        format!(
+            "Anderson–Rubin {:.0}% confidence set",
+            100.0 * ar.confidence
+        ),
+        ar.shape,
+        &ar.set,
+    ));
+    rows
+}
+
+/// A confidence set from an inverted test: its pieces and what its shape says.
+fn set_row(test: String, shape: ArShape, set: &[SetPiece]) -> Evidence {
+    let reading = match shape {
         ArShape::Bounded => {
             "a bounded interval: the data bound the effect without relying on instrument strength"
         }
@@ -59,19 +72,18 @@ fn anderson_rubin_rows(
         ArShape::Empty => {
             "empty: no value fits, so the instruments reject each other at this level"
         }
+        ArShape::Union if set.iter().all(|p| p.lower.is_some() && p.upper.is_some()) => {
+            "several bounded intervals: the effect is bounded, but the set is not one interval"
+        }
         _ => "unbounded: the data cannot bound the effect on at least one side",
     };
-    rows.push(Evidence {
-        test: format!(
-            "Anderson–Rubin {:.0}% confidence set",
-            100.0 * ar.confidence
-        ),
+    Evidence {
+        test,
         statistic: "—".into(),
         reference: "inverted test".into(),
-        threshold: set_text(&ar.set),
+        threshold: set_text(set),
         reading: reading.to_string(),
-    });
-    rows
+    }
 }
 
 /// Kleibergen's LM and Moreira's conditional LR tests of `x` = their null.
@@ -100,6 +112,22 @@ fn lm_clr_rows(x: &str, lc: &crate::results::LmClrResult, alpha: f64) -> Vec<Evi
         threshold: p_is(lc.clr_p_value),
         reading: verdict(lc.clr_p_value),
     });
+    let level = 100.0 * lc.confidence;
+    let mut lm_row = set_row(
+        format!("Kleibergen LM {level:.0}% confidence set, homoskedastic errors"),
+        lc.lm_shape,
+        &lc.lm_set,
+    );
+    if lc.lm_set.len() > 1 {
+        // LM is the squared score of the AR objective: zero at every stationary point.
+        lm_row.reading.push_str("; the LM test also accepts values where the Anderson–Rubin statistic is at a local maximum, so a piece away from the estimate may come from that rather than from the data");
+    }
+    rows.push(lm_row);
+    rows.push(set_row(
+        format!("Moreira conditional LR {level:.0}% confidence set, homoskedastic errors"),
+        lc.clr_shape,
+        &lc.clr_set,
+    ));
     rows
 }
 

@@ -56,6 +56,9 @@ pub(super) fn rule_row(
     };
     let action = match &c.action {
         crate::plan::Action::AndersonRubin => "use Anderson–Rubin inference".to_string(),
+        crate::plan::Action::Clr => {
+            "use conditional LR inference (homoskedastic errors)".to_string()
+        }
         crate::plan::Action::Liml => "use the LIML estimate".to_string(),
         crate::plan::Action::Tf => "use the tF critical value".to_string(),
         crate::plan::Action::UseSpecification(s) => format!("report `{s}` as primary"),
@@ -88,6 +91,7 @@ pub(super) fn method_text(h: &crate::results::HypothesisResult) -> String {
     };
     let base = match h.method {
         TestMethod::AndersonRubin => "Anderson–Rubin".to_string(),
+        TestMethod::Clr => "conditional LR (Moreira), homoskedastic errors".to_string(),
         TestMethod::Tf => "tF".to_string(),
         TestMethod::Randomization if h.estimator.is_iv() => {
             format!("randomization inference on the AR statistic ({draws})")
