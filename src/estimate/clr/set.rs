@@ -213,6 +213,10 @@ impl Forms {
 
     /// F(b) = d (bᵀAg)² − c (bᵀΩb)(gᵀAg): LM ≤ c ⇔ F ≤ 0.
     fn lm_excess(&self, b: [f64; 2], c: f64) -> f64 {
+        if self.l == 1 {
+            // One instrument: F = gᵀAg · (d bᵀAb − c bᵀΩb); see `lm_polynomial`.
+            return self.d * form(&self.a, b) - c * form(&self.omega, b);
+        }
         let (p, q, r) = self.lm_forms();
         let v = form(&p, b);
         self.d * v * v - c * form(&q, b) * form(&r, b)
@@ -226,10 +230,24 @@ impl Forms {
         (ag, self.omega, r)
     }
 
-    /// Coefficients (ascending) of F(1, −t).
+    /// Coefficients (ascending) of F(1, −t). With one instrument A has rank one, so
+    /// (bᵀAg)² = (bᵀAb)(gᵀAg) and F = gᵀAg · (d bᵀAb − c bᵀΩb): LM is the AR statistic
+    /// (Kleibergen 2002) and the set is the AR set's. The factor gᵀAg ≥ 0 is dropped there:
+    /// it only vanishes where Q_T = 0 (inside by convention), and near its double zero the
+    /// quartic's sign would be decided by rounding, cutting a spurious gap into the set.
     fn lm_polynomial(&self, c: f64) -> [f64; 5] {
-        let (p, q, r) = self.lm_forms();
         let coef = |h: &M2| [h[0][0], -(h[0][1] + h[1][0]), h[1][1]];
+        if self.l == 1 {
+            let (a, w) = (coef(&self.a), coef(&self.omega));
+            return [
+                self.d * a[0] - c * w[0],
+                self.d * a[1] - c * w[1],
+                self.d * a[2] - c * w[2],
+                0.0,
+                0.0,
+            ];
+        }
+        let (p, q, r) = self.lm_forms();
         let (p, q, r) = (coef(&p), coef(&q), coef(&r));
         let mut out = [0.0; 5];
         for i in 0..3 {
