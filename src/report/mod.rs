@@ -27,6 +27,7 @@ use minijinja::Environment;
 const MD_TEMPLATE: &str = include_str!("../../templates/report.md.j2");
 const TEX_TEMPLATE: &str = include_str!("../../templates/report.tex.j2");
 const HTML_TEMPLATE: &str = include_str!("../../templates/report.html.j2");
+const WORDS_TEMPLATE: &str = include_str!("../../templates/words.j2");
 
 fn environment() -> Result<Environment<'static>> {
     let mut env = Environment::new();
@@ -40,11 +41,17 @@ fn environment() -> Result<Environment<'static>> {
             message: e.to_string(),
         })?;
     env.set_syntax(syntax);
+    // No auto-escaping: the formatter escapes by template, and a macro of `words.j2` then
+    // returns a plain string that the calling template escapes like any other value.
+    env.set_auto_escape_callback(|_| minijinja::AutoEscape::None);
     env.add_filter("tex", |s: String| format::tex(&s));
     env.add_filter("tex_breakable", |s: String| format::tex_breakable(&s));
     env.set_formatter(|out, state, value| {
         let fail = |_| minijinja::Error::new(minijinja::ErrorKind::WriteFailure, "report");
         match value.as_str() {
+            // The shared sentences emit their values raw: the report template that places
+            // the finished sentence escapes it whole, as for any other string.
+            Some(text) if state.name() == "words.j2" => out.write_str(text).map_err(fail),
             Some(text) if state.name() == "report.md" => {
                 out.write_str(&format::md(text)).map_err(fail)
             }
@@ -56,6 +63,7 @@ fn environment() -> Result<Environment<'static>> {
         }
     });
     for (name, src) in [
+        ("words.j2", WORDS_TEMPLATE),
         ("report.md", MD_TEMPLATE),
         ("report.tex", TEX_TEMPLATE),
         ("report.html", HTML_TEMPLATE),
