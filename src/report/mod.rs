@@ -1,6 +1,8 @@
 //! Reports: one serialisable [`ReportModel`], rendered to Markdown, LaTeX and HTML by the
-//! templates in `templates/` (compiled into the binary). All numbers are formatted here, so
-//! templates only place text; the report never depends on the clock. Every string placed in
+//! templates in `templates/` (compiled into the binary). All numbers are formatted here; the
+//! sentences of the parts moved so far are macros of `templates/words.j2`, imported by the
+//! three report templates, which place their values raw and return plain text that the
+//! calling template escapes whole. The report never depends on the clock. Every string placed in
 //! the Markdown report passes through [`crate::escape::markdown`] and every string placed in
 //! the HTML report through [`crate::escape::html`] (the environment's formatter does both, so a
 //! template cannot forget; only the SVG figures drawn in `plots.rs` and `plots/`, marked safe,

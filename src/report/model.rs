@@ -42,10 +42,10 @@ pub struct ReportModel {
     specs: Vec<SpecModel>,
     apart: Vec<SpecModel>,
     conventions: Vec<specs::Convention>,
-    resampling: Vec<String>,
+    resampling: Vec<resampling::ResamplingItem>,
     figures: Vec<super::plots::Figure>,
     deviations: Vec<DevRow>,
-    cautions: Vec<String>,
+    cautions: Vec<cautions::Caution>,
 }
 
 #[derive(Debug, Serialize)]
