@@ -155,8 +155,7 @@ fn method(h: &crate::results::HypothesisResult) -> Method {
         df: h.df.map(|d| d.to_string()),
         draws: h.draws,
         exact: h.exact == Some(true),
-        tested_in: Some(h.tested_specification.clone())
-            .filter(|t| *t != h.specification),
+        tested_in: Some(h.tested_specification.clone()).filter(|t| *t != h.specification),
         contingency: h.contingency.clone(),
     }
 }

@@ -4,11 +4,9 @@
 //! the sentences are the macros of `templates/words.j2` (`fact`, `table_errors`, `table_note`,
 //! `block_title`, `block_line`, `convention`).
 
-use super::super::format::{num, p_is, pval};
+use super::super::format::{num, pval};
 use crate::plan::spec_terms;
-use crate::results::{
-    BandwidthRule, CoefDistribution, ErrorKind, Results, SpecResult, Term, TestResult,
-};
+use crate::results::{BandwidthRule, CoefDistribution, ErrorKind, Results, SpecResult, Term};
 use serde::Serialize;
 
 #[derive(Debug, Serialize)]
@@ -408,8 +406,7 @@ fn fixed_effects_fact(r: &SpecResult) -> FixedEffectsFact {
             .map(|(k, v)| (k.clone(), *v))
             .collect(),
         absorbed_df: r.absorbed_df,
-        nested: Some(r.absorbed_nested_df)
-            .filter(|&m| r.cluster_by.is_some() && m > 0),
+        nested: Some(r.absorbed_nested_df).filter(|&m| r.cluster_by.is_some() && m > 0),
         within_r_squared: r.within_r_squared.map(num),
         singletons: r.singletons_dropped,
     }
@@ -470,11 +467,6 @@ pub(super) fn term_row(name: &str, t: &Term) -> TermRow {
         p: pval(t.p_value),
         ci: format!("[{}, {}]", num(t.ci[0]), num(t.ci[1])),
     }
-}
-
-pub(super) fn test_line(name: &str, t: &TestResult) -> String {
-    let dist = super::super::identification::dist_text(t.distribution);
-    format!("{name}: {} ({dist}), {}", num(t.statistic), p_is(t.p_value))
 }
 
 pub(super) fn ordered_terms(
