@@ -61,6 +61,16 @@ fn environment() -> Result<Environment<'static>> {
                 out.write_str(&format::html(text)).map_err(fail)
             }
             Some(text) if state.name() == "report.html" => out.write_str(text).map_err(fail),
+            // Auto-escaping is off, so any other value placed in the HTML report (a number,
+            // or a list or map by mistake) is escaped here from its display.
+            None if state.name() == "report.html"
+                && !value.is_safe()
+                && !value.is_undefined()
+                && !value.is_none() =>
+            {
+                out.write_str(&format::html(&value.to_string()))
+                    .map_err(fail)
+            }
             _ => minijinja::escape_formatter(out, state, value),
         }
     });
