@@ -35,17 +35,17 @@ pub struct ReportModel {
     registration: Option<super::registration::RegistrationModel>,
     rehearsal: Option<super::rehearsal::RehearsalModel>,
     contingencies: Vec<RuleRow>,
-    indices: Vec<String>,
+    indices: Vec<summaries::IndexLine>,
     balance: Option<BalanceModel>,
-    attrition: Vec<String>,
+    attrition: Vec<summaries::AttritionLine>,
     tables: Vec<TableModel>,
     specs: Vec<SpecModel>,
     apart: Vec<SpecModel>,
-    conventions: Vec<String>,
-    resampling: Vec<String>,
+    conventions: Vec<specs::Convention>,
+    resampling: Vec<resampling::ResamplingItem>,
     figures: Vec<super::plots::Figure>,
     deviations: Vec<DevRow>,
-    cautions: Vec<String>,
+    cautions: Vec<cautions::Caution>,
 }
 
 #[derive(Debug, Serialize)]
@@ -98,13 +98,16 @@ impl ReportModel {
 
 /// The specification blocks, pre-registered ones first and the rest apart, with the
 /// degrees-of-freedom rules they follow (each stated once).
-fn spec_models(plan: &Plan, r: &Results) -> (Vec<SpecModel>, Vec<SpecModel>, Vec<String>) {
+fn spec_models(
+    plan: &Plan,
+    r: &Results,
+) -> (Vec<SpecModel>, Vec<SpecModel>, Vec<specs::Convention>) {
     let mut specs = Vec::new();
     let mut apart = Vec::new();
-    let mut conventions: Vec<String> = Vec::new();
+    let mut conventions = Vec::new();
     for s in &plan.specifications {
         let res = &r.specifications[&s.id];
-        for rule in specs::df_convention(res).1 {
+        for rule in specs::df_conventions(res) {
             if !conventions.contains(&rule) {
                 conventions.push(rule);
             }

@@ -280,7 +280,11 @@ fn one_instrument_lm_and_clr_sets_are_one_set() {
                     .any(|e| e.is_finite() && (e - beta).abs() <= 1e-9 * e.abs().max(1.0))
             });
             if !near {
-                assert_eq!(sets.lm.contains(beta), t.lm.statistic <= c, "seed {seed} at {beta}");
+                assert_eq!(
+                    sets.lm.contains(beta),
+                    t.lm.statistic <= c,
+                    "seed {seed} at {beta}"
+                );
             }
         }
     }

@@ -2,7 +2,7 @@
 
 use super::super::format::{num, p_is};
 use crate::distribution::Reference;
-use crate::results::{ErrorKind, SpecResult, TestResult};
+use crate::results::{SpecResult, TestResult};
 use serde::Serialize;
 
 /// One question and the evidence on it.
@@ -52,21 +52,4 @@ pub(in crate::report) fn rejects(p: f64, alpha: f64) -> bool {
 /// The name of a specification's error type in a row label.
 pub(in crate::report) fn errors_name(r: &SpecResult) -> &'static str {
     r.errors.row_name()
-}
-
-/// Whether the errors are the classical ones (tests that assume them need no remark).
-pub(in crate::report) fn homoskedastic_remark(r: &SpecResult) -> &'static str {
-    if r.errors == ErrorKind::Classical {
-        ""
-    } else {
-        " (assumes homoskedastic errors)"
-    }
-}
-
-pub(in crate::report) fn plural<'a>(n: usize, one: &'a str, many: &'a str) -> &'a str {
-    if n == 1 {
-        one
-    } else {
-        many
-    }
 }

@@ -1,95 +1,91 @@
 //! "Is the regressor endogenous?" and "Do the instruments agree?": endogeneity and
-//! over-identification tests.
+//! over-identification tests. Typed values; the sentences are the `id_words` macro of
+//! `templates/words.j2`.
 
-use super::evidence::{
-    errors_name, homoskedastic_remark, plural, rejects, row, Evidence, Question,
-};
+use super::evidence::{errors_name, rejects};
+use super::typed::{typed_row, TypedEvidence, TypedQuestion, Words};
 use crate::plan::Spec;
-use crate::results::SpecResult;
+use crate::results::{ErrorKind, SpecResult};
 
-pub(super) fn endogeneity(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
-    let n = s.endogenous.len();
+pub(super) fn endogeneity(s: &Spec, r: &SpecResult, alpha: f64) -> TypedQuestion {
     let mut rows = Vec::new();
     if let Some(e) = &r.endogeneity {
-        let read = |p: f64, remark: &str| {
-            if rejects(p, alpha) {
-                format!("exogeneity rejected at {alpha}: OLS and the IV estimate differ by more than chance{remark}")
-            } else {
-                format!("exogeneity not rejected at {alpha}: OLS and the IV estimate differ by no more than chance{remark}")
-            }
+        let remark = r.errors != ErrorKind::Classical;
+        let read = |p: f64, remark: bool| Words::Exogeneity {
+            rejects: rejects(p, alpha),
+            alpha: alpha.to_string(),
+            remark,
         };
-        let remark = homoskedastic_remark(r);
-        rows.push(row(
-            format!("control-function test, {} errors", errors_name(r)),
+        rows.push(typed_row(
+            Words::ControlFunction {
+                errors: errors_name(r),
+            },
             &e.control_function,
-            read(e.control_function.p_value, ""),
+            read(e.control_function.p_value, false),
         ));
-        rows.push(row(
-            "Durbin".into(),
+        rows.push(typed_row(
+            "Durbin",
             &e.durbin,
             read(e.durbin.p_value, remark),
         ));
-        rows.push(row(
-            "Wu–Hausman".into(),
+        rows.push(typed_row(
+            "Wu–Hausman",
             &e.wu_hausman,
             read(e.wu_hausman.p_value, remark),
         ));
     }
-    Question {
-        ask: format!(
-            "{} endogenous?",
-            plural(n, "Is the regressor", "Are the regressors")
-        ),
+    TypedQuestion {
+        ask: Words::EndogenousAsk {
+            several: s.endogenous.len() != 1,
+        },
         rows,
-        note: "The plan did not request the endogeneity tests for this specification.".into(),
+        note: Words::EndogenousNote,
     }
 }
 
-pub(super) fn agreement(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
+pub(super) fn agreement(s: &Spec, r: &SpecResult, alpha: f64) -> TypedQuestion {
     let mut rows = Vec::new();
     if let Some(o) = &r.overidentification {
-        let remark = homoskedastic_remark(r);
-        let read = |p: f64, remark: &str| {
-            if rejects(p, alpha) {
-                format!("the instruments point to different coefficients at {alpha}: one is invalid, or effects differ between the groups each moves{remark}")
-            } else {
-                format!("no evidence at {alpha} that the instruments disagree; agreement does not show validity{remark}")
-            }
+        let remark = r.errors != ErrorKind::Classical;
+        let read = |p: f64, remark: bool| Words::Agreement {
+            rejects: rejects(p, alpha),
+            alpha: alpha.to_string(),
+            remark,
         };
-        rows.push(row(
-            "Sargan".into(),
+        rows.push(typed_row(
+            "Sargan",
             &o.sargan,
             read(o.sargan.p_value, remark),
         ));
-        rows.push(row(
-            "Basmann".into(),
+        rows.push(typed_row(
+            "Basmann",
             &o.basmann,
             read(o.basmann.p_value, remark),
         ));
         match &o.hansen_j {
-            Some(j) => rows.push(row(
-                format!("Hansen J, two-step GMM, {} weight", errors_name(r)),
+            Some(j) => rows.push(typed_row(
+                Words::HansenJ {
+                    errors: errors_name(r),
+                },
                 j,
-                read(j.p_value, ""),
+                read(j.p_value, false),
             )),
-            None => rows.push(Evidence {
+            None => rows.push(TypedEvidence {
                 test: "Hansen J".into(),
                 statistic: "n/a".into(),
                 reference: "—".into(),
                 threshold: "—".into(),
-                reading: "not computed with two-way clustering (no positive definite weight is guaranteed)".into(),
+                reading: Words::HansenMissing.into(),
             }),
         }
     }
-    let exact = s.instruments.len() == s.endogenous.len();
-    Question {
-        ask: "Do the instruments agree?".into(),
+    TypedQuestion {
+        ask: Words::AgreeAsk,
         rows,
-        note: if exact {
-            "Cannot be tested: there are exactly as many instruments as endogenous regressors."
-                .into()
+        note: if s.instruments.len() == s.endogenous.len() {
+            Words::AgreeNoteExact
         } else {
-            "The plan did not request the over-identification tests for this specification.".into()
+            Words::AgreeNote
         },
     }
 }

@@ -1,14 +1,14 @@
 //! "Are the instruments strong enough?": first-stage F (robust and classical), partial R²,
-//! Shea's partial R², the effective F and Cragg–Donald against Stock–Yogo.
+//! Shea's partial R², the effective F and Cragg–Donald against Stock–Yogo. Typed values;
+//! the sentences are the `id_words` macro of `templates/words.j2`.
 
 use super::super::format::{num, p_is};
-use super::evidence::{
-    dist_text, errors_name, homoskedastic_remark, plural, rejects, Evidence, Question,
-};
+use super::evidence::{dist_text, errors_name, rejects};
+use super::typed::{Cell, TypedEvidence, TypedQuestion, Words};
 use crate::plan::{Estimator, Spec};
 use crate::results::{ErrorKind, SpecResult, StockYogoCriterion, StockYogoValue};
 
-pub(super) fn strength(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
+pub(super) fn strength(s: &Spec, r: &SpecResult, alpha: f64) -> TypedQuestion {
     let mut rows = Vec::new();
     for (x, fs) in r.first_stage.iter().flatten() {
         rows.extend(first_stage_rows(s, r, alpha, x, fs));
@@ -23,14 +23,12 @@ pub(super) fn strength(s: &Spec, r: &SpecResult, alpha: f64) -> Question {
             w.stock_yogo_note.as_deref(),
         ));
     }
-    let n = s.instruments.len();
-    Question {
-        ask: format!(
-            "{} strong enough?",
-            plural(n, "Is the instrument", "Are the instruments")
-        ),
+    TypedQuestion {
+        ask: Words::StrengthAsk {
+            several: s.instruments.len() != 1,
+        },
         rows,
-        note: "The plan did not request the first-stage diagnostics for this specification.".into(),
+        note: Words::StrengthNote,
     }
 }
 
@@ -43,96 +41,88 @@ fn first_stage_rows(
     alpha: f64,
     x: &str,
     fs: &crate::results::FirstStageResult,
-) -> Vec<Evidence> {
+) -> Vec<TypedEvidence> {
     let mut rows = Vec::new();
     let several = s.endogenous.len() > 1;
-    let of = if several {
-        format!("`{x}`: ")
-    } else {
-        String::new()
+    let of = || several.then(|| x.to_string());
+    let shifts = |p: f64| Words::Shifts {
+        rejects: rejects(p, alpha),
+        several: s.instruments.len() != 1,
+        x: x.to_string(),
+        alpha: alpha.to_string(),
     };
-    let what = plural(
-        s.instruments.len(),
-        "the instrument shifts",
-        "the instruments shift",
-    );
-    let moves = |p: f64| {
-        if rejects(p, alpha) {
-            format!("{what} `{x}`: the first stage differs from zero at {alpha}")
-        } else {
-            format!("no clear evidence at {alpha} that {what} `{x}`")
+    rows.push(TypedEvidence {
+        test: Words::FirstStageF {
+            of: of(),
+            errors: errors_name(r),
         }
-    };
-    rows.push(Evidence {
-        test: format!("{of}first-stage F, {} errors", errors_name(r)),
+        .into(),
         statistic: num(fs.robust_f_statistic),
-        reference: dist_text(fs.robust_f_distribution),
-        threshold: p_is(fs.robust_f_p_value),
-        reading: moves(fs.robust_f_p_value),
+        reference: dist_text(fs.robust_f_distribution).into(),
+        threshold: p_is(fs.robust_f_p_value).into(),
+        reading: shifts(fs.robust_f_p_value).into(),
     });
-    rows.push(Evidence {
-        test: format!("{of}first-stage F, classical errors"),
+    rows.push(TypedEvidence {
+        test: Words::FirstStageF {
+            of: of(),
+            errors: ErrorKind::Classical.row_name(),
+        }
+        .into(),
         statistic: num(fs.f_statistic),
-        reference: dist_text(fs.f_distribution),
-        threshold: p_is(fs.f_p_value),
+        reference: dist_text(fs.f_distribution).into(),
+        threshold: p_is(fs.f_p_value).into(),
         reading: if r.errors == ErrorKind::Classical {
-            moves(fs.f_p_value)
+            shifts(fs.f_p_value)
         } else {
-            "for comparison only: assumes homoskedastic, independent errors".to_string()
-        },
+            Words::ComparisonOnly
+        }
+        .into(),
     });
-    rows.push(Evidence {
-        test: format!("{of}partial R²"),
+    rows.push(TypedEvidence {
+        test: Words::PartialR2 { of: of() }.into(),
         statistic: num(fs.partial_r_squared),
         reference: "—".into(),
         threshold: "—".into(),
-        reading: format!(
-            "the instruments explain this share of `{x}`'s variation left after the controls"
-        ),
+        reading: Words::PartialShare { x: x.to_string() }.into(),
     });
     if several {
-        rows.push(Evidence {
-            test: format!("{of}partial R², Shea (1997)"),
+        rows.push(TypedEvidence {
+            test: Words::SheaR2 { of: of() }.into(),
             statistic: num(fs.shea_partial_r_squared),
             reference: "—".into(),
             threshold: "—".into(),
-            reading: "the same share, net of what the other endogenous regressors take".to_string(),
+            reading: Words::SheaShare.into(),
         });
     }
     rows
 }
 
 /// The effective first-stage F against its critical value.
-fn effective_f_row(s: &Spec, r: &SpecResult, w: &crate::results::WeakInstrumentResult) -> Evidence {
-    let kclass = matches!(s.estimator, Estimator::Liml | Estimator::Fuller);
-    Evidence {
-        test: format!(
-            "Montiel Olea–Pflueger effective F, {} errors",
-            errors_name(r)
-        ),
+fn effective_f_row(
+    s: &Spec,
+    r: &SpecResult,
+    w: &crate::results::WeakInstrumentResult,
+) -> TypedEvidence {
+    TypedEvidence {
+        test: Words::EffectiveF {
+            errors: errors_name(r),
+        }
+        .into(),
         statistic: num(w.effective_f),
-        reference: format!(
-            "Patnaik approximation, {} effective df",
-            num(w.effective_df)
-        ),
-        threshold: format!(
-            "critical value {} (worst-case bias {:.0}%, 5% size)",
-            num(w.critical_value),
-            100.0 * w.worst_case_bias
-        ),
-        reading: format!(
-            "{}{}",
-            if w.weak {
-                "WEAK: below the critical value, so 2SLS may be biased toward OLS by more than the stated share"
-            } else {
-                "above the critical value: the worst-case bias of 2SLS stays within the stated share of OLS's"
-            },
-            if kclass {
-                "; this bounds 2SLS, not this specification's estimator"
-            } else {
-                ""
-            }
-        ),
+        reference: Words::Patnaik {
+            df: num(w.effective_df),
+        }
+        .into(),
+        threshold: Words::EffectiveCritical {
+            value: num(w.critical_value),
+            bias: format!("{:.0}", 100.0 * w.worst_case_bias),
+        }
+        .into(),
+        reading: Words::EffectiveReading {
+            weak: w.weak,
+            kclass: matches!(s.estimator, Estimator::Liml | Estimator::Fuller),
+        }
+        .into(),
     }
 }
 
@@ -146,9 +136,9 @@ fn stock_yogo_rows(
     cd: f64,
     values: &[StockYogoValue],
     note: Option<&str>,
-) -> Vec<Evidence> {
+) -> Vec<TypedEvidence> {
     let mut rows = Vec::new();
-    for (criterion, table_name, what) in STOCK_YOGO_TABLES {
+    for (criterion, table_name, key) in STOCK_YOGO_TABLES {
         let mut table: Vec<&StockYogoValue> =
             values.iter().filter(|v| v.criterion == criterion).collect();
         if table.is_empty() {
@@ -156,59 +146,60 @@ fn stock_yogo_rows(
         }
         // Strictest level first: the smallest tolerated size or bias has the largest value.
         table.sort_by(|a, b| a.level.total_cmp(&b.level));
-        let (threshold, reading) = stock_yogo_reading(&table, cd, what, homoskedastic_remark(r));
-        rows.push(Evidence {
-            test: "Cragg–Donald minimum eigenvalue".into(),
+        let (threshold, reading) = stock_yogo_reading(&table, cd, key, r.errors);
+        rows.push(TypedEvidence {
+            test: Words::CraggDonald.into(),
             statistic: num(cd),
-            reference: format!(
-                "Stock–Yogo (2005) {table_name}, {} instrument(s)",
-                s.instruments.len()
-            ),
-            threshold,
-            reading,
+            reference: Words::StockYogo {
+                table: table_name,
+                instruments: s.instruments.len(),
+            }
+            .into(),
+            threshold: threshold.into(),
+            reading: reading.into(),
         });
     }
     if let Some(note) = note {
-        rows.push(Evidence {
-            test: "Cragg–Donald minimum eigenvalue".into(),
-            statistic: num(cd),
-            reference: "—".into(),
-            threshold: if rows.is_empty() {
-                "no critical value".into()
-            } else {
-                "—".into()
-            },
-            reading: note.to_string(),
-        });
+        let threshold: Cell = if rows.is_empty() {
+            Words::NoCriticalValue.into()
+        } else {
+            "—".into()
+        };
+        rows.push(cragg_donald_row(cd, threshold, note.into()));
     } else if rows.is_empty() {
-        rows.push(Evidence {
-            test: "Cragg–Donald minimum eigenvalue".into(),
-            statistic: num(cd),
-            reference: "—".into(),
-            threshold: "no critical value".into(),
-            reading: "no Stock–Yogo value is carried for this number of instruments".into(),
-        });
+        rows.push(cragg_donald_row(
+            cd,
+            Words::NoCriticalValue.into(),
+            Words::NoStockYogo.into(),
+        ));
     }
     rows
 }
 
+/// A Cragg–Donald row without a Stock–Yogo table.
+fn cragg_donald_row(cd: f64, threshold: Cell, reading: Cell) -> TypedEvidence {
+    TypedEvidence {
+        test: Words::CraggDonald.into(),
+        statistic: num(cd),
+        reference: "—".into(),
+        threshold,
+        reading,
+    }
+}
+
 /// The Stock–Yogo tables a report reads, in the order it lists them: criterion, the table's
-/// number in Stock and Yogo (2005), and what the criterion bounds.
+/// number in Stock and Yogo (2005), and the key of what the criterion bounds in `id_words`.
 const STOCK_YOGO_TABLES: [(StockYogoCriterion, &str, &str); 3] = [
-    (
-        StockYogoCriterion::WaldSize,
-        "Table 5.2",
-        "size of a nominal 5% Wald test of 2SLS",
-    ),
+    (StockYogoCriterion::WaldSize, "Table 5.2", "wald_size"),
     (
         StockYogoCriterion::RelativeBias,
         "Table 5.1",
-        "bias of 2SLS relative to OLS",
+        "relative_bias",
     ),
     (
         StockYogoCriterion::LimlWaldSize,
         "Table 5.4",
-        "size of a nominal 5% Wald test of LIML",
+        "liml_wald_size",
     ),
 ];
 
@@ -217,29 +208,36 @@ const STOCK_YOGO_TABLES: [(StockYogoCriterion, &str, &str); 3] = [
 fn stock_yogo_reading(
     table: &[&StockYogoValue],
     cd: f64,
-    what: &str,
-    remark: &str,
-) -> (String, String) {
+    criterion: &'static str,
+    errors: ErrorKind,
+) -> (Words, Words) {
     let loosest = table[table.len() - 1];
+    let remark = errors != ErrorKind::Classical;
+    let level = |v: &StockYogoValue| format!("{:.0}", 100.0 * v.level);
     match table.iter().find(|v| cd > v.critical_value) {
         Some(v) => (
-            format!(
-                "above {} (the {:.0}% row)",
-                num(v.critical_value),
-                100.0 * v.level
-            ),
-            format!("worst-case {what} at most {:.0}%{remark}", 100.0 * v.level),
+            Words::StockYogoAbove {
+                value: num(v.critical_value),
+                level: level(v),
+            },
+            Words::StockYogoReading {
+                criterion,
+                passes: true,
+                level: level(v),
+                remark,
+            },
         ),
         None => (
-            format!(
-                "below every row (the loosest, {:.0}%, is {})",
-                100.0 * loosest.level,
-                num(loosest.critical_value)
-            ),
-            format!(
-                "worst-case {what} may exceed {:.0}%{remark}",
-                100.0 * loosest.level
-            ),
+            Words::StockYogoBelow {
+                value: num(loosest.critical_value),
+                level: level(loosest),
+            },
+            Words::StockYogoReading {
+                criterion,
+                passes: false,
+                level: level(loosest),
+                remark,
+            },
         ),
     }
 }

@@ -1,5 +1,6 @@
 //! The Resampling section: for each resampled test, the procedure, the draws and how the
-//! p-value is formed, from results.json's `resampling` object.
+//! p-value is formed, from results.json's `resampling` object. The model carries the values;
+//! the sentences are the `resampling` macros of `templates/words.j2`.
 
 use super::super::format::num;
 use crate::plan::Plan;
@@ -7,11 +8,62 @@ use crate::results::{
     BootstrapVariant, BootstrapWeights, CountingRule, DrawStatistic, Procedure, ResampleMode,
     Results,
 };
+use serde::Serialize;
 
-/// How each resampled test drew its replicates: the procedure, the design it follows, the
-/// number of draws and whether the observed one is counted, exact or sampled, the seed and
-/// the counting rule, all formatted from the hypothesis's `resampling` record in results.json.
-pub(super) fn resampling_lines(plan: &Plan, r: &Results) -> Vec<String> {
+/// One item of the Resampling section.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(super) enum ResamplingItem {
+    /// How a resampled test drew its replicates.
+    Test {
+        id: String,
+        /// Randomization (else the wild bootstrap).
+        randomization: bool,
+        procedure: ProcedureText,
+        count: Count,
+        /// `two_sided`, `greater`, `less` or `ar_one_sided`.
+        counts: &'static str,
+        tie_tolerance: String,
+    },
+    /// How a randomization interval was found.
+    Interval {
+        id: String,
+        level: String,
+        alpha: String,
+        evaluations: usize,
+        tolerance: String,
+    },
+}
+
+/// The procedure and what it re-draws.
+#[derive(Debug, Serialize)]
+pub(super) struct ProcedureText {
+    variable: String,
+    design: String,
+    blocks: Option<String>,
+    clusters: Option<String>,
+    cluster_count: Option<usize>,
+    /// `anderson_rubin`, `t` or `estimate`.
+    statistic: &'static str,
+    null: String,
+    /// The wild restricted efficient bootstrap (else the restricted wild cluster bootstrap).
+    efficient: bool,
+    webb: bool,
+}
+
+/// Exact or sampled, the draws asked for and used, and the seed.
+#[derive(Debug, Serialize)]
+pub(super) struct Count {
+    exact: bool,
+    requested: usize,
+    used: usize,
+    skipped: usize,
+    seed: String,
+}
+
+/// How each resampled test drew its replicates, and how each randomization interval was
+/// found, from the hypothesis's `resampling` record in results.json.
+pub(super) fn resampling_lines(plan: &Plan, r: &Results) -> Vec<ResamplingItem> {
     let mut out = Vec::new();
     for h in &plan.hypotheses {
         let Some(res) = r.hypotheses.get(&h.id) else {
@@ -20,114 +72,53 @@ pub(super) fn resampling_lines(plan: &Plan, r: &Results) -> Vec<String> {
         let Some(info) = res.resampling.as_ref() else {
             continue;
         };
-        out.push(format!(
-            "{}: {}; {}; {}.",
-            h.id,
-            resampling_procedure(info),
-            resampling_count(info),
-            resampling_p_value(info)
-        ));
+        out.push(ResamplingItem::Test {
+            id: h.id.clone(),
+            randomization: info.procedure == Procedure::Randomization,
+            procedure: procedure(info),
+            count: Count {
+                exact: info.mode == ResampleMode::Exact,
+                requested: info.draws_requested,
+                used: info.draws_used,
+                skipped: info.draws_skipped,
+                seed: info.seed.to_string(),
+            },
+            counts: match info.p_value_counts {
+                CountingRule::TwoSided => "two_sided",
+                CountingRule::Greater => "greater",
+                CountingRule::Less => "less",
+                CountingRule::ArOneSided => "ar_one_sided",
+            },
+            tie_tolerance: format!("{:e}", info.tie_tolerance),
+        });
         if let Some(i) = &res.randomization_interval {
-            out.push(format!(
-                "{}: the {}% randomization interval is the set of constant additive effects τ (every unit's outcome moved by τ when treated) that the two-sided test does not reject at {}: {} candidate effects tested, each on the same draws, stepping out from the estimate by its standard error times 1, 2, 4, … (up to 4096) and then bisecting, so each end lies within {} of a rejected effect; an end with no rejection found is shown as unbounded.",
-                h.id,
-                (1e6 * 100.0 * i.level).round() / 1e6,
-                num(1.0 - i.level),
-                i.evaluations,
-                num(i.tolerance)
-            ));
+            out.push(ResamplingItem::Interval {
+                id: h.id.clone(),
+                level: ((1e6 * 100.0 * i.level).round() / 1e6).to_string(),
+                alpha: num(1.0 - i.level),
+                evaluations: i.evaluations,
+                tolerance: num(i.tolerance),
+            });
         }
     }
     out
 }
 
-/// The procedure and what it re-draws, in words.
-pub(super) fn resampling_procedure(i: &crate::results::ResamplingInfo) -> String {
+fn procedure(i: &crate::results::ResamplingInfo) -> ProcedureText {
     let d = &i.redrawn;
-    if i.procedure == Procedure::Randomization {
-        let how = match (&d.blocks, &d.clusters) {
-            (Some(b), Some(c)) => {
-                format!("whole clusters of `{c}` re-assigned within blocks of `{b}`")
-            }
-            (Some(b), None) => format!("units re-assigned within blocks of `{b}`"),
-            (None, Some(c)) => format!("whole clusters of `{c}` re-assigned"),
-            (None, None) => "the observed values permuted among all units".to_string(),
-        };
-        let statistic = match i.statistic {
-            DrawStatistic::AndersonRubin => "the Anderson–Rubin statistic",
-            DrawStatistic::T => "the studentized coefficient (t)",
-            DrawStatistic::Estimate | DrawStatistic::Cr1T => "the coefficient estimate",
-        };
-        format!(
-            "randomization test: `{}` re-drawn by the registered design ({}: {how}); {statistic} recomputed under the sharp null (coefficient {})",
-            d.variable.as_deref().unwrap_or_default(),
-            d.design,
-            i.null_imposed
-        )
-    } else {
-        let variant = match i.bootstrap {
-            Some(BootstrapVariant::WildRestrictedEfficient) => {
-                "wild restricted efficient bootstrap (2SLS)"
-            }
-            _ => "restricted wild cluster bootstrap",
-        };
-        let weights = if i.weights == Some(BootstrapWeights::Webb) {
-            "Webb six-point"
-        } else {
-            "Rademacher"
-        };
-        let clusters = match (&d.clusters, d.cluster_count) {
-            (Some(c), Some(g)) => format!(" of `{c}` ({g} clusters)"),
-            (Some(c), None) => format!(" of `{c}`"),
-            _ => String::new(),
-        };
-        format!(
-            "{variant}: null imposed (coefficient {}), {weights} weights drawn per cluster{clusters}, CR1 t recomputed",
-            i.null_imposed
-        )
+    ProcedureText {
+        variable: d.variable.clone().unwrap_or_default(),
+        design: d.design.clone(),
+        blocks: d.blocks.clone(),
+        clusters: d.clusters.clone(),
+        cluster_count: d.cluster_count,
+        statistic: match i.statistic {
+            DrawStatistic::AndersonRubin => "anderson_rubin",
+            DrawStatistic::T => "t",
+            DrawStatistic::Estimate | DrawStatistic::Cr1T => "estimate",
+        },
+        null: i.null_imposed.to_string(),
+        efficient: i.bootstrap == Some(BootstrapVariant::WildRestrictedEfficient),
+        webb: i.weights == Some(BootstrapWeights::Webb),
     }
-}
-
-/// Exact or sampled, the draws asked for and used, the observed draw and the seed.
-pub(super) fn resampling_count(i: &crate::results::ResamplingInfo) -> String {
-    let original = if i.procedure == Procedure::Randomization {
-        "the observed assignment"
-    } else {
-        "the original sample (all weights 1)"
-    };
-    let skipped = match i.draws_skipped {
-        0 => String::new(),
-        1 => ", 1 draw left out because its statistic could not be computed".to_string(),
-        k => format!(", {k} draws left out because their statistic could not be computed"),
-    };
-    if i.mode == ResampleMode::Exact {
-        format!(
-            "exact: every possible draw enumerated ({original} among them), {} used{skipped}; the seed is not used",
-            i.draws_used
-        )
-    } else {
-        format!(
-            "sampled: {} random draws with seed {} plus {original}, {} used{skipped} (the {} one counted)",
-            i.draws_requested,
-            i.seed,
-            i.draws_used,
-            if i.procedure == Procedure::Randomization { "observed" } else { "original" }
-        )
-    }
-}
-
-/// How the p-value is formed from the draws.
-pub(super) fn resampling_p_value(i: &crate::results::ResamplingInfo) -> String {
-    let rule = match i.p_value_counts {
-        CountingRule::TwoSided => "|T*| ≥ |T|",
-        CountingRule::Greater => "T* ≥ T",
-        CountingRule::Less => "T* ≤ T",
-        CountingRule::ArOneSided => {
-            "AR* ≥ AR (p = 1 when the estimate lies on the other side of the null)"
-        }
-    };
-    format!(
-        "p-value: the share of the {} draws with {rule}, ties within a relative {:e} counted",
-        i.draws_used, i.tie_tolerance
-    )
 }

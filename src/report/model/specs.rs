@@ -1,12 +1,12 @@
 //! Specifications: the plan's side-by-side tables and one block per specification (its facts,
 //! estimates, identification panel, first stages, reduced form and LIML estimate), with the
-//! degrees-of-freedom conventions the report states once.
+//! degrees-of-freedom conventions the report states once. The model carries typed values;
+//! the sentences are the macros of `templates/words.j2` (`fact`, `table_errors`, `table_note`,
+//! `block_title`, `block_line`, `convention`).
 
-use super::super::format::{num, p_is, pval};
+use super::super::format::{num, pval};
 use crate::plan::spec_terms;
-use crate::results::{
-    BandwidthRule, CoefDistribution, ErrorKind, Results, SpecResult, Term, TestResult,
-};
+use crate::results::{BandwidthRule, CoefDistribution, ErrorKind, Results, SpecResult, Term};
 use serde::Serialize;
 
 #[derive(Debug, Serialize)]
@@ -16,10 +16,33 @@ pub(super) struct TableModel {
     estimators: Vec<String>,
     rows: Vec<TableRow>,
     n: Vec<String>,
-    errors: Vec<String>,
+    errors: Vec<ErrorsCell>,
     /// Rows the plan asked for beneath the coefficients: a label and one cell per column.
     extra: Vec<(String, Vec<String>)>,
-    notes: Vec<String>,
+    notes: Vec<TableNote>,
+}
+
+/// A table's errors cell: clustered, HAC, or the kind's label.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(super) enum ErrorsCell {
+    Cluster { by: Vec<String>, clusters: usize },
+    Hac { bandwidth: String },
+    Label { label: &'static str },
+}
+
+/// A note beneath a table.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(super) enum TableNote {
+    /// Standard errors in parentheses.
+    Parentheses,
+    /// The legend of the marks: each mark with its threshold.
+    Marks { marks: Vec<(String, String)> },
+    /// A note of a summary row (worded in `summary_rows.rs`).
+    Text { text: String },
+    /// The columns rest on different numbers of rows.
+    MixedRows { ns: Vec<usize> },
 }
 
 #[derive(Debug, Serialize)]
@@ -40,7 +63,7 @@ pub(super) struct Cell {
 pub(super) struct SpecModel {
     id: String,
     title: String,
-    facts: Vec<String>,
+    facts: Vec<Fact>,
     main: Block,
     identification: Option<super::super::identification::Panel>,
     blocks: Vec<Block>,
@@ -48,9 +71,114 @@ pub(super) struct SpecModel {
 
 #[derive(Debug, Serialize)]
 pub(super) struct Block {
-    title: String,
+    title: BlockTitle,
     terms: Vec<TermRow>,
-    lines: Vec<String>,
+    lines: Vec<BlockLine>,
+}
+
+/// Which block: the estimates, a first stage, the reduced form or the LIML estimate.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(super) enum BlockTitle {
+    Estimates,
+    FirstStage { name: String },
+    ReducedForm { outcome: String },
+    Liml { kappa: String },
+}
+
+/// A line beneath a block's terms.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(super) enum BlockLine {
+    RSquared { value: String },
+}
+
+/// A fact listed under a specification's title.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(super) enum Fact {
+    Rows {
+        estimator: &'static str,
+        outcome: String,
+        n: usize,
+        in_sample: usize,
+        dropped: usize,
+    },
+    Errors {
+        errors: ErrorsText,
+        df: DfFact,
+    },
+    Fit {
+        r_squared: String,
+        residual_sd: String,
+        level: String,
+    },
+    Hac(HacFact),
+    FixedEffects(FixedEffectsFact),
+    Kappa {
+        value: String,
+    },
+    Sample {
+        text: String,
+    },
+    Dropped {
+        terms: Vec<String>,
+    },
+    LinearProbability {
+        outside: usize,
+    },
+}
+
+/// A specification's errors: clustered (by which columns, how many clusters) or the kind.
+#[derive(Debug, Serialize)]
+pub(super) struct ErrorsText {
+    cluster_by: Option<Vec<String>>,
+    clusters: Option<usize>,
+    name: &'static str,
+}
+
+/// A specification's residual df as numbers, and the reference of its coefficient tests.
+#[derive(Debug, Serialize)]
+pub(super) struct DfFact {
+    df_resid: usize,
+    n: usize,
+    k: usize,
+    absorbed: usize,
+    /// Coefficient tests refer to N(0, 1) (else to t, with `t_df` if known).
+    normal: bool,
+    t_df: Option<String>,
+}
+
+/// How HAC errors were computed.
+#[derive(Debug, Serialize)]
+pub(super) struct HacFact {
+    order_by: String,
+    bandwidth: String,
+    /// The bandwidth was chosen from the data (else stated in the plan).
+    chosen: bool,
+    lags: usize,
+    factor: String,
+}
+
+/// The fixed effects swept out of a specification.
+#[derive(Debug, Serialize)]
+pub(super) struct FixedEffectsFact {
+    levels: Vec<(String, usize)>,
+    absorbed_df: usize,
+    /// Absorbed df of groups wholly inside one cluster (only when clustered and positive).
+    nested: Option<usize>,
+    within_r_squared: Option<String>,
+    singletons: usize,
+}
+
+/// A rule the report's degrees of freedom follow, stated once in its conventions.
+#[derive(Debug, Serialize, PartialEq, Clone, Copy)]
+#[serde(rename_all = "snake_case")]
+pub(super) enum Convention {
+    Hc1,
+    Hac,
+    Cluster,
+    Classical,
 }
 
 #[derive(Debug, Serialize)]
@@ -76,7 +204,7 @@ pub(super) fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
                     Some(v) => Cell {
                         est: num(v.estimate),
                         marks: stars(v.p_value, &t.stars),
-                        se: format!("({})", num(v.std_error)),
+                        se: format!("({})", num(v.std_error)), // a number's display
                     },
                     None => Cell {
                         est: String::new(),
@@ -99,10 +227,17 @@ pub(super) fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
         errors: specs
             .iter()
             .map(|s| match (&s.cluster_by, s.clusters) {
-                (Some(by), Some(g)) => format!("cluster {} ({g})", by.join("×")),
+                (Some(by), Some(g)) => ErrorsCell::Cluster {
+                    by: by.clone(),
+                    clusters: g,
+                },
                 _ => match &s.hac {
-                    Some(h) => format!("HAC (b = {})", bandwidth_text(h.bandwidth)),
-                    None => s.errors.label().to_string(),
+                    Some(h) => ErrorsCell::Hac {
+                        bandwidth: bandwidth_text(h.bandwidth),
+                    },
+                    None => ErrorsCell::Label {
+                        label: s.errors.label(),
+                    },
                 },
             })
             .collect(),
@@ -116,23 +251,23 @@ pub(super) fn table_model(t: &crate::plan::Table, r: &Results) -> TableModel {
 }
 
 /// What a reader of a table needs beside it: the parentheses, the marks, mixed samples.
-pub(super) fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<String> {
-    let mut notes =
-        vec!["Each estimate has its standard error beneath it, in parentheses.".to_string()];
+pub(super) fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<TableNote> {
+    let mut notes = vec![TableNote::Parentheses];
     if !t.stars.is_empty() {
         notes.push(stars_legend(&t.stars));
     }
     for row in &t.summary_rows {
-        notes.extend(super::super::summary_rows::notes(row, &t.columns, specs));
+        notes.extend(
+            super::super::summary_rows::notes(row, &t.columns, specs)
+                .into_iter()
+                .map(|text| TableNote::Text { text }),
+        );
     }
     let mut ns: Vec<usize> = specs.iter().map(|s| s.n).collect();
     ns.sort_unstable();
     ns.dedup();
     if ns.len() > 1 {
-        notes.push(format!(
-            "The columns rest on different rows (N = {}): each specification leaves out the rows missing any variable it uses, so differences between columns mix a change of method with a change of sample.",
-            ns.iter().map(usize::to_string).collect::<Vec<_>>().join(", ")
-        ));
+        notes.push(TableNote::MixedRows { ns });
     }
     notes
 }
@@ -143,16 +278,14 @@ pub(super) fn stars(p: f64, thresholds: &[f64]) -> String {
 }
 
 /// The legend of a table's marks, from the plan's thresholds.
-pub(super) fn stars_legend(thresholds: &[f64]) -> String {
-    let parts: Vec<String> = thresholds
-        .iter()
-        .enumerate()
-        .map(|(i, t)| format!("{} p < {t}", "*".repeat(i + 1)))
-        .collect();
-    format!(
-        "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): {}.",
-        parts.join(", ")
-    )
+pub(super) fn stars_legend(thresholds: &[f64]) -> TableNote {
+    TableNote::Marks {
+        marks: thresholds
+            .iter()
+            .enumerate()
+            .map(|(i, t)| ("*".repeat(i + 1), t.to_string()))
+            .collect(),
+    }
 }
 
 pub(super) fn spec_model(s: &crate::plan::Spec, r: &SpecResult, alpha: f64) -> SpecModel {
@@ -161,7 +294,7 @@ pub(super) fn spec_model(s: &crate::plan::Spec, r: &SpecResult, alpha: f64) -> S
         title: crate::escape::line(&r.title),
         facts: spec_facts(s, r),
         main: Block {
-            title: "Estimates".into(),
+            title: BlockTitle::Estimates,
             terms: ordered_terms(&spec_terms(s), &r.terms),
             lines: vec![],
         },
@@ -172,48 +305,46 @@ pub(super) fn spec_model(s: &crate::plan::Spec, r: &SpecResult, alpha: f64) -> S
 
 /// The facts listed under a specification's title: estimator and rows, errors and df, fit,
 /// and whatever applies of HAC, fixed effects, κ, sample, dropped terms and the LPM check.
-fn spec_facts(s: &crate::plan::Spec, r: &SpecResult) -> Vec<String> {
-    let (df_fact, _) = df_convention(r);
+fn spec_facts(s: &crate::plan::Spec, r: &SpecResult) -> Vec<Fact> {
     let mut facts = vec![
-        format!(
-            "{} of `{}` on {} rows ({} in the sample, {} left out for a missing value)",
-            r.estimator.label(),
-            r.outcome,
-            r.n,
-            r.sample.in_sample,
-            r.sample.dropped_missing
-        ),
-        format!("errors {}; {df_fact}", errors_text(r)),
-        format!(
-            "R² {} · residual SD {} · {:.0}% intervals",
-            num(r.r_squared),
-            num(r.residual_sd),
-            100.0 * r.confidence
-        ),
+        Fact::Rows {
+            estimator: r.estimator.label(),
+            outcome: r.outcome.clone(),
+            n: r.n,
+            in_sample: r.sample.in_sample,
+            dropped: r.sample.dropped_missing,
+        },
+        Fact::Errors {
+            errors: errors_text(r),
+            df: df_fact(r),
+        },
+        Fact::Fit {
+            r_squared: num(r.r_squared),
+            residual_sd: num(r.residual_sd),
+            level: format!("{:.0}", 100.0 * r.confidence),
+        },
     ];
     if let Some(h) = &r.hac {
-        facts.push(hac_fact(h));
+        facts.push(Fact::Hac(hac_fact(h)));
     }
     if !r.fixed_effects.is_empty() {
-        facts.push(fixed_effects_fact(r));
+        facts.push(Fact::FixedEffects(fixed_effects_fact(r)));
     }
     if let Some(k) = r.kappa {
-        facts.push(format!("k-class κ = {}", num(k)));
+        facts.push(Fact::Kappa { value: num(k) });
     }
     if let Some((text, _)) = &s.sample {
-        facts.push(format!("sample: {text}"));
+        facts.push(Fact::Sample { text: text.clone() });
     }
     if !r.dropped_terms.is_empty() {
-        facts.push(format!(
-            "dropped as collinear: {}",
-            r.dropped_terms.join(", ")
-        ));
+        facts.push(Fact::Dropped {
+            terms: r.dropped_terms.clone(),
+        });
     }
     if let Some(l) = &r.linear_probability {
-        facts.push(format!(
-            "binary outcome (linear probability model): {} fitted value(s) outside [0, 1]",
-            l.fitted_outside_unit_interval
-        ));
+        facts.push(Fact::LinearProbability {
+            outside: l.fitted_outside_unit_interval,
+        });
     }
     facts
 }
@@ -227,24 +358,29 @@ fn side_blocks(s: &crate::plan::Spec, r: &SpecResult) -> Vec<Block> {
     let mut blocks = Vec::new();
     for (name, fs) in r.first_stage.iter().flatten() {
         blocks.push(Block {
-            title: format!("First stage: `{name}` on the instruments and controls"),
+            title: BlockTitle::FirstStage { name: name.clone() },
             terms: ordered_terms(&z_order, &fs.terms),
-            lines: vec![format!("R² {}", num(fs.r_squared))],
+            lines: vec![BlockLine::RSquared {
+                value: num(fs.r_squared),
+            }],
         });
     }
     if let Some(rf) = &r.reduced_form {
         blocks.push(Block {
-            title: format!(
-                "Reduced form: `{}` on the instruments and controls",
-                rf.outcome
-            ),
+            title: BlockTitle::ReducedForm {
+                outcome: rf.outcome.clone(),
+            },
             terms: ordered_terms(&z_order, &rf.terms),
-            lines: vec![format!("R² {}", num(rf.r_squared))],
+            lines: vec![BlockLine::RSquared {
+                value: num(rf.r_squared),
+            }],
         });
     }
     if let Some(l) = &r.liml {
         blocks.push(Block {
-            title: format!("LIML estimate (κ = {}), for a decision rule", num(l.kappa)),
+            title: BlockTitle::Liml {
+                kappa: num(l.kappa),
+            },
             terms: ordered_terms(&order, &l.terms),
             lines: vec![],
         });
@@ -252,40 +388,28 @@ fn side_blocks(s: &crate::plan::Spec, r: &SpecResult) -> Vec<Block> {
     blocks
 }
 
-pub(super) fn errors_text(r: &SpecResult) -> String {
-    match (&r.cluster_by, r.clusters) {
-        (Some(b), Some(g)) => format!("clustered by {} ({g} clusters)", b.join(" and ")),
-        _ => r.errors.fact_name().to_string(),
+fn errors_text(r: &SpecResult) -> ErrorsText {
+    let clustered = r.cluster_by.is_some() && r.clusters.is_some();
+    ErrorsText {
+        cluster_by: r.cluster_by.clone().filter(|_| clustered),
+        clusters: r.clusters.filter(|_| clustered),
+        name: r.errors.fact_name(),
     }
 }
 
-/// The fixed effects swept out of a specification, in one sentence.
-pub(super) fn fixed_effects_fact(r: &SpecResult) -> String {
-    let levels = r
-        .fixed_effects
-        .iter()
-        .map(|(k, v)| format!("`{k}` ({v} levels)"))
-        .collect::<Vec<_>>()
-        .join(", ");
-    let inside = match (r.cluster_by.is_some(), r.absorbed_nested_df) {
-        (true, m) if m > 0 => format!(
-            "; {m} of these df belong to groups lying wholly inside one cluster and are left out of the CR1 factor's K"
-        ),
-        _ => String::new(),
-    };
-    let singletons = if r.singletons_dropped > 0 {
-        format!(
-            " · {} row(s) alone in their group set aside",
-            r.singletons_dropped
-        )
-    } else {
-        String::new()
-    };
-    format!(
-        "group means removed for {levels}, costing {} df in the residual count{inside} · R² within groups {}{singletons}",
-        r.absorbed_df,
-        r.within_r_squared.map_or("n/a".into(), num),
-    )
+/// The fixed effects swept out of a specification.
+fn fixed_effects_fact(r: &SpecResult) -> FixedEffectsFact {
+    FixedEffectsFact {
+        levels: r
+            .fixed_effects
+            .iter()
+            .map(|(k, v)| (k.clone(), *v))
+            .collect(),
+        absorbed_df: r.absorbed_df,
+        nested: Some(r.absorbed_nested_df).filter(|&m| r.cluster_by.is_some() && m > 0),
+        within_r_squared: r.within_r_squared.map(num),
+        singletons: r.singletons_dropped,
+    }
 }
 
 /// A HAC bandwidth: whole numbers as stated, others to the usual precision.
@@ -297,46 +421,41 @@ pub(super) fn bandwidth_text(b: f64) -> String {
     }
 }
 
-/// How HAC errors were computed, in one sentence.
-pub(super) fn hac_fact(h: &crate::results::HacResult) -> String {
-    let rule = match h.bandwidth_rule {
-        BandwidthRule::Stated => "stated in the plan",
-        BandwidthRule::NeweyWest1994 => {
-            "chosen from the data by the Newey–West (1994) rule, on the scores of a preliminary fit"
-        }
-    };
-    format!(
-        "autocorrelation: Bartlett kernel over the rows in `{}` order with bandwidth b = {} ({rule}), so rows d ≤ {} apart are weighted 1 − d/b; a row missing from the sample keeps its place; sandwich scaled by {}",
-        h.order_by, bandwidth_text(h.bandwidth), h.lags, h.small_sample_factor
-    )
+/// How HAC errors were computed.
+fn hac_fact(h: &crate::results::HacResult) -> HacFact {
+    HacFact {
+        order_by: h.order_by.clone(),
+        bandwidth: bandwidth_text(h.bandwidth),
+        chosen: h.bandwidth_rule == BandwidthRule::NeweyWest1994,
+        lags: h.lags,
+        factor: h.small_sample_factor.to_string(),
+    }
 }
 
-/// A specification's degrees of freedom as numbers, and the general rules they follow (stated
-/// once per report, in its conventions section).
-pub(super) fn df_convention(r: &SpecResult) -> (String, Vec<String>) {
-    let k = r.n - r.df_resid - r.absorbed_df;
-    let resid = if r.absorbed_df > 0 {
-        format!(
-            "residual df {} = {} − {k} − {} (n − K − absorbed)",
-            r.df_resid, r.n, r.absorbed_df
-        )
-    } else {
-        format!("residual df {} = {} − {k} (n − K)", r.df_resid, r.n)
-    };
-    let coef = match (r.distribution, r.df) {
-        (CoefDistribution::Normal, _) => "N(0, 1)".to_string(),
-        (_, Some(df)) => format!("t({df})"),
-        _ => "t".to_string(),
-    };
+/// A specification's degrees of freedom as numbers.
+fn df_fact(r: &SpecResult) -> DfFact {
+    DfFact {
+        df_resid: r.df_resid,
+        n: r.n,
+        k: r.n - r.df_resid - r.absorbed_df,
+        absorbed: r.absorbed_df,
+        normal: r.distribution == CoefDistribution::Normal,
+        t_df: r.df.map(|d| d.to_string()),
+    }
+}
+
+/// The general rules a specification's degrees of freedom follow (stated once per report,
+/// in its conventions section).
+pub(super) fn df_conventions(r: &SpecResult) -> Vec<Convention> {
     let mut rules = Vec::new();
     match r.errors {
-        ErrorKind::Hc1 => rules.push("HC1 errors scale the sandwich by n/(n − K − absorbed)".to_string()),
-        ErrorKind::Hac => rules.push("HAC errors scale the sandwich by n/(n − K − absorbed)".to_string()),
-        ErrorKind::Cluster => rules.push("Clustered (CR1) errors scale the sandwich by G/(G − 1)·(n − 1)/(n − K − a′), G the clusters and a′ the absorbed df of groups not lying wholly inside one cluster; their coefficient tests refer to t(G − 1) and their robust F tests to F(q, G − 1)".to_string()),
+        ErrorKind::Hc1 => rules.push(Convention::Hc1),
+        ErrorKind::Hac => rules.push(Convention::Hac),
+        ErrorKind::Cluster => rules.push(Convention::Cluster),
         _ => {}
     }
-    rules.push("K counts the estimated coefficients and absorbed the df used by swept-out group means (zero without fixed effects); classical F tests refer to F(q, n − L − absorbed), L the regressors of that regression".to_string());
-    (format!("{resid}; coefficient tests {coef}"), rules)
+    rules.push(Convention::Classical);
+    rules
 }
 
 pub(super) fn term_row(name: &str, t: &Term) -> TermRow {
@@ -348,11 +467,6 @@ pub(super) fn term_row(name: &str, t: &Term) -> TermRow {
         p: pval(t.p_value),
         ci: format!("[{}, {}]", num(t.ci[0]), num(t.ci[1])),
     }
-}
-
-pub(super) fn test_line(name: &str, t: &TestResult) -> String {
-    let dist = super::super::identification::dist_text(t.distribution);
-    format!("{name}: {} ({dist}), {}", num(t.statistic), p_is(t.p_value))
 }
 
 pub(super) fn ordered_terms(

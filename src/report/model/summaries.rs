@@ -1,15 +1,33 @@
-//! Summary indices, the balance table and the attrition lines.
+//! Summary indices, the balance table and the attrition lines. The model carries the values;
+//! the sentences are the summary macros of `templates/words.j2`.
 
 use super::super::format::{num, p_is, pval};
-use super::specs::test_line;
+use super::super::identification::dist_text;
 use crate::results::{ErrorKind, IndexMethod, IndexMissing, Results};
 use serde::Serialize;
 
 #[derive(Debug, Serialize)]
 pub(super) struct BalanceModel {
-    heading: String,
+    heading: BalanceHeading,
     rows: Vec<BalanceRowModel>,
-    joint: String,
+    joint: JointTest,
+}
+
+/// The balance table's heading: the arm column, the complete rows and the design.
+#[derive(Debug, Serialize)]
+pub(super) struct BalanceHeading {
+    by: String,
+    n: usize,
+    design: SummaryDesign,
+}
+
+/// The joint test of balance (with the blocks as regressors when absorbed).
+#[derive(Debug, Serialize)]
+pub(super) struct JointTest {
+    blocks: bool,
+    statistic: String,
+    reference: String,
+    p: String,
 }
 
 #[derive(Debug, Serialize)]
@@ -22,97 +40,147 @@ pub(super) struct BalanceRowModel {
     p: String,
 }
 
-/// How a balance or attrition regression was run: the difference (within the registered
-/// blocks, when absorbed) and the errors (naming the cluster columns).
-pub(super) fn summary_design(
+/// How a balance or attrition regression was run: the errors (naming the cluster columns)
+/// and, when absorbed, the registered blocks.
+#[derive(Debug, Serialize)]
+pub(super) struct SummaryDesign {
+    errors: String,
+    clusters: Vec<String>,
+    blocks: Option<Blocks>,
+}
+
+#[derive(Debug, Serialize)]
+pub(super) struct Blocks {
+    levels: usize,
+    column: String,
+    singletons: usize,
+}
+
+/// One line of the Attrition section.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(super) enum AttritionLine {
+    /// The observed shares of the two arms and their difference.
+    Observed {
+        observed: String,
+        mean_comparison: String,
+        n_comparison: usize,
+        mean_treated: String,
+        n_treated: usize,
+        difference: String,
+        std_error: String,
+        design: SummaryDesign,
+        p: String,
+    },
+    /// The Lee bounds pool the registered blocks.
+    Pooled { column: String },
+    /// Lee bounds on one outcome.
+    Lee {
+        outcome: String,
+        lower: String,
+        upper: String,
+        trimmed_arm: String,
+        trim_share: String,
+        std_errors: Option<(String, String)>,
+        interval: Option<LeeInterval>,
+        no_interval: Option<String>,
+    },
+}
+
+#[derive(Debug, Serialize)]
+pub(super) struct LeeInterval {
+    level: String,
+    critical_value: String,
+    lower: String,
+    upper: String,
+}
+
+/// One summary index: how it is built and how many rows have a value.
+#[derive(Debug, Serialize)]
+pub(super) struct IndexLine {
+    id: String,
+    anderson: bool,
+    components: Vec<String>,
+    reference: String,
+    reference_rows: usize,
+    rows_with_value: usize,
+    complete: bool,
+}
+
+fn summary_design(
     errors: ErrorKind,
     clusters: &[String],
     blocks: Option<&crate::results::BlocksUsed>,
-) -> String {
-    let errors = if clusters.is_empty() {
-        format!("{errors} errors")
-    } else {
-        let by: Vec<String> = clusters.iter().map(|c| format!("`{c}`")).collect();
-        format!("errors clustered by {}", by.join(" and "))
-    };
-    match blocks {
-        None => format!("differences from OLS on the arm with {errors}"),
-        Some(b) => format!(
-            "within-block differences from OLS on the arm with the {} registered blocks of `{}` as fixed effects{}, {errors}",
-            b.levels,
-            b.column,
-            match b.singletons_dropped {
-                0 => String::new(),
-                1 => " (1 row alone in its block left out)".to_string(),
-                k => format!(" ({k} rows alone in their block left out)"),
-            }
-        ),
+) -> SummaryDesign {
+    SummaryDesign {
+        errors: errors.to_string(),
+        clusters: clusters.to_vec(),
+        blocks: blocks.map(|b| Blocks {
+            levels: b.levels,
+            column: b.column.clone(),
+            singletons: b.singletons_dropped,
+        }),
     }
 }
 
-pub(super) fn attrition_lines(r: &Results) -> Vec<String> {
+pub(super) fn attrition_lines(r: &Results) -> Vec<AttritionLine> {
     let Some(a) = &r.attrition else {
         return Vec::new();
     };
     let d = &a.differential;
-    let mut lines = vec![format!(
-        "observed (\"{}\"): {} of the comparison arm (n = {}) and {} of the treated arm (n = {}); difference {} (s.e. {}; {}), {}",
-        a.observed,
-        num(d.mean_comparison),
-        d.n_comparison,
-        num(d.mean_treated),
-        d.n_treated,
-        num(d.difference),
-        num(d.std_error),
-        summary_design(a.errors, &a.clusters, a.blocks.as_ref()),
-        p_is(d.test.p_value)
-    )];
+    let mut lines = vec![AttritionLine::Observed {
+        observed: a.observed.clone(),
+        mean_comparison: num(d.mean_comparison),
+        n_comparison: d.n_comparison,
+        mean_treated: num(d.mean_treated),
+        n_treated: d.n_treated,
+        difference: num(d.difference),
+        std_error: num(d.std_error),
+        design: summary_design(a.errors, &a.clusters, a.blocks.as_ref()),
+        p: p_is(d.test.p_value),
+    }];
     if let (Some(b), false) = (&a.blocks, a.bounds.is_empty()) {
-        lines.push(format!(
-            "The Lee bounds below pool the blocks of `{}`: they are computed on the arms as wholes, not within blocks, which bounds the effect only if every block assigned the same share of units to treatment.",
-            b.column
-        ));
+        lines.push(AttritionLine::Pooled {
+            column: b.column.clone(),
+        });
     }
     for (y, b) in &a.bounds {
-        let interval = match (&b.interval, &b.no_interval) {
-            (Some([lo, hi]), _) => format!(
-                "; {}% interval for the effect (Imbens and Manski 2004, critical value {}): [{}, {}]",
-                (1e6 * 100.0 * b.interval_level).round() / 1e6,
-                num(b.interval_critical_value.unwrap_or(f64::NAN)),
-                num(*lo),
-                num(*hi)
-            ),
-            (None, Some(why)) => format!("; no interval: {why}"),
-            (None, None) => String::new(),
-        };
-        lines.push(format!(
-            "Lee (2009) bounds on the effect on `{y}` for units observed in either arm: [{}, {}] (the {} arm trimmed by {}{}){interval}",
-            num(b.lower),
-            num(b.upper),
-            b.trimmed_arm,
-            num(b.trim_share),
-            match (b.std_error_lower, b.std_error_upper) {
-                (Some(l), Some(u)) => format!("; s.e. {} and {}", num(l), num(u)),
-                _ => String::new(),
-            }
-        ));
+        let interval = b.interval.map(|[lo, hi]| LeeInterval {
+            level: ((1e6 * 100.0 * b.interval_level).round() / 1e6).to_string(),
+            critical_value: num(b.interval_critical_value.unwrap_or(f64::NAN)),
+            lower: num(lo),
+            upper: num(hi),
+        });
+        lines.push(AttritionLine::Lee {
+            outcome: y.clone(),
+            lower: num(b.lower),
+            upper: num(b.upper),
+            trimmed_arm: b.trimmed_arm.to_string(),
+            trim_share: num(b.trim_share),
+            std_errors: match (b.std_error_lower, b.std_error_upper) {
+                (Some(l), Some(u)) => Some((num(l), num(u))),
+                _ => None,
+            },
+            no_interval: b.no_interval.clone().filter(|_| interval.is_none()),
+            interval,
+        });
     }
     lines
 }
 
-/// One line per summary index: how it is built and how many rows have a value.
-pub(super) fn index_lines(r: &Results) -> Vec<String> {
+/// One line per summary index.
+pub(super) fn index_lines(r: &Results) -> Vec<IndexLine> {
     r.indices
         .iter()
-        .map(|(id, i)| format!(
-            "`{id}`: {} of [{}], standardised against the reference group \"{}\" ({} rows); {} rows have a value ({})",
-            if i.method == IndexMethod::Anderson { "inverse-covariance-weighted index (Anderson 2008)" } else { "mean of z-scores (Kling, Liebman and Katz 2007)" },
-            i.components.join(", "),
-            i.reference,
-            i.reference_rows,
-            i.rows_with_value,
-            if i.missing == IndexMissing::Complete { "a row missing any component has no value" } else { "components missing in a row are left out of its average" }
-        ))
+        .map(|(id, i)| IndexLine {
+            id: id.clone(),
+            anderson: i.method == IndexMethod::Anderson,
+            components: i.components.clone(),
+            reference: i.reference.clone(),
+            reference_rows: i.reference_rows,
+            rows_with_value: i.rows_with_value,
+            complete: i.missing == IndexMissing::Complete,
+        })
         .collect()
 }
 
@@ -120,12 +188,11 @@ pub(super) fn index_lines(r: &Results) -> Vec<String> {
 pub(super) fn balance_model(r: &Results) -> Option<BalanceModel> {
     let b = r.balance.as_ref()?;
     Some(BalanceModel {
-        heading: format!(
-            "By `{}` ({} complete rows; {})",
-            b.by,
-            b.n,
-            summary_design(b.errors, &b.clusters, b.blocks.as_ref())
-        ),
+        heading: BalanceHeading {
+            by: b.by.clone(),
+            n: b.n,
+            design: summary_design(b.errors, &b.clusters, b.blocks.as_ref()),
+        },
         rows: b
             .covariates
             .iter()
@@ -138,13 +205,11 @@ pub(super) fn balance_model(r: &Results) -> Option<BalanceModel> {
                 p: pval(v.test.p_value),
             })
             .collect(),
-        joint: test_line(
-            if b.blocks.is_some() {
-                "joint test (the arm on all covariates and the blocks)"
-            } else {
-                "joint test (the arm on all covariates)"
-            },
-            &b.joint,
-        ),
+        joint: JointTest {
+            blocks: b.blocks.is_some(),
+            statistic: num(b.joint.statistic),
+            reference: dist_text(b.joint.distribution),
+            p: p_is(b.joint.p_value),
+        },
     })
 }
