@@ -28,3 +28,4 @@ mod resampling;
 mod results_bytes;
 mod summaries;
 mod table_rows;
+mod weights;

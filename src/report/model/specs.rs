@@ -191,6 +191,12 @@ fn spec_facts(s: &crate::plan::Spec, r: &SpecResult) -> Vec<String> {
             100.0 * r.confidence
         ),
     ];
+    if let Some(w) = &r.weights {
+        facts.push(format!(
+            "weighted by `{w}` (probability weights: weighted least squares, sandwich errors on weighted scores; {} row(s) of weight zero left out)",
+            r.sample.dropped_zero_weight.unwrap_or(0)
+        ));
+    }
     if let Some(h) = &r.hac {
         facts.push(hac_fact(h));
     }
