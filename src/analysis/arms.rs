@@ -24,7 +24,8 @@ pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>)
         out.take_up_note = Some("an OLS specification has no instrument".to_string());
         out.take_up_missing = Some(crate::results::TakeUpMissing::Ols);
     }
-    let arms = choose_by(spec, assigned)
+    let arms = weighted(spec)
+        .and_then(|()| choose_by(spec, assigned))
         .and_then(|(by, role)| Ok((by, role, arm_of(table, by, &d.rows)?)));
     let (by, role, arm) = match arms {
         Ok(a) => a,
@@ -55,6 +56,18 @@ pub fn summarise(spec: &Spec, table: &Table, d: &Design, assigned: Option<&str>)
         }
     }
     out
+}
+
+/// Arm summaries are computed unweighted only: a weighted specification's are marked
+/// unavailable with the reason rather than computed without its weights.
+fn weighted(spec: &Spec) -> Result<(), Why> {
+    match &spec.weights {
+        Some(w) => Err((
+            crate::results::TakeUpMissing::Weighted,
+            format!("not computed: the specification is weighted by `{w}`, and arm summaries are computed unweighted only"),
+        )),
+        None => Ok(()),
+    }
 }
 
 /// The summary before any arm is found: how its standard errors are computed (clustered

@@ -14,7 +14,7 @@
 use super::{IdOrder, Labels, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{Absorbed, CovSpec, FixedEffects};
-use crate::plan::{Errors, Spec};
+use crate::plan::{DataSource, Errors, Spec};
 use nalgebra::{DMatrix, DVector};
 
 /// The matrices of one specification after sample restriction and listwise deletion.
@@ -57,6 +57,11 @@ pub struct Design {
     pub absorbed_columns: Vec<String>,
     /// Whether the column space contains a constant (intercept or fixed effects).
     pub has_constant: bool,
+    /// Probability weights of the used rows (`weights = "column"`), as in the data; the
+    /// caller scales rows by their square roots before fitting.
+    pub weights: Option<DVector<f64>>,
+    /// Sample rows complete in every variable but dropped for a weight of zero.
+    pub zero_weights: usize,
 }
 
 fn column<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t [Option<f64>]> {
@@ -120,6 +125,7 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
 
 fn used_numeric(spec: &Spec) -> Vec<String> {
     let mut v = vec![spec.outcome.clone()];
+    v.extend(spec.weights.iter().cloned());
     v.extend(
         spec.focal()
             .iter()
@@ -160,9 +166,10 @@ fn group_index(values: &Labels, rows: &[usize], spec: &Spec) -> Result<(Vec<usiz
         })
 }
 
-/// Build the design of `spec` from `table`.
-pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
+/// Build the design of `spec` from `table` (read from `source`).
+pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design> {
     let (n_sample, mut rows) = kept_rows(table, spec)?;
+    let (weights, zero_weights) = super::weights::sample_weights(table, source, spec, &mut rows)?;
     let mut groups = Vec::new();
     for fe in &spec.fixed_effects {
         groups.push(labels(table, fe, spec)?);
@@ -234,6 +241,8 @@ pub fn design(table: &Table, spec: &Spec) -> Result<Design> {
         absorbed,
         absorbed_columns,
         has_constant: spec.intercept || !spec.fixed_effects.is_empty(),
+        weights,
+        zero_weights,
     })
 }
 

@@ -11,6 +11,7 @@ pub mod dialect;
 mod labels;
 mod parquet;
 mod read;
+mod weights;
 
 pub use design::{cov_spec, design, CovSpecGap, Design};
 pub use labels::{IdOrder, Labels, TooManyLabels};

@@ -19,6 +19,7 @@ pub fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
                 .cloned(),
         );
         names.insert(s.outcome.clone());
+        names.extend(s.weights.iter().cloned());
         names.extend(s.fixed_effects.iter().cloned());
         names.extend(s.errors.cluster_columns().iter().cloned());
         if let Some((_, e)) = &s.sample {

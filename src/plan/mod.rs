@@ -535,6 +535,8 @@ pub struct Spec {
     pub fuller_k: f64,
     /// Worst-case bias τ for the effective-F critical value.
     pub worst_case_bias: f64,
+    /// Probability-weight column (rows scaled by √w; sandwich errors only).
+    pub weights: Option<String>,
 }
 
 impl Spec {

@@ -305,6 +305,8 @@ pub struct RawSpec {
     pub distribution: Option<Spanned<String>>,
     /// Per-specification override of the confidence level.
     pub confidence: Option<Spanned<f64>>,
+    /// Probability weights: a numeric column declared in the table's schema.
+    pub weights: Option<Spanned<String>>,
 }
 
 /// `[[contingency]]`.

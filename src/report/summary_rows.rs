@@ -59,6 +59,7 @@ fn take_up_rows(specs: &[&SpecResult]) -> Vec<(String, Vec<String>)> {
         Some(TakeUpMissing::NotBinary) => "n/a: not 0/1",
         Some(TakeUpMissing::OneArm) => "n/a: one arm only",
         Some(TakeUpMissing::SmallArm) => "n/a: an arm too small",
+        Some(TakeUpMissing::Weighted) => "n/a: weighted",
         _ => "n/a",
     };
     let cell = |k: usize| {

@@ -364,6 +364,8 @@ spelled! {
         NotAColumn = "not-a-column",
         /// Not exactly one regressor of interest.
         Regressors = "regressors",
+        /// A weighted specification (arm summaries are computed unweighted only).
+        Weighted = "weighted",
     }
 }
 

@@ -61,6 +61,9 @@ pub struct SpecResult {
     pub dropped_terms: Vec<String>,
     /// Row accounting.
     pub sample: SampleInfo,
+    /// The probability-weight column (absent when unweighted).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub weights: Option<String>,
     /// First stages by endogenous regressor.
     pub first_stage: Option<BTreeMap<String, FirstStageResult>>,
     /// Reduced form.
@@ -337,8 +340,11 @@ pub struct SampleInfo {
     pub table_rows: usize,
     /// Rows passing the sample restriction.
     pub in_sample: usize,
-    /// Rows dropped for missing values (listwise deletion).
+    /// Rows dropped for missing values (listwise deletion; a missing weight counts here).
     pub dropped_missing: usize,
+    /// Rows of a weighted specification dropped for a weight of zero (absent when unweighted).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub dropped_zero_weight: Option<usize>,
 }
 
 /// A linear probability model's check of its fitted values.

@@ -29,10 +29,10 @@ fn malformed_toml() {
 #[test]
 fn unknown_key() {
     let s = Study::with(
-        &PLAN.edit("errors = \"hc1\"", "errors = \"hc1\"\nweights = \"w\""),
+        &PLAN.edit("errors = \"hc1\"", "errors = \"hc1\"\nweight = \"w\""),
         &data_csv(),
     );
-    fails(&s, &["unknown field `weights`"]);
+    fails(&s, &["unknown field `weight`"]);
 }
 
 #[test]

@@ -29,3 +29,4 @@ mod resampling;
 mod results_bytes;
 mod summaries;
 mod table_rows;
+mod weights;

@@ -84,7 +84,7 @@ impl IvContext<'_> {
             .map_err(|e| self.err(e))?;
         let z_names = self.z_names();
         let mut out = BTreeMap::new();
-        for (name, s) in p.focal_names.iter().zip(&stages) {
+        for (j, (name, s)) in p.focal_names.iter().zip(&stages).enumerate() {
             let reference = reference_for(spec, &s.fit);
             out.insert(
                 name.clone(),
@@ -98,7 +98,7 @@ impl IvContext<'_> {
                     robust_f_distribution: s.robust_f.reference,
                     partial_r_squared: s.partial_r_squared,
                     shea_partial_r_squared: s.shea_partial_r_squared,
-                    r_squared: s.fit.r_squared,
+                    r_squared: super::weighted::r_squared(&s.fit, p.focal.column(j), d),
                 },
             );
         }
@@ -116,7 +116,7 @@ impl IvContext<'_> {
         Ok(Regression {
             outcome: spec.outcome.clone(),
             terms: terms_of(&rf, &self.z_names(), &reference, spec.confidence),
-            r_squared: rf.r_squared,
+            r_squared: super::weighted::r_squared(&rf, d.y.column(0), d),
             n: rf.n,
         })
     }

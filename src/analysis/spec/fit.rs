@@ -116,7 +116,7 @@ pub(super) fn lpm_check(
     let outside = d
         .y_raw
         .iter()
-        .zip(fit.resid.iter())
+        .zip(super::weighted::residuals(fit, d).iter())
         .map(|(y, u)| y - u)
         .filter(|v| *v < 0.0 || *v > 1.0)
         .count();

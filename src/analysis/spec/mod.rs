@@ -12,6 +12,7 @@ mod fit;
 mod resample;
 mod resolve;
 mod result;
+mod weighted;
 
 use crate::data::{Design, Table};
 use crate::deviation::Deviation;
@@ -149,7 +150,8 @@ pub fn fit_spec(
     rc: &ResampleContext,
 ) -> Result<Fitted> {
     let mut deviations = Vec::new();
-    let (d, p) = resolve::columns(spec, table, &mut deviations)?;
+    let (mut d, mut p) = resolve::columns(spec, table, source, &mut deviations)?;
+    weighted::scale_rows(&mut d, &mut p);
     let (cov, hac) = fit::covariance(spec, table, &d, &p)?;
     let prepared = Prepared {
         spec,

@@ -33,6 +33,13 @@ pub(super) fn resampled_tests(
         resampled: BTreeMap::new(),
         ri_intervals: BTreeMap::new(),
     };
+    if let (Some(w), Some(need)) = (&prepared.spec.weights, needs.resample.first()) {
+        // Refused at `check` (plan/validate); never resample a weighted fit unweighted.
+        return Err(super::est_err(prepared.spec, format!(
+            "hypothesis `{}` asks for a resampled test, which is not available for a specification weighted by `{w}`",
+            need.hypothesis
+        )));
+    }
     let p = &prepared.p;
     let kept: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
     for need in &needs.resample {

@@ -8,7 +8,7 @@ use crate::data::{design, Design, Table};
 use crate::deviation::{Deviation, DeviationCode};
 use crate::error::Result;
 use crate::estimate;
-use crate::plan::Spec;
+use crate::plan::{DataSource, Spec};
 use nalgebra::{DMatrix, DVector};
 
 /// The columns of a design kept after collinearity was resolved, by role.
@@ -42,9 +42,10 @@ struct Block<'a> {
 pub(super) fn columns(
     spec: &Spec,
     table: &Table,
+    source: &DataSource,
     deviations: &mut Vec<Deviation>,
 ) -> Result<(Design, Parts)> {
-    let d = design(table, spec)?;
+    let d = design(table, source, spec)?;
     check_rows_left(spec, &d)?;
     let d = absorbed_columns(spec, d, deviations)?;
     degenerate::check_scales(spec, &d)?;

@@ -103,7 +103,7 @@ pub(super) fn fit_deviations(
 fn r_squared(prepared: &Prepared, fit: &LinearFit) -> f64 {
     let d = &prepared.d;
     if d.fixed_effects.is_empty() {
-        return fit.r_squared;
+        return super::weighted::r_squared(fit, d.y.column(0), d);
     }
     let mean = d.y_raw.mean();
     let tss: f64 = d.y_raw.iter().map(|v| (v - mean) * (v - mean)).sum();
@@ -157,8 +157,10 @@ pub(super) fn spec_result(
         sample: SampleInfo {
             table_rows: d.n_table,
             in_sample: d.n_sample,
-            dropped_missing: d.n_sample - d.n - d.singletons,
+            dropped_missing: d.n_sample - d.n - d.singletons - d.zero_weights,
+            dropped_zero_weight: d.weights.as_ref().map(|_| d.zero_weights),
         },
+        weights: spec.weights.clone(),
         first_stage: None,
         reduced_form: None,
         endogeneity: None,

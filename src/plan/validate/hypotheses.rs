@@ -182,6 +182,12 @@ fn method(ctx: &Ctx, h: &RawHypothesis, spec: &Spec, plan: &Plan) -> Result<Meth
     let Some(at) = inference else {
         return Ok(Method::Model);
     };
+    if let (Some(w), "randomization" | "wild-bootstrap") = (&spec.weights, kind) {
+        return Err(ctx.at(at, key("inference"), format!(
+            "inference = \"{kind}\" is not available for specification `{}`, which is weighted by `{w}` (resampling with probability weights is not implemented); use inference = \"model\" or remove the specification's weights",
+            spec.id
+        )));
+    }
     match kind {
         "randomization" => randomization(ctx, h, spec, plan, at),
         "wild-bootstrap" => wild_bootstrap(ctx, h, spec, plan, at),

@@ -30,6 +30,12 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         return Ok(None);
     };
     let spanned = r;
+    if let Some(s) = plan.specifications.iter().find(|s| s.weights.is_some()) {
+        return Err(ctx.at(spanned, "rehearsal", format!(
+            "specification `{}` is weighted, and a rehearsal simulates unweighted data sets only; remove [rehearsal] or the specification's weights",
+            s.id
+        )));
+    }
     let r = r.get_ref();
     let replications = match &r.replications {
         Some(v) if !(1..=MAX_REPLICATIONS).contains(v.get_ref()) => {

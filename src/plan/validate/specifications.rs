@@ -136,6 +136,7 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
         },
         fuller_k,
         worst_case_bias,
+        weights: weights(ctx, s, table, &key("weights"))?,
     };
     check_shape(ctx, s, &spec)?;
     Ok(spec)
@@ -284,7 +285,57 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
         }
     }
     one_role_each(ctx, s, spec)?;
-    leverage_errors(ctx, s, spec)
+    leverage_errors(ctx, s, spec)?;
+    weighted_refusals(ctx, s, spec)
+}
+
+/// The `weights` column: declared in the table's schema as a number, integer or binary
+/// column (a derived variable or an index is not a stored sampling weight).
+fn weights(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Option<String>> {
+    let Some(w) = &s.weights else {
+        return Ok(None);
+    };
+    let n = w.get_ref();
+    match table.columns.get(n) {
+        Some(c) if c.kind.is_numeric() => Ok(Some(n.clone())),
+        Some(c) => Err(ctx.at(w, key, format!(
+            "`{n}` is of kind {}; weights must be a column declared as number or integer in data table `{}`",
+            c.kind.name(), table.id
+        ))),
+        None => Err(ctx.at(w, key, format!(
+            "{}; weights must be a numeric column declared in data table `{}` (not a derived variable or index)",
+            unknown("column", n, table.columns.keys().map(String::as_str)), table.id
+        ))),
+    }
+}
+
+/// What a weighted specification cannot have yet: errors other than hc0, hc1 and one-way
+/// cluster (their weighted forms are not implemented and checked), and absorbed fixed
+/// effects (the weighted within transformation is not implemented). Refused at `check`.
+fn weighted_refusals(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
+    let Some(w) = s.weights.as_ref().filter(|_| spec.weights.is_some()) else {
+        return Ok(());
+    };
+    let key = |k: &str| format!("specification[{}].{k}", spec.id);
+    let sandwich = match &spec.errors {
+        Errors::Hc0 | Errors::Hc1 => true,
+        Errors::Cluster(by) => by.len() == 1,
+        _ => false,
+    };
+    if !sandwich {
+        let at = s.errors.as_ref().map_or(w.span(), |e| e.span());
+        return Err(ctx.err(at, key("errors"), format!(
+            "a weighted specification (weights = \"{}\") takes sandwich errors only: \"hc0\", \"hc1\" or {{ kind = \"cluster\", by = \"COLUMN\" }} with one column; {} errors with probability weights are not available; choose one of those or remove `weights`",
+            w.get_ref(), match &spec.errors { Errors::Cluster(_) => "two-way cluster", e => e.name() }
+        )));
+    }
+    if let Some(fe) = s.fixed_effects.first() {
+        return Err(ctx.at(fe, key("fixed_effects"), format!(
+            "fixed effects cannot be absorbed in a weighted specification (weights = \"{}\"): the weighted within transformation is not available; remove `fixed_effects` (or `weights`)",
+            w.get_ref()
+        )));
+    }
+    Ok(())
 }
 
 /// Each term plays one role: not the outcome, not listed twice, not in two lists; and the

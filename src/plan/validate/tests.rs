@@ -88,9 +88,9 @@ fn unsupported_format() {
 
 #[test]
 fn unknown_key_says_how_to_fix() {
-    let e = error_of("errors = \"hc1\"", "errors = \"hc1\"\nweights = \"x\"");
+    let e = error_of("errors = \"hc1\"", "errors = \"hc1\"\nweight = \"x\"");
     assert!(
-        e.contains("unknown field `weights`") && e.contains("remove or correct the key"),
+        e.contains("unknown field `weight`") && e.contains("remove or correct the key"),
         "{e}"
     );
 }
@@ -579,4 +579,70 @@ fn malformed_toml_and_missing_keys_say_what_to_do() {
         e.contains("missing field `id`") && e.contains("this key is required"),
         "{e}"
     );
+}
+
+#[test]
+fn weights_messages() {
+    let hc1 = "errors = \"hc1\"";
+    let w = |extra: &str| format!("{hc1}\nweights = \"x\"{extra}");
+    let cases = [
+        (
+            hc1,
+            format!("{hc1}\nweights = \"wt\""),
+            "specification[ols].weights",
+            "unknown column `wt`",
+        ),
+        (
+            hc1,
+            format!("{hc1}\nweights = \"grp\""),
+            "specification[ols].weights",
+            "weights must be a column declared as number or integer",
+        ),
+        (
+            hc1,
+            "errors = \"hc3\"\nweights = \"x\"".to_string(),
+            "specification[ols].errors",
+            "hc3 errors with probability weights are not available",
+        ),
+        (
+            hc1,
+            "weights = \"x\"\nerrors = \"classical\"".to_string(),
+            "specification[ols].errors",
+            "sandwich errors only",
+        ),
+        (
+            hc1,
+            w("\nfixed_effects = [\"grp\"]"),
+            "specification[ols].fixed_effects",
+            "weighted within transformation is not available",
+        ),
+        (
+            "errors = { kind",
+            "weights = \"x\"\nerrors = { kind".to_string(),
+            "hypothesis[H1].inference",
+            "resampling with probability weights is not implemented",
+        ),
+    ];
+    for (anchor, with, key, says) in cases {
+        let with = if key.starts_with("hypothesis") {
+            BASE.replacen(anchor, &with, 1).replacen(
+                "family = \"main\"",
+                "family = \"main\"\ninference = \"wild-bootstrap\"",
+                1,
+            )
+        } else {
+            BASE.replacen(anchor, &with, 1)
+        };
+        let e = match from_text(Path::new("/plans/p.toml"), with) {
+            Ok(_) => panic!("accepted: {key}"),
+            Err(e) => e.to_string(),
+        };
+        assert!(
+            e.contains(&format!("`{key}`")) && e.contains(says),
+            "{key}: {e}"
+        );
+    }
+    let ok = BASE.replacen(hc1, &w(""), 1);
+    let plan = from_text(Path::new("/plans/p.toml"), ok).expect("weighted hc1 OLS is valid");
+    assert_eq!(plan.specifications[0].weights.as_deref(), Some("x"));
 }

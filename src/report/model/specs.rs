@@ -113,6 +113,10 @@ pub(super) enum Fact {
         residual_sd: String,
         level: String,
     },
+    Weighted {
+        column: String,
+        zero_weight: usize,
+    },
     Hac(HacFact),
     FixedEffects(FixedEffectsFact),
     Kappa {
@@ -324,6 +328,12 @@ fn spec_facts(s: &crate::plan::Spec, r: &SpecResult) -> Vec<Fact> {
             level: format!("{:.0}", 100.0 * r.confidence),
         },
     ];
+    if let Some(w) = &r.weights {
+        facts.push(Fact::Weighted {
+            column: w.clone(),
+            zero_weight: r.sample.dropped_zero_weight.unwrap_or(0),
+        });
+    }
     if let Some(h) = &r.hac {
         facts.push(Fact::Hac(hac_fact(h)));
     }

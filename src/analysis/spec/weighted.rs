@@ -1,0 +1,120 @@
+//! Probability weights (`weights = "column"`): every row of the design is scaled by the square
+//! root of its weight once, here, before the fit. Least squares on the scaled rows is weighted
+//! least squares (weighted 2SLS, LIML and Fuller for an IV specification), and the sandwich
+//! covariances of the scaled fit (HC0, HC1, CR1) are those of probability weights, since a
+//! scaled row's score is w·x·u. The fit, every diagnostic built on the same scaled problem
+//! (first stages, reduced form, endogeneity, over-identification, effective F, Anderson–Rubin,
+//! LM/CLR, the LIML alternative) therefore carries the weights. What is not weighted is
+//! refused at `check` (plan/validate) or marked unavailable (arm means).
+
+use super::resolve::Parts;
+use crate::data::Design;
+use crate::estimate::LinearFit;
+use nalgebra::{DMatrix, DVector, DVectorView};
+
+/// Scale the rows of `d`'s outcome and of every column of `d` and `p` by √w (nothing for an
+/// unweighted design). `d.y_raw` stays in the data's units.
+pub(super) fn scale_rows(d: &mut Design, p: &mut Parts) {
+    let Some(w) = &d.weights else {
+        return;
+    };
+    let root = w.map(f64::sqrt);
+    let scale = |m: &mut DMatrix<f64>| {
+        for mut c in m.column_iter_mut() {
+            c.component_mul_assign(&root);
+        }
+    };
+    d.y.component_mul_assign(&root);
+    scale(&mut d.focal);
+    scale(&mut d.exog);
+    scale(&mut d.instruments);
+    scale(&mut p.focal);
+    scale(&mut p.exog);
+    scale(&mut p.instruments);
+}
+
+/// The R² of `fit`, whose dependent variable is `scaled` (rows scaled by √w): against the
+/// weighted total sum of squares Σ w (v − v̄_w)² when the model has a constant (the fit's
+/// own centres the scaled values, which is not the weighted total), else the fit's own
+/// (the uncentred total of the scaled values is already Σ w v²).
+pub(super) fn r_squared(fit: &LinearFit, scaled: DVectorView<f64>, d: &Design) -> f64 {
+    let Some(w) = d.weights.as_ref().filter(|_| d.has_constant) else {
+        return fit.r_squared;
+    };
+    let v: DVector<f64> = scaled.component_div(&w.map(f64::sqrt));
+    let mean = w.dot(&v) / w.sum();
+    let tss: f64 = w
+        .iter()
+        .zip(v.iter())
+        .map(|(w, v)| w * (v - mean).powi(2))
+        .sum();
+    1.0 - fit.rss / tss
+}
+
+/// Residuals in the data's units (a weighted fit's residuals are of the scaled rows).
+pub(super) fn residuals(fit: &LinearFit, d: &Design) -> DVector<f64> {
+    match &d.weights {
+        Some(w) => fit.resid.component_div(&w.map(f64::sqrt)),
+        None => fit.resid.clone(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::estimate::{self, Absorbed, CovSpec};
+    use crate::testing::{fixture, rel_diff, FIXTURE_TOL};
+    use nalgebra::{DMatrix, DVector};
+
+    /// The fixture's used rows (weight present and positive): y, [1, x, c] and w.
+    fn used() -> (DVector<f64>, DMatrix<f64>, DVector<f64>) {
+        let f = fixture("weights.json");
+        let col = |c: &str| -> Vec<Option<f64>> {
+            f["data"][c]
+                .as_array()
+                .expect("column")
+                .iter()
+                .map(|v| v.as_f64())
+                .collect()
+        };
+        let (y, x, c, w) = (col("y"), col("x"), col("c"), col("w"));
+        let rows: Vec<usize> = (0..w.len())
+            .filter(|&i| w[i].is_some_and(|v| v > 0.0))
+            .collect();
+        let get = |v: &[Option<f64>], i: usize| v[i].expect("value");
+        let ys = DVector::from_iterator(rows.len(), rows.iter().map(|&i| get(&y, i)));
+        let xs = DMatrix::from_fn(rows.len(), 3, |r, j| match j {
+            0 => 1.0,
+            1 => get(&x, rows[r]),
+            _ => get(&c, rows[r]),
+        });
+        let ws = DVector::from_iterator(rows.len(), rows.iter().map(|&i| get(&w, i)));
+        (ys, xs, ws)
+    }
+
+    /// Weighted OLS as OLS on √w-scaled rows, with HC0 and HC1 sandwich errors: statsmodels
+    /// WLS with cov_type HC0 / HC1 (tests/reference/weights.py).
+    #[test]
+    fn scaled_rows_give_weighted_least_squares() {
+        let f = fixture("weights.json");
+        let e = &f["expected"]["ols"];
+        let (y, x, w) = used();
+        let root = w.map(f64::sqrt);
+        let ys = y.component_mul(&root);
+        let mut xs = x.clone();
+        for mut c in xs.column_iter_mut() {
+            c.component_mul_assign(&root);
+        }
+        for (cov, kind) in [(CovSpec::Hc0, "hc0"), (CovSpec::Hc1, "hc1")] {
+            let fit = estimate::ols(&ys, &xs, true, &cov, &Absorbed::default()).expect("fit");
+            for (j, name) in ["intercept", "x", "c"].iter().enumerate() {
+                let b = e["coef"][*name].as_f64().expect("coef");
+                let se = e["se"][kind][*name].as_f64().expect("se");
+                assert!(rel_diff(fit.coef[j], b) < FIXTURE_TOL, "{kind} coef {name}");
+                assert!(
+                    rel_diff(fit.cov[(j, j)].sqrt(), se) < FIXTURE_TOL,
+                    "{kind} se {name}"
+                );
+            }
+        }
+    }
+}
