@@ -240,35 +240,7 @@ impl IvContext<'_> {
             critical_value: at_zero.critical_value,
             curve,
         });
-        // Undefined statistics (an exact fit, Q_T = 0) leave `lm_clr` null; the
-        // identification panel says so.
-        let lm_clr = match cov {
-            CovSpec::Classical => self
-                .iv
-                .lm_clr(ab, 0.0)
-                .and_then(|t| Ok((t, self.iv.lm_clr_sets(ab, spec.confidence)?)))
-                .ok(),
-            _ => None,
-        };
-        if let Some((t, sets)) = lm_clr {
-            result.lm_clr = Some(LmClrResult {
-                null: t.beta0,
-                errors: LmClrErrors::Homoskedastic,
-                lm: TestResult {
-                    statistic: t.lm.statistic,
-                    p_value: inference::test_p_value(&t.lm),
-                    distribution: t.lm.reference,
-                },
-                clr_statistic: t.clr.statistic,
-                clr_conditioning: t.clr.conditioning,
-                clr_p_value: t.clr.p_value,
-                confidence: spec.confidence,
-                lm_shape: shape_name(&sets.lm),
-                lm_set: set_pieces(&sets.lm),
-                clr_shape: shape_name(&sets.clr),
-                clr_set: set_pieces(&sets.clr),
-            });
-        }
+        result.lm_clr = self.lm_clr();
         let ar = self
             .needs
             .ar_nulls
@@ -287,6 +259,36 @@ impl IvContext<'_> {
             _ => Vec::new(),
         };
         Ok(NullTests { ar, clr })
+    }
+
+    /// The Kleibergen LM and Moreira CLR tests of 0 with their sets, with classical errors
+    /// only (the homoskedastic variants are the ones computed). Undefined statistics (an
+    /// exact fit, Q_T = 0) leave them null; the identification panel says so.
+    fn lm_clr(&self) -> Option<LmClrResult> {
+        let Prepared { spec, d, cov, .. } = self.prepared;
+        let ab = &d.absorbed;
+        if *cov != CovSpec::Classical {
+            return None;
+        }
+        let t = self.iv.lm_clr(ab, 0.0).ok()?;
+        let sets = self.iv.lm_clr_sets(ab, spec.confidence).ok()?;
+        Some(LmClrResult {
+            null: t.beta0,
+            errors: LmClrErrors::Homoskedastic,
+            lm: TestResult {
+                statistic: t.lm.statistic,
+                p_value: inference::test_p_value(&t.lm),
+                distribution: t.lm.reference,
+            },
+            clr_statistic: t.clr.statistic,
+            clr_conditioning: t.clr.conditioning,
+            clr_p_value: t.clr.p_value,
+            confidence: spec.confidence,
+            lm_shape: shape_name(&sets.lm),
+            lm_set: set_pieces(&sets.lm),
+            clr_shape: shape_name(&sets.clr),
+            clr_set: set_pieces(&sets.clr),
+        })
     }
 }
 
