@@ -69,21 +69,24 @@ pub(super) fn read_bytes(src: &DataSource) -> Result<Vec<u8>> {
 
 /// Every column as text (numbers are parsed by Rust's correctly rounded parser later).
 pub(super) fn parse_csv(src: &DataSource, bytes: &[u8]) -> Result<DataFrame> {
+    csv_text(bytes, src.separator).map_err(|m| data_err(src, m))
+}
+
+/// Every column of CSV `bytes` as text, under the reader's panic guard; the error is a
+/// message for the user (the caller adds the file). `run` and `init` both read CSV here.
+pub(super) fn csv_text(bytes: &[u8], separator: u8) -> std::result::Result<DataFrame, String> {
     super::parquet::isolated("reading the file as CSV", || {
         CsvReadOptions::default()
             .with_has_header(true)
             .with_infer_schema_length(Some(0))
-            .with_parse_options(CsvParseOptions::default().with_separator(src.separator))
+            .with_parse_options(CsvParseOptions::default().with_separator(separator))
             .into_reader_with_file_handle(std::io::Cursor::new(bytes))
             .finish()
     })
     .map_err(|e| {
-        data_err(
-            src,
-            format!(
-                "cannot read the file as CSV: {}",
-                super::dialect::reader_message(&e.to_string(), src.separator)
-            ),
+        format!(
+            "cannot read the file as CSV: {}",
+            super::dialect::reader_message(&e, separator)
         )
     })
 }

@@ -64,22 +64,11 @@ pub fn read_text_frame(
     path: &std::path::Path,
     csv_separator: Option<u8>,
 ) -> Result<polars::prelude::DataFrame, String> {
-    use polars::prelude::*;
     match csv_separator {
-        Some(separator) => parquet::isolated("reading the file as CSV", || {
-            CsvReadOptions::default()
-                .with_has_header(true)
-                .with_infer_schema_length(Some(0))
-                .with_parse_options(CsvParseOptions::default().with_separator(separator))
-                .try_into_reader_with_file_path(Some(path.to_path_buf()))?
-                .finish()
-        })
-        .map_err(|e| {
-            format!(
-                "cannot read the file as CSV: {}",
-                dialect::reader_message(&e, separator)
-            )
-        }),
+        Some(separator) => {
+            let bytes = std::fs::read(path).map_err(|e| format!("cannot read the file: {e}"))?;
+            cells::csv_text(&bytes, separator)
+        }
         None => parquet::read(path),
     }
 }
