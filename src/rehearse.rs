@@ -56,15 +56,7 @@ pub fn rehearse(
     replications: Option<usize>,
     tick: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<Rehearsed> {
-    let Some(reh) = &plan.rehearsal else {
-        return Err(Error::Plan {
-            path: plan.path.clone(),
-            line: 1,
-            column: 1,
-            key: "rehearsal".into(),
-            message: "the plan has no [rehearsal] section: add one with seed, effects and a data-generating process per table (docs/plan-reference.md, section rehearsal)".into(),
-        });
-    };
+    let reh = rehearsal_section(plan)?;
     let reps = replications.unwrap_or(reh.replications).max(1);
     let registered_draws = plan.resampling.map(|r| r.draws);
     let plan = &*with_rehearsal_draws(plan, reh.resampling_draws);
@@ -113,6 +105,17 @@ pub fn rehearse(
         search::refine(plan, &mut r, reh.mde_steps, &step)?;
     }
     Ok(r)
+}
+
+/// The plan's `[rehearsal]` section, or an error saying how to add one.
+fn rehearsal_section(plan: &Plan) -> Result<&crate::plan::Rehearsal> {
+    plan.rehearsal.as_ref().ok_or_else(|| Error::Plan {
+        path: plan.path.clone(),
+        line: 1,
+        column: 1,
+        key: "rehearsal".into(),
+        message: "the plan has no [rehearsal] section: add one with seed, effects and a data-generating process per table (docs/plan-reference.md, section rehearsal)".into(),
+    })
 }
 
 /// The plan a rehearsal runs: the registered one, with `[rehearsal]`'s cheaper number of

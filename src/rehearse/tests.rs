@@ -403,3 +403,49 @@ fn the_mde_search_finds_the_closed_form_mde_of_a_two_arm_design() {
 fn the_mde_search_finds_the_closed_form_mde_of_a_two_arm_design_closely() {
     check_mde_search(4000);
 }
+
+/// Each range message of `[rehearsal]`'s counts and the undeclared simulated column names
+/// its key and the valid values (validation in `plan/validate/rehearsal.rs`).
+#[test]
+fn rehearsal_counts_and_columns_are_refused_with_their_key() {
+    let cases = [
+        (
+            "replications = 300",
+            "replications = 0",
+            "rehearsal.replications",
+            "from 1 to 1000000",
+        ),
+        (
+            "seed = 11",
+            "seed = 11\nresampling_draws = 10",
+            "rehearsal.resampling_draws",
+            "from 99 to 10000000",
+        ),
+        (
+            "seed = 11",
+            "seed = 11\nmde_steps = 21",
+            "rehearsal.mde_steps",
+            "from 0 (interpolate",
+        ),
+        (
+            "arm = \"assigned(0.5)\"",
+            "arm = \"assigned(0.5)\"\nmood = \"normal(0, 1)\"",
+            "rehearsal.data.people.columns.mood",
+            "is not a declared column of [data.people]",
+        ),
+    ];
+    for (anchor, with, key, says) in cases {
+        assert!(
+            TWO_ARM.contains(anchor),
+            "anchor `{anchor}` is not in the plan"
+        );
+        let text = TWO_ARM.replacen(anchor, with, 1);
+        let e = from_text(std::path::Path::new("/nonexistent/check.toml"), text)
+            .expect_err("refused")
+            .to_string();
+        assert!(
+            e.contains(&format!("`{key}`")) && e.contains(says),
+            "{key}: {e}"
+        );
+    }
+}

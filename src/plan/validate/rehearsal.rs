@@ -37,17 +37,14 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         )));
     }
     let r = r.get_ref();
-    let replications = match &r.replications {
-        Some(v) if !(1..=MAX_REPLICATIONS).contains(v.get_ref()) => {
-            return Err(ctx.at(
-                v,
-                "rehearsal.replications",
-                format!("replications must be a whole number from 1 to {MAX_REPLICATIONS}; 500 to 2,000 give power to about ±0.02"),
-            ))
-        }
-        Some(v) => *v.get_ref() as usize,
-        None => 500,
-    };
+    let replications = whole_in(
+        ctx,
+        &r.replications,
+        "rehearsal.replications",
+        1..=MAX_REPLICATIONS,
+        &format!("replications must be a whole number from 1 to {MAX_REPLICATIONS}; 500 to 2,000 give power to about ±0.02"),
+    )?
+    .unwrap_or(500);
     if *r.seed.get_ref() < 0 {
         return Err(ctx.at(
             &r.seed,
@@ -60,28 +57,21 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         None => 0.80,
     };
     let effects = effects(ctx, r)?;
-    let resampling_draws = match &r.resampling_draws {
-        Some(v) if !(99..=10_000_000).contains(v.get_ref()) => {
-            return Err(ctx.at(
-                v,
-                "rehearsal.resampling_draws",
-                "resampling_draws must be a whole number from 99 to 10000000",
-            ))
-        }
-        Some(v) => Some(*v.get_ref() as usize),
-        None => None,
-    };
-    let mde_steps = match &r.mde_steps {
-        Some(v) if !(0..=20).contains(v.get_ref()) => {
-            return Err(ctx.at(
-                v,
-                "rehearsal.mde_steps",
-                "mde_steps must be a whole number from 0 (interpolate between the simulated effects) to 20",
-            ))
-        }
-        Some(v) => *v.get_ref() as usize,
-        None => 4,
-    };
+    let resampling_draws = whole_in(
+        ctx,
+        &r.resampling_draws,
+        "rehearsal.resampling_draws",
+        99..=10_000_000,
+        "resampling_draws must be a whole number from 99 to 10000000",
+    )?;
+    let mde_steps = whole_in(
+        ctx,
+        &r.mde_steps,
+        "rehearsal.mde_steps",
+        0..=20,
+        "mde_steps must be a whole number from 0 (interpolate between the simulated effects) to 20",
+    )?
+    .unwrap_or(4);
     let generators = generators(ctx, plan, spanned)?;
     Ok(Some(Rehearsal {
         replications,
@@ -92,6 +82,21 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         mde_steps,
         generators,
     }))
+}
+
+/// An optional whole number that must lie in `range`; `message` (naming the range) when not.
+fn whole_in(
+    ctx: &Ctx,
+    value: &Option<Spanned<i64>>,
+    key: &str,
+    range: std::ops::RangeInclusive<i64>,
+    message: &str,
+) -> Result<Option<usize>> {
+    match value {
+        Some(v) if !range.contains(v.get_ref()) => Err(ctx.at(v, key, message)),
+        Some(v) => Ok(Some(*v.get_ref() as usize)),
+        None => Ok(None),
+    }
 }
 
 /// One data-generating process per data table, each named by a table of the plan.
@@ -270,6 +275,39 @@ fn generated_column(
     latent: bool,
     parsed: &BTreeMap<String, (Spanned<String>, GeneratedColumn)>,
 ) -> Result<GeneratedColumn> {
+    let n = name.get_ref();
+    let (kind, ckey) = simulated_kind(ctx, plan, (table, key), name, latent, parsed)?;
+    if n == EFFECT {
+        return Err(ctx.at(
+            name,
+            ckey,
+            format!("`{EFFECT}` is the name through which a rehearsal reads the effect size simulated; rename the column in [data.{table}] to rehearse this plan"),
+        ));
+    }
+    let e = expr::parse_random(text.get_ref()).map_err(|e| expr_error(ctx, text, &ckey, &e))?;
+    assigned_only_where_randomized(ctx, plan, n, text, &ckey, &e)?;
+    let (line, column) = ctx.map.position(text.span().start + 1);
+    Ok(GeneratedColumn {
+        name: n.clone(),
+        text: text.get_ref().clone(),
+        expr: e,
+        kind,
+        latent,
+        place: (line, column),
+    })
+}
+
+/// The kind of a simulated column and its key: its declared kind, or a number for a latent
+/// variable, which needs a new name (not a declared column or derived variable); a column
+/// is simulated once.
+fn simulated_kind(
+    ctx: &Ctx,
+    plan: &Plan,
+    (table, key): (&str, &str),
+    name: &Spanned<String>,
+    latent: bool,
+    parsed: &BTreeMap<String, (Spanned<String>, GeneratedColumn)>,
+) -> Result<(crate::plan::ColumnKind, String)> {
     let src = &plan.data[table];
     let n = name.get_ref();
     let ckey = format!("{key}.{}.{n}", if latent { "latent" } else { "columns" });
@@ -293,35 +331,16 @@ fn generated_column(
     let kind = match declared {
         Some(c) => c.kind,
         None if latent => crate::plan::ColumnKind::Number,
-        None => {
-            return Err(ctx.at(
+        None => return Err(ctx.at(
             name,
             ckey,
             format!(
                 "`{n}` is not a declared column of [data.{table}]{}; simulate declared columns (derived variables and indices are computed from them as in a run) and put unobserved variables under [{key}.latent]",
                 hint(n, src.columns.keys().map(String::as_str))
             ),
-        ));
-        }
+        )),
     };
-    if n == EFFECT {
-        return Err(ctx.at(
-            name,
-            ckey,
-            format!("`{EFFECT}` is the name through which a rehearsal reads the effect size simulated; rename the column in [data.{table}] to rehearse this plan"),
-        ));
-    }
-    let e = expr::parse_random(text.get_ref()).map_err(|e| expr_error(ctx, text, &ckey, &e))?;
-    assigned_only_where_randomized(ctx, plan, n, text, &ckey, &e)?;
-    let (line, column) = ctx.map.position(text.span().start + 1);
-    Ok(GeneratedColumn {
-        name: n.clone(),
-        text: text.get_ref().clone(),
-        expr: e,
-        kind,
-        latent,
-        place: (line, column),
-    })
+    Ok((kind, ckey))
 }
 
 /// `assigned(share)` draws only the column `[assignment]` randomizes (`column`).

@@ -581,6 +581,7 @@ fn malformed_toml_and_missing_keys_say_what_to_do() {
     );
 }
 
+// Long because it is a table of cases, one per message of a weighted specification.
 #[test]
 fn weights_messages() {
     let hc1 = "errors = \"hc1\"";
