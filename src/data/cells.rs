@@ -124,20 +124,44 @@ pub(super) fn raw_values(
     let ca = cast.str().map_err(err)?;
     let cell = |v| present(src, v);
     if numeric {
-        let values = ca
-            .iter()
-            .enumerate()
-            .map(|(i, v)| match cell(v) {
-                None => Ok(None),
-                Some(s) => super::dialect::parse_number(s, src.decimal_comma)
-                    .map(Some)
-                    .ok_or_else(|| not_a_number(src, name, i, s)),
-            })
-            .collect::<Result<Vec<_>>>()?;
-        return Ok(Some(RawValues::Numbers(values)));
+        return parse_numbers(src, name, &ca.rechunk()).map(|v| Some(RawValues::Numbers(v)));
     }
     let values = ca.iter().map(|v| cell(v).map(String::from)).collect();
     Ok(Some(RawValues::Text(values)))
+}
+
+/// The cells of a text column declared numeric, parsed on all cores; the error names the
+/// first unparsable cell in row order whatever the thread count.
+fn parse_numbers(src: &DataSource, name: &str, ca: &StringChunked) -> Result<Vec<Option<f64>>> {
+    use rayon::prelude::*;
+    use std::sync::atomic::{AtomicUsize, Ordering};
+    let first_bad = AtomicUsize::new(usize::MAX);
+    let parse = |(i, v): (usize, Option<&str>)| {
+        let s = present(src, v)?;
+        let x = super::dialect::parse_number(s, src.decimal_comma);
+        if x.is_none() {
+            first_bad.fetch_min(i, Ordering::Relaxed);
+        }
+        x
+    };
+    let mut values = Vec::with_capacity(ca.len());
+    let mut offset = 0;
+    for arr in ca.downcast_iter() {
+        let n = arr.len();
+        values.par_extend(
+            (0..n)
+                .into_par_iter()
+                .map(|i| parse((offset + i, arr.get(i)))),
+        );
+        offset += n;
+    }
+    match first_bad.into_inner() {
+        usize::MAX => Ok(values),
+        i => {
+            let shown = ca.get(i).map(str::trim).unwrap_or_default();
+            Err(not_a_number(src, name, i, shown))
+        }
+    }
 }
 
 /// A cell's trimmed text, `None` when empty or one of the table's missing codes.

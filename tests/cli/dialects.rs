@@ -109,3 +109,23 @@ fn init_writes_the_dialect_it_found() {
     let x = plan.lines().find(|l| l.starts_with("x ")).unwrap_or("");
     assert!(x.contains("kind = \"number\""), "{x}");
 }
+
+#[test]
+fn of_several_unparsable_cells_the_first_in_the_file_is_named() {
+    // Numeric cells are parsed on all cores; the message must still name the first bad cell.
+    let mut lines: Vec<String> = data_csv().lines().map(String::from).collect();
+    let last = lines.len() - 2;
+    for (i, text) in [(last, "later"), (3, "earlier")] {
+        let mut fields: Vec<&str> = lines[i].split(',').collect();
+        fields[5] = text; // the outcome `y`
+        lines[i] = fields.join(",");
+    }
+    let s = Study::with(PLAN, &(lines.join("\n") + "\n"));
+    let r = s.sworn(&["check", "plan.toml", "--data"]);
+    assert_eq!(r.code, 2);
+    assert!(
+        r.stderr.contains("line 4 holds `earlier`") && !r.stderr.contains("later"),
+        "{}",
+        r.stderr
+    );
+}
