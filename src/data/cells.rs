@@ -3,6 +3,7 @@
 //! labels, checked against its declared kind and range (a mismatch is a deviation, a cell
 //! that is not a number an error naming its row). A leaf below `read.rs`.
 
+use super::plain_csv::{PlainColumn, PlainCsv};
 use super::{Labels, Table};
 use crate::deviation::{Deviation, DeviationCode};
 use crate::error::{Error, Result};
@@ -27,16 +28,7 @@ pub(super) fn data_err(src: &DataSource, message: impl Into<String>) -> Error {
 /// Parquet is read by its checked reader and hashed in blocks. Returns the frame and the
 /// file's SHA-256.
 pub(super) fn read_frame(src: &DataSource) -> Result<(DataFrame, String)> {
-    if !src.path.exists() {
-        return Err(data_err(src, format!(
-            "the data file of [data.{}] does not exist (path = \"{}\", relative to the plan); check the path",
-            src.id, src.path_text
-        )));
-    }
-    if src.format == DataFormat::Csv {
-        super::dialect::check_separator(&src.path, &src.id, src.separator)
-            .map_err(|m| data_err(src, m))?;
-    }
+    check_exists_and_separator(src)?;
     match src.format {
         DataFormat::Csv => {
             let bytes = read_bytes(src)?;
@@ -54,6 +46,102 @@ pub(super) fn read_frame(src: &DataSource) -> Result<(DataFrame, String)> {
             Ok((frame, sha256))
         }
     }
+}
+
+/// A read file's cells: the declared columns of a plain CSV file read directly
+/// (`plain_csv.rs`), or the general reader's frame (Parquet, or CSV that is not plain).
+pub(super) enum Cells {
+    Frame(DataFrame),
+    Plain(PlainCsv),
+}
+
+impl Cells {
+    /// Data rows.
+    pub fn height(&self) -> usize {
+        match self {
+            Cells::Frame(frame) => frame.height(),
+            Cells::Plain(plain) => plain.rows,
+        }
+    }
+
+    /// Column names in file order.
+    pub fn names(&self) -> Vec<String> {
+        match self {
+            Cells::Frame(frame) => frame
+                .get_column_names()
+                .iter()
+                .map(|s| s.to_string())
+                .collect(),
+            Cells::Plain(plain) => plain.header.clone(),
+        }
+    }
+
+    /// The values of column `name` (parsed as numbers when `numeric`), released from the
+    /// cells; `None` when the file has no such column. The first cell of a numeric column
+    /// that is not a number is an error naming its place.
+    pub fn take(
+        &mut self,
+        src: &DataSource,
+        name: &str,
+        numeric: bool,
+    ) -> Result<Option<RawValues>> {
+        match self {
+            Cells::Frame(frame) => {
+                let raw = raw_values(src, frame, name, numeric)?;
+                // Each polars column is released once converted, so the text of the whole
+                // file and every converted column are never held at once.
+                drop(frame.drop_in_place(name));
+                Ok(raw)
+            }
+            Cells::Plain(plain) => match plain.take(name) {
+                None => Ok(None),
+                Some(PlainColumn::Numbers(v)) => Ok(Some(RawValues::Numbers(v))),
+                Some(PlainColumn::Text(v)) => Ok(Some(RawValues::Text(v))),
+                Some(PlainColumn::NotANumber(row, text)) => {
+                    Err(not_a_number(src, name, row, &text))
+                }
+            },
+        }
+    }
+}
+
+/// Reads the file once, with its SHA-256: a plain CSV file's `wanted` columns (name,
+/// numeric) directly from its bytes, block by block; any other file as [`read_frame`]
+/// (a CSV file found not to be plain part way is read again from the start).
+pub(super) fn read_cells(src: &DataSource, wanted: &[(&str, bool)]) -> Result<(Cells, String)> {
+    if src.format == DataFormat::Parquet {
+        return read_frame(src).map(|(frame, sha)| (Cells::Frame(frame), sha));
+    }
+    check_exists_and_separator(src)?;
+    let dialect = super::plain_csv::Dialect {
+        separator: src.separator,
+        decimal_comma: src.decimal_comma,
+        missing: &src.missing,
+    };
+    let mut file = crate::files::open_regular(&src.path, crate::files::Links::Follow)?;
+    let length = file.metadata().map_or(0, |m| m.len());
+    let plain =
+        super::plain_csv::read(&mut file, length, &dialect, wanted, super::plain_csv::BLOCK)
+            .map_err(|e| Error::io(&src.path, "cannot read the data file", e))?;
+    if let Some((plain, sha256)) = plain {
+        return Ok((Cells::Plain(plain), sha256));
+    }
+    read_frame(src).map(|(frame, sha)| (Cells::Frame(frame), sha))
+}
+
+/// The file exists, and a CSV file's header line is split by the declared separator.
+fn check_exists_and_separator(src: &DataSource) -> Result<()> {
+    if !src.path.exists() {
+        return Err(data_err(src, format!(
+            "the data file of [data.{}] does not exist (path = \"{}\", relative to the plan); check the path",
+            src.id, src.path_text
+        )));
+    }
+    if src.format == DataFormat::Csv {
+        super::dialect::check_separator(&src.path, &src.id, src.separator)
+            .map_err(|m| data_err(src, m))?;
+    }
+    Ok(())
 }
 
 /// The whole file (a regular file only, never blocking on a FIFO or device).
@@ -166,8 +254,7 @@ fn parse_numbers(src: &DataSource, name: &str, ca: &StringChunked) -> Result<Vec
 
 /// A cell's trimmed text, `None` when empty or one of the table's missing codes.
 pub(super) fn present<'a>(src: &DataSource, v: Option<&'a str>) -> Option<&'a str> {
-    v.map(str::trim)
-        .filter(|s| !s.is_empty() && !src.missing.iter().any(|m| m == s))
+    v.and_then(|v| super::dialect::present(v, &src.missing))
 }
 
 /// Where row `i` (0-based, in file order) is, in the user's terms: the file line of a CSV

@@ -111,6 +111,11 @@ pub fn reader_message(library_message: &str, separator: u8) -> String {
     cut.chars().take(200).collect()
 }
 
+/// A cell's trimmed text, `None` when empty or one of the table's missing codes.
+pub fn present<'a>(cell: &'a str, missing: &[String]) -> Option<&'a str> {
+    Some(cell.trim()).filter(|s| !s.is_empty() && !missing.iter().any(|m| m == s))
+}
+
 /// Parse a numeric field with the table's decimal mark. `None` when it is not a finite number.
 pub fn parse_number(text: &str, decimal_comma: bool) -> Option<f64> {
     let parsed = if decimal_comma {

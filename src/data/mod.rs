@@ -10,6 +10,7 @@ mod design;
 pub mod dialect;
 mod labels;
 mod parquet;
+mod plain_csv;
 mod read;
 mod weights;
 

@@ -4,7 +4,8 @@
 //! themselves are read in `cells.rs`.
 
 use super::cells::{
-    data_err, load_column, raw_values, read_frame, row_place, to_labels, to_numbers, RawValues,
+    data_err, load_column, raw_values, read_cells, read_frame, row_place, to_labels, to_numbers,
+    RawValues,
 };
 use super::Table;
 use crate::deviation::{Deviation, DeviationCode};
@@ -15,8 +16,13 @@ use std::collections::{BTreeMap, BTreeSet};
 /// Read `src`, check it against its declared schema and evaluate derived variables.
 /// Returns the table and the schema deviations found.
 pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation>)> {
-    let (mut frame, sha256) = read_frame(src)?;
-    let rows = frame.height();
+    let wanted: Vec<(&str, bool)> = src
+        .columns
+        .iter()
+        .map(|(name, col)| (name.as_str(), col.kind.is_numeric()))
+        .collect();
+    let (mut cells, sha256) = read_cells(src, &wanted)?;
+    let rows = cells.height();
     if rows == 0 {
         return Err(data_err(
             src,
@@ -27,11 +33,7 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
         ));
     }
     let needed = needed_columns(plan, src);
-    let file_columns: Vec<String> = frame
-        .get_column_names()
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
+    let file_columns = cells.names();
     let mut devs = Vec::new();
     let mut table = Table {
         id: src.id.clone(),
@@ -42,7 +44,7 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
         labels: Default::default(),
     };
     for (name, col) in &src.columns {
-        let Some(raw) = raw_values(src, &frame, name, col.kind.is_numeric())? else {
+        let Some(raw) = cells.take(src, name, col.kind.is_numeric())? else {
             if needed.contains(name) {
                 return Err(data_err(
                     src,
@@ -59,9 +61,6 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
             ));
             continue;
         };
-        // Each polars column is released once converted, so the text of the whole file
-        // and every converted column are never held at once.
-        drop(frame.drop_in_place(name));
         load_column(src, &mut table, name, col, raw, &mut devs)?;
     }
     order_rows(src, &mut table)?;
@@ -334,25 +333,44 @@ fn check_rows_and_key(src: &DataSource, table: &Table, devs: &mut Vec<Deviation>
             format!("key `{key}` is missing in {missing} row(s)"),
         ));
     }
-    // A hash set: the first duplicate in row order and the count do not depend on the
-    // set's order, and a tree of a million strings cost a tenth of `check --data`.
-    let mut seen = std::collections::HashSet::with_capacity(labels.len());
-    let dups: Vec<&String> = labels
-        .iter()
-        .flatten()
-        .filter(|v| !seen.insert(v.as_str()))
-        .collect();
-    if let Some(first) = dups.first() {
+    let (count, first) = duplicates(labels);
+    if let Some(first) = first {
         devs.push(Deviation::new(
             DeviationCode::KeyDuplicate,
             format!("{}.{key}", src.id),
             format!(
                 "key `{key}` is not unique: {} duplicate row(s) (first duplicated value `{}`)",
-                dups.len(),
+                count,
                 crate::escape::clip(first, crate::escape::SHOWN)
             ),
         ));
     }
+}
+
+/// How many present labels repeat an earlier row's, and the first such repeat in row order.
+/// By a parallel sort of (label, row): within equal labels rows ascend, so every entry after
+/// the first of its run is a repeat; no hashing, so no input can make it slow.
+fn duplicates(labels: &super::Labels) -> (usize, Option<&String>) {
+    use rayon::prelude::*;
+    let mut present: Vec<(&str, usize)> = labels
+        .iter()
+        .enumerate()
+        .filter_map(|(row, v)| v.as_deref().map(|s| (s, row)))
+        .collect();
+    present.par_sort_unstable();
+    let repeats = present
+        .windows(2)
+        .filter(|w| w[0].0 == w[1].0)
+        .map(|w| w[1].1);
+    let (count, first_row) = repeats.fold((0, None), |(n, first): (usize, Option<usize>), row| {
+        (n + 1, Some(first.map_or(row, |f| f.min(row))))
+    });
+    (
+        count,
+        first_row
+            .and_then(|r| labels.get(r))
+            .and_then(Option::as_ref),
+    )
 }
 
 fn derive_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()> {
@@ -436,4 +454,25 @@ fn index_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()>
         );
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn repeated_keys_are_counted_and_the_first_repeat_in_row_order_named() {
+        let rows = ["k9", "k1", "k5", "k1", "", "k9", "k1", "k5"];
+        let values = rows
+            .iter()
+            .map(|s| (!s.is_empty()).then(|| s.to_string()))
+            .collect();
+        let labels = super::super::Labels::by_row(values).expect("labels");
+        // Repeats: k1 at rows 3 and 6, k9 at row 5, k5 at row 7; the first is row 3.
+        let (count, first) = duplicates(&labels);
+        assert_eq!((count, first.map(String::as_str)), (4, Some("k1")));
+        let unique = super::super::Labels::by_row(vec![Some("a".into()), None, Some("b".into())])
+            .expect("labels");
+        assert_eq!(duplicates(&unique), (0, None));
+    }
 }
