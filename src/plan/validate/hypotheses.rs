@@ -211,18 +211,7 @@ fn randomization(
     let Some(a) = &plan.assignment else {
         return Err(ctx.at(at, key("inference"), "randomization inference re-draws the assignment, which the plan must declare in [assignment]"));
     };
-    let table = &plan.data[&spec.data];
-    for col in std::iter::once(&a.variable)
-        .chain(&a.blocks)
-        .chain(&a.clusters)
-    {
-        if !table.columns.contains_key(col) {
-            return Err(ctx.at(at, key("inference"), format!(
-                "the assignment column `{col}` is not declared in data table `{}`, which specification `{}` uses",
-                table.id, spec.id
-            )));
-        }
-    }
+    assignment_in_table(ctx, spec, plan, a, at, &key("inference"))?;
     let term = h.term.get_ref();
     let fits = match spec.estimator {
         Estimator::Ols => term == &a.variable,
@@ -258,6 +247,31 @@ fn randomization(
         None => true,
     };
     Ok(Method::Randomization { studentized })
+}
+
+/// Every column of the assignment (variable, blocks, clusters) is declared in the table the
+/// specification uses.
+fn assignment_in_table(
+    ctx: &Ctx,
+    spec: &Spec,
+    plan: &Plan,
+    a: &crate::plan::Assignment,
+    at: &Spanned<String>,
+    key: &str,
+) -> Result<()> {
+    let table = &plan.data[&spec.data];
+    for col in std::iter::once(&a.variable)
+        .chain(&a.blocks)
+        .chain(&a.clusters)
+    {
+        if !table.columns.contains_key(col) {
+            return Err(ctx.at(at, key, format!(
+                "the assignment column `{col}` is not declared in data table `{}`, which specification `{}` uses",
+                table.id, spec.id
+            )));
+        }
+    }
+    Ok(())
 }
 
 /// `inference = "wild-bootstrap"`: the specification fits the wild cluster bootstrap and, for

@@ -90,21 +90,7 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
         None => 0.10,
     };
     let names = available_with_indices(table, plan);
-    let numeric = |v: &Spanned<String>, k: &str| -> Result<String> {
-        let n = v.get_ref();
-        if names.contains(n) {
-            return Ok(n.clone());
-        }
-        let message = match table.columns.get(n) {
-            Some(c) if c.kind.is_numeric() => format!("`{n}` cannot be used here"),
-            Some(c) => format!(
-                "`{n}` is of kind {}; only number, integer and binary columns can enter a regression (use fixed_effects for categories)",
-                c.kind.name()
-            ),
-            None => format!("{} in specification `{id}`.{k}", unknown("column", n, names.iter().map(String::as_str))),
-        };
-        Err(ctx.at(v, key(k), message))
-    };
+    let numeric = |v: &Spanned<String>, k: &str| regression_column(ctx, table, &names, v, (&id, k));
     let list = |vs: &[Spanned<String>], k: &str| {
         vs.iter().map(|v| numeric(v, k)).collect::<Result<Vec<_>>>()
     };
@@ -140,6 +126,30 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
     };
     check_shape(ctx, s, &spec)?;
     Ok(spec)
+}
+
+/// A variable that may enter a regression (`names`: the table's numeric columns, derived
+/// variables and indices), at key `k` of specification `id`.
+fn regression_column(
+    ctx: &Ctx,
+    table: &DataSource,
+    names: &BTreeSet<String>,
+    v: &Spanned<String>,
+    (id, k): (&str, &str),
+) -> Result<String> {
+    let n = v.get_ref();
+    if names.contains(n) {
+        return Ok(n.clone());
+    }
+    let message = match table.columns.get(n) {
+        Some(c) if c.kind.is_numeric() => format!("`{n}` cannot be used here"),
+        Some(c) => format!(
+            "`{n}` is of kind {}; only number, integer and binary columns can enter a regression (use fixed_effects for categories)",
+            c.kind.name()
+        ),
+        None => format!("{} in specification `{id}`.{k}", unknown("column", n, names.iter().map(String::as_str))),
+    };
+    Err(ctx.at(v, format!("specification[{id}].{k}"), message))
 }
 
 /// The estimator and Fuller's constant (1 unless stated; stated only for Fuller).
