@@ -188,39 +188,20 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
         .map(|b| group_index(labels(table, b, spec)?, &rows, spec))
         .collect::<Result<Vec<_>>>()?;
     let mut y = y_raw.clone();
-    let mut fixed_effects = Vec::new();
-    let mut absorbed = Absorbed::default();
-    let mut absorbed_columns = Vec::new();
-    if !groups.is_empty() && n > 0 {
-        let ids: Vec<Vec<usize>> = groups
-            .iter()
-            .map(|g| Ok(group_index(g, &rows, spec)?.0))
-            .collect::<Result<_>>()?;
-        let fe = FixedEffects::new(ids).map_err(|e| sweep_error(spec, &e))?;
-        for (name, levels) in spec.fixed_effects.iter().zip(fe.levels()) {
-            fixed_effects.push((name.clone(), levels));
-        }
-        let cluster_ids: Vec<&[usize]> = clusters.iter().map(|(c, _)| c.as_slice()).collect();
-        absorbed = fe.absorbed(&cluster_ids);
-        let mut sweep = |m: &mut DMatrix<f64>, names: &[String]| -> Result<()> {
-            let swept = fe.sweep(m).map_err(|e| sweep_error(spec, &e))?;
-            // The sweep sets a column to exactly zero when no variation is left within the
-            // fixed effects (`estimate::ABSORBED_COLUMN_TOLERANCE`, the one tolerance).
-            for (j, name) in names.iter().enumerate() {
-                if swept.column(j).iter().all(|v| *v == 0.0) {
-                    absorbed_columns.push(name.clone());
-                }
-            }
-            *m = swept;
-            Ok(())
-        };
-        let mut ym = DMatrix::from_column_slice(n, 1, y.as_slice());
-        sweep(&mut ym, std::slice::from_ref(&spec.outcome))?;
-        y = ym.column(0).into_owned();
-        sweep(&mut focal, spec.focal())?;
-        sweep(&mut instruments, &spec.instruments)?;
-        sweep(&mut controls, &spec.controls)?;
-    }
+    let swept = match groups.is_empty() || n == 0 {
+        true => Swept::default(),
+        false => sweep_fixed_effects(
+            spec,
+            (&groups, &rows),
+            &clusters,
+            &mut y,
+            [
+                (&mut focal, spec.focal()),
+                (&mut instruments, &spec.instruments),
+                (&mut controls, &spec.controls),
+            ],
+        )?,
+    };
     let (exog, exog_names) = exogenous(spec, controls, n);
     Ok(Design {
         n_table: table.rows,
@@ -236,14 +217,69 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
         instruments,
         instrument_names: spec.instruments.clone(),
         clusters,
-        fixed_effects,
+        fixed_effects: swept.fixed_effects,
         singletons,
-        absorbed,
-        absorbed_columns,
+        absorbed: swept.absorbed,
+        absorbed_columns: swept.absorbed_columns,
         has_constant: spec.intercept || !spec.fixed_effects.is_empty(),
         weights,
         zero_weights,
     })
+}
+
+/// What sweeping the fixed effects left: each one's name and levels, the absorbed degrees
+/// of freedom, and the columns with no variation left within them.
+#[derive(Default)]
+struct Swept {
+    fixed_effects: Vec<(String, usize)>,
+    absorbed: Absorbed,
+    absorbed_columns: Vec<String>,
+}
+
+/// Sweep the fixed effects (`groups`, one label column each, over the kept `rows`) out of
+/// the outcome `y` and each named block of regressors, in place.
+fn sweep_fixed_effects(
+    spec: &Spec,
+    (groups, rows): (&[&Labels], &[usize]),
+    clusters: &[(Vec<usize>, usize)],
+    y: &mut DVector<f64>,
+    blocks: [(&mut DMatrix<f64>, &[String]); 3],
+) -> Result<Swept> {
+    let ids: Vec<Vec<usize>> = groups
+        .iter()
+        .map(|g| Ok(group_index(g, rows, spec)?.0))
+        .collect::<Result<_>>()?;
+    let fe = FixedEffects::new(ids).map_err(|e| sweep_error(spec, &e))?;
+    let cluster_ids: Vec<&[usize]> = clusters.iter().map(|(c, _)| c.as_slice()).collect();
+    let mut swept = Swept {
+        fixed_effects: spec
+            .fixed_effects
+            .iter()
+            .cloned()
+            .zip(fe.levels())
+            .collect(),
+        absorbed: fe.absorbed(&cluster_ids),
+        absorbed_columns: Vec::new(),
+    };
+    let mut sweep = |m: &mut DMatrix<f64>, names: &[String]| -> Result<()> {
+        let out = fe.sweep(m).map_err(|e| sweep_error(spec, &e))?;
+        // The sweep sets a column to exactly zero when no variation is left within the
+        // fixed effects (`estimate::ABSORBED_COLUMN_TOLERANCE`, the one tolerance).
+        for (j, name) in names.iter().enumerate() {
+            if out.column(j).iter().all(|v| *v == 0.0) {
+                swept.absorbed_columns.push(name.clone());
+            }
+        }
+        *m = out;
+        Ok(())
+    };
+    let mut ym = DMatrix::from_column_slice(y.len(), 1, y.as_slice());
+    sweep(&mut ym, std::slice::from_ref(&spec.outcome))?;
+    *y = ym.column(0).into_owned();
+    for (m, names) in blocks {
+        sweep(m, names)?;
+    }
+    Ok(swept)
 }
 
 /// Drops, from `rows`, the rows alone in their level of any fixed effect (`groups`, one
