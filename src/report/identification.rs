@@ -12,7 +12,6 @@ mod strength;
 mod typed;
 
 pub(super) use evidence::dist_text;
-use evidence::Question;
 use typed::TypedQuestion;
 
 use crate::plan::Spec;
@@ -23,16 +22,7 @@ use serde::Serialize;
 #[derive(Debug, Serialize)]
 pub(super) struct Panel {
     /// The questions, in reading order.
-    pub questions: Vec<PanelQuestion>,
-}
-
-/// A question of the panel: worded in Rust (`robust.rs`), or typed and worded in the
-/// templates. Both serialise with the same fields (`ask`, `rows`, `note`).
-#[derive(Debug, Serialize)]
-#[serde(untagged)]
-pub(super) enum PanelQuestion {
-    Worded(Question),
-    Typed(TypedQuestion),
+    pub questions: Vec<TypedQuestion>,
 }
 
 /// The panel of an IV specification; `None` for OLS.
@@ -42,10 +32,10 @@ pub(super) fn panel(s: &Spec, r: &SpecResult, alpha: f64) -> Option<Panel> {
     }
     Some(Panel {
         questions: vec![
-            PanelQuestion::Typed(strength::strength(s, r, alpha)),
-            PanelQuestion::Worded(robust::robust(s, r, alpha)),
-            PanelQuestion::Typed(exogeneity::endogeneity(s, r, alpha)),
-            PanelQuestion::Typed(exogeneity::agreement(s, r, alpha)),
+            strength::strength(s, r, alpha),
+            robust::robust(s, r, alpha),
+            exogeneity::endogeneity(s, r, alpha),
+            exogeneity::agreement(s, r, alpha),
         ],
     })
 }

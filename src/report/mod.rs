@@ -137,9 +137,24 @@ mod tests {
 {{ w.id_words({"kind": "shea_r2", "of": "x"}) }}
 {{ w.id_words({"kind": "shifts", "rejects": false, "several": false, "x": "d", "alpha": "0.05"}) }}
 {{ w.index_line({"id": "i", "anderson": false, "components": ["a", "b"], "reference": "control", "reference_rows": 10, "rows_with_value": 20, "complete": true}) }}
+{{ w.id_words({"kind": "set_reading", "shape": "empty", "stationary": false}) }}
+{{ w.id_words({"kind": "set_reading", "shape": "several_bounded", "stationary": true}) }}
+{{ w.id_words({"kind": "set_reading", "shape": "unbounded", "stationary": false}) }}
+{{ w.id_words({"kind": "robust_test", "test": "lm", "x": "d", "null": "0"}) }}
+{{ w.id_words({"kind": "robust_test", "test": "clr", "x": "d", "null": "0.5"}) }}
+{{ w.id_words({"kind": "robust_set", "test": "clr", "level": "90"}) }}
+{{ w.id_words({"kind": "robust_reading", "rejects": true, "x": "d", "null": "0", "alpha": "0.05", "homoskedastic": true}) }}
+{{ w.id_words({"kind": "robust_reading", "rejects": false, "x": "d", "null": "0", "alpha": "0.05", "homoskedastic": true}) }}
+{{ w.id_words({"kind": "robust_reading", "rejects": false, "x": "d", "null": "0", "alpha": "0.05", "homoskedastic": false}) }}
+{{ w.id_words({"kind": "clr_reference", "strength": "3.2"}) }}
+{{ w.id_words({"kind": "lm_clr_missing", "undefined": true, "errors": "classical"}) }}
+{{ w.id_words({"kind": "tf_critical", "value": "2.5"}) }}
+{{ w.id_words({"kind": "tf_reading", "rejects": true}) }}
+{{ w.id_words({"kind": "tf_reading", "rejects": false}) }}
+{{ w.id_words({"kind": "tf_reading", "rejects": none}) }}
 "#;
 
-    const EXPECTED: [&str; 14] = [
+    const EXPECTED: [&str; 29] = [
         "dropped as collinear: a, b",
         "errors clustered by a and b (12 clusters); residual df 80 = 100 − 5 − 15 (n − K − absorbed); coefficient tests t(11)",
         "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): * p < 0.1, ** p < 0.05.",
@@ -154,6 +169,21 @@ mod tests {
         "`x`: partial R², Shea (1997)",
         "no clear evidence at 0.05 that the instrument shifts `d`",
         "`i`: mean of z-scores (Kling, Liebman and Katz 2007) of [a, b], standardised against the reference group \"control\" (10 rows); 20 rows have a value (a row missing any component has no value)",
+        "empty: no value fits, so the instruments reject each other at this level",
+        "several bounded intervals: the effect is bounded, but the set is not one interval; the LM test also accepts values where the Anderson–Rubin statistic is at a local maximum, so a piece away from the estimate may come from that rather than from the data",
+        "unbounded: the data cannot bound the effect on at least one side",
+        "Kleibergen LM test of `d` = 0, homoskedastic errors",
+        "Moreira conditional LR test of `d` = 0.5, homoskedastic errors",
+        "Moreira conditional LR 90% confidence set, homoskedastic errors",
+        "rejects `d` = 0 at 0.05; valid however weak the instruments are, if the errors are homoskedastic",
+        "does not reject `d` = 0 at 0.05; valid however weak the instruments are, if the errors are homoskedastic",
+        "does not reject `d` = 0 at 0.05; valid however weak the instruments are",
+        "conditional law given first-stage strength 3.2",
+        "the statistics are undefined for these data (an exact fit, or no first-stage signal under the null)",
+        "critical value 2.5 at 5% (in place of 1.96)",
+        "the 2SLS t-test rejects at 5% after the adjustment",
+        "the 2SLS t-test does not reject at 5% after the adjustment",
+        "the t-ratio is not available",
     ];
 
     #[test]

@@ -1,28 +1,7 @@
-//! The rows of the identification panel and the small readings every question shares.
+//! The small readings every question of the identification panel shares.
 
-use super::super::format::{num, p_is};
 use crate::distribution::Reference;
-use crate::results::{SpecResult, TestResult};
-use serde::Serialize;
-
-/// One question and the evidence on it.
-#[derive(Debug, Serialize)]
-pub(in crate::report) struct Question {
-    pub ask: String,
-    pub rows: Vec<Evidence>,
-    /// Said when there is no row (not requested, or not testable).
-    pub note: String,
-}
-
-/// One row of evidence.
-#[derive(Debug, Serialize)]
-pub(in crate::report) struct Evidence {
-    pub test: String,
-    pub statistic: String,
-    pub reference: String,
-    pub threshold: String,
-    pub reading: String,
-}
+use crate::results::SpecResult;
 
 /// A reference distribution as text.
 pub(in crate::report) fn dist_text(d: Reference) -> String {
@@ -31,16 +10,6 @@ pub(in crate::report) fn dist_text(d: Reference) -> String {
         Reference::StudentT { df } => format!("t({df})"),
         Reference::F { df1, df2 } => format!("F({df1}, {df2})"),
         Reference::ChiSquare { df } => format!("χ²({df})"),
-    }
-}
-
-pub(in crate::report) fn row(test: String, t: &TestResult, reading: String) -> Evidence {
-    Evidence {
-        test,
-        statistic: num(t.statistic),
-        reference: dist_text(t.distribution),
-        threshold: p_is(t.p_value),
-        reading,
     }
 }
 

@@ -140,6 +140,54 @@ pub(in crate::report) enum Words {
         remark: bool,
     },
     HansenMissing,
+    RobustAsk,
+    RobustNote,
+    /// `test`: `anderson_rubin`, `lm` or `clr`.
+    RobustTest {
+        test: &'static str,
+        x: String,
+        null: String,
+    },
+    /// A weak-instrument-robust test's verdict; `homoskedastic`: it assumes so.
+    RobustReading {
+        rejects: bool,
+        x: String,
+        null: String,
+        alpha: String,
+        homoskedastic: bool,
+    },
+    /// `test`: `anderson_rubin`, `lm` or `clr`; `level` in percent.
+    RobustSet {
+        test: &'static str,
+        level: String,
+    },
+    InvertedTest,
+    /// `shape`: `bounded`, `whole_line`, `empty`, `several_bounded` or `unbounded`.
+    SetReading {
+        shape: &'static str,
+        stationary: bool,
+    },
+    ClrReference {
+        strength: String,
+    },
+    LmClrTests,
+    NotComputed,
+    /// `undefined`: the errors were classical, so the statistics were undefined for the data.
+    LmClrMissing {
+        undefined: bool,
+        errors: &'static str,
+    },
+    TfTest,
+    TfReference,
+    TfCritical {
+        value: String,
+    },
+    /// `rejects`: `None` when the t-ratio is not available.
+    TfReading {
+        rejects: Option<bool>,
+    },
+    TfNoCritical,
+    TfTooWeak,
 }
 
 /// A row from a test result: its statistic, reference distribution and p-value as text.
