@@ -152,9 +152,14 @@ mod tests {
 {{ w.id_words({"kind": "tf_reading", "rejects": true}) }}
 {{ w.id_words({"kind": "tf_reading", "rejects": false}) }}
 {{ w.id_words({"kind": "tf_reading", "rejects": none}) }}
+{{ w.reg_point({"recorded_as": "sealed", "ledger_line": 1, "content_sha256": "ab", "data_inspected": none, "results_computed": [3, "t"]}) }}
+{{ w.reg_cell({"kind": "added_after_data"}) }}
+{{ w.reg_cell({"kind": "the_same"}) }}
+{{ w.reg_change({"element": "specification[a]", "status": "changed", "after": "data_inspected", "amendment_line": 3, "reason": none, "keys": ["errors: x", "y"]}) }}
+{{ w.reg_change({"element": "hypothesis[H3]", "status": "added", "after": "data_seen", "amendment_line": none, "reason": none, "keys": none}) }}
 "#;
 
-    const EXPECTED: [&str; 29] = [
+    const EXPECTED: [&str; 34] = [
         "dropped as collinear: a, b",
         "errors clustered by a and b (12 clusters); residual df 80 = 100 − 5 − 15 (n − K − absorbed); coefficient tests t(11)",
         "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): * p < 0.1, ** p < 0.05.",
@@ -184,6 +189,11 @@ mod tests {
         "the 2SLS t-test rejects at 5% after the adjustment",
         "the 2SLS t-test does not reject at 5% after the adjustment",
         "the t-ratio is not available",
+        "The registered version is the plan sealed at ledger line 1 (content sha256:ab). The data were first seen at not recorded; results were first computed at ledger line 3 (t). Each registered hypothesis is reported as registered (its family corrected as registered), with the amended plan's result beside it; hypotheses added after the data are not pre-registered and never enter a registered family's correction.",
+        "none: added after the data were seen",
+        "the same",
+        "specification[a] changed after the data were inspected (amendment at ledger line 3): errors: x; y",
+        "hypothesis[H3] added after the data were seen (no amendment records it)",
     ];
 
     #[test]
