@@ -157,9 +157,15 @@ mod tests {
 {{ w.reg_cell({"kind": "the_same"}) }}
 {{ w.reg_change({"element": "specification[a]", "status": "changed", "after": "data_inspected", "amendment_line": 3, "reason": none, "keys": ["errors: x", "y"]}) }}
 {{ w.reg_change({"element": "hypothesis[H3]", "status": "added", "after": "data_seen", "amendment_line": none, "reason": none, "keys": none}) }}
+{{ w.reh_heading(false) }}
+{{ w.reh_lead(none) }}
+{{ w.reh_lead({"ledger_line": 2, "time": "t", "registered_at": none, "assumptions": none, "replications": none, "earlier_plan": [none]}) }}
+{{ w.reh_other({"ledger_line": 5, "time": "t", "timing": "after_registration", "assumptions": "ab", "power": none}) }}
+{{ w.reh_other({"ledger_line": 5, "time": "t", "timing": "after_data_inspected", "assumptions": "ab", "power": [10, []]}) }}
+{{ w.reh_other({"ledger_line": 5, "time": "t", "timing": "no_registration", "assumptions": none, "power": none}) }}
 "#;
 
-    const EXPECTED: [&str; 34] = [
+    const EXPECTED: [&str; 40] = [
         "dropped as collinear: a, b",
         "errors clustered by a and b (12 clusters); residual df 80 = 100 − 5 − 15 (n − K − absorbed); coefficient tests t(11)",
         "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): * p < 0.1, ** p < 0.05.",
@@ -194,6 +200,12 @@ mod tests {
         "the same",
         "specification[a] changed after the data were inspected (amendment at ledger line 3): errors: x; y",
         "hypothesis[H3] added after the data were seen (no amendment records it)",
+        "Power as rehearsed",
+        "No rehearsal precedes the registered version: none of the rehearsals below is evidence of power stated before registration.",
+        "Power as rehearsed before the data, by the rehearsal at ledger line 2 (t), made before the registered version; assumptions not recorded; its ledger entry records no power (written by an earlier version of sworn): see its rehearsal.json. It rehearsed an earlier version of the plan (content not recorded), not the registered version: the analysis it simulated may differ from the registered one.",
+        "Rehearsal at ledger line 5 (t), after registration, before the data were seen: cited as such, not as evidence of power stated before registration; assumptions sha256:ab; its ledger entry records no power (written by an earlier version of sworn); see its rehearsal.json.",
+        "Rehearsal at ledger line 5 (t), after the data were inspected: its assumptions could have been chosen knowing the data, so it is not evidence of power stated in advance; assumptions sha256:ab; 10 simulated data sets per effect size; .",
+        "Rehearsal at ledger line 5 (t), the run has no registered version (the plan was never sealed before the data), so no rehearsal is evidence of power stated before registration; assumptions not recorded; its ledger entry records no power (written by an earlier version of sworn); see its rehearsal.json.",
     ];
 
     #[test]
