@@ -163,9 +163,15 @@ mod tests {
 {{ w.reh_other({"ledger_line": 5, "time": "t", "timing": "after_registration", "assumptions": "ab", "power": none}) }}
 {{ w.reh_other({"ledger_line": 5, "time": "t", "timing": "after_data_inspected", "assumptions": "ab", "power": [10, []]}) }}
 {{ w.reh_other({"ledger_line": 5, "time": "t", "timing": "no_registration", "assumptions": none, "power": none}) }}
+{{ w.sr_label({"kind": "take_up_where", "arm": 1}) }}|{{ w.sr_label({"kind": "first_stage_f"}) }}|{{ w.sr_label({"kind": "effective_f"}) }}
+{{ w.sr_cell({"kind": "not_available", "why": none}) }}|{{ w.sr_cell({"kind": "not_available", "why": "endogenous"}) }}|{{ w.sr_cell({"kind": "not_available", "why": "one_arm"}) }}|{{ w.sr_cell({"kind": "not_available", "why": "small_arm"}) }}|{{ w.sr_cell({"kind": "not_available", "why": "weighted"}) }}
+{{ w.sr_note({"kind": "comparison_mean", "arms": [["c1", "z", 10]], "errors": {"clusters": ["a", "b"], "plain": true}}) }}
+{{ w.sr_note({"kind": "take_up", "shown": [["c1", "d", "z", 4, 5], ["c2", "d", "z", 6, 7]], "errors": {"clusters": ["a"], "plain": false}}) }}
+{{ w.sr_note({"kind": "comparison_missing", "column": "c2", "why": "no rows in the arm"}) }}
+{{ w.sr_note({"kind": "take_up_missing", "column": "c3", "why": none}) }}
 "#;
 
-    const EXPECTED: [&str; 40] = [
+    const EXPECTED: [&str; 46] = [
         "dropped as collinear: a, b",
         "errors clustered by a and b (12 clusters); residual df 80 = 100 − 5 − 15 (n − K − absorbed); coefficient tests t(11)",
         "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): * p < 0.1, ** p < 0.05.",
@@ -206,6 +212,12 @@ mod tests {
         "Rehearsal at ledger line 5 (t), after registration, before the data were seen: cited as such, not as evidence of power stated before registration; assumptions sha256:ab; its ledger entry records no power (written by an earlier version of sworn); see its rehearsal.json.",
         "Rehearsal at ledger line 5 (t), after the data were inspected: its assumptions could have been chosen knowing the data, so it is not evidence of power stated in advance; assumptions sha256:ab; 10 simulated data sets per effect size; .",
         "Rehearsal at ledger line 5 (t), the run has no registered version (the plan was never sealed before the data), so no rehearsal is evidence of power stated before registration; assumptions not recorded; its ledger entry records no power (written by an earlier version of sworn); see its rehearsal.json.",
+        "take-up where the instrument is 1 (s.e.)|first-stage F, the column's errors|effective F (Montiel Olea–Pflueger)",
+        "n/a|n/a: several endogenous|n/a: one arm only|n/a: an arm too small|n/a: weighted",
+        "Outcome mean, comparison arm: the mean of the column's outcome over the rows it was estimated on whose arm variable is 0 (c1: `z` = 0, 10 rows); standard error of the mean cluster-robust by `a` (CR1 over the arm's clusters) or cluster-robust by `b` (CR1 over the arm's clusters) or s/√n.",
+        "Take-up by arm: the mean of the endogenous regressor in each arm of the column's binary instrument, over the rows it was estimated on (c1: share with `d` in each arm of `z` (4 and 5 rows); c2: share with `d` in each arm of `z` (6 and 7 rows)); standard error of the mean cluster-robust by `a` (CR1 over the arm's clusters); blank for OLS columns.",
+        "Outcome mean not shown for c2: no rows in the arm.",
+        "Take-up by arm not shown for c3: not computed.",
     ];
 
     #[test]

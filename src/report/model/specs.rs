@@ -5,6 +5,7 @@
 //! `block_title`, `block_line`, `convention`).
 
 use super::super::format::{num, pval};
+use super::super::summary_rows::{RowCell, RowLabel, SummaryNote};
 use crate::plan::spec_terms;
 use crate::results::{BandwidthRule, CoefDistribution, ErrorKind, Results, SpecResult, Term};
 use serde::Serialize;
@@ -18,7 +19,7 @@ pub(super) struct TableModel {
     n: Vec<String>,
     errors: Vec<ErrorsCell>,
     /// Rows the plan asked for beneath the coefficients: a label and one cell per column.
-    extra: Vec<(String, Vec<String>)>,
+    extra: Vec<(RowLabel, Vec<RowCell>)>,
     notes: Vec<TableNote>,
 }
 
@@ -39,8 +40,8 @@ pub(super) enum TableNote {
     Parentheses,
     /// The legend of the marks: each mark with its threshold.
     Marks { marks: Vec<(String, String)> },
-    /// A note of a summary row (worded in `summary_rows.rs`).
-    Text { text: String },
+    /// A note of a summary row.
+    Summary { note: SummaryNote },
     /// The columns rest on different numbers of rows.
     MixedRows { ns: Vec<usize> },
 }
@@ -264,7 +265,7 @@ pub(super) fn table_notes(t: &crate::plan::Table, specs: &[&SpecResult]) -> Vec<
         notes.extend(
             super::super::summary_rows::notes(row, &t.columns, specs)
                 .into_iter()
-                .map(|text| TableNote::Text { text }),
+                .map(|note| TableNote::Summary { note }),
         );
     }
     let mut ns: Vec<usize> = specs.iter().map(|s| s.n).collect();
