@@ -4,7 +4,9 @@
 // messages with them without depending on the report.
 pub use crate::format::{num, pval};
 
-/// A p-value in running text: `p = 0.0123`, or `p < 1e-300` below what is printed.
+/// A p-value in running text: `p = 0.0123`, or `p < 1e-300` below what is printed. Notation
+/// for a number, like [`num`], so it stays with the number formatting rather than in the
+/// templates.
 pub fn p_is(p: f64) -> String {
     let shown = pval(p);
     if shown.starts_with('<') {
@@ -114,7 +116,9 @@ pub fn tex_breakable(s: &str) -> String {
     out
 }
 
-/// A confidence set as text: pieces joined by ∪, unbounded ends as ∞.
+/// A confidence set as text: pieces joined by ∪, unbounded ends as ∞. Interval notation
+/// (with the glosses "(empty)" and "(the whole line)" that belong to it), placed as a value
+/// by every cell and sentence that shows a set, so it stays with the number formatting.
 pub fn set_text(pieces: &[crate::results::SetPiece]) -> String {
     if pieces.is_empty() {
         return "∅ (empty)".to_string();

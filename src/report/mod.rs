@@ -169,9 +169,12 @@ mod tests {
 {{ w.sr_note({"kind": "take_up", "shown": [["c1", "d", "z", 4, 5], ["c2", "d", "z", 6, 7]], "errors": {"clusters": ["a"], "plain": false}}) }}
 {{ w.sr_note({"kind": "comparison_missing", "column": "c2", "why": "no rows in the arm"}) }}
 {{ w.sr_note({"kind": "take_up_missing", "column": "c3", "why": none}) }}
+{{ w.fig_caption({"kind": "anderson_rubin", "curve": none, "set": "∅ (empty)", "shape": "empty", "reading": "empty", "estimator": "LIML"}) }}
+{{ w.fig_caption({"kind": "anderson_rubin", "curve": [9, "12.5"], "set": "(−∞, 1]", "shape": "two-rays", "reading": "unbounded", "estimator": "2SLS"}) }}
+{{ w.fig_caption({"kind": "failed", "error": "e"}) }}|{{ w.fig_title({"kind": "anderson_rubin", "level": "90", "id": "s"}) }}
 "#;
 
-    const EXPECTED: [&str; 46] = [
+    const EXPECTED: [&str; 49] = [
         "dropped as collinear: a, b",
         "errors clustered by a and b (12 clusters); residual df 80 = 100 − 5 − 15 (n − K − absorbed); coefficient tests t(11)",
         "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): * p < 0.1, ** p < 0.05.",
@@ -218,6 +221,9 @@ mod tests {
         "Take-up by arm: the mean of the endogenous regressor in each arm of the column's binary instrument, over the rows it was estimated on (c1: share with `d` in each arm of `z` (4 and 5 rows); c2: share with `d` in each arm of `z` (6 and 7 rows)); standard error of the mean cluster-robust by `a` (CR1 over the arm's clusters); blank for OLS columns.",
         "Outcome mean not shown for c2: no rows in the arm.",
         "Take-up by arm not shown for c3: not computed.",
+        "The thick bar is the set of coefficient values the Anderson–Rubin test does not reject (∅ (empty), shape: empty); a bar reaching an edge continues without end. Beneath it the LIML estimate and its Wald interval, which rely on strong instruments. The set is empty: the instruments reject each other at this level.",
+        "Above, the Anderson–Rubin statistic at 9 coefficient values, as computed in the run (results.json), and the dashed critical value: the set is every value where the curve lies on or under the line, so a curve still under it at an edge means the set goes on past that edge; values above 12.5 are cut at the top. The thick bar is the set of coefficient values the Anderson–Rubin test does not reject ((−∞, 1], shape: two-rays); a bar reaching an edge continues without end. Beneath it the 2SLS estimate and its Wald interval, which rely on strong instruments. The set is unbounded: the data cannot bound the effect on at least one side.",
+        "The figure could not be drawn: e|Anderson–Rubin 90% set, s",
     ];
 
     #[test]

@@ -14,7 +14,10 @@ pub(super) use chart::Figure;
 
 use crate::results::{Results, SpecResult, Term};
 use anderson_rubin::anderson_rubin;
-use chart::{estimator_color, mesh, row_labels, DrawResult, BLUE, GREY, PANEL_EXTRA, ROW, WIDTH};
+use chart::{
+    estimator_color, mesh, row_labels, Caption, DrawResult, FigureTitle, BLUE, GREY, PANEL_EXTRA,
+    ROW, WIDTH,
+};
 use plotters::prelude::*;
 
 /// One interval row of a panel.
@@ -123,7 +126,7 @@ fn svg(panels: &[Panel]) -> DrawResult<String> {
     Ok(out)
 }
 
-fn figure(title: String, panels: Vec<Panel>, caption: String) -> Option<Figure> {
+fn figure(title: FigureTitle, panels: Vec<Panel>, caption: Caption) -> Option<Figure> {
     let panels: Vec<Panel> = panels.into_iter().filter(|p| !p.bars.is_empty()).collect();
     if panels.is_empty() {
         return None;
@@ -137,7 +140,9 @@ fn figure(title: String, panels: Vec<Panel>, caption: String) -> Option<Figure> 
         Err(e) => Figure {
             title,
             svg: String::new(),
-            caption: format!("The figure could not be drawn: {}", crate::escape::line(&e)),
+            caption: Caption::Failed {
+                error: crate::escape::line(&e),
+            },
         },
     })
 }
@@ -170,9 +175,11 @@ pub(super) fn figures(plan: &crate::plan::Plan, r: &Results) -> Vec<Figure> {
             })
             .collect();
         out.extend(figure(
-            format!("Table: {}", crate::escape::line(&t.title)),
+            FigureTitle::Table {
+                title: crate::escape::line(&t.title),
+            },
             panels,
-            "Dots are estimates and lines their intervals at each specification's confidence level; one panel per term, on its own scale; grey OLS, blue 2SLS, orange LIML or Fuller; the vertical line marks zero.".into(),
+            Caption::Table,
         ));
     }
     out.extend(first_stages(plan, r));
@@ -216,9 +223,5 @@ fn first_stages(plan: &crate::plan::Plan, r: &Results) -> Option<Figure> {
             });
         }
     }
-    figure(
-        "First stages".into(),
-        panels,
-        "How far each instrument shifts the endogenous regressor (take-up), holding the controls fixed: dots are first-stage coefficients, lines their intervals with the specification's errors. An interval reaching zero is a first stage the data cannot distinguish from none. Where the instrument is a 0/1 assignment, a grey panel shows take-up itself in each arm (the endogenous regressor's mean over the rows estimated on, with a normal-approximation interval at the specification's level from the standard error of the mean; results.json `arms`).".into(),
-    )
+    figure(FigureTitle::FirstStages, panels, Caption::FirstStages)
 }

@@ -3,7 +3,9 @@
 //! critical line (results.json's `anderson_rubin.curve`; nothing is recomputed).
 
 use super::super::format::num;
-use super::chart::{estimator_color, mesh, row_labels, Chart, DrawResult, Figure, WIDTH};
+use super::chart::{
+    estimator_color, mesh, row_labels, Caption, Chart, DrawResult, Figure, FigureTitle, WIDTH,
+};
 use crate::results::{AndersonRubinResult, ArCurve, ArShape, Results, Term};
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
@@ -250,31 +252,25 @@ pub(super) fn anderson_rubin(plan: &crate::plan::Plan, r: &Results) -> Vec<Figur
             continue;
         };
         let heading = crate::escape::line(&format!("{}: coefficient on {x}", s.id));
-        let title = format!(
-            "Anderson–Rubin {:.0}% set, {}",
-            100.0 * ar.confidence,
-            crate::escape::line(&s.id)
-        );
-        let curve = match &ar.curve {
-            Some(c) => format!(
-                "Above, the Anderson–Rubin statistic at {} coefficient values, as computed in the run (results.json), and the dashed critical value: the set is every value where the curve lies on or under the line, so a curve still under it at an edge means the set goes on past that edge; values above {} are cut at the top. ",
-                c.coefficient.len(),
-                num(curve_top(c, ar.critical_value))
-            ),
-            None => String::new(),
+        let title = FigureTitle::AndersonRubin {
+            level: format!("{:.0}", 100.0 * ar.confidence),
+            id: crate::escape::line(&s.id),
         };
-        let caption = format!(
-            "{curve}The thick bar is the set of coefficient values the Anderson–Rubin test does not reject ({}, shape: {}); a bar reaching an edge continues without end. Beneath it the {} estimate and its Wald interval, which rely on strong instruments. The set is {}.",
-            super::super::format::set_text(&ar.set),
-            ar.shape,
-            res.estimator.label(),
-            match ar.shape {
-                ArShape::Bounded => "bounded: the data bound the effect however weak the instruments",
-                ArShape::WholeLine => "the whole line: the data cannot bound the effect",
-                ArShape::Empty => "empty: the instruments reject each other at this level",
-                _ => "unbounded: the data cannot bound the effect on at least one side",
-            }
-        );
+        let caption = Caption::AndersonRubin {
+            curve: ar
+                .curve
+                .as_ref()
+                .map(|c| (c.coefficient.len(), num(curve_top(c, ar.critical_value)))),
+            set: super::super::format::set_text(&ar.set),
+            shape: ar.shape.to_string(),
+            reading: match ar.shape {
+                ArShape::Bounded => "bounded",
+                ArShape::WholeLine => "whole_line",
+                ArShape::Empty => "empty",
+                _ => "unbounded",
+            },
+            estimator: res.estimator.label(),
+        };
         out.push(
             match ar_svg(ar, wald, estimator_color(res.estimator), &heading) {
                 Ok(svg) => Figure {
@@ -285,7 +281,9 @@ pub(super) fn anderson_rubin(plan: &crate::plan::Plan, r: &Results) -> Vec<Figur
                 Err(e) => Figure {
                     title,
                     svg: String::new(),
-                    caption: format!("The figure could not be drawn: {}", crate::escape::line(&e)),
+                    caption: Caption::Failed {
+                        error: crate::escape::line(&e),
+                    },
                 },
             },
         );

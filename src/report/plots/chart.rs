@@ -7,12 +7,51 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use serde::Serialize;
 
-/// One figure: a heading, the SVG markup, and a caption saying how to read it.
+/// One figure: a heading, the SVG markup, and a caption saying how to read it. The heading
+/// and caption are typed; their words are the `fig_title` and `fig_caption` macros of
+/// `templates/words.j2`. The labels drawn inside the SVG (panel headings, bar labels, axis
+/// marks) are part of the picture, drawn here.
 #[derive(Debug, Serialize)]
 pub(in crate::report) struct Figure {
-    pub title: String,
+    pub title: FigureTitle,
     pub svg: String,
-    pub caption: String,
+    pub caption: Caption,
+}
+
+/// A figure's heading.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(in crate::report) enum FigureTitle {
+    Table {
+        title: String,
+    },
+    FirstStages,
+    /// `level` in percent.
+    AndersonRubin {
+        level: String,
+        id: String,
+    },
+}
+
+/// How to read a figure, or why it could not be drawn.
+#[derive(Debug, Serialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub(in crate::report) enum Caption {
+    Table,
+    FirstStages,
+    /// The AR set's figure: the curve's points and top when a curve was computed, the set,
+    /// its shape (as results.json spells it, and `reading`: `bounded`, `whole_line`,
+    /// `empty` or `unbounded`), the estimator.
+    AndersonRubin {
+        curve: Option<(usize, String)>,
+        set: String,
+        shape: String,
+        reading: &'static str,
+        estimator: &'static str,
+    },
+    Failed {
+        error: String,
+    },
 }
 
 pub(super) const WIDTH: u32 = 720;
