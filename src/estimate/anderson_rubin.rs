@@ -59,7 +59,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Covariance, Leverage};
-use super::linear::{require_observations, IvProblem};
+use super::linear::{require_observations, IvColumns, IvProblem};
 use super::qr::PivotedQr;
 use super::quadratic_meat::QuadraticMeat;
 use super::refine::residual;
@@ -158,19 +158,16 @@ pub struct AndersonRubin {
 /// exactly one column; [`EstimateError::TooFewObservations`] unless n > L + |W| + a;
 /// [`EstimateError::NotFinite`] for a non-finite `beta0` or a `confidence` outside (0, 1);
 /// [`EstimateError::SingularCovariance`] when V(β₀) is singular.
-#[allow(clippy::too_many_arguments)]
 pub fn anderson_rubin(
-    y: &DVector<f64>,
-    exog: &DMatrix<f64>,
-    endog: &DMatrix<f64>,
-    instruments: &DMatrix<f64>,
+    data: IvColumns,
     cov: &CovSpec,
     absorbed: &Absorbed,
     beta0: f64,
     confidence: f64,
 ) -> Result<AndersonRubin, EstimateError> {
-    check_inputs(endog, beta0, confidence)?;
-    IvProblem::new(y, exog, endog, instruments)?.anderson_rubin(cov, absorbed, beta0, confidence)
+    check_inputs(data.endog, beta0, confidence)?;
+    data.problem()?
+        .anderson_rubin(cov, absorbed, beta0, confidence)
 }
 
 /// One endogenous regressor, a finite null and a confidence level in (0, 1).
@@ -219,17 +216,7 @@ impl IvProblem<'_> {
         } else {
             Some(self.exog_qr()?)
         };
-        let problem = Problem::new(
-            self.y,
-            self.exog,
-            self.endog,
-            self.instruments,
-            &self.setup.z,
-            &self.setup.zqr,
-            exog_qr,
-            cov,
-            absorbed,
-        )?;
+        let problem = Problem::new(self, exog_qr, cov, absorbed)?;
         Ok(ArProblem {
             problem,
             y: self.y,
@@ -317,21 +304,17 @@ impl ArProblem<'_> {
 ///
 /// # Errors
 /// As [`anderson_rubin`]; [`EstimateError::NotFinite`] for a non-finite grid value.
-#[allow(clippy::too_many_arguments)]
 pub fn anderson_rubin_curve(
-    y: &DVector<f64>,
-    exog: &DMatrix<f64>,
-    endog: &DMatrix<f64>,
-    instruments: &DMatrix<f64>,
+    data: IvColumns,
     cov: &CovSpec,
     absorbed: &Absorbed,
     grid: &[f64],
 ) -> Result<Vec<Option<f64>>, EstimateError> {
-    check_one_endogenous(endog)?;
+    check_one_endogenous(data.endog)?;
     if grid.iter().any(|b| !b.is_finite()) {
         return Err(EstimateError::NotFinite);
     }
-    IvProblem::new(y, exog, endog, instruments)?
+    data.problem()?
         .anderson_rubin_problem(cov, absorbed)?
         .curve(grid)
 }
@@ -357,18 +340,16 @@ struct Problem<'a> {
 }
 
 impl<'a> Problem<'a> {
-    #[allow(clippy::too_many_arguments)]
+    /// The regressions of `iv`'s outcome and endogenous column on its [Z | W] (factorised
+    /// once in `iv`), with the exogenous columns' QR when there are any.
     fn new(
-        y: &DVector<f64>,
-        exog: &DMatrix<f64>,
-        endog: &DMatrix<f64>,
-        instruments: &DMatrix<f64>,
-        z: &'a DMatrix<f64>,
-        zqr: &'a PivotedQr,
+        iv: &'a IvProblem<'_>,
         exog_qr: Option<&PivotedQr>,
         spec: &'a CovSpec,
         absorbed: &'a Absorbed,
     ) -> Result<Self, EstimateError> {
+        let (y, exog, endog, instruments) = (iv.y, iv.exog, iv.endog, iv.instruments);
+        let (z, zqr) = (&iv.setup.z, &iv.setup.zqr);
         let (n, l) = (y.len(), instruments.ncols());
         require_observations(n, z.ncols() + absorbed.df)?;
         let x = endog.column(0).into_owned();

@@ -178,38 +178,58 @@ pub fn clr_p_value(m: f64, q: f64, l: usize) -> f64 {
         chi2_upper((m + q) / (1.0 + q * s * s / m), l) * phi.cos().powi(power)
     };
     let (a, b) = (0.0, std::f64::consts::FRAC_PI_2);
-    let (fa, fm, fb) = (f(a), f(0.5 * (a + b)), f(b));
-    let whole = (b - a) / 6.0 * (fa + 4.0 * fm + fb);
-    let integral = simpson(&f, a, b, fa, fm, fb, whole, QUADRATURE_TOLERANCE, 0);
+    let panel = Panel {
+        a,
+        b,
+        fa: f(a),
+        fm: f(0.5 * (a + b)),
+        fb: f(b),
+    };
+    let integral = simpson(&f, panel, panel.estimate(), QUADRATURE_TOLERANCE, 0);
     let norm = statrs::function::beta::ln_beta(0.5, 0.5 * (l - 1) as f64).exp();
     (2.0 * integral / norm).clamp(0.0, 1.0)
 }
 
-/// Adaptive Simpson on [a, b] given the end and mid values and the one-panel estimate;
-/// accepts when the two-panel estimate differs by at most 15·tol (Richardson-corrected).
-#[allow(clippy::too_many_arguments)]
-fn simpson(
-    f: &dyn Fn(f64) -> f64,
+/// One Simpson panel: [a, b] with the integrand at its ends and midpoint.
+#[derive(Clone, Copy)]
+struct Panel {
     a: f64,
     b: f64,
     fa: f64,
     fm: f64,
     fb: f64,
-    whole: f64,
-    tol: f64,
-    depth: u32,
-) -> f64 {
-    let mid = 0.5 * (a + b);
-    let (lm, rm) = (0.5 * (a + mid), 0.5 * (mid + b));
-    let (flm, frm) = (f(lm), f(rm));
-    let left = (mid - a) / 6.0 * (fa + 4.0 * flm + fm);
-    let right = (b - mid) / 6.0 * (fm + 4.0 * frm + fb);
-    let delta = left + right - whole;
-    if depth >= QUADRATURE_DEPTH || delta.abs() <= 15.0 * tol {
-        return left + right + delta / 15.0;
+}
+
+impl Panel {
+    /// Simpson's rule on the panel.
+    fn estimate(&self) -> f64 {
+        (self.b - self.a) / 6.0 * (self.fa + 4.0 * self.fm + self.fb)
     }
-    simpson(f, a, mid, fa, flm, fm, left, 0.5 * tol, depth + 1)
-        + simpson(f, mid, b, fm, frm, fb, right, 0.5 * tol, depth + 1)
+}
+
+/// Adaptive Simpson on a panel given its one-panel estimate `whole`; accepts when the
+/// two-panel estimate differs by at most 15·tol (Richardson-corrected).
+fn simpson(f: &dyn Fn(f64) -> f64, p: Panel, whole: f64, tol: f64, depth: u32) -> f64 {
+    let mid = 0.5 * (p.a + p.b);
+    let (lm, rm) = (0.5 * (p.a + mid), 0.5 * (mid + p.b));
+    let left = Panel {
+        b: mid,
+        fm: f(lm),
+        fb: p.fm,
+        ..p
+    };
+    let right = Panel {
+        a: mid,
+        fa: p.fm,
+        fm: f(rm),
+        ..p
+    };
+    let (l, r) = (left.estimate(), right.estimate());
+    let delta = l + r - whole;
+    if depth >= QUADRATURE_DEPTH || delta.abs() <= 15.0 * tol {
+        return l + r + delta / 15.0;
+    }
+    simpson(f, left, l, 0.5 * tol, depth + 1) + simpson(f, right, r, 0.5 * tol, depth + 1)
 }
 
 mod set;

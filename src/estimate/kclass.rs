@@ -56,7 +56,7 @@
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
 use super::covariance::{clamp_negative_eigenvalues, two_way_unclamped, CovSpec, Leverage};
-use super::linear::{assemble, require_observations, IvProblem, LeastSquares};
+use super::linear::{assemble, require_observations, IvColumns, IvProblem, LeastSquares};
 use super::qr::PivotedQr;
 use super::refine::residual;
 use super::{Absorbed, EstimateError, LinearFit};
@@ -121,19 +121,15 @@ pub struct KClassFit {
 /// for the outcome) when y lies in the span of [Z | endog] or of X, where κ_LIML is 0/0;
 /// [`EstimateError::SingularCovariance`] (all indices) when H is singular, which happens
 /// only for κ far above κ_LIML.
-#[allow(clippy::too_many_arguments)]
 pub fn kclass(
-    y: &DVector<f64>,
-    exog: &DMatrix<f64>,
-    endog: &DMatrix<f64>,
-    instruments: &DMatrix<f64>,
+    data: IvColumns,
     has_intercept: bool,
     cov: &CovSpec,
     which: KClass,
     absorbed: &Absorbed,
 ) -> Result<KClassFit, EstimateError> {
     refuse_leverage(cov)?;
-    IvProblem::new(y, exog, endog, instruments)?.kclass(has_intercept, cov, which, absorbed)
+    data.problem()?.kclass(has_intercept, cov, which, absorbed)
 }
 
 /// HC2/HC3 need leverages, which a k-class fit does not define.

@@ -7,6 +7,7 @@
 //! against linearmodels IV2SLS); and the Frisch–Waugh–Lovell identity for absorbed fixed
 //! effects (dummies in the design versus within-transformed data with `Absorbed`).
 
+use crate::estimate::IvColumns;
 use nalgebra::{DMatrix, DVector};
 
 use super::{kclass, KClass};
@@ -42,10 +43,7 @@ fn data(fx: &Fixture) -> Data {
 
 fn fit(d: &Data, spec: &CovSpec, which: KClass) -> Result<super::KClassFit, EstimateError> {
     kclass(
-        &d.y,
-        &d.exog,
-        &d.endog,
-        &d.instruments,
+        IvColumns::new(&d.y, &d.exog, &d.endog, &d.instruments),
         true,
         spec,
         which,
@@ -270,10 +268,7 @@ fn absorbed_fixed_effects_match_dummies() {
         let spec = fx.spec(kind);
         for (_, which) in ESTIMATORS {
             let full = kclass(
-                &d.y,
-                &with_dummies,
-                &d.endog,
-                &d.instruments,
+                IvColumns::new(&d.y, &with_dummies, &d.endog, &d.instruments),
                 false,
                 &spec,
                 which,
@@ -281,7 +276,11 @@ fn absorbed_fixed_effects_match_dummies() {
             )
             .expect("dummies");
             let within = kclass(
-                &y_w, &w1_w, &endog_w, &instr_w, false, &spec, which, &absorbed,
+                IvColumns::new(&y_w, &w1_w, &endog_w, &instr_w),
+                false,
+                &spec,
+                which,
+                &absorbed,
             )
             .expect("within");
             let se_full = full.fit.std_errors();

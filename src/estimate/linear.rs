@@ -209,6 +209,41 @@ pub(crate) fn iv_setup(
 /// the same inputs (the same factorisations of the same matrices); it only avoids repeating
 /// them. Before, every diagnostic rebuilt the setup from the raw columns: nine QRs of Z and
 /// eight collinearity scans of X per 2SLS specification with every diagnostic.
+/// The columns of an instrumental-variable problem, borrowed: the outcome, the exogenous
+/// regressors (the caller's intercept among them), the endogenous regressors and the
+/// excluded instruments.
+#[derive(Debug, Clone, Copy)]
+pub struct IvColumns<'a> {
+    pub y: &'a DVector<f64>,
+    pub exog: &'a DMatrix<f64>,
+    pub endog: &'a DMatrix<f64>,
+    pub instruments: &'a DMatrix<f64>,
+}
+
+impl<'a> IvColumns<'a> {
+    pub fn new(
+        y: &'a DVector<f64>,
+        exog: &'a DMatrix<f64>,
+        endog: &'a DMatrix<f64>,
+        instruments: &'a DMatrix<f64>,
+    ) -> Self {
+        IvColumns {
+            y,
+            exog,
+            endog,
+            instruments,
+        }
+    }
+
+    /// Validates the inputs and factorises the instruments ([`IvProblem::new`]).
+    ///
+    /// # Errors
+    /// As [`IvProblem::new`].
+    pub fn problem(self) -> Result<IvProblem<'a>, EstimateError> {
+        IvProblem::new(self.y, self.exog, self.endog, self.instruments)
+    }
+}
+
 #[derive(Debug)]
 pub struct IvProblem<'a> {
     pub(crate) y: &'a DVector<f64>,

@@ -75,7 +75,7 @@ pub use diagnostics::{
 };
 pub use hac::{bartlett_lags, newey_west_1994_bandwidth, NEWEY_WEST_1994_BARTLETT_C};
 pub use kclass::{kclass, KClass, KClassFit, DEFAULT_FULLER_ALPHA};
-pub use linear::{ols, tsls, IvProblem};
+pub use linear::{ols, tsls, IvColumns, IvProblem};
 pub use qr::collinear_columns;
 pub use resample::{
     count_assignments, randomization_ar, randomization_interval, randomization_test,

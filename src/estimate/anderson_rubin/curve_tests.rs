@@ -8,6 +8,7 @@
 //! single-null test [`anderson_rubin`] (the same statistic, computed without the shared
 //! quadratic form).
 
+use crate::estimate::IvColumns;
 use serde_json::Value;
 
 use super::{anderson_rubin, anderson_rubin_curve};
@@ -38,8 +39,13 @@ fn check_case(case: &str) {
             .collect();
         let mut grid = vec![beta0];
         grid.extend(&ends);
-        let curve = anderson_rubin_curve(&y, &exog, &endog, &z, &spec, &Absorbed::NONE, &grid)
-            .expect("curve");
+        let curve = anderson_rubin_curve(
+            IvColumns::new(&y, &exog, &endog, &z),
+            &spec,
+            &Absorbed::NONE,
+            &grid,
+        )
+        .expect("curve");
         t.scalar(
             &format!("curve at beta0 {kind}"),
             curve[0].expect("finite"),
@@ -54,11 +60,22 @@ fn check_case(case: &str) {
         }
         // Every point of a wide grid equals the single-null test.
         let grid: Vec<f64> = (0..41).map(|i| -10.0 + 0.5 * i as f64 + 0.013).collect();
-        let curve = anderson_rubin_curve(&y, &exog, &endog, &z, &spec, &Absorbed::NONE, &grid)
-            .expect("curve");
+        let curve = anderson_rubin_curve(
+            IvColumns::new(&y, &exog, &endog, &z),
+            &spec,
+            &Absorbed::NONE,
+            &grid,
+        )
+        .expect("curve");
         for (b, v) in grid.iter().zip(&curve) {
-            let single = anderson_rubin(&y, &exog, &endog, &z, &spec, &Absorbed::NONE, *b, level)
-                .expect("ar");
+            let single = anderson_rubin(
+                IvColumns::new(&y, &exog, &endog, &z),
+                &spec,
+                &Absorbed::NONE,
+                *b,
+                level,
+            )
+            .expect("ar");
             t.scalar(
                 &format!("curve against the single-null test {kind}"),
                 v.expect("finite"),
@@ -98,10 +115,7 @@ fn curve_refuses_a_non_finite_grid() {
     let z = fx.matrix(&fx.setup["instruments"]);
     let spec = fx.spec("hc1");
     let r = anderson_rubin_curve(
-        &y,
-        &exog,
-        &endog,
-        &z,
+        IvColumns::new(&y, &exog, &endog, &z),
         &spec,
         &Absorbed::NONE,
         &[0.0, f64::NAN],

@@ -6,6 +6,7 @@
 //! 1e-8 relative; and internal identities (AR equals c at every finite endpoint; absorbing
 //! fixed effects equals including their dummies, Frisch–Waugh–Lovell).
 
+use crate::estimate::IvColumns;
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
 
@@ -47,8 +48,14 @@ fn check_case(case: &str) {
         let kind = kind.as_str().expect("kind");
         let ex = &fx.expected[kind];
         let spec = fx.spec(kind);
-        let ar = anderson_rubin(&y, &exog, &endog, &z, &spec, &Absorbed::NONE, beta0, level)
-            .expect("ar");
+        let ar = anderson_rubin(
+            IvColumns::new(&y, &exog, &endog, &z),
+            &spec,
+            &Absorbed::NONE,
+            beta0,
+            level,
+        )
+        .expect("ar");
         t.scalar(
             &format!("statistic {kind}"),
             ar.test.statistic,
@@ -77,9 +84,14 @@ fn check_case(case: &str) {
                 if w.is_finite() {
                     t.scalar(&format!("endpoint {kind}"), g, &Value::from(w));
                     // AR(endpoint) = c: the endpoint is a boundary point of the set.
-                    let at =
-                        anderson_rubin(&y, &exog, &endog, &z, &spec, &Absorbed::NONE, g, level)
-                            .expect("ar at endpoint");
+                    let at = anderson_rubin(
+                        IvColumns::new(&y, &exog, &endog, &z),
+                        &spec,
+                        &Absorbed::NONE,
+                        g,
+                        level,
+                    )
+                    .expect("ar at endpoint");
                     let rel = (at.test.statistic - at.critical_value).abs() / at.critical_value;
                     assert!(
                         rel < 1e-8,
@@ -185,13 +197,16 @@ fn absorbed_fixed_effects_equal_dummies() {
             ids: fx.columns["g1"].iter().map(|&v| v as usize).collect(),
         },
     ] {
-        let full = anderson_rubin(&y, &dummies, &x, &z, &spec, &Absorbed::NONE, 0.5, 0.95)
-            .expect("dummies");
+        let full = anderson_rubin(
+            IvColumns::new(&y, &dummies, &x, &z),
+            &spec,
+            &Absorbed::NONE,
+            0.5,
+            0.95,
+        )
+        .expect("dummies");
         let within = anderson_rubin(
-            &yd,
-            &wd,
-            &demean(&x),
-            &demean(&z),
+            IvColumns::new(&yd, &wd, &demean(&x), &demean(&z)),
             &spec,
             &absorbed,
             0.5,
@@ -219,22 +234,23 @@ fn invalid_inputs_are_errors() {
     let z = fx.matrix(&fx.setup["instruments"]);
     let two = crate::estimate::linear::hcat(&x, &z);
     assert!(anderson_rubin(
-        &y,
-        &exog,
-        &two,
-        &z,
+        IvColumns::new(&y, &exog, &two, &z),
         &CovSpec::Hc1,
         &Absorbed::NONE,
         0.0,
         0.95
     )
     .is_err());
-    assert!(anderson_rubin(&y, &exog, &x, &z, &CovSpec::Hc1, &Absorbed::NONE, 0.0, 1.0).is_err());
     assert!(anderson_rubin(
-        &y,
-        &exog,
-        &x,
-        &z,
+        IvColumns::new(&y, &exog, &x, &z),
+        &CovSpec::Hc1,
+        &Absorbed::NONE,
+        0.0,
+        1.0
+    )
+    .is_err());
+    assert!(anderson_rubin(
+        IvColumns::new(&y, &exog, &x, &z),
         &CovSpec::Hc1,
         &Absorbed::NONE,
         f64::NAN,
@@ -271,10 +287,7 @@ fn ar_monte_carlo_size() {
             y[i] = u; // β = 0 and no intercept effect
         }
         let ar = anderson_rubin(
-            &y,
-            &exog,
-            &x,
-            &z,
+            IvColumns::new(&y, &exog, &x, &z),
             &CovSpec::Classical,
             &Absorbed::NONE,
             0.0,

@@ -4,6 +4,7 @@
 //! Anderson–Rubin, two-step GMM J (numpy, equal to linearmodels IVGMM), the dropped-rows
 //! convention (numpy) and the Newey–West (1994) bandwidth rule (numpy, from the paper).
 
+use crate::estimate::IvColumns;
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
 
@@ -50,7 +51,14 @@ fn hac_matches_statsmodels_and_linearmodels() {
     t.vector("2sls coef", &iv.coef, &ex["tsls_coef"]);
     matrix_entries(&mut t, "2sls cov", &iv.cov, &ex["tsls_cov"]);
 
-    let liml = kclass(&y, &exog, &endog, &z, true, &cov, KClass::Liml, &none).expect("liml");
+    let liml = kclass(
+        IvColumns::new(&y, &exog, &endog, &z),
+        true,
+        &cov,
+        KClass::Liml,
+        &none,
+    )
+    .expect("liml");
     t.vector("liml coef", &liml.fit.coef, &ex["liml_coef"]);
     matrix_entries(&mut t, "liml cov", &liml.fit.cov, &ex["liml_cov"]);
 
@@ -66,7 +74,14 @@ fn hac_matches_statsmodels_and_linearmodels() {
         stage.robust_f.statistic,
         &ex["first_stage_robust_f"],
     );
-    let ar = anderson_rubin(&y, &exog, &endog, &z, &cov, &none, 0.0, 0.95).expect("ar");
+    let ar = anderson_rubin(
+        IvColumns::new(&y, &exog, &endog, &z),
+        &cov,
+        &none,
+        0.0,
+        0.95,
+    )
+    .expect("ar");
     t.scalar("AR at 0", ar.test.statistic, &ex["ar_statistic_at_0"]);
     let j = hansen_j(&y, &exog, &endog, &z, &cov, &none)
         .expect("J")

@@ -5,6 +5,7 @@
 //! refits by the crate's own `ols` / `anderson_rubin` (themselves checked against
 //! statsmodels and linearmodels in `reference_tests`).
 
+use crate::estimate::IvColumns;
 use std::collections::HashSet;
 
 use nalgebra::{DMatrix, DVector};
@@ -426,7 +427,14 @@ fn randomization_ar_observed_matches_anderson_rubin() {
         CovSpec::Hc1,
         CovSpec::Cluster { ids: c1.clone() },
     ] {
-        let ar = anderson_rubin(&yy, &exog, &endog, &z, &spec, &Absorbed::NONE, 0.5, 0.95).unwrap();
+        let ar = anderson_rubin(
+            IvColumns::new(&yy, &exog, &endog, &z),
+            &spec,
+            &Absorbed::NONE,
+            0.5,
+            0.95,
+        )
+        .unwrap();
         let r = randomization_ar(
             &yy,
             &exog,
