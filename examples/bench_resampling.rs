@@ -56,10 +56,8 @@ fn main() {
 
     let start = Instant::now();
     let wild = wild_cluster_bootstrap(
-        &y,
-        &x,
-        0,
-        0.0,
+        sworn::estimate::OlsColumns::new(&y, &x),
+        sworn::estimate::Tested::new(0, 0.0),
         &clusters,
         Weights::Rademacher,
         &draws,
@@ -79,10 +77,8 @@ fn main() {
 
     let start = Instant::now();
     let ri = randomization_test(
-        &y,
-        &x,
-        0,
-        0.0,
+        sworn::estimate::OlsColumns::new(&y, &x),
+        sworn::estimate::Tested::new(0, 0.0),
         &CovSpec::Cluster {
             ids: clusters.clone(),
         },

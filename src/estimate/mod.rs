@@ -80,7 +80,7 @@ pub use qr::collinear_columns;
 pub use resample::{
     count_assignments, randomization_ar, randomization_interval, randomization_test,
     wild_cluster_bootstrap, wild_restricted_efficient, AssignmentDesign, Draws, IntervalProblem,
-    RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Weights,
+    OlsColumns, RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Tested, Weights,
     DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
 };
 pub use summaries::{

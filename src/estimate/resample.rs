@@ -55,6 +55,7 @@ mod reference_tests;
 #[cfg(test)]
 mod tests;
 
+use nalgebra::{DMatrix, DVector};
 use rayon::prelude::*;
 
 use super::EstimateError;
@@ -64,6 +65,34 @@ pub use interval::{randomization_interval, IntervalProblem, RandomizationInterva
 pub use randomization::{randomization_ar, randomization_test, RiStatistic};
 pub use wild::{wild_cluster_bootstrap, Weights};
 pub use wre::wild_restricted_efficient;
+
+/// The columns of a least-squares problem a resampled test refits, borrowed: the outcome
+/// and the regressors.
+#[derive(Debug, Clone, Copy)]
+pub struct OlsColumns<'a> {
+    pub y: &'a DVector<f64>,
+    pub x: &'a DMatrix<f64>,
+}
+
+impl<'a> OlsColumns<'a> {
+    pub fn new(y: &'a DVector<f64>, x: &'a DMatrix<f64>) -> Self {
+        OlsColumns { y, x }
+    }
+}
+
+/// The coefficient a resampled test is about (its column in the regressors) and the value
+/// the null hypothesis gives it.
+#[derive(Debug, Clone, Copy)]
+pub struct Tested {
+    pub index: usize,
+    pub null: f64,
+}
+
+impl Tested {
+    pub fn new(index: usize, null: f64) -> Self {
+        Tested { index, null }
+    }
+}
 
 /// Relative tolerance under which two statistics count as tied (tied draws count as at
 /// least as extreme): one value for single resampled p-values and the step-down.

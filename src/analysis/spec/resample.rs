@@ -161,10 +161,7 @@ impl Test<'_> {
         let err = |e| self.error(e);
         if spec.estimator != Estimator::Ols {
             return estimate::randomization_ar(
-                &d.y,
-                &p.exog,
-                &p.focal,
-                &p.instruments,
+                crate::estimate::IvColumns::new(&d.y, &p.exog, &p.focal, &p.instruments),
                 self.need.null,
                 cov,
                 &d.absorbed,
@@ -180,10 +177,8 @@ impl Test<'_> {
             estimate::RiStatistic::Estimate
         };
         let test = estimate::randomization_test(
-            &d.y,
-            &self.x,
-            self.index,
-            self.need.null,
+            crate::estimate::OlsColumns::new(&d.y, &self.x),
+            crate::estimate::Tested::new(self.index, self.need.null),
             cov,
             &d.absorbed,
             &design,
@@ -248,10 +243,7 @@ impl Test<'_> {
         };
         let test = if spec.estimator == Estimator::Tsls {
             estimate::wild_restricted_efficient(
-                &d.y,
-                &p.exog,
-                &p.focal,
-                &p.instruments,
+                crate::estimate::IvColumns::new(&d.y, &p.exog, &p.focal, &p.instruments),
                 self.need.null,
                 ids,
                 weights,
@@ -260,10 +252,8 @@ impl Test<'_> {
             )
         } else {
             estimate::wild_cluster_bootstrap(
-                &d.y,
-                &self.x,
-                self.index,
-                self.need.null,
+                crate::estimate::OlsColumns::new(&d.y, &self.x),
+                crate::estimate::Tested::new(self.index, self.need.null),
                 ids,
                 weights,
                 &self.draws,

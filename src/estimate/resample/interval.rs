@@ -66,10 +66,8 @@ pub struct IntervalProblem<'a> {
 impl IntervalProblem<'_> {
     fn p_value(&self, null: f64) -> Result<f64, ResampleError> {
         let (observed, stats, exact) = randomization_statistics(
-            self.y,
-            self.x,
-            self.treatment,
-            null,
+            crate::estimate::OlsColumns::new(self.y, self.x),
+            crate::estimate::Tested::new(self.treatment, null),
             self.cov,
             self.absorbed,
             self.design,

@@ -8,16 +8,17 @@
 //! The controls are partialled out once (module `partial`); under a cluster-randomised design
 //! each draw is fitted from cell-level statistics (module `cells`).
 
-use nalgebra::{DMatrix, DVector};
+use nalgebra::DMatrix;
 
 use super::super::covariance::CovSpec;
-use super::super::linear::validate;
+use super::super::linear::{validate, IvColumns};
 use super::super::wald::wald;
 use super::super::{Absorbed, EstimateError};
 use super::assignment::{Assigner, AssignmentDesign};
 use super::cells::Cells;
 use super::partial::{Partialled, ZFit};
 use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
+use super::{OlsColumns, Tested};
 
 /// The statistic of a randomization test for one coefficient.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -124,38 +125,38 @@ where
 /// clusters, leverage), [`EstimateError::IndexOutOfRange`] for `treatment`, design errors,
 /// [`ResampleError::ObservedNotFinite`] when the observed statistic is undefined,
 /// [`ResampleError::NoDraws`].
-#[allow(clippy::too_many_arguments)]
 pub fn randomization_test(
-    y: &DVector<f64>,
-    x: &DMatrix<f64>,
-    treatment: usize,
-    null: f64,
+    cols: OlsColumns,
+    tested: Tested,
     cov: &CovSpec,
     absorbed: &Absorbed,
     design: &AssignmentDesign,
     statistic: RiStatistic,
     plan: &Draws,
 ) -> Result<ResampleResult, ResampleError> {
-    let (observed, stats, exact) = randomization_statistics(
-        y, x, treatment, null, cov, absorbed, design, statistic, plan,
-    )?;
+    let (observed, stats, exact) =
+        randomization_statistics(cols, tested, cov, absorbed, design, statistic, plan)?;
     Ok(summarise(observed, &stats, exact))
 }
 
 /// [`randomization_test`] before summarising: the observed statistic, every draw's
 /// statistic in draw order, and whether the draws were enumerated.
-#[allow(clippy::too_many_arguments)]
 pub(crate) fn randomization_statistics(
-    y: &DVector<f64>,
-    x: &DMatrix<f64>,
-    treatment: usize,
-    null: f64,
+    cols: OlsColumns,
+    tested: Tested,
     cov: &CovSpec,
     absorbed: &Absorbed,
     design: &AssignmentDesign,
     statistic: RiStatistic,
     plan: &Draws,
 ) -> Result<DrawStats, ResampleError> {
+    let (
+        OlsColumns { y, x },
+        Tested {
+            index: treatment,
+            null,
+        },
+    ) = (cols, tested);
     validate(y, &[("x", x)])?;
     let k = x.ncols();
     if treatment >= k {
@@ -207,45 +208,34 @@ pub(crate) fn randomization_statistics(
 /// As [`randomization_test`]; [`EstimateError::DimensionMismatch`] unless `endog` has one
 /// column; [`EstimateError::InstrumentsRankDeficient`] when the observed M_W Z is rank
 /// deficient; [`EstimateError::SingularCovariance`] for a singular observed V.
-#[allow(clippy::too_many_arguments)]
 pub fn randomization_ar(
-    y: &DVector<f64>,
-    exog: &DMatrix<f64>,
-    endog: &DMatrix<f64>,
-    instruments: &DMatrix<f64>,
+    data: IvColumns,
     beta0: f64,
     cov: &CovSpec,
     absorbed: &Absorbed,
     design: &AssignmentDesign,
     plan: &Draws,
 ) -> Result<ResampleResult, ResampleError> {
-    let (observed, stats, exact) = randomization_ar_statistics(
-        y,
-        exog,
-        endog,
-        instruments,
-        beta0,
-        cov,
-        absorbed,
-        design,
-        plan,
-    )?;
+    let (observed, stats, exact) =
+        randomization_ar_statistics(data, beta0, cov, absorbed, design, plan)?;
     Ok(summarise(observed, &stats, exact))
 }
 
 /// [`randomization_ar`] before summarising (see [`randomization_statistics`]).
-#[allow(clippy::too_many_arguments)]
 pub(crate) fn randomization_ar_statistics(
-    y: &DVector<f64>,
-    exog: &DMatrix<f64>,
-    endog: &DMatrix<f64>,
-    instruments: &DMatrix<f64>,
+    data: IvColumns,
     beta0: f64,
     cov: &CovSpec,
     absorbed: &Absorbed,
     design: &AssignmentDesign,
     plan: &Draws,
 ) -> Result<DrawStats, ResampleError> {
+    let IvColumns {
+        y,
+        exog,
+        endog,
+        instruments,
+    } = data;
     validate(
         y,
         &[

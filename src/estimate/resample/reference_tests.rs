@@ -132,10 +132,11 @@ fn randomization_matches_brute_force() {
             _ => RiStatistic::Estimate,
         };
         let (observed, stats, exact) = randomization_statistics(
-            &vector(&case["y"]),
-            &matrix(&case["x"]),
-            case["treatment"].as_u64().unwrap() as usize,
-            case["null"].as_f64().unwrap(),
+            crate::estimate::OlsColumns::new(&vector(&case["y"]), &matrix(&case["x"])),
+            crate::estimate::Tested::new(
+                case["treatment"].as_u64().unwrap() as usize,
+                case["null"].as_f64().unwrap(),
+            ),
             &cov(&case["cov"]),
             &Absorbed::NONE,
             &design(&case["design"]),
@@ -156,10 +157,12 @@ fn randomization_ar_matches_brute_force() {
     for case in fixture("resample_ar.json") {
         let endog = vector(&case["endog"]);
         let (observed, stats, exact) = randomization_ar_statistics(
-            &vector(&case["y"]),
-            &matrix(&case["exog"]),
-            &DMatrix::from_column_slice(endog.len(), 1, endog.as_slice()),
-            &matrix(&case["instruments"]),
+            crate::estimate::IvColumns::new(
+                &vector(&case["y"]),
+                &matrix(&case["exog"]),
+                &DMatrix::from_column_slice(endog.len(), 1, endog.as_slice()),
+                &matrix(&case["instruments"]),
+            ),
             case["beta0"].as_f64().unwrap(),
             &cov(&case["cov"]),
             &Absorbed::NONE,
@@ -183,10 +186,11 @@ fn wild_bootstrap_matches_brute_force() {
             _ => Weights::Webb,
         };
         let (observed, stats, exact) = wild_statistics(
-            &vector(&case["y"]),
-            &matrix(&case["x"]),
-            case["coef_index"].as_u64().unwrap() as usize,
-            case["null"].as_f64().unwrap(),
+            crate::estimate::OlsColumns::new(&vector(&case["y"]), &matrix(&case["x"])),
+            crate::estimate::Tested::new(
+                case["coef_index"].as_u64().unwrap() as usize,
+                case["null"].as_f64().unwrap(),
+            ),
             &ids(&case["clusters"]),
             weights,
             &EXACT,

@@ -213,10 +213,11 @@ fn random_plan(draws: usize, seed: u64) -> Draws {
 
 fn ri_run(case: &serde_json::Value, plan: &Draws) -> ResampleResult {
     randomization_test(
-        &vector(&case["y"]),
-        &matrix(&case["x"]),
-        case["treatment"].as_u64().unwrap() as usize,
-        case["null"].as_f64().unwrap(),
+        crate::estimate::OlsColumns::new(&vector(&case["y"]), &matrix(&case["x"])),
+        crate::estimate::Tested::new(
+            case["treatment"].as_u64().unwrap() as usize,
+            case["null"].as_f64().unwrap(),
+        ),
         &cov(&case["cov"]),
         &Absorbed::NONE,
         &design(&case["design"]),
@@ -228,10 +229,11 @@ fn ri_run(case: &serde_json::Value, plan: &Draws) -> ResampleResult {
 
 fn wild_run(case: &serde_json::Value, plan: &Draws) -> ResampleResult {
     wild_cluster_bootstrap(
-        &vector(&case["y"]),
-        &matrix(&case["x"]),
-        case["coef_index"].as_u64().unwrap() as usize,
-        case["null"].as_f64().unwrap(),
+        crate::estimate::OlsColumns::new(&vector(&case["y"]), &matrix(&case["x"])),
+        crate::estimate::Tested::new(
+            case["coef_index"].as_u64().unwrap() as usize,
+            case["null"].as_f64().unwrap(),
+        ),
         &ids(&case["clusters"]),
         Weights::Rademacher,
         plan,
@@ -267,10 +269,8 @@ fn random_draws_are_deterministic() {
     let stats = |threads| {
         pool(threads).install(|| {
             wild_statistics(
-                &vector(&wcase["y"]),
-                &matrix(&wcase["x"]),
-                1,
-                0.0,
+                crate::estimate::OlsColumns::new(&vector(&wcase["y"]), &matrix(&wcase["x"])),
+                crate::estimate::Tested::new(1, 0.0),
                 &ids(&wcase["clusters"]),
                 Weights::Webb,
                 &plan,
@@ -323,10 +323,8 @@ fn no_draws_is_an_error() {
         exact_below: 10,
     };
     let err = randomization_test(
-        &vector(&case["y"]),
-        &matrix(&case["x"]),
-        1,
-        0.0,
+        crate::estimate::OlsColumns::new(&vector(&case["y"]), &matrix(&case["x"])),
+        crate::estimate::Tested::new(1, 0.0),
         &CovSpec::Hc1,
         &Absorbed::NONE,
         &AssignmentDesign::Complete,
@@ -380,10 +378,8 @@ fn partialled_fit_matches_full_refit() {
     for spec in &specs {
         for null in [0.0, 0.25] {
             let (obs, stats, _) = randomization_statistics(
-                &y,
-                &x,
-                1,
-                null,
+                crate::estimate::OlsColumns::new(&y, &x),
+                crate::estimate::Tested::new(1, null),
                 spec,
                 &Absorbed::NONE,
                 &AssignmentDesign::Complete,
@@ -436,10 +432,7 @@ fn randomization_ar_observed_matches_anderson_rubin() {
         )
         .unwrap();
         let r = randomization_ar(
-            &yy,
-            &exog,
-            &endog,
-            &z,
+            crate::estimate::IvColumns::new(&yy, &exog, &endog, &z),
             0.5,
             &spec,
             &Absorbed::NONE,
@@ -472,10 +465,8 @@ fn wild_all_ones_draw_is_observed() {
     .unwrap();
     let want = (fit.coef[2] - 0.9) / fit.cov[(2, 2)].sqrt();
     let (obs, stats, exact) = wild_statistics(
-        &y,
-        &x,
-        2,
-        0.9,
+        crate::estimate::OlsColumns::new(&y, &x),
+        crate::estimate::Tested::new(2, 0.9),
         &c1,
         Weights::Rademacher,
         &EXACT,
@@ -526,10 +517,8 @@ fn absorbed_block_effects_match_dummies() {
         leverage: None,
     };
     let r = randomization_test(
-        &ys,
-        &xs,
-        0,
-        0.0,
+        crate::estimate::OlsColumns::new(&ys, &xs),
+        crate::estimate::Tested::new(0, 0.0),
         &CovSpec::Hc1,
         &absorbed,
         &design(&case["design"]),

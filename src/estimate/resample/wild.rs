@@ -35,6 +35,7 @@ use super::super::qr::PivotedQr;
 use super::super::refine::residual;
 use super::super::{Absorbed, EstimateError};
 use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
+use super::{OlsColumns, Tested};
 
 /// The distribution of the cluster weights.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -108,35 +109,36 @@ pub(super) fn weight_draws(
 /// cluster ids, G ≥ 2); [`EstimateError::IndexOutOfRange`]; a non-finite `null`
 /// ([`EstimateError::NotFinite`]); [`ResampleError::ObservedNotFinite`];
 /// [`ResampleError::NoDraws`].
-#[allow(clippy::too_many_arguments)]
 pub fn wild_cluster_bootstrap(
-    y: &DVector<f64>,
-    x: &DMatrix<f64>,
-    coef_index: usize,
-    null: f64,
+    cols: OlsColumns,
+    tested: Tested,
     clusters: &[usize],
     weights: Weights,
     plan: &Draws,
     absorbed: &Absorbed,
 ) -> Result<ResampleResult, ResampleError> {
     let (observed, stats, exact) =
-        wild_statistics(y, x, coef_index, null, clusters, weights, plan, absorbed)?;
+        wild_statistics(cols, tested, clusters, weights, plan, absorbed)?;
     Ok(summarise(observed, &stats, exact))
 }
 
 /// [`wild_cluster_bootstrap`] before summarising: the observed t, every draw's t* in draw
 /// order, and whether the weight vectors were enumerated.
-#[allow(clippy::too_many_arguments)]
 pub(crate) fn wild_statistics(
-    y: &DVector<f64>,
-    x: &DMatrix<f64>,
-    coef_index: usize,
-    null: f64,
+    cols: OlsColumns,
+    tested: Tested,
     clusters: &[usize],
     weights: Weights,
     plan: &Draws,
     absorbed: &Absorbed,
 ) -> Result<DrawStats, ResampleError> {
+    let (
+        OlsColumns { y, x },
+        Tested {
+            index: coef_index,
+            null,
+        },
+    ) = (cols, tested);
     validate(y, &[("x", x)])?;
     let (n, k) = x.shape();
     if coef_index >= k {

@@ -33,7 +33,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::super::covariance::{densify, CovSpec};
-use super::super::linear::{hcat, iv_setup, tsls, tsls_from, IvSetup};
+use super::super::linear::{hcat, iv_setup, tsls, tsls_from, IvColumns, IvSetup};
 use super::super::qr::PivotedQr;
 use super::super::refine::residual;
 use super::super::{Absorbed, EstimateError};
@@ -70,46 +70,34 @@ fn fit(x: &DMatrix<f64>, y: &DVector<f64>) -> Result<(DVector<f64>, DVector<f64>
 /// ([`EstimateError::NotFinite`]); [`EstimateError::RankDeficient`] when the restricted
 /// residuals ũ lie in the span of [Z, W] (the efficient reduced form is then undefined);
 /// [`ResampleError::ObservedNotFinite`]; [`ResampleError::NoDraws`].
-#[allow(clippy::too_many_arguments)]
 pub fn wild_restricted_efficient(
-    y: &DVector<f64>,
-    exog: &DMatrix<f64>,
-    endog: &DMatrix<f64>,
-    instruments: &DMatrix<f64>,
+    data: IvColumns,
     null: f64,
     clusters: &[usize],
     weights: Weights,
     plan: &Draws,
     absorbed: &Absorbed,
 ) -> Result<ResampleResult, ResampleError> {
-    let (observed, stats, exact) = wre_statistics(
-        y,
-        exog,
-        endog,
-        instruments,
-        null,
-        clusters,
-        weights,
-        plan,
-        absorbed,
-    )?;
+    let (observed, stats, exact) = wre_statistics(data, null, clusters, weights, plan, absorbed)?;
     Ok(summarise(observed, &stats, exact))
 }
 
 /// [`wild_restricted_efficient`] before summarising: the observed t, every draw's t* in
 /// draw order, and whether the weight vectors were enumerated.
-#[allow(clippy::too_many_arguments)]
 pub(crate) fn wre_statistics(
-    y: &DVector<f64>,
-    exog: &DMatrix<f64>,
-    endog: &DMatrix<f64>,
-    instruments: &DMatrix<f64>,
+    data: IvColumns,
     null: f64,
     clusters: &[usize],
     weights: Weights,
     plan: &Draws,
     absorbed: &Absorbed,
 ) -> Result<DrawStats, ResampleError> {
+    let IvColumns {
+        y,
+        exog,
+        endog,
+        instruments,
+    } = data;
     if endog.ncols() != 1 {
         return Err(EstimateError::DimensionMismatch {
             what: "endog (columns)",
@@ -225,10 +213,7 @@ mod tests {
         for case in cases {
             let (y, exog, endog, z, null, cl, weights) = case_inputs(&case);
             let r = wild_restricted_efficient(
-                &y,
-                &exog,
-                &endog,
-                &z,
+                crate::estimate::IvColumns::new(&y, &exog, &endog, &z),
                 null,
                 &cl,
                 weights,
@@ -268,10 +253,7 @@ mod tests {
         for case in fixture("resample_wre.json") {
             let (y, exog, endog, z, null, cl, weights) = case_inputs(&case);
             let (observed, stats, exact) = wre_statistics(
-                &y,
-                &exog,
-                &endog,
-                &z,
+                crate::estimate::IvColumns::new(&y, &exog, &endog, &z),
                 null,
                 &cl,
                 weights,
@@ -302,10 +284,7 @@ mod tests {
             .unwrap()
             .install(|| {
                 wild_restricted_efficient(
-                    &y,
-                    &exog,
-                    &endog,
-                    &z,
+                    crate::estimate::IvColumns::new(&y, &exog, &endog, &z),
                     null,
                     &cl,
                     weights,
@@ -351,10 +330,7 @@ mod tests {
         let (y, exog, endog, z, null, cl, weights) = case_inputs(case);
         let run = |endog: &DMatrix<f64>, null: f64, plan: &Draws, cl: &[usize]| {
             wild_restricted_efficient(
-                &y,
-                &exog,
-                endog,
-                &z,
+                crate::estimate::IvColumns::new(&y, &exog, endog, &z),
                 null,
                 cl,
                 weights,
@@ -392,10 +368,7 @@ mod tests {
         let mut bad = y.clone();
         bad[0] = f64::INFINITY;
         assert!(wild_restricted_efficient(
-            &bad,
-            &exog,
-            &endog,
-            &z,
+            crate::estimate::IvColumns::new(&bad, &exog, &endog, &z),
             null,
             &cl,
             weights,
