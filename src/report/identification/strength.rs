@@ -78,23 +78,30 @@ fn first_stage_rows(
         }
         .into(),
     });
-    rows.push(TypedEvidence {
-        test: Words::PartialR2 { of: of() }.into(),
-        statistic: num(fs.partial_r_squared),
-        reference: "—".into(),
-        threshold: "—".into(),
-        reading: Words::PartialShare { x: x.to_string() }.into(),
-    });
+    rows.push(share_row(
+        Words::PartialR2 { of: of() },
+        fs.partial_r_squared,
+        Words::PartialShare { x: x.to_string() },
+    ));
     if several {
-        rows.push(TypedEvidence {
-            test: Words::SheaR2 { of: of() }.into(),
-            statistic: num(fs.shea_partial_r_squared),
-            reference: "—".into(),
-            threshold: "—".into(),
-            reading: Words::SheaShare.into(),
-        });
+        rows.push(share_row(
+            Words::SheaR2 { of: of() },
+            fs.shea_partial_r_squared,
+            Words::SheaShare,
+        ));
     }
     rows
+}
+
+/// A row stating a share (a partial R²), which has no reference distribution or p-value.
+fn share_row(test: Words, value: f64, reading: Words) -> TypedEvidence {
+    TypedEvidence {
+        test: test.into(),
+        statistic: num(value),
+        reference: "—".into(),
+        threshold: "—".into(),
+        reading: reading.into(),
+    }
 }
 
 /// The effective first-stage F against its critical value.
