@@ -37,15 +37,10 @@ fn check_case(case: &str) {
             .flat_map(|p| [p[0].as_f64(), p[1].as_f64()])
             .flatten()
             .collect();
+        let cols = IvColumns::new(&y, &exog, &endog, &z);
         let mut grid = vec![beta0];
         grid.extend(&ends);
-        let curve = anderson_rubin_curve(
-            IvColumns::new(&y, &exog, &endog, &z),
-            &spec,
-            &Absorbed::NONE,
-            &grid,
-        )
-        .expect("curve");
+        let curve = anderson_rubin_curve(cols, &spec, &Absorbed::NONE, &grid).expect("curve");
         t.scalar(
             &format!("curve at beta0 {kind}"),
             curve[0].expect("finite"),
@@ -60,22 +55,9 @@ fn check_case(case: &str) {
         }
         // Every point of a wide grid equals the single-null test.
         let grid: Vec<f64> = (0..41).map(|i| -10.0 + 0.5 * i as f64 + 0.013).collect();
-        let curve = anderson_rubin_curve(
-            IvColumns::new(&y, &exog, &endog, &z),
-            &spec,
-            &Absorbed::NONE,
-            &grid,
-        )
-        .expect("curve");
+        let curve = anderson_rubin_curve(cols, &spec, &Absorbed::NONE, &grid).expect("curve");
         for (b, v) in grid.iter().zip(&curve) {
-            let single = anderson_rubin(
-                IvColumns::new(&y, &exog, &endog, &z),
-                &spec,
-                &Absorbed::NONE,
-                *b,
-                level,
-            )
-            .expect("ar");
+            let single = anderson_rubin(cols, &spec, &Absorbed::NONE, *b, level).expect("ar");
             t.scalar(
                 &format!("curve against the single-null test {kind}"),
                 v.expect("finite"),
