@@ -123,9 +123,23 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
     Ok((n_sample, kept))
 }
 
+/// Rows with every variable but the weight, for a specification whose plan says a missing
+/// weight stops the run: the first such row in file order.
+fn first_row_missing_weight(table: &Table, spec: &Spec, kept: &[usize]) -> Option<usize> {
+    let w = table.numeric.get(spec.weights.as_ref()?)?;
+    kept.iter().copied().find(|&r| w[r].is_none())
+}
+
+/// The numeric columns whose missing values leave a row out: every variable, and the weight
+/// unless a missing weight stops the run instead (checked on the rows kept without it).
 fn used_numeric(spec: &Spec) -> Vec<String> {
     let mut v = vec![spec.outcome.clone()];
-    v.extend(spec.weights.iter().cloned());
+    v.extend(
+        spec.weights
+            .iter()
+            .filter(|_| !spec.stop_on_missing_weight)
+            .cloned(),
+    );
     v.extend(
         spec.focal()
             .iter()
@@ -169,6 +183,11 @@ fn group_index(values: &Labels, rows: &[usize], spec: &Spec) -> Result<(Vec<usiz
 /// Build the design of `spec` from `table` (read from `source`).
 pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design> {
     let (n_sample, mut rows) = kept_rows(table, spec)?;
+    if let Some(r) =
+        first_row_missing_weight(table, spec, &rows).filter(|_| spec.stop_on_missing_weight)
+    {
+        return Err(super::weights::missing_weight(table, source, spec, r));
+    }
     let (weights, zero_weights) = super::weights::sample_weights(table, source, spec, &mut rows)?;
     let mut groups = Vec::new();
     for fe in &spec.fixed_effects {

@@ -10,6 +10,19 @@ use crate::error::{Error, Result};
 use crate::plan::{DataSource, Spec};
 use nalgebra::DVector;
 
+/// The error for a used row without a weight when the plan says `on_missing_weight = "stop"`.
+pub(super) fn missing_weight(table: &Table, source: &DataSource, spec: &Spec, r: usize) -> Error {
+    Error::Estimation {
+        spec: spec.id.clone(),
+        message: format!(
+            "weights column `{}` is missing at {} of data table `{}`, a row the specification uses, and the plan says on_missing_weight = \"stop\": supply the weight, exclude the row with `sample`, or set on_missing_weight = \"leave-out\"",
+            spec.weights.as_deref().unwrap_or_default(),
+            row_place(source, r),
+            table.id
+        ),
+    }
+}
+
 /// The weights of the rows kept, after dropping zero-weight rows from `rows`; with the
 /// number dropped. `None` (and 0) for an unweighted specification.
 pub(super) fn sample_weights(

@@ -537,6 +537,9 @@ pub struct Spec {
     pub worst_case_bias: f64,
     /// Probability-weight column (rows scaled by √w; sandwich errors only).
     pub weights: Option<String>,
+    /// A row the specification would use but whose weight is missing stops the run (true)
+    /// or leaves the sample like any missing value (false, the default).
+    pub stop_on_missing_weight: bool,
 }
 
 impl Spec {

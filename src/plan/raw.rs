@@ -307,6 +307,8 @@ pub struct RawSpec {
     pub confidence: Option<Spanned<f64>>,
     /// Probability weights: a numeric column declared in the table's schema.
     pub weights: Option<Spanned<String>>,
+    /// A used row without a weight: "leave-out" (default) | "stop".
+    pub on_missing_weight: Option<Spanned<String>>,
 }
 
 /// `[[contingency]]`.

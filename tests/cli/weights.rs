@@ -5,7 +5,7 @@
 //! 1e-8; a missing weight leaves its row out, a zero weight is counted, a negative weight is
 //! an error naming the column and the line.
 
-use crate::common::Study;
+use crate::common::{Edit, Study};
 use crate::reference::{close, fixture};
 use serde_json::Value;
 use std::fmt::Write;
@@ -261,6 +261,56 @@ fn a_negative_weight_is_an_error_naming_its_line() {
         r.stderr.contains("`w`")
             && r.stderr.contains("line 5")
             && r.stderr.contains("zero or positive"),
+        "{}",
+        r.stderr
+    );
+    assert!(
+        !s.path("out/results.json").exists(),
+        "no half-written output"
+    );
+}
+
+#[test]
+fn a_missing_weight_leaves_its_row_out_or_stops_the_run_as_the_plan_says() {
+    let f = fixture("weights.json");
+    let text = csv(&f);
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    // Row index 5 is CSV line 7; its weight (the last field) is left empty.
+    let cut = lines[6].rfind(',').expect("fields");
+    lines[6] = format!("{},", &lines[6][..cut]);
+    let data = lines.join("\n") + "\n";
+    // Default: the row leaves the sample like any missing value, and is counted.
+    let s = Study::with(PLAN, &data);
+    let r = s.seal_and_run();
+    let full = Study::with(
+        PLAN,
+        &(text.clone() + if text.ends_with('\n') { "" } else { "\n" }),
+    )
+    .seal_and_run();
+    let (first, missing) = (&full["specifications"], &r["specifications"]);
+    let id = first
+        .as_object()
+        .and_then(|m| m.keys().next().cloned())
+        .expect("a specification");
+    assert_eq!(
+        missing[&id]["n"].as_u64(),
+        first[&id]["n"].as_u64().map(|n| n - 1)
+    );
+    let dropped = |r: &Value| r[&id]["sample"]["dropped_missing"].as_u64();
+    assert_eq!(dropped(missing), dropped(first).map(|d| d + 1));
+    // on_missing_weight = "stop": the run fails naming the column and the line.
+    let plan = PLAN.edit_first(
+        "weights = \"w\"",
+        "weights = \"w\"\non_missing_weight = \"stop\"",
+    );
+    let s = Study::with(&plan, &data);
+    assert_eq!(s.sworn(&["seal", "plan.toml"]).code, 0);
+    let r = s.sworn(&["run", "plan.toml", "--out", "out"]);
+    assert_ne!(r.code, 0, "a missing weight must stop the run");
+    assert!(
+        r.stderr.contains("`w`")
+            && r.stderr.contains("line 7")
+            && r.stderr.contains("on_missing_weight"),
         "{}",
         r.stderr
     );

@@ -123,6 +123,7 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
         fuller_k,
         worst_case_bias,
         weights: weights(ctx, s, table, &key("weights"))?,
+        stop_on_missing_weight: on_missing_weight(ctx, s, &key("on_missing_weight"))?,
     };
     check_shape(ctx, s, &spec)?;
     Ok(spec)
@@ -255,6 +256,23 @@ fn diagnostics(ctx: &Ctx, s: &RawSpec, estimator: Estimator, key: &str) -> Resul
     out.sort();
     out.dedup();
     Ok(out)
+}
+
+/// `on_missing_weight`: whether a used row without a weight stops the run; only with
+/// `weights`.
+fn on_missing_weight(ctx: &Ctx, s: &RawSpec, key: &str) -> Result<bool> {
+    let Some(v) = &s.on_missing_weight else {
+        return Ok(false);
+    };
+    if s.weights.is_none() {
+        return Err(ctx.at(
+            v,
+            key,
+            "on_missing_weight applies to a weighted specification: add weights = \"COLUMN\" or remove the key",
+        ));
+    }
+    ctx.one_of(v, key, &["leave-out", "stop"])?;
+    Ok(v.get_ref() == "stop")
 }
 
 fn on_collinear(ctx: &Ctx, s: &RawSpec, key: &str) -> Result<bool> {

@@ -623,6 +623,18 @@ fn weights_messages() {
             "hypothesis[H1].inference",
             "resampling with probability weights is not implemented",
         ),
+        (
+            hc1,
+            w("\non_missing_weight = \"drop\""),
+            "specification[ols].on_missing_weight",
+            "use one of `leave-out`, `stop`",
+        ),
+        (
+            hc1,
+            format!("{hc1}\non_missing_weight = \"stop\""),
+            "specification[ols].on_missing_weight",
+            "applies to a weighted specification",
+        ),
     ];
     for (anchor, with, key, says) in cases {
         let with = if key.starts_with("hypothesis") {
