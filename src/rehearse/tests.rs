@@ -404,10 +404,11 @@ fn the_mde_search_finds_the_closed_form_mde_of_a_two_arm_design_closely() {
     check_mde_search(4000);
 }
 
-/// Each range message of `[rehearsal]`'s counts and the undeclared simulated column names
-/// its key and the valid values (validation in `plan/validate/rehearsal.rs`).
+/// Each message of `[rehearsal]`'s validation (`plan/validate/rehearsal.rs`) names its key
+/// and says what is valid: the counts, the seed, the effects, each table's rows or baseline,
+/// the columns the analysis needs and the tables that exist.
 #[test]
-fn rehearsal_counts_and_columns_are_refused_with_their_key() {
+fn rehearsal_messages_name_their_key_and_the_fix() {
     let cases = [
         (
             "replications = 300",
@@ -432,6 +433,61 @@ fn rehearsal_counts_and_columns_are_refused_with_their_key() {
             "arm = \"assigned(0.5)\"\nmood = \"normal(0, 1)\"",
             "rehearsal.data.people.columns.mood",
             "is not a declared column of [data.people]",
+        ),
+        ("seed = 11", "seed = -1", "rehearsal.seed", "at least 0"),
+        (
+            "effects = [0.2, 0.3, 0.4]",
+            "effects = []",
+            "rehearsal.effects",
+            "list at least one effect size to simulate",
+        ),
+        (
+            "effects = [0.2, 0.3, 0.4]",
+            "effects = [0.0]",
+            "rehearsal.effects",
+            "at least one effect size above 0",
+        ),
+        (
+            "effects = [0.2, 0.3, 0.4]",
+            "effects = [0.3, 0.2]",
+            "rehearsal.effects",
+            "effects must increase from left to right; 0.2 follows 0.3",
+        ),
+        (
+            "rows = 200",
+            "rows = 1",
+            "rehearsal.data.people.rows",
+            "from 2 to 10000000",
+        ),
+        (
+            "rows = 200",
+            "rows = 200\nbaseline = \"b.csv\"",
+            "rehearsal.data.people.rows",
+            "rows cannot be given with baseline",
+        ),
+        (
+            "rows = 200",
+            "baseline = \" \"",
+            "rehearsal.data.people.baseline",
+            "baseline is empty",
+        ),
+        (
+            "rows = 200\n",
+            "",
+            "rehearsal.data.people",
+            "say how many rows to simulate",
+        ),
+        (
+            "y = \"effect * arm + normal(0, 1)\"\n",
+            "",
+            "rehearsal.data.people.columns",
+            "the analysis uses column `y` of [data.people]",
+        ),
+        (
+            "[rehearsal.data.people]\nrows = 200",
+            "[rehearsal.data.people]\nrows = 200\n[rehearsal.data.others]\nrows = 5\n[rehearsal.data.others.columns]\nq = \"normal(0, 1)\"",
+            "rehearsal.data.others",
+            "there is no data table `others` to simulate",
         ),
     ];
     for (anchor, with, key, says) in cases {
