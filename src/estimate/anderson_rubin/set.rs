@@ -115,37 +115,12 @@ impl Problem<'_> {
             };
             Ok(self.ar_direction(&basis, cy, cx)? - c)
         };
-        let thetas: Vec<f64> = (0..=GRID)
-            .map(|j| -half_pi + std::f64::consts::PI * j as f64 / GRID as f64)
-            .collect();
+        let thetas = theta_grid(GRID);
         let values = thetas
             .iter()
             .map(|&t| phi(t))
             .collect::<Result<Vec<f64>, _>>()?;
-        let mut roots = Vec::new();
-        for j in 0..GRID {
-            let (a, b) = (values[j], values[j + 1]);
-            if (a <= 0.0) != (b <= 0.0) {
-                roots.push(bisect(&phi, thetas[j], thetas[j + 1], a <= 0.0)?);
-            }
-        }
-        for j in 1..GRID {
-            let (a, m, b) = (values[j - 1], values[j], values[j + 1]);
-            let same = (a <= 0.0) == (m <= 0.0) && (m <= 0.0) == (b <= 0.0);
-            let minimum = m <= a && m <= b && m > 0.0;
-            let maximum = m >= a && m >= b && m <= 0.0;
-            if !same || !(minimum || maximum) {
-                continue;
-            }
-            let sign = if minimum { 1.0 } else { -1.0 };
-            let (t_star, v_star) = golden(&|t| Ok(sign * phi(t)?), thetas[j - 1], thetas[j + 1])?;
-            if sign * v_star < 0.0 && minimum || sign * v_star > 0.0 && maximum {
-                // The extremum crosses c: one boundary point on each side.
-                roots.push(bisect(&phi, thetas[j - 1], t_star, m <= 0.0)?);
-                roots.push(bisect(&phi, t_star, thetas[j + 1], m > 0.0)?);
-            }
-        }
-        roots.sort_by(f64::total_cmp);
+        let roots = scan_boundaries(&phi, &thetas, &values)?;
         let to_beta = |t: f64| basis.centre + basis.scale * t.tan();
         let inside_at_infinity = values[0] <= 0.0;
         let mut pieces = Vec::new();
@@ -214,16 +189,62 @@ pub(super) fn quadratic_set(a: f64, h: f64, k: f64, scale: f64) -> ConfidenceSet
     ConfidenceSet::normalised(pieces)
 }
 
+/// `n` + 1 equally spaced directions θ from −π/2 to π/2.
+pub(in crate::estimate) fn theta_grid(n: usize) -> Vec<f64> {
+    let half_pi = std::f64::consts::FRAC_PI_2;
+    (0..=n)
+        .map(|j| -half_pi + std::f64::consts::PI * j as f64 / n as f64)
+        .collect()
+}
+
+/// The boundary points, sorted, of {θ : φ(θ) ≤ 0} from φ's `values` on the grid `thetas`: a
+/// bisection at each sign change between neighbours, and a golden-section check of each
+/// interior extremum whose neighbours share its sign (an extremum that crosses zero between
+/// grid points gives one boundary point on each side).
+pub(in crate::estimate) fn scan_boundaries<F, E>(
+    phi: &F,
+    thetas: &[f64],
+    values: &[f64],
+) -> Result<Vec<f64>, E>
+where
+    F: Fn(f64) -> Result<f64, E>,
+{
+    let mut roots = Vec::new();
+    for j in 0..thetas.len() - 1 {
+        let (a, b) = (values[j], values[j + 1]);
+        if (a <= 0.0) != (b <= 0.0) {
+            roots.push(bisect(phi, thetas[j], thetas[j + 1], a <= 0.0)?);
+        }
+    }
+    for j in 1..thetas.len() - 1 {
+        let (a, m, b) = (values[j - 1], values[j], values[j + 1]);
+        let same = (a <= 0.0) == (m <= 0.0) && (m <= 0.0) == (b <= 0.0);
+        let minimum = m <= a && m <= b && m > 0.0;
+        let maximum = m >= a && m >= b && m <= 0.0;
+        if !same || !(minimum || maximum) {
+            continue;
+        }
+        let sign = if minimum { 1.0 } else { -1.0 };
+        let (t_star, v_star) = golden(&|t| Ok(sign * phi(t)?), thetas[j - 1], thetas[j + 1])?;
+        if sign * v_star < 0.0 && minimum || sign * v_star > 0.0 && maximum {
+            roots.push(bisect(phi, thetas[j - 1], t_star, m <= 0.0)?);
+            roots.push(bisect(phi, t_star, thetas[j + 1], m > 0.0)?);
+        }
+    }
+    roots.sort_by(f64::total_cmp);
+    Ok(roots)
+}
+
 /// Bisection for a sign change of `f` on [lo, hi]; `inside_lo` says whether f(lo) ≤ 0.
 /// Runs until the bracket cannot shrink (adjacent floats), at most 200 steps.
-pub(in crate::estimate) fn bisect<F>(
+pub(in crate::estimate) fn bisect<F, E>(
     f: &F,
     mut lo: f64,
     mut hi: f64,
     inside_lo: bool,
-) -> Result<f64, EstimateError>
+) -> Result<f64, E>
 where
-    F: Fn(f64) -> Result<f64, EstimateError>,
+    F: Fn(f64) -> Result<f64, E>,
 {
     for _ in 0..200 {
         let mid = 0.5 * (lo + hi);
@@ -240,13 +261,9 @@ where
 }
 
 /// Golden-section search for the minimum of `f` on [a, b]; returns (argmin, min).
-pub(in crate::estimate) fn golden<F>(
-    f: &F,
-    mut a: f64,
-    mut b: f64,
-) -> Result<(f64, f64), EstimateError>
+pub(in crate::estimate) fn golden<F, E>(f: &F, mut a: f64, mut b: f64) -> Result<(f64, f64), E>
 where
-    F: Fn(f64) -> Result<f64, EstimateError>,
+    F: Fn(f64) -> Result<f64, E>,
 {
     let ratio = 0.5 * (5f64.sqrt() - 1.0);
     let mut x1 = b - ratio * (b - a);

@@ -46,11 +46,12 @@ use nalgebra::DMatrix;
 
 use super::clr_p_value;
 use crate::distribution::Reference;
-use crate::estimate::anderson_rubin::{bisect, golden, ConfidenceSet};
+use crate::estimate::anderson_rubin::{bisect, scan_boundaries, theta_grid, ConfidenceSet};
 use crate::estimate::linear::{require_observations, IvProblem};
 use crate::estimate::refine::residual;
 use crate::estimate::{Absorbed, EstimateError};
 use crate::inference::quantile;
+use std::convert::Infallible;
 
 /// Grid cells in θ for the CLR scan.
 pub const CLR_GRID: usize = 1024;
@@ -277,14 +278,14 @@ impl Forms {
         }
         probes.push(0.5 * (prev + half_pi));
         probes.push(half_pi);
-        let f = |theta: f64| Ok(self.lm_excess(direction(theta), c));
+        // The statistics cannot fail here, so neither can the searches.
+        let f = |theta: f64| Ok::<f64, Infallible>(self.lm_excess(direction(theta), c));
         let mut boundaries = Vec::new();
         for w in probes.windows(2) {
             let (lo_in, hi_in) = (inside(w[0]), inside(w[1]));
             if lo_in != hi_in {
-                if let Ok(t) = bisect(&f, w[0], w[1], lo_in) {
-                    boundaries.push(t);
-                }
+                let Ok(t) = bisect(&f, w[0], w[1], lo_in);
+                boundaries.push(t);
             }
         }
         self.assemble(&boundaries, inside(half_pi))
@@ -292,42 +293,12 @@ impl Forms {
 
     /// The CLR set at level `alpha`.
     pub(super) fn clr_set(&self, alpha: f64) -> ConfidenceSet {
-        let half_pi = std::f64::consts::FRAC_PI_2;
-        let phi = |theta: f64| Ok(alpha - self.clr_at(direction(theta)).1);
-        let thetas: Vec<f64> = (0..=CLR_GRID)
-            .map(|j| -half_pi + std::f64::consts::PI * j as f64 / CLR_GRID as f64)
-            .collect();
-        let values: Vec<f64> = thetas
-            .iter()
-            .map(|&t| alpha - self.clr_at(direction(t)).1)
-            .collect();
-        let mut boundaries = Vec::new();
-        for j in 0..CLR_GRID {
-            let (a, b) = (values[j], values[j + 1]);
-            if (a <= 0.0) != (b <= 0.0) {
-                boundaries.extend(bisect(&phi, thetas[j], thetas[j + 1], a <= 0.0).ok());
-            }
-        }
-        for j in 1..CLR_GRID {
-            let (a, m, b) = (values[j - 1], values[j], values[j + 1]);
-            let same = (a <= 0.0) == (m <= 0.0) && (m <= 0.0) == (b <= 0.0);
-            let minimum = m <= a && m <= b && m > 0.0;
-            let maximum = m >= a && m >= b && m <= 0.0;
-            if !same || !(minimum || maximum) {
-                continue;
-            }
-            let sign = if minimum { 1.0 } else { -1.0 };
-            let Ok((t_star, v_star)) =
-                golden(&|t| Ok(sign * phi(t)?), thetas[j - 1], thetas[j + 1])
-            else {
-                continue;
-            };
-            if sign * v_star < 0.0 && minimum || sign * v_star > 0.0 && maximum {
-                boundaries.extend(bisect(&phi, thetas[j - 1], t_star, m <= 0.0).ok());
-                boundaries.extend(bisect(&phi, t_star, thetas[j + 1], m > 0.0).ok());
-            }
-        }
-        boundaries.sort_by(f64::total_cmp);
+        let excess = |theta: f64| alpha - self.clr_at(direction(theta)).1;
+        let phi = |theta: f64| Ok::<f64, Infallible>(excess(theta));
+        let thetas = theta_grid(CLR_GRID);
+        let values: Vec<f64> = thetas.iter().map(|&t| excess(t)).collect();
+        // The same scan as the Anderson–Rubin set's; the statistic cannot fail here.
+        let Ok(boundaries) = scan_boundaries(&phi, &thetas, &values);
         self.assemble(&boundaries, values[0] <= 0.0)
     }
 
