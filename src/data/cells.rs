@@ -29,6 +29,11 @@ pub(super) fn data_err(src: &DataSource, message: impl Into<String>) -> Error {
 /// file's SHA-256.
 pub(super) fn read_frame(src: &DataSource) -> Result<(DataFrame, String)> {
     check_exists_and_separator(src)?;
+    read_checked_frame(src)
+}
+
+/// [`read_frame`] once the file's existence and separator are checked.
+fn read_checked_frame(src: &DataSource) -> Result<(DataFrame, String)> {
     match src.format {
         DataFormat::Csv => {
             let bytes = read_bytes(src)?;
@@ -126,7 +131,8 @@ pub(super) fn read_cells(src: &DataSource, wanted: &[(&str, bool)]) -> Result<(C
     if let Some((plain, sha256)) = plain {
         return Ok((Cells::Plain(plain), sha256));
     }
-    read_frame(src).map(|(frame, sha)| (Cells::Frame(frame), sha))
+    // Not plain: read again from the start by the general reader (checked above).
+    read_checked_frame(src).map(|(frame, sha)| (Cells::Frame(frame), sha))
 }
 
 /// The file exists, and a CSV file's header line is split by the declared separator.

@@ -124,8 +124,12 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
 }
 
 /// Rows with every variable but the weight, for a specification whose plan says a missing
-/// weight stops the run: the first such row in file order.
+/// weight stops the run: the first such row in file order (`None` for any other
+/// specification, whose kept rows already have their weight).
 fn first_row_missing_weight(table: &Table, spec: &Spec, kept: &[usize]) -> Option<usize> {
+    if !spec.stop_on_missing_weight {
+        return None;
+    }
     let w = table.numeric.get(spec.weights.as_ref()?)?;
     kept.iter().copied().find(|&r| w[r].is_none())
 }
@@ -183,9 +187,7 @@ fn group_index(values: &Labels, rows: &[usize], spec: &Spec) -> Result<(Vec<usiz
 /// Build the design of `spec` from `table` (read from `source`).
 pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design> {
     let (n_sample, mut rows) = kept_rows(table, spec)?;
-    if let Some(r) =
-        first_row_missing_weight(table, spec, &rows).filter(|_| spec.stop_on_missing_weight)
-    {
+    if let Some(r) = first_row_missing_weight(table, spec, &rows) {
         return Err(super::weights::missing_weight(table, source, spec, r));
     }
     let (weights, zero_weights) = super::weights::sample_weights(table, source, spec, &mut rows)?;
