@@ -251,6 +251,9 @@ pub(crate) fn analyse(
     let none = spec::Needs::default();
     // Specifications are independent: fit them on all cores, then take the results (and the
     // first error) in plan order, so the output does not depend on which finished first.
+    // Those that factorise the same outcome-free matrices share the factorisations (module
+    // `estimate::shared`; the same bits as fitting each alone).
+    let sharing = crate::estimate::Sharing::begin();
     let fits: Vec<Result<spec::Fitted>> = plan
         .specifications
         .par_iter()
@@ -266,6 +269,7 @@ pub(crate) fn analyse(
             spec::fit_spec(s, &tables[&s.data], source, need, &rc)
         })
         .collect();
+    drop(sharing);
     for (s, f) in plan.specifications.iter().zip(fits) {
         let mut f = f?;
         spec_deviations(plan, s, &mut f, registered_specs, &mut devs);

@@ -14,11 +14,13 @@
 //! This file holds the first stages and the reduced form; `diagnostics/exogeneity.rs` the
 //! endogeneity and over-identification tests.
 
+use std::sync::Arc;
+
 use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::linear::{
-    assemble, hcat, instrument_qr, least_squares, require_observations, validate, IvProblem,
+    assemble, hcat, instrument_design, least_squares, require_observations, validate, IvProblem,
     IvSetup, LeastSquares,
 };
 use super::qr::PivotedQr;
@@ -84,12 +86,12 @@ fn inference_df(fit: &LinearFit) -> usize {
 }
 
 /// Least squares of `y` on `x` reusing an existing factorisation of `x`.
-fn solve_with(qr: &PivotedQr, x: &DMatrix<f64>, y: &DVector<f64>) -> LeastSquares {
+fn solve_with(qr: &Arc<PivotedQr>, x: &Arc<DMatrix<f64>>, y: &DVector<f64>) -> LeastSquares {
     let coef = qr.solve(x, y);
     let resid = residual(x, y, &coef);
     LeastSquares {
-        qr: qr.clone(),
-        design: x.clone(),
+        qr: Arc::clone(qr),
+        design: Arc::clone(x),
         coef,
         resid,
     }
@@ -231,7 +233,8 @@ pub fn reduced_form(
     validate(y, &[("exog", exog), ("instruments", instruments)])?;
     let z = hcat(instruments, exog);
     require_observations(z.nrows(), z.ncols() + absorbed.df)?;
-    let ls = solve_with(&instrument_qr(&z)?, &z, y);
+    let (z, zqr) = instrument_design(&z)?;
+    let ls = solve_with(&zqr, &z, y);
     assemble(y, &z, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
 }
 

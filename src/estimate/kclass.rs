@@ -53,6 +53,8 @@
 //! Coefficient order `[endog | exog]`; t statistics refer to t(n − k − a), or t(G − 1)
 //! when clustered, as for 2SLS.
 
+use std::sync::Arc;
+
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
 use super::covariance::{clamp_negative_eigenvalues, two_way_unclamped, CovSpec, Leverage};
@@ -179,10 +181,10 @@ impl IvProblem<'_> {
             &xhat + &vhat * (1.0 - kappa)
         };
         let coef = kclass_solve(y, &setup.x, &xk)?;
-        let qr_hat = PivotedQr::new(&xhat)?;
+        let (design, qr_hat) = super::shared::design_qr(&xhat)?;
         let ls = LeastSquares {
-            qr: qr_hat.clone(),
-            design: xhat.clone(),
+            qr: Arc::clone(&qr_hat),
+            design,
             coef,
             resid: DVector::zeros(0),
         };
@@ -225,7 +227,7 @@ fn liml_kappa(
     w.columns_mut(1, p).copy_from(endog);
     let mut a = w.clone();
     if exog.ncols() > 0 {
-        let exog_qr = PivotedQr::new(exog)?;
+        let exog_qr = super::shared::shared_qr(exog)?;
         for j in 0..=p {
             let col = a.column(j).into_owned();
             a.set_column(j, &(&col - exog_qr.project(&col)));

@@ -4,20 +4,23 @@
 //! the covariance estimators (module `covariance`). Invariants: every returned fit has
 //! n > k, full-rank regressors, and a covariance from the requested [`CovSpec`].
 
+use std::sync::Arc;
+
 use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Leverage};
-use super::qr::{collinear_columns, PivotedQr};
+use super::qr::PivotedQr;
 use super::refine::residual;
+use super::shared::{collinear, design_qr, shared_qr};
 use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::Reference;
 
 /// A solved least-squares problem: the factorised design and its coefficients.
 #[derive(Debug, Clone)]
 pub(crate) struct LeastSquares {
-    pub(crate) qr: PivotedQr,
+    pub(crate) qr: Arc<PivotedQr>,
     /// The factorised design (X for OLS, X̂ for 2SLS).
-    pub(crate) design: DMatrix<f64>,
+    pub(crate) design: Arc<DMatrix<f64>>,
     pub(crate) coef: DVector<f64>,
     pub(crate) resid: DVector<f64>,
 }
@@ -59,12 +62,12 @@ pub(crate) fn least_squares(
     y: &DVector<f64>,
     x: &DMatrix<f64>,
 ) -> Result<LeastSquares, EstimateError> {
-    let qr = PivotedQr::new(x)?;
+    let (design, qr) = design_qr(x)?;
     let coef = qr.solve(x, y);
     let resid = residual(x, y, &coef);
     Ok(LeastSquares {
         qr,
-        design: x.clone(),
+        design,
         coef,
         resid,
     })
@@ -148,14 +151,26 @@ pub(crate) fn hcat(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
     out
 }
 
-/// Factorises the full instrument set `[instruments | exog]`.
-pub(crate) fn instrument_qr(z: &DMatrix<f64>) -> Result<PivotedQr, EstimateError> {
-    PivotedQr::new(z).map_err(|e| match e {
+/// A rank error of an instrument set named as such.
+fn instruments_error(e: EstimateError) -> EstimateError {
+    match e {
         EstimateError::RankDeficient { dependent } => {
             EstimateError::InstrumentsRankDeficient { dependent }
         }
         other => other,
-    })
+    }
+}
+
+/// Factorises the full instrument set `[instruments | exog]`.
+pub(crate) fn instrument_qr(z: &DMatrix<f64>) -> Result<Arc<PivotedQr>, EstimateError> {
+    shared_qr(z).map_err(instruments_error)
+}
+
+/// [`instrument_qr`], with the instrument set itself for fits that keep their design.
+pub(crate) fn instrument_design(
+    z: &DMatrix<f64>,
+) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
+    design_qr(z).map_err(instruments_error)
 }
 
 /// Validated 2SLS inputs and the shared factorisation of the instruments.
@@ -164,9 +179,9 @@ pub(crate) struct IvSetup {
     /// Regressors `[endog | exog]`.
     pub(crate) x: DMatrix<f64>,
     /// All instruments `[instruments | exog]`.
-    pub(crate) z: DMatrix<f64>,
+    pub(crate) z: Arc<DMatrix<f64>>,
     /// QR of `z`.
-    pub(crate) zqr: PivotedQr,
+    pub(crate) zqr: Arc<PivotedQr>,
 }
 
 /// Checks the 2SLS inputs: finiteness, rows, order condition, sample size, ranks.
@@ -192,11 +207,11 @@ pub(crate) fn iv_setup(
     let x = hcat(endog, exog);
     let z = hcat(instruments, exog);
     require_observations(y.len(), z.ncols().max(x.ncols()))?;
-    let dependent = collinear_columns(&x);
+    let dependent = collinear(&x);
     if !dependent.is_empty() {
         return Err(EstimateError::RankDeficient { dependent });
     }
-    let zqr = instrument_qr(&z)?;
+    let (z, zqr) = instrument_design(&z)?;
     Ok(IvSetup { x, z, zqr })
 }
 
@@ -252,7 +267,7 @@ pub struct IvProblem<'a> {
     pub(crate) instruments: &'a DMatrix<f64>,
     pub(crate) setup: IvSetup,
     tsls_resid: std::sync::OnceLock<Result<DVector<f64>, EstimateError>>,
-    exog_qr: std::sync::OnceLock<Result<PivotedQr, EstimateError>>,
+    exog_qr: std::sync::OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
 }
 
 impl<'a> IvProblem<'a> {
@@ -283,8 +298,9 @@ impl<'a> IvProblem<'a> {
     /// some: the factorisation of no columns is never asked for).
     pub(crate) fn exog_qr(&self) -> Result<&PivotedQr, EstimateError> {
         self.exog_qr
-            .get_or_init(|| PivotedQr::new(self.exog))
+            .get_or_init(|| shared_qr(self.exog))
             .as_ref()
+            .map(|qr| &**qr)
             .map_err(Clone::clone)
     }
 
@@ -433,7 +449,7 @@ pub(crate) fn tsls_residuals(
     endogenous: usize,
 ) -> Result<DVector<f64>, EstimateError> {
     let xhat = projected_regressors(setup, endogenous)?;
-    let qr = PivotedQr::new(&xhat)?;
+    let qr = shared_qr(&xhat)?;
     let coef = qr.solve(&xhat, y);
     Ok(residual(&setup.x, y, &coef))
 }

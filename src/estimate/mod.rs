@@ -7,7 +7,9 @@
 //! `resample`: resampled p-values are computed there (`summarise`: they are shares of draws,
 //! with no reference distribution), and a process-wide counter of finished draws
 //! (`DRAWS_DONE`) feeds the progress display; it is only ever incremented and never affects a
-//! result.
+//! result. A third, in `shared`: while a [`Sharing`] guard is alive, factorisations of
+//! outcome-free matrices are kept in a process-wide memo and handed to every fit that asks for
+//! an equal matrix (compared bit for bit), so fits give the same bits with or without it.
 //!
 //! Invariants shared by every function:
 //! * The caller builds the design: if the model has an intercept, the caller includes a
@@ -43,6 +45,7 @@ mod qr;
 mod quadratic_meat;
 mod refine;
 mod resample;
+mod shared;
 mod summaries;
 mod tf;
 mod wald;
@@ -83,6 +86,7 @@ pub use resample::{
     OlsColumns, RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Tested, Weights,
     DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
 };
+pub use shared::{collinear, Sharing};
 pub use summaries::{
     balance, differential_attrition, inverse_covariance, lee_bounds, mean_z, BalanceRow,
     BalanceTable, LeeBounds, SummaryError, TrimmedArm,

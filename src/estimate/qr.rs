@@ -16,6 +16,8 @@
 //! * (X'X)^{-1} = S P R^{-1} R^{-T} P' S = T T' with T = S P R^{-1}; `T` is built by a
 //!   triangular solve, and X T = Q₁ (the thin Q), which the covariance estimators use.
 
+use std::sync::{Arc, OnceLock};
+
 use nalgebra::{DMatrix, DVector};
 
 use super::EstimateError;
@@ -39,6 +41,17 @@ pub(crate) struct PivotedQr {
     scale: Vec<f64>,
     /// Number of rows.
     n: usize,
+    /// For a factorisation shared between fits (module `shared`): the thin Q and the
+    /// refined (X'X)^{-1}, each computed on first use and kept. `None` for a factorisation
+    /// of one fit, which computes them afresh on every call and keeps nothing.
+    kept: Option<Kept>,
+}
+
+/// What a shared factorisation keeps once computed.
+#[derive(Debug, Clone, Default)]
+struct Kept {
+    thin_q: OnceLock<Arc<DMatrix<f64>>>,
+    inverse: OnceLock<DMatrix<f64>>,
 }
 
 /// Divides every column by its Euclidean norm, returning the scaled copy and the factors.
@@ -115,6 +128,7 @@ impl PivotedQr {
             perm,
             scale,
             n,
+            kept: None,
         };
         match qr.rank() {
             rank if rank < k => Err(rank_error(x, &qr.perm[rank..])),
@@ -214,10 +228,28 @@ impl PivotedQr {
         t
     }
 
+    /// This factorisation, made to keep its thin Q and refined inverse once computed (for
+    /// a factorisation shared between fits).
+    pub(crate) fn kept(mut self) -> Self {
+        self.kept = Some(Kept::default());
+        self
+    }
+
+    /// Where a shared factorisation keeps its refined inverse (module `refine`).
+    pub(crate) fn kept_inverse(&self) -> Option<&OnceLock<DMatrix<f64>>> {
+        self.kept.as_ref().map(|k| &k.inverse)
+    }
+
     /// The thin Q factor Q₁ (n × k), whose rows give leverages and scores.
-    pub(crate) fn thin_q(&self) -> DMatrix<f64> {
-        let k = self.perm.len();
-        self.apply_q(DMatrix::identity(self.n, k))
+    pub(crate) fn thin_q(&self) -> Arc<DMatrix<f64>> {
+        let compute = || {
+            let k = self.perm.len();
+            Arc::new(self.apply_q(DMatrix::identity(self.n, k)))
+        };
+        match &self.kept {
+            Some(kept) => Arc::clone(kept.thin_q.get_or_init(compute)),
+            None => compute(),
+        }
     }
 
     /// The orthogonal projection of `v` onto the column space of X.

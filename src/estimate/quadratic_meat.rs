@@ -73,7 +73,7 @@ pub(crate) fn quadratic_meat(
             let ones = DVector::from_element(n, 1.0);
             let omega = hc_weights(&q1, &ones, spec, leverage, absorbed)?;
             let gram = |w: &dyn Fn(usize) -> f64| {
-                let mut scaled = q1.clone();
+                let mut scaled = (*q1).clone();
                 for (i, mut row) in scaled.row_iter_mut().enumerate() {
                     row *= w(i);
                 }

@@ -145,7 +145,15 @@ impl PivotedQr {
 impl PivotedQr {
     /// (XᵀX)^{-1}, each column refined as the solution b of the augmented system
     /// r + X b = 0, Xᵀ r = −e_j (whose solution is b = (XᵀX)^{-1} e_j), starting from T Tᵀ.
+    /// `x` must be the factorised matrix; a shared factorisation computes this once.
     pub(crate) fn refined_inverse(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
+        match self.kept_inverse() {
+            Some(cell) => cell.get_or_init(|| self.refine_inverse(x)).clone(),
+            None => self.refine_inverse(x),
+        }
+    }
+
+    fn refine_inverse(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
         let t = self.t_matrix();
         let mut inverse = &t * t.transpose();
         for j in 0..x.ncols() {

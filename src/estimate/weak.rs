@@ -43,6 +43,8 @@
 //! it is (x̃'P_Z̃ x̃/q) / s², the classical first-stage F, whatever the caller's covariance.
 //! Stock and Yogo's critical values assume homoskedastic errors.
 
+use std::sync::Arc;
+
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 use statrs::function::gamma::ln_gamma;
 
@@ -150,7 +152,7 @@ impl IvProblem<'_> {
         require_observations(n, l + absorbed.df)?;
         let ls = LeastSquares {
             qr: setup.zqr.clone(),
-            design: setup.z.clone(),
+            design: Arc::clone(&setup.z),
             coef: setup.zqr.solve(&setup.z, endog),
             resid: DVector::zeros(0),
         };

@@ -303,7 +303,7 @@ impl IvProblem<'_> {
                 positions,
                 bandwidth,
             } => {
-                let mut scores = q.clone();
+                let mut scores = (*q).clone();
                 for (i, ui) in u.iter().enumerate() {
                     scores.row_mut(i).scale_mut(*ui);
                 }

@@ -100,7 +100,7 @@ impl Partialled {
         let q = if w.ncols() == 0 {
             None
         } else {
-            Some(PivotedQr::new(w)?.thin_q())
+            Some(std::sync::Arc::unwrap_or_clone(PivotedQr::new(w)?.thin_q()))
         };
         let y_tilde = match &q {
             Some(q) => y - q * (q.transpose() * y),
@@ -257,7 +257,12 @@ impl Partialled {
                 return Some((g, None));
             }
             let u = residual(zt, rows.y, &g);
-            (g, u, qr.t_matrix(), qr.thin_q())
+            (
+                g,
+                u,
+                qr.t_matrix(),
+                std::sync::Arc::unwrap_or_clone(qr.thin_q()),
+            )
         };
         let meat = match &self.kind {
             Kind::Classical => {

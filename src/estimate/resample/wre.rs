@@ -126,7 +126,7 @@ pub(crate) fn wre_statistics(
     let (_, u_tilde) = fit(exog, &(y - &x * null))?;
     let w_gamma = y - &x * null - &u_tilde;
     // 2. Efficient reduced form: x on [Z, W, ũ]; keep the Z and W part.
-    let zw = &setup.z;
+    let zw: &DMatrix<f64> = &setup.z;
     let mut zwu = zw.clone().insert_column(zw.ncols(), 0.0);
     zwu.set_column(zw.ncols(), &u_tilde);
     let (coef, _) = fit(&zwu, &x)?;

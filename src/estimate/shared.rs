@@ -1,0 +1,290 @@
+//! Factorisations shared by the fits of one run.
+//!
+//! Role: most factorisations of an IV specification and its diagnostics are of matrices that
+//! do not involve the outcome (the regressors X, the instruments Z, the projected regressors
+//! X̂, the controls, X with the first-stage residuals), and specifications that differ only in
+//! their outcome or their standard errors factorise the same matrices again. While a
+//! [`Sharing`] guard is alive, the factorisations asked for through [`design_qr`],
+//! [`shared_qr`] and [`collinear`] are kept in a small memo and handed out again to any fit
+//! that asks for a matrix equal to one already factorised, with its thin Q and refined
+//! inverse computed at most once (module `qr`).
+//!
+//! Invariants:
+//! * A hit needs the same shape and the same bits in every entry (compared in full, after a
+//!   cheap fingerprint that only chooses the candidates), so a shared factorisation is the one
+//!   a fresh call would have computed: results are the same bits with or without sharing,
+//!   and do not depend on which specification asked first. A test checks this.
+//! * The memo is process-wide (the fits run on rayon's threads), holds at most
+//!   [`CAPACITY`] matrices, least recently used first out, and is emptied when the last guard
+//!   is dropped. Without a guard every call factorises afresh, as before.
+//! * Only outcome-free matrices of at least [`MIN_ENTRIES`] entries are worth keeping; small
+//!   ones (k × k systems, per-draw designs) are factorised directly by their callers.
+
+use std::sync::{Arc, Mutex, MutexGuard, OnceLock, PoisonError};
+
+use nalgebra::DMatrix;
+
+use super::qr::{collinear_columns, PivotedQr};
+use super::EstimateError;
+
+/// How many distinct matrices the memo keeps. One IV specification with every diagnostic
+/// factorises about eight distinct outcome-free matrices; the plan's specifications are
+/// fitted two or so at a time, in plan order, so specifications sharing a sample are near
+/// each other.
+pub const CAPACITY: usize = 10;
+
+/// Matrices with fewer entries than this are not kept (cheap to factorise again).
+pub const MIN_ENTRIES: usize = 1 << 14;
+
+/// A factorised matrix: the matrix itself (kept for the equality check, and handed to
+/// callers that hold the design), its QR and, computed on first use, its collinear columns.
+struct Entry {
+    fingerprint: u64,
+    x: Arc<DMatrix<f64>>,
+    qr: OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
+    dependent: OnceLock<Vec<usize>>,
+}
+
+#[derive(Default)]
+struct Memo {
+    /// Live guards.
+    scopes: usize,
+    /// Entries, least recently used first.
+    entries: Vec<Arc<Entry>>,
+}
+
+/// Factorisations handed out again, over the process's life (for tests and measurements; it
+/// never affects a result).
+static HITS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+static MEMO: Mutex<Memo> = Mutex::new(Memo {
+    scopes: 0,
+    entries: Vec::new(),
+});
+
+fn memo() -> MutexGuard<'static, Memo> {
+    // A panic while the lock was held cannot leave an entry half-made (entries are pushed
+    // whole), so a poisoned lock is still usable.
+    MEMO.lock().unwrap_or_else(PoisonError::into_inner)
+}
+
+/// While alive, outcome-free factorisations are shared between fits (module documentation).
+/// Guards nest; the memo is emptied when the last one is dropped.
+#[must_use = "sharing lasts while the guard is alive"]
+pub struct Sharing(());
+
+impl Sharing {
+    /// Starts (or joins) sharing.
+    pub fn begin() -> Sharing {
+        memo().scopes += 1;
+        Sharing(())
+    }
+}
+
+impl Drop for Sharing {
+    fn drop(&mut self) {
+        let mut m = memo();
+        m.scopes = m.scopes.saturating_sub(1);
+        if m.scopes == 0 {
+            m.entries.clear();
+        }
+    }
+}
+
+/// A cheap fingerprint of `x`: its shape and about 4,096 entries spread over it. It only
+/// chooses candidates; equality is decided by comparing every entry.
+fn fingerprint(x: &DMatrix<f64>) -> u64 {
+    let s = x.as_slice();
+    let step = (s.len() / 4096).max(1);
+    let mut h = (x.nrows() as u64).wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ x.ncols() as u64;
+    for v in s.iter().step_by(step) {
+        h = (h.rotate_left(5) ^ v.to_bits()).wrapping_mul(0x1000_0000_01B3);
+    }
+    h
+}
+
+/// Bitwise equality of two matrices of the same shape.
+fn same_bits(a: &DMatrix<f64>, b: &DMatrix<f64>) -> bool {
+    a.shape() == b.shape()
+        && a.as_slice()
+            .iter()
+            .zip(b.as_slice())
+            .all(|(p, q)| p.to_bits() == q.to_bits())
+}
+
+/// The memo's entry for `x`, made (with a copy of `x`) if there is none; `None` when no
+/// guard is alive or `x` is too small to keep.
+fn entry(x: &DMatrix<f64>) -> Option<Arc<Entry>> {
+    if x.len() < MIN_ENTRIES || tests::bypassed() {
+        return None;
+    }
+    let fingerprint = fingerprint(x);
+    let candidates: Vec<Arc<Entry>> = {
+        let m = memo();
+        if m.scopes == 0 {
+            return None;
+        }
+        m.entries
+            .iter()
+            .filter(|e| e.fingerprint == fingerprint)
+            .cloned()
+            .collect()
+    };
+    // Compared outside the lock: a full comparison reads the whole matrix.
+    let found = candidates.into_iter().find(|e| same_bits(&e.x, x));
+    let mut m = memo();
+    if m.scopes == 0 {
+        return None;
+    }
+    let e = match found {
+        Some(e) => {
+            HITS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            m.entries.retain(|other| !Arc::ptr_eq(other, &e));
+            e
+        }
+        None => Arc::new(Entry {
+            fingerprint,
+            x: Arc::new(x.clone()),
+            qr: OnceLock::new(),
+            dependent: OnceLock::new(),
+        }),
+    };
+    if m.entries.len() >= CAPACITY {
+        m.entries.remove(0);
+    }
+    m.entries.push(Arc::clone(&e));
+    Some(e)
+}
+
+/// The QR of `x`, shared when sharing is on ([`PivotedQr::new`] otherwise).
+///
+/// # Errors
+/// As [`PivotedQr::new`].
+pub(crate) fn shared_qr(x: &DMatrix<f64>) -> Result<Arc<PivotedQr>, EstimateError> {
+    match entry(x) {
+        Some(e) => {
+            e.qr.get_or_init(|| PivotedQr::new(x).map(|qr| Arc::new(qr.kept())))
+                .clone()
+        }
+        None => PivotedQr::new(x).map(Arc::new),
+    }
+}
+
+/// `x` itself (the memo's copy when shared, else a copy) with its QR, for fits that keep
+/// their design.
+///
+/// # Errors
+/// As [`PivotedQr::new`].
+pub(crate) fn design_qr(
+    x: &DMatrix<f64>,
+) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
+    match entry(x) {
+        Some(e) => {
+            let qr =
+                e.qr.get_or_init(|| PivotedQr::new(x).map(|qr| Arc::new(qr.kept())))
+                    .clone()?;
+            Ok((Arc::clone(&e.x), qr))
+        }
+        None => Ok((Arc::new(x.clone()), Arc::new(PivotedQr::new(x)?))),
+    }
+}
+
+/// [`collinear_columns`] of `x`, shared when sharing is on.
+pub fn collinear(x: &DMatrix<f64>) -> Vec<usize> {
+    match entry(x) {
+        Some(e) => e.dependent.get_or_init(|| collinear_columns(x)).clone(),
+        None => collinear_columns(x),
+    }
+}
+
+#[cfg(not(test))]
+mod tests {
+    pub(super) fn bypassed() -> bool {
+        false
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::estimate::{ols, tsls, Absorbed, CovSpec};
+    use nalgebra::DVector;
+    use std::cell::Cell;
+
+    thread_local! {
+        /// Set on a test's own thread to factorise afresh although another test's guard is
+        /// alive (tests share the process-wide memo).
+        static BYPASS: Cell<bool> = const { Cell::new(false) };
+    }
+
+    pub(super) fn bypassed() -> bool {
+        BYPASS.with(Cell::get)
+    }
+
+    /// The tests of this module one at a time (each relies on what the memo holds).
+    static SERIAL: Mutex<()> = Mutex::new(());
+
+    /// Invented numbers, large enough to be kept by the memo.
+    fn cell(i: usize, j: usize) -> f64 {
+        let t = (i * 37 + j * 11) as f64;
+        (t * 0.618).sin() + 0.1 * j as f64 + (i % 5) as f64 * 0.01
+    }
+
+    /// Every fit gives the same bits with sharing as without, whichever fit comes first and
+    /// however often a factorisation is reused.
+    #[test]
+    fn sharing_changes_no_bit() {
+        let _serial = SERIAL.lock().unwrap_or_else(PoisonError::into_inner);
+        let n = 4000;
+        let exog = DMatrix::from_fn(n, 5, |i, j| if j == 0 { 1.0 } else { cell(i, j) });
+        let z = DMatrix::from_fn(n, 2, |i, j| cell(i, j + 7));
+        let endog = DMatrix::from_fn(n, 1, |i, _| z[(i, 0)] + 0.5 * z[(i, 1)] + cell(i, 9));
+        let ys: Vec<DVector<f64>> = (0..3)
+            .map(|o| DVector::from_fn(n, |i, _| endog[(i, 0)] * 0.3 + cell(i, 20 + o)))
+            .collect();
+        let x = crate::estimate::linear::hcat(&endog, &exog);
+        let covs = [CovSpec::Classical, CovSpec::Hc1];
+        let fits = || {
+            let mut out = Vec::new();
+            for y in &ys {
+                for cov in &covs {
+                    let iv = tsls(y, &exog, &endog, &z, true, cov, &Absorbed::NONE).unwrap();
+                    let o = ols(y, &x, true, cov, &Absorbed::NONE).unwrap();
+                    out.extend(iv.coef.iter().chain(iv.cov.iter()).map(|v| v.to_bits()));
+                    out.extend(o.coef.iter().chain(o.cov.iter()).map(|v| v.to_bits()));
+                }
+            }
+            out
+        };
+        BYPASS.with(|b| b.set(true));
+        let alone = fits();
+        BYPASS.with(|b| b.set(false));
+        let hits = HITS.load(std::sync::atomic::Ordering::Relaxed);
+        let shared = {
+            let _sharing = Sharing::begin();
+            let first = fits();
+            let again = fits();
+            assert_eq!(first, again);
+            first
+        };
+        // X, Z, X̂ and more were handed out again, many times.
+        assert!(HITS.load(std::sync::atomic::Ordering::Relaxed) >= hits + 20);
+        assert_eq!(alone, shared);
+    }
+
+    /// A matrix that differs from a kept one in a single bit is factorised afresh.
+    #[test]
+    fn a_different_matrix_is_not_taken_for_a_kept_one() {
+        let _serial = SERIAL.lock().unwrap_or_else(PoisonError::into_inner);
+        let _sharing = Sharing::begin();
+        let a = DMatrix::from_fn(5000, 4, cell);
+        let mut b = a.clone();
+        b[(4321, 2)] = f64::from_bits(b[(4321, 2)].to_bits() ^ 1);
+        let (ka, _) = design_qr(&a).unwrap();
+        let (kb, _) = design_qr(&b).unwrap();
+        assert!(!Arc::ptr_eq(&ka, &kb));
+        assert!(same_bits(&kb, &b) && !same_bits(&ka, &b));
+        let (again, _) = design_qr(&a).unwrap();
+        assert!(Arc::ptr_eq(&ka, &again));
+    }
+}
