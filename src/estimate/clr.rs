@@ -232,9 +232,13 @@ fn simpson(f: &dyn Fn(f64) -> f64, p: Panel, whole: f64, tol: f64, depth: u32) -
     simpson(f, left, l, 0.5 * tol, depth + 1) + simpson(f, right, r, 0.5 * tol, depth + 1)
 }
 
+mod robust;
 mod set;
+pub use robust::RobustLmClr;
 pub use set::{LmClrSets, CLR_GRID};
 
+#[cfg(test)]
+mod robust_tests;
 #[cfg(test)]
 mod set_tests;
 #[cfg(test)]
