@@ -161,7 +161,10 @@ impl IvProblem<'_> {
             [z_block(&full[0][0]), z_block(&full[0][1])],
             [z_block(&full[1][0]), z_block(&full[1][1])],
         ];
-        let pi = [coef_y.rows(0, l).into_owned(), coef_x.rows(0, l).into_owned()];
+        let pi = [
+            coef_y.rows(0, l).into_owned(),
+            coef_x.rows(0, l).into_owned(),
+        ];
         let mut out = RobustLmClr {
             l,
             pi,
