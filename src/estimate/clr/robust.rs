@@ -211,7 +211,7 @@ impl RobustLmClr {
         let scc = bilinear(&self.sigma, c, c) - &scb * chol_b.solve(&scb.transpose());
         let chol_c = symmetric(scc).cholesky()?;
         let den = d.dot(&chol_b.solve(&d));
-        if !(den > 0.0) {
+        if den.is_nan() || den <= 0.0 {
             return None;
         }
         let out = RobustStats {
