@@ -23,8 +23,9 @@ that they are identified", Econometrica 73, 1103-1123:
     AR = f' V_ff^{-1} f, with a rank statistic rk in place of Moreira's Q_T; for one
     parameter rk = D' V_qq.f^{-1} D, V_qq.f = V_qq - V_qf V_ff^{-1} V_fq; its p-value is
     Moreira's conditional one given rk.
-(Equation numbers are not quoted: the paper was not at hand when this was written; the
-formulas are stated in full above and implemented literally below.)
+(Equation numbers are not quoted and the section numbers are from memory: the paper was not
+at hand when this was written; the formulas are stated in full above and implemented
+literally below.)
 
 The linear IV instance (one endogenous regressor x, instruments Z, exogenous W with the
 constant): Zt = M_W Z, f = Zt'(y - x b0), q = Zt'x (the Jacobian up to sign, which K, rk and

@@ -24,6 +24,11 @@
 //!   parent module given rk (Moreira's law with Q_T = rk and Q_ST² = K·rk; K ≤ Q_S by
 //!   Cauchy–Schwarz in the Σ_ee⁻¹ metric, so the law's angle is defined).
 //!
+//! Citation note: the paper was not at hand while this was written. The section numbers above
+//! (3 for K, 5 for the GMM-CLR) are from memory and no equation numbers are quoted; the
+//! formulas are stated in full here instead, and checked against an independent
+//! implementation of the same formulas (`tests/reference/clr_robust.py`).
+//!
 //! With the classical covariance (Σ_rs = ê_rᵀê_s/(n − L − |W| − a)·(DᵀD)⁻¹ restricted to Z)
 //! these are exactly Q_S, Q_T, LM and CLR of the homoskedastic parent module, which a
 //! unit test checks. Covariances covered: HC0–HC3 and one-way clusters (CR1), each as the
