@@ -3,9 +3,11 @@
 //!
 //! Role: two more tests of β = β₀ in y = x β + W γ + u (excluded instruments Z, L of them;
 //! exogenous columns W, the caller's intercept among them) whose size does not depend on the
-//! strength of the instruments. Only the homoskedastic variant is implemented: the error
+//! strength of the instruments. This module is the homoskedastic variant: the error
 //! covariance Ω of (u, v) is estimated from residuals of the regression on [Z | W] with no
-//! allowance for heteroskedasticity or clustering.
+//! allowance for heteroskedasticity or clustering. The heteroskedasticity- and
+//! cluster-robust forms (Kleibergen 2005) are in submodule `robust`, which shares the
+//! conditional p-value below.
 //!
 //! # The statistics (Kleibergen 2002, Econometrica 70; Moreira 2003, Econometrica 71)
 //! With e = M_W(y − x β₀), x_w = M_W x, P the projection on M_W Z, M = I − P_[Z|W] and
@@ -232,9 +234,13 @@ fn simpson(f: &dyn Fn(f64) -> f64, p: Panel, whole: f64, tol: f64, depth: u32) -
     simpson(f, left, l, 0.5 * tol, depth + 1) + simpson(f, right, r, 0.5 * tol, depth + 1)
 }
 
+mod robust;
 mod set;
+pub use robust::RobustLmClr;
 pub use set::{LmClrSets, CLR_GRID};
 
+#[cfg(test)]
+mod robust_tests;
 #[cfg(test)]
 mod set_tests;
 #[cfg(test)]

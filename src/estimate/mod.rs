@@ -69,7 +69,8 @@ pub use anderson_rubin::{
     anderson_rubin, anderson_rubin_curve, AndersonRubin, ArProblem, ConfidenceSet, SetShape,
 };
 pub use clr::{
-    clr_p_value, ConditionalLr, LmClr, LmClrSets, CLR_GRID, QUADRATURE_DEPTH, QUADRATURE_TOLERANCE,
+    clr_p_value, ConditionalLr, LmClr, LmClrSets, RobustLmClr, CLR_GRID, QUADRATURE_DEPTH,
+    QUADRATURE_TOLERANCE,
 };
 pub use covariance::CovSpec;
 pub use diagnostics::{

@@ -35,6 +35,16 @@ impl QuadraticMeat {
         let meat = &self.m11 * (a * a) - cross * (a * b) + &self.m22 * (b * b);
         &self.t * meat * self.t.transpose() * self.factor
     }
+
+    /// The joint covariance of the coefficients from residuals e₁ and e₂: the blocks
+    /// [[Σ₁₁, Σ₁₂], [Σ₂₁, Σ₂₂]], Σ_rs = T M_rs Tᵀ · factor (Σ₂₁ = Σ₁₂ᵀ; M₁₂ is not symmetric
+    /// when clustered). `covariance(a, b)` = a²Σ₁₁ − ab(Σ₁₂ + Σ₂₁) + b²Σ₂₂.
+    pub(crate) fn blocks(&self) -> [[DMatrix<f64>; 2]; 2] {
+        let side = |m: &DMatrix<f64>| &self.t * m * self.t.transpose() * self.factor;
+        let cross = side(&self.m12);
+        let cross_t = cross.transpose();
+        [[side(&self.m11), cross], [cross_t, side(&self.m22)]]
+    }
 }
 
 /// Builds the quadratic form for the design factorised in `qr` and residual vectors `e1`,

@@ -140,14 +140,19 @@ mod tests {
 {{ w.id_words({"kind": "set_reading", "shape": "empty", "stationary": false}) }}
 {{ w.id_words({"kind": "set_reading", "shape": "several_bounded", "stationary": true}) }}
 {{ w.id_words({"kind": "set_reading", "shape": "unbounded", "stationary": false}) }}
-{{ w.id_words({"kind": "robust_test", "test": "lm", "x": "d", "null": "0"}) }}
-{{ w.id_words({"kind": "robust_test", "test": "clr", "x": "d", "null": "0.5"}) }}
-{{ w.id_words({"kind": "robust_set", "test": "clr", "level": "90"}) }}
+{{ w.id_words({"kind": "robust_test", "test": "lm", "x": "d", "null": "0", "form": "homoskedastic"}) }}
+{{ w.id_words({"kind": "robust_test", "test": "clr", "x": "d", "null": "0.5", "form": "homoskedastic"}) }}
+{{ w.id_words({"kind": "robust_set", "test": "clr", "level": "90", "form": "homoskedastic"}) }}
+{{ w.id_words({"kind": "robust_test", "test": "lm", "x": "d", "null": "0", "form": "heteroskedasticity-robust"}) }}
+{{ w.id_words({"kind": "robust_set", "test": "clr", "level": "95", "form": "cluster-robust"}) }}
 {{ w.id_words({"kind": "robust_reading", "rejects": true, "x": "d", "null": "0", "alpha": "0.05", "homoskedastic": true}) }}
 {{ w.id_words({"kind": "robust_reading", "rejects": false, "x": "d", "null": "0", "alpha": "0.05", "homoskedastic": true}) }}
 {{ w.id_words({"kind": "robust_reading", "rejects": false, "x": "d", "null": "0", "alpha": "0.05", "homoskedastic": false}) }}
 {{ w.id_words({"kind": "clr_reference", "strength": "3.2"}) }}
 {{ w.id_words({"kind": "lm_clr_missing", "undefined": true, "errors": "classical"}) }}
+{{ w.id_words({"kind": "lm_clr_missing", "undefined": false, "errors": "two-way clustered"}) }}
+{{ w.hyp_method({"kind": "clr_robust", "estimator": "2SLS", "df": none, "draws": none, "exact": false, "tested_in": none, "contingency": "c1"}) }}
+{{ w.rule({"description": "d", "trigger": "weak_instruments", "threshold": "10", "action": "clr", "specification": none}) }}
 {{ w.id_words({"kind": "tf_critical", "value": "2.5"}) }}
 {{ w.id_words({"kind": "tf_reading", "rejects": true}) }}
 {{ w.id_words({"kind": "tf_reading", "rejects": false}) }}
@@ -174,7 +179,7 @@ mod tests {
 {{ w.fig_caption({"kind": "failed", "error": "e"}) }}|{{ w.fig_title({"kind": "anderson_rubin", "level": "90", "id": "s"}) }}
 "#;
 
-    const EXPECTED: [&str; 49] = [
+    const EXPECTED: [&str; 54] = [
         "dropped as collinear: a, b",
         "errors clustered by a and b (12 clusters); residual df 80 = 100 − 5 − 15 (n − K − absorbed); coefficient tests t(11)",
         "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): * p < 0.1, ** p < 0.05.",
@@ -195,11 +200,16 @@ mod tests {
         "Kleibergen LM test of `d` = 0, homoskedastic errors",
         "Moreira conditional LR test of `d` = 0.5, homoskedastic errors",
         "Moreira conditional LR 90% confidence set, homoskedastic errors",
+        "Kleibergen LM test of `d` = 0, robust to heteroskedasticity (Kleibergen 2005)",
+        "Moreira conditional LR 95% confidence set, robust to clustering (Kleibergen 2005)",
         "rejects `d` = 0 at 0.05; valid however weak the instruments are, if the errors are homoskedastic",
         "does not reject `d` = 0 at 0.05; valid however weak the instruments are, if the errors are homoskedastic",
         "does not reject `d` = 0 at 0.05; valid however weak the instruments are",
         "conditional law given first-stage strength 3.2",
         "the statistics are undefined for these data (an exact fit, or no first-stage signal under the null)",
+        "sworn has no form of them for two-way clustered errors (it has one for classical, HC0–HC3 and one-way clustered errors)",
+        "conditional LR, robust form (Kleibergen 2005) with the specification's errors, by contingency c1",
+        "d (if the effective first-stage F is below 10, use conditional LR inference (homoskedastic, or robust to the specification's errors))",
         "critical value 2.5 at 5% (in place of 1.96)",
         "the 2SLS t-test rejects at 5% after the adjustment",
         "the 2SLS t-test does not reject at 5% after the adjustment",

@@ -208,8 +208,13 @@ spelled! {
 spelled! {
     /// The error assumption of the LM and CLR tests.
     pub enum LmClrErrors {
-        /// The only form sworn computes.
+        /// Classical errors: Kleibergen's (2002) LM and Moreira's (2003) CLR.
         Homoskedastic = "homoskedastic",
+        /// HC0–HC3 errors: Kleibergen's (2005) K and GMM-CLR with the specification's
+        /// sandwich.
+        HeteroskedasticityRobust = "heteroskedasticity-robust",
+        /// One-way clustered errors: the same with the CR1 sandwich.
+        ClusterRobust = "cluster-robust",
     }
 }
 

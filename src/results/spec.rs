@@ -273,31 +273,34 @@ pub struct AndersonRubinResult {
     pub curve: Option<ArCurve>,
 }
 
-/// Kleibergen's (2002) LM test and Moreira's (2003) conditional likelihood ratio test of the
-/// endogenous coefficient = `null`, both valid however weak the instruments are, in their
-/// homoskedastic form (`estimate::LmClr`).
+/// Kleibergen's LM test and the conditional likelihood ratio test of the endogenous
+/// coefficient = `null`, both valid however weak the instruments are: with classical errors
+/// the homoskedastic forms (Kleibergen 2002; Moreira 2003), with HC0–HC3 or one-way
+/// clustered errors the robust forms (Kleibergen 2005: the K statistic and the GMM form of
+/// the CLR, with the specification's sandwich; `estimate::RobustLmClr`).
 #[derive(Debug, Clone, Serialize)]
 pub struct LmClrResult {
     /// Value tested (0).
     pub null: f64,
-    /// Always "homoskedastic": the only form sworn computes.
+    /// Which form: "homoskedastic", "heteroskedasticity-robust" or "cluster-robust".
     pub errors: LmClrErrors,
     /// Kleibergen's LM statistic, its χ²(1) p-value and distribution.
     pub lm: TestResult,
-    /// Moreira's CLR statistic.
+    /// The CLR statistic.
     pub clr_statistic: f64,
-    /// The statistic the CLR p-value conditions on (Q_T, first-stage strength under the
-    /// null).
+    /// The statistic the CLR p-value conditions on (first-stage strength under the null:
+    /// Moreira's Q_T, or Kleibergen's rank statistic in the robust forms).
     pub clr_conditioning: f64,
-    /// P(CLR > clr_statistic | Q_T = clr_conditioning) under the null, by numerical
+    /// P(CLR > clr_statistic | conditioning = clr_conditioning) under the null, by numerical
     /// integration of the conditional law (`estimate::clr_p_value`).
     pub clr_p_value: f64,
     /// Confidence level of the two sets (the specification's).
     pub confidence: f64,
     /// Shape of `lm_set`.
     pub lm_shape: ArShape,
-    /// {β₀ : LM(β₀) ≤ χ²(1) quantile}, disjoint pieces in increasing order (exact roots of a
-    /// quartic, `estimate/clr/set.rs`).
+    /// {β₀ : LM(β₀) ≤ χ²(1) quantile}, disjoint pieces in increasing order (homoskedastic:
+    /// exact roots of a quartic, `estimate/clr/set.rs`; robust: scan in θ with bisection,
+    /// `estimate/clr/robust.rs`).
     pub lm_set: Vec<SetPiece>,
     /// Shape of `clr_set`.
     pub clr_shape: ArShape,

@@ -1,5 +1,6 @@
-//! The `clr` decision-rule action through the whole tool: refused at check unless the
-//! specification's errors are classical; at run, a rule that fires tests the hypothesis with
+//! The `clr` decision-rule action through the whole tool: refused at check for two-way
+//! clustered and HAC errors; at run (homoskedastic with classical errors, robust with HC or
+//! one-way clustered errors), a rule that fires tests the hypothesis with
 //! the conditional LR test at its null and reports the CLR set as its interval (no verdict
 //! when that set is unbounded), in results.json and in the report.
 
@@ -17,14 +18,45 @@ fn weak_two(strength: f64, seed: u64) -> String {
 }
 
 #[test]
-fn a_clr_rule_is_refused_unless_the_errors_are_classical() {
+fn a_clr_rule_is_refused_with_two_way_clusters() {
     check_fails(
-        &plan("[\"z\", \"z2\"]", "\"hc1\"", &weak_rule("clr")),
+        &plan(
+            "[\"z\", \"z2\"]",
+            "{ kind = \"cluster\", by = [\"grp\", \"id\"] }",
+            &weak_rule("clr"),
+        ),
         &[
             "contingency[weak].then",
-            "assumes homoskedastic errors",
-            "errors = \"classical\"",
+            "has no two-way clustered form",
+            "then = \"anderson-rubin\"",
         ],
+    );
+}
+
+/// With HC1 errors the rule tests with the robust CLR (Kleibergen 2005), and the report says
+/// which form.
+#[test]
+fn a_clr_rule_with_hc1_errors_tests_with_the_robust_form() {
+    let (s, v) = run(
+        &plan("[\"z\", \"z2\"]", "\"hc1\"", &weak_rule("clr")),
+        &weak_two(0.12, 7),
+    );
+    assert_eq!(v["contingencies"][0]["invoked"], true);
+    let lc = &spec(&v, "iv")["lm_clr"];
+    assert_eq!(lc["errors"], "heteroskedasticity-robust", "{lc}");
+    let h = &v["hypotheses"]["H1"];
+    assert_eq!(h["method"], "clr", "{h}");
+    assert_eq!(h["statistic"], lc["clr_statistic"], "{h} {lc}");
+    assert_eq!(h["p_value"], lc["clr_p_value"], "{h} {lc}");
+    assert_eq!(h["ci"], lc["clr_set"], "{h} {lc}");
+    let report = s.read("out/report.md");
+    assert!(
+        report.contains("conditional LR, robust form (Kleibergen 2005)"),
+        "{report}"
+    );
+    assert!(
+        report.contains("95% confidence set, robust to heteroskedasticity (Kleibergen 2005)"),
+        "{report}"
     );
 }
 
@@ -57,7 +89,9 @@ fn a_clr_rule_that_fires_tests_with_the_clr_test_and_set() {
         "{report}"
     );
     assert!(
-        report.contains("use conditional LR inference (homoskedastic errors)"),
+        report.contains(
+            "use conditional LR inference (homoskedastic, or robust to the specification's errors)"
+        ),
         "{report}"
     );
     assert!(

@@ -420,7 +420,7 @@ fn the_first_rule_that_fires_decides_and_a_later_one_is_superseded() {
 }
 
 #[test]
-fn classical_errors_add_the_lm_and_clr_tests_and_robust_errors_say_why_not() {
+fn lm_and_clr_tests_follow_the_errors_and_two_way_clusters_say_why_not() {
     // Classical errors, two instruments: both tests are computed and reported.
     let (s, v) = run(
         &plan("[\"z\", \"z2\"]", "\"classical\"", ""),
@@ -485,12 +485,24 @@ fn classical_errors_add_the_lm_and_clr_tests_and_robust_errors_say_why_not() {
         }
     }
 
-    // Robust errors: not computed, and the report says why.
-    let (s, v) = run(&plan("[\"z\"]", "\"hc1\"", ""), &Gen::default().csv());
+    // HC1 and one-way clustered errors: the robust forms (Kleibergen 2005).
+    for (errors, form) in [
+        ("\"hc1\"", "heteroskedasticity-robust"),
+        ("{ kind = \"cluster\", by = \"grp\" }", "cluster-robust"),
+    ] {
+        let (s, v) = run(&plan("[\"z\", \"z2\"]", errors, ""), &Gen::default().csv());
+        let lc = &spec(&v, "iv")["lm_clr"];
+        assert_eq!(lc["errors"], form, "{lc}");
+        let report = s.read("out/report.md");
+        assert!(report.contains("(Kleibergen 2005)"), "{report}");
+    }
+    // Two-way clusters: not computed, and the report says why.
+    let two_way = "{ kind = \"cluster\", by = [\"grp\", \"id\"] }";
+    let (s, v) = run(&plan("[\"z\"]", two_way, ""), &Gen::default().csv());
     assert!(spec(&v, "iv")["lm_clr"].is_null());
     let report = s.read("out/report.md");
     assert!(
-        report.contains("sworn computes them only with homoskedastic errors"),
+        report.contains("sworn has no form of them for two-way clustered errors"),
         "{report}"
     );
 }

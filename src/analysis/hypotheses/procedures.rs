@@ -106,8 +106,9 @@ pub(super) fn anderson_rubin(
     set_verdict(h, t, r, &ar.set, ar.shape, "Anderson–Rubin", p)
 }
 
-/// Moreira's conditional LR test at the hypothesis' null (homoskedastic), with the CLR set
-/// as the interval; no verdict when the set is empty or unbounded.
+/// The conditional LR test at the hypothesis' null (homoskedastic with classical errors,
+/// robust with HC or one-way clustered errors), with the CLR set as the interval; no verdict
+/// when the set is empty or unbounded.
 pub(super) fn clr(
     h: &Hypothesis,
     f: &Fitted,

@@ -1,7 +1,7 @@
 //! The diagnostics of an IV specification: first stages, reduced form, endogeneity,
 //! over-identification, a LIML estimate beside 2SLS, weak-instrument diagnostics with the
-//! Stock–Yogo values, and the Anderson–Rubin test and set (with the Kleibergen LM and
-//! Moreira CLR tests under homoskedastic errors).
+//! Stock–Yogo values, and the Anderson–Rubin test and set (with the Kleibergen LM and CLR
+//! tests: homoskedastic with classical errors, robust with HC0–HC3 and one-way clusters).
 
 use super::fit::map_estimate_error;
 use super::result::{reference_for, terms_of, test};
@@ -204,8 +204,7 @@ impl IvContext<'_> {
         })
     }
 
-    /// The Anderson–Rubin test at 0 with its set and curve, the LM and CLR tests
-    /// (homoskedastic errors), and the AR tests at the nulls the decision rules need, which
+    /// The Anderson–Rubin test at 0 with its set and curve, the LM and CLR tests, and the AR tests at the nulls the decision rules need, which
     /// are returned.
     fn anderson_rubin(&self, result: &mut SpecResult) -> Result<NullTests> {
         let Prepared {
@@ -247,34 +246,61 @@ impl IvContext<'_> {
             .iter()
             .map(|&null| Ok((null, ar.test(null).map_err(|e| self.err(e))?)))
             .collect::<Result<Vec<_>>>()?;
-        // Only with classical errors (plan validation refuses a `clr` rule otherwise); a
-        // null where the statistics are undefined is left out, and the hypothesis says so.
+        // Classical errors: the homoskedastic tests; HC0–HC3 and one-way clusters: the robust
+        // ones (plan validation refuses a `clr` rule otherwise). A null where the statistics
+        // are undefined is left out, and the hypothesis says so.
         let clr = match (cov, &result.lm_clr) {
+            (_, None) => Vec::new(),
             (CovSpec::Classical, Some(_)) => self
                 .needs
                 .clr_nulls
                 .iter()
                 .filter_map(|&null| self.iv.lm_clr(ab, null).ok().map(|t| (null, t.clr)))
                 .collect(),
-            _ => Vec::new(),
+            (_, Some(_)) => match self.iv.lm_clr_robust(cov, ab) {
+                Ok(robust) => self
+                    .needs
+                    .clr_nulls
+                    .iter()
+                    .filter_map(|&null| robust.test(null).ok().map(|t| (null, t.clr)))
+                    .collect(),
+                Err(_) => Vec::new(),
+            },
         };
         Ok(NullTests { ar, clr })
     }
 
-    /// The Kleibergen LM and Moreira CLR tests of 0 with their sets, with classical errors
-    /// only (the homoskedastic variants are the ones computed). Undefined statistics (an
-    /// exact fit, Q_T = 0) leave them null; the identification panel says so.
+    /// The Kleibergen LM and CLR tests of 0 with their sets: the homoskedastic forms with
+    /// classical errors, the robust forms (Kleibergen 2005) with HC0–HC3 and one-way
+    /// clusters, none with two-way clusters or HAC. Undefined statistics (an exact fit, no
+    /// first-stage signal under the null) leave them null; the identification panel says so.
     fn lm_clr(&self) -> Option<LmClrResult> {
         let Prepared { spec, d, cov, .. } = self.prepared;
         let ab = &d.absorbed;
-        if *cov != CovSpec::Classical {
-            return None;
-        }
-        let t = self.iv.lm_clr(ab, 0.0).ok()?;
-        let sets = self.iv.lm_clr_sets(ab, spec.confidence).ok()?;
+        let (errors, t, sets) = match cov {
+            CovSpec::Classical => (
+                LmClrErrors::Homoskedastic,
+                self.iv.lm_clr(ab, 0.0).ok()?,
+                self.iv.lm_clr_sets(ab, spec.confidence).ok()?,
+            ),
+            CovSpec::TwoWay { .. } | CovSpec::Hac { .. } => return None,
+            _ => {
+                let robust = self.iv.lm_clr_robust(cov, ab).ok()?;
+                let errors = if matches!(cov, CovSpec::Cluster { .. }) {
+                    LmClrErrors::ClusterRobust
+                } else {
+                    LmClrErrors::HeteroskedasticityRobust
+                };
+                (
+                    errors,
+                    robust.test(0.0).ok()?,
+                    robust.sets(spec.confidence).ok()?,
+                )
+            }
+        };
         Some(LmClrResult {
             null: t.beta0,
-            errors: LmClrErrors::Homoskedastic,
+            errors,
             lm: TestResult {
                 statistic: t.lm.statistic,
                 p_value: inference::test_p_value(&t.lm),

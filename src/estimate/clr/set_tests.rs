@@ -18,16 +18,16 @@ use super::set::Forms;
 use super::tests::{column, matrix};
 use crate::estimate::{Absorbed, ConfidenceSet, IvProblem, SetShape};
 
-struct Case {
-    name: String,
-    y: DVector<f64>,
-    exog: DMatrix<f64>,
-    endog: DMatrix<f64>,
-    z: DMatrix<f64>,
-    expected: Value,
+pub(super) struct Case {
+    pub(super) name: String,
+    pub(super) y: DVector<f64>,
+    pub(super) exog: DMatrix<f64>,
+    pub(super) endog: DMatrix<f64>,
+    pub(super) z: DMatrix<f64>,
+    pub(super) expected: Value,
 }
 
-fn cases() -> Vec<Case> {
+pub(super) fn cases() -> Vec<Case> {
     let doc = crate::testing::fixture("clr_sets.json");
     let cases = doc["cases"].as_array().expect("cases");
     assert_eq!(cases.len(), 5);
@@ -57,7 +57,7 @@ fn endpoint(v: &Value) -> f64 {
     }
 }
 
-fn pieces(v: &Value) -> Vec<(f64, f64)> {
+pub(super) fn pieces(v: &Value) -> Vec<(f64, f64)> {
     v.as_array()
         .expect("pieces")
         .iter()
@@ -65,7 +65,7 @@ fn pieces(v: &Value) -> Vec<(f64, f64)> {
         .collect()
 }
 
-fn assert_set(what: &str, got: &ConfidenceSet, want: &[(f64, f64)], tol: f64) {
+pub(super) fn assert_set(what: &str, got: &ConfidenceSet, want: &[(f64, f64)], tol: f64) {
     assert_eq!(got.pieces.len(), want.len(), "{what}: {got:?} vs {want:?}");
     let mut worst = 0.0f64;
     for (&(g0, g1), &(w0, w1)) in got.pieces.iter().zip(want) {

@@ -86,12 +86,7 @@ fn weak_action(ctx: &Ctx, c: &RawContingency, spec: &Spec) -> Result<Action> {
     Ok(match then.as_str() {
         "anderson-rubin" => Action::AndersonRubin,
         "clr" => {
-            if spec.errors != Errors::Classical {
-                return Err(ctx.at(&c.then, key("then"), format!(
-                    "the CLR test sworn computes assumes homoskedastic errors, and specification `{}` uses {} errors; set its errors = \"classical\", or use then = \"anderson-rubin\", which follows the specification's errors",
-                    spec.id, spec.errors.name()
-                )));
-            }
+            clr_errors(ctx, c, spec)?;
             Action::Clr
         }
         "liml" => {
@@ -111,6 +106,22 @@ fn weak_action(ctx: &Ctx, c: &RawContingency, spec: &Spec) -> Result<Action> {
             Action::Tf
         }
     })
+}
+
+/// The CLR test exists for the specification's errors: homoskedastic (classical) and robust
+/// (Kleibergen 2005) with HC0–HC3 or one-way clusters; two-way clusters and HAC have no form
+/// sworn computes.
+fn clr_errors(ctx: &Ctx, c: &RawContingency, spec: &Spec) -> Result<()> {
+    let key = format!("contingency[{}].then", c.id.get_ref());
+    let why = match &spec.errors {
+        Errors::Cluster(by) if by.len() > 1 => "has no two-way clustered form (the two-way covariance is not a quadratic form in the residuals, which the robust form needs)",
+        Errors::Hac { .. } => "has no HAC form in sworn (its robust form covers HC0–HC3 and one-way clusters)",
+        _ => return Ok(()),
+    };
+    Err(ctx.at(&c.then, key, format!(
+        "the CLR test {why}, and specification `{}` uses {} errors; cluster by one variable or use hc0–hc3, or use then = \"anderson-rubin\", which follows the specification's errors",
+        spec.id, spec.errors.name()
+    )))
 }
 
 /// The action of an endogeneity rule: an OLS specification with the same outcome and data that

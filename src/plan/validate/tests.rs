@@ -330,9 +330,63 @@ fn weak_rule_needs_iv() {
     case("[family.main]", "[[contingency]]\nid = \"c1\"\nspecification = \"ols\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"anderson-rubin\"\n\n[family.main]", "contingency[c1].specification", "needs an instrumental-variable specification");
 }
 
+/// The base plan from the IV specification's errors to the family, with `errors` in their
+/// place and a `clr` rule on `iv` before the family.
+fn clr_rule_with(errors: &str) -> (&'static str, String) {
+    const TAIL: &str = "errors = { kind = \"cluster\", by = \"grp\" }\n\n[[hypothesis]]\nid = \"H1\"\nspecification = \"iv\"\nterm = \"d\"\nfamily = \"main\"\n\n[family.main]";
+    let rule = "[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"clr\"\n\n[family.main]";
+    let with = TAIL
+        .replace("errors = { kind = \"cluster\", by = \"grp\" }", errors)
+        .replace("[family.main]", rule);
+    (TAIL, with)
+}
+
 #[test]
-fn clr_rule_needs_classical_errors() {
-    case("[family.main]", "[[contingency]]\nid = \"c1\"\nspecification = \"iv\"\nwhen = { weak_instruments = { below = 10.0 } }\nthen = \"clr\"\n\n[family.main]", "contingency[c1].then", "assumes homoskedastic errors, and specification `iv` uses");
+fn clr_rule_refuses_two_way_clusters() {
+    let (anchor, with) = clr_rule_with("errors = { kind = \"cluster\", by = [\"grp\", \"id\"] }");
+    case(
+        anchor,
+        &with,
+        "contingency[c1].then",
+        "has no two-way clustered form",
+    );
+}
+
+#[test]
+fn clr_rule_refuses_hac_errors() {
+    let (anchor, with) = clr_rule_with("errors = { kind = \"hac\", bandwidth = 2 }");
+    // HAC needs the rows in time order: the table's order_by, a second edit.
+    let text = BASE.replacen(anchor, &with, 1).replacen(
+        "key = \"id\"",
+        "key = \"id\"\norder_by = \"id\"",
+        1,
+    );
+    let e = match from_text(Path::new("/plans/p.toml"), text) {
+        Ok(_) => panic!("hac errors with a clr rule were accepted"),
+        Err(e @ Error::Plan { .. }) => e.to_string(),
+        Err(other) => panic!("not a plan error: {other}"),
+    };
+    assert!(e.contains("`contingency[c1].then`"), "{e}");
+    assert!(e.contains("has no HAC form"), "{e}");
+    assert!(e.contains("then = \"anderson-rubin\""), "{e}");
+}
+
+/// Classical, HC and one-way clustered errors take the rule (the robust forms, Kleibergen
+/// 2005, with the specification's own covariance).
+#[test]
+fn clr_rule_accepts_classical_hc_and_one_way_clusters() {
+    for errors in [
+        "errors = \"classical\"",
+        "errors = \"hc1\"",
+        "errors = { kind = \"cluster\", by = \"grp\" }",
+    ] {
+        let (anchor, with) = clr_rule_with(errors);
+        let plan = BASE.replace(anchor, &with);
+        assert!(
+            from_text(Path::new("/plans/p.toml"), plan).is_ok(),
+            "{errors}"
+        );
+    }
 }
 
 #[test]

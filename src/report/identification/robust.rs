@@ -1,12 +1,12 @@
 //! "Do the conclusions hold if the instruments are weak?": Anderson–Rubin test and set,
-//! Kleibergen LM and Moreira CLR, tF. Typed values; the sentences are the `id_words` macro
+//! Kleibergen LM and CLR (homoskedastic or robust), tF. Typed values; the sentences are the `id_words` macro
 //! of `templates/words.j2`.
 
 use super::super::format::{num, p_is, set_text};
 use super::evidence::{errors_name, rejects};
 use super::typed::{typed_row, Cell, TypedEvidence, TypedQuestion, Words};
-use crate::plan::Spec;
-use crate::results::{ArShape, ErrorKind, SetPiece, SpecResult, TestResult};
+use crate::plan::{Errors, Spec};
+use crate::results::{ArShape, ErrorKind, LmClrErrors, SetPiece, SpecResult, TestResult};
 
 pub(super) fn robust(s: &Spec, r: &SpecResult, alpha: f64) -> TypedQuestion {
     let mut rows = Vec::new();
@@ -17,7 +17,7 @@ pub(super) fn robust(s: &Spec, r: &SpecResult, alpha: f64) -> TypedQuestion {
     if let Some(lc) = &r.lm_clr {
         rows.extend(lm_clr_rows(&x, lc, alpha));
     } else if r.anderson_rubin.is_some() {
-        rows.push(lm_clr_missing_row(r));
+        rows.push(lm_clr_missing_row(s, r));
     }
     if let Some(w) = &r.weak_instruments {
         rows.extend(tf_row(s, r, &x, w));
@@ -56,6 +56,7 @@ fn anderson_rubin_rows(
         test: "anderson_rubin",
         x: x.to_string(),
         null: null.clone(),
+        form: None,
     };
     vec![
         typed_row(test, &t, reading(x, &null, ar.p_value, alpha, false)),
@@ -63,6 +64,7 @@ fn anderson_rubin_rows(
             Words::RobustSet {
                 test: "anderson_rubin",
                 level: format!("{:.0}", 100.0 * ar.confidence),
+                form: None,
             },
             ar.shape,
             &ar.set,
@@ -92,24 +94,29 @@ fn set_row(test: Words, shape: ArShape, set: &[SetPiece], stationary: bool) -> T
     }
 }
 
-/// Kleibergen's LM and Moreira's conditional LR tests of `x` = their null.
+/// Kleibergen's LM and the conditional LR tests of `x` = their null, in the form the errors
+/// give (homoskedastic, or robust: Kleibergen 2005).
 fn lm_clr_rows(x: &str, lc: &crate::results::LmClrResult, alpha: f64) -> Vec<TypedEvidence> {
     let null = lc.null.to_string();
+    let form = Some(lc.errors.as_str());
+    let homoskedastic = lc.errors == LmClrErrors::Homoskedastic;
     let test = |test: &'static str| Words::RobustTest {
         test,
         x: x.to_string(),
         null: null.clone(),
+        form,
     };
     let level = format!("{:.0}", 100.0 * lc.confidence);
     let set = |test: &'static str| Words::RobustSet {
         test,
         level: level.clone(),
+        form,
     };
     vec![
         typed_row(
             test("lm"),
             &lc.lm,
-            reading(x, &null, lc.lm.p_value, alpha, true),
+            reading(x, &null, lc.lm.p_value, alpha, homoskedastic),
         ),
         TypedEvidence {
             test: test("clr").into(),
@@ -119,7 +126,7 @@ fn lm_clr_rows(x: &str, lc: &crate::results::LmClrResult, alpha: f64) -> Vec<Typ
             }
             .into(),
             threshold: p_is(lc.clr_p_value).into(),
-            reading: reading(x, &null, lc.clr_p_value, alpha, true).into(),
+            reading: reading(x, &null, lc.clr_p_value, alpha, homoskedastic).into(),
         },
         // LM is the squared score of the AR objective: zero at every stationary point.
         set_row(set("lm"), lc.lm_shape, &lc.lm_set, lc.lm_set.len() > 1),
@@ -127,16 +134,22 @@ fn lm_clr_rows(x: &str, lc: &crate::results::LmClrResult, alpha: f64) -> Vec<Typ
     ]
 }
 
-/// Why the LM and CLR tests are absent where the Anderson–Rubin test is shown.
-fn lm_clr_missing_row(r: &SpecResult) -> TypedEvidence {
+/// Why the LM and CLR tests are absent where the Anderson–Rubin test is shown: no form for
+/// the errors (two-way clusters, HAC), or undefined for the data.
+fn lm_clr_missing_row(s: &Spec, r: &SpecResult) -> TypedEvidence {
+    let two_way = matches!(&s.errors, Errors::Cluster(by) if by.len() > 1);
     TypedEvidence {
         test: Words::LmClrTests.into(),
         statistic: "—".into(),
         reference: "—".into(),
         threshold: Words::NotComputed.into(),
         reading: Words::LmClrMissing {
-            undefined: r.errors == ErrorKind::Classical,
-            errors: errors_name(r),
+            undefined: !(two_way || r.errors == ErrorKind::Hac),
+            errors: if two_way {
+                "two-way clustered"
+            } else {
+                errors_name(r)
+            },
         }
         .into(),
     }

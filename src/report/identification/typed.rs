@@ -142,11 +142,13 @@ pub(in crate::report) enum Words {
     HansenMissing,
     RobustAsk,
     RobustNote,
-    /// `test`: `anderson_rubin`, `lm` or `clr`.
+    /// `test`: `anderson_rubin`, `lm` or `clr`; `form` (LM and CLR only): `homoskedastic`,
+    /// `heteroskedasticity-robust` or `cluster-robust`.
     RobustTest {
         test: &'static str,
         x: String,
         null: String,
+        form: Option<&'static str>,
     },
     /// A weak-instrument-robust test's verdict; `homoskedastic`: it assumes so.
     RobustReading {
@@ -156,10 +158,12 @@ pub(in crate::report) enum Words {
         alpha: String,
         homoskedastic: bool,
     },
-    /// `test`: `anderson_rubin`, `lm` or `clr`; `level` in percent.
+    /// `test`: `anderson_rubin`, `lm` or `clr`; `level` in percent; `form` as for
+    /// [`Words::RobustTest`].
     RobustSet {
         test: &'static str,
         level: String,
+        form: Option<&'static str>,
     },
     InvertedTest,
     /// `shape`: `bounded`, `whole_line`, `empty`, `several_bounded` or `unbounded`.
@@ -172,7 +176,8 @@ pub(in crate::report) enum Words {
     },
     LmClrTests,
     NotComputed,
-    /// `undefined`: the errors were classical, so the statistics were undefined for the data.
+    /// `undefined`: the errors have a form of the tests (classical, HC0–HC3, one-way
+    /// clusters), so the statistics were undefined for the data.
     LmClrMissing {
         undefined: bool,
         errors: &'static str,

@@ -61,8 +61,8 @@ pub(super) struct HypTest {
 /// How a hypothesis was tested.
 #[derive(Debug, Serialize)]
 pub(super) struct Method {
-    /// `anderson_rubin`, `clr`, `tf`, `randomization_ar`, `randomization`, `wild_bootstrap`,
-    /// `normal` or `t`.
+    /// `anderson_rubin`, `clr`, `clr_robust`, `tf`, `randomization_ar`, `randomization`,
+    /// `wild_bootstrap`, `normal` or `t`.
     kind: &'static str,
     estimator: &'static str,
     df: Option<String>,
@@ -140,9 +140,15 @@ pub(super) fn rule_row(
     }
 }
 
-fn method(h: &crate::results::HypothesisResult) -> Method {
+fn method(h: &crate::results::HypothesisResult, r: &Results) -> Method {
+    let robust_clr = r
+        .specifications
+        .get(&h.tested_specification)
+        .and_then(|s| s.lm_clr.as_ref())
+        .is_some_and(|lc| lc.errors != crate::results::LmClrErrors::Homoskedastic);
     let kind = match h.method {
         TestMethod::AndersonRubin => "anderson_rubin",
+        TestMethod::Clr if robust_clr => "clr_robust",
         TestMethod::Clr => "clr",
         TestMethod::Tf => "tf",
         TestMethod::Randomization if h.estimator.is_iv() => "randomization_ar",
@@ -202,7 +208,7 @@ pub(super) fn hyp_row(id: &str, r: &Results) -> HypRow {
             },
             null: h.null.to_string(),
         },
-        method: method(h),
+        method: method(h, r),
         interval: interval(h),
         estimate: h.estimate.map(num),
         p: h.p_value.map(pval),
