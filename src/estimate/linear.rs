@@ -215,15 +215,6 @@ pub(crate) fn iv_setup(
     Ok(IvSetup { x, z, zqr })
 }
 
-/// One IV problem, prepared once and shared by the fit and every diagnostic of a
-/// specification: the inputs, the validated setup (X = [endog | exog], Z = [instruments |
-/// exog] and the QR of Z) and, computed on first use, the 2SLS residuals that the
-/// endogeneity and over-identification tests share.
-///
-/// Each method gives exactly the bits of the free function of the same name called with
-/// the same inputs (the same factorisations of the same matrices); it only avoids repeating
-/// them. Before, every diagnostic rebuilt the setup from the raw columns: nine QRs of Z and
-/// eight collinearity scans of X per 2SLS specification with every diagnostic.
 /// The columns of an instrumental-variable problem, borrowed: the outcome, the exogenous
 /// regressors (the caller's intercept among them), the endogenous regressors and the
 /// excluded instruments.
@@ -259,6 +250,16 @@ impl<'a> IvColumns<'a> {
     }
 }
 
+/// One IV problem, prepared once and shared by the fit and every diagnostic of a
+/// specification: the inputs, the validated setup (X = [endog | exog], Z = [instruments |
+/// exog] and the QR of Z) and, computed on first use, the 2SLS residuals that the
+/// endogeneity and over-identification tests share.
+///
+/// Each method gives exactly the bits of the free function of the same name called with
+/// the same inputs (the same factorisations of the same matrices); it only avoids repeating
+/// them. Before, every diagnostic rebuilt the setup from the raw columns: nine QRs of Z and
+/// eight collinearity scans of X per 2SLS specification with every diagnostic. Across
+/// specifications, the factorisations of the same matrices are shared too (module `shared`).
 #[derive(Debug)]
 pub struct IvProblem<'a> {
     pub(crate) y: &'a DVector<f64>,
