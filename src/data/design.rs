@@ -18,6 +18,8 @@ use crate::plan::{DataSource, Errors, Spec};
 use nalgebra::{DMatrix, DVector};
 
 /// The matrices of one specification after sample restriction and listwise deletion.
+/// The specification layer moves `focal`, `exog` and `instruments` out (leaving them empty,
+/// their names kept) once it has resolved collinearity, so that they are held once.
 #[derive(Debug, Clone)]
 pub struct Design {
     /// Rows in the table.

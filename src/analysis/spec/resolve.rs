@@ -9,7 +9,7 @@ use crate::deviation::{Deviation, DeviationCode};
 use crate::error::Result;
 use crate::estimate;
 use crate::plan::{DataSource, Spec};
-use nalgebra::{DMatrix, DVector};
+use nalgebra::DMatrix;
 
 /// The columns of a design kept after collinearity was resolved, by role.
 pub(super) struct Parts {
@@ -49,7 +49,8 @@ pub(super) fn columns(
     check_rows_left(spec, &d)?;
     let d = absorbed_columns(spec, d, deviations)?;
     degenerate::check_scales(spec, &d)?;
-    let p = parts(spec, &d)?;
+    let mut d = d;
+    let p = parts(spec, &mut d)?;
     Ok((d, p))
 }
 
@@ -74,17 +75,27 @@ pub(super) fn select(m: &DMatrix<f64>, keep: &[usize]) -> DMatrix<f64> {
     DMatrix::from_fn(m.nrows(), keep.len(), |i, j| m[(i, keep[j])])
 }
 
-/// The blocks' columns side by side.
+/// The blocks' columns side by side (blocks of equal height), copied once.
 pub(super) fn hstack(blocks: &[&DMatrix<f64>]) -> DMatrix<f64> {
     let n = blocks.iter().map(|b| b.nrows()).max().unwrap_or(0);
-    let cols: Vec<DVector<f64>> = blocks
-        .iter()
-        .flat_map(|b| b.column_iter().map(|c| c.into_owned()))
-        .collect();
-    if cols.is_empty() {
-        DMatrix::zeros(n, 0)
+    let k = blocks.iter().map(|b| b.ncols()).sum();
+    let mut out = DMatrix::zeros(n, k);
+    let mut at = 0;
+    for b in blocks {
+        out.columns_mut(at, b.ncols()).copy_from(*b);
+        at += b.ncols();
+    }
+    out
+}
+
+/// Moves a matrix out of the design (its columns go to [`Parts`]), keeping the columns
+/// `keep`: the matrix itself, not a copy, when every column is kept in order.
+fn take_columns(m: &mut DMatrix<f64>, keep: &[usize]) -> DMatrix<f64> {
+    let m = std::mem::replace(m, DMatrix::zeros(0, 0));
+    if keep.len() == m.ncols() && keep.iter().enumerate().all(|(i, &j)| i == j) {
+        m
     } else {
-        DMatrix::from_columns(&cols)
+        select(&m, keep)
     }
 }
 
@@ -132,8 +143,9 @@ fn pick(names: &[String], keep: &[usize]) -> Vec<String> {
 }
 
 /// The design's columns with collinearity resolved: first among the regressors, then among
-/// the instruments and the controls kept.
-fn parts(spec: &Spec, d: &Design) -> Result<Parts> {
+/// the instruments and the controls kept. The columns move from `d` to the parts (the
+/// design's `focal`, `exog` and `instruments` are left empty; their names stay).
+fn parts(spec: &Spec, d: &mut Design) -> Result<Parts> {
     let mut dropped = Vec::new();
     let (ke, kf) = resolve(
         spec,
@@ -148,7 +160,7 @@ fn parts(spec: &Spec, d: &Design) -> Result<Parts> {
         "regressors",
         &mut dropped,
     )?;
-    let exog = select(&d.exog, &ke);
+    let exog = take_columns(&mut d.exog, &ke);
     let exog_names = pick(&d.exog_names, &ke);
     let (_, ki) = resolve(
         spec,
@@ -164,9 +176,9 @@ fn parts(spec: &Spec, d: &Design) -> Result<Parts> {
         &mut dropped,
     )?;
     let p = Parts {
-        focal: select(&d.focal, &kf),
+        focal: take_columns(&mut d.focal, &kf),
         focal_names: pick(&d.focal_names, &kf),
-        instruments: select(&d.instruments, &ki),
+        instruments: take_columns(&mut d.instruments, &ki),
         instrument_names: pick(&d.instrument_names, &ki),
         exog,
         exog_names,

@@ -12,8 +12,9 @@ use crate::data::Design;
 use crate::estimate::LinearFit;
 use nalgebra::{DMatrix, DVector, DVectorView};
 
-/// Scale the rows of `d`'s outcome and of every column of `d` and `p` by √w (nothing for an
-/// unweighted design). `d.y_raw` stays in the data's units.
+/// Scale the rows of `d`'s outcome and of every column of `p` by √w (nothing for an
+/// unweighted design; the design's own columns have moved to `p`). `d.y_raw` stays in the
+/// data's units.
 pub(super) fn scale_rows(d: &mut Design, p: &mut Parts) {
     let Some(w) = &d.weights else {
         return;
@@ -25,9 +26,6 @@ pub(super) fn scale_rows(d: &mut Design, p: &mut Parts) {
         }
     };
     d.y.component_mul_assign(&root);
-    scale(&mut d.focal);
-    scale(&mut d.exog);
-    scale(&mut d.instruments);
     scale(&mut p.focal);
     scale(&mut p.exog);
     scale(&mut p.instruments);
