@@ -51,6 +51,27 @@ pub(super) fn r_squared(fit: &LinearFit, scaled: DVectorView<f64>, d: &Design) -
     1.0 - fit.rss / tss
 }
 
+/// The R² in levels of a fit with absorbed fixed effects (as with explicit indicator
+/// columns): against the outcome before sweeping, Σ (y − ȳ)², or Σ w (y − ȳ_w)² weighted.
+/// The within R² is [`r_squared`] of the swept outcome (whose weighted mean is zero, so its
+/// weighted total is Σ w ỹ²).
+pub(super) fn levels_r_squared(fit: &LinearFit, d: &Design) -> f64 {
+    let tss: f64 = match &d.weights {
+        Some(w) => {
+            let mean = w.dot(&d.y_raw) / w.sum();
+            w.iter()
+                .zip(d.y_raw.iter())
+                .map(|(w, v)| w * (v - mean).powi(2))
+                .sum()
+        }
+        None => {
+            let mean = d.y_raw.mean();
+            d.y_raw.iter().map(|v| (v - mean) * (v - mean)).sum()
+        }
+    };
+    1.0 - fit.rss / tss
+}
+
 /// Residuals in the data's units (a weighted fit's residuals are of the scaled rows).
 pub(super) fn residuals(fit: &LinearFit, d: &Design) -> DVector<f64> {
     match &d.weights {

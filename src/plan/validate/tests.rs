@@ -612,12 +612,6 @@ fn weights_messages() {
             "sandwich errors only",
         ),
         (
-            hc1,
-            w("\nfixed_effects = [\"grp\"]"),
-            "specification[ols].fixed_effects",
-            "weighted within transformation is not available",
-        ),
-        (
             "errors = { kind",
             "weights = \"x\"\nerrors = { kind".to_string(),
             "hypothesis[H1].inference",
@@ -658,4 +652,7 @@ fn weights_messages() {
     let ok = BASE.replacen(hc1, &w(""), 1);
     let plan = from_text(Path::new("/plans/p.toml"), ok).expect("weighted hc1 OLS is valid");
     assert_eq!(plan.specifications[0].weights.as_deref(), Some("x"));
+    let fe = BASE.replacen(hc1, &w("\nfixed_effects = [\"grp\"]"), 1);
+    let plan = from_text(Path::new("/plans/p.toml"), fe).expect("weighted OLS with fixed effects");
+    assert_eq!(plan.specifications[0].fixed_effects, ["grp"]);
 }

@@ -1,0 +1,160 @@
+//! Probability weights with absorbed fixed effects through a plan: weighted OLS (HC0, HC1,
+//! CR1) and weighted 2SLS (HC1, CR1) with one and with two fixed effects, against
+//! tests/reference/fixtures/weights_fe.json (statsmodels WLS with explicit indicator columns,
+//! cross-checked there with linearmodels AbsorbingLS; linearmodels IV2SLS with weights and
+//! indicator columns; see tests/reference/weights_fe.py), at a relative 1e-8: coefficients,
+//! standard errors, R² in levels and within, residual SD, rows used, levels, and the order in
+//! which rows leave (a zero weight first, then the singletons it leaves behind).
+
+use crate::common::Study;
+use crate::reference::{close, fixture};
+use serde_json::Value;
+use std::fmt::Write;
+
+const HEAD: &str = r#"format = 1
+
+[study]
+title = "Weighted fixed effects reference"
+
+[data.main]
+path = "data.csv"
+
+[data.main.columns]
+g  = { kind = "integer" }
+r  = { kind = "integer" }
+s  = { kind = "integer" }
+y  = { kind = "number" }
+x  = { kind = "number" }
+c  = { kind = "number" }
+z1 = { kind = "number" }
+z2 = { kind = "number" }
+w  = { kind = "number" }
+"#;
+
+/// The error kinds checked for weighted OLS (`ols_one` and `ols_two` in the fixture).
+const OLS_ERRORS: [&str; 3] = ["hc0", "hc1", "cluster"];
+
+/// The plan's `errors` value for a kind.
+fn errors(kind: &str) -> String {
+    match kind {
+        "cluster" => "{ kind = \"cluster\", by = \"g\" }".to_string(),
+        k => format!("\"{k}\""),
+    }
+}
+
+/// One weighted specification per (estimator, fixed effects, errors) case.
+fn plan() -> String {
+    let mut out = HEAD.to_string();
+    for (fe_id, fes) in [("one", "[\"r\"]"), ("two", "[\"r\", \"s\"]")] {
+        for kind in OLS_ERRORS {
+            let _ = write!(
+                out,
+                "\n[[specification]]\nid = \"ols_{fe_id}_{kind}\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\"]\ncontrols = [\"c\"]\nfixed_effects = {fes}\nweights = \"w\"\nerrors = {}\n",
+                errors(kind)
+            );
+        }
+        for kind in ["hc1", "cluster"] {
+            let _ = write!(
+                out,
+                "\n[[specification]]\nid = \"tsls_{fe_id}_{kind}\"\nestimator = \"2sls\"\noutcome = \"y\"\nendogenous = [\"x\"]\ninstruments = [\"z1\", \"z2\"]\ncontrols = [\"c\"]\nfixed_effects = {fes}\nweights = \"w\"\nerrors = {}\n",
+                errors(kind)
+            );
+        }
+    }
+    out
+}
+
+/// The fixture's data as CSV (a missing weight written as NA).
+pub fn csv(f: &Value, names: &[&str]) -> String {
+    let cols: Vec<&Vec<Value>> = names
+        .iter()
+        .map(|c| f["data"][*c].as_array().expect("column"))
+        .collect();
+    let mut out = names.join(",");
+    out.push('\n');
+    for i in 0..cols[0].len() {
+        let row: Vec<String> = cols
+            .iter()
+            .map(|c| match &c[i] {
+                Value::Null => "NA".to_string(),
+                Value::Number(n) if n.is_i64() => n.to_string(),
+                v => format!("{}", v.as_f64().expect("number")),
+            })
+            .collect();
+        let _ = writeln!(out, "{}", row.join(","));
+    }
+    out
+}
+
+fn num(v: &Value, what: &str) -> f64 {
+    v.as_f64()
+        .unwrap_or_else(|| panic!("{what}: not a number: {v}"))
+}
+
+/// The estimates and standard errors of `x` and `c`.
+fn terms(r: &Value, e: &Value, kind: &str, id: &str) {
+    for name in ["x", "c"] {
+        let t = &r["terms"][name];
+        close(
+            &format!("{id} coef {name}"),
+            num(&t["estimate"], name),
+            num(&e["coef"][name], name),
+        );
+        close(
+            &format!("{id} se {name}"),
+            num(&t["std_error"], name),
+            num(&e["se"][kind][name], name),
+        );
+    }
+}
+
+/// Rows, dropped rows and levels of a weighted specification with fixed effects.
+fn sample(r: &Value, e: &Value, f: &Value, id: &str) {
+    assert_eq!(r["n"], e["n"], "{id}");
+    assert_eq!(r["weights"], "w", "{id}");
+    let x = &f["expected"];
+    assert_eq!(r["sample"]["dropped_missing"], x["dropped_missing"], "{id}");
+    assert_eq!(
+        r["sample"]["dropped_zero_weight"], x["dropped_zero_weight"],
+        "{id}"
+    );
+}
+
+#[test]
+fn weighted_fixed_effects_match_the_references() {
+    let f = fixture("weights_fe.json");
+    let names = ["g", "r", "s", "y", "x", "c", "z1", "z2", "w"];
+    let s = Study::with(&plan(), &csv(&f, &names));
+    let v = s.seal_and_run();
+    let specs = &v["specifications"];
+    for fe_id in ["one", "two"] {
+        let e = &f["expected"][format!("ols_{fe_id}")];
+        for kind in OLS_ERRORS {
+            let id = format!("ols_{fe_id}_{kind}");
+            let r = &specs[&id];
+            terms(r, e, kind, &id);
+            sample(r, e, &f, &id);
+            assert_eq!(r["singletons_dropped"], e["singletons_dropped"], "{id}");
+            for (key, want) in e["levels"].as_object().expect("levels") {
+                assert_eq!(&r["fixed_effects"][key], want, "{id} levels of {key}");
+            }
+            close("R²", num(&r["r_squared"], "r2"), num(&e["r_squared"], "r2"));
+            close(
+                "within R²",
+                num(&r["within_r_squared"], "wr2"),
+                num(&e["within_r_squared"], "wr2"),
+            );
+            close(
+                "residual SD",
+                num(&r["residual_sd"], "sd"),
+                num(&e["residual_sd"], "sd"),
+            );
+        }
+        let e = &f["expected"][format!("tsls_{fe_id}")];
+        for kind in ["hc1", "cluster"] {
+            let id = format!("tsls_{fe_id}_{kind}");
+            terms(&specs[&id], e, kind, &id);
+            sample(&specs[&id], e, &f, &id);
+        }
+    }
+}
