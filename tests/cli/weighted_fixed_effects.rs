@@ -1,5 +1,6 @@
-//! Probability weights with absorbed fixed effects through a plan: weighted OLS (HC0, HC1,
-//! CR1) and weighted 2SLS (HC1, CR1) with one and with two fixed effects, against
+//! Probability weights with absorbed fixed effects through a plan: weighted OLS (classical,
+//! HC0, HC1, CR1; HC2 and HC3 with one fixed effect and without) and weighted 2SLS
+//! (classical, HC1, CR1) with one and with two fixed effects, against
 //! tests/reference/fixtures/weights_fe.json (statsmodels WLS with explicit indicator columns,
 //! cross-checked there with linearmodels AbsorbingLS; linearmodels IV2SLS with weights and
 //! indicator columns; see tests/reference/weights_fe.py), at a relative 1e-8: coefficients,
@@ -31,8 +32,20 @@ z2 = { kind = "number" }
 w  = { kind = "number" }
 "#;
 
-/// The error kinds checked for weighted OLS (`ols_one` and `ols_two` in the fixture).
-const OLS_ERRORS: [&str; 3] = ["hc0", "hc1", "cluster"];
+/// The error kinds checked for weighted OLS with one fixed effect (`ols_one` in the
+/// fixture); with two, HC2 and HC3 are refused (no absorbed leverage), so the first four.
+const OLS_ERRORS: [&str; 6] = ["classical", "hc0", "hc1", "cluster", "hc2", "hc3"];
+
+/// The error kinds checked for weighted 2SLS.
+const IV_ERRORS: [&str; 3] = ["classical", "hc1", "cluster"];
+
+/// The error kinds of weighted OLS with each number of fixed effects.
+fn ols_errors(fe_id: &str) -> &'static [&'static str] {
+    match fe_id {
+        "one" => &OLS_ERRORS,
+        _ => &OLS_ERRORS[..4],
+    }
+}
 
 /// The plan's `errors` value for a kind.
 fn errors(kind: &str) -> String {
@@ -45,15 +58,21 @@ fn errors(kind: &str) -> String {
 /// One weighted specification per (estimator, fixed effects, errors) case.
 fn plan() -> String {
     let mut out = HEAD.to_string();
+    for kind in ["classical", "hc2", "hc3"] {
+        let _ = write!(
+            out,
+            "\n[[specification]]\nid = \"ols_no_fe_{kind}\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\"]\ncontrols = [\"c\"]\nweights = \"w\"\nerrors = \"{kind}\"\n"
+        );
+    }
     for (fe_id, fes) in [("one", "[\"r\"]"), ("two", "[\"r\", \"s\"]")] {
-        for kind in OLS_ERRORS {
+        for kind in ols_errors(fe_id) {
             let _ = write!(
                 out,
                 "\n[[specification]]\nid = \"ols_{fe_id}_{kind}\"\nestimator = \"ols\"\noutcome = \"y\"\nregressors = [\"x\"]\ncontrols = [\"c\"]\nfixed_effects = {fes}\nweights = \"w\"\nerrors = {}\n",
                 errors(kind)
             );
         }
-        for kind in ["hc1", "cluster"] {
+        for kind in IV_ERRORS {
             let _ = write!(
                 out,
                 "\n[[specification]]\nid = \"tsls_{fe_id}_{kind}\"\nestimator = \"2sls\"\noutcome = \"y\"\nendogenous = [\"x\"]\ninstruments = [\"z1\", \"z2\"]\ncontrols = [\"c\"]\nfixed_effects = {fes}\nweights = \"w\"\nerrors = {}\n",
@@ -91,9 +110,10 @@ fn num(v: &Value, what: &str) -> f64 {
         .unwrap_or_else(|| panic!("{what}: not a number: {v}"))
 }
 
-/// The estimates and standard errors of `x` and `c`.
+/// The estimates and standard errors of the terms the fixture lists.
 fn terms(r: &Value, e: &Value, kind: &str, id: &str) {
-    for name in ["x", "c"] {
+    for name in e["coef"].as_object().expect("coef map").keys() {
+        let name = name.as_str();
         let t = &r["terms"][name];
         close(
             &format!("{id} coef {name}"),
@@ -127,9 +147,15 @@ fn weighted_fixed_effects_match_the_references() {
     let s = Study::with(&plan(), &csv(&f, &names));
     let v = s.seal_and_run();
     let specs = &v["specifications"];
+    let e = &f["expected"]["ols_no_fe"];
+    for kind in ["classical", "hc2", "hc3"] {
+        let id = format!("ols_no_fe_{kind}");
+        terms(&specs[&id], e, kind, &id);
+        sample(&specs[&id], e, &f, &id);
+    }
     for fe_id in ["one", "two"] {
         let e = &f["expected"][format!("ols_{fe_id}")];
-        for kind in OLS_ERRORS {
+        for kind in ols_errors(fe_id) {
             let id = format!("ols_{fe_id}_{kind}");
             let r = &specs[&id];
             terms(r, e, kind, &id);
@@ -151,10 +177,20 @@ fn weighted_fixed_effects_match_the_references() {
             );
         }
         let e = &f["expected"][format!("tsls_{fe_id}")];
-        for kind in ["hc1", "cluster"] {
+        for kind in IV_ERRORS {
             let id = format!("tsls_{fe_id}_{kind}");
             terms(&specs[&id], e, kind, &id);
             sample(&specs[&id], e, &f, &id);
         }
     }
+    let report = s.read("out/report.md");
+    assert_eq!(
+        report
+            .matches(
+                "classical errors, which hold if each row's error variance is proportional to 1/w"
+            )
+            .count(),
+        5,
+        "one caution per weighted specification with classical errors"
+    );
 }

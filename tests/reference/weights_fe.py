@@ -14,7 +14,8 @@ too); row 3 has no weight (it leaves like any missing value).
 Where each expected value comes from (fixed effects as explicit indicator columns: the
 intercept and one column per level but the first of each grouping):
   * Weighted OLS with r, and with r and s: statsmodels WLS(y, [x, c, dummies], weights=w),
-    cov_type "HC0", "HC1", "HC2", "HC3" and "cluster" (groups = g; statsmodels' default
+    cov_type "nonrobust" (classical: s^2 = sum w u^2 / (n-k) times (X'WX)^-1), "HC0", "HC1",
+    "HC2", "HC3" and "cluster" (groups = g; statsmodels' default
     factor G/(G-1) * (n-1)/(n-k), k counting the indicator columns, which is sworn's CR1
     factor when no fixed effect is nested in the clusters: asserted below). R^2 is WLS's
     rsquared (weighted, centred); the within R^2 is 1 - ssr / ssr of WLS(y, dummies);
@@ -23,11 +24,13 @@ intercept and one column per level but the first of each grouping):
   * The same weighted OLS with r absorbed by linearmodels AbsorbingLS(weights=w): asserted
     equal to the explicit-dummy coefficients (a second library, not stored).
   * Weighted 2SLS with r, and with r and s: linearmodels IV2SLS(y, [const, c, dummies], x,
-    [z1, z2], weights=w), cov_type "robust", debiased=True (HC1, n/(n-k)) and "clustered",
+    [z1, z2], weights=w), cov_type "unadjusted", debiased=True (classical, s^2 with n-k),
+    "robust", debiased=True (HC1, n/(n-k)) and "clustered",
     debiased=True (G/(G-1) * (n-1)/(n-k)).
-  * Weighted OLS without fixed effects (the c control and an intercept) with HC2 and HC3:
-    statsmodels WLS; its leverage is that of the sqrt(w)-scaled design (asserted against
-    OLS on scaled rows).
+  * Weighted OLS without fixed effects (x, the c control and an intercept) with classical,
+    HC2 and HC3 errors: statsmodels WLS; its leverage is that of the sqrt(w)-scaled design
+    (asserted against OLS on scaled rows). With one fixed effect the leverage of the
+    indicator columns is part of WLS's (sworn adds w_i / sum of the level's weights).
 """
 import json
 import os
@@ -99,8 +102,8 @@ def ols_case(df, fes, kinds):
     y = df["y"].to_numpy()
     se = {}
     for kind in kinds:
-        kw = dict(cov_type=kind.upper()) if kind != "cluster" else dict(
-            cov_type="cluster", cov_kwds={"groups": df["g"].to_numpy()})
+        kw = {"cluster": dict(cov_type="cluster", cov_kwds={"groups": df["g"].to_numpy()}),
+              "classical": dict(cov_type="nonrobust")}.get(kind, dict(cov_type=kind.upper()))
         fit = sm.WLS(y, X.to_numpy(), weights=w).fit(**kw)
         se[kind] = {"x": float(fit.bse[1]), "c": float(fit.bse[2])}
     fe_only = sm.WLS(y, np.column_stack([np.ones(len(df)), D.to_numpy()]), weights=w).fit()
@@ -122,7 +125,8 @@ def iv_case(df, fes):
     exog = pd.concat([df[["c"]], dummies(df, fes)], axis=1)
     exog.insert(0, "const", 1.0)
     se = {}
-    for kind, kw in [("hc1", dict(cov_type="robust", debiased=True)),
+    for kind, kw in [("classical", dict(cov_type="unadjusted", debiased=True)),
+                     ("hc1", dict(cov_type="robust", debiased=True)),
                      ("cluster", dict(cov_type="clustered", clusters=df["g"], debiased=True))]:
         fit = IV2SLS(df["y"], exog, df[["x"]], df[["z1", "z2"]], weights=df["w"]).fit(**kw)
         se[kind] = {k: float(fit.std_errors[k]) for k in ["x", "c"]}
@@ -134,13 +138,13 @@ def leverage_case(df):
     X = sm.add_constant(df[["x", "c"]].to_numpy())
     y = df["y"].to_numpy()
     out = {"coef": None, "se": {}}
-    for kind in ["HC2", "HC3"]:
+    for kind in ["nonrobust", "HC2", "HC3"]:
         fit = sm.WLS(y, X, weights=w).fit(cov_type=kind)
         sw = np.sqrt(w)
         scaled = sm.OLS(y * sw, X * sw[:, None]).fit(cov_type=kind)
         assert np.allclose(fit.bse, scaled.bse, rtol=1e-10)
         out["coef"] = dict(zip(["intercept", "x", "c"], map(float, fit.params)))
-        out["se"][kind.lower()] = dict(zip(["intercept", "x", "c"], map(float, fit.bse)))
+        out["se"]["classical" if kind == "nonrobust" else kind.lower()] = dict(zip(["intercept", "x", "c"], map(float, fit.bse)))
     return out
 
 
@@ -154,7 +158,7 @@ def main():
     for name, fes in [("one", ["r"]), ("two", ["r", "s"])]:
         used = drop_singletons(positive, fes)
         assert all(not_nested(used, fe) for fe in fes)
-        kinds = ["hc0", "hc1", "cluster"] + (["hc2", "hc3"] if len(fes) == 1 else [])
+        kinds = ["classical", "hc0", "hc1", "cluster"] + (["hc2", "hc3"] if len(fes) == 1 else [])
         case = ols_case(used, fes, kinds)
         case["singletons_dropped"] = len(positive) - len(used)
         expected["ols_" + name] = case

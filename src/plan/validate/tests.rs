@@ -601,15 +601,9 @@ fn weights_messages() {
         ),
         (
             hc1,
-            "errors = \"hc3\"\nweights = \"x\"".to_string(),
+            "weights = \"x\"\nerrors = { kind = \"cluster\", by = [\"grp\", \"z\"] }".to_string(),
             "specification[ols].errors",
-            "hc3 errors with probability weights are not available",
-        ),
-        (
-            hc1,
-            "weights = \"x\"\nerrors = \"classical\"".to_string(),
-            "specification[ols].errors",
-            "sandwich errors only",
+            "two-way cluster errors with probability weights are not available",
         ),
         (
             "errors = { kind",
@@ -652,6 +646,10 @@ fn weights_messages() {
     let ok = BASE.replacen(hc1, &w(""), 1);
     let plan = from_text(Path::new("/plans/p.toml"), ok).expect("weighted hc1 OLS is valid");
     assert_eq!(plan.specifications[0].weights.as_deref(), Some("x"));
+    for errors in ["classical", "hc2", "hc3"] {
+        let ok = BASE.replacen(hc1, &format!("errors = \"{errors}\"\nweights = \"x\""), 1);
+        from_text(Path::new("/plans/p.toml"), ok).expect("weighted OLS with these errors");
+    }
     let fe = BASE.replacen(hc1, &w("\nfixed_effects = [\"grp\"]"), 1);
     let plan = from_text(Path::new("/plans/p.toml"), fe).expect("weighted OLS with fixed effects");
     assert_eq!(plan.specifications[0].fixed_effects, ["grp"]);
