@@ -172,11 +172,6 @@ impl FixedEffects {
         Ok(fe)
     }
 
-    /// The weight of observation `i` (1 unweighted).
-    fn weight(&self, i: usize) -> f64 {
-        self.weights.as_ref().map_or(1.0, |w| w[i])
-    }
-
     /// Σ w a b: the inner product the projections are orthogonal in.
     fn inner(&self, a: &[f64], b: &[f64]) -> f64 {
         match &self.weights {
@@ -407,9 +402,9 @@ impl FixedEffects {
             [ids] => Some(
                 ids.iter()
                     .enumerate()
-                    .map(|(i, &l)| match &self.totals {
-                        Some(t) => self.weight(i) / t[0][l],
-                        None => 1.0 / self.counts[0][l] as f64,
+                    .map(|(i, &l)| match (&self.totals, &self.weights) {
+                        (Some(t), Some(w)) => w[i] / t[0][l],
+                        _ => 1.0 / self.counts[0][l] as f64,
                     })
                     .collect(),
             ),

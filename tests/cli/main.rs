@@ -30,4 +30,5 @@ mod results_bytes;
 mod summaries;
 mod table_rows;
 mod weighted_fixed_effects;
+mod weighted_resampling;
 mod weights;

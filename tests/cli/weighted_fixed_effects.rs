@@ -83,11 +83,11 @@ fn plan() -> String {
     out
 }
 
-/// The fixture's data as CSV (a missing weight written as NA).
-pub fn csv(f: &Value, names: &[&str]) -> String {
+/// A fixture's columns (`data`, one array per name) as CSV (a missing value written as NA).
+pub fn csv(data: &Value, names: &[&str]) -> String {
     let cols: Vec<&Vec<Value>> = names
         .iter()
-        .map(|c| f["data"][*c].as_array().expect("column"))
+        .map(|c| data[*c].as_array().expect("column"))
         .collect();
     let mut out = names.join(",");
     out.push('\n');
@@ -144,7 +144,7 @@ fn sample(r: &Value, e: &Value, f: &Value, id: &str) {
 fn weighted_fixed_effects_match_the_references() {
     let f = fixture("weights_fe.json");
     let names = ["g", "r", "s", "y", "x", "c", "z1", "z2", "w"];
-    let s = Study::with(&plan(), &csv(&f, &names));
+    let s = Study::with(&plan(), &csv(&f["data"], &names));
     let v = s.seal_and_run();
     let specs = &v["specifications"];
     let e = &f["expected"]["ols_no_fe"];

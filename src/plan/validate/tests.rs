@@ -501,6 +501,7 @@ fn message_cases() -> Vec<(
         ("", FAMILY, before_family(&format!("{resampling}\n\n[[hypothesis]]\nid = \"H2\"\nspecification = \"iv\"\nterm = \"d\"\ninference = \"randomization\"")), "hypothesis[H2].inference", "which the plan must declare in [assignment]"),
         ("", FAMILY, before_family(&format!("{resampling}\n\n[assignment]\nvariable = \"d\"\ndesign = \"complete\"\n\n[[hypothesis]]\nid = \"H2\"\nspecification = \"iv\"\nterm = \"d\"\ninference = \"randomization\"")), "hypothesis[H2].inference", "applies to the assigned variable `d`"),
         (assigned_z, IV_TO_H1, IV_TO_H1.replacen("by = \"grp\" }", "by = \"grp\" }\nfixed_effects = [\"grp\"]", 1) + "\ninference = \"randomization\"", "hypothesis[H1].inference", "needs each fixed effect to be the assignment's block variable"),
+        (assigned_z, IV_TO_H1, IV_TO_H1.replacen("by = \"grp\" }", "by = \"grp\" }\nweights = \"x\"", 1) + "\ninference = \"randomization\"", "hypothesis[H1].inference", "with probability weights it is implemented for OLS without fixed effects"),
         (assigned_z, H1_END, format!("{H1_END}\ninference = \"randomization\"\nstatistic = \"z\""), "hypothesis[H1].statistic", "use one of `t`, `estimate`"),
         (resampling, H1_END, "term = \"x\"\nfamily = \"main\"\ninference = \"wild-bootstrap\"".into(), "hypothesis[H1].inference", "tests the endogenous coefficient `d`"),
         ("", H1_END, format!("{H1_END}\ninference = \"wild-bootstrap\""), "hypothesis[H1].inference", "the wild cluster bootstrap needs [resampling]"),
@@ -604,12 +605,6 @@ fn weights_messages() {
             "weights = \"x\"\nerrors = { kind = \"cluster\", by = [\"grp\", \"z\"] }".to_string(),
             "specification[ols].errors",
             "two-way cluster errors with probability weights are not available",
-        ),
-        (
-            "errors = { kind",
-            "weights = \"x\"\nerrors = { kind".to_string(),
-            "hypothesis[H1].inference",
-            "resampling with probability weights is not implemented",
         ),
         (
             hc1,
