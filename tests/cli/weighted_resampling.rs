@@ -1,8 +1,8 @@
 //! Resampled tests of weighted specifications through a plan, against the brute-force
 //! fixture of tests/reference/weights_resampling.py (every Rademacher vector of 8 clusters,
 //! every one of the 924 assignments, each draw refitted by statsmodels WLS or linearmodels
-//! IV2SLS with weights): the wild cluster bootstrap of weighted OLS and the wild restricted
-//! efficient bootstrap of weighted 2SLS, and randomization tests of weighted OLS (t and
+//! IV2SLS with weights): the wild cluster bootstrap of weighted OLS (also with a fixed effect
+//! nested in the clusters) and the wild restricted efficient bootstrap of weighted 2SLS, and randomization tests of weighted OLS (t and
 //! estimate). p-values (ratios of counts) exactly; the observed statistic at relative 1e-8.
 
 use crate::reference::{close, fixture};
@@ -19,6 +19,7 @@ path = "data.csv"
 
 [data.main.columns]
 g  = { kind = "integer" }
+h  = { kind = "integer" }
 y  = { kind = "number" }
 x  = { kind = "number" }
 c  = { kind = "number" }
@@ -39,6 +40,16 @@ weights = "w"
 errors = { kind = "cluster", by = "g" }
 
 [[specification]]
+id = "ols_fe"
+estimator = "ols"
+outcome = "y"
+regressors = ["x"]
+controls = ["c"]
+fixed_effects = ["h"]
+weights = "w"
+errors = { kind = "cluster", by = "g" }
+
+[[specification]]
 id = "iv"
 estimator = "2sls"
 outcome = "y"
@@ -51,6 +62,13 @@ errors = { kind = "cluster", by = "g" }
 [[hypothesis]]
 id = "W_ols"
 specification = "ols"
+term = "x"
+null = 0.2
+inference = "wild-bootstrap"
+
+[[hypothesis]]
+id = "W_ols_fe"
+specification = "ols_fe"
 term = "x"
 null = 0.2
 inference = "wild-bootstrap"
@@ -125,9 +143,11 @@ fn check(h: &Value, e: &Value, id: &str) {
 #[test]
 fn weighted_wild_bootstraps_match_brute_force_through_a_plan() {
     let f = fixture("weights_resampling.json");
-    let names = ["g", "y", "x", "c", "z1", "z2", "w"];
+    let names = ["g", "h", "y", "x", "c", "z1", "z2", "w"];
     let s = crate::common::Study::with(WILD, &csv(&f["clustered"], &names));
     let v = s.seal_and_run();
+    let fe = &f["expected"]["wild_ols_fe"];
+    check(&v["hypotheses"]["W_ols_fe"], fe, "W_ols_fe");
     check(
         &v["hypotheses"]["W_ols"],
         &f["expected"]["wild_ols"],

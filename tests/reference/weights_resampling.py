@@ -13,6 +13,10 @@ Cases (every statistic refitted from scratch by a library, once per draw):
     and the statistic is the CR1 t of beta_x = null from statsmodels WLS(y*, X, weights=w)
     with cov_type "cluster" (G/(G-1) (n-1)/(n-k)). All 256 vectors, the all-ones one the
     observed fit.
+  * wild_ols_fe: the same bootstrap with a fixed effect h nested in the clusters (each
+    cluster's first and second half of rows), as explicit indicator columns in every WLS fit;
+    statistics rescaled by sqrt((n - 2)/(n - k)) to sworn's CR1 factor, which leaves nested
+    levels out of its count (the counts do not depend on a constant factor).
   * wild_tsls: the same clusters, weighted 2SLS of y on [x, 1, c] with instruments z1, z2.
     The wild restricted efficient bootstrap in weighted terms: restricted structural fit WLS
     of y - null x on [1, c] (g, u); efficient reduced form WLS of x on [z1, z2, 1, c, u], its
@@ -89,6 +93,37 @@ def wild_ols(d, null):
     return obs, stats
 
 
+def nested_halves(g):
+    """Each cluster split into its first and second half of rows: levels nested in g."""
+    h = np.zeros(len(g), dtype=int)
+    for c in np.unique(g):
+        rows = np.flatnonzero(g == c)
+        h[rows] = 2 * c + (np.arange(len(rows)) >= len(rows) // 2)
+    return h
+
+
+def wild_ols_fe(d, null):
+    n = len(d["y"])
+    D = pd.get_dummies(d["h"], drop_first=True, dtype=float).to_numpy()
+    X = np.column_stack([d["x"], np.ones(n), d["c"], D])
+    W = X[:, 1:]
+    # statsmodels counts every indicator column in its CR1 factor (n-1)/(n-k); sworn leaves
+    # out levels nested in the clusters (all of them here), so its t is larger by
+    # sqrt((n - 2) / (n - k)), k = X's columns, 2 = x and c. A constant factor: the counts
+    # are unaffected, the statistics rescaled.
+    k = X.shape[1]
+    factor = np.sqrt((n - 2) / (n - k))
+    obs = wls_cr1_t(d["y"], X, d["w"], d["g"], null) * factor
+    r = sm.WLS(d["y"] - null * d["x"], W, weights=d["w"]).fit()
+    fitted, u = W @ r.params, r.resid
+    stats = []
+    for e in itertools.product([1.0, -1.0], repeat=8):
+        ys = null * d["x"] + fitted + u * np.asarray(e)[d["g"]]
+        stats.append(wls_cr1_t(ys, X, d["w"], d["g"], null) * factor)
+    assert abs(stats[0] - obs) < 1e-10 * abs(obs)
+    return obs, stats
+
+
 def iv_t(y, x, d, null):
     n = len(y)
     exog = pd.DataFrame({"const": np.ones(n), "c": d["c"]})
@@ -157,9 +192,11 @@ def main():
     rng = np.random.default_rng(SEED)
     cd = cluster_data(rng)
     rd = ri_data(rng)
+    cd["h"] = nested_halves(cd["g"])
     expected = {
         "wild_ols": case(*wild_ols(cd, 0.2), null=0.2),
         "wild_tsls": case(*wild_tsls(cd, -0.5), null=-0.5),
+        "wild_ols_fe": case(*wild_ols_fe(cd, 0.2), null=0.2),
         "ri_t": case(*ri_case(rd, 0.0, "t"), null=0.0),
         "ri_estimate": case(*ri_case(rd, 0.4, "estimate"), null=0.4),
     }
@@ -170,7 +207,7 @@ def main():
                      "pandas": pd.__version__, "statsmodels": statsmodels.__version__,
                      "linearmodels": linearmodels.__version__},
         "seed": SEED,
-        "clustered": {k: [int(v) for v in vals] if k == "g" else [float(v) for v in vals]
+        "clustered": {k: [int(v) for v in vals] if k in ("g", "h") else [float(v) for v in vals]
                       for k, vals in cd.items()},
         "randomized": {k: [float(v) for v in vals] for k, vals in rd.items()},
         "expected": expected,
