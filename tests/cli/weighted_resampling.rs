@@ -158,6 +158,16 @@ fn weighted_wild_bootstraps_match_brute_force_through_a_plan() {
         &f["expected"]["wild_tsls"],
         "W_iv",
     );
+    let report = s.read("out/report.md");
+    assert_eq!(
+        report
+            .matches("CR1 t recomputed by weighted least squares (weights `w`")
+            .count(),
+        3,
+        "the report says the bootstrap refits are weighted"
+    );
+    let r = s.sworn(&["verify", "out"]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
 }
 
 #[test]
@@ -180,4 +190,17 @@ fn weighted_randomization_matches_brute_force_through_a_plan() {
         .expect("estimate");
     let end = |k: &str| interval[k].as_f64().expect("a bounded end");
     assert!(end("lower") < b && b < end("upper"), "{interval}");
+    // verify re-derives the weighted resampled results bit for bit.
+    let r = s.sworn(&["verify", "out"]);
+    assert_eq!(r.code, 0, "{}{}", r.stdout, r.stderr);
+    let report = s.read("out/report.md");
+    assert_eq!(
+        report
+            .matches(
+                "each unit keeping its weight `w` and every draw fitted by weighted least squares"
+            )
+            .count(),
+        2,
+        "the report says the draws keep the weights"
+    );
 }
