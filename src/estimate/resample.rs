@@ -102,7 +102,22 @@ impl<'a> OlsColumns<'a> {
     pub(crate) fn root_weights(&self) -> Option<DVector<f64>> {
         self.weights.map(|w| w.map(f64::sqrt))
     }
+
+    /// The outcome and regressors with every row scaled by √w (`None` unweighted), after
+    /// checking the weights (one per row, finite and positive).
+    pub(crate) fn scaled(&self) -> Result<Option<Scaled>, EstimateError> {
+        randomization::check_weights(self.weights, self.y.len())?;
+        Ok(self.root_weights().map(|r| {
+            (
+                self.y.component_mul(&r),
+                scale_rows(self.x.clone(), Some(&r)),
+            )
+        }))
+    }
 }
+
+/// An outcome and regressors with their rows scaled by √w.
+pub(crate) type Scaled = (DVector<f64>, DMatrix<f64>);
 
 /// `m` with every row multiplied by its entry of `root` (unchanged for `None`).
 pub(crate) fn scale_rows(mut m: DMatrix<f64>, root: Option<&DVector<f64>>) -> DMatrix<f64> {

@@ -184,15 +184,9 @@ impl Test<'_> {
         // Weighted: the columns in the data's units with their weights (the test scales the
         // rows itself, so the re-drawn treatment takes the weights of the units it lands on).
         let raw = super::weighted::unscaled_regressors(self.prepared, &self.x, &self.need.term)?;
-        let (y, x) = match &raw {
-            Some(x) => (&d.y_raw, x),
-            None => (&d.y, &self.x),
-        };
-        let cols = crate::estimate::OlsColumns::new(y, x);
-        let cols = match &d.weights {
-            Some(w) => cols.weighted(w),
-            None => cols,
-        };
+        let (y, x) = raw.as_ref().map_or((&d.y, &self.x), |x| (&d.y_raw, x));
+        let weights = d.weights.as_ref();
+        let cols = crate::estimate::OlsColumns { y, x, weights };
         let test = estimate::randomization_test(
             cols,
             crate::estimate::Tested::new(self.index, self.need.null),
@@ -206,7 +200,7 @@ impl Test<'_> {
         let problem = estimate::IntervalProblem {
             y,
             x,
-            weights: d.weights.as_ref(),
+            weights,
             treatment: self.index,
             cov,
             absorbed: &d.absorbed,

@@ -39,7 +39,7 @@ use super::super::qr::PivotedQr;
 use super::super::refine::residual;
 use super::super::{Absorbed, EstimateError};
 use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
-use super::{scale_rows, OlsColumns, Tested};
+use super::{OlsColumns, Tested};
 
 /// The distribution of the cluster weights.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -136,19 +136,10 @@ pub(crate) fn wild_statistics(
     plan: &Draws,
     absorbed: &Absorbed,
 ) -> Result<DrawStats, ResampleError> {
-    super::randomization::check_weights(cols.weights, cols.y.len())?;
     // Weighted: the bootstrap of the √w-scaled model (its residuals are those of the scaled
     // rows, so a cluster's weight multiplies √w·u).
-    let scaled = cols.root_weights().map(|r| {
-        (
-            cols.y.component_mul(&r),
-            scale_rows(cols.x.clone(), Some(&r)),
-        )
-    });
-    let (y, x) = match &scaled {
-        Some((y, x)) => (y, x),
-        None => (cols.y, cols.x),
-    };
+    let scaled = cols.scaled()?;
+    let (y, x) = scaled.as_ref().map_or((cols.y, cols.x), |(y, x)| (y, x));
     let Tested {
         index: coef_index,
         null,
