@@ -4,9 +4,10 @@
 //! Without fixed effects the exogenous block is: intercept (when asked for), controls. With
 //! fixed effects, observations alone in their level of any fixed effect (singletons) are
 //! dropped, repeatedly, and every column (outcome, regressors, instruments, controls) is
-//! swept of the fixed effects by alternating projections (`estimate::FixedEffects`); the
-//! intercept is absorbed and the degrees of freedom the fixed effects use travel with the
-//! design as [`Absorbed`]. A column with no variation left after the sweep (one the sweep sets
+//! swept of the fixed effects by alternating projections (`estimate::FixedEffects`; with
+//! weighted group means for a weighted specification, whose rows the caller then scales by
+//! √w); the intercept is absorbed and the degrees of freedom the fixed effects use travel
+//! with the design as [`Absorbed`]. A column with no variation left after the sweep (one the sweep sets
 //! to zero: `estimate::absorb` decides, with its one tolerance) is constant within the fixed
 //! effects and is reported by name.
 //! Collinearity among the remaining columns is resolved left to right by the caller.
@@ -192,12 +193,13 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
     if let Some(r) = first_row_missing_weight(table, spec, &rows) {
         return Err(super::weights::missing_weight(table, source, spec, r));
     }
-    let (weights, zero_weights) = super::weights::sample_weights(table, source, spec, &mut rows)?;
+    let zero_weights = super::weights::drop_zero_weights(table, source, spec, &mut rows)?;
     let mut groups = Vec::new();
     for fe in &spec.fixed_effects {
         groups.push(labels(table, fe, spec)?);
     }
     let singletons = drop_singleton_rows(&groups, &mut rows, spec)?;
+    let weights = super::weights::row_weights(table, spec, &rows)?;
     let n = rows.len();
     let outcome = column(table, &spec.outcome, spec)?;
     let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
@@ -215,7 +217,7 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
         true => Swept::default(),
         false => sweep_fixed_effects(
             spec,
-            (&groups, &rows),
+            (&groups, &rows, weights.as_ref()),
             &clusters,
             &mut y,
             [
@@ -259,11 +261,12 @@ struct Swept {
     absorbed_columns: Vec<String>,
 }
 
-/// Sweep the fixed effects (`groups`, one label column each, over the kept `rows`) out of
-/// the outcome `y` and each named block of regressors, in place.
+/// Sweep the fixed effects (`groups`, one label column each, over the kept `rows`, with
+/// weighted group means when the rows have `weights`) out of the outcome `y` and each named
+/// block of regressors, in place.
 fn sweep_fixed_effects(
     spec: &Spec,
-    (groups, rows): (&[&Labels], &[usize]),
+    (groups, rows, weights): (&[&Labels], &[usize], Option<&DVector<f64>>),
     clusters: &[(Vec<usize>, usize)],
     y: &mut DVector<f64>,
     blocks: [(&mut DMatrix<f64>, &[String]); 3],
@@ -272,7 +275,11 @@ fn sweep_fixed_effects(
         .iter()
         .map(|g| Ok(group_index(g, rows, spec)?.0))
         .collect::<Result<_>>()?;
-    let fe = FixedEffects::new(ids).map_err(|e| sweep_error(spec, &e))?;
+    let fe = match weights {
+        Some(w) => FixedEffects::weighted(ids, w.as_slice()),
+        None => FixedEffects::new(ids),
+    }
+    .map_err(|e| sweep_error(spec, &e))?;
     let cluster_ids: Vec<&[usize]> = clusters.iter().map(|(c, _)| c.as_slice()).collect();
     let mut swept = Swept {
         fixed_effects: spec

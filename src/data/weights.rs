@@ -23,24 +23,18 @@ pub(super) fn missing_weight(table: &Table, source: &DataSource, spec: &Spec, r:
     }
 }
 
-/// The weights of the rows kept, after dropping zero-weight rows from `rows`; with the
-/// number dropped. `None` (and 0) for an unweighted specification.
-pub(super) fn sample_weights(
+/// Drop the zero-weight rows from `rows` (the rows the sample and listwise deletion kept),
+/// refusing a negative weight; returns how many were dropped (0 for an unweighted
+/// specification).
+pub(super) fn drop_zero_weights(
     table: &Table,
     source: &DataSource,
     spec: &Spec,
     rows: &mut Vec<usize>,
-) -> Result<(Option<DVector<f64>>, usize)> {
-    let Some(name) = &spec.weights else {
-        return Ok((None, 0));
+) -> Result<usize> {
+    let Some((name, column)) = weight_column(table, spec)? else {
+        return Ok(0);
     };
-    let column = table.numeric.get(name).ok_or_else(|| Error::Estimation {
-        spec: spec.id.clone(),
-        message: format!(
-            "weights column `{name}` is not available in data table `{}`",
-            table.id
-        ),
-    })?;
     let value = |r: usize| column[r].unwrap_or(f64::NAN);
     if let Some(&r) = rows.iter().find(|&&r| value(r).is_nan() || value(r) < 0.0) {
         return Err(Error::Estimation {
@@ -55,6 +49,37 @@ pub(super) fn sample_weights(
     }
     let before = rows.len();
     rows.retain(|&r| value(r) > 0.0);
-    let w = DVector::from_iterator(rows.len(), rows.iter().map(|&r| value(r)));
-    Ok((Some(w), before - rows.len()))
+    Ok(before - rows.len())
+}
+
+/// The weights of the final `rows` (after zero weights and fixed-effect singletons left),
+/// each positive ([`drop_zero_weights`] ran first); `None` for an unweighted specification.
+pub(super) fn row_weights(
+    table: &Table,
+    spec: &Spec,
+    rows: &[usize],
+) -> Result<Option<DVector<f64>>> {
+    let Some((_, column)) = weight_column(table, spec)? else {
+        return Ok(None);
+    };
+    let w = rows.iter().map(|&r| column[r].unwrap_or(f64::NAN));
+    Ok(Some(DVector::from_iterator(rows.len(), w)))
+}
+
+/// A weights column's name and its cells.
+type WeightColumn<'t> = (&'t str, &'t [Option<f64>]);
+
+/// The specification's weights column and its name (`None` unweighted).
+fn weight_column<'t>(table: &'t Table, spec: &'t Spec) -> Result<Option<WeightColumn<'t>>> {
+    let Some(name) = &spec.weights else {
+        return Ok(None);
+    };
+    let column = table.numeric.get(name).ok_or_else(|| Error::Estimation {
+        spec: spec.id.clone(),
+        message: format!(
+            "weights column `{name}` is not available in data table `{}`",
+            table.id
+        ),
+    })?;
+    Ok(Some((name, column)))
 }

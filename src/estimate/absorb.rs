@@ -15,6 +15,13 @@
 //! sweeps (coefficients summing to one), so the iterate stays in v + span(D) and the
 //! result is a deterministic function of the input.
 //!
+//! Probability weights ([`FixedEffects::weighted`]): the sweep subtracts weighted group means
+//! Σ_g w v / Σ_g w, and the acceleration and the absorbed-column test use the weighted inner
+//! product Σ w a b. The result is M v in the data's units, where √w ⊙ (M v) is the projection
+//! of the √w-scaled column √w ⊙ v off the √w-scaled dummies: sweeping with weighted means and
+//! then scaling rows by √w is the within transformation of weighted least squares, and the
+//! leverage of the absorbed projection is w_i / Σ_g w.
+//!
 //! Convergence: a column is finished when a plain sweep changes no element by more than
 //! [`SWEEP_TOLERANCE`] × (its largest absolute input value); the result returned is always the
 //! output of such a plain sweep. After [`MAX_SWEEPS`] sweeps without meeting the tolerance the
@@ -94,6 +101,10 @@ pub struct FixedEffects {
     ids: Vec<Vec<usize>>,
     /// Per dimension, the number of observations in each level.
     counts: Vec<Vec<usize>>,
+    /// Per dimension, the total weight of each level (`None` unweighted).
+    totals: Option<Vec<Vec<f64>>>,
+    /// Probability weights of the observations (`None` unweighted).
+    weights: Option<Vec<f64>>,
     /// Observations.
     n: usize,
 }
@@ -117,7 +128,56 @@ impl FixedEffects {
             ids.push(dense);
             counts.push(c);
         }
-        Ok(FixedEffects { ids, counts, n })
+        Ok(FixedEffects {
+            ids,
+            counts,
+            totals: None,
+            weights: None,
+            n,
+        })
+    }
+
+    /// [`new`](Self::new) with probability weights, one per observation, each finite and
+    /// positive: the sweep then subtracts weighted group means (see the module documentation).
+    ///
+    /// # Errors
+    /// [`EstimateError::DimensionMismatch`] when the dimensions or the weights differ in
+    /// length; [`EstimateError::NotFinite`] for a weight that is not finite and positive.
+    pub fn weighted(groups: Vec<Vec<usize>>, weights: &[f64]) -> Result<Self, EstimateError> {
+        let mut fe = Self::new(groups)?;
+        if weights.len() != fe.n {
+            return Err(EstimateError::DimensionMismatch {
+                what: "fixed-effect weights",
+                expected: fe.n,
+                got: weights.len(),
+            });
+        }
+        if weights.iter().any(|w| !(w.is_finite() && *w > 0.0)) {
+            return Err(EstimateError::NotFinite);
+        }
+        let totals = fe
+            .ids
+            .iter()
+            .zip(&fe.counts)
+            .map(|(ids, counts)| {
+                let mut t = vec![0.0; counts.len()];
+                for (&l, w) in ids.iter().zip(weights) {
+                    t[l] += w;
+                }
+                t
+            })
+            .collect();
+        fe.totals = Some(totals);
+        fe.weights = Some(weights.to_vec());
+        Ok(fe)
+    }
+
+    /// Σ w a b: the inner product the projections are orthogonal in.
+    fn inner(&self, a: &[f64], b: &[f64]) -> f64 {
+        match &self.weights {
+            Some(w) => a.iter().zip(b).zip(w).map(|((a, b), w)| w * a * b).sum(),
+            None => a.iter().zip(b).map(|(a, b)| a * b).sum(),
+        }
     }
 
     /// Number of levels of each dimension.
@@ -130,16 +190,29 @@ impl FixedEffects {
         self.n
     }
 
-    /// One Gauss–Seidel sweep in place: subtract the group means of each dimension in turn.
+    /// One Gauss–Seidel sweep in place: subtract the (weighted) group means of each
+    /// dimension in turn.
     fn sweep_once(&self, v: &mut [f64], sums: &mut Vec<f64>) {
-        for (ids, counts) in self.ids.iter().zip(&self.counts) {
+        for (d, (ids, counts)) in self.ids.iter().zip(&self.counts).enumerate() {
             sums.clear();
             sums.resize(counts.len(), 0.0);
-            for (x, &l) in v.iter().zip(ids) {
-                sums[l] += x;
-            }
-            for (s, &c) in sums.iter_mut().zip(counts) {
-                *s /= c as f64;
+            match (&self.weights, &self.totals) {
+                (Some(w), Some(totals)) => {
+                    for ((x, &l), w) in v.iter().zip(ids).zip(w) {
+                        sums[l] += w * x;
+                    }
+                    for (s, t) in sums.iter_mut().zip(&totals[d]) {
+                        *s /= t;
+                    }
+                }
+                _ => {
+                    for (x, &l) in v.iter().zip(ids) {
+                        sums[l] += x;
+                    }
+                    for (s, &c) in sums.iter_mut().zip(counts) {
+                        *s /= c as f64;
+                    }
+                }
             }
             for (x, &l) in v.iter_mut().zip(ids) {
                 *x -= sums[l];
@@ -180,13 +253,15 @@ impl FixedEffects {
                 return Ok(self.zero_if_absorbed(input, x2));
             }
             // Irons–Tuck: x₃ = x₂ − (Δ²ᵀΔx₂ / Δ²ᵀΔ²) Δx₂ with Δx₂ = x₂ − x₁ and
-            // Δ² = x₂ − 2x₁ + x₀.
-            let (mut num, mut den) = (0.0, 0.0);
-            for ((a, b), c) in x0.iter().zip(&x1).zip(&x2) {
-                let d2 = c - 2.0 * b + a;
-                num += d2 * (c - b);
-                den += d2 * d2;
-            }
+            // Δ² = x₂ − 2x₁ + x₀ (inner products weighted for a weighted sweep).
+            let d2: Vec<f64> = x0
+                .iter()
+                .zip(&x1)
+                .zip(&x2)
+                .map(|((a, b), c)| c - 2.0 * b + a)
+                .collect();
+            let step: Vec<f64> = x2.iter().zip(&x1).map(|(c, b)| c - b).collect();
+            let (num, den) = (self.inner(&d2, &step), self.inner(&d2, &d2));
             if den > 0.0 && (num / den).is_finite() {
                 let step = num / den;
                 for (c, b) in x2.iter_mut().zip(&x1) {
@@ -198,9 +273,10 @@ impl FixedEffects {
         Err(EstimateError::NoConvergence { column, sweeps })
     }
 
-    /// Sets a swept column to zero when it is absorbed up to the iteration error.
+    /// Sets a swept column to zero when it is absorbed up to the iteration error (norms
+    /// weighted for a weighted sweep).
     fn zero_if_absorbed(&self, input: &[f64], mut swept: Vec<f64>) -> Vec<f64> {
-        let norm = |v: &[f64]| v.iter().map(|x| x * x).sum::<f64>().sqrt();
+        let norm = |v: &[f64]| self.inner(v, v).sqrt();
         let threshold = (self.n as f64).sqrt() * ABSORBED_COLUMN_TOLERANCE * norm(input);
         if norm(&swept) <= threshold {
             swept.iter_mut().for_each(|x| *x = 0.0);
@@ -310,7 +386,8 @@ impl FixedEffects {
     ///   and the redundancies with the others go to the non-nested ones; capped at `df`.
     ///   A cluster vector of the wrong length nests nothing.
     /// * `leverage`: with one dimension the absorbed projection has leverage 1/n_g for an
-    ///   observation in a level with n_g observations; with more dimensions there is no cheap
+    ///   observation in a level with n_g observations (weighted: w_i / Σ_g w, the leverage of
+    ///   the √w-scaled dummies); with more dimensions there is no cheap
     ///   exact value, so `None` (and HC2/HC3 are refused by the estimators).
     pub fn absorbed(&self, clusters: &[&[usize]]) -> Absorbed {
         let all: Vec<usize> = (0..self.ids.len()).collect();
@@ -324,7 +401,11 @@ impl FixedEffects {
         let leverage = match self.ids.as_slice() {
             [ids] => Some(
                 ids.iter()
-                    .map(|&l| 1.0 / self.counts[0][l] as f64)
+                    .enumerate()
+                    .map(|(i, &l)| match (&self.totals, &self.weights) {
+                        (Some(t), Some(w)) => w[i] / t[0][l],
+                        _ => 1.0 / self.counts[0][l] as f64,
+                    })
                     .collect(),
             ),
             _ => None,
@@ -382,6 +463,25 @@ mod tests {
         let m = DMatrix::from_column_slice(4, 1, &[1.0, 10.0, 3.0, 20.0]);
         let s = fe.sweep(&m).unwrap();
         assert_eq!(s.as_slice(), &[-1.0, -5.0, 1.0, 5.0]);
+    }
+
+    /// Weighted: hand-computed weighted means (1·1 + 2·3)/3 and (3·10 + 2·20)/5, leverage w/Σ_g w.
+    #[test]
+    fn one_dimension_weighted_demeans() {
+        let fe = FixedEffects::weighted(vec![vec![0, 1, 0, 1]], &[1.0, 3.0, 2.0, 2.0]).unwrap();
+        let s = fe
+            .sweep(&DMatrix::from_column_slice(4, 1, &[1.0, 10.0, 3.0, 20.0]))
+            .unwrap();
+        let want = [1.0 - 7.0 / 3.0, -4.0, 3.0 - 7.0 / 3.0, 6.0];
+        assert!(
+            s.iter().zip(want).all(|(a, b)| (a - b).abs() < 1e-14),
+            "{s}"
+        );
+        assert_eq!(
+            fe.absorbed(&[]).leverage,
+            Some(vec![1.0 / 3.0, 0.6, 2.0 / 3.0, 0.4])
+        );
+        assert!(FixedEffects::weighted(vec![vec![0, 1]], &[1.0, 0.0]).is_err());
     }
 
     /// A column constant within the levels of a dimension is absorbed exactly (zero).

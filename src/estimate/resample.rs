@@ -54,6 +54,8 @@ mod wre;
 mod reference_tests;
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod weighted_tests;
 
 use nalgebra::{DMatrix, DVector};
 use rayon::prelude::*;
@@ -67,17 +69,64 @@ pub use wild::{wild_cluster_bootstrap, Weights};
 pub use wre::wild_restricted_efficient;
 
 /// The columns of a least-squares problem a resampled test refits, borrowed: the outcome
-/// and the regressors.
+/// and the regressors, and the rows' probability weights for a weighted problem.
 #[derive(Debug, Clone, Copy)]
 pub struct OlsColumns<'a> {
     pub y: &'a DVector<f64>,
     pub x: &'a DMatrix<f64>,
+    /// Probability weights (`None`: unweighted). With weights, `y` and `x` are in the data's
+    /// units and the test fits weighted least squares, scaling every row by √w itself; a
+    /// re-drawn column is scaled by the weights of the units it lands on (the weights stay
+    /// with their units).
+    pub weights: Option<&'a DVector<f64>>,
 }
 
 impl<'a> OlsColumns<'a> {
     pub fn new(y: &'a DVector<f64>, x: &'a DMatrix<f64>) -> Self {
-        OlsColumns { y, x }
+        OlsColumns {
+            y,
+            x,
+            weights: None,
+        }
     }
+
+    /// The same columns with probability weights `w` (one per row, positive).
+    pub fn weighted(self, w: &'a DVector<f64>) -> Self {
+        OlsColumns {
+            weights: Some(w),
+            ..self
+        }
+    }
+
+    /// √w of each row (`None` unweighted).
+    pub(crate) fn root_weights(&self) -> Option<DVector<f64>> {
+        self.weights.map(|w| w.map(f64::sqrt))
+    }
+
+    /// The outcome and regressors with every row scaled by √w (`None` unweighted), after
+    /// checking the weights (one per row, finite and positive).
+    pub(crate) fn scaled(&self) -> Result<Option<Scaled>, EstimateError> {
+        randomization::check_weights(self.weights, self.y.len())?;
+        Ok(self.root_weights().map(|r| {
+            (
+                self.y.component_mul(&r),
+                scale_rows(self.x.clone(), Some(&r)),
+            )
+        }))
+    }
+}
+
+/// An outcome and regressors with their rows scaled by √w.
+pub(crate) type Scaled = (DVector<f64>, DMatrix<f64>);
+
+/// `m` with every row multiplied by its entry of `root` (unchanged for `None`).
+pub(crate) fn scale_rows(mut m: DMatrix<f64>, root: Option<&DVector<f64>>) -> DMatrix<f64> {
+    if let Some(r) = root {
+        for mut c in m.column_iter_mut() {
+            c.component_mul_assign(r);
+        }
+    }
+    m
 }
 
 /// The coefficient a resampled test is about (its column in the regressors) and the value

@@ -29,4 +29,6 @@ mod resampling;
 mod results_bytes;
 mod summaries;
 mod table_rows;
+mod weighted_fixed_effects;
+mod weighted_resampling;
 mod weights;

@@ -33,10 +33,15 @@ pub(super) fn resampled_tests(
         resampled: BTreeMap::new(),
         ri_intervals: BTreeMap::new(),
     };
-    if let (Some(w), Some(need)) = (&prepared.spec.weights, needs.resample.first()) {
+    let spec = prepared.spec;
+    let unweighable = |n: &&ResampleNeed| {
+        matches!(n.method, Method::Randomization { .. })
+            && (spec.estimator != Estimator::Ols || !spec.fixed_effects.is_empty())
+    };
+    if let (Some(w), Some(need)) = (&spec.weights, needs.resample.iter().find(unweighable)) {
         // Refused at `check` (plan/validate); never resample a weighted fit unweighted.
-        return Err(super::est_err(prepared.spec, format!(
-            "hypothesis `{}` asks for a resampled test, which is not available for a specification weighted by `{w}`",
+        return Err(super::est_err(spec, format!(
+            "hypothesis `{}` asks for a randomization test, which is not available for a specification weighted by `{w}` with an instrumental-variable estimator or fixed effects",
             need.hypothesis
         )));
     }
@@ -176,8 +181,14 @@ impl Test<'_> {
         } else {
             estimate::RiStatistic::Estimate
         };
+        // Weighted: the columns in the data's units with their weights (the test scales the
+        // rows itself, so the re-drawn treatment takes the weights of the units it lands on).
+        let raw = super::weighted::unscaled_regressors(self.prepared, &self.x, &self.need.term)?;
+        let (y, x) = raw.as_ref().map_or((&d.y, &self.x), |x| (&d.y_raw, x));
+        let weights = d.weights.as_ref();
+        let cols = crate::estimate::OlsColumns { y, x, weights };
         let test = estimate::randomization_test(
-            crate::estimate::OlsColumns::new(&d.y, &self.x),
+            cols,
             crate::estimate::Tested::new(self.index, self.need.null),
             cov,
             &d.absorbed,
@@ -187,8 +198,9 @@ impl Test<'_> {
         )
         .map_err(err)?;
         let problem = estimate::IntervalProblem {
-            y: &d.y,
-            x: &self.x,
+            y,
+            x,
+            weights,
             treatment: self.index,
             cov,
             absorbed: &d.absorbed,
@@ -197,7 +209,8 @@ impl Test<'_> {
             plan: &self.draws,
         };
         let interval = if self.rc.intervals {
-            ri_interval(&problem, self.rc.alpha).map_err(err)?
+            let fitted = crate::estimate::OlsColumns::new(&d.y, &self.x);
+            ri_interval(&problem, fitted, self.rc.alpha).map_err(err)?
         } else {
             None
         };
@@ -331,13 +344,16 @@ fn nth_label(table: &Table, column: &str, rows: &[usize], id: usize) -> Option<S
 }
 
 /// The randomization interval of `problem`'s treatment coefficient at `alpha`, stepping
-/// from the OLS estimate by its model standard error (module `estimate::resample::interval`).
+/// from the estimate of the specification's fit (`fitted`: its columns as fitted, rows
+/// scaled by √w when weighted) by its model standard error (module
+/// `estimate::resample::interval`).
 fn ri_interval(
     problem: &estimate::IntervalProblem,
+    fitted: estimate::OlsColumns,
     alpha: f64,
 ) -> std::result::Result<Option<crate::results::RandomizationIntervalResult>, estimate::ResampleError>
 {
-    let fit = estimate::ols(problem.y, problem.x, true, problem.cov, problem.absorbed)?;
+    let fit = estimate::ols(fitted.y, fitted.x, true, problem.cov, problem.absorbed)?;
     let j = problem.treatment;
     let found =
         estimate::randomization_interval(problem, fit.coef[j], fit.cov[(j, j)].sqrt(), alpha)?;

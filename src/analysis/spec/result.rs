@@ -105,9 +105,7 @@ fn r_squared(prepared: &Prepared, fit: &LinearFit) -> f64 {
     if d.fixed_effects.is_empty() {
         return super::weighted::r_squared(fit, d.y.column(0), d);
     }
-    let mean = d.y_raw.mean();
-    let tss: f64 = d.y_raw.iter().map(|v| (v - mean) * (v - mean)).sum();
-    1.0 - fit.rss / tss
+    super::weighted::levels_r_squared(fit, d)
 }
 
 /// The specification's results before the IV diagnostics are added.
@@ -145,7 +143,7 @@ pub(super) fn spec_result(
         },
         confidence: spec.confidence,
         r_squared: r_squared(prepared, fit),
-        within_r_squared: absorbing.then_some(fit.r_squared),
+        within_r_squared: absorbing.then(|| super::weighted::r_squared(fit, d.y.column(0), d)),
         residual_sd: fit.residual_sd,
         terms: terms_of(fit, &names, reference, spec.confidence),
         fixed_effects: d.fixed_effects.iter().cloned().collect(),

@@ -8,7 +8,9 @@
 //! refused at `check` (plan/validate) or marked unavailable (arm means).
 
 use super::resolve::Parts;
+use super::Prepared;
 use crate::data::Design;
+use crate::error::Result;
 use crate::estimate::LinearFit;
 use nalgebra::{DMatrix, DVector, DVectorView};
 
@@ -47,6 +49,61 @@ pub(super) fn r_squared(fit: &LinearFit, scaled: DVectorView<f64>, d: &Design) -
         .map(|(w, v)| w * (v - mean).powi(2))
         .sum();
     1.0 - fit.rss / tss
+}
+
+/// The R² in levels of a fit with absorbed fixed effects (as with explicit indicator
+/// columns): against the outcome before sweeping, Σ (y − ȳ)², or Σ w (y − ȳ_w)² weighted.
+/// The within R² is [`r_squared`] of the swept outcome (whose weighted mean is zero, so its
+/// weighted total is Σ w ỹ²).
+pub(super) fn levels_r_squared(fit: &LinearFit, d: &Design) -> f64 {
+    let tss: f64 = match &d.weights {
+        Some(w) => {
+            let mean = w.dot(&d.y_raw) / w.sum();
+            w.iter()
+                .zip(d.y_raw.iter())
+                .map(|(w, v)| w * (v - mean).powi(2))
+                .sum()
+        }
+        None => {
+            let mean = d.y_raw.mean();
+            d.y_raw.iter().map(|v| (v - mean) * (v - mean)).sum()
+        }
+    };
+    1.0 - fit.rss / tss
+}
+
+/// For a weighted specification, its regressors `x` (rows scaled by √w) back in the data's
+/// units, for a randomization test that re-draws `term`; `None` unweighted. The re-drawn
+/// column is read from the table as it is (its distinct values label the assignments, so
+/// they must be the data's own bits, not a quotient); the others are divided by √w, which
+/// the test multiplies back. Only without fixed effects (the columns are then not swept;
+/// `check` refuses the rest).
+pub(super) fn unscaled_regressors(
+    prepared: &Prepared,
+    x: &DMatrix<f64>,
+    term: &str,
+) -> Result<Option<DMatrix<f64>>> {
+    let (d, p, spec) = (&prepared.d, &prepared.p, prepared.spec);
+    let Some(w) = &d.weights else {
+        return Ok(None);
+    };
+    let names: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
+    let (Some(j), Some(column), true) = (
+        names.iter().position(|n| *n == term),
+        prepared.table.numeric.get(term),
+        d.fixed_effects.is_empty(),
+    ) else {
+        return Err(super::est_err(spec, format!("term `{term}` cannot be re-drawn in the data's units (an error in sworn; please report it)")));
+    };
+    let root = w.map(f64::sqrt);
+    let mut raw = x.clone();
+    for mut c in raw.column_iter_mut() {
+        c.component_div_assign(&root);
+    }
+    for (i, &r) in d.rows.iter().enumerate() {
+        raw[(i, j)] = column[r].unwrap_or(f64::NAN);
+    }
+    Ok(Some(raw))
 }
 
 /// Residuals in the data's units (a weighted fit's residuals are of the scaled rows).

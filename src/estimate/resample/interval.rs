@@ -49,6 +49,9 @@ pub struct IntervalProblem<'a> {
     pub y: &'a DVector<f64>,
     /// Regressors (the treatment among them).
     pub x: &'a DMatrix<f64>,
+    /// Probability weights (`None` unweighted; `y` and `x` then in the data's units, as
+    /// [`OlsColumns::weights`](super::OlsColumns)).
+    pub weights: Option<&'a DVector<f64>>,
     /// Column of `x` that is re-drawn.
     pub treatment: usize,
     /// Covariance of the studentized statistic.
@@ -65,8 +68,12 @@ pub struct IntervalProblem<'a> {
 
 impl IntervalProblem<'_> {
     fn p_value(&self, null: f64) -> Result<f64, ResampleError> {
+        let cols = crate::estimate::OlsColumns::new(self.y, self.x);
         let (observed, stats, exact) = randomization_statistics(
-            crate::estimate::OlsColumns::new(self.y, self.x),
+            match self.weights {
+                Some(w) => cols.weighted(w),
+                None => cols,
+            },
             crate::estimate::Tested::new(self.treatment, null),
             self.cov,
             self.absorbed,

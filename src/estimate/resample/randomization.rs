@@ -8,7 +8,7 @@
 //! The controls are partialled out once (module `partial`); under a cluster-randomised design
 //! each draw is fitted from cell-level statistics (module `cells`).
 
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, DVector};
 
 use super::super::covariance::CovSpec;
 use super::super::linear::{validate, IvColumns};
@@ -18,7 +18,7 @@ use super::assignment::{Assigner, AssignmentDesign};
 use super::cells::Cells;
 use super::partial::{Partialled, ZFit};
 use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
-use super::{OlsColumns, Tested};
+use super::{scale_rows, OlsColumns, Tested};
 
 /// The statistic of a randomization test for one coefficient.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -41,11 +41,15 @@ struct DrawFitter<'a> {
     part: &'a Partialled,
     assigner: &'a Assigner,
     cells: Option<Cells>,
+    /// √w of each unit for a weighted problem: a draw's values are scaled by the weights of
+    /// the units they land on, unit by unit (the cell-level statistics assume unweighted
+    /// rows, so a weighted problem never uses them).
+    root: Option<&'a DVector<f64>>,
 }
 
 impl<'a> DrawFitter<'a> {
-    fn new(part: &'a Partialled, assigner: &'a Assigner) -> Self {
-        let cells = if assigner.grouped() {
+    fn new(part: &'a Partialled, assigner: &'a Assigner, root: Option<&'a DVector<f64>>) -> Self {
+        let cells = if assigner.grouped() && root.is_none() {
             part.cell_parts()
                 .map(|parts| Cells::new(&parts, assigner.unit_group()))
         } else {
@@ -55,6 +59,7 @@ impl<'a> DrawFitter<'a> {
             part,
             assigner,
             cells,
+            root,
         }
     }
 
@@ -70,10 +75,29 @@ impl<'a> DrawFitter<'a> {
             }
             _ => {
                 let units = self.assigner.expand(labels);
-                self.part.fit(&self.assigner.values(&units), with_cov)
+                let values = scale_rows(self.assigner.values(&units), self.root);
+                self.part.fit(&values, with_cov)
             }
         }
     }
+}
+
+/// Probability weights, when given, are one per row, finite and positive.
+pub(super) fn check_weights(w: Option<&DVector<f64>>, n: usize) -> Result<(), EstimateError> {
+    let Some(w) = w else {
+        return Ok(());
+    };
+    if w.len() != n {
+        return Err(EstimateError::DimensionMismatch {
+            what: "weights",
+            expected: n,
+            got: w.len(),
+        });
+    }
+    if w.iter().any(|v| !(v.is_finite() && *v > 0.0)) {
+        return Err(EstimateError::NotFinite);
+    }
+    Ok(())
 }
 
 /// Evaluates `stat` on the observed draw (must succeed; second argument true) and on every
@@ -115,6 +139,12 @@ where
 /// or the usual t statistic of b = null. p-values as in the module documentation of
 /// `resample`; residual df and small-sample factors count `absorbed.df`.
 ///
+/// With probability weights (`cols.weights`), `y` and `x` are in the data's units: the
+/// observed values of t are re-drawn among the units, each unit keeps its weight, and every
+/// draw is the weighted least squares fit (rows scaled by √w) with `cov`'s sandwich on the
+/// scaled rows. The caller must not combine weights with absorbed fixed effects (a weighted
+/// sweep does not commute with the permutations).
+///
 /// With absorbed fixed effects, `x` holds swept columns and the swept treatment is permuted:
 /// this is valid only when every absorbed fixed effect is constant within the design's
 /// blocks (e.g. block fixed effects with a blocked design), because then sweeping commutes
@@ -150,8 +180,9 @@ pub(crate) fn randomization_statistics(
     statistic: RiStatistic,
     plan: &Draws,
 ) -> Result<DrawStats, ResampleError> {
+    let root = cols.root_weights();
     let (
-        OlsColumns { y, x },
+        OlsColumns { y, x, .. },
         Tested {
             index: treatment,
             null,
@@ -169,20 +200,28 @@ pub(crate) fn randomization_statistics(
     if !null.is_finite() {
         return Err(EstimateError::NotFinite.into());
     }
+    check_weights(cols.weights, y.len())?;
     let t = x.column(treatment).into_owned();
     let y0 = y - &t * null;
-    let w = without_column(x, treatment);
+    let y0 = match &root {
+        Some(r) => y0.component_mul(r),
+        None => y0,
+    };
+    let w = scale_rows(without_column(x, treatment), root.as_ref());
     let part = Partialled::new(&y0, &w, 1, cov, absorbed)?;
     let with_cov = statistic == RiStatistic::T;
     let observed_values = DMatrix::from_column_slice(t.len(), 1, t.as_slice());
-    if part.fit(&observed_values, false).is_none() {
+    if part
+        .fit(&scale_rows(observed_values.clone(), root.as_ref()), false)
+        .is_none()
+    {
         return Err(EstimateError::RankDeficient {
             dependent: vec![treatment],
         }
         .into());
     }
     let assigner = Assigner::new(design, &observed_values)?;
-    let fitter = DrawFitter::new(&part, &assigner);
+    let fitter = DrawFitter::new(&part, &assigner, root.as_ref());
     permutation_run(&assigner, plan, |labels, observed| {
         let (g, v) = fitter.fit(labels, observed, with_cov)?;
         Some(match v {
@@ -268,7 +307,7 @@ pub(crate) fn randomization_ar_statistics(
         wald(g, v, &indices)?;
     }
     let assigner = Assigner::new(design, instruments)?;
-    let fitter = DrawFitter::new(&part, &assigner);
+    let fitter = DrawFitter::new(&part, &assigner, None);
     permutation_run(&assigner, plan, |labels, observed| {
         let (g, v) = fitter.fit(labels, observed, true)?;
         Some(wald(&g, &v?, &indices).ok()? / l as f64)

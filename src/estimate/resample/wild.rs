@@ -23,6 +23,10 @@
 //! of i, cluster 0 the least significant), otherwise the all-ones vector and `draws` random
 //! ones (one uniform integer per cluster from the draw's stream).
 //!
+//! With probability weights (`OlsColumns::weights`, columns in the data's units) the
+//! bootstrap is that of the √w-scaled model: restricted weighted least squares, the scaled
+//! residuals √w·ũ multiplied by the cluster weights, weighted refits.
+//!
 //! With absorbed fixed effects (`x`, `y` swept by the caller) the algebra is exact when the
 //! fixed effects are nested in the bootstrap clusters (then ũ ⊙ w stays swept); otherwise
 //! the bootstrap outcome is not re-swept, which the caller must accept or avoid.
@@ -132,13 +136,14 @@ pub(crate) fn wild_statistics(
     plan: &Draws,
     absorbed: &Absorbed,
 ) -> Result<DrawStats, ResampleError> {
-    let (
-        OlsColumns { y, x },
-        Tested {
-            index: coef_index,
-            null,
-        },
-    ) = (cols, tested);
+    // Weighted: the bootstrap of the √w-scaled model (its residuals are those of the scaled
+    // rows, so a cluster's weight multiplies √w·u).
+    let scaled = cols.scaled()?;
+    let (y, x) = scaled.as_ref().map_or((cols.y, cols.x), |(y, x)| (y, x));
+    let Tested {
+        index: coef_index,
+        null,
+    } = tested;
     validate(y, &[("x", x)])?;
     let (n, k) = x.shape();
     if coef_index >= k {

@@ -276,12 +276,6 @@ pub(super) fn wild_bootstrap_fits(
     at: &Spanned<String>,
     key: &str,
 ) -> Result<()> {
-    if let Some(w) = &spec.weights {
-        return Err(ctx.at(at, key, format!(
-            "the wild cluster bootstrap is not available for specification `{}`, which is weighted by `{w}` (resampling with probability weights is not implemented); remove the rule or the specification's weights",
-            spec.id
-        )));
-    }
     if plan.resampling.is_none() {
         return Err(ctx.at(at, key, "the wild cluster bootstrap needs [resampling] with a seed (e.g. [resampling] seed = 20260501) so its p-values can be reproduced"));
     }

@@ -337,30 +337,24 @@ fn weights(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Opti
     }
 }
 
-/// What a weighted specification cannot have yet: errors other than hc0, hc1 and one-way
-/// cluster (their weighted forms are not implemented and checked), and absorbed fixed
-/// effects (the weighted within transformation is not implemented). Refused at `check`.
+/// What a weighted specification cannot have yet: two-way cluster and HAC errors (their
+/// weighted forms are not implemented and checked). Refused at `check`. HC2 and HC3 take
+/// the leverage of the √w-scaled rows (OLS only, as unweighted: `leverage_errors`).
 fn weighted_refusals(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
     let Some(w) = s.weights.as_ref().filter(|_| spec.weights.is_some()) else {
         return Ok(());
     };
     let key = |k: &str| format!("specification[{}].{k}", spec.id);
-    let sandwich = match &spec.errors {
-        Errors::Hc0 | Errors::Hc1 => true,
+    let available = match &spec.errors {
+        Errors::Classical | Errors::Hc0 | Errors::Hc1 | Errors::Hc2 | Errors::Hc3 => true,
         Errors::Cluster(by) => by.len() == 1,
         _ => false,
     };
-    if !sandwich {
+    if !available {
         let at = s.errors.as_ref().map_or(w.span(), |e| e.span());
         return Err(ctx.err(at, key("errors"), format!(
-            "a weighted specification (weights = \"{}\") takes sandwich errors only: \"hc0\", \"hc1\" or {{ kind = \"cluster\", by = \"COLUMN\" }} with one column; {} errors with probability weights are not available; choose one of those or remove `weights`",
+            "a weighted specification (weights = \"{}\") takes \"classical\", \"hc0\", \"hc1\", \"hc2\", \"hc3\" or {{ kind = \"cluster\", by = \"COLUMN\" }} with one column; {} errors with probability weights are not available; choose one of those or remove `weights`",
             w.get_ref(), match &spec.errors { Errors::Cluster(_) => "two-way cluster", e => e.name() }
-        )));
-    }
-    if let Some(fe) = s.fixed_effects.first() {
-        return Err(ctx.at(fe, key("fixed_effects"), format!(
-            "fixed effects cannot be absorbed in a weighted specification (weights = \"{}\"): the weighted within transformation is not available; remove `fixed_effects` (or `weights`)",
-            w.get_ref()
         )));
     }
     Ok(())

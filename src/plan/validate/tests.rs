@@ -555,6 +555,7 @@ fn message_cases() -> Vec<(
         ("", FAMILY, before_family(&format!("{resampling}\n\n[[hypothesis]]\nid = \"H2\"\nspecification = \"iv\"\nterm = \"d\"\ninference = \"randomization\"")), "hypothesis[H2].inference", "which the plan must declare in [assignment]"),
         ("", FAMILY, before_family(&format!("{resampling}\n\n[assignment]\nvariable = \"d\"\ndesign = \"complete\"\n\n[[hypothesis]]\nid = \"H2\"\nspecification = \"iv\"\nterm = \"d\"\ninference = \"randomization\"")), "hypothesis[H2].inference", "applies to the assigned variable `d`"),
         (assigned_z, IV_TO_H1, IV_TO_H1.replacen("by = \"grp\" }", "by = \"grp\" }\nfixed_effects = [\"grp\"]", 1) + "\ninference = \"randomization\"", "hypothesis[H1].inference", "needs each fixed effect to be the assignment's block variable"),
+        (assigned_z, IV_TO_H1, IV_TO_H1.replacen("by = \"grp\" }", "by = \"grp\" }\nweights = \"x\"", 1) + "\ninference = \"randomization\"", "hypothesis[H1].inference", "with probability weights it is implemented for OLS without fixed effects"),
         (assigned_z, H1_END, format!("{H1_END}\ninference = \"randomization\"\nstatistic = \"z\""), "hypothesis[H1].statistic", "use one of `t`, `estimate`"),
         (resampling, H1_END, "term = \"x\"\nfamily = \"main\"\ninference = \"wild-bootstrap\"".into(), "hypothesis[H1].inference", "tests the endogenous coefficient `d`"),
         ("", H1_END, format!("{H1_END}\ninference = \"wild-bootstrap\""), "hypothesis[H1].inference", "the wild cluster bootstrap needs [resampling]"),
@@ -655,27 +656,9 @@ fn weights_messages() {
         ),
         (
             hc1,
-            "errors = \"hc3\"\nweights = \"x\"".to_string(),
+            "weights = \"x\"\nerrors = { kind = \"cluster\", by = [\"grp\", \"z\"] }".to_string(),
             "specification[ols].errors",
-            "hc3 errors with probability weights are not available",
-        ),
-        (
-            hc1,
-            "weights = \"x\"\nerrors = \"classical\"".to_string(),
-            "specification[ols].errors",
-            "sandwich errors only",
-        ),
-        (
-            hc1,
-            w("\nfixed_effects = [\"grp\"]"),
-            "specification[ols].fixed_effects",
-            "weighted within transformation is not available",
-        ),
-        (
-            "errors = { kind",
-            "weights = \"x\"\nerrors = { kind".to_string(),
-            "hypothesis[H1].inference",
-            "resampling with probability weights is not implemented",
+            "two-way cluster errors with probability weights are not available",
         ),
         (
             hc1,
@@ -712,4 +695,11 @@ fn weights_messages() {
     let ok = BASE.replacen(hc1, &w(""), 1);
     let plan = from_text(Path::new("/plans/p.toml"), ok).expect("weighted hc1 OLS is valid");
     assert_eq!(plan.specifications[0].weights.as_deref(), Some("x"));
+    for errors in ["classical", "hc2", "hc3"] {
+        let ok = BASE.replacen(hc1, &format!("errors = \"{errors}\"\nweights = \"x\""), 1);
+        from_text(Path::new("/plans/p.toml"), ok).expect("weighted OLS with these errors");
+    }
+    let fe = BASE.replacen(hc1, &w("\nfixed_effects = [\"grp\"]"), 1);
+    let plan = from_text(Path::new("/plans/p.toml"), fe).expect("weighted OLS with fixed effects");
+    assert_eq!(plan.specifications[0].fixed_effects, ["grp"]);
 }

@@ -19,7 +19,8 @@ pub(super) enum ResamplingItem {
         id: String,
         /// Randomization (else the wild bootstrap).
         randomization: bool,
-        procedure: ProcedureText,
+        /// Boxed: the largest part, which would make every item as large.
+        procedure: Box<ProcedureText>,
         count: Count,
         /// `two_sided`, `greater`, `less` or `ar_one_sided`.
         counts: &'static str,
@@ -49,6 +50,8 @@ pub(super) struct ProcedureText {
     /// The wild restricted efficient bootstrap (else the restricted wild cluster bootstrap).
     efficient: bool,
     webb: bool,
+    /// The tested specification's probability weights column (every draw a weighted fit).
+    probability_weights: Option<String>,
 }
 
 /// Exact or sampled, the draws asked for and used, and the seed.
@@ -75,7 +78,13 @@ pub(super) fn resampling_lines(plan: &Plan, r: &Results) -> Vec<ResamplingItem> 
         out.push(ResamplingItem::Test {
             id: h.id.clone(),
             randomization: info.procedure == Procedure::Randomization,
-            procedure: procedure(info),
+            procedure: Box::new(ProcedureText {
+                probability_weights: r
+                    .specifications
+                    .get(&res.tested_specification)
+                    .and_then(|s| s.weights.clone()),
+                ..procedure(info)
+            }),
             count: Count {
                 exact: info.mode == ResampleMode::Exact,
                 requested: info.draws_requested,
@@ -120,5 +129,6 @@ fn procedure(i: &crate::results::ResamplingInfo) -> ProcedureText {
         null: i.null_imposed.to_string(),
         efficient: i.bootstrap == Some(BootstrapVariant::WildRestrictedEfficient),
         webb: i.weights == Some(BootstrapWeights::Webb),
+        probability_weights: None,
     }
 }

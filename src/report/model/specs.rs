@@ -117,6 +117,9 @@ pub(super) enum Fact {
     Weighted {
         column: String,
         zero_weight: usize,
+        /// Classical errors: their variance model (error variance ∝ 1/w) is not that of
+        /// sampling weights, which the sentence says.
+        classical: bool,
     },
     Hac(HacFact),
     FixedEffects(FixedEffectsFact),
@@ -333,6 +336,7 @@ fn spec_facts(s: &crate::plan::Spec, r: &SpecResult) -> Vec<Fact> {
         facts.push(Fact::Weighted {
             column: w.clone(),
             zero_weight: r.sample.dropped_zero_weight.unwrap_or(0),
+            classical: matches!(r.errors, ErrorKind::Classical),
         });
     }
     if let Some(h) = &r.hac {
