@@ -187,19 +187,58 @@ fn group_index(values: &Labels, rows: &[usize], spec: &Spec) -> Result<(Vec<usiz
         })
 }
 
-/// Build the design of `spec` from `table` (read from `source`).
-pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design> {
+/// The rows a design keeps, and what choosing them found.
+struct DesignRows<'t> {
+    /// Rows of the sample restriction, before listwise deletion.
+    n_sample: usize,
+    /// The rows kept, in table order.
+    rows: Vec<usize>,
+    /// Rows left out for a weight of zero.
+    zero_weights: usize,
+    /// Each fixed effect's labels, by table row.
+    groups: Vec<&'t Labels>,
+    /// Rows left out alone in a fixed-effect level.
+    singletons: usize,
+    /// The kept rows' weights (weighted specifications).
+    weights: Option<DVector<f64>>,
+}
+
+/// The rows of `spec`'s design: the sample's complete rows, a missing weight handled as the
+/// plan says, zero weights and then fixed-effect singletons left out, and the weights of the
+/// rows finally kept.
+fn design_rows<'t>(table: &'t Table, source: &DataSource, spec: &Spec) -> Result<DesignRows<'t>> {
     let (n_sample, mut rows) = kept_rows(table, spec)?;
     if let Some(r) = first_row_missing_weight(table, spec, &rows) {
         return Err(super::weights::missing_weight(table, source, spec, r));
     }
     let zero_weights = super::weights::drop_zero_weights(table, source, spec, &mut rows)?;
-    let mut groups = Vec::new();
-    for fe in &spec.fixed_effects {
-        groups.push(labels(table, fe, spec)?);
-    }
+    let groups = spec
+        .fixed_effects
+        .iter()
+        .map(|fe| labels(table, fe, spec))
+        .collect::<Result<Vec<_>>>()?;
     let singletons = drop_singleton_rows(&groups, &mut rows, spec)?;
     let weights = super::weights::row_weights(table, spec, &rows)?;
+    Ok(DesignRows {
+        n_sample,
+        rows,
+        zero_weights,
+        groups,
+        singletons,
+        weights,
+    })
+}
+
+/// Build the design of `spec` from `table` (read from `source`).
+pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design> {
+    let DesignRows {
+        n_sample,
+        rows,
+        zero_weights,
+        groups,
+        singletons,
+        weights,
+    } = design_rows(table, source, spec)?;
     let n = rows.len();
     let outcome = column(table, &spec.outcome, spec)?;
     let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));

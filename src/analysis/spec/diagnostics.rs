@@ -246,28 +246,33 @@ impl IvContext<'_> {
             .iter()
             .map(|&null| Ok((null, ar.test(null).map_err(|e| self.err(e))?)))
             .collect::<Result<Vec<_>>>()?;
-        // Classical errors: the homoskedastic tests; HC0–HC3 and one-way clusters: the robust
-        // ones (plan validation refuses a `clr` rule otherwise). A null where the statistics
-        // are undefined is left out, and the hypothesis says so.
-        let clr = match (cov, &result.lm_clr) {
-            (_, None) => Vec::new(),
-            (CovSpec::Classical, Some(_)) => self
-                .needs
-                .clr_nulls
+        let clr = self.clr_at_nulls(result.lm_clr.is_some());
+        Ok(NullTests { ar, clr })
+    }
+
+    /// The CLR tests at the nulls the decision rules need, when the LM/CLR tests were
+    /// computed (`computed`). Classical errors: the homoskedastic tests; HC0–HC3 and one-way
+    /// clusters: the robust ones (plan validation refuses a `clr` rule otherwise). A null
+    /// where the statistics are undefined is left out, and the hypothesis says so.
+    fn clr_at_nulls(&self, computed: bool) -> Vec<(f64, estimate::ConditionalLr)> {
+        let Prepared { d, cov, .. } = self.prepared;
+        let (ab, nulls) = (&d.absorbed, &self.needs.clr_nulls);
+        if !computed || nulls.is_empty() {
+            return Vec::new();
+        }
+        match cov {
+            CovSpec::Classical => nulls
                 .iter()
                 .filter_map(|&null| self.iv.lm_clr(ab, null).ok().map(|t| (null, t.clr)))
                 .collect(),
-            (_, Some(_)) => match self.iv.lm_clr_robust(cov, ab) {
-                Ok(robust) => self
-                    .needs
-                    .clr_nulls
+            _ => match self.iv.lm_clr_robust(cov, ab) {
+                Ok(robust) => nulls
                     .iter()
                     .filter_map(|&null| robust.test(null).ok().map(|t| (null, t.clr)))
                     .collect(),
                 Err(_) => Vec::new(),
             },
-        };
-        Ok(NullTests { ar, clr })
+        }
     }
 
     /// The Kleibergen LM and CLR tests of 0 with their sets: the homoskedastic forms with

@@ -155,9 +155,7 @@ impl Test<'_> {
     /// A randomization test: of the coefficient (estimate or t) for OLS, with its interval
     /// in a run; of the Anderson–Rubin statistic for IV.
     fn randomization(&self, studentized: bool) -> Result<Resampled> {
-        let Prepared {
-            spec, d, p, cov, ..
-        } = self.prepared;
+        let Prepared { spec, d, cov, .. } = self.prepared;
         let a = self
             .rc
             .assignment
@@ -165,16 +163,7 @@ impl Test<'_> {
         let design = self.assignment_design(a)?;
         let err = |e| self.error(e);
         if spec.estimator != Estimator::Ols {
-            return estimate::randomization_ar(
-                crate::estimate::IvColumns::new(&d.y, &p.exog, &p.focal, &p.instruments),
-                self.need.null,
-                cov,
-                &d.absorbed,
-                &design,
-                &self.draws,
-            )
-            .map(|t| (t, None))
-            .map_err(err);
+            return self.randomization_ar(&design);
         }
         let statistic = if studentized {
             estimate::RiStatistic::T
@@ -215,6 +204,21 @@ impl Test<'_> {
             None
         };
         Ok((test, interval))
+    }
+
+    /// The randomization test of an IV specification: of its Anderson–Rubin statistic.
+    fn randomization_ar(&self, design: &AssignmentDesign) -> Result<Resampled> {
+        let Prepared { d, p, cov, .. } = self.prepared;
+        estimate::randomization_ar(
+            crate::estimate::IvColumns::new(&d.y, &p.exog, &p.focal, &p.instruments),
+            self.need.null,
+            cov,
+            &d.absorbed,
+            design,
+            &self.draws,
+        )
+        .map(|t| (t, None))
+        .map_err(|e| self.error(e))
     }
 
     /// How `[assignment]` re-draws the treatment: completely, within blocks, by cluster, or
