@@ -84,8 +84,8 @@ pub use qr::collinear_columns;
 pub use resample::{
     count_assignments, randomization_ar, randomization_interval, randomization_test,
     wild_cluster_bootstrap, wild_restricted_efficient, AssignmentDesign, Draws, IntervalProblem,
-    OlsColumns, RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Tested, Weights,
-    DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
+    OlsColumns, RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Tested,
+    WeightedRedraw, Weights, DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
 };
 pub use shared::{collinear, Sharing};
 pub use summaries::{

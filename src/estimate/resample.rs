@@ -64,7 +64,7 @@ use super::EstimateError;
 
 pub use assignment::{count_assignments, AssignmentDesign};
 pub use interval::{randomization_interval, IntervalProblem, RandomizationInterval};
-pub use randomization::{randomization_ar, randomization_test, RiStatistic};
+pub use randomization::{randomization_ar, randomization_test, RiStatistic, WeightedRedraw};
 pub use wild::{wild_cluster_bootstrap, Weights};
 pub use wre::wild_restricted_efficient;
 

@@ -2,8 +2,8 @@
 //! fixture of tests/reference/weights_resampling.py (every Rademacher vector of 8 clusters,
 //! every one of the 924 assignments, each draw refitted by statsmodels WLS or linearmodels
 //! IV2SLS with weights): the wild cluster bootstrap of weighted OLS (also with a fixed effect
-//! nested in the clusters) and the wild restricted efficient bootstrap of weighted 2SLS, and randomization tests of weighted OLS (t and
-//! estimate). p-values (ratios of counts) exactly; the observed statistic at relative 1e-8.
+//! nested in the clusters) and the wild restricted efficient bootstrap of weighted 2SLS, and
+//! randomization tests of weighted OLS (t and estimate) and of weighted 2SLS (Anderson–Rubin). p-values (ratios of counts) exactly; the observed statistic at relative 1e-8.
 
 use crate::reference::{close, fixture};
 use crate::weighted_fixed_effects::csv;
@@ -94,6 +94,7 @@ y = { kind = "number" }
 t = { kind = "number" }
 c = { kind = "number" }
 w = { kind = "number" }
+x = { kind = "number" }
 
 [assignment]
 variable = "t"
@@ -124,6 +125,23 @@ term = "t"
 null = 0.4
 inference = "randomization"
 statistic = "estimate"
+
+[[specification]]
+id = "iv"
+estimator = "2sls"
+outcome = "y"
+endogenous = ["x"]
+instruments = ["t"]
+controls = ["c"]
+weights = "w"
+errors = "hc1"
+
+[[hypothesis]]
+id = "R_ar"
+specification = "iv"
+term = "x"
+null = 0.5
+inference = "randomization"
 "#;
 
 /// The hypothesis's two-sided p-value and observed statistic against the fixture's case.
@@ -173,10 +191,12 @@ fn weighted_wild_bootstraps_match_brute_force_through_a_plan() {
 #[test]
 fn weighted_randomization_matches_brute_force_through_a_plan() {
     let f = fixture("weights_resampling.json");
-    let names = ["y", "t", "c", "w"];
+    let names = ["y", "t", "c", "w", "x"];
     let s = crate::common::Study::with(RANDOMIZED, &csv(&f["randomized"], &names));
     let v = s.seal_and_run();
     check(&v["hypotheses"]["R_t"], &f["expected"]["ri_t"], "R_t");
+    // 2SLS: the Anderson–Rubin statistic with the instrument re-drawn, weights staying.
+    check(&v["hypotheses"]["R_ar"], &f["expected"]["ri_ar"], "R_ar");
     check(
         &v["hypotheses"]["R_estimate"],
         &f["expected"]["ri_estimate"],
@@ -200,7 +220,7 @@ fn weighted_randomization_matches_brute_force_through_a_plan() {
                 "each unit keeping its weight `w` and every draw fitted by weighted least squares"
             )
             .count(),
-        2,
+        3,
         "the report says the draws keep the weights"
     );
 }

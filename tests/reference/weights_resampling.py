@@ -28,6 +28,12 @@ Cases (every statistic refitted from scratch by a library, once per draw):
     one of the 924 assignments of the observed t values to the units (weights staying with
     their units); y0 = y - null t; statistic the HC1 t (null 0) or the estimate (null 0.4)
     of t* in statsmodels WLS(y0, [t*, 1, c], weights=w).
+  * ri_ar: the same units with an endogenous x (drawn after the columns above from
+    default_rng(SEED + 1), so they are unchanged), weighted 2SLS of y on [x, 1, c] with the
+    assignment t as the instrument. The randomization Anderson-Rubin test of beta_x = 0.5:
+    y0 = y - 0.5 x is fixed, t is re-drawn (all 924 assignments, weights staying with their
+    units) and the statistic is the Wald statistic of t*'s coefficient in statsmodels
+    WLS(y0, [t*, 1, c], weights=w) with cov_type "HC1" (one instrument: the square of its t).
 Counts use the tie rule |T*| >= |T| (1 - 1e-12) (and the one-sided versions), as sworn does.
 """
 import itertools
@@ -181,6 +187,31 @@ def ri_case(d, null, statistic):
     return obs, stats
 
 
+def with_endogenous(d):
+    rng = np.random.default_rng(SEED + 1)
+    n = len(d["y"])
+    d["x"] = 0.6 * d["t"] + 0.3 * d["c"] + rng.normal(size=n)
+    return d
+
+
+def ri_ar_case(d, beta0):
+    n = len(d["y"])
+    y0 = d["y"] - beta0 * d["x"]
+
+    def stat(tt):
+        fit = sm.WLS(y0, np.column_stack([tt, np.ones(n), d["c"]]), weights=d["w"]).fit(
+            cov_type="HC1")
+        return float(fit.params[0] ** 2 / fit.cov_params()[0, 0])
+
+    obs = stat(d["t"])
+    stats = []
+    for treated in itertools.combinations(range(n), 6):
+        tt = np.zeros(n)
+        tt[list(treated)] = 1.0
+        stats.append(stat(tt))
+    return obs, stats
+
+
 def case(obs, stats, **extra):
     out = {"observed": obs, "stats_sorted": sorted(stats)}
     out.update(counts(obs, stats))
@@ -191,7 +222,7 @@ def case(obs, stats, **extra):
 def main():
     rng = np.random.default_rng(SEED)
     cd = cluster_data(rng)
-    rd = ri_data(rng)
+    rd = with_endogenous(ri_data(rng))
     cd["h"] = nested_halves(cd["g"])
     expected = {
         "wild_ols": case(*wild_ols(cd, 0.2), null=0.2),
@@ -199,10 +230,11 @@ def main():
         "wild_ols_fe": case(*wild_ols_fe(cd, 0.2), null=0.2),
         "ri_t": case(*ri_case(rd, 0.0, "t"), null=0.0),
         "ri_estimate": case(*ri_case(rd, 0.4, "estimate"), null=0.4),
+        "ri_ar": case(*ri_ar_case(rd, 0.5), null=0.5),
     }
     doc = {
         "case": "weights_resampling",
-        "description": "resampled tests of weighted specifications by brute force: the weighted restricted wild cluster bootstrap (OLS) and wild restricted efficient bootstrap (2SLS) over all 2^8 Rademacher vectors, and weighted randomization tests over all 924 assignments, each draw refitted by statsmodels WLS or linearmodels IV2SLS with weights",
+        "description": "resampled tests of weighted specifications by brute force: the weighted restricted wild cluster bootstrap (OLS) and wild restricted efficient bootstrap (2SLS) over all 2^8 Rademacher vectors, and weighted randomization tests (OLS t and estimate, 2SLS Anderson-Rubin) over all 924 assignments, each draw refitted by statsmodels WLS or linearmodels IV2SLS with weights",
         "versions": {"python": platform.python_version(), "numpy": np.__version__,
                      "pandas": pd.__version__, "statsmodels": statsmodels.__version__,
                      "linearmodels": linearmodels.__version__},

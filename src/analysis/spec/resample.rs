@@ -35,13 +35,12 @@ pub(super) fn resampled_tests(
     };
     let spec = prepared.spec;
     let unweighable = |n: &&ResampleNeed| {
-        matches!(n.method, Method::Randomization { .. })
-            && (spec.estimator != Estimator::Ols || !spec.fixed_effects.is_empty())
+        matches!(n.method, Method::Randomization { .. }) && !spec.fixed_effects.is_empty()
     };
     if let (Some(w), Some(need)) = (&spec.weights, needs.resample.iter().find(unweighable)) {
         // Refused at `check` (plan/validate); never resample a weighted fit unweighted.
         return Err(super::est_err(spec, format!(
-            "hypothesis `{}` asks for a randomization test, which is not available for a specification weighted by `{w}` with an instrumental-variable estimator or fixed effects",
+            "hypothesis `{}` asks for a randomization test, which is not available for a specification weighted by `{w}` with fixed effects",
             need.hypothesis
         )));
     }
@@ -206,11 +205,22 @@ impl Test<'_> {
         Ok((test, interval))
     }
 
-    /// The randomization test of an IV specification: of its Anderson–Rubin statistic.
+    /// The randomization test of an IV specification: of its Anderson–Rubin statistic (a
+    /// weighted one re-draws the instruments in the data's units, each unit keeping its
+    /// weight).
     fn randomization_ar(&self, design: &AssignmentDesign) -> Result<Resampled> {
         let Prepared { d, p, cov, .. } = self.prepared;
+        let raw = super::weighted::unscaled_instruments(self.prepared)?;
+        let redraw = raw
+            .as_ref()
+            .zip(d.weights.as_ref())
+            .map(|(instruments, weights)| estimate::WeightedRedraw {
+                instruments,
+                weights,
+            });
         estimate::randomization_ar(
             crate::estimate::IvColumns::new(&d.y, &p.exog, &p.focal, &p.instruments),
+            redraw,
             self.need.null,
             cov,
             &d.absorbed,

@@ -106,6 +106,27 @@ pub(super) fn unscaled_regressors(
     Ok(Some(raw))
 }
 
+/// A weighted IV specification's excluded instruments in the data's units, read from the
+/// table at the design's rows (`None` unweighted), for a randomization test that re-draws
+/// them among the units.
+pub(super) fn unscaled_instruments(prepared: &Prepared) -> Result<Option<DMatrix<f64>>> {
+    let (d, p, spec) = (&prepared.d, &prepared.p, prepared.spec);
+    if d.weights.is_none() {
+        return Ok(None);
+    }
+    let mut raw = DMatrix::zeros(d.rows.len(), p.instrument_names.len());
+    for (j, name) in p.instrument_names.iter().enumerate() {
+        let (Some(column), true) = (prepared.table.numeric.get(name), d.fixed_effects.is_empty())
+        else {
+            return Err(super::est_err(spec, format!("instrument `{name}` cannot be re-drawn in the data's units (an error in sworn; please report it)")));
+        };
+        for (i, &r) in d.rows.iter().enumerate() {
+            raw[(i, j)] = column[r].unwrap_or(f64::NAN);
+        }
+    }
+    Ok(Some(raw))
+}
+
 /// Residuals in the data's units (a weighted fit's residuals are of the scaled rows).
 pub(super) fn residuals(fit: &LinearFit, d: &Design) -> DVector<f64> {
     match &d.weights {

@@ -243,12 +243,20 @@ pub(crate) fn randomization_statistics(
 /// module documentation (for this non-negative statistic the two-sided and upper p-values
 /// coincide). Absorbed fixed effects: as for [`randomization_test`].
 ///
+/// With probability weights, `data` holds the rows scaled by √w (the weighted 2SLS problem)
+/// and `redraw` the instruments in the data's units with the weights: the observed values are
+/// re-drawn among the units, each unit keeps its weight, and each draw's instrument rows are
+/// scaled by the √w of their units, so every draw is the weighted regression of y₀ on
+/// [Z* | W]. The caller must not combine weights with absorbed fixed effects (as for
+/// [`randomization_test`]).
+///
 /// # Errors
 /// As [`randomization_test`]; [`EstimateError::DimensionMismatch`] unless `endog` has one
 /// column; [`EstimateError::InstrumentsRankDeficient`] when the observed M_W Z is rank
 /// deficient; [`EstimateError::SingularCovariance`] for a singular observed V.
 pub fn randomization_ar(
     data: IvColumns,
+    redraw: Option<WeightedRedraw>,
     beta0: f64,
     cov: &CovSpec,
     absorbed: &Absorbed,
@@ -256,13 +264,24 @@ pub fn randomization_ar(
     plan: &Draws,
 ) -> Result<ResampleResult, ResampleError> {
     let (observed, stats, exact) =
-        randomization_ar_statistics(data, beta0, cov, absorbed, design, plan)?;
+        randomization_ar_statistics(data, redraw, beta0, cov, absorbed, design, plan)?;
     Ok(summarise(observed, &stats, exact))
+}
+
+/// The instruments of a weighted Anderson–Rubin randomization test in the data's units, with
+/// the probability weights (module documentation of [`randomization_ar`]).
+#[derive(Debug, Clone, Copy)]
+pub struct WeightedRedraw<'a> {
+    /// The excluded instruments, unscaled: the values the design re-draws among the units.
+    pub instruments: &'a DMatrix<f64>,
+    /// One positive, finite weight per row.
+    pub weights: &'a DVector<f64>,
 }
 
 /// [`randomization_ar`] before summarising (see [`randomization_statistics`]).
 pub(crate) fn randomization_ar_statistics(
     data: IvColumns,
+    redraw: Option<WeightedRedraw>,
     beta0: f64,
     cov: &CovSpec,
     absorbed: &Absorbed,
@@ -306,8 +325,23 @@ pub(crate) fn randomization_ar_statistics(
     if let (g, Some(v)) = &observed {
         wald(g, v, &indices)?;
     }
-    let assigner = Assigner::new(design, instruments)?;
-    let fitter = DrawFitter::new(&part, &assigner, None);
+    let root = match redraw {
+        Some(r) => {
+            check_weights(Some(r.weights), y.len())?;
+            if r.instruments.shape() != instruments.shape() {
+                return Err(EstimateError::DimensionMismatch {
+                    what: "unscaled instruments",
+                    expected: instruments.ncols(),
+                    got: r.instruments.ncols(),
+                }
+                .into());
+            }
+            Some(r.weights.map(f64::sqrt))
+        }
+        None => None,
+    };
+    let assigner = Assigner::new(design, redraw.map_or(instruments, |r| r.instruments))?;
+    let fitter = DrawFitter::new(&part, &assigner, root.as_ref());
     permutation_run(&assigner, plan, |labels, observed| {
         let (g, v) = fitter.fit(labels, observed, true)?;
         Some(wald(&g, &v?, &indices).ok()? / l as f64)

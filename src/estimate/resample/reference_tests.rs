@@ -163,6 +163,7 @@ fn randomization_ar_matches_brute_force() {
                 &DMatrix::from_column_slice(endog.len(), 1, endog.as_slice()),
                 &matrix(&case["instruments"]),
             ),
+            None,
             case["beta0"].as_f64().unwrap(),
             &cov(&case["cov"]),
             &Absorbed::NONE,

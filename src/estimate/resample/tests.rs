@@ -433,6 +433,7 @@ fn randomization_ar_observed_matches_anderson_rubin() {
         .unwrap();
         let r = randomization_ar(
             crate::estimate::IvColumns::new(&yy, &exog, &endog, &z),
+            None,
             0.5,
             &spec,
             &Absorbed::NONE,

@@ -10,7 +10,7 @@ use serde_json::Value;
 use super::super::covariance::CovSpec;
 use super::super::linear::IvColumns;
 use super::super::Absorbed;
-use super::randomization::randomization_statistics;
+use super::randomization::{randomization_ar_statistics, randomization_statistics, WeightedRedraw};
 use super::reference_tests::{ids, EXACT};
 use super::wild::wild_statistics;
 use super::wre::wre_statistics;
@@ -143,4 +143,37 @@ fn weighted_randomization_matches_brute_force() {
         );
         assert!(r.is_err());
     }
+}
+
+/// The randomization Anderson–Rubin test of weighted 2SLS: the √w-scaled problem, the
+/// instrument re-drawn in the data's units with each unit keeping its weight, against every
+/// one of the 924 assignments refitted by statsmodels WLS (HC1).
+#[test]
+fn weighted_randomization_ar_matches_brute_force() {
+    let f = crate::testing::fixture("weights_resampling.json");
+    let (d, e) = (&f["randomized"], &f["expected"]["ri_ar"]);
+    let (y, w) = (column(d, "y"), column(d, "w"));
+    let ys = y.component_mul(&w.map(f64::sqrt));
+    let (exog, endog, z) = (
+        columns(d, &["1", "c"]),
+        columns(d, &["x"]),
+        columns(d, &["t"]),
+    );
+    let (exog_s, endog_s, z_s) = (scaled(&exog, &w), scaled(&endog, &w), scaled(&z, &w));
+    let null = e["null"].as_f64().expect("null");
+    let redraw = WeightedRedraw {
+        instruments: &z,
+        weights: &w,
+    };
+    let (obs, stats, exact) = randomization_ar_statistics(
+        IvColumns::new(&ys, &exog_s, &endog_s, &z_s),
+        Some(redraw),
+        null,
+        &CovSpec::Hc1,
+        &Absorbed::NONE,
+        &AssignmentDesign::Complete,
+        &EXACT,
+    )
+    .expect("randomization AR");
+    compare(e, obs, &stats, exact);
 }

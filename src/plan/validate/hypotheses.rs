@@ -182,13 +182,13 @@ fn method(ctx: &Ctx, h: &RawHypothesis, spec: &Spec, plan: &Plan) -> Result<Meth
     let Some(at) = inference else {
         return Ok(Method::Model);
     };
-    // A weighted randomization test re-draws the treatment in the data's units and scales
-    // each draw by the units' weights: implemented for OLS without fixed effects (a weighted
-    // sweep does not commute with the re-draws, and the IV form is not written).
-    let unweighable = spec.estimator != Estimator::Ols || !spec.fixed_effects.is_empty();
+    // A weighted randomization test re-draws the treatment (OLS) or the instruments (IV) in
+    // the data's units and scales each draw by the units' weights: implemented without fixed
+    // effects (a weighted sweep does not commute with the re-draws).
+    let unweighable = !spec.fixed_effects.is_empty();
     if let (Some(w), "randomization", true) = (&spec.weights, kind, unweighable) {
         return Err(ctx.at(at, key("inference"), format!(
-            "inference = \"randomization\" is not available for specification `{}`, which is weighted by `{w}`: with probability weights it is implemented for OLS without fixed effects; use inference = \"model\" or \"wild-bootstrap\", or remove the fixed effects or the weights",
+            "inference = \"randomization\" is not available for specification `{}`, which is weighted by `{w}`: with probability weights it is implemented without fixed effects; use inference = \"model\" or \"wild-bootstrap\", or remove the fixed effects or the weights",
             spec.id
         )));
     }
