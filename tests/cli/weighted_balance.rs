@@ -1,6 +1,7 @@
 //! Weighted balance and differential-attrition checks (`weights = "w"` in `[balance]` and
 //! `[attrition]`), through the plan path, against tests/reference/weighted_balance.py
-//! (statsmodels WLS with one explicit dummy column per block, HC1 and cluster errors; numpy
+//! (statsmodels WLS with one explicit dummy column per block, HC1, classical, HC3 and cluster
+//! errors; numpy
 //! weighted averages for the arm means), at the relative tolerance of `reference::close`
 //! (1e-8); and the refusals at `check`.
 
@@ -102,21 +103,23 @@ fn check_row(what: &str, got: &Value, want: &Value) {
 }
 
 /// The design and errors lines of a fixture case.
-fn design_of(case: &Value) -> (&'static str, &'static str) {
-    match (case["kind"].as_str(), case["blocked"].as_bool()) {
-        (Some("cluster"), _) => (
+fn design_of(case: &Value) -> (&'static str, String) {
+    let kind = case["kind"].as_str().unwrap_or("?");
+    match (kind, case["blocked"].as_bool()) {
+        ("cluster", _) => (
             "\n[assignment]\nvariable = \"arm\"\ndesign = \"blocked-clustered\"\nblocks = \"blk\"\nclusters = \"cl\"\n",
-            "",
+            String::new(),
         ),
         (_, Some(true)) => (
             "\n[assignment]\nvariable = \"arm\"\ndesign = \"blocked\"\nblocks = \"blk\"\n",
-            "errors = \"hc1\"",
+            format!("errors = \"{kind}\""),
         ),
-        _ => ("", "errors = \"hc1\""),
+        _ => ("", format!("errors = \"{kind}\"")),
     }
 }
 
-/// Blocked with HC1, blocked-clustered (the registered clusters), and without blocks: each
+/// Blocked with HC1, classical and HC3 errors, blocked-clustered (the registered clusters),
+/// and without blocks (HC1): each
 /// weighted difference, SE, p-value, weighted arm mean and the joint F equal statsmodels
 /// WLS; the rows without a weight, of weight zero and alone in their block leave as the
 /// reference says; results.json and the report say the check is weighted by `w`.
@@ -127,7 +130,7 @@ fn weighted_checks_match_weighted_least_squares() {
     for case in f["cases"].as_array().expect("cases") {
         let kind = format!("{} blocked={}", case["kind"], case["blocked"]);
         let (design, errors) = design_of(case);
-        let s = Study::with(&plan(design, errors, ""), &data);
+        let s = Study::with(&plan(design, &errors, ""), &data);
         let v = s.seal_and_run();
         let b = &v["balance"];
         assert_eq!(b["n"].as_u64(), case["n"].as_u64(), "{kind} n");

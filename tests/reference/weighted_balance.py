@@ -19,7 +19,8 @@ column per block] (no constant) for a blocked case and [1, arm] without blocks: 
 coefficient's estimate, standard error and p-value for each covariate and for the observed
 indicator, and the F form of the Wald test of the covariate slopes in the weighted regression
 of the arm on the covariates (and the dummies, or a constant), statsmodels `wald_test`; under
-cov_type HC1 and cluster (groups = the clusters; statsmodels' default small-sample factor
+cov_type HC1, and for the blocked design also nonrobust (classical: s^2 = sum w u^2 / (n - K)
+times (X'WX)^-1) and HC3 (leverage of the weighted rows), and cluster (groups = the clusters; statsmodels' default small-sample factor
 G/(G-1)·(N-1)/(N-K), K counting every dummy; the blocks are not nested in the clusters).
 Weighted arm means: numpy.average(x, weights=w) within each arm. The p-values refer t to the
 residual df (n - K), or G - 1 clustered, and F to (k, the same df), with scipy.
@@ -82,8 +83,10 @@ def fit(y, x, block, cluster, w, kind, blocked):
     else:
         design = np.column_stack([np.ones(len(y)), x])
     model = sm.WLS(y, design, weights=w)
-    if kind == "hc1":
-        return model.fit(cov_type="HC1")
+    if kind == "classical":
+        return model.fit()
+    if kind in ("hc1", "hc3"):
+        return model.fit(cov_type=kind.upper())
     return model.fit(cov_type="cluster", cov_kwds={"groups": cluster})
 
 
@@ -187,7 +190,13 @@ def clean(x):
 
 def main():
     d = data()
-    cases = [case(d, "hc1", True), case(d, "cluster", True), case(d, "hc1", False)]
+    cases = [
+        case(d, "hc1", True),
+        case(d, "cluster", True),
+        case(d, "hc1", False),
+        case(d, "classical", True),
+        case(d, "hc3", True),
+    ]
     out = dict(
         source="statsmodels WLS with explicit block dummies (tests/reference/weighted_balance.py)",
         versions=VERSIONS,
