@@ -75,11 +75,12 @@ struct Blocked {
 /// The registered blocks on `rows`: the rows kept once those alone in their block are
 /// dropped (repeatedly, as for every absorbed fixed effect: a singleton has no within-block
 /// comparison) and the blocks on the kept rows. `treated` gives the arm of each of `rows`;
-/// an arm that varies within no block is refused (the blocks would absorb it).
+/// an arm that varies within no block is refused (the blocks would absorb it). With a
+/// weights column the blocks are swept with weighted means.
 fn blocked_rows(
     blocks: Option<&String>,
     table: &Table,
-    rows: Vec<usize>,
+    (rows, weights): (Vec<usize>, Option<&[Option<f64>]>),
     treated: impl Fn(usize) -> bool,
     by: &str,
     what: &str,
@@ -120,13 +121,49 @@ fn blocked_rows(
             ),
         ));
     }
-    let fe = FixedEffects::new(vec![kept_ids]).map_err(|e| err(what, e))?;
+    let fe = match weights {
+        Some(w) => FixedEffects::weighted(vec![kept_ids], &weights_on(w, &kept)),
+        None => FixedEffects::new(vec![kept_ids]),
+    }
+    .map_err(|e| err(what, e))?;
     let used = BlocksUsed {
         column: column.clone(),
         levels,
         singletons_dropped: rows.len() - kept.len(),
     };
     Ok((kept, Some(Blocked { fe, used })))
+}
+
+/// The weights column's values on `rows` (each present: the rows were chosen so).
+fn weights_on(column: &[Option<f64>], rows: &[usize]) -> Vec<f64> {
+    rows.iter()
+        .map(|&r| column[r].unwrap_or(f64::NAN))
+        .collect()
+}
+
+/// A weights column's cells and the number of zero-weight rows left out.
+type WeightsIn<'t> = (&'t [Option<f64>], usize);
+
+/// A weighted check's weights column, its rows without a weight and without a positive
+/// weight left out of `rows` (a negative weight is refused naming its place); returns the
+/// column and the number of zero weights dropped (`None` unweighted).
+fn weighted_rows<'t>(
+    plan: &Plan,
+    t: &'t Table,
+    (data, weights): (&str, Option<&String>),
+    rows: &mut Vec<usize>,
+    what: &str,
+) -> Result<Option<WeightsIn<'t>>> {
+    let Some(name) = weights else {
+        return Ok(None);
+    };
+    let column = t
+        .numeric
+        .get(name)
+        .ok_or_else(|| err(what, format!("weights column `{name}` is not available")))?;
+    rows.retain(|&r| column[r].is_some());
+    let (_, zero) = crate::data::check_summary_weights(t, &plan.data[data], what, name, rows)?;
+    Ok(Some((column.as_slice(), zero)))
 }
 
 /// The cluster columns of `errors` (empty unless clustered).
@@ -199,15 +236,17 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
     let arm = col(&b.by)?;
     let covs: Vec<&Vec<Option<f64>>> =
         b.covariates.iter().map(|c| col(c)).collect::<Result<_>>()?;
-    let rows = balance_rows(b, t, arm, &covs);
+    let mut rows = balance_rows(b, t, arm, &covs);
+    let weighted = weighted_rows(plan, t, (&b.data, b.weights.as_ref()), &mut rows, what)?;
     let (rows, blocks) = blocked_rows(
         b.blocks.as_ref(),
         t,
-        rows,
+        (rows, weighted.map(|w| w.0)),
         |r| arm[r] == Some(1.0),
         &b.by,
         what,
     )?;
+    let w = weighted.map(|w| weights_on(w.0, &rows));
     let m = nalgebra::DMatrix::from_fn(rows.len(), covs.len(), |i, j| {
         covs[j][rows[i]].unwrap_or(f64::NAN)
     });
@@ -216,13 +255,16 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
     // Without blocks the joint regression is of the arm on [intercept | covariates]; with
     // them, on [covariates] with the blocks absorbed.
     let first = usize::from(blocks.is_none());
-    let table = estimate::balance(&m, &treated, &cov, blocks.as_ref().map(|b| &b.fe))
+    let fe = blocks.as_ref().map(|b| &b.fe);
+    let table = estimate::balance(&m, &treated, &cov, fe, w.as_deref())
         .map_err(|e| balance_error(b, first, e))?;
     Ok(Some(BalanceResult {
         by: b.by.clone(),
         errors: (&b.errors).into(),
         clusters: cluster_columns(&b.errors),
         blocks: blocks.map(|b| b.used),
+        weights: b.weights.clone(),
+        dropped_zero_weight: weighted.map(|w| w.1),
         n: rows.len(),
         covariates: b
             .covariates
@@ -306,19 +348,21 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
             )
         })?
     };
-    let rows: Vec<usize> = (0..t.rows)
+    let mut rows: Vec<usize> = (0..t.rows)
         .filter(|&r| {
             matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
                 && clusters_present(&a.errors, t, r)
                 && block_present(a.blocks.as_ref(), t, r)
         })
         .collect();
+    let weighted = weighted_rows(plan, t, (&a.data, a.weights.as_ref()), &mut rows, what)?;
     let treated: Vec<bool> = rows.iter().map(|&r| arm[r] == Some(1.0)).collect();
     let observed: Vec<bool> = rows
         .iter()
         .map(|&r| observed_all[r].is_some_and(|v| v != 0.0))
         .collect();
-    let differential = attrition_test(a, t, &rows, &treated, &observed, what)?;
+    let weights = weighted.map(|w| w.0);
+    let differential = attrition_test(a, t, (&rows, weights), &treated, &observed, what)?;
     let mut bounds = BTreeMap::new();
     for name in &a.bounds {
         let values = bounded_values(a, t, name, &rows, &observed)?;
@@ -339,6 +383,8 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
         errors: (&a.errors).into(),
         clusters: cluster_columns(&a.errors),
         blocks: differential.1,
+        weights: a.weights.clone(),
+        dropped_zero_weight: weighted.map(|w| w.1),
         differential: differential.0,
         bounds,
     }))
@@ -388,11 +434,11 @@ fn hypotheses_on(plan: &Plan, data: &str) -> Vec<String> {
 }
 
 /// The differential-attrition regression on `rows` (blocks absorbed when registered, on the
-/// rows left once singleton blocks are dropped).
+/// rows left once singleton blocks are dropped; weighted least squares with a weights column).
 fn attrition_test(
     a: &crate::plan::Attrition,
     t: &Table,
-    rows: &[usize],
+    (rows, weights): (&[usize], Option<&[Option<f64>]>),
     treated: &[bool],
     observed: &[bool],
     what: &str,
@@ -401,18 +447,20 @@ fn attrition_test(
     let (kept, blocks) = blocked_rows(
         a.blocks.as_ref(),
         t,
-        rows.to_vec(),
+        (rows.to_vec(), weights),
         |r| treated[position[&r]],
         &a.by,
         what,
     )?;
     let pick = |v: &[bool]| -> Vec<bool> { kept.iter().map(|r| v[position[r]]).collect() };
     let cov = cov_for(&a.errors, t, &kept, what)?;
+    let w = weights.map(|w| weights_on(w, &kept));
     let row = estimate::differential_attrition(
         &pick(observed),
         &pick(treated),
         &cov,
         blocks.as_ref().map(|b| &b.fe),
+        w.as_deref(),
     )
     .map_err(|e| err(what, e))?;
     Ok((row, blocks.map(|b| b.used)))

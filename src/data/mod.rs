@@ -17,6 +17,7 @@ mod weights;
 pub use design::{cov_spec, design, CovSpecGap, Design};
 pub use labels::{IdOrder, Labels, TooManyLabels};
 pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};
+pub use weights::check_weights as check_summary_weights;
 
 use std::collections::BTreeMap;
 use std::path::PathBuf;

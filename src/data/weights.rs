@@ -35,21 +35,69 @@ pub(super) fn drop_zero_weights(
     let Some((name, column)) = weight_column(table, spec)? else {
         return Ok(0);
     };
+    let fix = "exclude the row with the specification's `sample`";
+    refuse_negative(table, source, (&spec.id, name, fix), column, rows)?;
+    let before = rows.len();
+    rows.retain(|&r| column[r].is_some_and(|v| v > 0.0));
+    Ok(before - rows.len())
+}
+
+/// Who holds a weights column (a specification's id, or `balance`/`attrition`), the
+/// column's name, and how to leave a row out there.
+type Holder<'a> = (&'a str, &'a str, &'a str);
+
+/// Refuse a used row whose weight is negative (or missing: the caller's row selection has
+/// already required it), naming its place.
+fn refuse_negative(
+    table: &Table,
+    source: &DataSource,
+    (holder, name, fix): Holder,
+    column: &[Option<f64>],
+    rows: &[usize],
+) -> Result<()> {
     let value = |r: usize| column[r].unwrap_or(f64::NAN);
     if let Some(&r) = rows.iter().find(|&&r| value(r).is_nan() || value(r) < 0.0) {
         return Err(Error::Estimation {
-            spec: spec.id.clone(),
+            spec: holder.to_string(),
             message: format!(
-                "weights column `{name}` holds {} at {} of data table `{}`; probability weights must be zero or positive: correct the value, or exclude the row with the specification's `sample`",
+                "weights column `{name}` holds {} at {} of data table `{}`; probability weights must be zero or positive: correct the value, or {fix}",
                 value(r),
                 row_place(source, r),
                 table.id
             ),
         });
     }
+    Ok(())
+}
+
+/// The weights of a weighted `[balance]` or `[attrition]` check (`what`) on `rows`, the
+/// rows complete in every variable the check uses and the weight (a row without a weight
+/// has left as a missing value, as a specification's default): a negative weight is refused
+/// naming its place, zero-weight rows leave `rows` and are counted. Returns the weights of
+/// the rows kept and the number dropped for a zero weight.
+pub fn check_weights(
+    table: &Table,
+    source: &DataSource,
+    what: &str,
+    name: &str,
+    rows: &mut Vec<usize>,
+) -> Result<(Vec<f64>, usize)> {
+    let column = table.numeric.get(name).ok_or_else(|| Error::Estimation {
+        spec: what.to_string(),
+        message: format!(
+            "weights column `{name}` is not available in data table `{}`",
+            table.id
+        ),
+    })?;
+    let fix = "remove the row from the data or correct it at its source";
+    refuse_negative(table, source, (what, name, fix), column, rows)?;
     let before = rows.len();
-    rows.retain(|&r| value(r) > 0.0);
-    Ok(before - rows.len())
+    rows.retain(|&r| column[r].is_some_and(|v| v > 0.0));
+    let w = rows
+        .iter()
+        .map(|&r| column[r].unwrap_or(f64::NAN))
+        .collect();
+    Ok((w, before - rows.len()))
 }
 
 /// The weights of the final `rows` (after zero weights and fixed-effect singletons left),

@@ -6,7 +6,8 @@ use super::{DataSource, Plan};
 use std::collections::BTreeSet;
 
 /// Declared columns a run needs: those used by specifications (directly or through derived
-/// variables), keys, row orders, clusters and the assignment.
+/// variables), balance and attrition checks (with their weights), keys, row orders, clusters
+/// and the assignment.
 pub fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
     let mut names = BTreeSet::new();
     for s in plan.specifications.iter().filter(|s| s.data == src.id) {
@@ -33,12 +34,14 @@ pub fn needed_columns(plan: &Plan, src: &DataSource) -> BTreeSet<String> {
     if let Some(b) = plan.balance.as_ref().filter(|b| b.data == src.id) {
         names.insert(b.by.clone());
         names.extend(b.covariates.iter().cloned());
+        names.extend(b.weights.iter().cloned());
         names.extend(b.errors.cluster_columns().iter().cloned());
     }
     if let Some(a) = plan.attrition.as_ref().filter(|a| a.data == src.id) {
         names.insert(a.by.clone());
         names.extend(a.observed.1.names());
         names.extend(a.bounds.iter().cloned());
+        names.extend(a.weights.iter().cloned());
         names.extend(a.errors.cluster_columns().iter().cloned());
     }
     if let Some(a) = &plan.assignment {

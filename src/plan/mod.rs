@@ -166,6 +166,8 @@ pub struct Balance {
     /// The registered blocks, absorbed as fixed effects (when `by` is the `[assignment]`
     /// variable of a blocked design).
     pub blocks: Option<String>,
+    /// Probability-weight column: weighted arm means and weighted least squares.
+    pub weights: Option<String>,
 }
 
 /// Attrition checks.
@@ -185,6 +187,9 @@ pub struct Attrition {
     /// The registered blocks, absorbed as fixed effects in the differential-attrition test
     /// (when `by` is the `[assignment]` variable of a blocked design).
     pub blocks: Option<String>,
+    /// Probability-weight column of the differential-attrition test (Lee bounds are then
+    /// refused at `check`).
+    pub weights: Option<String>,
 }
 
 /// `[resampling]`.

@@ -129,6 +129,8 @@ pub struct RawBalance {
     pub covariates: Vec<Spanned<String>>,
     /// Standard errors.
     pub errors: Option<Spanned<RawErrors>>,
+    /// Probability weights (a numeric column of the table).
+    pub weights: Option<Spanned<String>>,
 }
 
 /// `[attrition]`.
@@ -146,6 +148,8 @@ pub struct RawAttrition {
     pub bounds: Vec<Spanned<String>>,
     /// Standard errors of the differential-attrition test.
     pub errors: Option<Spanned<RawErrors>>,
+    /// Probability weights of the differential-attrition test (a numeric column).
+    pub weights: Option<Spanned<String>>,
 }
 
 /// `[resampling]`.

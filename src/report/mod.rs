@@ -177,9 +177,12 @@ mod tests {
 {{ w.fig_caption({"kind": "anderson_rubin", "curve": none, "set": "∅ (empty)", "shape": "empty", "reading": "empty", "estimator": "LIML"}) }}
 {{ w.fig_caption({"kind": "anderson_rubin", "curve": [9, "12.5"], "set": "(−∞, 1]", "shape": "two-rays", "reading": "unbounded", "estimator": "2SLS"}) }}
 {{ w.fig_caption({"kind": "failed", "error": "e"}) }}|{{ w.fig_title({"kind": "anderson_rubin", "level": "90", "id": "s"}) }}
+{{ w.summary_design({"errors": "hc1", "clusters": [], "blocks": none, "weights": {"column": "w", "zero": 0}}) }}
+{{ w.summary_design({"errors": "hc1", "clusters": ["c"], "blocks": {"levels": 4, "column": "b", "singletons": 2}, "weights": {"column": "w", "zero": 3}}) }}
+{{ w.balance_heading({"by": "arm", "n": 9, "design": {"errors": "hc0", "clusters": [], "blocks": none, "weights": {"column": "w", "zero": 1}}}) }}
 "#;
 
-    const EXPECTED: [&str; 54] = [
+    const EXPECTED: [&str; 57] = [
         "dropped as collinear: a, b",
         "errors clustered by a and b (12 clusters); residual df 80 = 100 − 5 − 15 (n − K − absorbed); coefficient tests t(11)",
         "Marks (thresholds set in the plan, two-sided p of each coefficient's own test): * p < 0.1, ** p < 0.05.",
@@ -234,6 +237,9 @@ mod tests {
         "The thick bar is the set of coefficient values the Anderson–Rubin test does not reject (∅ (empty), shape: empty); a bar reaching an edge continues without end. Beneath it the LIML estimate and its Wald interval, which rely on strong instruments. The set is empty: the instruments reject each other at this level.",
         "Above, the Anderson–Rubin statistic at 9 coefficient values, as computed in the run (results.json), and the dashed critical value: the set is every value where the curve lies on or under the line, so a curve still under it at an edge means the set goes on past that edge; values above 12.5 are cut at the top. The thick bar is the set of coefficient values the Anderson–Rubin test does not reject ((−∞, 1], shape: two-rays); a bar reaching an edge continues without end. Beneath it the 2SLS estimate and its Wald interval, which rely on strong instruments. The set is unbounded: the data cannot bound the effect on at least one side.",
         "The figure could not be drawn: e|Anderson–Rubin 90% set, s",
+        "differences from weighted least squares on the arm with hc1 errors, arm means and differences weighted by `w`",
+        "within-block differences from weighted least squares on the arm with the 4 registered blocks of `b` as fixed effects (2 rows alone in their block left out), errors clustered by `c`, arm means and differences weighted by `w` (3 rows of weight zero left out)",
+        "By `arm` (9 complete rows; differences from weighted least squares on the arm with hc0 errors, arm means and differences weighted by `w` (1 row of weight zero left out))",
     ];
 
     #[test]

@@ -52,6 +52,12 @@ pub struct BalanceResult {
     pub clusters: Vec<String>,
     /// The registered blocks absorbed as fixed effects, when the design is blocked.
     pub blocks: Option<BlocksUsed>,
+    /// The probability-weight column, when the check is weighted (absent unweighted).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub weights: Option<String>,
+    /// Rows left out for a weight of zero (absent unweighted).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub dropped_zero_weight: Option<usize>,
     /// Rows used (complete in the arm and every covariate).
     pub n: usize,
     /// Per covariate.
@@ -121,7 +127,13 @@ pub struct AttritionResult {
     /// The registered blocks absorbed in the differential test, when the design is blocked
     /// (Lee bounds pool the blocks).
     pub blocks: Option<BlocksUsed>,
-    /// Share observed in each arm and their difference, tested.
+    /// The probability-weight column, when the check is weighted (absent unweighted).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub weights: Option<String>,
+    /// Rows left out for a weight of zero (absent unweighted).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub dropped_zero_weight: Option<usize>,
+    /// Share observed in each arm (weighted shares when weighted) and their difference, tested.
     pub differential: ArmComparison,
     /// Lee bounds by outcome.
     pub bounds: BTreeMap<String, LeeResult>,

@@ -29,6 +29,7 @@ mod resampling;
 mod results_bytes;
 mod summaries;
 mod table_rows;
+mod weighted_balance;
 mod weighted_fixed_effects;
 mod weighted_resampling;
 mod weights;

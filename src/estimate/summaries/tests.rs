@@ -269,7 +269,7 @@ fn balance_and_attrition_agree_with_statsmodels() {
     for case in doc["cases"].as_array().unwrap() {
         let kind = case["kind"].as_str().unwrap();
         let s = spec(kind, &clusters);
-        let table = balance(&x, &treated, &s, None).unwrap();
+        let table = balance(&x, &treated, &s, None, None).unwrap();
         let diff = floats(&case["difference"]);
         let se = floats(&case["std_error"]);
         let p = floats(&case["p_value"]);
@@ -292,7 +292,7 @@ fn balance_and_attrition_agree_with_statsmodels() {
                 df2
             }
         );
-        let a = differential_attrition(&observed, &treated, &s, None).unwrap();
+        let a = differential_attrition(&observed, &treated, &s, None, None).unwrap();
         let att = &case["attrition"];
         assert!(close(
             a.difference,

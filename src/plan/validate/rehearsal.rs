@@ -36,6 +36,21 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
             s.id
         )));
     }
+    let weighted_check = [
+        (
+            "[balance]",
+            plan.balance.as_ref().and_then(|b| b.weights.as_ref()),
+        ),
+        (
+            "[attrition]",
+            plan.attrition.as_ref().and_then(|a| a.weights.as_ref()),
+        ),
+    ];
+    if let Some((section, Some(w))) = weighted_check.iter().find(|(_, w)| w.is_some()) {
+        return Err(ctx.at(spanned, "rehearsal", format!(
+            "{section} is weighted by `{w}`, and a rehearsal simulates unweighted data sets only; remove [rehearsal] or the check's weights"
+        )));
+    }
     let r = r.get_ref();
     let replications = whole_in(
         ctx,

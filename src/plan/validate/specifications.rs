@@ -122,7 +122,7 @@ fn specification(ctx: &Ctx, s: &RawSpec, plan: &Plan) -> Result<Spec> {
         },
         fuller_k,
         worst_case_bias,
-        weights: weights(ctx, s, table, &key("weights"))?,
+        weights: weights(ctx, s.weights.as_ref(), table, &key("weights"))?,
         stop_on_missing_weight: on_missing_weight(ctx, s, &key("on_missing_weight"))?,
     };
     check_shape(ctx, s, &spec)?;
@@ -318,9 +318,15 @@ fn check_shape(ctx: &Ctx, s: &RawSpec, spec: &Spec) -> Result<()> {
 }
 
 /// The `weights` column: declared in the table's schema as a number, integer or binary
-/// column (a derived variable or an index is not a stored sampling weight).
-fn weights(ctx: &Ctx, s: &RawSpec, table: &DataSource, key: &str) -> Result<Option<String>> {
-    let Some(w) = &s.weights else {
+/// column (a derived variable or an index is not a stored sampling weight). Also the
+/// `weights` of `[balance]` and `[attrition]`.
+pub(super) fn weights(
+    ctx: &Ctx,
+    w: Option<&Spanned<String>>,
+    table: &DataSource,
+    key: &str,
+) -> Result<Option<String>> {
+    let Some(w) = w else {
         return Ok(None);
     };
     let n = w.get_ref();

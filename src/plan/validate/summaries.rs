@@ -210,12 +210,21 @@ pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Ba
         ));
     }
     let (errors, blocks) = registered_design(ctx, plan, t, &b.by, b.errors.as_ref(), "balance")?;
+    let weights = summary_weights(
+        ctx,
+        b.weights.as_ref(),
+        b.errors.as_ref(),
+        &errors,
+        t,
+        "balance",
+    )?;
     Ok(Some(Balance {
         data: t.id.clone(),
         by,
         covariates,
         errors,
         blocks,
+        weights,
     }))
 }
 
@@ -243,6 +252,23 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         })
         .collect::<Result<Vec<_>>>()?;
     let (errors, blocks) = registered_design(ctx, plan, t, &a.by, a.errors.as_ref(), "attrition")?;
+    let weights = summary_weights(
+        ctx,
+        a.weights.as_ref(),
+        a.errors.as_ref(),
+        &errors,
+        t,
+        "attrition",
+    )?;
+    if let (Some(w), Some(first)) = (
+        a.weights.as_ref().filter(|_| weights.is_some()),
+        a.bounds.first(),
+    ) {
+        return Err(ctx.at(first, "attrition.bounds", format!(
+            "Lee bounds with probability weights (weights = \"{}\") are not available: the weighted trimming needs weighted quantiles, which sworn does not compute; remove `bounds` for the weighted differential-attrition test, or remove `weights` for unweighted bounds",
+            w.get_ref()
+        )));
+    }
     Ok(Some(Attrition {
         data: t.id.clone(),
         by,
@@ -250,7 +276,33 @@ pub(super) fn attrition(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         bounds,
         errors,
         blocks,
+        weights,
     }))
+}
+
+/// The `weights` of `[balance]` or `[attrition]`: a numeric column of the table (as for a
+/// specification), with the errors a weighted specification takes: classical, hc0–hc3 or
+/// one-way clusters (two-way weighted errors are not implemented).
+fn summary_weights(
+    ctx: &Ctx,
+    w: Option<&Spanned<String>>,
+    raw_errors: Option<&Spanned<RawErrors>>,
+    errors: &Errors,
+    t: &DataSource,
+    section: &str,
+) -> Result<Option<String>> {
+    let weights = super::specifications::weights(ctx, w, t, &format!("{section}.weights"))?;
+    let (Some(w), Errors::Cluster(by)) = (w.filter(|_| weights.is_some()), errors) else {
+        return Ok(weights);
+    };
+    if by.len() > 1 {
+        let at = raw_errors.map_or(w.span(), |e| e.span());
+        return Err(ctx.err(at, format!("{section}.errors"), format!(
+            "a weighted check (weights = \"{}\") takes \"classical\", \"hc0\", \"hc1\", \"hc2\", \"hc3\" or {{ kind = \"cluster\", by = \"COLUMN\" }} with one column; two-way cluster errors with probability weights are not available; choose one of those or remove `weights`",
+            w.get_ref()
+        )));
+    }
+    Ok(weights)
 }
 
 /// An `errors` value for balance or attrition, where HAC errors have no time order to use.

@@ -703,3 +703,98 @@ fn weights_messages() {
     let plan = from_text(Path::new("/plans/p.toml"), fe).expect("weighted OLS with fixed effects");
     assert_eq!(plan.specifications[0].fixed_effects, ["grp"]);
 }
+
+/// The base plan with a `[balance]` and an `[attrition]` check on `main` (unweighted).
+fn with_checks() -> String {
+    format!(
+        "{BASE}\n[balance]\nby = \"z\"\ncovariates = [\"x\"]\nerrors = \"hc1\"\n\n[attrition]\nby = \"z\"\nobserved = \"y > 0\"\nerrors = \"hc1\"\n"
+    )
+}
+
+// Long because it is a table of cases, one per message of a weighted check.
+#[test]
+fn weighted_check_messages() {
+    let cases = [
+        ("covariates = [\"x\"]", "covariates = [\"x\"]\nweights = \"wt\"", "balance.weights", "unknown column `wt`"),
+        ("covariates = [\"x\"]", "covariates = [\"x\"]\nweights = \"grp\"", "balance.weights", "weights must be a column declared as number or integer"),
+        ("observed = \"y > 0\"", "observed = \"y > 0\"\nweights = \"z_x\"", "attrition.weights", "unknown column `z_x`"),
+        (
+            "covariates = [\"x\"]\nerrors = \"hc1\"",
+            "covariates = [\"x\"]\nweights = \"x\"\nerrors = { kind = \"cluster\", by = [\"grp\", \"d\"] }",
+            "balance.errors",
+            "two-way cluster errors with probability weights are not available",
+        ),
+        (
+            "observed = \"y > 0\"",
+            "observed = \"y > 0\"\nbounds = [\"y\"]\nweights = \"x\"",
+            "attrition.bounds",
+            "Lee bounds with probability weights (weights = \"x\") are not available",
+        ),
+    ];
+    let base = with_checks();
+    from_text(Path::new("/plans/p.toml"), base.clone()).expect("the checks are valid");
+    for (anchor, with, key, says) in cases {
+        assert!(base.contains(anchor), "anchor `{anchor}` missing");
+        let e = match from_text(Path::new("/plans/p.toml"), base.replacen(anchor, with, 1)) {
+            Ok(_) => panic!("accepted: {key}"),
+            Err(e) => e.to_string(),
+        };
+        assert!(
+            e.contains(&format!("`{key}`")) && e.contains(says),
+            "{key}: {e}"
+        );
+    }
+    let ok = base
+        .replacen(
+            "covariates = [\"x\"]",
+            "covariates = [\"x\"]\nweights = \"x\"",
+            1,
+        )
+        .replacen(
+            "observed = \"y > 0\"",
+            "observed = \"y > 0\"\nweights = \"y\"",
+            1,
+        );
+    let plan = from_text(Path::new("/plans/p.toml"), ok).expect("weighted checks are valid");
+    assert_eq!(plan.balance.and_then(|b| b.weights).as_deref(), Some("x"));
+    assert_eq!(plan.attrition.and_then(|a| a.weights).as_deref(), Some("y"));
+}
+
+/// A check's weights are part of the canonical form: adding them changes the fingerprinted
+/// text, and the amendment names the key.
+#[test]
+fn check_weights_are_fingerprinted() {
+    let base = with_checks();
+    let weighted = base.replacen(
+        "covariates = [\"x\"]",
+        "covariates = [\"x\"]\nweights = \"x\"",
+        1,
+    );
+    let p = Path::new("/plans/p.toml");
+    let (a, b) = (
+        crate::plan::canonical::canonical_text(p, &base).expect("canonical"),
+        crate::plan::canonical::canonical_text(p, &weighted).expect("canonical"),
+    );
+    assert_ne!(a, b);
+    let keys = crate::plan::canonical::changed_keys(&a, &b);
+    assert!(
+        keys.iter().any(|k| k.contains("balance.weights")),
+        "{keys:?}"
+    );
+}
+
+/// A rehearsal simulates unweighted data sets: a weighted check is refused with the fix.
+#[test]
+fn weighted_check_refuses_a_rehearsal() {
+    let text = with_checks()
+        .replacen("covariates = [\"x\"]", "covariates = [\"x\"]\nweights = \"x\"", 1)
+        + "\n[rehearsal]\nseed = 1\neffects = [0.0]\n\n[rehearsal.data.main]\nrows = 50\n\n[rehearsal.data.main.columns]\nx = \"1\"\n";
+    let e = match from_text(Path::new("/plans/p.toml"), text) {
+        Ok(_) => panic!("a rehearsal of a weighted check was accepted"),
+        Err(e) => e.to_string(),
+    };
+    assert!(
+        e.contains("`rehearsal`") && e.contains("[balance] is weighted by `x`"),
+        "{e}"
+    );
+}

@@ -41,12 +41,20 @@ pub(super) struct BalanceRowModel {
 }
 
 /// How a balance or attrition regression was run: the errors (naming the cluster columns)
-/// and, when absorbed, the registered blocks.
+/// and, when absorbed, the registered blocks; when weighted, the weights column.
 #[derive(Debug, Serialize)]
 pub(super) struct SummaryDesign {
     errors: String,
     clusters: Vec<String>,
     blocks: Option<Blocks>,
+    weights: Option<Weighted>,
+}
+
+/// The probability weights of a weighted check and the zero-weight rows left out.
+#[derive(Debug, Serialize)]
+pub(super) struct Weighted {
+    column: String,
+    zero: usize,
 }
 
 #[derive(Debug, Serialize)]
@@ -111,8 +119,13 @@ fn summary_design(
     errors: ErrorKind,
     clusters: &[String],
     blocks: Option<&crate::results::BlocksUsed>,
+    (weights, zero): (Option<&String>, Option<usize>),
 ) -> SummaryDesign {
     SummaryDesign {
+        weights: weights.map(|w| Weighted {
+            column: w.clone(),
+            zero: zero.unwrap_or(0),
+        }),
         errors: errors.to_string(),
         clusters: clusters.to_vec(),
         blocks: blocks.map(|b| Blocks {
@@ -136,7 +149,12 @@ pub(super) fn attrition_lines(r: &Results) -> Vec<AttritionLine> {
         n_treated: d.n_treated,
         difference: num(d.difference),
         std_error: num(d.std_error),
-        design: summary_design(a.errors, &a.clusters, a.blocks.as_ref()),
+        design: summary_design(
+            a.errors,
+            &a.clusters,
+            a.blocks.as_ref(),
+            (a.weights.as_ref(), a.dropped_zero_weight),
+        ),
         p: p_is(d.test.p_value),
     }];
     if let (Some(b), false) = (&a.blocks, a.bounds.is_empty()) {
@@ -191,7 +209,12 @@ pub(super) fn balance_model(r: &Results) -> Option<BalanceModel> {
         heading: BalanceHeading {
             by: b.by.clone(),
             n: b.n,
-            design: summary_design(b.errors, &b.clusters, b.blocks.as_ref()),
+            design: summary_design(
+                b.errors,
+                &b.clusters,
+                b.blocks.as_ref(),
+                (b.weights.as_ref(), b.dropped_zero_weight),
+            ),
         },
         rows: b
             .covariates
