@@ -30,27 +30,7 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         return Ok(None);
     };
     let spanned = r;
-    if let Some(s) = plan.specifications.iter().find(|s| s.weights.is_some()) {
-        return Err(ctx.at(spanned, "rehearsal", format!(
-            "specification `{}` is weighted, and a rehearsal simulates unweighted data sets only; remove [rehearsal] or the specification's weights",
-            s.id
-        )));
-    }
-    let weighted_check = [
-        (
-            "[balance]",
-            plan.balance.as_ref().and_then(|b| b.weights.as_ref()),
-        ),
-        (
-            "[attrition]",
-            plan.attrition.as_ref().and_then(|a| a.weights.as_ref()),
-        ),
-    ];
-    if let Some((section, Some(w))) = weighted_check.iter().find(|(_, w)| w.is_some()) {
-        return Err(ctx.at(spanned, "rehearsal", format!(
-            "{section} is weighted by `{w}`, and a rehearsal simulates unweighted data sets only; remove [rehearsal] or the check's weights"
-        )));
-    }
+    refuse_weights(ctx, plan, spanned)?;
     let r = r.get_ref();
     let replications = whole_in(
         ctx,
@@ -97,6 +77,33 @@ pub(super) fn rehearsal(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<
         mde_steps,
         generators,
     }))
+}
+
+/// A rehearsal simulates unweighted data sets only: refuse it beside a weighted
+/// specification or a weighted balance or attrition check.
+fn refuse_weights<T>(ctx: &Ctx, plan: &Plan, at: &Spanned<T>) -> Result<()> {
+    if let Some(s) = plan.specifications.iter().find(|s| s.weights.is_some()) {
+        return Err(ctx.at(at, "rehearsal", format!(
+            "specification `{}` is weighted, and a rehearsal simulates unweighted data sets only; remove [rehearsal] or the specification's weights",
+            s.id
+        )));
+    }
+    let weighted_check = [
+        (
+            "[balance]",
+            plan.balance.as_ref().and_then(|b| b.weights.as_ref()),
+        ),
+        (
+            "[attrition]",
+            plan.attrition.as_ref().and_then(|a| a.weights.as_ref()),
+        ),
+    ];
+    if let Some((section, Some(w))) = weighted_check.iter().find(|(_, w)| w.is_some()) {
+        return Err(ctx.at(at, "rehearsal", format!(
+            "{section} is weighted by `{w}`, and a rehearsal simulates unweighted data sets only; remove [rehearsal] or the check's weights"
+        )));
+    }
+    Ok(())
 }
 
 /// An optional whole number that must lie in `range`; `message` (naming the range) when not.

@@ -161,14 +161,15 @@ fn components(
     Ok(components)
 }
 
-/// `[balance]`.
-pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Balance>> {
-    let Some(b) = &raw.balance else {
-        return Ok(None);
-    };
-    let b = b.get_ref();
-    let t = data_table(ctx, plan, b.data.as_ref(), &b.by, "balance.data")?;
-    let by = binary_arm(ctx, t, &b.by, "balance.by")?;
+/// `[balance]`'s covariates: at least one, each available in the table (or an index), none
+/// twice, and not the arm indicator `by`.
+fn balance_covariates(
+    ctx: &Ctx,
+    b: &crate::plan::raw::RawBalance,
+    t: &DataSource,
+    plan: &Plan,
+    by: &str,
+) -> Result<Vec<String>> {
     let names = available_with_indices(t, plan);
     if b.covariates.is_empty() {
         return Err(ctx.at(
@@ -202,13 +203,25 @@ pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Ba
             format!("`{}` is listed twice", dup.get_ref()),
         ));
     }
-    if covariates.contains(&by) {
+    if covariates.iter().any(|c| c == by) {
         return Err(ctx.at(
             &b.by,
             "balance.covariates",
             "the arm indicator cannot be its own covariate",
         ));
     }
+    Ok(covariates)
+}
+
+/// `[balance]`.
+pub(super) fn balance(ctx: &Ctx, raw: &RawPlan, plan: &Plan) -> Result<Option<Balance>> {
+    let Some(b) = &raw.balance else {
+        return Ok(None);
+    };
+    let b = b.get_ref();
+    let t = data_table(ctx, plan, b.data.as_ref(), &b.by, "balance.data")?;
+    let by = binary_arm(ctx, t, &b.by, "balance.by")?;
+    let covariates = balance_covariates(ctx, b, t, plan, &by)?;
     let (errors, blocks) = registered_design(ctx, plan, t, &b.by, b.errors.as_ref(), "balance")?;
     let weights = summary_weights(
         ctx,
