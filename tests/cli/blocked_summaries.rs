@@ -6,7 +6,8 @@ use crate::common::Study;
 use crate::reference::{close, fixture};
 use serde_json::Value;
 
-fn cell(v: &Value) -> String {
+/// A fixture value as a CSV cell (`NA` for null).
+pub(crate) fn cell(v: &Value) -> String {
     match v {
         Value::Null => "NA".to_string(),
         Value::Number(n) if n.is_i64() => n.to_string(),

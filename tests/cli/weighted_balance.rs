@@ -5,17 +5,10 @@
 //! weighted averages for the arm means), at the relative tolerance of `reference::close`
 //! (1e-8); and the refusals at `check`.
 
+use crate::blocked_summaries::cell;
 use crate::common::Study;
 use crate::reference::{close, fixture};
 use serde_json::Value;
-
-fn cell(v: &Value) -> String {
-    match v {
-        Value::Null => "NA".to_string(),
-        Value::Number(n) if n.is_i64() => n.to_string(),
-        other => format!("{}", other.as_f64().unwrap_or(f64::NAN)),
-    }
-}
 
 /// The fixture's data as CSV: blocks `b0`…, clusters `c0`….
 fn csv(f: &Value) -> String {
