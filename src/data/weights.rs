@@ -37,9 +37,14 @@ pub(super) fn drop_zero_weights(
     };
     let fix = "exclude the row with the specification's `sample`";
     refuse_negative(table, source, (&spec.id, name, fix), column, rows)?;
+    Ok(drop_zero(column, rows))
+}
+
+/// Drops from `rows` those whose weight is not positive; returns how many left.
+fn drop_zero(column: &[Option<f64>], rows: &mut Vec<usize>) -> usize {
     let before = rows.len();
     rows.retain(|&r| column[r].is_some_and(|v| v > 0.0));
-    Ok(before - rows.len())
+    before - rows.len()
 }
 
 /// Who holds a weights column (a specification's id, or `balance`/`attrition`), the
@@ -82,22 +87,15 @@ pub fn check_weights(
     name: &str,
     rows: &mut Vec<usize>,
 ) -> Result<(Vec<f64>, usize)> {
-    let column = table.numeric.get(name).ok_or_else(|| Error::Estimation {
-        spec: what.to_string(),
-        message: format!(
-            "weights column `{name}` is not available in data table `{}`",
-            table.id
-        ),
-    })?;
+    let column = cells(table, what, name)?;
     let fix = "remove the row from the data or correct it at its source";
     refuse_negative(table, source, (what, name, fix), column, rows)?;
-    let before = rows.len();
-    rows.retain(|&r| column[r].is_some_and(|v| v > 0.0));
+    let dropped = drop_zero(column, rows);
     let w = rows
         .iter()
         .map(|&r| column[r].unwrap_or(f64::NAN))
         .collect();
-    Ok((w, before - rows.len()))
+    Ok((w, dropped))
 }
 
 /// The weights of the final `rows` (after zero weights and fixed-effect singletons left),
@@ -122,12 +120,21 @@ fn weight_column<'t>(table: &'t Table, spec: &'t Spec) -> Result<Option<WeightCo
     let Some(name) = &spec.weights else {
         return Ok(None);
     };
-    let column = table.numeric.get(name).ok_or_else(|| Error::Estimation {
-        spec: spec.id.clone(),
-        message: format!(
-            "weights column `{name}` is not available in data table `{}`",
-            table.id
-        ),
-    })?;
-    Ok(Some((name, column)))
+    Ok(Some((name, cells(table, &spec.id, name)?)))
+}
+
+/// The cells of weights column `name` of `holder` (a specification's id, or
+/// `balance`/`attrition`), or an error naming it.
+fn cells<'t>(table: &'t Table, holder: &str, name: &str) -> Result<&'t [Option<f64>]> {
+    table
+        .numeric
+        .get(name)
+        .map(Vec::as_slice)
+        .ok_or_else(|| Error::Estimation {
+            spec: holder.to_string(),
+            message: format!(
+                "weights column `{name}` is not available in data table `{}`",
+                table.id
+            ),
+        })
 }

@@ -162,11 +162,18 @@ fn entry(x: &DMatrix<f64>) -> Option<Arc<Entry>> {
 /// As [`PivotedQr::new`].
 pub(crate) fn shared_qr(x: &DMatrix<f64>) -> Result<Arc<PivotedQr>, EstimateError> {
     match entry(x) {
-        Some(e) => {
-            e.qr.get_or_init(|| PivotedQr::new(x).map(|qr| Arc::new(qr.kept())))
-                .clone()
-        }
+        Some(e) => e.factorised(x),
         None => PivotedQr::new(x).map(Arc::new),
+    }
+}
+
+impl Entry {
+    /// The entry's QR, factorised from `x` (equal to the entry's matrix) on first use and
+    /// made to keep what it computes later.
+    fn factorised(&self, x: &DMatrix<f64>) -> Result<Arc<PivotedQr>, EstimateError> {
+        self.qr
+            .get_or_init(|| PivotedQr::new(x).map(|qr| Arc::new(qr.kept())))
+            .clone()
     }
 }
 
@@ -179,12 +186,7 @@ pub(crate) fn design_qr(
     x: &DMatrix<f64>,
 ) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
     match entry(x) {
-        Some(e) => {
-            let qr =
-                e.qr.get_or_init(|| PivotedQr::new(x).map(|qr| Arc::new(qr.kept())))
-                    .clone()?;
-            Ok((Arc::clone(&e.x), qr))
-        }
+        Some(e) => Ok((Arc::clone(&e.x), e.factorised(x)?)),
         None => Ok((Arc::new(x.clone()), Arc::new(PivotedQr::new(x)?))),
     }
 }

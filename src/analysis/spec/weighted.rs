@@ -42,13 +42,16 @@ pub(super) fn r_squared(fit: &LinearFit, scaled: DVectorView<f64>, d: &Design) -
         return fit.r_squared;
     };
     let v: DVector<f64> = scaled.component_div(&w.map(f64::sqrt));
-    let mean = w.dot(&v) / w.sum();
-    let tss: f64 = w
-        .iter()
+    1.0 - fit.rss / weighted_total(w, &v)
+}
+
+/// The weighted total sum of squares Σ w (v − v̄_w)², v̄_w = Σ w v / Σ w.
+fn weighted_total(w: &DVector<f64>, v: &DVector<f64>) -> f64 {
+    let mean = w.dot(v) / w.sum();
+    w.iter()
         .zip(v.iter())
         .map(|(w, v)| w * (v - mean).powi(2))
-        .sum();
-    1.0 - fit.rss / tss
+        .sum()
 }
 
 /// The R² in levels of a fit with absorbed fixed effects (as with explicit indicator
@@ -57,13 +60,7 @@ pub(super) fn r_squared(fit: &LinearFit, scaled: DVectorView<f64>, d: &Design) -
 /// weighted total is Σ w ỹ²).
 pub(super) fn levels_r_squared(fit: &LinearFit, d: &Design) -> f64 {
     let tss: f64 = match &d.weights {
-        Some(w) => {
-            let mean = w.dot(&d.y_raw) / w.sum();
-            w.iter()
-                .zip(d.y_raw.iter())
-                .map(|(w, v)| w * (v - mean).powi(2))
-                .sum()
-        }
+        Some(w) => weighted_total(w, &d.y_raw),
         None => {
             let mean = d.y_raw.mean();
             d.y_raw.iter().map(|v| (v - mean) * (v - mean)).sum()
@@ -88,10 +85,9 @@ pub(super) fn unscaled_regressors(
         return Ok(None);
     };
     let names: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
-    let (Some(j), Some(column), true) = (
+    let (Some(j), Some(column)) = (
         names.iter().position(|n| *n == term),
-        prepared.table.numeric.get(term),
-        d.fixed_effects.is_empty(),
+        data_units(prepared, term),
     ) else {
         return Err(super::est_err(spec, format!("term `{term}` cannot be re-drawn in the data's units (an error in sworn; please report it)")));
     };
@@ -100,10 +96,22 @@ pub(super) fn unscaled_regressors(
     for mut c in raw.column_iter_mut() {
         c.component_div_assign(&root);
     }
-    for (i, &r) in d.rows.iter().enumerate() {
-        raw[(i, j)] = column[r].unwrap_or(f64::NAN);
-    }
+    raw.set_column(j, &column);
     Ok(Some(raw))
+}
+
+/// Column `name` read from the table at the design's rows, in the data's units; `None` when
+/// the table has no such numeric column or the design swept fixed effects (its columns are
+/// then not the table's).
+fn data_units(prepared: &Prepared, name: &str) -> Option<DVector<f64>> {
+    let d = &prepared.d;
+    let column = prepared.table.numeric.get(name)?;
+    d.fixed_effects.is_empty().then(|| {
+        DVector::from_iterator(
+            d.rows.len(),
+            d.rows.iter().map(|&r| column[r].unwrap_or(f64::NAN)),
+        )
+    })
 }
 
 /// A weighted IV specification's excluded instruments in the data's units, read from the
@@ -116,13 +124,10 @@ pub(super) fn unscaled_instruments(prepared: &Prepared) -> Result<Option<DMatrix
     }
     let mut raw = DMatrix::zeros(d.rows.len(), p.instrument_names.len());
     for (j, name) in p.instrument_names.iter().enumerate() {
-        let (Some(column), true) = (prepared.table.numeric.get(name), d.fixed_effects.is_empty())
-        else {
+        let Some(column) = data_units(prepared, name) else {
             return Err(super::est_err(spec, format!("instrument `{name}` cannot be re-drawn in the data's units (an error in sworn; please report it)")));
         };
-        for (i, &r) in d.rows.iter().enumerate() {
-            raw[(i, j)] = column[r].unwrap_or(f64::NAN);
-        }
+        raw.set_column(j, &column);
     }
     Ok(Some(raw))
 }
