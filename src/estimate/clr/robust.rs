@@ -51,17 +51,16 @@
 //! # The sets
 //! {β₀ : K(β₀) ≤ χ²₁ quantile} and {β₀ : p_CLR(β₀) ≥ 1 − confidence}, both by the scan of
 //! the Anderson–Rubin set (anderson_rubin::set::scan_boundaries over theta_grid with
-//! [`CLR_GRID`] cells: bisection at each sign change, golden-section check of each grid-local
+//! [`CLR_GRID`](super::CLR_GRID) cells: bisection at each sign change, golden-section check of each grid-local
 //! extremum), with the same guarantee: a piece or gap narrower than one cell with no
 //! grid-visible extremum can be missed. A point where a covariance block is singular (an
 //! exact fit, d = 0) counts as rejected.
 
 use nalgebra::{DMatrix, DVector};
-use std::convert::Infallible;
 
-use super::{clr_p_value, ConditionalLr, LmClr, LmClrSets, CLR_GRID};
+use super::{clr_p_value, ConditionalLr, LmClr, LmClrSets};
 use crate::distribution::{Reference, TestStatistic};
-use crate::estimate::anderson_rubin::{scan_boundaries, theta_grid, ConfidenceSet};
+use crate::estimate::anderson_rubin::ConfidenceSet;
 use crate::estimate::covariance::{CovSpec, Leverage};
 use crate::estimate::linear::{require_observations, IvProblem};
 use crate::estimate::quadratic_meat::quadratic_meat;
@@ -304,21 +303,6 @@ impl RobustLmClr {
 
     /// {θ : φ(θ) ≤ 0} as a set in β₀, by the Anderson–Rubin set's scan.
     fn scan(&self, phi: &dyn Fn(f64) -> f64) -> ConfidenceSet {
-        let thetas = theta_grid(CLR_GRID);
-        let values: Vec<f64> = thetas.iter().map(|&t| phi(t)).collect();
-        let f = |t: f64| Ok::<f64, Infallible>(phi(t));
-        let Ok(boundaries) = scan_boundaries(&f, &thetas, &values);
-        let mut pieces = Vec::new();
-        let mut start = (values[0] <= 0.0).then_some(f64::NEG_INFINITY);
-        for &t in &boundaries {
-            match start.take() {
-                Some(lo) => pieces.push((lo, self.beta(t))),
-                None => start = Some(self.beta(t)),
-            }
-        }
-        if let Some(lo) = start {
-            pieces.push((lo, f64::INFINITY));
-        }
-        ConfidenceSet::normalised(pieces)
+        super::set::scan_set(phi, |t| self.beta(t))
     }
 }

@@ -288,35 +288,45 @@ impl Forms {
                 boundaries.push(t);
             }
         }
-        self.assemble(&boundaries, inside(half_pi))
+        assemble(&boundaries, inside(half_pi), |t| self.beta(t))
     }
 
     /// The CLR set at level `alpha`.
     pub(super) fn clr_set(&self, alpha: f64) -> ConfidenceSet {
-        let excess = |theta: f64| alpha - self.clr_at(direction(theta)).1;
-        let phi = |theta: f64| Ok::<f64, Infallible>(excess(theta));
-        let thetas = theta_grid(CLR_GRID);
-        let values: Vec<f64> = thetas.iter().map(|&t| excess(t)).collect();
-        // The same scan as the Anderson–Rubin set's; the statistic cannot fail here.
-        let Ok(boundaries) = scan_boundaries(&phi, &thetas, &values);
-        self.assemble(&boundaries, values[0] <= 0.0)
+        scan_set(&|theta| alpha - self.clr_at(direction(theta)).1, |t| {
+            self.beta(t)
+        })
     }
+}
 
-    /// Pieces in β₀ from sorted boundary points in θ and membership at β₀ = ±∞.
-    fn assemble(&self, boundaries: &[f64], inside_at_infinity: bool) -> ConfidenceSet {
-        let mut pieces = Vec::new();
-        let mut start = inside_at_infinity.then_some(f64::NEG_INFINITY);
-        for &t in boundaries {
-            match start.take() {
-                Some(lo) => pieces.push((lo, self.beta(t))),
-                None => start = Some(self.beta(t)),
-            }
+/// {θ : φ(θ) ≤ 0} as a set in β₀ = `beta`(θ), by the Anderson–Rubin set's scan over
+/// [`CLR_GRID`] cells (φ cannot fail here).
+pub(super) fn scan_set(phi: &dyn Fn(f64) -> f64, beta: impl Fn(f64) -> f64) -> ConfidenceSet {
+    let thetas = theta_grid(CLR_GRID);
+    let values: Vec<f64> = thetas.iter().map(|&t| phi(t)).collect();
+    let f = |t: f64| Ok::<f64, Infallible>(phi(t));
+    let Ok(boundaries) = scan_boundaries(&f, &thetas, &values);
+    assemble(&boundaries, values[0] <= 0.0, beta)
+}
+
+/// Pieces in β₀ = `beta`(θ) from sorted boundary points in θ and membership at β₀ = ±∞.
+fn assemble(
+    boundaries: &[f64],
+    inside_at_infinity: bool,
+    beta: impl Fn(f64) -> f64,
+) -> ConfidenceSet {
+    let mut pieces = Vec::new();
+    let mut start = inside_at_infinity.then_some(f64::NEG_INFINITY);
+    for &t in boundaries {
+        match start.take() {
+            Some(lo) => pieces.push((lo, beta(t))),
+            None => start = Some(beta(t)),
         }
-        if let Some(lo) = start {
-            pieces.push((lo, f64::INFINITY));
-        }
-        ConfidenceSet::normalised(pieces)
     }
+    if let Some(lo) = start {
+        pieces.push((lo, f64::INFINITY));
+    }
+    ConfidenceSet::normalised(pieces)
 }
 
 /// Real roots of the polynomial with ascending coefficients `c` (trailing coefficients below
