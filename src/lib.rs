@@ -23,6 +23,7 @@ pub mod guide;
 pub mod inference;
 pub mod layout;
 pub mod ledger;
+pub mod memory;
 pub mod plan;
 pub mod random;
 pub mod rehearse;
