@@ -337,6 +337,8 @@ struct Problem<'a> {
     r_y: DVector<f64>,
     r_x: DVector<f64>,
     clusters: Option<usize>,
+    /// The search basis, computed on first use (the curve and the confidence set share it).
+    basis: std::sync::OnceLock<Basis>,
 }
 
 impl<'a> Problem<'a> {
@@ -375,6 +377,7 @@ impl<'a> Problem<'a> {
             r_y,
             r_x,
             clusters,
+            basis: std::sync::OnceLock::new(),
         })
     }
 

@@ -61,8 +61,16 @@ impl Problem<'_> {
         ))
     }
 
-    /// The 2SLS-type centre and scale for the numerical search.
-    pub(super) fn basis(&self) -> Result<Basis, EstimateError> {
+    /// The 2SLS-type centre and scale for the numerical search, computed once per problem.
+    pub(super) fn basis(&self) -> Result<&Basis, EstimateError> {
+        if let Some(basis) = self.basis.get() {
+            return Ok(basis);
+        }
+        let basis = self.new_basis()?;
+        Ok(self.basis.get_or_init(|| basis))
+    }
+
+    fn new_basis(&self) -> Result<Basis, EstimateError> {
         let rxx = self.r_x.norm_squared();
         let centre = self.r_x.dot(&self.r_y) / rxx;
         let (centre, scale) = if rxx > 0.0 && centre.is_finite() {
