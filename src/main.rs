@@ -4,7 +4,8 @@ use clap::Parser;
 
 /// Large freed blocks are kept for reuse (see `sworn::memory`).
 #[global_allocator]
-static ALLOCATOR: sworn::memory::Recycler = sworn::memory::Recycler::new(sworn::memory::CACHE_BYTES);
+static ALLOCATOR: sworn::memory::Recycler =
+    sworn::memory::Recycler::new(sworn::memory::CACHE_BYTES);
 
 /// Exit code when stdout is closed under us (as a process stopped by SIGPIPE reports it).
 const CLOSED_PIPE: i32 = 141;

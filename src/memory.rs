@@ -140,11 +140,19 @@ pub struct Recycler {
 impl Recycler {
     /// A recycler keeping at most `limit` bytes of freed blocks.
     pub const fn new(limit: usize) -> Self {
-        Recycler { cache: Mutex::new(Cache { blocks: [None; SLOTS], bytes: 0 }), limit }
+        Recycler {
+            cache: Mutex::new(Cache {
+                blocks: [None; SLOTS],
+                bytes: 0,
+            }),
+            limit,
+        }
     }
 
     fn cache(&self) -> std::sync::MutexGuard<'_, Cache> {
-        self.cache.lock().unwrap_or_else(std::sync::PoisonError::into_inner)
+        self.cache
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner)
     }
 
     /// Bytes held in kept blocks now.
@@ -197,7 +205,11 @@ unsafe impl GlobalAlloc for Recycler {
 
     unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
         if layout.size() >= LARGE {
-            let block = Kept { addr: ptr as usize, size: layout.size(), align: layout.align() };
+            let block = Kept {
+                addr: ptr as usize,
+                size: layout.size(),
+                align: layout.align(),
+            };
             if self.cache().keep(block, self.limit) {
                 return;
             }
@@ -235,7 +247,9 @@ mod tests {
             // The same size is served from the kept block, and zeroed memory is zeroed.
             let c = r.alloc_zeroed(layout(2 * LARGE));
             assert_eq!(a, c);
-            assert!(std::slice::from_raw_parts(c, 2 * LARGE).iter().all(|&x| x == 0));
+            assert!(std::slice::from_raw_parts(c, 2 * LARGE)
+                .iter()
+                .all(|&x| x == 0));
             assert_eq!(r.kept_bytes(), 0);
             r.dealloc(c, layout(2 * LARGE));
             assert_eq!(r.kept_bytes(), 2 * LARGE);

@@ -286,7 +286,7 @@ impl ArProblem<'_> {
             .map(|&beta| {
                 let ar =
                     self.problem
-                        .ar_direction(&basis, 1.0, (beta - basis.centre) / basis.scale)?;
+                        .ar_direction(basis, 1.0, (beta - basis.centre) / basis.scale)?;
                 Ok(ar.is_finite().then_some(ar))
             })
             .collect()

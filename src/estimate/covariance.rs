@@ -33,7 +33,7 @@ use std::collections::HashMap;
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 
 use super::hac::hac_meat;
-use super::qr::PivotedQr;
+use super::qr::{InputKey, PivotedQr};
 use super::{Absorbed, EstimateError};
 
 /// Which coefficient covariance to compute.
@@ -82,6 +82,21 @@ impl CovSpec {
             CovSpec::Cluster { .. } => "cluster",
             CovSpec::TwoWay { .. } => "two-way cluster",
             CovSpec::Hac { .. } => "hac",
+        }
+    }
+
+    /// `key` with everything this specification says written into it (kind, cluster ids,
+    /// time positions, bandwidth), for keeping results computed under it.
+    pub(crate) fn keyed(&self, key: InputKey) -> InputKey {
+        let key = key.text(self.name());
+        match self {
+            CovSpec::Classical | CovSpec::Hc0 | CovSpec::Hc1 | CovSpec::Hc2 | CovSpec::Hc3 => key,
+            CovSpec::Cluster { ids } => key.indices(ids),
+            CovSpec::TwoWay { first, second } => key.indices(first).indices(second),
+            CovSpec::Hac {
+                positions,
+                bandwidth,
+            } => key.indices(positions).numbers(&[*bandwidth]),
         }
     }
 }

@@ -149,6 +149,24 @@ impl IvProblem<'_> {
         cov: &CovSpec,
         absorbed: &Absorbed,
     ) -> Result<Vec<FirstStage>, EstimateError> {
+        let key = || {
+            let key = self.outcome_free_key("first stages");
+            absorbed
+                .keyed(cov.keyed(key.count(usize::from(has_intercept))))
+                .finish()
+        };
+        self.setup.zqr.derived(key, || {
+            self.first_stages_computed(has_intercept, cov, absorbed)
+        })
+    }
+
+    /// [`IvProblem::first_stages`], computed.
+    fn first_stages_computed(
+        &self,
+        has_intercept: bool,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<Vec<FirstStage>, EstimateError> {
         let (setup, endog, instruments) = (&self.setup, self.endog, self.instruments);
         require_observations(endog.nrows(), setup.z.ncols() + absorbed.df)?;
         let excluded: Vec<usize> = (0..instruments.ncols()).collect();

@@ -9,7 +9,7 @@ use std::sync::Arc;
 use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Leverage};
-use super::qr::PivotedQr;
+use super::qr::{InputKey, PivotedQr};
 use super::refine::residual;
 use super::shared::{collinear, design_qr, shared_qr};
 use super::{Absorbed, EstimateError, LinearFit};
@@ -269,6 +269,8 @@ pub struct IvProblem<'a> {
     pub(crate) setup: IvSetup,
     tsls_resid: std::sync::OnceLock<Result<DVector<f64>, EstimateError>>,
     exog_qr: std::sync::OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
+    /// SHA-256 of the outcome-free inputs besides Z (see [`IvProblem::outcome_free_key`]).
+    outcome_free: std::sync::OnceLock<[u8; 32]>,
 }
 
 impl<'a> IvProblem<'a> {
@@ -292,7 +294,24 @@ impl<'a> IvProblem<'a> {
             setup,
             tsls_resid: std::sync::OnceLock::new(),
             exog_qr: std::sync::OnceLock::new(),
+            outcome_free: std::sync::OnceLock::new(),
         })
+    }
+
+    /// A key for results that depend on this problem's regressors and instruments but not
+    /// on its outcome (first stages, weak-instrument diagnostics): `tag`, then the bits of
+    /// X = [endog | exog] and how X and Z split into their parts. Z itself is implied by
+    /// the shared factorisation the results are kept with (`PivotedQr::derived`).
+    pub(crate) fn outcome_free_key(&self, tag: &str) -> InputKey {
+        let digest = self.outcome_free.get_or_init(|| {
+            InputKey::new("regressors")
+                .numbers(self.setup.x.as_slice())
+                .count(self.setup.x.nrows())
+                .count(self.endog.ncols())
+                .count(self.instruments.ncols())
+                .finish()
+        });
+        InputKey::new(tag).bytes(digest)
     }
 
     /// The QR of the exogenous regressors, computed once (callers check that there are

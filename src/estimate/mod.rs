@@ -237,6 +237,16 @@ pub struct Absorbed {
 }
 
 impl Absorbed {
+    /// `key` with everything recorded here written into it, for keeping results computed
+    /// under it.
+    pub(crate) fn keyed(&self, key: qr::InputKey) -> qr::InputKey {
+        let key = key.count(self.df).count(self.nested_df);
+        match &self.leverage {
+            Some(leverage) => key.count(1).numbers(leverage),
+            None => key.count(0),
+        }
+    }
+
     /// Nothing absorbed.
     pub const NONE: Absorbed = Absorbed {
         df: 0,

@@ -60,6 +60,87 @@ struct Kept {
     /// their standard errors, and diagnostics that regress the same regressor on the same
     /// columns, ask for the same solve.
     solves: Mutex<Vec<([u8; 32], DVector<f64>)>>,
+    /// Outcome-free results computed from this factorisation and other inputs (first
+    /// stages, weak-instrument diagnostics), each under the SHA-256 of those inputs (see
+    /// [`PivotedQr::derived`]), most recent last, at most [`KEPT_DERIVED`].
+    derived: Mutex<Vec<([u8; 32], Derived)>>,
+}
+
+/// A result kept by [`PivotedQr::derived`], of whatever type its caller computes.
+#[derive(Clone)]
+struct Derived(Arc<dyn std::any::Any + Send + Sync>);
+
+impl std::fmt::Debug for Derived {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Derived(..)")
+    }
+}
+
+/// Derived results handed out again, over the process's life (for tests; it never affects
+/// a result).
+pub(crate) static DERIVED_HITS: std::sync::atomic::AtomicUsize =
+    std::sync::atomic::AtomicUsize::new(0);
+
+/// How many derived results a shared factorisation keeps.
+const KEPT_DERIVED: usize = 8;
+
+/// A SHA-256 key of a derived result's inputs: a tag naming the computation, then every
+/// input it reads besides the factorisation itself, written with their lengths.
+pub(crate) struct InputKey(sha2::Sha256);
+
+impl InputKey {
+    pub(crate) fn new(tag: &str) -> Self {
+        use sha2::Digest;
+        InputKey(sha2::Sha256::new()).text(tag)
+    }
+
+    pub(crate) fn text(self, text: &str) -> Self {
+        self.bytes(text.as_bytes())
+    }
+
+    pub(crate) fn count(mut self, n: usize) -> Self {
+        use sha2::Digest;
+        self.0.update((n as u64).to_le_bytes());
+        self
+    }
+
+    pub(crate) fn numbers(mut self, values: &[f64]) -> Self {
+        use sha2::Digest;
+        self = self.count(values.len());
+        let mut buf = [0u8; 4096];
+        for chunk in values.chunks(512) {
+            for (out, x) in buf.chunks_exact_mut(8).zip(chunk) {
+                out.copy_from_slice(&x.to_bits().to_le_bytes());
+            }
+            self.0.update(&buf[..chunk.len() * 8]);
+        }
+        self
+    }
+
+    pub(crate) fn bytes(mut self, bytes: &[u8]) -> Self {
+        use sha2::Digest;
+        self = self.count(bytes.len());
+        self.0.update(bytes);
+        self
+    }
+
+    pub(crate) fn indices(mut self, values: &[usize]) -> Self {
+        use sha2::Digest;
+        self = self.count(values.len());
+        let mut buf = [0u8; 4096];
+        for chunk in values.chunks(512) {
+            for (out, x) in buf.chunks_exact_mut(8).zip(chunk) {
+                out.copy_from_slice(&(*x as u64).to_le_bytes());
+            }
+            self.0.update(&buf[..chunk.len() * 8]);
+        }
+        self
+    }
+
+    pub(crate) fn finish(self) -> [u8; 32] {
+        use sha2::Digest;
+        self.0.finalize().into()
+    }
 }
 
 /// Solutions and (X'X)^{-1} get three refinement steps when κ₁(R) = ‖R‖₁‖R⁻¹‖₁ of the
@@ -102,24 +183,12 @@ impl Clone for Kept {
     }
 }
 
-/// SHA-256 of the bits of `v`.
-fn digest(v: &DVector<f64>) -> [u8; 32] {
-    use sha2::{Digest, Sha256};
-    let mut h = Sha256::new();
-    let mut buf = [0u8; 4096];
-    for chunk in v.as_slice().chunks(512) {
-        for (out, x) in buf.chunks_exact_mut(8).zip(chunk) {
-            out.copy_from_slice(&x.to_bits().to_le_bytes());
-        }
-        h.update(&buf[..chunk.len() * 8]);
-    }
-    h.finalize().into()
-}
-
 impl Kept {
     /// The kept solution for `y`, or `solve()` kept under `y`'s digest.
     fn solution(&self, y: &DVector<f64>, solve: impl FnOnce() -> DVector<f64>) -> DVector<f64> {
-        let key = digest(y);
+        let key = InputKey::new("right-hand side")
+            .numbers(y.as_slice())
+            .finish();
         let lock = || self.solves.lock().unwrap_or_else(PoisonError::into_inner);
         if let Some((_, b)) = lock().iter().find(|(k, _)| *k == key) {
             return b.clone();
@@ -325,6 +394,43 @@ impl PivotedQr {
     pub(crate) fn kept(mut self) -> Self {
         self.kept = Some(Kept::default());
         self
+    }
+
+    /// A result computed from this factorisation and the inputs hashed in `key`: for a shared
+    /// factorisation, kept and handed out again to a caller with the same key (the same
+    /// factorised matrix is implied by the factorisation being shared); otherwise computed.
+    /// Errors are never kept.
+    pub(crate) fn derived<T, E>(
+        &self,
+        key: impl FnOnce() -> [u8; 32],
+        compute: impl FnOnce() -> Result<T, E>,
+    ) -> Result<T, E>
+    where
+        T: Clone + Send + Sync + 'static,
+    {
+        let Some(kept) = &self.kept else {
+            return compute();
+        };
+        let key = key();
+        let lock = || kept.derived.lock().unwrap_or_else(PoisonError::into_inner);
+        let found = lock()
+            .iter()
+            .find(|(k, _)| *k == key)
+            .map(|(_, d)| d.clone());
+        let value = found.and_then(|d| d.0.downcast_ref::<T>().cloned());
+        if let Some(value) = value {
+            DERIVED_HITS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            return Ok(value);
+        }
+        let value = compute()?;
+        let mut derived = lock();
+        if !derived.iter().any(|(k, _)| *k == key) {
+            if derived.len() >= KEPT_DERIVED {
+                derived.remove(0);
+            }
+            derived.push((key, Derived(Arc::new(value.clone()))));
+        }
+        Ok(value)
     }
 
     /// Whether the scaled factor is worse conditioned than [`REFINE_ABOVE`].

@@ -7,7 +7,12 @@
 //! [`Sharing`] guard is alive, the factorisations asked for through [`design_qr`],
 //! [`shared_qr`] and [`collinear`] are kept in a small memo and handed out again to any fit
 //! that asks for a matrix equal to one already factorised, with its thin Q and refined
-//! inverse computed at most once (module `qr`).
+//! inverse computed at most once (module `qr`). A shared factorisation of the instruments
+//! also keeps the outcome-free diagnostics computed with it (the first stages and the
+//! weak-instrument diagnostics, `PivotedQr::derived`), under the SHA-256 of everything else
+//! they read (the regressors' bits, the errors with their cluster ids, the absorbed
+//! degrees of freedom), so specifications that differ only in their outcome compute them
+//! once.
 //!
 //! Invariants:
 //! * A hit needs the same shape and the same bits in every entry (compared in full, after a
@@ -209,7 +214,7 @@ mod tests {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::estimate::{ols, tsls, Absorbed, CovSpec};
+    use crate::estimate::{ols, tsls, Absorbed, CovSpec, IvProblem};
     use nalgebra::DVector;
     use std::cell::Cell;
 
@@ -271,6 +276,63 @@ mod tests {
         };
         // X, Z, X̂ and more were handed out again, many times.
         assert!(HITS.load(std::sync::atomic::Ordering::Relaxed) >= hits + 20);
+        assert_eq!(alone, shared);
+    }
+
+    /// First stages and weak-instrument diagnostics kept with a shared factorisation are the
+    /// bits each specification computes alone, are handed out again only for the same
+    /// regressors and errors, and are recomputed under other cluster ids.
+    #[test]
+    fn kept_first_stages_change_no_bit() {
+        let _serial = SERIAL.lock().unwrap_or_else(PoisonError::into_inner);
+        // Invented numbers without the sinusoids' low rank (SplitMix64 of the position).
+        let cell = |i: usize, j: usize| {
+            let mut x = (i as u64 * 1000 + j as u64).wrapping_mul(0x9E37_79B9_7F4A_7C15);
+            x = (x ^ (x >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+            x = (x ^ (x >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+            (x ^ (x >> 31)) as f64 / u64::MAX as f64 - 0.5
+        };
+        let n = 4000;
+        let exog = DMatrix::from_fn(n, 3, |i, j| if j == 0 { 1.0 } else { cell(i, j) });
+        let z = DMatrix::from_fn(n, 2, |i, j| cell(i, j + 7));
+        let endog = DMatrix::from_fn(n, 1, |i, _| z[(i, 0)] + 0.5 * z[(i, 1)] + cell(i, 9));
+        let ys: Vec<DVector<f64>> = (0..3)
+            .map(|o| DVector::from_fn(n, |i, _| endog[(i, 0)] * 0.3 + cell(i, 20 + o)))
+            .collect();
+        let covs = [
+            CovSpec::Hc1,
+            CovSpec::Cluster {
+                ids: (0..n).map(|i| i / 40).collect(),
+            },
+            CovSpec::Cluster {
+                ids: (0..n).map(|i| (i * 7) % 37).collect(),
+            },
+        ];
+        let diagnostics = || {
+            let mut out = Vec::new();
+            for y in &ys {
+                for cov in &covs {
+                    let p = IvProblem::new(y, &exog, &endog, &z).unwrap();
+                    let fs = p.first_stages(true, cov, &Absorbed::NONE).unwrap();
+                    let weak = p.weak_instruments(cov, 0.1, &Absorbed::NONE).unwrap();
+                    out.push(format!("{fs:?} {weak:?}"));
+                }
+            }
+            out
+        };
+        BYPASS.with(|b| b.set(true));
+        let alone = diagnostics();
+        BYPASS.with(|b| b.set(false));
+        // The two cluster layouts give different robust first-stage F statistics.
+        assert_ne!(alone[1], alone[2]);
+        let hits = crate::estimate::qr::DERIVED_HITS.load(std::sync::atomic::Ordering::Relaxed);
+        let shared = {
+            let _sharing = Sharing::begin();
+            diagnostics()
+        };
+        // The second and third outcomes reuse the first's six results.
+        let now = crate::estimate::qr::DERIVED_HITS.load(std::sync::atomic::Ordering::Relaxed);
+        assert!(now >= hits + 12, "{} hits", now - hits);
         assert_eq!(alone, shared);
     }
 

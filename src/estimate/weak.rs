@@ -146,6 +146,22 @@ impl IvProblem<'_> {
                 got: self.endog.ncols(),
             });
         }
+        let key = || {
+            let key = self.outcome_free_key("weak instruments").numbers(&[tau]);
+            absorbed.keyed(cov.keyed(key)).finish()
+        };
+        self.setup
+            .zqr
+            .derived(key, || self.weak_instruments_computed(cov, tau, absorbed))
+    }
+
+    /// [`IvProblem::weak_instruments`] once its inputs are checked, computed.
+    fn weak_instruments_computed(
+        &self,
+        cov: &CovSpec,
+        tau: f64,
+        absorbed: &Absorbed,
+    ) -> Result<WeakInstruments, EstimateError> {
         let endog = &self.endog.column(0).into_owned();
         let (setup, exog, instruments) = (&self.setup, self.exog, self.instruments);
         let (n, l, q) = (endog.len(), setup.z.ncols(), instruments.ncols());

@@ -121,7 +121,7 @@ impl Problem<'_> {
             } else {
                 (theta.cos(), theta.sin())
             };
-            Ok(self.ar_direction(&basis, cy, cx)? - c)
+            Ok(self.ar_direction(basis, cy, cx)? - c)
         };
         let thetas = theta_grid(GRID);
         let values = thetas
