@@ -18,7 +18,7 @@
 
 use std::sync::{Arc, Mutex, OnceLock, PoisonError};
 
-use nalgebra::{DMatrix, DVector};
+use nalgebra::{DMatrix, DVector, DVectorView};
 
 use super::EstimateError;
 
@@ -33,8 +33,9 @@ fn rank_tolerance(n: usize, k: usize) -> f64 {
 pub(crate) struct PivotedQr {
     /// Upper triangle holds R (k × k); the strictly lower part is unused.
     r: DMatrix<f64>,
-    /// Householder vectors: reflector j is I − 2 v vᵀ acting on rows j.. (v has unit norm).
-    reflectors: Vec<DVector<f64>>,
+    /// Householder vectors, n × k: reflector j is I − 2 v vᵀ acting on rows j.., with v (unit
+    /// norm) in rows j.. of column j (the rows above belong to R and are not read here).
+    reflectors: DMatrix<f64>,
     /// `perm[j]` is the caller's column index placed at position j.
     perm: Vec<usize>,
     /// Reciprocal column norms (the diagonal of S).
@@ -218,31 +219,46 @@ fn scale_columns(x: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
     (xs, scale)
 }
 
-/// Builds the unit Householder vector that maps `x` onto a multiple of e₁ and returns it
-/// with the resulting diagonal value (−sign(x₀)·‖x‖). Returns `None` for a zero vector.
-fn householder(x: &DVector<f64>) -> Option<(DVector<f64>, f64)> {
-    let norm = x.norm();
+/// Rows `row..` of column `col` of `a` become the unit Householder vector v that maps them
+/// onto a multiple of e₁ (computed in place); returns the diagonal value (−sign(x₀)·‖x‖),
+/// `None` for a zero vector.
+fn householder(a: &mut DMatrix<f64>, row: usize, col: usize) -> Option<f64> {
+    let n = a.nrows();
+    let mut v = a.view_mut((row, col), (n - row, 1));
+    let norm = v.norm();
     if norm == 0.0 {
         return None;
     }
-    let alpha = if x[0] >= 0.0 { -norm } else { norm };
-    let mut v = x.clone();
+    let alpha = if v[0] >= 0.0 { -norm } else { norm };
     v[0] -= alpha;
     let vnorm = v.norm();
     if vnorm == 0.0 {
         return None;
     }
     v /= vnorm;
-    Some((v, alpha))
+    Some(alpha)
+}
+
+/// Applies the reflector held in rows `row..` of column `col` of `a` (see [`householder`]) to
+/// the same rows of every later column.
+fn reflect_later_columns(a: &mut DMatrix<f64>, row: usize, col: usize) {
+    let n = a.nrows();
+    let (v, mut rest) = a.columns_range_pair_mut(col, col + 1..);
+    let v = v.rows(row, n - row);
+    for c in 0..rest.ncols() {
+        let mut block = rest.view_mut((row, c), (n - row, 1));
+        let dot = v.dot(&block.column(0));
+        block.column_mut(0).axpy(-2.0 * dot, &v, 1.0);
+    }
 }
 
 /// Applies the reflector I − 2 v vᵀ to rows `start..` of every column of `a` from `from_col`.
-fn reflect_columns(a: &mut DMatrix<f64>, v: &DVector<f64>, start: usize, from_col: usize) {
+fn reflect_columns(a: &mut DMatrix<f64>, v: DVectorView<f64>, start: usize, from_col: usize) {
     let m = v.len();
     for c in from_col..a.ncols() {
         let mut block = a.view_mut((start, c), (m, 1));
         let dot = v.dot(&block.column(0));
-        block.column_mut(0).axpy(-2.0 * dot, v, 1.0);
+        block.column_mut(0).axpy(-2.0 * dot, &v, 1.0);
     }
 }
 
@@ -257,22 +273,22 @@ impl PivotedQr {
         let (n, k) = x.shape();
         let (mut a, scale) = scale_columns(x);
         let mut perm: Vec<usize> = (0..k).collect();
-        let mut reflectors = Vec::with_capacity(k);
+        let mut diagonal = Vec::with_capacity(k);
         for j in 0..k {
             let pivot = (j..k)
                 .max_by(|&p, &q| tail_norm(&a, p, j).total_cmp(&tail_norm(&a, q, j)))
                 .unwrap_or(j);
             a.swap_columns(j, pivot);
             perm.swap(j, pivot);
-            let column: DVector<f64> = a.view((j, j), (n - j, 1)).column(0).into_owned();
-            let Some((v, alpha)) = householder(&column) else {
+            let Some(alpha) = householder(&mut a, j, j) else {
                 return Err(rank_error(x, &perm[j..]));
             };
-            reflect_columns(&mut a, &v, j, j + 1);
-            a[(j, j)] = alpha;
-            reflectors.push(v);
+            reflect_later_columns(&mut a, j, j);
+            diagonal.push(alpha);
         }
-        let r = a.rows(0, k).upper_triangle();
+        let mut r = a.rows(0, k).upper_triangle();
+        r.set_diagonal(&DVector::from_vec(diagonal));
+        let reflectors = a;
         let ill_conditioned = condition_one(&r) > REFINE_ABOVE;
         let qr = PivotedQr {
             r,
@@ -287,6 +303,12 @@ impl PivotedQr {
             rank if rank < k => Err(rank_error(x, &qr.perm[rank..])),
             _ => Ok(qr),
         }
+    }
+
+    /// Householder vector j (rows j.. of its column).
+    fn reflector(&self, j: usize) -> DVectorView<'_, f64> {
+        self.reflectors
+            .generic_view((j, j), (nalgebra::Dyn(self.n - j), nalgebra::U1))
     }
 
     /// The numerical rank under the module's tolerance.
@@ -304,16 +326,16 @@ impl PivotedQr {
     /// Applies Qᵀ to a vector of length n.
     fn apply_qt(&self, y: &DVector<f64>) -> DVector<f64> {
         let mut c = DMatrix::from_column_slice(y.len(), 1, y.as_slice());
-        for (j, v) in self.reflectors.iter().enumerate() {
-            reflect_columns(&mut c, v, j, 0);
+        for j in 0..self.perm.len() {
+            reflect_columns(&mut c, self.reflector(j), j, 0);
         }
         c.column(0).into_owned()
     }
 
     /// Applies Q to an n × m matrix (reflectors in reverse order).
     fn apply_q(&self, mut c: DMatrix<f64>) -> DMatrix<f64> {
-        for (j, v) in self.reflectors.iter().enumerate().rev() {
-            reflect_columns(&mut c, v, j, 0);
+        for j in (0..self.perm.len()).rev() {
+            reflect_columns(&mut c, self.reflector(j), j, 0);
         }
         c
     }
@@ -500,9 +522,9 @@ pub fn collinear_columns(x: &DMatrix<f64>) -> Vec<usize> {
             dependent.push(j);
             continue;
         }
-        let column: DVector<f64> = a.view((row, j), (n - row, 1)).column(0).into_owned();
-        if let Some((v, _)) = householder(&column) {
-            reflect_columns(&mut a, &v, row, j);
+        // Column j is not read after this step: it keeps the reflector.
+        if householder(&mut a, row, j).is_some() {
+            reflect_later_columns(&mut a, row, j);
         }
         row += 1;
     }
