@@ -247,20 +247,24 @@ pub(crate) fn hc_weights(
 
 /// Σ ωᵢ qᵢ qᵢᵀ for the rows qᵢ of `q1`.
 fn weighted_gram(q1: &DMatrix<f64>, weights: &[f64]) -> DMatrix<f64> {
-    let mut scaled = q1.clone();
-    for (i, w) in weights.iter().enumerate() {
-        scaled.row_mut(i).scale_mut(*w);
-    }
-    q1.transpose() * scaled
+    q1.transpose() * rows_scaled(q1, weights)
 }
 
 /// The score rows qᵢ uᵢ (n × k).
 fn scores(q1: &DMatrix<f64>, resid: &DVector<f64>) -> DMatrix<f64> {
-    let mut s = q1.clone();
-    for (i, u) in resid.iter().enumerate() {
-        s.row_mut(i).scale_mut(*u);
+    rows_scaled(q1, resid.as_slice())
+}
+
+/// `m` with row i multiplied by `factors[i]`, written column by column (contiguous memory;
+/// the same products as scaling each row).
+fn rows_scaled(m: &DMatrix<f64>, factors: &[f64]) -> DMatrix<f64> {
+    let mut out = m.clone();
+    for mut column in out.column_iter_mut() {
+        for (x, f) in column.iter_mut().zip(factors) {
+            *x *= *f;
+        }
     }
-    s
+    out
 }
 
 /// Σ_g s_g s_gᵀ with s_g the within-cluster sums of the score rows, and the cluster count.
