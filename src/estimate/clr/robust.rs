@@ -54,7 +54,8 @@
 //! [`CLR_GRID`](super::CLR_GRID) cells: bisection at each sign change, golden-section check of each grid-local
 //! extremum), with the same guarantee: a piece or gap narrower than one cell with no
 //! grid-visible extremum can be missed. A point where a covariance block is singular (an
-//! exact fit, d = 0) counts as rejected.
+//! exact fit, d = 0) counts as rejected. The CLR scan is screened as the homoskedastic one
+//! (module `screen`: the same boundary points, fewer exact p-values).
 
 use nalgebra::{DMatrix, DVector};
 

@@ -47,7 +47,7 @@ const SCREEN_MAX_INSTRUMENTS: usize = 64;
 pub(super) fn chi2_upper_integer(x: f64, l: usize) -> f64 {
     let h = 0.5 * x;
     let e = (-h).exp();
-    if l % 2 == 0 {
+    if l.is_multiple_of(2) {
         let (mut term, mut sum) = (e, e);
         for j in 1..l / 2 {
             term *= h / j as f64;
@@ -82,9 +82,14 @@ pub fn clr_p_value_screen(m: f64, q: f64, l: usize) -> Option<f64> {
         return Some(chi2_upper_integer(m, l));
     }
     let power = (l - 2) as i32;
+    let (top, ratio) = (m + q, q / m);
     let f = |phi: f64| {
-        let s = phi.sin();
-        chi2_upper_integer((m + q) / (1.0 + q * s * s / m), l) * phi.cos().powi(power)
+        if power == 0 {
+            let s = phi.sin();
+            return chi2_upper_integer(top / (1.0 + ratio * s * s), l);
+        }
+        let (s, c) = phi.sin_cos();
+        chi2_upper_integer(top / (1.0 + ratio * s * s), l) * c.powi(power)
     };
     let (a, b) = (0.0, std::f64::consts::FRAC_PI_2);
     let panel = Panel {

@@ -40,7 +40,9 @@
 //! extremum and, if it crosses α, both boundary points beside it are bisected. Guarantee:
 //! as for the numerical AR set, a piece (or gap) narrower than one cell (π/[`CLR_GRID`] in
 //! θ) with no grid-visible extremum can be missed. A point where bᵀΩb = 0 (y − xβ₀ fitted
-//! exactly) counts as rejected.
+//! exactly) counts as rejected. The scan is screened (module `screen`): a decision that a
+//! cheap approximation of p settles by more than 1e-8 is taken from it, the others from the
+//! exact p, with the same boundary points as the scan of the exact p alone.
 
 use nalgebra::DMatrix;
 
