@@ -471,6 +471,8 @@ fn partial_out(z: &DMatrix<f64>, w: &DMatrix<f64>, qr: Option<&PivotedQr>) -> DM
 #[cfg(test)]
 mod curve_tests;
 mod set;
-pub(in crate::estimate) use set::{bisect, scan_boundaries, theta_grid};
+#[cfg(test)]
+pub(in crate::estimate) use set::scan_boundaries;
+pub(in crate::estimate) use set::{bisect, golden, theta_grid};
 #[cfg(test)]
 mod tests;

@@ -235,12 +235,15 @@ fn simpson(f: &dyn Fn(f64) -> f64, p: Panel, whole: f64, tol: f64, depth: u32) -
 }
 
 mod robust;
+mod screen;
 mod set;
 pub use robust::RobustLmClr;
 pub use set::{LmClrSets, CLR_GRID};
 
 #[cfg(test)]
 mod robust_tests;
+#[cfg(test)]
+mod screen_tests;
 #[cfg(test)]
 mod set_tests;
 #[cfg(test)]

@@ -54,10 +54,12 @@
 //! [`CLR_GRID`](super::CLR_GRID) cells: bisection at each sign change, golden-section check of each grid-local
 //! extremum), with the same guarantee: a piece or gap narrower than one cell with no
 //! grid-visible extremum can be missed. A point where a covariance block is singular (an
-//! exact fit, d = 0) counts as rejected.
+//! exact fit, d = 0) counts as rejected. The CLR scan is screened as the homoskedastic one
+//! (module `screen`: the same boundary points, fewer exact p-values).
 
 use nalgebra::{DMatrix, DVector};
 
+use super::screen::clr_p_value_screen;
 use super::{clr_p_value, ConditionalLr, LmClr, LmClrSets};
 use crate::distribution::{Reference, TestStatistic};
 use crate::estimate::anderson_rubin::ConfidenceSet;
@@ -67,6 +69,11 @@ use crate::estimate::quadratic_meat::quadratic_meat;
 use crate::estimate::refine::residual;
 use crate::estimate::{Absorbed, EstimateError};
 use crate::inference::quantile;
+
+/// φ(θ) for a set scan.
+pub(super) type Phi<'a> = Box<dyn Fn(f64) -> f64 + 'a>;
+/// An approximation of φ(θ) for the screen, or None.
+pub(super) type Approx<'a> = Box<dyn Fn(f64) -> Option<f64> + 'a>;
 
 /// Q_S, rk and K at one point.
 #[derive(Debug, Clone, Copy)]
@@ -286,8 +293,20 @@ impl RobustLmClr {
             let (b, d) = self.directions(theta);
             self.stats(b, d)
         };
-        let lm = self.scan(&|t| at(t).map_or(1.0, |s| s.k - c));
-        let clr = self.scan(&|t| {
+        let lm = self.scan(&|t| at(t).map_or(1.0, |s| s.k - c), &|_| None);
+        let (clr_phi, approx) = self.clr_phi(alpha);
+        let clr = self.scan(&clr_phi, &approx);
+        Ok(LmClrSets { lm, clr })
+    }
+
+    /// The CLR set's φ(θ) = α − p_CLR (1 where the statistics are undefined) and its
+    /// approximation for the screen (module `screen`).
+    pub(super) fn clr_phi(&self, alpha: f64) -> (Phi<'_>, Approx<'_>) {
+        let at = move |theta: f64| {
+            let (b, d) = self.directions(theta);
+            self.stats(b, d)
+        };
+        let phi = move |t: f64| {
             at(t).map_or(1.0, |s| {
                 let m = s.clr();
                 let p = clr_p_value(m, s.rk.max(0.0), self.l);
@@ -297,12 +316,17 @@ impl RobustLmClr {
                     alpha - p
                 }
             })
-        });
-        Ok(LmClrSets { lm, clr })
+        };
+        let approx = move |t: f64| {
+            let s = at(t)?;
+            clr_p_value_screen(s.clr(), s.rk.max(0.0), self.l).map(|p| alpha - p)
+        };
+        (Box::new(phi), Box::new(approx))
     }
 
-    /// {θ : φ(θ) ≤ 0} as a set in β₀, by the Anderson–Rubin set's scan.
-    fn scan(&self, phi: &dyn Fn(f64) -> f64) -> ConfidenceSet {
-        super::set::scan_set(phi, |t| self.beta(t))
+    /// {θ : φ(θ) ≤ 0} as a set in β₀, by the Anderson–Rubin set's scan (screened by
+    /// `approx`, module `screen`).
+    fn scan(&self, phi: &dyn Fn(f64) -> f64, approx: &dyn Fn(f64) -> Option<f64>) -> ConfidenceSet {
+        super::set::scan_set(phi, approx, |t| self.beta(t))
     }
 }

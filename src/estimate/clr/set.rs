@@ -40,13 +40,16 @@
 //! extremum and, if it crosses α, both boundary points beside it are bisected. Guarantee:
 //! as for the numerical AR set, a piece (or gap) narrower than one cell (π/[`CLR_GRID`] in
 //! θ) with no grid-visible extremum can be missed. A point where bᵀΩb = 0 (y − xβ₀ fitted
-//! exactly) counts as rejected.
+//! exactly) counts as rejected. The scan is screened (module `screen`): a decision that a
+//! cheap approximation of p settles by more than 1e-8 is taken from it, the others from the
+//! exact p, with the same boundary points as the scan of the exact p alone.
 
 use nalgebra::DMatrix;
 
 use super::clr_p_value;
+use super::screen::{self, clr_p_value_screen};
 use crate::distribution::Reference;
-use crate::estimate::anderson_rubin::{bisect, scan_boundaries, theta_grid, ConfidenceSet};
+use crate::estimate::anderson_rubin::{bisect, theta_grid, ConfidenceSet};
 use crate::estimate::linear::{require_observations, IvProblem};
 use crate::estimate::refine::residual;
 use crate::estimate::{Absorbed, EstimateError};
@@ -98,7 +101,7 @@ fn transpose(p: &M2) -> M2 {
 }
 
 /// The direction b for θ: β₀ = centre + scale·tan θ; θ = ±π/2 gives the limit b = (0, ∓1).
-fn direction(theta: f64) -> [f64; 2] {
+pub(super) fn direction(theta: f64) -> [f64; 2] {
     if theta.abs() >= std::f64::consts::FRAC_PI_2 {
         [0.0, 1.0]
     } else {
@@ -194,11 +197,9 @@ impl Forms {
         Some((qs, qt, qst2))
     }
 
-    /// The CLR statistic and its conditional p-value at direction `b` (p = 0 where undefined).
-    pub(super) fn clr_at(&self, b: [f64; 2]) -> (f64, f64) {
-        let Some((qs, qt, qst2)) = self.statistics(b) else {
-            return (f64::NAN, 0.0);
-        };
+    /// The CLR statistic and Q_T at direction `b`; None where bᵀΩb = 0.
+    pub(super) fn clr_stat(&self, b: [f64; 2]) -> Option<(f64, f64)> {
+        let (qs, qt, qst2) = self.statistics(b)?;
         let diff = qs - qt;
         let root = (diff * diff + 4.0 * qst2).sqrt();
         let clr = if diff >= 0.0 {
@@ -208,7 +209,15 @@ impl Forms {
         } else {
             0.0
         };
-        let p = clr_p_value(clr, qt.max(0.0), self.l);
+        Some((clr, qt.max(0.0)))
+    }
+
+    /// The CLR statistic and its conditional p-value at direction `b` (p = 0 where undefined).
+    pub(super) fn clr_at(&self, b: [f64; 2]) -> (f64, f64) {
+        let Some((clr, qt)) = self.clr_stat(b) else {
+            return (f64::NAN, 0.0);
+        };
+        let p = clr_p_value(clr, qt, self.l);
         (clr, if p.is_nan() { 0.0 } else { p })
     }
 
@@ -293,20 +302,40 @@ impl Forms {
 
     /// The CLR set at level `alpha`.
     pub(super) fn clr_set(&self, alpha: f64) -> ConfidenceSet {
-        scan_set(&|theta| alpha - self.clr_at(direction(theta)).1, |t| {
-            self.beta(t)
-        })
+        let approx = |theta: f64| {
+            let (clr, qt) = self.clr_stat(direction(theta))?;
+            clr_p_value_screen(clr, qt, self.l).map(|p| alpha - p)
+        };
+        scan_set(
+            &|theta| alpha - self.clr_at(direction(theta)).1,
+            &approx,
+            |t| self.beta(t),
+        )
     }
 }
 
 /// {θ : φ(θ) ≤ 0} as a set in β₀ = `beta`(θ), by the Anderson–Rubin set's scan over
-/// [`CLR_GRID`] cells (φ cannot fail here).
-pub(super) fn scan_set(phi: &dyn Fn(f64) -> f64, beta: impl Fn(f64) -> f64) -> ConfidenceSet {
+/// [`CLR_GRID`] cells (φ cannot fail here), screened by `approx` (an approximation of φ
+/// within `screen::SCREEN_MARGIN`, or None): the same boundaries as the scan of `phi` alone
+/// (module `screen`).
+pub(super) fn scan_set(
+    phi: &dyn Fn(f64) -> f64,
+    approx: &dyn Fn(f64) -> Option<f64>,
+    beta: impl Fn(f64) -> f64,
+) -> ConfidenceSet {
+    let thetas = theta_grid(CLR_GRID);
+    let (boundaries, inside_at_infinity) = screen::scan(phi, approx, &thetas);
+    assemble(&boundaries, inside_at_infinity, beta)
+}
+
+/// The scan of `phi` alone, without the screen: the reference the screened scan must equal.
+#[cfg(test)]
+pub(super) fn scan_exact(phi: &dyn Fn(f64) -> f64) -> (Vec<f64>, bool) {
     let thetas = theta_grid(CLR_GRID);
     let values: Vec<f64> = thetas.iter().map(|&t| phi(t)).collect();
     let f = |t: f64| Ok::<f64, Infallible>(phi(t));
-    let Ok(boundaries) = scan_boundaries(&f, &thetas, &values);
-    assemble(&boundaries, values[0] <= 0.0, beta)
+    let Ok(boundaries) = crate::estimate::anderson_rubin::scan_boundaries(&f, &thetas, &values);
+    (boundaries, values[0] <= 0.0)
 }
 
 /// Pieces in β₀ = `beta`(θ) from sorted boundary points in θ and membership at β₀ = ±∞.

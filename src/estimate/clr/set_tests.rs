@@ -181,7 +181,12 @@ fn forms_equal_the_direct_statistics() {
 }
 
 /// A small invented IV design (splitmix64 normals): `l` instruments of strength `pi`.
-fn design(seed: u64, n: usize, l: usize, pi: f64) -> (DVector<f64>, DMatrix<f64>, DMatrix<f64>) {
+pub(super) fn design(
+    seed: u64,
+    n: usize,
+    l: usize,
+    pi: f64,
+) -> (DVector<f64>, DMatrix<f64>, DMatrix<f64>) {
     let mut state = seed;
     let mut uniform = move || {
         state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
