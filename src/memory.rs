@@ -155,6 +155,37 @@ impl Recycler {
             .unwrap_or_else(std::sync::PoisonError::into_inner)
     }
 
+    /// A block for `layout` (zeroed if `zeroed`): a kept one of the same layout if there is
+    /// one, else a fresh one from the system (see the module documentation).
+    ///
+    /// # Safety
+    /// As [`GlobalAlloc::alloc`].
+    unsafe fn allocate(&self, layout: Layout, zeroed: bool) -> *mut u8 {
+        if layout.size() >= LARGE {
+            let mut cache = self.cache();
+            if let Some(ptr) = cache.take(layout) {
+                drop(cache);
+                if zeroed {
+                    // SAFETY: the kept block is `layout.size()` bytes and now ours alone.
+                    unsafe { std::ptr::write_bytes(ptr, 0, layout.size()) };
+                }
+                return ptr;
+            }
+            cache.shed(layout.size());
+        }
+        // SAFETY: forwarded with the caller's layout.
+        let ptr = unsafe {
+            match zeroed {
+                true => System.alloc_zeroed(layout),
+                false => System.alloc(layout),
+            }
+        };
+        if layout.size() >= LARGE {
+            advise_huge(ptr, layout.size());
+        }
+        ptr
+    }
+
     /// Bytes held in kept blocks now.
     pub fn kept_bytes(&self) -> usize {
         self.cache().bytes
@@ -165,42 +196,13 @@ impl Recycler {
 // is only handed back for exactly the layout it was allocated with), and is handed out once.
 unsafe impl GlobalAlloc for Recycler {
     unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
-        if layout.size() >= LARGE {
-            {
-                let mut cache = self.cache();
-                if let Some(ptr) = cache.take(layout) {
-                    return ptr;
-                }
-                cache.shed(layout.size());
-            }
-            // SAFETY: forwarded with the caller's layout.
-            let ptr = unsafe { System.alloc(layout) };
-            advise_huge(ptr, layout.size());
-            return ptr;
-        }
         // SAFETY: forwarded with the caller's layout.
-        unsafe { System.alloc(layout) }
+        unsafe { self.allocate(layout, false) }
     }
 
     unsafe fn alloc_zeroed(&self, layout: Layout) -> *mut u8 {
-        if layout.size() >= LARGE {
-            {
-                let mut cache = self.cache();
-                if let Some(ptr) = cache.take(layout) {
-                    drop(cache);
-                    // SAFETY: the kept block is `layout.size()` bytes and now ours alone.
-                    unsafe { std::ptr::write_bytes(ptr, 0, layout.size()) };
-                    return ptr;
-                }
-                cache.shed(layout.size());
-            }
-            // SAFETY: forwarded with the caller's layout.
-            let ptr = unsafe { System.alloc_zeroed(layout) };
-            advise_huge(ptr, layout.size());
-            return ptr;
-        }
         // SAFETY: forwarded with the caller's layout.
-        unsafe { System.alloc_zeroed(layout) }
+        unsafe { self.allocate(layout, true) }
     }
 
     unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {

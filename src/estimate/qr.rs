@@ -105,17 +105,8 @@ impl InputKey {
         self
     }
 
-    pub(crate) fn numbers(mut self, values: &[f64]) -> Self {
-        use sha2::Digest;
-        self = self.count(values.len());
-        let mut buf = [0u8; 4096];
-        for chunk in values.chunks(512) {
-            for (out, x) in buf.chunks_exact_mut(8).zip(chunk) {
-                out.copy_from_slice(&x.to_bits().to_le_bytes());
-            }
-            self.0.update(&buf[..chunk.len() * 8]);
-        }
-        self
+    pub(crate) fn numbers(self, values: &[f64]) -> Self {
+        self.words(values.len(), values.iter().map(|x| x.to_bits()))
     }
 
     pub(crate) fn bytes(mut self, bytes: &[u8]) -> Self {
@@ -125,16 +116,25 @@ impl InputKey {
         self
     }
 
-    pub(crate) fn indices(mut self, values: &[usize]) -> Self {
+    pub(crate) fn indices(self, values: &[usize]) -> Self {
+        self.words(values.len(), values.iter().map(|&x| x as u64))
+    }
+
+    /// `len`, then the words, little-endian, hashed in blocks of 512.
+    fn words(mut self, len: usize, words: impl Iterator<Item = u64>) -> Self {
         use sha2::Digest;
-        self = self.count(values.len());
+        self = self.count(len);
         let mut buf = [0u8; 4096];
-        for chunk in values.chunks(512) {
-            for (out, x) in buf.chunks_exact_mut(8).zip(chunk) {
-                out.copy_from_slice(&(*x as u64).to_le_bytes());
+        let mut filled = 0;
+        for w in words {
+            buf[filled..filled + 8].copy_from_slice(&w.to_le_bytes());
+            filled += 8;
+            if filled == buf.len() {
+                self.0.update(buf);
+                filled = 0;
             }
-            self.0.update(&buf[..chunk.len() * 8]);
         }
+        self.0.update(&buf[..filled]);
         self
     }
 
