@@ -179,6 +179,13 @@ pub fn clr_p_value(m: f64, q: f64, l: usize) -> f64 {
         let s = phi.sin();
         chi2_upper((m + q) / (1.0 + q * s * s / m), l) * phi.cos().powi(power)
     };
+    quarter_turn_law(&f, l, QUADRATURE_TOLERANCE)
+}
+
+/// 2/B(1/2, (L − 1)/2) · ∫₀^{π/2} f(φ) dφ by adaptive Simpson at `tolerance`, clamped to
+/// [0, 1]: the conditional law's p-value for the integrand `f` of [`clr_p_value`] (and of the
+/// screen's approximation of it).
+pub(super) fn quarter_turn_law(f: &dyn Fn(f64) -> f64, l: usize, tolerance: f64) -> f64 {
     let (a, b) = (0.0, std::f64::consts::FRAC_PI_2);
     let panel = Panel {
         a,
@@ -187,7 +194,7 @@ pub fn clr_p_value(m: f64, q: f64, l: usize) -> f64 {
         fm: f(0.5 * (a + b)),
         fb: f(b),
     };
-    let integral = simpson(&f, panel, panel.estimate(), QUADRATURE_TOLERANCE, 0);
+    let integral = simpson(f, panel, panel.estimate(), tolerance, 0);
     let norm = statrs::function::beta::ln_beta(0.5, 0.5 * (l - 1) as f64).exp();
     (2.0 * integral / norm).clamp(0.0, 1.0)
 }

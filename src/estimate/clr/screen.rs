@@ -27,7 +27,7 @@
 //! tail, where p is tiny and its quadrature stops early), at the last steps of each bisection
 //! and in the golden-section searches.
 
-use super::{simpson, Panel};
+use super::quarter_turn_law;
 use crate::estimate::anderson_rubin::{bisect, golden};
 use std::convert::Infallible;
 
@@ -91,17 +91,7 @@ pub fn clr_p_value_screen(m: f64, q: f64, l: usize) -> Option<f64> {
         let (s, c) = phi.sin_cos();
         chi2_upper_integer(top / (1.0 + ratio * s * s), l) * c.powi(power)
     };
-    let (a, b) = (0.0, std::f64::consts::FRAC_PI_2);
-    let panel = Panel {
-        a,
-        b,
-        fa: f(a),
-        fm: f(0.5 * (a + b)),
-        fb: f(b),
-    };
-    let integral = simpson(&f, panel, panel.estimate(), SCREEN_TOLERANCE, 0);
-    let norm = statrs::function::beta::ln_beta(0.5, 0.5 * (l - 1) as f64).exp();
-    let p = (2.0 * integral / norm).clamp(0.0, 1.0);
+    let p = quarter_turn_law(&f, l, SCREEN_TOLERANCE);
     p.is_finite().then_some(p)
 }
 
