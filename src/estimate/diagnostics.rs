@@ -170,7 +170,11 @@ impl IvProblem<'_> {
         let (setup, endog, instruments) = (&self.setup, self.endog, self.instruments);
         require_observations(endog.nrows(), setup.z.ncols() + absorbed.df)?;
         let excluded: Vec<usize> = (0..instruments.ncols()).collect();
-        let shea = shea_partial_r_squared(setup, endog.ncols())?;
+        // Shea's partial R² reads only X and Z: kept once for every error type.
+        let shea = setup.zqr.derived(
+            || self.outcome_free_key("shea").finish(),
+            || shea_partial_r_squared(setup, endog.ncols()),
+        )?;
         (0..endog.ncols())
             .map(|j| {
                 let yj = endog.column(j).into_owned();

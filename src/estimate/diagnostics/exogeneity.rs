@@ -122,7 +122,11 @@ impl IvProblem<'_> {
         let control_function = joint_f(&cf, &cf.cov, &tested, inference_df(&cf))?;
         let e_o = least_squares(y, &setup.x)?.resid;
         let e_iv = self.tsls_residuals()?;
-        let wide = instrument_qr(&hcat(&setup.z, &endog.clone_owned()))?;
+        // Z with the endogenous columns is outcome-free: factorised once per sample.
+        let wide = setup.zqr.derived(
+            || self.outcome_free_key("instruments and endogenous").finish(),
+            || instrument_qr(&hcat(&setup.z, &endog.clone_owned())),
+        )?;
         let delta = wide.project(&e_o).norm_squared() - setup.zqr.project(&e_iv).norm_squared();
         let rss_o = e_o.norm_squared();
         let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
