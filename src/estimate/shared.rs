@@ -8,8 +8,9 @@
 //! [`shared_qr`] and [`collinear`] are kept in a small memo and handed out again to any fit
 //! that asks for a matrix equal to one already factorised, with its thin Q and refined
 //! inverse computed at most once (module `qr`). A shared factorisation of the instruments
-//! also keeps the outcome-free diagnostics computed with it (the first stages and the
-//! weak-instrument diagnostics, `PivotedQr::derived`), under the SHA-256 of everything else
+//! also keeps the outcome-free results computed with it (the first stages, Shea's partial
+//! R², the weak-instrument diagnostics, the Durbin test's factorisation of Z with the
+//! endogenous columns; `PivotedQr::derived`), under the SHA-256 of everything else
 //! they read (the regressors' bits, the errors with their cluster ids, the absorbed
 //! degrees of freedom), so specifications that differ only in their outcome compute them
 //! once.
