@@ -62,8 +62,9 @@ struct Kept {
     /// columns, ask for the same solve.
     solves: Mutex<Vec<([u8; 32], DVector<f64>)>>,
     /// Outcome-free results computed from this factorisation and other inputs (first
-    /// stages, weak-instrument diagnostics), each under the SHA-256 of those inputs (see
-    /// [`PivotedQr::derived`]), most recent last, at most [`KEPT_DERIVED`].
+    /// stages, Shea's R², weak-instrument diagnostics, the Durbin factorisation), each under
+    /// the SHA-256 of those inputs (see [`PivotedQr::derived`]), most recent last, at most
+    /// [`KEPT_DERIVED`].
     derived: Mutex<Vec<([u8; 32], Derived)>>,
 }
 
