@@ -18,9 +18,11 @@
 
 use std::sync::{Arc, Mutex, OnceLock, PoisonError};
 
-use nalgebra::{DMatrix, DVector, DVectorView};
+use nalgebra::{DMatrix, DVector};
 
 use super::EstimateError;
+
+mod reflect;
 
 /// Relative rank tolerance factor: a diagonal |R_jj| at or below `max(n, k) * eps * |R_00|`
 /// (after unit-norm column scaling) counts as zero.
@@ -253,16 +255,6 @@ fn reflect_later_columns(a: &mut DMatrix<f64>, row: usize, col: usize) {
     }
 }
 
-/// Applies the reflector I − 2 v vᵀ to rows `start..` of every column of `a` from `from_col`.
-fn reflect_columns(a: &mut DMatrix<f64>, v: DVectorView<f64>, start: usize, from_col: usize) {
-    let m = v.len();
-    for c in from_col..a.ncols() {
-        let mut block = a.view_mut((start, c), (m, 1));
-        let dot = v.dot(&block.column(0));
-        block.column_mut(0).axpy(-2.0 * dot, &v, 1.0);
-    }
-}
-
 impl PivotedQr {
     /// Factorises `x` (n × k, n ≥ k assumed by callers).
     ///
@@ -306,12 +298,6 @@ impl PivotedQr {
         }
     }
 
-    /// Householder vector j (rows j.. of its column).
-    fn reflector(&self, j: usize) -> DVectorView<'_, f64> {
-        self.reflectors
-            .generic_view((j, j), (nalgebra::Dyn(self.n - j), nalgebra::U1))
-    }
-
     /// The numerical rank under the module's tolerance.
     fn rank(&self) -> usize {
         let k = self.perm.len();
@@ -324,19 +310,19 @@ impl PivotedQr {
             .count()
     }
 
-    /// Applies Qᵀ to a vector of length n.
+    /// Applies Qᵀ to a vector of length n (reflectors in order; module `reflect`).
     fn apply_qt(&self, y: &DVector<f64>) -> DVector<f64> {
-        let mut c = DMatrix::from_column_slice(y.len(), 1, y.as_slice());
-        for j in 0..self.perm.len() {
-            reflect_columns(&mut c, self.reflector(j), j, 0);
-        }
-        c.column(0).into_owned()
+        let mut c = y.clone();
+        let order = reflect::reflectors(&self.reflectors, 0..self.perm.len());
+        reflect::apply_all(c.as_mut_slice(), &order);
+        c
     }
 
-    /// Applies Q to an n × m matrix (reflectors in reverse order).
+    /// Applies Q to an n × m matrix (reflectors in reverse order), column by column.
     fn apply_q(&self, mut c: DMatrix<f64>) -> DMatrix<f64> {
-        for j in (0..self.perm.len()).rev() {
-            reflect_columns(&mut c, self.reflector(j), j, 0);
+        let order = reflect::reflectors(&self.reflectors, (0..self.perm.len()).rev());
+        for column in c.as_mut_slice().chunks_mut(self.n) {
+            reflect::apply_all(column, &order);
         }
         c
     }
@@ -468,9 +454,17 @@ impl PivotedQr {
 
     /// The thin Q factor Q₁ (n × k), whose rows give leverages and scores.
     pub(crate) fn thin_q(&self) -> Arc<DMatrix<f64>> {
+        // Column j of Q₁ is Q eⱼ. Reflectors numbered above j act on rows below j, where eⱼ
+        // is zero: their dot product with it is +0 and their update adds (−0)·v + 0 = +0 to
+        // each zero, so skipping them gives the same bits (reflectors are finite).
         let compute = || {
             let k = self.perm.len();
-            Arc::new(self.apply_q(DMatrix::identity(self.n, k)))
+            let mut q1 = DMatrix::identity(self.n, k);
+            for (j, column) in q1.as_mut_slice().chunks_mut(self.n).enumerate() {
+                let order = reflect::reflectors(&self.reflectors, (0..=j).rev());
+                reflect::apply_all(column, &order);
+            }
+            Arc::new(q1)
         };
         match &self.kept {
             Some(kept) => Arc::clone(kept.thin_q.get_or_init(compute)),
