@@ -82,16 +82,13 @@ pub(crate) fn quadratic_meat(
         _ => {
             let ones = DVector::from_element(n, 1.0);
             let omega = hc_weights(&q1, &ones, spec, leverage, absorbed)?;
-            let gram = |w: &dyn Fn(usize) -> f64| {
-                let mut scaled = (*q1).clone();
-                for (i, mut row) in scaled.row_iter_mut().enumerate() {
-                    row *= w(i);
-                }
-                q1.tr_mul(&scaled)
-            };
-            let m11 = gram(&|i| omega[i] * e1[i] * e1[i]);
-            let m12 = gram(&|i| omega[i] * e1[i] * e2[i]);
-            let m22 = gram(&|i| omega[i] * e2[i] * e2[i]);
+            let [m11, m12, m22] = weighted_grams(&q1, |i| {
+                [
+                    omega[i] * e1[i] * e1[i],
+                    omega[i] * e1[i] * e2[i],
+                    omega[i] * e2[i] * e2[i],
+                ]
+            });
             let factor = if *spec == CovSpec::Hc1 {
                 n as f64 / (n - k) as f64
             } else {
@@ -107,6 +104,62 @@ pub(crate) fn quadratic_meat(
         m22,
         factor,
     }))
+}
+
+/// The weighted Gram matrices Σᵢ w_r(i) qᵢ qᵢᵀ (r = 0, 1, 2) of the rows qᵢ of `q1`, in one
+/// pass over `q1`.
+///
+/// Each is the same bits as `q1.tr_mul(&s_r)` with s_r = `q1`, row i multiplied by w_r(i):
+/// entry (a, b) is nalgebra's dot product of column a with column b of s_r, whose terms
+/// q_ia · (q_ib · w_r(i)) are summed in eight running sums over the first n − n mod 8 rows
+/// (row i into sum i mod 8), combined as ((((0 + (s₀ + s₄)) + (s₁ + s₅)) + (s₂ + s₆)) + (s₃ + s₇)),
+/// then the last rows added one by one (module `qr::reflect` states the same order; a test
+/// compares with nalgebra). That product took an n × k copy and k² passes over n-vectors
+/// per matrix.
+fn weighted_grams(q1: &DMatrix<f64>, weights: impl Fn(usize) -> [f64; 3]) -> [DMatrix<f64>; 3] {
+    let (n, k) = q1.shape();
+    let main = n - n % 8;
+    let q = q1.as_slice();
+    // lanes[((r · k + a) · k + b) · 8 + t]
+    let mut lanes = vec![0.0; 3 * k * k * 8];
+    let mut scaled = [[0.0; 8]; 3];
+    for start in (0..main).step_by(8) {
+        let w: [[f64; 3]; 8] = std::array::from_fn(|t| weights(start + t));
+        for b in 0..k {
+            let qb = &q[b * n + start..b * n + start + 8];
+            for r in 0..3 {
+                for t in 0..8 {
+                    scaled[r][t] = qb[t] * w[t][r];
+                }
+            }
+            for a in 0..k {
+                let qa = &q[a * n + start..a * n + start + 8];
+                for (r, s) in scaled.iter().enumerate() {
+                    let at = ((r * k + a) * k + b) * 8;
+                    let acc = &mut lanes[at..at + 8];
+                    for t in 0..8 {
+                        acc[t] += qa[t] * s[t];
+                    }
+                }
+            }
+        }
+    }
+    let tail: Vec<[f64; 3]> = (main..n).map(&weights).collect();
+    std::array::from_fn(|r| {
+        DMatrix::from_fn(k, k, |a, b| {
+            let at = ((r * k + a) * k + b) * 8;
+            let s = &lanes[at..at + 8];
+            let mut res = 0.0;
+            res += s[0] + s[4];
+            res += s[1] + s[5];
+            res += s[2] + s[6];
+            res += s[3] + s[7];
+            for (i, w) in (main..n).zip(&tail) {
+                res += q[a * n + i] * (q[b * n + i] * w[r]);
+            }
+            res
+        })
+    })
 }
 
 #[cfg(test)]
@@ -150,6 +203,35 @@ mod tests {
                     (v - &direct.cov).amax() <= 1e-13 * scale,
                     "{spec:?} at {a}, {b}"
                 );
+            }
+        }
+    }
+
+    /// The one-pass Gram matrices are the bits of nalgebra's `tr_mul` on the row-scaled
+    /// copies, for row counts on both sides of every multiple of eight.
+    #[test]
+    fn weighted_grams_are_nalgebras_bits() {
+        for n in [1, 5, 8, 13, 16, 31, 200] {
+            let k = 3;
+            let q1 = DMatrix::from_fn(n, k, |i, j| {
+                ((i * 31 + j * 17) as f64 * 0.77).sin() * (1.0 + j as f64)
+            });
+            let w = |i: usize| {
+                let x = (i as f64 * 1.3).cos();
+                [x * x, x * 0.3 - 0.1, 1.0 / (1.0 + i as f64)]
+            };
+            let got = weighted_grams(&q1, w);
+            for (r, m) in got.iter().enumerate() {
+                let mut scaled = q1.clone();
+                for (i, mut row) in scaled.row_iter_mut().enumerate() {
+                    row *= w(i)[r];
+                }
+                let expected = q1.tr_mul(&scaled);
+                let same = m
+                    .iter()
+                    .zip(expected.iter())
+                    .all(|(x, y)| x.to_bits() == y.to_bits());
+                assert!(same, "n = {n}, r = {r}");
             }
         }
     }
