@@ -30,7 +30,7 @@
 
 use std::collections::HashMap;
 
-use nalgebra::{DMatrix, DVector, SymmetricEigen};
+use nalgebra::{DMatrix, DMatrixView, DVector, SymmetricEigen};
 
 use super::hac::hac_meat;
 use super::qr::{InputKey, PivotedQr};
@@ -247,7 +247,24 @@ pub(crate) fn hc_weights(
 
 /// Σ ωᵢ qᵢ qᵢᵀ for the rows qᵢ of `q1`.
 fn weighted_gram(q1: &DMatrix<f64>, weights: &[f64]) -> DMatrix<f64> {
-    q1.transpose() * rows_scaled(q1, weights)
+    transpose_times(q1, &rows_scaled(q1, weights))
+}
+
+/// `a`ᵀ `b` for tall matrices with the same rows, the same bits as `a.transpose() * b`,
+/// without the transposed copy of `a` when nalgebra multiplies through matrixmultiply (more
+/// than five rows and columns on every side): `a`'s transpose is then given as a view with
+/// its strides swapped, and matrixmultiply copies both operands into packed panels before its
+/// kernel reads them, so the strides change no arithmetic. Smaller shapes take nalgebra's
+/// column-by-column path, which does not take a strided view, so `a` is transposed there as
+/// before. A test compares both sides of the switch.
+pub(crate) fn transpose_times(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
+    const SMALL: usize = 5;
+    let (n, k) = a.shape();
+    if n <= SMALL || k <= SMALL || b.ncols() <= SMALL {
+        return a.transpose() * b;
+    }
+    let at = DMatrixView::from_slice_with_strides(a.as_slice(), k, n, n, 1);
+    at * b
 }
 
 /// The score rows qᵢ uᵢ (n × k).
@@ -255,16 +272,15 @@ fn scores(q1: &DMatrix<f64>, resid: &DVector<f64>) -> DMatrix<f64> {
     rows_scaled(q1, resid.as_slice())
 }
 
-/// `m` with row i multiplied by `factors[i]`, written column by column (contiguous memory;
-/// the same products as scaling each row).
-fn rows_scaled(m: &DMatrix<f64>, factors: &[f64]) -> DMatrix<f64> {
-    let mut out = m.clone();
-    for mut column in out.column_iter_mut() {
-        for (x, f) in column.iter_mut().zip(factors) {
-            *x *= *f;
-        }
+/// `m` with row i multiplied by `factors[i]`, written column by column in one pass
+/// (contiguous memory; the same products as scaling each row).
+pub(crate) fn rows_scaled(m: &DMatrix<f64>, factors: &[f64]) -> DMatrix<f64> {
+    let n = m.nrows();
+    let mut out = Vec::with_capacity(m.len());
+    for column in m.as_slice().chunks(n.max(1)) {
+        out.extend(column.iter().zip(factors).map(|(x, f)| x * f));
     }
-    out
+    DMatrix::from_vec(n, m.ncols(), out)
 }
 
 /// Σ_g s_g s_gᵀ with s_g the within-cluster sums of the score rows, and the cluster count.
@@ -371,6 +387,29 @@ mod tests {
     fn clamp_keeps_positive_definite() {
         let v = DMatrix::from_row_slice(2, 2, &[2.0, 0.5, 0.5, 1.0]);
         assert_eq!(clamp_negative_eigenvalues(v.clone()), v);
+    }
+
+    /// The product without the transposed copy is nalgebra's bits, on both sides of the
+    /// size where nalgebra switches to matrixmultiply.
+    #[test]
+    fn transpose_times_is_nalgebras_product() {
+        let value = |i: usize, j: usize| ((i * 13 + j * 7) as f64 * 0.61).sin() * (1.0 + j as f64);
+        for n in [1, 4, 6, 9, 40, 301] {
+            for (k, m) in [(1, 1), (3, 3), (5, 6), (6, 6), (8, 1), (9, 9), (12, 4)] {
+                let a = DMatrix::from_fn(n, k, value);
+                let b = DMatrix::from_fn(n, m, |i, j| value(i + 3, j + 2));
+                let expected = a.transpose() * &b;
+                let got = transpose_times(&a, &b);
+                let same = got
+                    .iter()
+                    .zip(expected.iter())
+                    .all(|(x, y)| x.to_bits() == y.to_bits());
+                assert!(
+                    same && got.shape() == expected.shape(),
+                    "n = {n}, k = {k}, m = {m}"
+                );
+            }
+        }
     }
 
     /// Dense relabelling and cell counting, checked by hand.

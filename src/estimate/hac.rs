@@ -18,6 +18,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
+use super::covariance::transpose_times;
 use super::EstimateError;
 
 /// Weight of the Newey–West (1994) automatic rule for the Bartlett kernel, γ = c·(ŝ₁/ŝ₀)^{2/3}.
@@ -57,8 +58,8 @@ pub(crate) fn hac_meat(
             }
         }
     }
-    let cross = scores.transpose() * ahead;
-    Ok(scores.transpose() * scores + &cross + cross.transpose())
+    let cross = transpose_times(scores, &ahead);
+    Ok(transpose_times(scores, scores) + &cross + cross.transpose())
 }
 
 fn check(n: usize, positions: &[usize], bandwidth: f64) -> Result<(), EstimateError> {

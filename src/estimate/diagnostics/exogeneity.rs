@@ -5,7 +5,7 @@
 
 use nalgebra::{Cholesky, DMatrix, DVector};
 
-use super::super::covariance::{densify, CovSpec, Leverage};
+use super::super::covariance::{densify, rows_scaled, transpose_times, CovSpec, Leverage};
 use super::super::hac::hac_meat;
 use super::super::linear::{
     assemble, hcat, instrument_qr, least_squares, require_observations, IvProblem, IvSetup,
@@ -209,12 +209,9 @@ fn moment_meat(
     ids: Option<&[usize]>,
 ) -> Result<DMatrix<f64>, EstimateError> {
     let (n, l) = q.shape();
-    let mut scores = q.clone();
-    for (i, ui) in u.iter().enumerate() {
-        scores.row_mut(i).scale_mut(*ui);
-    }
+    let scores = rows_scaled(q, u.as_slice());
     let Some(ids) = ids else {
-        return Ok(scores.transpose() * scores);
+        return Ok(transpose_times(&scores, &scores));
     };
     if ids.len() != n {
         return Err(EstimateError::ClusterLength { n, ids: ids.len() });
@@ -328,8 +325,11 @@ impl IvProblem<'_> {
                 .solve_lower_triangular(&m)
                 .ok_or(EstimateError::SingularMomentCovariance { moments: l })
         };
-        let xt = whiten(q.transpose() * &setup.x)?;
-        let yt = whiten(q.transpose() * DMatrix::from_column_slice(n, 1, y.as_slice()))?;
+        let xt = whiten(transpose_times(&q, &setup.x))?;
+        let yt = whiten(transpose_times(
+            &q,
+            &DMatrix::from_column_slice(n, 1, y.as_slice()),
+        ))?;
         let yt = yt.column(0).into_owned();
         let statistic = least_squares(&yt, &xt)?.resid.norm_squared();
         Ok(Some(TestStatistic {
