@@ -380,9 +380,10 @@ fn exogenous(spec: &Spec, controls: DMatrix<f64>, n: usize) -> (DMatrix<f64>, Ve
     let mut exog_names = Vec::new();
     let exog = if with_intercept {
         exog_names.push("intercept".to_string());
-        let mut m = DMatrix::from_element(n, 1 + controls.ncols(), 1.0);
-        m.columns_mut(1, controls.ncols()).copy_from(&controls);
-        m
+        let mut m = Vec::with_capacity(n * (1 + controls.ncols()));
+        m.resize(n, 1.0);
+        m.extend_from_slice(controls.as_slice());
+        DMatrix::from_vec(n, 1 + controls.ncols(), m)
     } else {
         controls
     };

@@ -145,10 +145,11 @@ pub fn ols(
 
 /// Horizontal concatenation `[a | b]` (same number of rows).
 pub(crate) fn hcat(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
-    let mut out = DMatrix::zeros(a.nrows(), a.ncols() + b.ncols());
-    out.columns_mut(0, a.ncols()).copy_from(a);
-    out.columns_mut(a.ncols(), b.ncols()).copy_from(b);
-    out
+    assert_eq!(a.nrows(), b.nrows(), "hcat: blocks of different heights");
+    let mut out = Vec::with_capacity(a.len() + b.len());
+    out.extend_from_slice(a.as_slice());
+    out.extend_from_slice(b.as_slice());
+    DMatrix::from_vec(a.nrows(), a.ncols() + b.ncols(), out)
 }
 
 /// A rank error of an instrument set named as such.

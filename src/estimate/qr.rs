@@ -209,17 +209,25 @@ impl Kept {
     }
 }
 
-/// Divides every column by its Euclidean norm, returning the scaled copy and the factors.
+/// Divides every column by its Euclidean norm, returning the scaled copy (written in one
+/// pass) and the factors.
 fn scale_columns(x: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
-    let mut xs = x.clone();
-    let mut scale = Vec::with_capacity(x.ncols());
-    for j in 0..x.ncols() {
-        let norm = x.column(j).norm();
-        let s = if norm > 0.0 { 1.0 / norm } else { 1.0 };
-        xs.column_mut(j).scale_mut(s);
-        scale.push(s);
+    let scale: Vec<f64> = x
+        .column_iter()
+        .map(|column| {
+            let norm = column.norm();
+            if norm > 0.0 {
+                1.0 / norm
+            } else {
+                1.0
+            }
+        })
+        .collect();
+    let mut xs = Vec::with_capacity(x.len());
+    for (column, s) in x.column_iter().zip(&scale) {
+        xs.extend(column.iter().map(|v| v * s));
     }
-    (xs, scale)
+    (DMatrix::from_vec(x.nrows(), x.ncols(), xs), scale)
 }
 
 /// Rows `row..` of column `col` of `a` become the unit Householder vector v that maps them

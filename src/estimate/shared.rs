@@ -109,13 +109,18 @@ fn fingerprint(x: &DMatrix<f64>) -> u64 {
     h
 }
 
-/// Bitwise equality of two matrices of the same shape.
+/// Bitwise equality of two matrices of the same shape (compared in blocks of 512 entries,
+/// each block's bit patterns at once).
 fn same_bits(a: &DMatrix<f64>, b: &DMatrix<f64>) -> bool {
     a.shape() == b.shape()
         && a.as_slice()
-            .iter()
-            .zip(b.as_slice())
-            .all(|(p, q)| p.to_bits() == q.to_bits())
+            .chunks(512)
+            .zip(b.as_slice().chunks(512))
+            .all(|(p, q)| {
+                p.iter()
+                    .zip(q)
+                    .fold(true, |same, (x, y)| same & (x.to_bits() == y.to_bits()))
+            })
 }
 
 /// The memo's entry for `x`, made (with a copy of `x`) if there is none; `None` when no

@@ -79,13 +79,12 @@ pub(super) fn select(m: &DMatrix<f64>, keep: &[usize]) -> DMatrix<f64> {
 pub(super) fn hstack(blocks: &[&DMatrix<f64>]) -> DMatrix<f64> {
     let n = blocks.iter().map(|b| b.nrows()).max().unwrap_or(0);
     let k = blocks.iter().map(|b| b.ncols()).sum();
-    let mut out = DMatrix::zeros(n, k);
-    let mut at = 0;
+    let mut out = Vec::with_capacity(n * k);
     for b in blocks {
-        out.columns_mut(at, b.ncols()).copy_from(*b);
-        at += b.ncols();
+        assert_eq!(b.nrows(), n, "hstack: blocks of different heights");
+        out.extend_from_slice(b.as_slice());
     }
-    out
+    DMatrix::from_vec(n, k, out)
 }
 
 /// Moves a matrix out of the design (its columns go to [`Parts`]), keeping the columns
