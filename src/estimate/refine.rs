@@ -71,59 +71,102 @@ fn dot2_step(sum: &mut [f64], err: &mut [f64], a: &[f64], b: f64) {
     dot2_step_body(sum, err, a, b);
 }
 
+/// Rows a compensated kernel works through at a time: their running sums stay in the
+/// fastest cache while every column passes over them.
+const ROW_BLOCK: usize = 1024;
+
 /// Per row i, Dot2 of the terms (v[i], c) for each `(v, c)` in `leading`, then
 /// (x[i, j], −b[j]) for each column j: the compensated residual family, computed column by
-/// column over contiguous memory with the same per-row order of operations as [`dot2`].
+/// column over contiguous memory, a block of [`ROW_BLOCK`] rows at a time, with the same
+/// per-row order of operations as [`dot2`].
 pub(crate) fn compensated_rows(
     leading: &[(&[f64], f64)],
     x: &DMatrix<f64>,
     b: &DVector<f64>,
 ) -> DVector<f64> {
     let n = x.nrows();
-    let (mut sum, mut err) = (vec![0.0; n], vec![0.0; n]);
-    for (v, c) in leading {
-        dot2_step(&mut sum, &mut err, v, *c);
+    let mut out = Vec::with_capacity(n);
+    let (mut sum, mut err) = ([0.0; ROW_BLOCK], [0.0; ROW_BLOCK]);
+    for start in (0..n).step_by(ROW_BLOCK) {
+        let end = (start + ROW_BLOCK).min(n);
+        let (sum, err) = (&mut sum[..end - start], &mut err[..end - start]);
+        sum.fill(0.0);
+        err.fill(0.0);
+        for (v, c) in leading {
+            dot2_step(sum, err, &v[start..end], *c);
+        }
+        for (j, column) in x.column_iter().enumerate() {
+            dot2_step(sum, err, &column.as_slice()[start..end], -b[j]);
+        }
+        out.extend(sum.iter().zip(err.iter()).map(|(s, e)| s + e));
     }
-    for (j, column) in x.column_iter().enumerate() {
-        dot2_step(&mut sum, &mut err, column.as_slice(), -b[j]);
-    }
-    DVector::from_iterator(n, sum.iter().zip(&err).map(|(s, e)| s + e))
+    DVector::from_vec(out)
 }
 
-/// Dot2 of the term `first` followed by the terms (a[i], sign·b[i]); `sign` is ±1.
+/// For every column j of `x`, Dot2 of the term `first(j)` followed by the terms
+/// (x[i, j], sign·r[i]) (`sign` ±1, so the products are those of the terms as written), with
+/// the columns' sums carried side by side in one pass over the rows (independent chains of
+/// operations the processor can overlap), each in the order of [`dot2`].
 #[inline(always)]
-fn dot2_pairs_body(first: (f64, f64), a: &[f64], b: &[f64], sign: f64) -> f64 {
-    let (p, ep) = two_prod(first.0, first.1);
-    let (mut sum, es) = two_sum(0.0, p);
-    let mut err = 0.0 + (ep + es);
-    for (x, y) in a.iter().zip(b) {
-        let (p, ep) = two_prod(*x, sign * y);
-        let (s, es) = two_sum(sum, p);
-        sum = s;
-        err += ep + es;
+fn dot2_columns_body(
+    first: &dyn Fn(usize) -> (f64, f64),
+    x: &DMatrix<f64>,
+    r: &[f64],
+    sign: f64,
+) -> Vec<f64> {
+    let n = x.nrows();
+    let columns: Vec<&[f64]> = (0..x.ncols())
+        .map(|j| &x.as_slice()[j * n..(j + 1) * n])
+        .collect();
+    let mut states: Vec<(f64, f64)> = (0..x.ncols())
+        .map(|j| {
+            let (a, c) = first(j);
+            let (p, ep) = two_prod(a, c);
+            let (sum, es) = two_sum(0.0, p);
+            (sum, 0.0 + (ep + es))
+        })
+        .collect();
+    for (i, y) in r.iter().enumerate() {
+        let factor = sign * y;
+        for (state, column) in states.iter_mut().zip(&columns) {
+            let (p, ep) = two_prod(column[i], factor);
+            let (s, es) = two_sum(state.0, p);
+            state.0 = s;
+            state.1 += ep + es;
+        }
     }
-    sum + err
+    states.iter().map(|(sum, err)| sum + err).collect()
 }
 
-/// [`dot2_pairs_body`] with hardware fused multiply-add.
+/// [`dot2_columns_body`] with hardware fused multiply-add.
 ///
 /// # Safety
 /// The CPU must support FMA (checked by the caller).
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "fma")]
-unsafe fn dot2_pairs_fma(first: (f64, f64), a: &[f64], b: &[f64], sign: f64) -> f64 {
-    dot2_pairs_body(first, a, b, sign)
+unsafe fn dot2_columns_fma(
+    first: &dyn Fn(usize) -> (f64, f64),
+    x: &DMatrix<f64>,
+    r: &[f64],
+    sign: f64,
+) -> Vec<f64> {
+    dot2_columns_body(first, x, r, sign)
 }
 
-/// The same value as [`dot2`] over `first` then (a[i], sign·b[i]) (`sign` ±1, so the
-/// products are those of the terms as written), over contiguous slices.
-fn dot2_pairs(first: (f64, f64), a: &[f64], b: &[f64], sign: f64) -> f64 {
+/// Dot2 of `first(j)` then column j of `x` against `sign`·`r`, for every column at once
+/// ([`dot2_columns_body`]).
+fn dot2_columns(
+    first: &dyn Fn(usize) -> (f64, f64),
+    x: &DMatrix<f64>,
+    r: &[f64],
+    sign: f64,
+) -> Vec<f64> {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("fma") {
         // SAFETY: the feature was detected at run time.
-        return unsafe { dot2_pairs_fma(first, a, b, sign) };
+        return unsafe { dot2_columns_fma(first, x, r, sign) };
     }
-    dot2_pairs_body(first, a, b, sign)
+    dot2_columns_body(first, x, r, sign)
 }
 
 /// y − X b per row, in compensated precision.
@@ -147,9 +190,8 @@ impl PivotedQr {
         let mut r = residual(x, y, b);
         for _ in 0..self.steps() {
             let f = compensated_rows(&[(y.as_slice(), 1.0), (r.as_slice(), -1.0)], x, b);
-            let g = DVector::from_fn(x.ncols(), |j, _| {
-                -dot2_pairs((0.0, 0.0), x.column(j).as_slice(), r.as_slice(), 1.0)
-            });
+            let sums = dot2_columns(&|_| (0.0, 0.0), x, r.as_slice(), 1.0);
+            let g = DVector::from_iterator(x.ncols(), sums.iter().map(|s| -s));
             let (db, dr) = self.augmented_correction(&f, &g);
             *b += db;
             r += dr;
@@ -176,10 +218,8 @@ impl PivotedQr {
             let mut r = -(x * &b);
             for _ in 0..self.steps() {
                 let f = compensated_rows(&[(r.as_slice(), -1.0)], x, &b);
-                let g = DVector::from_fn(x.ncols(), |m, _| {
-                    let unit = if m == j { -1.0 } else { 0.0 };
-                    dot2_pairs((unit, 1.0), x.column(m).as_slice(), r.as_slice(), -1.0)
-                });
+                let unit = |m: usize| (if m == j { -1.0 } else { 0.0 }, 1.0);
+                let g = DVector::from_vec(dot2_columns(&unit, x, r.as_slice(), -1.0));
                 let (db, dr) = self.augmented_correction(&f, &g);
                 b += db;
                 r += dr;
@@ -216,19 +256,31 @@ mod tests {
             let expected = dot2(terms.chain(x.row(i).iter().zip(b.iter()).map(|(a, c)| (*a, -c))));
             assert_eq!(rows[i].to_bits(), expected.to_bits(), "row {i}");
         }
+        let plain = dot2_columns(&|_| (0.0, 0.0), &x, r.as_slice(), 1.0);
+        let unit = |j: usize| (if j == 2 { -1.0 } else { 0.0 }, 1.0);
+        let with_unit = dot2_columns(&unit, &x, r.as_slice(), -1.0);
         for j in 0..k {
             let col = x.column(j);
-            let plain = dot2(col.iter().zip(r.iter()).map(|(a, c)| (*a, *c)));
-            let fast = dot2_pairs((0.0, 0.0), col.as_slice(), r.as_slice(), 1.0);
-            assert_eq!(plain.to_bits(), fast.to_bits(), "column {j}");
-            let terms = std::iter::once((-1.0, 1.0));
-            let plain = dot2(terms.chain(col.iter().zip(r.iter()).map(|(a, c)| (*a, -c))));
-            let fast = dot2_pairs((-1.0, 1.0), col.as_slice(), r.as_slice(), -1.0);
+            let expected = dot2(col.iter().zip(r.iter()).map(|(a, c)| (*a, *c)));
+            assert_eq!(plain[j].to_bits(), expected.to_bits(), "column {j}");
+            let terms = std::iter::once(unit(j));
+            let expected = dot2(terms.chain(col.iter().zip(r.iter()).map(|(a, c)| (*a, -c))));
             assert_eq!(
-                plain.to_bits(),
-                fast.to_bits(),
+                with_unit[j].to_bits(),
+                expected.to_bits(),
                 "column {j} with a unit term"
             );
+        }
+        // Row blocks: a residual family longer than one block, the same bits per row.
+        let (n, k) = (2 * ROW_BLOCK + 37, 3);
+        let x = DMatrix::from_fn(n, k, awkward);
+        let y = DVector::from_fn(n, |i, _| awkward(i, 11) * 1e3);
+        let b = DVector::from_fn(k, |j, _| awkward(j, 5));
+        let rows = compensated_rows(&[(y.as_slice(), 1.0)], &x, &b);
+        for i in (0..n).step_by(97).chain([ROW_BLOCK - 1, ROW_BLOCK, n - 1]) {
+            let terms = std::iter::once((y[i], 1.0));
+            let expected = dot2(terms.chain(x.row(i).iter().zip(b.iter()).map(|(a, c)| (*a, -c))));
+            assert_eq!(rows[i].to_bits(), expected.to_bits(), "row {i} of {n}");
         }
     }
 }
