@@ -305,8 +305,8 @@ fn cluster_meat(
 }
 
 /// The within-cluster sums s_g = Σ_{i∈g} qᵢ uᵢ (G × k, clusters in order of first
-/// appearance) and the cluster count, without an n × k score matrix (the same products and
-/// the same order of summation as summing the score rows).
+/// appearance) and the cluster count, in one pass over the rows without an n × k score matrix
+/// (the same products and the same order of summation as summing the score rows).
 pub(crate) fn cluster_sums(
     q1: &DMatrix<f64>,
     resid: &DVector<f64>,
@@ -320,15 +320,17 @@ pub(crate) fn cluster_sums(
     if g < 2 {
         return Err(EstimateError::TooFewClusters { clusters: g });
     }
-    let mut sums = DMatrix::zeros(g, k);
-    for j in 0..k {
-        let column = q1.column(j);
-        let mut target = sums.column_mut(j);
-        for (i, &c) in dense.iter().enumerate() {
-            target[c] += column[i] * resid[i];
+    // One pass over the rows, each cluster's k sums side by side (row-major); every sum
+    // still adds its terms in row order, as a pass per column did.
+    let columns: Vec<&[f64]> = q1.as_slice().chunks(n.max(1)).collect();
+    let mut sums = vec![0.0; g * k];
+    for (i, (&c, u)) in dense.iter().zip(resid.iter()).enumerate() {
+        let target = &mut sums[c * k..(c + 1) * k];
+        for (t, column) in target.iter_mut().zip(&columns) {
+            *t += column[i] * u;
         }
     }
-    Ok((sums, g))
+    Ok((DMatrix::from_row_slice(g, k, &sums), g))
 }
 
 /// Relabels arbitrary ids as 0..G in order of first appearance.
@@ -410,6 +412,30 @@ mod tests {
                 );
             }
         }
+    }
+
+    /// The one-pass cluster sums are the bits of summing the score rows per cluster.
+    #[test]
+    fn cluster_sums_are_the_summed_score_rows() {
+        let (n, k) = (503, 4);
+        let q1 = DMatrix::from_fn(n, k, |i, j| {
+            ((i * 29 + j * 11) as f64 * 0.41).sin() / (1.0 + j as f64)
+        });
+        let u = DVector::from_fn(n, |i, _| ((i * 7) as f64 * 0.13).cos() * 3.0);
+        let ids: Vec<usize> = (0..n).map(|i| (i * 37) % 23 + 100).collect();
+        let (sums, g) = cluster_sums(&q1, &u, &ids).expect("valid");
+        let (dense, g_expected) = densify(&ids);
+        assert_eq!(g, g_expected);
+        let mut expected = DMatrix::zeros(g, k);
+        for (i, &c) in dense.iter().enumerate() {
+            let mut row = expected.row_mut(c);
+            row += q1.row(i) * u[i];
+        }
+        let same = sums
+            .iter()
+            .zip(expected.iter())
+            .all(|(a, b)| a.to_bits() == b.to_bits());
+        assert!(same);
     }
 
     /// Dense relabelling and cell counting, checked by hand.

@@ -109,6 +109,16 @@ impl InputKey {
     }
 
     pub(crate) fn numbers(self, values: &[f64]) -> Self {
+        #[cfg(target_endian = "little")]
+        {
+            // SAFETY: an f64 is 8 bytes without padding; on a little-endian target they are
+            // `to_bits().to_le_bytes()`, the bytes `words` would hash.
+            let bytes = unsafe {
+                std::slice::from_raw_parts(values.as_ptr().cast::<u8>(), size_of_val(values))
+            };
+            self.count(values.len()).raw(bytes)
+        }
+        #[cfg(not(target_endian = "little"))]
         self.words(values.len(), values.iter().map(|x| x.to_bits()))
     }
 
@@ -120,10 +130,32 @@ impl InputKey {
     }
 
     pub(crate) fn indices(self, values: &[usize]) -> Self {
+        #[cfg(all(target_endian = "little", target_pointer_width = "64"))]
+        {
+            // SAFETY: a usize here is 8 bytes without padding, little-endian: the bytes of
+            // `(x as u64).to_le_bytes()`, which `words` would hash.
+            let bytes = unsafe {
+                std::slice::from_raw_parts(values.as_ptr().cast::<u8>(), size_of_val(values))
+            };
+            self.count(values.len()).raw(bytes)
+        }
+        #[cfg(not(all(target_endian = "little", target_pointer_width = "64")))]
         self.words(values.len(), values.iter().map(|&x| x as u64))
     }
 
-    /// `len`, then the words, little-endian, hashed in blocks of 512.
+    /// Bytes hashed as they are (no length).
+    fn raw(mut self, bytes: &[u8]) -> Self {
+        use sha2::Digest;
+        self.0.update(bytes);
+        self
+    }
+
+    /// `len`, then the words, little-endian, hashed in blocks of 512 (the portable form of
+    /// what `numbers` and `indices` hash straight from memory on little-endian targets).
+    #[cfg_attr(
+        all(target_endian = "little", target_pointer_width = "64"),
+        allow(dead_code)
+    )]
     fn words(mut self, len: usize, words: impl Iterator<Item = u64>) -> Self {
         use sha2::Digest;
         self = self.count(len);
@@ -532,4 +564,33 @@ pub fn collinear_columns(x: &DMatrix<f64>) -> Vec<usize> {
         row += 1;
     }
     dependent
+}
+
+#[cfg(test)]
+mod tests {
+    use super::InputKey;
+
+    /// Numbers and indices hashed straight from memory give the digest of the portable
+    /// word-by-word form, so keys are the same on every target.
+    #[test]
+    fn keys_hashed_from_memory_are_the_portable_keys() {
+        let numbers: Vec<f64> = (0..1500)
+            .map(|i| (i as f64 * 0.37).sin() * 1e3 - 0.0)
+            .collect();
+        let indices: Vec<usize> = (0..1500).map(|i| i * 7919 % 1013).collect();
+        let fast = InputKey::new("t")
+            .numbers(&numbers)
+            .indices(&indices)
+            .finish();
+        let portable = InputKey::new("t")
+            .words(numbers.len(), numbers.iter().map(|x| x.to_bits()))
+            .words(indices.len(), indices.iter().map(|&x| x as u64))
+            .finish();
+        assert_eq!(fast, portable);
+        let other = InputKey::new("t")
+            .numbers(&numbers[1..])
+            .indices(&indices)
+            .finish();
+        assert_ne!(fast, other);
+    }
 }
