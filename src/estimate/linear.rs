@@ -11,7 +11,7 @@ use nalgebra::{DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::qr::{InputKey, PivotedQr};
 use super::refine::residual;
-use super::shared::{collinear, design_qr, shared_qr};
+use super::shared::{collinear, design_qr, shared_design_qr, shared_qr};
 use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::Reference;
 
@@ -63,14 +63,33 @@ pub(crate) fn least_squares(
     x: &DMatrix<f64>,
 ) -> Result<LeastSquares, EstimateError> {
     let (design, qr) = design_qr(x)?;
+    Ok(fitted(y, x, design, qr))
+}
+
+/// [`least_squares`] on a design the caller shares (kept by the memo without a copy).
+pub(crate) fn least_squares_shared(
+    y: &DVector<f64>,
+    x: &Arc<DMatrix<f64>>,
+) -> Result<LeastSquares, EstimateError> {
+    let (design, qr) = shared_design_qr(x)?;
+    Ok(fitted(y, x, design, qr))
+}
+
+/// The refined least-squares fit of `y` on `x` (equal to `design`) with its factorisation.
+fn fitted(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+    design: Arc<DMatrix<f64>>,
+    qr: Arc<PivotedQr>,
+) -> LeastSquares {
     let coef = qr.solve(x, y);
     let resid = residual(x, y, &coef);
-    Ok(LeastSquares {
+    LeastSquares {
         qr,
         design,
         coef,
         resid,
-    })
+    }
 }
 
 /// Total sum of squares: about the mean when `centered`, else about zero.

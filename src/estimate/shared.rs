@@ -109,23 +109,30 @@ fn fingerprint(x: &DMatrix<f64>) -> u64 {
     h
 }
 
-/// Bitwise equality of two matrices of the same shape (compared in blocks of 512 entries,
-/// each block's bit patterns at once).
+/// Bitwise equality of two matrices of the same shape (the same matrix, or compared in
+/// blocks of 512 entries, each block's bit patterns at once).
 fn same_bits(a: &DMatrix<f64>, b: &DMatrix<f64>) -> bool {
     a.shape() == b.shape()
-        && a.as_slice()
-            .chunks(512)
-            .zip(b.as_slice().chunks(512))
-            .all(|(p, q)| {
-                p.iter()
-                    .zip(q)
-                    .fold(true, |same, (x, y)| same & (x.to_bits() == y.to_bits()))
-            })
+        && (std::ptr::eq(a, b)
+            || a.as_slice()
+                .chunks(512)
+                .zip(b.as_slice().chunks(512))
+                .all(|(p, q)| {
+                    p.iter()
+                        .zip(q)
+                        .fold(true, |same, (x, y)| same & (x.to_bits() == y.to_bits()))
+                }))
 }
 
 /// The memo's entry for `x`, made (with a copy of `x`) if there is none; `None` when no
 /// guard is alive or `x` is too small to keep.
 fn entry(x: &DMatrix<f64>) -> Option<Arc<Entry>> {
+    entry_for(x, None)
+}
+
+/// [`entry`], keeping `owned` itself (the caller's shared `x`) instead of a copy when the
+/// entry is new.
+fn entry_for(x: &DMatrix<f64>, owned: Option<&Arc<DMatrix<f64>>>) -> Option<Arc<Entry>> {
     if x.len() < MIN_ENTRIES || tests::bypassed() {
         return None;
     }
@@ -155,7 +162,7 @@ fn entry(x: &DMatrix<f64>) -> Option<Arc<Entry>> {
         }
         None => Arc::new(Entry {
             fingerprint,
-            x: Arc::new(x.clone()),
+            x: owned.map_or_else(|| Arc::new(x.clone()), Arc::clone),
             qr: OnceLock::new(),
             dependent: OnceLock::new(),
         }),
@@ -199,6 +206,20 @@ pub(crate) fn design_qr(
     match entry(x) {
         Some(e) => Ok((Arc::clone(&e.x), e.factorised(x)?)),
         None => Ok((Arc::new(x.clone()), Arc::new(PivotedQr::new(x)?))),
+    }
+}
+
+/// [`design_qr`] for a matrix the caller already shares: a new memo entry keeps `x` itself,
+/// and a later call with the same `x` is recognised without comparing its entries.
+///
+/// # Errors
+/// As [`PivotedQr::new`].
+pub(crate) fn shared_design_qr(
+    x: &Arc<DMatrix<f64>>,
+) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
+    match entry_for(x, Some(x)) {
+        Some(e) => Ok((Arc::clone(&e.x), e.factorised(x)?)),
+        None => Ok((Arc::clone(x), Arc::new(PivotedQr::new(x)?))),
     }
 }
 

@@ -3,12 +3,15 @@
 //! first-stage residuals the control function adds. Notation and invariants as in the parent
 //! module.
 
+use std::sync::Arc;
+
 use nalgebra::{Cholesky, DMatrix, DVector};
 
 use super::super::covariance::{densify, rows_scaled, transpose_times, CovSpec, Leverage};
 use super::super::hac::hac_meat;
 use super::super::linear::{
-    assemble, hcat, instrument_qr, least_squares, require_observations, IvProblem, IvSetup,
+    assemble, hcat, instrument_qr, least_squares, least_squares_shared, require_observations,
+    IvProblem, IvSetup,
 };
 use super::super::{Absorbed, EstimateError};
 use super::{inference_df, joint_f};
@@ -107,8 +110,13 @@ impl IvProblem<'_> {
         let (y, setup, endog) = (self.y, &self.setup, self.endog);
         let (n, k, p) = (y.len(), setup.x.ncols(), endog.ncols());
         require_observations(n, (k + p).max(setup.z.ncols()) + absorbed.df)?;
-        let augmented = hcat(&setup.x, &first_stage_residuals(setup, p)?);
-        let ls = least_squares(y, &augmented)?;
+        // [X | v̂] is outcome-free: built once per sample, kept with the instruments'
+        // factorisation, and factorised once by the memo without a copy.
+        let augmented: Arc<DMatrix<f64>> = setup.zqr.derived(
+            || self.outcome_free_key("control function design").finish(),
+            || Ok(Arc::new(hcat(&setup.x, &first_stage_residuals(setup, p)?))),
+        )?;
+        let ls = least_squares_shared(y, &augmented)?;
         let cf = assemble(
             y,
             &augmented,
