@@ -354,11 +354,27 @@ impl<'a> IvProblem<'a> {
         Ok(residual(self.exog, v, &coef))
     }
 
-    /// The structural 2SLS residuals (as [`tsls_residuals`]), computed once.
+    /// The structural 2SLS residuals u = y − X b alone, for tests that need nothing else:
+    /// the same factorisation, solve and compensated residual as [`IvProblem::tsls`], so the
+    /// same bits, without the covariance a fit would also compute; computed once.
     pub(crate) fn tsls_residuals(&self) -> Result<DVector<f64>, EstimateError> {
         self.tsls_resid
-            .get_or_init(|| tsls_residuals(self.y, &self.setup, self.endog.ncols()))
+            .get_or_init(|| {
+                let xhat = self.projected()?;
+                let (_, qr) = shared_design_qr(&xhat)?;
+                let coef = qr.solve(&xhat, self.y);
+                Ok(residual(&self.setup.x, self.y, &coef))
+            })
             .clone()
+    }
+
+    /// X̂ = [P_Z endog | exog] (as [`projected_regressors`]): outcome-free, so kept with the
+    /// instruments' factorisation once per sample and handed to the memo without a copy.
+    fn projected(&self) -> Result<Arc<DMatrix<f64>>, EstimateError> {
+        self.setup.zqr.derived(
+            || self.outcome_free_key("projected regressors").finish(),
+            || projected_regressors(&self.setup, self.endog.ncols()).map(Arc::new),
+        )
     }
 
     /// Two-stage least squares on this problem (as [`tsls`]).
@@ -376,14 +392,8 @@ impl<'a> IvProblem<'a> {
             self.y.len(),
             setup.z.ncols().max(setup.x.ncols()) + absorbed.df,
         )?;
-        let fit = tsls_from(
-            self.y,
-            setup,
-            self.endog.ncols(),
-            has_intercept,
-            cov,
-            absorbed,
-        )?;
+        let ls = least_squares_shared(self.y, &self.projected()?)?;
+        let fit = tsls_assemble(self.y, setup, &ls, has_intercept, cov, absorbed)?;
         // The fit's residuals are exactly those `tsls_residuals` computes (same projection,
         // factorisation, solve and compensated residual): the tests reuse them.
         let _ = self.tsls_resid.set(Ok(fit.resid.clone()));
@@ -467,29 +477,26 @@ pub(crate) fn tsls_from(
 ) -> Result<LinearFit, EstimateError> {
     let xhat = projected_regressors(setup, endogenous)?;
     let ls = least_squares(y, &xhat)?;
+    tsls_assemble(y, setup, &ls, has_intercept, cov, absorbed)
+}
+
+/// The 2SLS fit from the least-squares fit of y on X̂: structural residuals and the
+/// covariance (as [`tsls_from`]).
+fn tsls_assemble(
+    y: &DVector<f64>,
+    setup: &IvSetup,
+    ls: &LeastSquares,
+    has_intercept: bool,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+) -> Result<LinearFit, EstimateError> {
     assemble(
         y,
         &setup.x,
-        &ls,
+        ls,
         has_intercept,
         cov,
         Leverage::Refused("2sls"),
         absorbed,
     )
-}
-
-/// The structural 2SLS residuals u = y − X b alone, for tests that need nothing else.
-///
-/// # Formula
-/// As [`tsls_from`] (the same factorisation, solve and compensated residual, so the same
-/// bits), without the covariance that a fit would also compute and the caller would discard.
-pub(crate) fn tsls_residuals(
-    y: &DVector<f64>,
-    setup: &IvSetup,
-    endogenous: usize,
-) -> Result<DVector<f64>, EstimateError> {
-    let xhat = projected_regressors(setup, endogenous)?;
-    let qr = shared_qr(&xhat)?;
-    let coef = qr.solve(&xhat, y);
-    Ok(residual(&setup.x, y, &coef))
 }
