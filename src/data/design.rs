@@ -164,13 +164,31 @@ fn used_groups(spec: &Spec) -> Vec<String> {
 }
 
 fn matrix(table: &Table, names: &[String], rows: &[usize], spec: &Spec) -> Result<DMatrix<f64>> {
+    gathered(table, names, rows, spec, false)
+}
+
+/// The columns `names` at `rows`, after a leading column of ones when `ones`, written once
+/// column by column (a missing value as NaN, as in [`matrix`]).
+fn gathered(
+    table: &Table,
+    names: &[String],
+    rows: &[usize],
+    spec: &Spec,
+    ones: bool,
+) -> Result<DMatrix<f64>> {
     let cols: Vec<&[Option<f64>]> = names
         .iter()
         .map(|n| column(table, n, spec))
         .collect::<Result<_>>()?;
-    Ok(DMatrix::from_fn(rows.len(), names.len(), |i, j| {
-        cols[j][rows[i]].unwrap_or(f64::NAN)
-    }))
+    let (n, k) = (rows.len(), usize::from(ones) + names.len());
+    let mut out = Vec::with_capacity(n * k);
+    if ones {
+        out.resize(n, 1.0);
+    }
+    for col in cols {
+        out.extend(rows.iter().map(|&r| col[r].unwrap_or(f64::NAN)));
+    }
+    Ok(DMatrix::from_vec(n, k, out))
 }
 
 /// Dense 0-based group index per kept row (groups numbered in sorted label order) and the
@@ -244,7 +262,10 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
     let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
     let mut focal = matrix(table, spec.focal(), &rows, spec)?;
     let mut instruments = matrix(table, &spec.instruments, &rows, spec)?;
-    let mut controls = matrix(table, &spec.controls, &rows, spec)?;
+    // With an intercept (never with fixed effects, so never swept) the controls are read
+    // after a column of ones: they are the exogenous block as it stands.
+    let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
+    let mut controls = gathered(table, &spec.controls, &rows, spec, with_intercept)?;
     let clusters = spec
         .errors
         .cluster_columns()
@@ -266,7 +287,7 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
             ],
         )?,
     };
-    let (exog, exog_names) = exogenous(spec, controls, n);
+    let (exog, exog_names) = (controls, exogenous_names(spec, with_intercept));
     Ok(Design {
         n_table: table.rows,
         n_sample,
@@ -373,22 +394,15 @@ fn drop_singleton_rows(groups: &[&Labels], rows: &mut Vec<usize>, spec: &Spec) -
     Ok(before - rows.len())
 }
 
-/// The included exogenous block and its names: the intercept (when asked for and not
-/// absorbed by fixed effects), then the controls.
-fn exogenous(spec: &Spec, controls: DMatrix<f64>, n: usize) -> (DMatrix<f64>, Vec<String>) {
-    let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
-    let mut exog_names = Vec::new();
-    let exog = if with_intercept {
-        exog_names.push("intercept".to_string());
-        let mut m = Vec::with_capacity(n * (1 + controls.ncols()));
-        m.resize(n, 1.0);
-        m.extend_from_slice(controls.as_slice());
-        DMatrix::from_vec(n, 1 + controls.ncols(), m)
-    } else {
-        controls
-    };
-    exog_names.extend(spec.controls.iter().cloned());
-    (exog, exog_names)
+/// The exogenous block's names: the intercept (when the design has one; never with fixed
+/// effects, which absorb it), then the controls.
+fn exogenous_names(spec: &Spec, with_intercept: bool) -> Vec<String> {
+    let mut names = Vec::with_capacity(1 + spec.controls.len());
+    if with_intercept {
+        names.push("intercept".to_string());
+    }
+    names.extend(spec.controls.iter().cloned());
+    names
 }
 
 fn sweep_error(spec: &Spec, e: &crate::estimate::EstimateError) -> Error {
