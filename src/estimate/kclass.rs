@@ -174,7 +174,7 @@ impl IvProblem<'_> {
         }
         // X̂ = P_Z X and V̂ = M_Z X (exog columns: themselves and exactly zero).
         let xhat = super::linear::projected_regressors(setup, p)?;
-        let vhat = &setup.x - &xhat;
+        let vhat = &*setup.x - &xhat;
         let xk = if kappa == 1.0 {
             xhat.clone()
         } else {

@@ -11,7 +11,7 @@ use nalgebra::{DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::qr::{InputKey, PivotedQr};
 use super::refine::residual;
-use super::shared::{collinear, design_qr, shared_design_qr, shared_qr};
+use super::shared::{self, collinear_kept, design_qr, shared_design_qr, shared_qr};
 use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::Reference;
 
@@ -196,8 +196,8 @@ pub(crate) fn instrument_design(
 /// Validated 2SLS inputs and the shared factorisation of the instruments.
 #[derive(Debug, Clone)]
 pub(crate) struct IvSetup {
-    /// Regressors `[endog | exog]`.
-    pub(crate) x: DMatrix<f64>,
+    /// Regressors `[endog | exog]` (the memo's matrix when sharing is on).
+    pub(crate) x: Arc<DMatrix<f64>>,
     /// All instruments `[instruments | exog]`.
     pub(crate) z: Arc<DMatrix<f64>>,
     /// QR of `z`.
@@ -224,10 +224,10 @@ pub(crate) fn iv_setup(
             endogenous: endo,
         });
     }
-    let x = hcat(endog, exog);
+    let (n, k) = (y.len(), endog.ncols() + exog.ncols());
+    require_observations(n, (instruments.ncols() + exog.ncols()).max(k))?;
+    let (x, dependent) = collinear_kept(hcat(endog, exog));
     let z = hcat(instruments, exog);
-    require_observations(y.len(), z.ncols().max(x.ncols()))?;
-    let dependent = collinear(&x);
     if !dependent.is_empty() {
         return Err(EstimateError::RankDeficient { dependent });
     }
@@ -325,7 +325,7 @@ impl<'a> IvProblem<'a> {
     pub(crate) fn outcome_free_key(&self, tag: &str) -> InputKey {
         let digest = self.outcome_free.get_or_init(|| {
             InputKey::new("regressors")
-                .numbers(self.setup.x.as_slice())
+                .bytes(&shared::digest(&self.setup.x))
                 .count(self.setup.x.nrows())
                 .count(self.endog.ncols())
                 .count(self.instruments.ncols())
@@ -426,7 +426,7 @@ pub(crate) fn projected_regressors(
 pub(crate) fn projection(setup: &IvSetup, endogenous: usize) -> (DMatrix<f64>, Vec<usize>) {
     let (n, l) = setup.z.shape();
     let tol = n.max(l) as f64 * f64::EPSILON;
-    let mut xhat = setup.x.clone();
+    let mut xhat = (*setup.x).clone();
     let mut orthogonal = Vec::new();
     for j in 0..endogenous {
         let col = setup.x.column(j).into_owned();

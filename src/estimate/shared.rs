@@ -49,6 +49,8 @@ struct Entry {
     x: Arc<DMatrix<f64>>,
     qr: OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
     dependent: OnceLock<Vec<usize>>,
+    /// The SHA-256 of the matrix's shape and bits, computed on first use ([`digest`]).
+    digest: OnceLock<[u8; 32]>,
 }
 
 #[derive(Default)]
@@ -165,6 +167,7 @@ fn entry_for(x: &DMatrix<f64>, owned: Option<&Arc<DMatrix<f64>>>) -> Option<Arc<
             x: owned.map_or_else(|| Arc::new(x.clone()), Arc::clone),
             qr: OnceLock::new(),
             dependent: OnceLock::new(),
+            digest: OnceLock::new(),
         }),
     };
     if m.entries.len() >= CAPACITY {
@@ -223,6 +226,44 @@ pub(crate) fn shared_design_qr(
     }
 }
 
+/// [`collinear_columns`] of `x`, shared when sharing is on, and `x` itself: the memo's
+/// matrix when it holds one with the same bits (`x` is then dropped), else `x`, which a new
+/// entry keeps without a copy.
+pub(crate) fn collinear_kept(x: DMatrix<f64>) -> (Arc<DMatrix<f64>>, Vec<usize>) {
+    let x = Arc::new(x);
+    match entry_for(&x, Some(&x)) {
+        Some(e) => {
+            let dependent = e.dependent.get_or_init(|| collinear_columns(&e.x)).clone();
+            (Arc::clone(&e.x), dependent)
+        }
+        None => {
+            let dependent = collinear_columns(&x);
+            (x, dependent)
+        }
+    }
+}
+
+/// The SHA-256 of `x`'s shape and bits: kept with the memo's entry when `x` is the matrix
+/// the memo holds (computed once however many fits ask), else computed.
+pub(crate) fn digest(x: &Arc<DMatrix<f64>>) -> [u8; 32] {
+    let compute = || {
+        super::qr::InputKey::new("matrix")
+            .count(x.nrows())
+            .count(x.ncols())
+            .numbers(x.as_slice())
+            .finish()
+    };
+    let held = memo()
+        .entries
+        .iter()
+        .find(|e| Arc::ptr_eq(&e.x, x))
+        .cloned();
+    match held {
+        Some(e) => *e.digest.get_or_init(compute),
+        None => compute(),
+    }
+}
+
 /// [`collinear_columns`] of `x`, shared when sharing is on.
 pub fn collinear(x: &DMatrix<f64>) -> Vec<usize> {
     match entry(x) {
@@ -262,6 +303,27 @@ mod tests {
     fn cell(i: usize, j: usize) -> f64 {
         let t = (i * 37 + j * 11) as f64;
         (t * 0.618).sin() + 0.1 * j as f64 + (i % 5) as f64 * 0.01
+    }
+
+    /// A matrix handed over is kept without a copy and handed back for the same bits; its
+    /// digest is the one computed afresh, and another matrix's differs.
+    #[test]
+    fn kept_matrices_and_their_digests() {
+        let _serial = SERIAL.lock().unwrap_or_else(PoisonError::into_inner);
+        let _sharing = Sharing::begin();
+        let x = DMatrix::from_fn(3000, 6, cell);
+        let (first, dependent) = collinear_kept(x.clone());
+        let (second, again) = collinear_kept(x.clone());
+        assert!(Arc::ptr_eq(&first, &second));
+        assert_eq!(
+            (dependent.clone(), again),
+            (collinear_columns(&x), dependent)
+        );
+        let fresh = Arc::new(x.clone());
+        assert_eq!(digest(&first), digest(&fresh));
+        let mut other = x;
+        other[(1234, 3)] += 1e-12;
+        assert_ne!(digest(&first), digest(&Arc::new(other)));
     }
 
     /// Every fit gives the same bits with sharing as without, whichever fit comes first and

@@ -142,10 +142,10 @@ pub(crate) fn wre_statistics(
         }
         ys.axpy(null, &xs, 1.0);
         let draw_setup = IvSetup {
-            x: hcat(
+            x: std::sync::Arc::new(hcat(
                 &DMatrix::from_column_slice(xs.len(), 1, xs.as_slice()),
                 exog,
-            ),
+            )),
             z: setup.z.clone(),
             zqr: setup.zqr.clone(),
         };
