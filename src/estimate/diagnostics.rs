@@ -255,7 +255,7 @@ pub fn reduced_form(
     validate(y, &[("exog", exog), ("instruments", instruments)])?;
     let z = hcat(instruments, exog);
     require_observations(z.nrows(), z.ncols() + absorbed.df)?;
-    let (z, zqr) = instrument_design(&z)?;
+    let (z, zqr) = instrument_design(z)?;
     let ls = solve_with(&zqr, &z, y);
     assemble(y, &z, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
 }

@@ -186,11 +186,12 @@ pub(crate) fn instrument_qr(z: &DMatrix<f64>) -> Result<Arc<PivotedQr>, Estimate
     shared_qr(z).map_err(instruments_error)
 }
 
-/// [`instrument_qr`], with the instrument set itself for fits that keep their design.
+/// [`instrument_qr`], with the instrument set itself for fits that keep their design (`z`
+/// handed to the memo without a copy).
 pub(crate) fn instrument_design(
-    z: &DMatrix<f64>,
+    z: DMatrix<f64>,
 ) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
-    design_qr(z).map_err(instruments_error)
+    shared_design_qr(&Arc::new(z)).map_err(instruments_error)
 }
 
 /// Validated 2SLS inputs and the shared factorisation of the instruments.
@@ -231,7 +232,7 @@ pub(crate) fn iv_setup(
     if !dependent.is_empty() {
         return Err(EstimateError::RankDeficient { dependent });
     }
-    let (z, zqr) = instrument_design(&z)?;
+    let (z, zqr) = instrument_design(z)?;
     Ok(IvSetup { x, z, zqr })
 }
 

@@ -87,7 +87,7 @@ pub use resample::{
     OlsColumns, RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Tested,
     WeightedRedraw, Weights, DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
 };
-pub use shared::{collinear, Sharing};
+pub use shared::{collinear_of, Sharing};
 pub use summaries::{
     balance, differential_attrition, inverse_covariance, lee_bounds, mean_z, BalanceRow,
     BalanceTable, LeeBounds, SummaryError, TrimmedArm,

@@ -5,19 +5,23 @@
 //! X̂, the controls, X with the first-stage residuals), and specifications that differ only in
 //! their outcome or their standard errors factorise the same matrices again. While a
 //! [`Sharing`] guard is alive, the factorisations asked for through [`design_qr`],
-//! [`shared_qr`] and [`collinear`] are kept in a small memo and handed out again to any fit
-//! that asks for a matrix equal to one already factorised, with its thin Q and refined
-//! inverse computed at most once (module `qr`). A shared factorisation of the instruments
+//! [`shared_design_qr`], [`shared_qr`], [`collinear_kept`] and [`collinear_of`] are kept in a
+//! small memo and handed out again to any fit that asks for a matrix equal to one already
+//! factorised, with its thin Q and refined inverse computed at most once (module `qr`). A
+//! caller that owns or shares its matrix hands it to the memo, which keeps it without a
+//! copy; the memo recognises a matrix it holds by address, and keeps its SHA-256
+//! ([`digest`]) for the keys below. A shared factorisation of the instruments
 //! also keeps the outcome-free results computed with it (the first stages, Shea's partial
 //! R², the weak-instrument diagnostics, the Durbin test's factorisation of Z with the
-//! endogenous columns; `PivotedQr::derived`), under the SHA-256 of everything else
+//! endogenous columns, the projected regressors X̂, the control-function design
+//! [X | v̂]; `PivotedQr::derived`), under the SHA-256 of everything else
 //! they read (the regressors' bits, the errors with their cluster ids, the absorbed
 //! degrees of freedom), so specifications that differ only in their outcome compute them
 //! once.
 //!
 //! Invariants:
-//! * A hit needs the same shape and the same bits in every entry (compared in full, after a
-//!   cheap fingerprint that only chooses the candidates), so a shared factorisation is the one
+//! * A hit needs the same shape and the same bits in every entry (the very matrix the memo
+//!   holds, or compared in full after a cheap fingerprint that only chooses the candidates), so a shared factorisation is the one
 //!   a fresh call would have computed: results are the same bits with or without sharing,
 //!   and do not depend on which specification asked first. A test checks this.
 //! * The memo is process-wide (the fits run on rayon's threads), holds at most
@@ -264,12 +268,10 @@ pub(crate) fn digest(x: &Arc<DMatrix<f64>>) -> [u8; 32] {
     }
 }
 
-/// [`collinear_columns`] of `x`, shared when sharing is on.
-pub fn collinear(x: &DMatrix<f64>) -> Vec<usize> {
-    match entry(x) {
-        Some(e) => e.dependent.get_or_init(|| collinear_columns(x)).clone(),
-        None => collinear_columns(x),
-    }
+/// [`collinear_columns`] of `x`, shared when sharing is on (`x` handed to the memo without a
+/// copy).
+pub fn collinear_of(x: DMatrix<f64>) -> Vec<usize> {
+    collinear_kept(x).1
 }
 
 #[cfg(not(test))]

@@ -109,7 +109,7 @@ fn resolve(
 ) -> Result<(Vec<usize>, Vec<usize>)> {
     let x = hstack(&[exog.m, extra.m]);
     let names: Vec<&String> = exog.names.iter().chain(extra.names).collect();
-    let dependent = estimate::collinear(&x);
+    let dependent = estimate::collinear_of(x);
     if dependent.is_empty() {
         return Ok((
             (0..exog.m.ncols()).collect(),
