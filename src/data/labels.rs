@@ -34,11 +34,23 @@ impl Labels {
     /// text, so identifier columns stored one entry per row number equal labels alike.
     pub fn dense_ids(&self, rows: &[usize], order: IdOrder) -> Option<(Vec<usize>, usize)> {
         let mut first: BTreeMap<&str, usize> = BTreeMap::new();
+        // The id of each dictionary entry once seen: the text is looked up once per entry,
+        // not once per row (entries with equal text still share an id).
+        let mut by_code: Vec<Option<usize>> = vec![None; self.dict.len()];
         let mut ids = Vec::with_capacity(rows.len());
         for &r in rows {
-            let label = self[r].as_deref()?;
-            let next = first.len();
-            ids.push(*first.entry(label).or_insert(next));
+            let code = self.codes[r] as usize;
+            let id = match by_code[code] {
+                Some(id) => id,
+                None => {
+                    let label = self.dict[code].as_deref()?;
+                    let next = first.len();
+                    let id = *first.entry(label).or_insert(next);
+                    by_code[code] = Some(id);
+                    id
+                }
+            };
+            ids.push(id);
         }
         if order == IdOrder::Sorted {
             // `first` iterates in sorted label order: its k-th entry gets id k.
