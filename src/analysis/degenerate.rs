@@ -35,7 +35,14 @@ pub const SMALLEST: f64 = 1e-150;
 pub const EXACT_FIT: f64 = 1e-24;
 
 fn largest(values: impl Iterator<Item = f64>) -> f64 {
-    values.fold(0.0, |m, v| m.max(v.abs()))
+    // Eight running maxima combined at the end: the maximum does not round, so the order
+    // changes nothing (a NaN is passed over by `max` in any order), and the eight chains
+    // run side by side.
+    let mut lanes = [0.0f64; 8];
+    for (i, v) in values.enumerate() {
+        lanes[i % 8] = lanes[i % 8].max(v.abs());
+    }
+    lanes.iter().fold(0.0, |m, &v| m.max(v))
 }
 
 /// The design's columns by name: outcome, then focal, exogenous and instrument columns.
