@@ -165,3 +165,25 @@ pub fn in_support(mut t: TestResult) -> TestResult {
     }
     t
 }
+
+#[cfg(test)]
+mod tests {
+    use super::largest;
+
+    /// The largest absolute value, a NaN passed over and an infinity kept, whatever the
+    /// position (on both sides of the eight chains).
+    #[test]
+    fn largest_absolute_value_in_any_position() {
+        for at in 0..20 {
+            let mut v: Vec<f64> = (0..20).map(|i| (i as f64 - 9.5) * 0.1).collect();
+            v[at] = -7.0;
+            assert_eq!(largest(v.iter().copied()), 7.0);
+            v[(at + 3) % 20] = f64::NAN;
+            assert_eq!(largest(v.iter().copied()), 7.0);
+            v[(at + 5) % 20] = f64::NEG_INFINITY;
+            assert_eq!(largest(v.iter().copied()), f64::INFINITY);
+        }
+        assert_eq!(largest(std::iter::empty()), 0.0);
+        assert_eq!(largest([f64::NAN].into_iter()), 0.0);
+    }
+}
