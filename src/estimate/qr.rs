@@ -24,6 +24,8 @@ use super::EstimateError;
 
 mod reflect;
 
+pub(crate) use reflect::combine_lanes;
+
 /// Relative rank tolerance factor: a diagonal |R_jj| at or below `max(n, k) * eps * |R_00|`
 /// (after unit-norm column scaling) counts as zero.
 fn rank_tolerance(n: usize, k: usize) -> f64 {

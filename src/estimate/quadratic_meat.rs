@@ -16,7 +16,7 @@
 use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{cluster_sums, cr1_factor, hc_weights, CovSpec, Leverage};
-use super::qr::PivotedQr;
+use super::qr::{combine_lanes, PivotedQr};
 use super::{Absorbed, EstimateError};
 
 /// The three meat blocks, the sandwich factor T and the small-sample factor.
@@ -112,16 +112,15 @@ pub(crate) fn quadratic_meat(
 /// Each is the same bits as `q1.tr_mul(&s_r)` with s_r = `q1`, row i multiplied by w_r(i):
 /// entry (a, b) is nalgebra's dot product of column a with column b of s_r, whose terms
 /// q_ia · (q_ib · w_r(i)) are summed in eight running sums over the first n − n mod 8 rows
-/// (row i into sum i mod 8), combined as ((((0 + (s₀ + s₄)) + (s₁ + s₅)) + (s₂ + s₆)) + (s₃ + s₇)),
-/// then the last rows added one by one (module `qr::reflect` states the same order; a test
-/// compares with nalgebra). That product took an n × k copy and k² passes over n-vectors
+/// (row i into sum i mod 8), combined as nalgebra combines them (`qr::combine_lanes`), then
+/// the last rows added one by one; a test compares with nalgebra. That product took an n × k copy and k² passes over n-vectors
 /// per matrix.
 fn weighted_grams(q1: &DMatrix<f64>, weights: impl Fn(usize) -> [f64; 3]) -> [DMatrix<f64>; 3] {
     let (n, k) = q1.shape();
     let main = n - n % 8;
     let q = q1.as_slice();
-    // lanes[((r · k + a) · k + b) · 8 + t]
-    let mut lanes = vec![0.0; 3 * k * k * 8];
+    // lanes[(r · k + a) · k + b][t]
+    let mut lanes = vec![[0.0; 8]; 3 * k * k];
     let mut scaled = [[0.0; 8]; 3];
     for start in (0..main).step_by(8) {
         let w: [[f64; 3]; 8] = std::array::from_fn(|t| weights(start + t));
@@ -135,8 +134,7 @@ fn weighted_grams(q1: &DMatrix<f64>, weights: impl Fn(usize) -> [f64; 3]) -> [DM
             for a in 0..k {
                 let qa = &q[a * n + start..a * n + start + 8];
                 for (r, s) in scaled.iter().enumerate() {
-                    let at = ((r * k + a) * k + b) * 8;
-                    let acc = &mut lanes[at..at + 8];
+                    let acc = &mut lanes[(r * k + a) * k + b];
                     for t in 0..8 {
                         acc[t] += qa[t] * s[t];
                     }
@@ -147,13 +145,7 @@ fn weighted_grams(q1: &DMatrix<f64>, weights: impl Fn(usize) -> [f64; 3]) -> [DM
     let tail: Vec<[f64; 3]> = (main..n).map(&weights).collect();
     std::array::from_fn(|r| {
         DMatrix::from_fn(k, k, |a, b| {
-            let at = ((r * k + a) * k + b) * 8;
-            let s = &lanes[at..at + 8];
-            let mut res = 0.0;
-            res += s[0] + s[4];
-            res += s[1] + s[5];
-            res += s[2] + s[6];
-            res += s[3] + s[7];
+            let mut res = combine_lanes(&lanes[(r * k + a) * k + b]);
             for (i, w) in (main..n).zip(&tail) {
                 res += q[a * n + i] * (q[b * n + i] * w[r]);
             }

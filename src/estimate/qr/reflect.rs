@@ -45,17 +45,24 @@ impl LaneDot {
     }
 
     fn sum(&self) -> f64 {
-        let s = &self.lanes;
-        let mut res = 0.0;
-        res += s[0] + s[4];
-        res += s[1] + s[5];
-        res += s[2] + s[6];
-        res += s[3] + s[7];
+        let mut res = combine_lanes(&self.lanes);
         for &term in &self.rest[..self.rest_len] {
             res += term;
         }
         res
     }
+}
+
+/// The eight running sums of a dot product combined as nalgebra's `dot` combines them:
+/// ((((0 + (s₀ + s₄)) + (s₁ + s₅)) + (s₂ + s₆)) + (s₃ + s₇)). The terms past the last
+/// multiple of eight are then added one by one by the caller.
+pub(crate) fn combine_lanes(s: &[f64; 8]) -> f64 {
+    let mut res = 0.0;
+    res += s[0] + s[4];
+    res += s[1] + s[5];
+    res += s[2] + s[6];
+    res += s[3] + s[7];
+    res
 }
 
 /// A reflector: its unit vector, held in rows `start..` of a column (`v[0]` is row `start`).
