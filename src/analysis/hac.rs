@@ -59,7 +59,7 @@ pub(super) fn resolve(
         return Ok(None);
     };
     check_order(spec, table, order_by, &d.rows)?;
-    let positions = d.rows.clone();
+    let positions = d.rows.to_vec();
     let (b, rule) = match bandwidth {
         HacBandwidth::Stated(b) => (f64::from(*b), crate::results::BandwidthRule::Stated),
         HacBandwidth::NeweyWest1994 => (

@@ -17,6 +17,7 @@ use crate::error::{Error, Result};
 use crate::estimate::{Absorbed, CovSpec, FixedEffects};
 use crate::plan::{DataSource, Errors, Spec};
 use nalgebra::{DMatrix, DVector};
+use std::sync::Arc;
 
 /// The matrices of one specification after sample restriction and listwise deletion.
 /// The specification layer moves `focal`, `exog` and `instruments` out (leaving them empty,
@@ -29,22 +30,22 @@ pub struct Design {
     pub n_sample: usize,
     /// Rows used (sample rows with no missing value in any variable used).
     pub n: usize,
-    /// Table row index of each used row.
-    pub rows: Vec<usize>,
+    /// Table row index of each used row (shared by the designs with the same rows).
+    pub rows: Arc<Vec<usize>>,
     /// Outcome (swept of fixed effects when there are any).
     pub y: DVector<f64>,
     /// Outcome as in the data (for fitted values in levels: y_raw − residual).
     pub y_raw: DVector<f64>,
     /// Endogenous regressors (2SLS) or regressors of interest (OLS).
-    pub focal: DMatrix<f64>,
+    pub focal: Arc<DMatrix<f64>>,
     /// Names of the focal columns.
     pub focal_names: Vec<String>,
     /// Included exogenous columns: intercept (unless absorbed), controls.
-    pub exog: DMatrix<f64>,
+    pub exog: Arc<DMatrix<f64>>,
     /// Names of the exogenous columns.
     pub exog_names: Vec<String>,
     /// Excluded instruments (2SLS).
-    pub instruments: DMatrix<f64>,
+    pub instruments: Arc<DMatrix<f64>>,
     /// Names of the instruments.
     pub instrument_names: Vec<String>,
     /// Dense cluster index of each used row and the number of clusters, per clustering
@@ -163,12 +164,8 @@ fn used_groups(spec: &Spec) -> Vec<String> {
     v
 }
 
-fn matrix(table: &Table, names: &[String], rows: &[usize], spec: &Spec) -> Result<DMatrix<f64>> {
-    gathered(table, names, rows, spec, false)
-}
-
 /// The columns `names` at `rows`, after a leading column of ones when `ones`, written once
-/// column by column (a missing value as NaN, as in [`matrix`]).
+/// column by column (a missing value as NaN).
 fn gathered(
     table: &Table,
     names: &[String],
@@ -247,6 +244,27 @@ fn design_rows<'t>(table: &'t Table, source: &DataSource, spec: &Spec) -> Result
     })
 }
 
+/// The columns `names` at `rows` (after a column of ones when `ones`): the block the table
+/// keeps for them when `share` (module `shared_columns`), else read afresh.
+fn block(
+    table: &Table,
+    (names, ones): (&[String], bool),
+    rows: &Arc<Vec<usize>>,
+    spec: &Spec,
+    share: bool,
+) -> Result<Arc<DMatrix<f64>>> {
+    if !share {
+        return gathered(table, names, rows, spec, ones).map(Arc::new);
+    }
+    let sources = names
+        .iter()
+        .map(|n| column(table, n, spec).map(|c| c.as_ptr() as usize))
+        .collect::<Result<Vec<_>>>()?;
+    table.shared.read(rows, (names, ones, sources), || {
+        gathered(table, names, rows, spec, ones)
+    })
+}
+
 /// Build the design of `spec` from `table` (read from `source`).
 pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design> {
     let DesignRows {
@@ -258,14 +276,20 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
         weights,
     } = design_rows(table, source, spec)?;
     let n = rows.len();
+    // Blocks neither swept nor scaled are the same for every design with these rows.
+    let share = groups.is_empty() && weights.is_none();
+    let rows = match share {
+        true => table.shared.rows(rows),
+        false => Arc::new(rows),
+    };
     let outcome = column(table, &spec.outcome, spec)?;
     let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
-    let mut focal = matrix(table, spec.focal(), &rows, spec)?;
-    let mut instruments = matrix(table, &spec.instruments, &rows, spec)?;
+    let mut focal = block(table, (spec.focal(), false), &rows, spec, share)?;
+    let mut instruments = block(table, (&spec.instruments, false), &rows, spec, share)?;
     // With an intercept (never with fixed effects, so never swept) the controls are read
     // after a column of ones: they are the exogenous block as it stands.
     let with_intercept = spec.intercept && spec.fixed_effects.is_empty();
-    let mut controls = gathered(table, &spec.controls, &rows, spec, with_intercept)?;
+    let mut controls = block(table, (&spec.controls, with_intercept), &rows, spec, share)?;
     let clusters = spec
         .errors
         .cluster_columns()
@@ -281,9 +305,9 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
             &clusters,
             &mut y,
             [
-                (&mut focal, spec.focal()),
-                (&mut instruments, &spec.instruments),
-                (&mut controls, &spec.controls),
+                (Arc::make_mut(&mut focal), spec.focal()),
+                (Arc::make_mut(&mut instruments), &spec.instruments),
+                (Arc::make_mut(&mut controls), &spec.controls),
             ],
         )?,
     };

@@ -12,11 +12,13 @@ mod labels;
 mod parquet;
 mod plain_csv;
 mod read;
+mod shared_columns;
 mod weights;
 
 pub use design::{cov_spec, design, CovSpecGap, Design};
 pub use labels::{IdOrder, Labels, TooManyLabels};
 pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};
+pub use shared_columns::SharedColumns;
 pub use weights::check_weights as check_summary_weights;
 
 use std::collections::BTreeMap;
@@ -37,6 +39,9 @@ pub struct Table {
     pub numeric: BTreeMap<String, Vec<Option<f64>>>,
     /// Group labels of grouping columns.
     pub labels: BTreeMap<String, Labels>,
+    /// Column blocks read for designs, shared by the specifications that use them (empty in
+    /// a clone).
+    pub shared: SharedColumns,
 }
 
 /// Why [`Table::label_ids`] found no ids.

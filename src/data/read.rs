@@ -42,6 +42,7 @@ pub fn load_table(plan: &Plan, src: &DataSource) -> Result<(Table, Vec<Deviation
         rows,
         numeric: Default::default(),
         labels: Default::default(),
+        shared: Default::default(),
     };
     for (name, col) in &src.columns {
         let Some(raw) = cells.take(src, name, col.kind.is_numeric())? else {
@@ -204,6 +205,7 @@ pub fn table_from_columns(
         rows,
         numeric: Default::default(),
         labels: Default::default(),
+        shared: Default::default(),
     };
     for (name, values) in columns {
         let Some(col) = src.columns.get(&name) else {

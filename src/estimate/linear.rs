@@ -11,7 +11,7 @@ use nalgebra::{DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Leverage};
 use super::qr::{InputKey, PivotedQr};
 use super::refine::residual;
-use super::shared::{self, collinear_kept, design_qr, shared_design_qr, shared_qr};
+use super::shared::{self, collinear_kept_shared, design_qr, shared_design_qr, shared_qr};
 use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::Reference;
 
@@ -168,6 +168,24 @@ pub fn ols(
     assemble(y, x, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
 }
 
+/// [`ols`] on a design the caller shares (kept by the memo without a copy and recognised
+/// by its address): the same bits.
+///
+/// # Errors
+/// As [`ols`].
+pub fn ols_shared(
+    y: &DVector<f64>,
+    x: &Arc<DMatrix<f64>>,
+    has_intercept: bool,
+    cov: &CovSpec,
+    absorbed: &Absorbed,
+) -> Result<LinearFit, EstimateError> {
+    validate(y, &[("x", x)])?;
+    require_observations(x.nrows(), x.ncols() + absorbed.df)?;
+    let ls = least_squares_shared(y, x)?;
+    assemble(y, x, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
+}
+
 /// Horizontal concatenation `[a | b]` (same number of rows).
 pub(crate) fn hcat(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
     assert_eq!(a.nrows(), b.nrows(), "hcat: blocks of different heights");
@@ -211,12 +229,28 @@ pub(crate) struct IvSetup {
     pub(crate) zqr: Arc<PivotedQr>,
 }
 
+/// `[endog | exog]` and `[instruments | exog]`, joined and shared by the caller.
+type Joined = (Arc<DMatrix<f64>>, Arc<DMatrix<f64>>);
+
 /// Checks the 2SLS inputs: finiteness, rows, order condition, sample size, ranks.
 pub(crate) fn iv_setup(
     y: &DVector<f64>,
     exog: &DMatrix<f64>,
     endog: &DMatrix<f64>,
     instruments: &DMatrix<f64>,
+) -> Result<IvSetup, EstimateError> {
+    iv_setup_joined(y, (exog, endog, instruments), None)
+}
+
+/// [`iv_setup`], with `[endog | exog]` and `[instruments | exog]` already joined by the
+/// caller (`joined`, shared: handed to the memo without a copy), or joined here when `None`.
+///
+/// # Panics
+/// When a joined matrix is not as wide and tall as its parts (a caller's error).
+pub(crate) fn iv_setup_joined(
+    y: &DVector<f64>,
+    (exog, endog, instruments): (&DMatrix<f64>, &DMatrix<f64>, &DMatrix<f64>),
+    joined: Option<Joined>,
 ) -> Result<IvSetup, EstimateError> {
     let inputs = [
         ("exog", exog),
@@ -233,12 +267,31 @@ pub(crate) fn iv_setup(
     }
     let (n, k) = (y.len(), endog.ncols() + exog.ncols());
     require_observations(n, (instruments.ncols() + exog.ncols()).max(k))?;
-    let (x, dependent) = collinear_kept(hcat(endog, exog));
-    let z = hcat(instruments, exog);
+    let (x, z) = match joined {
+        Some((x, z)) => {
+            let n = y.len();
+            assert_eq!(
+                x.shape(),
+                (n, endog.ncols() + exog.ncols()),
+                "joined [endog | exog]"
+            );
+            assert_eq!(
+                z.shape(),
+                (n, instruments.ncols() + exog.ncols()),
+                "joined [instruments | exog]"
+            );
+            (x, z)
+        }
+        None => (
+            Arc::new(hcat(endog, exog)),
+            Arc::new(hcat(instruments, exog)),
+        ),
+    };
+    let (x, dependent) = collinear_kept_shared(x);
     if !dependent.is_empty() {
         return Err(EstimateError::RankDeficient { dependent });
     }
-    let (z, zqr) = instrument_design(z)?;
+    let (z, zqr) = shared_design_qr(&z).map_err(instruments_error)?;
     Ok(IvSetup { x, z, zqr })
 }
 
@@ -312,7 +365,29 @@ impl<'a> IvProblem<'a> {
         endog: &'a DMatrix<f64>,
         instruments: &'a DMatrix<f64>,
     ) -> Result<Self, EstimateError> {
-        let setup = iv_setup(y, exog, endog, instruments)?;
+        Self::with_setup(y, (exog, endog, instruments), None)
+    }
+
+    /// [`IvProblem::new`] with `[endog | exog]` and `[instruments | exog]` already joined by
+    /// the caller and shared (the same bits as joining them here).
+    ///
+    /// # Errors
+    /// As [`IvProblem::new`].
+    pub(crate) fn joined(
+        y: &'a DVector<f64>,
+        (exog, endog, instruments): (&'a DMatrix<f64>, &'a DMatrix<f64>, &'a DMatrix<f64>),
+        x: Arc<DMatrix<f64>>,
+        z: Arc<DMatrix<f64>>,
+    ) -> Result<Self, EstimateError> {
+        Self::with_setup(y, (exog, endog, instruments), Some((x, z)))
+    }
+
+    fn with_setup(
+        y: &'a DVector<f64>,
+        (exog, endog, instruments): (&'a DMatrix<f64>, &'a DMatrix<f64>, &'a DMatrix<f64>),
+        joined: Option<Joined>,
+    ) -> Result<Self, EstimateError> {
+        let setup = iv_setup_joined(y, (exog, endog, instruments), joined)?;
         Ok(IvProblem {
             y,
             exog,

@@ -79,7 +79,7 @@ pub use diagnostics::{
 };
 pub use hac::{bartlett_lags, newey_west_1994_bandwidth, NEWEY_WEST_1994_BARTLETT_C};
 pub use kclass::{kclass, KClass, KClassFit, DEFAULT_FULLER_ALPHA};
-pub use linear::{ols, tsls, IvColumns, IvProblem};
+pub use linear::{ols, ols_shared, tsls, IvColumns, IvProblem};
 pub use qr::collinear_columns;
 pub use resample::{
     count_assignments, randomization_ar, randomization_interval, randomization_test,
@@ -87,7 +87,7 @@ pub use resample::{
     OlsColumns, RandomizationInterval, ResampleError, ResampleResult, RiStatistic, Tested,
     WeightedRedraw, Weights, DEFAULT_EXACT_BELOW, DRAWS_DONE, TIE_TOLERANCE,
 };
-pub use shared::{collinear_of, Sharing};
+pub use shared::{collinear_of, collinear_of_shared, Sharing};
 pub use summaries::{
     balance, differential_attrition, inverse_covariance, lee_bounds, mean_z, BalanceRow,
     BalanceTable, LeeBounds, SummaryError, TrimmedArm,

@@ -234,7 +234,12 @@ pub(crate) fn shared_design_qr(
 /// matrix when it holds one with the same bits (`x` is then dropped), else `x`, which a new
 /// entry keeps without a copy.
 pub(crate) fn collinear_kept(x: DMatrix<f64>) -> (Arc<DMatrix<f64>>, Vec<usize>) {
-    let x = Arc::new(x);
+    collinear_kept_shared(Arc::new(x))
+}
+
+/// [`collinear_kept`] for a matrix the caller shares: a new entry keeps `x` itself, and a
+/// later call with the same `x` is recognised by its address.
+pub(crate) fn collinear_kept_shared(x: Arc<DMatrix<f64>>) -> (Arc<DMatrix<f64>>, Vec<usize>) {
     match entry_for(&x, Some(&x)) {
         Some(e) => {
             let dependent = e.dependent.get_or_init(|| collinear_columns(&e.x)).clone();
@@ -272,6 +277,12 @@ pub(crate) fn digest(x: &Arc<DMatrix<f64>>) -> [u8; 32] {
 /// copy).
 pub fn collinear_of(x: DMatrix<f64>) -> Vec<usize> {
     collinear_kept(x).1
+}
+
+/// [`collinear_of`] for a matrix the caller shares (kept by the memo without a copy, and
+/// recognised by its address when asked again).
+pub fn collinear_of_shared(x: &Arc<DMatrix<f64>>) -> Vec<usize> {
+    collinear_kept_shared(Arc::clone(x)).1
 }
 
 #[cfg(not(test))]

@@ -290,6 +290,7 @@ mod tests {
             rows,
             numeric: BTreeMap::new(),
             labels: BTreeMap::new(),
+            shared: Default::default(),
         };
         t.numeric
             .insert("a".into(), (0..rows).map(|r| Some(treated(r))).collect());

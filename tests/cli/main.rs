@@ -27,6 +27,7 @@ mod rehearse;
 mod reports;
 mod resampling;
 mod results_bytes;
+mod shared_columns;
 mod summaries;
 mod table_rows;
 mod weighted_balance;

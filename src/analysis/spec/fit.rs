@@ -1,7 +1,7 @@
 //! Fitting a specification's estimator (OLS, 2SLS, LIML or Fuller) with the covariance its
 //! errors ask for, and the linear-probability check of a binary outcome.
 
-use super::resolve::{hstack, Parts};
+use super::resolve::Parts;
 use super::{cov_spec, est_err, Prepared};
 use crate::analysis::hac;
 use crate::data::{Design, Table};
@@ -53,8 +53,14 @@ pub(super) fn estimate<'a>(prepared: &'a Prepared) -> Result<Estimated<'a>> {
     let has_c = d.has_constant;
     let ab = &d.absorbed;
     let err = |e| map_estimate_error(spec, e);
+    // [focal | exog] and [instruments | exog] as the table keeps them (the same matrices
+    // for every specification with these columns and rows; module `data::shared_columns`).
+    let shared = &prepared.table.shared;
     let iv = if spec.estimator.is_iv() {
-        Some(estimate::IvProblem::new(&d.y, &p.exog, &p.focal, &p.instruments).map_err(err)?)
+        let x = shared.joined(&[&p.focal, &p.exog]);
+        let z = shared.joined(&[&p.instruments, &p.exog]);
+        let columns = (&*p.exog, &*p.focal, &*p.instruments);
+        Some(estimate::IvProblem::joined(&d.y, columns, x, z).map_err(err)?)
     } else {
         None
     };
@@ -74,8 +80,8 @@ pub(super) fn estimate<'a>(prepared: &'a Prepared) -> Result<Estimated<'a>> {
             k.fit
         }
         _ => {
-            let x = hstack(&[&p.focal, &p.exog]);
-            estimate::ols(&d.y, &x, has_c, cov, ab).map_err(err)?
+            let x = shared.joined(&[&p.focal, &p.exog]);
+            estimate::ols_shared(&d.y, &x, has_c, cov, ab).map_err(err)?
         }
     };
     Ok(Estimated { iv, fit, kappa })

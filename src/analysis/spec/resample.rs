@@ -2,7 +2,6 @@
 //! their intervals by test inversion for OLS, Anderson–Rubin statistics for IV) and the wild
 //! cluster bootstrap (restricted efficient for 2SLS).
 
-use super::resolve::hstack;
 use super::{est_err, procedure, Needs, Prepared, ResampleContext, ResampleNeed};
 use crate::data::{LabelIdsError, Table};
 use crate::error::{Error, Result};
@@ -102,7 +101,7 @@ struct Test<'a> {
     need: &'a ResampleNeed,
     rc: &'a ResampleContext<'a>,
     /// The regressors `[focal | exog]`.
-    x: DMatrix<f64>,
+    x: std::sync::Arc<DMatrix<f64>>,
     /// The tested term's column in `x`.
     index: usize,
     /// How many draws, from which seed.
@@ -124,7 +123,7 @@ fn resample(prepared: &Prepared, need: &ResampleNeed, rc: &ResampleContext) -> R
         exact_below: r.exact_below,
     };
     let p = &prepared.p;
-    let x = hstack(&[&p.focal, &p.exog]);
+    let x = prepared.table.shared.joined(&[&p.focal, &p.exog]);
     let names: Vec<&String> = p.focal_names.iter().chain(&p.exog_names).collect();
     let index = names.iter().position(|n| **n == need.term).ok_or_else(|| {
         est_err(
@@ -172,7 +171,7 @@ impl Test<'_> {
         // Weighted: the columns in the data's units with their weights (the test scales the
         // rows itself, so the re-drawn treatment takes the weights of the units it lands on).
         let raw = super::weighted::unscaled_regressors(self.prepared, &self.x, &self.need.term)?;
-        let (y, x) = raw.as_ref().map_or((&d.y, &self.x), |x| (&d.y_raw, x));
+        let (y, x) = raw.as_ref().map_or((&d.y, &*self.x), |x| (&d.y_raw, x));
         let weights = d.weights.as_ref();
         let cols = crate::estimate::OlsColumns { y, x, weights };
         let test = estimate::randomization_test(

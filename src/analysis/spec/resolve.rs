@@ -10,19 +10,20 @@ use crate::error::Result;
 use crate::estimate;
 use crate::plan::{DataSource, Spec};
 use nalgebra::DMatrix;
+use std::sync::Arc;
 
 /// The columns of a design kept after collinearity was resolved, by role.
 pub(super) struct Parts {
     /// Included exogenous columns (intercept and controls).
-    pub(super) exog: DMatrix<f64>,
+    pub(super) exog: Arc<DMatrix<f64>>,
     /// Names of `exog`.
     pub(super) exog_names: Vec<String>,
     /// Endogenous regressors (IV) or regressors of interest (OLS).
-    pub(super) focal: DMatrix<f64>,
+    pub(super) focal: Arc<DMatrix<f64>>,
     /// Names of `focal`.
     pub(super) focal_names: Vec<String>,
     /// Excluded instruments (IV), empty for OLS.
-    pub(super) instruments: DMatrix<f64>,
+    pub(super) instruments: Arc<DMatrix<f64>>,
     /// Names of `instruments`.
     pub(super) instrument_names: Vec<String>,
     /// Names of the columns dropped as collinear.
@@ -32,7 +33,7 @@ pub(super) struct Parts {
 /// A block of named columns.
 struct Block<'a> {
     /// The columns.
-    m: &'a DMatrix<f64>,
+    m: &'a Arc<DMatrix<f64>>,
     /// Their names.
     names: &'a [String],
 }
@@ -50,7 +51,7 @@ pub(super) fn columns(
     let d = absorbed_columns(spec, d, deviations)?;
     degenerate::check_scales(spec, &d)?;
     let mut d = d;
-    let p = parts(spec, &mut d)?;
+    let p = parts(spec, table, &mut d)?;
     Ok((d, p))
 }
 
@@ -75,41 +76,29 @@ pub(super) fn select(m: &DMatrix<f64>, keep: &[usize]) -> DMatrix<f64> {
     DMatrix::from_fn(m.nrows(), keep.len(), |i, j| m[(i, keep[j])])
 }
 
-/// The blocks' columns side by side (blocks of equal height), copied once.
-pub(super) fn hstack(blocks: &[&DMatrix<f64>]) -> DMatrix<f64> {
-    let n = blocks.iter().map(|b| b.nrows()).max().unwrap_or(0);
-    let k = blocks.iter().map(|b| b.ncols()).sum();
-    let mut out = Vec::with_capacity(n * k);
-    for b in blocks {
-        assert_eq!(b.nrows(), n, "hstack: blocks of different heights");
-        out.extend_from_slice(b.as_slice());
-    }
-    DMatrix::from_vec(n, k, out)
-}
-
 /// Moves a matrix out of the design (its columns go to [`Parts`]), keeping the columns
 /// `keep`: the matrix itself, not a copy, when every column is kept in order.
-fn take_columns(m: &mut DMatrix<f64>, keep: &[usize]) -> DMatrix<f64> {
-    let m = std::mem::replace(m, DMatrix::zeros(0, 0));
+fn take_columns(m: &mut Arc<DMatrix<f64>>, keep: &[usize]) -> Arc<DMatrix<f64>> {
+    let m = std::mem::replace(m, Arc::new(DMatrix::zeros(0, 0)));
     if keep.len() == m.ncols() && keep.iter().enumerate().all(|(i, &j)| i == j) {
         m
     } else {
-        select(&m, keep)
+        Arc::new(select(&m, keep))
     }
 }
 
 /// Resolve collinearity among `[exog | extra]`: returns the columns of `exog` and of `extra`
 /// to keep, recording dropped names, or fails naming the dependent columns.
 fn resolve(
-    spec: &Spec,
+    (spec, table): (&Spec, &Table),
     exog: Block,
     extra: Block,
     what: &str,
     dropped: &mut Vec<String>,
 ) -> Result<(Vec<usize>, Vec<usize>)> {
-    let x = hstack(&[exog.m, extra.m]);
+    let x = table.shared.joined(&[exog.m, extra.m]);
     let names: Vec<&String> = exog.names.iter().chain(extra.names).collect();
-    let dependent = estimate::collinear_of(x);
+    let dependent = estimate::collinear_of_shared(&x);
     if dependent.is_empty() {
         return Ok((
             (0..exog.m.ncols()).collect(),
@@ -144,10 +133,10 @@ fn pick(names: &[String], keep: &[usize]) -> Vec<String> {
 /// The design's columns with collinearity resolved: first among the regressors, then among
 /// the instruments and the controls kept. The columns move from `d` to the parts (the
 /// design's `focal`, `exog` and `instruments` are left empty; their names stay).
-fn parts(spec: &Spec, d: &mut Design) -> Result<Parts> {
+fn parts(spec: &Spec, table: &Table, d: &mut Design) -> Result<Parts> {
     let mut dropped = Vec::new();
     let (ke, kf) = resolve(
-        spec,
+        (spec, table),
         Block {
             m: &d.exog,
             names: &d.exog_names,
@@ -162,7 +151,7 @@ fn parts(spec: &Spec, d: &mut Design) -> Result<Parts> {
     let exog = take_columns(&mut d.exog, &ke);
     let exog_names = pick(&d.exog_names, &ke);
     let (_, ki) = resolve(
-        spec,
+        (spec, table),
         Block {
             m: &exog,
             names: &exog_names,
@@ -229,7 +218,7 @@ fn absorbed_columns(spec: &Spec, mut d: Design, devs: &mut Vec<Deviation>) -> Re
             format!("term dropped: `{c}` is constant within the fixed effects `{fes}`"),
         ));
     }
-    d.exog = select(&d.exog, &keep);
+    d.exog = Arc::new(select(&d.exog, &keep));
     d.exog_names = pick(&d.exog_names, &keep);
     Ok(d)
 }

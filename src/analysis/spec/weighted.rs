@@ -22,8 +22,10 @@ pub(super) fn scale_rows(d: &mut Design, p: &mut Parts) {
         return;
     };
     let root = w.map(f64::sqrt);
-    let scale = |m: &mut DMatrix<f64>| {
-        for mut c in m.column_iter_mut() {
+    // A weighted design reads its own blocks (module `data::shared_columns`), so these are
+    // not copied here.
+    let scale = |m: &mut std::sync::Arc<DMatrix<f64>>| {
+        for mut c in std::sync::Arc::make_mut(m).column_iter_mut() {
             c.component_mul_assign(&root);
         }
     };
