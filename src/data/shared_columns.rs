@@ -157,9 +157,17 @@ impl SharedColumns {
         Ok(m)
     }
 
-    /// The blocks `parts` side by side (equal heights): a kept join of the same blocks, else
-    /// a fresh one, kept when every part is a block kept here.
+    /// The blocks `parts` side by side (equal heights): the one part with columns itself
+    /// when the others have none, else a kept join of the same blocks, else a fresh one, kept
+    /// when every part is a block kept here.
     pub fn joined(&self, parts: &[&Arc<DMatrix<f64>>]) -> Arc<DMatrix<f64>> {
+        let mut wide = parts.iter().filter(|p| p.ncols() > 0);
+        if let (Some(only), None) = (wide.next(), wide.next()) {
+            let n = parts.iter().map(|p| p.nrows()).max().unwrap_or(0);
+            if only.nrows() == n {
+                return Arc::clone(only);
+            }
+        }
         let find = |k: &mut Kept| {
             let i = k.joined.iter().position(|j| {
                 j.parts.len() == parts.len()
@@ -259,6 +267,9 @@ mod tests {
         // Order matters, and a block not kept here is joined afresh each time.
         let qp = b.joined(&[&q, &p]);
         assert!(!Arc::ptr_eq(&pq, &qp));
+        // A join with a block of no columns is the other block itself.
+        let none = Arc::new(DMatrix::<f64>::zeros(50, 0));
+        assert!(Arc::ptr_eq(&b.joined(&[&p, &none]), &p));
         let loose = Arc::new(block(3));
         assert!(!Arc::ptr_eq(
             &b.joined(&[&p, &loose]),

@@ -68,13 +68,18 @@ struct Kept {
     /// Outcome-free results computed from this factorisation and other inputs (first
     /// stages, Shea's R², weak-instrument diagnostics, the Durbin factorisation), each under
     /// the SHA-256 of those inputs (see [`PivotedQr::derived`]), most recent last, at most
-    /// [`KEPT_DERIVED`].
-    derived: Mutex<Vec<([u8; 32], Derived)>>,
+    /// [`KEPT_DERIVED`]. Each key has its own slot, locked while its result is computed,
+    /// so two fits asking at once compute it once (the second waits for the first).
+    derived: Mutex<Vec<([u8; 32], Slot)>>,
 }
 
 /// A result kept by [`PivotedQr::derived`], of whatever type its caller computes.
 #[derive(Clone)]
 struct Derived(Arc<dyn std::any::Any + Send + Sync>);
+
+/// The slot of one derived result: empty until computed (and after an error, which is never
+/// kept).
+type Slot = Arc<Mutex<Option<Derived>>>;
 
 impl std::fmt::Debug for Derived {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
@@ -310,8 +315,11 @@ impl PivotedQr {
         let mut perm: Vec<usize> = (0..k).collect();
         let mut diagonal = Vec::with_capacity(k);
         for j in 0..k {
+            // Each remaining column's norm once (the comparisons computed two per
+            // comparison); the same values, so the same pivot.
+            let norms: Vec<f64> = (j..k).map(|p| tail_norm(&a, p, j)).collect();
             let pivot = (j..k)
-                .max_by(|&p, &q| tail_norm(&a, p, j).total_cmp(&tail_norm(&a, q, j)))
+                .max_by(|&p, &q| norms[p - j].total_cmp(&norms[q - j]))
                 .unwrap_or(j);
             a.swap_columns(j, pivot);
             perm.swap(j, pivot);
@@ -463,24 +471,30 @@ impl PivotedQr {
             return compute();
         };
         let key = key();
-        let lock = || kept.derived.lock().unwrap_or_else(PoisonError::into_inner);
-        let found = lock()
-            .iter()
-            .find(|(k, _)| *k == key)
-            .map(|(_, d)| d.clone());
-        let value = found.and_then(|d| d.0.downcast_ref::<T>().cloned());
-        if let Some(value) = value {
+        let slot: Slot = {
+            let mut derived = kept.derived.lock().unwrap_or_else(PoisonError::into_inner);
+            match derived.iter().find(|(k, _)| *k == key) {
+                Some((_, slot)) => Arc::clone(slot),
+                None => {
+                    if derived.len() >= KEPT_DERIVED {
+                        derived.remove(0);
+                    }
+                    let slot = Slot::default();
+                    derived.push((key, Arc::clone(&slot)));
+                    slot
+                }
+            }
+        };
+        // Held while computing: another fit asking for the same key waits here instead of
+        // computing it again. (A computation never asks for its own key, and asks only for
+        // results of other inputs, so no two threads wait for each other.)
+        let mut held = slot.lock().unwrap_or_else(PoisonError::into_inner);
+        if let Some(value) = held.as_ref().and_then(|d| d.0.downcast_ref::<T>().cloned()) {
             DERIVED_HITS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
             return Ok(value);
         }
         let value = compute()?;
-        let mut derived = lock();
-        if !derived.iter().any(|(k, _)| *k == key) {
-            if derived.len() >= KEPT_DERIVED {
-                derived.remove(0);
-            }
-            derived.push((key, Derived(Arc::new(value.clone()))));
-        }
+        *held = Some(Derived(Arc::new(value.clone())));
         Ok(value)
     }
 
@@ -570,7 +584,45 @@ pub fn collinear_columns(x: &DMatrix<f64>) -> Vec<usize> {
 
 #[cfg(test)]
 mod tests {
-    use super::InputKey;
+    use super::{InputKey, PivotedQr};
+    use nalgebra::DMatrix;
+    use std::sync::atomic::{AtomicUsize, Ordering};
+    use std::sync::{Arc, Barrier};
+
+    /// Two fits asking a shared factorisation for the same derived result at once compute it
+    /// once; an error is not kept, so the next caller computes again.
+    #[test]
+    fn a_derived_result_is_computed_once_and_errors_are_not_kept() {
+        let x = DMatrix::from_fn(200, 3, |i, j| {
+            ((i * 7 + j * 3) as f64 * 0.37).sin() + j as f64
+        });
+        let qr = Arc::new(PivotedQr::new(&x).expect("full rank").kept());
+        let computed = Arc::new(AtomicUsize::new(0));
+        let start = Arc::new(Barrier::new(2));
+        let ask = |qr: Arc<PivotedQr>, computed: Arc<AtomicUsize>, start: Arc<Barrier>| {
+            std::thread::spawn(move || {
+                start.wait();
+                qr.derived(
+                    || InputKey::new("test").count(1).finish(),
+                    || {
+                        computed.fetch_add(1, Ordering::SeqCst);
+                        std::thread::sleep(std::time::Duration::from_millis(50));
+                        Ok::<_, ()>(vec![1.5, 2.5])
+                    },
+                )
+            })
+        };
+        let a = ask(Arc::clone(&qr), Arc::clone(&computed), Arc::clone(&start));
+        let b = ask(Arc::clone(&qr), Arc::clone(&computed), Arc::clone(&start));
+        let (a, b) = (a.join().expect("a"), b.join().expect("b"));
+        assert_eq!((a, b), (Ok(vec![1.5, 2.5]), Ok(vec![1.5, 2.5])));
+        assert_eq!(computed.load(Ordering::SeqCst), 1);
+        let key = || InputKey::new("test").count(2).finish();
+        let failed: Result<f64, &str> = qr.derived(key, || Err("not now"));
+        assert_eq!(failed, Err("not now"));
+        assert_eq!(qr.derived(key, || Ok::<_, &str>(4.0)), Ok(4.0));
+        assert_eq!(qr.derived(key, || Ok::<_, &str>(5.0)), Ok(4.0));
+    }
 
     /// Numbers and indices hashed straight from memory give the digest of the portable
     /// word-by-word form, so keys are the same on every target.
