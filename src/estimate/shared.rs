@@ -63,6 +63,10 @@ struct Memo {
     scopes: usize,
     /// Entries, least recently used first.
     entries: Vec<Arc<Entry>>,
+    /// Entries made so far: a lookup that compared outside the lock and found nothing makes
+    /// a new entry only if no other entry was made meanwhile (else it looks again), so two
+    /// fits asking for the same matrix at once share one entry.
+    made: u64,
 }
 
 /// Factorisations handed out again, over the process's life (for tests and measurements; it
@@ -72,6 +76,7 @@ static HITS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::ne
 static MEMO: Mutex<Memo> = Mutex::new(Memo {
     scopes: 0,
     entries: Vec::new(),
+    made: 0,
 });
 
 fn memo() -> MutexGuard<'static, Memo> {
@@ -143,36 +148,50 @@ fn entry_for(x: &DMatrix<f64>, owned: Option<&Arc<DMatrix<f64>>>) -> Option<Arc<
         return None;
     }
     let fingerprint = fingerprint(x);
-    let candidates: Vec<Arc<Entry>> = {
+    let mut compared: Vec<Arc<Entry>> = Vec::new();
+    let (mut m, found) = loop {
+        let (candidates, made): (Vec<Arc<Entry>>, u64) = {
+            let m = memo();
+            if m.scopes == 0 {
+                return None;
+            }
+            let candidates = m
+                .entries
+                .iter()
+                .filter(|e| e.fingerprint == fingerprint)
+                .filter(|e| !compared.iter().any(|c| Arc::ptr_eq(c, e)))
+                .cloned()
+                .collect();
+            (candidates, m.made)
+        };
+        // Compared outside the lock: a full comparison reads the whole matrix.
+        let found = candidates.iter().find(|e| same_bits(&e.x, x)).cloned();
+        compared.extend(candidates);
         let m = memo();
         if m.scopes == 0 {
             return None;
         }
-        m.entries
-            .iter()
-            .filter(|e| e.fingerprint == fingerprint)
-            .cloned()
-            .collect()
+        if found.is_some() || m.made == made {
+            break (m, found);
+        }
+        // Another fit made an entry meanwhile: it may be this matrix's.
     };
-    // Compared outside the lock: a full comparison reads the whole matrix.
-    let found = candidates.into_iter().find(|e| same_bits(&e.x, x));
-    let mut m = memo();
-    if m.scopes == 0 {
-        return None;
-    }
     let e = match found {
         Some(e) => {
             HITS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
             m.entries.retain(|other| !Arc::ptr_eq(other, &e));
             e
         }
-        None => Arc::new(Entry {
-            fingerprint,
-            x: owned.map_or_else(|| Arc::new(x.clone()), Arc::clone),
-            qr: OnceLock::new(),
-            dependent: OnceLock::new(),
-            digest: OnceLock::new(),
-        }),
+        None => {
+            m.made += 1;
+            Arc::new(Entry {
+                fingerprint,
+                x: owned.map_or_else(|| Arc::new(x.clone()), Arc::clone),
+                qr: OnceLock::new(),
+                dependent: OnceLock::new(),
+                digest: OnceLock::new(),
+            })
+        }
     };
     if m.entries.len() >= CAPACITY {
         m.entries.remove(0);
@@ -436,6 +455,31 @@ mod tests {
         let now = crate::estimate::qr::DERIVED_HITS.load(std::sync::atomic::Ordering::Relaxed);
         assert!(now >= hits + 12, "{} hits", now - hits);
         assert_eq!(alone, shared);
+    }
+
+    /// Two fits asking at once for the same matrix (equal bits, different copies) share one
+    /// entry and so one factorisation.
+    #[test]
+    fn fits_asking_at_once_share_one_entry() {
+        let _serial = SERIAL.lock().unwrap_or_else(PoisonError::into_inner);
+        let _sharing = Sharing::begin();
+        for round in 0..20 {
+            let x = DMatrix::from_fn(20_000, 4, |i, j| cell(i + round, j));
+            let start = Arc::new(std::sync::Barrier::new(2));
+            let ask = |x: DMatrix<f64>| {
+                let start = Arc::clone(&start);
+                std::thread::spawn(move || {
+                    start.wait();
+                    design_qr(&x).expect("full rank")
+                })
+            };
+            let (a, b) = (ask(x.clone()), ask(x));
+            let ((xa, qa), (xb, qb)) = (a.join().expect("a"), b.join().expect("b"));
+            assert!(
+                Arc::ptr_eq(&xa, &xb) && Arc::ptr_eq(&qa, &qb),
+                "round {round}"
+            );
+        }
     }
 
     /// A matrix that differs from a kept one in a single bit is factorised afresh.
