@@ -247,7 +247,85 @@ pub(crate) fn hc_weights(
 
 /// Σ ωᵢ qᵢ qᵢᵀ for the rows qᵢ of `q1`.
 fn weighted_gram(q1: &DMatrix<f64>, weights: &[f64]) -> DMatrix<f64> {
-    transpose_times(q1, &rows_scaled(q1, weights))
+    scaled_gram(q1, weights, Scaled::Right, ROW_BLOCK)
+}
+
+/// Rows per block of [`scaled_gram`]: a multiple of matrixmultiply's depth block for f64
+/// (`D_KC` = 256), so the blocks' products add up in the order of one product.
+pub(crate) const ROW_BLOCK: usize = 32 * 256;
+
+/// Which factors of [`scaled_gram`] have their rows scaled.
+#[derive(Clone, Copy)]
+pub(crate) enum Scaled {
+    /// `m`ᵀ (F `m`): Σ fᵢ mᵢ mᵢᵀ.
+    Right,
+    /// (F `m`)ᵀ (F `m`): Σ fᵢ² mᵢ mᵢᵀ, the products formed as (fᵢ mᵢⱼ)(fᵢ mᵢₗ).
+    Both,
+}
+
+/// `transpose_times(m, &rows_scaled(m, f))` (or with both factors scaled), the same bits,
+/// without the n × k scaled copy: the rows go through in blocks of `block` rows, each
+/// block's scaled rows written to a small buffer and its product added into the result.
+///
+/// Why the bits are the same: matrixmultiply splits the inner dimension (here the rows) into
+/// depth blocks of 256 and adds each block's product into C with one fused multiply-add per
+/// entry, the first block with β = 0 and every later one with β = 1. Blocks of a multiple of
+/// 256 rows, the first with β = 0 and the rest with β = 1, make exactly those calls. The last
+/// block takes up a remainder of five rows or fewer (nalgebra's small-shape path, which sums
+/// differently, starts there). Shapes that take nalgebra's small path as a whole keep the
+/// copy. A test compares the bits at block boundaries.
+pub(crate) fn scaled_gram(
+    m: &DMatrix<f64>,
+    factors: &[f64],
+    scaled: Scaled,
+    block: usize,
+) -> DMatrix<f64> {
+    const SMALL: usize = 5;
+    let (n, k) = m.shape();
+    debug_assert!(block.is_multiple_of(256) && block > SMALL);
+    if n <= block + SMALL || k <= SMALL {
+        let right = rows_scaled(m, factors);
+        return match scaled {
+            Scaled::Right => transpose_times(m, &right),
+            Scaled::Both => transpose_times(&right, &right),
+        };
+    }
+    let mut out = DMatrix::zeros(k, k);
+    let mut buffer = vec![0.0; (block + SMALL) * k];
+    let mut start = 0;
+    while start < n {
+        let end = if n - start <= block + SMALL {
+            n
+        } else {
+            start + block
+        };
+        let rows = end - start;
+        let scaled_rows = &mut buffer[..rows * k];
+        for (target, column) in scaled_rows.chunks_mut(rows).zip(m.as_slice().chunks(n)) {
+            for ((t, x), f) in target
+                .iter_mut()
+                .zip(&column[start..end])
+                .zip(&factors[start..end])
+            {
+                *t = x * f;
+            }
+        }
+        let right = DMatrixView::from_slice(scaled_rows, rows, k);
+        let beta = if start == 0 { 0.0 } else { 1.0 };
+        match scaled {
+            Scaled::Right => {
+                let left =
+                    DMatrixView::from_slice_with_strides(&m.as_slice()[start..], k, rows, n, 1);
+                out.gemm(1.0, &left, &right, beta);
+            }
+            Scaled::Both => {
+                let left = DMatrixView::from_slice_with_strides(scaled_rows, k, rows, rows, 1);
+                out.gemm(1.0, &left, &right, beta);
+            }
+        }
+        start = end;
+    }
+    out
 }
 
 /// `a`ᵀ `b` for tall matrices with the same rows, the same bits as `a.transpose() * b`,
@@ -411,6 +489,42 @@ mod tests {
                     "n = {n}, k = {k}, m = {m}"
                 );
             }
+        }
+    }
+
+    /// The blocked Gram matrices are the bits of the product of the whole scaled copy: at
+    /// a small block (two depth blocks) across many lengths, including remainders of five
+    /// rows or fewer, and at the production block just past one and two blocks.
+    #[test]
+    fn scaled_gram_is_the_product_of_the_scaled_copy() {
+        let value = |i: usize, j: usize| ((i * 31 + j * 17) as f64 * 0.37).sin() * (1.0 + j as f64);
+        let check = |n: usize, k: usize, block: usize| {
+            let m = DMatrix::from_fn(n, k, value);
+            let f: Vec<f64> = (0..n)
+                .map(|i| ((i * 7) as f64 * 0.11).cos() * 2.5)
+                .collect();
+            let scaled = rows_scaled(&m, &f);
+            for (kind, expected) in [
+                (Scaled::Right, transpose_times(&m, &scaled)),
+                (Scaled::Both, transpose_times(&scaled, &scaled)),
+            ] {
+                let got = scaled_gram(&m, &f, kind, block);
+                let same = got
+                    .iter()
+                    .zip(expected.iter())
+                    .all(|(x, y)| x.to_bits() == y.to_bits());
+                assert!(same && got.shape() == expected.shape(), "n = {n}, k = {k}");
+            }
+        };
+        for n in [
+            1, 6, 300, 512, 513, 517, 518, 1023, 1024, 1029, 1030, 1500, 2565,
+        ] {
+            for k in [1, 5, 6, 9, 17] {
+                check(n, k, 512);
+            }
+        }
+        for n in [ROW_BLOCK + 6, 2 * ROW_BLOCK + 3, 2 * ROW_BLOCK + 700] {
+            check(n, 8, ROW_BLOCK);
         }
     }
 

@@ -7,7 +7,9 @@ use std::sync::Arc;
 
 use nalgebra::{Cholesky, DMatrix, DVector};
 
-use super::super::covariance::{densify, rows_scaled, transpose_times, CovSpec, Leverage};
+use super::super::covariance::{
+    cluster_sums, scaled_gram, transpose_times, CovSpec, Leverage, Scaled, ROW_BLOCK,
+};
 use super::super::hac::hac_meat;
 use super::super::linear::{
     assemble, hcat, instrument_qr, least_squares, least_squares_shared, require_observations,
@@ -216,27 +218,15 @@ fn moment_meat(
     u: &DVector<f64>,
     ids: Option<&[usize]>,
 ) -> Result<DMatrix<f64>, EstimateError> {
-    let (n, l) = q.shape();
-    let scores = rows_scaled(q, u.as_slice());
     let Some(ids) = ids else {
-        return Ok(transpose_times(&scores, &scores));
+        return Ok(scaled_gram(q, u.as_slice(), Scaled::Both, ROW_BLOCK));
     };
-    if ids.len() != n {
-        return Err(EstimateError::ClusterLength { n, ids: ids.len() });
-    }
-    let (dense, g) = densify(ids);
-    let mut sums: Vec<DVector<f64>> = vec![DVector::zeros(l); g];
-    for (i, &c) in dense.iter().enumerate() {
-        sums[c] += scores.row(i).transpose();
-    }
-    if sums.len() < 2 {
-        return Err(EstimateError::TooFewClusters {
-            clusters: sums.len(),
-        });
-    }
-    Ok(sums
-        .iter()
-        .fold(DMatrix::zeros(l, l), |acc, s| acc + s * s.transpose()))
+    // The per-group sums of the moment rows, summed in row order as adding the rows would.
+    let (sums, g) = cluster_sums(q, u, ids)?;
+    Ok((0..g).fold(DMatrix::zeros(q.ncols(), q.ncols()), |acc, c| {
+        let s = sums.row(c).transpose();
+        acc + &s * s.transpose()
+    }))
 }
 
 /// Hansen's (1982, Econometrica 50) J test of the overidentifying restrictions from
