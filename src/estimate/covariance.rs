@@ -339,10 +339,42 @@ pub(crate) fn transpose_times(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64
     const SMALL: usize = 5;
     let (n, k) = a.shape();
     if n <= SMALL || k <= SMALL || b.ncols() <= SMALL {
-        return a.transpose() * b;
+        return transpose_times_small(a, b);
     }
     let at = DMatrixView::from_slice_with_strides(a.as_slice(), k, n, n, 1);
     at * b
+}
+
+/// nalgebra's product `a.transpose() * b` for shapes it does not hand to matrixmultiply,
+/// without the transposed copy of `a`: nalgebra forms each column of the product as a sum
+/// over the rows in row order, a₀ᵢb₀ⱼ first and then aₜᵢbₜⱼ + s for t = 1, 2, … (one rounding
+/// per product and per addition, no fused multiply-add). Here eight such sums run side by
+/// side in one pass over the rows; each keeps its own order, so the bits are nalgebra's.
+fn transpose_times_small(a: &DMatrix<f64>, b: &DMatrix<f64>) -> DMatrix<f64> {
+    const SIDE: usize = 8;
+    let (n, k) = a.shape();
+    let mut out = DMatrix::zeros(k, b.ncols());
+    if n == 0 {
+        return out;
+    }
+    let columns: Vec<&[f64]> = a.as_slice().chunks(n).collect();
+    for (j, other) in b.as_slice().chunks(n).enumerate() {
+        for (group, block) in columns.chunks(SIDE).enumerate() {
+            let mut sums = [0.0; SIDE];
+            for (s, column) in sums.iter_mut().zip(block) {
+                *s = column[0] * other[0];
+            }
+            for i in 1..n {
+                for (s, column) in sums.iter_mut().zip(block) {
+                    *s += column[i] * other[i];
+                }
+            }
+            for (t, s) in sums.iter().take(block.len()).enumerate() {
+                out[(group * SIDE + t, j)] = *s;
+            }
+        }
+    }
+    out
 }
 
 /// The score rows qᵢ uᵢ (n × k).
@@ -474,8 +506,19 @@ mod tests {
     #[test]
     fn transpose_times_is_nalgebras_product() {
         let value = |i: usize, j: usize| ((i * 13 + j * 7) as f64 * 0.61).sin() * (1.0 + j as f64);
-        for n in [1, 4, 6, 9, 40, 301] {
-            for (k, m) in [(1, 1), (3, 3), (5, 6), (6, 6), (8, 1), (9, 9), (12, 4)] {
+        for n in [0, 1, 4, 6, 9, 40, 301] {
+            for (k, m) in [
+                (1, 1),
+                (3, 3),
+                (5, 6),
+                (6, 6),
+                (8, 1),
+                (9, 9),
+                (12, 4),
+                (17, 2),
+                (9, 1),
+                (16, 5),
+            ] {
                 let a = DMatrix::from_fn(n, k, value);
                 let b = DMatrix::from_fn(n, m, |i, j| value(i + 3, j + 2));
                 let expected = a.transpose() * &b;
