@@ -173,7 +173,19 @@ impl IvProblem<'_> {
         // Shea's partial R² reads only X and Z: kept once for every error type.
         let shea = setup.zqr.derived(
             || self.outcome_free_key("shea").finish(),
-            || shea_partial_r_squared(setup, endog.ncols()),
+            || {
+                // X̂ as the 2SLS fit keeps it (the same bits as projecting here); when an
+                // endogenous column is orthogonal to the instruments the fit refuses it and
+                // Shea's R² reads that column's projection as it is.
+                let xhat = match self.projected() {
+                    Ok(xhat) => xhat,
+                    Err(EstimateError::RankDeficient { .. }) => {
+                        Arc::new(super::linear::projection(setup, endog.ncols()).0)
+                    }
+                    Err(e) => return Err(e),
+                };
+                shea_partial_r_squared(setup, &xhat, endog.ncols())
+            },
         )?;
         (0..endog.ncols())
             .map(|j| {
@@ -211,14 +223,19 @@ impl IvProblem<'_> {
     }
 }
 
-/// The columns of `m` other than `j`.
+/// The columns of `m` other than `j` (copied once).
 fn without_column(m: &DMatrix<f64>, j: usize) -> DMatrix<f64> {
-    m.clone().remove_column(j)
+    let others: Vec<usize> = (0..m.ncols()).filter(|&c| c != j).collect();
+    m.select_columns(&others)
 }
 
-/// Shea's partial R² for each endogenous column (formula in [`first_stages`]).
-fn shea_partial_r_squared(setup: &IvSetup, endogenous: usize) -> Result<Vec<f64>, EstimateError> {
-    let (xhat, _) = super::linear::projection(setup, endogenous);
+/// Shea's partial R² for each endogenous column (formula in [`first_stages`]), with `xhat`
+/// the projected regressors X̂ = [P_Z endog | exog].
+fn shea_partial_r_squared(
+    setup: &IvSetup,
+    xhat: &DMatrix<f64>,
+    endogenous: usize,
+) -> Result<Vec<f64>, EstimateError> {
     (0..endogenous)
         .map(|j| {
             let own = restricted_rss(
@@ -226,7 +243,7 @@ fn shea_partial_r_squared(setup: &IvSetup, endogenous: usize) -> Result<Vec<f64>
                 &without_column(&setup.x, j),
             )?;
             let fitted = xhat.column(j).into_owned();
-            match restricted_rss(&fitted, &without_column(&xhat, j)) {
+            match restricted_rss(&fitted, &without_column(xhat, j)) {
                 Ok(projected) => Ok(projected / own),
                 Err(EstimateError::RankDeficient { .. }) => Ok(0.0),
                 Err(e) => Err(e),
@@ -275,5 +292,46 @@ impl IvProblem<'_> {
         require_observations(z.nrows(), z.ncols() + absorbed.df)?;
         let ls = solve_with(&self.setup.zqr, z, y);
         assemble(y, z, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// With an endogenous column orthogonal to every instrument, the 2SLS fit refuses X̂,
+    /// and Shea's R² is computed from the projection as it is: 0 for that column (and for
+    /// the other, whose partner in X̂ is then rounding noise), the same as the formula.
+    #[test]
+    fn shea_with_an_endogenous_column_orthogonal_to_the_instruments() {
+        let n = 16;
+        let sign = |i: usize, period: usize| {
+            if (i / period).is_multiple_of(2) {
+                1.0
+            } else {
+                -1.0
+            }
+        };
+        let exog = DMatrix::from_element(n, 1, 1.0);
+        let instruments = DMatrix::from_fn(n, 2, |i, j| sign(i, if j == 0 { 8 } else { 4 }));
+        let endog = DMatrix::from_fn(n, 2, |i, j| match j {
+            0 => sign(i, 8) + 0.1 * ((i * 7) as f64).sin(),
+            _ => sign(i, 1),
+        });
+        let y = DVector::from_fn(n, |i, _| (i as f64 * 0.3).cos());
+        let problem = IvProblem::new(&y, &exog, &endog, &instruments).expect("valid problem");
+        assert!(matches!(
+            problem.projected(),
+            Err(EstimateError::RankDeficient { .. })
+        ));
+        let stages = problem
+            .first_stages(true, &CovSpec::Hc1, &Absorbed::NONE)
+            .expect("first stages");
+        let xhat = super::super::linear::projection(&problem.setup, 2).0;
+        let expected = shea_partial_r_squared(&problem.setup, &xhat, 2).expect("formula");
+        for (stage, e) in stages.iter().zip(&expected) {
+            assert_eq!(stage.shea_partial_r_squared.to_bits(), e.to_bits());
+        }
+        assert_eq!(stages[1].shea_partial_r_squared, 0.0);
     }
 }

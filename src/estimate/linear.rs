@@ -452,7 +452,7 @@ impl<'a> IvProblem<'a> {
 
     /// X̂ = [P_Z endog | exog] (as [`projected_regressors`]): outcome-free, so kept with the
     /// instruments' factorisation once per sample and handed to the memo without a copy.
-    fn projected(&self) -> Result<Arc<DMatrix<f64>>, EstimateError> {
+    pub(crate) fn projected(&self) -> Result<Arc<DMatrix<f64>>, EstimateError> {
         self.setup.zqr.derived(
             || self.outcome_free_key("projected regressors").finish(),
             || projected_regressors(&self.setup, self.endog.ncols()).map(Arc::new),
