@@ -58,6 +58,34 @@ use std::collections::BTreeSet;
 pub use draw::{Draw, DrawSource};
 pub use parser::{parse, parse_random};
 
+/// A column an expression reads: its cells by row, `None` for a missing one.
+pub trait Values {
+    /// The number of cells.
+    fn count(&self) -> usize;
+    /// The cell in row `i`, `None` when missing.
+    fn value(&self, i: usize) -> Option<f64>;
+}
+
+impl<const N: usize> Values for [Option<f64>; N] {
+    fn count(&self) -> usize {
+        N
+    }
+
+    fn value(&self, i: usize) -> Option<f64> {
+        self[i]
+    }
+}
+
+impl Values for Vec<Option<f64>> {
+    fn count(&self) -> usize {
+        self.len()
+    }
+
+    fn value(&self, i: usize) -> Option<f64> {
+        self[i]
+    }
+}
+
 /// The deepest nesting [`parse`] accepts: of parentheses and prefix operators while
 /// parsing, and of the resulting tree.
 pub const MAX_DEPTH: usize = 200;
@@ -396,7 +424,9 @@ mod tests {
                 for src in shapes {
                     let tree = parse(&src).expect("valid at the cap");
                     assert_eq!(parse(&tree.to_string()).as_ref(), Ok(&tree));
-                    let out = tree.eval(1, &|_| Some(&col[..])).expect("evaluates");
+                    let out = tree
+                        .eval(1, &|_| Some(&col as &dyn Values))
+                        .expect("evaluates");
                     assert_eq!(out.len(), 1);
                 }
             });

@@ -132,7 +132,7 @@ fn arm_of(table: &Table, by: &str, rows: &[usize]) -> Result<Vec<u8>, Why> {
     })?;
     let mut arm = Vec::with_capacity(rows.len());
     for &r in rows {
-        match col.get(r).copied().flatten() {
+        match (r < col.len()).then(|| col.get(r)).flatten() {
             Some(0.0) => arm.push(0),
             Some(1.0) => arm.push(1),
             _ => {
@@ -180,7 +180,12 @@ fn take_up(
     let values: Vec<f64> = d
         .rows
         .iter()
-        .map(|&r| col.get(r).copied().flatten().unwrap_or(f64::NAN))
+        .map(|&r| {
+            (r < col.len())
+                .then(|| col.get(r))
+                .flatten()
+                .unwrap_or(f64::NAN)
+        })
         .collect();
     Ok([
         arm_mean(x, &values, arm, 0, clusters, z)?,

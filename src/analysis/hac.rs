@@ -97,7 +97,7 @@ fn check_order(spec: &Spec, table: &Table, order_by: &str, rows: &[usize]) -> Re
         ));
     };
     for w in rows.windows(2) {
-        if let (Some(a), Some(b)) = (values[w[0]], values[w[1]]) {
+        if let (Some(a), Some(b)) = (values.get(w[0]), values.get(w[1])) {
             if a >= b {
                 return Err(err(spec, format!(
                     "hac errors need one row per time position, but order_by column `{order_by}` has the value {b} in more than one row used (table rows {} and {}); restrict the sample to one series or use cluster errors",

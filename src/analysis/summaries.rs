@@ -1,9 +1,10 @@
 //! The plan's field-experiment summaries: summary indices (built with the data, reported
 //! here), the balance table of baseline covariates by arm, and attrition with Lee bounds.
 
-use crate::data::{LabelIdsError, Table};
+use crate::data::{LabelIdsError, Numbers, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{self, BalanceRow, CovSpec, FixedEffects, TrimmedArm};
+use crate::expr::Values;
 use crate::inference;
 use crate::plan::{Errors, IndexMethod, Plan};
 use crate::results::{
@@ -80,7 +81,7 @@ struct Blocked {
 fn blocked_rows(
     blocks: Option<&String>,
     table: &Table,
-    (rows, weights): (Vec<usize>, Option<&[Option<f64>]>),
+    (rows, weights): (Vec<usize>, Option<&Numbers>),
     treated: impl Fn(usize) -> bool,
     by: &str,
     what: &str,
@@ -135,14 +136,14 @@ fn blocked_rows(
 }
 
 /// The weights column's values on `rows` (each present: the rows were chosen so).
-fn weights_on(column: &[Option<f64>], rows: &[usize]) -> Vec<f64> {
+fn weights_on(column: &Numbers, rows: &[usize]) -> Vec<f64> {
     rows.iter()
-        .map(|&r| column[r].unwrap_or(f64::NAN))
+        .map(|&r| column.get(r).unwrap_or(f64::NAN))
         .collect()
 }
 
 /// A weights column's cells and the number of zero-weight rows left out.
-type WeightsIn<'t> = (&'t [Option<f64>], usize);
+type WeightsIn<'t> = (&'t Numbers, usize);
 
 /// A weighted check's weights column, its rows without a weight and without a positive
 /// weight left out of `rows` (a negative weight is refused naming its place); returns the
@@ -161,9 +162,9 @@ fn weighted_rows<'t>(
         .numeric
         .get(name)
         .ok_or_else(|| err(what, format!("weights column `{name}` is not available")))?;
-    rows.retain(|&r| column[r].is_some());
+    rows.retain(|&r| column.get(r).is_some());
     let (_, zero) = crate::data::check_summary_weights(t, &plan.data[data], what, name, rows)?;
-    Ok(Some((column.as_slice(), zero)))
+    Ok(Some((column, zero)))
 }
 
 /// The cluster columns of `errors` (empty unless clustered).
@@ -180,7 +181,7 @@ pub fn indices(plan: &Plan, tables: &BTreeMap<String, Table>) -> BTreeMap<String
         .iter()
         .map(|i| {
             let t = &tables[&i.data];
-            let lookup = |name: &str| t.numeric.get(name).map(Vec::as_slice);
+            let lookup = |name: &str| t.numeric.get(name).map(|c| c as &dyn Values);
             let reference_rows = i
                 .reference
                 .1
@@ -234,23 +235,22 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
         })
     };
     let arm = col(&b.by)?;
-    let covs: Vec<&Vec<Option<f64>>> =
-        b.covariates.iter().map(|c| col(c)).collect::<Result<_>>()?;
+    let covs: Vec<&Numbers> = b.covariates.iter().map(|c| col(c)).collect::<Result<_>>()?;
     let mut rows = balance_rows(b, t, arm, &covs);
     let weighted = weighted_rows(plan, t, (&b.data, b.weights.as_ref()), &mut rows, what)?;
     let (rows, blocks) = blocked_rows(
         b.blocks.as_ref(),
         t,
         (rows, weighted.map(|w| w.0)),
-        |r| arm[r] == Some(1.0),
+        |r| arm.get(r) == Some(1.0),
         &b.by,
         what,
     )?;
     let w = weighted.map(|w| weights_on(w.0, &rows));
     let m = nalgebra::DMatrix::from_fn(rows.len(), covs.len(), |i, j| {
-        covs[j][rows[i]].unwrap_or(f64::NAN)
+        covs[j].get(rows[i]).unwrap_or(f64::NAN)
     });
-    let treated: Vec<bool> = rows.iter().map(|&r| arm[r] == Some(1.0)).collect();
+    let treated: Vec<bool> = rows.iter().map(|&r| arm.get(r) == Some(1.0)).collect();
     let cov = cov_for(&b.errors, t, &rows, what)?;
     // Without blocks the joint regression is of the arm on [intercept | covariates]; with
     // them, on [covariates] with the blocks absorbed.
@@ -285,13 +285,13 @@ pub fn balance(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option<B
 fn balance_rows(
     b: &crate::plan::Balance,
     t: &Table,
-    arm: &[Option<f64>],
-    covs: &[&Vec<Option<f64>>],
+    arm: &Numbers,
+    covs: &[&Numbers],
 ) -> Vec<usize> {
     (0..t.rows)
         .filter(|&r| {
-            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
-                && covs.iter().all(|c| c[r].is_some())
+            matches!(arm.get(r), Some(v) if v == 0.0 || v == 1.0)
+                && covs.iter().all(|c| c.get(r).is_some())
                 && clusters_present(&b.errors, t, r)
                 && block_present(b.blocks.as_ref(), t, r)
         })
@@ -340,7 +340,7 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
         .get(&a.by)
         .ok_or_else(|| err(what, format!("`{}` is not available", a.by)))?;
     let observed_all = {
-        let lookup = |name: &str| t.numeric.get(name).map(Vec::as_slice);
+        let lookup = |name: &str| t.numeric.get(name).map(|c| c as &dyn Values);
         a.observed.1.eval(t.rows, &lookup).map_err(|e| {
             err(
                 what,
@@ -350,13 +350,13 @@ pub fn attrition(plan: &Plan, tables: &BTreeMap<String, Table>) -> Result<Option
     };
     let mut rows: Vec<usize> = (0..t.rows)
         .filter(|&r| {
-            matches!(arm[r], Some(v) if v == 0.0 || v == 1.0)
+            matches!(arm.get(r), Some(v) if v == 0.0 || v == 1.0)
                 && clusters_present(&a.errors, t, r)
                 && block_present(a.blocks.as_ref(), t, r)
         })
         .collect();
     let weighted = weighted_rows(plan, t, (&a.data, a.weights.as_ref()), &mut rows, what)?;
-    let treated: Vec<bool> = rows.iter().map(|&r| arm[r] == Some(1.0)).collect();
+    let treated: Vec<bool> = rows.iter().map(|&r| arm.get(r) == Some(1.0)).collect();
     let observed: Vec<bool> = rows
         .iter()
         .map(|&r| observed_all[r].is_some_and(|v| v != 0.0))
@@ -406,7 +406,7 @@ fn bounded_values(
         .ok_or_else(|| err(what, format!("`{name}` is not available")))?;
     let mut values = Vec::with_capacity(rows.len());
     for (&r, &o) in rows.iter().zip(observed) {
-        match (o, y[r]) {
+        match (o, y.get(r)) {
             (true, Some(v)) => values.push(v),
             (true, None) => {
                 return Err(err(what, format!(
@@ -438,7 +438,7 @@ fn hypotheses_on(plan: &Plan, data: &str) -> Vec<String> {
 fn attrition_test(
     a: &crate::plan::Attrition,
     t: &Table,
-    (rows, weights): (&[usize], Option<&[Option<f64>]>),
+    (rows, weights): (&[usize], Option<&Numbers>),
     treated: &[bool],
     observed: &[bool],
     what: &str,

@@ -389,7 +389,7 @@ pub(super) fn load_column(
         let labels = Labels::from_numbers(&values).map_err(|_| too_many_labels(src, name))?;
         table.labels.insert(name.to_string(), labels);
     }
-    table.numeric.insert(name.to_string(), values);
+    table.numeric.insert(name.to_string(), values.into());
     Ok(())
 }
 

@@ -12,9 +12,10 @@
 //! effects and is reported by name.
 //! Collinearity among the remaining columns is resolved left to right by the caller.
 
-use super::{IdOrder, Labels, Table};
+use super::{IdOrder, Labels, Numbers, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{Absorbed, CovSpec, FixedEffects};
+use crate::expr::Values;
 use crate::plan::{DataSource, Errors, Spec};
 use nalgebra::{DMatrix, DVector};
 use std::sync::Arc;
@@ -68,18 +69,14 @@ pub struct Design {
     pub zero_weights: usize,
 }
 
-fn column<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t [Option<f64>]> {
-    table
-        .numeric
-        .get(name)
-        .map(Vec::as_slice)
-        .ok_or_else(|| Error::Estimation {
-            spec: spec.id.clone(),
-            message: format!(
-                "variable `{name}` is not available in data table `{}`",
-                table.id
-            ),
-        })
+fn column<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Numbers> {
+    table.numeric.get(name).ok_or_else(|| Error::Estimation {
+        spec: spec.id.clone(),
+        message: format!(
+            "variable `{name}` is not available in data table `{}`",
+            table.id
+        ),
+    })
 }
 
 fn labels<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Labels> {
@@ -96,7 +93,7 @@ fn labels<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Labels> {
 fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
     let in_sample: Vec<bool> = match &spec.sample {
         Some((text, e)) => {
-            let lookup = |n: &str| table.numeric.get(n).map(Vec::as_slice);
+            let lookup = |n: &str| table.numeric.get(n).map(|c| c as &dyn Values);
             e.eval(table.rows, &lookup)
                 .map_err(|err| Error::Estimation {
                     spec: spec.id.clone(),
@@ -108,7 +105,7 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
         }
         None => vec![true; table.rows],
     };
-    let numeric: Vec<&[Option<f64>]> = used_numeric(spec)
+    let numeric: Vec<&Numbers> = used_numeric(spec)
         .iter()
         .map(|n| column(table, n, spec))
         .collect::<Result<_>>()?;
@@ -120,7 +117,7 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
     let kept = (0..table.rows)
         .filter(|&i| {
             in_sample[i]
-                && numeric.iter().all(|c| c[i].is_some())
+                && numeric.iter().all(|c| c.get(i).is_some())
                 && groups.iter().all(|c| c[i].is_some())
         })
         .collect();
@@ -135,7 +132,7 @@ fn first_row_missing_weight(table: &Table, spec: &Spec, kept: &[usize]) -> Optio
         return None;
     }
     let w = table.numeric.get(spec.weights.as_ref()?)?;
-    kept.iter().copied().find(|&r| w[r].is_none())
+    kept.iter().copied().find(|&r| w.get(r).is_none())
 }
 
 /// The numeric columns whose missing values leave a row out: every variable, and the weight
@@ -173,7 +170,7 @@ fn gathered(
     spec: &Spec,
     ones: bool,
 ) -> Result<DMatrix<f64>> {
-    let cols: Vec<&[Option<f64>]> = names
+    let cols: Vec<&Numbers> = names
         .iter()
         .map(|n| column(table, n, spec))
         .collect::<Result<_>>()?;
@@ -183,7 +180,9 @@ fn gathered(
         out.resize(n, 1.0);
     }
     for col in cols {
-        out.extend(rows.iter().map(|&r| col[r].unwrap_or(f64::NAN)));
+        // Missing cells are stored as NaN, which is what a missing cell reads as here.
+        let values = col.raw();
+        out.extend(rows.iter().map(|&r| values[r]));
     }
     Ok(DMatrix::from_vec(n, k, out))
 }
@@ -258,7 +257,7 @@ fn block(
     }
     let sources = names
         .iter()
-        .map(|n| column(table, n, spec).map(|c| c.as_ptr() as usize))
+        .map(|n| column(table, n, spec).map(|c| c.raw().as_ptr() as usize))
         .collect::<Result<Vec<_>>>()?;
     table.shared.read(rows, (names, ones, sources), || {
         gathered(table, names, rows, spec, ones)
@@ -283,7 +282,7 @@ pub fn design(table: &Table, source: &DataSource, spec: &Spec) -> Result<Design>
         false => Arc::new(rows),
     };
     let outcome = column(table, &spec.outcome, spec)?;
-    let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome[r].unwrap_or(f64::NAN)));
+    let y_raw = DVector::from_iterator(n, rows.iter().map(|&r| outcome.raw()[r]));
     let mut focal = block(table, (spec.focal(), false), &rows, spec, share)?;
     let mut instruments = block(table, (&spec.instruments, false), &rows, spec, share)?;
     // With an intercept (never with fixed effects, so never swept) the controls are read

@@ -2,13 +2,14 @@
 //! variables, and hand out design matrices. This is the only bridge from polars to nalgebra.
 //!
 //! Invariants of a loaded [`Table`]: rows are in `order_by` order when one is declared;
-//! numeric columns (declared numeric kinds and derived variables) are `f64` with `None` for
-//! missing; grouping columns (category, id, integer, binary) are also available as labels.
+//! numeric columns (declared numeric kinds and derived variables) are contiguous `f64`
+//! ([`Numbers`], NaN marking a missing cell, read back as `None`); grouping columns (category, id, integer, binary) are also available as labels.
 
 mod cells;
 mod design;
 pub mod dialect;
 mod labels;
+mod numbers;
 mod parquet;
 mod plain_csv;
 mod read;
@@ -17,6 +18,7 @@ mod weights;
 
 pub use design::{cov_spec, design, CovSpecGap, Design};
 pub use labels::{IdOrder, Labels, TooManyLabels};
+pub use numbers::Numbers;
 pub use read::{load_table, read_baseline, table_from_columns, with_column, BaselineColumns};
 pub use shared_columns::SharedColumns;
 pub use weights::check_weights as check_summary_weights;
@@ -36,7 +38,7 @@ pub struct Table {
     /// Number of rows.
     pub rows: usize,
     /// Numeric columns and derived variables.
-    pub numeric: BTreeMap<String, Vec<Option<f64>>>,
+    pub numeric: BTreeMap<String, Numbers>,
     /// Group labels of grouping columns.
     pub labels: BTreeMap<String, Labels>,
     /// Column blocks read for designs, shared by the specifications that use them (empty in

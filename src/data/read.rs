@@ -10,6 +10,7 @@ use super::cells::{
 use super::Table;
 use crate::deviation::{Deviation, DeviationCode};
 use crate::error::Result;
+use crate::expr::Values;
 use crate::plan::{needed_columns, ColumnKind, DataSource, Plan};
 use std::collections::{BTreeMap, BTreeSet};
 
@@ -225,7 +226,7 @@ pub fn table_from_columns(
             table.labels.insert(name.clone(), labels);
         }
         if col.kind.is_numeric() {
-            table.numeric.insert(name, values);
+            table.numeric.insert(name, values.into());
         }
     }
     order_rows(src, &mut table)?;
@@ -263,7 +264,7 @@ pub fn with_column(
         let labels = to_labels(src, name, col.kind, RawValues::Numbers(values.clone()))?;
         out.labels.insert(name.to_string(), labels);
     }
-    out.numeric.insert(name.to_string(), values);
+    out.numeric.insert(name.to_string(), values.into());
     derive_columns(plan, src, &mut out)?;
     index_columns(plan, src, &mut out)?;
     Ok(out)
@@ -275,7 +276,7 @@ fn order_rows(src: &DataSource, table: &mut Table) -> Result<()> {
         return Ok(());
     };
     let keys: Vec<Option<f64>> = match table.numeric.get(by) {
-        Some(v) => v.clone(),
+        Some(v) => v.iter().collect(),
         None => {
             return Err(data_err(
                 src,
@@ -301,7 +302,7 @@ fn order_rows(src: &DataSource, table: &mut Table) -> Result<()> {
             .unwrap_or(std::cmp::Ordering::Equal)
     });
     for v in table.numeric.values_mut() {
-        *v = idx.iter().map(|&i| v[i]).collect();
+        *v = idx.iter().map(|&i| v.get(i)).collect();
     }
     for v in table.labels.values_mut() {
         *v = v.reorder(&idx);
@@ -384,7 +385,7 @@ fn derive_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()
         }
         let values = {
             let numeric = &table.numeric;
-            let lookup = |name: &str| numeric.get(name).map(Vec::as_slice);
+            let lookup = |name: &str| numeric.get(name).map(|c| c as &dyn Values);
             d.expr.eval(table.rows, &lookup)
         }
         .map_err(|e| {
@@ -398,7 +399,7 @@ fn derive_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()
                 ),
             )
         })?;
-        table.numeric.insert(d.name.clone(), values);
+        table.numeric.insert(d.name.clone(), values.into());
     }
     Ok(())
 }
@@ -417,17 +418,17 @@ fn index_columns(plan: &Plan, src: &DataSource, table: &mut Table) -> Result<()>
                 .ok_or_else(|| fail(format!("component `{c}` is not available")))?;
             cols.push(values);
         }
-        let complete = |r: usize| cols.iter().all(|c| c[r].is_some());
+        let complete = |r: usize| cols.iter().all(|c| c.get(r).is_some());
         let m = nalgebra::DMatrix::from_fn(table.rows, cols.len(), |r, j| {
             if i.complete_cases && !complete(r) {
                 f64::NAN
             } else {
-                cols[j][r].unwrap_or(f64::NAN)
+                cols[j].get(r).unwrap_or(f64::NAN)
             }
         });
         let reference: Vec<bool> = {
             let numeric = &table.numeric;
-            let lookup = |name: &str| numeric.get(name).map(Vec::as_slice);
+            let lookup = |name: &str| numeric.get(name).map(|c| c as &dyn Values);
             i.reference
                 .1
                 .eval(table.rows, &lookup)

@@ -5,7 +5,7 @@
 //! them in every numeric column (`cells::to_numbers`).
 
 use super::cells::row_place;
-use super::Table;
+use super::{Numbers, Table};
 use crate::error::{Error, Result};
 use crate::plan::{DataSource, Spec};
 use nalgebra::DVector;
@@ -41,9 +41,9 @@ pub(super) fn drop_zero_weights(
 }
 
 /// Drops from `rows` those whose weight is not positive; returns how many left.
-fn drop_zero(column: &[Option<f64>], rows: &mut Vec<usize>) -> usize {
+fn drop_zero(column: &Numbers, rows: &mut Vec<usize>) -> usize {
     let before = rows.len();
-    rows.retain(|&r| column[r].is_some_and(|v| v > 0.0));
+    rows.retain(|&r| column.get(r).is_some_and(|v| v > 0.0));
     before - rows.len()
 }
 
@@ -57,10 +57,10 @@ fn refuse_negative(
     table: &Table,
     source: &DataSource,
     (holder, name, fix): Holder,
-    column: &[Option<f64>],
+    column: &Numbers,
     rows: &[usize],
 ) -> Result<()> {
-    let value = |r: usize| column[r].unwrap_or(f64::NAN);
+    let value = |r: usize| column.get(r).unwrap_or(f64::NAN);
     if let Some(&r) = rows.iter().find(|&&r| value(r).is_nan() || value(r) < 0.0) {
         return Err(Error::Estimation {
             spec: holder.to_string(),
@@ -93,7 +93,7 @@ pub fn check_weights(
     let dropped = drop_zero(column, rows);
     let w = rows
         .iter()
-        .map(|&r| column[r].unwrap_or(f64::NAN))
+        .map(|&r| column.get(r).unwrap_or(f64::NAN))
         .collect();
     Ok((w, dropped))
 }
@@ -108,12 +108,12 @@ pub(super) fn row_weights(
     let Some((_, column)) = weight_column(table, spec)? else {
         return Ok(None);
     };
-    let w = rows.iter().map(|&r| column[r].unwrap_or(f64::NAN));
+    let w = rows.iter().map(|&r| column.get(r).unwrap_or(f64::NAN));
     Ok(Some(DVector::from_iterator(rows.len(), w)))
 }
 
 /// A weights column's name and its cells.
-type WeightColumn<'t> = (&'t str, &'t [Option<f64>]);
+type WeightColumn<'t> = (&'t str, &'t Numbers);
 
 /// The specification's weights column and its name (`None` unweighted).
 fn weight_column<'t>(table: &'t Table, spec: &'t Spec) -> Result<Option<WeightColumn<'t>>> {
@@ -125,16 +125,12 @@ fn weight_column<'t>(table: &'t Table, spec: &'t Spec) -> Result<Option<WeightCo
 
 /// The cells of weights column `name` of `holder` (a specification's id, or
 /// `balance`/`attrition`), or an error naming it.
-fn cells<'t>(table: &'t Table, holder: &str, name: &str) -> Result<&'t [Option<f64>]> {
-    table
-        .numeric
-        .get(name)
-        .map(Vec::as_slice)
-        .ok_or_else(|| Error::Estimation {
-            spec: holder.to_string(),
-            message: format!(
-                "weights column `{name}` is not available in data table `{}`",
-                table.id
-            ),
-        })
+fn cells<'t>(table: &'t Table, holder: &str, name: &str) -> Result<&'t Numbers> {
+    table.numeric.get(name).ok_or_else(|| Error::Estimation {
+        spec: holder.to_string(),
+        message: format!(
+            "weights column `{name}` is not available in data table `{}`",
+            table.id
+        ),
+    })
 }

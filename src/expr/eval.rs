@@ -5,13 +5,13 @@
 //! in the parent module. Recursion follows the tree, whose depth [`parse`](super::parse)
 //! bounds.
 
-use super::{BinOp, DrawSource, Expr, ExprError, Func};
+use super::{BinOp, DrawSource, Expr, ExprError, Func, Values};
 
 /// One evaluated column; `None` is missing.
 type Column = Vec<Option<f64>>;
 
 /// Looks up a column by name.
-type Lookup<'l, 'a> = &'l dyn Fn(&str) -> Option<&'a [Option<f64>]>;
+type Lookup<'l, 'a> = &'l dyn Fn(&str) -> Option<&'a dyn Values>;
 
 impl Expr {
     /// Evaluates the expression over `n` rows.
@@ -31,7 +31,7 @@ impl Expr {
     pub fn eval<'a>(
         &self,
         n: usize,
-        lookup: &dyn Fn(&str) -> Option<&'a [Option<f64>]>,
+        lookup: &dyn Fn(&str) -> Option<&'a dyn Values>,
     ) -> Result<Vec<Option<f64>>, ExprError> {
         evaluate(self, n, lookup, None)
     }
@@ -44,7 +44,7 @@ impl Expr {
     pub fn eval_drawn<'a>(
         &self,
         n: usize,
-        lookup: &dyn Fn(&str) -> Option<&'a [Option<f64>]>,
+        lookup: &dyn Fn(&str) -> Option<&'a dyn Values>,
         source: &dyn DrawSource,
     ) -> Result<Vec<Option<f64>>, ExprError> {
         evaluate(self, n, lookup, Some(source))
@@ -100,13 +100,13 @@ fn column(name: &str, n: usize, lookup: Lookup<'_, '_>) -> Result<Column, ExprEr
              this table; declare it or correct the spelling"
         ))
     })?;
-    if values.len() != n {
+    if values.count() != n {
         return Err(ExprError::eval(format!(
             "column `{name}` has {} values but the table has {n} rows",
-            values.len()
+            values.count()
         )));
     }
-    Ok(values.iter().map(|v| v.and_then(finite)).collect())
+    Ok((0..n).map(|i| values.value(i).and_then(finite)).collect())
 }
 
 /// `Some(x)` when `x` is finite, else missing.
@@ -212,7 +212,7 @@ mod tests {
 
     fn run(src: &str) -> Column {
         let data = table();
-        let lookup = |name: &str| data.get(name).map(Vec::as_slice);
+        let lookup = |name: &str| data.get(name).map(|c| c as &dyn Values);
         parse(src)
             .expect("valid")
             .eval(4, &lookup)
@@ -397,7 +397,7 @@ mod tests {
     #[test]
     fn unknown_names_are_errors_naming_them() {
         let data = table();
-        let lookup = |name: &str| data.get(name).map(Vec::as_slice);
+        let lookup = |name: &str| data.get(name).map(|c| c as &dyn Values);
         let e = parse("x + kwh_typo")
             .expect("valid")
             .eval(4, &lookup)
@@ -412,7 +412,7 @@ mod tests {
     #[test]
     fn a_column_of_the_wrong_length_is_an_error() {
         let short = [Some(1.0)];
-        let lookup = |_: &str| Some(&short[..]);
+        let lookup = |_: &str| Some(&short as &dyn Values);
         let e = parse("x")
             .expect("valid")
             .eval(2, &lookup)
@@ -427,7 +427,7 @@ mod tests {
     #[test]
     fn zero_rows_give_an_empty_column() {
         let empty: [Option<f64>; 0] = [];
-        let lookup = |_: &str| Some(&empty[..]);
+        let lookup = |_: &str| Some(&empty as &dyn Values);
         let out = parse("lag(x, 2) + 1").expect("valid").eval(0, &lookup);
         assert_eq!(out, Ok(Vec::new()));
     }

@@ -67,9 +67,9 @@ fn columns(
         let values = {
             let lookup = |name: &str| {
                 if name == crate::plan::EFFECT {
-                    Some(effect_column.as_slice())
+                    Some(&effect_column as &dyn crate::expr::Values)
                 } else {
-                    done.get(name).map(Vec::as_slice)
+                    done.get(name).map(|c| c as &dyn crate::expr::Values)
                 }
             };
             let source = Source {

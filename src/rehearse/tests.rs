@@ -298,7 +298,7 @@ fn clusters_are_assigned_whole() {
     for s in 1..=40 {
         let arms: std::collections::BTreeSet<u64> = (0..400)
             .filter(|&i| school[i].as_deref() == Some(s.to_string().as_str()))
-            .map(|i| treated[i].expect("drawn") as u64)
+            .map(|i| treated.get(i).expect("drawn") as u64)
             .collect();
         assert_eq!(arms.len(), 1, "school {s} split across arms");
     }
@@ -323,7 +323,9 @@ fn draws_parse_only_for_rehearsals_and_print_back() {
     // Evaluating a draw without a rehearsal's stream is an error, never a number.
     let col = [Some(1.0)];
     let e = crate::expr::parse_random("bernoulli(0.5)").expect("parses");
-    assert!(e.eval(1, &|_| Some(&col[..])).is_err());
+    assert!(e
+        .eval(1, &|_| Some(&col as &dyn crate::expr::Values))
+        .is_err());
 }
 
 #[test]
@@ -340,7 +342,7 @@ fn latent_variables_drive_columns_but_stay_out_of_the_table() {
     let p = plan(&text);
     let t = simulated_tables(&p, 0, 0.0).expect("tables");
     assert!(!t["people"].numeric.contains_key("grit"));
-    assert!(t["people"].numeric["y"].iter().all(Option::is_some));
+    assert!(t["people"].numeric["y"].iter().all(|v| v.is_some()));
     // A latent variable may not reuse a declared column's name.
     let clash = TWO_ARM.replace(
         "arm = \"assigned(0.5)\"",

@@ -111,7 +111,7 @@ fn data_units(prepared: &Prepared, name: &str) -> Option<DVector<f64>> {
     d.fixed_effects.is_empty().then(|| {
         DVector::from_iterator(
             d.rows.len(),
-            d.rows.iter().map(|&r| column[r].unwrap_or(f64::NAN)),
+            d.rows.iter().map(|&r| column.get(r).unwrap_or(f64::NAN)),
         )
     })
 }

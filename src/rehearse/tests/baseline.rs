@@ -75,7 +75,7 @@ fn a_baseline_rehearsal_keeps_the_rows_records_the_hash_and_has_two_arm_power() 
     assert_eq!((a.rows, b.rows), (200, 200));
     assert_eq!(a.numeric["x"], b.numeric["x"], "baseline rows stay fixed");
     assert_eq!(
-        a.numeric["x"][5],
+        a.numeric["x"].get(5),
         Some(f64::from((5 * 37) % 23) / 10.0 - 1.1)
     );
     assert_ne!(a.numeric["arm"], b.numeric["arm"], "the arm is re-drawn");
