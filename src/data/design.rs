@@ -70,20 +70,29 @@ pub struct Design {
 }
 
 fn column<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Numbers> {
-    table.numeric.get(name).ok_or_else(|| Error::Estimation {
-        spec: spec.id.clone(),
-        message: format!(
-            "variable `{name}` is not available in data table `{}`",
-            table.id
-        ),
-    })
+    available(table.numeric.get(name), ("variable", name), table, spec)
 }
 
 fn labels<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Labels> {
-    table.labels.get(name).ok_or_else(|| Error::Estimation {
+    available(
+        table.labels.get(name),
+        ("grouping column", name),
+        table,
+        spec,
+    )
+}
+
+/// `found`, or an error naming what was looked for in `table`.
+fn available<'t, T>(
+    found: Option<&'t T>,
+    (what, name): (&str, &str),
+    table: &Table,
+    spec: &Spec,
+) -> Result<&'t T> {
+    found.ok_or_else(|| Error::Estimation {
         spec: spec.id.clone(),
         message: format!(
-            "grouping column `{name}` is not available in data table `{}`",
+            "{what} `{name}` is not available in data table `{}`",
             table.id
         ),
     })

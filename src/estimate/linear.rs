@@ -162,10 +162,7 @@ pub fn ols(
     cov: &CovSpec,
     absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
-    validate(y, &[("x", x)])?;
-    require_observations(x.nrows(), x.ncols() + absorbed.df)?;
-    let ls = least_squares(y, x)?;
-    assemble(y, x, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
+    ols_with(y, x, (has_intercept, cov, absorbed), || least_squares(y, x))
 }
 
 /// [`ols`] on a design the caller shares (kept by the memo without a copy and recognised
@@ -180,9 +177,21 @@ pub fn ols_shared(
     cov: &CovSpec,
     absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
+    ols_with(y, x, (has_intercept, cov, absorbed), || {
+        least_squares_shared(y, x)
+    })
+}
+
+/// [`ols`] with the least-squares fit from `fit` (run after the inputs are checked).
+fn ols_with(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+    (has_intercept, cov, absorbed): (bool, &CovSpec, &Absorbed),
+    fit: impl FnOnce() -> Result<LeastSquares, EstimateError>,
+) -> Result<LinearFit, EstimateError> {
     validate(y, &[("x", x)])?;
     require_observations(x.nrows(), x.ncols() + absorbed.df)?;
-    let ls = least_squares_shared(y, x)?;
+    let ls = fit()?;
     assemble(y, x, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
 }
 

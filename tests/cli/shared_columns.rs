@@ -6,28 +6,8 @@
 
 use crate::common::Study;
 use crate::reference::fixture;
-use crate::weighted_fixed_effects::csv;
+use crate::weighted_fixed_effects::{csv, head};
 use std::fmt::Write;
-
-const HEAD: &str = r#"format = 1
-
-[study]
-title = "Shared column blocks"
-
-[data.main]
-path = "data.csv"
-
-[data.main.columns]
-g  = { kind = "integer" }
-r  = { kind = "integer" }
-s  = { kind = "integer" }
-y  = { kind = "number" }
-x  = { kind = "number" }
-c  = { kind = "number" }
-z1 = { kind = "number" }
-z2 = { kind = "number" }
-w  = { kind = "number" }
-"#;
 
 /// Interleaved so that each plain specification follows one that changes its blocks.
 const SPECS: [(&str, &str); 9] = [
@@ -43,7 +23,7 @@ const SPECS: [(&str, &str); 9] = [
 ];
 
 fn plan(specs: &[(&str, &str)]) -> String {
-    let mut out = HEAD.to_string();
+    let mut out = head("Shared column blocks");
     for (id, body) in specs {
         let _ = write!(
             out,

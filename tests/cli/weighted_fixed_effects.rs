@@ -12,25 +12,30 @@ use crate::reference::{close, fixture};
 use serde_json::Value;
 use std::fmt::Write;
 
-const HEAD: &str = r#"format = 1
+/// A plan's head over the fixture's columns (read from `data.csv`), titled `title`.
+pub(crate) fn head(title: &str) -> String {
+    format!(
+        r#"format = 1
 
 [study]
-title = "Weighted fixed effects reference"
+title = "{title}"
 
 [data.main]
 path = "data.csv"
 
 [data.main.columns]
-g  = { kind = "integer" }
-r  = { kind = "integer" }
-s  = { kind = "integer" }
-y  = { kind = "number" }
-x  = { kind = "number" }
-c  = { kind = "number" }
-z1 = { kind = "number" }
-z2 = { kind = "number" }
-w  = { kind = "number" }
-"#;
+g  = {{ kind = "integer" }}
+r  = {{ kind = "integer" }}
+s  = {{ kind = "integer" }}
+y  = {{ kind = "number" }}
+x  = {{ kind = "number" }}
+c  = {{ kind = "number" }}
+z1 = {{ kind = "number" }}
+z2 = {{ kind = "number" }}
+w  = {{ kind = "number" }}
+"#
+    )
+}
 
 /// The error kinds checked for weighted OLS with one fixed effect (`ols_one` in the
 /// fixture); with two, HC2 and HC3 are refused (no absorbed leverage), so the first four.
@@ -57,7 +62,7 @@ fn errors(kind: &str) -> String {
 
 /// One weighted specification per (estimator, fixed effects, errors) case.
 fn plan() -> String {
-    let mut out = HEAD.to_string();
+    let mut out = head("Weighted fixed effects reference");
     for kind in ["classical", "hc2", "hc3"] {
         let _ = write!(
             out,
