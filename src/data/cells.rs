@@ -4,16 +4,19 @@
 //! that is not a number an error naming its row). A leaf below `read.rs`.
 
 use super::plain_csv::{PlainColumn, PlainCsv};
-use super::{Labels, Table};
+use super::{Labels, Numbers, Table};
 use crate::deviation::{Deviation, DeviationCode};
 use crate::error::{Error, Result};
 use crate::plan::{Column, ColumnKind, DataFormat, DataSource};
 use polars::prelude::*;
 
-/// Raw values of one column: text (CSV, or text columns in Parquet) or numbers.
+/// Raw values of one column: text (CSV, or text columns in Parquet), numbers as a reader
+/// gave them (NaN and infinities possible, refused for a numeric column), or numbers
+/// already stored as a table keeps them (finite or missing: the plain CSV parser's).
 pub(super) enum RawValues {
     Text(Vec<Option<String>>),
     Numbers(Vec<Option<f64>>),
+    Stored(Numbers),
 }
 
 pub(super) fn data_err(src: &DataSource, message: impl Into<String>) -> Error {
@@ -100,7 +103,7 @@ impl Cells {
             }
             Cells::Plain(plain) => match plain.take(name) {
                 None => Ok(None),
-                Some(PlainColumn::Numbers(v)) => Ok(Some(RawValues::Numbers(v))),
+                Some(PlainColumn::Numbers(v)) => Ok(Some(RawValues::Stored(Numbers::stored(v)))),
                 Some(PlainColumn::Text(v)) => Ok(Some(RawValues::Text(v))),
                 Some(PlainColumn::NotANumber(row, text)) => {
                     Err(not_a_number(src, name, row, &text))
@@ -288,9 +291,9 @@ pub(super) fn not_a_number(src: &DataSource, name: &str, i: usize, shown: &str) 
 /// Numbers of a numeric column; the first non-finite value is an error naming its place and
 /// value. NaN and infinities are refused alike from CSV text and Parquet numbers, since
 /// neither is a measurement.
-pub(super) fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Vec<Option<f64>>> {
+pub(super) fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result<Numbers> {
     match raw {
-        RawValues::Numbers(mut v) => {
+        RawValues::Numbers(v) => {
             if let Some((i, x)) = v
                 .iter()
                 .enumerate()
@@ -298,9 +301,9 @@ pub(super) fn to_numbers(src: &DataSource, name: &str, raw: RawValues) -> Result
             {
                 return Err(not_a_number(src, name, i, &format!("{x}")));
             }
-            v.shrink_to_fit();
-            Ok(v)
+            Ok(Numbers::from(v))
         }
+        RawValues::Stored(n) => Ok(n),
         RawValues::Text(v) => v
             .into_iter()
             .enumerate()
@@ -323,7 +326,8 @@ pub(super) fn to_labels(
     match raw {
         RawValues::Text(v) if kind == ColumnKind::Id => Labels::by_row(v),
         RawValues::Text(v) => Labels::from_text(v),
-        RawValues::Numbers(v) => Labels::from_numbers(&v),
+        RawValues::Numbers(v) => Labels::from_numbers(v.iter().copied()),
+        RawValues::Stored(n) => Labels::from_numbers(n.iter()),
     }
     .map_err(|_| too_many_labels(src, name))
 }
@@ -386,10 +390,10 @@ pub(super) fn load_column(
         )));
     }
     if col.kind.is_grouping() {
-        let labels = Labels::from_numbers(&values).map_err(|_| too_many_labels(src, name))?;
+        let labels = Labels::from_numbers(values.iter()).map_err(|_| too_many_labels(src, name))?;
         table.labels.insert(name.to_string(), labels);
     }
-    table.numeric.insert(name.to_string(), values.into());
+    table.numeric.insert(name.to_string(), values);
     Ok(())
 }
 

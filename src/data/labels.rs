@@ -104,7 +104,9 @@ impl Labels {
     }
 
     /// Labels of a numeric column: each distinct number written once, as `{}` writes it.
-    pub(crate) fn from_numbers(values: &[Option<f64>]) -> Result<Self, TooManyLabels> {
+    pub(crate) fn from_numbers(
+        values: impl ExactSizeIterator<Item = Option<f64>>,
+    ) -> Result<Self, TooManyLabels> {
         let mut index: HashMap<Option<u64>, u32> = HashMap::new();
         let mut labels = Labels {
             dict: Vec::new(),
@@ -235,7 +237,9 @@ mod tests {
 
     #[test]
     fn numbers_are_written_once_as_display_writes_them() {
-        let l = Labels::from_numbers(&[Some(1.0), Some(0.5), None, Some(1.0), Some(-0.0)]).unwrap();
+        let l =
+            Labels::from_numbers([Some(1.0), Some(0.5), None, Some(1.0), Some(-0.0)].into_iter())
+                .unwrap();
         let shown: Vec<Option<&str>> = l.iter().map(Option::as_deref).collect();
         assert_eq!(
             shown,

@@ -33,6 +33,13 @@ impl Numbers {
         self.0.iter().map(|&v| (!v.is_nan()).then_some(v))
     }
 
+    /// A column from values stored as a table keeps them: each finite, or NaN for a
+    /// missing cell (what the plain CSV parser writes).
+    pub(crate) fn stored(values: Vec<f64>) -> Self {
+        debug_assert!(values.iter().all(|v| v.is_finite() || v.is_nan()));
+        Numbers(values)
+    }
+
     /// The stored values, NaN where a cell is missing: for readers that have already
     /// excluded the missing rows.
     pub fn raw(&self) -> &[f64] {

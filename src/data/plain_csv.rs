@@ -17,8 +17,9 @@ use std::collections::HashMap;
 
 /// One wanted column of a plain file.
 pub(super) enum PlainColumn {
-    /// Parsed numbers (a column declared numeric), `None` for a missing cell.
-    Numbers(Vec<Option<f64>>),
+    /// Parsed numbers (a column declared numeric) as a table keeps them: finite values
+    /// (the parser refuses others) and NaN for a missing cell.
+    Numbers(Vec<f64>),
     /// Trimmed text, `None` for a missing cell.
     Text(Vec<Option<String>>),
     /// A numeric column holding a cell that is not a number: its first row (0-based, in
@@ -209,7 +210,7 @@ impl Builder {
         let total = self.rows + counts.iter().sum::<usize>();
         for column in &mut self.columns {
             match column {
-                PlainColumn::Numbers(v) => v.resize(total, None),
+                PlainColumn::Numbers(v) => v.resize(total, f64::NAN),
                 PlainColumn::Text(v) => v.resize_with(total, || None),
                 PlainColumn::NotANumber(..) => {}
             }
@@ -299,7 +300,7 @@ fn slots(width: usize, picked: &[(usize, &str, bool)]) -> Vec<usize> {
 
 /// One piece's rows of one column.
 enum Out<'a> {
-    Numbers(&'a mut [Option<f64>]),
+    Numbers(&'a mut [f64]),
     Text(&'a mut [Option<String>]),
 }
 
@@ -314,7 +315,7 @@ fn split_rows<'a>(
     for column in columns.iter_mut() {
         match column {
             PlainColumn::Numbers(v) => {
-                let mut rest: &mut [Option<f64>] = &mut v[start..];
+                let mut rest: &mut [f64] = &mut v[start..];
                 for (outs, &n) in per_piece.iter_mut().zip(counts) {
                     let (head, tail) = std::mem::take(&mut rest).split_at_mut(n);
                     outs.push(Out::Numbers(head));
@@ -359,13 +360,17 @@ fn fill(
             let cell = present(field, dialect.missing);
             match out {
                 Out::Numbers(values) => {
-                    *values.get_mut(row)? = cell.and_then(|s| {
-                        let x = parse_number(s, dialect.decimal_comma);
-                        if x.is_none() && bad[k].is_none() {
-                            bad[k] = Some((first_row + row, s.to_string()));
-                        }
-                        x
-                    });
+                    // A missing cell, or one that is not a finite number (recorded and
+                    // refused), is stored as NaN.
+                    *values.get_mut(row)? = cell
+                        .and_then(|s| {
+                            let x = parse_number(s, dialect.decimal_comma);
+                            if x.is_none() && bad[k].is_none() {
+                                bad[k] = Some((first_row + row, s.to_string()));
+                            }
+                            x
+                        })
+                        .unwrap_or(f64::NAN);
                 }
                 Out::Text(values) => *values.get_mut(row)? = cell.map(String::from),
             }
@@ -458,8 +463,9 @@ mod tests {
             let Some(PlainColumn::Numbers(a)) = p.take("a") else {
                 panic!("numbers")
             };
-            let last = Some((n - 1) as f64 + 0.25);
-            assert_eq!((a[3], a[7], a[8], a[n - 1]), (None, None, Some(8.25), last));
+            let last = (n - 1) as f64 + 0.25;
+            assert!(a[3].is_nan() && a[7].is_nan(), "missing cells are NaN");
+            assert_eq!((a[8], a[n - 1]), (8.25, last));
             let Some(PlainColumn::Text(b)) = p.take("b") else {
                 panic!("text")
             };

@@ -146,7 +146,7 @@ fn baseline_values(
     raw: RawValues,
 ) -> Result<Vec<Option<f64>>> {
     let kind = src.columns.get(name).map(|c| c.kind);
-    let values = match raw {
+    let values: Vec<Option<f64>> = match raw {
         RawValues::Text(v) => {
             let mut codes: BTreeMap<String, f64> = BTreeMap::new();
             v.into_iter()
@@ -158,7 +158,7 @@ fn baseline_values(
                 })
                 .collect()
         }
-        numbers => to_numbers(file, name, numbers)?,
+        numbers => to_numbers(file, name, numbers)?.iter().collect(),
     };
     let bad = |x: f64| match kind {
         Some(ColumnKind::Binary) => x != 0.0 && x != 1.0,
