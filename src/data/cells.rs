@@ -221,15 +221,17 @@ pub(super) fn raw_values(
     let ca = cast.str().map_err(err)?;
     let cell = |v| present(src, v);
     if numeric {
-        return parse_numbers(src, name, &ca.rechunk()).map(|v| Some(RawValues::Numbers(v)));
+        return parse_numbers(src, name, &ca.rechunk()).map(|v| Some(RawValues::Stored(v)));
     }
     let values = ca.iter().map(|v| cell(v).map(String::from)).collect();
     Ok(Some(RawValues::Text(values)))
 }
 
-/// The cells of a text column declared numeric, parsed on all cores; the error names the
-/// first unparsable cell in row order whatever the thread count.
-fn parse_numbers(src: &DataSource, name: &str, ca: &StringChunked) -> Result<Vec<Option<f64>>> {
+/// The cells of a text column declared numeric, parsed on all cores straight into the
+/// table's store (a cell that is not a finite number is refused, so what is stored is finite
+/// or NaN for missing); the error names the first unparsable cell in row order whatever the
+/// thread count.
+fn parse_numbers(src: &DataSource, name: &str, ca: &StringChunked) -> Result<Numbers> {
     use rayon::prelude::*;
     use std::sync::atomic::{AtomicUsize, Ordering};
     let first_bad = AtomicUsize::new(usize::MAX);
@@ -248,12 +250,12 @@ fn parse_numbers(src: &DataSource, name: &str, ca: &StringChunked) -> Result<Vec
         values.par_extend(
             (0..n)
                 .into_par_iter()
-                .map(|i| parse((offset + i, arr.get(i)))),
+                .map(|i| parse((offset + i, arr.get(i))).unwrap_or(f64::NAN)),
         );
         offset += n;
     }
     match first_bad.into_inner() {
-        usize::MAX => Ok(values),
+        usize::MAX => Ok(Numbers::stored(values)),
         i => {
             let shown = ca.get(i).map(str::trim).unwrap_or_default();
             Err(not_a_number(src, name, i, shown))
