@@ -3,7 +3,7 @@
 //! binary instrument. The tables' `comparison-mean` and `take-up-by-arm` rows only format
 //! these numbers (contract in `results::ArmSummary`).
 
-use crate::data::{Design, Table};
+use crate::data::{Design, Numbers, Table};
 use crate::plan::Spec;
 use crate::results::{ArmMean, ArmSummary};
 
@@ -122,6 +122,11 @@ fn choose_by<'s>(
     }
 }
 
+/// The value of `col` in row `r`, `None` when missing or past the column's end.
+fn cell(col: &Numbers, r: usize) -> Option<f64> {
+    (r < col.len()).then(|| col.get(r)).flatten()
+}
+
 /// The arm (0 or 1) of each estimation row, or why `by` does not split them in two.
 fn arm_of(table: &Table, by: &str, rows: &[usize]) -> Result<Vec<u8>, Why> {
     let col = table.numeric.get(by).ok_or_else(|| {
@@ -132,7 +137,7 @@ fn arm_of(table: &Table, by: &str, rows: &[usize]) -> Result<Vec<u8>, Why> {
     })?;
     let mut arm = Vec::with_capacity(rows.len());
     for &r in rows {
-        match (r < col.len()).then(|| col.get(r)).flatten() {
+        match cell(col, r) {
             Some(0.0) => arm.push(0),
             Some(1.0) => arm.push(1),
             _ => {
@@ -180,12 +185,7 @@ fn take_up(
     let values: Vec<f64> = d
         .rows
         .iter()
-        .map(|&r| {
-            (r < col.len())
-                .then(|| col.get(r))
-                .flatten()
-                .unwrap_or(f64::NAN)
-        })
+        .map(|&r| cell(col, r).unwrap_or(f64::NAN))
         .collect();
     Ok([
         arm_mean(x, &values, arm, 0, clusters, z)?,

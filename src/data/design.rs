@@ -12,7 +12,7 @@
 //! effects and is reported by name.
 //! Collinearity among the remaining columns is resolved left to right by the caller.
 
-use super::{IdOrder, Labels, Numbers, Table};
+use super::{available, IdOrder, Labels, Numbers, Table};
 use crate::error::{Error, Result};
 use crate::estimate::{Absorbed, CovSpec, FixedEffects};
 use crate::expr::Values;
@@ -70,32 +70,12 @@ pub struct Design {
 }
 
 fn column<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Numbers> {
-    available(table.numeric.get(name), ("variable", name), table, spec)
+    available(table.numeric.get(name), ("variable", name), table, &spec.id)
 }
 
 fn labels<'t>(table: &'t Table, name: &str, spec: &Spec) -> Result<&'t Labels> {
-    available(
-        table.labels.get(name),
-        ("grouping column", name),
-        table,
-        spec,
-    )
-}
-
-/// `found`, or an error naming what was looked for in `table`.
-fn available<'t, T>(
-    found: Option<&'t T>,
-    (what, name): (&str, &str),
-    table: &Table,
-    spec: &Spec,
-) -> Result<&'t T> {
-    found.ok_or_else(|| Error::Estimation {
-        spec: spec.id.clone(),
-        message: format!(
-            "{what} `{name}` is not available in data table `{}`",
-            table.id
-        ),
-    })
+    let found = table.labels.get(name);
+    available(found, ("grouping column", name), table, &spec.id)
 }
 
 /// Rows kept: in the sample and complete in every variable used.

@@ -3,7 +3,8 @@
 //!
 //! Invariants of a loaded [`Table`]: rows are in `order_by` order when one is declared;
 //! numeric columns (declared numeric kinds and derived variables) are contiguous `f64`
-//! ([`Numbers`], NaN marking a missing cell, read back as `None`); grouping columns (category, id, integer, binary) are also available as labels.
+//! ([`Numbers`], NaN marking a missing cell, read back as `None`); grouping columns
+//! (category, id, integer, binary) are also available as labels.
 
 mod cells;
 mod design;
@@ -53,6 +54,23 @@ pub enum LabelIdsError {
     NoColumn,
     /// A requested row has no label.
     Missing,
+}
+
+/// `found`, or the error of `holder` (a specification's id, or `balance`/`attrition`) naming
+/// what was looked for in `table`.
+fn available<'t, T>(
+    found: Option<&'t T>,
+    (what, name): (&str, &str),
+    table: &Table,
+    holder: &str,
+) -> crate::error::Result<&'t T> {
+    found.ok_or_else(|| crate::error::Error::Estimation {
+        spec: holder.to_string(),
+        message: format!(
+            "{what} `{name}` is not available in data table `{}`",
+            table.id
+        ),
+    })
 }
 
 impl Table {

@@ -5,7 +5,7 @@
 //! them in every numeric column (`cells::to_numbers`).
 
 use super::cells::row_place;
-use super::{Numbers, Table};
+use super::{available, Numbers, Table};
 use crate::error::{Error, Result};
 use crate::plan::{DataSource, Spec};
 use nalgebra::DVector;
@@ -126,11 +126,10 @@ fn weight_column<'t>(table: &'t Table, spec: &'t Spec) -> Result<Option<WeightCo
 /// The cells of weights column `name` of `holder` (a specification's id, or
 /// `balance`/`attrition`), or an error naming it.
 fn cells<'t>(table: &'t Table, holder: &str, name: &str) -> Result<&'t Numbers> {
-    table.numeric.get(name).ok_or_else(|| Error::Estimation {
-        spec: holder.to_string(),
-        message: format!(
-            "weights column `{name}` is not available in data table `{}`",
-            table.id
-        ),
-    })
+    available(
+        table.numeric.get(name),
+        ("weights column", name),
+        table,
+        holder,
+    )
 }
