@@ -13,7 +13,10 @@
 //! the ratios to the floor and the peak memory against the size of the used columns as f64.
 //! With `--resampling` it also times 9,999 clustered randomization draws and 9,999 wild cluster
 //! bootstrap draws (200,000 rows, 400 clusters) as a ratio to one model-based run of the same
-//! plan.
+//! plan. A run also inverts the randomization test into a 95% interval, one more pass of the
+//! draws per evaluation; the benchmark reads the number of evaluations from results.json and
+//! prints one pass's share (an estimate: the whole run less the model-based run, shared
+//! evenly over the passes).
 //!
 //! Run: `cargo run --release --example bench_engine -- [--rows 100000,1000000,4000000]
 //! [--resampling] [--keep DIR]`. Generated data live under the system temp folder and are
@@ -421,5 +424,25 @@ fn resampling_figures(root: &Path) {
             run.peak_mib,
             if run.ok { "" } else { "  (failed)" }
         );
+        // A run also inverts the randomization test into an interval: each of its
+        // evaluations tests one more null with the same 9,999 draws. Say how many, and what
+        // one pass of the draws costs beside the model-based run.
+        if let Some(evaluations) = interval_evaluations(&out.join("results.json")) {
+            let per_pass = (run.seconds - model_s) / (evaluations as f64 + 1.0);
+            println!(
+                "  {:<15} of which the 95% randomization interval: {evaluations} more passes of the \
+                 draws; one pass ≈ {:.3} s, the test ≈ {:.1}× the model-based run",
+                "",
+                per_pass,
+                (model_s + per_pass) / model_s
+            );
+        }
     }
+}
+
+/// The number of test evaluations behind the run's randomization interval, if it has one.
+fn interval_evaluations(results: &Path) -> Option<u64> {
+    let text = std::fs::read_to_string(results).ok()?;
+    let json: serde_json::Value = serde_json::from_str(&text).ok()?;
+    json["hypotheses"]["H1"]["randomization_interval"]["evaluations"].as_u64()
 }
