@@ -44,12 +44,15 @@
 
 mod assignment;
 mod cells;
+mod family;
 mod interval;
 mod partial;
 mod randomization;
 mod wild;
 mod wre;
 
+#[cfg(test)]
+mod family_tests;
 #[cfg(test)]
 mod reference_tests;
 #[cfg(test)]
@@ -249,16 +252,17 @@ pub(crate) use crate::random::SplitMix64 as Stream;
 /// (`exact(i)` for i in 0..count), else the observed one and B random ones (`random(b)` for
 /// b in 1..=B, `observed` for draw 0). Returns the statistics in draw order and whether the
 /// draws were enumerated.
-pub(crate) fn run_draws<E, R>(
+pub(crate) fn run_draws<T, E, R>(
     count: Option<u128>,
     plan: &Draws,
-    observed: f64,
+    observed: T,
     exact: E,
     random: R,
-) -> Result<(Vec<Option<f64>>, bool), ResampleError>
+) -> Result<(Vec<Option<T>>, bool), ResampleError>
 where
-    E: Fn(u64) -> Option<f64> + Sync + Send,
-    R: Fn(u64) -> Option<f64> + Sync + Send,
+    T: Send,
+    E: Fn(u64) -> Option<T> + Sync + Send,
+    R: Fn(u64) -> Option<T> + Sync + Send,
 {
     match count {
         Some(c) if c <= u128::from(plan.exact_below) => {

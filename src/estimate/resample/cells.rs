@@ -25,6 +25,7 @@ use std::collections::HashMap;
 
 use nalgebra::{DMatrix, DVector};
 
+use super::family::Pencil;
 use super::partial::{CellParts, Partialled, Rows, ZFit};
 
 /// Cell-level statistics of a partialled regression under a grouped design.
@@ -46,11 +47,39 @@ pub(crate) struct Cells {
     ids: Option<Vec<usize>>,
     /// Σ_c σ_c², the residual sum of squares no draw changes.
     rss_extra: f64,
+    /// The second outcome t̃ of a family ỹ − τ₀t̃ (`None` unless asked).
+    second: Option<Second>,
+}
+
+/// The compressed rows of a second outcome t̃ (module `partial`, [`Pencil`]): the within-
+/// cluster factor is then that of [D | e_y | e_t].
+#[derive(Debug, Clone)]
+struct Second {
+    /// √nₕ·t̄ₕ for each cell, then the ρ_t of each cluster.
+    t: DVector<f64>,
+    /// For each cluster the rows [σ_y, σ_yt] and [0, σ_t] of the factor's trailing 2 × 2
+    /// block: the within-cell residual sum of squares of ỹ − τ₀t̃ is Σ of their squared
+    /// norms at (1, −τ₀)'.
+    extra: Vec<[f64; 2]>,
 }
 
 impl Cells {
     /// The statistics of `parts` for the assignment group of each unit (`unit_group`).
     pub(super) fn new(parts: &CellParts<'_>, unit_group: &[usize]) -> Self {
+        Self::build(parts, unit_group, None)
+    }
+
+    /// [`Cells::new`] with a second outcome `t_tilde` (= M_W t, one per unit), for
+    /// [`Cells::pencil`].
+    pub(super) fn with_second(
+        parts: &CellParts<'_>,
+        unit_group: &[usize],
+        t_tilde: &DVector<f64>,
+    ) -> Self {
+        Self::build(parts, unit_group, Some(t_tilde))
+    }
+
+    fn build(parts: &CellParts<'_>, unit_group: &[usize], second: Option<&DVector<f64>>) -> Self {
         let n = unit_group.len();
         let kw = parts.q.map_or(0, |q| q.ncols());
         let (unit_cluster, clusters): (Vec<usize>, usize) = match parts.clusters {
@@ -74,9 +103,13 @@ impl Cells {
         let mut count = vec![0.0; cells];
         let mut q_sum = DMatrix::zeros(kw, cells);
         let mut y_sum = vec![0.0; cells];
+        let mut t_sum = vec![0.0; cells];
         for (i, &h) in unit_cell.iter().enumerate() {
             count[h] += 1.0;
             y_sum[h] += parts.y_tilde[i];
+            if let Some(t) = second {
+                t_sum[h] += t[i];
+            }
             if let Some(q) = parts.q {
                 for r in 0..kw {
                     q_sum[(r, h)] += q[(i, r)];
@@ -88,6 +121,14 @@ impl Cells {
             col /= count[h];
         }
         let y_mean: Vec<f64> = y_sum.iter().zip(&count).map(|(s, c)| s / c).collect();
+        let t_mean: Vec<f64> = t_sum.iter().zip(&count).map(|(s, c)| s / c).collect();
+        let width = kw + 1 + usize::from(second.is_some());
+        let mut t_rows = DVector::zeros(if second.is_some() {
+            cells + clusters * kw
+        } else {
+            0
+        });
+        let mut extra = Vec::new();
         let mut members = vec![Vec::new(); clusters];
         for (i, &c) in unit_cluster.iter().enumerate() {
             members[c].push(i);
@@ -97,12 +138,18 @@ impl Cells {
         for h in 0..cells {
             y[h] = count[h].sqrt() * y_mean[h];
         }
+        if second.is_some() {
+            for h in 0..cells {
+                t_rows[h] = count[h].sqrt() * t_mean[h];
+            }
+        }
         let mut rss_extra = 0.0;
         for (c, units) in members.iter().enumerate() {
-            let dev = DMatrix::from_fn(units.len(), kw + 1, |row, col| {
+            let dev = DMatrix::from_fn(units.len(), width, |row, col| {
                 let (i, h) = (units[row], unit_cell[units[row]]);
-                match parts.q {
-                    Some(q) if col < kw => q[(i, col)] - q_mean[(col, h)],
+                match (parts.q, second) {
+                    (Some(q), _) if col < kw => q[(i, col)] - q_mean[(col, h)],
+                    (_, Some(t)) if col == kw + 1 => t[i] - t_mean[h],
                     _ => parts.y_tilde[i] - y_mean[h],
                 }
             });
@@ -113,8 +160,15 @@ impl Cells {
                     r_within[(c * kw + a, b)] = at(a, b);
                 }
                 y[cells + c * kw + a] = at(a, kw);
+                if second.is_some() {
+                    t_rows[cells + c * kw + a] = at(a, kw + 1);
+                }
             }
             rss_extra += at(kw, kw) * at(kw, kw);
+            if second.is_some() {
+                extra.push([at(kw, kw), at(kw, kw + 1)]);
+                extra.push([0.0, at(kw + 1, kw + 1)]);
+            }
         }
         let ids = parts.clusters.map(|_| {
             let mut ids = cell_cluster.clone();
@@ -130,12 +184,47 @@ impl Cells {
             y,
             ids,
             rss_extra,
+            second: second.map(|_| Second { t: t_rows, extra }),
         }
     }
 
     /// Fits the draw whose assignment group g carries the row `a[g]` (G × L), as
     /// [`Partialled::fit`] would fit the units' columns.
     pub(super) fn fit(&self, part: &Partialled, a: &DMatrix<f64>, with_cov: bool) -> Option<ZFit> {
+        let (zt, norms) = self.compressed(a);
+        let rows = Rows {
+            zt: &zt,
+            z_norms: &norms,
+            y: &self.y,
+            ids: self.ids.as_deref(),
+            rss_extra: self.rss_extra,
+        };
+        part.fit_rows(&rows, with_cov)
+    }
+
+    /// As [`Cells::fit`], the family of outcomes ỹ − τ₀t̃ of a [`Pencil`] (`None` also when
+    /// the cells were built without the second outcome).
+    pub(super) fn pencil(
+        &self,
+        part: &Partialled,
+        a: &DMatrix<f64>,
+        with_cov: bool,
+    ) -> Option<Pencil> {
+        let second = self.second.as_ref()?;
+        let (zt, norms) = self.compressed(a);
+        let rows = Rows {
+            zt: &zt,
+            z_norms: &norms,
+            y: &self.y,
+            ids: self.ids.as_deref(),
+            rss_extra: self.rss_extra,
+        };
+        part.pencil_rows(&rows, &second.t, &second.extra, with_cov)
+    }
+
+    /// The compressed rows of the re-drawn columns (cells, then each cluster's within
+    /// rows) and the norms of the units' columns before partialling.
+    fn compressed(&self, a: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
         let (kw, cells) = self.q_sum.shape();
         let l = a.ncols();
         let mut p = DMatrix::zeros(kw, l);
@@ -164,14 +253,7 @@ impl Cells {
         for v in &mut norms {
             *v = v.sqrt();
         }
-        let rows = Rows {
-            zt: &zt,
-            z_norms: &norms,
-            y: &self.y,
-            ids: self.ids.as_deref(),
-            rss_extra: self.rss_extra,
-        };
-        part.fit_rows(&rows, with_cov)
+        (zt, norms)
     }
 }
 

@@ -7,6 +7,11 @@
 //! tested on the same draws: enumerated draws in the same order, random draws from the same
 //! seeded per-draw streams, so the p-value is a deterministic function of τ₀.
 //!
+//! The draws are fitted once: each keeps the pieces of its fit that are linear in τ₀
+//! ([`NullFamily`](super::family::NullFamily)), so a candidate costs O(draws) rather
+//! than a pass of every draw over its rows. Under two-way and HAC errors, whose draws refit
+//! in full, each candidate is tested by its own pass.
+//!
 //! Search: from the estimate b̂ (the observed statistic is 0 there, so it is not rejected),
 //! step outward b̂ ± s·2ᵏ (s the model standard error, k = 0, 1, …, [`MAX_DOUBLINGS`]) until
 //! a candidate is rejected, then bisect between the last candidate not rejected and the
@@ -21,6 +26,7 @@ use nalgebra::{DMatrix, DVector};
 use super::super::covariance::CovSpec;
 use super::super::Absorbed;
 use super::assignment::AssignmentDesign;
+use super::family::{randomization_family, NullFamily};
 use super::randomization::{randomization_statistics, RiStatistic};
 use super::{summarise, Draws, ResampleError};
 
@@ -67,13 +73,35 @@ pub struct IntervalProblem<'a> {
 }
 
 impl IntervalProblem<'_> {
-    fn p_value(&self, null: f64) -> Result<f64, ResampleError> {
+    fn columns(&self) -> crate::estimate::OlsColumns<'_> {
         let cols = crate::estimate::OlsColumns::new(self.y, self.x);
+        match self.weights {
+            Some(w) => cols.weighted(w),
+            None => cols,
+        }
+    }
+
+    /// Every draw fitted once for all candidates (`None` under two-way or HAC errors).
+    fn family(&self) -> Result<Option<NullFamily>, ResampleError> {
+        randomization_family(
+            self.columns(),
+            self.treatment,
+            self.cov,
+            self.absorbed,
+            self.design,
+            self.statistic,
+            self.plan,
+        )
+    }
+
+    /// The two-sided p-value of the sharp null τ₀ = `null`, from `family` when there is one.
+    fn p_value(&self, family: Option<&NullFamily>, null: f64) -> Result<f64, ResampleError> {
+        if let Some(f) = family {
+            let (observed, stats, exact) = f.statistics(null)?;
+            return Ok(summarise(observed, &stats, exact).p_value);
+        }
         let (observed, stats, exact) = randomization_statistics(
-            match self.weights {
-                Some(w) => cols.weighted(w),
-                None => cols,
-            },
+            self.columns(),
             crate::estimate::Tested::new(self.treatment, null),
             self.cov,
             self.absorbed,
@@ -101,8 +129,10 @@ pub fn randomization_interval(
     if !(scale.is_finite() && scale > 0.0 && estimate.is_finite()) {
         return Ok(None);
     }
+    let family = problem.family()?;
+    let p_value = |null: f64| problem.p_value(family.as_ref(), null);
     let mut evaluations = 1;
-    if problem.p_value(estimate)? <= alpha {
+    if p_value(estimate)? <= alpha {
         return Ok(None);
     }
     let tolerance = RELATIVE_TOLERANCE * scale;
@@ -112,7 +142,7 @@ pub fn randomization_interval(
         for k in 0..=MAX_DOUBLINGS {
             let candidate = estimate + dir * scale * 2f64.powi(k);
             evaluations += 1;
-            if problem.p_value(candidate)? <= alpha {
+            if p_value(candidate)? <= alpha {
                 outside = Some(candidate);
                 break;
             }
@@ -127,7 +157,7 @@ pub fn randomization_interval(
                 break;
             }
             evaluations += 1;
-            if problem.p_value(mid)? <= alpha {
+            if p_value(mid)? <= alpha {
                 outside = mid;
             } else {
                 inside = mid;

@@ -20,6 +20,7 @@ use super::super::linear::ols;
 use super::super::qr::PivotedQr;
 use super::super::refine::residual;
 use super::super::{Absorbed, EstimateError};
+use super::family::{Pencil, Spread};
 
 /// The covariance kinds, with cluster ids made dense.
 #[derive(Debug, Clone)]
@@ -183,6 +184,47 @@ impl Partialled {
         self.fit_rows(&rows, with_cov)
     }
 
+    /// The statistics of Z (one column, n × 1) from which the test of every sharp null
+    /// follows (see [`Pencil`]); `t_tilde` is M_W t for the column t the null moves the
+    /// outcome by. `None` as [`Partialled::fit`], and always under two-way or HAC errors.
+    pub(crate) fn pencil(
+        &self,
+        z: &DMatrix<f64>,
+        t_tilde: &DVector<f64>,
+        with_cov: bool,
+    ) -> Option<Pencil> {
+        if matches!(self.kind, Kind::TwoWay(_)) || z.ncols() != 1 {
+            return None;
+        }
+        let zt = match &self.q {
+            Some(q) => z - q * (q.transpose() * z),
+            None => z.clone(),
+        };
+        let norms = [z.column(0).norm()];
+        let rows = Rows {
+            zt: &zt,
+            z_norms: &norms,
+            y: &self.y_tilde,
+            ids: self.cluster_ids(),
+            rss_extra: 0.0,
+        };
+        self.pencil_rows(&rows, t_tilde, &[], with_cov)
+    }
+
+    /// M_W v: `v` with the controls partialled out.
+    pub(crate) fn partial_out(&self, v: &DVector<f64>) -> DVector<f64> {
+        match &self.q {
+            Some(q) => v - q * (q.transpose() * v),
+            None => v.clone(),
+        }
+    }
+
+    /// Whether every draw refits [Z | W] in full (two-way and HAC errors): those have no
+    /// [`Pencil`].
+    pub(crate) fn refits(&self) -> bool {
+        matches!(self.kind, Kind::TwoWay(_))
+    }
+
     /// The cluster of each unit under a one-way clustered covariance.
     fn cluster_ids(&self) -> Option<&[usize]> {
         match &self.kind {
@@ -305,6 +347,96 @@ impl Partialled {
             Kind::TwoWay(_) => return None,
         };
         Some((g, Some(&t * meat * t.transpose())))
+    }
+
+    /// [`Partialled::fit_rows`] for one re-drawn column and the outcome family ỹ − τ₀t̃
+    /// (`rows.y` = ỹ, `t` = t̃ in the same rows; `extra`: rows [σ_y, σ_yt] and [0, σ_t] of
+    /// the within-cell parts that only the classical residual sum of squares sees, in
+    /// place of `rows.rss_extra`). See [`Pencil`] for what is kept.
+    pub(super) fn pencil_rows(
+        &self,
+        rows: &Rows<'_>,
+        t: &DVector<f64>,
+        extra: &[[f64; 2]],
+        with_cov: bool,
+    ) -> Option<Pencil> {
+        let zt = rows.zt;
+        let (m, l) = zt.shape();
+        let n = self.y.len();
+        let k = self.w.ncols() + l;
+        if l != 1 || m < 1 || t.len() != m {
+            return None;
+        }
+        let tol = 16.0 * n.max(k) as f64 * f64::EPSILON;
+        let zc = zt.column(0);
+        if zc.norm() <= tol * rows.z_norms[0] {
+            return None;
+        }
+        let zz = zc.norm_squared();
+        let (gy, gt) = (zc.dot(rows.y) / zz, zc.dot(t) / zz);
+        if !with_cov {
+            return Some(Pencil {
+                gy,
+                gt,
+                spread: None,
+            });
+        }
+        let (zs, ys, ts) = (zc.as_slice(), rows.y.as_slice(), t.as_slice());
+        let uy = |i: usize| ys[i] - zs[i] * gy;
+        let ut = |i: usize| ts[i] - zs[i] * gt;
+        // S has the rows whose squared norm, for the outcome ỹ − τ₀t̃, is the meat: column
+        // one for ỹ, column two for t̃, so the meat is ‖S·(1, −τ₀)'‖².
+        let (sy, st, c): (Vec<f64>, Vec<f64>, f64) = match &self.kind {
+            Kind::Classical => {
+                let (mut sy, mut st): (Vec<f64>, Vec<f64>) = (0..m).map(|i| (uy(i), ut(i))).unzip();
+                for row in extra {
+                    sy.push(row[0]);
+                    st.push(row[1]);
+                }
+                (sy, st, 1.0 / (self.df_resid as f64 * zz))
+            }
+            Kind::Hc { power, scaled } => {
+                let (norm, tol_h) = (zz.sqrt(), n.max(k) as f64 * f64::EPSILON);
+                let mut sy = Vec::with_capacity(m);
+                let mut st = Vec::with_capacity(m);
+                for (i, &z) in zs.iter().enumerate() {
+                    let mut f = z;
+                    if *power > 0 {
+                        let q1 = z / norm;
+                        let one_minus_h = 1.0 - self.h_fixed[i] - q1 * q1;
+                        if one_minus_h <= tol_h {
+                            return None;
+                        }
+                        f /= one_minus_h.powi(*power).sqrt();
+                    }
+                    sy.push(f * uy(i));
+                    st.push(f * ut(i));
+                }
+                let c = if *scaled {
+                    n as f64 / self.df_resid as f64
+                } else {
+                    1.0
+                };
+                (sy, st, c / (zz * zz))
+            }
+            Kind::Cluster { g: groups, .. } => {
+                let ids = rows.ids?;
+                let (mut sy, mut st) = (vec![0.0_f64; *groups], vec![0.0_f64; *groups]);
+                for (i, &c) in ids.iter().enumerate().take(m) {
+                    sy[c] += zs[i] * uy(i);
+                    st[c] += zs[i] * ut(i);
+                }
+                let gf = *groups as f64;
+                let c = gf / (gf - 1.0) * ((n - 1) as f64 / self.df_cluster as f64);
+                (sy, st, c / (zz * zz))
+            }
+            Kind::TwoWay(_) => return None,
+        };
+        Some(Pencil {
+            gy,
+            gt,
+            spread: Some(Spread::new(&sy, &st, c)),
+        })
     }
 
     /// The two-way and HAC fallback: OLS of y on [Z | W] with the full covariance.

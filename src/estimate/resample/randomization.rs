@@ -16,6 +16,7 @@ use super::super::wald::wald;
 use super::super::{Absorbed, EstimateError};
 use super::assignment::{Assigner, AssignmentDesign};
 use super::cells::Cells;
+use super::family::Pencil;
 use super::partial::{Partialled, ZFit};
 use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
 use super::{scale_rows, OlsColumns, Tested};
@@ -37,7 +38,7 @@ fn without_column(x: &DMatrix<f64>, j: usize) -> DMatrix<f64> {
 /// Fits the re-drawn columns of a draw given as group labels: from cell-level statistics
 /// (module `cells`) when the design is cluster-randomised and the covariance allows it,
 /// else unit by unit.
-struct DrawFitter<'a> {
+pub(super) struct DrawFitter<'a> {
     part: &'a Partialled,
     assigner: &'a Assigner,
     cells: Option<Cells>,
@@ -49,9 +50,30 @@ struct DrawFitter<'a> {
 
 impl<'a> DrawFitter<'a> {
     fn new(part: &'a Partialled, assigner: &'a Assigner, root: Option<&'a DVector<f64>>) -> Self {
+        Self::build(part, assigner, root, None)
+    }
+
+    /// A fitter of [`Pencil`]s for the outcome family ỹ − τ₀t̃ (`t_tilde` = t̃).
+    pub(super) fn with_second(
+        part: &'a Partialled,
+        assigner: &'a Assigner,
+        root: Option<&'a DVector<f64>>,
+        t_tilde: &DVector<f64>,
+    ) -> Self {
+        Self::build(part, assigner, root, Some(t_tilde))
+    }
+
+    fn build(
+        part: &'a Partialled,
+        assigner: &'a Assigner,
+        root: Option<&'a DVector<f64>>,
+        t_tilde: Option<&DVector<f64>>,
+    ) -> Self {
         let cells = if assigner.grouped() && root.is_none() {
-            part.cell_parts()
-                .map(|parts| Cells::new(&parts, assigner.unit_group()))
+            part.cell_parts().map(|parts| match t_tilde {
+                Some(t) => Cells::with_second(&parts, assigner.unit_group(), t),
+                None => Cells::new(&parts, assigner.unit_group()),
+            })
         } else {
             None
         };
@@ -73,12 +95,33 @@ impl<'a> DrawFitter<'a> {
             Some(cells) if !units => {
                 cells.fit(self.part, &self.assigner.group_values(labels), with_cov)
             }
-            _ => {
-                let units = self.assigner.expand(labels);
-                let values = scale_rows(self.assigner.values(&units), self.root);
-                self.part.fit(&values, with_cov)
-            }
+            _ => self.part.fit(&self.unit_values(labels), with_cov),
         }
+    }
+
+    /// As [`DrawFitter::fit`], the draw's [`Pencil`] (the fitter built by
+    /// [`DrawFitter::with_second`] with `t_tilde`).
+    pub(super) fn pencil(
+        &self,
+        labels: &[usize],
+        units: bool,
+        t_tilde: &DVector<f64>,
+        with_cov: bool,
+    ) -> Option<Pencil> {
+        match &self.cells {
+            Some(cells) if !units => {
+                cells.pencil(self.part, &self.assigner.group_values(labels), with_cov)
+            }
+            _ => self
+                .part
+                .pencil(&self.unit_values(labels), t_tilde, with_cov),
+        }
+    }
+
+    /// The re-drawn column of each unit (rows scaled by √w when weighted).
+    fn unit_values(&self, labels: &[usize]) -> DMatrix<f64> {
+        let units = self.assigner.expand(labels);
+        scale_rows(self.assigner.values(&units), self.root)
     }
 }
 
@@ -110,17 +153,38 @@ fn permutation_run<F>(
 where
     F: Fn(&[usize], bool) -> Option<f64> + Sync + Send,
 {
+    let keep = |s: Option<f64>| s.filter(|v| v.is_finite());
+    permutation_draws(assigner, plan, |labels, observed| {
+        let s = stat(labels, observed);
+        if observed {
+            s
+        } else {
+            keep(s)
+        }
+    })
+}
+
+/// [`permutation_run`] for any per-draw result `T`: `stat` on the observed draw (must give
+/// `Some`) and on every re-drawn assignment, in draw order.
+pub(super) fn permutation_draws<T, F>(
+    assigner: &Assigner,
+    plan: &Draws,
+    stat: F,
+) -> Result<(T, Vec<Option<T>>, bool), ResampleError>
+where
+    T: Send + Clone,
+    F: Fn(&[usize], bool) -> Option<T> + Sync + Send,
+{
     let observed =
         stat(&assigner.observed_groups(), true).ok_or(ResampleError::ObservedNotFinite)?;
-    let keep = |s: Option<f64>| s.filter(|v| v.is_finite());
     let (stats, exact) = run_draws(
         assigner.total(),
         plan,
-        observed,
-        |i| keep(stat(&assigner.unrank_groups(i), false)),
+        observed.clone(),
+        |i| stat(&assigner.unrank_groups(i), false),
         |b| {
             let mut stream = Stream::for_draw(plan.seed, b);
-            keep(stat(&assigner.shuffle_groups(&mut stream), false))
+            stat(&assigner.shuffle_groups(&mut stream), false)
         },
     )?;
     Ok((observed, stats, exact))
@@ -180,48 +244,10 @@ pub(crate) fn randomization_statistics(
     statistic: RiStatistic,
     plan: &Draws,
 ) -> Result<DrawStats, ResampleError> {
-    let root = cols.root_weights();
-    let (
-        OlsColumns { y, x, .. },
-        Tested {
-            index: treatment,
-            null,
-        },
-    ) = (cols, tested);
-    validate(y, &[("x", x)])?;
-    let k = x.ncols();
-    if treatment >= k {
-        return Err(EstimateError::IndexOutOfRange {
-            index: treatment,
-            k,
-        }
-        .into());
-    }
-    if !null.is_finite() {
-        return Err(EstimateError::NotFinite.into());
-    }
-    check_weights(cols.weights, y.len())?;
-    let t = x.column(treatment).into_owned();
-    let y0 = y - &t * null;
-    let y0 = match &root {
-        Some(r) => y0.component_mul(r),
-        None => y0,
-    };
-    let w = scale_rows(without_column(x, treatment), root.as_ref());
-    let part = Partialled::new(&y0, &w, 1, cov, absorbed)?;
+    let fixed = Fixed::new(cols, tested, cov, absorbed)?;
+    let assigner = Assigner::new(design, &fixed.observed)?;
+    let fitter = DrawFitter::new(&fixed.part, &assigner, fixed.root.as_ref());
     let with_cov = statistic == RiStatistic::T;
-    let observed_values = DMatrix::from_column_slice(t.len(), 1, t.as_slice());
-    if part
-        .fit(&scale_rows(observed_values.clone(), root.as_ref()), false)
-        .is_none()
-    {
-        return Err(EstimateError::RankDeficient {
-            dependent: vec![treatment],
-        }
-        .into());
-    }
-    let assigner = Assigner::new(design, &observed_values)?;
-    let fitter = DrawFitter::new(&part, &assigner, root.as_ref());
     permutation_run(&assigner, plan, |labels, observed| {
         let (g, v) = fitter.fit(labels, observed, with_cov)?;
         Some(match v {
@@ -229,6 +255,72 @@ pub(crate) fn randomization_statistics(
             None => g[0],
         })
     })
+}
+
+/// The fixed parts of a randomization test of one coefficient under a sharp null.
+pub(super) struct Fixed {
+    /// The regression of the outcome net of the null effect on the other columns.
+    pub(super) part: Partialled,
+    /// √w of each row (`None` unweighted).
+    pub(super) root: Option<DVector<f64>>,
+    /// The tested column as observed, in the data's units (n × 1).
+    pub(super) observed: DMatrix<f64>,
+}
+
+impl Fixed {
+    /// Checks the inputs and partials the other columns out of y − null·t (rows scaled by
+    /// √w when weighted).
+    pub(super) fn new(
+        cols: OlsColumns,
+        tested: Tested,
+        cov: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<Self, ResampleError> {
+        let root = cols.root_weights();
+        let (
+            OlsColumns { y, x, .. },
+            Tested {
+                index: treatment,
+                null,
+            },
+        ) = (cols, tested);
+        validate(y, &[("x", x)])?;
+        let k = x.ncols();
+        if treatment >= k {
+            return Err(EstimateError::IndexOutOfRange {
+                index: treatment,
+                k,
+            }
+            .into());
+        }
+        if !null.is_finite() {
+            return Err(EstimateError::NotFinite.into());
+        }
+        check_weights(cols.weights, y.len())?;
+        let t = x.column(treatment).into_owned();
+        let y0 = y - &t * null;
+        let y0 = match &root {
+            Some(r) => y0.component_mul(r),
+            None => y0,
+        };
+        let w = scale_rows(without_column(x, treatment), root.as_ref());
+        let part = Partialled::new(&y0, &w, 1, cov, absorbed)?;
+        let observed_values = DMatrix::from_column_slice(t.len(), 1, t.as_slice());
+        if part
+            .fit(&scale_rows(observed_values.clone(), root.as_ref()), false)
+            .is_none()
+        {
+            return Err(EstimateError::RankDeficient {
+                dependent: vec![treatment],
+            }
+            .into());
+        }
+        Ok(Fixed {
+            part,
+            root,
+            observed: observed_values,
+        })
+    }
 }
 
 /// Randomization Anderson–Rubin test of the sharp null β = `beta0` for one endogenous
