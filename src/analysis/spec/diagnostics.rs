@@ -26,6 +26,24 @@ pub(super) struct IvContext<'a> {
     pub(super) iv: &'a estimate::IvProblem<'a>,
     /// What decision rules and hypotheses need beyond the plan's own diagnostics.
     pub(super) needs: &'a Needs,
+    /// Which diagnostics are computed first.
+    pub(super) order: DiagnosticOrder,
+}
+
+/// Which of an instrumental specification's diagnostics are computed first. The results and
+/// the error reported (the first in the canonical order) do not depend on it: every
+/// diagnostic comes from the same shared factorisations whatever the order. It decides which
+/// shared pieces a thread computes first, so that two threads fitting instrumental
+/// specifications of one sample at once compute different pieces (the first stages on one,
+/// the control-function and Durbin regressions on the other) instead of one waiting for the
+/// other's.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub enum DiagnosticOrder {
+    /// First stages and reduced form, then endogeneity and over-identification.
+    #[default]
+    FirstStageFirst,
+    /// Endogeneity and over-identification, then first stages and reduced form.
+    EndogeneityFirst,
 }
 
 impl IvContext<'_> {
@@ -51,17 +69,44 @@ impl IvContext<'_> {
     /// nulls.
     pub(super) fn diagnostics(&self, result: &mut SpecResult) -> Result<NullTests> {
         let weak = self.wants(Diagnostic::WeakInstruments) && self.prepared.p.focal.ncols() == 1;
-        if self.wants(Diagnostic::FirstStage) || weak {
-            result.first_stage = Some(self.first_stages()?);
+        let first = || {
+            let fs = (self.wants(Diagnostic::FirstStage) || weak).then(|| self.first_stages());
+            let rf = self
+                .wants(Diagnostic::ReducedForm)
+                .then(|| self.reduced_form());
+            (fs, rf)
+        };
+        let exogeneity = || {
+            let en = self
+                .wants(Diagnostic::Endogeneity)
+                .then(|| self.endogeneity());
+            let ov = self
+                .wants(Diagnostic::Overidentification)
+                .then(|| self.overidentification());
+            (en, ov)
+        };
+        let ((fs, rf), (en, ov)) = match self.order {
+            DiagnosticOrder::FirstStageFirst => {
+                let a = first();
+                (a, exogeneity())
+            }
+            DiagnosticOrder::EndogeneityFirst => {
+                let b = exogeneity();
+                (first(), b)
+            }
+        };
+        // Taken in the canonical order, so the error reported does not depend on `order`.
+        if let Some(fs) = fs {
+            result.first_stage = Some(fs?);
         }
-        if self.wants(Diagnostic::ReducedForm) {
-            result.reduced_form = Some(self.reduced_form()?);
+        if let Some(rf) = rf {
+            result.reduced_form = Some(rf?);
         }
-        if self.wants(Diagnostic::Endogeneity) {
-            result.endogeneity = Some(self.endogeneity()?);
+        if let Some(en) = en {
+            result.endogeneity = Some(en?);
         }
-        if self.wants(Diagnostic::Overidentification) {
-            result.overidentification = self.overidentification()?;
+        if let Some(ov) = ov {
+            result.overidentification = ov?;
         }
         if self.needs.liml && self.prepared.spec.estimator == Estimator::Tsls {
             result.liml = Some(self.liml()?);

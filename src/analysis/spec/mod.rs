@@ -23,6 +23,7 @@ use crate::plan::{Assignment, DataSource, Diagnostic, Method, Resampling, Spec};
 use crate::results::{HacResult, Procedure, SpecResult};
 use std::collections::BTreeMap;
 
+pub use diagnostics::DiagnosticOrder;
 pub use result::term;
 
 /// A fitted specification: its results, coefficient references and what it found.
@@ -118,8 +119,8 @@ pub struct ResampleContext<'a> {
     /// The plan's `[inference]` alpha (randomization intervals invert the test at it).
     pub alpha: f64,
     /// Whether to invert randomization tests into intervals (a run and its verification do;
-    /// a rehearsal, which reports only whether each hypothesis is supported, does not: the
-    /// inversion costs some fifty further tests per hypothesis).
+    /// a rehearsal, which reports only whether each hypothesis is supported, does not need
+    /// them).
     pub intervals: bool,
 }
 
@@ -148,6 +149,7 @@ pub fn fit_spec(
     source: &DataSource,
     needs: &Needs,
     rc: &ResampleContext,
+    order: DiagnosticOrder,
 ) -> Result<Fitted> {
     let mut deviations = Vec::new();
     let (mut d, mut p) = resolve::columns(spec, table, source, &mut deviations)?;
@@ -172,6 +174,7 @@ pub fn fit_spec(
             prepared: &prepared,
             iv,
             needs,
+            order,
         }
         .diagnostics(&mut result)?,
         None => diagnostics::NullTests::default(),
