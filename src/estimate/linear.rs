@@ -358,7 +358,7 @@ pub struct IvProblem<'a> {
     pub(crate) setup: IvSetup,
     tsls_resid: std::sync::OnceLock<Result<DVector<f64>, EstimateError>>,
     exog_qr: std::sync::OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
-    /// SHA-256 of the outcome-free inputs besides Z (see [`IvProblem::outcome_free_key`]).
+    /// The key (an [`InputKey`](super::qr::InputKey) hash) of the outcome-free inputs besides Z (see [`IvProblem::outcome_free_key`]).
     outcome_free: std::sync::OnceLock<[u8; 32]>,
 }
 

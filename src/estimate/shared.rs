@@ -9,12 +9,12 @@
 //! small memo and handed out again to any fit that asks for a matrix equal to one already
 //! factorised, with its thin Q and refined inverse computed at most once (module `qr`). A
 //! caller that owns or shares its matrix hands it to the memo, which keeps it without a
-//! copy; the memo recognises a matrix it holds by address, and keeps its SHA-256
+//! copy; the memo recognises a matrix it holds by address, and keeps its key (BLAKE3)
 //! ([`digest`]) for the keys below. A shared factorisation of the instruments
 //! also keeps the outcome-free results computed with it (the first stages, Shea's partial
 //! R², the weak-instrument diagnostics, the Durbin test's factorisation of Z with the
 //! endogenous columns, the projected regressors X̂, the control-function design
-//! [X | v̂]; `PivotedQr::derived`), under the SHA-256 of everything else
+//! [X | v̂]; `PivotedQr::derived`), under the key of everything else
 //! they read (the regressors' bits, the errors with their cluster ids, the absorbed
 //! degrees of freedom), so specifications that differ only in their outcome compute them
 //! once.
@@ -53,7 +53,7 @@ struct Entry {
     x: Arc<DMatrix<f64>>,
     qr: OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
     dependent: OnceLock<Vec<usize>>,
-    /// The SHA-256 of the matrix's shape and bits, computed on first use ([`digest`]).
+    /// The key (BLAKE3) of the matrix's shape and bits, computed on first use ([`digest`]).
     digest: OnceLock<[u8; 32]>,
 }
 
@@ -271,7 +271,7 @@ pub(crate) fn collinear_kept_shared(x: Arc<DMatrix<f64>>) -> (Arc<DMatrix<f64>>,
     }
 }
 
-/// The SHA-256 of `x`'s shape and bits: kept with the memo's entry when `x` is the matrix
+/// The key (BLAKE3) of `x`'s shape and bits: kept with the memo's entry when `x` is the matrix
 /// the memo holds (computed once however many fits ask), else computed.
 pub(crate) fn digest(x: &Arc<DMatrix<f64>>) -> [u8; 32] {
     let compute = || {
