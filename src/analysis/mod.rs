@@ -394,19 +394,29 @@ mod tests {
             };
             for s in plan.specifications.iter().filter(|s| s.estimator.is_iv()) {
                 let need = needs.get(&s.id).unwrap_or(&none);
-                let [a, b] = [
-                    spec::DiagnosticOrder::FirstStageFirst,
-                    spec::DiagnosticOrder::EndogeneityFirst,
-                ]
-                .map(|order| {
-                    // Apart, so that neither order finds the other's shared results.
-                    let _sharing = crate::estimate::Sharing::begin();
+                let fit = |order| {
                     let fitted =
                         spec::fit_spec(s, &tables[&s.data], &plan.data[&s.data], need, &rc, order)
                             .expect("fit");
                     serde_json::to_string(&fitted.result).expect("json")
+                };
+                let (first, second) = (
+                    spec::DiagnosticOrder::FirstStageFirst,
+                    spec::DiagnosticOrder::EndogeneityFirst,
+                );
+                // Each order apart (neither finds the other's shared results), then each
+                // after the other in one sharing session (the second reuses what the first
+                // built, as a thread does in a run).
+                let [a, b] = [first, second].map(|order| {
+                    let _sharing = crate::estimate::Sharing::begin();
+                    fit(order)
                 });
                 assert_eq!(a, b, "{name}: {}", s.id);
+                for (one, other) in [(first, second), (second, first)] {
+                    let _sharing = crate::estimate::Sharing::begin();
+                    assert_eq!(fit(one), a, "{name}: {} {one:?} first", s.id);
+                    assert_eq!(fit(other), a, "{name}: {} {other:?} after", s.id);
+                }
                 compared +=
                     usize::from(a.contains("\"endogeneity\":{") && a.contains("\"first_stage\":{"));
             }

@@ -69,44 +69,27 @@ impl IvContext<'_> {
     /// nulls.
     pub(super) fn diagnostics(&self, result: &mut SpecResult) -> Result<NullTests> {
         let weak = self.wants(Diagnostic::WeakInstruments) && self.prepared.p.focal.ncols() == 1;
-        let first = || {
-            let fs = (self.wants(Diagnostic::FirstStage) || weak).then(|| self.first_stages());
-            let rf = self
-                .wants(Diagnostic::ReducedForm)
-                .then(|| self.reduced_form());
-            (fs, rf)
-        };
-        let exogeneity = || {
-            let en = self
-                .wants(Diagnostic::Endogeneity)
-                .then(|| self.endogeneity());
-            let ov = self
-                .wants(Diagnostic::Overidentification)
-                .then(|| self.overidentification());
-            (en, ov)
-        };
-        let ((fs, rf), (en, ov)) = match self.order {
-            DiagnosticOrder::FirstStageFirst => {
-                let a = first();
-                (a, exogeneity())
-            }
-            DiagnosticOrder::EndogeneityFirst => {
-                let b = exogeneity();
-                (first(), b)
-            }
-        };
-        // Taken in the canonical order, so the error reported does not depend on `order`.
-        if let Some(fs) = fs {
-            result.first_stage = Some(fs?);
+        let wants_en = self.wants(Diagnostic::Endogeneity);
+        let wants_ov = self.wants(Diagnostic::Overidentification);
+        // Endogeneity first: computed ahead and kept. The results are then taken in the
+        // canonical order, stopping at the first error, so the error reported (and, in the
+        // canonical order, the work done before it) does not depend on `order`.
+        let (mut en, mut ov) = (None, None);
+        if self.order == DiagnosticOrder::EndogeneityFirst {
+            en = wants_en.then(|| self.endogeneity());
+            ov = wants_ov.then(|| self.overidentification());
         }
-        if let Some(rf) = rf {
-            result.reduced_form = Some(rf?);
+        if self.wants(Diagnostic::FirstStage) || weak {
+            result.first_stage = Some(self.first_stages()?);
         }
-        if let Some(en) = en {
-            result.endogeneity = Some(en?);
+        if self.wants(Diagnostic::ReducedForm) {
+            result.reduced_form = Some(self.reduced_form()?);
         }
-        if let Some(ov) = ov {
-            result.overidentification = ov?;
+        if wants_en {
+            result.endogeneity = Some(en.take().unwrap_or_else(|| self.endogeneity())?);
+        }
+        if wants_ov {
+            result.overidentification = ov.take().unwrap_or_else(|| self.overidentification())?;
         }
         if self.needs.liml && self.prepared.spec.estimator == Estimator::Tsls {
             result.liml = Some(self.liml()?);
