@@ -281,6 +281,17 @@ where
     }
 }
 
+/// The two-sided p-value of [`summarise`] counted from the statistics as they come.
+pub(crate) fn two_sided_p(observed: f64, stats: impl Iterator<Item = Option<f64>>) -> f64 {
+    let tol = TIE_TOLERANCE * observed.abs();
+    let (mut two, mut used) = (0usize, 0usize);
+    for s in stats.flatten() {
+        used += 1;
+        two += usize::from(s.abs() >= observed.abs() - tol);
+    }
+    two as f64 / used as f64
+}
+
 /// Turns the draw statistics into p-values under the contract in the module documentation.
 pub(crate) fn summarise(observed: f64, stats: &[Option<f64>], exact: bool) -> ResampleResult {
     let tol = TIE_TOLERANCE * observed.abs();

@@ -17,19 +17,23 @@ use super::super::covariance::CovSpec;
 use super::super::{Absorbed, EstimateError};
 use super::assignment::{Assigner, AssignmentDesign};
 use super::randomization::{permutation_draws, DrawFitter, Fixed, RiStatistic};
-use super::{DrawStats, Draws, OlsColumns, ResampleError, Tested};
+use super::{Draws, OlsColumns, ResampleError, Tested};
 
 /// One draw's regression of every outcome ỹ − τ₀t̃ on one re-drawn column, kept as the
 /// pieces that are linear in τ₀: the coefficient is g_y − τ₀g_t, and the meat of its variance
 /// is ‖s_y − τ₀s_t‖² for the score columns s_y, s_t of the two outcomes (per cluster, per
 /// unit, or the residuals themselves for the classical variance). The statistic at any τ₀
 /// then costs O(1) instead of a pass over the draw's rows.
+/// 48 bytes; a family keeps one per draw (with its `Option`, 56 bytes: 560 MB at the plan
+/// limit of 10 million draws, about what the reported test's own statistics and one
+/// separate test per candidate held before).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) struct Pencil {
     pub(super) gy: f64,
     pub(super) gt: f64,
-    /// The variance's meat and factor (`None` when only the coefficient is asked).
-    pub(super) spread: Option<Spread>,
+    /// The variance's meat and factor (all zero, and unused, when only the coefficient is
+    /// asked: the family knows which).
+    pub(super) spread: Spread,
 }
 
 /// ‖s_y − τ₀s_t‖² kept as (ρ − τ₀·r)² + π², from the QR factor of the two columns
@@ -46,6 +50,14 @@ pub(super) struct Spread {
 }
 
 impl Spread {
+    /// No variance kept (the statistic is the coefficient itself).
+    pub(super) const NONE: Spread = Spread {
+        r: 0.0,
+        rho: 0.0,
+        pi: 0.0,
+        factor: 0.0,
+    };
+
     pub(super) fn new(sy: &[f64], st: &[f64], factor: f64) -> Self {
         let r = st.iter().map(|v| v * v).sum::<f64>().sqrt();
         if r == 0.0 {
@@ -74,31 +86,35 @@ impl Spread {
 
 impl Pencil {
     /// The statistic under the sharp null τ₀ = `null`: the coefficient b − τ₀ of the
-    /// observed column (g_y − τ₀g_t), divided by its standard error when the variance was
-    /// kept. Not necessarily finite (a zero variance).
-    pub(crate) fn statistic(&self, null: f64) -> f64 {
+    /// observed column (g_y − τ₀g_t), divided by its standard error when `studentized`.
+    /// Not necessarily finite (a zero variance).
+    pub(crate) fn statistic(&self, null: f64, studentized: bool) -> f64 {
         let b = self.gy - null * self.gt;
-        match &self.spread {
-            None => b,
-            Some(s) => {
-                let d = s.rho - null * s.r;
-                b / (s.factor * (d * d + s.pi * s.pi)).sqrt()
-            }
+        if !studentized {
+            return b;
         }
+        let s = &self.spread;
+        let d = s.rho - null * s.r;
+        b / (s.factor * (d * d + s.pi * s.pi)).sqrt()
     }
 }
 
 /// The randomization statistics of every sharp null "the effect is τ₀ for every unit" on
 /// the same draws: each draw's [`Pencil`], from which the statistic at any τ₀ costs O(1).
 ///
-/// Every statistic equals the one [`randomization_statistics`](super::randomization::randomization_statistics) computes at `null` = τ₀ in exact
-/// arithmetic; the rounding differs (sums taken in another order), far inside
-/// [`TIE_TOLERANCE`](super::TIE_TOLERANCE) except for a draw that ties the observed
-/// statistic to the last digits.
+/// Every statistic equals the one
+/// [`randomization_statistics`](super::randomization::randomization_statistics) computes at
+/// `null` = τ₀ in exact arithmetic. The rounding differs: the outcome's pieces are summed
+/// separately, and the meat comes from the 2 × 2 factor instead of the residuals formed at
+/// τ₀. The differences are of the order of rounding (the unit tests agree within 1e-9
+/// relative), far inside [`TIE_TOLERANCE`](super::TIE_TOLERANCE); only a draw whose
+/// statistic ties the observed one to within rounding could be counted differently.
 pub(crate) struct NullFamily {
     observed: Pencil,
     draws: Vec<Option<Pencil>>,
     exact: bool,
+    /// The statistic is studentized (`RiStatistic::T`).
+    studentized: bool,
 }
 
 impl NullFamily {
@@ -107,25 +123,40 @@ impl NullFamily {
     ///
     /// # Errors
     /// [`EstimateError::NotFinite`] for a non-finite `null`.
-    pub(crate) fn statistics(&self, null: f64) -> Result<DrawStats, ResampleError> {
+    #[cfg(test)]
+    pub(crate) fn statistics(&self, null: f64) -> Result<super::DrawStats, ResampleError> {
         if !null.is_finite() {
             return Err(EstimateError::NotFinite.into());
         }
-        let observed = self.observed.statistic(null);
-        let stats = self
-            .draws
-            .iter()
-            .enumerate()
-            .map(|(b, p)| {
-                let p = p.as_ref()?;
-                if b == 0 && !self.exact {
-                    // Draw 0 is the observed draw itself (as `run_draws` records it).
-                    return Some(observed);
-                }
-                Some(p.statistic(null)).filter(|v| v.is_finite())
-            })
-            .collect();
-        Ok((observed, stats, self.exact))
+        let (observed, stats) = self.at(null);
+        Ok((observed, stats.collect(), self.exact))
+    }
+
+    /// The two-sided p-value under τ₀ = `null`, as [`summarise`](super::summarise) would
+    /// give it from [`NullFamily::statistics`], without keeping the statistics.
+    ///
+    /// # Errors
+    /// As [`NullFamily::statistics`].
+    pub(crate) fn p_value(&self, null: f64) -> Result<f64, ResampleError> {
+        if !null.is_finite() {
+            return Err(EstimateError::NotFinite.into());
+        }
+        let (observed, stats) = self.at(null);
+        Ok(super::two_sided_p(observed, stats))
+    }
+
+    /// The observed statistic and every draw's, in draw order, under τ₀ = `null`.
+    fn at(&self, null: f64) -> (f64, impl Iterator<Item = Option<f64>> + '_) {
+        let observed = self.observed.statistic(null, self.studentized);
+        let stats = self.draws.iter().enumerate().map(move |(b, p)| {
+            let p = p.as_ref()?;
+            if b == 0 && !self.exact {
+                // Draw 0 is the observed draw itself (as `run_draws` records it).
+                return Some(observed);
+            }
+            Some(p.statistic(null, self.studentized)).filter(|v| v.is_finite())
+        });
+        (observed, stats)
     }
 }
 
@@ -163,5 +194,6 @@ pub(crate) fn randomization_family(
         observed,
         draws,
         exact,
+        studentized: with_cov,
     }))
 }

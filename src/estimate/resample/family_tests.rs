@@ -2,7 +2,8 @@
 //! separate randomization test at each null (`randomization_statistics`, itself checked
 //! against full refits in `tests` and against statsmodels in `reference_tests`): every
 //! covariance with a pencil, both statistics, cluster cells and the per-unit path, weights,
-//! random draws and enumeration.
+//! absorbed degrees of freedom and leverages, random draws and enumeration; two-way and HAC
+//! errors have no family.
 
 use nalgebra::{DMatrix, DVector};
 
@@ -74,58 +75,68 @@ fn one_fit_per_draw_gives_every_null() {
         seed: 77,
         exact_below,
     });
+    // Absorbed effects are taken as given here (their degrees of freedom and leverage enter
+    // the small-sample factors and the HC2/HC3 leverages; both paths share them).
+    let absorbed_sets = [
+        Absorbed::NONE,
+        Absorbed {
+            df: 3,
+            nested_df: 1,
+            leverage: Some((0..n).map(|i| 0.02 + 0.01 * (i % 7) as f64).collect()),
+        },
+    ];
     let mut compared = 0usize;
-    for design in &designs {
-        for cov in &covs {
-            for weighted in [false, true] {
-                for statistic in [RiStatistic::T, RiStatistic::Estimate] {
-                    for plan in &plans {
-                        if matches!(design, AssignmentDesign::Complete) && plan.draws == 0 {
-                            continue; // C(60, 30) assignments: too many to enumerate.
-                        }
-                        let cols = OlsColumns::new(&y, &x);
-                        let cols = if weighted {
-                            cols.weighted(&weights)
-                        } else {
-                            cols
-                        };
-                        let family = randomization_family(
-                            cols,
-                            1,
-                            cov,
-                            &Absorbed::NONE,
-                            design,
-                            statistic,
-                            plan,
-                        )
-                        .unwrap()
-                        .expect("a pencil for every one-way covariance");
-                        for null in [-1.3, 0.0, 0.4, 0.7, 7.5] {
-                            let (o1, s1, e1) = randomization_statistics(
-                                cols,
-                                Tested::new(1, null),
-                                cov,
-                                &Absorbed::NONE,
-                                design,
-                                statistic,
-                                plan,
+    for absorbed in &absorbed_sets {
+        for design in &designs {
+            for cov in &covs {
+                for weighted in [false, true] {
+                    for statistic in [RiStatistic::T, RiStatistic::Estimate] {
+                        for plan in &plans {
+                            if matches!(design, AssignmentDesign::Complete) && plan.draws == 0 {
+                                continue; // C(60, 30) assignments: too many to enumerate.
+                            }
+                            let cols = OlsColumns::new(&y, &x);
+                            let cols = if weighted {
+                                cols.weighted(&weights)
+                            } else {
+                                cols
+                            };
+                            let family = randomization_family(
+                                cols, 1, cov, absorbed, design, statistic, plan,
                             )
-                            .unwrap();
-                            let (o2, s2, e2) = family.statistics(null).unwrap();
-                            let what = format!(
+                            .unwrap()
+                            .expect("a pencil for every one-way covariance");
+                            for null in [-1.3, 0.0, 0.4, 0.7, 7.5] {
+                                let (o1, s1, e1) = randomization_statistics(
+                                    cols,
+                                    Tested::new(1, null),
+                                    cov,
+                                    absorbed,
+                                    design,
+                                    statistic,
+                                    plan,
+                                )
+                                .unwrap();
+                                let (o2, s2, e2) = family.statistics(null).unwrap();
+                                assert_eq!(
+                                    family.p_value(null).unwrap(),
+                                    summarise(o2, &s2, e2).p_value
+                                );
+                                let what = format!(
                                 "{design:?} {cov:?} w={weighted} {statistic:?} {plan:?} τ₀={null}"
                             );
-                            assert_eq!(e1, e2, "{what}");
-                            assert!(close(o1, o2), "{what}: observed {o1} {o2}");
-                            assert_eq!(s1.len(), s2.len(), "{what}");
-                            for (b, (a, c)) in s1.iter().zip(&s2).enumerate() {
-                                match (a, c) {
-                                    (Some(a), Some(c)) => {
-                                        assert!(close(*a, *c), "{what} draw {b}: {a} {c}");
-                                        compared += 1;
+                                assert_eq!(e1, e2, "{what}");
+                                assert!(close(o1, o2), "{what}: observed {o1} {o2}");
+                                assert_eq!(s1.len(), s2.len(), "{what}");
+                                for (b, (a, c)) in s1.iter().zip(&s2).enumerate() {
+                                    match (a, c) {
+                                        (Some(a), Some(c)) => {
+                                            assert!(close(*a, *c), "{what} draw {b}: {a} {c}");
+                                            compared += 1;
+                                        }
+                                        (None, None) => {}
+                                        other => panic!("{what} draw {b}: {other:?}"),
                                     }
-                                    (None, None) => {}
-                                    other => panic!("{what} draw {b}: {other:?}"),
                                 }
                             }
                         }
@@ -134,13 +145,14 @@ fn one_fit_per_draw_gives_every_null() {
             }
         }
     }
-    assert!(compared > 100_000, "only {compared} statistics compared");
+    assert!(compared > 200_000, "only {compared} statistics compared");
 }
 
 /// The p-value at each null is the separate test's, so the interval's search meets the same
-/// candidates; under two-way errors there is no family and each candidate is its own test.
+/// candidates; under two-way and HAC errors there is no family and each candidate is its own
+/// test.
 #[test]
-fn p_values_agree_and_two_way_has_no_family() {
+fn p_values_agree_and_refitting_errors_have_no_family() {
     let (y, x, group, _) = design();
     let design = AssignmentDesign::Clustered {
         clusters: group.clone(),
@@ -180,6 +192,7 @@ fn p_values_agree_and_two_way_has_no_family() {
         let (o, s, e) = family.statistics(null).unwrap();
         let all = summarise(o, &s, e);
         assert_eq!(one.p_value, all.p_value, "τ₀ = {null}");
+        assert_eq!(one.p_value, family.p_value(null).unwrap(), "τ₀ = {null}");
         assert_eq!(one.draws_used, all.draws_used, "τ₀ = {null}");
         distinct.insert(one.p_value.to_bits());
         lowest = lowest.min(one.p_value);
@@ -195,15 +208,21 @@ fn p_values_agree_and_two_way_has_no_family() {
         first: group,
         second: (0..y.len()).map(|i| i % 4).collect(),
     };
-    let none = randomization_family(
-        cols,
-        1,
-        &two_way,
-        &Absorbed::NONE,
-        &design,
-        RiStatistic::T,
-        &plan,
-    )
-    .unwrap();
-    assert!(none.is_none());
+    let hac = CovSpec::Hac {
+        positions: (0..y.len()).collect(),
+        bandwidth: 3.0,
+    };
+    for refitting in [&two_way, &hac] {
+        let none = randomization_family(
+            cols,
+            1,
+            refitting,
+            &Absorbed::NONE,
+            &design,
+            RiStatistic::T,
+            &plan,
+        )
+        .unwrap();
+        assert!(none.is_none(), "{refitting:?}");
+    }
 }

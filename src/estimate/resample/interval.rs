@@ -97,8 +97,7 @@ impl IntervalProblem<'_> {
     /// The two-sided p-value of the sharp null τ₀ = `null`, from `family` when there is one.
     fn p_value(&self, family: Option<&NullFamily>, null: f64) -> Result<f64, ResampleError> {
         if let Some(f) = family {
-            let (observed, stats, exact) = f.statistics(null)?;
-            return Ok(summarise(observed, &stats, exact).p_value);
+            return f.p_value(null);
         }
         let (observed, stats, exact) = randomization_statistics(
             self.columns(),

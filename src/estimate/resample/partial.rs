@@ -378,7 +378,7 @@ impl Partialled {
             return Some(Pencil {
                 gy,
                 gt,
-                spread: None,
+                spread: Spread::NONE,
             });
         }
         let (zs, ys, ts) = (zc.as_slice(), rows.y.as_slice(), t.as_slice());
@@ -435,7 +435,7 @@ impl Partialled {
         Some(Pencil {
             gy,
             gt,
-            spread: Some(Spread::new(&sy, &st, c)),
+            spread: Spread::new(&sy, &st, c),
         })
     }
 

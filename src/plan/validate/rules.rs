@@ -278,7 +278,9 @@ pub(super) fn resampling(ctx: &Ctx, raw: &RawPlan) -> Result<Option<Resampling>>
     };
     let r = r.get_ref();
     // Every draw's statistic is kept (for Romano–Wolf), so the counts are capped to keep
-    // memory bounded: 10 million draws are 160 MB per test.
+    // memory bounded: 10 million draws are 160 MB per test, and 560 MB more while a
+    // randomization interval is searched (each draw's fit kept, module
+    // `estimate::resample::family`).
     const MAX_DRAWS: i64 = 10_000_000;
     let positive = |v: &Spanned<i64>, key: &str, min: i64| -> Result<i64> {
         if *v.get_ref() < min {
