@@ -192,14 +192,7 @@ impl Cells {
     /// [`Partialled::fit`] would fit the units' columns.
     pub(super) fn fit(&self, part: &Partialled, a: &DMatrix<f64>, with_cov: bool) -> Option<ZFit> {
         let (zt, norms) = self.compressed(a);
-        let rows = Rows {
-            zt: &zt,
-            z_norms: &norms,
-            y: &self.y,
-            ids: self.ids.as_deref(),
-            rss_extra: self.rss_extra,
-        };
-        part.fit_rows(&rows, with_cov)
+        part.fit_rows(&self.rows(&zt, &norms), with_cov)
     }
 
     /// As [`Cells::fit`], the family of outcomes ỹ − τ₀t̃ of a [`Pencil`] (`None` also when
@@ -212,14 +205,19 @@ impl Cells {
     ) -> Option<Pencil> {
         let second = self.second.as_ref()?;
         let (zt, norms) = self.compressed(a);
-        let rows = Rows {
-            zt: &zt,
-            z_norms: &norms,
+        part.pencil_rows(&self.rows(&zt, &norms), &second.t, &second.extra, with_cov)
+    }
+
+    /// The compressed rows of a draw (`zt`, `norms` from [`Cells::compressed`]) with the
+    /// compressed outcome and their clusters.
+    fn rows<'a>(&'a self, zt: &'a DMatrix<f64>, norms: &'a [f64]) -> Rows<'a> {
+        Rows {
+            zt,
+            z_norms: norms,
             y: &self.y,
             ids: self.ids.as_deref(),
             rss_extra: self.rss_extra,
-        };
-        part.pencil_rows(&rows, &second.t, &second.extra, with_cov)
+        }
     }
 
     /// The compressed rows of the re-drawn columns (cells, then each cluster's within
@@ -272,14 +270,9 @@ mod tests {
     fn design(controls: bool, seed: u64) -> (DVector<f64>, DMatrix<f64>, Vec<usize>) {
         let mut s = Stream::for_draw(seed, 0);
         let mut u = || (s.next_u64() >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
-        let sizes = [1, 9, 3, 7, 5, 2, 8, 4, 6, 5, 4, 6];
-        let group: Vec<usize> = sizes
-            .iter()
-            .enumerate()
-            .flat_map(|(g, &m)| std::iter::repeat_n(g, m))
-            .collect();
+        let group = super::super::tests::twelve_clusters();
         let n = group.len();
-        let level: Vec<f64> = (0..sizes.len()).map(|_| u()).collect();
+        let level: Vec<f64> = (0..12).map(|_| u()).collect();
         let w = if controls {
             DMatrix::from_fn(n, 3, |i, j| match j {
                 0 => 1.0,

@@ -19,14 +19,9 @@ use super::*;
 fn design() -> (DVector<f64>, DMatrix<f64>, Vec<usize>, DVector<f64>) {
     let mut s = Stream::for_draw(31, 0);
     let mut u = || (s.next_u64() >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
-    let sizes = [1, 9, 3, 7, 5, 2, 8, 4, 6, 5, 4, 6];
-    let group: Vec<usize> = sizes
-        .iter()
-        .enumerate()
-        .flat_map(|(g, &m)| std::iter::repeat_n(g, m))
-        .collect();
+    let group = super::tests::twelve_clusters();
     let n = group.len();
-    let level: Vec<f64> = (0..sizes.len()).map(|_| u()).collect();
+    let level: Vec<f64> = (0..12).map(|_| u()).collect();
     let x = DMatrix::from_fn(n, 4, |i, j| match j {
         0 => 1.0,
         1 => f64::from(u8::from(group[i].is_multiple_of(2))),

@@ -169,19 +169,28 @@ impl Partialled {
         if let Kind::TwoWay(spec) = &self.kind {
             return self.fit_full(z, spec);
         }
+        let (zt, norms) = self.partialled(z);
+        self.fit_rows(&self.unit_rows(&zt, &norms), with_cov)
+    }
+
+    /// M_W Z and the norms of Z's columns.
+    fn partialled(&self, z: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
         let zt = match &self.q {
             Some(q) => z - q * (q.transpose() * z),
             None => z.clone(),
         };
-        let norms: Vec<f64> = z.column_iter().map(|c| c.norm()).collect();
-        let rows = Rows {
-            zt: &zt,
-            z_norms: &norms,
+        (zt, z.column_iter().map(|c| c.norm()).collect())
+    }
+
+    /// The units' rows of a fit: `zt` = M_W Z (`norms` of Z's columns) with M_W y.
+    fn unit_rows<'a>(&'a self, zt: &'a DMatrix<f64>, norms: &'a [f64]) -> Rows<'a> {
+        Rows {
+            zt,
+            z_norms: norms,
             y: &self.y_tilde,
             ids: self.cluster_ids(),
             rss_extra: 0.0,
-        };
-        self.fit_rows(&rows, with_cov)
+        }
     }
 
     /// The statistics of Z (one column, n × 1) from which the test of every sharp null
@@ -196,19 +205,8 @@ impl Partialled {
         if matches!(self.kind, Kind::TwoWay(_)) || z.ncols() != 1 {
             return None;
         }
-        let zt = match &self.q {
-            Some(q) => z - q * (q.transpose() * z),
-            None => z.clone(),
-        };
-        let norms = [z.column(0).norm()];
-        let rows = Rows {
-            zt: &zt,
-            z_norms: &norms,
-            y: &self.y_tilde,
-            ids: self.cluster_ids(),
-            rss_extra: 0.0,
-        };
-        self.pencil_rows(&rows, t_tilde, &[], with_cov)
+        let (zt, norms) = self.partialled(z);
+        self.pencil_rows(&self.unit_rows(&zt, &norms), t_tilde, &[], with_cov)
     }
 
     /// M_W v: `v` with the controls partialled out.

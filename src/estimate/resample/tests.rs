@@ -20,6 +20,16 @@ use super::*;
 use crate::distribution::Reference;
 use crate::inference::quantile;
 
+/// The cluster of each of 60 units in 12 clusters of sizes 1–9 (the cell-level and family
+/// tests' design).
+pub(super) fn twelve_clusters() -> Vec<usize> {
+    [1, 9, 3, 7, 5, 2, 8, 4, 6, 5, 4, 6]
+        .iter()
+        .enumerate()
+        .flat_map(|(g, &m)| std::iter::repeat_n(g, m))
+        .collect()
+}
+
 fn column(v: &[f64]) -> DMatrix<f64> {
     DMatrix::from_column_slice(v.len(), 1, v)
 }
