@@ -147,6 +147,22 @@ pub fn not_a_number_advice(text: &str, decimal_comma: bool, missing: &[String]) 
 mod tests {
     use super::*;
 
+    /// Missing codes match whole trimmed cells only, whatever their length and first byte.
+    #[test]
+    fn missing_codes_match_whole_cells() {
+        let codes: Vec<String> = ["", "NA", ".", "-99", "n/a"].map(String::from).to_vec();
+        for cell in ["NA", " NA ", ".", "-99", "\tn/a", "", "   "] {
+            assert_eq!(present(cell, &codes), None, "{cell:?}");
+        }
+        for cell in [
+            "N", "NAN", "na", "0", "1", "-9", "-990", "n/b", "..", "-99.0", "0.5",
+        ] {
+            assert_eq!(present(cell, &codes), Some(cell), "{cell:?}");
+        }
+        assert_eq!(present(" 7 ", &codes), Some("7"));
+        assert_eq!(present(".", &[]), Some("."));
+    }
+
     #[test]
     fn separators_are_detected_from_the_header() {
         let dir = tempfile::tempdir().expect("temp dir");
