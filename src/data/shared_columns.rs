@@ -51,11 +51,18 @@ struct Joined {
     m: Arc<DMatrix<f64>>,
 }
 
+/// A yes-or-no answer about blocks side by side (see [`SharedColumns::settled`]).
+struct Settled {
+    parts: Vec<Arc<DMatrix<f64>>>,
+    value: bool,
+}
+
 #[derive(Default)]
 struct Kept {
     rows: Vec<Arc<Vec<usize>>>,
     read: Vec<Read>,
     joined: Vec<Joined>,
+    settled: Vec<Settled>,
 }
 
 /// The blocks kept for one table (module documentation).
@@ -157,6 +164,35 @@ impl SharedColumns {
         Ok(m)
     }
 
+    /// `check` of the blocks `parts` (a yes-or-no question about them side by side, such as
+    /// whether a collinearity scan would find nothing), asked once: kept, like a join, when
+    /// every part is a block kept here, and found again by the blocks' addresses.
+    pub fn settled(&self, parts: &[&Arc<DMatrix<f64>>], check: impl FnOnce() -> bool) -> bool {
+        let find = |k: &mut Kept| {
+            let i = k.settled.iter().position(|s| {
+                s.parts.len() == parts.len()
+                    && s.parts.iter().zip(parts).all(|(a, b)| Arc::ptr_eq(a, b))
+            })?;
+            Some(touch(&mut k.settled, i).value)
+        };
+        if let Some(v) = find(&mut self.lock()) {
+            return v;
+        }
+        let value = check();
+        let mut k = self.lock();
+        if parts
+            .iter()
+            .all(|p| k.read.iter().any(|b| Arc::ptr_eq(&b.m, p)))
+        {
+            let entry = Settled {
+                parts: parts.iter().map(|p| Arc::clone(p)).collect(),
+                value,
+            };
+            push_capped(&mut k.settled, entry, JOINED);
+        }
+        value
+    }
+
     /// The blocks `parts` side by side (equal heights): the one part with columns itself
     /// when the others have none, else a kept join of the same blocks, else a fresh one, kept
     /// when every part is a block kept here.
@@ -252,6 +288,32 @@ mod tests {
         let moved = get(true, vec![1, 3]);
         assert!(!Arc::ptr_eq(&first, &no_ones) && !Arc::ptr_eq(&first, &moved));
         assert_eq!(reads, 3);
+    }
+
+    /// A question about kept blocks is asked once (in their order); about blocks not kept
+    /// here, every time.
+    #[test]
+    fn answers_about_kept_blocks_are_kept() {
+        let b = SharedColumns::default();
+        let rows = b.rows((0..50).collect());
+        let names = |s: &str| vec![s.to_string()];
+        let p = b.read::<()>(&rows, (&names("p"), false, vec![1]), || Ok(block(1)));
+        let q = b.read::<()>(&rows, (&names("q"), false, vec![2]), || Ok(block(2)));
+        let (p, q) = (p.unwrap(), q.unwrap());
+        let mut asked = 0;
+        let mut ask = |parts: &[&Arc<DMatrix<f64>>], answer: bool| {
+            b.settled(parts, || {
+                asked += 1;
+                answer
+            })
+        };
+        assert!(ask(&[&p, &q], true));
+        assert!(ask(&[&p, &q], false), "the kept answer");
+        assert!(!ask(&[&q, &p], false), "another order is another question");
+        let loose = Arc::new(block(3));
+        assert!(ask(&[&p, &loose], true));
+        assert!(!ask(&[&p, &loose], false), "not kept: asked again");
+        assert_eq!(asked, 4);
     }
 
     #[test]

@@ -81,6 +81,7 @@ pub use hac::{bartlett_lags, newey_west_1994_bandwidth, NEWEY_WEST_1994_BARTLETT
 pub use kclass::{kclass, KClass, KClassFit, DEFAULT_FULLER_ALPHA};
 pub use linear::{ols, ols_shared, tsls, IvColumns, IvProblem};
 pub use qr::collinear_columns;
+pub use qr::independent::clearly_independent_parts;
 pub use resample::{
     count_assignments, randomization_ar, randomization_interval, randomization_test,
     wild_cluster_bootstrap, wild_restricted_efficient, AssignmentDesign, Draws, IntervalProblem,

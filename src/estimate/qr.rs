@@ -22,7 +22,7 @@ use nalgebra::{DMatrix, DVector};
 
 use super::EstimateError;
 
-mod independent;
+pub(crate) mod independent;
 mod reflect;
 
 pub(crate) use reflect::combine_lanes;

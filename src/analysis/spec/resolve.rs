@@ -96,9 +96,18 @@ fn resolve(
     what: &str,
     dropped: &mut Vec<String>,
 ) -> Result<(Vec<usize>, Vec<usize>)> {
-    let x = table.shared.joined(&[exog.m, extra.m]);
+    // The scan is needed only when a bound from the blocks' cross-products cannot settle
+    // that it finds nothing (estimate::clearly_independent_parts; the same answer either
+    // way): then the blocks are joined and scanned.
+    let settled = table.shared.settled(&[exog.m, extra.m], || {
+        estimate::clearly_independent_parts(&[exog.m.as_ref(), extra.m.as_ref()])
+    });
+    let dependent = if settled {
+        Vec::new()
+    } else {
+        estimate::collinear_of_shared(&table.shared.joined(&[exog.m, extra.m]))
+    };
     let names: Vec<&String> = exog.names.iter().chain(extra.names).collect();
-    let dependent = estimate::collinear_of_shared(&x);
     if dependent.is_empty() {
         return Ok((
             (0..exog.m.ncols()).collect(),

@@ -48,14 +48,28 @@ use nalgebra::DMatrix;
 /// Whether the scan of `x` provably finds no dependent column (see the module
 /// documentation). `false` means only "not proved".
 pub(super) fn clearly_independent(x: &DMatrix<f64>) -> bool {
-    let (n, k) = x.shape();
+    clearly_independent_parts(&[x])
+}
+
+/// [`clearly_independent`] of the blocks `parts` side by side (equal heights), without
+/// joining them: the Gram matrix is assembled from the blocks' cross-products, each entry
+/// still one dot product of two columns over the rows (the same error bound).
+pub fn clearly_independent_parts(parts: &[&DMatrix<f64>]) -> bool {
+    let n = parts.iter().map(|p| p.nrows()).max().unwrap_or(0);
+    if parts.iter().any(|p| p.nrows() != n) {
+        return false;
+    }
+    let k: usize = parts.iter().map(|p| p.ncols()).sum();
     if k == 0 {
         return true;
     }
     if n < k {
         return false;
     }
-    let norms: Vec<f64> = x.column_iter().map(|c| c.norm()).collect();
+    let norms: Vec<f64> = parts
+        .iter()
+        .flat_map(|p| p.column_iter().map(|c| c.norm()))
+        .collect();
     let (low, high) = (2f64.powi(-400), 2f64.powi(400));
     if norms
         .iter()
@@ -63,7 +77,25 @@ pub(super) fn clearly_independent(x: &DMatrix<f64>) -> bool {
     {
         return false;
     }
-    let gram = x.tr_mul(x);
+    let mut gram = DMatrix::<f64>::zeros(k, k);
+    let mut starts = Vec::with_capacity(parts.len());
+    let mut at = 0;
+    for p in parts {
+        starts.push(at);
+        at += p.ncols();
+    }
+    for (a, pa) in parts.iter().enumerate() {
+        for (b, pb) in parts.iter().enumerate().skip(a) {
+            if pa.ncols() == 0 || pb.ncols() == 0 {
+                continue;
+            }
+            let block = pa.tr_mul(pb);
+            gram.view_mut((starts[a], starts[b]), block.shape())
+                .copy_from(&block);
+            gram.view_mut((starts[b], starts[a]), (pb.ncols(), pa.ncols()))
+                .copy_from(&block.transpose());
+        }
+    }
     let g = |i: usize, j: usize| gram[(i, j)] / norms[i] / norms[j];
     // Cholesky G = RᵀR, R upper triangular, row by row.
     let mut r = DMatrix::<f64>::zeros(k, k);
@@ -157,6 +189,30 @@ mod tests {
         assert_eq!(collinear_columns(&zero), vec![3]);
         assert!(!clearly_independent(&design(5, 0.0)));
         assert!(clearly_independent(&DMatrix::zeros(10, 0)));
+    }
+
+    /// Blocks side by side give the answer of the joined matrix.
+    #[test]
+    fn blocks_answer_as_their_join() {
+        for (x, expected) in [(design(200, 0.0), true), (design(5, 0.0), false)] {
+            let (a, b) = (x.columns(0, 2).into_owned(), x.columns(2, 4).into_owned());
+            assert_eq!(clearly_independent_parts(&[&a, &b]), expected);
+            assert_eq!(clearly_independent(&x), expected);
+        }
+        let mut copy = design(200, 0.0);
+        let third = copy.column(2).into_owned();
+        copy.set_column(5, &third);
+        let (a, b) = (
+            copy.columns(0, 3).into_owned(),
+            copy.columns(3, 3).into_owned(),
+        );
+        assert!(!clearly_independent_parts(&[&a, &b]));
+        let empty = DMatrix::zeros(200, 0);
+        assert!(clearly_independent_parts(&[&empty, &design(200, 0.0)]));
+        assert!(!clearly_independent_parts(&[
+            &design(200, 0.0),
+            &design(100, 0.0)
+        ]));
     }
 
     /// Entries so small or large that products underflow or overflow: declined, and the
