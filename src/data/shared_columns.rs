@@ -290,16 +290,21 @@ mod tests {
         assert_eq!(reads, 3);
     }
 
+    /// Blocks `p` and `q` (one column each, all 50 rows), read and kept by `b`.
+    fn two_kept_blocks(b: &SharedColumns) -> (Arc<DMatrix<f64>>, Arc<DMatrix<f64>>) {
+        let rows = b.rows((0..50).collect());
+        let names = |s: &str| vec![s.to_string()];
+        let p = b.read::<()>(&rows, (&names("p"), false, vec![1]), || Ok(block(1)));
+        let q = b.read::<()>(&rows, (&names("q"), false, vec![2]), || Ok(block(2)));
+        (p.unwrap(), q.unwrap())
+    }
+
     /// A question about kept blocks is asked once (in their order); about blocks not kept
     /// here, every time.
     #[test]
     fn answers_about_kept_blocks_are_kept() {
         let b = SharedColumns::default();
-        let rows = b.rows((0..50).collect());
-        let names = |s: &str| vec![s.to_string()];
-        let p = b.read::<()>(&rows, (&names("p"), false, vec![1]), || Ok(block(1)));
-        let q = b.read::<()>(&rows, (&names("q"), false, vec![2]), || Ok(block(2)));
-        let (p, q) = (p.unwrap(), q.unwrap());
+        let (p, q) = two_kept_blocks(&b);
         let mut asked = 0;
         let mut ask = |parts: &[&Arc<DMatrix<f64>>], answer: bool| {
             b.settled(parts, || {
@@ -319,11 +324,7 @@ mod tests {
     #[test]
     fn joins_of_kept_blocks_are_kept_and_equal_a_fresh_join() {
         let b = SharedColumns::default();
-        let rows = b.rows((0..50).collect());
-        let names = |s: &str| vec![s.to_string()];
-        let p = b.read::<()>(&rows, (&names("p"), false, vec![1]), || Ok(block(1)));
-        let q = b.read::<()>(&rows, (&names("q"), false, vec![2]), || Ok(block(2)));
-        let (p, q) = (p.unwrap(), q.unwrap());
+        let (p, q) = two_kept_blocks(&b);
         let pq = b.joined(&[&p, &q]);
         assert!(Arc::ptr_eq(&pq, &b.joined(&[&p, &q])));
         // Order matters, and a block not kept here is joined afresh each time.
