@@ -14,8 +14,8 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use super::super::covariance::densify;
 use super::super::covariance::CovSpec;
+use super::super::covariance::{cr1_factor, densify};
 use super::super::linear::ols;
 use super::super::qr::PivotedQr;
 use super::super::refine::residual;
@@ -253,16 +253,8 @@ impl Partialled {
     pub(super) fn fit_rows(&self, rows: &Rows<'_>, with_cov: bool) -> Option<ZFit> {
         let zt = rows.zt;
         let (m, l) = zt.shape();
-        let n = self.y.len();
-        let k = self.w.ncols() + l;
-        if m < l {
+        if !self.fittable(rows) {
             return None;
-        }
-        let tol = 16.0 * n.max(k) as f64 * f64::EPSILON;
-        for j in 0..l {
-            if zt.column(j).norm() <= tol * rows.z_norms[j] {
-                return None;
-            }
         }
         // One re-drawn column (the usual case): closed form, g = z̃'ỹ / z̃'z̃, Q₁ = z̃/‖z̃‖ and
         // T = 1/‖z̃‖, with no factorisation per draw. Several columns: pivoted QR.
@@ -281,8 +273,7 @@ impl Partialled {
                     sums[ids[i]] += zs[i] * (ys[i] - zs[i] * g[0]);
                 }
                 let meat: f64 = sums.iter().map(|v| v * v).sum();
-                let gf = *groups as f64;
-                let c = gf / (gf - 1.0) * ((n - 1) as f64 / self.df_cluster as f64);
+                let c = self.cluster_factor(*groups);
                 return Some((g, Some(DMatrix::from_element(1, 1, c * meat / (zz * zz)))));
             }
             let u = rows.y - zc * g[0];
@@ -312,24 +303,14 @@ impl Partialled {
             Kind::Hc { power, scaled } => {
                 // Only unit rows reach here (`cell_parts` excludes HC).
                 let mut scaled_q = q1.clone();
-                let tol_h = n.max(k) as f64 * f64::EPSILON;
                 for i in 0..m {
                     let mut wgt = u[i] * u[i];
                     if *power > 0 {
-                        let one_minus_h = 1.0 - self.h_fixed[i] - q1.row(i).norm_squared();
-                        if one_minus_h <= tol_h {
-                            return None;
-                        }
-                        wgt /= one_minus_h.powi(*power);
+                        wgt /= self.leverage_divisor(i, q1.row(i).norm_squared(), *power, l)?;
                     }
                     scaled_q.row_mut(i).scale_mut(wgt);
                 }
-                let c = if *scaled {
-                    n as f64 / self.df_resid as f64
-                } else {
-                    1.0
-                };
-                q1.transpose() * scaled_q * c
+                q1.transpose() * scaled_q * self.hc_factor(*scaled)
             }
             Kind::Cluster { g: groups, .. } => {
                 let ids = rows.ids?;
@@ -338,9 +319,7 @@ impl Partialled {
                     let mut row = sums.row_mut(c);
                     row += q1.row(i) * u[i];
                 }
-                let gf = *groups as f64;
-                let c = gf / (gf - 1.0) * ((n - 1) as f64 / self.df_cluster as f64);
-                sums.transpose() * sums * c
+                sums.transpose() * sums * self.cluster_factor(*groups)
             }
             Kind::TwoWay(_) => return None,
         };
@@ -360,16 +339,10 @@ impl Partialled {
     ) -> Option<Pencil> {
         let zt = rows.zt;
         let (m, l) = zt.shape();
-        let n = self.y.len();
-        let k = self.w.ncols() + l;
-        if l != 1 || m < 1 || t.len() != m {
+        if l != 1 || t.len() != m || !self.fittable(rows) {
             return None;
         }
-        let tol = 16.0 * n.max(k) as f64 * f64::EPSILON;
         let zc = zt.column(0);
-        if zc.norm() <= tol * rows.z_norms[0] {
-            return None;
-        }
         let zz = zc.norm_squared();
         let (gy, gt) = (zc.dot(rows.y) / zz, zc.dot(t) / zz);
         if !with_cov {
@@ -394,28 +367,19 @@ impl Partialled {
                 (sy, st, 1.0 / (self.df_resid as f64 * zz))
             }
             Kind::Hc { power, scaled } => {
-                let (norm, tol_h) = (zz.sqrt(), n.max(k) as f64 * f64::EPSILON);
+                let norm = zz.sqrt();
                 let mut sy = Vec::with_capacity(m);
                 let mut st = Vec::with_capacity(m);
                 for (i, &z) in zs.iter().enumerate() {
                     let mut f = z;
                     if *power > 0 {
                         let q1 = z / norm;
-                        let one_minus_h = 1.0 - self.h_fixed[i] - q1 * q1;
-                        if one_minus_h <= tol_h {
-                            return None;
-                        }
-                        f /= one_minus_h.powi(*power).sqrt();
+                        f /= self.leverage_divisor(i, q1 * q1, *power, 1)?.sqrt();
                     }
                     sy.push(f * uy(i));
                     st.push(f * ut(i));
                 }
-                let c = if *scaled {
-                    n as f64 / self.df_resid as f64
-                } else {
-                    1.0
-                };
-                (sy, st, c / (zz * zz))
+                (sy, st, self.hc_factor(*scaled) / (zz * zz))
             }
             Kind::Cluster { g: groups, .. } => {
                 let ids = rows.ids?;
@@ -424,9 +388,7 @@ impl Partialled {
                     sy[c] += zs[i] * uy(i);
                     st[c] += zs[i] * ut(i);
                 }
-                let gf = *groups as f64;
-                let c = gf / (gf - 1.0) * ((n - 1) as f64 / self.df_cluster as f64);
-                (sy, st, c / (zz * zz))
+                (sy, st, self.cluster_factor(*groups) / (zz * zz))
             }
             Kind::TwoWay(_) => return None,
         };
@@ -435,6 +397,40 @@ impl Partialled {
             gt,
             spread: Spread::new(&sy, &st, c),
         })
+    }
+
+    /// Whether `rows` can be fitted: at least as many rows as re-drawn columns, and no
+    /// partialled column that is rounding noise (‖z̃ⱼ‖ ≤ 16·max(n, k)·eps·‖zⱼ‖).
+    fn fittable(&self, rows: &Rows<'_>) -> bool {
+        let (m, l) = rows.zt.shape();
+        let tol = 16.0 * self.y.len().max(self.w.ncols() + l) as f64 * f64::EPSILON;
+        m >= l && !(0..l).any(|j| rows.zt.column(j).norm() <= tol * rows.z_norms[j])
+    }
+
+    /// The CR1 factor of `groups` clusters (module `covariance`), with the units' n.
+    fn cluster_factor(&self, groups: usize) -> f64 {
+        let n = self.y.len();
+        cr1_factor(groups, n, n - self.df_cluster)
+    }
+
+    /// The HC1 factor n / (n − k − a) when `scaled`, else 1.
+    fn hc_factor(&self, scaled: bool) -> f64 {
+        if scaled {
+            self.y.len() as f64 / self.df_resid as f64
+        } else {
+            1.0
+        }
+    }
+
+    /// (1 − hᵢ)^`power` for unit i, whose leverage in Z̃ (of `l` columns) is
+    /// `q1_squared`, the fixed leverage added; `None` when 1 − hᵢ is within rounding of 0.
+    fn leverage_divisor(&self, i: usize, q1_squared: f64, power: i32, l: usize) -> Option<f64> {
+        let tol = self.y.len().max(self.w.ncols() + l) as f64 * f64::EPSILON;
+        let one_minus_h = 1.0 - self.h_fixed[i] - q1_squared;
+        if one_minus_h <= tol {
+            return None;
+        }
+        Some(one_minus_h.powi(power))
     }
 
     /// The two-way and HAC fallback: OLS of y on [Z | W] with the full covariance.
