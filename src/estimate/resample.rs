@@ -281,7 +281,9 @@ where
     }
 }
 
-/// The two-sided p-value of [`summarise`] counted from the statistics as they come.
+/// The two-sided p-value under the contract in the module documentation, counted from the
+/// statistics as they come (`None`: skipped); [`summarise`] and the randomization interval's
+/// candidates use it.
 pub(crate) fn two_sided_p(observed: f64, stats: impl Iterator<Item = Option<f64>>) -> f64 {
     let tol = TIE_TOLERANCE * observed.abs();
     let (mut two, mut used) = (0usize, 0usize);
@@ -295,17 +297,16 @@ pub(crate) fn two_sided_p(observed: f64, stats: impl Iterator<Item = Option<f64>
 /// Turns the draw statistics into p-values under the contract in the module documentation.
 pub(crate) fn summarise(observed: f64, stats: &[Option<f64>], exact: bool) -> ResampleResult {
     let tol = TIE_TOLERANCE * observed.abs();
-    let (mut two, mut upper, mut lower, mut used) = (0usize, 0usize, 0usize, 0usize);
+    let (mut upper, mut lower, mut used) = (0usize, 0usize, 0usize);
     for s in stats.iter().flatten() {
         used += 1;
-        two += usize::from(s.abs() >= observed.abs() - tol);
         upper += usize::from(*s >= observed - tol);
         lower += usize::from(*s <= observed + tol);
     }
     let share = |c: usize| c as f64 / used as f64;
     ResampleResult {
         observed,
-        p_value: share(two),
+        p_value: two_sided_p(observed, stats.iter().copied()),
         p_upper: share(upper),
         p_lower: share(lower),
         draws_used: used,

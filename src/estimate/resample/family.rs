@@ -11,13 +11,11 @@
 //! design the draws are fitted from cell-level statistics of both outcomes (module `cells`).
 //! Two-way and HAC errors refit every draw in full and have no pencil.
 
-use nalgebra::DVector;
-
 use super::super::covariance::CovSpec;
 use super::super::{Absorbed, EstimateError};
 use super::assignment::{Assigner, AssignmentDesign};
 use super::randomization::{permutation_draws, DrawFitter, Fixed, RiStatistic};
-use super::{Draws, OlsColumns, ResampleError, Tested};
+use super::{scale_rows, Draws, OlsColumns, ResampleError, Tested};
 
 /// One draw's regression of every outcome ỹ − τ₀t̃ on one re-drawn column, kept as the
 /// pieces that are linear in τ₀: the coefficient is g_y − τ₀g_t, and the meat of its variance
@@ -125,10 +123,7 @@ impl NullFamily {
     /// [`EstimateError::NotFinite`] for a non-finite `null`.
     #[cfg(test)]
     pub(crate) fn statistics(&self, null: f64) -> Result<super::DrawStats, ResampleError> {
-        if !null.is_finite() {
-            return Err(EstimateError::NotFinite.into());
-        }
-        let (observed, stats) = self.at(null);
+        let (observed, stats) = self.at(null)?;
         Ok((observed, stats.collect(), self.exact))
     }
 
@@ -138,15 +133,21 @@ impl NullFamily {
     /// # Errors
     /// As [`NullFamily::statistics`].
     pub(crate) fn p_value(&self, null: f64) -> Result<f64, ResampleError> {
-        if !null.is_finite() {
-            return Err(EstimateError::NotFinite.into());
-        }
-        let (observed, stats) = self.at(null);
+        let (observed, stats) = self.at(null)?;
         Ok(super::two_sided_p(observed, stats))
     }
 
     /// The observed statistic and every draw's, in draw order, under τ₀ = `null`.
-    fn at(&self, null: f64) -> (f64, impl Iterator<Item = Option<f64>> + '_) {
+    ///
+    /// # Errors
+    /// [`EstimateError::NotFinite`] for a non-finite `null`.
+    fn at(
+        &self,
+        null: f64,
+    ) -> Result<(f64, impl Iterator<Item = Option<f64>> + '_), ResampleError> {
+        if !null.is_finite() {
+            return Err(EstimateError::NotFinite.into());
+        }
         let observed = self.observed.statistic(null, self.studentized);
         let stats = self.draws.iter().enumerate().map(move |(b, p)| {
             let p = p.as_ref()?;
@@ -156,7 +157,7 @@ impl NullFamily {
             }
             Some(p.statistic(null, self.studentized)).filter(|v| v.is_finite())
         });
-        (observed, stats)
+        Ok((observed, stats))
     }
 }
 
@@ -179,16 +180,13 @@ pub(crate) fn randomization_family(
     if fixed.part.refits() {
         return Ok(None);
     }
-    let t = DVector::from_column_slice(fixed.observed.as_slice());
-    let t_tilde = fixed.part.partial_out(&match &fixed.root {
-        Some(r) => t.component_mul(r),
-        None => t,
-    });
+    let t = scale_rows(fixed.observed.clone(), fixed.root.as_ref());
+    let t_tilde = fixed.part.partial_out(&t.column(0).into_owned());
     let assigner = Assigner::new(design, &fixed.observed)?;
     let fitter = DrawFitter::with_second(&fixed.part, &assigner, fixed.root.as_ref(), &t_tilde);
     let with_cov = statistic == RiStatistic::T;
     let (observed, draws, exact) = permutation_draws(&assigner, plan, |labels, observed| {
-        fitter.pencil(labels, observed, &t_tilde, with_cov)
+        fitter.pencil(labels, observed, with_cov)
     })?;
     Ok(Some(NullFamily {
         observed,

@@ -46,6 +46,8 @@ pub(super) struct DrawFitter<'a> {
     /// the units they land on, unit by unit (the cell-level statistics assume unweighted
     /// rows, so a weighted problem never uses them).
     root: Option<&'a DVector<f64>>,
+    /// The second outcome t̃ of a pencil fitter ([`DrawFitter::with_second`]).
+    t_tilde: Option<&'a DVector<f64>>,
 }
 
 impl<'a> DrawFitter<'a> {
@@ -58,7 +60,7 @@ impl<'a> DrawFitter<'a> {
         part: &'a Partialled,
         assigner: &'a Assigner,
         root: Option<&'a DVector<f64>>,
-        t_tilde: &DVector<f64>,
+        t_tilde: &'a DVector<f64>,
     ) -> Self {
         Self::build(part, assigner, root, Some(t_tilde))
     }
@@ -67,7 +69,7 @@ impl<'a> DrawFitter<'a> {
         part: &'a Partialled,
         assigner: &'a Assigner,
         root: Option<&'a DVector<f64>>,
-        t_tilde: Option<&DVector<f64>>,
+        t_tilde: Option<&'a DVector<f64>>,
     ) -> Self {
         let cells = if assigner.grouped() && root.is_none() {
             part.cell_parts().map(|parts| match t_tilde {
@@ -82,6 +84,7 @@ impl<'a> DrawFitter<'a> {
             assigner,
             cells,
             root,
+            t_tilde,
         }
     }
 
@@ -99,15 +102,10 @@ impl<'a> DrawFitter<'a> {
         }
     }
 
-    /// As [`DrawFitter::fit`], the draw's [`Pencil`] (the fitter built by
-    /// [`DrawFitter::with_second`] with `t_tilde`).
-    pub(super) fn pencil(
-        &self,
-        labels: &[usize],
-        units: bool,
-        t_tilde: &DVector<f64>,
-        with_cov: bool,
-    ) -> Option<Pencil> {
+    /// As [`DrawFitter::fit`], the draw's [`Pencil`] (`None` also for a fitter not built
+    /// by [`DrawFitter::with_second`]).
+    pub(super) fn pencil(&self, labels: &[usize], units: bool, with_cov: bool) -> Option<Pencil> {
+        let t_tilde = self.t_tilde?;
         match &self.cells {
             Some(cells) if !units => {
                 cells.pencil(self.part, &self.assigner.group_values(labels), with_cov)
