@@ -144,6 +144,23 @@ impl Tested {
     pub fn new(index: usize, null: f64) -> Self {
         Tested { index, null }
     }
+
+    /// The coefficient is one of `k` and the null value is finite.
+    ///
+    /// # Errors
+    /// [`EstimateError::IndexOutOfRange`], then [`EstimateError::NotFinite`].
+    pub(crate) fn check(&self, k: usize) -> Result<(), EstimateError> {
+        if self.index >= k {
+            return Err(EstimateError::IndexOutOfRange {
+                index: self.index,
+                k,
+            });
+        }
+        if !self.null.is_finite() {
+            return Err(EstimateError::NotFinite);
+        }
+        Ok(())
+    }
 }
 
 /// Relative tolerance under which two statistics count as tied (tied draws count as at

@@ -283,17 +283,7 @@ impl Fixed {
             },
         ) = (cols, tested);
         validate(y, &[("x", x)])?;
-        let k = x.ncols();
-        if treatment >= k {
-            return Err(EstimateError::IndexOutOfRange {
-                index: treatment,
-                k,
-            }
-            .into());
-        }
-        if !null.is_finite() {
-            return Err(EstimateError::NotFinite.into());
-        }
+        tested.check(x.ncols())?;
         check_weights(cols.weights, y.len())?;
         let t = x.column(treatment).into_owned();
         let y0 = y - &t * null;

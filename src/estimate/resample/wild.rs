@@ -37,7 +37,7 @@ use super::super::covariance::{densify, CovSpec};
 use super::super::linear::{ols, validate};
 use super::super::qr::PivotedQr;
 use super::super::refine::residual;
-use super::super::{Absorbed, EstimateError};
+use super::super::Absorbed;
 use super::{run_draws, summarise, DrawStats, Draws, ResampleError, ResampleResult, Stream};
 use super::{OlsColumns, Tested};
 
@@ -146,16 +146,7 @@ pub(crate) fn wild_statistics(
     } = tested;
     validate(y, &[("x", x)])?;
     let (n, k) = x.shape();
-    if coef_index >= k {
-        return Err(EstimateError::IndexOutOfRange {
-            index: coef_index,
-            k,
-        }
-        .into());
-    }
-    if !null.is_finite() {
-        return Err(EstimateError::NotFinite.into());
-    }
+    tested.check(k)?;
     let spec = CovSpec::Cluster {
         ids: clusters.to_vec(),
     };
