@@ -16,7 +16,7 @@ use crate::analysis;
 use crate::deviation::DeviationCode;
 use crate::error::{Error, Result};
 use crate::files::{self, Links};
-use crate::ledger::{Entry, Event, Ledger};
+use crate::ledger::{Entry, Event, Ledger, TOOL_VERSION};
 use difference::first_difference;
 use named::NamedData;
 use std::path::{Path, PathBuf};
@@ -290,6 +290,11 @@ impl Verification {
                 continue; // already reported by `outputs`
             };
             if on_disk != fresh.as_bytes() {
+                if let Some(made_by) = other_version(name, &on_disk) {
+                    self.problems.push(format!(
+                        "the run was made by sworn {made_by} and this is sworn {TOOL_VERSION}: versions can round the same analysis differently in the last digits, so a byte-for-byte check needs sworn {made_by}; this check cannot tell whether the differences below come from the version or from the plan and data"
+                    ));
+                }
                 self.problems.push(first_difference(name, &on_disk, fresh));
             }
         }
@@ -380,6 +385,16 @@ impl Verification {
 
 /// The registration point (see [`crate::ledger::Moment`]): the last seal or amendment before
 /// the data were first seen; before the run, when the prefix records no data being seen.
+/// The version of sworn recorded in a results.json on disk, when it is not this one.
+fn other_version(name: &str, on_disk: &[u8]) -> Option<String> {
+    if name != "results.json" {
+        return None;
+    }
+    let json: serde_json::Value = serde_json::from_slice(on_disk).ok()?;
+    let version = json.get("tool")?.get("version")?.as_str()?;
+    (version != TOOL_VERSION).then(|| shown(version))
+}
+
 fn registration(ledger: &Ledger) -> Option<Registration> {
     let line = ledger.registered().or_else(|| ledger.versions().last())?;
     let e = line.entry;
@@ -393,4 +408,24 @@ fn registration(ledger: &Ledger) -> Option<Registration> {
         },
         time: shown(&e.time),
     })
+}
+
+#[cfg(test)]
+mod version_tests {
+    use super::*;
+
+    /// The version a results.json records is named when it is not this one, and only for
+    /// results.json.
+    #[test]
+    fn another_version_is_named() {
+        let other = br#"{"format": 1, "tool": {"name": "sworn", "version": "0.0.9"}}"#;
+        assert_eq!(
+            other_version("results.json", other).as_deref(),
+            Some("0.0.9")
+        );
+        assert_eq!(other_version("report.md", other), None);
+        let this = format!(r#"{{"tool": {{"name": "sworn", "version": "{TOOL_VERSION}"}}}}"#);
+        assert_eq!(other_version("results.json", this.as_bytes()), None);
+        assert_eq!(other_version("results.json", b"not json"), None);
+    }
 }

@@ -33,7 +33,7 @@ use std::collections::HashMap;
 use nalgebra::{DMatrix, DMatrixView, DVector, SymmetricEigen};
 
 use super::hac::hac_meat;
-use super::qr::{InputKey, PivotedQr};
+use super::qr::{InputKey, PivotedQr, QRows};
 use super::{Absorbed, EstimateError};
 
 /// Which coefficient covariance to compute.
@@ -147,17 +147,20 @@ pub(crate) fn covariance(
             Ok(plain(qr.refined_inverse(x) * s2))
         }
         CovSpec::Hc0 | CovSpec::Hc1 | CovSpec::Hc2 | CovSpec::Hc3 => {
-            let q1 = qr.thin_q();
+            let q1 = qr.q_rows();
             let weights = hc_weights(&q1, resid, spec, leverage, absorbed)?;
             let c = if *spec == CovSpec::Hc1 {
                 n as f64 / (n - k) as f64
             } else {
                 1.0
             };
-            Ok(plain(sandwich(weighted_gram(&q1, &weights), c)))
+            let meat = q1.summed(|start, q| {
+                Ok::<_, EstimateError>(weighted_gram(q, &weights[start..start + q.nrows()]))
+            })?;
+            Ok(plain(sandwich(meat, c)))
         }
         CovSpec::Cluster { ids } => {
-            let (sums, g) = cluster_sums(&qr.thin_q(), resid, ids)?;
+            let (sums, g) = cluster_sums(&qr.q_rows(), resid, ids)?;
             let meat = sums.transpose() * &sums;
             let cov = sandwich(meat, cr1_factor(g, n, k_cluster));
             Ok(Covariance {
@@ -169,7 +172,7 @@ pub(crate) fn covariance(
             positions,
             bandwidth,
         } => {
-            let meat = hac_meat(&scores(&qr.thin_q(), resid), positions, *bandwidth)?;
+            let meat = hac_meat(&scores(&qr.q_rows().full(), resid), positions, *bandwidth)?;
             Ok(plain(sandwich(meat, n as f64 / (n - k) as f64)))
         }
         CovSpec::TwoWay { first, second } => {
@@ -197,7 +200,7 @@ pub(crate) fn two_way_unclamped(
     let t = qr.t_matrix();
     let n = resid.len();
     let kc = t.nrows() + absorbed.df - absorbed.nested_df;
-    let scores = scores(&qr.thin_q(), resid);
+    let scores = scores(&qr.q_rows().full(), resid);
     let (meat_a, ga) = cluster_meat(&scores, first)?;
     let (meat_b, gb) = cluster_meat(&scores, second)?;
     let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;
@@ -208,7 +211,7 @@ pub(crate) fn two_way_unclamped(
 
 /// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ.
 pub(crate) fn hc_weights(
-    q1: &DMatrix<f64>,
+    q1: &QRows,
     resid: &DVector<f64>,
     spec: &CovSpec,
     leverage: Leverage,
@@ -233,10 +236,11 @@ pub(crate) fn hc_weights(
         }
     };
     let tol = q1.nrows().max(q1.ncols()) as f64 * f64::EPSILON;
+    let leverages = q1.leverages();
     (0..q1.nrows())
         .map(|i| {
             let h_absorbed = extra.map_or(0.0, |h| h[i]);
-            let one_minus_h = 1.0 - q1.row(i).norm_squared() - h_absorbed;
+            let one_minus_h = 1.0 - leverages[i] - h_absorbed;
             if one_minus_h <= tol {
                 return Err(EstimateError::UnitLeverage { observation: i });
             }
@@ -418,11 +422,11 @@ fn cluster_meat(
 /// appearance) and the cluster count, in one pass over the rows without an n × k score matrix
 /// (the same products and the same order of summation as summing the score rows).
 pub(crate) fn cluster_sums(
-    q1: &DMatrix<f64>,
+    q1: &QRows,
     resid: &DVector<f64>,
     ids: &[usize],
 ) -> Result<(DMatrix<f64>, usize), EstimateError> {
-    let (n, k) = q1.shape();
+    let (n, k) = (q1.nrows(), q1.ncols());
     if ids.len() != n {
         return Err(EstimateError::ClusterLength { n, ids: ids.len() });
     }
@@ -432,14 +436,21 @@ pub(crate) fn cluster_sums(
     }
     // One pass over the rows, each cluster's k sums side by side (row-major); every sum
     // still adds its terms in row order, as a pass per column did.
-    let columns: Vec<&[f64]> = q1.as_slice().chunks(n.max(1)).collect();
     let mut sums = vec![0.0; g * k];
-    for (i, (&c, u)) in dense.iter().zip(resid.iter()).enumerate() {
-        let target = &mut sums[c * k..(c + 1) * k];
-        for (t, column) in target.iter_mut().zip(&columns) {
-            *t += column[i] * u;
+    q1.blocks::<EstimateError>(|start, q| {
+        let rows = q.nrows();
+        let columns: Vec<&[f64]> = q.as_slice().chunks(rows.max(1)).collect();
+        let block = dense[start..start + rows]
+            .iter()
+            .zip(&resid.as_slice()[start..]);
+        for (i, (&c, u)) in block.enumerate() {
+            let target = &mut sums[c * k..(c + 1) * k];
+            for (t, column) in target.iter_mut().zip(&columns) {
+                *t += column[i] * u;
+            }
         }
-    }
+        Ok(())
+    })?;
     Ok((DMatrix::from_row_slice(g, k, &sums), g))
 }
 
@@ -580,7 +591,8 @@ mod tests {
         });
         let u = DVector::from_fn(n, |i, _| ((i * 7) as f64 * 0.13).cos() * 3.0);
         let ids: Vec<usize> = (0..n).map(|i| (i * 37) % 23 + 100).collect();
-        let (sums, g) = cluster_sums(&q1, &u, &ids).expect("valid");
+        let rows = QRows::Thin(std::sync::Arc::new(q1.clone()));
+        let (sums, g) = cluster_sums(&rows, &u, &ids).expect("valid");
         let (dense, g_expected) = densify(&ids);
         assert_eq!(g, g_expected);
         let mut expected = DMatrix::zeros(g, k);
@@ -600,5 +612,96 @@ mod tests {
     fn intersection_cells() {
         let cells = intersect(&[0, 0, 1, 1, 0], &[0, 1, 0, 1, 0]);
         assert_eq!(cells, vec![0, 1, 2, 3, 0]);
+    }
+}
+
+#[cfg(test)]
+mod product_tests {
+    use super::*;
+
+    /// The sandwich (XᵀX)⁻¹ M (XᵀX)⁻¹ written out, for a well-conditioned design whose
+    /// factorisation forms the rows of Q₁ as X T in blocks (more rows than one block).
+    #[test]
+    fn sandwiches_from_row_blocks_are_the_textbook_formula() {
+        let n = 2 * crate::estimate::qr::Q_BLOCK + 123;
+        let k = 4;
+        let x = DMatrix::from_fn(n, k, |i, j| {
+            if j == 0 {
+                1.0
+            } else {
+                ((i * (7 + j * 3)) as f64 * 0.37).sin() * (1.0 + j as f64)
+            }
+        });
+        let u = DVector::from_fn(n, |i, _| {
+            ((i * 13) as f64 * 0.21).cos() * (1.0 + (i % 5) as f64)
+        });
+        let qr = PivotedQr::new(&x).expect("full rank");
+        assert!(!qr.ill_conditioned());
+        let xtx_inv = (x.transpose() * &x).try_inverse().expect("invertible");
+        let ids: Vec<usize> = (0..n).map(|i| (i * 31) % 97).collect();
+        for spec in [CovSpec::Hc1, CovSpec::Cluster { ids: ids.clone() }] {
+            let got = covariance(&qr, &x, &u, &spec, Leverage::Allowed, &Absorbed::NONE)
+                .expect("covariance")
+                .cov;
+            let (meat, c) = match &spec {
+                CovSpec::Cluster { .. } => {
+                    let mut sums = DMatrix::zeros(97, k);
+                    for i in 0..n {
+                        let mut row = sums.row_mut(ids[i]);
+                        row += x.row(i) * u[i];
+                    }
+                    (sums.transpose() * &sums, cr1_factor(97, n, k))
+                }
+                _ => {
+                    let mut m = DMatrix::zeros(k, k);
+                    for i in 0..n {
+                        m += x.row(i).transpose() * x.row(i) * (u[i] * u[i]);
+                    }
+                    (m, n as f64 / (n - k) as f64)
+                }
+            };
+            let want = &xtx_inv * meat * &xtx_inv * c;
+            let rel = (&got - &want).amax() / want.amax();
+            assert!(rel < 1e-12, "{spec:?}: {rel}");
+        }
+    }
+
+    /// The quadratic form of two residual vectors, built over the same row blocks, gives
+    /// the covariance of each combination of them (HC1, HC3 and clusters).
+    #[test]
+    fn quadratic_meats_from_row_blocks_match_the_covariance() {
+        let n = 2 * crate::estimate::qr::Q_BLOCK + 57;
+        let k = 3;
+        let x = DMatrix::from_fn(n, k, |i, j| {
+            if j == 0 {
+                1.0
+            } else {
+                ((i * (5 + j * 4)) as f64 * 0.29).cos() * (2.0 + j as f64)
+            }
+        });
+        let e1 = DVector::from_fn(n, |i, _| ((i * 17) as f64 * 0.11).sin());
+        let e2 = DVector::from_fn(n, |i, _| ((i * 23) as f64 * 0.07).cos() * 0.5);
+        let qr = PivotedQr::new(&x).expect("full rank");
+        let ids: Vec<usize> = (0..n).map(|i| i / 101).collect();
+        for spec in [CovSpec::Hc1, CovSpec::Hc3, CovSpec::Cluster { ids }] {
+            let meat = crate::estimate::quadratic_meat::quadratic_meat(
+                &qr,
+                &e1,
+                &e2,
+                &spec,
+                Leverage::Allowed,
+                &Absorbed::NONE,
+            )
+            .expect("meat")
+            .expect("a quadratic form for this covariance");
+            for (a, b) in [(1.0, 0.0), (0.0, 1.0), (0.7, -1.3)] {
+                let e = &e1 * a - &e2 * b;
+                let want = covariance(&qr, &x, &e, &spec, Leverage::Allowed, &Absorbed::NONE)
+                    .expect("covariance")
+                    .cov;
+                let rel = (meat.covariance(a, b) - &want).amax() / want.amax();
+                assert!(rel < 1e-12, "{spec:?} ({a}, {b}): {rel}");
+            }
+        }
     }
 }

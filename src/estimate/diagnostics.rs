@@ -56,8 +56,9 @@ fn is_exact_fit(fit: &LinearFit) -> bool {
 }
 
 /// Wald/|S| of the coefficients `indices` of `fit` under `cov`, referred to F(|S|, df2).
-/// An exact fit whose covariance block is singular reports +∞ (the convention NIST StRD
-/// uses for the F statistic of its exact fits Wampler1 and Wampler2).
+/// An exact fit (to within rounding, [`is_exact_fit`]) reports +∞ (the convention NIST StRD
+/// uses for the F statistic of its exact fits Wampler1 and Wampler2): its residuals, and so
+/// any finite statistic, would be rounding noise.
 fn joint_f(
     fit: &LinearFit,
     cov: &DMatrix<f64>,
@@ -66,8 +67,8 @@ fn joint_f(
 ) -> Result<TestStatistic, EstimateError> {
     let q = indices.len() as f64;
     let statistic = match wald(&fit.coef, cov, indices) {
+        _ if is_exact_fit(fit) => f64::INFINITY,
         Ok(w) => w / q,
-        Err(EstimateError::SingularCovariance { .. }) if is_exact_fit(fit) => f64::INFINITY,
         Err(e) => return Err(e),
     };
     let reference = Reference::F {

@@ -233,17 +233,24 @@ fn liml_kappa(
             a.set_column(j, &(&col - exog_qr.project(&col)));
         }
     }
-    // y in the span of X: A is singular and the variance ratio is 0/0.
+    // y in the span of the exogenous columns (a constant outcome, say): the y rows and
+    // columns of both W'M_exog W and W'M_Z W vanish (span exog ⊆ span Z), the pencil's root
+    // along y is 0/0, and the others are those of the endogenous columns alone, so the
+    // smallest is taken over them (the ratio is the same for every β ≠ 0 along them).
+    let tol = n.max(p + 1) as f64 * f64::EPSILON;
+    if exog.ncols() > 0 && a.column(0).norm() <= tol * y.norm() {
+        a = a.columns(1, p).into_owned();
+    }
+    // y in the span of X otherwise: A is singular and the variance ratio is 0/0.
     let qa = PivotedQr::new(&a).map_err(|_| EstimateError::RankDeficient { dependent: vec![k] })?;
     let q1 = qa.thin_q();
-    let mut pq = DMatrix::zeros(n, p + 1);
-    for j in 0..=p {
+    let mut pq = DMatrix::zeros(n, a.ncols());
+    for j in 0..a.ncols() {
         pq.set_column(j, &zqr.project(&q1.column(j).into_owned()));
     }
     let g = pq.transpose() * &pq;
     let eigen = SymmetricEigen::new(symmetric(g));
     let nu_max = eigen.eigenvalues.max();
-    let tol = n.max(p + 1) as f64 * f64::EPSILON;
     if 1.0 - nu_max <= tol {
         // W'M_Z W is singular: some combination of [y | endog] lies in the span of Z.
         return Err(EstimateError::RankDeficient {

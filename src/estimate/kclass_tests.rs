@@ -297,3 +297,34 @@ fn absorbed_fixed_effects_match_dummies() {
     println!("dummies versus absorbed: largest relative difference {worst:.2e}");
     assert!(worst < TOL, "{worst}");
 }
+
+/// A constant outcome lies in the span of the exogenous columns: the pencil's root along it
+/// is 0/0, and κ_LIML is the smallest root over the endogenous column alone,
+/// ‖M_exog d‖² / ‖M_Z d‖² with one endogenous column (the ratio is then the same for every
+/// β ≠ 0). Before, this was reached or refused by rounding noise in the partialled outcome.
+#[test]
+fn constant_outcome_takes_kappa_from_the_endogenous_columns() {
+    let fx = load("weak_kclass_over");
+    let mut d = data(&fx);
+    d.y = DVector::from_element(d.y.len(), 5.0);
+    let residual_norm = |m: &DMatrix<f64>| {
+        let qr = m.clone().qr();
+        let coef = qr
+            .r()
+            .solve_upper_triangular(&(qr.q().transpose() * &d.endog))
+            .expect("full rank");
+        (&d.endog - m * coef).norm_squared()
+    };
+    let z = DMatrix::from_columns(
+        &d.instruments
+            .column_iter()
+            .chain(d.exog.column_iter())
+            .collect::<Vec<_>>(),
+    );
+    let want = residual_norm(&d.exog) / residual_norm(&z);
+    let zqr = crate::estimate::qr::PivotedQr::new(&z).expect("instruments");
+    let excluded = d.instruments.ncols();
+    let kappa = super::liml_kappa(&d.y, &d.exog, &d.endog, &zqr, excluded).expect("kappa");
+    assert!(want > 1.0);
+    assert!((kappa - want).abs() <= 1e-12 * want, "{kappa} vs {want}");
+}

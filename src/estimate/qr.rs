@@ -38,9 +38,9 @@ fn rank_tolerance(n: usize, k: usize) -> f64 {
 pub(crate) struct PivotedQr {
     /// Upper triangle holds R (k × k); the strictly lower part is unused.
     r: DMatrix<f64>,
-    /// Householder vectors, n × k: reflector j is I − 2 v vᵀ acting on rows j.., with v (unit
-    /// norm) in rows j.. of column j (the rows above belong to R and are not read here).
-    reflectors: DMatrix<f64>,
+    /// What Q is applied with: the Householder vectors of an ill-conditioned factorisation,
+    /// or the factorised matrix itself for the others ([`Basis`]).
+    basis: Basis,
     /// `perm[j]` is the caller's column index placed at position j.
     perm: Vec<usize>,
     /// Reciprocal column norms (the diagonal of S).
@@ -54,6 +54,25 @@ pub(crate) struct PivotedQr {
     /// refined (X'X)^{-1}, each computed on first use and kept. `None` for a factorisation
     /// of one fit, which computes them afresh on every call and keeps nothing.
     kept: Option<Kept>,
+}
+
+/// How a factorisation applies Q and Qᵀ.
+#[derive(Debug, Clone)]
+enum Basis {
+    /// Householder vectors, n × k: reflector j is I − 2 v vᵀ acting on rows j.., with v (unit
+    /// norm) in rows j.. of column j (the rows above belong to R and are not read here).
+    /// Kept when κ₁ of the scaled R exceeds [`REFINE_ABOVE`]: there Qᵀ must be applied
+    /// orthogonally for refinement to converge.
+    Reflectors(DMatrix<f64>),
+    /// The factorised matrix X itself (held, not copied, when the caller shares it), for a
+    /// factorisation with κ₁ at most [`REFINE_ABOVE`]: Qᵀv is R⁻ᵀ(XS P)ᵀv, the initial
+    /// solution comes from the semi-normal equations RᵀR b̃ = (XS P)ᵀy, and refinement
+    /// solves its correction system the same way (module `refine`). Its error contracts by a
+    /// factor of order ε·κ² per step instead of ε·κ (Björck 1987, "Stability analysis of the
+    /// method of seminormal equations for linear least squares problems", Linear Algebra
+    /// Appl. 88/89), at most about 2·10⁻¹⁰ here. The n × k Householder vectors are dropped as
+    /// soon as R is formed: a kept factorisation then holds k × k numbers of its own.
+    Columns(Arc<DMatrix<f64>>),
 }
 
 /// What a shared factorisation keeps once computed.
@@ -308,6 +327,22 @@ impl PivotedQr {
     /// columns are named by [`collinear_columns`] (scan in the caller's order), falling back
     /// to the columns pivoted past the rank when that scan finds none.
     pub(crate) fn new(x: &DMatrix<f64>) -> Result<Self, EstimateError> {
+        Self::factorise(x, || Arc::new(x.clone()))
+    }
+
+    /// [`PivotedQr::new`] for a matrix the caller shares: a well-conditioned factorisation
+    /// holds `x` itself instead of a copy.
+    ///
+    /// # Errors
+    /// As [`PivotedQr::new`].
+    pub(crate) fn new_held(x: &Arc<DMatrix<f64>>) -> Result<Self, EstimateError> {
+        Self::factorise(x, || Arc::clone(x))
+    }
+
+    fn factorise(
+        x: &DMatrix<f64>,
+        held: impl FnOnce() -> Arc<DMatrix<f64>>,
+    ) -> Result<Self, EstimateError> {
         let (n, k) = x.shape();
         let (mut a, scale) = scale_columns(x);
         let mut perm: Vec<usize> = (0..k).collect();
@@ -329,11 +364,16 @@ impl PivotedQr {
         }
         let mut r = a.rows(0, k).upper_triangle();
         r.set_diagonal(&DVector::from_vec(diagonal));
-        let reflectors = a;
         let ill_conditioned = condition_one(&r) > REFINE_ABOVE;
+        let basis = if ill_conditioned {
+            Basis::Reflectors(a)
+        } else {
+            drop(a);
+            Basis::Columns(held())
+        };
         let qr = PivotedQr {
             r,
-            reflectors,
+            basis,
             perm,
             scale,
             n,
@@ -358,51 +398,80 @@ impl PivotedQr {
             .count()
     }
 
-    /// Applies Qᵀ to a vector of length n (reflectors in order; module `reflect`).
-    fn apply_qt(&self, y: &DVector<f64>) -> DVector<f64> {
+    /// Applies Qᵀ to a vector of length n with the Householder vectors (in order; module
+    /// `reflect`).
+    fn apply_qt(reflectors: &DMatrix<f64>, k: usize, y: &DVector<f64>) -> DVector<f64> {
         let mut c = y.clone();
-        let order = reflect::reflectors(&self.reflectors, 0..self.perm.len());
+        let order = reflect::reflectors(reflectors, 0..k);
         reflect::apply_all(c.as_mut_slice(), &order);
         c
     }
 
-    /// Applies Q to an n × m matrix (reflectors in reverse order), column by column.
-    fn apply_q(&self, mut c: DMatrix<f64>) -> DMatrix<f64> {
-        let order = reflect::reflectors(&self.reflectors, (0..self.perm.len()).rev());
-        for column in c.as_mut_slice().chunks_mut(self.n) {
+    /// Applies Q to an n × m matrix with the Householder vectors (in reverse order), column
+    /// by column.
+    fn apply_q(reflectors: &DMatrix<f64>, k: usize, mut c: DMatrix<f64>) -> DMatrix<f64> {
+        let n = reflectors.nrows();
+        let order = reflect::reflectors(reflectors, (0..k).rev());
+        for column in c.as_mut_slice().chunks_mut(n) {
             reflect::apply_all(column, &order);
         }
         c
     }
 
-    /// Least-squares coefficients b minimising ‖y − X b‖, in the caller's column order.
-    fn solve_once(&self, y: &DVector<f64>) -> DVector<f64> {
+    /// (XᵀX)⁻¹ u from R alone, in the caller's coordinates: S P R⁻¹ R⁻ᵀ Pᵀ S u.
+    fn normal_solve(&self, u: &DVector<f64>) -> DVector<f64> {
         let k = self.perm.len();
-        let c = self.apply_qt(y).rows(0, k).into_owned();
+        let scaled = DVector::from_fn(k, |j, _| self.scale[self.perm[j]] * u[self.perm[j]]);
         let z = self
             .r
-            .solve_upper_triangular(&c)
+            .tr_solve_upper_triangular(&scaled)
+            .and_then(|w| self.r.solve_upper_triangular(&w))
             .unwrap_or_else(|| DVector::zeros(k));
-        let mut b = DVector::zeros(k);
+        self.unscaled(&z)
+    }
+
+    /// S P z: a vector in the scaled, pivoted coordinates back in the caller's.
+    fn unscaled(&self, z: &DVector<f64>) -> DVector<f64> {
+        let mut b = DVector::zeros(z.len());
         for (j, &col) in self.perm.iter().enumerate() {
             b[col] = z[j] * self.scale[col];
         }
         b
     }
 
+    /// Least-squares coefficients b minimising ‖y − X b‖, in the caller's column order:
+    /// R b̃ = (Qᵀy)₁ with the Householder vectors, the semi-normal equations
+    /// RᵀR b̃ = (XS P)ᵀy with the held matrix.
+    fn solve_once(&self, y: &DVector<f64>) -> DVector<f64> {
+        let k = self.perm.len();
+        match &self.basis {
+            Basis::Reflectors(v) => {
+                let c = Self::apply_qt(v, k, y).rows(0, k).into_owned();
+                let z = self
+                    .r
+                    .solve_upper_triangular(&c)
+                    .unwrap_or_else(|| DVector::zeros(k));
+                self.unscaled(&z)
+            }
+            Basis::Columns(x) => self.normal_solve(&x.tr_mul(y)),
+        }
+    }
+
     /// Least-squares coefficients, refined on the augmented system (module `refine`).
     /// A shared factorisation (module `shared`) keeps its latest solutions: `x` must be
     /// the factorised matrix.
     pub(crate) fn solve(&self, x: &DMatrix<f64>, y: &DVector<f64>) -> DVector<f64> {
-        let fresh = || {
-            let mut b = self.solve_once(y);
-            self.refine(x, y, &mut b);
-            b
-        };
         match &self.kept {
-            Some(kept) => kept.solution(y, fresh),
-            None => fresh(),
+            Some(kept) => kept.solution(y, || self.solve_fresh(x, y)),
+            None => self.solve_fresh(x, y),
         }
+    }
+
+    /// [`PivotedQr::solve`], never kept.
+    fn solve_fresh(&self, x: &DMatrix<f64>, y: &DVector<f64>) -> DVector<f64> {
+        let mut b = self.solve_once(y);
+        self.refine(x, y, &mut b);
+        b
     }
 
     /// Solves the augmented correction system [I X; Xᵀ 0](δr; δb) = (f; g) with the stored
@@ -413,23 +482,28 @@ impl PivotedQr {
         g: &DVector<f64>,
     ) -> (DVector<f64>, DVector<f64>) {
         let k = self.perm.len();
+        let v = match &self.basis {
+            Basis::Reflectors(v) => v,
+            Basis::Columns(x) => {
+                // δr + X δb = f and Xᵀ δr = g give XᵀX δb = Xᵀf − g.
+                let db = self.normal_solve(&(x.tr_mul(f) - g));
+                let dr = f - &**x * &db;
+                return (db, dr);
+            }
+        };
         let g_scaled = DVector::from_fn(k, |j, _| self.scale[self.perm[j]] * g[self.perm[j]]);
         let h = self
             .r
             .tr_solve_upper_triangular(&g_scaled)
             .unwrap_or_else(|| DVector::zeros(k));
-        let mut d = self.apply_qt(f);
+        let mut d = Self::apply_qt(v, k, f);
         let db_scaled = self
             .r
             .solve_upper_triangular(&(d.rows(0, k) - &h))
             .unwrap_or_else(|| DVector::zeros(k));
         d.rows_mut(0, k).copy_from(&h);
-        let dr = self.apply_q(DMatrix::from_column_slice(self.n, 1, d.as_slice()));
-        let mut db = DVector::zeros(k);
-        for (j, &col) in self.perm.iter().enumerate() {
-            db[col] = db_scaled[j] * self.scale[col];
-        }
-        (db, dr.column(0).into_owned())
+        let dr = Self::apply_q(v, k, DMatrix::from_column_slice(self.n, 1, d.as_slice()));
+        (self.unscaled(&db_scaled), dr.column(0).into_owned())
     }
 
     /// The k × k matrix T = S P R^{-1}, so that (X'X)^{-1} = T Tᵀ and X T = Q₁.
@@ -506,8 +580,14 @@ impl PivotedQr {
         self.kept.as_ref().map(|k| &k.inverse)
     }
 
-    /// The thin Q factor Q₁ (n × k), whose rows give leverages and scores.
+    /// The thin Q factor Q₁ (n × k), whose rows give leverages and scores: from the
+    /// Householder vectors (kept by a shared factorisation), or X T from the held matrix
+    /// (computed per call: a shared factorisation then keeps no n × k matrix of its own).
     pub(crate) fn thin_q(&self) -> Arc<DMatrix<f64>> {
+        let v = match &self.basis {
+            Basis::Reflectors(v) => v,
+            Basis::Columns(x) => return Arc::new(&**x * self.t_matrix()),
+        };
         // Column j of Q₁ is Q eⱼ. Reflectors numbered above j act on rows below j, where eⱼ
         // is zero: their dot product with it is +0 and their update adds (−0)·v + 0 = +0 to
         // each zero, so skipping them gives the same bits (reflectors are finite).
@@ -515,7 +595,7 @@ impl PivotedQr {
             let k = self.perm.len();
             let mut q1 = DMatrix::identity(self.n, k);
             for (j, column) in q1.as_mut_slice().chunks_mut(self.n).enumerate() {
-                let order = reflect::reflectors(&self.reflectors, (0..=j).rev());
+                let order = reflect::reflectors(v, (0..=j).rev());
                 reflect::apply_all(column, &order);
             }
             Arc::new(q1)
@@ -526,14 +606,128 @@ impl PivotedQr {
         }
     }
 
-    /// The orthogonal projection of `v` onto the column space of X.
+    /// The rows of Q₁ for sums over rows (score sums, weighted Gram matrices): the kept thin
+    /// Q from the Householder vectors, or the held X with T, whose row blocks X T are formed
+    /// as they are summed, so that no n × k matrix is made ([`QRows`]).
+    pub(crate) fn q_rows(&self) -> QRows {
+        match &self.basis {
+            Basis::Reflectors(_) => QRows::Thin(self.thin_q()),
+            Basis::Columns(x) => QRows::Product {
+                x: Arc::clone(x),
+                t: self.t_matrix(),
+            },
+        }
+    }
+
+    /// The orthogonal projection of `v` onto the column space of X: Q(Qᵀv)₁ with the
+    /// Householder vectors, X b with b the refined least-squares solution of X b ≈ v with
+    /// the held matrix.
     pub(crate) fn project(&self, v: &DVector<f64>) -> DVector<f64> {
         let k = self.perm.len();
-        let mut c = self.apply_qt(v);
+        let reflectors = match &self.basis {
+            Basis::Reflectors(reflectors) => reflectors,
+            // Not kept: projected vectors are seldom asked for again, and keeping them would
+            // push out the solutions that are.
+            Basis::Columns(x) => return &**x * self.solve_fresh(x, v),
+        };
+        let mut c = Self::apply_qt(reflectors, k, v);
         c.rows_mut(k, self.n - k).fill(0.0);
-        self.apply_q(DMatrix::from_column_slice(self.n, 1, c.as_slice()))
-            .column(0)
-            .into_owned()
+        Self::apply_q(
+            reflectors,
+            k,
+            DMatrix::from_column_slice(self.n, 1, c.as_slice()),
+        )
+        .column(0)
+        .into_owned()
+    }
+}
+
+/// The rows of a thin Q factor Q₁ (n × k).
+pub(crate) enum QRows {
+    /// Q₁ itself.
+    Thin(Arc<DMatrix<f64>>),
+    /// Q₁ = X T, formed a block of [`Q_BLOCK`] rows at a time. Its columns are orthonormal
+    /// to within about κ·ε (T comes from the Householder R; κ ≤ 10³ for this form), against ε
+    /// for the thin Q.
+    Product {
+        x: Arc<DMatrix<f64>>,
+        t: DMatrix<f64>,
+    },
+}
+
+/// Rows per block of [`QRows::blocks`] (a multiple of 256, see `covariance::ROW_BLOCK`).
+pub(crate) const Q_BLOCK: usize = 32 * 256;
+
+impl QRows {
+    /// The number of rows n.
+    pub(crate) fn nrows(&self) -> usize {
+        match self {
+            QRows::Thin(q) => q.nrows(),
+            QRows::Product { x, .. } => x.nrows(),
+        }
+    }
+
+    /// The number of columns k.
+    pub(crate) fn ncols(&self) -> usize {
+        match self {
+            QRows::Thin(q) => q.ncols(),
+            QRows::Product { t, .. } => t.ncols(),
+        }
+    }
+
+    /// Calls `f(start, block)` for consecutive blocks of rows of Q₁, in order: the whole of
+    /// a thin Q as one block (the sums then take exactly the bits of a pass over it), blocks
+    /// of [`Q_BLOCK`] rows of X T otherwise.
+    pub(crate) fn blocks<E>(
+        &self,
+        mut f: impl FnMut(usize, &DMatrix<f64>) -> Result<(), E>,
+    ) -> Result<(), E> {
+        match self {
+            QRows::Thin(q) => f(0, q),
+            QRows::Product { x, t } => {
+                let (n, k) = x.shape();
+                for start in (0..n).step_by(Q_BLOCK) {
+                    let rows = Q_BLOCK.min(n - start);
+                    f(start, &(x.view((start, 0), (rows, k)) * t))?;
+                }
+                Ok(())
+            }
+        }
+    }
+
+    /// Q₁ as one n × k matrix (for the few estimators that need every score row at once).
+    pub(crate) fn full(&self) -> Arc<DMatrix<f64>> {
+        match self {
+            QRows::Thin(q) => Arc::clone(q),
+            QRows::Product { x, t } => Arc::new(&**x * t),
+        }
+    }
+
+    /// The leverages ‖qᵢ‖².
+    pub(crate) fn leverages(&self) -> Vec<f64> {
+        let mut out = Vec::with_capacity(self.nrows());
+        let _ = self.blocks::<()>(|_, q| {
+            out.extend(q.row_iter().map(|q| q.norm_squared()));
+            Ok(())
+        });
+        out
+    }
+
+    /// Σ over row blocks of `per_block(start, block)`.
+    pub(crate) fn summed<E>(
+        &self,
+        mut per_block: impl FnMut(usize, &DMatrix<f64>) -> Result<DMatrix<f64>, E>,
+    ) -> Result<DMatrix<f64>, E> {
+        let mut total: Option<DMatrix<f64>> = None;
+        self.blocks(|start, q| {
+            let part = per_block(start, q)?;
+            total = Some(match total.take() {
+                Some(t) => t + part,
+                None => part,
+            });
+            Ok(())
+        })?;
+        Ok(total.unwrap_or_else(|| DMatrix::zeros(0, 0)))
     }
 }
 

@@ -68,7 +68,7 @@ pub(crate) fn quadratic_meat(
         return Ok(None);
     }
     let t = qr.t_matrix();
-    let q1 = qr.thin_q();
+    let q1 = qr.q_rows();
     let n = e1.len();
     let k = t.nrows() + absorbed.df;
     let k_cluster = k - absorbed.nested_df;
@@ -82,13 +82,28 @@ pub(crate) fn quadratic_meat(
         _ => {
             let ones = DVector::from_element(n, 1.0);
             let omega = hc_weights(&q1, &ones, spec, leverage, absorbed)?;
-            let [m11, m12, m22] = weighted_grams(&q1, |i| {
-                [
-                    omega[i] * e1[i] * e1[i],
-                    omega[i] * e1[i] * e2[i],
-                    omega[i] * e2[i] * e2[i],
-                ]
-            });
+            let mut grams: Option<[DMatrix<f64>; 3]> = None;
+            q1.blocks::<EstimateError>(|start, q| {
+                let block = weighted_grams(q, |r| {
+                    let i = start + r;
+                    [
+                        omega[i] * e1[i] * e1[i],
+                        omega[i] * e1[i] * e2[i],
+                        omega[i] * e2[i] * e2[i],
+                    ]
+                });
+                grams = Some(match grams.take() {
+                    Some([a, b, c]) => {
+                        let [x, y, z] = block;
+                        [a + x, b + y, c + z]
+                    }
+                    None => block,
+                });
+                Ok(())
+            })?;
+            let width = q1.ncols();
+            let [m11, m12, m22] =
+                grams.unwrap_or_else(|| std::array::from_fn(|_| DMatrix::zeros(width, width)));
             let factor = if *spec == CovSpec::Hc1 {
                 n as f64 / (n - k) as f64
             } else {

@@ -206,17 +206,17 @@ fn entry_for(x: &DMatrix<f64>, owned: Option<&Arc<DMatrix<f64>>>) -> Option<Arc<
 /// As [`PivotedQr::new`].
 pub(crate) fn shared_qr(x: &DMatrix<f64>) -> Result<Arc<PivotedQr>, EstimateError> {
     match entry(x) {
-        Some(e) => e.factorised(x),
+        Some(e) => e.factorised(),
         None => PivotedQr::new(x).map(Arc::new),
     }
 }
 
 impl Entry {
-    /// The entry's QR, factorised from `x` (equal to the entry's matrix) on first use and
+    /// The entry's QR, factorised from its matrix on first use and
     /// made to keep what it computes later.
-    fn factorised(&self, x: &DMatrix<f64>) -> Result<Arc<PivotedQr>, EstimateError> {
+    fn factorised(&self) -> Result<Arc<PivotedQr>, EstimateError> {
         self.qr
-            .get_or_init(|| PivotedQr::new(x).map(|qr| Arc::new(qr.kept())))
+            .get_or_init(|| PivotedQr::new_held(&self.x).map(|qr| Arc::new(qr.kept())))
             .clone()
     }
 }
@@ -230,8 +230,12 @@ pub(crate) fn design_qr(
     x: &DMatrix<f64>,
 ) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
     match entry(x) {
-        Some(e) => Ok((Arc::clone(&e.x), e.factorised(x)?)),
-        None => Ok((Arc::new(x.clone()), Arc::new(PivotedQr::new(x)?))),
+        Some(e) => Ok((Arc::clone(&e.x), e.factorised()?)),
+        None => {
+            let x = Arc::new(x.clone());
+            let qr = PivotedQr::new_held(&x)?;
+            Ok((x, Arc::new(qr)))
+        }
     }
 }
 
@@ -244,8 +248,8 @@ pub(crate) fn shared_design_qr(
     x: &Arc<DMatrix<f64>>,
 ) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
     match entry_for(x, Some(x)) {
-        Some(e) => Ok((Arc::clone(&e.x), e.factorised(x)?)),
-        None => Ok((Arc::clone(x), Arc::new(PivotedQr::new(x)?))),
+        Some(e) => Ok((Arc::clone(&e.x), e.factorised()?)),
+        None => Ok((Arc::clone(x), Arc::new(PivotedQr::new_held(x)?))),
     }
 }
 

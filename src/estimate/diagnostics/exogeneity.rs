@@ -15,6 +15,7 @@ use super::super::linear::{
     assemble, hcat, instrument_qr, least_squares, least_squares_shared, require_observations,
     IvProblem, IvSetup,
 };
+use super::super::qr::QRows;
 use super::super::{Absorbed, EstimateError};
 use super::{inference_df, joint_f};
 use crate::distribution::{Reference, TestStatistic};
@@ -214,12 +215,15 @@ impl IvProblem<'_> {
 /// Ω = Σ_c s_c s_cᵀ with s_c the sums of the moment rows qᵢ uᵢ over the groups `ids`
 /// (one group per observation when `ids` is `None`).
 fn moment_meat(
-    q: &DMatrix<f64>,
+    q: &QRows,
     u: &DVector<f64>,
     ids: Option<&[usize]>,
 ) -> Result<DMatrix<f64>, EstimateError> {
     let Some(ids) = ids else {
-        return Ok(scaled_gram(q, u.as_slice(), Scaled::Both, ROW_BLOCK));
+        return q.summed(|start, q| {
+            let u = &u.as_slice()[start..start + q.nrows()];
+            Ok(scaled_gram(q, u, Scaled::Both, ROW_BLOCK))
+        });
     };
     // The per-group sums of the moment rows, summed in row order as adding the rows would.
     let (sums, g) = cluster_sums(q, u, ids)?;
@@ -227,6 +231,18 @@ fn moment_meat(
         let s = sums.row(c).transpose();
         acc + &s * s.transpose()
     }))
+}
+
+/// Q₁ᵀ B for a matrix B with Q₁'s rows, summed over Q₁'s row blocks.
+fn rows_times(q: &QRows, b: &DMatrix<f64>) -> Result<DMatrix<f64>, EstimateError> {
+    q.summed(|start, block| {
+        let rows = block.nrows();
+        if rows == b.nrows() {
+            return Ok(transpose_times(block, b));
+        }
+        let part = b.rows(start, rows).into_owned();
+        Ok(transpose_times(block, &part))
+    })
 }
 
 /// Hansen's (1982, Econometrica 50) J test of the overidentifying restrictions from
@@ -296,13 +312,13 @@ impl IvProblem<'_> {
             return Ok(None);
         }
         let u = self.tsls_residuals()?;
-        let q = setup.zqr.thin_q();
+        let q = setup.zqr.q_rows();
         let omega = match cov {
             CovSpec::Hac {
                 positions,
                 bandwidth,
             } => {
-                let mut scores = (*q).clone();
+                let mut scores = (*q.full()).clone();
                 for (i, ui) in u.iter().enumerate() {
                     scores.row_mut(i).scale_mut(*ui);
                 }
@@ -323,11 +339,11 @@ impl IvProblem<'_> {
                 .solve_lower_triangular(&m)
                 .ok_or(EstimateError::SingularMomentCovariance { moments: l })
         };
-        let xt = whiten(transpose_times(&q, &setup.x))?;
-        let yt = whiten(transpose_times(
+        let xt = whiten(rows_times(&q, &setup.x)?)?;
+        let yt = whiten(rows_times(
             &q,
             &DMatrix::from_column_slice(n, 1, y.as_slice()),
-        ))?;
+        )?)?;
         let yt = yt.column(0).into_owned();
         let statistic = least_squares(&yt, &xt)?.resid.norm_squared();
         Ok(Some(TestStatistic {
