@@ -9,7 +9,11 @@
 //! (Ogita, Rump and Oishi 2005, SIAM J. Sci. Comput. 26, algorithm Dot2), then solves the
 //! correction system with the existing factorisation X S P = Q R:
 //! h = R^{-T} g̃, (d₁; d₂) = Qᵀ f, δb̃ = R^{-1}(d₁ − h), δr = Q (h; d₂), where g̃ = P' S g and
-//! δb = S P δb̃. Invariant: only the stored factorisation is used; X is never squared.
+//! δb = S P δb̃. A factorisation that kept R and X instead of its Householder vectors
+//! (module `qr`, κ₁ ≤ 10³) solves the same correction system from R alone:
+//! XᵀX δb = Xᵀf − g as S P R⁻¹R⁻ᵀ Pᵀ S (Xᵀf − g), δr = f − X δb (Björck 1987, the corrected
+//! semi-normal equations; contraction about κ²·ε per step). Invariant: only the stored
+//! factorisation is used; X is never squared.
 
 use nalgebra::{DMatrix, DVector};
 
