@@ -214,13 +214,8 @@ fn instruments_error(e: EstimateError) -> EstimateError {
     }
 }
 
-/// Factorises the full instrument set `[instruments | exog]`.
-pub(crate) fn instrument_qr(z: &DMatrix<f64>) -> Result<Arc<PivotedQr>, EstimateError> {
-    shared_qr(z).map_err(instruments_error)
-}
-
-/// [`instrument_qr`], with the instrument set itself for fits that keep their design (`z`
-/// handed to the memo without a copy).
+/// Factorises the full instrument set `[instruments | exog]`, with the instrument set itself
+/// for fits that keep their design (`z` handed to the memo without a copy).
 pub(crate) fn instrument_design(
     z: DMatrix<f64>,
 ) -> Result<(Arc<DMatrix<f64>>, Arc<PivotedQr>), EstimateError> {
@@ -378,16 +373,18 @@ impl<'a> IvProblem<'a> {
     }
 
     /// [`IvProblem::new`] with `[endog | exog]` and `[instruments | exog]` already joined by
-    /// the caller and shared (the same bits as joining them here).
+    /// the caller and shared (the same bits as joining them here), and the exogenous block
+    /// the caller shares (`exog`), which the memo then keeps without a copy.
     ///
     /// # Errors
     /// As [`IvProblem::new`].
     pub(crate) fn joined(
         y: &'a DVector<f64>,
-        (exog, endog, instruments): (&'a DMatrix<f64>, &'a DMatrix<f64>, &'a DMatrix<f64>),
+        (exog, endog, instruments): (&'a Arc<DMatrix<f64>>, &'a DMatrix<f64>, &'a DMatrix<f64>),
         x: Arc<DMatrix<f64>>,
         z: Arc<DMatrix<f64>>,
     ) -> Result<Self, EstimateError> {
+        shared::hold(exog);
         Self::with_setup(y, (exog, endog, instruments), Some((x, z)))
     }
 

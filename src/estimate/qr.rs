@@ -277,8 +277,93 @@ impl Kept {
 /// Divides every column by its Euclidean norm, returning the scaled copy (written in one
 /// pass) and the factors.
 fn scale_columns(x: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
-    let scale: Vec<f64> = x
-        .column_iter()
+    let scale = column_scales(x);
+    let mut xs = Vec::with_capacity(x.len());
+    for (column, s) in x.column_iter().zip(&scale) {
+        xs.extend(column.iter().map(|v| v * s));
+    }
+    (DMatrix::from_vec(x.nrows(), x.ncols(), xs), scale)
+}
+
+/// Rows per block of [`blockwise`]: each block, with the k rows of the R so far on top, is
+/// factorised in the processor's cache.
+const TSQR_BLOCK: usize = 8192;
+
+/// R, the pivoting and the scale factors of X S P = Q R computed over blocks of rows without
+/// an n × k copy (a tall-skinny QR: Demmel, Grigori, Hoemmen and Langou 2012, SIAM J. Sci.
+/// Comput. 34): each block of [`TSQR_BLOCK`] scaled rows is stacked under the R of the rows
+/// before it and factorised (unpivoted Householder), which gives the R of all the rows so
+/// far, since Q's of blocks and of stacks compose to an orthogonal transformation of the rows.
+/// The greedy column pivoting is then applied to that k × k R, whose column norms are those
+/// of X S. `None` when the result is rank-deficient or κ₁ of R exceeds [`REFINE_ABOVE`]:
+/// those designs are factorised whole, keeping their Householder vectors.
+fn blockwise(x: &DMatrix<f64>) -> Option<(DMatrix<f64>, Vec<usize>, Vec<f64>)> {
+    let (n, k) = x.shape();
+    if k == 0 || n < k || k > TSQR_BLOCK / 2 {
+        return None;
+    }
+    let scale = column_scales(x);
+    let mut r: Option<DMatrix<f64>> = None;
+    for start in (0..n).step_by(TSQR_BLOCK) {
+        let rows = TSQR_BLOCK.min(n - start);
+        let top = if r.is_some() { k } else { 0 };
+        let mut m = DMatrix::zeros(top + rows, k);
+        if let Some(r) = &r {
+            m.rows_mut(0, k).copy_from(r);
+        }
+        for (j, s) in scale.iter().enumerate() {
+            let column = &x.as_slice()[j * n + start..j * n + start + rows];
+            for (target, v) in m.view_mut((top, j), (rows, 1)).iter_mut().zip(column) {
+                *target = v * s;
+            }
+        }
+        if m.nrows() < k {
+            return None;
+        }
+        r = Some(unpivoted_r(m, k));
+    }
+    let mut a = r?;
+    let mut perm: Vec<usize> = (0..k).collect();
+    let mut diagonal = Vec::with_capacity(k);
+    for j in 0..k {
+        let norms: Vec<f64> = (j..k).map(|p| tail_norm(&a, p, j)).collect();
+        let pivot = (j..k)
+            .max_by(|&p, &q| norms[p - j].total_cmp(&norms[q - j]))
+            .unwrap_or(j);
+        a.swap_columns(j, pivot);
+        perm.swap(j, pivot);
+        let alpha = householder(&mut a, j, j)?;
+        reflect_later_columns(&mut a, j, j);
+        diagonal.push(alpha);
+    }
+    let mut r = a.upper_triangle();
+    r.set_diagonal(&DVector::from_vec(diagonal));
+    let threshold = rank_tolerance(n, k) * r[(0, 0)].abs();
+    let full_rank = (0..k).all(|j| r[(j, j)].abs() > threshold);
+    (full_rank && condition_one(&r) <= REFINE_ABOVE).then_some((r, perm, scale))
+}
+
+/// The k × k R of an unpivoted Householder QR of `m` (at least k rows); a column whose
+/// remaining part is zero gets a zero diagonal (a later block stacked under it supplies it).
+fn unpivoted_r(mut m: DMatrix<f64>, k: usize) -> DMatrix<f64> {
+    let mut diagonal = Vec::with_capacity(k);
+    for j in 0..k {
+        match householder(&mut m, j, j) {
+            Some(alpha) => {
+                reflect_later_columns(&mut m, j, j);
+                diagonal.push(alpha);
+            }
+            None => diagonal.push(0.0),
+        }
+    }
+    let mut r = m.rows(0, k).upper_triangle();
+    r.set_diagonal(&DVector::from_vec(diagonal));
+    r
+}
+
+/// The reciprocal Euclidean norm of every column (1 for a zero column).
+fn column_scales(x: &DMatrix<f64>) -> Vec<f64> {
+    x.column_iter()
         .map(|column| {
             let norm = column.norm();
             if norm > 0.0 {
@@ -287,12 +372,7 @@ fn scale_columns(x: &DMatrix<f64>) -> (DMatrix<f64>, Vec<f64>) {
                 1.0
             }
         })
-        .collect();
-    let mut xs = Vec::with_capacity(x.len());
-    for (column, s) in x.column_iter().zip(&scale) {
-        xs.extend(column.iter().map(|v| v * s));
-    }
-    (DMatrix::from_vec(x.nrows(), x.ncols(), xs), scale)
+        .collect()
 }
 
 /// Rows `row..` of column `col` of `a` become the unit Householder vector v that maps them
@@ -349,6 +429,27 @@ impl PivotedQr {
     }
 
     fn factorise(
+        x: &DMatrix<f64>,
+        held: impl FnOnce() -> Arc<DMatrix<f64>>,
+    ) -> Result<Self, EstimateError> {
+        if let Some((r, perm, scale)) = blockwise(x) {
+            return Ok(PivotedQr {
+                r,
+                basis: Basis::Columns(held()),
+                perm,
+                scale,
+                n: x.nrows(),
+                ill_conditioned: false,
+                kept: None,
+            });
+        }
+        Self::with_reflectors(x, held)
+    }
+
+    /// The factorisation of the whole scaled copy, keeping the Householder vectors when κ₁
+    /// of R exceeds [`REFINE_ABOVE`]: for designs [`blockwise`] declines (ill-conditioned or
+    /// rank-deficient), whose results and errors it gives as before.
+    fn with_reflectors(
         x: &DMatrix<f64>,
         held: impl FnOnce() -> Arc<DMatrix<f64>>,
     ) -> Result<Self, EstimateError> {

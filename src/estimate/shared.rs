@@ -200,6 +200,12 @@ fn entry_for(x: &DMatrix<f64>, owned: Option<&Arc<DMatrix<f64>>>) -> Option<Arc<
     Some(e)
 }
 
+/// Hands `x` to the memo (when sharing is on) without factorising it, so that a later
+/// request for a matrix with the same bits finds it instead of keeping a copy of its own.
+pub(crate) fn hold(x: &Arc<DMatrix<f64>>) {
+    let _ = entry_for(x, Some(x));
+}
+
 /// The QR of `x`, shared when sharing is on ([`PivotedQr::new`] otherwise).
 ///
 /// # Errors

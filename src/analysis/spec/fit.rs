@@ -59,7 +59,7 @@ pub(super) fn estimate<'a>(prepared: &'a Prepared) -> Result<Estimated<'a>> {
     let iv = if spec.estimator.is_iv() {
         let x = shared.joined(&[&p.focal, &p.exog]);
         let z = shared.joined(&[&p.instruments, &p.exog]);
-        let columns = (&*p.exog, &*p.focal, &*p.instruments);
+        let columns = (&p.exog, &*p.focal, &*p.instruments);
         Some(estimate::IvProblem::joined(&d.y, columns, x, z).map_err(err)?)
     } else {
         None

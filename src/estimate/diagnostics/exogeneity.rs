@@ -12,10 +12,9 @@ use super::super::covariance::{
 };
 use super::super::hac::hac_meat;
 use super::super::linear::{
-    assemble, hcat, instrument_qr, least_squares, least_squares_shared, require_observations,
-    IvProblem, IvSetup,
+    assemble, hcat, least_squares, least_squares_shared, require_observations, IvProblem, IvSetup,
 };
-use super::super::qr::QRows;
+use super::super::qr::{PivotedQr, QRows};
 use super::super::{Absorbed, EstimateError};
 use super::{inference_df, joint_f};
 use crate::distribution::{Reference, TestStatistic};
@@ -77,6 +76,8 @@ fn first_stage_residuals(
 /// * With e_o the OLS residuals of y on X and e_iv the 2SLS residuals, let
 ///   δ = e_oᵀ P_[Z, endog] e_o − e_ivᵀ P_Z e_iv (the difference of the two quadratic forms
 ///   compared by Durbin 1954, Rev. Int. Statist. Inst. 22, and Wu 1973, Econometrica 41).
+///   P_[Z, endog] = P_Z + P_V̂ (V̂ is orthogonal to Z), so the first form is computed as
+///   e_oᵀ P_Z e_o + e_oᵀ P_V̂ e_o without forming [Z | endog].
 ///   Durbin = δ / (e_oᵀe_o / n), chi²(p). Wu–Hausman =
 ///   (δ/p) / [(e_oᵀe_o − δ)/(n − k − p − a)], F(p, n − k − p − a) (Wu 1973, T₂; Hausman
 ///   1978), a the absorbed coefficients. δ equals the drop in RSS from adding V̂ to
@@ -133,12 +134,12 @@ impl IvProblem<'_> {
         let control_function = joint_f(&cf, &cf.cov, &tested, inference_df(&cf))?;
         let e_o = least_squares(y, &setup.x)?.resid;
         let e_iv = self.tsls_residuals()?;
-        // Z with the endogenous columns is outcome-free: factorised once per sample.
-        let wide = setup.zqr.derived(
-            || self.outcome_free_key("instruments and endogenous").finish(),
-            || instrument_qr(&hcat(&setup.z, &endog.clone_owned())),
-        )?;
-        let delta = wide.project(&e_o).norm_squared() - setup.zqr.project(&e_iv).norm_squared();
+        // P_[Z | endog] = P_Z + P_V̂ with V̂ = M_Z endog (the first-stage residuals, the last p
+        // columns of [X | V̂], orthogonal to Z), so [Z | endog] is never formed or factorised.
+        let vhat = augmented.columns(k, p).into_owned();
+        let wide = setup.zqr.project(&e_o).norm_squared()
+            + PivotedQr::new(&vhat)?.project(&e_o).norm_squared();
+        let delta = wide - setup.zqr.project(&e_iv).norm_squared();
         let rss_o = e_o.norm_squared();
         let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
         Ok(Endogeneity {
