@@ -962,3 +962,73 @@ mod tests {
         assert_ne!(fast, other);
     }
 }
+
+#[cfg(test)]
+mod blockwise_tests {
+    use super::*;
+
+    /// A design over several row blocks with a column that is zero in the whole first block
+    /// (a late-starting indicator).
+    fn design(n: usize) -> DMatrix<f64> {
+        DMatrix::from_fn(n, 5, |i, j| match j {
+            0 => 1.0,
+            1 => ((i * 7) as f64 * 0.013).sin() * 40.0 + 3.0,
+            2 => f64::from(i > TSQR_BLOCK + 100 && i % 3 == 0),
+            3 => ((i * 13) as f64 * 0.7).cos() * 1e-3,
+            _ => (i % 11) as f64 - 5.0,
+        })
+    }
+
+    /// R from row blocks is the R of the whole scaled matrix: RᵀR in the caller's column
+    /// order (which does not depend on the pivoting, chosen among unit-norm columns by
+    /// rounding) is (XS)ᵀ(XS) for both, checked against the factorisation with its
+    /// Householder vectors and against the Gram matrix summed directly.
+    #[test]
+    fn row_blocks_give_the_whole_matrix_r() {
+        let gram = |r: &DMatrix<f64>, perm: &[usize]| {
+            let k = perm.len();
+            let mut unpermuted = DMatrix::zeros(k, k);
+            for (j, &col) in perm.iter().enumerate() {
+                unpermuted.set_column(col, &r.column(j));
+            }
+            unpermuted.transpose() * unpermuted
+        };
+        for n in [TSQR_BLOCK - 1, TSQR_BLOCK + 1, 3 * TSQR_BLOCK + 77] {
+            let mut x = design(n);
+            if n < TSQR_BLOCK + 100 {
+                x.set_column(2, &DVector::from_fn(n, |i, _| f64::from(i % 4 == 0)));
+            }
+            let (r, perm, scale) = blockwise(&x).expect("well conditioned");
+            let whole = PivotedQr::with_reflectors(&x, || Arc::new(x.clone())).expect("rank");
+            assert_eq!(scale, whole.scale);
+            let (a, b) = (gram(&r, &perm), gram(&whole.r, &whole.perm));
+            let xs = DMatrix::from_fn(n, 5, |i, j| x[(i, j)] * scale[j]);
+            let direct = xs.transpose() * &xs;
+            assert!((&a - &b).amax() <= 1e-13, "n = {n}: {}", (&a - &b).amax());
+            // The direct sum rounds n terms in a row: a looser check.
+            assert!((&a - &direct).amax() <= 1e-11, "n = {n}");
+        }
+    }
+
+    /// Designs the blocks decline are factorised whole: ill-conditioned ones keep their
+    /// Householder vectors, rank-deficient ones are the same error as before.
+    #[test]
+    fn ill_conditioned_and_dependent_designs_keep_the_whole_factorisation() {
+        let n = 2 * TSQR_BLOCK + 5;
+        let mut x = design(n);
+        let near: Vec<f64> = (0..n).map(|i| x[(i, 1)] + 1e-7 * x[(i, 4)]).collect();
+        x.set_column(4, &DVector::from_vec(near));
+        assert!(blockwise(&x).is_none());
+        let qr = PivotedQr::new(&x).expect("full rank, ill-conditioned");
+        assert!(qr.ill_conditioned() && matches!(qr.basis, Basis::Reflectors(_)));
+        let dependent: Vec<f64> = (0..n).map(|i| 2.0 * x[(i, 1)] - x[(i, 0)]).collect();
+        x.set_column(4, &DVector::from_vec(dependent));
+        assert!(blockwise(&x).is_none());
+        assert_eq!(
+            PivotedQr::new(&x).map(|_| ()),
+            Err(EstimateError::RankDeficient { dependent: vec![4] })
+        );
+        let well = PivotedQr::new(&design(n)).expect("full rank");
+        assert!(matches!(well.basis, Basis::Columns(_)));
+    }
+}
