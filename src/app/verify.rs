@@ -145,7 +145,9 @@ impl Verification {
         let Some(plan) = self.plan(dir, &run, &source, data) else {
             return;
         };
-        self.rederive(dir, &plan, &prefix, &source);
+        let made_by = (self.problems.is_empty() && run.tool_version != TOOL_VERSION)
+            .then(|| run.tool_version.clone());
+        self.rederive(dir, &plan, &prefix, &source, made_by.as_deref());
     }
 
     fn findings_of(&mut self, json: &serde_json::Value) {
@@ -272,7 +274,17 @@ impl Verification {
         all_found.then_some(plan)
     }
 
-    fn rederive(&mut self, dir: &Path, plan: &crate::plan::Plan, prefix: &Ledger, source: &str) {
+    /// Runs the plan again and compares each output byte for byte. `made_by`: the version of
+    /// sworn the ledger's run entry records, when it is not this one and nothing else was
+    /// found wrong; a difference is then explained as possibly the version's.
+    fn rederive(
+        &mut self,
+        dir: &Path,
+        plan: &crate::plan::Plan,
+        prefix: &Ledger,
+        source: &str,
+        made_by: Option<&str>,
+    ) {
         let out = analysis::load_tables(plan)
             .and_then(|(t, d)| super::execute(plan, prefix, source, &t, d));
         let out = match out {
@@ -290,10 +302,8 @@ impl Verification {
                 continue; // already reported by `outputs`
             };
             if on_disk != fresh.as_bytes() {
-                if let Some(made_by) = other_version(name, &on_disk) {
-                    self.problems.push(format!(
-                        "the run was made by sworn {made_by} and this is sworn {TOOL_VERSION}: versions can round the same analysis differently in the last digits, so a byte-for-byte check needs sworn {made_by}; this check cannot tell whether the differences below come from the version or from the plan and data"
-                    ));
+                if let Some(version) = made_by.filter(|_| name == "results.json") {
+                    self.problems.push(version_note(version));
                 }
                 self.problems.push(first_difference(name, &on_disk, fresh));
             }
@@ -383,18 +393,18 @@ impl Verification {
     }
 }
 
-/// The registration point (see [`crate::ledger::Moment`]): the last seal or amendment before
-/// the data were first seen; before the run, when the prefix records no data being seen.
-/// The version of sworn recorded in a results.json on disk, when it is not this one.
-fn other_version(name: &str, on_disk: &[u8]) -> Option<String> {
-    if name != "results.json" {
-        return None;
-    }
-    let json: serde_json::Value = serde_json::from_slice(on_disk).ok()?;
-    let version = json.get("tool")?.get("version")?.as_str()?;
-    (version != TOOL_VERSION).then(|| shown(version))
+/// What verify says when the ledger's run entry names another version of sworn and the
+/// results do not re-derive.
+fn version_note(made_by: &str) -> String {
+    format!(
+        "the ledger records that sworn {} made this run, and this is sworn {TOOL_VERSION}: versions can compute the same plan on the same data differently (rounding, and rules that changed between versions), so a byte-for-byte check needs sworn {}; this check does not show whether the differences below come from the version or from the plan and data",
+        shown(made_by),
+        shown(made_by)
+    )
 }
 
+/// The registration point (see [`crate::ledger::Moment`]): the last seal or amendment before
+/// the data were first seen; before the run, when the prefix records no data being seen.
 fn registration(ledger: &Ledger) -> Option<Registration> {
     let line = ledger.registered().or_else(|| ledger.versions().last())?;
     let e = line.entry;
@@ -414,18 +424,18 @@ fn registration(ledger: &Ledger) -> Option<Registration> {
 mod version_tests {
     use super::*;
 
-    /// The version a results.json records is named when it is not this one, and only for
-    /// results.json.
+    /// The note names the version the ledger records and the one needed, and claims no more
+    /// than that the version may explain the differences.
     #[test]
-    fn another_version_is_named() {
-        let other = br#"{"format": 1, "tool": {"name": "sworn", "version": "0.0.9"}}"#;
-        assert_eq!(
-            other_version("results.json", other).as_deref(),
-            Some("0.0.9")
+    fn the_version_note_names_both_versions_and_claims_no_cause() {
+        let note = version_note("0.0.9");
+        assert!(note.contains("sworn 0.0.9 made this run"), "{note}");
+        assert!(
+            note.contains(&format!("this is sworn {TOOL_VERSION}")),
+            "{note}"
         );
-        assert_eq!(other_version("report.md", other), None);
-        let this = format!(r#"{{"tool": {{"name": "sworn", "version": "{TOOL_VERSION}"}}}}"#);
-        assert_eq!(other_version("results.json", this.as_bytes()), None);
-        assert_eq!(other_version("results.json", b"not json"), None);
+        assert!(note.contains("needs sworn 0.0.9"), "{note}");
+        assert!(note.contains("does not show whether"), "{note}");
+        assert!(!note.contains("last digits"), "{note}");
     }
 }

@@ -243,3 +243,43 @@ fn absorbed_degrees_of_freedom_limit_the_sample() {
     let err = ols(&y, &x, true, &CovSpec::Classical, &absorbed);
     assert_eq!(err, Err(EstimateError::TooFewObservations { n: 12, k: 12 }));
 }
+
+/// A large mean in the outcome changes no test: the control-function F and κ_LIML with y + 10¹³ equal those with y to 1e-6 (absolute below 1; every
+/// value an integer, so both outcomes are exact). Checks that the rule reporting an exact fit's F as +∞, and the
+/// LIML rule for an outcome in the span of the controls, look at residuals against the
+/// rounding of the fit, not against the outcome's mean.
+#[test]
+fn a_large_outcome_mean_changes_no_test() {
+    let n = 2000;
+    let z = DMatrix::from_fn(n, 2, |i, j| ((i * (j + 3) + i / 7) % 5) as f64);
+    let d = DMatrix::from_fn(n, 1, |i, _| z[(i, 0)] + ((i * 11) % 4) as f64);
+    let exog = DMatrix::from_element(n, 1, 1.0);
+    let y0 = DVector::from_fn(n, |i, _| 2.0 * d[(i, 0)] + ((i * 13) % 9) as f64);
+    let shifted = y0.add_scalar(1e13);
+    let close = |a: f64, b: f64, what: &str| {
+        assert!(a.is_finite() && b.is_finite(), "{what}: {a} vs {b}");
+        assert!(
+            (a - b).abs() <= 1e-6 * b.abs().max(1.0),
+            "{what}: {a} vs {b}"
+        );
+    };
+    let cf = |y: &DVector<f64>| {
+        endogeneity(y, &exog, &d, &z, true, &CovSpec::Hc1, &Absorbed::NONE)
+            .expect("endogeneity")
+            .control_function
+            .statistic
+    };
+    close(cf(&shifted), cf(&y0), "control-function F");
+    let kappa = |y: &DVector<f64>| {
+        super::kclass(
+            super::IvColumns::new(y, &exog, &d, &z),
+            true,
+            &CovSpec::Hc1,
+            super::KClass::Liml,
+            &Absorbed::NONE,
+        )
+        .expect("liml")
+        .kappa
+    };
+    close(kappa(&shifted) - 1.0, kappa(&y0) - 1.0, "κ_LIML − 1");
+}

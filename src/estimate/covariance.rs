@@ -236,7 +236,7 @@ pub(crate) fn hc_weights(
         }
     };
     let tol = q1.nrows().max(q1.ncols()) as f64 * f64::EPSILON;
-    let leverages = q1.leverages();
+    let leverages = q1.leverages()?;
     (0..q1.nrows())
         .map(|i| {
             let h_absorbed = extra.map_or(0.0, |h| h[i]);
@@ -664,6 +664,60 @@ mod product_tests {
             let rel = (&got - &want).amax() / want.amax();
             assert!(rel < 1e-12, "{spec:?}: {rel}");
         }
+    }
+
+    /// A row that alone carries a direction of the column space (leverage 1, though no
+    /// column is a dummy for it) is refused by HC2 and HC3 on a factorisation that keeps R
+    /// and X: the leverages come from an orthonormal Q₁, not from the rows of X T.
+    #[test]
+    fn unit_leverage_through_a_combination_is_refused() {
+        let mut checked = 0;
+        for n in [8, 9, 10, 12, 40] {
+            for seed in 0..40 {
+                let f = |i: usize, j: usize| ((i * (3 + j) + seed * 7) as f64 * 0.61).sin();
+                let mut x = DMatrix::from_fn(n, 4, |i, j| if j == 0 { 1.0 } else { f(i, j) });
+                // Columns 1 and 2 nearly collinear, so that κ is in the hundreds.
+                let delta = [0.2, 0.05, 0.02][seed % 3];
+                for i in 0..n {
+                    x[(i, 2)] = x[(i, 1)] + delta * f(i, 5);
+                }
+                for i in 0..n {
+                    let extra = if i == 4 { 2.0 + seed as f64 * 0.1 } else { 0.0 };
+                    x[(i, 3)] = x[(i, 1)] + 0.5 * x[(i, 2)] + extra;
+                }
+                let qr = PivotedQr::new(&x).expect("full rank");
+                if qr.ill_conditioned() {
+                    continue;
+                }
+                // The leverages are those of the Householder Q₁, bit for bit (the rows of X T
+                // differ from them in the last bits, by up to about κ·ε).
+                let householder = PivotedQr::with_householder_vectors(&x).expect("rank");
+                let want: Vec<u64> = householder
+                    .thin_q()
+                    .row_iter()
+                    .map(|q| q.norm_squared().to_bits())
+                    .collect();
+                let got: Vec<u64> = qr
+                    .q_rows()
+                    .leverages()
+                    .expect("leverages")
+                    .iter()
+                    .map(|h| h.to_bits())
+                    .collect();
+                assert_eq!(got, want, "n = {n}, seed {seed}");
+                let u = DVector::from_fn(n, |i, _| f(i, 7) + 0.1);
+                for spec in [CovSpec::Hc2, CovSpec::Hc3] {
+                    let got = covariance(&qr, &x, &u, &spec, Leverage::Allowed, &Absorbed::NONE);
+                    assert_eq!(
+                        got.map(|c| c.cov),
+                        Err(EstimateError::UnitLeverage { observation: 4 }),
+                        "n = {n}, seed {seed}, {spec:?}"
+                    );
+                }
+                checked += 1;
+            }
+        }
+        assert!(checked >= 100, "only {checked} well-conditioned designs");
     }
 
     /// The quadratic form of two residual vectors, built over the same row blocks, gives

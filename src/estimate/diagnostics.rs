@@ -55,20 +55,38 @@ fn is_exact_fit(fit: &LinearFit) -> bool {
     fit.rss <= scale * scale * (fit.rss + fit.fitted.norm_squared())
 }
 
+/// Whether `fit`'s residuals are at the rounding level of a refined solve,
+/// RSS ≤ (k·ε)²·‖ŷ‖² (its coefficients are correct to a few units of ε, so the residuals of
+/// an exact fit are about ε·‖ŷ‖; the uncentred ‖ŷ‖, since that is what rounds), while some
+/// tested coefficient's contribution to ŷ, |b_j|·‖x_j‖, is not (above k·ε·‖ŷ‖).
+fn is_rounding_fit(fit: &LinearFit, design: &DMatrix<f64>, indices: &[usize]) -> bool {
+    let level = fit.k.max(1) as f64 * f64::EPSILON;
+    let fitted = fit.fitted.norm();
+    if fit.rss > (level * fitted).powi(2) {
+        return false;
+    }
+    let tested = |j: usize| fit.coef[j].abs() * design.column(j).norm();
+    indices.iter().any(|&j| tested(j) > level * fitted)
+}
+
 /// Wald/|S| of the coefficients `indices` of `fit` under `cov`, referred to F(|S|, df2).
-/// An exact fit (to within rounding, [`is_exact_fit`]) reports +∞ (the convention NIST StRD
-/// uses for the F statistic of its exact fits Wampler1 and Wampler2): its residuals, and so
-/// any finite statistic, would be rounding noise.
+/// An exact fit reports +∞ (the convention NIST StRD uses for the F statistic of its exact
+/// fits Wampler1 and Wampler2): when its covariance is singular ([`is_exact_fit`]), or when
+/// its residuals are at the rounding level of a refined solve and a tested coefficient is
+/// not ([`is_rounding_fit`]); a finite statistic would then be rounding noise. When the
+/// tested coefficients are themselves at that level the statistic is 0/0 and is computed as
+/// it comes.
 fn joint_f(
-    fit: &LinearFit,
+    (fit, design): (&LinearFit, &DMatrix<f64>),
     cov: &DMatrix<f64>,
     indices: &[usize],
     df2: usize,
 ) -> Result<TestStatistic, EstimateError> {
     let q = indices.len() as f64;
     let statistic = match wald(&fit.coef, cov, indices) {
-        _ if is_exact_fit(fit) => f64::INFINITY,
+        _ if is_rounding_fit(fit, design, indices) => f64::INFINITY,
         Ok(w) => w / q,
+        Err(EstimateError::SingularCovariance { .. }) if is_exact_fit(fit) => f64::INFINITY,
         Err(e) => return Err(e),
     };
     let reference = Reference::F {
@@ -209,8 +227,9 @@ impl IvProblem<'_> {
                     Leverage::Allowed,
                     absorbed,
                 )?;
-                let f = joint_f(&fit, &classical.cov, &excluded, fit.df_resid)?;
-                let robust_f = joint_f(&fit, &fit.cov, &excluded, inference_df(&fit))?;
+                let fitted = (&fit, &*ls.design);
+                let f = joint_f(fitted, &classical.cov, &excluded, fit.df_resid)?;
+                let robust_f = joint_f(fitted, &fit.cov, &excluded, inference_df(&fit))?;
                 let partial_r_squared = 1.0 - fit.rss / self.exog_residuals(&yj)?.norm_squared();
                 Ok(FirstStage {
                     fit,

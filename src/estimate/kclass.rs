@@ -237,12 +237,18 @@ fn liml_kappa(
     // columns of both W'M_exog W and W'M_Z W vanish (span exog ⊆ span Z), the pencil's root
     // along y is 0/0, and the others are those of the endogenous columns alone, so the
     // smallest is taken over them (the ratio is the same for every β ≠ 0 along them).
+    // The partialled outcome carries rounding of about ε·‖y‖ (a refined projection); a
+    // margin of 16√k over that, not the max(n, p + 1)·ε used below for ν, which would take
+    // an outcome far from the exogenous columns' span but with a large mean for one in it.
     let tol = n.max(p + 1) as f64 * f64::EPSILON;
-    if exog.ncols() > 0 && a.column(0).norm() <= tol * y.norm() {
+    let span_tol = 16.0 * (exog.ncols() as f64).sqrt() * f64::EPSILON;
+    if exog.ncols() > 0 && a.column(0).norm() <= span_tol * y.norm() {
         a = a.columns(1, p).into_owned();
     }
     // y in the span of X otherwise: A is singular and the variance ratio is 0/0.
-    let qa = PivotedQr::new(&a).map_err(|_| EstimateError::RankDeficient { dependent: vec![k] })?;
+    // Q_A orthonormal to working precision: ν_max is compared with 1 within max(n, p + 1)·ε.
+    let qa = PivotedQr::with_householder_vectors(&a)
+        .map_err(|_| EstimateError::RankDeficient { dependent: vec![k] })?;
     let q1 = qa.thin_q();
     let mut pq = DMatrix::zeros(n, a.ncols());
     for j in 0..a.ncols() {

@@ -453,6 +453,25 @@ impl PivotedQr {
         x: &DMatrix<f64>,
         held: impl FnOnce() -> Arc<DMatrix<f64>>,
     ) -> Result<Self, EstimateError> {
+        Self::whole(x, Some(held))
+    }
+
+    /// [`PivotedQr::new`] keeping the Householder vectors whatever the conditioning, for
+    /// callers that need Q₁ orthonormal to working precision (unit-leverage checks, a
+    /// projection subtracted as Q₁(Q₁ᵀv)).
+    ///
+    /// # Errors
+    /// As [`PivotedQr::new`].
+    pub(crate) fn with_householder_vectors(x: &DMatrix<f64>) -> Result<Self, EstimateError> {
+        Self::whole(x, None::<fn() -> Arc<DMatrix<f64>>>)
+    }
+
+    /// The factorisation of the whole scaled copy; `held` gives the matrix a well-conditioned
+    /// result holds instead of its Householder vectors (`None`: keep the vectors).
+    fn whole(
+        x: &DMatrix<f64>,
+        held: Option<impl FnOnce() -> Arc<DMatrix<f64>>>,
+    ) -> Result<Self, EstimateError> {
         let (n, k) = x.shape();
         let (mut a, scale) = scale_columns(x);
         let mut perm: Vec<usize> = (0..k).collect();
@@ -475,11 +494,12 @@ impl PivotedQr {
         let mut r = a.rows(0, k).upper_triangle();
         r.set_diagonal(&DVector::from_vec(diagonal));
         let ill_conditioned = condition_one(&r) > REFINE_ABOVE;
-        let basis = if ill_conditioned {
-            Basis::Reflectors(a)
-        } else {
-            drop(a);
-            Basis::Columns(held())
+        let basis = match held {
+            Some(held) if !ill_conditioned => {
+                drop(a);
+                Basis::Columns(held())
+            }
+            _ => Basis::Reflectors(a),
         };
         let qr = PivotedQr {
             r,
@@ -813,14 +833,17 @@ impl QRows {
         }
     }
 
-    /// The leverages ‖qᵢ‖².
-    pub(crate) fn leverages(&self) -> Vec<f64> {
-        let mut out = Vec::with_capacity(self.nrows());
-        let _ = self.blocks::<()>(|_, q| {
-            out.extend(q.row_iter().map(|q| q.norm_squared()));
-            Ok(())
-        });
-        out
+    /// The leverages ‖qᵢ‖², from a Q₁ orthonormal to working precision: the rows of X T
+    /// are orthonormal only to about κ·ε, which would hide a unit leverage (1 − hᵢ compared
+    /// with max(n, k)·ε), so X is factorised again with its Householder vectors, whose Q₁
+    /// gives the leverages the thin Q did (they do not depend on the basis of the column
+    /// space). Only HC2, HC3 and their relatives ask.
+    pub(crate) fn leverages(&self) -> Result<Vec<f64>, EstimateError> {
+        let q = match self {
+            QRows::Thin(q) => Arc::clone(q),
+            QRows::Product { x, .. } => PivotedQr::with_householder_vectors(x)?.thin_q(),
+        };
+        Ok(q.row_iter().map(|q| q.norm_squared()).collect())
     }
 
     /// Σ over row blocks of `per_block(start, block)`.
@@ -837,7 +860,8 @@ impl QRows {
             });
             Ok(())
         })?;
-        Ok(total.unwrap_or_else(|| DMatrix::zeros(0, 0)))
+        let k = self.ncols();
+        Ok(total.unwrap_or_else(|| DMatrix::zeros(k, k)))
     }
 }
 

@@ -131,7 +131,7 @@ impl IvProblem<'_> {
             absorbed,
         )?;
         let tested: Vec<usize> = (k..k + p).collect();
-        let control_function = joint_f(&cf, &cf.cov, &tested, inference_df(&cf))?;
+        let control_function = joint_f((&cf, &augmented), &cf.cov, &tested, inference_df(&cf))?;
         let e_o = least_squares(y, &setup.x)?.resid;
         let e_iv = self.tsls_residuals()?;
         // P_[Z | endog] = P_Z + P_V̂ with V̂ = M_Z endog (the first-stage residuals, the last p
@@ -319,7 +319,7 @@ impl IvProblem<'_> {
                 positions,
                 bandwidth,
             } => {
-                let mut scores = (*q.full()).clone();
+                let mut scores = Arc::unwrap_or_clone(q.full());
                 for (i, ui) in u.iter().enumerate() {
                     scores.row_mut(i).scale_mut(*ui);
                 }

@@ -101,7 +101,9 @@ impl Partialled {
         let q = if w.ncols() == 0 {
             None
         } else {
-            Some(std::sync::Arc::unwrap_or_clone(PivotedQr::new(w)?.thin_q()))
+            Some(std::sync::Arc::unwrap_or_clone(
+                PivotedQr::with_householder_vectors(w)?.thin_q(),
+            ))
         };
         let y_tilde = match &q {
             Some(q) => y - q * (q.transpose() * y),
@@ -282,7 +284,8 @@ impl Partialled {
             let q1 = zt / norm;
             (g, u, t, q1)
         } else {
-            let qr = PivotedQr::new(zt).ok()?;
+            // Householder vectors kept: Q₁ gives the leverages checked against 1.
+            let qr = PivotedQr::with_householder_vectors(zt).ok()?;
             let g = qr.solve(zt, rows.y);
             if !with_cov {
                 return Some((g, None));
