@@ -323,24 +323,37 @@ fn blockwise(x: &DMatrix<f64>) -> Option<(DMatrix<f64>, Vec<usize>, Vec<f64>)> {
         r = Some(unpivoted_r(m, k));
     }
     let mut a = r?;
-    let mut perm: Vec<usize> = (0..k).collect();
-    let mut diagonal = Vec::with_capacity(k);
-    for j in 0..k {
-        let norms: Vec<f64> = (j..k).map(|p| tail_norm(&a, p, j)).collect();
-        let pivot = (j..k)
-            .max_by(|&p, &q| norms[p - j].total_cmp(&norms[q - j]))
-            .unwrap_or(j);
-        a.swap_columns(j, pivot);
-        perm.swap(j, pivot);
-        let alpha = householder(&mut a, j, j)?;
-        reflect_later_columns(&mut a, j, j);
-        diagonal.push(alpha);
-    }
+    let (perm, diagonal) = pivoted_in_place(&mut a).ok()?;
     let mut r = a.upper_triangle();
     r.set_diagonal(&DVector::from_vec(diagonal));
     let threshold = rank_tolerance(n, k) * r[(0, 0)].abs();
     let full_rank = (0..k).all(|j| r[(j, j)].abs() > threshold);
     (full_rank && condition_one(&r) <= REFINE_ABOVE).then_some((r, perm, scale))
+}
+
+/// Householder QR with greedy column pivoting of `a` in place (the reflectors below the
+/// diagonal, R's strict upper part above it): the pivoting permutation and R's diagonal, or,
+/// when a remaining column is zero, the caller's columns not yet placed.
+fn pivoted_in_place(a: &mut DMatrix<f64>) -> Result<(Vec<usize>, Vec<f64>), Vec<usize>> {
+    let k = a.ncols();
+    let mut perm: Vec<usize> = (0..k).collect();
+    let mut diagonal = Vec::with_capacity(k);
+    for j in 0..k {
+        // Each remaining column's norm once (the comparisons computed two per
+        // comparison); the same values, so the same pivot.
+        let norms: Vec<f64> = (j..k).map(|p| tail_norm(a, p, j)).collect();
+        let pivot = (j..k)
+            .max_by(|&p, &q| norms[p - j].total_cmp(&norms[q - j]))
+            .unwrap_or(j);
+        a.swap_columns(j, pivot);
+        perm.swap(j, pivot);
+        let Some(alpha) = householder(a, j, j) else {
+            return Err(perm[j..].to_vec());
+        };
+        reflect_later_columns(a, j, j);
+        diagonal.push(alpha);
+    }
+    Ok((perm, diagonal))
 }
 
 /// The k × k R of an unpivoted Householder QR of `m` (at least k rows); a column whose
@@ -474,23 +487,8 @@ impl PivotedQr {
     ) -> Result<Self, EstimateError> {
         let (n, k) = x.shape();
         let (mut a, scale) = scale_columns(x);
-        let mut perm: Vec<usize> = (0..k).collect();
-        let mut diagonal = Vec::with_capacity(k);
-        for j in 0..k {
-            // Each remaining column's norm once (the comparisons computed two per
-            // comparison); the same values, so the same pivot.
-            let norms: Vec<f64> = (j..k).map(|p| tail_norm(&a, p, j)).collect();
-            let pivot = (j..k)
-                .max_by(|&p, &q| norms[p - j].total_cmp(&norms[q - j]))
-                .unwrap_or(j);
-            a.swap_columns(j, pivot);
-            perm.swap(j, pivot);
-            let Some(alpha) = householder(&mut a, j, j) else {
-                return Err(rank_error(x, &perm[j..]));
-            };
-            reflect_later_columns(&mut a, j, j);
-            diagonal.push(alpha);
-        }
+        let (perm, diagonal) =
+            pivoted_in_place(&mut a).map_err(|remaining| rank_error(x, &remaining))?;
         let mut r = a.rows(0, k).upper_triangle();
         r.set_diagonal(&DVector::from_vec(diagonal));
         let ill_conditioned = condition_one(&r) > REFINE_ABOVE;
