@@ -23,7 +23,7 @@
 //!   and sums over the rows of Q₁ take them as X T a block of [`Q_BLOCK`] rows at a time
 //!   ([`QRows`]), so that such a factorisation adds no n × k matrix of its own. Its Q₁ rows
 //!   are orthonormal to about κ·ε instead of ε, and each refinement step contracts the
-//!   error by about κ²·ε instead of κ·ε: at κ ≤ 10³, 2·10⁻¹⁰ or less.
+//!   error by about κ₂²·ε instead of κ₂·ε, with κ₂ ≤ k·κ₁ ≤ k·10³ (so at most about 2·10⁻¹⁰·k²).
 
 use std::sync::{Arc, Mutex, OnceLock, PoisonError};
 
@@ -79,7 +79,7 @@ enum Basis {
     /// solves its correction system the same way (module `refine`). Its error contracts by a
     /// factor of order ε·κ² per step instead of ε·κ (Björck 1987, "Stability analysis of the
     /// method of seminormal equations for linear least squares problems", Linear Algebra
-    /// Appl. 88/89), at most about 2·10⁻¹⁰ here. The n × k Householder vectors are dropped as
+    /// Appl. 88/89), at most about 2·10⁻¹⁰·k² here (κ₂ ≤ k·κ₁). The n × k Householder vectors are dropped as
     /// soon as R is formed: a kept factorisation then holds k × k numbers of its own.
     Columns(Arc<DMatrix<f64>>),
 }
