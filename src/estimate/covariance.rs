@@ -148,7 +148,7 @@ pub(crate) fn covariance(
         }
         CovSpec::Hc0 | CovSpec::Hc1 | CovSpec::Hc2 | CovSpec::Hc3 => {
             let q1 = qr.q_rows();
-            let weights = hc_weights(&q1, resid, spec, leverage, absorbed)?;
+            let weights = hc_weights(qr, resid, spec, leverage, absorbed)?;
             let c = if *spec == CovSpec::Hc1 {
                 n as f64 / (n - k) as f64
             } else {
@@ -209,9 +209,10 @@ pub(crate) fn two_way_unclamped(
     Ok((&t * meat * t.transpose(), ga.min(gb)))
 }
 
-/// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ.
+/// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ for the design factorised in
+/// `qr`.
 pub(crate) fn hc_weights(
-    q1: &QRows,
+    qr: &PivotedQr,
     resid: &DVector<f64>,
     spec: &CovSpec,
     leverage: Leverage,
@@ -235,9 +236,10 @@ pub(crate) fn hc_weights(
             return Err(EstimateError::CovarianceUnavailable { estimator, kind });
         }
     };
-    let tol = q1.nrows().max(q1.ncols()) as f64 * f64::EPSILON;
-    let leverages = q1.leverages()?;
-    (0..q1.nrows())
+    let n = resid.len();
+    let tol = n.max(qr.ncols()) as f64 * f64::EPSILON;
+    let leverages = qr.leverages()?;
+    (0..n)
         .map(|i| {
             let h_absorbed = extra.map_or(0.0, |h| h[i]);
             let one_minus_h = 1.0 - leverages[i] - h_absorbed;
@@ -698,7 +700,6 @@ mod product_tests {
                     .map(|q| q.norm_squared().to_bits())
                     .collect();
                 let got: Vec<u64> = qr
-                    .q_rows()
                     .leverages()
                     .expect("leverages")
                     .iter()

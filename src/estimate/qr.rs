@@ -89,6 +89,8 @@ enum Basis {
 struct Kept {
     thin_q: OnceLock<Arc<DMatrix<f64>>>,
     inverse: OnceLock<DMatrix<f64>>,
+    /// The leverages ([`PivotedQr::leverages`]), asked only by HC2, HC3 and their relatives.
+    leverages: OnceLock<Arc<Vec<f64>>>,
     /// The latest refined solutions, each under the key (BLAKE3, [`InputKey`]) of its right-hand side's bits
     /// (most recent last, at most [`KEPT_SOLVES`]): specifications that differ only in
     /// their standard errors, and diagnostics that regress the same regressor on the same
@@ -734,6 +736,35 @@ impl PivotedQr {
         }
     }
 
+    /// The number of columns k.
+    pub(crate) fn ncols(&self) -> usize {
+        self.perm.len()
+    }
+
+    /// The leverages ‖qᵢ‖², from a Q₁ orthonormal to working precision: the rows of X T
+    /// are orthonormal only to about κ·ε, which would hide a unit leverage (1 − hᵢ compared
+    /// with max(n, k)·ε), so a factorisation that kept R and X factorises X again with its
+    /// Householder vectors, whose Q₁ gives the leverages the thin Q did (they do not depend
+    /// on the basis of the column space). A shared factorisation keeps them: only HC2, HC3
+    /// and their relatives ask, but each covariance and quadratic meat of a design does.
+    pub(crate) fn leverages(&self) -> Result<Arc<Vec<f64>>, EstimateError> {
+        let compute = || -> Result<Arc<Vec<f64>>, EstimateError> {
+            let q = match &self.basis {
+                Basis::Reflectors(_) => self.thin_q(),
+                Basis::Columns(x) => PivotedQr::with_householder_vectors(x)?.thin_q(),
+            };
+            Ok(Arc::new(q.row_iter().map(|q| q.norm_squared()).collect()))
+        };
+        let Some(kept) = &self.kept else {
+            return compute();
+        };
+        if let Some(h) = kept.leverages.get() {
+            return Ok(Arc::clone(h));
+        }
+        let h = compute()?;
+        Ok(Arc::clone(kept.leverages.get_or_init(|| h)))
+    }
+
     /// The rows of Q₁ for sums over rows (score sums, weighted Gram matrices): the kept thin
     /// Q from the Householder vectors, or the held X with T, whose row blocks X T are formed
     /// as they are summed, so that no n × k matrix is made ([`QRows`]).
@@ -829,19 +860,6 @@ impl QRows {
             QRows::Thin(q) => Arc::clone(q),
             QRows::Product { x, t } => Arc::new(&**x * t),
         }
-    }
-
-    /// The leverages ‖qᵢ‖², from a Q₁ orthonormal to working precision: the rows of X T
-    /// are orthonormal only to about κ·ε, which would hide a unit leverage (1 − hᵢ compared
-    /// with max(n, k)·ε), so X is factorised again with its Householder vectors, whose Q₁
-    /// gives the leverages the thin Q did (they do not depend on the basis of the column
-    /// space). Only HC2, HC3 and their relatives ask.
-    pub(crate) fn leverages(&self) -> Result<Vec<f64>, EstimateError> {
-        let q = match self {
-            QRows::Thin(q) => Arc::clone(q),
-            QRows::Product { x, .. } => PivotedQr::with_householder_vectors(x)?.thin_q(),
-        };
-        Ok(q.row_iter().map(|q| q.norm_squared()).collect())
     }
 
     /// Σ over row blocks of `per_block(start, block)`.
@@ -1052,5 +1070,40 @@ mod blockwise_tests {
         );
         let well = PivotedQr::new(&design(n)).expect("full rank");
         assert!(matches!(well.basis, Basis::Columns(_)));
+    }
+}
+
+#[cfg(test)]
+mod leverage_tests {
+    use super::*;
+
+    /// A shared factorisation computes its leverages once and hands the same ones out again
+    /// (bit-equal to a factorisation that keeps nothing).
+    #[test]
+    fn a_shared_factorisation_keeps_its_leverages() {
+        let x = DMatrix::from_fn(300, 3, |i, j| {
+            if j == 0 {
+                1.0
+            } else {
+                ((i * (j + 2)) as f64 * 0.3).sin()
+            }
+        });
+        let shared = PivotedQr::new(&x).expect("rank").kept();
+        let first = shared.leverages().expect("leverages");
+        let again = shared.leverages().expect("leverages");
+        assert!(Arc::ptr_eq(&first, &again));
+        let alone = PivotedQr::new(&x)
+            .expect("rank")
+            .leverages()
+            .expect("leverages");
+        assert!(!Arc::ptr_eq(
+            &alone,
+            &PivotedQr::new(&x)
+                .expect("rank")
+                .leverages()
+                .expect("again")
+        ));
+        let bits = |h: &[f64]| h.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&first), bits(&alone));
     }
 }

@@ -81,7 +81,7 @@ pub(crate) fn quadratic_meat(
         }
         _ => {
             let ones = DVector::from_element(n, 1.0);
-            let omega = hc_weights(&q1, &ones, spec, leverage, absorbed)?;
+            let omega = hc_weights(qr, &ones, spec, leverage, absorbed)?;
             let mut grams: Option<[DMatrix<f64>; 3]> = None;
             q1.blocks::<EstimateError>(|start, q| {
                 let block = weighted_grams(q, |r| {
