@@ -172,7 +172,7 @@ pub(crate) fn covariance(
             positions,
             bandwidth,
         } => {
-            let meat = hac_meat(&scores(&qr.q_rows().full(), resid), positions, *bandwidth)?;
+            let meat = hac_meat(&scores(&qr.thin_q(), resid), positions, *bandwidth)?;
             Ok(plain(sandwich(meat, n as f64 / (n - k) as f64)))
         }
         CovSpec::TwoWay { first, second } => {
@@ -200,7 +200,7 @@ pub(crate) fn two_way_unclamped(
     let t = qr.t_matrix();
     let n = resid.len();
     let kc = t.nrows() + absorbed.df - absorbed.nested_df;
-    let scores = scores(&qr.q_rows().full(), resid);
+    let scores = scores(&qr.thin_q(), resid);
     let (meat_a, ga) = cluster_meat(&scores, first)?;
     let (meat_b, gb) = cluster_meat(&scores, second)?;
     let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;

@@ -854,29 +854,32 @@ impl QRows {
         }
     }
 
-    /// Q₁ as one n × k matrix (for the few estimators that need every score row at once).
-    pub(crate) fn full(&self) -> Arc<DMatrix<f64>> {
-        match self {
-            QRows::Thin(q) => Arc::clone(q),
-            QRows::Product { x, t } => Arc::new(&**x * t),
-        }
-    }
-
-    /// Σ over row blocks of `per_block(start, block)`.
-    pub(crate) fn summed<E>(
+    /// `per_block(start, block)` of each row block, added up in row order with `add` (`None`
+    /// without rows).
+    pub(crate) fn folded<T, E>(
         &self,
-        mut per_block: impl FnMut(usize, &DMatrix<f64>) -> Result<DMatrix<f64>, E>,
-    ) -> Result<DMatrix<f64>, E> {
-        let mut total: Option<DMatrix<f64>> = None;
+        mut per_block: impl FnMut(usize, &DMatrix<f64>) -> Result<T, E>,
+        add: impl Fn(T, T) -> T,
+    ) -> Result<Option<T>, E> {
+        let mut total: Option<T> = None;
         self.blocks(|start, q| {
             let part = per_block(start, q)?;
             total = Some(match total.take() {
-                Some(t) => t + part,
+                Some(t) => add(t, part),
                 None => part,
             });
             Ok(())
         })?;
+        Ok(total)
+    }
+
+    /// Σ over row blocks of `per_block(start, block)`, a k × k matrix (zeros without rows).
+    pub(crate) fn summed<E>(
+        &self,
+        per_block: impl FnMut(usize, &DMatrix<f64>) -> Result<DMatrix<f64>, E>,
+    ) -> Result<DMatrix<f64>, E> {
         let k = self.ncols();
+        let total = self.folded(per_block, |a, b| a + b)?;
         Ok(total.unwrap_or_else(|| DMatrix::zeros(k, k)))
     }
 }

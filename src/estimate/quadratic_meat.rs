@@ -82,25 +82,19 @@ pub(crate) fn quadratic_meat(
         _ => {
             let ones = DVector::from_element(n, 1.0);
             let omega = hc_weights(qr, &ones, spec, leverage, absorbed)?;
-            let mut grams: Option<[DMatrix<f64>; 3]> = None;
-            q1.blocks::<EstimateError>(|start, q| {
-                let block = weighted_grams(q, |r| {
-                    let i = start + r;
-                    [
-                        omega[i] * e1[i] * e1[i],
-                        omega[i] * e1[i] * e2[i],
-                        omega[i] * e2[i] * e2[i],
-                    ]
-                });
-                grams = Some(match grams.take() {
-                    Some([a, b, c]) => {
-                        let [x, y, z] = block;
-                        [a + x, b + y, c + z]
-                    }
-                    None => block,
-                });
-                Ok(())
-            })?;
+            let grams = q1.folded(
+                |start, q| {
+                    Ok::<_, EstimateError>(weighted_grams(q, |r| {
+                        let i = start + r;
+                        [
+                            omega[i] * e1[i] * e1[i],
+                            omega[i] * e1[i] * e2[i],
+                            omega[i] * e2[i] * e2[i],
+                        ]
+                    }))
+                },
+                |[a, b, c], [x, y, z]| [a + x, b + y, c + z],
+            )?;
             let width = q1.ncols();
             let [m11, m12, m22] =
                 grams.unwrap_or_else(|| std::array::from_fn(|_| DMatrix::zeros(width, width)));

@@ -319,7 +319,7 @@ impl IvProblem<'_> {
                 positions,
                 bandwidth,
             } => {
-                let mut scores = Arc::unwrap_or_clone(q.full());
+                let mut scores = Arc::unwrap_or_clone(setup.zqr.thin_q());
                 for (i, ui) in u.iter().enumerate() {
                     scores.row_mut(i).scale_mut(*ui);
                 }
