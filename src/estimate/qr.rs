@@ -319,18 +319,27 @@ fn blockwise(x: &DMatrix<f64>) -> Option<(DMatrix<f64>, Vec<usize>, Vec<f64>)> {
                 *target = v * s;
             }
         }
-        if m.nrows() < k {
-            return None;
-        }
+        // At least k rows: the first block has min(TSQR_BLOCK, n) ≥ k (checked above), the
+        // others k more.
         r = Some(unpivoted_r(m, k));
     }
     let mut a = r?;
     let (perm, diagonal) = pivoted_in_place(&mut a).ok()?;
     let mut r = a.upper_triangle();
     r.set_diagonal(&DVector::from_vec(diagonal));
-    let threshold = rank_tolerance(n, k) * r[(0, 0)].abs();
-    let full_rank = (0..k).all(|j| r[(j, j)].abs() > threshold);
+    let full_rank = numerical_rank(&r, n) == k;
     (full_rank && condition_one(&r) <= REFINE_ABOVE).then_some((r, perm, scale))
+}
+
+/// The numerical rank of a factorisation of n rows with pivoted factor `r` (k × k): the
+/// number of leading j with |R_jj| above the module's tolerance times |R_00|.
+fn numerical_rank(r: &DMatrix<f64>, n: usize) -> usize {
+    let k = r.ncols();
+    let Some(&r00) = r.get((0, 0)) else {
+        return 0;
+    };
+    let threshold = rank_tolerance(n, k) * r00.abs();
+    (0..k).take_while(|&j| r[(j, j)].abs() > threshold).count()
 }
 
 /// Householder QR with greedy column pivoting of `a` in place (the reflectors below the
@@ -458,16 +467,6 @@ impl PivotedQr {
                 kept: None,
             });
         }
-        Self::with_reflectors(x, held)
-    }
-
-    /// The factorisation of the whole scaled copy, keeping the Householder vectors when κ₁
-    /// of R exceeds [`REFINE_ABOVE`]: for designs [`blockwise`] declines (ill-conditioned or
-    /// rank-deficient), whose results and errors it gives as before.
-    fn with_reflectors(
-        x: &DMatrix<f64>,
-        held: impl FnOnce() -> Arc<DMatrix<f64>>,
-    ) -> Result<Self, EstimateError> {
         Self::whole(x, Some(held))
     }
 
@@ -481,8 +480,10 @@ impl PivotedQr {
         Self::whole(x, None::<fn() -> Arc<DMatrix<f64>>>)
     }
 
-    /// The factorisation of the whole scaled copy; `held` gives the matrix a well-conditioned
-    /// result holds instead of its Householder vectors (`None`: keep the vectors).
+    /// The factorisation of the whole scaled copy, for the designs [`blockwise`] declines
+    /// (ill-conditioned or rank-deficient: their results and errors as before) and for
+    /// callers that need the Householder vectors; `held` gives the matrix a well-conditioned
+    /// result holds instead of its vectors (`None`: keep the vectors).
     fn whole(
         x: &DMatrix<f64>,
         held: Option<impl FnOnce() -> Arc<DMatrix<f64>>>,
@@ -518,14 +519,7 @@ impl PivotedQr {
 
     /// The numerical rank under the module's tolerance.
     fn rank(&self) -> usize {
-        let k = self.perm.len();
-        let Some(&r00) = self.r.get((0, 0)) else {
-            return 0;
-        };
-        let threshold = rank_tolerance(self.n, k) * r00.abs();
-        (0..k)
-            .take_while(|&j| self.r[(j, j)].abs() > threshold)
-            .count()
+        numerical_rank(&self.r, self.n)
     }
 
     /// Applies Qᵀ to a vector of length n with the Householder vectors (in order; module
@@ -551,13 +545,19 @@ impl PivotedQr {
     /// (XᵀX)⁻¹ u from R alone, in the caller's coordinates: S P R⁻¹ R⁻ᵀ Pᵀ S u.
     fn normal_solve(&self, u: &DVector<f64>) -> DVector<f64> {
         let k = self.perm.len();
-        let scaled = DVector::from_fn(k, |j, _| self.scale[self.perm[j]] * u[self.perm[j]]);
         let z = self
             .r
-            .tr_solve_upper_triangular(&scaled)
+            .tr_solve_upper_triangular(&self.scaled(u))
             .and_then(|w| self.r.solve_upper_triangular(&w))
             .unwrap_or_else(|| DVector::zeros(k));
         self.unscaled(&z)
+    }
+
+    /// Pᵀ S u: a vector of the caller's coordinates in the scaled, pivoted ones.
+    fn scaled(&self, u: &DVector<f64>) -> DVector<f64> {
+        DVector::from_fn(self.perm.len(), |j, _| {
+            self.scale[self.perm[j]] * u[self.perm[j]]
+        })
     }
 
     /// S P z: a vector in the scaled, pivoted coordinates back in the caller's.
@@ -621,10 +621,9 @@ impl PivotedQr {
                 return (db, dr);
             }
         };
-        let g_scaled = DVector::from_fn(k, |j, _| self.scale[self.perm[j]] * g[self.perm[j]]);
         let h = self
             .r
-            .tr_solve_upper_triangular(&g_scaled)
+            .tr_solve_upper_triangular(&self.scaled(g))
             .unwrap_or_else(|| DVector::zeros(k));
         let mut d = Self::apply_qt(v, k, f);
         let db_scaled = self
@@ -1042,7 +1041,7 @@ mod blockwise_tests {
                 x.set_column(2, &DVector::from_fn(n, |i, _| f64::from(i % 4 == 0)));
             }
             let (r, perm, scale) = blockwise(&x).expect("well conditioned");
-            let whole = PivotedQr::with_reflectors(&x, || Arc::new(x.clone())).expect("rank");
+            let whole = PivotedQr::with_householder_vectors(&x).expect("rank");
             assert_eq!(scale, whole.scale);
             let (a, b) = (gram(&r, &perm), gram(&whole.r, &whole.perm));
             let xs = DMatrix::from_fn(n, 5, |i, j| x[(i, j)] * scale[j]);
