@@ -136,9 +136,9 @@ impl IvProblem<'_> {
         let e_iv = self.tsls_residuals()?;
         // P_[Z | endog] = P_Z + P_V̂ with V̂ = M_Z endog (the first-stage residuals, the last p
         // columns of [X | V̂], orthogonal to Z), so [Z | endog] is never formed or factorised.
-        let vhat = augmented.columns(k, p).into_owned();
+        let vhat = Arc::new(augmented.columns(k, p).into_owned());
         let wide = setup.zqr.project(&e_o).norm_squared()
-            + PivotedQr::new(&vhat)?.project(&e_o).norm_squared();
+            + PivotedQr::new_held(&vhat)?.project(&e_o).norm_squared();
         let delta = wide - setup.zqr.project(&e_iv).norm_squared();
         let rss_o = e_o.norm_squared();
         let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
