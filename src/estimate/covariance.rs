@@ -1,13 +1,16 @@
 //! Covariance estimators for least-squares and 2SLS coefficients.
 //!
 //! Role: turn a factorised design and a residual vector into the coefficient covariance the
-//! plan asks for. Everything is computed in the coordinates of the thin Q factor: with
-//! X T = Q₁ and (X'X)^{-1} = T Tᵀ (see `qr`), every estimator is V = c · T A Tᵀ where A is a
-//! k × k "meat" built from the rows qᵢ of Q₁, so X'X is never formed or inverted.
+//! plan asks for. The meats are computed in the coordinates of the thin Q factor: with
+//! X T = Q₁ (see `qr`), a k × k "meat" A is built from the rows qᵢ of Q₁, so X'X is never
+//! formed. (X'X)^{-1} is T Tᵀ refined column by column on the augmented system (module
+//! `refine`) for full accuracy, and every sandwich is V = c · B A Bᵀ with the bread factor
+//! B = (X'X)^{-1} T^{-ᵀ} ([`PivotedQr::bread`]): the refined inverse on both sides of
+//! XᵀΩX. (Before version 0.3.0 of sworn, V = c · T A Tᵀ used the unrefined T Tᵀ, whose
+//! rounding grows with n.)
 //!
 //! Conventions (n observations, k coefficients, u the residuals, hᵢ = ‖qᵢ‖² the leverage):
-//! * Classical: s² (X'X)^{-1}, s² = u'u / (n − k); here (X'X)^{-1} = T Tᵀ is refined
-//!   column by column on the augmented system (module `refine`) for full accuracy.
+//! * Classical: s² (X'X)^{-1}, s² = u'u / (n − k).
 //! * HC0 (White 1980, Econometrica 48): A = Σ uᵢ² qᵢ qᵢᵀ, c = 1.
 //! * HC1: HC0 · n / (n − k) (MacKinnon and White 1985, J. Econometrics 29).
 //! * HC2: A = Σ uᵢ²/(1 − hᵢ) qᵢ qᵢᵀ; HC3: A = Σ uᵢ²/(1 − hᵢ)² qᵢ qᵢᵀ (MacKinnon and White
@@ -118,7 +121,7 @@ pub(crate) enum Leverage {
 /// Computes the requested covariance for the design factorised in `qr`.
 ///
 /// # Formula
-/// See the module documentation; V = c · T A Tᵀ.
+/// See the module documentation; V = c · B A Bᵀ.
 ///
 /// # Errors
 /// Cluster ids of the wrong length, fewer than two clusters, HC2/HC3 where refused or at a
@@ -131,12 +134,14 @@ pub(crate) fn covariance(
     leverage: Leverage,
     absorbed: &Absorbed,
 ) -> Result<Covariance, EstimateError> {
-    let t = qr.t_matrix();
     let n = resid.len();
     // k counts absorbed coefficients for s² and HC1; k_cluster leaves out nested ones.
-    let k = t.nrows() + absorbed.df;
+    let k = qr.ncols() + absorbed.df;
     let k_cluster = k - absorbed.nested_df;
-    let sandwich = |meat: DMatrix<f64>, c: f64| &t * meat * t.transpose() * c;
+    let sandwich = |meat: DMatrix<f64>, c: f64| {
+        let bread = qr.bread(x);
+        &bread * meat * bread.transpose() * c
+    };
     let plain = |cov| Covariance {
         cov,
         clusters: None,
@@ -176,7 +181,7 @@ pub(crate) fn covariance(
             Ok(plain(sandwich(meat, n as f64 / (n - k) as f64)))
         }
         CovSpec::TwoWay { first, second } => {
-            let (v, clusters) = two_way_unclamped(qr, resid, first, second, absorbed)?;
+            let (v, clusters) = two_way_unclamped(qr, x, resid, first, second, absorbed)?;
             Ok(Covariance {
                 cov: clamp_negative_eigenvalues(v),
                 clusters: Some(clusters),
@@ -192,21 +197,22 @@ pub(crate) fn covariance(
 /// correction first).
 pub(crate) fn two_way_unclamped(
     qr: &PivotedQr,
+    x: &DMatrix<f64>,
     resid: &DVector<f64>,
     first: &[usize],
     second: &[usize],
     absorbed: &Absorbed,
 ) -> Result<(DMatrix<f64>, usize), EstimateError> {
-    let t = qr.t_matrix();
     let n = resid.len();
-    let kc = t.nrows() + absorbed.df - absorbed.nested_df;
+    let kc = qr.ncols() + absorbed.df - absorbed.nested_df;
     let scores = scores(&qr.thin_q(), resid);
     let (meat_a, ga) = cluster_meat(&scores, first)?;
     let (meat_b, gb) = cluster_meat(&scores, second)?;
     let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;
     let meat = meat_a * cr1_factor(ga, n, kc) + meat_b * cr1_factor(gb, n, kc)
         - meat_ab * cr1_factor(gab, n, kc);
-    Ok((&t * meat * t.transpose(), ga.min(gb)))
+    let bread = qr.bread(x);
+    Ok((&bread * meat * bread.transpose(), ga.min(gb)))
 }
 
 /// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ for the design factorised in
@@ -668,6 +674,74 @@ mod product_tests {
         }
     }
 
+    /// The HC0 sandwich against its exact value on a long design of small integers
+    /// (generated), where XᵀX and XᵀΩX are sums of integers (exact in i128) and
+    /// V = adj(G) S adj(G) / det(G)² is exact until the last division. The bread from the
+    /// factorisation's own T Tᵀ is off by the rounding of its long sums (about 1e-13 relative
+    /// here: 5.0e-12 when this test was written); the refined bread gave 2.5e-15.
+    #[test]
+    fn sandwich_bread_is_refined() {
+        let n = 400_000;
+        let xi = |i: usize| 50 + ((i * 7919) % 13) as i64 - 6;
+        let ui = |i: usize| ((i * 104_729) % 11) as i64 - 5;
+        let x = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { xi(i) as f64 });
+        let u = DVector::from_fn(n, |i, _| ui(i) as f64);
+        let (mut g, mut s) = ([[0i128; 2]; 2], [[0i128; 2]; 2]);
+        for i in 0..n {
+            let row = [1i128, i128::from(xi(i))];
+            let w = i128::from(ui(i) * ui(i));
+            for a in 0..2 {
+                for b in 0..2 {
+                    g[a][b] += row[a] * row[b];
+                    s[a][b] += w * row[a] * row[b];
+                }
+            }
+        }
+        let det = g[0][0] * g[1][1] - g[0][1] * g[1][0];
+        let adj = [[g[1][1], -g[0][1]], [-g[1][0], g[0][0]]];
+        let product = |p: [[i128; 2]; 2], q: [[i128; 2]; 2]| {
+            let mut m = [[0i128; 2]; 2];
+            for a in 0..2 {
+                for b in 0..2 {
+                    m[a][b] = (0..2).map(|c| p[a][c] * q[c][b]).sum();
+                }
+            }
+            m
+        };
+        let numerator = product(product(adj, s), adj);
+        let det2 = det as f64 * det as f64;
+        let qr = PivotedQr::new(&x).expect("full rank");
+        assert!(!qr.ill_conditioned());
+        let got = covariance(
+            &qr,
+            &x,
+            &u,
+            &CovSpec::Hc0,
+            Leverage::Allowed,
+            &Absorbed::NONE,
+        )
+        .expect("covariance")
+        .cov;
+        let t = qr.t_matrix();
+        let q1 = &x * &t;
+        let mut weighted = q1.clone();
+        for (i, mut row) in weighted.row_iter_mut().enumerate() {
+            row *= u[i] * u[i];
+        }
+        let meat = q1.transpose() * weighted;
+        let unrefined = &t * meat * t.transpose();
+        let (mut worst, mut worst_unrefined) = (0.0f64, 0.0f64);
+        for a in 0..2 {
+            for b in 0..2 {
+                let exact = numerator[a][b] as f64 / det2;
+                worst = worst.max(((got[(a, b)] - exact) / exact).abs());
+                worst_unrefined = worst_unrefined.max(((unrefined[(a, b)] - exact) / exact).abs());
+            }
+        }
+        println!("refined bread {worst:.1e}, unrefined {worst_unrefined:.1e}");
+        assert!(worst < 1e-14, "refined bread off by {worst:.1e}");
+    }
+
     /// A row that alone carries a direction of the column space (leverage 1, though no
     /// column is a dummy for it) is refused by HC2 and HC3 on a factorisation that keeps R
     /// and X: the leverages come from an orthonormal Q₁, not from the rows of X T.
@@ -741,6 +815,7 @@ mod product_tests {
         for spec in [CovSpec::Hc1, CovSpec::Hc3, CovSpec::Cluster { ids }] {
             let meat = crate::estimate::quadratic_meat::quadratic_meat(
                 &qr,
+                &x,
                 &e1,
                 &e2,
                 &spec,

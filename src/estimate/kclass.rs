@@ -190,11 +190,12 @@ impl IvProblem<'_> {
         };
         let leverage = Leverage::Refused(ESTIMATOR);
         let mut fit = assemble(y, &setup.x, &ls, has_intercept, cov, leverage, absorbed)?;
-        let j = bread_ratio(&qr_hat, &vhat, kappa, k)?;
+        let j = bread_ratio(&qr_hat, &ls.design, &vhat, kappa, k)?;
         fit.cov = match cov {
             CovSpec::Classical => symmetric(&j * &fit.cov),
             CovSpec::TwoWay { first, second } => {
-                let (v, _) = two_way_unclamped(&qr_hat, &fit.resid, first, second, absorbed)?;
+                let (v, _) =
+                    two_way_unclamped(&qr_hat, &ls.design, &fit.resid, first, second, absorbed)?;
                 clamp_negative_eigenvalues(symmetric(&j * v * j.transpose()))
             }
             _ => symmetric(&j * &fit.cov * j.transpose()),
@@ -311,9 +312,11 @@ fn kclass_solve(
     }
 }
 
-/// J = H^{-1} X̂'X̂ = (I + (1 − κ)(X̂'X̂)^{-1} V̂'V̂)^{-1} with (X̂'X̂)^{-1} = T T'.
+/// J = H^{-1} X̂'X̂ = (I + (1 − κ)(X̂'X̂)^{-1} V̂'V̂)^{-1} with the refined (X̂'X̂)^{-1}
+/// ([`PivotedQr::refined_inverse`] of `xhat`, factorised in `qr_hat`).
 fn bread_ratio(
     qr_hat: &PivotedQr,
+    xhat: &DMatrix<f64>,
     vhat: &DMatrix<f64>,
     kappa: f64,
     k: usize,
@@ -322,16 +325,15 @@ fn bread_ratio(
     if kappa == 1.0 {
         return Ok(identity);
     }
-    let t = qr_hat.t_matrix();
-    let e = vhat * &t;
-    let m = &identity + &t * (e.transpose() * vhat) * (1.0 - kappa);
+    let inverse = qr_hat.refined_inverse(xhat);
+    let m = &identity + &inverse * vhat.tr_mul(vhat) * (1.0 - kappa);
     let singular = || EstimateError::SingularCovariance {
         indices: (0..k).collect(),
     };
     let j = m.lu().solve(&identity).ok_or_else(singular)?;
     // H must be positive definite: J = H^{-1}X̂'X̂ then has positive real eigenvalues, and
     // the symmetric H^{-1} = J (X̂'X̂)^{-1} has a Cholesky factor.
-    let h_inv = symmetric(&j * &t * t.transpose());
+    let h_inv = symmetric(&j * &inverse);
     if !j.iter().all(|v| v.is_finite()) || h_inv.cholesky().is_none() {
         return Err(singular());
     }

@@ -19,9 +19,10 @@ use super::covariance::{cluster_sums, cr1_factor, hc_weights, CovSpec, Leverage}
 use super::qr::{combine_lanes, PivotedQr};
 use super::{Absorbed, EstimateError};
 
-/// The three meat blocks, the sandwich factor T and the small-sample factor.
+/// The three meat blocks, the bread factor B ([`PivotedQr::bread`]) and the small-sample
+/// factor.
 pub(crate) struct QuadraticMeat {
-    t: DMatrix<f64>,
+    bread: DMatrix<f64>,
     m11: DMatrix<f64>,
     m12: DMatrix<f64>,
     m22: DMatrix<f64>,
@@ -33,21 +34,21 @@ impl QuadraticMeat {
     pub(crate) fn covariance(&self, a: f64, b: f64) -> DMatrix<f64> {
         let cross = &self.m12 + self.m12.transpose();
         let meat = &self.m11 * (a * a) - cross * (a * b) + &self.m22 * (b * b);
-        &self.t * meat * self.t.transpose() * self.factor
+        &self.bread * meat * self.bread.transpose() * self.factor
     }
 
     /// The joint covariance of the coefficients from residuals e₁ and e₂: the blocks
-    /// [[Σ₁₁, Σ₁₂], [Σ₂₁, Σ₂₂]], Σ_rs = T M_rs Tᵀ · factor (Σ₂₁ = Σ₁₂ᵀ; M₁₂ is not symmetric
+    /// [[Σ₁₁, Σ₁₂], [Σ₂₁, Σ₂₂]], Σ_rs = B M_rs Bᵀ · factor (Σ₂₁ = Σ₁₂ᵀ; M₁₂ is not symmetric
     /// when clustered). `covariance(a, b)` = a²Σ₁₁ − ab(Σ₁₂ + Σ₂₁) + b²Σ₂₂.
     pub(crate) fn blocks(&self) -> [[DMatrix<f64>; 2]; 2] {
-        let side = |m: &DMatrix<f64>| &self.t * m * self.t.transpose() * self.factor;
+        let side = |m: &DMatrix<f64>| &self.bread * m * self.bread.transpose() * self.factor;
         let cross = side(&self.m12);
         let cross_t = cross.transpose();
         [[side(&self.m11), cross], [cross_t, side(&self.m22)]]
     }
 }
 
-/// Builds the quadratic form for the design factorised in `qr` and residual vectors `e1`,
+/// Builds the quadratic form for the design `x` factorised in `qr` and residual vectors `e1`,
 /// `e2`; `None` for the classical, two-way and HAC covariances (evaluated directly).
 ///
 /// # Errors
@@ -55,6 +56,7 @@ impl QuadraticMeat {
 /// HC2/HC3 where refused or at a unit-leverage observation.
 pub(crate) fn quadratic_meat(
     qr: &PivotedQr,
+    x: &DMatrix<f64>,
     e1: &DVector<f64>,
     e2: &DVector<f64>,
     spec: &CovSpec,
@@ -67,10 +69,9 @@ pub(crate) fn quadratic_meat(
     ) {
         return Ok(None);
     }
-    let t = qr.t_matrix();
     let q1 = qr.q_rows();
     let n = e1.len();
-    let k = t.nrows() + absorbed.df;
+    let k = qr.ncols() + absorbed.df;
     let k_cluster = k - absorbed.nested_df;
     let (m11, m12, m22, factor) = match spec {
         CovSpec::Cluster { ids } => {
@@ -107,7 +108,7 @@ pub(crate) fn quadratic_meat(
         }
     };
     Ok(Some(QuadraticMeat {
-        t,
+        bread: qr.bread(x),
         m11,
         m12,
         m22,
@@ -191,7 +192,7 @@ mod tests {
             CovSpec::Cluster { ids },
         ];
         for spec in &specs {
-            let quad = quadratic_meat(&qr, &e1, &e2, spec, Leverage::Allowed, &Absorbed::NONE)
+            let quad = quadratic_meat(&qr, &x, &e1, &e2, spec, Leverage::Allowed, &Absorbed::NONE)
                 .expect("valid")
                 .expect("covered");
             for (a, b) in [(1.0, 0.0), (0.6, 0.8), (-0.3, 2.5)] {
@@ -252,7 +253,7 @@ mod tests {
                 bandwidth: 3.0,
             },
         ] {
-            let quad = quadratic_meat(&qr, &e, &e, &spec, Leverage::Allowed, &Absorbed::NONE);
+            let quad = quadratic_meat(&qr, &x, &e, &e, &spec, Leverage::Allowed, &Absorbed::NONE);
             assert!(matches!(quad, Ok(None)), "{spec:?}");
         }
     }

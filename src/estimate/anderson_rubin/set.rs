@@ -94,6 +94,7 @@ impl Problem<'_> {
         let e_x = &self.e_x * scale;
         let meat = quadratic_meat(
             self.zqr,
+            self.z,
             &e_y,
             &e_x,
             self.spec,

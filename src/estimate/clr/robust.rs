@@ -154,13 +154,13 @@ impl IvProblem<'_> {
         let (e_y, e_x) = (residual(z, self.y, &coef_y), residual(z, &x, &coef_x));
         let full = match cov {
             CovSpec::Classical => {
-                let tt = zqr.t_matrix() * zqr.t_matrix().transpose();
+                let tt = zqr.refined_inverse(z);
                 let d = (n - z.ncols() - absorbed.df) as f64;
                 let s = |a: &DVector<f64>, b: &DVector<f64>| &tt * (a.dot(b) / d);
                 let cross = s(&e_y, &e_x);
                 [[s(&e_y, &e_y), cross.clone()], [cross, s(&e_x, &e_x)]]
             }
-            _ => quadratic_meat(zqr, &e_y, &e_x, cov, Leverage::Allowed, absorbed)?
+            _ => quadratic_meat(zqr, z, &e_y, &e_x, cov, Leverage::Allowed, absorbed)?
                 .ok_or(EstimateError::CovarianceUnavailable {
                     estimator: "the robust LM and CLR tests",
                     kind: cov.name(),

@@ -169,8 +169,7 @@ pub(crate) fn wild_statistics(
     };
 
     // Cluster-level pieces: C (G × k) rows c_g, R (G × k) rows r_g.
-    let t = PivotedQr::new(x)?.t_matrix();
-    let xtx_inv = &t * t.transpose();
+    let xtx_inv = PivotedQr::new(x)?.refined_inverse(x);
     let mut scores = DMatrix::zeros(g, k);
     for (i, &c) in ids.iter().enumerate() {
         let mut row = scores.row_mut(c);
