@@ -605,19 +605,22 @@ impl PivotedQr {
     }
 
     /// Solves the augmented correction system [I X; Xᵀ 0](δr; δb) = (f; g) with the stored
-    /// factorisation (Björck and Golub 1967); returns (δb, δr) in the caller's coordinates.
+    /// factorisation (Björck and Golub 1967); returns (δb, δr) in the caller's coordinates,
+    /// δr only when `with_dr` (a last refinement step does not need it, and it costs a pass
+    /// over the rows).
     pub(crate) fn augmented_correction(
         &self,
         f: &DVector<f64>,
         g: &DVector<f64>,
-    ) -> (DVector<f64>, DVector<f64>) {
+        with_dr: bool,
+    ) -> (DVector<f64>, Option<DVector<f64>>) {
         let k = self.perm.len();
         let v = match &self.basis {
             Basis::Reflectors(v) => v,
             Basis::Columns(x) => {
                 // δr + X δb = f and Xᵀ δr = g give XᵀX δb = Xᵀf − g.
                 let db = self.normal_solve(&(x.tr_mul(f) - g));
-                let dr = f - &**x * &db;
+                let dr = with_dr.then(|| f - &**x * &db);
                 return (db, dr);
             }
         };
@@ -630,9 +633,12 @@ impl PivotedQr {
             .r
             .solve_upper_triangular(&(d.rows(0, k) - &h))
             .unwrap_or_else(|| DVector::zeros(k));
-        d.rows_mut(0, k).copy_from(&h);
-        let dr = Self::apply_q(v, k, DMatrix::from_column_slice(self.n, 1, d.as_slice()));
-        (self.unscaled(&db_scaled), dr.column(0).into_owned())
+        let dr = with_dr.then(|| {
+            d.rows_mut(0, k).copy_from(&h);
+            let dr = Self::apply_q(v, k, DMatrix::from_column_slice(self.n, 1, d.as_slice()));
+            dr.column(0).into_owned()
+        });
+        (self.unscaled(&db_scaled), dr)
     }
 
     /// The k × k matrix T = S P R^{-1}, so that (X'X)^{-1} = T Tᵀ and X T = Q₁.

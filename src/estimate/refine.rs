@@ -111,6 +111,106 @@ pub(crate) fn compensated_rows(
     DVector::from_vec(out)
 }
 
+/// One refinement step's sums over the rows, in one pass over X (each block of
+/// [`ROW_BLOCK`] rows read from memory once, then from cache):
+/// * r, when not given: y − X b in plain arithmetic, columns added in order (the start of the
+///   refinement; the step's compensated f carries what it rounds away);
+/// * f = y − r − X b per row, the bits of [`compensated_rows`];
+/// * g = −Xᵀr, each column's Dot2 over the rows in order, the bits of [`dot2_columns`] (a
+///   test checks both).
+pub(crate) struct StepSums {
+    pub(crate) r: Option<DVector<f64>>,
+    pub(crate) f: DVector<f64>,
+    pub(crate) g: DVector<f64>,
+}
+
+/// [`StepSums`] for `x`, `y`, `b` and the current residuals `r` (`None`: computed plainly).
+fn step_sums(
+    x: &DMatrix<f64>,
+    y: &DVector<f64>,
+    b: &DVector<f64>,
+    r: Option<&DVector<f64>>,
+) -> StepSums {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("fma") {
+        // SAFETY: the feature was detected at run time.
+        return unsafe { step_sums_fma(x, y, b, r) };
+    }
+    step_sums_body(x, y, b, r)
+}
+
+/// [`step_sums_body`] with hardware fused multiply-add.
+///
+/// # Safety
+/// The CPU must support FMA (checked by the caller).
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "fma")]
+unsafe fn step_sums_fma(
+    x: &DMatrix<f64>,
+    y: &DVector<f64>,
+    b: &DVector<f64>,
+    r: Option<&DVector<f64>>,
+) -> StepSums {
+    step_sums_body(x, y, b, r)
+}
+
+#[inline(always)]
+fn step_sums_body(
+    x: &DMatrix<f64>,
+    y: &DVector<f64>,
+    b: &DVector<f64>,
+    given: Option<&DVector<f64>>,
+) -> StepSums {
+    let (n, k) = x.shape();
+    let columns: Vec<&[f64]> = (0..k).map(|j| &x.as_slice()[j * n..(j + 1) * n]).collect();
+    let mut plain = vec![0.0; if given.is_none() { n } else { 0 }];
+    let mut f = Vec::with_capacity(n);
+    let mut states = vec![(0.0, 0.0); k];
+    let (mut sum, mut err) = ([0.0; ROW_BLOCK], [0.0; ROW_BLOCK]);
+    for start in (0..n).step_by(ROW_BLOCK) {
+        let end = (start + ROW_BLOCK).min(n);
+        let ys = &y.as_slice()[start..end];
+        if given.is_none() {
+            let out = &mut plain[start..end];
+            for (j, column) in columns.iter().enumerate() {
+                let c = &column[start..end];
+                if j == 0 {
+                    out.iter_mut().zip(c).for_each(|(o, v)| *o = v * b[0]);
+                } else {
+                    out.iter_mut().zip(c).for_each(|(o, v)| *o += v * b[j]);
+                }
+            }
+            out.iter_mut().zip(ys).for_each(|(o, v)| *o = v - *o);
+        }
+        let rs = match given {
+            Some(given) => &given.as_slice()[start..end],
+            None => &plain[start..end],
+        };
+        let (sum, err) = (&mut sum[..end - start], &mut err[..end - start]);
+        sum.fill(0.0);
+        err.fill(0.0);
+        dot2_step(sum, err, ys, 1.0);
+        dot2_step(sum, err, rs, -1.0);
+        for (j, column) in columns.iter().enumerate() {
+            dot2_step(sum, err, &column[start..end], -b[j]);
+        }
+        f.extend(sum.iter().zip(err.iter()).map(|(s, e)| s + e));
+        for (offset, &ri) in rs.iter().enumerate() {
+            for (state, column) in states.iter_mut().zip(&columns) {
+                let (p, ep) = two_prod(column[start + offset], ri);
+                let (t, es) = two_sum(state.0, p);
+                state.0 = t;
+                state.1 += ep + es;
+            }
+        }
+    }
+    StepSums {
+        r: given.is_none().then(|| DVector::from_vec(plain)),
+        f: DVector::from_vec(f),
+        g: DVector::from_iterator(k, states.iter().map(|(s, e)| -(s + e))),
+    }
+}
+
 /// For every column j of `x`, Dot2 of the term `first(j)` followed by the terms
 /// (x[i, j], sign·r[i]) (`sign` ±1, so the products are those of the terms as written), with
 /// the columns' sums carried side by side in one pass over the rows (independent chains of
@@ -195,14 +295,19 @@ impl PivotedQr {
     /// Refines (r, b) by [`STEPS`] steps of augmented-system refinement
     /// ([`STEPS_WELL_CONDITIONED`] below `qr::REFINE_ABOVE`).
     pub(crate) fn refine(&self, x: &DMatrix<f64>, y: &DVector<f64>, b: &mut DVector<f64>) {
-        let mut r = residual(x, y, b);
-        for _ in 0..self.steps() {
-            let f = compensated_rows(&[(y.as_slice(), 1.0), (r.as_slice(), -1.0)], x, b);
-            let sums = dot2_columns(&|_| (0.0, 0.0), x, r.as_slice(), 1.0);
-            let g = DVector::from_iterator(x.ncols(), sums.iter().map(|s| -s));
-            let (db, dr) = self.augmented_correction(&f, &g);
+        // The first step's compensated f = y − r − X b carries what a plain r₀ rounds away,
+        // so r₀ needs no compensation of its own (the same bits as a compensated r₀ on the
+        // demo and the benchmark).
+        let mut r: Option<DVector<f64>> = None;
+        let steps = self.steps();
+        for step in 0..steps {
+            let StepSums { r: start, f, g } = step_sums(x, y, b, r.as_ref());
+            let (db, dr) = self.augmented_correction(&f, &g, step + 1 < steps);
             *b += db;
-            r += dr;
+            r = match (start.or(r), dr) {
+                (Some(r), Some(dr)) => Some(r + dr),
+                _ => None,
+            };
         }
     }
 }
@@ -240,13 +345,16 @@ impl PivotedQr {
         for j in 0..x.ncols() {
             let mut b = inverse.column(j).into_owned();
             let mut r = -(x * &b);
-            for _ in 0..self.steps() {
+            let steps = self.steps();
+            for step in 0..steps {
                 let f = compensated_rows(&[(r.as_slice(), -1.0)], x, &b);
                 let unit = |m: usize| (if m == j { -1.0 } else { 0.0 }, 1.0);
                 let g = DVector::from_vec(dot2_columns(&unit, x, r.as_slice(), -1.0));
-                let (db, dr) = self.augmented_correction(&f, &g);
+                let (db, dr) = self.augmented_correction(&f, &g, step + 1 < steps);
                 b += db;
-                r += dr;
+                if let Some(dr) = dr {
+                    r += dr;
+                }
             }
             inverse.set_column(j, &b);
         }
@@ -393,6 +501,37 @@ mod tests {
                 "column {j} with a unit term"
             );
         }
+        // One step's sums fused into one pass: the same bits as the kernels they replace,
+        // with the residuals given and computed plainly (over more than one row block).
+        let (n2, k2) = (2 * ROW_BLOCK + 37, 4);
+        let x2 = DMatrix::from_fn(n2, k2, awkward);
+        let y2 = DVector::from_fn(n2, |i, _| awkward(i, 11) * 1e3);
+        let r2 = DVector::from_fn(n2, |i, _| awkward(i, 23) * 1e-2);
+        let b2 = DVector::from_fn(k2, |j, _| awkward(j, 5));
+        let same = |a: &DVector<f64>, b: &DVector<f64>| {
+            a.len() == b.len()
+                && a.iter()
+                    .zip(b.iter())
+                    .all(|(u, v)| u.to_bits() == v.to_bits())
+        };
+        let expected_g = |r: &DVector<f64>| {
+            let sums = dot2_columns(&|_| (0.0, 0.0), &x2, r.as_slice(), 1.0);
+            DVector::from_iterator(k2, sums.iter().map(|s| -s))
+        };
+        let given = step_sums(&x2, &y2, &b2, Some(&r2));
+        assert!(given.r.is_none());
+        let f = compensated_rows(&[(y2.as_slice(), 1.0), (r2.as_slice(), -1.0)], &x2, &b2);
+        assert!(same(&given.f, &f), "f with r given");
+        assert!(same(&given.g, &expected_g(&r2)), "g with r given");
+        let fresh = step_sums(&x2, &y2, &b2, None);
+        let r0 = fresh.r.expect("computed when not given");
+        assert!(
+            same(&r0, &(&y2 - &x2 * &b2)),
+            "plain r₀ as nalgebra's product"
+        );
+        let f = compensated_rows(&[(y2.as_slice(), 1.0), (r0.as_slice(), -1.0)], &x2, &b2);
+        assert!(same(&fresh.f, &f), "f with r₀ computed");
+        assert!(same(&fresh.g, &expected_g(&r0)), "g with r₀ computed");
         // Row blocks: a residual family longer than one block, the same bits per row.
         let (n, k) = (2 * ROW_BLOCK + 37, 3);
         let x = DMatrix::from_fn(n, k, awkward);
