@@ -607,11 +607,13 @@ impl PivotedQr {
     /// Solves the augmented correction system [I X; Xᵀ 0](δr; δb) = (f; g) with the stored
     /// factorisation (Björck and Golub 1967); returns (δb, δr) in the caller's coordinates,
     /// δr only when `with_dr` (a last refinement step does not need it, and it costs a pass
-    /// over the rows).
+    /// over the rows). `xtf`: Xᵀf when the caller summed it already (the bits of
+    /// `x.tr_mul(f)`), used by a factorisation that keeps X.
     pub(crate) fn augmented_correction(
         &self,
         f: &DVector<f64>,
         g: &DVector<f64>,
+        xtf: Option<DVector<f64>>,
         with_dr: bool,
     ) -> (DVector<f64>, Option<DVector<f64>>) {
         let k = self.perm.len();
@@ -619,7 +621,8 @@ impl PivotedQr {
             Basis::Reflectors(v) => v,
             Basis::Columns(x) => {
                 // δr + X δb = f and Xᵀ δr = g give XᵀX δb = Xᵀf − g.
-                let db = self.normal_solve(&(x.tr_mul(f) - g));
+                let xtf = xtf.unwrap_or_else(|| x.tr_mul(f));
+                let db = self.normal_solve(&(xtf - g));
                 let dr = with_dr.then(|| f - &**x * &db);
                 return (db, dr);
             }
@@ -721,6 +724,12 @@ impl PivotedQr {
         let value = compute()?;
         *held = Some(Derived(Arc::new(value.clone())));
         Ok(value)
+    }
+
+    /// Whether this factorisation kept the factorised matrix rather than Householder vectors
+    /// ([`Basis::Columns`]).
+    pub(crate) fn keeps_columns(&self) -> bool {
+        matches!(self.basis, Basis::Columns(_))
     }
 
     /// Whether the scaled factor is worse conditioned than [`REFINE_ABOVE`].

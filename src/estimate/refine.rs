@@ -22,7 +22,7 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use super::qr::PivotedQr;
+use super::qr::{combine_lanes, PivotedQr};
 use crate::exact::{two_prod, two_sum};
 
 /// Refinement steps of a factorisation worse conditioned than `qr::REFINE_ABOVE`; each costs
@@ -116,27 +116,34 @@ pub(crate) fn compensated_rows(
 /// * r, when not given: y − X b in plain arithmetic, columns added in order (the start of the
 ///   refinement; the step's compensated f carries what it rounds away);
 /// * f = y − r − X b per row, the bits of [`compensated_rows`];
-/// * g = −Xᵀr, each column's Dot2 over the rows in order, the bits of [`dot2_columns`] (a
-///   test checks both).
+/// * g = −Xᵀr, each column's Dot2 over the rows in order, the bits of [`dot2_columns`];
+/// * Xᵀf when asked (the semi-normal correction of a factorisation that kept X), summed in
+///   the order of nalgebra's `tr_mul` (eight running sums, `qr::combine_lanes`, then the last
+///   n mod 8 rows one by one), the bits of `x.tr_mul(&f)`.
+///
+/// A test checks every part against the kernel or product it replaces.
 pub(crate) struct StepSums {
     pub(crate) r: Option<DVector<f64>>,
     pub(crate) f: DVector<f64>,
     pub(crate) g: DVector<f64>,
+    pub(crate) xtf: Option<DVector<f64>>,
 }
 
-/// [`StepSums`] for `x`, `y`, `b` and the current residuals `r` (`None`: computed plainly).
+/// [`StepSums`] for `x`, `y`, `b` and the current residuals `r` (`None`: computed plainly);
+/// Xᵀf when `with_xtf`.
 fn step_sums(
     x: &DMatrix<f64>,
     y: &DVector<f64>,
     b: &DVector<f64>,
     r: Option<&DVector<f64>>,
+    with_xtf: bool,
 ) -> StepSums {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("fma") {
         // SAFETY: the feature was detected at run time.
-        return unsafe { step_sums_fma(x, y, b, r) };
+        return unsafe { step_sums_fma(x, y, b, r, with_xtf) };
     }
-    step_sums_body(x, y, b, r)
+    step_sums_body(x, y, b, r, with_xtf)
 }
 
 /// [`step_sums_body`] with hardware fused multiply-add.
@@ -150,8 +157,9 @@ unsafe fn step_sums_fma(
     y: &DVector<f64>,
     b: &DVector<f64>,
     r: Option<&DVector<f64>>,
+    with_xtf: bool,
 ) -> StepSums {
-    step_sums_body(x, y, b, r)
+    step_sums_body(x, y, b, r, with_xtf)
 }
 
 #[inline(always)]
@@ -160,8 +168,11 @@ fn step_sums_body(
     y: &DVector<f64>,
     b: &DVector<f64>,
     given: Option<&DVector<f64>>,
+    with_xtf: bool,
 ) -> StepSums {
     let (n, k) = x.shape();
+    let main = n - n % 8;
+    let mut lanes = vec![[0.0; 8]; if with_xtf { k } else { 0 }];
     let columns: Vec<&[f64]> = (0..k).map(|j| &x.as_slice()[j * n..(j + 1) * n]).collect();
     let mut plain = vec![0.0; if given.is_none() { n } else { 0 }];
     let mut f = Vec::with_capacity(n);
@@ -195,6 +206,16 @@ fn step_sums_body(
             dot2_step(sum, err, &column[start..end], -b[j]);
         }
         f.extend(sum.iter().zip(err.iter()).map(|(s, e)| s + e));
+        // Row blocks start at multiples of eight, so row i goes to lane i mod 8.
+        let lane_end = end.min(main).max(start);
+        for (lane, column) in lanes.iter_mut().zip(&columns) {
+            let (c, fs) = (&column[start..lane_end], &f[start..lane_end]);
+            for (c8, f8) in c.chunks_exact(8).zip(fs.chunks_exact(8)) {
+                for l in 0..8 {
+                    lane[l] += c8[l] * f8[l];
+                }
+            }
+        }
         for (offset, &ri) in rs.iter().enumerate() {
             for (state, column) in states.iter_mut().zip(&columns) {
                 let (p, ep) = two_prod(column[start + offset], ri);
@@ -204,10 +225,23 @@ fn step_sums_body(
             }
         }
     }
+    let xtf = with_xtf.then(|| {
+        DVector::from_iterator(
+            k,
+            lanes.iter().zip(&columns).map(|(lane, column)| {
+                let mut sum = combine_lanes(lane);
+                for i in main..n {
+                    sum += column[i] * f[i];
+                }
+                sum
+            }),
+        )
+    });
     StepSums {
         r: given.is_none().then(|| DVector::from_vec(plain)),
         f: DVector::from_vec(f),
         g: DVector::from_iterator(k, states.iter().map(|(s, e)| -(s + e))),
+        xtf,
     }
 }
 
@@ -301,8 +335,14 @@ impl PivotedQr {
         let mut r: Option<DVector<f64>> = None;
         let steps = self.steps();
         for step in 0..steps {
-            let StepSums { r: start, f, g } = step_sums(x, y, b, r.as_ref());
-            let (db, dr) = self.augmented_correction(&f, &g, step + 1 < steps);
+            let sums = step_sums(x, y, b, r.as_ref(), self.keeps_columns());
+            let StepSums {
+                r: start,
+                f,
+                g,
+                xtf,
+            } = sums;
+            let (db, dr) = self.augmented_correction(&f, &g, xtf, step + 1 < steps);
             *b += db;
             r = match (start.or(r), dr) {
                 (Some(r), Some(dr)) => Some(r + dr),
@@ -350,7 +390,7 @@ impl PivotedQr {
                 let f = compensated_rows(&[(r.as_slice(), -1.0)], x, &b);
                 let unit = |m: usize| (if m == j { -1.0 } else { 0.0 }, 1.0);
                 let g = DVector::from_vec(dot2_columns(&unit, x, r.as_slice(), -1.0));
-                let (db, dr) = self.augmented_correction(&f, &g, step + 1 < steps);
+                let (db, dr) = self.augmented_correction(&f, &g, None, step + 1 < steps);
                 b += db;
                 if let Some(dr) = dr {
                     r += dr;
@@ -518,12 +558,15 @@ mod tests {
             let sums = dot2_columns(&|_| (0.0, 0.0), &x2, r.as_slice(), 1.0);
             DVector::from_iterator(k2, sums.iter().map(|s| -s))
         };
-        let given = step_sums(&x2, &y2, &b2, Some(&r2));
+        let given = step_sums(&x2, &y2, &b2, Some(&r2), true);
         assert!(given.r.is_none());
+        let xtf = given.xtf.as_ref().expect("asked");
+        assert!(same(xtf, &x2.tr_mul(&given.f)), "Xᵀf as nalgebra's tr_mul");
+        assert!(step_sums(&x2, &y2, &b2, Some(&r2), false).xtf.is_none());
         let f = compensated_rows(&[(y2.as_slice(), 1.0), (r2.as_slice(), -1.0)], &x2, &b2);
         assert!(same(&given.f, &f), "f with r given");
         assert!(same(&given.g, &expected_g(&r2)), "g with r given");
-        let fresh = step_sums(&x2, &y2, &b2, None);
+        let fresh = step_sums(&x2, &y2, &b2, None, true);
         let r0 = fresh.r.expect("computed when not given");
         assert!(
             same(&r0, &(&y2 - &x2 * &b2)),
@@ -532,6 +575,8 @@ mod tests {
         let f = compensated_rows(&[(y2.as_slice(), 1.0), (r0.as_slice(), -1.0)], &x2, &b2);
         assert!(same(&fresh.f, &f), "f with r₀ computed");
         assert!(same(&fresh.g, &expected_g(&r0)), "g with r₀ computed");
+        let xtf = fresh.xtf.as_ref().expect("asked");
+        assert!(same(xtf, &x2.tr_mul(&fresh.f)), "Xᵀf with r₀ computed");
         // Row blocks: a residual family longer than one block, the same bits per row.
         let (n, k) = (2 * ROW_BLOCK + 37, 3);
         let x = DMatrix::from_fn(n, k, awkward);
