@@ -208,29 +208,31 @@ fn arm_mean(
     clusters: Option<&[usize]>,
     z: f64,
 ) -> Result<ArmMean, Why> {
-    let idx: Vec<usize> = (0..values.len()).filter(|&i| arm[i] == which).collect();
-    let n = idx.len();
+    // The arm's rows, walked again for each sum rather than collected (an index vector the
+    // size of the sample per arm and variable).
+    let idx = || (0..values.len()).filter(move |&i| arm[i] == which);
+    let n = idx().count();
     if n < 2 {
         return Err((
             crate::results::TakeUpMissing::SmallArm,
             format!("arm {which} has fewer than two rows, so no spread can be estimated"),
         ));
     }
-    if idx.iter().any(|&i| !values[i].is_finite()) {
+    if idx().any(|i| !values[i].is_finite()) {
         return Err((
             crate::results::TakeUpMissing::NotAColumn,
             format!("`{variable}` has a value that is not finite in arm {which}"),
         ));
     }
     let nf = n as f64;
-    let mean = idx.iter().map(|&i| values[i]).sum::<f64>() / nf;
-    let ss: f64 = idx.iter().map(|&i| (values[i] - mean).powi(2)).sum();
+    let mean = idx().map(|i| values[i]).sum::<f64>() / nf;
+    let ss: f64 = idx().map(|i| (values[i] - mean).powi(2)).sum();
     let sd = (ss / (nf - 1.0)).sqrt();
     let (std_error, g) = match clusters {
         None => (sd / nf.sqrt(), None),
         Some(ids) => {
             let mut sums = std::collections::BTreeMap::new();
-            for &i in &idx {
+            for i in idx() {
                 *sums.entry(ids[i]).or_insert(0.0) += values[i] - mean;
             }
             let g = sums.len();

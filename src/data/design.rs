@@ -103,13 +103,14 @@ fn kept_rows(table: &Table, spec: &Spec) -> Result<(usize, Vec<usize>)> {
         .map(|n| labels(table, n, spec))
         .collect::<Result<_>>()?;
     let n_sample = in_sample.iter().filter(|b| **b).count();
-    let kept = (0..table.rows)
-        .filter(|&i| {
-            in_sample[i]
-                && numeric.iter().all(|c| c.get(i).is_some())
-                && groups.iter().all(|c| c[i].is_some())
-        })
-        .collect();
+    // Sized once (at most the sample): grown by doubling, a million rows were copied and
+    // faulted in again about twenty times per specification.
+    let mut kept = Vec::with_capacity(n_sample);
+    kept.extend((0..table.rows).filter(|&i| {
+        in_sample[i]
+            && numeric.iter().all(|c| c.get(i).is_some())
+            && groups.iter().all(|c| c[i].is_some())
+    }));
     Ok((n_sample, kept))
 }
 
