@@ -129,21 +129,22 @@ pub(crate) struct StepSums {
     pub(crate) xtf: Option<DVector<f64>>,
 }
 
-/// [`StepSums`] for `x`, `y`, `b` and the current residuals `r` (`None`: computed plainly);
-/// Xᵀf when `with_xtf`.
+/// [`StepSums`] for `x`, `y`, `b` and the current residuals `r` (`None`: computed plainly,
+/// and returned when `keep_r`, else used block by block and dropped); Xᵀf when `with_xtf`.
 fn step_sums(
     x: &DMatrix<f64>,
     y: &DVector<f64>,
     b: &DVector<f64>,
     r: Option<&DVector<f64>>,
     with_xtf: bool,
+    keep_r: bool,
 ) -> StepSums {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("fma") {
         // SAFETY: the feature was detected at run time.
-        return unsafe { step_sums_fma(x, y, b, r, with_xtf) };
+        return unsafe { step_sums_fma(x, y, b, r, with_xtf, keep_r) };
     }
-    step_sums_body(x, y, b, r, with_xtf)
+    step_sums_body(x, y, b, r, with_xtf, keep_r)
 }
 
 /// [`step_sums_body`] with hardware fused multiply-add.
@@ -158,8 +159,9 @@ unsafe fn step_sums_fma(
     b: &DVector<f64>,
     r: Option<&DVector<f64>>,
     with_xtf: bool,
+    keep_r: bool,
 ) -> StepSums {
-    step_sums_body(x, y, b, r, with_xtf)
+    step_sums_body(x, y, b, r, with_xtf, keep_r)
 }
 
 #[inline(always)]
@@ -169,12 +171,15 @@ fn step_sums_body(
     b: &DVector<f64>,
     given: Option<&DVector<f64>>,
     with_xtf: bool,
+    keep_r: bool,
 ) -> StepSums {
     let (n, k) = x.shape();
     let main = n - n % 8;
     let mut lanes = vec![[0.0; 8]; if with_xtf { k } else { 0 }];
     let columns: Vec<&[f64]> = (0..k).map(|j| &x.as_slice()[j * n..(j + 1) * n]).collect();
-    let mut plain = vec![0.0; if given.is_none() { n } else { 0 }];
+    // r₀ block by block; kept whole only when a later step needs it.
+    let mut plain = Vec::with_capacity(if given.is_none() && keep_r { n } else { 0 });
+    let mut block_r = [0.0; ROW_BLOCK];
     let mut f = Vec::with_capacity(n);
     let mut states = vec![(0.0, 0.0); k];
     let (mut sum, mut err) = ([0.0; ROW_BLOCK], [0.0; ROW_BLOCK]);
@@ -182,7 +187,8 @@ fn step_sums_body(
         let end = (start + ROW_BLOCK).min(n);
         let ys = &y.as_slice()[start..end];
         if given.is_none() {
-            let out = &mut plain[start..end];
+            let out = &mut block_r[..end - start];
+            out.fill(0.0);
             for (j, column) in columns.iter().enumerate() {
                 let c = &column[start..end];
                 if j == 0 {
@@ -192,10 +198,13 @@ fn step_sums_body(
                 }
             }
             out.iter_mut().zip(ys).for_each(|(o, v)| *o = v - *o);
+            if keep_r {
+                plain.extend_from_slice(out);
+            }
         }
         let rs = match given {
             Some(given) => &given.as_slice()[start..end],
-            None => &plain[start..end],
+            None => &block_r[..end - start],
         };
         let (sum, err) = (&mut sum[..end - start], &mut err[..end - start]);
         sum.fill(0.0);
@@ -238,7 +247,7 @@ fn step_sums_body(
         )
     });
     StepSums {
-        r: given.is_none().then(|| DVector::from_vec(plain)),
+        r: (given.is_none() && keep_r).then(|| DVector::from_vec(plain)),
         f: DVector::from_vec(f),
         g: DVector::from_iterator(k, states.iter().map(|(s, e)| -(s + e))),
         xtf,
@@ -335,14 +344,15 @@ impl PivotedQr {
         let mut r: Option<DVector<f64>> = None;
         let steps = self.steps();
         for step in 0..steps {
-            let sums = step_sums(x, y, b, r.as_ref(), self.keeps_columns());
+            let last = step + 1 == steps;
+            let sums = step_sums(x, y, b, r.as_ref(), self.keeps_columns(), !last);
             let StepSums {
                 r: start,
                 f,
                 g,
                 xtf,
             } = sums;
-            let (db, dr) = self.augmented_correction(&f, &g, xtf, step + 1 < steps);
+            let (db, dr) = self.augmented_correction(&f, &g, xtf, !last);
             *b += db;
             r = match (start.or(r), dr) {
                 (Some(r), Some(dr)) => Some(r + dr),
@@ -558,15 +568,17 @@ mod tests {
             let sums = dot2_columns(&|_| (0.0, 0.0), &x2, r.as_slice(), 1.0);
             DVector::from_iterator(k2, sums.iter().map(|s| -s))
         };
-        let given = step_sums(&x2, &y2, &b2, Some(&r2), true);
+        let given = step_sums(&x2, &y2, &b2, Some(&r2), true, true);
         assert!(given.r.is_none());
         let xtf = given.xtf.as_ref().expect("asked");
         assert!(same(xtf, &x2.tr_mul(&given.f)), "Xᵀf as nalgebra's tr_mul");
-        assert!(step_sums(&x2, &y2, &b2, Some(&r2), false).xtf.is_none());
+        assert!(step_sums(&x2, &y2, &b2, Some(&r2), false, true)
+            .xtf
+            .is_none());
         let f = compensated_rows(&[(y2.as_slice(), 1.0), (r2.as_slice(), -1.0)], &x2, &b2);
         assert!(same(&given.f, &f), "f with r given");
         assert!(same(&given.g, &expected_g(&r2)), "g with r given");
-        let fresh = step_sums(&x2, &y2, &b2, None, true);
+        let fresh = step_sums(&x2, &y2, &b2, None, true, true);
         let r0 = fresh.r.expect("computed when not given");
         assert!(
             same(&r0, &(&y2 - &x2 * &b2)),
@@ -577,6 +589,9 @@ mod tests {
         assert!(same(&fresh.g, &expected_g(&r0)), "g with r₀ computed");
         let xtf = fresh.xtf.as_ref().expect("asked");
         assert!(same(xtf, &x2.tr_mul(&fresh.f)), "Xᵀf with r₀ computed");
+        let dropped = step_sums(&x2, &y2, &b2, None, true, false);
+        assert!(dropped.r.is_none(), "r₀ not kept for a last step");
+        assert!(same(&dropped.f, &fresh.f) && same(&dropped.g, &fresh.g));
         // Row blocks: a residual family longer than one block, the same bits per row.
         let (n, k) = (2 * ROW_BLOCK + 37, 3);
         let x = DMatrix::from_fn(n, k, awkward);
