@@ -3,14 +3,14 @@
 //! Role: turn a factorised design and a residual vector into the coefficient covariance the
 //! plan asks for. The meats are computed in the coordinates of the thin Q factor: with
 //! X T = Q₁ (see `qr`), a k × k "meat" A is built from the rows qᵢ of Q₁, so X'X is never
-//! formed. (X'X)^{-1} is T Tᵀ refined column by column on the augmented system (module
-//! `refine`) for full accuracy, and every sandwich is V = c · B A Bᵀ with the bread factor
-//! B = (X'X)^{-1} T^{-ᵀ} ([`PivotedQr::bread`]): the refined inverse on both sides of
-//! XᵀΩX. (Before version 0.3.0 of sworn, V = c · T A Tᵀ used the unrefined T Tᵀ, whose
-//! rounding grows with n.)
+//! formed. Every sandwich is V = c · B A Bᵀ with the bread factor of [`PivotedQr::bread`]:
+//! on a factorisation that keeps X (κ₁ ≤ 10³), B = (X'X)^{-1} T^{-ᵀ} with (X'X)^{-1} refined
+//! (module `refine`), so the refined inverse stands on both sides of XᵀΩX; on one that keeps
+//! Householder vectors (ill-conditioned designs), B = T. (Before version 0.3.0 of sworn,
+//! V = c · T A Tᵀ throughout, with the unrefined T Tᵀ, whose rounding grows with n.)
 //!
 //! Conventions (n observations, k coefficients, u the residuals, hᵢ = ‖qᵢ‖² the leverage):
-//! * Classical: s² (X'X)^{-1}, s² = u'u / (n − k).
+//! * Classical: s² (X'X)^{-1}, s² = u'u / (n − k), with the refined (X'X)^{-1}.
 //! * HC0 (White 1980, Econometrica 48): A = Σ uᵢ² qᵢ qᵢᵀ, c = 1.
 //! * HC1: HC0 · n / (n − k) (MacKinnon and White 1985, J. Econometrics 29).
 //! * HC2: A = Σ uᵢ²/(1 − hᵢ) qᵢ qᵢᵀ; HC3: A = Σ uᵢ²/(1 − hᵢ)² qᵢ qᵢᵀ (MacKinnon and White
@@ -740,6 +740,21 @@ mod product_tests {
         }
         println!("refined bread {worst:.1e}, unrefined {worst_unrefined:.1e}");
         assert!(worst < 1e-14, "refined bread off by {worst:.1e}");
+    }
+
+    /// An ill-conditioned design keeps its Householder vectors, and its meat's rows come from
+    /// their Q₁: the bread stays T, the factor that belongs with that Q₁.
+    #[test]
+    fn householder_factorisations_keep_t_as_their_bread() {
+        let n = 301;
+        let x = DMatrix::from_fn(n, 6, |i, j| (1.0 + i as f64 / n as f64).powi(j as i32));
+        let qr = PivotedQr::new(&x).expect("full rank");
+        assert!(qr.ill_conditioned());
+        let (bread, t) = (qr.bread(&x), qr.t_matrix());
+        assert!(bread
+            .iter()
+            .zip(t.iter())
+            .all(|(a, b)| a.to_bits() == b.to_bits()));
     }
 
     /// A row that alone carries a direction of the column space (leverage 1, though no

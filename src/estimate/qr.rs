@@ -59,10 +59,14 @@ pub(crate) struct PivotedQr {
     /// Whether the condition number of the scaled R exceeds [`REFINE_ABOVE`] (module
     /// `refine` then takes more steps).
     ill_conditioned: bool,
-    /// For a factorisation shared between fits (module `shared`): the thin Q and the
-    /// refined (X'X)^{-1}, each computed on first use and kept. `None` for a factorisation
+    /// For a factorisation shared between fits (module `shared`): the thin Q, solutions and
+    /// derived results, each computed on first use and kept. `None` for a factorisation
     /// of one fit, which computes them afresh on every call and keeps nothing.
     kept: Option<Kept>,
+    /// The refined (X'X)^{-1} ([`PivotedQr::refined_inverse`]), computed on first use and
+    /// kept by every factorisation (k × k): a fit asks for it once per covariance, and the
+    /// Anderson–Rubin search asks again for every direction it tries.
+    inverse: OnceLock<DMatrix<f64>>,
 }
 
 /// How a factorisation applies Q and Qᵀ.
@@ -88,7 +92,6 @@ enum Basis {
 #[derive(Debug, Default)]
 struct Kept {
     thin_q: OnceLock<Arc<DMatrix<f64>>>,
-    inverse: OnceLock<DMatrix<f64>>,
     /// The leverages ([`PivotedQr::leverages`]), asked only by HC2, HC3 and their relatives.
     leverages: OnceLock<Arc<Vec<f64>>>,
     /// The latest refined solutions, each under the key (BLAKE3, [`InputKey`]) of its right-hand side's bits
@@ -465,6 +468,7 @@ impl PivotedQr {
                 n: x.nrows(),
                 ill_conditioned: false,
                 kept: None,
+                inverse: OnceLock::new(),
             });
         }
         Self::whole(x, Some(held))
@@ -510,6 +514,7 @@ impl PivotedQr {
             n,
             ill_conditioned,
             kept: None,
+            inverse: OnceLock::new(),
         };
         match qr.rank() {
             rank if rank < k => Err(rank_error(x, &qr.perm[rank..])),
@@ -658,15 +663,24 @@ impl PivotedQr {
         t
     }
 
-    /// The bread factor B = (X'X)^{-1} T^{-ᵀ} of a sandwich covariance, with the refined
-    /// (X'X)^{-1} ([`PivotedQr::refined_inverse`]; `x` must be the factorised matrix).
+    /// The bread factor B of a sandwich covariance B M Bᵀ whose meat M is formed from the
+    /// rows of [`PivotedQr::q_rows`] (`x` must be the factorised matrix).
     ///
-    /// A meat M = Q₁ᵀ Ω Q₁ formed from the rows of Q₁ = X T equals Tᵀ (XᵀΩX) T, so
-    /// B M Bᵀ = (X'X)^{-1} XᵀΩX (X'X)^{-1} with the refined inverse on both sides, where
-    /// T M Tᵀ would carry the rounding of (X'X)^{-1} = T Tᵀ from the factorisation's long sums
-    /// (about 1.7e-13 relative at 100,000 rows, growing with n). T^{-1} = R Pᵀ S^{-1} is R with
-    /// its columns moved and scaled back, so nothing is inverted: B = (A P S^{-1}) Rᵀ.
+    /// * A factorisation that keeps X (κ₁ ≤ 10³): B = A T^{-ᵀ} with A the refined (X'X)^{-1}
+    ///   ([`PivotedQr::refined_inverse`]). Its meat's rows are X T, so M = Tᵀ (XᵀΩX) T and
+    ///   B M Bᵀ = A XᵀΩX A with the refined inverse on both sides, where T M Tᵀ would carry
+    ///   the rounding of (X'X)^{-1} = T Tᵀ from the factorisation's long sums (about 1.7e-13
+    ///   relative at 100,000 rows, growing with n). T^{-1} = R Pᵀ S^{-1} is R with its
+    ///   columns moved and scaled back, so nothing is inverted: B = A S^{-1} P Rᵀ.
+    /// * A factorisation that keeps Householder vectors: B = T. Its meat's rows come from
+    ///   the Householder Q₁, which equals X T only to the factorisation's rounding, so M and
+    ///   T belong together; on ill-conditioned designs A T^{-ᵀ} with that meat was measured
+    ///   less accurate than T M Tᵀ more often than not (a review, against exact rational
+    ///   sandwiches: up to 35× worse in 9 of 16 designs, better in 5).
     pub(crate) fn bread(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
+        if !self.keeps_columns() {
+            return self.t_matrix();
+        }
         let a = self.refined_inverse(x);
         let k = self.perm.len();
         let moved = DMatrix::from_fn(k, k, |i, j| {
@@ -737,9 +751,9 @@ impl PivotedQr {
         self.ill_conditioned
     }
 
-    /// Where a shared factorisation keeps its refined inverse (module `refine`).
-    pub(crate) fn kept_inverse(&self) -> Option<&OnceLock<DMatrix<f64>>> {
-        self.kept.as_ref().map(|k| &k.inverse)
+    /// Where this factorisation keeps its refined inverse (module `refine`).
+    pub(crate) fn kept_inverse(&self) -> &OnceLock<DMatrix<f64>> {
+        &self.inverse
     }
 
     /// The thin Q factor Q₁ (n × k), whose rows give leverages and scores: from the

@@ -373,17 +373,22 @@ impl PivotedQr {
     ///   Gram matrix of a design that ill-conditioned would need more than twice the working
     ///   precision.
     pub(crate) fn refined_inverse(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
-        match self.kept_inverse() {
-            Some(cell) => cell.get_or_init(|| self.refine_inverse(x)).clone(),
-            None => self.refine_inverse(x),
-        }
+        self.kept_inverse()
+            .get_or_init(|| self.refine_inverse(x))
+            .clone()
     }
 
     fn refine_inverse(&self, x: &DMatrix<f64>) -> DMatrix<f64> {
         let t = self.t_matrix();
         let start = &t * t.transpose();
         if !self.ill_conditioned() {
-            return newton_inverse(start, &compensated_gram(x));
+            let inverse = newton_inverse(start.clone(), &compensated_gram(x));
+            // A Gram entry beyond the range of f64 (a column of size 1e-155, say) spreads
+            // NaN through every entry of the Newton steps; the augmented system keeps the
+            // entries it can represent.
+            if inverse.iter().all(|v| v.is_finite()) {
+                return inverse;
+            }
         }
         let inverse = self.augmented_inverse(x, &start);
         (&inverse + inverse.transpose()) * 0.5
@@ -419,8 +424,10 @@ const GRAM_LANES: usize = 4;
 
 /// XᵀX as unevaluated pairs (sum, error) per entry: entry (a, b) is the Dot2 state of
 /// Σᵢ x_ia x_ib (Ogita, Rump and Oishi 2005), whose sum + error equals the exact value to
-/// about n·eps² of Σᵢ |x_ia x_ib|. The rows are taken [`ROW_BLOCK`] at a time, so that every
-/// pair of columns is read from the fastest cache.
+/// about n·eps² of Σᵢ |x_ia x_ib| (while the products stay clear of the subnormal range). The
+/// rows are taken [`ROW_BLOCK`] at a time, so that the block of X is read from memory once
+/// and its pairs of columns from cache (8 KiB a column: the whole block fits the fastest
+/// cache for a few columns, the next one for the rest).
 pub(crate) fn compensated_gram(x: &DMatrix<f64>) -> [DMatrix<f64>; 2] {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("fma") {
