@@ -57,6 +57,8 @@ mod behaviour_tests;
 mod nist_tests;
 #[cfg(test)]
 mod reference_tests;
+#[cfg(test)]
+mod reference_tests_exact;
 
 use nalgebra::{DMatrix, DVector};
 
