@@ -129,22 +129,27 @@ pub(crate) struct StepSums {
     pub(crate) xtf: Option<DVector<f64>>,
 }
 
-/// [`StepSums`] for `x`, `y`, `b` and the current residuals `r` (`None`: computed plainly,
-/// and returned when `keep_r`, else used block by block and dropped); Xᵀf when `with_xtf`.
-fn step_sums(
-    x: &DMatrix<f64>,
-    y: &DVector<f64>,
-    b: &DVector<f64>,
-    r: Option<&DVector<f64>>,
+/// What one refinement step sums over: the factorised `x`, the right-hand side `y`, the
+/// current solution `b` and residuals `r` (`None`: computed plainly, and returned when
+/// `keep_r`, else used block by block and dropped); Xᵀf when `with_xtf`.
+#[derive(Clone, Copy)]
+struct StepInputs<'a> {
+    x: &'a DMatrix<f64>,
+    y: &'a DVector<f64>,
+    b: &'a DVector<f64>,
+    r: Option<&'a DVector<f64>>,
     with_xtf: bool,
     keep_r: bool,
-) -> StepSums {
+}
+
+/// [`StepSums`] for `inputs`.
+fn step_sums(inputs: &StepInputs) -> StepSums {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("fma") {
         // SAFETY: the feature was detected at run time.
-        return unsafe { step_sums_fma(x, y, b, r, with_xtf, keep_r) };
+        return unsafe { step_sums_fma(inputs) };
     }
-    step_sums_body(x, y, b, r, with_xtf, keep_r)
+    step_sums_body(inputs)
 }
 
 /// [`step_sums_body`] with hardware fused multiply-add.
@@ -153,26 +158,20 @@ fn step_sums(
 /// The CPU must support FMA (checked by the caller).
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "fma")]
-unsafe fn step_sums_fma(
-    x: &DMatrix<f64>,
-    y: &DVector<f64>,
-    b: &DVector<f64>,
-    r: Option<&DVector<f64>>,
-    with_xtf: bool,
-    keep_r: bool,
-) -> StepSums {
-    step_sums_body(x, y, b, r, with_xtf, keep_r)
+unsafe fn step_sums_fma(inputs: &StepInputs) -> StepSums {
+    step_sums_body(inputs)
 }
 
 #[inline(always)]
-fn step_sums_body(
-    x: &DMatrix<f64>,
-    y: &DVector<f64>,
-    b: &DVector<f64>,
-    given: Option<&DVector<f64>>,
-    with_xtf: bool,
-    keep_r: bool,
-) -> StepSums {
+fn step_sums_body(inputs: &StepInputs) -> StepSums {
+    let StepInputs {
+        x,
+        y,
+        b,
+        r: given,
+        with_xtf,
+        keep_r,
+    } = *inputs;
     let (n, k) = x.shape();
     let main = n - n % 8;
     let mut lanes = vec![[0.0; 8]; if with_xtf { k } else { 0 }];
@@ -345,7 +344,14 @@ impl PivotedQr {
         let steps = self.steps();
         for step in 0..steps {
             let last = step + 1 == steps;
-            let sums = step_sums(x, y, b, r.as_ref(), self.keeps_columns(), !last);
+            let sums = step_sums(&StepInputs {
+                x,
+                y,
+                b,
+                r: r.as_ref(),
+                with_xtf: self.keeps_columns(),
+                keep_r: !last,
+            });
             let StepSums {
                 r: start,
                 f,
@@ -575,17 +581,25 @@ mod tests {
             let sums = dot2_columns(&|_| (0.0, 0.0), &x2, r.as_slice(), 1.0);
             DVector::from_iterator(k2, sums.iter().map(|s| -s))
         };
-        let given = step_sums(&x2, &y2, &b2, Some(&r2), true, true);
+        let sums = |r, with_xtf, keep_r| {
+            step_sums(&StepInputs {
+                x: &x2,
+                y: &y2,
+                b: &b2,
+                r,
+                with_xtf,
+                keep_r,
+            })
+        };
+        let given = sums(Some(&r2), true, true);
         assert!(given.r.is_none());
         let xtf = given.xtf.as_ref().expect("asked");
         assert!(same(xtf, &x2.tr_mul(&given.f)), "Xᵀf as nalgebra's tr_mul");
-        assert!(step_sums(&x2, &y2, &b2, Some(&r2), false, true)
-            .xtf
-            .is_none());
+        assert!(sums(Some(&r2), false, true).xtf.is_none());
         let f = compensated_rows(&[(y2.as_slice(), 1.0), (r2.as_slice(), -1.0)], &x2, &b2);
         assert!(same(&given.f, &f), "f with r given");
         assert!(same(&given.g, &expected_g(&r2)), "g with r given");
-        let fresh = step_sums(&x2, &y2, &b2, None, true, true);
+        let fresh = sums(None, true, true);
         let r0 = fresh.r.expect("computed when not given");
         assert!(
             same(&r0, &(&y2 - &x2 * &b2)),
@@ -596,7 +610,7 @@ mod tests {
         assert!(same(&fresh.g, &expected_g(&r0)), "g with r₀ computed");
         let xtf = fresh.xtf.as_ref().expect("asked");
         assert!(same(xtf, &x2.tr_mul(&fresh.f)), "Xᵀf with r₀ computed");
-        let dropped = step_sums(&x2, &y2, &b2, None, true, false);
+        let dropped = sums(None, true, false);
         assert!(dropped.r.is_none(), "r₀ not kept for a last step");
         assert!(same(&dropped.f, &fresh.f) && same(&dropped.g, &fresh.g));
         // Row blocks: a residual family longer than one block, the same bits per row.
