@@ -33,15 +33,23 @@ const STEPS: usize = 3;
 /// Pontius, NoInt1/2, agree with their certified values to the same digits as with three).
 const STEPS_WELL_CONDITIONED: usize = 1;
 
+/// One term of Dot2 (Ogita, Rump and Oishi 2005): the running (sum, err) takes a·b, the
+/// product and the sum split exactly, their rounding errors added to err. Every compensated
+/// kernel below is a loop over this step.
+#[inline(always)]
+fn dot2_add(sum: &mut f64, err: &mut f64, a: f64, b: f64) {
+    let (p, ep) = two_prod(a, b);
+    let (s, es) = two_sum(*sum, p);
+    *sum = s;
+    *err += ep + es;
+}
+
 /// Σ aᵢ bᵢ evaluated as if in twice the working precision, then rounded (Dot2): the
 /// definition the row and column kernels below reproduce bit for bit (checked in the tests).
 fn dot2(terms: impl Iterator<Item = (f64, f64)>) -> f64 {
     let (mut sum, mut err) = (0.0, 0.0);
     for (a, b) in terms {
-        let (p, ep) = two_prod(a, b);
-        let (s, es) = two_sum(sum, p);
-        sum = s;
-        err += ep + es;
+        dot2_add(&mut sum, &mut err, a, b);
     }
     sum + err
 }
@@ -51,10 +59,7 @@ fn dot2(terms: impl Iterator<Item = (f64, f64)>) -> f64 {
 #[inline(always)]
 fn dot2_step_body(sum: &mut [f64], err: &mut [f64], a: &[f64], b: f64) {
     for ((s, e), &x) in sum.iter_mut().zip(err.iter_mut()).zip(a) {
-        let (p, ep) = two_prod(x, b);
-        let (t, es) = two_sum(*s, p);
-        *s = t;
-        *e += ep + es;
+        dot2_add(s, e, x, b);
     }
 }
 
@@ -225,11 +230,8 @@ fn step_sums_body(inputs: &StepInputs) -> StepSums {
             }
         }
         for (offset, &ri) in rs.iter().enumerate() {
-            for (state, column) in states.iter_mut().zip(&columns) {
-                let (p, ep) = two_prod(column[start + offset], ri);
-                let (t, es) = two_sum(state.0, p);
-                state.0 = t;
-                state.1 += ep + es;
+            for ((sum, err), column) in states.iter_mut().zip(&columns) {
+                dot2_add(sum, err, column[start + offset], ri);
             }
         }
     }
@@ -271,18 +273,15 @@ fn dot2_columns_body(
     let mut states: Vec<(f64, f64)> = (0..x.ncols())
         .map(|j| {
             let (a, c) = first(j);
-            let (p, ep) = two_prod(a, c);
-            let (sum, es) = two_sum(0.0, p);
-            (sum, 0.0 + (ep + es))
+            let (mut sum, mut err) = (0.0, 0.0);
+            dot2_add(&mut sum, &mut err, a, c);
+            (sum, err)
         })
         .collect();
     for (i, y) in r.iter().enumerate() {
         let factor = sign * y;
-        for (state, column) in states.iter_mut().zip(&columns) {
-            let (p, ep) = two_prod(column[i], factor);
-            let (s, es) = two_sum(state.0, p);
-            state.0 = s;
-            state.1 += ep + es;
+        for ((sum, err), column) in states.iter_mut().zip(&columns) {
+            dot2_add(sum, err, column[i], factor);
         }
     }
     states.iter().map(|(sum, err)| sum + err).collect()
@@ -466,18 +465,12 @@ fn compensated_gram_body(x: &DMatrix<f64>) -> [DMatrix<f64>; 2] {
             let mut rows = ca.chunks_exact(GRAM_LANES).zip(cb.chunks_exact(GRAM_LANES));
             for (ra, rb) in rows.by_ref() {
                 for lane in 0..GRAM_LANES {
-                    let (p, ep) = two_prod(ra[lane], rb[lane]);
-                    let (t, es) = two_sum(sum[lane], p);
-                    sum[lane] = t;
-                    err[lane] += ep + es;
+                    dot2_add(&mut sum[lane], &mut err[lane], ra[lane], rb[lane]);
                 }
             }
             let tail = ca.len() - ca.len() % GRAM_LANES;
             for (lane, (&u, &v)) in ca[tail..].iter().zip(&cb[tail..]).enumerate() {
-                let (p, ep) = two_prod(u, v);
-                let (t, es) = two_sum(sum[lane], p);
-                sum[lane] = t;
-                err[lane] += ep + es;
+                dot2_add(&mut sum[lane], &mut err[lane], u, v);
             }
         }
     }
