@@ -138,10 +138,7 @@ pub(crate) fn covariance(
     // k counts absorbed coefficients for s² and HC1; k_cluster leaves out nested ones.
     let k = qr.ncols() + absorbed.df;
     let k_cluster = k - absorbed.nested_df;
-    let sandwich = |meat: DMatrix<f64>, c: f64| {
-        let bread = qr.bread(x);
-        &bread * meat * bread.transpose() * c
-    };
+    let sandwich = |meat: DMatrix<f64>, c: f64| qr.sandwich(x, &meat) * c;
     let plain = |cov| Covariance {
         cov,
         clusters: None,
@@ -211,8 +208,7 @@ pub(crate) fn two_way_unclamped(
     let (meat_ab, gab) = cluster_meat(&scores, &intersect(first, second))?;
     let meat = meat_a * cr1_factor(ga, n, kc) + meat_b * cr1_factor(gb, n, kc)
         - meat_ab * cr1_factor(gab, n, kc);
-    let bread = qr.bread(x);
-    Ok((&bread * meat * bread.transpose(), ga.min(gb)))
+    Ok((qr.sandwich(x, &meat), ga.min(gb)))
 }
 
 /// The per-observation weights ωᵢ of the HC meat Σ ωᵢ qᵢ qᵢᵀ for the design factorised in

@@ -690,8 +690,15 @@ impl PivotedQr {
         moved * self.r.view((0, 0), (k, k)).upper_triangle().transpose()
     }
 
-    /// This factorisation, made to keep its thin Q and refined inverse once computed (for
-    /// a factorisation shared between fits).
+    /// The sandwich B M Bᵀ of a meat M formed from the rows of [`PivotedQr::q_rows`], with
+    /// B the bread factor of [`PivotedQr::bread`].
+    pub(crate) fn sandwich(&self, x: &DMatrix<f64>, meat: &DMatrix<f64>) -> DMatrix<f64> {
+        let bread = self.bread(x);
+        &bread * meat * bread.transpose()
+    }
+
+    /// This factorisation, made to keep its thin Q, solutions and derived results once
+    /// computed (for a factorisation shared between fits).
     pub(crate) fn kept(mut self) -> Self {
         self.kept = Some(Kept::default());
         self
