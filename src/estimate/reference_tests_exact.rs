@@ -3,7 +3,10 @@
 //! Source: `tests/reference/fixtures/exact_sandwich.json`, written by
 //! `tests/reference/exact_sandwich.py` with exact rational arithmetic (Python fractions) on
 //! the exact binary values of the f64 data; square roots in mpmath at 50 digits. It holds
-//! OLS and 2SLS coefficients with HC1 and CR1 standard errors, as 25-digit decimals.
+//! OLS and 2SLS coefficients with HC1 and CR1 standard errors, and for the 2SLS design the
+//! endogeneity statistics (control function under HC1 and CR1, Durbin, Wu–Hausman) and the
+//! over-identification statistics (Sargan, Basmann), exact rationals, all as 25-digit
+//! decimals.
 //!
 //! The data are not stored: [`generate`] rebuilds them from the same integer formulas as
 //! the script (each value an integer divided once by 100.0 or 1000.0, a correctly rounded
@@ -15,7 +18,7 @@
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
 
-use super::{ols, tsls, Absorbed, CovSpec, LinearFit};
+use super::{endogeneity, ols, overidentification, tsls, Absorbed, CovSpec, LinearFit};
 
 /// Relative tolerance against the exact reference.
 const EXACT_TOL: f64 = 1e-14;
@@ -121,6 +124,15 @@ impl Worst {
         self.0.push((group.to_string(), worst));
     }
 
+    /// One statistic against the decimal string `expected`.
+    fn scalar(&mut self, group: &str, got: f64, expected: &Value) {
+        self.compare(
+            group,
+            &DVector::from_element(1, got),
+            &Value::Array(vec![expected.clone()]),
+        );
+    }
+
     /// Coefficients and standard errors of one fit.
     fn fit(&mut self, group: &str, fit: &LinearFit, expected: &Value, kind: &str) {
         if kind == "hc1" {
@@ -136,7 +148,7 @@ impl Worst {
     fn finish(self) {
         println!("exact_sandwich: largest relative difference per group (tolerance {EXACT_TOL:e})");
         for (group, rel) in &self.0 {
-            println!("  {group:20} {rel:.2e}");
+            println!("  {group:28} {rel:.2e}");
         }
         let bad: Vec<_> = self.0.iter().filter(|(_, r)| *r > EXACT_TOL).collect();
         assert!(bad.is_empty(), "above {EXACT_TOL:e}: {bad:?}");
@@ -144,7 +156,9 @@ impl Worst {
 }
 
 /// OLS and 2SLS coefficients, HC1 and CR1 standard errors, against exact rationals
-/// (square roots at 50 digits) to 1e-14 relative.
+/// (square roots at 50 digits) to 1e-14 relative; and the endogeneity (control function
+/// under HC1 and CR1, Durbin, Wu–Hausman) and over-identification (Sargan, Basmann)
+/// statistics of the 2SLS design, against exact rationals to 1e-14 relative.
 #[test]
 fn exact_sandwich_ols_and_tsls() {
     let fx = crate::testing::fixture("exact_sandwich.json");
@@ -200,6 +214,37 @@ fn exact_sandwich_ols_and_tsls() {
             assert_eq!(fit.clusters, Some(clusters), "2sls clusters");
         }
         worst.fit("2sls", &fit, &fx["tsls"], kind);
+        let tests = endogeneity(
+            &y,
+            &exog,
+            &endog,
+            &instruments,
+            true,
+            &spec,
+            &Absorbed::NONE,
+        )
+        .expect("endogeneity");
+        let expected = &fx["tsls"]["endogeneity"];
+        worst.scalar(
+            &format!("control function {kind}"),
+            tests.control_function.statistic,
+            &expected["control_function"][kind],
+        );
+        // Durbin and Wu–Hausman do not depend on the covariance: compared once.
+        if kind == "hc1" {
+            worst.scalar("durbin", tests.durbin.statistic, &expected["durbin"]);
+            worst.scalar(
+                "wu-hausman",
+                tests.wu_hausman.statistic,
+                &expected["wu_hausman"],
+            );
+        }
     }
+    let over = overidentification(&y, &exog, &endog, &instruments, &Absorbed::NONE)
+        .expect("overidentification")
+        .expect("two instruments for one endogenous column: over-identified");
+    let expected = &fx["tsls"]["overidentification"];
+    worst.scalar("sargan", over.sargan.statistic, &expected["sargan"]);
+    worst.scalar("basmann", over.basmann.statistic, &expected["basmann"]);
     worst.finish();
 }

@@ -1,5 +1,6 @@
 #!/usr/bin/env python3
-"""Exact reference for OLS and 2SLS coefficients with HC1 and CR1 standard errors.
+"""Exact reference for OLS and 2SLS coefficients with HC1 and CR1 standard errors, and for
+the endogeneity and over-identification statistics of the 2SLS fit.
 
 Regenerate from the crate root with
 
@@ -27,6 +28,20 @@ Definitions (k = 5 coefficients, n rows, G clusters):
     (structural residuals), and Xh in place of X in the sandwich below.
   * HC1: V = n/(n-k) (X'X)^-1 (sum_i u_i^2 x_i x_i') (X'X)^-1.
   * CR1: V = G/(G-1) (n-1)/(n-k) (X'X)^-1 (sum_g s_g s_g') (X'X)^-1, s_g = sum_{i in g} x_i u_i.
+
+Statistics of the 2SLS fit (p = 1 endogenous column d, Z as above with L = 6 columns; none
+needs a square root, so every one is an exact rational before it is printed):
+  * First-stage residuals Vh = M_Z d = d - Z (Z'Z)^-1 Z'd, exact.
+  * Control function: OLS of y on R = [X | Vh] (k + p = 6 columns, this order) and the
+    Wald statistic of the Vh coefficient divided by p, b_v^2 / V_vv, with V the HC1 or the
+    CR1 sandwich of that regression as defined above, its own k + p in the factors.
+  * delta = e_o'e_o - e_r'e_r, the drop in the residual sum of squares from the OLS of y on X
+    (residuals e_o) to the OLS of y on R (residuals e_r). The script also checks exactly that
+    delta = e_o'P_Z e_o + e_o'P_Vh e_o - e'P_Z e with e the 2SLS residuals (the quadratic
+    forms compared by Durbin and by Wu).
+  * Durbin = delta / (e_o'e_o / n).
+  * Wu-Hausman = (delta / p) / ((e_o'e_o - delta) / (n - k - p)).
+  * Sargan = n e'P_Z e / e'e and Basmann = (n - L) e'P_Z e / e'M_Z e, e the 2SLS residuals.
 """
 import json
 import os
@@ -44,6 +59,7 @@ mp.mp.dps = 50
 N = 20000
 DIGITS = 25
 NAMES = ["d", "const", "w1", "w2", "w3"]
+INSTRUMENTS = ["z", "z2", "const", "w1", "w2", "w3"]
 
 FORMULAS = {
     "i": "0, 1, ..., n-1 (integer arithmetic throughout; every % has a non-negative left operand)",
@@ -218,12 +234,13 @@ def fit_ols(data):
     u, s_u = residuals(data, x, b)
     assert all(v == 0 for v in x.T.dot(u)), "OLS normal equations must hold exactly"
     bread = [[f * data.scale ** 2 for f in r] for r in inv_s]
-    return b, {kind: sandwich(data, x, data.scale, u, s_u, bread, kind) for kind in ("hc1", "cluster")}
+    var = {kind: sandwich(data, x, data.scale, u, s_u, bread, kind) for kind in ("hc1", "cluster")}
+    return b, var, (u, s_u)
 
 
 def fit_tsls(data):
     x = data.matrix(NAMES)
-    z = data.matrix(["z", "z2", "const", "w1", "w2", "w3"])
+    z = data.matrix(INSTRUMENTS)
     ztz = to_fractions(z.T.dot(z))
     ztx = to_fractions(z.T.dot(x))
     zty = [Fraction(int(v)) for v in z.T.dot(data.col["y"])]
@@ -238,7 +255,66 @@ def fit_tsls(data):
     assert all(v == 0 for v in xh.T.dot(u)), "2SLS normal equations must hold exactly"
     bread = [[f * data.scale ** 2 for f in r] for r in inv_s]
     s_xh = data.scale * d_pi
-    return b, {kind: sandwich(data, xh, s_xh, u, s_u, bread, kind) for kind in ("hc1", "cluster")}
+    var = {kind: sandwich(data, xh, s_xh, u, s_u, bread, kind) for kind in ("hc1", "cluster")}
+    return b, var, (u, s_u)
+
+
+def sum_of_squares(u, s_u):
+    """u'u exactly for the vector u / s_u (u an integer array)."""
+    return Fraction(int(u.dot(u)), s_u ** 2)
+
+
+def projected_square(m, u, s_u):
+    """u'P_M u exactly for the vector u / s_u; m an integer matrix at any scale (P_M is
+    scale-free)."""
+    mtu = [Fraction(int(v)) for v in m.T.dot(u)]
+    coef = matvec(inverse(to_fractions(m.T.dot(m))), mtu)
+    return sum((a * b for a, b in zip(mtu, coef)), Fraction(0)) / s_u ** 2
+
+
+def exogeneity(data, ols_resid, tsls_resid):
+    """Control-function statistic (HC1 and CR1), Durbin, Wu-Hausman, Sargan and Basmann,
+    exact; see the module documentation. ols_resid and tsls_resid are (integer residuals,
+    scale) from fit_ols and fit_tsls."""
+    x = data.matrix(NAMES)
+    z = data.matrix(INSTRUMENTS)
+    n, k, l, p = data.n, x.shape[1], z.shape[1], 1
+    # Vh = M_Z d: pi_d is scale-free, so Vh = (d_int * den - Z_int nums) / (scale * den).
+    pi_d = matvec(inverse(to_fractions(z.T.dot(z))),
+                  [Fraction(int(v)) for v in z.T.dot(data.col["d"])])
+    nums, den = over_common_denominator(pi_d)
+    vhat = data.col["d"] * den - z.dot(np.array(nums, dtype=object))
+    assert all(v == 0 for v in z.T.dot(vhat)), "Vh must be orthogonal to Z exactly"
+    assert any(v != 0 for v in vhat)
+    # R = [X | Vh] = r / (scale * den).
+    r = np.column_stack([x * den, vhat])
+    s_r = data.scale * den
+    inv_r = inverse(to_fractions(r.T.dot(r)))
+    # b = (r'r)^-1 r'Y * s_r / scale; and R b = r (b / den) / scale, as `residuals` expects.
+    b = [f * den for f in matvec(inv_r, [Fraction(int(v)) for v in r.T.dot(data.col["y"])])]
+    u, s_u = residuals(data, r, [f / den for f in b])
+    assert all(v == 0 for v in r.T.dot(u)), "control-function normal equations must hold exactly"
+    bread = [[f * s_r ** 2 for f in row_] for row_ in inv_r]
+    control = {}
+    for kind in ("hc1", "cluster"):
+        var = sandwich(data, r, s_r, u, s_u, bread, kind)
+        control[kind] = b[k] ** 2 / var[k] / p  # Wald of the one Vh coefficient, over p
+    rss_o = sum_of_squares(*ols_resid)
+    delta = rss_o - sum_of_squares(u, s_u)
+    # The same delta as the difference of the quadratic forms, exactly.
+    e, s_e = tsls_resid
+    forms = (projected_square(z, *ols_resid) + projected_square(vhat[:, None], *ols_resid)
+             - projected_square(z, e, s_e))
+    assert forms == delta, "delta must equal e_o'P_[Z,d] e_o - e'P_Z e exactly"
+    explained = projected_square(z, e, s_e)
+    total = sum_of_squares(e, s_e)
+    return {
+        "control_function": control,
+        "durbin": delta / (rss_o / n),
+        "wu_hausman": (delta / p) / ((rss_o - delta) / (n - k - p)),
+        "sargan": n * explained / total,
+        "basmann": (n - l) * explained / (total - explained),
+    }
 
 
 def condition(data):
@@ -266,14 +342,20 @@ def main():
     sizes = np.diff(np.append(data.starts, data.n))
     cond = condition(data)
     log("cluster sizes %d..%d; condition number (unit columns) %.3g" % (sizes.min(), sizes.max(), cond))
-    b_ols, v_ols = fit_ols(data)
+    b_ols, v_ols, r_ols = fit_ols(data)
     log("OLS done (%.1fs)" % (time.time() - t0))
-    b_iv, v_iv = fit_tsls(data)
+    b_iv, v_iv, r_iv = fit_tsls(data)
     log("2SLS done (%.1fs)" % (time.time() - t0))
+    stats = exogeneity(data, r_ols, r_iv)
+    log("endogeneity and over-identification done (%.1fs)" % (time.time() - t0))
     doc = {
-        "description": "OLS and 2SLS coefficients with HC1 and CR1 standard errors on data "
-                       "generated from integer formulas (nothing stored); see "
-                       "tests/reference/exact_sandwich.py for the definitions",
+        "description": "OLS and 2SLS coefficients with HC1 and CR1 standard errors, and for "
+                       "the 2SLS fit the endogeneity statistics (control function under HC1 "
+                       "and under CR1, Durbin, Wu-Hausman) and the over-identification "
+                       "statistics (Sargan, Basmann), on data generated from integer formulas "
+                       "(nothing stored); see tests/reference/exact_sandwich.py for the "
+                       "definitions. The test statistics need no square root and are exact "
+                       "rationals before printing",
         "method": "exact rational arithmetic (fractions), square roots in mpmath at 50 digits",
         "versions": {"python": platform.python_version(), "mpmath": mp.__version__,
                      "numpy": np.__version__},
@@ -292,7 +374,14 @@ def main():
         "coefficient_order": NAMES,
         "ols": {"regressors": NAMES, **expected(b_ols, v_ols)},
         "tsls": {"endog": ["d"], "exog": ["const", "w1", "w2", "w3"],
-                 "instruments": ["z", "z2"], **expected(b_iv, v_iv)},
+                 "instruments": ["z", "z2"], **expected(b_iv, v_iv),
+                 "endogeneity": {
+                     "control_function": {kind: text(v) for kind, v in
+                                          stats["control_function"].items()},
+                     "durbin": text(stats["durbin"]),
+                     "wu_hausman": text(stats["wu_hausman"])},
+                 "overidentification": {"sargan": text(stats["sargan"]),
+                                        "basmann": text(stats["basmann"])}},
     }
     here = os.path.dirname(os.path.abspath(__file__))
     path = os.path.join(here, "fixtures", "exact_sandwich.json")
