@@ -56,10 +56,12 @@
 //!   point costs O(k³) whatever n; two-way V is recomputed from the residuals at each point.
 //! * Evaluation points where V(β) is singular (u(β) = 0: an exact fit) count as rejected.
 
+use std::sync::Arc;
+
 use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Covariance, Leverage};
-use super::linear::{require_observations, IvColumns, IvProblem};
+use super::linear::{require_observations, IvColumns, IvProblem, OnInstruments};
 use super::qr::PivotedQr;
 use super::quadratic_meat::QuadraticMeat;
 use super::refine::residual;
@@ -328,11 +330,13 @@ struct Problem<'a> {
     n: usize,
     l: usize,
     /// Coefficients of y and x on D = [Z | W].
-    coef_y: DVector<f64>,
+    coef_y: &'a DVector<f64>,
     coef_x: DVector<f64>,
-    /// Residuals e_y, e_x.
-    e_y: DVector<f64>,
-    e_x: DVector<f64>,
+    /// Residuals e_y, e_x (y's kept by the IV problem, x's with the factorisation of Z).
+    e_y: &'a DVector<f64>,
+    x_fit: Arc<OnInstruments>,
+    /// The covariance of y's coefficients on D, for the test at β₀ = 0.
+    at_zero: Covariance,
     /// R π_y and R π_x with R = M_W Z (the Z-parts of the fitted values).
     r_y: DVector<f64>,
     r_x: DVector<f64>,
@@ -350,19 +354,21 @@ impl<'a> Problem<'a> {
         spec: &'a CovSpec,
         absorbed: &'a Absorbed,
     ) -> Result<Self, EstimateError> {
-        let (y, exog, endog, instruments) = (iv.y, iv.exog, iv.endog, iv.instruments);
+        let (y, exog, instruments) = (iv.y, iv.exog, iv.instruments);
         let (z, zqr) = (&iv.setup.z, &iv.setup.zqr);
         let (n, l) = (y.len(), instruments.ncols());
         require_observations(n, z.ncols() + absorbed.df)?;
-        let x = endog.column(0).into_owned();
-        let coef_y = zqr.solve(z, y);
-        let coef_x = zqr.solve(z, &x);
-        let e_y = residual(z, y, &coef_y);
-        let e_x = residual(z, &x, &coef_x);
+        // The fits of y and x on Z and y's covariance are those the reduced form and the
+        // first stage use (the same solves, residuals and sandwich), kept where they are.
+        let on_y = iv.outcome_on_instruments();
+        let (coef_y, e_y) = (&on_y.coef, &on_y.resid);
+        let x_fit = iv.endog_on_instruments()?;
+        let coef_x = x_fit.coef.clone();
         let r = partial_out(instruments, exog, exog_qr);
         let r_y = &r * coef_y.rows(0, l);
         let r_x = &r * coef_x.rows(0, l);
-        let clusters = covariance(zqr, z, &e_y, spec, Leverage::Allowed, absorbed)?.clusters;
+        let at_zero = iv.outcome_on_instruments_covariance(spec, absorbed)?;
+        let clusters = at_zero.clusters;
         Ok(Problem {
             z,
             zqr,
@@ -373,12 +379,18 @@ impl<'a> Problem<'a> {
             coef_y,
             coef_x,
             e_y,
-            e_x,
+            x_fit,
             r_y,
             r_x,
+            at_zero,
             clusters,
             basis: std::sync::OnceLock::new(),
         })
+    }
+
+    /// The residuals e_x of x on D.
+    fn e_x(&self) -> &DVector<f64> {
+        &self.x_fit.resid
     }
 
     /// F(L, n − L − |W| − a), or F(L, G − 1) when clustered.
@@ -401,13 +413,18 @@ impl<'a> Problem<'a> {
         beta0: f64,
     ) -> Result<TestStatistic, EstimateError> {
         let reference = self.reference();
-        let x = endog.column(0).into_owned();
-        let shifted = y - &x * beta0;
-        let coef = self.zqr.solve(self.z, &shifted);
-        let resid = residual(self.z, &shifted, &coef);
         let indices: Vec<usize> = (0..self.l).collect();
-        let v = self.covariance(&resid)?;
-        let statistic = wald(&coef, &v.cov, &indices)? / self.l as f64;
+        // At β₀ = 0, y − x β₀ is y: its regression is the one already solved, with the
+        // covariance already computed.
+        let statistic = if beta0 == 0.0 {
+            wald(self.coef_y, &self.at_zero.cov, &indices)?
+        } else {
+            let x = endog.column(0).into_owned();
+            let shifted = y - &x * beta0;
+            let coef = self.zqr.solve(self.z, &shifted);
+            let resid = residual(self.z, &shifted, &coef);
+            wald(&coef, &self.covariance(&resid)?.cov, &indices)?
+        } / self.l as f64;
         Ok(TestStatistic {
             statistic,
             reference,

@@ -24,7 +24,6 @@ use super::linear::{
     IvSetup, LeastSquares,
 };
 use super::qr::PivotedQr;
-use super::refine::residual;
 use super::wald::wald;
 use super::{Absorbed, EstimateError, LinearFit};
 use crate::distribution::{Reference, TestStatistic};
@@ -106,13 +105,10 @@ fn inference_df(fit: &LinearFit) -> usize {
 
 /// Least squares of `y` on `x` reusing an existing factorisation of `x`.
 fn solve_with(qr: &Arc<PivotedQr>, x: &Arc<DMatrix<f64>>, y: &DVector<f64>) -> LeastSquares {
-    let coef = qr.solve(x, y);
-    let resid = residual(x, y, &coef);
     LeastSquares {
         qr: Arc::clone(qr),
         design: Arc::clone(x),
-        coef,
-        resid,
+        coef: qr.solve(x, y),
     }
 }
 
@@ -121,7 +117,7 @@ fn restricted_rss(y: &DVector<f64>, x: &DMatrix<f64>) -> Result<f64, EstimateErr
     if x.ncols() == 0 {
         return Ok(y.norm_squared());
     }
-    Ok(least_squares(y, x)?.resid.norm_squared())
+    Ok(least_squares(y, x)?.resid(y).norm_squared())
 }
 
 /// First-stage regressions, one per endogenous column, in the caller's order.
@@ -308,10 +304,7 @@ impl IvProblem<'_> {
         cov: &CovSpec,
         absorbed: &Absorbed,
     ) -> Result<LinearFit, EstimateError> {
-        let (y, z) = (self.y, &self.setup.z);
-        require_observations(z.nrows(), z.ncols() + absorbed.df)?;
-        let ls = solve_with(&self.setup.zqr, z, y);
-        assemble(y, z, &ls, has_intercept, cov, Leverage::Allowed, absorbed)
+        self.reduced_form_fit(has_intercept, cov, absorbed)
     }
 }
 

@@ -186,7 +186,6 @@ impl IvProblem<'_> {
             qr: Arc::clone(&qr_hat),
             design,
             coef,
-            resid: DVector::zeros(0),
         };
         let leverage = Leverage::Refused(ESTIMATOR);
         let mut fit = assemble(y, &setup.x, &ls, has_intercept, cov, leverage, absorbed)?;

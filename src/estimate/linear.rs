@@ -8,7 +8,7 @@ use std::sync::Arc;
 
 use nalgebra::{DMatrix, DVector};
 
-use super::covariance::{covariance, CovSpec, Leverage};
+use super::covariance::{covariance, CovSpec, Covariance, Leverage};
 use super::qr::{InputKey, PivotedQr};
 use super::refine::residual;
 use super::shared::{self, collinear_kept_shared, design_qr, shared_design_qr, shared_qr};
@@ -22,7 +22,15 @@ pub(crate) struct LeastSquares {
     /// The factorised design (X for OLS, X̂ for 2SLS).
     pub(crate) design: Arc<DMatrix<f64>>,
     pub(crate) coef: DVector<f64>,
-    pub(crate) resid: DVector<f64>,
+}
+
+impl LeastSquares {
+    /// The compensated residuals y − X b on the factorised design. Not kept with the fit:
+    /// most callers pass the coefficients to [`assemble`], which forms the residuals of
+    /// the regressors it is given (X̂'s residuals are not a 2SLS fit's).
+    pub(crate) fn resid(&self, y: &DVector<f64>) -> DVector<f64> {
+        residual(&self.design, y, &self.coef)
+    }
 }
 
 /// Checks that every input is finite and has `y.len()` rows.
@@ -89,13 +97,7 @@ fn fitted(
     qr: Arc<PivotedQr>,
 ) -> LeastSquares {
     let coef = qr.solve(x, y);
-    let resid = residual(x, y, &coef);
-    LeastSquares {
-        qr,
-        design,
-        coef,
-        resid,
-    }
+    LeastSquares { qr, design, coef }
 }
 
 /// Total sum of squares: about the mean when `centered`, else about zero.
@@ -115,17 +117,38 @@ pub(crate) fn assemble(
     leverage: Leverage,
     absorbed: &Absorbed,
 ) -> Result<LinearFit, EstimateError> {
-    let (n, k) = x.shape();
-    require_observations(n, k + absorbed.df)?;
-    let fitted = x * &ls.coef;
+    require_observations(x.nrows(), x.ncols() + absorbed.df)?;
     let resid = residual(x, y, &ls.coef);
     let cov = covariance(&ls.qr, &ls.design, &resid, spec, leverage, absorbed)?;
+    Ok(assemble_parts(
+        y,
+        x,
+        &ls.coef,
+        resid,
+        cov,
+        has_intercept,
+        absorbed,
+    ))
+}
+
+/// [`assemble`] from residuals and a covariance already computed (the same bits).
+fn assemble_parts(
+    y: &DVector<f64>,
+    x: &DMatrix<f64>,
+    coef: &DVector<f64>,
+    resid: DVector<f64>,
+    cov: Covariance,
+    has_intercept: bool,
+    absorbed: &Absorbed,
+) -> LinearFit {
+    let (n, k) = x.shape();
+    let fitted = x * coef;
     let rss = resid.norm_squared();
     let tss = total_sum_of_squares(y, has_intercept);
     let df_resid = n - k - absorbed.df;
     let df = cov.clusters.map_or(df_resid, |g| g - 1);
-    Ok(LinearFit {
-        coef: ls.coef.clone(),
+    LinearFit {
+        coef: coef.clone(),
         cov: cov.cov,
         resid,
         fitted,
@@ -138,7 +161,7 @@ pub(crate) fn assemble(
         residual_sd: (rss / df_resid as f64).sqrt(),
         clusters: cov.clusters,
         coef_reference: Reference::StudentT { df: df as f64 },
-    })
+    }
 }
 
 /// Ordinary least squares of `y` on the columns of `x`.
@@ -334,6 +357,22 @@ impl<'a> IvColumns<'a> {
     }
 }
 
+/// A column's least-squares fit on Z = [instruments | exog]: `zqr.solve` and the
+/// compensated residual, the same bits as [`assemble`] forms for that regression.
+#[derive(Debug, Clone)]
+pub(crate) struct OnInstruments {
+    pub(crate) coef: DVector<f64>,
+    pub(crate) resid: DVector<f64>,
+}
+
+impl OnInstruments {
+    fn new(setup: &IvSetup, v: &DVector<f64>) -> Self {
+        let coef = setup.zqr.solve(&setup.z, v);
+        let resid = residual(&setup.z, v, &coef);
+        OnInstruments { coef, resid }
+    }
+}
+
 /// One IV problem, prepared once and shared by the fit and every diagnostic of a
 /// specification: the inputs, the validated setup (X = [endog | exog], Z = [instruments |
 /// exog] and the QR of Z) and, computed on first use, the 2SLS residuals that the
@@ -352,6 +391,11 @@ pub struct IvProblem<'a> {
     pub(crate) instruments: &'a DMatrix<f64>,
     pub(crate) setup: IvSetup,
     tsls_resid: std::sync::OnceLock<Result<DVector<f64>, EstimateError>>,
+    /// The outcome's fit on Z: coefficients and compensated residuals (the reduced form,
+    /// which the Anderson–Rubin and robust CLR tests start from too).
+    outcome_on_z: std::sync::OnceLock<OnInstruments>,
+    /// Covariances of the outcome's coefficients on Z, by covariance and absorbed key.
+    outcome_on_z_cov: std::sync::Mutex<Vec<([u8; 32], Covariance)>>,
     exog_qr: std::sync::OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
     /// The key (an [`InputKey`](super::qr::InputKey) hash) of the outcome-free inputs besides Z (see [`IvProblem::outcome_free_key`]).
     outcome_free: std::sync::OnceLock<[u8; 32]>,
@@ -401,6 +445,8 @@ impl<'a> IvProblem<'a> {
             instruments,
             setup,
             tsls_resid: std::sync::OnceLock::new(),
+            outcome_on_z: std::sync::OnceLock::new(),
+            outcome_on_z_cov: std::sync::Mutex::new(Vec::new()),
             exog_qr: std::sync::OnceLock::new(),
             outcome_free: std::sync::OnceLock::new(),
         })
@@ -454,6 +500,89 @@ impl<'a> IvProblem<'a> {
                 Ok(residual(&self.setup.x, self.y, &coef))
             })
             .clone()
+    }
+
+    /// The outcome's fit on Z, computed once per problem.
+    pub(crate) fn outcome_on_instruments(&self) -> &OnInstruments {
+        self.outcome_on_z
+            .get_or_init(|| OnInstruments::new(&self.setup, self.y))
+    }
+
+    /// The first endogenous column's fit on Z: outcome-free, so computed once per sample and
+    /// kept with the instruments' factorisation.
+    pub(crate) fn endog_on_instruments(&self) -> Result<Arc<OnInstruments>, EstimateError> {
+        self.setup.zqr.derived(
+            || {
+                self.outcome_free_key("first endogenous column on instruments")
+                    .finish()
+            },
+            || {
+                let x = self.endog.column(0).into_owned();
+                Ok(Arc::new(OnInstruments::new(&self.setup, &x)))
+            },
+        )
+    }
+
+    /// The covariance of the outcome's coefficients on Z (leverage allowed), computed once
+    /// per covariance and absorbed degrees of freedom: the reduced form, the Anderson–Rubin
+    /// problem and its test at 0 ask for the same one. Errors are not kept.
+    pub(crate) fn outcome_on_instruments_covariance(
+        &self,
+        spec: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<Covariance, EstimateError> {
+        let key = absorbed
+            .keyed(spec.keyed(InputKey::new("outcome on instruments")))
+            .finish();
+        let kept = |cache: &Vec<([u8; 32], Covariance)>| {
+            cache
+                .iter()
+                .find(|(k, _)| *k == key)
+                .map(|(_, c)| c.clone())
+        };
+        let lock = || {
+            self.outcome_on_z_cov
+                .lock()
+                .unwrap_or_else(std::sync::PoisonError::into_inner)
+        };
+        if let Some(cov) = kept(&lock()) {
+            return Ok(cov);
+        }
+        let on_z = self.outcome_on_instruments();
+        let cov = covariance(
+            &self.setup.zqr,
+            &self.setup.z,
+            &on_z.resid,
+            spec,
+            Leverage::Allowed,
+            absorbed,
+        )?;
+        lock().push((key, cov.clone()));
+        Ok(cov)
+    }
+
+    /// The reduced form (y on Z with the caller's covariance) from the kept fit and
+    /// covariance: the same bits as [`assemble`] on a fresh solve.
+    pub(crate) fn reduced_form_fit(
+        &self,
+        has_intercept: bool,
+        spec: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<LinearFit, EstimateError> {
+        let z = &self.setup.z;
+        require_observations(z.nrows(), z.ncols() + absorbed.df)?;
+        let cov = self.outcome_on_instruments_covariance(spec, absorbed)?;
+        let on_z = self.outcome_on_instruments();
+        let resid = on_z.resid.clone();
+        Ok(assemble_parts(
+            self.y,
+            z,
+            &on_z.coef,
+            resid,
+            cov,
+            has_intercept,
+            absorbed,
+        ))
     }
 
     /// X̂ = [P_Z endog | exog] (as [`projected_regressors`]): outcome-free, so kept with the

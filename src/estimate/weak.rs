@@ -170,7 +170,6 @@ impl IvProblem<'_> {
             qr: setup.zqr.clone(),
             design: Arc::clone(&setup.z),
             coef: setup.zqr.solve(&setup.z, endog),
-            resid: DVector::zeros(0),
         };
         let fit = assemble(
             endog,

@@ -31,8 +31,8 @@ impl Problem<'_> {
         );
         let (b_yy, b_yx, b_xx) = (
             self.e_y.norm_squared(),
-            self.e_y.dot(&self.e_x),
-            self.e_x.norm_squared(),
+            self.e_y.dot(self.e_x()),
+            self.e_x().norm_squared(),
         );
         let a2 = a_xx - kappa * b_xx;
         let scale = a_xx + kappa * b_xx;
@@ -44,12 +44,12 @@ impl Problem<'_> {
         let var = |r: &DVector<f64>| -> Result<f64, EstimateError> {
             Ok(self.covariance(r)?.cov[(0, 0)])
         };
-        let (ny, nx) = (self.e_y.norm(), self.e_x.norm());
+        let (ny, nx) = (self.e_y.norm(), self.e_x().norm());
         let s = if nx > 0.0 && ny > 0.0 { ny / nx } else { 1.0 };
-        let v0 = var(&self.e_y)?;
-        let v2 = var(&self.e_x)?;
-        let plus = var(&(&self.e_y + &self.e_x * s))?;
-        let minus = var(&(&self.e_y - &self.e_x * s))?;
+        let v0 = var(self.e_y)?;
+        let v2 = var(self.e_x())?;
+        let plus = var(&(self.e_y + self.e_x() * s))?;
+        let minus = var(&(self.e_y - self.e_x() * s))?;
         let v1 = (plus - minus) / (4.0 * s);
         let (py, px) = (self.coef_y[0], self.coef_x[0]);
         let scale = px * px + c * v2;
@@ -74,7 +74,7 @@ impl Problem<'_> {
         let rxx = self.r_x.norm_squared();
         let centre = self.r_x.dot(&self.r_y) / rxx;
         let (centre, scale) = if rxx > 0.0 && centre.is_finite() {
-            let u = &self.e_y - &self.e_x * centre;
+            let u = self.e_y - self.e_x() * centre;
             let df = (self.n - self.z.ncols() - self.absorbed.df).max(1) as f64;
             (centre, u.norm() / (df.sqrt() * rxx.sqrt()))
         } else {
@@ -83,15 +83,15 @@ impl Problem<'_> {
         let scale = if scale > 0.0 && scale.is_finite() {
             scale
         } else {
-            let (ny, nx) = (self.e_y.norm(), self.e_x.norm());
+            let (ny, nx) = (self.e_y.norm(), self.e_x().norm());
             if nx > 0.0 && ny > 0.0 {
                 ny / nx
             } else {
                 1.0
             }
         };
-        let e_y = &self.e_y - &self.e_x * centre;
-        let e_x = &self.e_x * scale;
+        let e_y = self.e_y - self.e_x() * centre;
+        let e_x = self.e_x() * scale;
         let meat = quadratic_meat(
             self.zqr,
             self.z,
@@ -106,7 +106,7 @@ impl Problem<'_> {
             scale,
             e_y,
             e_x,
-            coef_y: &self.coef_y - &self.coef_x * centre,
+            coef_y: self.coef_y - &self.coef_x * centre,
             coef_x: &self.coef_x * scale,
             meat,
         })

@@ -66,7 +66,6 @@ use crate::estimate::anderson_rubin::ConfidenceSet;
 use crate::estimate::covariance::{CovSpec, Leverage};
 use crate::estimate::linear::{require_observations, IvProblem};
 use crate::estimate::quadratic_meat::quadratic_meat;
-use crate::estimate::refine::residual;
 use crate::estimate::{Absorbed, EstimateError};
 use crate::inference::quantile;
 
@@ -149,18 +148,19 @@ impl IvProblem<'_> {
         let (z, zqr) = (&self.setup.z, &self.setup.zqr);
         let (n, l) = (self.y.len(), self.instruments.ncols());
         require_observations(n, z.ncols() + absorbed.df)?;
-        let x = self.endog.column(0).into_owned();
-        let (coef_y, coef_x) = (zqr.solve(z, self.y), zqr.solve(z, &x));
-        let (e_y, e_x) = (residual(z, self.y, &coef_y), residual(z, &x, &coef_x));
+        // The fits of y and x on Z that the reduced form and the first stage use.
+        let (on_y, on_x) = (self.outcome_on_instruments(), self.endog_on_instruments()?);
+        let (coef_y, e_y) = (&on_y.coef, &on_y.resid);
+        let (coef_x, e_x) = (&on_x.coef, &on_x.resid);
         let full = match cov {
             CovSpec::Classical => {
                 let tt = zqr.refined_inverse(z);
                 let d = (n - z.ncols() - absorbed.df) as f64;
                 let s = |a: &DVector<f64>, b: &DVector<f64>| &tt * (a.dot(b) / d);
-                let cross = s(&e_y, &e_x);
-                [[s(&e_y, &e_y), cross.clone()], [cross, s(&e_x, &e_x)]]
+                let cross = s(e_y, e_x);
+                [[s(e_y, e_y), cross.clone()], [cross, s(e_x, e_x)]]
             }
-            _ => quadratic_meat(zqr, z, &e_y, &e_x, cov, Leverage::Allowed, absorbed)?
+            _ => quadratic_meat(zqr, z, e_y, e_x, cov, Leverage::Allowed, absorbed)?
                 .ok_or(EstimateError::CovarianceUnavailable {
                     estimator: "the robust LM and CLR tests",
                     kind: cov.name(),

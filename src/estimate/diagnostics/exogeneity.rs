@@ -132,7 +132,7 @@ impl IvProblem<'_> {
         )?;
         let tested: Vec<usize> = (k..k + p).collect();
         let control_function = joint_f((&cf, &augmented), &cf.cov, &tested, inference_df(&cf))?;
-        let e_o = least_squares(y, &setup.x)?.resid;
+        let e_o = least_squares(y, &setup.x)?.resid(y);
         let e_iv = self.tsls_residuals()?;
         // P_[Z | endog] = P_Z + P_V̂ with V̂ = M_Z endog (the first-stage residuals, the last p
         // columns of [X | V̂], orthogonal to Z), so [Z | endog] is never formed or factorised.
@@ -340,13 +340,22 @@ impl IvProblem<'_> {
                 .solve_lower_triangular(&m)
                 .ok_or(EstimateError::SingularMomentCovariance { moments: l })
         };
-        let xt = whiten(rows_times(&q, &setup.x)?)?;
+        // Q₁ᵀX is outcome-free: computed once per sample and kept with the instruments'
+        // factorisation (the same bits for every outcome and covariance).
+        let qx: Arc<DMatrix<f64>> = setup.zqr.derived(
+            || {
+                self.outcome_free_key("instrument basis times regressors")
+                    .finish()
+            },
+            || Ok(Arc::new(rows_times(&q, &setup.x)?)),
+        )?;
+        let xt = whiten(DMatrix::clone(&qx))?;
         let yt = whiten(rows_times(
             &q,
             &DMatrix::from_column_slice(n, 1, y.as_slice()),
         )?)?;
         let yt = yt.column(0).into_owned();
-        let statistic = least_squares(&yt, &xt)?.resid.norm_squared();
+        let statistic = least_squares(&yt, &xt)?.resid(&yt).norm_squared();
         Ok(Some(TestStatistic {
             statistic,
             reference: Reference::ChiSquare { df: over as f64 },
