@@ -126,8 +126,11 @@ impl std::fmt::Debug for Derived {
 pub(crate) static DERIVED_HITS: std::sync::atomic::AtomicUsize =
     std::sync::atomic::AtomicUsize::new(0);
 
-/// How many derived results a shared factorisation keeps.
-const KEPT_DERIVED: usize = 8;
+/// How many derived results a shared factorisation keeps. A 2SLS sample with every
+/// diagnostic under two covariances asks the instruments' factorisation for nine (X̂,
+/// [X | V̂], Q₁ᵀX, x's fit on Z, Shea's R², and first stages and weak-instrument results per
+/// covariance); a limit below that evicts X̂ before its last use and recomputes it.
+const KEPT_DERIVED: usize = 16;
 
 /// A key of a derived result's inputs: the BLAKE3 hash (O'Connor, Aumasson, Neves and
 /// Wilcox-O'Hearn 2020; 256 bits, collision resistant like SHA-256 and about four times as
