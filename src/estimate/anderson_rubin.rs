@@ -364,9 +364,17 @@ impl<'a> Problem<'a> {
         let (coef_y, e_y) = (&on_y.coef, &on_y.resid);
         let x_fit = iv.endog_on_instruments()?;
         let coef_x = x_fit.coef.clone();
-        let r = partial_out(instruments, exog, exog_qr);
-        let r_y = &r * coef_y.rows(0, l);
-        let r_x = &r * coef_x.rows(0, l);
+        // R = M_W Z is outcome-free: computed once per sample, kept with Z's factorisation.
+        let r: Arc<DMatrix<f64>> = zqr.derived(
+            || {
+                iv.outcome_free_key("instruments net of the controls")
+                    .finish()
+            },
+            || Ok(Arc::new(partial_out(instruments, exog, exog_qr))),
+        )?;
+
+        let r_y = &*r * coef_y.rows(0, l);
+        let r_x = &*r * coef_x.rows(0, l);
         let at_zero = iv.outcome_on_instruments_covariance(spec, absorbed)?;
         let clusters = at_zero.clusters;
         Ok(Problem {
