@@ -14,7 +14,7 @@ use super::super::hac::hac_meat;
 use super::super::linear::{
     assemble, hcat, least_squares, least_squares_shared, require_observations, IvProblem, IvSetup,
 };
-use super::super::qr::{PivotedQr, QRows};
+use super::super::qr::QRows;
 use super::super::{Absorbed, EstimateError};
 use super::{inference_df, joint_f};
 use crate::distribution::{Reference, TestStatistic};
@@ -76,13 +76,17 @@ fn first_stage_residuals(
 /// * With e_o the OLS residuals of y on X and e_iv the 2SLS residuals, let
 ///   δ = e_oᵀ P_[Z, endog] e_o − e_ivᵀ P_Z e_iv (the difference of the two quadratic forms
 ///   compared by Durbin 1954, Rev. Int. Statist. Inst. 22, and Wu 1973, Econometrica 41).
-///   P_[Z, endog] = P_Z + P_V̂ (V̂ is orthogonal to Z), so the first form is computed as
-///   e_oᵀ P_Z e_o + e_oᵀ P_V̂ e_o without forming [Z | endog].
 ///   Durbin = δ / (e_oᵀe_o / n), chi²(p). Wu–Hausman =
 ///   (δ/p) / [(e_oᵀe_o − δ)/(n − k − p − a)], F(p, n − k − p − a) (Wu 1973, T₂; Hausman
-///   1978), a the absorbed coefficients. δ equals the drop in RSS from adding V̂ to
-///   the OLS regression, so Wu–Hausman equals the control-function F with classical errors
-///   (an identity the reference fixtures confirm to 1e-14, exactly and over-identified).
+///   1978), a the absorbed coefficients.
+/// * Computed from the control-function regression alone: δ equals the drop in RSS from
+///   adding V̂ to the OLS regression (P_[Z, endog] = P_Z + P_V̂, and the two forms differ by
+///   ‖P_{M_X V̂} y‖²), which is b_Vᵀ[(WᵀW)⁻¹_VV]⁻¹b_V for W = [X | V̂] by Frisch–Waugh
+///   (the refined inverse the sandwich already holds), and e_oᵀe_o = RSS_cf + δ. So no
+///   OLS fit, 2SLS residuals or projections onto Z are needed, and no large sums are
+///   subtracted; Wu–Hausman is the control-function F with classical errors by
+///   construction. The reference fixtures check both statistics against the quadratic
+///   forms as defined (library fixtures at 1e-8; the exact rational fixture).
 ///
 /// # Errors
 /// As [`tsls`](crate::estimate::tsls); [`EstimateError::TooFewObservations`] unless n > k + p + a;
@@ -101,7 +105,7 @@ pub fn endogeneity(
 }
 
 impl IvProblem<'_> {
-    /// [`endogeneity`] on this problem, sharing its setup and 2SLS residuals.
+    /// [`endogeneity`] on this problem, sharing its setup and the control-function design.
     ///
     /// # Errors
     /// As [`endogeneity`].
@@ -132,15 +136,8 @@ impl IvProblem<'_> {
         )?;
         let tested: Vec<usize> = (k..k + p).collect();
         let control_function = joint_f((&cf, &augmented), &cf.cov, &tested, inference_df(&cf))?;
-        let e_o = least_squares(y, &setup.x)?.resid(y);
-        let e_iv = self.tsls_residuals()?;
-        // P_[Z | endog] = P_Z + P_V̂ with V̂ = M_Z endog (the first-stage residuals, the last p
-        // columns of [X | V̂], orthogonal to Z), so [Z | endog] is never formed or factorised.
-        let vhat = Arc::new(augmented.columns(k, p).into_owned());
-        let wide = setup.zqr.project(&e_o).norm_squared()
-            + PivotedQr::new_held(&vhat)?.project(&e_o).norm_squared();
-        let delta = wide - setup.zqr.project(&e_iv).norm_squared();
-        let rss_o = e_o.norm_squared();
+        let delta = rss_drop(&ls.qr.refined_inverse(&augmented), &cf.coef, k)?;
+        let rss_o = cf.rss + delta;
         let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
         Ok(Endogeneity {
             control_function,
@@ -149,11 +146,30 @@ impl IvProblem<'_> {
                 reference: Reference::ChiSquare { df: pf },
             },
             wu_hausman: TestStatistic {
-                statistic: (delta / pf) / ((rss_o - delta) / df2),
+                statistic: (delta / pf) / (cf.rss / df2),
                 reference: Reference::F { df1: pf, df2 },
             },
         })
     }
+}
+
+/// The drop in RSS when the last `p` columns of a design enter after its first `k`:
+/// δ = b_Vᵀ [(WᵀW)⁻¹_VV]⁻¹ b_V from the refined inverse `inverse` of WᵀW and the
+/// coefficients `coef` of the full regression (Frisch–Waugh: (WᵀW)⁻¹_VV is the inverse of
+/// V̂ᵀM_X V̂ and b_V = (V̂ᵀM_X V̂)⁻¹V̂ᵀM_X y, so δ = ‖P_{M_X V̂} y‖²). A sum of squares
+/// in the coefficients, with no difference of two large sums.
+///
+/// # Errors
+/// [`EstimateError::RankDeficient`] naming the block's columns when the block of the
+/// inverse has no Cholesky factor (cannot happen for a design that factorised at full rank).
+fn rss_drop(inverse: &DMatrix<f64>, coef: &DVector<f64>, k: usize) -> Result<f64, EstimateError> {
+    let p = coef.len() - k;
+    let block = inverse.view((k, k), (p, p)).into_owned();
+    let b = coef.rows(k, p).into_owned();
+    let chol = Cholesky::new(block).ok_or(EstimateError::RankDeficient {
+        dependent: (k..k + p).collect(),
+    })?;
+    Ok(b.dot(&chol.solve(&b)))
 }
 
 /// Overidentification tests; `None` when exactly identified.
