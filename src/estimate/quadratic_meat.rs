@@ -205,11 +205,15 @@ mod tests {
     use super::super::covariance::covariance;
     use super::*;
 
-    /// The quadratic form reproduces a direct evaluation of every estimator it covers, on a
-    /// generated design (invented data), to rounding: the identity is exact in real
-    /// arithmetic (expansion of a squared difference), so this checks the bookkeeping.
-    #[test]
-    fn matches_direct_covariance() {
+    /// A generated design of 60 rows and three columns (invented data), two residual
+    /// vectors, its factorisation and ten clusters of six rows.
+    fn generated() -> (
+        DMatrix<f64>,
+        DVector<f64>,
+        DVector<f64>,
+        PivotedQr,
+        Vec<usize>,
+    ) {
         let n = 60;
         let x = DMatrix::from_fn(n, 3, |i, j| match j {
             0 => 1.0,
@@ -220,6 +224,15 @@ mod tests {
         let e2 = DVector::from_fn(n, |i, _| ((i * 5 % 7) as f64 - 3.0) / 2.0 + 0.01 * i as f64);
         let qr = PivotedQr::new(&x).expect("full rank");
         let ids: Vec<usize> = (0..n).map(|i| i / 6).collect();
+        (x, e1, e2, qr, ids)
+    }
+
+    /// The quadratic form reproduces a direct evaluation of every estimator it covers, on a
+    /// generated design (invented data), to rounding: the identity is exact in real
+    /// arithmetic (expansion of a squared difference), so this checks the bookkeeping.
+    #[test]
+    fn matches_direct_covariance() {
+        let (x, e1, e2, qr, ids) = generated();
         let specs = [
             CovSpec::Hc0,
             CovSpec::Hc1,
@@ -250,16 +263,7 @@ mod tests {
     /// and s of both signs and sizes far from 1.
     #[test]
     fn recombined_matches_the_form_of_the_recombined_pair() {
-        let n = 60;
-        let x = DMatrix::from_fn(n, 3, |i, j| match j {
-            0 => 1.0,
-            1 => ((i * 7 % 13) as f64).sin(),
-            _ => (i as f64 * 0.37).cos() + 0.1 * (i % 5) as f64,
-        });
-        let e1 = DVector::from_fn(n, |i, _| ((i * 11 % 17) as f64 - 8.0) / 5.0);
-        let e2 = DVector::from_fn(n, |i, _| ((i * 5 % 7) as f64 - 3.0) / 2.0 + 0.01 * i as f64);
-        let qr = PivotedQr::new(&x).expect("full rank");
-        let ids: Vec<usize> = (0..n).map(|i| i / 6).collect();
+        let (x, e1, e2, qr, ids) = generated();
         let specs = [
             CovSpec::Hc0,
             CovSpec::Hc1,

@@ -18,7 +18,7 @@
 use nalgebra::{DMatrix, DVector};
 use serde_json::Value;
 
-use super::{endogeneity, ols, overidentification, tsls, Absorbed, CovSpec, LinearFit};
+use super::{ols, Absorbed, CovSpec, IvProblem, LinearFit};
 
 /// Relative tolerance against the exact reference.
 const EXACT_TOL: f64 = 1e-14;
@@ -185,6 +185,9 @@ fn exact_sandwich_ols_and_tsls() {
     let instruments = matrix(&[col(&data.z), col(&data.z2)]);
     let clusters = usize::try_from(fx["clusters"].as_u64().expect("clusters")).expect("fits");
 
+    // One IV problem for both covariances, as a run shares it between its diagnostics
+    // (the same bits as the free functions, which each build one).
+    let iv = IvProblem::new(&y, &exog, &endog, &instruments).expect("iv problem");
     let mut worst = Worst::default();
     for kind in ["hc1", "cluster"] {
         let spec = match kind {
@@ -199,31 +202,15 @@ fn exact_sandwich_ols_and_tsls() {
             assert_eq!(fit.clusters, Some(clusters), "ols clusters");
         }
         worst.fit("ols", &fit, &fx["ols"], kind);
-        let fit = tsls(
-            &y,
-            &exog,
-            &endog,
-            &instruments,
-            true,
-            &spec,
-            &Absorbed::NONE,
-        )
-        .expect("2sls");
+        let fit = iv.tsls(true, &spec, &Absorbed::NONE).expect("2sls");
         assert_eq!(fit.k, 5);
         if kind == "cluster" {
             assert_eq!(fit.clusters, Some(clusters), "2sls clusters");
         }
         worst.fit("2sls", &fit, &fx["tsls"], kind);
-        let tests = endogeneity(
-            &y,
-            &exog,
-            &endog,
-            &instruments,
-            true,
-            &spec,
-            &Absorbed::NONE,
-        )
-        .expect("endogeneity");
+        let tests = iv
+            .endogeneity(true, &spec, &Absorbed::NONE)
+            .expect("endogeneity");
         let expected = &fx["tsls"]["endogeneity"];
         worst.scalar(
             &format!("control function {kind}"),
@@ -240,7 +227,8 @@ fn exact_sandwich_ols_and_tsls() {
             );
         }
     }
-    let over = overidentification(&y, &exog, &endog, &instruments, &Absorbed::NONE)
+    let over = iv
+        .overidentification(&Absorbed::NONE)
         .expect("overidentification")
         .expect("two instruments for one endogenous column: over-identified");
     let expected = &fx["tsls"]["overidentification"];
