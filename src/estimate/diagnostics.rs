@@ -205,25 +205,24 @@ impl IvProblem<'_> {
         (0..endog.ncols())
             .map(|j| {
                 let yj = endog.column(j).into_owned();
-                let ls = solve_with(&setup.zqr, &setup.z, &yj);
-                let fit = assemble(
-                    &yj,
-                    &setup.z,
-                    &ls,
-                    has_intercept,
-                    cov,
-                    Leverage::Allowed,
-                    absorbed,
-                )?;
+                // The first column's fit is the one the weak-instrument diagnostics and the
+                // Anderson–Rubin and CLR tests read too.
+                let fit = if j == 0 {
+                    self.endog_fit(has_intercept, cov, absorbed)?
+                } else {
+                    let ls = solve_with(&setup.zqr, &setup.z, &yj);
+                    let allowed = Leverage::Allowed;
+                    assemble(&yj, &setup.z, &ls, has_intercept, cov, allowed, absorbed)?
+                };
                 let classical = covariance(
-                    &ls.qr,
-                    &ls.design,
+                    &setup.zqr,
+                    &setup.z,
                     &fit.resid,
                     &CovSpec::Classical,
                     Leverage::Allowed,
                     absorbed,
                 )?;
-                let fitted = (&fit, &*ls.design);
+                let fitted = (&fit, &*setup.z);
                 let f = joint_f(fitted, &classical.cov, &excluded, fit.df_resid)?;
                 let robust_f = joint_f(fitted, &fit.cov, &excluded, inference_df(&fit))?;
                 let partial_r_squared = 1.0 - fit.rss / self.exog_residuals(&yj)?.norm_squared();

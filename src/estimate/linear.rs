@@ -594,6 +594,38 @@ impl<'a> IvProblem<'a> {
         Ok(Some(meat))
     }
 
+    /// The first endogenous column on Z with the caller's covariance (its first stage, and
+    /// the weak-instrument diagnostics' regression), from the kept fit and a covariance kept
+    /// per sample and covariance: the same bits as [`assemble`] on a fresh solve.
+    pub(crate) fn endog_fit(
+        &self,
+        has_intercept: bool,
+        spec: &CovSpec,
+        absorbed: &Absorbed,
+    ) -> Result<LinearFit, EstimateError> {
+        let (z, zqr) = (&self.setup.z, &self.setup.zqr);
+        require_observations(z.nrows(), z.ncols() + absorbed.df)?;
+        let on_x = self.endog_on_instruments()?;
+        let key = || {
+            let key = self.outcome_free_key("first endogenous column's covariance");
+            absorbed.keyed(spec.keyed(key)).finish()
+        };
+        let cov: Covariance = zqr.derived(key, || {
+            covariance(zqr, z, &on_x.resid, spec, Leverage::Allowed, absorbed)
+        })?;
+        let x = self.endog.column(0).into_owned();
+        let resid = on_x.resid.clone();
+        Ok(assemble_parts(
+            &x,
+            z,
+            &on_x.coef,
+            resid,
+            cov,
+            has_intercept,
+            absorbed,
+        ))
+    }
+
     /// The reduced form (y on Z with the caller's covariance) from the kept fit and
     /// covariance: the same bits as [`assemble`] on a fresh solve.
     pub(crate) fn reduced_form_fit(

@@ -43,13 +43,11 @@
 //! it is (x̃'P_Z̃ x̃/q) / s², the classical first-stage F, whatever the caller's covariance.
 //! Stock and Yogo's critical values assume homoskedastic errors.
 
-use std::sync::Arc;
-
 use nalgebra::{DMatrix, DVector, SymmetricEigen};
 use statrs::function::gamma::ln_gamma;
 
-use super::covariance::{CovSpec, Leverage};
-use super::linear::{assemble, require_observations, IvProblem, LeastSquares};
+use super::covariance::CovSpec;
+use super::linear::{require_observations, IvProblem};
 use super::{Absorbed, EstimateError};
 use crate::distribution::Reference;
 use crate::inference::{quantile, upper_tail};
@@ -162,24 +160,11 @@ impl IvProblem<'_> {
         tau: f64,
         absorbed: &Absorbed,
     ) -> Result<WeakInstruments, EstimateError> {
-        let endog = &self.endog.column(0).into_owned();
         let (setup, exog, instruments) = (&self.setup, self.exog, self.instruments);
-        let (n, l, q) = (endog.len(), setup.z.ncols(), instruments.ncols());
+        let (n, l, q) = (self.endog.nrows(), setup.z.ncols(), instruments.ncols());
         require_observations(n, l + absorbed.df)?;
-        let ls = LeastSquares {
-            qr: setup.zqr.clone(),
-            design: Arc::clone(&setup.z),
-            coef: setup.zqr.solve(&setup.z, endog),
-        };
-        let fit = assemble(
-            endog,
-            &setup.z,
-            &ls,
-            false,
-            cov,
-            Leverage::Allowed,
-            absorbed,
-        )?;
+        // The first stage's regression, kept by the IV problem.
+        let fit = self.endog_fit(false, cov, absorbed)?;
         // Z̃ = M_exog instruments and its triangular factor R (Z̃'Z̃ = R'R).
         let mut z_tilde = instruments.clone();
         if exog.ncols() > 0 {
