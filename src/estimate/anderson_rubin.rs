@@ -63,7 +63,7 @@ use nalgebra::{DMatrix, DVector};
 use super::covariance::{covariance, CovSpec, Covariance, Leverage};
 use super::linear::{require_observations, IvColumns, IvProblem, OnInstruments};
 use super::qr::PivotedQr;
-use super::quadratic_meat::PairMeat;
+use super::quadratic_meat::QuadraticMeat;
 use super::refine::residual;
 use super::wald::wald;
 use super::{Absorbed, EstimateError};
@@ -275,12 +275,6 @@ impl ArProblem<'_> {
         })
     }
 
-    /// The search's quadratic form (`None` for covariances that are not one), computed on
-    /// first use and kept by the IV problem.
-    pub(crate) fn pair_meat(&self) -> Result<Option<Arc<PairMeat>>, EstimateError> {
-        Ok(self.problem.basis()?.meat.clone())
-    }
-
     /// The statistic at each value of `grid` (as [`anderson_rubin_curve`]).
     ///
     /// # Errors
@@ -329,8 +323,6 @@ pub fn anderson_rubin_curve(
 
 /// The regressions shared by the test and the set.
 struct Problem<'a> {
-    /// The IV problem, which keeps what this one computes for other tests too.
-    iv: &'a IvProblem<'a>,
     z: &'a DMatrix<f64>,
     zqr: &'a PivotedQr,
     spec: &'a CovSpec,
@@ -386,7 +378,6 @@ impl<'a> Problem<'a> {
         let at_zero = iv.outcome_on_instruments_covariance(spec, absorbed)?;
         let clusters = at_zero.clusters;
         Ok(Problem {
-            iv,
             z,
             zqr,
             spec,
@@ -464,7 +455,7 @@ impl<'a> Problem<'a> {
     fn ar_direction(&self, basis: &Basis, cy: f64, cx: f64) -> Result<f64, EstimateError> {
         let coef = &basis.coef_y * cy - &basis.coef_x * cx;
         let v = match &basis.meat {
-            Some(pair) => pair.meat.covariance(cy, cx),
+            Some(meat) => meat.covariance(cy, cx),
             None => self.covariance(&(&basis.e_y * cy - &basis.e_x * cx))?.cov,
         };
         let indices: Vec<usize> = (0..self.l).collect();
@@ -484,9 +475,8 @@ struct Basis {
     e_x: DVector<f64>,
     coef_y: DVector<f64>,
     coef_x: DVector<f64>,
-    /// The covariance as a quadratic form in the two residual weights, when it is one
-    /// (kept by the IV problem for the robust LM and CLR tests).
-    meat: Option<Arc<PairMeat>>,
+    /// The covariance as a quadratic form in the two residual weights, when it is one.
+    meat: Option<QuadraticMeat>,
 }
 
 /// R = M_W Z (Z itself when W has no columns), column by column by least squares.

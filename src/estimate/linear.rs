@@ -10,7 +10,6 @@ use nalgebra::{DMatrix, DVector};
 
 use super::covariance::{covariance, CovSpec, Covariance, Leverage};
 use super::qr::{InputKey, PivotedQr};
-use super::quadratic_meat::PairMeat;
 use super::refine::residual;
 use super::shared::{self, collinear_kept_shared, design_qr, shared_design_qr, shared_qr};
 use super::{Absorbed, EstimateError, LinearFit};
@@ -397,9 +396,6 @@ pub struct IvProblem<'a> {
     outcome_on_z: std::sync::OnceLock<OnInstruments>,
     /// Covariances of the outcome's coefficients on Z, by covariance and absorbed key.
     outcome_on_z_cov: std::sync::Mutex<Vec<([u8; 32], Covariance)>>,
-    /// The Anderson–Rubin search's quadratic forms, by covariance and absorbed key: the
-    /// robust LM and CLR tests read theirs from the same pass over the rows.
-    pair_meats: std::sync::Mutex<Vec<([u8; 32], Arc<PairMeat>)>>,
     exog_qr: std::sync::OnceLock<Result<Arc<PivotedQr>, EstimateError>>,
     /// The key (an [`InputKey`](super::qr::InputKey) hash) of the outcome-free inputs besides Z (see [`IvProblem::outcome_free_key`]).
     outcome_free: std::sync::OnceLock<[u8; 32]>,
@@ -451,7 +447,6 @@ impl<'a> IvProblem<'a> {
             tsls_resid: std::sync::OnceLock::new(),
             outcome_on_z: std::sync::OnceLock::new(),
             outcome_on_z_cov: std::sync::Mutex::new(Vec::new()),
-            pair_meats: std::sync::Mutex::new(Vec::new()),
             exog_qr: std::sync::OnceLock::new(),
             outcome_free: std::sync::OnceLock::new(),
         })
@@ -564,34 +559,6 @@ impl<'a> IvProblem<'a> {
         )?;
         lock().push((key, cov.clone()));
         Ok(cov)
-    }
-
-    /// The Anderson–Rubin search's quadratic form for `spec` and `absorbed`, computed by
-    /// `compute` once (`None`, for covariances that are not such a form, is not kept; nor
-    /// are errors).
-    pub(crate) fn pair_meat(
-        &self,
-        spec: &CovSpec,
-        absorbed: &Absorbed,
-        compute: impl FnOnce() -> Result<Option<PairMeat>, EstimateError>,
-    ) -> Result<Option<Arc<PairMeat>>, EstimateError> {
-        let key = absorbed
-            .keyed(spec.keyed(InputKey::new("anderson-rubin pair")))
-            .finish();
-        let lock = || {
-            self.pair_meats
-                .lock()
-                .unwrap_or_else(std::sync::PoisonError::into_inner)
-        };
-        if let Some((_, meat)) = lock().iter().find(|(k, _)| *k == key) {
-            return Ok(Some(Arc::clone(meat)));
-        }
-        let Some(meat) = compute()? else {
-            return Ok(None);
-        };
-        let meat = Arc::new(meat);
-        lock().push((key, Arc::clone(&meat)));
-        Ok(Some(meat))
     }
 
     /// The first endogenous column on Z with the caller's covariance (its first stage, and

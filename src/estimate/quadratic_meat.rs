@@ -21,7 +21,6 @@ use super::{Absorbed, EstimateError};
 
 /// The three meat blocks, the bread factor B ([`PivotedQr::bread`]) and the small-sample
 /// factor.
-#[derive(Debug, Clone)]
 pub(crate) struct QuadraticMeat {
     bread: DMatrix<f64>,
     m11: DMatrix<f64>,
@@ -38,24 +37,6 @@ impl QuadraticMeat {
         &self.bread * meat * self.bread.transpose() * self.factor
     }
 
-    /// The same quadratic form for the residual pair (e₁ + t·e₂, e₂/s), whose blocks are
-    /// M₁₁ + t(M₁₂ + M₁₂ᵀ) + t²M₂₂, (M₁₂ + t M₂₂)/s and M₂₂/s², exactly in real arithmetic, with no pass over
-    /// the rows (the Anderson–Rubin search's centred pair gives the uncentred one the
-    /// robust LM and CLR tests use). The sums lose digits only where their terms cancel,
-    /// i.e. where e₁ + t·e₂ is much smaller than e₁ and t·e₂; for the centred pair that
-    /// would need y's residuals to cancel the part of them that moves with x.
-    pub(crate) fn recombined(&self, t: f64, s: f64) -> QuadraticMeat {
-        let m12 = (&self.m12 + &self.m22 * t) / s;
-        let m11 = &self.m11 + (&self.m12 + self.m12.transpose()) * t + &self.m22 * (t * t);
-        QuadraticMeat {
-            bread: self.bread.clone(),
-            m11,
-            m12,
-            m22: &self.m22 / (s * s),
-            factor: self.factor,
-        }
-    }
-
     /// The joint covariance of the coefficients from residuals e₁ and e₂: the blocks
     /// [[Σ₁₁, Σ₁₂], [Σ₂₁, Σ₂₂]], Σ_rs = B M_rs Bᵀ · factor (Σ₂₁ = Σ₁₂ᵀ; M₁₂ is not symmetric
     /// when clustered). `covariance(a, b)` = a²Σ₁₁ − ab(Σ₁₂ + Σ₂₁) + b²Σ₂₂.
@@ -64,23 +45,6 @@ impl QuadraticMeat {
         let cross = side(&self.m12);
         let cross_t = cross.transpose();
         [[side(&self.m11), cross], [cross_t, side(&self.m22)]]
-    }
-}
-
-/// The quadratic form of the Anderson–Rubin search's pair e₁ = e_y − centre·e_x,
-/// e₂ = scale·e_x (module `anderson_rubin`), with its centre and scale.
-#[derive(Debug)]
-pub(crate) struct PairMeat {
-    pub(crate) centre: f64,
-    pub(crate) scale: f64,
-    pub(crate) meat: QuadraticMeat,
-}
-
-impl PairMeat {
-    /// The form for the uncentred pair (e_y, e_x): e_y = e₁ + (centre/scale)·e₂,
-    /// e_x = e₂/scale.
-    pub(crate) fn uncentred(&self) -> QuadraticMeat {
-        self.meat.recombined(self.centre / self.scale, self.scale)
     }
 }
 
@@ -254,42 +218,6 @@ mod tests {
                     (v - &direct.cov).amax() <= 1e-13 * scale,
                     "{spec:?} at {a}, {b}"
                 );
-            }
-        }
-    }
-
-    /// The recombined form equals the form built directly from the pair (e₁ + t·e₂, e₂/s),
-    /// every block, for each estimator it covers (generated design, invented data), with t
-    /// and s of both signs and sizes far from 1.
-    #[test]
-    fn recombined_matches_the_form_of_the_recombined_pair() {
-        let (x, e1, e2, qr, ids) = generated();
-        let specs = [
-            CovSpec::Hc0,
-            CovSpec::Hc1,
-            CovSpec::Hc3,
-            CovSpec::Cluster { ids },
-        ];
-        let none = &Absorbed::NONE;
-        for spec in &specs {
-            let quad = quadratic_meat(&qr, &x, &e1, &e2, spec, Leverage::Allowed, none)
-                .expect("valid")
-                .expect("covered");
-            for (t, s) in [(0.7, 1.3), (-25.0, 0.02), (3e3, -40.0)] {
-                let (f1, f2) = (&e1 + &e2 * t, &e2 / s);
-                let direct = quadratic_meat(&qr, &x, &f1, &f2, spec, Leverage::Allowed, none)
-                    .expect("valid")
-                    .expect("covered")
-                    .blocks();
-                let got = quad.recombined(t, s).blocks();
-                for (r, c) in [(0, 0), (0, 1), (1, 0), (1, 1)] {
-                    let scale = direct[r][c].amax();
-                    let off = (&got[r][c] - &direct[r][c]).amax();
-                    assert!(
-                        off <= 1e-12 * scale,
-                        "{spec:?} t {t} s {s} block {r}{c}: {off:e}"
-                    );
-                }
             }
         }
     }

@@ -7,7 +7,7 @@ use nalgebra::DVector;
 
 use super::{Basis, ConfidenceSet, Problem, GRID};
 use crate::estimate::covariance::{CovSpec, Leverage};
-use crate::estimate::quadratic_meat::{quadratic_meat, PairMeat};
+use crate::estimate::quadratic_meat::quadratic_meat;
 use crate::estimate::EstimateError;
 
 impl Problem<'_> {
@@ -92,22 +92,15 @@ impl Problem<'_> {
         };
         let e_y = self.e_y - self.e_x() * centre;
         let e_x = self.e_x() * scale;
-        let meat = self.iv.pair_meat(self.spec, self.absorbed, || {
-            let meat = quadratic_meat(
-                self.zqr,
-                self.z,
-                &e_y,
-                &e_x,
-                self.spec,
-                Leverage::Allowed,
-                self.absorbed,
-            )?;
-            Ok(meat.map(|meat| PairMeat {
-                centre,
-                scale,
-                meat,
-            }))
-        })?;
+        let meat = quadratic_meat(
+            self.zqr,
+            self.z,
+            &e_y,
+            &e_x,
+            self.spec,
+            Leverage::Allowed,
+            self.absorbed,
+        )?;
         Ok(Basis {
             centre,
             scale,

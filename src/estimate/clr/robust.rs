@@ -32,10 +32,7 @@
 //! With the classical covariance (Σ_rs = ê_rᵀê_s/(n − L − |W| − a)·(DᵀD)⁻¹ restricted to Z)
 //! these are exactly Q_S, Q_T, LM and CLR of the homoskedastic parent module, which a
 //! unit test checks. Covariances covered: HC0–HC3 and one-way clusters (CR1), each as the
-//! quadratic meat of module `quadratic_meat`: the one the Anderson–Rubin search builds for
-//! its centred pair (e_y − c·e_x, s·e_x), kept by the IV problem and recombined exactly for
-//! (e_y, e_x) (`PairMeat::uncentred`), so the two tests share one pass over the rows.
-//! Two-way clusters (an eigenvalue
+//! quadratic meat of module `quadratic_meat` built once. Two-way clusters (an eigenvalue
 //! clamp makes the covariance non-quadratic in the residuals) and HAC are refused with
 //! [`EstimateError::CovarianceUnavailable`]. The references are asymptotic (χ²), with
 //! clusters as with any other errors; they are valid however weak the instruments
@@ -66,8 +63,9 @@ use super::screen::clr_p_value_screen;
 use super::{clr_p_value, ConditionalLr, LmClr, LmClrSets};
 use crate::distribution::{Reference, TestStatistic};
 use crate::estimate::anderson_rubin::ConfidenceSet;
-use crate::estimate::covariance::CovSpec;
+use crate::estimate::covariance::{CovSpec, Leverage};
 use crate::estimate::linear::{require_observations, IvProblem};
+use crate::estimate::quadratic_meat::quadratic_meat;
 use crate::estimate::{Absorbed, EstimateError};
 use crate::inference::quantile;
 
@@ -162,16 +160,11 @@ impl IvProblem<'_> {
                 let cross = s(e_y, e_x);
                 [[s(e_y, e_y), cross.clone()], [cross, s(e_x, e_x)]]
             }
-            // The Anderson–Rubin search's quadratic form, recombined for (e_y, e_x): one
-            // pass over the rows serves both.
-            _ => self
-                .anderson_rubin_problem(cov, absorbed)?
-                .pair_meat()?
+            _ => quadratic_meat(zqr, z, e_y, e_x, cov, Leverage::Allowed, absorbed)?
                 .ok_or(EstimateError::CovarianceUnavailable {
                     estimator: "the robust LM and CLR tests",
                     kind: cov.name(),
                 })?
-                .uncentred()
                 .blocks(),
         };
         let z_block = |m: &DMatrix<f64>| m.view((0, 0), (l, l)).into_owned();
