@@ -376,7 +376,8 @@ impl OnInstruments {
 /// One IV problem, prepared once and shared by the fit and every diagnostic of a
 /// specification: the inputs, the validated setup (X = [endog | exog], Z = [instruments |
 /// exog] and the QR of Z) and, computed on first use, the 2SLS residuals that the
-/// endogeneity and over-identification tests share.
+/// over-identification tests share and the fits on Z that the reduced form, the first
+/// stage, the weak-instrument diagnostics and the Anderson–Rubin and CLR tests share.
 ///
 /// Each method gives exactly the bits of the free function of the same name called with
 /// the same inputs (the same factorisations of the same matrices); it only avoids repeating

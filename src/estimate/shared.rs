@@ -12,9 +12,9 @@
 //! copy; the memo recognises a matrix it holds by address, and keeps its key (BLAKE3)
 //! ([`digest`]) for the keys below. A shared factorisation of the instruments
 //! also keeps the outcome-free results computed with it (the first stages, Shea's partial
-//! R², the weak-instrument diagnostics, the Durbin test's factorisation of Z with the
-//! endogenous columns, the projected regressors X̂, the control-function design
-//! [X | v̂]; `PivotedQr::derived`), under the key of everything else
+//! R², the weak-instrument diagnostics, the projected regressors X̂, the control-function
+//! design [X | v̂], the first endogenous column's fit on Z and its covariances, M_W Z, and
+//! Hansen's Q₁ᵀX; `PivotedQr::derived`), under the key of everything else
 //! they read (the regressors' bits, the errors with their cluster ids, the absorbed
 //! degrees of freedom), so specifications that differ only in their outcome compute them
 //! once.

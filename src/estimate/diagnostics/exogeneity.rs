@@ -8,7 +8,7 @@ use std::sync::Arc;
 use nalgebra::{Cholesky, DMatrix, DVector};
 
 use super::super::covariance::{
-    cluster_sums, scaled_gram, transpose_times, CovSpec, Leverage, Scaled, ROW_BLOCK,
+    cluster_sums, covariance, scaled_gram, transpose_times, CovSpec, Leverage, Scaled, ROW_BLOCK,
 };
 use super::super::hac::hac_meat;
 use super::super::linear::{
@@ -84,14 +84,17 @@ fn first_stage_residuals(
 ///   ‖P_{M_X V̂} y‖²), which is b_Vᵀ[(WᵀW)⁻¹_VV]⁻¹b_V for W = [X | V̂] by Frisch–Waugh
 ///   (the refined inverse the sandwich already holds), and e_oᵀe_o = RSS_cf + δ. So no
 ///   OLS fit, 2SLS residuals or projections onto Z are needed, and no large sums are
-///   subtracted; Wu–Hausman is the control-function F with classical errors by
-///   construction. The reference fixtures check both statistics against the quadratic
-///   forms as defined (library fixtures at 1e-8; the exact rational fixture).
+///   subtracted. Wu–Hausman is the control-function F with classical errors, and is
+///   computed as one (`joint_f`), so an exact or rounding-level fit of the augmented
+///   regression gives +∞ as that F does, not a ratio of rounding noise. The reference
+///   fixtures check both statistics against the quadratic forms as defined (library
+///   fixtures at 1e-8; the exact rational fixture).
 ///
 /// # Errors
-/// As [`tsls`](crate::estimate::tsls); [`EstimateError::TooFewObservations`] unless n > k + p + a;
-/// [`EstimateError::RankDeficient`] (indices into [endog | exog | V̂]) when the augmented
-/// design is singular, e.g. when an endogenous column lies in the span of Z (V̂ = 0).
+/// As [`IvProblem::new`] for the inputs; [`EstimateError::TooFewObservations`] unless
+/// n > k + p + a; [`EstimateError::RankDeficient`] (indices into [endog | exog | V̂]) when
+/// the augmented design is singular, e.g. when an endogenous column lies in the span of Z
+/// (V̂ = 0); the covariance's own errors for the control-function statistic.
 pub fn endogeneity(
     y: &DVector<f64>,
     exog: &DMatrix<f64>,
@@ -138,17 +141,25 @@ impl IvProblem<'_> {
         let control_function = joint_f((&cf, &augmented), &cf.cov, &tested, inference_df(&cf))?;
         let delta = rss_drop(&ls.qr.refined_inverse(&augmented), &cf.coef, k)?;
         let rss_o = cf.rss + delta;
-        let (pf, df2) = (p as f64, (n - k - p - absorbed.df) as f64);
+        // Wu–Hausman is the control-function F with classical errors, so it is computed as
+        // one: the same rule for exact and rounding-level fits (+∞ rather than rounding
+        // noise over rounding noise).
+        let classical = covariance(
+            &ls.qr,
+            &augmented,
+            &cf.resid,
+            &CovSpec::Classical,
+            Leverage::Allowed,
+            absorbed,
+        )?;
+        let wu_hausman = joint_f((&cf, &augmented), &classical.cov, &tested, cf.df_resid)?;
         Ok(Endogeneity {
             control_function,
             durbin: TestStatistic {
                 statistic: delta / (rss_o / n as f64),
-                reference: Reference::ChiSquare { df: pf },
+                reference: Reference::ChiSquare { df: p as f64 },
             },
-            wu_hausman: TestStatistic {
-                statistic: (delta / pf) / (cf.rss / df2),
-                reference: Reference::F { df1: pf, df2 },
-            },
+            wu_hausman,
         })
     }
 }
@@ -445,5 +456,53 @@ mod block_tests {
                 "{cov:?}: {got} vs {want}"
             );
         }
+    }
+}
+
+#[cfg(test)]
+mod endogeneity_tests {
+    use super::*;
+
+    /// An outcome that the control-function regression fits to rounding (y = X b + V̂ c with
+    /// no other noise; generated data) while 2SLS does not: Wu–Hausman, the classical
+    /// control-function F, follows that F's rule for rounding-level fits and is +∞, not a
+    /// ratio of rounding noise; a noisy outcome gives a finite value equal to the F.
+    #[test]
+    fn wu_hausman_follows_the_control_function_rule_on_a_rounding_level_fit() {
+        let n = 400;
+        let f = |i: usize, j: usize| ((i * (3 + 2 * j) + j) as f64 * 0.61).sin();
+        let exog = DMatrix::from_fn(n, 2, |i, j| if j == 0 { 1.0 } else { f(i, 1) });
+        let instruments = DMatrix::from_fn(n, 2, |i, j| f(i, 4 + j));
+        let endog = DMatrix::from_fn(n, 1, |i, _| {
+            instruments[(i, 0)] - 0.5 * instruments[(i, 1)] + 0.8 * f(i, 9)
+        });
+        let zeros = DVector::zeros(n);
+        let iv = IvProblem::new(&zeros, &exog, &endog, &instruments).expect("iv");
+        let vhat = first_stage_residuals(&iv.setup, 1).expect("v-hat");
+        let exact = DVector::from_fn(n, |i, _| {
+            2.0 * endog[(i, 0)] + 1.0 + 0.3 * exog[(i, 1)] + 1.7 * vhat[(i, 0)]
+        });
+        let noisy = DVector::from_fn(n, |i, _| exact[i] + 0.4 * f(i, 13));
+        let test = |y: &DVector<f64>| {
+            endogeneity(
+                y,
+                &exog,
+                &endog,
+                &instruments,
+                true,
+                &CovSpec::Classical,
+                &Absorbed::NONE,
+            )
+            .expect("endogeneity")
+        };
+        let at_rounding = test(&exact);
+        assert_eq!(at_rounding.control_function.statistic, f64::INFINITY);
+        assert_eq!(at_rounding.wu_hausman.statistic, f64::INFINITY);
+        let noisy = test(&noisy);
+        let (wh, cf) = (noisy.wu_hausman.statistic, noisy.control_function.statistic);
+        assert!(
+            wh.is_finite() && (wh - cf).abs() <= 1e-12 * cf,
+            "{wh} against {cf}"
+        );
     }
 }
