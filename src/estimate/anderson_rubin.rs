@@ -372,7 +372,6 @@ impl<'a> Problem<'a> {
             },
             || Ok(Arc::new(partial_out(instruments, exog, exog_qr))),
         )?;
-
         let r_y = &*r * coef_y.rows(0, l);
         let r_x = &*r * coef_x.rows(0, l);
         let at_zero = iv.outcome_on_instruments_covariance(spec, absorbed)?;

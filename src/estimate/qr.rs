@@ -127,10 +127,10 @@ pub(crate) static DERIVED_HITS: std::sync::atomic::AtomicUsize =
     std::sync::atomic::AtomicUsize::new(0);
 
 /// How many derived results a shared factorisation keeps. A 2SLS sample with every
-/// diagnostic under two covariances asks the instruments' factorisation for twelve (X̂,
-/// [X | V̂], Q₁ᵀX, x's fit on Z, M_W Z, Shea's R², and per covariance the first stages,
-/// the weak-instrument results and x's covariance); a limit below that evicts X̂ before its
-/// last use and recomputes it.
+/// diagnostic under two covariances asks the instruments' factorisation for thirteen (X̂,
+/// [X | V̂], Q₁ᵀX, x's fit on Z, M_W Z, the weak-instrument diagnostics' factor of M_W Z,
+/// Shea's R², and per covariance the first stages, the weak-instrument results and x's
+/// covariance); a limit below that evicts X̂ before its last use and recomputes it.
 const KEPT_DERIVED: usize = 16;
 
 /// A key of a derived result's inputs: the BLAKE3 hash (O'Connor, Aumasson, Neves and

@@ -165,16 +165,25 @@ impl IvProblem<'_> {
         require_observations(n, l + absorbed.df)?;
         // The first stage's regression, kept by the IV problem.
         let fit = self.endog_fit(false, cov, absorbed)?;
-        // Z̃ = M_exog instruments and its triangular factor R (Z̃'Z̃ = R'R).
-        let mut z_tilde = instruments.clone();
-        if exog.ncols() > 0 {
-            let exog_qr = self.exog_qr()?;
-            for j in 0..q {
-                let col = z_tilde.column(j).into_owned();
-                z_tilde.set_column(j, &(&col - exog_qr.project(&col)));
-            }
-        }
-        let r = z_tilde.qr().r();
+        // Z̃ = M_exog instruments and its triangular factor R (Z̃'Z̃ = R'R): outcome-free and
+        // the same for every covariance, so computed once per sample.
+        let r: DMatrix<f64> = setup.zqr.derived(
+            || {
+                self.outcome_free_key("partialled instruments' factor")
+                    .finish()
+            },
+            || {
+                let mut z_tilde = instruments.clone();
+                if exog.ncols() > 0 {
+                    let exog_qr = self.exog_qr()?;
+                    for j in 0..q {
+                        let col = z_tilde.column(j).into_owned();
+                        z_tilde.set_column(j, &(&col - exog_qr.project(&col)));
+                    }
+                }
+                Ok::<_, EstimateError>(z_tilde.qr().r())
+            },
+        )?;
         let pi = fit.coef.rows(0, q).into_owned();
         let explained = (&r * &pi).norm_squared();
         let v_pi = fit.cov.view((0, 0), (q, q)).into_owned();
