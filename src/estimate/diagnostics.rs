@@ -98,6 +98,26 @@ fn joint_f(
     })
 }
 
+/// [`joint_f`] with the fit's classical covariance s²(XᵀX)⁻¹ (from `qr`, the factorisation
+/// of `design`), referred to F(|S|, n − k − a): the first stage's F, and Wu–Hausman (the
+/// control-function F with classical errors).
+fn classical_f(
+    (fit, design): (&LinearFit, &DMatrix<f64>),
+    qr: &PivotedQr,
+    indices: &[usize],
+    absorbed: &Absorbed,
+) -> Result<TestStatistic, EstimateError> {
+    let classical = covariance(
+        qr,
+        design,
+        &fit.resid,
+        &CovSpec::Classical,
+        Leverage::Allowed,
+        absorbed,
+    )?;
+    joint_f((fit, design), &classical.cov, indices, fit.df_resid)
+}
+
 /// Denominator degrees of freedom for tests with the fit's own covariance.
 fn inference_df(fit: &LinearFit) -> usize {
     fit.clusters.map_or(fit.df_resid, |g| g - 1)
@@ -214,16 +234,8 @@ impl IvProblem<'_> {
                     let allowed = Leverage::Allowed;
                     assemble(&yj, &setup.z, &ls, has_intercept, cov, allowed, absorbed)?
                 };
-                let classical = covariance(
-                    &setup.zqr,
-                    &setup.z,
-                    &fit.resid,
-                    &CovSpec::Classical,
-                    Leverage::Allowed,
-                    absorbed,
-                )?;
                 let fitted = (&fit, &*setup.z);
-                let f = joint_f(fitted, &classical.cov, &excluded, fit.df_resid)?;
+                let f = classical_f(fitted, &setup.zqr, &excluded, absorbed)?;
                 let robust_f = joint_f(fitted, &fit.cov, &excluded, inference_df(&fit))?;
                 let partial_r_squared = 1.0 - fit.rss / self.exog_residuals(&yj)?.norm_squared();
                 Ok(FirstStage {

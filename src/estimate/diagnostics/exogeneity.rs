@@ -8,7 +8,7 @@ use std::sync::Arc;
 use nalgebra::{Cholesky, DMatrix, DVector};
 
 use super::super::covariance::{
-    cluster_sums, covariance, scaled_gram, transpose_times, CovSpec, Leverage, Scaled, ROW_BLOCK,
+    cluster_sums, scaled_gram, transpose_times, CovSpec, Leverage, Scaled, ROW_BLOCK,
 };
 use super::super::hac::hac_meat;
 use super::super::linear::{
@@ -16,7 +16,7 @@ use super::super::linear::{
 };
 use super::super::qr::QRows;
 use super::super::{Absorbed, EstimateError};
-use super::{inference_df, joint_f};
+use super::{classical_f, inference_df, joint_f};
 use crate::distribution::{Reference, TestStatistic};
 
 /// Tests of the null that the endogenous regressors are exogenous.
@@ -144,15 +144,7 @@ impl IvProblem<'_> {
         // Wu–Hausman is the control-function F with classical errors, so it is computed as
         // one: the same rule for exact and rounding-level fits (+∞ rather than rounding
         // noise over rounding noise).
-        let classical = covariance(
-            &ls.qr,
-            &augmented,
-            &cf.resid,
-            &CovSpec::Classical,
-            Leverage::Allowed,
-            absorbed,
-        )?;
-        let wu_hausman = joint_f((&cf, &augmented), &classical.cov, &tested, cf.df_resid)?;
+        let wu_hausman = classical_f((&cf, &augmented), &ls.qr, &tested, absorbed)?;
         Ok(Endogeneity {
             control_function,
             durbin: TestStatistic {
