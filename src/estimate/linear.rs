@@ -582,16 +582,28 @@ impl<'a> IvProblem<'a> {
             covariance(zqr, z, &on_x.resid, spec, Leverage::Allowed, absorbed)
         })?;
         let x = self.endog.column(0).into_owned();
-        let resid = on_x.resid.clone();
-        Ok(assemble_parts(
-            &x,
-            z,
-            &on_x.coef,
+        Ok(self.fit_on_instruments(&x, &on_x, cov, has_intercept, absorbed))
+    }
+
+    /// The [`LinearFit`] of `v` on Z from its kept fit `on` and covariance `cov`.
+    fn fit_on_instruments(
+        &self,
+        v: &DVector<f64>,
+        on: &OnInstruments,
+        cov: Covariance,
+        has_intercept: bool,
+        absorbed: &Absorbed,
+    ) -> LinearFit {
+        let resid = on.resid.clone();
+        assemble_parts(
+            v,
+            &self.setup.z,
+            &on.coef,
             resid,
             cov,
             has_intercept,
             absorbed,
-        ))
+        )
     }
 
     /// The reduced form (y on Z with the caller's covariance) from the kept fit and
@@ -605,17 +617,8 @@ impl<'a> IvProblem<'a> {
         let z = &self.setup.z;
         require_observations(z.nrows(), z.ncols() + absorbed.df)?;
         let cov = self.outcome_on_instruments_covariance(spec, absorbed)?;
-        let on_z = self.outcome_on_instruments();
-        let resid = on_z.resid.clone();
-        Ok(assemble_parts(
-            self.y,
-            z,
-            &on_z.coef,
-            resid,
-            cov,
-            has_intercept,
-            absorbed,
-        ))
+        let on_y = self.outcome_on_instruments();
+        Ok(self.fit_on_instruments(self.y, on_y, cov, has_intercept, absorbed))
     }
 
     /// X̂ = [P_Z endog | exog] (as [`projected_regressors`]): outcome-free, so kept with the
